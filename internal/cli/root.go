@@ -1,0 +1,97 @@
+// Package cli builds flowset's command tree. It is the only package that
+// imports cobra or touches the process's files and streams; every command is
+// an options struct, a constructor that only parses flags, and a run function
+// that takes a context, readers and writers so tests call it directly.
+package cli
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"strings"
+
+	"github.com/spf13/cobra"
+)
+
+// Exit codes.
+const (
+	ExitOK      = 0 // done, nothing wrong
+	ExitData    = 1 // problems in the data, or a computation that could not finish
+	ExitUsage   = 2 // wrong command line
+	exitUnknown = 1
+)
+
+// IO carries the streams a command reads and writes.
+type IO struct {
+	In  io.Reader
+	Out io.Writer
+	Err io.Writer
+	// Terminal reports whether Err is a terminal, to decide on progress output.
+	Terminal bool
+}
+
+// usageError marks a mistake on the command line (exit code 2).
+type usageError struct{ err error }
+
+func (e *usageError) Error() string { return e.err.Error() }
+func (e *usageError) Unwrap() error { return e.err }
+
+func usagef(format string, a ...any) error { return &usageError{fmt.Errorf(format, a...)} }
+
+// Run executes flowset with args (without the program name) and returns the
+// process exit code.
+func Run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	ios := &IO{In: stdin, Out: stdout, Err: stderr, Terminal: isTerminal(stderr)}
+	root := NewRoot(ios)
+	root.SetArgs(args)
+	root.SetIn(stdin)
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	err := root.ExecuteContext(ctx)
+	if err == nil {
+		return ExitOK
+	}
+	fmt.Fprintf(stderr, "flowset: %v\n", err)
+	var ue *usageError
+	if errors.As(err, &ue) || isCobraUsage(err) {
+		fmt.Fprintln(stderr, "run 'flowset help' for usage")
+		return ExitUsage
+	}
+	return exitCode(err)
+}
+
+// NewRoot builds the whole command tree in one place.
+func NewRoot(ios *IO) *cobra.Command {
+	root := &cobra.Command{
+		Use:   "flowset",
+		Short: "Fit a water-circuit survey, diagnose it and plan its balancing",
+		Long: `flowset turns a survey of a hydronic or process water circuit (flows,
+differentials and valve settings read on site) into a calibrated hydraulic
+model, says which branches are off design and why, and plans one set of
+balancing-valve settings and a pump set-point that give every branch its
+design flow at the lowest pump head.
+
+Results are predictions. Verify them on site; pressurised, hot or chilled
+water and rotating machinery can hurt people. Work to local codes and
+licensed practice.`,
+		SilenceUsage:  true,
+		SilenceErrors: true,
+	}
+	root.CompletionOptions.DisableDefaultCmd = true
+	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return &usageError{err} })
+	addCommands(root, ios)
+	return root
+}
+
+// isCobraUsage recognises cobra's own argument errors, which it returns as
+// plain errors.
+func isCobraUsage(err error) bool {
+	msg := err.Error()
+	for _, p := range []string{"unknown command", "accepts ", "requires at least", "requires at most", "unknown flag", "unknown shorthand"} {
+		if strings.Contains(msg, p) {
+			return true
+		}
+	}
+	return false
+}
