@@ -1,0 +1,491 @@
+package report
+
+import (
+	"fmt"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/go-echarts/go-echarts/v2/charts"
+	"github.com/go-echarts/go-echarts/v2/opts"
+	"github.com/go-echarts/go-echarts/v2/types"
+)
+
+// Colours are the Okabe-Ito palette (Okabe and Ito, "Color Universal Design",
+// 2008), chosen because its eight colours stay distinct under the common
+// colour-vision deficiencies. Shapes and line styles carry the same meaning,
+// so nothing depends on colour alone: before is dashed / hollow circle,
+// after is solid / filled diamond, a flag is a triangle.
+const (
+	colBlack      = "#000000"
+	colOrange     = "#E69F00" // before
+	colSky        = "#56B4E9" // uncertainty band
+	colGreen      = "#009E73" // after
+	colBlue       = "#0072B2" // fitted / system
+	colVermillion = "#D55E00" // measured, flagged
+	colPurple     = "#CC79A7" // pump
+	colGrey       = "#777777" // connectors
+)
+
+var palette = opts.Colors{colBlue, colOrange, colGreen, colVermillion, colPurple, colSky, colBlack}
+
+// Chart sizes in CSS pixels: 680 px is 180 mm at 96 dpi, the printable width
+// of A4 with 15 mm margins, so charts print at their screen size.
+const (
+	wideW, wideH   = 680, 380
+	smallW, smallH = 332, 250
+)
+
+// maxSmall is the most per-branch charts drawn; beyond it only the flagged
+// and furthest-from-design branches are drawn.
+const maxSmall = 24
+
+// maxWindow is the most categories shown at once in a per-branch chart;
+// more add a zoom slider.
+const maxWindow = 40
+
+// Custom series renderer names, resolved to constant functions by
+// assets/report.js. They are never built from user text.
+const (
+	renderBand   = "band"
+	renderErrBar = "errbar"
+	renderSpan   = "span"
+)
+
+// chart is one chart of the page: the DOM id (never user text), its size
+// and the echarts option built by go-echarts.
+type chart struct {
+	ID      string         `json:"id"`
+	W       int            `json:"-"`
+	H       int            `json:"-"`
+	Caption string         `json:"-"`
+	Option  map[string]any `json:"option"`
+}
+
+// sig rounds v to 5 significant digits: enough for any chart, and it keeps
+// float noise such as 0.30000000000000004 out of tooltips and the file.
+func sig(v float64) float64 {
+	r, err := strconv.ParseFloat(strconv.FormatFloat(v, 'g', 5, 64), 64)
+	if err != nil {
+		return v
+	}
+	return r
+}
+
+func finite(v ...float64) bool {
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
+}
+
+// pct is a flow in percent of design, NaN where design is not positive.
+func pct(v, design float64) float64 {
+	if !finite(v, design) || design <= 0 {
+		return math.NaN()
+	}
+	return 100 * v / design
+}
+
+func lineData(c []XY) []opts.LineData {
+	d := make([]opts.LineData, 0, len(c))
+	for _, p := range c {
+		if finite(p.X, p.Y) {
+			d = append(d, opts.LineData{Value: []float64{sig(p.X), sig(p.Y)}})
+		}
+	}
+	return d
+}
+
+// bandData is the closed outline of the region between lo and hi: lo in
+// order, then hi reversed. The "band" renderer fills it as one polygon,
+// which avoids the stacking of area series along the wrong axis.
+func bandData(lo, hi []XY) []opts.CustomData {
+	var d []opts.CustomData
+	for _, p := range lo {
+		if finite(p.X, p.Y) {
+			d = append(d, opts.CustomData{Value: []float64{sig(p.X), sig(p.Y)}})
+		}
+	}
+	for i := len(hi) - 1; i >= 0; i-- {
+		if p := hi[i]; finite(p.X, p.Y) {
+			d = append(d, opts.CustomData{Value: []float64{sig(p.X), sig(p.Y)}})
+		}
+	}
+	return d
+}
+
+// errBar is one error bar item: [x, y, xlo, xhi, ylo, yhi].
+func errBar(name string, x, y, xlo, xhi, ylo, yhi float64) opts.CustomData {
+	return opts.CustomData{Name: name, Value: []float64{sig(x), sig(y), sig(xlo), sig(xhi), sig(ylo), sig(yhi)}}
+}
+
+// missing is echarts' marker for an empty value in a one-dimensional series.
+const missing = "-"
+
+func yValue(v float64) any {
+	if !finite(v) {
+		return missing
+	}
+	return sig(v)
+}
+
+func base(id string, w, h int, extra ...charts.GlobalOpts) *charts.Line {
+	l := charts.NewLine()
+	l.SetGlobalOptions(
+		charts.WithInitializationOpts(opts.Initialization{ChartID: id, Width: fmt.Sprintf("%dpx", w), Height: fmt.Sprintf("%dpx", h), Theme: "white"}),
+		charts.WithAnimation(false),
+		charts.WithColorsOpts(palette),
+		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
+	)
+	l.SetGlobalOptions(extra...)
+	return l
+}
+
+func finish(l *charts.Line, id, caption string, w, h int) chart {
+	l.Validate()
+	return chart{ID: id, W: w, H: h, Caption: caption, Option: l.JSON()}
+}
+
+func seriesColor(c string) charts.SeriesOpts {
+	return charts.WithItemStyleOpts(opts.ItemStyle{Color: c})
+}
+
+func custom(kind string, enc opts.Encode) []charts.SeriesOpts {
+	return []charts.SeriesOpts{
+		// A plain name for assets/report.js, not go-echarts' raw-JS marker.
+		charts.WithCustomChartOpts(opts.CustomChart{RenderItem: types.FuncStr(kind)}),
+		charts.WithEncodeOpts(enc),
+	}
+}
+
+// branchChart draws one branch: design curve, fitted curve with its band,
+// and the readings with error bars.
+func branchChart(id string, b *Branch, in *Input) chart {
+	sub := Clean(strings.Join(b.Flags, "; "))
+	l := base(id, smallW, smallH,
+		charts.WithTitleOpts(opts.Title{
+			Title: Clean(b.ID), Subtitle: sub, Left: "center",
+			TitleStyle:    &opts.TextStyle{FontSize: 13, Color: colBlack},
+			SubtitleStyle: &opts.TextStyle{FontSize: 11, Color: colVermillion},
+		}),
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(false)}),
+		charts.WithGridOpts(opts.Grid{Left: "54", Right: "18", Top: "50", Bottom: "40"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: Clean("flow, " + in.FlowUnit), NameLocation: "middle", NameGap: 24, Scale: opts.Bool(false)}),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean("Δp, " + in.PressureUnit), NameLocation: "middle", NameGap: 38}),
+	)
+	// The band goes first so that it lies under everything else.
+	band := charts.NewCustom()
+	band.AddSeries("fit, 95 % band", bandData(b.FitLow, b.FitHigh),
+		append(custom(renderBand, opts.Encode{X: 0, Y: 1}), seriesColor(colSky))...)
+	l.Overlap(band)
+	l.AddSeries("design", lineData(b.DesignCurve),
+		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineStyleOpts(opts.LineStyle{Color: colBlack, Width: 1.5, Type: "dashed"}),
+		seriesColor(colBlack))
+	l.AddSeries("fitted", lineData(b.FitCurve),
+		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineStyleOpts(opts.LineStyle{Color: colBlue, Width: 2}),
+		seriesColor(colBlue))
+	bars := charts.NewCustom()
+	var barData []opts.CustomData
+	pts := charts.NewScatter()
+	var ptData []opts.ScatterData
+	for _, p := range b.Measured {
+		if !finite(p.X, p.Y) {
+			continue
+		}
+		name := Clean(p.Label)
+		xe, ye := p.XErr, p.YErr
+		if !finite(xe) {
+			xe = 0
+		}
+		if !finite(ye) {
+			ye = 0
+		}
+		barData = append(barData, errBar(name, p.X, p.Y, p.X-xe, p.X+xe, p.Y-ye, p.Y+ye))
+		ptData = append(ptData, opts.ScatterData{Name: name, Value: []float64{sig(p.X), sig(p.Y)}})
+	}
+	bars.AddSeries("reading uncertainty", barData,
+		append(custom(renderErrBar, opts.Encode{X: []int{0, 2, 3}, Y: []int{1, 4, 5}}), seriesColor(colVermillion))...)
+	pts.AddSeries("reading", ptData,
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "circle", SymbolSize: 7}),
+		seriesColor(colVermillion))
+	l.Overlap(bars, pts)
+	return finish(l, id, "", smallW, smallH)
+}
+
+// pickBranches returns the indices of the branches that get their own
+// chart, in input order: all of them up to maxSmall, otherwise the flagged
+// ones first and then those furthest from design before balancing.
+func pickBranches(bs []Branch) []int {
+	idx := make([]int, len(bs))
+	for i := range idx {
+		idx[i] = i
+	}
+	if len(bs) <= maxSmall {
+		return idx
+	}
+	score := func(i int) float64 {
+		s := 0.0
+		if len(bs[i].Flags) > 0 {
+			s = 1e9
+		}
+		if d := pct(bs[i].Before, bs[i].Design); finite(d) {
+			s += math.Abs(d - 100)
+		}
+		return s
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return score(idx[a]) > score(idx[b]) })
+	idx = idx[:maxSmall]
+	sort.Ints(idx)
+	return idx
+}
+
+// combinedChart draws the system curves of the parallel branches, the pump
+// curves and the operating points before and after.
+func combinedChart(id string, in *Input) chart {
+	c := &in.Combined
+	l := base(id, wideW, wideH,
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		charts.WithGridOpts(opts.Grid{Left: "64", Right: "28", Top: "56", Bottom: "48"}),
+		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: Clean("total flow, " + in.FlowUnit), NameLocation: "middle", NameGap: 28}),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean("Δp, " + in.PressureUnit), NameLocation: "middle", NameGap: 44}),
+	)
+	curve := func(name string, d []XY, col, typ string, w float32) {
+		l.AddSeries(name, lineData(d),
+			charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+			charts.WithLineStyleOpts(opts.LineStyle{Color: col, Width: w, Type: typ}),
+			seriesColor(col))
+	}
+	curve("system as found", c.System, colBlue, "dashed", 1.5)
+	curve("system after plan", c.SystemAfter, colBlue, "solid", 2)
+	curve("pump as found", c.PumpBefore, colPurple, "dashed", 1.5)
+	curve("pump after plan", c.PumpAfter, colPurple, "solid", 2)
+	op := charts.NewScatter()
+	point := func(name string, p XY, sym string, col string, size int) {
+		var d []opts.ScatterData
+		if finite(p.X, p.Y) {
+			d = append(d, opts.ScatterData{Name: name, Value: []float64{sig(p.X), sig(p.Y)}})
+		}
+		op.AddSeries(name, d,
+			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: sym, SymbolSize: size}),
+			charts.WithItemStyleOpts(opts.ItemStyle{Color: col, BorderColor: col, BorderWidth: 2}),
+			charts.WithLabelOpts(opts.Label{Show: opts.Bool(true), Position: "right", Formatter: "{a}", Color: col}))
+	}
+	point("operating point as found", c.OpBefore, "emptyCircle", colOrange, 13)
+	point("operating point after plan", c.OpAfter, "diamond", colGreen, 15)
+	l.Overlap(op)
+	return finish(l, id, "", wideW, wideH)
+}
+
+// categoryAxis sets up a branch-per-category x axis that stays readable
+// from 1 to thousands of branches.
+func categoryAxis(l *charts.Line, labels []string) {
+	rotate := 0.0
+	if len(labels) > 10 {
+		rotate = 45
+	}
+	l.SetXAxis(labels)
+	l.SetGlobalOptions(charts.WithXAxisOpts(opts.XAxis{
+		Type:      "category",
+		AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: rotate, Width: 90, Overflow: "truncate", HideOverlap: opts.Bool(true)},
+	}))
+	if len(labels) > maxWindow {
+		end := float32(100 * float64(maxWindow) / float64(len(labels)))
+		l.SetGlobalOptions(charts.WithDataZoomOpts(
+			opts.DataZoom{Type: "slider", Start: 0, End: end, XAxisIndex: []int{0}, Throttle: 50},
+			opts.DataZoom{Type: "inside", Start: 0, End: end, XAxisIndex: []int{0}},
+		))
+	}
+}
+
+func categoryGrid(n int) charts.GlobalOpts {
+	bottom := "40"
+	if n > 10 {
+		bottom = "96"
+	}
+	if n > maxWindow {
+		bottom = "128"
+	}
+	return charts.WithGridOpts(opts.Grid{Left: "64", Right: "28", Top: "56", Bottom: bottom})
+}
+
+// flowChart draws flow in percent of design per branch before and after,
+// with the tolerance band shaded and the 95 % interval of after.
+func flowChart(id string, in *Input) chart {
+	n := len(in.Branches)
+	labels := make([]string, n)
+	before := make([]opts.ScatterData, n)
+	after := make([]opts.ScatterData, n)
+	var bars []opts.CustomData
+	for i := range in.Branches {
+		b := &in.Branches[i]
+		labels[i] = Clean(b.ID)
+		before[i] = opts.ScatterData{Name: labels[i], Value: yValue(pct(b.Before, b.Design))}
+		after[i] = opts.ScatterData{Name: labels[i], Value: yValue(pct(b.After, b.Design))}
+		a, lo, hi := pct(b.After, b.Design), pct(b.AfterLow, b.Design), pct(b.AfterHigh, b.Design)
+		if finite(a, lo, hi) {
+			x := float64(i)
+			bars = append(bars, errBar(labels[i], x, a, x, x, lo, hi))
+		}
+	}
+	lo, hi := 100+in.ToleranceLow, 100+in.ToleranceHigh
+	l := base(id, wideW, wideH,
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		categoryGrid(n),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: "flow, % of design", NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
+	)
+	categoryAxis(l, labels)
+	band := fmt.Sprintf("tolerance %s to %s %%", strconv.FormatFloat(sig(lo), 'f', -1, 64), strconv.FormatFloat(sig(hi), 'f', -1, 64))
+	sc := charts.NewScatter()
+	sc.AddSeries("as found", before,
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: colOrange, BorderColor: colOrange, BorderWidth: 2}),
+		charts.WithSeriesOpts(func(s *charts.SingleSeries) {
+			if !finite(lo, hi) {
+				return
+			}
+			s.MarkAreas = &opts.MarkAreas{
+				Data: []any{[]map[string]any{{"name": band, "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
+				MarkAreaStyle: opts.MarkAreaStyle{
+					ItemStyle: &opts.ItemStyle{Color: "rgba(0,158,115,0.13)"},
+					Label:     &opts.Label{Show: opts.Bool(true), Position: "insideTopRight", Color: colGreen},
+				},
+			}
+			s.MarkLines = &opts.MarkLines{
+				Data: []any{map[string]any{"name": "design", "yAxis": 100}},
+				MarkLineStyle: opts.MarkLineStyle{
+					Symbol:    []string{"none", "none"},
+					LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
+					Label:     &opts.Label{Show: opts.Bool(false)},
+				},
+			}
+		}))
+	cu := charts.NewCustom()
+	cu.AddSeries("after plan, 95 % interval", bars,
+		append(custom(renderErrBar, opts.Encode{X: 0, Y: []int{1, 4, 5}}), seriesColor(colGreen))...)
+	sa := charts.NewScatter()
+	sa.AddSeries("after plan", after,
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "diamond", SymbolSize: 11}),
+		seriesColor(colGreen))
+	l.Overlap(sc, cu, sa)
+	return finish(l, id, "", wideW, wideH)
+}
+
+// ratioChart draws the fitted resistance over the design resistance per
+// branch with its 95 % interval; flagged branches get a triangle.
+func ratioChart(id string, in *Input) chart {
+	n := len(in.Branches)
+	labels := make([]string, n)
+	plain := make([]opts.ScatterData, n)
+	flagged := make([]opts.ScatterData, n)
+	var bars []opts.CustomData
+	for i := range in.Branches {
+		b := &in.Branches[i]
+		labels[i] = Clean(b.ID)
+		plain[i] = opts.ScatterData{Name: labels[i], Value: missing}
+		flagged[i] = opts.ScatterData{Name: labels[i], Value: missing}
+		if len(b.Flags) > 0 {
+			flagged[i] = opts.ScatterData{Name: Clean(b.ID + ": " + strings.Join(b.Flags, "; ")), Value: yValue(b.RatioFit)}
+		} else {
+			plain[i].Value = yValue(b.RatioFit)
+		}
+		if finite(b.RatioFit, b.RatioLow, b.RatioHigh) {
+			x := float64(i)
+			bars = append(bars, errBar(labels[i], x, b.RatioFit, x, x, b.RatioLow, b.RatioHigh))
+		}
+	}
+	l := base(id, wideW, wideH,
+		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		categoryGrid(n),
+		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: "fitted ÷ design resistance", NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
+	)
+	categoryAxis(l, labels)
+	cu := charts.NewCustom()
+	cu.AddSeries("95 % interval", bars,
+		append(custom(renderErrBar, opts.Encode{X: 0, Y: []int{1, 4, 5}}), seriesColor(colBlue),
+			charts.WithSeriesOpts(func(s *charts.SingleSeries) {
+				s.MarkLines = &opts.MarkLines{
+					Data: []any{map[string]any{"name": "design", "yAxis": 1}},
+					MarkLineStyle: opts.MarkLineStyle{
+						Symbol:    []string{"none", "none"},
+						LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
+						Label:     &opts.Label{Show: opts.Bool(true), Position: "insideEndTop", Formatter: "design", Color: colBlack},
+					},
+				}
+			}))...)
+	sc := charts.NewScatter()
+	sc.AddSeries("fitted", plain,
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "circle", SymbolSize: 9}),
+		seriesColor(colBlue))
+	sc.AddSeries("fitted, flagged", flagged,
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "triangle", SymbolSize: 13}),
+		seriesColor(colVermillion))
+	l.Overlap(cu, sc)
+	return finish(l, id, "", wideW, wideH)
+}
+
+// valveCharts draws present and planned valve settings, one chart per
+// setting unit in order of first appearance, since settings in different
+// units cannot share an axis.
+func valveCharts(idPrefix string, in *Input) []chart {
+	var units []string
+	groups := map[string][]int{}
+	for i := range in.Branches {
+		u := in.Branches[i].ValveUnit
+		if _, ok := groups[u]; !ok {
+			units = append(units, u)
+		}
+		groups[u] = append(groups[u], i)
+	}
+	var out []chart
+	for k, u := range units {
+		idx := groups[u]
+		labels := make([]string, len(idx))
+		now := make([]opts.ScatterData, len(idx))
+		planned := make([]opts.ScatterData, len(idx))
+		var spans []opts.CustomData
+		have := false
+		for j, i := range idx {
+			b := &in.Branches[i]
+			labels[j] = Clean(b.ID)
+			now[j] = opts.ScatterData{Name: Clean(b.ID + ": " + b.SettingNow), Value: yValue(b.NowValue)}
+			planned[j] = opts.ScatterData{Name: Clean(b.ID + ": " + b.SettingPlanned), Value: yValue(b.PlannedValue)}
+			if finite(b.NowValue, b.PlannedValue) {
+				x := float64(j)
+				spans = append(spans, errBar("", x, b.PlannedValue, x, x, b.NowValue, b.PlannedValue))
+			}
+			have = have || finite(b.NowValue) || finite(b.PlannedValue)
+		}
+		if !have {
+			continue
+		}
+		name := "setting"
+		if u != "" {
+			name = "setting, " + u
+		}
+		id := fmt.Sprintf("%s-%d", idPrefix, k+1)
+		l := base(id, wideW, wideH,
+			charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+			categoryGrid(len(idx)),
+			charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean(name), NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
+		)
+		categoryAxis(l, labels)
+		cu := charts.NewCustom()
+		cu.AddSeries("change", spans, append(custom(renderSpan, opts.Encode{X: 0, Y: []int{1, 4, 5}}), seriesColor(colGrey))...)
+		sc := charts.NewScatter()
+		sc.AddSeries("now", now,
+			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
+			charts.WithItemStyleOpts(opts.ItemStyle{Color: colOrange, BorderColor: colOrange, BorderWidth: 2}))
+		sc.AddSeries("planned", planned,
+			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "diamond", SymbolSize: 11}),
+			seriesColor(colGreen))
+		l.Overlap(cu, sc)
+		out = append(out, finish(l, id, name, wideW, wideH))
+	}
+	return out
+}

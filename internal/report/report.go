@@ -1,0 +1,241 @@
+// Package report writes one self-contained, offline HTML report of a
+// balancing job: header with safety cautions, summary, interactive charts
+// and the field tables.
+//
+// The report is fed a plain view model (Input) and does no numerics beyond
+// expressing flows in percent of design. Charts are built with go-echarts;
+// their options are serialised here as HTML-safe JSON and drawn by constant
+// code with the echarts library inlined in the page, so the file opens with
+// the network off. Every user string is escaped by html/template in the
+// page and passes through Clean before it reaches the chart library.
+package report
+
+import (
+	"bytes"
+	_ "embed"
+	"encoding/json"
+	"fmt"
+	"html/template"
+	"io"
+	"math"
+	"strconv"
+)
+
+// EChartsVersion is the version of the echarts build inlined in reports.
+const EChartsVersion = "5.6.0"
+
+// echartsJS is the full build of Apache ECharts from the npm package
+// "echarts" (the reduced builds lack the custom series used for error bars
+// and bands). Apache License 2.0; LICENSE and NOTICE are beside it.
+//
+//go:embed assets/echarts.min.js
+var echartsJS string
+
+//go:embed assets/LICENSE
+var echartsLicense string
+
+//go:embed assets/NOTICE
+var echartsNotice string
+
+//go:embed assets/report.js
+var reportJS string
+
+//go:embed report.tmpl
+var pageTmpl string
+
+// section is one chart section of the page.
+type section struct {
+	ID, Title string
+	Intro     string
+	Notes     []string
+	Charts    []chart
+	Small     bool // small multiples with the branch key
+}
+
+type summaryRow struct {
+	Label, Before, After string
+}
+
+type page struct {
+	In       *Input
+	Cautions []string
+	HowTo    []string
+	Summary  []summaryRow
+	Faults   []string
+	More     int
+	Sections []section
+	Tables   []Table
+	ECharts  template.JS
+	Data     template.JS
+	Script   template.JS
+	License  string
+	Notice   string
+	Version  string
+}
+
+// maxFaults is the most faults listed in the summary; the diagnosis table
+// has them all.
+const maxFaults = 10
+
+var tmpl = template.Must(template.New("report").Funcs(template.FuncMap{
+	"inc": func(i int) int { return i + 1 },
+}).Parse(pageTmpl))
+
+// Write writes the whole report for in to w. The output depends on in
+// alone: the same Input gives byte-identical files. It returns an error
+// wrapping ErrInvalid when in holds an infinite number or a ragged table.
+func Write(w io.Writer, in Input) error {
+	if err := in.validate(); err != nil {
+		return fmt.Errorf("report: %w", err)
+	}
+	p, err := build(&in)
+	if err != nil {
+		return err
+	}
+	var buf bytes.Buffer
+	if err := tmpl.Execute(&buf, p); err != nil {
+		return fmt.Errorf("report: render page: %w", err)
+	}
+	if _, err := w.Write(buf.Bytes()); err != nil {
+		return fmt.Errorf("report: write: %w", err)
+	}
+	return nil
+}
+
+func build(in *Input) (*page, error) {
+	p := &page{
+		In:       in,
+		Cautions: in.Cautions,
+		ECharts:  template.JS(echartsJS),
+		Script:   template.JS(reportJS),
+		License:  echartsLicense,
+		Notice:   echartsNotice,
+		Version:  EChartsVersion,
+	}
+	if len(p.Cautions) == 0 {
+		p.Cautions = DefaultCautions()
+	}
+	tol := fmt.Sprintf("%s %% to %s %%", fnum(100+in.ToleranceLow), fnum(100+in.ToleranceHigh))
+	p.HowTo = []string{
+		"A branch is in tolerance when its flow is within " + tol + " of its design flow.",
+		"“As found” is the circuit before any change; “after plan” is the model’s prediction once the plan is carried out.",
+		"Dashed lines and hollow circles mean as found; solid lines and filled diamonds mean after the plan; triangles mark flagged branches.",
+		"Shaded bands and error bars are 95 % intervals: the narrower they are, the better the readings pin the value.",
+		"Point at a chart for values. The tables at the end list every setting, finding and reading.",
+		"Carry out the field sheet in its order, then measure again to confirm.",
+	}
+	s := &in.Summary
+	p.Summary = []summaryRow{
+		{"Branches in tolerance (" + tol + " of design)", strconv.Itoa(s.InBefore), strconv.Itoa(s.InAfter)},
+		{"Branches outside tolerance", strconv.Itoa(s.OutBefore), strconv.Itoa(s.OutAfter)},
+		{"Pump set-point", dash(s.SetpointBefore), dash(s.SetpointAfter)},
+		{"Pump speed, after ÷ as found", "", fnum(s.SpeedRatio)},
+		{"Energy", "", dash(s.EnergySaving)},
+	}
+	p.Faults = s.Faults
+	if len(p.Faults) > maxFaults {
+		p.More = len(p.Faults) - maxFaults
+		p.Faults = p.Faults[:maxFaults]
+	}
+
+	var all []chart
+	if len(in.Branches) > 0 {
+		pick := pickBranches(in.Branches)
+		sec := section{
+			ID: "branches", Title: "Branch system curves", Small: true,
+			Intro: "Differential across each branch against its flow: the design curve, the curve fitted to the readings with its 95 % band, and the readings with their uncertainty.",
+		}
+		if len(pick) < len(in.Branches) {
+			sec.Notes = append(sec.Notes, fmt.Sprintf("Showing %d of %d branches: those flagged, then those furthest from design as found. Every branch is in the tables.", len(pick), len(in.Branches)))
+		}
+		for k, i := range pick {
+			sec.Charts = append(sec.Charts, branchChart(fmt.Sprintf("fs-branch-%d", k+1), &in.Branches[i], in))
+		}
+		p.Sections = append(p.Sections, sec)
+	}
+	p.Sections = append(p.Sections, section{
+		ID: "combined", Title: "Circuit and pump",
+		Intro:  "The parallel branches together against the pump, as found and after the plan; the operating point is where the curves cross.",
+		Charts: []chart{combinedChart("fs-combined", in)},
+	})
+	if len(in.Branches) > 0 {
+		zoom := func(sec *section) {
+			if len(in.Branches) > maxWindow {
+				sec.Notes = append(sec.Notes, fmt.Sprintf("%d branches: the chart shows %d at a time; drag the slider below it to move along.", len(in.Branches), maxWindow))
+			}
+		}
+		f := section{
+			ID: "flow", Title: "Flow in percent of design",
+			Intro:  "Each branch’s flow as found and as predicted after the plan, with the 95 % interval of the prediction; the shaded band is the tolerance.",
+			Charts: []chart{flowChart("fs-flow", in)},
+		}
+		zoom(&f)
+		r := section{
+			ID: "resistance", Title: "Fitted resistance",
+			Intro:  "Each branch’s fitted fixed resistance divided by its design resistance, with its 95 % interval. 1 means as designed; well above 1 suggests a blockage or a closed valve, well below 1 a missing fitting or a bypass.",
+			Charts: []chart{ratioChart("fs-ratio", in)},
+		}
+		zoom(&r)
+		v := section{
+			ID: "valves", Title: "Valve settings",
+			Intro:  "Each balancing valve’s setting now and as planned.",
+			Charts: valveCharts("fs-valves", in),
+		}
+		if len(v.Charts) == 0 {
+			v.Notes = append(v.Notes, "No valve settings were given.")
+		}
+		zoom(&v)
+		p.Sections = append(p.Sections, f, r, v)
+	}
+	for _, sec := range p.Sections {
+		all = append(all, sec.Charts...)
+	}
+	data, err := chartJSON(all)
+	if err != nil {
+		return nil, err
+	}
+	p.Data = template.JS(data)
+	p.Tables = []Table{
+		withTitle(in.Plan, "Field sheet"),
+		withTitle(in.Diagnosis, "Diagnosis"),
+		withTitle(in.Readings, "Readings and residuals"),
+	}
+	return p, nil
+}
+
+// chartJSON serialises the chart options. encoding/json escapes <, >, &,
+// U+2028 and U+2029, so the result cannot end the script element that
+// holds it nor start markup, whatever the strings hold.
+func chartJSON(cs []chart) ([]byte, error) {
+	var buf bytes.Buffer
+	enc := json.NewEncoder(&buf)
+	enc.SetEscapeHTML(true)
+	if err := enc.Encode(struct {
+		Charts []chart `json:"charts"`
+	}{cs}); err != nil {
+		return nil, fmt.Errorf("report: encode charts: %w", err)
+	}
+	return bytes.TrimSpace(buf.Bytes()), nil
+}
+
+func withTitle(t Table, def string) Table {
+	if t.Title == "" {
+		t.Title = def
+	}
+	return t
+}
+
+// fnum formats a number for text; NaN is a dash.
+func fnum(v float64) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return "—"
+	}
+	return strconv.FormatFloat(sig(v), 'f', -1, 64)
+}
+
+func dash(s string) string {
+	if s == "" {
+		return "—"
+	}
+	return s
+}
