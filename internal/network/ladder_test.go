@@ -1,0 +1,126 @@
+package network
+
+import (
+	"errors"
+	"math"
+	"testing"
+)
+
+// ladderR holds square-law coefficients of a ladder: a[k] supply segment,
+// b[k] branch, c[k] return segment of branch k (c[0] is the reverse-return
+// leg for ReverseReturn).
+type ladderR struct{ a, b, c []float64 }
+
+func (lr ladderR) ladder(arr Arrangement) Ladder {
+	l := Ladder{Arrangement: arr}
+	for k := range lr.b {
+		l.Branches = append(l.Branches, Branch{
+			ID:       string(rune('A' + k)),
+			Elements: []Element{quad{lr.b[k]}},
+			Supply:   []Element{quad{lr.a[k]}},
+			Return:   []Element{quad{lr.c[k]}},
+		})
+	}
+	return l
+}
+
+var threeBranches = ladderR{
+	a: []float64{2e8, 4e8, 6e8},
+	b: []float64{1e10, 1.5e10, 0.8e10},
+	c: []float64{3e8, 5e8, 7e8},
+}
+
+// directReturnFlows is an independent closed form for a direct-return
+// ladder of square-law elements under a differential dp: marching from the
+// far end, the far branch alone has R = b[N-1]; at take-off k the branch is
+// in parallel with the rest seen through segments k+1 (series: R = Σ R_i;
+// parallel: R = 1/(Σ 1/sqrt(R_i))², both exact for pure square-law
+// elements, textbook). Then Q = sqrt(dp/(a0 + c0 + R_0)) and each take-off
+// splits its inflow by q_k = sqrt(R_k Q_k² / b_k).
+func directReturnFlows(lr ladderR, dp float64) (branch []float64, total float64) {
+	nb := len(lr.b)
+	req := make([]float64, nb)
+	req[nb-1] = lr.b[nb-1]
+	par := func(x, y float64) float64 { s := 1/math.Sqrt(x) + 1/math.Sqrt(y); return 1 / (s * s) }
+	for k := nb - 2; k >= 0; k-- {
+		req[k] = par(lr.b[k], lr.a[k+1]+lr.c[k+1]+req[k+1])
+	}
+	total = math.Sqrt(dp / (lr.a[0] + lr.c[0] + req[0]))
+	q := total
+	for k := range nb {
+		branch = append(branch, math.Sqrt(req[k]*q*q/lr.b[k]))
+		q -= branch[k]
+	}
+	return branch, total
+}
+
+func TestLadderDirectReturn(t *testing.T) {
+	const dp = 3e4
+	want, total := directReturnFlows(threeBranches, dp)
+	bt, err := Build(threeBranches.ladder(DirectReturn), Source{Differential: dp, Static: 2e5}, water20)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sol := mustSolve(t, bt.Net, nil)
+	for k, id := range []string{"A", "B", "C"} {
+		if got := sol.Flow[bt.Branch[id]]; relErr(got, want[k]) > 1e-9 {
+			t.Errorf("branch %s flow = %.12g, want %.12g", id, got, want[k])
+		}
+	}
+	if got := sol.Flow[bt.Headers[0]]; relErr(got, total) > 1e-9 {
+		t.Errorf("first supply segment flow = %.12g, want %.12g", got, total)
+	}
+	// Near branches see the larger differential in direct return.
+	dA := sol.Pressure[bt.SupplyNode["A"]] - sol.Pressure[bt.ReturnNode["A"]]
+	dC := sol.Pressure[bt.SupplyNode["C"]] - sol.Pressure[bt.ReturnNode["C"]]
+	if !(dA > dC) {
+		t.Errorf("branch differentials A %g, C %g: want A > C in direct return", dA, dC)
+	}
+	checkBalance(t, bt.Net, sol, 1e-9)
+}
+
+// TestLadderNoHeaderLoss: with ideal headers every branch sees the source
+// differential, q_k = sqrt(dp/b_k) (parallel closed form).
+func TestLadderNoHeaderLoss(t *testing.T) {
+	const dp = 3e4
+	bt, err := Build(threeBranches.ladder(NoHeaderLoss), Source{Differential: dp}, water20)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(bt.Headers) != 0 || bt.Net.NumNodes() != 2 {
+		t.Errorf("no-header-loss ladder has %d headers and %d nodes, want 0 and 2", len(bt.Headers), bt.Net.NumNodes())
+	}
+	sol := mustSolve(t, bt.Net, nil)
+	for k, id := range []string{"A", "B", "C"} {
+		want := math.Sqrt(dp / threeBranches.b[k])
+		if got := sol.Flow[bt.Branch[id]]; relErr(got, want) > 1e-9 {
+			t.Errorf("branch %s flow = %.12g, want %.12g", id, got, want)
+		}
+	}
+}
+
+func TestBuildErrors(t *testing.T) {
+	ok := Branch{ID: "x", Elements: []Element{quad{1}}}
+	self := &Ladder{}
+	self.Branches = []Branch{{ID: "r", Sub: self}}
+	cases := []struct {
+		name string
+		l    Ladder
+		src  Source
+	}{
+		{"no branches", Ladder{}, Source{Differential: 1}},
+		{"no differential", Ladder{Branches: []Branch{ok}}, Source{}},
+		{"empty id", Ladder{Branches: []Branch{{Elements: ok.Elements}}}, Source{Differential: 1}},
+		{"duplicate id", Ladder{Branches: []Branch{ok, ok}}, Source{Differential: 1}},
+		{"no elements", Ladder{Branches: []Branch{{ID: "y"}}}, Source{Differential: 1}},
+		{"unknown arrangement", Ladder{Arrangement: 9, Branches: []Branch{ok}}, Source{Differential: 1}},
+		{"self-nested", *self, Source{Differential: 1}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			if _, err := Build(c.l, c.src, water20); !errors.Is(err, ErrInput) {
+				t.Errorf("Build error = %v, want ErrInput", err)
+			}
+		})
+	}
+}
