@@ -124,3 +124,105 @@ func TestBuildErrors(t *testing.T) {
 		})
 	}
 }
+
+// hardyCross solves square-law networks by the loop-flow corrections of H.
+// Cross (Univ. of Illinois Eng. Exp. Station Bulletin 286, 1936; references
+// §8.1): starting from flows that satisfy continuity, each loop's flows are
+// corrected by ΔQ = -Σ s r Q|Q| / Σ 2 r |Q| until the corrections vanish. A
+// loop's constant is a fixed pressure rise along it (a pseudo-loop through
+// a constant-differential boundary). It shares nothing with Solve.
+type hcLoop struct {
+	links    []int
+	signs    []float64
+	constant float64 // Σ s r Q|Q| + constant = 0 around the loop
+}
+
+func hardyCross(r, q []float64, loops []hcLoop) []float64 {
+	q = append([]float64(nil), q...)
+	for range 100000 {
+		var worst, scale float64
+		for _, lp := range loops {
+			num, den := lp.constant, 0.0
+			for k, i := range lp.links {
+				num += lp.signs[k] * r[i] * q[i] * math.Abs(q[i])
+				den += 2 * r[i] * math.Abs(q[i])
+			}
+			dq := -num / den
+			for k, i := range lp.links {
+				q[i] += lp.signs[k] * dq
+				scale = max(scale, math.Abs(q[i]))
+			}
+			worst = max(worst, math.Abs(dq))
+		}
+		if worst <= 1e-15*scale {
+			break
+		}
+	}
+	return q
+}
+
+// TestLadderReverseReturn checks a three-branch reverse-return ladder
+// against Hardy Cross loop iteration. Links (square law): a0 S->s0, a1
+// s0->s1, a2 s1->s2, b_k s_k->r_k, c1 r0->r1, c2 r1->r2, leg r2->R. Loops:
+// b_k + c_{k+1} - b_{k+1} - a_{k+1} = 0 for k = 0, 1, and the pseudo-loop
+// a0 + b0 + c1 + c2 + leg = dp through the fixed boundary.
+func TestLadderReverseReturn(t *testing.T) {
+	const dp = 3e4
+	lr := threeBranches
+	// Indices into r/q: 0-2 a, 3-5 b, 6 leg, 7 c1, 8 c2.
+	r := []float64{lr.a[0], lr.a[1], lr.a[2], lr.b[0], lr.b[1], lr.b[2], lr.c[0], lr.c[1], lr.c[2]}
+	q0 := []float64{3e-3, 2e-3, 1e-3, 1e-3, 1e-3, 1e-3, 3e-3, 1e-3, 2e-3}
+	loops := []hcLoop{
+		{links: []int{3, 7, 4, 1}, signs: []float64{1, 1, -1, -1}},
+		{links: []int{4, 8, 5, 2}, signs: []float64{1, 1, -1, -1}},
+		{links: []int{0, 3, 7, 8, 6}, signs: []float64{1, 1, 1, 1, 1}, constant: -dp},
+	}
+	want := hardyCross(r, q0, loops)
+
+	bt, err := Build(lr.ladder(ReverseReturn), Source{Differential: dp}, water20)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sol := mustSolve(t, bt.Net, nil)
+	for k, id := range []string{"A", "B", "C"} {
+		if got := sol.Flow[bt.Branch[id]]; relErr(got, want[3+k]) > 1e-9 {
+			t.Errorf("branch %s flow = %.12g, want %.12g (Hardy Cross)", id, got, want[3+k])
+		}
+	}
+	leg, ok := bt.Net.LinkIndex("A.return-header")
+	if !ok {
+		t.Fatal("no return leg link")
+	}
+	if got := sol.Flow[leg]; relErr(got, want[6]) > 1e-9 {
+		t.Errorf("return leg flow = %.12g, want %.12g (Hardy Cross)", got, want[6])
+	}
+	// The first branch supplied is the last returned: the return leg leaves
+	// from the last branch's return node.
+	if from, to := bt.Net.LinkEnds(leg); from != bt.ReturnNode["C"] || bt.Net.NodeID(to) != ReturnID {
+		t.Errorf("return leg runs %q -> %q, want C.return -> %s", bt.Net.NodeID(from), bt.Net.NodeID(to), ReturnID)
+	}
+	checkBalance(t, bt.Net, sol, 1e-9)
+}
+
+// TestHardyCrossDirect cross-checks the two independent oracles: Hardy
+// Cross on the direct-return ladder agrees with the closed-form recursion.
+func TestHardyCrossDirect(t *testing.T) {
+	const dp = 3e4
+	lr := threeBranches
+	// 0-2 a, 3-5 b, 6-8 c (c_k r_k -> r_{k-1}, c0 r0 -> R).
+	r := []float64{lr.a[0], lr.a[1], lr.a[2], lr.b[0], lr.b[1], lr.b[2], lr.c[0], lr.c[1], lr.c[2]}
+	q0 := []float64{3e-3, 2e-3, 1e-3, 1e-3, 1e-3, 1e-3, 3e-3, 2e-3, 1e-3}
+	loops := []hcLoop{
+		// b_k = a_{k+1} + b_{k+1} + c_{k+1}
+		{links: []int{3, 1, 4, 7}, signs: []float64{-1, 1, 1, 1}},
+		{links: []int{4, 2, 5, 8}, signs: []float64{-1, 1, 1, 1}},
+		{links: []int{0, 3, 6}, signs: []float64{1, 1, 1}, constant: -dp},
+	}
+	hc := hardyCross(r, q0, loops)
+	cf, _ := directReturnFlows(lr, dp)
+	for k := range cf {
+		if relErr(hc[3+k], cf[k]) > 1e-9 {
+			t.Errorf("branch %d: Hardy Cross %.12g, closed form %.12g", k, hc[3+k], cf[k])
+		}
+	}
+}
