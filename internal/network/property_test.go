@@ -83,9 +83,9 @@ func randomSource(rng *rand.Rand) Source {
 func TestRandomNetworks(t *testing.T) {
 	rng := rand.New(rand.NewPCG(20260512, 1))
 	kinds := []struct {
-		name         string
-		nested       bool
-		crossLinks   int
+		name       string
+		nested     bool
+		crossLinks int
 	}{
 		{"ladder", false, 0},
 		{"nested", true, 0},
