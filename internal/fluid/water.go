@@ -128,7 +128,7 @@ const (
 
 	viscTMin   = 273.15 // K, rounded triple point
 	viscTMax   = 1173.15
-	viscRhoMax = 1300.0 // kg/m3; above anything liquid water reaches below 1 GPa
+	viscRhoMax = 1300.0 // kg/m3; a generous bound on the release's range [M]
 )
 
 // viscH0 is H_i of R12-08 Table 1.
