@@ -124,7 +124,20 @@ type Scaled struct {
 	Factor float64
 }
 
-// Drop implements Element.
+// Validate reports whether the factor is non-negative and finite and the
+// wrapped element is valid (when it has a Validate method).
+func (s Scaled) Validate() error {
+	if s.E == nil {
+		return fmt.Errorf("scaled: no element: %w", ErrInvalid)
+	}
+	if !(s.Factor >= 0) || math.IsInf(s.Factor, 1) {
+		return fmt.Errorf("scaled: factor %g must be non-negative: %w", s.Factor, ErrInvalid)
+	}
+	return validate(s.E)
+}
+
+// Drop implements Element. Its derivative with respect to Factor, which
+// the calibration needs, is the wrapped element's drop.
 func (s Scaled) Drop(q float64, f fluid.State) (dp, slope float64) {
 	dp, slope = s.E.Drop(q, f)
 	return s.Factor * dp, s.Factor * slope
@@ -133,6 +146,28 @@ func (s Scaled) Drop(q float64, f fluid.State) (dp, slope float64) {
 // Series is elements in series carrying the same flow; its drop and slope
 // are the sums of theirs.
 type Series []Element
+
+// Validate reports whether every element that has a Validate method is
+// valid, naming the first that is not by its position.
+func (s Series) Validate() error {
+	for i, e := range s {
+		if e == nil {
+			return fmt.Errorf("series: element %d is nil: %w", i, ErrInvalid)
+		}
+		if err := validate(e); err != nil {
+			return fmt.Errorf("series: element %d: %w", i, err)
+		}
+	}
+	return nil
+}
+
+// validate calls e's Validate method when it has one.
+func validate(e Element) error {
+	if v, ok := e.(interface{ Validate() error }); ok {
+		return v.Validate()
+	}
+	return nil
+}
 
 // Drop implements Element.
 func (s Series) Drop(q float64, f fluid.State) (dp, slope float64) {

@@ -58,6 +58,9 @@ func elementCases() []struct {
 		{"fixed kv", FixedKv{Kv: 2.5}},
 		{"scaled", Scaled{E: pipe, Factor: 1.7}},
 		{"series", Series{pipe, Fitting{K: 3, Bore: 0.0266}, FixedKv{Kv: 4}}},
+		{"valve table", Valve{Char: handwheel(), Setting: 2.7, KvScale: 1.1}},
+		{"valve equal-percentage", Valve{Char: Inherent{Kind: EqualPercentage, Kvs: 2.5, Rangeability: 50}, Setting: 0.4}},
+		{"valve closed", Valve{Char: Table{Settings: []float64{0, 1}, Kv: []float64{1e-8, 3}}}},
 	}
 }
 
@@ -135,6 +138,13 @@ func TestValidate(t *testing.T) {
 		{"terminal zero drop", Terminal{RatedFlow: 1e-4}, false},
 		{"fixed kv ok", FixedKv{Kv: 1}, true},
 		{"fixed kv zero", FixedKv{}, false},
+		{"scaled ok", Scaled{E: Pipe{Bore: 0.02, Length: 1}, Factor: 1.2}, true},
+		{"scaled nil", Scaled{Factor: 1}, false},
+		{"scaled negative", Scaled{E: FixedKv{Kv: 1}, Factor: -1}, false},
+		{"scaled bad inner", Scaled{E: FixedKv{}, Factor: 1}, false},
+		{"series ok", Series{FixedKv{Kv: 1}, Terminal{RatedDrop: 1, RatedFlow: 1}}, true},
+		{"series bad element", Series{FixedKv{Kv: 1}, Terminal{}}, false},
+		{"series nil element", Series{nil}, false},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -278,3 +278,18 @@ func ExampleFitPump() {
 	// Output:
 	// shut-off 8.00 m, run-out 4.61 m3/h, RMS 0.011 m, poor false
 }
+
+func ExampleTrimDiameterRatio() {
+	// A pump giving 40 m at 100 m3/h (shut-off 50 m) must deliver 100 m3/h
+	// against a system needing 34 m: how far to trim the impeller?
+	qr := 100.0 / 3600
+	c := PumpCurve{A0: 50, A2: -10 / (qr * qr), QMax: 1.5 * qr}
+	d, err := TrimDiameterRatio(c, qr, 34)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Printf("D2/D1 = %.3f\n", d)
+	// Output:
+	// D2/D1 = 0.938
+}

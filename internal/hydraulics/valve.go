@@ -424,7 +424,9 @@ func (v Valve) IsClosed() bool {
 	return err == nil && kv <= leak
 }
 
-// Drop implements Element. A valve that fails Validate returns NaN.
+// Drop implements Element. A valve that fails Validate returns NaN. Above
+// the leakage floor dp ∝ 1/KvScale², so d(dp)/d(KvScale) = -2 dp/KvScale
+// for the calibration.
 func (v Valve) Drop(q float64, f fluid.State) (dp, slope float64) {
 	kv, err := v.Kv()
 	if err != nil {
