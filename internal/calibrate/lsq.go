@@ -258,6 +258,7 @@ type Settings struct {
 }
 
 const (
+	eps          = 0x1p-52
 	denseMax     = 1500
 	lambdaMax    = 1e16
 	diagProbes   = 8
@@ -793,11 +794,20 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 	p := append([]float64(nil), t...)
 	gamma := floats.Dot(t, t)
 	gamma0 := gamma
+	ss := floats.Dot(s1, s1) + floats.Dot(s2, s2)
+	// KC has unit columns, so ‖KC‖_F = √n. Stop at the relative tolerance or
+	// at Paige & Saunders' (1982) rule S2, ‖(KC)ᵀs‖ ≤ ε·‖KC‖·‖s‖, whichever
+	// comes first: below the latter the recurrences only amplify rounding
+	// errors (large-residual problems near the optimum reach it first).
+	floor := 8 * eps * math.Sqrt(float64(n))
 	q1 := make([]float64, m)
 	q2 := make([]float64, n)
 	q3 := make([]float64, n)
 	cp := make([]float64, n)
-	for it := 0; it < s.s.CGMaxIter && gamma > s.s.CGTol*s.s.CGTol*gamma0 && gamma > 0; it++ {
+	for it := 0; it < s.s.CGMaxIter; it++ {
+		if gamma <= s.s.CGTol*s.s.CGTol*gamma0 || gamma <= floor*floor*ss || gamma == 0 {
+			break
+		}
 		for j := range n {
 			cp[j] = c[j] * p[j]
 		}
@@ -818,6 +828,14 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 		floats.AddScaled(s1, -alpha, q1)
 		floats.AddScaled(s2, -alpha, q2)
 		floats.AddScaled(s3, -alpha, q3)
+		ssNew := floats.Dot(s1, s1) + floats.Dot(s2, s2) + floats.Dot(s3, s3)
+		if ssNew > ss*(1+1e-12) {
+			// ‖s‖ decreases monotonically in exact arithmetic: a rise means
+			// the iteration has lost accuracy, so undo the update and stop.
+			floats.AddScaled(y, -alpha, p)
+			break
+		}
+		ss = ssNew
 		kts(t)
 		gnew := floats.Dot(t, t)
 		beta := gnew / gamma

@@ -23,7 +23,7 @@ type Curve struct {
 	// Starts are NIST's "Start 1" and "Start 2".
 	Starts [][]float64
 	// Params and StdDev are the certified estimates and standard deviations.
-	Params, StdDev []float64
+	Params, StdDev  []float64
 	RSS, ResidualSD float64 // certified residual sum of squares and sd
 	DOF             int
 
