@@ -1,0 +1,693 @@
+// Package plant turns a site's sheets into a hydraulic model that can be
+// solved for any survey state: resistance multipliers on each branch (what the
+// calibration fits), valve settings and Kv offsets, a header multiplier and a
+// pump head multiplier. It predicts every kind of site reading from a solved
+// network and gives the local derivatives the calibration's implicit-function
+// Jacobian needs.
+package plant
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+
+	"flowset/internal/fluid"
+	"flowset/internal/hydraulics"
+	"flowset/internal/network"
+	"flowset/internal/site"
+)
+
+// ErrModel is wrapped by errors about a site that cannot be modelled.
+var ErrModel = errors.New("cannot model site")
+
+// Model is the hydraulic model of a site at its design values.
+type Model struct {
+	Site        *site.Site
+	Fluid       fluid.State
+	Arrangement network.Arrangement
+	Branches    []Branch
+	// Pump is the fitted pump curve at nominal speed; nil when the boundary
+	// is a differential.
+	Pump    *hydraulics.PumpCurve
+	PumpFit hydraulics.FitReport
+	States  []State
+
+	index map[string]int
+	top   []int // branches on the main headers, in take-off order
+}
+
+// Branch is one branch of the model.
+type Branch struct {
+	ID, Parent string
+	Index      int
+	Design     float64 // design flow, m3/s
+	Target     float64 // flow to balance to, m3/s
+	// Fixed are the parts a resistance multiplier scales: pipe, fittings,
+	// terminal and any control valve held open.
+	Fixed []hydraulics.Element
+	// Valve is the balancing valve's characteristic; nil for none.
+	Valve      hydraulics.Characteristic
+	ValveModel *site.ValveModel
+	AsFound    float64 // as-found setting (fully open when not recorded)
+	Recorded   bool    // whether AsFound came from the sheet
+	Supply     []hydraulics.Element
+	Return     []hydraulics.Element
+	Children   []int
+	Bore       float64 // branch pipe bore, m (0 when unknown)
+}
+
+// Riser reports whether the branch feeds sub-branches.
+func (b *Branch) Riser() bool { return len(b.Children) > 0 }
+
+// Params are the multipliers the calibration fits, all 1 at design.
+type Params struct {
+	Resistance []float64 // per branch, on its fixed parts
+	KvScale    []float64 // per branch, on its balancing valve's Kv
+	Header     float64   // on every header segment
+	PumpHead   float64   // on the pump's head curve
+}
+
+// Design returns the multipliers of the design model.
+func (m *Model) Design() Params {
+	p := Params{Resistance: make([]float64, len(m.Branches)), KvScale: make([]float64, len(m.Branches)), Header: 1, PumpHead: 1}
+	for i := range p.Resistance {
+		p.Resistance[i], p.KvScale[i] = 1, 1
+	}
+	return p
+}
+
+// Clone returns a deep copy of p.
+func (p Params) Clone() Params {
+	q := p
+	q.Resistance = append([]float64(nil), p.Resistance...)
+	q.KvScale = append([]float64(nil), p.KvScale...)
+	return q
+}
+
+// State is one survey state: the valve settings in force and the boundary.
+type State struct {
+	Label    string
+	Settings []float64 // per branch, in the valve's units (NaN for no valve)
+	Speed    float64   // pump speed ratio
+	// Differential is the boundary differential in Pa when the boundary is
+	// not a pump curve.
+	Differential float64
+	Readings     []int // indices into Site.Readings
+}
+
+// Index returns the index of the branch with the given ID.
+func (m *Model) Index(id string) (int, bool) {
+	i, ok := m.index[id]
+	return i, ok
+}
+
+// New builds the model of a site. The site is assumed to have passed the
+// site package's structural checks.
+func New(s *site.Site) (*Model, error) {
+	fl, err := fluidState(s)
+	if err != nil {
+		return nil, err
+	}
+	m := &Model{Site: s, Fluid: fl, index: map[string]int{}}
+	switch s.Header {
+	case site.DirectReturn:
+		m.Arrangement = network.DirectReturn
+	case site.ReverseReturn:
+		m.Arrangement = network.ReverseReturn
+	default:
+		m.Arrangement = network.NoHeaderLoss
+	}
+	valves := map[string]*site.ValveModel{}
+	for i := range s.Valves {
+		valves[s.Valves[i].Name] = &s.Valves[i]
+	}
+	for i := range s.Branches {
+		sb := &s.Branches[i]
+		if _, dup := m.index[sb.ID]; dup {
+			return nil, fmt.Errorf("%s: branch %q appears twice: %w", sb.Pos, sb.ID, ErrModel)
+		}
+		b, err := newBranch(s, sb, valves)
+		if err != nil {
+			return nil, err
+		}
+		b.Index = i
+		m.index[sb.ID] = i
+		m.Branches = append(m.Branches, b)
+	}
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if b.Parent == "" {
+			m.top = append(m.top, i)
+			continue
+		}
+		p, ok := m.index[b.Parent]
+		if !ok {
+			return nil, fmt.Errorf("%s: branch %q hangs from unknown branch %q: %w", s.Branches[i].Pos, b.ID, b.Parent, ErrModel)
+		}
+		m.Branches[p].Children = append(m.Branches[p].Children, i)
+	}
+	if len(m.top) == 0 {
+		return nil, fmt.Errorf("no branch hangs from the main headers: %w", ErrModel)
+	}
+	if err := m.checkTree(); err != nil {
+		return nil, err
+	}
+	if s.Boundary.Kind == site.PumpCurve {
+		if len(s.Pump) == 0 {
+			return nil, fmt.Errorf("boundary is a pump but the pump sheet has no points: %w", ErrModel)
+		}
+		pts := make([]hydraulics.PumpPoint, len(s.Pump))
+		for i, p := range s.Pump {
+			pts[i] = hydraulics.PumpPoint{Flow: p.Flow, Head: p.Head}
+		}
+		c, rep, err := hydraulics.FitPump(pts)
+		if err != nil {
+			return nil, fmt.Errorf("pump curve: %w", err)
+		}
+		m.Pump, m.PumpFit = &c, rep
+	}
+	m.States, err = m.states()
+	if err != nil {
+		return nil, err
+	}
+	return m, nil
+}
+
+func fluidState(s *site.Site) (fluid.State, error) {
+	k, err := fluid.ParseKind(s.Fluid)
+	if err != nil {
+		return fluid.State{}, fmt.Errorf("fluid: %w", err)
+	}
+	spec := fluid.Spec{Kind: k, Percent: s.GlycolPercent}
+	if k == fluid.PlainWater {
+		spec.Percent = 0
+	}
+	st, err := spec.At(s.Temperature)
+	if err != nil {
+		return fluid.State{}, fmt.Errorf("fluid %s at %.1f degC: %w", spec, s.Temperature-273.15, err)
+	}
+	return st, nil
+}
+
+func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel) (Branch, error) {
+	b := Branch{ID: sb.ID, Parent: sb.Parent, Design: sb.DesignFlow, Target: sb.DesignFlow}
+	if t, ok := s.Targets[sb.ID]; ok {
+		b.Target = t
+	}
+	where := func(err error) error { return fmt.Errorf("%s: branch %q: %w", sb.Pos, sb.ID, err) }
+	if sb.PipeLength > 0 {
+		bore, rough, err := pipeBore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
+		if err != nil {
+			return b, where(err)
+		}
+		b.Bore = bore
+		b.Fixed = append(b.Fixed, hydraulics.Pipe{Bore: bore, Length: sb.PipeLength, Roughness: rough})
+		if sb.FittingsK > 0 {
+			b.Fixed = append(b.Fixed, hydraulics.Fitting{K: sb.FittingsK, Bore: bore})
+		}
+	} else if sb.FittingsK > 0 {
+		bore, _, err := pipeBore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
+		if err != nil {
+			return b, where(fmt.Errorf("fittings K needs a pipe size or bore: %w", err))
+		}
+		b.Bore = bore
+		b.Fixed = append(b.Fixed, hydraulics.Fitting{K: sb.FittingsK, Bore: bore})
+	}
+	if sb.TerminalDrop > 0 {
+		rf := sb.TerminalFlow
+		if math.IsNaN(rf) || rf <= 0 {
+			rf = sb.DesignFlow
+		}
+		b.Fixed = append(b.Fixed, hydraulics.Terminal{RatedDrop: sb.TerminalDrop, RatedFlow: rf})
+	}
+	if sb.ControlKvs > 0 && !math.IsNaN(sb.ControlKvs) {
+		b.Fixed = append(b.Fixed, hydraulics.FixedKv{Kv: sb.ControlKvs})
+	}
+	if sb.Valve != "" {
+		vm, ok := valves[sb.Valve]
+		if !ok {
+			return b, where(fmt.Errorf("valve model %q is not on the valves sheet: %w", sb.Valve, ErrModel))
+		}
+		c, err := Characteristic(vm)
+		if err != nil {
+			return b, where(err)
+		}
+		b.Valve, b.ValveModel = c, vm
+		_, hi := c.Range()
+		b.AsFound = hi
+		if !math.IsNaN(sb.Setting) {
+			b.AsFound, b.Recorded = sb.Setting, true
+		}
+	}
+	if len(b.Fixed) == 0 && b.Valve == nil {
+		// A branch with nothing in it would be a short circuit; it is
+		// allowed only as a riser whose children carry the resistance.
+		b.Fixed = nil
+	}
+	if sb.SupplyLength > 0 || sb.ReturnLength > 0 || sb.HeaderK > 0 {
+		bore, rough, err := pipeBore(sb.HeaderStandard, sb.HeaderSize, sb.HeaderBore, math.NaN())
+		if err != nil {
+			return b, where(fmt.Errorf("header segment: %w", err))
+		}
+		seg := func(l float64) []hydraulics.Element {
+			var e []hydraulics.Element
+			if l > 0 {
+				e = append(e, hydraulics.Pipe{Bore: bore, Length: l, Roughness: rough})
+			}
+			if sb.HeaderK > 0 {
+				// The lumped K of the segment is split evenly between flow
+				// and return.
+				e = append(e, hydraulics.Fitting{K: sb.HeaderK / 2, Bore: bore})
+			}
+			return e
+		}
+		b.Supply, b.Return = seg(sb.SupplyLength), seg(sb.ReturnLength)
+	}
+	return b, nil
+}
+
+func pipeBore(standard, size string, bore, rough float64) (float64, float64, error) {
+	if !math.IsNaN(bore) && bore > 0 {
+		if math.IsNaN(rough) {
+			rough = hydraulics.RoughnessSteel
+			if standard != "" {
+				if ps, err := hydraulics.Sizes(standard); err == nil && len(ps) > 0 {
+					rough = ps[0].Roughness
+				}
+			}
+		}
+		return bore, rough, nil
+	}
+	if standard == "" || size == "" {
+		return 0, 0, fmt.Errorf("no bore and no pipe standard and size: %w", ErrModel)
+	}
+	ps, err := hydraulics.LookupPipe(standard, size)
+	if err != nil {
+		return 0, 0, err
+	}
+	if math.IsNaN(rough) {
+		rough = ps.Roughness
+	}
+	return ps.Bore, rough, nil
+}
+
+// Characteristic turns a valve model of the sheets into its characteristic.
+// Generic characteristics take their setting in % of travel.
+func Characteristic(vm *site.ValveModel) (hydraulics.Characteristic, error) {
+	if vm.Table() {
+		t := hydraulics.Table{Settings: vm.Settings, Kv: vm.Kv, Step: vm.Step}
+		if err := t.Validate(); err != nil {
+			return nil, fmt.Errorf("valve %q: %w", vm.Name, err)
+		}
+		return t, nil
+	}
+	var k hydraulics.Kind
+	switch vm.Characteristic {
+	case "linear":
+		k = hydraulics.Linear
+	case "equal-percentage":
+		k = hydraulics.EqualPercentage
+	case "quick-opening":
+		k = hydraulics.QuickOpening
+	default:
+		return nil, fmt.Errorf("valve %q: unknown characteristic %q: %w", vm.Name, vm.Characteristic, ErrModel)
+	}
+	in := hydraulics.Inherent{Kind: k, Kvs: vm.Kvs, Rangeability: vm.Rangeability}
+	if err := in.Validate(); err != nil {
+		return nil, fmt.Errorf("valve %q: %w", vm.Name, err)
+	}
+	return percent{in, vm.Step}, nil
+}
+
+// percent presents an inherent characteristic (relative travel 0-1) in % of
+// travel, the unit technicians read on a generic valve.
+type percent struct {
+	in   hydraulics.Inherent
+	step float64
+}
+
+func (p percent) KvAt(s float64) (float64, error) { return p.in.KvAt(s / 100) }
+func (p percent) SettingFor(kv float64) (float64, error) {
+	h, err := p.in.SettingFor(kv)
+	return h * 100, err
+}
+func (p percent) Range() (float64, float64) { return 0, 100 }
+func (p percent) Resolution() float64       { return p.step }
+
+func (m *Model) checkTree() error {
+	seen := make([]int, len(m.Branches)) // 0 new, 1 on path, 2 done
+	var visit func(i int) error
+	visit = func(i int) error {
+		if seen[i] == 1 {
+			return fmt.Errorf("branches %q and its sub-circuits form a loop: %w", m.Branches[i].ID, ErrModel)
+		}
+		if seen[i] == 2 {
+			return nil
+		}
+		seen[i] = 1
+		for _, c := range m.Branches[i].Children {
+			if err := visit(c); err != nil {
+				return err
+			}
+		}
+		seen[i] = 2
+		return nil
+	}
+	for _, i := range m.top {
+		if err := visit(i); err != nil {
+			return err
+		}
+	}
+	for i, s := range seen {
+		if s == 0 {
+			return fmt.Errorf("branch %q is not reachable from the main headers (its parents form a loop): %w", m.Branches[i].ID, ErrModel)
+		}
+	}
+	return nil
+}
+
+// states groups the readings by survey state label, in order of first
+// appearance, and works out each state's valve settings.
+func (m *Model) states() ([]State, error) {
+	s := m.Site
+	byLabel := map[string]int{}
+	var out []State
+	for ri, r := range s.Readings {
+		k, ok := byLabel[r.State]
+		if !ok {
+			k = len(out)
+			byLabel[r.State] = k
+			st := State{Label: r.State, Settings: m.AsFound(), Speed: speed(s), Differential: s.Boundary.SetPoint}
+			out = append(out, st)
+		}
+		out[k].Readings = append(out[k].Readings, ri)
+	}
+	for k := range out {
+		st := &out[k]
+		set := map[int]float64{}
+		for _, ri := range st.Readings {
+			r := s.Readings[ri]
+			i, ok := m.index[r.Where]
+			if !ok || math.IsNaN(r.Setting) {
+				continue
+			}
+			if m.Branches[i].Valve == nil {
+				return nil, fmt.Errorf("%s: reading gives a valve setting for branch %q, which has no balancing valve: %w", r.Pos, r.Where, ErrModel)
+			}
+			if old, dup := set[i]; dup && old != r.Setting {
+				return nil, fmt.Errorf("%s: state %q gives branch %q two settings (%g and %g): %w", r.Pos, st.Label, r.Where, old, r.Setting, ErrModel)
+			}
+			set[i] = r.Setting
+			st.Settings[i] = r.Setting
+		}
+		if s.Boundary.Kind == site.MeasuredDiff {
+			d, err := m.measuredDiff(st)
+			if err != nil {
+				return nil, err
+			}
+			st.Differential = d
+		}
+	}
+	return out, nil
+}
+
+// measuredDiff is the boundary differential of a state read at the header or
+// pump; the mean where several readings give it.
+func (m *Model) measuredDiff(st *State) (float64, error) {
+	var sum float64
+	var n int
+	for _, ri := range st.Readings {
+		r := m.Site.Readings[ri]
+		if r.What == site.HeaderDiff || r.What == site.PumpDiff {
+			sum += r.Value
+			n++
+		}
+	}
+	if n == 0 {
+		return 0, fmt.Errorf("boundary is the measured differential but state %q has no header or pump differential reading: %w", st.Label, ErrModel)
+	}
+	return sum / float64(n), nil
+}
+
+func speed(s *site.Site) float64 {
+	if s.Boundary.Speed > 0 {
+		return s.Boundary.Speed
+	}
+	return 1
+}
+
+// AsFound returns the as-found valve settings (NaN for branches without a
+// balancing valve).
+func (m *Model) AsFound() []float64 {
+	out := make([]float64, len(m.Branches))
+	for i, b := range m.Branches {
+		out[i] = math.NaN()
+		if b.Valve != nil {
+			out[i] = b.AsFound
+		}
+	}
+	return out
+}
+
+// Open returns every balancing valve fully open.
+func (m *Model) Open() []float64 {
+	out := make([]float64, len(m.Branches))
+	for i, b := range m.Branches {
+		out[i] = math.NaN()
+		if b.Valve != nil {
+			_, out[i] = b.Valve.Range()
+		}
+	}
+	return out
+}
+
+// BaseState is the as-found state with the site's boundary, for sites with
+// no survey.
+func (m *Model) BaseState() State {
+	return State{Label: "design", Settings: m.AsFound(), Speed: speed(m.Site), Differential: m.Site.Boundary.SetPoint}
+}
+
+// FixedElement returns branch i's fixed parts scaled by r, or nil when it
+// has none.
+func (m *Model) FixedElement(i int, r float64) hydraulics.Element {
+	b := &m.Branches[i]
+	if len(b.Fixed) == 0 {
+		return nil
+	}
+	var e hydraulics.Element = hydraulics.Series(b.Fixed)
+	if len(b.Fixed) == 1 {
+		e = b.Fixed[0]
+	}
+	if r == 1 {
+		return e
+	}
+	return hydraulics.Scaled{E: e, Factor: r}
+}
+
+// ValveElement returns branch i's balancing valve at a setting and Kv scale,
+// or nil when it has none.
+func (m *Model) ValveElement(i int, setting, kvScale float64) hydraulics.Element {
+	b := &m.Branches[i]
+	if b.Valve == nil {
+		return nil
+	}
+	return hydraulics.Valve{Char: b.Valve, Setting: setting, KvScale: kvScale}
+}
+
+// Elements returns branch i's series parts for given multipliers and setting.
+func (m *Model) Elements(i int, p Params, setting float64) []hydraulics.Element {
+	var e []hydraulics.Element
+	if f := m.FixedElement(i, p.Resistance[i]); f != nil {
+		e = append(e, f)
+	}
+	if v := m.ValveElement(i, setting, p.KvScale[i]); v != nil {
+		e = append(e, v)
+	}
+	return e
+}
+
+func scaleAll(es []hydraulics.Element, f float64) []hydraulics.Element {
+	if f == 1 || len(es) == 0 {
+		return es
+	}
+	out := make([]hydraulics.Element, len(es))
+	for i, e := range es {
+		out[i] = hydraulics.Scaled{E: e, Factor: f}
+	}
+	return out
+}
+
+// Ladder returns the network ladder for multipliers p and settings.
+func (m *Model) Ladder(p Params, settings []float64) network.Ladder {
+	var build func(ids []int) *network.Ladder
+	build = func(ids []int) *network.Ladder {
+		l := &network.Ladder{Arrangement: m.Arrangement}
+		for _, i := range ids {
+			b := &m.Branches[i]
+			nb := network.Branch{
+				ID:       b.ID,
+				Elements: m.Elements(i, p, settings[i]),
+				Supply:   scaleAll(b.Supply, p.Header),
+				Return:   scaleAll(b.Return, p.Header),
+			}
+			if b.Riser() {
+				nb.Sub = build(b.Children)
+			}
+			l.Branches = append(l.Branches, nb)
+		}
+		return l
+	}
+	return *build(m.top)
+}
+
+// Source returns the network source for multipliers p and state st.
+func (m *Model) Source(p Params, st State) network.Source {
+	if m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil {
+		c := *m.Pump
+		c.A0 *= p.PumpHead
+		c.A1 *= p.PumpHead
+		c.A2 *= p.PumpHead
+		return network.Source{Pump: hydraulics.Pump{Curve: c, Speed: st.Speed}}
+	}
+	return network.Source{Differential: st.Differential}
+}
+
+// Solved is a model solved for one state.
+type Solved struct {
+	Model  *Model
+	Params Params
+	State  State
+	Built  *network.Built
+	Sol    *network.Solution
+}
+
+// Solve builds and solves the network of multipliers p in state st.
+func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) {
+	if st.Differential <= 0 && !(m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil) {
+		return nil, fmt.Errorf("state %q: no pump curve and no positive differential to drive the circuit: %w", st.Label, ErrModel)
+	}
+	built, err := network.Build(m.Ladder(p, st.Settings), m.Source(p, st), m.Fluid)
+	if err != nil {
+		return nil, err
+	}
+	sol, err := built.Net.Solve(ctx, nil)
+	if err != nil {
+		return nil, fmt.Errorf("state %q: %w", st.Label, err)
+	}
+	return &Solved{Model: m, Params: p, State: st, Built: built, Sol: sol}, nil
+}
+
+// Flow returns branch i's flow, m3/s. A riser's flow is its own link's, or
+// the sum of its children's when it has no parts of its own.
+func (s *Solved) Flow(i int) float64 {
+	b := &s.Model.Branches[i]
+	if l := s.Built.Branch[b.ID]; l >= 0 {
+		return s.Sol.Flow[l]
+	}
+	var q float64
+	for _, c := range b.Children {
+		q += s.Flow(c)
+	}
+	return q
+}
+
+// BranchDiff returns the differential across branch i's take-offs, Pa.
+func (s *Solved) BranchDiff(i int) float64 {
+	id := s.Model.Branches[i].ID
+	return s.Sol.Pressure[s.Built.SupplyNode[id]] - s.Sol.Pressure[s.Built.ReturnNode[id]]
+}
+
+// ValveDiff returns the differential across branch i's balancing valve, Pa
+// (0 without a valve).
+func (s *Solved) ValveDiff(i int) float64 {
+	v := s.Model.ValveElement(i, s.State.Settings[i], s.Params.KvScale[i])
+	if v == nil {
+		return 0
+	}
+	dp, _ := v.Drop(s.Flow(i), s.Model.Fluid)
+	return dp
+}
+
+// HeaderDiff returns the differential between the supply and return
+// headers where the branches begin, Pa.
+func (s *Solved) HeaderDiff() float64 {
+	n := s.Built.Net
+	top, ok := n.NodeIndex(network.MainOutletID)
+	if !ok {
+		if top, ok = n.NodeIndex(network.PumpOutletID); !ok {
+			top, _ = n.NodeIndex(network.SupplyID)
+		}
+	}
+	ret, _ := n.NodeIndex(network.ReturnID)
+	return s.Sol.Pressure[top] - s.Sol.Pressure[ret]
+}
+
+// PumpDiff returns the pump's differential (the source differential without
+// a pump), Pa.
+func (s *Solved) PumpDiff() float64 {
+	if s.Built.PumpLink >= 0 {
+		return -s.Sol.Drop[s.Built.PumpLink]
+	}
+	return s.State.Differential
+}
+
+// TotalFlow returns the flow through the source, m3/s.
+func (s *Solved) TotalFlow() float64 {
+	if s.Built.PumpLink >= 0 {
+		return s.Sol.Flow[s.Built.PumpLink]
+	}
+	var q float64
+	for _, i := range s.Model.top {
+		q += s.Flow(i)
+	}
+	return q
+}
+
+// Predict returns the model's value of reading r.
+func (s *Solved) Predict(r *site.Reading) (float64, error) {
+	switch r.What {
+	case site.TotalFlow:
+		return s.TotalFlow(), nil
+	case site.PumpDiff:
+		return s.PumpDiff(), nil
+	case site.HeaderDiff:
+		return s.HeaderDiff(), nil
+	}
+	i, ok := s.Model.index[r.Where]
+	if !ok {
+		return 0, fmt.Errorf("%s: reading at unknown branch %q: %w", r.Pos, r.Where, ErrModel)
+	}
+	switch r.What {
+	case site.Flow:
+		return s.Flow(i), nil
+	case site.BranchDiff:
+		return s.BranchDiff(i), nil
+	case site.ValveDiff:
+		if s.Model.Branches[i].Valve == nil {
+			return 0, fmt.Errorf("%s: valve differential at branch %q, which has no balancing valve: %w", r.Pos, r.Where, ErrModel)
+		}
+		return s.ValveDiff(i), nil
+	}
+	return 0, fmt.Errorf("%s: unknown quantity %v: %w", r.Pos, r.What, ErrModel)
+}
+
+// Top returns the branches on the main headers in take-off order.
+func (m *Model) Top() []int { return append([]int(nil), m.top...) }
+
+// StateLabels returns the survey state labels in order.
+func (m *Model) StateLabels() []string {
+	out := make([]string, len(m.States))
+	for i, s := range m.States {
+		out[i] = s.Label
+	}
+	return out
+}
+
+// sortedIDs is used for deterministic messages.
+func sortedIDs(ids []string) []string {
+	out := append([]string(nil), ids...)
+	sort.Strings(out)
+	return out
+}
