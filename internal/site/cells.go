@@ -1,0 +1,468 @@
+package site
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+
+	"flowset/internal/units"
+)
+
+// cellRef is where a value came from, for messages.
+type cellRef struct {
+	file  string
+	line  int
+	col   int
+	field string
+	value string
+}
+
+func (c cellRef) problem(sev Severity, cause error, msg, want string) *Error {
+	return &Error{File: c.file, Line: c.line, Column: c.col, Field: c.field, Value: c.value,
+		Severity: sev, Err: cause, Msg: msg, Want: want}
+}
+
+func (p *Problems) add(e *Error) { *p = append(*p, e) }
+
+// unitExamples names common units of each kind for messages.
+var unitExamples = map[units.Kind]string{
+	units.Flow:          "l/s, m3/h, l/h or gpm",
+	units.Pressure:      "kPa, Pa, bar, mbar, mH2O or psi",
+	units.Length:        "m, mm, ft or in",
+	units.Temperature:   "degC, degF or K",
+	units.Head:          "m or ft of the pumped fluid",
+	units.Dimensionless: "% or none",
+}
+
+func unitWant(k units.Kind) string {
+	return fmt.Sprintf("a %s unit: %s", k, unitExamples[k])
+}
+
+// splitUnit splits "design flow [l/s]" into "design flow" and "l/s". Round
+// brackets are accepted too. bracket reports whether a bracket was present.
+func splitUnit(h string) (name, unit string, bracket bool) {
+	h = strings.TrimSpace(h)
+	for _, p := range [][2]string{{"[", "]"}, {"(", ")"}} {
+		if strings.HasSuffix(h, p[1]) {
+			if i := strings.LastIndex(h, p[0]); i >= 0 {
+				return strings.TrimSpace(h[:i]), strings.TrimSpace(h[i+1 : len(h)-1]), true
+			}
+		}
+	}
+	return h, "", false
+}
+
+// find returns the column of a schema named name, and whether name is the
+// column's US Cv variant.
+func (s *schema) find(name string) (c *column, cv bool) {
+	n := normWord(name)
+	for i := range s.columns {
+		c := &s.columns[i]
+		if normWord(c.name) == n {
+			return c, false
+		}
+		for _, a := range c.aliases {
+			if normWord(a) == n {
+				return c, false
+			}
+		}
+		if c.cv != "" && normWord(c.cv) == n {
+			return c, true
+		}
+	}
+	return nil, false
+}
+
+func (s *schema) names() []string {
+	out := make([]string, len(s.columns))
+	for i, c := range s.columns {
+		out[i] = c.name
+	}
+	return out
+}
+
+// resolveUnit checks the unit written in a column name against the column.
+// It returns the unit to convert with, or a problem.
+func resolveUnit(c *column, unit string, bracket bool) (units.Unit, *numError, error) {
+	if c.typ != numCol || c.kind == 0 {
+		if bracket {
+			want := "no unit in the column name"
+			if c.cv != "" {
+				want = fmt.Sprintf("no unit: %s is in m3/h at 1 bar; a %q column takes US Cv", c.name, c.cv)
+			}
+			return units.Unit{}, &numError{ErrUnit, "column takes no unit", want}, nil
+		}
+		return units.Unit{}, nil, nil
+	}
+	sym := c.unit
+	if bracket {
+		sym = unit
+	}
+	u, err := units.Lookup(c.kind, sym)
+	if err != nil {
+		want := unitWant(c.kind)
+		if c.kind == units.Head {
+			want += "; convert a pressure to head with the fluid's density"
+		}
+		return units.Unit{}, &numError{ErrUnit, err.Error(), want}, err
+	}
+	return u, nil, nil
+}
+
+// parseNum reads the SI value of a numeric cell: NaN for a blank cell.
+func parseNum(c *column, u units.Unit, cv bool, raw string, decimalComma bool) (float64, *numError) {
+	if strings.TrimSpace(raw) == "" {
+		return nan, nil
+	}
+	// A fraction may be written as a percentage in the cell, "85 %",
+	// whatever the column name says.
+	if t, ok := strings.CutSuffix(strings.TrimSpace(raw), "%"); ok && c.kind == units.Dimensionless {
+		raw = t
+		u, _ = units.Lookup(units.Dimensionless, "%")
+	}
+	v, ne := parseNumber(raw, decimalComma)
+	if ne != nil {
+		return nan, ne
+	}
+	si := v
+	if c.kind != 0 {
+		si = u.ToSI(v)
+	}
+	if cv {
+		si *= KvPerCv
+	}
+	if math.IsInf(si, 0) || math.IsNaN(si) {
+		return nan, &numError{ErrRange, "number too large", "a finite number"}
+	}
+	return si, checkRange(c, u, cv, si)
+}
+
+// checkRange tests si against the column's bounds and words the problem in
+// the unit the sheet used.
+func checkRange(c *column, u units.Unit, cv bool, si float64) *numError {
+	if si >= c.lo && si <= c.hi {
+		return nil
+	}
+	show := func(x float64) string {
+		if c.kind != 0 {
+			x = u.FromSI(x)
+		}
+		if cv {
+			x /= KvPerCv
+		}
+		s := strconv.FormatFloat(x, 'g', 6, 64)
+		if c.kind != 0 && u.Symbol != "" {
+			s += " " + u.Symbol
+		}
+		return s
+	}
+	what := article(c.what)
+	ne := &numError{err: ErrRange}
+	switch {
+	case si <= 0 && c.lo > 0 && c.kind != units.Temperature:
+		ne.msg, ne.want = "must be positive", what+" above 0"
+	case si < 0 && c.lo == 0:
+		ne.msg, ne.want = "must not be negative", what+" of 0 or more"
+	case si < c.lo:
+		ne.msg, ne.want = "too small", fmt.Sprintf("%s from %s to %s", what, show(c.lo), show(c.hi))
+	case c.lo == 0:
+		ne.msg, ne.want = "too large", fmt.Sprintf("%s up to %s", what, show(c.hi))
+	default:
+		ne.msg, ne.want = "too large", fmt.Sprintf("%s from %s to %s", what, show(c.lo), show(c.hi))
+	}
+	if c.want != "" {
+		ne.want = c.want
+	}
+	return ne
+}
+
+func article(noun string) string {
+	if noun != "" && strings.ContainsRune("aeiouAEIOU", rune(noun[0])) {
+		return "an " + noun
+	}
+	return "a " + noun
+}
+
+// parseWord matches a keyword cell against the column's words, ignoring
+// case and treating spaces, hyphens and underscores alike.
+func parseWord(words []string, text string) (string, *numError) {
+	if text == "" {
+		return "", nil
+	}
+	n := normWord(text)
+	for _, w := range words {
+		if normWord(w) == n {
+			return w, nil
+		}
+	}
+	return "", &numError{ErrUnknown, "unknown word", "one of: " + strings.Join(words, ", ")}
+}
+
+// checkText refuses control characters (line breaks, tabs) in names.
+func checkText(text string) *numError {
+	if hasControl(text) {
+		return &numError{ErrSyntax, "holds a line break or control character", "text on one line"}
+	}
+	return nil
+}
+
+// sheetReader reads the cells of one columnar sheet by column name.
+type sheetReader struct {
+	t     *table
+	sc    *schema
+	idx   map[string]int
+	units map[string]units.Unit
+	cv    map[string]bool
+	probs *Problems
+}
+
+// bind matches a table's header against a schema, reporting blank,
+// duplicate, unknown and missing columns and units that do not fit.
+func bind(t *table, sc *schema, probs *Problems) *sheetReader {
+	sr := &sheetReader{t: t, sc: sc, idx: map[string]int{}, units: map[string]units.Unit{}, cv: map[string]bool{}, probs: probs}
+	width := len(t.header)
+	for _, r := range t.rows {
+		width = max(width, len(r.cells))
+	}
+	for i := 0; i < width; i++ {
+		h := ""
+		if i < len(t.header) {
+			h = t.header[i]
+		}
+		ref := cellRef{file: t.file, line: t.headerLine, col: i + 1, value: h}
+		if strings.TrimSpace(h) == "" {
+			for _, r := range t.rows {
+				if v := r.cell(i); v != "" {
+					probs.add(ref.problem(SeverityError, ErrMissing, "blank column name",
+						fmt.Sprintf("a name for the column that holds %q on line %d", clip(v), r.line)))
+					break
+				}
+			}
+			continue
+		}
+		name, unit, bracket := splitUnit(h)
+		c, cv := sc.find(name)
+		if c == nil {
+			want := "one of: " + strings.Join(sc.names(), ", ")
+			if s := suggest(name, sc.names()); s != "" {
+				want = fmt.Sprintf("%q", s)
+			}
+			ref.field = name
+			ref.value = ""
+			probs.add(ref.problem(SeverityWarning, ErrUnknown, "unknown column, ignored", want))
+			continue
+		}
+		ref.field, ref.value = c.name, ""
+		if j, dup := sr.idx[c.name]; dup {
+			probs.add(ref.problem(SeverityError, ErrDuplicate, "column given twice",
+				fmt.Sprintf("one %q column; the first is column %d", c.name, j+1)))
+			continue
+		}
+		if sc == &readingColumns && c.name == "value" {
+			if bracket {
+				u, err := units.Find(unit)
+				if err != nil || (u.Kind != units.Flow && u.Kind != units.Pressure) {
+					ref.value = unit
+					msg := "not a flow or pressure unit"
+					if err != nil {
+						msg = err.Error()
+					}
+					probs.add(&Error{File: t.file, Line: t.headerLine, Column: i + 1, Field: c.name, Value: unit,
+						Err: ErrUnit, Msg: msg, Want: "a flow or pressure unit, or units in the unit column", Cause: err})
+				} else {
+					sr.units[c.name] = u
+				}
+			}
+			sr.idx[c.name] = i
+			continue
+		}
+		if sc == &readingColumns && c.name == "uncertainty" {
+			if bracket && unit != "%" {
+				ref.value = unit
+				probs.add(ref.problem(SeverityError, ErrUnit, "uncertainty takes % or the row's unit",
+					`"uncertainty [%]", or "uncertainty" with values in the row's unit`))
+				continue
+			}
+			if bracket {
+				sr.units[c.name] = units.Unit{Symbol: "%"}
+			}
+			sr.idx[c.name] = i
+			continue
+		}
+		u, ne, cause := resolveUnit(c, unit, bracket)
+		if ne != nil {
+			ref.value = unit
+			e := ref.problem(SeverityError, ne.err, ne.msg, ne.want)
+			e.Cause = cause
+			probs.add(e)
+			continue
+		}
+		sr.idx[c.name] = i
+		sr.units[c.name] = u
+		sr.cv[c.name] = cv
+	}
+	for _, c := range sc.columns {
+		if _, ok := sr.idx[c.name]; c.required && !ok {
+			probs.add(&Error{File: t.file, Line: t.headerLine, Field: c.name, Err: ErrMissing,
+				Msg: "column is missing", Want: fmt.Sprintf("a column named %q", c.name)})
+		}
+	}
+	return sr
+}
+
+func clip(s string) string {
+	if r := []rune(s); len(r) > 20 {
+		return string(r[:20]) + "..."
+	}
+	return s
+}
+
+func (sr *sheetReader) has(name string) bool {
+	_, ok := sr.idx[name]
+	return ok
+}
+
+// ref returns the location of column name in row r.
+func (sr *sheetReader) ref(r row, name string) cellRef {
+	ref := cellRef{file: sr.t.file, line: r.line, field: name}
+	if i, ok := sr.idx[name]; ok {
+		ref.col = i + 1
+		ref.value = r.cell(i)
+	}
+	return ref
+}
+
+func (sr *sheetReader) fail(r row, name string, ne *numError) {
+	sr.probs.add(sr.ref(r, name).problem(SeverityError, ne.err, ne.msg, ne.want))
+}
+
+// num returns the SI value in column name of row r: NaN when the column is
+// absent or the cell blank. ok is false when the cell was bad (reported).
+func (sr *sheetReader) num(r row, name string) (v float64, ok bool) {
+	i, has := sr.idx[name]
+	if !has {
+		return nan, true
+	}
+	v, ne := parseNum(sr.sc.column(name), sr.units[name], sr.cv[name], r.rawCell(i), sr.t.decimalComma)
+	if ne != nil {
+		sr.fail(r, name, ne)
+		return nan, false
+	}
+	return v, true
+}
+
+// numOr is num with a default for a blank cell.
+func (sr *sheetReader) numOr(r row, name string, def float64, ok *bool) float64 {
+	v, good := sr.num(r, name)
+	if !good {
+		*ok = false
+	}
+	if math.IsNaN(v) {
+		return def
+	}
+	return v
+}
+
+// need is num for a value that must be given.
+func (sr *sheetReader) need(r row, name string, ok *bool) float64 {
+	v, good := sr.num(r, name)
+	if !good {
+		*ok = false
+		return v
+	}
+	if math.IsNaN(v) && sr.has(name) {
+		sr.probs.add(sr.ref(r, name).problem(SeverityError, ErrMissing, "blank", "a "+name))
+		*ok = false
+	}
+	return v
+}
+
+// text returns the trimmed text in column name of row r.
+func (sr *sheetReader) text(r row, name string, ok *bool) string {
+	i, has := sr.idx[name]
+	if !has {
+		return ""
+	}
+	s := r.cell(i)
+	if name != "note" {
+		if ne := checkText(s); ne != nil {
+			sr.fail(r, name, ne)
+			*ok = false
+			return ""
+		}
+	}
+	return s
+}
+
+// word returns the keyword in column name of row r, "" when blank.
+func (sr *sheetReader) word(r row, name string, ok *bool) string {
+	i, has := sr.idx[name]
+	if !has {
+		return ""
+	}
+	w, ne := parseWord(sr.sc.column(name).words, r.cell(i))
+	if ne != nil {
+		sr.fail(r, name, ne)
+		*ok = false
+	}
+	return w
+}
+
+// suggest returns the candidate closest to s when it is close enough to be
+// a likely slip: the same ignoring case, or at most two edits away.
+func suggest(s string, candidates []string) string {
+	best, bestD := "", 3
+	for _, c := range candidates {
+		if strings.EqualFold(c, s) {
+			return c
+		}
+		if len(s) < 3 {
+			continue
+		}
+		if d := editDistance(strings.ToLower(s), strings.ToLower(c)); d < bestD {
+			best, bestD = c, d
+		}
+	}
+	return best
+}
+
+// editDistance is the Levenshtein distance between a and b, in runes.
+func editDistance(a, b string) int {
+	ra, rb := []rune(a), []rune(b)
+	prev := make([]int, len(rb)+1)
+	cur := make([]int, len(rb)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(ra); i++ {
+		cur[0] = i
+		for j := 1; j <= len(rb); j++ {
+			cost := 1
+			if ra[i-1] == rb[j-1] {
+				cost = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(rb)]
+}
+
+// refWant words what a reference should name, with a likely correction.
+func refWant(what string, name string, candidates []string) string {
+	if s := suggest(name, candidates); s != "" {
+		return fmt.Sprintf("%s; did you mean %q", what, s)
+	}
+	return what
+}
+
+func sortedKeys[V any](m map[string]V) []string {
+	out := make([]string, 0, len(m))
+	for k := range m {
+		out = append(out, k)
+	}
+	slices.Sort(out)
+	return out
+}

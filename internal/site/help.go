@@ -1,0 +1,252 @@
+package site
+
+import (
+	"fmt"
+	"strings"
+
+	"flowset/internal/units"
+)
+
+// Topic is one help text about the site sheets.
+type Topic struct {
+	Name  string // the word after `flowset help`
+	Title string
+	Body  string
+}
+
+// examples holds one small valid sheet per sheet name; together they make
+// a complete site, which the tests read.
+var examples = map[string]string{
+	"site": `key,value
+name,Block C heating
+fluid,water
+temperature [degC],70
+header,direct-return
+boundary,pump
+speed [%],85
+hours,5000
+energy price,0.25
+currency,EUR
+`,
+	"branches": `id,parent,design flow [l/s],pipe standard,pipe size,pipe length [m],terminal drop [kPa],valve,setting,supply length [m],return length [m],header standard,header size
+R1,,1.20,en10255-m,DN40,12,0,V25,3.5,8,8,en10255-m,DN65
+R1.1,R1,0.40,en10255-m,DN20,25,10,V15,2.0,0,0,,
+R1.2,R1,0.80,en10255-m,DN25,30,12,V15,4.0,3,3,en10255-m,DN40
+R2,,0.60,en10255-m,DN25,40,15,V15,3.0,15,15,en10255-m,DN50
+`,
+	"valves": `model,setting unit,setting,kv,characteristic,kvs,rangeability
+V15,turns,0.5,0.15,,,
+V15,turns,1,0.35,,,
+V15,turns,2,0.90,,,
+V15,turns,3,1.60,,,
+V15,turns,4,2.30,,,
+V25,turns,0.5,0.60,,,
+V25,turns,2,2.40,,,
+V25,turns,4,5.80,,,
+CV20,%,,,equal-percentage,4.0,50
+`,
+	"pump": `flow [l/s],head [m]
+0,8.0
+1.5,7.5
+3.0,6.0
+4.0,4.5
+`,
+	"readings": `state,where,quantity,value,unit,setting,instrument,uncertainty,time
+as-found,R1.1,flow,0.52,l/s,,clamp-on,,09:40
+as-found,R1.1,valve diff,8.4,kPa,,manometer,,09:42
+as-found,R2,branch diff,31,kPa,,manometer,,09:45
+as-found,pump,pump diff,62,kPa,,gauge,,09:50
+as-found,header,total flow,2.6,l/s,,orifice,4 %,09:55
+after-change,R1.1,flow,0.41,l/s,1.5,valve-meter,,10:30
+`,
+	"targets": `branch,target flow [l/s]
+R2,0.55
+`,
+}
+
+var sheetIntro = map[string]string{
+	"site": `The site sheet holds one setting per line as key and value. A unit goes in
+brackets after the key, e.g. "temperature [degF]". Every key is optional; a
+missing key or a blank value takes the default below. The sheet itself is
+optional. A first line "key,value" is allowed and skipped.`,
+	"branches": `The branches sheet lists every parallel branch, one per row: its design
+flow, its pipe, its terminal, its regulating valve and the header segment
+between the previous take-off and its own. Rows go in order along the
+headers from the pump. A branch with a parent hangs from that riser; its
+header segment is then the riser pipe from the previous take-off on the same
+riser. Required.`,
+	"valves": `The valves sheet defines the regulating valve models the branches name,
+one row per point of each model's Kv table ("long" format): settings must
+rise down the table and Kv must rise with them. A valve without a table is
+one row with a characteristic (linear, equal-percentage, quick-opening), its
+Kvs and rangeability; its setting is then % of travel. A cv column instead
+of kv (cvs instead of kvs) takes US Cv, converted with Kv = 0.864978 Cv.
+Model-wide values (setting unit, step, min diff) may sit on any row of the
+model, once or repeated the same. Optional when no branch names a valve.`,
+	"pump": `The pump sheet is the pump's head curve at nominal speed: flows rising down
+the sheet, head in height of the pumped fluid (m or ft; not a pressure).
+At least two points, three or more for a curved fit. Optional; when present
+the boundary defaults to pump.`,
+	"readings": `The readings sheet holds every measurement of the visit, one per row. A
+reading names its state (as-found, after-change, ...), where it was taken (a
+branch id, pump or header) and what it measures:
+  flow         flow through a branch                      at a branch
+  valve diff   differential across the branch's valve     at a branch with a valve
+  branch diff  differential across the whole branch       at a branch
+  header diff  differential between the headers           at a branch take-off or header
+  pump diff    differential across the pump               at pump
+  total flow   flow through the pump                      at pump or header
+The unit column gives the unit of value and uncertainty for that row. A
+setting records a valve moved for that reading; blank means the as-found
+setting. Give an instrument kind or an uncertainty (or both); see
+"flowset help instruments". Readings of one quantity at one place in one
+state that disagree by more than three combined standard uncertainties are
+warned about. Required; a sheet without readings is read with a warning,
+as there is nothing to calibrate.`,
+	"targets": `The targets sheet overrides the design flow of some branches as the flow to
+balance to, one row per branch. Optional.`,
+}
+
+var sheetTitles = map[string]string{
+	"site":     "site.csv: fluid, boundary and running costs",
+	"branches": "branches.csv: the parallel branches and their headers",
+	"valves":   "valves.csv: regulating valve Kv tables and characteristics",
+	"pump":     "pump.csv: the pump curve",
+	"readings": "readings.csv: what was measured on the visit",
+	"targets":  "targets.csv: flows to balance to other than design",
+}
+
+// Topics returns the help topics: one per sheet with a small example, one
+// on the file format, one on units and one on instruments and
+// uncertainties.
+func Topics() []Topic {
+	out := []Topic{sheetsTopic()}
+	for _, sc := range sheets {
+		var b strings.Builder
+		b.WriteString(sheetIntro[sc.name])
+		b.WriteString("\n\n")
+		if sc == &siteKeys {
+			b.WriteString("Keys (default unit in brackets):\n")
+		} else {
+			b.WriteString("Columns (default unit in brackets; name another in the header):\n")
+		}
+		for i := range sc.columns {
+			c := &sc.columns[i]
+			req := ""
+			if c.required {
+				req = "required; "
+			}
+			fmt.Fprintf(&b, "  %-22s %s%s\n", headerName(c), req, c.help)
+		}
+		fmt.Fprintf(&b, "\nExample %s.csv:\n", sc.name)
+		for _, line := range strings.Split(strings.TrimRight(examples[sc.name], "\n"), "\n") {
+			b.WriteString("  " + line + "\n")
+		}
+		out = append(out, Topic{Name: sc.name, Title: sheetTitles[sc.name], Body: b.String()})
+	}
+	out = append(out, unitsTopic(), instrumentsTopic())
+	return out
+}
+
+func sheetsTopic() Topic {
+	return Topic{Name: "sheets", Title: "how a site is laid out and written", Body: `A site is a folder of CSV files or one .xlsx workbook:
+  site.csv       fluid, boundary, running costs          optional
+  branches.csv   the parallel branches                   required
+  valves.csv     regulating valve models                 when branches name valves
+  pump.csv       pump curve                              optional
+  readings.csv   the measurements of the visit           required
+  targets.csv    flows to balance to other than design   optional
+In a workbook each sheet is a tab of the same name without ".csv".
+"flowset help <sheet>" describes each one.
+
+CSV files:
+  - UTF-8, with or without a byte order mark; save from a spreadsheet as
+    "CSV UTF-8".
+  - Cells separated by commas, or by semicolons (or tabs): the header line
+    decides. With semicolons or tabs a decimal comma is accepted (1,5).
+  - A line whose first cell starts with # is a comment; blank lines are
+    skipped. So no id or name may start with #.
+  - The first line that is not a comment names the columns. Column names
+    ignore case; spaces, hyphens and underscores are alike. Columns may
+    come in any order; unknown columns are reported and ignored.
+  - A unit goes in brackets in the column name: "design flow [l/s]",
+    "pipe length [ft]". Cells hold bare numbers. See "flowset help units".
+Workbooks: numbers may be stored as numbers or as text; a number format
+does not change the value read. A cell formatted as a percentage is read as
+that percentage.
+
+Every problem is reported at once, as file:line:column: field "name": value
+"text": what is wrong (want what was expected). Warnings do not stop the
+site from being used; errors do. "flowset template" writes a blank site.`}
+}
+
+func unitsTopic() Topic {
+	var b strings.Builder
+	b.WriteString(`Values are converted to SI as they are read. Each numeric column has a
+default unit, shown in brackets in "flowset help <sheet>"; write another in
+the column name, e.g. "design flow [m3/h]". A unit of the wrong kind, e.g.
+kPa on a flow column, is an error. Unit names are case-sensitive (mbar is
+not Mbar). Accepted units by kind:
+`)
+	for _, k := range []units.Kind{units.Flow, units.Pressure, units.Length, units.Temperature, units.Head, units.Dimensionless} {
+		syms := units.Symbols(k)
+		for i, s := range syms {
+			if s == "" {
+				syms[i] = `(none)`
+			}
+		}
+		fmt.Fprintf(&b, "  %-13s %s\n", k.String()+":", strings.Join(syms, ", "))
+	}
+	b.WriteString(`Pressure units ending in H2O or "wc" are conventional water columns
+(1 mH2O = 9.80665 kPa). A pump head is a height of the pumped fluid and
+takes m or ft only. Kv and Kvs are m3/h at 1 bar and take no unit; a cv, cvs
+or control cvs column takes US Cv (Kv = 0.864978 Cv). A percentage column
+also accepts "85 %" in the cell. In readings the unit column sets the unit
+of each row.
+`)
+	return Topic{Name: "units", Title: "units of measure in the sheets", Body: b.String()}
+}
+
+func instrumentsTopic() Topic {
+	var b strings.Builder
+	b.WriteString(`Each reading names the kind of instrument it was taken with. When the
+uncertainty cell is blank the reading gets the default of its instrument:
+the larger of a fraction of the reading and a floor, as an expanded
+uncertainty with coverage factor k = 2 (about 95 %). It is divided by k to
+give the standard uncertainty the calibration weighs readings with.
+
+  instrument     reads                          default (k = 2)
+`)
+	for _, in := range instruments {
+		var reads []string
+		for _, q := range in.Reads {
+			reads = append(reads, q.String())
+		}
+		def := fmt.Sprintf("±%g %%", in.Rel*100)
+		var floors []string
+		if in.FlowFloor > 0 {
+			floors = append(floors, fmt.Sprintf("%g l/s", in.FlowFloor*1e3))
+		}
+		if in.DiffFloor > 0 {
+			floors = append(floors, fmt.Sprintf("%g kPa", in.DiffFloor/1e3))
+		}
+		if len(floors) > 0 {
+			def += ", at least " + strings.Join(floors, " or ")
+		}
+		fmt.Fprintf(&b, "  %-14s %-30s %s\n", in.Name, strings.Join(reads, ", "), def)
+		fmt.Fprintf(&b, "  %-14s %s; source: %s\n", "", in.Title, in.Source)
+	}
+	b.WriteString(`
+A stated uncertainty replaces the default: "5 %" is relative to the
+reading, a bare number is in the row's unit ("uncertainty [%]" makes all
+bare numbers percentages). It is taken as expanded with k = 2 unless the k
+column says otherwise (k = 1 for a standard uncertainty). A reading with
+neither instrument nor uncertainty is an error.
+
+A valve-meter flow is computed from the valve's differential and its Kv
+table; the calibration converts it back to that differential, so it is not
+counted twice with a valve diff of the same moment. Differentials below the
+valve's min diff (3 kPa by default) read poorly.
+`)
+	return Topic{Name: "instruments", Title: "instrument kinds and default uncertainties", Body: b.String()}
+}

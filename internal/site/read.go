@@ -1,0 +1,1049 @@
+package site
+
+import (
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path"
+	"path/filepath"
+	"slices"
+	"strconv"
+	"strings"
+
+	"flowset/internal/units"
+)
+
+// ReadDir reads the site in folder dir of fsys: site.csv, branches.csv,
+// valves.csv, pump.csv, readings.csv and targets.csv (file names in any
+// case). The Problems hold every error and warning found. The error is
+// non-nil, and the Site nil, when the folder cannot be read or any problem
+// is an error; it is then either an I/O error or Problems.Err().
+func ReadDir(fsys fs.FS, dir string) (*Site, Problems, error) {
+	name := path.Base(dir)
+	if name == "." || name == "/" {
+		name = "site"
+	}
+	return readDir(fsys, dir, func(f string) string { return path.Join(dir, f) }, Source{Path: dir, Format: "csv"}, name)
+}
+
+func readDir(fsys fs.FS, dir string, label func(string) string, src Source, name string) (*Site, Problems, error) {
+	entries, err := fs.ReadDir(fsys, dir)
+	if err != nil {
+		return nil, nil, fmt.Errorf("read site folder %s: %w", src.Path, err)
+	}
+	files := map[string]string{} // lower-case name -> name
+	for _, e := range entries {
+		if !e.IsDir() && strings.EqualFold(path.Ext(e.Name()), ".csv") {
+			files[strings.ToLower(e.Name())] = e.Name()
+		}
+	}
+	in := input{tables: map[string]*table{}, present: map[string]bool{}, src: src, name: name,
+		label: func(sheet string) string { return label(sheet + ".csv") }}
+	var known []string
+	for _, sc := range sheets {
+		known = append(known, sc.name+".csv")
+		actual, ok := files[sc.name+".csv"]
+		if !ok {
+			continue
+		}
+		delete(files, sc.name+".csv")
+		data, err := fs.ReadFile(fsys, path.Join(dir, actual))
+		if err != nil {
+			return nil, nil, fmt.Errorf("read %s: %w", label(actual), err)
+		}
+		t, p := decodeCSV(label(actual), data)
+		in.probs = append(in.probs, p...)
+		in.present[sc.name] = true
+		in.tables[sc.name] = t
+	}
+	for _, lower := range sortedKeys(files) {
+		f := files[lower]
+		want := "one of: " + strings.Join(known, ", ")
+		if s := suggest(f, known); s != "" {
+			want = fmt.Sprintf("%q", s)
+		}
+		in.probs.add(&Error{File: label(f), Severity: SeverityWarning, Err: ErrUnknown, Msg: "unknown sheet, ignored", Want: want})
+	}
+	return in.finish()
+}
+
+// Load reads a site from path: a folder of CSV files, or an .xlsx
+// workbook. It is the only function of the package that uses the
+// operating system's files.
+func Load(p string) (*Site, Problems, error) {
+	fi, err := os.Stat(p)
+	if err != nil {
+		return nil, nil, fmt.Errorf("load site: %w", err)
+	}
+	if fi.IsDir() {
+		name := filepath.Base(filepath.Clean(p))
+		if abs, err := filepath.Abs(p); err == nil {
+			name = filepath.Base(abs)
+		}
+		return readDir(os.DirFS(p), ".", func(f string) string { return filepath.Join(p, f) }, Source{Path: p, Format: "csv"}, name)
+	}
+	if !strings.EqualFold(filepath.Ext(p), ".xlsx") {
+		return nil, nil, fmt.Errorf("load site %s: want a folder of CSV sheets or an .xlsx workbook", p)
+	}
+	f, err := os.Open(p)
+	if err != nil {
+		return nil, nil, fmt.Errorf("load site: %w", err)
+	}
+	defer f.Close()
+	return ReadWorkbook(f, fi.Size(), p)
+}
+
+// input is the sheets of a site as tables, whatever they were read from.
+type input struct {
+	tables  map[string]*table // nil for a sheet present but unreadable
+	present map[string]bool
+	label   func(sheet string) string
+	src     Source
+	name    string
+	probs   Problems
+}
+
+func (in *input) finish() (*Site, Problems, error) {
+	s := in.build()
+	probs := in.probs
+	probs.sort()
+	if err := probs.Err(); err != nil {
+		return nil, probs, err
+	}
+	return s, probs, nil
+}
+
+// build turns the tables into a Site and checks references between sheets.
+func (in *input) build() *Site {
+	s := &Site{
+		Name:            in.name,
+		Fluid:           defaultFluid,
+		Temperature:     defaultTemperature,
+		Hours:           defaultHours,
+		EnergyPrice:     nan,
+		PumpEfficiency:  defaultPumpEfficiency,
+		MotorEfficiency: defaultMotorEfficiency,
+		ToleranceLow:    defaultToleranceLow,
+		ToleranceHigh:   defaultToleranceHigh,
+		Boundary:        Boundary{Kind: MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: nan, Sensor: defaultSensor},
+		Source:          in.src,
+	}
+	if in.present[pumpColumns.name] {
+		s.Boundary.Kind = PumpCurve
+	}
+	for _, sc := range []*schema{&branchColumns, &readingColumns} {
+		if !in.present[sc.name] {
+			in.probs.add(&Error{File: in.label(sc.name), Err: ErrMissing, Msg: "sheet is missing",
+				Want: fmt.Sprintf("a %s sheet; see flowset help %s", sc.name, sc.name)})
+		}
+	}
+	p := &in.probs
+	var keys map[string]cellRef
+	if t := in.tables[siteKeys.name]; t != nil {
+		keys = readSiteSheet(t, s, p)
+	}
+	if t := in.tables[valveColumns.name]; t != nil {
+		s.Valves = readValves(t, p)
+	}
+	var brRefs []branchRefs
+	if t := in.tables[branchColumns.name]; t != nil {
+		s.Branches, brRefs = readBranches(t, p)
+		checkBranches(s, brRefs, in.present[valveColumns.name], p)
+	}
+	if t := in.tables[pumpColumns.name]; t != nil {
+		s.Pump = readPump(t, p)
+	}
+	if t := in.tables[readingColumns.name]; t != nil {
+		s.Readings = readReadings(t, s, in.tables[branchColumns.name] != nil, p)
+	}
+	if t := in.tables[targetColumns.name]; t != nil {
+		s.Targets = readTargets(t, s, in.tables[branchColumns.name] != nil, p)
+	}
+	checkSite(s, keys, in, brRefs)
+	return s
+}
+
+// readSiteSheet reads the key,value rows of the site sheet into s and
+// returns where each key was given.
+func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
+	given := map[string]cellRef{}
+	rows := t.rows
+	valueCol := 1
+	if name, _, _ := splitUnit(t.header[0]); normWord(name) != "key" {
+		// No header line: the first line is already a key.
+		rows = append([]row{{line: t.headerLine, cells: t.header, raw: t.header}}, rows...)
+	} else {
+		for i, h := range t.header[1:] {
+			switch normWord(h) {
+			case "value":
+				valueCol = i + 1
+			case "note", "":
+			default:
+				p.add(&Error{File: t.file, Line: t.headerLine, Column: i + 2, Field: h, Severity: SeverityWarning,
+					Err: ErrUnknown, Msg: "unknown column, ignored", Want: "key, value and note columns"})
+			}
+		}
+	}
+	set := map[string]float64{}
+	words := map[string]string{}
+	for _, r := range rows {
+		key, unit, bracket := splitUnit(r.cell(0))
+		kref := cellRef{file: t.file, line: r.line, col: 1, field: key}
+		c, _ := siteKeys.find(key)
+		if c == nil {
+			want := "one of: " + strings.Join(siteKeys.names(), ", ")
+			if sg := suggest(key, siteKeys.names()); sg != "" {
+				want = fmt.Sprintf("%q", sg)
+			}
+			p.add(kref.problem(SeverityWarning, ErrUnknown, "unknown key, ignored", want))
+			continue
+		}
+		kref.field = c.name
+		if prev, dup := given[c.name]; dup {
+			p.add(kref.problem(SeverityError, ErrDuplicate, "key given twice", fmt.Sprintf("one %q line; the first is line %d", c.name, prev.line)))
+			continue
+		}
+		vref := cellRef{file: t.file, line: r.line, col: valueCol + 1, field: c.name, value: r.cell(valueCol)}
+		given[c.name] = vref
+		u, ne, cause := resolveUnit(c, unit, bracket)
+		if ne != nil {
+			kref.value = unit
+			e := kref.problem(SeverityError, ne.err, ne.msg, ne.want)
+			e.Cause = cause
+			p.add(e)
+			continue
+		}
+		switch c.typ {
+		case numCol:
+			v, ne := parseNum(c, u, false, r.rawCell(valueCol), t.decimalComma)
+			if ne != nil {
+				p.add(vref.problem(SeverityError, ne.err, ne.msg, ne.want))
+				continue
+			}
+			if !math.IsNaN(v) {
+				set[c.name] = v
+			}
+		case wordCol:
+			w, ne := parseWord(c.words, r.cell(valueCol))
+			if ne != nil {
+				p.add(vref.problem(SeverityError, ne.err, ne.msg, ne.want))
+				continue
+			}
+			words[c.name] = w
+		default:
+			if ne := checkText(r.cell(valueCol)); ne != nil {
+				p.add(vref.problem(SeverityError, ne.err, ne.msg, ne.want))
+				continue
+			}
+			words[c.name] = r.cell(valueCol)
+		}
+	}
+	num := func(name string, dst *float64) {
+		if v, ok := set[name]; ok {
+			*dst = v
+		}
+	}
+	num("temperature", &s.Temperature)
+	num("speed", &s.Boundary.Speed)
+	num("max speed", &s.Boundary.MaxSpeed)
+	num("set point", &s.Boundary.SetPoint)
+	num("hours", &s.Hours)
+	num("energy price", &s.EnergyPrice)
+	num("pump efficiency", &s.PumpEfficiency)
+	num("motor efficiency", &s.MotorEfficiency)
+	num("tolerance low", &s.ToleranceLow)
+	num("tolerance high", &s.ToleranceHigh)
+	if v, ok := set["glycol"]; ok {
+		s.GlycolPercent = v * 100
+	}
+	if w := words["name"]; w != "" {
+		s.Name = w
+	}
+	if w := words["fluid"]; w != "" {
+		s.Fluid = w
+	}
+	if w := words["header"]; w != "" {
+		s.Header = Arrangement(slices.Index(arrangementWords, w))
+	}
+	if w := words["boundary"]; w != "" {
+		s.Boundary.Kind = BoundaryKind(slices.Index(boundaryWords, w))
+	}
+	if w := words["sensor"]; w != "" {
+		s.Boundary.Sensor = w
+		if strings.EqualFold(w, AtPump) {
+			s.Boundary.Sensor = AtPump
+		}
+	}
+	s.Currency = words["currency"]
+	return given
+}
+
+// branchRefs keeps where a branch's references were written.
+type branchRefs struct {
+	id, parent, valve, setting, supply cellRef
+}
+
+func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
+	sr := bind(t, &branchColumns, p)
+	var out []Branch
+	var refs []branchRefs
+	first := map[string]int{}
+	for _, r := range t.rows {
+		ok := true
+		b := Branch{Pos: Pos{File: t.file, Line: r.line}}
+		b.ID = sr.text(r, "id", &ok)
+		b.Parent = sr.text(r, "parent", &ok)
+		b.DesignFlow = sr.need(r, "design flow", &ok)
+		b.PipeStandard = sr.text(r, "pipe standard", &ok)
+		b.PipeSize = sr.text(r, "pipe size", &ok)
+		b.PipeBore, _ = sr.num(r, "pipe bore")
+		b.PipeLength = sr.numOr(r, "pipe length", 0, &ok)
+		b.Roughness, _ = sr.num(r, "roughness")
+		b.FittingsK = sr.numOr(r, "fittings k", 0, &ok)
+		b.TerminalDrop = sr.numOr(r, "terminal drop", 0, &ok)
+		b.TerminalFlow, _ = sr.num(r, "terminal flow")
+		b.Valve = sr.text(r, "valve", &ok)
+		b.Setting, _ = sr.num(r, "setting")
+		b.ControlKvs = sr.numOr(r, "control kvs", 0, &ok)
+		b.SupplyLength = sr.numOr(r, "supply length", 0, &ok)
+		b.ReturnLength = sr.numOr(r, "return length", 0, &ok)
+		b.HeaderStandard = sr.text(r, "header standard", &ok)
+		b.HeaderSize = sr.text(r, "header size", &ok)
+		b.HeaderBore, _ = sr.num(r, "header bore")
+		b.HeaderK = sr.numOr(r, "header k", 0, &ok)
+		b.Note = sr.text(r, "note", &ok)
+		ref := branchRefs{id: sr.ref(r, "id"), parent: sr.ref(r, "parent"), valve: sr.ref(r, "valve"),
+			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length")}
+		switch {
+		case !sr.has("id"):
+			continue
+		case b.ID == "":
+			p.add(ref.id.problem(SeverityError, ErrMissing, "blank", "a unique branch id"))
+			continue
+		case strings.EqualFold(b.ID, AtPump) || strings.EqualFold(b.ID, AtHeader):
+			p.add(ref.id.problem(SeverityError, ErrRange, "pump and header are reserved names", "another branch id"))
+			continue
+		}
+		if line, dup := first[b.ID]; dup {
+			p.add(ref.id.problem(SeverityError, ErrDuplicate, "branch id given twice", fmt.Sprintf("a unique id; the first is on line %d", line)))
+			continue
+		}
+		first[b.ID] = r.line
+		if b.PipeLength > 0 && math.IsNaN(b.PipeBore) && (b.PipeStandard == "" || b.PipeSize == "") {
+			p.add(sr.ref(r, "pipe size").problem(SeverityError, ErrMissing, "pipe length given without the pipe's size",
+				"a pipe standard and size, or a pipe bore"))
+			ok = false
+		}
+		if b.SupplyLength+b.ReturnLength > 0 && math.IsNaN(b.HeaderBore) && (b.HeaderStandard == "" || b.HeaderSize == "") {
+			p.add(sr.ref(r, "header size").problem(SeverityError, ErrMissing, "header length given without the header's size",
+				"a header standard and size, or a header bore"))
+			ok = false
+		}
+		if !math.IsNaN(b.Setting) && b.Valve == "" {
+			p.add(ref.setting.problem(SeverityError, ErrMissing, "setting given for a branch without a valve",
+				"a valve model in the valve column, or no setting"))
+			ok = false
+		}
+		_ = ok // the branch is kept so references to it still resolve
+		out = append(out, b)
+		refs = append(refs, ref)
+	}
+	if sr.has("id") && sr.has("design flow") && len(t.rows) == 0 {
+		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: "no branches listed", Want: "one row per branch below the header"})
+	}
+	return out, refs
+}
+
+// checkBranches checks parents, loops among parents and valve references.
+func checkBranches(s *Site, refs []branchRefs, haveValves bool, p *Problems) {
+	ids := make([]string, len(s.Branches))
+	index := map[string]int{}
+	for i, b := range s.Branches {
+		ids[i] = b.ID
+		index[b.ID] = i
+	}
+	parentOK := make([]bool, len(s.Branches))
+	for i, b := range s.Branches {
+		if b.Parent == "" {
+			continue
+		}
+		if _, ok := index[b.Parent]; !ok {
+			p.add(refs[i].parent.problem(SeverityError, ErrReference, "no branch has this id",
+				refWant("the id of the riser in this sheet, or blank", b.Parent, ids)))
+			continue
+		}
+		parentOK[i] = true
+	}
+	// Each branch has at most one parent, so following parents from any
+	// branch either reaches the headers or runs into a loop.
+	state := make([]int, len(s.Branches)) // 0 new, 1 on the current path, 2 done
+	for start := range s.Branches {
+		var path []int
+		i := start
+		for state[i] == 0 {
+			state[i] = 1
+			path = append(path, i)
+			if !parentOK[i] {
+				break
+			}
+			i = index[s.Branches[i].Parent]
+		}
+		if state[i] == 1 && parentOK[path[len(path)-1]] {
+			k := slices.Index(path, i)
+			loop := path[k:]
+			first := slices.Min(loop)
+			names := []string{}
+			// Name the loop from its first row so the message is the same
+			// whichever branch the search started from.
+			j := first
+			for range loop {
+				names = append(names, s.Branches[j].ID)
+				j = index[s.Branches[j].Parent]
+			}
+			names = append(names, s.Branches[first].ID)
+			msg := "branches in a loop: " + strings.Join(names, " -> ")
+			if len(loop) == 1 {
+				msg = "branch hangs from itself"
+			}
+			p.add(refs[first].parent.problem(SeverityError, ErrReference, msg, "a chain of parents that ends at a branch on the main headers"))
+		}
+		for _, j := range path {
+			state[j] = 2
+		}
+	}
+	var names []string
+	for _, v := range s.Valves {
+		names = append(names, v.Name)
+	}
+	for i, b := range s.Branches {
+		if b.Valve == "" {
+			continue
+		}
+		v := s.Valve(b.Valve)
+		if v == nil {
+			want := refWant("a model defined in the valves sheet", b.Valve, names)
+			if !haveValves {
+				want = "a valves sheet defining this model"
+			}
+			p.add(refs[i].valve.problem(SeverityError, ErrReference, "valve model not defined", want))
+			continue
+		}
+		if e := checkSetting(v, b.Setting, refs[i].setting); e != nil {
+			p.add(e)
+		}
+	}
+}
+
+// checkSetting checks that a setting lies within the valve's range.
+func checkSetting(v *ValveModel, setting float64, ref cellRef) *Error {
+	if math.IsNaN(setting) {
+		return nil
+	}
+	lo, hi := v.Range()
+	if setting >= lo && setting <= hi {
+		return nil
+	}
+	return ref.problem(SeverityError, ErrRange, fmt.Sprintf("outside the range of valve %q", v.Name),
+		fmt.Sprintf("a setting from %s to %s %s", fmtNum(lo), fmtNum(hi), v.Unit))
+}
+
+func fmtNum(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
+
+func readValves(t *table, p *Problems) []ValveModel {
+	sr := bind(t, &valveColumns, p)
+	if !sr.has("model") {
+		return nil
+	}
+	type attr struct {
+		v    float64
+		w    string
+		line int
+	}
+	type build struct {
+		m        ValveModel
+		attrs    map[string]attr
+		setRefs  []cellRef
+		kvRefs   []cellRef
+		charRef  cellRef
+		modelRef cellRef
+		bad      bool
+	}
+	var order []string
+	models := map[string]*build{}
+	for _, r := range t.rows {
+		ok := true
+		name := sr.text(r, "model", &ok)
+		mref := sr.ref(r, "model")
+		if name == "" {
+			if ok {
+				p.add(mref.problem(SeverityError, ErrMissing, "blank", "the valve model this row belongs to"))
+			}
+			continue
+		}
+		b := models[name]
+		if b == nil {
+			b = &build{m: ValveModel{Name: name, Pos: Pos{File: t.file, Line: r.line}, Kvs: nan, Rangeability: nan, Step: nan, MinDiff: nan},
+				attrs: map[string]attr{}, modelRef: mref}
+			models[name] = b
+			order = append(order, name)
+		}
+		// Model-wide attributes may sit on any row of the model, once.
+		same := func(col string, a attr) {
+			if prev, seen := b.attrs[col]; seen {
+				if prev.v != a.v && !(math.IsNaN(prev.v) && math.IsNaN(a.v)) || prev.w != a.w {
+					p.add(sr.ref(r, col).problem(SeverityError, ErrDuplicate, fmt.Sprintf("differs from line %d for the same model", prev.line),
+						"one value per model"))
+					b.bad = true
+				}
+				return
+			}
+			b.attrs[col] = a
+		}
+		if w := sr.word(r, "setting unit", &ok); w != "" {
+			same("setting unit", attr{w: w, line: r.line})
+		}
+		for _, col := range []string{"step", "min diff", "kvs", "rangeability"} {
+			if v, good := sr.num(r, col); !good {
+				b.bad = true
+			} else if !math.IsNaN(v) {
+				same(col, attr{v: v, line: r.line})
+			}
+		}
+		if w := sr.word(r, "characteristic", &ok); w != "" {
+			same("characteristic", attr{w: w, line: r.line})
+			b.charRef = sr.ref(r, "characteristic")
+		}
+		set, good1 := sr.num(r, "setting")
+		kv, good2 := sr.num(r, "kv")
+		if !ok || !good1 || !good2 {
+			b.bad = true
+			continue
+		}
+		switch {
+		case math.IsNaN(set) && math.IsNaN(kv):
+		case math.IsNaN(kv):
+			p.add(sr.ref(r, "kv").problem(SeverityError, ErrMissing, "setting without a kv", "the kv at that setting"))
+			b.bad = true
+		case math.IsNaN(set):
+			p.add(sr.ref(r, "setting").problem(SeverityError, ErrMissing, "kv without a setting", "the setting this kv belongs to"))
+			b.bad = true
+		default:
+			b.m.Settings = append(b.m.Settings, set)
+			b.m.Kv = append(b.m.Kv, kv)
+			b.setRefs = append(b.setRefs, sr.ref(r, "setting"))
+			b.kvRefs = append(b.kvRefs, sr.ref(r, "kv"))
+		}
+	}
+	var out []ValveModel
+	for _, name := range order {
+		b := models[name]
+		m := &b.m
+		m.Unit = b.attrs["setting unit"].w
+		m.Characteristic = b.attrs["characteristic"].w
+		get := func(col string, def float64) float64 {
+			if a, ok := b.attrs[col]; ok {
+				return a.v
+			}
+			return def
+		}
+		m.MinDiff = get("min diff", defaultMinDiff)
+		switch {
+		case m.Characteristic != "" && len(m.Settings) > 0:
+			p.add(b.charRef.problem(SeverityError, ErrDuplicate, "model has both a kv table and a characteristic",
+				"either setting and kv rows or one characteristic"))
+			b.bad = true
+		case m.Characteristic != "":
+			if m.Unit == "" {
+				m.Unit = "%"
+			}
+			if m.Unit != "%" {
+				p.add(b.charRef.problem(SeverityError, ErrRange, "a characteristic takes its setting as % of travel", "setting unit %"))
+				b.bad = true
+			}
+			m.Kvs = get("kvs", nan)
+			m.Rangeability = get("rangeability", defaultRangeability)
+			if math.IsNaN(m.Kvs) {
+				p.add(b.charRef.problem(SeverityError, ErrMissing, "characteristic without kvs", "the valve's kvs"))
+				b.bad = true
+			}
+		default:
+			if m.Unit == "" {
+				m.Unit = "turns"
+			}
+			if _, ok := b.attrs["kvs"]; ok {
+				p.add(b.modelRef.problem(SeverityError, ErrMissing, "kvs given without a characteristic",
+					"a characteristic (linear, equal-percentage or quick-opening) with the kvs"))
+				b.bad = true
+			}
+			m.Kvs = get("kvs", nan)
+			m.Rangeability = get("rangeability", nan)
+			if !b.bad && !checkTable(m, b.setRefs, b.kvRefs, b.modelRef, p) {
+				b.bad = true
+			}
+		}
+		m.Step = get("step", defaultStep(m.Unit))
+		out = append(out, *m)
+	}
+	return out
+}
+
+// checkTable checks a valve's Kv table: two points at least, settings
+// rising down the sheet, Kv rising with setting.
+func checkTable(m *ValveModel, setRefs, kvRefs []cellRef, modelRef cellRef, p *Problems) bool {
+	switch len(m.Settings) {
+	case 0:
+		p.add(modelRef.problem(SeverityError, ErrMissing, "valve has no kv table and no characteristic",
+			"setting and kv rows, or a characteristic with kvs"))
+		return false
+	case 1:
+		p.add(modelRef.problem(SeverityError, ErrMissing, "kv table has one point",
+			"at least two settings with their kv"))
+		return false
+	}
+	ok := true
+	for i := 1; i < len(m.Settings); i++ {
+		if m.Settings[i] <= m.Settings[i-1] {
+			p.add(setRefs[i].problem(SeverityError, ErrRange, "settings must rise down the table",
+				fmt.Sprintf("a setting above %s (line %d)", fmtNum(m.Settings[i-1]), setRefs[i-1].line)))
+			ok = false
+			continue
+		}
+		switch {
+		case m.Kv[i] < m.Kv[i-1]:
+			p.add(kvRefs[i].problem(SeverityError, ErrRange, "kv falls as the setting rises",
+				fmt.Sprintf("a kv of at least %s (line %d)", fmtNum(m.Kv[i-1]), kvRefs[i-1].line)))
+			ok = false
+		case m.Kv[i] == m.Kv[i-1]:
+			p.add(kvRefs[i].problem(SeverityWarning, ErrRange, "kv the same as at the setting before",
+				"a kv that rises with the setting; settings in between cannot be told apart"))
+		}
+	}
+	if m.Unit == "%" && m.Settings[len(m.Settings)-1] > 100 {
+		ref := setRefs[len(setRefs)-1]
+		p.add(ref.problem(SeverityError, ErrRange, "setting above 100 %", "a setting from 0 to 100 %"))
+		ok = false
+	}
+	return ok
+}
+
+func readPump(t *table, p *Problems) []PumpPoint {
+	sr := bind(t, &pumpColumns, p)
+	if !sr.has("flow") || !sr.has("head") {
+		return nil
+	}
+	var out []PumpPoint
+	var refs []row
+	for _, r := range t.rows {
+		ok := true
+		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}}
+		pt.Flow = sr.need(r, "flow", &ok)
+		pt.Head = sr.need(r, "head", &ok)
+		sr.text(r, "note", &ok)
+		if !ok {
+			continue
+		}
+		if n := len(out); n > 0 {
+			prev := out[n-1]
+			if pt.Flow <= prev.Flow {
+				p.add(sr.ref(r, "flow").problem(SeverityError, ErrRange, "flows must rise down the curve",
+					fmt.Sprintf("a flow above line %d's", prev.Pos.Line)))
+				continue
+			}
+			if pt.Head > prev.Head {
+				p.add(sr.ref(r, "head").problem(SeverityWarning, ErrRange, "head rises with flow",
+					fmt.Sprintf("a head at or below line %d's, unless the curve really droops", prev.Pos.Line)))
+			}
+		}
+		out = append(out, pt)
+		refs = append(refs, r)
+	}
+	if len(out) < 2 {
+		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: fmt.Sprintf("pump curve has %d usable points", len(out)),
+			Want: "at least two flow and head points, three or more for a curved fit"})
+	}
+	return out
+}
+
+func readReadings(t *table, s *Site, haveBranches bool, p *Problems) []Reading {
+	sr := bind(t, &readingColumns, p)
+	if !sr.has("where") || !sr.has("quantity") || !sr.has("value") {
+		return nil
+	}
+	ids := make([]string, len(s.Branches))
+	for i, b := range s.Branches {
+		ids[i] = b.ID
+	}
+	var out []Reading
+	for _, r := range t.rows {
+		ok := true
+		rd := Reading{Pos: Pos{File: t.file, Line: r.line}, Setting: nan, Sigma: nan}
+		rd.State = strings.ToLower(sr.text(r, "state", &ok))
+		if rd.State == "" {
+			rd.State = defaultState
+		}
+		rd.Where = sr.text(r, "where", &ok)
+		if w := sr.word(r, "quantity", &ok); w != "" {
+			rd.What = Quantity(slices.Index(quantityWords, w))
+		}
+		rd.Instrument = sr.word(r, "instrument", &ok)
+		rd.Time = sr.text(r, "time", &ok)
+		rd.Note = sr.text(r, "note", &ok)
+		set, good := sr.num(r, "setting")
+		rd.Setting = set
+		if !ok || !good {
+			continue
+		}
+		wref, qref := sr.ref(r, "where"), sr.ref(r, "quantity")
+		if rd.What == 0 {
+			p.add(qref.problem(SeverityError, ErrMissing, "blank", "one of: "+strings.Join(quantityWords[1:], ", ")))
+			continue
+		}
+		// Where the reading was taken, and whether that suits the quantity.
+		var br *Branch
+		switch {
+		case rd.Where == "":
+			p.add(wref.problem(SeverityError, ErrMissing, "blank", "a branch id, pump or header"))
+			continue
+		case strings.EqualFold(rd.Where, AtPump):
+			rd.Where = AtPump
+		case strings.EqualFold(rd.Where, AtHeader):
+			rd.Where = AtHeader
+		default:
+			br = s.Branch(rd.Where)
+			if br == nil {
+				if haveBranches {
+					p.add(wref.problem(SeverityError, ErrReference, "no branch has this id",
+						refWant("a branch id from the branches sheet, pump or header", rd.Where, ids)))
+				}
+				continue
+			}
+		}
+		if want := placeWant(rd.What, rd.Where, br != nil); want != "" {
+			p.add(wref.problem(SeverityError, ErrRange, fmt.Sprintf("%s is not read here", rd.What), want))
+			continue
+		}
+		if !readingValue(sr, r, &rd, p) {
+			continue
+		}
+		// Valve-related checks.
+		var valve *ValveModel
+		if br != nil && br.Valve != "" {
+			valve = s.Valve(br.Valve)
+		}
+		needValve := rd.What == ValveDiff || rd.Instrument == "valve-meter" || !math.IsNaN(rd.Setting)
+		if needValve && br == nil && !math.IsNaN(rd.Setting) {
+			p.add(sr.ref(r, "setting").problem(SeverityError, ErrRange, "a setting belongs to a branch's valve", "no setting at the pump or header"))
+			continue
+		}
+		if needValve && br != nil && br.Valve == "" {
+			p.add(wref.problem(SeverityError, ErrReference, fmt.Sprintf("branch %q has no valve", br.ID),
+				"a valve model for this branch in the branches sheet"))
+			continue
+		}
+		if valve != nil {
+			if e := checkSetting(valve, rd.Setting, sr.ref(r, "setting")); e != nil {
+				p.add(e)
+				continue
+			}
+			if rd.Instrument == "valve-meter" && !valve.Table() {
+				p.add(sr.ref(r, "instrument").problem(SeverityError, ErrRange, fmt.Sprintf("valve %q has no kv table to read flow from", valve.Name),
+					"a valve with a kv table, or another instrument"))
+				continue
+			}
+		}
+		out = append(out, rd)
+	}
+	if len(out) == 0 && len(t.rows) == 0 {
+		p.add(&Error{File: t.file, Line: t.headerLine, Severity: SeverityWarning, Err: ErrMissing,
+			Msg: "no readings: nothing to calibrate", Want: "one row per reading below the header"})
+	}
+	checkAgreement(out, p)
+	return out
+}
+
+// placeWant returns what a reading of q should name as its place, or ""
+// when where suits q.
+func placeWant(q Quantity, where string, branch bool) string {
+	switch q {
+	case Flow, ValveDiff, BranchDiff:
+		if !branch {
+			return "a branch id"
+		}
+	case HeaderDiff:
+		if !branch && where != AtHeader {
+			return "a branch id (at its take-off) or header"
+		}
+	case PumpDiff:
+		if where != AtPump {
+			return "pump"
+		}
+	case TotalFlow:
+		if branch {
+			return "pump or header"
+		}
+	}
+	return ""
+}
+
+// readingValue reads the value, unit, instrument and uncertainty of a
+// reading row into rd.
+func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
+	kind, def := units.Pressure, "kPa"
+	limit := &column{name: "value", typ: numCol, kind: units.Pressure, what: "pressure difference", lo: 0, hi: maxPressure}
+	if rd.What.IsFlow() {
+		kind, def = units.Flow, "l/s"
+		limit = &column{name: "value", typ: numCol, kind: units.Flow, what: "flow", lo: 0, hi: maxFlow}
+	}
+	// The row's unit: the unit cell, else the unit named on the value
+	// column, else the default for the quantity.
+	u, err := units.Lookup(kind, def)
+	uref := sr.ref(r, "unit")
+	if hu, ok := sr.units["value"]; ok {
+		u, err = units.Lookup(kind, hu.Symbol)
+		uref = sr.ref(r, "value")
+		uref.value = hu.Symbol
+		uref.line = sr.t.headerLine
+	}
+	if i, ok := sr.idx["unit"]; ok && r.cell(i) != "" {
+		u, err = units.Lookup(kind, r.cell(i))
+		uref = sr.ref(r, "unit")
+	}
+	if err != nil {
+		e := uref.problem(SeverityError, ErrUnit, err.Error(), fmt.Sprintf("%s for a %s reading", unitWant(kind), rd.What))
+		e.Cause = err
+		p.add(e)
+		return false
+	}
+	vref := sr.ref(r, "value")
+	v, ne := parseNum(limit, u, false, r.rawCell(sr.idx["value"]), sr.t.decimalComma)
+	if ne == nil && math.IsNaN(v) {
+		ne = &numError{ErrMissing, "blank", "the reading"}
+	}
+	if ne != nil {
+		p.add(vref.problem(SeverityError, ne.err, ne.msg, ne.want))
+		return false
+	}
+	rd.Value = v
+
+	var in *Instrument
+	if rd.Instrument != "" {
+		in = findInstrument(rd.Instrument)
+		if !in.reads(rd.What) {
+			var can []string
+			for _, x := range instruments {
+				if x.reads(rd.What) {
+					can = append(can, x.Name)
+				}
+			}
+			p.add(sr.ref(r, "instrument").problem(SeverityError, ErrRange, fmt.Sprintf("a %s does not read %s", in.Name, rd.What),
+				"one of: "+strings.Join(can, ", ")))
+			return false
+		}
+	}
+	ok := true
+	k := sr.numOr(r, "k", defaultCoverage, &ok)
+	if !ok {
+		return false
+	}
+	uc := ""
+	if i, ok := sr.idx["uncertainty"]; ok {
+		uc = r.rawCell(i)
+	}
+	if uc == "" {
+		if in == nil {
+			ref := sr.ref(r, "instrument")
+			ref.field = "instrument"
+			p.add(ref.problem(SeverityError, ErrMissing, "no instrument and no uncertainty", "an instrument kind or an uncertainty"))
+			return false
+		}
+		rd.Sigma = in.DefaultSigma(rd.What, v)
+		if sr.has("k") && !math.IsNaN(mustNum(sr, r, "k")) {
+			p.add(sr.ref(r, "k").problem(SeverityWarning, ErrRange, "coverage factor without an uncertainty, ignored", "an uncertainty with it"))
+		}
+		return true
+	}
+	uref = sr.ref(r, "uncertainty")
+	_, pct := sr.units["uncertainty"]
+	text := strings.TrimSpace(uc)
+	if t, ok := strings.CutSuffix(text, "%"); ok {
+		text, pct = strings.TrimSpace(t), true
+	}
+	x, ne := parseNumber(text, sr.t.decimalComma)
+	if ne != nil {
+		if ne.err == ErrSyntax {
+			ne.want = "a percentage such as 5 %, or a number in the row's unit"
+		}
+		p.add(uref.problem(SeverityError, ne.err, ne.msg, ne.want))
+		return false
+	}
+	var U float64
+	if pct {
+		if x <= 0 || x > 100 {
+			p.add(uref.problem(SeverityError, ErrRange, "relative uncertainty out of range", "a percentage above 0 and up to 100"))
+			return false
+		}
+		U = x / 100 * math.Abs(v)
+		if U == 0 {
+			p.add(uref.problem(SeverityError, ErrRange, "a percentage of a zero reading is zero", "an absolute uncertainty in the row's unit"))
+			return false
+		}
+	} else {
+		U = u.ToSI(x)
+		if !(U > 0) || math.IsInf(U, 0) {
+			p.add(uref.problem(SeverityError, ErrRange, "must be positive", "an uncertainty above 0"))
+			return false
+		}
+		if U > limit.hi {
+			p.add(uref.problem(SeverityError, ErrRange, "too large", "an uncertainty no larger than the largest reading"))
+			return false
+		}
+	}
+	rd.Sigma = U / k
+	return true
+}
+
+func mustNum(sr *sheetReader, r row, name string) float64 {
+	v, _ := sr.num(r, name)
+	return v
+}
+
+// checkAgreement warns about readings of the same quantity at the same
+// place, state and setting that differ by more than three combined
+// standard uncertainties: one of them is likely mis-typed or mis-read.
+func checkAgreement(rs []Reading, p *Problems) {
+	type key struct {
+		state, where string
+		what         Quantity
+		setting      float64
+	}
+	groups := map[key][]int{}
+	for i, r := range rs {
+		k := key{r.State, r.Where, r.What, r.Setting}
+		if math.IsNaN(r.Setting) {
+			k.setting = -1 // NaN keys never match; no setting is -1 here
+		}
+		for _, j := range groups[k] {
+			o := rs[j]
+			if math.Abs(r.Value-o.Value) > 3*math.Hypot(r.Sigma, o.Sigma) {
+				u := displayUnit(r.What)
+				p.add(&Error{File: r.Pos.File, Line: r.Pos.Line, Field: "value", Value: units.Format(r.Value, u, -1),
+					Severity: SeverityWarning, Err: ErrRange,
+					Msg:  fmt.Sprintf("disagrees with line %d (%s) by more than 3 standard uncertainties", o.Pos.Line, units.Format(o.Value, u, -1)),
+					Want: "readings of one quantity in one state that agree within their uncertainties"})
+				break
+			}
+		}
+		groups[k] = append(groups[k], i)
+	}
+}
+
+func displayUnit(q Quantity) units.Unit {
+	if q.IsFlow() {
+		u, _ := units.Lookup(units.Flow, "l/s")
+		return u
+	}
+	u, _ := units.Lookup(units.Pressure, "kPa")
+	return u
+}
+
+func readTargets(t *table, s *Site, haveBranches bool, p *Problems) map[string]float64 {
+	sr := bind(t, &targetColumns, p)
+	out := map[string]float64{}
+	if !sr.has("branch") || !sr.has("target flow") {
+		return out
+	}
+	ids := make([]string, len(s.Branches))
+	for i, b := range s.Branches {
+		ids[i] = b.ID
+	}
+	lines := map[string]int{}
+	for _, r := range t.rows {
+		ok := true
+		id := sr.text(r, "branch", &ok)
+		q := sr.need(r, "target flow", &ok)
+		sr.text(r, "note", &ok)
+		ref := sr.ref(r, "branch")
+		switch {
+		case !ok:
+			continue
+		case id == "":
+			p.add(ref.problem(SeverityError, ErrMissing, "blank", "a branch id"))
+			continue
+		case haveBranches && s.Branch(id) == nil:
+			p.add(ref.problem(SeverityError, ErrReference, "no branch has this id", refWant("a branch id from the branches sheet", id, ids)))
+			continue
+		}
+		if line, dup := lines[id]; dup {
+			p.add(ref.problem(SeverityError, ErrDuplicate, "target given twice", fmt.Sprintf("one target per branch; the first is on line %d", line)))
+			continue
+		}
+		lines[id] = r.line
+		out[id] = q
+	}
+	return out
+}
+
+// checkSite checks the site sheet's values against each other and the
+// other sheets.
+func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs) {
+	p := &in.probs
+	at := func(key string) cellRef {
+		if r, ok := keys[key]; ok {
+			return r
+		}
+		return cellRef{file: in.label(siteKeys.name), field: key}
+	}
+	_, glycolGiven := keys["glycol"]
+	switch {
+	case s.Fluid == "water" && s.GlycolPercent > 0:
+		p.add(at("glycol").problem(SeverityError, ErrRange, "water takes no glycol", "0, or fluid ethylene-glycol or propylene-glycol"))
+	case s.Fluid != "water" && !glycolGiven:
+		ref := at("fluid")
+		ref.field = "glycol"
+		ref.value = ""
+		p.add(ref.problem(SeverityError, ErrMissing, "glycol concentration is missing", "a glycol [%] line, e.g. 30"))
+	case s.Fluid != "water" && s.GlycolPercent == 0:
+		p.add(at("glycol").problem(SeverityError, ErrRange, "must be positive for a glycol", "a concentration above 0 %"))
+	}
+	if s.Fluid == "water" && s.Temperature < 273.15 {
+		p.add(at("temperature").problem(SeverityError, ErrRange, "water freezes below 0 degC", "a temperature of 0 degC or more, or a glycol fluid"))
+	}
+	b := &s.Boundary
+	if b.Speed > b.MaxSpeed {
+		p.add(at("speed").problem(SeverityError, ErrRange, "above max speed", fmt.Sprintf("a speed up to the max speed, %s", fmtNum(b.MaxSpeed))))
+	}
+	switch b.Kind {
+	case PumpCurve:
+		if !in.present[pumpColumns.name] {
+			ref := at("boundary")
+			p.add(ref.problem(SeverityError, ErrMissing, "pump boundary without a pump curve", "a pump sheet with flow and head, or another boundary"))
+		}
+	case ConstantDiff:
+		if math.IsNaN(b.SetPoint) {
+			ref := at("boundary")
+			ref.field = "set point"
+			ref.value = ""
+			p.add(ref.problem(SeverityError, ErrMissing, "constant-differential boundary without a set point", "a set point [kPa] line"))
+		}
+	}
+	if b.Kind != ConstantDiff && !math.IsNaN(b.SetPoint) {
+		p.add(at("set point").problem(SeverityWarning, ErrRange, fmt.Sprintf("set point ignored with boundary %s", b.Kind), "boundary constant-differential"))
+	}
+	if b.Sensor != AtPump && in.tables[branchColumns.name] != nil && s.Branch(b.Sensor) == nil {
+		ids := make([]string, len(s.Branches))
+		for i, br := range s.Branches {
+			ids[i] = br.ID
+		}
+		p.add(at("sensor").problem(SeverityError, ErrReference, "no branch has this id", refWant("pump or a branch id", b.Sensor, ids)))
+	}
+	if s.Header == NoHeaderLoss {
+		for i, br := range s.Branches {
+			if br.SupplyLength+br.ReturnLength > 0 {
+				p.add(brRefs[i].supply.problem(SeverityWarning, ErrRange, "header lengths ignored: the site's header is none",
+					"header direct-return or reverse-return in the site sheet"))
+				break
+			}
+		}
+	}
+}

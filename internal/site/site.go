@@ -1,0 +1,281 @@
+// Package site reads a site survey — the design schedule of a water circuit
+// with parallel branches, its valves, its pump and the readings taken on the
+// visit — into a Site held in SI units, and reports every problem in the
+// sheets with the file, line, column and field a technician has to fix.
+//
+// A site is either a folder of CSV files (site.csv, branches.csv, valves.csv,
+// pump.csv, readings.csv, targets.csv) or one .xlsx workbook with one tab per
+// sheet of the same name. Only branches and readings are required. The
+// layout of each sheet is given by Topics, which is also the text of
+// `flowset help`.
+//
+// The package checks structure only: names, units, ranges, references
+// between sheets and the shape of valve tables. It does no hydraulics.
+package site
+
+import (
+	"fmt"
+	"strings"
+)
+
+// Site is one surveyed circuit, in SI units. Fields documented as NaN hold NaN
+// when the sheets do not give a value and no default applies.
+type Site struct {
+	Name          string
+	Fluid         string  // "water", "ethylene-glycol" or "propylene-glycol"
+	GlycolPercent float64 // glycol concentration, percent by volume; 0 for water
+	Temperature   float64 // K, the circulating fluid during the survey
+
+	Header   Arrangement
+	Boundary Boundary
+
+	Hours       float64 // running hours per year
+	EnergyPrice float64 // price per kWh in Currency; NaN when not given
+	Currency    string
+
+	PumpEfficiency  float64 // fraction
+	MotorEfficiency float64 // fraction
+
+	// ToleranceLow and ToleranceHigh bound an acceptable flow as fractions of
+	// design (-0.10 and +0.10 by default).
+	ToleranceLow, ToleranceHigh float64
+
+	Branches []Branch
+	Valves   []ValveModel
+	Pump     []PumpPoint
+	Readings []Reading
+	// Targets overrides the design flow of some branches as the flow to
+	// balance to, m3/s, keyed by branch ID; nil when targets.csv is absent.
+	Targets map[string]float64
+
+	Source Source
+}
+
+// Source tells where a Site was read from.
+type Source struct {
+	Path   string // folder or workbook as given
+	Format string // "csv" or "xlsx"
+}
+
+// Arrangement is how the main supply and return headers are laid out.
+type Arrangement int
+
+// The header arrangements.
+const (
+	NoHeaderLoss  Arrangement = iota // header losses neglected
+	DirectReturn                     // first branch on supply is first on return
+	ReverseReturn                    // first branch on supply is last on return
+)
+
+var arrangementWords = []string{NoHeaderLoss: "none", DirectReturn: "direct-return", ReverseReturn: "reverse-return"}
+
+func (a Arrangement) String() string { return word(arrangementWords, int(a), "arrangement") }
+
+// BoundaryKind is what holds the circuit's differential pressure.
+type BoundaryKind int
+
+// The boundary kinds.
+const (
+	PumpCurve    BoundaryKind = iota // the pump's head curve at Speed
+	ConstantDiff                     // a controller holds SetPoint at Sensor
+	MeasuredDiff                     // the differentials read in each state
+)
+
+var boundaryWords = []string{PumpCurve: "pump", ConstantDiff: "constant-differential", MeasuredDiff: "measured-differential"}
+
+func (k BoundaryKind) String() string { return word(boundaryWords, int(k), "boundary") }
+
+// Boundary is the pressure boundary condition of the circuit.
+type Boundary struct {
+	Kind     BoundaryKind
+	Speed    float64 // pump speed as a ratio to nominal, default 1
+	MaxSpeed float64 // highest speed ratio the drive allows, default 1
+	SetPoint float64 // Pa, for ConstantDiff; NaN when not given
+	Sensor   string  // "pump" or the ID of the branch where the sensor sits
+}
+
+// Branch is one parallel branch (a terminal circuit or a riser) with its
+// pipe, terminal, regulating valve and the header segment that feeds it.
+type Branch struct {
+	ID     string
+	Parent string // "" on the main headers, else the ID of the riser it hangs from
+
+	DesignFlow float64 // m3/s
+
+	PipeStandard string
+	PipeSize     string
+	PipeBore     float64 // m; NaN = from the catalogue by standard and size
+	PipeLength   float64 // m, flow and return together
+	Roughness    float64 // m; NaN = by material of the standard
+	FittingsK    float64 // sum of loss coefficients
+
+	TerminalDrop float64 // Pa at TerminalFlow
+	TerminalFlow float64 // m3/s; NaN = at design flow
+
+	Valve      string  // model name from the valves sheet, "" for none
+	Setting    float64 // as-found setting in the valve's units; NaN if not recorded
+	ControlKvs float64 // m3/h at 1 bar of a control valve in series; 0 = none
+
+	// The header segment between the previous take-off and this one.
+	SupplyLength   float64 // m
+	ReturnLength   float64 // m
+	HeaderStandard string
+	HeaderSize     string
+	HeaderBore     float64 // m; NaN = from the catalogue
+	HeaderK        float64
+
+	Note string
+	Pos  Pos
+}
+
+// ValveModel is a regulating valve: either a table of Kv against setting,
+// or a generic characteristic with Kvs and rangeability.
+type ValveModel struct {
+	Name string
+	Unit string // unit of the settings: "turns", "%" or "steps"
+
+	Settings []float64 // increasing
+	Kv       []float64 // m3/h at 1 bar, one per setting
+
+	Step float64 // smallest setting change the handwheel allows
+
+	Characteristic string  // "" for a table; "linear", "equal-percentage" or "quick-opening"
+	Kvs            float64 // m3/h at 1 bar fully open, for a characteristic
+	Rangeability   float64 // Kvs over the smallest controllable Kv
+
+	MinDiff float64 // Pa, smallest differential that reads reliably
+	Pos     Pos
+}
+
+// Table reports whether v is defined by a Kv table.
+func (v *ValveModel) Table() bool { return v.Characteristic == "" }
+
+// Range returns the lowest and highest setting of the valve.
+func (v *ValveModel) Range() (lo, hi float64) {
+	if v.Table() {
+		if len(v.Settings) == 0 {
+			return 0, 0
+		}
+		return v.Settings[0], v.Settings[len(v.Settings)-1]
+	}
+	return 0, 100
+}
+
+// PumpPoint is one point of the pump's head curve at nominal speed.
+type PumpPoint struct {
+	Flow float64 // m3/s
+	Head float64 // m of the pumped fluid
+	Pos  Pos
+}
+
+// Quantity is what a reading measures.
+type Quantity int
+
+// The quantities a reading can measure. The zero Quantity is not valid.
+const (
+	Flow       Quantity = iota + 1 // flow through a branch
+	ValveDiff                      // differential across the branch's regulating valve
+	BranchDiff                     // differential across the whole branch
+	HeaderDiff                     // differential between supply and return headers
+	PumpDiff                       // differential across the pump
+	TotalFlow                      // flow through the pump
+)
+
+var quantityWords = []string{Flow: "flow", ValveDiff: "valve diff", BranchDiff: "branch diff",
+	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow"}
+
+func (q Quantity) String() string { return word(quantityWords, int(q), "quantity") }
+
+// IsFlow reports whether q is a flow (SI m3/s); otherwise it is a pressure
+// difference (Pa).
+func (q Quantity) IsFlow() bool { return q == Flow || q == TotalFlow }
+
+// Reading is one measurement taken on the survey.
+type Reading struct {
+	State string // survey state label, e.g. "as-found", "after-change"
+	Where string // branch ID, "pump" or "header"
+	What  Quantity
+	Value float64 // SI: m3/s or Pa
+	// Setting is the valve setting at the time; NaN when not given, then
+	// the branch's as-found setting applies.
+	Setting    float64
+	Instrument string  // instrument kind, see Instruments
+	Sigma      float64 // standard uncertainty, SI
+	Time, Note string
+	Pos        Pos
+}
+
+// Pos is where a row was read from.
+type Pos struct {
+	File string
+	Line int
+}
+
+func (p Pos) String() string {
+	if p.Line == 0 {
+		return p.File
+	}
+	return fmt.Sprintf("%s:%d", p.File, p.Line)
+}
+
+// The places a reading can name besides a branch.
+const (
+	AtPump   = "pump"
+	AtHeader = "header"
+)
+
+// Fluids lists the accepted fluid names.
+var fluids = []string{"water", "ethylene-glycol", "propylene-glycol"}
+
+// Characteristics lists the accepted generic valve characteristics.
+var characteristics = []string{"linear", "equal-percentage", "quick-opening"}
+
+// settingUnits lists the accepted valve setting units.
+var settingUnits = []string{"turns", "%", "steps"}
+
+func word(words []string, i int, what string) string {
+	if i >= 0 && i < len(words) && words[i] != "" {
+		return words[i]
+	}
+	return fmt.Sprintf("%s(%d)", what, i)
+}
+
+// normWord folds a keyword for comparison: lower case, spaces, hyphens and
+// underscores all alike.
+func normWord(s string) string {
+	s = strings.ToLower(strings.TrimSpace(s))
+	s = strings.NewReplacer("_", " ", "-", " ").Replace(s)
+	return strings.Join(strings.Fields(s), " ")
+}
+
+// Branch returns the branch with the given ID, or nil.
+func (s *Site) Branch(id string) *Branch {
+	for i := range s.Branches {
+		if s.Branches[i].ID == id {
+			return &s.Branches[i]
+		}
+	}
+	return nil
+}
+
+// Valve returns the valve model with the given name, or nil.
+func (s *Site) Valve(name string) *ValveModel {
+	for i := range s.Valves {
+		if s.Valves[i].Name == name {
+			return &s.Valves[i]
+		}
+	}
+	return nil
+}
+
+// Target returns the flow to balance branch id to: its target when one is
+// given, else its design flow. It returns NaN for an unknown branch.
+func (s *Site) Target(id string) float64 {
+	if q, ok := s.Targets[id]; ok {
+		return q
+	}
+	if b := s.Branch(id); b != nil {
+		return b.DesignFlow
+	}
+	return nan
+}

@@ -1,0 +1,174 @@
+package site
+
+import (
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	"github.com/xuri/excelize/v2"
+)
+
+// ReadWorkbook reads a site from an .xlsx workbook of size bytes, with one
+// tab per sheet named as the CSV files are without ".csv" (site, branches,
+// valves, pump, readings, targets; any case). name is used in messages,
+// which read "name[tab]:row:column: ...". Results are as for ReadDir.
+func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Problems, err error) {
+	defer func() {
+		// The workbook library is not hardened against every malformed
+		// file; a panic there must not cross this package's boundary.
+		if v := recover(); v != nil {
+			probs = Problems{{File: name, Err: ErrSyntax, Msg: fmt.Sprintf("workbook cannot be read: %v", v), Want: "a workbook saved as .xlsx"}}
+			s, err = nil, probs.Err()
+		}
+	}()
+	f, ferr := excelize.OpenReader(io.NewSectionReader(r, 0, size))
+	if ferr != nil {
+		probs = Problems{{File: name, Err: ErrSyntax, Msg: "not a readable .xlsx workbook", Want: "a workbook saved as .xlsx", Cause: ferr}}
+		return nil, probs, probs.Err()
+	}
+	defer f.Close()
+	base := name
+	if i := strings.LastIndexAny(base, `/\`); i >= 0 {
+		base = base[i+1:]
+	}
+	base = strings.TrimSuffix(base, ".xlsx")
+	in := input{tables: map[string]*table{}, present: map[string]bool{}, src: Source{Path: name, Format: "xlsx"}, name: base,
+		label: func(sheet string) string { return name + "[" + sheet + "]" }}
+	tabs := map[string]string{}
+	for _, tab := range f.GetSheetList() {
+		tabs[strings.ToLower(strings.TrimSpace(tab))] = tab
+	}
+	var known []string
+	for _, sc := range sheets {
+		known = append(known, sc.name)
+		tab, ok := tabs[sc.name]
+		if !ok {
+			continue
+		}
+		delete(tabs, sc.name)
+		t, p, terr := readTab(f, tab, name+"["+tab+"]")
+		if terr != nil {
+			return nil, nil, fmt.Errorf("read workbook %s: %w", name, terr)
+		}
+		in.probs = append(in.probs, p...)
+		in.present[sc.name] = true
+		in.tables[sc.name] = t
+	}
+	for _, lower := range sortedKeys(tabs) {
+		tab := tabs[lower]
+		want := "one of: " + strings.Join(known, ", ")
+		if sg := suggest(tab, known); sg != "" {
+			want = fmt.Sprintf("%q", sg)
+		}
+		in.probs.add(&Error{File: name + "[" + tab + "]", Severity: SeverityWarning, Err: ErrUnknown, Msg: "unknown sheet, ignored", Want: want})
+	}
+	return in.finish()
+}
+
+// readTab reads one tab into a table. A cell's shown text is used for text
+// and its stored value for numbers, so number formats cannot round a
+// value; a percentage-formatted cell keeps its percent.
+func readTab(f *excelize.File, tab, file string) (*table, Problems, error) {
+	shown, err := f.GetRows(tab)
+	if err != nil {
+		return nil, nil, err
+	}
+	raw, err := f.GetRows(tab, excelize.Options{RawCellValue: true})
+	if err != nil {
+		return nil, nil, err
+	}
+	t := &table{file: file}
+	for i, cells := range shown {
+		rc := make([]string, len(cells))
+		for j := range cells {
+			cells[j] = strings.TrimSpace(cells[j])
+			rc[j] = cells[j]
+			if i < len(raw) && j < len(raw[i]) {
+				rc[j] = strings.TrimSpace(raw[i][j])
+			}
+			if strings.HasSuffix(cells[j], "%") && rc[j] != cells[j] {
+				if v, err := strconv.ParseFloat(rc[j], 64); err == nil && !math.IsInf(v, 0) && !math.IsNaN(v) {
+					rc[j] = strconv.FormatFloat(v*100, 'g', 12, 64) + " %"
+				}
+			}
+		}
+		if isComment(cells) || isBlank(cells) {
+			continue
+		}
+		if t.header == nil {
+			t.header, t.headerLine = cells, i+1
+			continue
+		}
+		t.rows = append(t.rows, row{line: i + 1, cells: cells, raw: rc})
+	}
+	if t.header == nil {
+		return nil, Problems{{File: file, Err: ErrMissing, Msg: "sheet is empty", Want: "a header row naming the columns"}}, nil
+	}
+	return t, nil, nil
+}
+
+// WriteWorkbook writes s as an .xlsx workbook with one tab per sheet.
+func WriteWorkbook(s *Site, w io.Writer) error {
+	if s == nil {
+		return errNoSite
+	}
+	return writeWorkbook(render(s), w)
+}
+
+// WriteTemplateWorkbook writes a blank site workbook: every tab with its
+// header row and a comment row explaining each column.
+func WriteTemplateWorkbook(w io.Writer) error {
+	return writeWorkbook(template(), w)
+}
+
+func writeWorkbook(sheets []outSheet, w io.Writer) error {
+	f := excelize.NewFile()
+	defer f.Close()
+	first := f.GetSheetName(0)
+	for i, o := range sheets {
+		if i == 0 {
+			if err := f.SetSheetName(first, o.name); err != nil {
+				return fmt.Errorf("write workbook: %w", err)
+			}
+		} else if _, err := f.NewSheet(o.name); err != nil {
+			return fmt.Errorf("write workbook: %w", err)
+		}
+		rows := [][]any{}
+		hdr := make([]any, len(o.header))
+		for j, h := range o.header {
+			hdr[j] = h
+		}
+		rows = append(rows, hdr)
+		if o.help != nil {
+			h := make([]any, len(o.help))
+			for j, x := range o.help {
+				h[j] = x
+			}
+			rows = append(rows, h)
+		}
+		rows = append(rows, o.rows...)
+		for ri, r := range rows {
+			for ci, v := range r {
+				if v == nil {
+					continue
+				}
+				if x, ok := v.(float64); ok && math.IsNaN(x) {
+					continue
+				}
+				cell, err := excelize.CoordinatesToCellName(ci+1, ri+1)
+				if err != nil {
+					return fmt.Errorf("write workbook: %w", err)
+				}
+				if err := f.SetCellValue(o.name, cell, v); err != nil {
+					return fmt.Errorf("write workbook %s %s: %w", o.name, cell, err)
+				}
+			}
+		}
+	}
+	if err := f.Write(w); err != nil {
+		return fmt.Errorf("write workbook: %w", err)
+	}
+	return nil
+}

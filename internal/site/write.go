@@ -1,0 +1,301 @@
+package site
+
+import (
+	"bufio"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+
+	"flowset/internal/units"
+)
+
+// outSheet is one sheet ready to write: cells are strings, float64 (NaN
+// for blank) or nil.
+type outSheet struct {
+	name   string
+	header []string
+	help   []string
+	rows   [][]any
+}
+
+// headerName is a column's name as written, with its default unit.
+func headerName(c *column) string {
+	if c.typ == numCol && c.kind != 0 && c.unit != "" {
+		return c.name + " [" + c.unit + "]"
+	}
+	return c.name
+}
+
+// inUnit converts an SI value to the column's default unit.
+func inUnit(c *column, si float64) any {
+	if math.IsNaN(si) {
+		return nil
+	}
+	if c.kind == 0 {
+		return si
+	}
+	u, err := units.Lookup(c.kind, c.unit)
+	if err != nil {
+		return si // unreachable: the schema's units are in the table
+	}
+	return u.FromSI(si)
+}
+
+func columnSheet(sc *schema) outSheet {
+	o := outSheet{name: sc.name}
+	for i := range sc.columns {
+		c := &sc.columns[i]
+		o.header = append(o.header, headerName(c))
+		o.help = append(o.help, c.help)
+	}
+	if len(o.help) > 0 {
+		o.help[0] = "# " + o.help[0]
+	}
+	return o
+}
+
+// template returns the blank sheets: headers and a help row.
+func template() []outSheet {
+	var out []outSheet
+	for _, sc := range sheets {
+		if sc == &siteKeys {
+			o := outSheet{name: sc.name, header: []string{"key", "value", "note"},
+				help: []string{"# a blank value takes the default named in the note"}}
+			for i := range sc.columns {
+				o.rows = append(o.rows, []any{headerName(&sc.columns[i]), nil, sc.columns[i].help})
+			}
+			out = append(out, o)
+			continue
+		}
+		out = append(out, columnSheet(sc))
+	}
+	return out
+}
+
+// render returns the sheets that describe s.
+func render(s *Site) []outSheet {
+	site := outSheet{name: siteKeys.name, header: []string{"key", "value"}}
+	key := func(name string, v any) {
+		c := siteKeys.column(name)
+		if f, ok := v.(float64); ok {
+			v = inUnit(c, f)
+		}
+		site.rows = append(site.rows, []any{headerName(c), v})
+	}
+	key("name", s.Name)
+	key("fluid", s.Fluid)
+	key("glycol", s.GlycolPercent/100)
+	key("temperature", s.Temperature)
+	key("header", s.Header.String())
+	key("boundary", s.Boundary.Kind.String())
+	key("speed", s.Boundary.Speed)
+	key("max speed", s.Boundary.MaxSpeed)
+	key("set point", s.Boundary.SetPoint)
+	key("sensor", s.Boundary.Sensor)
+	key("hours", s.Hours)
+	key("energy price", s.EnergyPrice)
+	key("currency", s.Currency)
+	key("pump efficiency", s.PumpEfficiency)
+	key("motor efficiency", s.MotorEfficiency)
+	key("tolerance low", s.ToleranceLow)
+	key("tolerance high", s.ToleranceHigh)
+
+	br := columnSheet(&branchColumns)
+	br.help = nil
+	for _, b := range s.Branches {
+		br.rows = append(br.rows, cellsOf(&branchColumns, map[string]any{
+			"id": b.ID, "parent": b.Parent, "design flow": b.DesignFlow,
+			"pipe standard": b.PipeStandard, "pipe size": b.PipeSize, "pipe bore": b.PipeBore, "pipe length": b.PipeLength,
+			"roughness": b.Roughness, "fittings k": b.FittingsK, "terminal drop": b.TerminalDrop, "terminal flow": b.TerminalFlow,
+			"valve": b.Valve, "setting": b.Setting, "control kvs": b.ControlKvs,
+			"supply length": b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
+			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK, "note": b.Note,
+		}))
+	}
+
+	va := columnSheet(&valveColumns)
+	va.help = nil
+	for _, v := range s.Valves {
+		common := map[string]any{"model": v.Name, "setting unit": v.Unit, "step": v.Step, "min diff": v.MinDiff,
+			"characteristic": v.Characteristic, "kvs": v.Kvs, "rangeability": v.Rangeability}
+		if !v.Table() {
+			va.rows = append(va.rows, cellsOf(&valveColumns, common))
+			continue
+		}
+		for i := range v.Settings {
+			m := map[string]any{"setting": v.Settings[i], "kv": v.Kv[i]}
+			for k, x := range common {
+				m[k] = x
+			}
+			va.rows = append(va.rows, cellsOf(&valveColumns, m))
+		}
+	}
+
+	pu := columnSheet(&pumpColumns)
+	pu.help = nil
+	for _, pt := range s.Pump {
+		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"flow": pt.Flow, "head": pt.Head}))
+	}
+
+	rd := columnSheet(&readingColumns)
+	rd.help = nil
+	for _, r := range s.Readings {
+		u := displayUnit(r.What)
+		rd.rows = append(rd.rows, cellsOf(&readingColumns, map[string]any{
+			"state": r.State, "where": r.Where, "quantity": r.What.String(), "value": u.FromSI(r.Value), "unit": u.Symbol,
+			"setting": r.Setting, "instrument": r.Instrument, "uncertainty": fmtFloat(u.FromSI(r.Sigma * defaultCoverage)),
+			"k": defaultCoverage, "time": r.Time, "note": r.Note,
+		}))
+	}
+	out := []outSheet{site, br, va, pu, rd}
+	if s.Targets != nil {
+		tg := columnSheet(&targetColumns)
+		tg.help = nil
+		ids := sortedKeys(s.Targets)
+		slices.SortStableFunc(ids, func(a, b string) int { return branchIndex(s, a) - branchIndex(s, b) })
+		for _, id := range ids {
+			tg.rows = append(tg.rows, cellsOf(&targetColumns, map[string]any{"branch": id, "target flow": s.Targets[id]}))
+		}
+		out = append(out, tg)
+	}
+	if len(s.Valves) == 0 {
+		out = slices.DeleteFunc(out, func(o outSheet) bool { return o.name == valveColumns.name })
+	}
+	if len(s.Pump) == 0 {
+		out = slices.DeleteFunc(out, func(o outSheet) bool { return o.name == pumpColumns.name })
+	}
+	return out
+}
+
+func branchIndex(s *Site, id string) int {
+	for i := range s.Branches {
+		if s.Branches[i].ID == id {
+			return i
+		}
+	}
+	return len(s.Branches)
+}
+
+// cellsOf lays values out in the schema's column order, converting SI
+// numbers to each column's unit.
+func cellsOf(sc *schema, vals map[string]any) []any {
+	row := make([]any, len(sc.columns))
+	for i := range sc.columns {
+		c := &sc.columns[i]
+		v, ok := vals[c.name]
+		if !ok {
+			continue
+		}
+		if f, isNum := v.(float64); isNum && c.typ == numCol && !(sc == &readingColumns && c.name == "value") {
+			v = inUnit(c, f)
+		}
+		row[i] = v
+	}
+	return row
+}
+
+func fmtFloat(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// cellText is the CSV text of one cell.
+func cellText(v any) string {
+	switch x := v.(type) {
+	case nil:
+		return ""
+	case string:
+		return x
+	case float64:
+		if math.IsNaN(x) {
+			return ""
+		}
+		return fmtFloat(x)
+	default:
+		return fmt.Sprint(x)
+	}
+}
+
+// quote returns a CSV cell, quoted where needed so the reader gets the
+// same text back: separators, quotes, line breaks, a leading # or
+// surrounding spaces.
+func quote(s string) string {
+	if s == "" || !strings.ContainsAny(s, ",;\t\"\r\n") && !strings.HasPrefix(s, "#") && strings.TrimSpace(s) == s {
+		return s
+	}
+	return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
+}
+
+func writeCSV(w io.Writer, o outSheet) error {
+	bw := bufio.NewWriter(w)
+	line := func(cells []string) {
+		for i, c := range cells {
+			if i > 0 {
+				bw.WriteByte(',')
+			}
+			bw.WriteString(c)
+		}
+		bw.WriteByte('\n')
+	}
+	q := make([]string, len(o.header))
+	for i, h := range o.header {
+		q[i] = quote(h)
+	}
+	line(q)
+	if o.help != nil {
+		// A comment line: the reader skips every line whose first
+		// character is #, so only the text after it needs no quoting.
+		h := make([]string, len(o.help))
+		for i, x := range o.help {
+			h[i] = quote(x)
+			if i == 0 {
+				h[i] = x
+			}
+		}
+		line(h)
+	}
+	for _, r := range o.rows {
+		cells := make([]string, len(r))
+		for i, v := range r {
+			cells[i] = quote(cellText(v))
+		}
+		line(cells)
+	}
+	return bw.Flush()
+}
+
+// WriteDir writes s as CSV sheets, one file per sheet, each opened with
+// create(name), for example "branches.csv". Values are written in each
+// column's default unit, named in the header.
+func WriteDir(s *Site, create func(name string) (io.WriteCloser, error)) error {
+	if s == nil {
+		return errNoSite
+	}
+	return writeSheets(render(s), create)
+}
+
+// WriteTemplateCSV writes a blank site: every sheet with its header line
+// and a comment line explaining each column.
+func WriteTemplateCSV(create func(name string) (io.WriteCloser, error)) error {
+	return writeSheets(template(), create)
+}
+
+func writeSheets(sheets []outSheet, create func(name string) (io.WriteCloser, error)) error {
+	for _, o := range sheets {
+		w, err := create(o.name + ".csv")
+		if err != nil {
+			return fmt.Errorf("write %s.csv: %w", o.name, err)
+		}
+		err = writeCSV(w, o)
+		if cerr := w.Close(); err == nil {
+			err = cerr
+		}
+		if err != nil {
+			return fmt.Errorf("write %s.csv: %w", o.name, err)
+		}
+	}
+	return nil
+}
+
+var errNoSite = errors.New("no site to write")
