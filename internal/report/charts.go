@@ -123,6 +123,36 @@ func errBar(name string, x, y, xlo, xhi, ylo, yhi float64) opts.CustomData {
 	return opts.CustomData{Name: name, Value: []float64{sig(x), sig(y), sig(xlo), sig(xhi), sig(ylo), sig(yhi)}}
 }
 
+// Legend icons drawn as filled paths, for the custom series whose default
+// legend icon would be a plain block of colour.
+const (
+	iconErrBar = "path://M5,0h2v16h-2z M1,0h10v2h-10z M1,14h10v2h-10z"
+	iconSpan   = "path://M4.5,0h3v16h-3z"
+)
+
+// entry is one legend item: a series name and how its icon is drawn.
+type entry struct {
+	name string
+	icon string // a legend icon; "" for the series' own
+	line bool   // a line series: hide the symbol echarts draws on its icon
+}
+
+// legend lists the series in order with their icons.
+func legend(es ...entry) charts.GlobalOpts {
+	data := make([]map[string]any, len(es))
+	for i, e := range es {
+		data[i] = map[string]any{"name": e.name}
+		if e.icon != "" {
+			data[i]["icon"] = e.icon
+		}
+		if e.line {
+			// echarts draws a circle on a line's icon even with no symbol.
+			data[i]["itemStyle"] = map[string]any{"opacity": 0}
+		}
+	}
+	return charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4", Data: data})
+}
+
 // missing is echarts' marker for an empty value in a one-dimensional series.
 const missing = "-"
 
@@ -183,11 +213,11 @@ func branchChart(id string, b *Branch, in *Input) chart {
 		append(custom(renderBand, opts.Encode{X: 0, Y: 1}), seriesColor(colSky))...)
 	l.Overlap(band)
 	l.AddSeries("design", lineData(b.DesignCurve),
-		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineChartOpts(opts.LineChart{Symbol: "none", ShowSymbol: opts.Bool(false)}),
 		charts.WithLineStyleOpts(opts.LineStyle{Color: colBlack, Width: 1.5, Type: "dashed"}),
 		seriesColor(colBlack))
 	l.AddSeries("fitted", lineData(b.FitCurve),
-		charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+		charts.WithLineChartOpts(opts.LineChart{Symbol: "none", ShowSymbol: opts.Bool(false)}),
 		charts.WithLineStyleOpts(opts.LineStyle{Color: colBlue, Width: 2}),
 		seriesColor(colBlue))
 	bars := charts.NewCustom()
@@ -212,8 +242,8 @@ func branchChart(id string, b *Branch, in *Input) chart {
 	bars.AddSeries("reading uncertainty", barData,
 		append(custom(renderErrBar, opts.Encode{X: []int{0, 2, 3}, Y: []int{1, 4, 5}}), seriesColor(colVermillion))...)
 	pts.AddSeries("reading", ptData,
-		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "circle", SymbolSize: 7}),
-		seriesColor(colVermillion))
+		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "circle", SymbolSize: 8}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: colVermillion, BorderColor: "#ffffff", BorderWidth: 1}))
 	l.Overlap(bars, pts)
 	return finish(l, id, "", smallW, smallH)
 }
@@ -250,14 +280,18 @@ func pickBranches(bs []Branch) []int {
 func combinedChart(id string, in *Input) chart {
 	c := &in.Combined
 	l := base(id, wideW, wideH,
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		legend(
+			entry{name: "system as found", line: true}, entry{name: "system after plan", line: true},
+			entry{name: "pump as found", line: true}, entry{name: "pump after plan", line: true},
+			entry{name: "operating point as found"}, entry{name: "operating point after plan"},
+		),
 		charts.WithGridOpts(opts.Grid{Left: "64", Right: "28", Top: "56", Bottom: "48"}),
 		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: Clean("total flow, " + in.FlowUnit), NameLocation: "middle", NameGap: 28}),
 		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean("Δp, " + in.PressureUnit), NameLocation: "middle", NameGap: 44}),
 	)
 	curve := func(name string, d []XY, col, typ string, w float32) {
 		l.AddSeries(name, lineData(d),
-			charts.WithLineChartOpts(opts.LineChart{ShowSymbol: opts.Bool(false)}),
+			charts.WithLineChartOpts(opts.LineChart{Symbol: "none", ShowSymbol: opts.Bool(false)}),
 			charts.WithLineStyleOpts(opts.LineStyle{Color: col, Width: w, Type: typ}),
 			seriesColor(col))
 	}
@@ -285,14 +319,17 @@ func combinedChart(id string, in *Input) chart {
 // categoryAxis sets up a branch-per-category x axis that stays readable
 // from 1 to thousands of branches.
 func categoryAxis(l *charts.Line, labels []string) {
-	rotate := 0.0
+	// Unrotated labels share the plot width; rotated ones get a fixed length.
+	rotate, width := 0.0, 120
 	if len(labels) > 10 {
 		rotate = 45
+	} else if len(labels) > 0 {
+		width = (wideW-92)/len(labels) - 8
 	}
 	l.SetXAxis(labels)
 	l.SetGlobalOptions(charts.WithXAxisOpts(opts.XAxis{
 		Type:      "category",
-		AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: rotate, Width: 90, Overflow: "truncate", HideOverlap: opts.Bool(true)},
+		AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: rotate, Width: width, Overflow: "truncate", HideOverlap: opts.Bool(true)},
 	}))
 	if len(labels) > maxWindow {
 		end := float32(100 * float64(maxWindow) / float64(len(labels)))
@@ -335,12 +372,11 @@ func flowChart(id string, in *Input) chart {
 	}
 	lo, hi := 100+in.ToleranceLow, 100+in.ToleranceHigh
 	l := base(id, wideW, wideH,
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		legend(entry{name: "as found"}, entry{name: "after plan"}, entry{name: "after plan, 95 % interval", icon: iconErrBar}),
 		categoryGrid(n),
 		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: "flow, % of design", NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
 	)
 	categoryAxis(l, labels)
-	band := fmt.Sprintf("tolerance %s to %s %%", strconv.FormatFloat(sig(lo), 'f', -1, 64), strconv.FormatFloat(sig(hi), 'f', -1, 64))
 	sc := charts.NewScatter()
 	sc.AddSeries("as found", before,
 		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
@@ -350,10 +386,10 @@ func flowChart(id string, in *Input) chart {
 				return
 			}
 			s.MarkAreas = &opts.MarkAreas{
-				Data: []any{[]map[string]any{{"name": band, "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
+				Data: []any{[]map[string]any{{"name": "tolerance", "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
 				MarkAreaStyle: opts.MarkAreaStyle{
 					ItemStyle: &opts.ItemStyle{Color: "rgba(0,158,115,0.13)"},
-					Label:     &opts.Label{Show: opts.Bool(true), Position: "insideTopRight", Color: colGreen},
+					Label:     &opts.Label{Show: opts.Bool(false)},
 				},
 			}
 			s.MarkLines = &opts.MarkLines{
@@ -400,7 +436,7 @@ func ratioChart(id string, in *Input) chart {
 		}
 	}
 	l := base(id, wideW, wideH,
-		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+		legend(entry{name: "fitted"}, entry{name: "fitted, flagged"}, entry{name: "95 % interval", icon: iconErrBar}),
 		categoryGrid(n),
 		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: "fitted ÷ design resistance", NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
 	)
@@ -470,9 +506,9 @@ func valveCharts(idPrefix string, in *Input) []chart {
 		}
 		id := fmt.Sprintf("%s-%d", idPrefix, k+1)
 		l := base(id, wideW, wideH,
-			charts.WithLegendOpts(opts.Legend{Show: opts.Bool(true), Top: "4"}),
+			legend(entry{name: "now"}, entry{name: "planned"}, entry{name: "change", icon: iconSpan}),
 			categoryGrid(len(idx)),
-			charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean(name), NameLocation: "middle", NameGap: 44, Scale: opts.Bool(true)}),
+			charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean(name), NameLocation: "middle", NameGap: 44}),
 		)
 		categoryAxis(l, labels)
 		cu := charts.NewCustom()

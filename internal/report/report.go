@@ -56,7 +56,7 @@ type summaryRow struct {
 	Label, Before, After string
 }
 
-type page struct {
+type pageData struct {
 	In       *Input
 	Cautions []string
 	HowTo    []string
@@ -102,8 +102,8 @@ func Write(w io.Writer, in Input) error {
 	return nil
 }
 
-func build(in *Input) (*page, error) {
-	p := &page{
+func build(in *Input) (*pageData, error) {
+	p := &pageData{
 		In:       in,
 		Cautions: in.Cautions,
 		ECharts:  template.JS(echartsJS),
@@ -166,7 +166,7 @@ func build(in *Input) (*page, error) {
 		}
 		f := section{
 			ID: "flow", Title: "Flow in percent of design",
-			Intro:  "Each branch’s flow as found and as predicted after the plan, with the 95 % interval of the prediction; the shaded band is the tolerance.",
+			Intro:  "Each branch’s flow as found and as predicted after the plan, with the 95 % interval of the prediction. The shaded band is the tolerance, " + tol + " of design; the dotted line is design.",
 			Charts: []chart{flowChart("fs-flow", in)},
 		}
 		zoom(&f)

@@ -1,0 +1,410 @@
+package report
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"reflect"
+	"regexp"
+	"strings"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden files in testdata")
+
+// hostile are strings that break out of, or inject into, HTML, a script
+// block, JSON, go-echarts' raw-JS marker or echarts' HTML tooltips.
+var hostile = []string{
+	"</script><script>alert(1)</script>",
+	"<!--<script>",
+	"__f__alert(1)__f__",
+	`"__f__function(){alert(2)}__f__"`,
+	"<img src=x onerror=alert(3)>",
+	`" onmouseover="alert(4)`,
+	`' onfocus='alert(5)`,
+	`\"); alert(6); ("\\`,
+	"]]><svg onload=alert(7)>",
+	"line\u2028sep\u2029para",
+	"{b}{c}{a|rich}",
+	"javascript:alert(8)",
+	"<a href=\"https://example.invalid/x\">link</a>",
+	"<style>@import url(https://example.invalid/x.css)</style>",
+}
+
+// hostileText joins every hostile string, so that each field gets them all.
+var hostileText = strings.Join(hostile, " ")
+
+// hostileInput is sampleInput with every string in it, at any depth,
+// replaced by hostileText with a distinct number in front.
+func hostileInput() Input {
+	in := sampleInput()
+	in.Cautions = []string{"caution"}
+	n := 0
+	var walk func(v reflect.Value)
+	walk = func(v reflect.Value) {
+		switch v.Kind() {
+		case reflect.String:
+			n++
+			v.SetString(fmt.Sprintf("%d %s", n, hostileText))
+		case reflect.Struct:
+			for i := range v.NumField() {
+				walk(v.Field(i))
+			}
+		case reflect.Slice:
+			for i := range v.Len() {
+				walk(v.Index(i))
+			}
+		}
+	}
+	walk(reflect.ValueOf(&in).Elem())
+	// Flags make the branch appear in the flagged series too.
+	in.Branches[0].Flags = []string{"0 " + hostileText}
+	return in
+}
+
+func render(t testing.TB, in Input) []byte {
+	t.Helper()
+	var buf bytes.Buffer
+	if err := Write(&buf, in); err != nil {
+		t.Fatalf("Write: %v", err)
+	}
+	return buf.Bytes()
+}
+
+// withoutECharts replaces the inlined library, which is not ours to pin.
+func withoutECharts(t testing.TB, out []byte) []byte {
+	t.Helper()
+	if bytes.Count(out, []byte(echartsJS)) != 1 {
+		t.Fatalf("output does not hold the echarts library exactly once")
+	}
+	return bytes.Replace(out, []byte(echartsJS), []byte("/* echarts.min.js "+EChartsVersion+" omitted */"), 1)
+}
+
+func TestWriteGolden(t *testing.T) {
+	got := withoutECharts(t, render(t, sampleInput()))
+	path := filepath.Join("testdata", "report.golden")
+	if *update {
+		if err := os.WriteFile(path, got, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test ./internal/report -update to create it)", err)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("Write(sampleInput) differs from %s (-want +got):\n%s", path, cmp.Diff(string(want), string(got)))
+	}
+}
+
+func TestWriteDeterministic(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		in   func() Input
+	}{
+		{"sample", sampleInput},
+		{"hostile", hostileInput},
+		{"300 branches", func() Input { return bigInput(300) }},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			a, b := render(t, tc.in()), render(t, tc.in())
+			if !bytes.Equal(a, b) {
+				t.Errorf("two Writes of the same Input differ (%d and %d bytes)", len(a), len(b))
+			}
+		})
+	}
+}
+
+var scriptBlock = regexp.MustCompile(`(?is)<script\b([^>]*)>(.*?)</script\s*>`)
+
+// pageParts splits a report into its script blocks and the markup around
+// them, and checks that the scripts are exactly the three the page has.
+func pageParts(t *testing.T, out []byte) (markup string, data []byte) {
+	t.Helper()
+	s := string(out)
+	m := scriptBlock.FindAllStringSubmatch(s, -1)
+	if len(m) != 3 {
+		t.Fatalf("page has %d script blocks, want 3 (echarts, data, drawing code)", len(m))
+	}
+	if !strings.Contains(m[0][2], echartsJS) {
+		t.Errorf("first script block is not the echarts library")
+	}
+	if m[1][1] != ` type="application/json" id="fs-data"` {
+		t.Errorf("second script block has attributes %q, want the JSON data block", m[1][1])
+	}
+	if strings.TrimSpace(m[2][2]) != strings.TrimSpace(reportJS) {
+		t.Errorf("third script block is not the constant drawing code")
+	}
+	if n := strings.Count(strings.ToLower(s), "<script"); n != 3 {
+		t.Errorf("page has %d '<script' openings, want 3", n)
+	}
+	return scriptBlock.ReplaceAllString(s, "<script></script>"), []byte(m[1][2])
+}
+
+// In the markup outside scripts, text has every < escaped, so these find
+// the real tags and what is inside them.
+var (
+	tag        = regexp.MustCompile(`<([A-Za-z][A-Za-z0-9-]*)([^>]*)>`)
+	eventAttr  = regexp.MustCompile(`(?i)\son[a-z]+\s*=`)
+	urlAttr    = regexp.MustCompile(`(?i)\b(src|href|action|formaction|poster|srcset|background|xlink:href)\s*=\s*["']?([^"'\s>]*)`)
+	styleBlock = regexp.MustCompile(`(?is)<style>(.*?)</style>`)
+)
+
+// allowedTags are the elements the page template writes.
+var allowedTags = map[string]bool{
+	"html": true, "head": true, "meta": true, "title": true, "style": true, "script": true,
+	"body": true, "main": true, "header": true, "footer": true, "section": true,
+	"h1": true, "h2": true, "h3": true, "p": true, "dl": true, "dt": true, "dd": true,
+	"ul": true, "li": true, "div": true, "span": true, "figure": true, "figcaption": true,
+	"table": true, "thead": true, "tbody": true, "tr": true, "th": true, "td": true,
+	"svg": true, "line": true, "rect": true, "circle": true,
+	"details": true, "summary": true, "pre": true,
+}
+
+// checkPage checks the structure that makes a report safe and offline.
+func checkPage(t *testing.T, out []byte) {
+	t.Helper()
+	markup, data := pageParts(t, out)
+	for _, m := range tag.FindAllStringSubmatch(markup, -1) {
+		if !allowedTags[strings.ToLower(m[1])] {
+			t.Errorf("page markup has a <%s> element", m[1])
+		}
+		if a := eventAttr.FindString(m[2]); a != "" {
+			t.Errorf("page markup has an event handler attribute: %q", m[0])
+		}
+		for _, u := range urlAttr.FindAllStringSubmatch(m[2], -1) {
+			if u[2] != "" && !strings.HasPrefix(u[2], "#") {
+				t.Errorf("page markup refers to %q in %s=", u[2], u[1])
+			}
+		}
+	}
+	styles := styleBlock.FindAllStringSubmatch(markup, -1)
+	if len(styles) != 1 {
+		t.Errorf("page has %d style blocks, want 1", len(styles))
+	}
+	for _, st := range styles {
+		if strings.Contains(st[1], "@import") || strings.Contains(st[1], "url(") {
+			t.Errorf("page style loads something")
+		}
+	}
+	// The data block is JSON that cannot end its script element nor open
+	// markup, and every string in it went through Clean.
+	if bytes.ContainsAny(data, "<>&\u2028\u2029") {
+		t.Errorf("data block holds an unescaped <, >, &, U+2028 or U+2029")
+	}
+	var v any
+	if err := json.Unmarshal(data, &v); err != nil {
+		t.Fatalf("data block is not JSON: %v", err)
+	}
+	var walk func(v any)
+	walk = func(v any) {
+		switch v := v.(type) {
+		case string:
+			checkClean(t, v, v)
+		case []any:
+			for _, e := range v {
+				walk(e)
+			}
+		case map[string]any:
+			for k, e := range v {
+				checkClean(t, k, k)
+				walk(e)
+			}
+		}
+	}
+	walk(v)
+}
+
+func TestWriteSafeAndOffline(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		in   Input
+	}{
+		{"sample", sampleInput()},
+		{"hostile names", hostileInput()},
+		{"1000 branches", bigInput(1000)},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			checkPage(t, render(t, tc.in))
+		})
+	}
+}
+
+func TestHostileTextIsShownEscaped(t *testing.T) {
+	out := string(render(t, hostileInput()))
+	markup := scriptBlock.ReplaceAllString(out, "")
+	// html/template escapes text: the site name appears, harmless.
+	if !strings.Contains(markup, "&lt;/script&gt;&lt;script&gt;alert(1)&lt;/script&gt;") {
+		t.Errorf("escaped hostile text not found in the page markup")
+	}
+	// A chart title got the hostile text through Clean and JSON.
+	if !strings.Contains(out, `\u003c\u200b/script\u003e`) && !strings.Contains(out, "\\u003c\u200b/script\\u003e") {
+		t.Errorf("cleaned hostile text not found in the chart data")
+	}
+}
+
+func TestWriteInvalid(t *testing.T) {
+	tests := []struct {
+		name   string
+		change func(in *Input)
+	}{
+		{"infinite design flow", func(in *Input) { in.Branches[1].Design = math.Inf(1) }},
+		{"infinite curve point", func(in *Input) { in.Branches[0].FitHigh[3].Y = math.Inf(-1) }},
+		{"infinite reading error", func(in *Input) { in.Branches[2].Measured[0].YErr = math.Inf(1) }},
+		{"infinite operating point", func(in *Input) { in.Combined.OpAfter.X = math.Inf(1) }},
+		{"infinite tolerance", func(in *Input) { in.ToleranceHigh = math.Inf(1) }},
+		{"tolerance reversed", func(in *Input) { in.ToleranceLow, in.ToleranceHigh = 10, -10 }},
+		{"ragged plan row", func(in *Input) { in.Plan.Rows[1] = in.Plan.Rows[1][:2] }},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			in := sampleInput()
+			tc.change(&in)
+			var buf bytes.Buffer
+			err := Write(&buf, in)
+			if !errors.Is(err, ErrInvalid) {
+				t.Fatalf("Write: error %v, want one wrapping ErrInvalid", err)
+			}
+			if buf.Len() != 0 {
+				t.Errorf("Write wrote %d bytes with an invalid input", buf.Len())
+			}
+		})
+	}
+}
+
+type failWriter struct{}
+
+var errDiskFull = errors.New("disk full")
+
+func (failWriter) Write([]byte) (int, error) { return 0, errDiskFull }
+
+func TestWriteWriterError(t *testing.T) {
+	if err := Write(failWriter{}, sampleInput()); !errors.Is(err, errDiskFull) {
+		t.Errorf("Write to a failing writer: error %v, want one wrapping %v", err, errDiskFull)
+	}
+}
+
+func TestWriteMissingValues(t *testing.T) {
+	in := sampleInput()
+	nan := math.NaN()
+	in.Branches[0].Before = nan
+	in.Branches[1].RatioFit, in.Branches[1].RatioLow = nan, nan
+	in.Branches[2].AfterHigh = nan
+	in.Branches[3].Design = 0
+	in.Branches[4].Measured[0].XErr = nan
+	in.Branches[4].FitLow[2].Y = nan
+	in.Combined.OpBefore = XY{nan, nan}
+	in.Summary.SpeedRatio = nan
+	out := render(t, in)
+	checkPage(t, out)
+	if !bytes.Contains(out, []byte("<td>Pump speed, after ÷ as found</td><td></td><td>—</td>")) {
+		t.Errorf("a NaN speed ratio is not shown as a dash")
+	}
+}
+
+func TestWriteDefaultCautions(t *testing.T) {
+	in := sampleInput()
+	in.Cautions = nil
+	out := string(render(t, in))
+	for _, want := range []string{"rotating machinery", "competent, authorised people", "Local codes"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("default cautions: %q not in the page", want)
+		}
+	}
+	in.Cautions = []string{"Only our own caution."}
+	out = string(render(t, in))
+	if strings.Contains(out, "rotating machinery") || !strings.Contains(out, "Only our own caution.") {
+		t.Errorf("given cautions do not replace the default set")
+	}
+}
+
+func TestPickBranches(t *testing.T) {
+	// 30 branches: 3 flagged, the others sorted so that a larger index is
+	// further from design; 24 charts leave room for 21 unflagged ones.
+	bs := make([]Branch, 30)
+	for i := range bs {
+		bs[i] = Branch{ID: fmt.Sprint(i), Design: 1, Before: 1 + 0.01*float64(i)}
+	}
+	for _, i := range []int{0, 4, 8} {
+		bs[i].Flags = []string{"flag"}
+	}
+	got := pickBranches(bs)
+	want := []int{0, 4, 8}
+	for i := 9; i < 30; i++ {
+		want = append(want, i)
+	}
+	if diff := cmp.Diff(want, got); diff != "" {
+		t.Errorf("pickBranches (-want +got):\n%s", diff)
+	}
+	if got := pickBranches(bs[:5]); !cmp.Equal(got, []int{0, 1, 2, 3, 4}) {
+		t.Errorf("pickBranches of 5 = %v, want all", got)
+	}
+}
+
+func TestWriteManyBranches(t *testing.T) {
+	out := string(render(t, bigInput(1000)))
+	if n := strings.Count(out, `<div class="chart" id="fs-branch-`); n != maxSmall {
+		t.Errorf("1000 branches: %d branch charts, want %d", n, maxSmall)
+	}
+	for _, want := range []string{"Showing 24 of 1000 branches", "drag the slider", `"dataZoom":[{"type":"slider"`} {
+		if !strings.Contains(out, want) {
+			t.Errorf("1000 branches: %q not in the page", want)
+		}
+	}
+}
+
+// bigInput is an invented circuit of n branches with a fixed seed.
+func bigInput(n int) Input {
+	rng := rand.New(rand.NewPCG(1, 2))
+	in := sampleInput()
+	in.Site = fmt.Sprintf("Invented example campus, %d branches", n)
+	in.Branches = nil
+	in.Plan.Rows, in.Readings.Rows = nil, nil
+	for i := range n {
+		design := 0.1 + 0.4*rng.Float64()
+		ratio := 0.7 + 0.8*rng.Float64()
+		before := design * (0.6 + 0.8*rng.Float64())
+		kd := 20 / (design * design)
+		q := 1.3 * math.Max(design, before)
+		b := Branch{
+			ID: fmt.Sprintf("B%04d", i+1), Design: design, Before: before,
+			After: design * (0.95 + 0.1*rng.Float64()), RatioFit: ratio, RatioLow: 0.85 * ratio, RatioHigh: 1.15 * ratio,
+			SettingNow: "3.0 turns", SettingPlanned: "2.5 turns", NowValue: 3, PlannedValue: 2 + 2*rng.Float64(), ValveUnit: "turns",
+			DesignCurve: quad(kd, q, 9), FitCurve: quad(kd*ratio, q, 9), FitLow: quad(kd*ratio*0.85, q, 9), FitHigh: quad(kd*ratio*1.15, q, 9),
+			Measured: []Point{{X: before, Y: kd * ratio * before * before, XErr: 0.05 * before, YErr: 0.8, Label: "survey 1"}},
+		}
+		b.AfterLow, b.AfterHigh = 0.93*b.After, 1.07*b.After
+		if rng.IntN(20) == 0 {
+			b.Flags = []string{"high resistance"}
+		}
+		in.Branches = append(in.Branches, b)
+		in.Plan.Rows = append(in.Plan.Rows, []string{fmt.Sprint(i + 1), b.ID, b.SettingNow, b.SettingPlanned, fmt.Sprintf("%.2f", b.After)})
+		in.Readings.Rows = append(in.Readings.Rows, []string{b.ID, "survey 1", "1 kPa", "1 kPa", "0 kPa"})
+	}
+	return in
+}
+
+func BenchmarkWrite(b *testing.B) {
+	for _, n := range []int{15, 1000} {
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			in := bigInput(n)
+			var buf bytes.Buffer
+			b.ReportAllocs()
+			for b.Loop() {
+				buf.Reset()
+				if err := Write(&buf, in); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric(float64(buf.Len()), "bytes/report")
+		})
+	}
+}
