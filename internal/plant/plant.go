@@ -11,7 +11,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sort"
 
 	"flowset/internal/fluid"
 	"flowset/internal/hydraulics"
@@ -682,12 +681,5 @@ func (m *Model) StateLabels() []string {
 	for i, s := range m.States {
 		out[i] = s.Label
 	}
-	return out
-}
-
-// sortedIDs is used for deterministic messages.
-func sortedIDs(ids []string) []string {
-	out := append([]string(nil), ids...)
-	sort.Strings(out)
 	return out
 }

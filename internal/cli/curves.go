@@ -1,0 +1,237 @@
+package cli
+
+import (
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"text/tabwriter"
+
+	"github.com/spf13/cobra"
+
+	"flowset/internal/plant"
+)
+
+type curvesOptions struct {
+	Site   string
+	Format string
+	State  string
+}
+
+func newCurvesCmd(ios *IO) *cobra.Command {
+	opts := &curvesOptions{}
+	cmd := &cobra.Command{
+		Use:   "curves SITE",
+		Short: "Print each branch's system curve and the combined curve with the pump",
+		Long: `Curves prints, from the design model of a site, each branch's system curve
+(differential across the branch against flow, its valve at the setting of the
+chosen survey state), the combined curve of all branches seen from the pump
+with header losses included, the pump curve, and the operating point.`,
+		Args: exactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			opts.Site = args[0]
+			switch opts.Format {
+			case "table", "csv", "json":
+			default:
+				return usagef("--format %q: want table, csv or json", opts.Format)
+			}
+			return runCurves(cmd.Context(), ios, opts)
+		},
+	}
+	cmd.Flags().StringVar(&opts.Format, "format", "table", "output format: table, csv or json")
+	cmd.Flags().StringVar(&opts.State, "state", "", "survey state whose valve settings to use (default: the first)")
+	return cmd
+}
+
+// curveSet is what curves prints, in display units (l/s, kPa).
+type curveSet struct {
+	Site      string         `json:"site"`
+	State     string         `json:"state"`
+	Fractions []float64      `json:"fractions_of_design"`
+	Branches  []branchCurve  `json:"branches"`
+	System    []displayPoint `json:"system"`
+	Pump      []displayPoint `json:"pump,omitempty"`
+	Operating displayPoint   `json:"operating_point"`
+}
+
+type branchCurve struct {
+	ID     string         `json:"branch"`
+	Design float64        `json:"design_flow_l_s"`
+	Points []displayPoint `json:"points"`
+}
+
+type displayPoint struct {
+	Flow float64 `json:"flow_l_s"`
+	Diff float64 `json:"diff_kPa"`
+}
+
+func disp(p plant.Point) displayPoint { return displayPoint{p.Flow * 1000, p.Diff / 1000} }
+
+func runCurves(ctx context.Context, ios *IO, opts *curvesOptions) error {
+	l, err := loadSite(opts.Site, ios.Err)
+	if err != nil {
+		return err
+	}
+	m := l.Model
+	st := m.BaseState()
+	if len(m.States) > 0 {
+		st = m.States[0]
+	}
+	if opts.State != "" {
+		found := false
+		for _, s := range m.States {
+			if s.Label == opts.State {
+				st, found = s, true
+			}
+		}
+		if !found {
+			return usagef("--state %q: the site's states are %q", opts.State, m.StateLabels())
+		}
+	}
+	cs, err := computeCurves(ctx, m, st)
+	if err != nil {
+		return &dataError{err}
+	}
+	cs.Site = l.Site.Name
+	switch opts.Format {
+	case "json":
+		enc := json.NewEncoder(ios.Out)
+		enc.SetIndent("", "  ")
+		return enc.Encode(cs)
+	case "csv":
+		return writeCurvesCSV(ios.Out, cs)
+	}
+	return writeCurvesTable(ios.Out, cs)
+}
+
+func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveSet, error) {
+	p := m.Design()
+	cs := &curveSet{State: st.Label, Fractions: []float64{0.25, 0.5, 0.75, 1, 1.25, 1.5}}
+	for i, b := range m.Branches {
+		if b.Riser() {
+			continue
+		}
+		flows := make([]float64, len(cs.Fractions))
+		for k, f := range cs.Fractions {
+			flows[k] = f * b.Design
+		}
+		bc := branchCurve{ID: b.ID, Design: b.Design * 1000}
+		for _, pt := range m.BranchCurve(p, i, st.Settings[i], flows) {
+			bc.Points = append(bc.Points, disp(pt))
+		}
+		cs.Branches = append(cs.Branches, bc)
+	}
+	op, err := m.Solve(ctx, p, st)
+	if err != nil {
+		return nil, err
+	}
+	cs.Operating = displayPoint{op.TotalFlow() * 1000, op.PumpDiff() / 1000}
+	top := 1.5 * op.PumpDiff()
+	if m.Pump != nil {
+		top = math.Max(top, m.Pump.AtSpeed(st.Speed).ShutOff()*m.Fluid.Density*9.80665)
+	}
+	const n = 10
+	diffs := make([]float64, n+1)
+	for k := range diffs {
+		diffs[k] = top * float64(k) / n
+	}
+	sys, err := m.SystemCurve(ctx, p, st.Settings, diffs)
+	if err != nil {
+		return nil, err
+	}
+	flows := make([]float64, len(sys))
+	for k, pt := range sys {
+		cs.System = append(cs.System, disp(pt))
+		flows[k] = pt.Flow
+	}
+	for _, pt := range m.PumpCurve(p, st.Speed, flows) {
+		cs.Pump = append(cs.Pump, disp(pt))
+	}
+	return cs, nil
+}
+
+func writeCurvesTable(w io.Writer, cs *curveSet) error {
+	fmt.Fprintf(w, "system curves of %q, valve settings of state %q\n\n", cs.Site, cs.State)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprint(tw, "branch\tdesign\t")
+	for _, f := range cs.Fractions {
+		fmt.Fprintf(tw, "%.0f%%\t", f*100)
+	}
+	fmt.Fprintln(tw)
+	fmt.Fprint(tw, "\t[l/s]\t")
+	for range cs.Fractions {
+		fmt.Fprint(tw, "[kPa]\t")
+	}
+	fmt.Fprintln(tw)
+	for _, b := range cs.Branches {
+		fmt.Fprintf(tw, "%s\t%.3f\t", clip(b.ID, 14), b.Design)
+		for _, p := range b.Points {
+			fmt.Fprintf(tw, "%.1f\t", p.Diff)
+		}
+		fmt.Fprintln(tw)
+	}
+	tw.Flush()
+	fmt.Fprintln(w, "\nbranch differential at a % of its design flow")
+	fmt.Fprintln(w, "\ncombined curve seen from the pump (header losses included)")
+	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintln(tw, "flow [l/s]\tsystem [kPa]\tpump [kPa]\t")
+	for k, p := range cs.System {
+		pump := "-"
+		if k < len(cs.Pump) {
+			pump = strconv.FormatFloat(cs.Pump[k].Diff, 'f', 1, 64)
+		}
+		fmt.Fprintf(tw, "%.3f\t%.1f\t%s\t\n", p.Flow, p.Diff, pump)
+	}
+	tw.Flush()
+	fmt.Fprintf(w, "\noperating point: %.3f l/s at %.1f kPa\n", cs.Operating.Flow, cs.Operating.Diff)
+	return nil
+}
+
+func writeCurvesCSV(w io.Writer, cs *curveSet) error {
+	cw := csv.NewWriter(w)
+	row := func(kind, id string, p displayPoint) {
+		cw.Write([]string{kind, id, ff(p.Flow), ff(p.Diff)})
+	}
+	cw.Write([]string{"curve", "branch", "flow [l/s]", "differential [kPa]"})
+	for _, b := range cs.Branches {
+		for _, p := range b.Points {
+			row("branch", safeCell(b.ID), p)
+		}
+	}
+	for _, p := range cs.System {
+		row("system", "", p)
+	}
+	for _, p := range cs.Pump {
+		row("pump", "", p)
+	}
+	row("operating point", "", cs.Operating)
+	cw.Flush()
+	return cw.Error()
+}
+
+func ff(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
+
+func clip(s string, n int) string {
+	r := []rune(s)
+	if len(r) <= n {
+		return s
+	}
+	return string(r[:n-1]) + "~"
+}
+
+// safeCell neutralises a user string that a spreadsheet would take as a
+// formula (OWASP, "CSV Injection"): a cell starting with = + - @ tab or
+// carriage return gets a leading apostrophe.
+func safeCell(s string) string {
+	if s == "" {
+		return s
+	}
+	switch s[0] {
+	case '=', '+', '-', '@', '\t', '\r':
+		return "'" + s
+	}
+	return s
+}

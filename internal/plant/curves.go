@@ -1,0 +1,83 @@
+package plant
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/network"
+	"flowset/internal/site"
+)
+
+// Point is one point of a curve: flow m3/s and differential Pa.
+type Point struct{ Flow, Diff float64 }
+
+// BranchCurve returns branch i's system curve (its own parts, valve at the
+// given setting) at the given flows.
+func (m *Model) BranchCurve(p Params, i int, setting float64, flows []float64) []Point {
+	elems := m.Elements(i, p, setting)
+	out := make([]Point, len(flows))
+	for k, q := range flows {
+		var dp float64
+		for _, e := range elems {
+			d, _ := e.Drop(q, m.Fluid)
+			dp += d
+		}
+		if m.Branches[i].Riser() {
+			dp = math.NaN() // a riser's curve includes its sub-circuit; see SystemCurve
+		}
+		out[k] = Point{q, dp}
+	}
+	return out
+}
+
+// SystemCurve returns the combined curve of all branches seen from the source
+// (header losses included): the total flow at each source differential,
+// found by solving the network held at that differential. It is exact, not a
+// fit to samples.
+func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, diffs []float64) ([]Point, error) {
+	out := make([]Point, 0, len(diffs))
+	var warm []float64
+	for _, d := range diffs {
+		if d <= 0 {
+			out = append(out, Point{0, 0})
+			continue
+		}
+		b, err := network.Build(m.Ladder(p, settings), network.Source{Differential: d}, m.Fluid)
+		if err != nil {
+			return nil, err
+		}
+		sol, err := b.Net.Solve(ctx, &network.Options{Initial: warm})
+		if err != nil {
+			return nil, fmt.Errorf("system curve at %.3g kPa: %w", d/1000, err)
+		}
+		warm = sol.Flow
+		var q float64
+		for _, i := range m.top {
+			if l := b.Branch[m.Branches[i].ID]; l >= 0 {
+				q += sol.Flow[l]
+			}
+		}
+		out = append(out, Point{q, d})
+	}
+	return out, nil
+}
+
+// PumpCurve returns the pump's differential at the given flows and speed
+// ratio, or nil without a pump.
+func (m *Model) PumpCurve(p Params, speed float64, flows []float64) []Point {
+	if m.Pump == nil || m.Site.Boundary.Kind != site.PumpCurve {
+		return nil
+	}
+	c := m.Pump.AtSpeed(speed)
+	out := make([]Point, 0, len(flows))
+	for _, q := range flows {
+		h := c.Head(q) * p.PumpHead
+		if h < 0 {
+			break
+		}
+		out = append(out, Point{q, h * m.Fluid.Density * hydraulics.StandardGravity})
+	}
+	return out
+}
