@@ -1,6 +1,7 @@
 package site
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -106,7 +107,11 @@ func resolveUnit(c *column, unit string, bracket bool) (units.Unit, *numError, e
 		if c.kind == units.Head {
 			want += "; convert a pressure to head with the fluid's density"
 		}
-		return units.Unit{}, &numError{ErrUnit, err.Error(), want}, err
+		msg := err.Error()
+		if errors.Is(err, units.ErrUnknownUnit) {
+			msg = "unknown unit"
+		}
+		return units.Unit{}, &numError{ErrUnit, msg, want}, err
 	}
 	return u, nil, nil
 }
@@ -215,13 +220,17 @@ type sheetReader struct {
 	idx   map[string]int
 	units map[string]units.Unit
 	cv    map[string]bool
-	probs *Problems
+	// broken holds columns named in the header but unusable (a unit that
+	// does not fit, a second copy); their cells are not read, and their
+	// absence is not reported again.
+	broken map[string]bool
+	probs  *Problems
 }
 
 // bind matches a table's header against a schema, reporting blank,
 // duplicate, unknown and missing columns and units that do not fit.
 func bind(t *table, sc *schema, probs *Problems) *sheetReader {
-	sr := &sheetReader{t: t, sc: sc, idx: map[string]int{}, units: map[string]units.Unit{}, cv: map[string]bool{}, probs: probs}
+	sr := &sheetReader{t: t, sc: sc, idx: map[string]int{}, units: map[string]units.Unit{}, cv: map[string]bool{}, broken: map[string]bool{}, probs: probs}
 	width := len(t.header)
 	for _, r := range t.rows {
 		width = max(width, len(r.cells))
@@ -256,8 +265,12 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 		}
 		ref.field, ref.value = c.name, ""
 		if j, dup := sr.idx[c.name]; dup {
-			probs.add(ref.problem(SeverityError, ErrDuplicate, "column given twice",
-				fmt.Sprintf("one %q column; the first is column %d", c.name, j+1)))
+			want := fmt.Sprintf("one %q column; the first is column %d", c.name, j+1)
+			if c.cv != "" {
+				ref.field = normWord(name)
+				want = fmt.Sprintf("one %q or %q column; the first is column %d", c.name, c.cv, j+1)
+			}
+			probs.add(ref.problem(SeverityError, ErrDuplicate, "column given twice", want))
 			continue
 		}
 		if sc == &readingColumns && c.name == "value" {
@@ -271,6 +284,8 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 					}
 					probs.add(&Error{File: t.file, Line: t.headerLine, Column: i + 1, Field: c.name, Value: unit,
 						Err: ErrUnit, Msg: msg, Want: "a flow or pressure unit, or units in the unit column", Cause: err})
+					sr.broken[c.name] = true
+					continue
 				} else {
 					sr.units[c.name] = u
 				}
@@ -283,6 +298,7 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 				ref.value = unit
 				probs.add(ref.problem(SeverityError, ErrUnit, "uncertainty takes % or the row's unit",
 					`"uncertainty [%]", or "uncertainty" with values in the row's unit`))
+				sr.broken[c.name] = true
 				continue
 			}
 			if bracket {
@@ -297,6 +313,7 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 			e := ref.problem(SeverityError, ne.err, ne.msg, ne.want)
 			e.Cause = cause
 			probs.add(e)
+			sr.broken[c.name] = true
 			continue
 		}
 		sr.idx[c.name] = i
@@ -304,7 +321,7 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 		sr.cv[c.name] = cv
 	}
 	for _, c := range sc.columns {
-		if _, ok := sr.idx[c.name]; c.required && !ok {
+		if _, ok := sr.idx[c.name]; c.required && !ok && !sr.broken[c.name] {
 			probs.add(&Error{File: t.file, Line: t.headerLine, Field: c.name, Err: ErrMissing,
 				Msg: "column is missing", Want: fmt.Sprintf("a column named %q", c.name)})
 		}

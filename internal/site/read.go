@@ -1,6 +1,7 @@
 package site
 
 import (
+	"errors"
 	"fmt"
 	"io/fs"
 	"math"
@@ -143,22 +144,25 @@ func (in *input) build() *Site {
 	if t := in.tables[siteKeys.name]; t != nil {
 		keys = readSiteSheet(t, s, p)
 	}
+	valves := valveCheck{present: in.present[valveColumns.name], usable: true}
 	if t := in.tables[valveColumns.name]; t != nil {
-		s.Valves = readValves(t, p)
+		s.Valves, valves.bad, valves.usable = readValves(t, p)
+	} else if valves.present {
+		valves.usable = false
 	}
 	var brRefs []branchRefs
 	if t := in.tables[branchColumns.name]; t != nil {
 		s.Branches, brRefs = readBranches(t, p)
-		checkBranches(s, brRefs, in.present[valveColumns.name], p)
+		checkBranches(s, brRefs, valves, p)
 	}
 	if t := in.tables[pumpColumns.name]; t != nil {
 		s.Pump = readPump(t, p)
 	}
 	if t := in.tables[readingColumns.name]; t != nil {
-		s.Readings = readReadings(t, s, in.tables[branchColumns.name] != nil, p)
+		s.Readings = readReadings(t, s, len(s.Branches) > 0, valves, p)
 	}
 	if t := in.tables[targetColumns.name]; t != nil {
-		s.Targets = readTargets(t, s, in.tables[branchColumns.name] != nil, p)
+		s.Targets = readTargets(t, s, len(s.Branches) > 0, p)
 	}
 	checkSite(s, keys, in, brRefs)
 	return s
@@ -292,12 +296,14 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 	for _, r := range t.rows {
 		ok := true
 		b := Branch{Pos: Pos{File: t.file, Line: r.line}}
-		b.ID = sr.text(r, "id", &ok)
+		idOK := true
+		b.ID = sr.text(r, "id", &idOK)
 		b.Parent = sr.text(r, "parent", &ok)
 		b.DesignFlow = sr.need(r, "design flow", &ok)
 		b.PipeStandard = sr.text(r, "pipe standard", &ok)
 		b.PipeSize = sr.text(r, "pipe size", &ok)
-		b.PipeBore, _ = sr.num(r, "pipe bore")
+		var boreOK, hboreOK bool
+		b.PipeBore, boreOK = sr.num(r, "pipe bore")
 		b.PipeLength = sr.numOr(r, "pipe length", 0, &ok)
 		b.Roughness, _ = sr.num(r, "roughness")
 		b.FittingsK = sr.numOr(r, "fittings k", 0, &ok)
@@ -310,13 +316,13 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.ReturnLength = sr.numOr(r, "return length", 0, &ok)
 		b.HeaderStandard = sr.text(r, "header standard", &ok)
 		b.HeaderSize = sr.text(r, "header size", &ok)
-		b.HeaderBore, _ = sr.num(r, "header bore")
+		b.HeaderBore, hboreOK = sr.num(r, "header bore")
 		b.HeaderK = sr.numOr(r, "header k", 0, &ok)
 		b.Note = sr.text(r, "note", &ok)
 		ref := branchRefs{id: sr.ref(r, "id"), parent: sr.ref(r, "parent"), valve: sr.ref(r, "valve"),
 			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length")}
 		switch {
-		case !sr.has("id"):
+		case !sr.has("id") || !idOK:
 			continue
 		case b.ID == "":
 			p.add(ref.id.problem(SeverityError, ErrMissing, "blank", "a unique branch id"))
@@ -330,12 +336,12 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 			continue
 		}
 		first[b.ID] = r.line
-		if b.PipeLength > 0 && math.IsNaN(b.PipeBore) && (b.PipeStandard == "" || b.PipeSize == "") {
+		if b.PipeLength > 0 && boreOK && math.IsNaN(b.PipeBore) && (b.PipeStandard == "" || b.PipeSize == "") {
 			p.add(sr.ref(r, "pipe size").problem(SeverityError, ErrMissing, "pipe length given without the pipe's size",
 				"a pipe standard and size, or a pipe bore"))
 			ok = false
 		}
-		if b.SupplyLength+b.ReturnLength > 0 && math.IsNaN(b.HeaderBore) && (b.HeaderStandard == "" || b.HeaderSize == "") {
+		if b.SupplyLength+b.ReturnLength > 0 && hboreOK && math.IsNaN(b.HeaderBore) && (b.HeaderStandard == "" || b.HeaderSize == "") {
 			p.add(sr.ref(r, "header size").problem(SeverityError, ErrMissing, "header length given without the header's size",
 				"a header standard and size, or a header bore"))
 			ok = false
@@ -355,8 +361,18 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 	return out, refs
 }
 
+// valveCheck tells how far the valves sheet can be trusted for checks.
+type valveCheck struct {
+	present bool            // the sheet exists
+	usable  bool            // its columns could be read
+	bad     map[string]bool // models whose definition has an error
+}
+
+// check reports whether settings of model name can be checked.
+func (vc valveCheck) check(name string) bool { return vc.usable && !vc.bad[name] }
+
 // checkBranches checks parents, loops among parents and valve references.
-func checkBranches(s *Site, refs []branchRefs, haveValves bool, p *Problems) {
+func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 	ids := make([]string, len(s.Branches))
 	index := map[string]int{}
 	for i, b := range s.Branches {
@@ -417,16 +433,19 @@ func checkBranches(s *Site, refs []branchRefs, haveValves bool, p *Problems) {
 		names = append(names, v.Name)
 	}
 	for i, b := range s.Branches {
-		if b.Valve == "" {
+		if b.Valve == "" || valves.present && !valves.usable {
 			continue
 		}
 		v := s.Valve(b.Valve)
 		if v == nil {
 			want := refWant("a model defined in the valves sheet", b.Valve, names)
-			if !haveValves {
+			if !valves.present {
 				want = "a valves sheet defining this model"
 			}
 			p.add(refs[i].valve.problem(SeverityError, ErrReference, "valve model not defined", want))
+			continue
+		}
+		if !valves.check(v.Name) {
 			continue
 		}
 		if e := checkSetting(v, b.Setting, refs[i].setting); e != nil {
@@ -450,10 +469,13 @@ func checkSetting(v *ValveModel, setting float64, ref cellRef) *Error {
 
 func fmtNum(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
 
-func readValves(t *table, p *Problems) []ValveModel {
+// readValves returns the valve models and the names of those whose
+// definition has an error; usable is false when the sheet's columns are.
+func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool, usable bool) {
 	sr := bind(t, &valveColumns, p)
-	if !sr.has("model") {
-		return nil
+	bad = map[string]bool{}
+	if !sr.has("model") || len(sr.broken) > 0 {
+		return nil, bad, false
 	}
 	type attr struct {
 		v    float64
@@ -470,7 +492,7 @@ func readValves(t *table, p *Problems) []ValveModel {
 		bad      bool
 	}
 	var order []string
-	models := map[string]*build{}
+	byName := map[string]*build{}
 	for _, r := range t.rows {
 		ok := true
 		name := sr.text(r, "model", &ok)
@@ -481,11 +503,11 @@ func readValves(t *table, p *Problems) []ValveModel {
 			}
 			continue
 		}
-		b := models[name]
+		b := byName[name]
 		if b == nil {
 			b = &build{m: ValveModel{Name: name, Pos: Pos{File: t.file, Line: r.line}, Kvs: nan, Rangeability: nan, Step: nan, MinDiff: nan},
 				attrs: map[string]attr{}, modelRef: mref}
-			models[name] = b
+			byName[name] = b
 			order = append(order, name)
 		}
 		// Model-wide attributes may sit on any row of the model, once.
@@ -535,9 +557,8 @@ func readValves(t *table, p *Problems) []ValveModel {
 			b.kvRefs = append(b.kvRefs, sr.ref(r, "kv"))
 		}
 	}
-	var out []ValveModel
 	for _, name := range order {
-		b := models[name]
+		b := byName[name]
 		m := &b.m
 		m.Unit = b.attrs["setting unit"].w
 		m.Characteristic = b.attrs["characteristic"].w
@@ -549,6 +570,8 @@ func readValves(t *table, p *Problems) []ValveModel {
 		}
 		m.MinDiff = get("min diff", defaultMinDiff)
 		switch {
+		case b.bad:
+			// Already reported; the model is kept so references resolve.
 		case m.Characteristic != "" && len(m.Settings) > 0:
 			p.add(b.charRef.problem(SeverityError, ErrDuplicate, "model has both a kv table and a characteristic",
 				"either setting and kv rows or one characteristic"))
@@ -582,10 +605,16 @@ func readValves(t *table, p *Problems) []ValveModel {
 				b.bad = true
 			}
 		}
+		if m.Unit == "" {
+			m.Unit = "turns"
+		}
 		m.Step = get("step", defaultStep(m.Unit))
-		out = append(out, *m)
+		if b.bad {
+			bad[name] = true
+		}
+		models = append(models, *m)
 	}
-	return out
+	return models, bad, true
 }
 
 // checkTable checks a valve's Kv table: two points at least, settings
@@ -633,7 +662,6 @@ func readPump(t *table, p *Problems) []PumpPoint {
 		return nil
 	}
 	var out []PumpPoint
-	var refs []row
 	for _, r := range t.rows {
 		ok := true
 		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}}
@@ -656,16 +684,19 @@ func readPump(t *table, p *Problems) []PumpPoint {
 			}
 		}
 		out = append(out, pt)
-		refs = append(refs, r)
 	}
-	if len(out) < 2 {
-		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: fmt.Sprintf("pump curve has %d usable points", len(out)),
+	if len(out) < 2 && len(sr.broken) == 0 {
+		msg := "pump curve has no usable points"
+		if len(out) == 1 {
+			msg = "pump curve has only one usable point"
+		}
+		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: msg,
 			Want: "at least two flow and head points, three or more for a curved fit"})
 	}
 	return out
 }
 
-func readReadings(t *table, s *Site, haveBranches bool, p *Problems) []Reading {
+func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Problems) []Reading {
 	sr := bind(t, &readingColumns, p)
 	if !sr.has("where") || !sr.has("quantity") || !sr.has("value") {
 		return nil
@@ -675,6 +706,11 @@ func readReadings(t *table, s *Site, haveBranches bool, p *Problems) []Reading {
 		ids[i] = b.ID
 	}
 	var out []Reading
+	type moved struct {
+		setting float64
+		line    int
+	}
+	settings := map[[2]string]moved{} // state, branch -> the setting first given
 	for _, r := range t.rows {
 		ok := true
 		rd := Reading{Pos: Pos{File: t.file, Line: r.line}, Setting: nan, Sigma: nan}
@@ -741,7 +777,7 @@ func readReadings(t *table, s *Site, haveBranches bool, p *Problems) []Reading {
 				"a valve model for this branch in the branches sheet"))
 			continue
 		}
-		if valve != nil {
+		if valve != nil && valves.check(valve.Name) {
 			if e := checkSetting(valve, rd.Setting, sr.ref(r, "setting")); e != nil {
 				p.add(e)
 				continue
@@ -750,6 +786,17 @@ func readReadings(t *table, s *Site, haveBranches bool, p *Problems) []Reading {
 				p.add(sr.ref(r, "instrument").problem(SeverityError, ErrRange, fmt.Sprintf("valve %q has no kv table to read flow from", valve.Name),
 					"a valve with a kv table, or another instrument"))
 				continue
+			}
+		}
+		if !math.IsNaN(rd.Setting) {
+			k := [2]string{rd.State, rd.Where}
+			if m, seen := settings[k]; seen && m.setting != rd.Setting {
+				p.add(sr.ref(r, "setting").problem(SeverityError, ErrRange,
+					fmt.Sprintf("differs from the setting on line %d in the same state", m.line),
+					"one setting per valve in a state; give each change its own state"))
+				continue
+			} else if !seen {
+				settings[k] = moved{rd.Setting, r.line}
 			}
 		}
 		out = append(out, rd)
@@ -789,6 +836,9 @@ func placeWant(q Quantity, where string, branch bool) string {
 // readingValue reads the value, unit, instrument and uncertainty of a
 // reading row into rd.
 func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
+	if sr.broken["uncertainty"] || sr.broken["unit"] {
+		return false // reported on the header line
+	}
 	kind, def := units.Pressure, "kPa"
 	limit := &column{name: "value", typ: numCol, kind: units.Pressure, what: "pressure difference", lo: 0, hi: maxPressure}
 	if rd.What.IsFlow() {
@@ -810,7 +860,11 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 		uref = sr.ref(r, "unit")
 	}
 	if err != nil {
-		e := uref.problem(SeverityError, ErrUnit, err.Error(), fmt.Sprintf("%s for a %s reading", unitWant(kind), rd.What))
+		msg := err.Error()
+		if errors.Is(err, units.ErrUnknownUnit) {
+			msg = "unknown unit"
+		}
+		e := uref.problem(SeverityError, ErrUnit, msg, fmt.Sprintf("%s for a %s reading", unitWant(kind), rd.What))
 		e.Cause = err
 		p.add(e)
 		return false

@@ -10,6 +10,8 @@ import (
 	"strings"
 	"unicode"
 	"unicode/utf8"
+
+	"flowset/internal/units"
 )
 
 // table is one sheet as text: a header row and data rows, with the line (or
@@ -99,7 +101,7 @@ func decodeCSV(file string, data []byte) (*table, Problems) {
 			line := 0
 			msg := err.Error()
 			if errors.As(err, &pe) {
-				line, msg = pe.Line, pe.Err.Error()
+				line, msg = pe.StartLine, pe.Err.Error()
 			}
 			probs = append(probs, &Error{File: file, Line: line, Err: ErrSyntax, Msg: "cannot split line: " + msg,
 				Want: `cells separated by one separator, with " only around a whole cell`, Cause: err})
@@ -261,7 +263,11 @@ func plainNumber(t string) bool {
 // as "2.5 l/s" or "30kPa".
 func unitSuffix(t string) bool {
 	i := strings.IndexFunc(t, func(r rune) bool { return unicode.IsLetter(r) || r == '%' || r == '°' })
-	return i > 0 && plainNumber(strings.TrimSpace(strings.Replace(t[:i], ",", ".", 1)))
+	if i <= 0 || !plainNumber(strings.TrimSpace(strings.Replace(t[:i], ",", ".", 1))) {
+		return false
+	}
+	_, err := units.Find(t[i:])
+	return err == nil
 }
 
 // hasControl reports whether s holds a control character.

@@ -1,0 +1,499 @@
+package site
+
+// badCase changes files of the base site and lists every problem expected,
+// in order, with the cause of the first.
+type badCase struct {
+	name  string
+	files map[string]string
+	want  []string
+	cause error
+}
+
+const brHead = "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],valve,setting\n"
+const rdHead = "state,where,quantity,value,unit,instrument\n"
+const rdBase = "as-found,A,flow,0.45,l/s,clamp-on\n"
+
+var badCases = []badCase{
+	// Accepted variants: no problems at all.
+	{name: "byte order mark", files: map[string]string{"branches.csv": "\ufeff" + base["branches.csv"]}},
+	{name: "semicolons and decimal comma", files: map[string]string{"branches.csv": "id;parent;design flow [l/s];pipe bore [mm];pipe length [m];valve;setting\nA;;0,5;21,6;10;V15;2\nB;;0.4;21.6;12;V15;3\n"}},
+	{name: "tabs", files: map[string]string{"branches.csv": "id\tdesign flow [l/s]\tpipe bore [mm]\tpipe length [m]\nA\t0,5\t21.6\t10\nB\t0.4\t21.6\t12\n"}},
+	{name: "comments, blank lines, CRLF and spaces", files: map[string]string{"branches.csv": "# plant room 2\r\n\r\n id , design flow [l/s] , pipe bore (mm),pipe length [m]\r\n# riser A\r\nA, 0.5 ,21.6,10\r\n,,,\r\n\r\nB,0.4,21.6,12\r\n"}},
+	{name: "quoted cells", files: map[string]string{"branches.csv": "\"id\",\"design flow [l/s]\",pipe bore [mm],pipe length [m],note\n\"A\",\"0.5\",21.6,10,\"east, \"\"low\"\" end\"\nB,0.4,21.6,12,\n"}},
+	{name: "trailing empty column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],\nA,0.5,21.6,10,\nB,0.4,21.6,12,\n"}},
+
+	// Encoding and file shape.
+	{name: "utf-16", files: map[string]string{"branches.csv": "\xff\xfei\x00d\x00"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv: file is UTF-16 text (want UTF-8 text: save the sheet as CSV UTF-8)",
+		}},
+	{name: "invalid utf-8", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB\xe9,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:3:1: value \"B?\": invalid UTF-8 text (want UTF-8 text: save the sheet as CSV UTF-8)",
+		}},
+	{name: "empty file", files: map[string]string{"branches.csv": ""},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv: file is empty (want a header line naming the columns)",
+		}},
+	{name: "only comments", files: map[string]string{"branches.csv": "# nothing yet\n\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv: file is empty (want a header line naming the columns)",
+		}},
+	{name: "broken quotes", files: map[string]string{"branches.csv": brHead + "A,,\"0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2: cannot split line: extraneous or missing \" in quoted-field (want cells separated by one separator, with \" only around a whole cell)",
+		}},
+	{name: "missing sheet", files: map[string]string{"readings.csv": del},
+		cause: ErrMissing,
+		want: []string{
+			"readings.csv: sheet is missing (want a readings sheet; see flowset help readings)",
+		}},
+	{name: "unknown file", files: map[string]string{"target.csv": "branch,target flow\nA,0.5\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"target.csv: warning: unknown sheet, ignored (want \"targets.csv\")",
+		}},
+	{name: "header only", files: map[string]string{"branches.csv": brHead},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:1: no branches listed (want one row per branch below the header)",
+		}},
+
+	// Header problems.
+	{name: "blank header", files: map[string]string{"branches.csv": "id,,design flow [l/s],pipe bore [mm],pipe length [m]\nA,x,0.5,21.6,10\nB,,0.4,21.6,12\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:1:2: blank column name (want a name for the column that holds \"x\" on line 2)",
+		}},
+	{name: "value beyond header", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m]\nA,0.5,21.6,10\nB,0.4,21.6,12,oops\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:1:5: blank column name (want a name for the column that holds \"oops\" on line 3)",
+		}},
+	{name: "duplicate header", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],Design-Flow [m3/h]\nA,0.5,21.6,10,1.8\nB,0.4,21.6,12,1.4\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"branches.csv:1:5: field \"design flow\": column given twice (want one \"design flow\" column; the first is column 2)",
+		}},
+	{name: "unknown column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],colour,pipe lenght\nA,0.5,21.6,10,red,1\nB,0.4,21.6,12,blue,1\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, note)",
+			"branches.csv:1:6: warning: field \"pipe lenght\": unknown column, ignored (want \"pipe length\")",
+		}},
+	{name: "missing required column", files: map[string]string{"branches.csv": "id,pipe bore [mm],pipe length [m]\nA,21.6,10\nB,21.6,12\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:1: field \"design flow\": column is missing (want a column named \"design flow\")",
+		}},
+	{name: "unit of wrong kind", files: map[string]string{"branches.csv": "id,design flow [kPa],pipe bore [mm],pipe length [m]\nA,0.5,21.6,10\nB,0.4,21.6,12\n"},
+		cause: ErrUnit,
+		want: []string{
+			"branches.csv:1:2: field \"design flow\": value \"kPa\": unit \"kPa\" is a pressure, not a flow (want a flow unit: l/s, m3/h, l/h or gpm)",
+		}},
+	{name: "unknown unit", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [furlong]\nA,0.5,21.6,10\nB,0.4,21.6,12\n"},
+		cause: ErrUnit,
+		want: []string{
+			"branches.csv:1:4: field \"pipe length\": value \"furlong\": unknown unit (want a length unit: m, mm, ft or in)",
+		}},
+	{name: "unit on a text column", files: map[string]string{"branches.csv": "id [m],design flow [l/s],pipe bore [mm],pipe length [m]\nA,0.5,21.6,10\nB,0.4,21.6,12\n"},
+		cause: ErrUnit,
+		want: []string{
+			"branches.csv:1:1: field \"id\": value \"m\": column takes no unit (want no unit in the column name)",
+		}},
+	{name: "unit on kv", files: map[string]string{"valves.csv": "model,setting,kv [m3/h]\nV15,0.5,0.2\nV15,4,2.1\n"},
+		cause: ErrUnit,
+		want: []string{
+			"valves.csv:1:3: field \"kv\": value \"m3/h\": column takes no unit (want no unit: kv is in m3/h at 1 bar; a \"cv\" column takes US Cv)",
+		}},
+
+	// Numbers.
+	{name: "text in a number", files: map[string]string{"branches.csv": brHead + "A,,half,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"half\": not a number (want a number such as 1.5)",
+		}},
+	{name: "unit in a cell", files: map[string]string{"branches.csv": brHead + "A,,0.5 l/s,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"0.5 l/s\": not a number: units go in the column name (want a bare number; name the unit in the header, e.g. \"design flow [l/s]\")",
+		}},
+	{name: "decimal comma with comma separator", files: map[string]string{"branches.csv": brHead + "A,,\"0,5\",21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"0,5\": not a number: a decimal comma needs a semicolon-separated file (want a number with a decimal point, such as 1.5)",
+		}},
+	{name: "decimal comma and point", files: map[string]string{"branches.csv": "id;design flow [l/s];pipe bore [mm];pipe length [m]\nA;1.000,5;21,6;10\nB;0,4;21,6;12\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2:2: field \"design flow\": value \"1.000,5\": not a number: mixes decimal point and comma (want a number such as 1,5 without thousands separators)",
+		}},
+	{name: "nan", files: map[string]string{"branches.csv": brHead + "A,,NaN,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"NaN\": not a finite number (want a finite number)",
+		}},
+	{name: "infinity", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,-Inf,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:5: field \"pipe length\": value \"-Inf\": not a finite number (want a finite number)",
+		}},
+	{name: "huge", files: map[string]string{"branches.csv": brHead + "A,,1e300,21.6,10,V15,2\nB,,0.4,21.6,1e400,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"1e300\": too large (want a flow from 0.0001 l/s to 10000 l/s)",
+			"branches.csv:3:5: field \"pipe length\": value \"1e400\": number too large (want a finite number)",
+		}},
+	{name: "tiny", files: map[string]string{"branches.csv": brHead + "A,,1e-400,21.6,10,V15,2\nB,,0.00001,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"1e-400\": number too small to hold (want 0 or a number of sensible size)",
+			"branches.csv:3:3: field \"design flow\": value \"0.00001\": too small (want a flow from 0.0001 l/s to 10000 l/s)",
+		}},
+	{name: "hex float", files: map[string]string{"branches.csv": brHead + "A,,0x1p-2,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"0x1p-2\": not a number (want a number such as 1.5)",
+		}},
+	{name: "negative flow", files: map[string]string{"branches.csv": brHead + "A,,-2,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": value \"-2\": must be positive (want a flow above 0)",
+		}},
+	{name: "negative length", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,-10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:5: field \"pipe length\": value \"-10\": must not be negative (want a length of 0 or more)",
+		}},
+	{name: "zero bore", files: map[string]string{"branches.csv": brHead + "A,,0.5,0,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:4: field \"pipe bore\": value \"0\": must be positive (want a bore above 0)",
+		}},
+	{name: "bore in inches typed as mm", files: map[string]string{"branches.csv": brHead + "A,,0.5,0.85,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:4: field \"pipe bore\": value \"0.85\": too small (want a bore from 1 mm to 3000 mm)",
+		}},
+	{name: "blank required value", files: map[string]string{"branches.csv": brHead + "A,,,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2:3: field \"design flow\": blank (want a design flow)",
+		}},
+
+	// Branches.
+	{name: "duplicate branch id", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\nA,,0.3,21.6,12,,\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"branches.csv:4:1: field \"id\": value \"A\": branch id given twice (want a unique id; the first is on line 2)",
+		}},
+	{name: "blank branch id", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n,,0.3,21.6,12,,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:4:1: field \"id\": blank (want a unique branch id)",
+		}},
+	{name: "reserved branch id", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\nPump,,0.3,21.6,12,,\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:4:1: field \"id\": value \"Pump\": pump and header are reserved names (want another branch id)",
+		}},
+	{name: "line break in id", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n\"C\nD\",,0.3,21.6,12,,\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"branches.csv:4:1: field \"id\": value \"C\\nD\": holds a line break or control character (want text on one line)",
+		}},
+	{name: "unknown parent", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,a,0.4,21.6,12,V15,3\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:3:2: field \"parent\": value \"a\": no branch has this id (want the id of the riser in this sheet, or blank; did you mean \"A\")",
+		}},
+	{name: "branches in a loop", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,D,0.4,21.6,12,V15,3\nC,B,0.3,21.6,12,,\nD,C,0.3,21.6,12,,\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:3:2: field \"parent\": value \"D\": branches in a loop: B -> D -> C -> B (want a chain of parents that ends at a branch on the main headers)",
+		}},
+	{name: "branch hangs from itself", files: map[string]string{"branches.csv": brHead + "A,A,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:2:2: field \"parent\": value \"A\": branch hangs from itself (want a chain of parents that ends at a branch on the main headers)",
+		}},
+	{name: "pipe length without size", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe standard,pipe length [m]\nA,0.5,en10255-m,10\nB,0.4,,0\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2: field \"pipe size\": pipe length given without the pipe's size (want a pipe standard and size, or a pipe bore)",
+		}},
+	{name: "setting without valve", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2:7: field \"setting\": value \"2\": setting given for a branch without a valve (want a valve model in the valve column, or no setting)",
+		}},
+	{name: "valve not defined", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V-15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:2:6: field \"valve\": value \"V-15\": valve model not defined (want a model defined in the valves sheet; did you mean \"V15\")",
+		}},
+	{name: "valves sheet missing", files: map[string]string{"valves.csv": del},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:2:6: field \"valve\": value \"V15\": valve model not defined (want a valves sheet defining this model)",
+			"branches.csv:3:6: field \"valve\": value \"V15\": valve model not defined (want a valves sheet defining this model)",
+		}},
+	{name: "setting outside table", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,4.5\nB,,0.4,21.6,12,V15,0.2\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:7: field \"setting\": value \"4.5\": outside the range of valve \"V15\" (want a setting from 0.5 to 4 turns)",
+			"branches.csv:3:7: field \"setting\": value \"0.2\": outside the range of valve \"V15\" (want a setting from 0.5 to 4 turns)",
+		}},
+	{name: "header lengths with no header", files: map[string]string{"branches.csv": "id,design flow [l/s],supply length [m],return length [m],header bore [mm]\nA,0.5,0,0,\nB,0.4,5,5,40\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:3:3: warning: field \"supply length\": value \"5\": header lengths ignored: the site's header is none (want header direct-return or reverse-return in the site sheet)",
+		}},
+	{name: "header length without size", files: map[string]string{"site.csv": "header,direct-return\n", "branches.csv": "id,design flow [l/s],supply length [m],return length [m]\nA,0.5,0,0\nB,0.4,5,5\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:3: field \"header size\": header length given without the header's size (want a header standard and size, or a header bore)",
+		}},
+
+	// Valves.
+	{name: "one-point valve", files: map[string]string{"valves.csv": "model,setting,kv\nV15,2,0.9\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:2:1: field \"model\": value \"V15\": kv table has one point (want at least two settings with their kv)",
+		}},
+	{name: "settings not rising", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0.5,0.2\nV15,2,0.9\nV15,1,0.4\nV15,4,2.1\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:4:2: field \"setting\": value \"1\": settings must rise down the table (want a setting above 2 (line 3))",
+		}},
+	{name: "kv falling", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0.5,0.2\nV15,1,0.4\nV15,2,0.35\nV15,4,2.1\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:4:3: field \"kv\": value \"0.35\": kv falls as the setting rises (want a kv of at least 0.4 (line 3))",
+		}},
+	{name: "kv flat", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0.5,0.2\nV15,1,0.4\nV15,2,0.4\nV15,4,2.1\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:4:3: warning: field \"kv\": value \"0.4\": kv the same as at the setting before (want a kv that rises with the setting; settings in between cannot be told apart)",
+		}},
+	{name: "setting without kv", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0.5,0.2\nV15,1,\nV15,4,2.1\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:3:3: field \"kv\": setting without a kv (want the kv at that setting)",
+		}},
+	{name: "table and characteristic", files: map[string]string{"valves.csv": "model,setting,kv,characteristic,kvs\nV15,0.5,0.2,,\nV15,4,2.1,,\nV15,,,linear,2.5\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"valves.csv:4:4: field \"characteristic\": value \"linear\": model has both a kv table and a characteristic (want either setting and kv rows or one characteristic)",
+		}},
+	{name: "characteristic without kvs", files: map[string]string{"valves.csv": "model,setting,kv,characteristic,kvs\nV15,0.5,0.2,,\nV15,4,2.1,,\nCV,,,equal-percentage,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:4:4: field \"characteristic\": value \"equal-percentage\": characteristic without kvs (want the valve's kvs)",
+		}},
+	{name: "unknown characteristic", files: map[string]string{"valves.csv": "model,setting,kv,characteristic,kvs\nV15,0.5,0.2,,\nV15,4,2.1,,\nCV,,,parabolic,4\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"valves.csv:4:4: field \"characteristic\": value \"parabolic\": unknown word (want one of: linear, equal-percentage, quick-opening)",
+		}},
+	{name: "conflicting setting unit", files: map[string]string{"valves.csv": "model,setting unit,setting,kv\nV15,turns,0.5,0.2\nV15,%,4,2.1\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"valves.csv:3:2: field \"setting unit\": value \"%\": differs from line 2 for the same model (want one value per model)",
+		}},
+	{name: "kv and cv columns", files: map[string]string{"valves.csv": "model,setting,kv,cv\nV15,0.5,0.2,0.23\nV15,4,2.1,2.4\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"valves.csv:1:4: field \"cv\": column given twice (want one \"kv\" or \"cv\" column; the first is column 3)",
+		}},
+
+	// Readings.
+	{name: "reading at unknown branch", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,b,flow,0.4,l/s,clamp-on\n"},
+		cause: ErrReference,
+		want: []string{
+			"readings.csv:3:2: field \"where\": value \"b\": no branch has this id (want a branch id from the branches sheet, pump or header; did you mean \"B\")",
+		}},
+	{name: "unknown quantity", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,velocity,0.4,m/s,clamp-on\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"readings.csv:3:3: field \"quantity\": value \"velocity\": unknown word (want one of: flow, valve diff, branch diff, header diff, pump diff, total flow)",
+		}},
+	{name: "unknown instrument", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,l/s,bucket\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"readings.csv:3:6: field \"instrument\": value \"bucket\": unknown word (want one of: clamp-on, valve-meter, orifice, mag-meter, manometer, gauge, transmitter, pump-display)",
+		}},
+	{name: "instrument that cannot read it", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,l/s,manometer\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:6: field \"instrument\": value \"manometer\": a manometer does not read flow (want one of: clamp-on, valve-meter, orifice, mag-meter, transmitter)",
+		}},
+	{name: "no instrument and no uncertainty", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,l/s,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"readings.csv:3:6: field \"instrument\": no instrument and no uncertainty (want an instrument kind or an uncertainty)",
+		}},
+	{name: "reading unit of wrong kind", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,kPa,clamp-on\n"},
+		cause: ErrUnit,
+		want: []string{
+			"readings.csv:3:5: field \"unit\": value \"kPa\": unit \"kPa\" is a pressure, not a flow (want a flow unit: l/s, m3/h, l/h or gpm for a flow reading)",
+		}},
+	{name: "negative reading", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,valve diff,-3,kPa,manometer\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:4: field \"value\": value \"-3\": must not be negative (want a pressure difference of 0 or more)",
+		}},
+	{name: "bad uncertainty", files: map[string]string{"readings.csv": "where,quantity,value,uncertainty\nA,flow,0.45,about 5\nB,flow,0.4,0\nB,flow,0,5 %\nB,flow,0.41,0.02\n"},
+		cause: ErrSyntax,
+		want: []string{
+			"readings.csv:2:4: field \"uncertainty\": value \"about 5\": not a number (want a percentage such as 5 %, or a number in the row's unit)",
+			"readings.csv:3:4: field \"uncertainty\": value \"0\": must be positive (want an uncertainty above 0)",
+			"readings.csv:4:4: field \"uncertainty\": value \"5 %\": a percentage of a zero reading is zero (want an absolute uncertainty in the row's unit)",
+		}},
+	{name: "uncertainty column unit", files: map[string]string{"readings.csv": "where,quantity,value,uncertainty [kPa]\nA,flow,0.45,5\n"},
+		cause: ErrUnit,
+		want: []string{
+			"readings.csv:1:4: field \"uncertainty\": value \"kPa\": uncertainty takes % or the row's unit (want \"uncertainty [%]\", or \"uncertainty\" with values in the row's unit)",
+		}},
+	{name: "pump diff at a branch", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,pump diff,40,kPa,gauge\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:2: field \"where\": value \"B\": pump diff is not read here (want pump)",
+		}},
+	{name: "flow at the pump", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,pump,flow,1.1,l/s,clamp-on\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:2: field \"where\": value \"pump\": flow is not read here (want a branch id)",
+		}},
+	{name: "valve diff where there is no valve", files: map[string]string{
+		"branches.csv": brHead + "A,,0.5,21.6,10,,\nB,,0.4,21.6,12,V15,3\n",
+		"readings.csv": rdHead + "as-found,A,valve diff,4,kPa,manometer\n"},
+		cause: ErrReference,
+		want: []string{
+			"readings.csv:2:2: field \"where\": value \"A\": branch \"A\" has no valve (want a valve model for this branch in the branches sheet)",
+		}},
+	{name: "reading setting outside table", files: map[string]string{"readings.csv": "where,quantity,value,setting,instrument\nA,flow,0.45,5,valve-meter\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:2:4: field \"setting\": value \"5\": outside the range of valve \"V15\" (want a setting from 0.5 to 4 turns)",
+		}},
+	{name: "two settings in one state", files: map[string]string{"readings.csv": "state,where,quantity,value,setting,instrument\nafter,A,flow,0.45,2,clamp-on\nafter,A,valve diff,5,2.5,manometer\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:5: field \"setting\": value \"2.5\": differs from the setting on line 2 in the same state (want one setting per valve in a state; give each change its own state)",
+		}},
+	{name: "no readings", files: map[string]string{"readings.csv": rdHead},
+		cause: ErrMissing,
+		want: []string{
+			"readings.csv:1: warning: no readings: nothing to calibrate (want one row per reading below the header)",
+		}},
+	{name: "contradictory readings", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,A,flow,0.60,l/s,clamp-on\nas-found,A,flow,0.46,l/s,clamp-on\nafter-change,A,flow,0.60,l/s,clamp-on\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3: warning: field \"value\": value \"0.6 l/s\": disagrees with line 2 (0.45 l/s) by more than 3 standard uncertainties (want readings of one quantity in one state that agree within their uncertainties)",
+			"readings.csv:4: warning: field \"value\": value \"0.46 l/s\": disagrees with line 3 (0.6 l/s) by more than 3 standard uncertainties (want readings of one quantity in one state that agree within their uncertainties)",
+		}},
+
+	// Site sheet.
+	{name: "site unknown and duplicate keys", files: map[string]string{"site.csv": "key,value\nname,Annex\ncolour,blue\ntemprature [degC],12\nname,Annex 2\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high)",
+			"site.csv:4:1: warning: field \"temprature\": unknown key, ignored (want \"temperature\")",
+			"site.csv:5:1: field \"name\": key given twice (want one \"name\" line; the first is line 2)",
+		}},
+	{name: "site without key header", files: map[string]string{"site.csv": "fluid,ethylene-glycol\ntemperature [degF],45\n"},
+		cause: ErrMissing,
+		want: []string{
+			"site.csv:1:2: field \"glycol\": glycol concentration is missing (want a glycol [%] line, e.g. 30)",
+		}},
+	{name: "water with glycol", files: map[string]string{"site.csv": "fluid,water\nglycol [%],30\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:2:2: field \"glycol\": value \"30\": water takes no glycol (want 0, or fluid ethylene-glycol or propylene-glycol)",
+		}},
+	{name: "glycol of zero", files: map[string]string{"site.csv": "fluid,propylene-glycol\nglycol,0\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:2:2: field \"glycol\": value \"0\": must be positive for a glycol (want a concentration above 0 %)",
+		}},
+	{name: "unknown fluid", files: map[string]string{"site.csv": "fluid,brine\n"},
+		cause: ErrUnknown,
+		want: []string{
+			"site.csv:1:2: field \"fluid\": value \"brine\": unknown word (want one of: water, ethylene-glycol, propylene-glycol)",
+		}},
+	{name: "frozen water", files: map[string]string{"site.csv": "temperature [degC],-5\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"temperature\": value \"-5\": water freezes below 0 degC (want a temperature of 0 degC or more, or a glycol fluid)",
+		}},
+	{name: "pump boundary without pump", files: map[string]string{"site.csv": "boundary,pump\n"},
+		cause: ErrMissing,
+		want: []string{
+			"site.csv:1:2: field \"boundary\": value \"pump\": pump boundary without a pump curve (want a pump sheet with flow and head, or another boundary)",
+		}},
+	{name: "constant differential without set point", files: map[string]string{"site.csv": "boundary,constant differential\nsensor,C\n"},
+		cause: ErrMissing,
+		want: []string{
+			"site.csv:1:2: field \"set point\": constant-differential boundary without a set point (want a set point [kPa] line)",
+			"site.csv:2:2: field \"sensor\": value \"C\": no branch has this id (want pump or a branch id)",
+		}},
+	{name: "set point ignored", files: map[string]string{"site.csv": "set point [kPa],40\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: warning: field \"set point\": value \"40\": set point ignored with boundary measured-differential (want boundary constant-differential)",
+		}},
+	{name: "speed above max", files: map[string]string{"site.csv": "speed,85 %\nmax speed [%],80\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"speed\": value \"85 %\": above max speed (want a speed up to the max speed, 0.8)",
+		}},
+	{name: "speed as a bare percentage", files: map[string]string{"site.csv": "speed,85\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"speed\": value \"85\": too large (want a ratio to nominal speed from 0.001 to 2; write \"speed [%]\" for a percentage)",
+		}},
+	{name: "positive low tolerance", files: map[string]string{"site.csv": "tolerance low [%],10\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"tolerance low\": value \"10\": too large (want a value from -100 % to 0 %, e.g. -10)",
+		}},
+	{name: "temperature in kPa", files: map[string]string{"site.csv": "temperature [kPa],20\n"},
+		cause: ErrUnit,
+		want: []string{
+			"site.csv:1:1: field \"temperature\": value \"kPa\": unit \"kPa\" is a pressure, not a temperature (want a temperature unit: degC, degF or K)",
+		}},
+
+	// Pump and targets.
+	{name: "one pump point", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n1,6\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:1: pump curve has only one usable point (want at least two flow and head points, three or more for a curved fit)",
+		}},
+	{name: "pump flows not rising", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n0,8\n2,7\n1.5,7.5\n3,6.5\n"},
+		cause: ErrRange,
+		want: []string{
+			"pump.csv:4:1: field \"flow\": value \"1.5\": flows must rise down the curve (want a flow above line 3's)",
+		}},
+	{name: "pump head rising", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n0,8\n1,8.2\n2,7\n"},
+		cause: ErrRange,
+		want: []string{
+			"pump.csv:3:2: warning: field \"head\": value \"8.2\": head rises with flow (want a head at or below line 2's, unless the curve really droops)",
+		}},
+	{name: "pump head in kPa", files: map[string]string{"pump.csv": "flow [l/s],head [kPa]\n0,80\n2,70\n"},
+		cause: ErrUnit,
+		want: []string{
+			"pump.csv:1:2: field \"head\": value \"kPa\": unit \"kPa\" is a pressure, not a head (want a head unit: m or ft of the pumped fluid; convert a pressure to head with the fluid's density)",
+		}},
+	{name: "target for unknown branch", files: map[string]string{"targets.csv": "branch,target flow [l/s]\nA,0.5\nC,0.3\nA,0.45\n"},
+		cause: ErrReference,
+		want: []string{
+			"targets.csv:3:1: field \"branch\": value \"C\": no branch has this id (want a branch id from the branches sheet)",
+			"targets.csv:4:1: field \"branch\": value \"A\": target given twice (want one target per branch; the first is on line 2)",
+		}},
+}
