@@ -320,16 +320,16 @@ func combinedChart(id string, in *Input) chart {
 // from 1 to thousands of branches.
 func categoryAxis(l *charts.Line, labels []string) {
 	// Unrotated labels share the plot width; rotated ones get a fixed length.
-	rotate, width := 0.0, 120
+	rotate, width, overflow := 0.0, 120, "truncate"
 	if len(labels) > 10 {
 		rotate = 45
 	} else if len(labels) > 0 {
-		width = (wideW-92)/len(labels) - 8
+		width, overflow = (wideW-92)/len(labels)-8, "break"
 	}
 	l.SetXAxis(labels)
 	l.SetGlobalOptions(charts.WithXAxisOpts(opts.XAxis{
 		Type:      "category",
-		AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: rotate, Width: width, Overflow: "truncate", HideOverlap: opts.Bool(true)},
+		AxisLabel: &opts.AxisLabel{Interval: "0", Rotate: rotate, Width: width, Overflow: overflow, HideOverlap: opts.Bool(true)},
 	}))
 	if len(labels) > maxWindow {
 		end := float32(100 * float64(maxWindow) / float64(len(labels)))
