@@ -199,8 +199,8 @@ func branchChart(id string, b *Branch, in *Input) chart {
 	l := base(id, smallW, smallH,
 		charts.WithTitleOpts(opts.Title{
 			Title: Clean(b.ID), Subtitle: sub, Left: "center",
-			TitleStyle:    &opts.TextStyle{FontSize: 13, Color: colBlack},
-			SubtitleStyle: &opts.TextStyle{FontSize: 11, Color: colVermillion},
+			TitleStyle:    &opts.TextStyle{FontSize: 13, Color: colBlack, Width: smallW - 16, Overflow: "truncate"},
+			SubtitleStyle: &opts.TextStyle{FontSize: 11, Color: colVermillion, Width: smallW - 16, Overflow: "truncate"},
 		}),
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(false)}),
 		charts.WithGridOpts(opts.Grid{Left: "54", Right: "18", Top: "50", Bottom: "40"}),

@@ -52,6 +52,10 @@
   function prepare(opt) {
     opt.textStyle = { fontFamily: FONT };
     opt.animation = false;
+    // Long names wrap inside the chart instead of widening the page.
+    opt.tooltip = opt.tooltip || {};
+    opt.tooltip.confine = true;
+    opt.tooltip.extraCssText = "max-width: 320px; white-space: normal; overflow-wrap: anywhere;";
     (opt.series || []).forEach(function (s) {
       if (s.type !== "custom") { return; }
       var kind = s.renderItem;
