@@ -326,12 +326,12 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 type Status int
 
 const (
-	NotStarted    Status = iota
-	Converged            // gradient test met
-	SmallStep            // relative step test met
-	MaxIterations        // Settings.MaxIter accepted steps taken
-	Stalled              // no step reduced F even with the largest damping
-	Cancelled            // the context was done
+	NotStarted    Status = iota // no fit was run
+	Converged                   // gradient test met
+	SmallStep                   // relative step test met
+	MaxIterations               // Settings.MaxIter accepted steps taken
+	Stalled                     // no step reduced F even with the largest damping
+	Cancelled                   // the context was done
 )
 
 // String names the status.
@@ -1130,7 +1130,7 @@ func (s *solver) uncertainty(ctx context.Context, pt *point) (*uncert, error) {
 		return nil, err
 	}
 	u.method = VarProbed
-	v0, err := s.probeVar(ctx, u.w, 1)
+	v0, ys, err := s.probeVar(ctx, u.w, 1, nil)
 	if err != nil {
 		return nil, err
 	}
@@ -1140,7 +1140,7 @@ func (s *solver) uncertainty(ctx context.Context, pt *point) (*uncert, error) {
 	s.scaleFactor(u, used)
 	u.vr = v0
 	if u.c != 1 {
-		if u.vr, err = s.probeVar(ctx, u.w, u.c); err != nil {
+		if u.vr, _, err = s.probeVar(ctx, u.w, u.c, ys); err != nil {
 			return nil, err
 		}
 	}
@@ -1207,15 +1207,18 @@ func invertInfo(jtj *mat.SymDense, c float64, prec []float64) (*mat.SymDense, er
 	return inv, nil
 }
 
-// probeVar estimates diag((JᵀWJ/c + P)⁻¹): see VarProbed.
-func (s *solver) probeVar(ctx context.Context, w []float64, c float64) ([]float64, error) {
+// probeVar estimates diag((JᵀWJ/c + P)⁻¹): see VarProbed. It returns the
+// probe solutions y_k of the c = 1 round; a later round with c ≠ 1 passes
+// them as warm, and each solve starts from c·y_k, whose residual
+// -(c-1)·P·y_k is small under a weak prior.
+func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]float64) ([]float64, [][]float64, error) {
 	n, m := s.n, s.m
 	diagA := make([]float64, n)
 	s.diagJTJ(diagA, w)
 	for j := range n {
 		diagA[j] = diagA[j]/c + s.prec[j]
 		if !(diagA[j] > 0) {
-			return nil, fmt.Errorf("calibrate: parameter %d has no information: %w", j, ErrSingular)
+			return nil, nil, fmt.Errorf("calibrate: parameter %d has no information: %w", j, ErrSingular)
 		}
 	}
 	tm := make([]float64, m)
@@ -1232,9 +1235,10 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64) ([]float6
 	rng := rand.New(rand.NewPCG(s.s.Seed, 0x2545f4914f6cdd1d))
 	num := make([]float64, n)
 	z := make([]float64, n)
-	for range s.s.Probes {
+	var ys [][]float64
+	for k := range s.s.Probes {
 		if err := ctx.Err(); err != nil {
-			return nil, fmt.Errorf("calibrate: variance probes: %w", err)
+			return nil, nil, fmt.Errorf("calibrate: variance probes: %w", err)
 		}
 		for j := range z {
 			z[j] = 1
@@ -1242,28 +1246,44 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64) ([]float6
 				z[j] = -1
 			}
 		}
-		y, ok := pcg(apply, diagA, z, probeTol, s.s.CGMaxIter)
+		var start []float64
+		if warm != nil {
+			start = append([]float64(nil), warm[k]...)
+			floats.Scale(c, start)
+		}
+		y, ok := pcg(apply, diagA, z, start, probeTol, s.s.CGMaxIter)
 		if !ok {
-			return nil, fmt.Errorf("calibrate: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
+			return nil, nil, fmt.Errorf("calibrate: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
 		}
 		for j := range n {
 			num[j] += z[j] * y[j]
+		}
+		if warm == nil {
+			ys = append(ys, y)
 		}
 	}
 	v := make([]float64, n)
 	for j := range n {
 		v[j] = max(num[j]/float64(s.s.Probes), 1/diagA[j])
 	}
-	return v, nil
+	return v, ys, nil
 }
 
 // pcg solves A y = b by Jacobi-preconditioned conjugate gradients (Hestenes &
 // Stiefel 1952; Saad 2003, "Iterative Methods for Sparse Linear Systems",
 // Alg. 9.1).
-func pcg(apply func(dst, v []float64), diag, b []float64, tol float64, maxIter int) ([]float64, bool) {
+// y0, when not nil, is the starting guess and is overwritten.
+func pcg(apply func(dst, v []float64), diag, b, y0 []float64, tol float64, maxIter int) ([]float64, bool) {
 	n := len(b)
-	y := make([]float64, n)
+	y := y0
 	r := append([]float64(nil), b...)
+	if y == nil {
+		y = make([]float64, n)
+	} else {
+		ay := make([]float64, n)
+		apply(ay, y)
+		floats.Sub(r, ay)
+	}
 	z := make([]float64, n)
 	for j := range n {
 		z[j] = r[j] / diag[j]

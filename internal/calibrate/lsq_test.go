@@ -397,25 +397,33 @@ func TestMatrixFreeAgreesWithDense(t *testing.T) {
 
 // TestProbedVariance measures the matrix-free variance estimate (VarProbed)
 // against the exact dense variances on a mid-size problem and bounds its
-// error. The figures are logged; the bounds are what was measured with some
-// margin (no external source).
+// error, also when the covariance is scaled for model error (understated σ,
+// which exercises the second, warm-started round of probes). The figures are
+// logged; the bounds are what was measured with some margin (no external
+// source).
 func TestProbedVariance(t *testing.T) {
 	const n = 300
-	p := lsqtest.NewSparse(n, 2*n, 3, 0.03, 8)
-	prior := flatPrior(n, 1)
 	x0 := make([]float64, n)
-	exact, err := calibrate.Solve(context.Background(), p, x0, prior, &calibrate.Settings{Dense: true, OutlierZ: -1})
-	if err != nil {
-		t.Fatal(err)
-	}
+	prior := flatPrior(n, 1)
 	for _, tc := range []struct {
+		name              string
+		sigmaFactor       float64
 		probes            int
 		medianTol, maxTol float64
 	}{
-		{probes: 16, medianTol: 0.2, maxTol: 1.3},
-		{probes: 64, medianTol: 0.1, maxTol: 0.55},
+		{name: "consistent", sigmaFactor: 1, probes: 16, medianTol: 0.2, maxTol: 1.3},
+		{name: "consistent", sigmaFactor: 1, probes: 64, medianTol: 0.1, maxTol: 0.55},
+		{name: "understated sigma", sigmaFactor: 0.5, probes: 64, medianTol: 0.1, maxTol: 0.55},
 	} {
-		t.Run(fmt.Sprintf("probes=%d", tc.probes), func(t *testing.T) {
+		t.Run(fmt.Sprintf("%s/probes=%d", tc.name, tc.probes), func(t *testing.T) {
+			p := lsqtest.NewSparse(n, 2*n, 3, 0.03, 8)
+			for i := range p.Sigma {
+				p.Sigma[i] *= tc.sigmaFactor
+			}
+			exact, err := calibrate.Solve(context.Background(), p, x0, prior, &calibrate.Settings{Dense: true, OutlierZ: -1})
+			if err != nil {
+				t.Fatal(err)
+			}
 			res, err := calibrate.Solve(context.Background(), p, x0, prior,
 				&calibrate.Settings{DenseCovMax: -1, Probes: tc.probes, OutlierZ: -1, Seed: 1})
 			if err != nil {
@@ -423,6 +431,12 @@ func TestProbedVariance(t *testing.T) {
 			}
 			if res.VarMethod != calibrate.VarProbed || res.Cov != nil {
 				t.Fatalf("VarMethod %v, Cov nil %v; want probed and nil", res.VarMethod, res.Cov == nil)
+			}
+			if tc.sigmaFactor < 1 && !(res.CovScale > 2) {
+				t.Errorf("CovScale %v, want the model-error scaling (about 4)", res.CovScale)
+			}
+			if relErr(res.CovScale, exact.CovScale) > 1e-3 {
+				t.Errorf("CovScale %v, exact path %v", res.CovScale, exact.CovScale)
 			}
 			errs := make([]float64, n)
 			var lower int
@@ -434,8 +448,8 @@ func TestProbedVariance(t *testing.T) {
 			}
 			sort.Float64s(errs)
 			med, p90, worst := errs[n/2], errs[9*n/10], errs[n-1]
-			t.Logf("probes %d: variance relative error median %.3f, 90th pct %.3f, max %.3f; %d of %d below exact; effective params %.2f vs %.2f",
-				tc.probes, med, p90, worst, lower, n, res.EffectiveParams, exact.EffectiveParams)
+			t.Logf("%s, probes %d: variance relative error median %.3f, 90th pct %.3f, max %.3f; %d of %d below exact; effective params %.2f vs %.2f; scale %.3f",
+				tc.name, tc.probes, med, p90, worst, lower, n, res.EffectiveParams, exact.EffectiveParams, res.CovScale)
 			if med > tc.medianTol || worst > tc.maxTol {
 				t.Errorf("probes %d: median %.3f (limit %v), max %.3f (limit %v)", tc.probes, med, tc.medianTol, worst, tc.maxTol)
 			}
