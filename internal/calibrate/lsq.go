@@ -15,7 +15,8 @@
 //
 //   - Marquardt's diagonal scaling, kept as the running maximum of
 //     diag(JᵀWJ + P) as in Moré (1978), "The Levenberg-Marquardt algorithm:
-//     implementation and theory", Lecture Notes in Mathematics 630;
+//     implementation and theory", in Numerical Analysis, Dundee 1977,
+//     ed. G. A. Watson, Springer, pp. 105-116;
 //   - the damping update of Nielsen (1999), "Damping parameter in
 //     Marquardt's method", IMM-REP-1999-05, DTU: on a successful step
 //     λ ← λ·max(1/3, 1-(2ϱ-1)³), ν ← 2; on a failed one λ ← λν, ν ← 2ν,
@@ -221,10 +222,11 @@ func (l Loss) weight(r float64) float64 {
 type Scaling int
 
 const (
-	// ScaleAboveOne multiplies the data part of the covariance by the reduced
-	// chi-square when it exceeds one (the default).
+	// ScaleAboveOne divides the data part of the information, JᵀWJ, by the
+	// reduced chi-square when it exceeds one (the default): every σ_i is
+	// inflated by its square root, the prior is not.
 	ScaleAboveOne Scaling = iota
-	// ScaleAlways always multiplies by the reduced chi-square: the classical
+	// ScaleAlways always divides by the reduced chi-square: the classical
 	// regression convention when the σ_i are only relative weights (NIST StRD
 	// certified standard deviations use it).
 	ScaleAlways
@@ -389,7 +391,8 @@ func (v VarMethod) String() string {
 
 // Result is the outcome of Solve.
 type Result struct {
-	X []float64
+	X []float64 // the estimate
+
 	// Cov is the posterior covariance; nil on the matrix-free path above
 	// Settings.DenseCovMax parameters, where only Var is available.
 	Cov       *mat.SymDense
