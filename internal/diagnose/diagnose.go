@@ -1,0 +1,268 @@
+// Package diagnose turns a calibrated model's evidence into findings a
+// technician can act on: which branches are restricted or unexpectedly free,
+// which valves do not behave as their tables, which readings look wrong,
+// which branches cannot reach design flow, and which the survey leaves
+// undetermined. Each finding carries its evidence and a confidence.
+//
+// The package does no numerics beyond turning fitted intervals into
+// probabilities; callers gather the evidence from the calibration and the
+// plant model.
+package diagnose
+
+import (
+	"fmt"
+	"math"
+	"sort"
+)
+
+// Code identifies a kind of finding. Codes are stable: new ones are only
+// ever appended.
+type Code int
+
+// The kinds of finding.
+const (
+	Restricted       Code = iota + 1 // resistance well above design
+	Free                             // resistance well below design
+	ValveStuck                       // valve held one Kv while its setting was changed
+	ValveMisSet                      // valve sits elsewhere than its recorded setting
+	SuspectReading                   // reading far from the fitted model
+	CannotReachDesign                // short of design even with its valve fully open
+	Undetermined                     // the survey does not pin the branch down
+)
+
+var codeNames = [...]string{"", "restricted", "free", "valve-stuck", "valve-mis-set", "suspect-reading", "cannot-reach-design", "undetermined"}
+
+func (c Code) String() string {
+	if c > 0 && int(c) < len(codeNames) {
+		return codeNames[c]
+	}
+	return fmt.Sprintf("code(%d)", int(c))
+}
+
+// Severity orders findings for the report.
+type Severity int
+
+// Severities.
+const (
+	Info Severity = iota
+	Warning
+	Fault
+)
+
+func (s Severity) String() string {
+	return [...]string{"info", "warning", "fault"}[s]
+}
+
+// Thresholds are the limits behind the flags. The zero value means the
+// defaults of DefaultThresholds.
+type Thresholds struct {
+	// Restricted is the resistance ratio (fitted over design) above which a
+	// branch is called restricted. Default 1.5: by the square law a branch
+	// at constant differential then passes 1/sqrt(1.5) = 82 % of its flow,
+	// well outside a ±10 % band (the band is common practice; see the site
+	// help). The same ratio inverted (0.67) defines Free.
+	Restricted float64
+	// Confidence is the posterior probability a ratio must have of lying
+	// beyond its threshold to raise the flag. Default 0.95.
+	Confidence float64
+	// SuspectZ is the normalised residual above which a reading is suspect.
+	// Default 3 (a 3-sigma rule, common practice).
+	SuspectZ float64
+	// ShortFraction is how far below target (as a fraction) the open-valve
+	// flow must be to say a branch cannot reach design. Default 0.10,
+	// matching the usual lower tolerance.
+	ShortFraction float64
+}
+
+// DefaultThresholds returns the documented defaults.
+func DefaultThresholds() Thresholds {
+	return Thresholds{Restricted: 1.5, Confidence: 0.95, SuspectZ: 3, ShortFraction: 0.10}
+}
+
+func (t Thresholds) withDefaults() Thresholds {
+	d := DefaultThresholds()
+	if t.Restricted > 1 {
+		d.Restricted = t.Restricted
+	}
+	if t.Confidence > 0 && t.Confidence < 1 {
+		d.Confidence = t.Confidence
+	}
+	if t.SuspectZ > 0 {
+		d.SuspectZ = t.SuspectZ
+	}
+	if t.ShortFraction > 0 && t.ShortFraction < 1 {
+		d.ShortFraction = t.ShortFraction
+	}
+	return d
+}
+
+// Branch is the evidence about one branch.
+type Branch struct {
+	ID string
+	// Ratio is the fitted resistance over design, with the standard
+	// deviation of its logarithm (posterior, normal in log space).
+	Ratio, LogSD float64
+	Determined  bool
+	// Valve holds the valve hypothesis test, when one was made.
+	Valve *Valve
+	// Target is the flow to reach; OpenFlow what the calibrated model gives
+	// with the branch's valve fully open at the present pump (NaN if not
+	// computed).
+	Target, OpenFlow float64
+	// Measured lists what the branch was measured with, in words, to
+	// suggest the reading that would pin it down.
+	Measured []string
+	HasFlow  bool // an independent flow reading exists
+	HasValve bool // the branch has a balancing valve
+}
+
+// Valve is the outcome of comparing hypotheses about a valve.
+type Valve struct {
+	Hypothesis string  // "follows its table", "holds one Kv", "set elsewhere"
+	DeltaChi2  float64 // improvement of chi-square over "follows its table"
+	Recorded   float64 // setting recorded on the sheets
+	Implied    float64 // setting the data imply (NaN if none)
+	Unit       string
+}
+
+// Reading is the evidence about one reading.
+type Reading struct {
+	Label      string // where it came from, e.g. "readings.csv:12"
+	Where      string // branch ID, pump or header
+	What       string // the quantity in words
+	Normalised float64
+	Outlier    bool // removed by the fit's outlier test
+}
+
+// Finding is one flag with its evidence.
+type Finding struct {
+	Code       Code
+	Severity   Severity
+	Branch     string // "" for a finding about a reading at the pump or header
+	Reading    string // label of the reading concerned, if any
+	Message    string // what is wrong and the likely cause
+	Evidence   string // the numbers behind it
+	Confidence float64
+	Action     string // what to do about it
+}
+
+// Check returns the findings, most severe first, then by branch order.
+func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
+	t = t.withDefaults()
+	var out []Finding
+	lnThr := math.Log(t.Restricted)
+	for _, b := range branches {
+		if !b.Determined {
+			out = append(out, Finding{Code: Undetermined, Severity: Info, Branch: b.ID,
+				Message:  "the survey does not determine this branch's resistance; the model keeps it near design",
+				Evidence: fmt.Sprintf("posterior sd of the resistance ratio's logarithm %.2f; measured with: %s", b.LogSD, list(b.Measured)),
+				Action:   suggestReading(b)})
+		}
+		if b.LogSD > 0 && b.Ratio > 0 {
+			x := math.Log(b.Ratio)
+			if p := normalCDF((x - lnThr) / b.LogSD); p >= t.Confidence {
+				out = append(out, Finding{Code: Restricted, Severity: Fault, Branch: b.ID, Confidence: p,
+					Message:  "resistance well above design: a fouled coil or strainer, or a partly closed isolating valve",
+					Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio > %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), t.Restricted, p),
+					Action:   "check strainers, isolating valves and the terminal for fouling before setting the valve"})
+			}
+			if p := normalCDF((-lnThr - x) / b.LogSD); p >= t.Confidence {
+				out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
+					Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
+					Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
+					Action:   "check for an open bypass or a terminal that differs from the schedule"})
+			}
+		}
+		if v := b.Valve; v != nil {
+			conf := chi2Confidence(v.DeltaChi2)
+			switch v.Hypothesis {
+			case "holds one Kv":
+				out = append(out, Finding{Code: ValveStuck, Severity: Fault, Branch: b.ID, Confidence: conf,
+					Message:  "the valve did not change its Kv when its setting was changed: seized, or its handwheel slips",
+					Evidence: fmt.Sprintf("one fixed Kv explains the readings better than the valve's table (chi-square lower by %.1f)", v.DeltaChi2),
+					Action:   "free or replace the valve before balancing; re-read after moving it"})
+			case "set elsewhere":
+				ev := fmt.Sprintf("the readings fit the valve's table at a different opening (chi-square lower by %.1f)", v.DeltaChi2)
+				if !math.IsNaN(v.Implied) {
+					ev = fmt.Sprintf("recorded at %g %s, the readings imply about %.1f %s (chi-square lower by %.1f)", v.Recorded, v.Unit, v.Implied, v.Unit, v.DeltaChi2)
+				}
+				out = append(out, Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: conf,
+					Message:  "the valve does not sit at its recorded setting, or a different valve model is fitted",
+					Evidence: ev,
+					Action:   "check the handwheel's memory stop and the valve model on site"})
+			}
+		}
+		if !math.IsNaN(b.OpenFlow) && b.Target > 0 && b.OpenFlow < (1-t.ShortFraction)*b.Target {
+			out = append(out, Finding{Code: CannotReachDesign, Severity: Fault, Branch: b.ID, Confidence: math.NaN(),
+				Message:  "cannot reach its target flow even with its valve fully open at the present pump",
+				Evidence: fmt.Sprintf("open-valve flow %.0f %% of target", 100*b.OpenFlow/b.Target),
+				Action:   "clean the branch if it is restricted, or raise the pump head (see the plan)"})
+		}
+	}
+	for _, r := range readings {
+		if r.Outlier || math.Abs(r.Normalised) > t.SuspectZ {
+			msg := "reading far from what the rest of the survey implies: misread, wrong unit, wrong test points or wrong valve setting noted"
+			ev := fmt.Sprintf("normalised residual %.1f", r.Normalised)
+			if r.Outlier {
+				ev += "; left out of the fit by the outlier test"
+			}
+			out = append(out, Finding{Code: SuspectReading, Severity: Warning, Branch: branchOf(r), Reading: r.Label,
+				Confidence: 2*normalCDF(math.Abs(r.Normalised)) - 1, Message: msg, Evidence: ev,
+				Action: fmt.Sprintf("re-take the %s reading at %s", r.What, r.Where)})
+		}
+	}
+	order := map[string]int{}
+	for i, b := range branches {
+		order[b.ID] = i
+	}
+	sort.SliceStable(out, func(i, j int) bool {
+		if out[i].Severity != out[j].Severity {
+			return out[i].Severity > out[j].Severity
+		}
+		return order[out[i].Branch] < order[out[j].Branch]
+	})
+	return out
+}
+
+func branchOf(r Reading) string {
+	if r.Where == "pump" || r.Where == "header" {
+		return ""
+	}
+	return r.Where
+}
+
+func suggestReading(b Branch) string {
+	switch {
+	case !b.HasFlow && b.HasValve:
+		return "read the flow at the balancing valve's test points, or better with a clamp-on meter, and the differential across the whole branch"
+	case !b.HasFlow:
+		return "take a clamp-on flow reading on the branch"
+	default:
+		return "read the differential across the whole branch, or take a second state with the valve moved"
+	}
+}
+
+func list(s []string) string {
+	if len(s) == 0 {
+		return "nothing"
+	}
+	out := s[0]
+	for _, x := range s[1:] {
+		out += ", " + x
+	}
+	return out
+}
+
+// normalCDF is the standard normal distribution function.
+func normalCDF(z float64) float64 { return 0.5 * math.Erfc(-z/math.Sqrt2) }
+
+// chi2Confidence turns a chi-square improvement of one extra parameter into
+// the probability that the simpler hypothesis is wrong (likelihood-ratio
+// test, Wilks 1938: the improvement is chi-square with one degree of freedom
+// under the simpler hypothesis).
+func chi2Confidence(d float64) float64 {
+	if !(d > 0) {
+		return 0
+	}
+	return 2*normalCDF(math.Sqrt(d)) - 1
+}

@@ -1,0 +1,101 @@
+package diagnose
+
+import (
+	"math"
+	"testing"
+)
+
+// TestNormalCDF checks the distribution function against standard normal
+// tables (Abramowitz & Stegun, Handbook of Mathematical Functions, Table
+// 26.1): Phi(1.645) = 0.95002, Phi(1.96) = 0.97500, Phi(3) = 0.99865.
+func TestNormalCDF(t *testing.T) {
+	for _, c := range []struct{ z, want float64 }{{0, 0.5}, {1.645, 0.95002}, {1.96, 0.97500}, {3, 0.99865}, {-1.96, 0.02500}} {
+		if got := normalCDF(c.z); math.Abs(got-c.want) > 1e-5 {
+			t.Errorf("normalCDF(%g) = %.6f, want %.5f", c.z, got, c.want)
+		}
+	}
+}
+
+// TestChi2Confidence checks the one-degree-of-freedom chi-square test
+// against its table values (Abramowitz & Stegun Table 26.8: the 95 % point of
+// chi-square with 1 degree of freedom is 3.841, the 99 % point 6.635).
+func TestChi2Confidence(t *testing.T) {
+	for _, c := range []struct{ d, want float64 }{{3.841, 0.95}, {6.635, 0.99}, {0, 0}} {
+		if got := chi2Confidence(c.d); math.Abs(got-c.want) > 1e-4 {
+			t.Errorf("chi2Confidence(%g) = %.5f, want %.3f", c.d, got, c.want)
+		}
+	}
+}
+
+func codes(fs []Finding, branch string) []Code {
+	var out []Code
+	for _, f := range fs {
+		if f.Branch == branch {
+			out = append(out, f.Code)
+		}
+	}
+	return out
+}
+
+func TestCheck(t *testing.T) {
+	sd := 0.1
+	// At ratio 1.5*exp(1.645 sd) the probability of exceeding 1.5 is 0.95
+	// (the one-sided 95 % normal point, A&S Table 26.1).
+	edge := 1.5 * math.Exp(1.645*sd)
+	cases := []struct {
+		name string
+		b    Branch
+		want []Code
+	}{
+		{"clean", Branch{ID: "x", Ratio: 1.05, LogSD: sd, Determined: true, OpenFlow: math.NaN()}, nil},
+		{"fouled", Branch{ID: "x", Ratio: 3, LogSD: sd, Determined: true, OpenFlow: math.NaN()}, []Code{Restricted}},
+		{"just above the confidence edge", Branch{ID: "x", Ratio: edge * 1.01, LogSD: sd, Determined: true, OpenFlow: math.NaN()}, []Code{Restricted}},
+		{"just below the confidence edge", Branch{ID: "x", Ratio: edge * 0.99, LogSD: sd, Determined: true, OpenFlow: math.NaN()}, nil},
+		{"high but uncertain", Branch{ID: "x", Ratio: 2, LogSD: 0.5, Determined: true, OpenFlow: math.NaN()}, nil},
+		{"free", Branch{ID: "x", Ratio: 0.3, LogSD: sd, Determined: true, OpenFlow: math.NaN()}, []Code{Free}},
+		{"undetermined", Branch{ID: "x", Ratio: 1, LogSD: 1, OpenFlow: math.NaN()}, []Code{Undetermined}},
+		{"stuck valve", Branch{ID: "x", Ratio: 1, LogSD: sd, Determined: true, OpenFlow: math.NaN(), Valve: &Valve{Hypothesis: "holds one Kv", DeltaChi2: 20}}, []Code{ValveStuck}},
+		{"mis-set valve", Branch{ID: "x", Ratio: 1, LogSD: sd, Determined: true, OpenFlow: math.NaN(), Valve: &Valve{Hypothesis: "set elsewhere", DeltaChi2: 12, Recorded: 3, Implied: 1.2, Unit: "turns"}}, []Code{ValveMisSet}},
+		{"valve follows its table", Branch{ID: "x", Ratio: 1, LogSD: sd, Determined: true, OpenFlow: math.NaN(), Valve: &Valve{Hypothesis: "follows its table"}}, nil},
+		{"short with valve open", Branch{ID: "x", Ratio: 1, LogSD: sd, Determined: true, Target: 1, OpenFlow: 0.85}, []Code{CannotReachDesign}},
+		{"within band with valve open", Branch{ID: "x", Ratio: 1, LogSD: sd, Determined: true, Target: 1, OpenFlow: 0.95}, nil},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			got := codes(Check([]Branch{c.b}, nil, Thresholds{}), "x")
+			if len(got) != len(c.want) {
+				t.Fatalf("Check codes = %v, want %v", got, c.want)
+			}
+			for i := range got {
+				if got[i] != c.want[i] {
+					t.Fatalf("Check codes = %v, want %v", got, c.want)
+				}
+			}
+		})
+	}
+}
+
+func TestSuspectReadings(t *testing.T) {
+	rs := []Reading{
+		{Label: "readings.csv:4", Where: "a", What: "flow", Normalised: 0.8},
+		{Label: "readings.csv:5", Where: "a", What: "flow", Normalised: -4.2},
+		{Label: "readings.csv:6", Where: "pump", What: "pump diff", Normalised: 1, Outlier: true},
+	}
+	fs := Check(nil, rs, Thresholds{})
+	if len(fs) != 2 {
+		t.Fatalf("Check found %d suspect readings, want 2: %+v", len(fs), fs)
+	}
+	if fs[0].Reading != "readings.csv:5" || fs[1].Reading != "readings.csv:6" || fs[1].Branch != "" {
+		t.Errorf("suspect readings %q (%q) and %q (%q), want readings.csv:5 at a and readings.csv:6 at the pump", fs[0].Reading, fs[0].Branch, fs[1].Reading, fs[1].Branch)
+	}
+}
+
+func TestOrderBySeverity(t *testing.T) {
+	fs := Check([]Branch{
+		{ID: "a", Ratio: 1, LogSD: 1, OpenFlow: math.NaN()},
+		{ID: "b", Ratio: 4, LogSD: 0.1, Determined: true, OpenFlow: math.NaN()},
+	}, nil, Thresholds{})
+	if len(fs) != 2 || fs[0].Code != Restricted || fs[1].Code != Undetermined {
+		t.Fatalf("Check order = %+v, want the fault before the info", fs)
+	}
+}
