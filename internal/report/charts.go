@@ -28,7 +28,11 @@ const (
 	colGrey       = "#777777" // connectors
 )
 
-var palette = opts.Colors{colBlue, colOrange, colGreen, colVermillion, colPurple, colSky, colBlack}
+// palette is the series colour cycle; every series sets its own colour,
+// so it only matters for anything echarts adds itself.
+func palette() opts.Colors {
+	return opts.Colors{colBlue, colOrange, colGreen, colVermillion, colPurple, colSky, colBlack}
+}
 
 // Chart sizes in CSS pixels: 680 px is 180 mm at 96 dpi, the printable width
 // of A4 with 15 mm margins, so charts print at their screen size.
@@ -168,7 +172,7 @@ func base(id string, w, h int, extra ...charts.GlobalOpts) *charts.Line {
 	l.SetGlobalOptions(
 		charts.WithInitializationOpts(opts.Initialization{ChartID: id, Width: fmt.Sprintf("%dpx", w), Height: fmt.Sprintf("%dpx", h), Theme: "white"}),
 		charts.WithAnimation(false),
-		charts.WithColorsOpts(palette),
+		charts.WithColorsOpts(palette()),
 		charts.WithTooltipOpts(opts.Tooltip{Show: opts.Bool(true), Trigger: "item"}),
 	)
 	l.SetGlobalOptions(extra...)

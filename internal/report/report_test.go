@@ -347,6 +347,14 @@ func TestWriteMissingValues(t *testing.T) {
 	}
 }
 
+func TestWriteEmpty(t *testing.T) {
+	out := render(t, Input{})
+	checkPage(t, out)
+	if n := bytes.Count(out, []byte(`<div class="chart"`)); n != 1 {
+		t.Errorf("empty Input: %d charts, want 1 (the circuit chart)", n)
+	}
+}
+
 func TestWriteDefaultCautions(t *testing.T) {
 	in := sampleInput()
 	in.Cautions = nil
