@@ -1,0 +1,298 @@
+// Package balance computes one set of balancing-valve settings that gives
+// every branch of a plant its target flow at the lowest pump head, the pump
+// speed or differential set-point that then serves the circuit, the energy
+// saved, and the field sheet a technician works from. Where proportional
+// balancing reaches the same end by repeated passes of measuring and
+// throttling, the plan gives every setting at once from the (calibrated or
+// design) model.
+//
+// # Method
+//
+// The circuit is a tree: ladders of branches on supply and return headers,
+// risers feeding their own ladders. That makes the calculation exact and
+// O(n) in the number of branches, with no iteration:
+//
+//  1. Targets. Every terminal branch gets its target flow q_i (the site's
+//     target or design flow, times Options.Scale, or an override); a riser
+//     carries the sum of its sub-branches. Continuity then fixes the flow in
+//     every header segment: in direct return a segment carries the branches
+//     beyond it on both headers; in reverse return the supply segment
+//     carries the branches beyond it and the return segment those before
+//     it, the return leg the total. So every header drop is known, and with
+//     it the loss of the path from the ladder's source connections to each
+//     branch's take-offs (supply and return together).
+//  2. Need. The differential a branch needs across its take-offs with its
+//     valve fully open is its fixed parts (resistance multiplier applied) and
+//     its open valve (Kv scale applied) at q_i, plus, for a riser, what its
+//     own ladder needs, recursively. A ladder needs the largest need-plus-path
+//     loss of its branches; that branch is its index, whose valve stays fully
+//     open. Descending from the source through the indices gives the index
+//     path; the top ladder's need is the least source differential that can
+//     give every branch its target (Plan.Least).
+//  3. Settings. Going back down with that differential, every branch sees
+//     the source differential less its path loss; its valve absorbs the
+//     surplus over its fixed parts (and, for a riser with a valve, over what
+//     its ladder needs, which then gets exactly its need). The valve must
+//     drop Δp_v at q_i, so Kv = KvFromDrop(q_i, Δp_v) divided by the valve's
+//     Kv scale, and the setting is the characteristic's SettingFor(Kv). A
+//     riser without a valve passes its surplus on to its ladder.
+//  4. Pump. With a pump curve, the speed ratio s is the one at which the
+//     pump (affinity laws, head multiplier applied) gives the least
+//     differential at the total target flow. With a differential boundary
+//     the source differential is the set-point.
+//  5. Rounding. Settings are rounded to the handwheel's resolution (marks
+//     counted from the lowest setting). Nearest rounds each to the nearest
+//     mark. Smart picks, per valve, the mark below or above whose flow at the
+//     same branch differential (square law) lies nearest the middle of the
+//     tolerance band, then re-solves and flips the valves of branches still
+//     outside the band where the other mark is nearer it (a few passes).
+//     The index valve stays fully open.
+//  6. Re-solve. The network is solved (plant.Solve) with the rounded
+//     settings, and the pump speed (or source differential) is found by a
+//     1-D root search on the full network so the index branch again gets its
+//     target. With Smart rounding, when a branch is still below the band the
+//     pump is raised until the lowest branch reaches the band's lower edge
+//     (a warning says so). The flows reported are those of this solve. If
+//     the speed exceeds the drive's maximum the plan is solved at the
+//     maximum and the shortfalls are reported with what would help.
+//
+// Because every quantity is computed from the same element laws the network
+// solver uses, solving with the unrounded settings at the computed speed
+// returns the targets to the solver's tolerance (tested).
+//
+// # Quantities reported
+//
+// The valve differential at the new setting and planned flow is the check
+// reading at the valve's test points, valid once every valve is set and the
+// pump runs as planned. The authority is Δp_valve / Δp_branch at the plan:
+// the drop across the valve at its set position over the differential
+// across the branch take-offs — the form N = Δp_v / Δp_v,closed of
+// shared/references.md §3.5 (the closed valve sees the whole branch
+// differential), evaluated at the set position rather than fully open, which
+// is what a regulating valve that is not a control valve works at. For a
+// riser the branch differential includes its sub-circuit.
+//
+// Energy: hydraulic power is flow times pump (source) differential, before
+// (as-found settings at the present speed or set-point) and after; electrical
+// power divides by the pump and motor efficiencies of the site sheet, both
+// held constant between the two duty points (stated in the plan's
+// assumptions; approximate).
+//
+// Uncertainty: given standard deviations of the calibrated log-multipliers,
+// the band of each predicted flow is the linearised propagation through the
+// whole network (implicit-function sensitivities of the final solve, so
+// header and pump interactions are included), parameters taken as
+// independent, pump speed (or source differential) held at the plan:
+// σ²(ln q_i) = Σ_j (∂ln q_i/∂ln θ_j)² σ_j², band = predicted × exp(±k σ) with
+// k = Uncertainty.Coverage (2 by default, about 95 % for a normal ln q).
+//
+// # Walk order
+//
+// Branches are listed in the order a technician walks: take-off order along
+// the headers, and the sub-branches of a riser before the riser itself
+// (depth first, post-order). Setting the terminals of a riser and then its
+// valve on the way back to the main header keeps each riser one visit; since
+// every setting comes from the plan, the order does not change the result.
+package balance
+
+import (
+	"errors"
+	"math"
+
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// Sentinel causes wrapped by the errors of this package.
+var (
+	// ErrInput: the options, targets or multipliers are not usable.
+	ErrInput = errors.New("invalid balancing input")
+	// ErrSolve: the network could not be solved for the plan.
+	ErrSolve = errors.New("cannot solve plan")
+)
+
+// RoundMode is how exact settings are moved to the handwheel's marks.
+type RoundMode int
+
+// Rounding modes.
+const (
+	// Nearest rounds each setting to its nearest mark.
+	Nearest RoundMode = iota
+	// Smart chooses the mark below or above per valve to keep every branch
+	// inside the tolerance band, re-solving the network between passes.
+	Smart
+)
+
+// String returns the mode's name.
+func (r RoundMode) String() string {
+	switch r {
+	case Nearest:
+		return "nearest"
+	case Smart:
+		return "smart"
+	}
+	return "round(?)"
+}
+
+// Options tunes Compute. A nil *Options or a zero field means the default.
+type Options struct {
+	// Scale multiplies every branch's target (the site's target or design
+	// flow); 0 means 1.
+	Scale float64
+	// Targets overrides the target of terminal branches, m3/s, by ID.
+	Targets map[string]float64
+	// Rounding is the rounding mode; the zero value is Nearest.
+	Rounding RoundMode
+	// Uncertainty gives the calibration's spread, for the band of each
+	// predicted flow; nil for none.
+	Uncertainty *Uncertainty
+	// MinValveDiff overrides every valve model's smallest reliable
+	// differential, Pa; 0 uses the model's (3 kPa when it has none).
+	MinValveDiff float64
+}
+
+// Uncertainty is the spread of the calibrated multipliers: standard
+// deviations of their natural logarithms (0 where a parameter is known).
+type Uncertainty struct {
+	LnResistance []float64 // per branch, of the resistance multiplier
+	LnKvScale    []float64 // per branch, of the valve's Kv scale
+	LnHeader     float64   // of the header multiplier
+	LnPumpHead   float64   // of the pump head multiplier
+	// Coverage is the number of standard deviations each side of the band;
+	// 0 means 2.
+	Coverage float64
+}
+
+// Plan is a balancing plan.
+type Plan struct {
+	// DesignOnly is set by the caller when the plan was computed from the
+	// design model, not a calibrated one; the field sheet then says so.
+	DesignOnly bool
+	Rounding   RoundMode
+	// Index is the index branch (a terminal branch), IndexPath the branches
+	// from the main header down to it (risers first).
+	Index     string
+	IndexPath []string
+	// Least is the least source differential that gives every branch its
+	// target with exact settings, Pa; Required the source differential of
+	// the plan with rounded settings, Pa (both at the pump, or across the
+	// source connections without one).
+	Least, Required float64
+	// TotalFlow is the planned flow through the source, m3/s.
+	TotalFlow float64
+	Pump      PumpPlan
+	// Branches are in walk order (see the package comment).
+	Branches []BranchPlan
+	Unmet    []Shortfall
+	Warnings []string
+	// ToleranceLow and ToleranceHigh are the band used, as fractions of
+	// target (-0.1, +0.1 for ±10 %).
+	ToleranceLow, ToleranceHigh float64
+	// Settings are the new settings by model branch index (NaN without a
+	// valve), ready for a plant.State; Speed and Differential the boundary
+	// of the plan (Speed 0 without a pump curve).
+	Settings     []float64
+	Speed        float64
+	Differential float64
+	// Banded reports whether the uncertainty bands come from an
+	// Uncertainty; without one they collapse onto the prediction.
+	Banded bool
+}
+
+// OperatingPoint is a pump's duty.
+type OperatingPoint struct {
+	Flow         float64 // m3/s
+	Differential float64 // Pa
+	Head         float64 // m of the circulated liquid
+	Speed        float64 // ratio to nominal; 0 without a pump curve
+}
+
+// PumpPlan is what the plan asks of the pump and what it saves.
+type PumpPlan struct {
+	Boundary site.BoundaryKind
+	// HaveBefore reports whether the before figures could be worked out.
+	HaveBefore    bool
+	Before, After OperatingPoint
+	// SpeedRatio is the speed to run at (pump curve only; NaN otherwise),
+	// NeededSpeed the speed the targets need (above MaxSpeed when the pump
+	// falls short).
+	SpeedRatio, NeededSpeed, MaxSpeed float64
+	// TrimRatio is the impeller diameter ratio that would give the planned
+	// duty at nominal speed (a fixed-speed alternative; approximate); NaN
+	// when not applicable.
+	TrimRatio float64
+	// Sensor and SetPoint: the differential a controller should hold at its
+	// sensor ("pump", or a branch ID) for the plan, Pa.
+	Sensor   string
+	SetPoint float64
+	// Powers in W.
+	HydraulicBefore, HydraulicAfter   float64
+	ElectricalBefore, ElectricalAfter float64
+	// AnnualEnergySaving is in kWh per year (negative when the plan uses
+	// more); AnnualCostSaving in Currency, NaN without an energy price.
+	AnnualEnergySaving float64
+	AnnualCostSaving   float64
+	Currency           string
+	Assumptions        []string
+}
+
+// BranchPlan is the plan for one branch.
+type BranchPlan struct {
+	ID, Parent string
+	Depth      int  // 0 on the main headers
+	Riser      bool // feeds sub-branches
+	OnIndex    bool // on the index path (valve fully open)
+	// Valve is the valve model's name and Unit its setting unit; both empty
+	// without a balancing valve.
+	Valve, Unit string
+	// Current is the as-found setting, Exact the unrounded plan and New the
+	// rounded setting to set; NaN without a valve.
+	Current, Exact, New float64
+	// KvRequired is the flow coefficient the valve's table must give for the
+	// exact plan (m3/h at 1 bar, before any Kv scale); NaN without a valve.
+	KvRequired float64
+	// Target, Design and Predicted flows, m3/s; Predicted is from the
+	// network re-solved with the rounded settings.
+	Target, Design, Predicted float64
+	// Percent is Predicted as % of Target, PercentDesign as % of Design.
+	Percent, PercentDesign float64
+	// BandLow and BandHigh bound Percent under the calibration's
+	// uncertainty (equal to Percent without one).
+	BandLow, BandHigh            float64
+	InTolerance, BandInTolerance bool
+	// ValveDiff is the differential across the valve at the new setting and
+	// predicted flow, Pa: the check reading at its test points.
+	ValveDiff float64
+	// BranchDiff is the differential across the branch's take-offs, Pa.
+	BranchDiff float64
+	// Authority is ValveDiff / BranchDiff (NaN without a valve).
+	Authority float64
+	Notes     []string
+}
+
+// Shortfall is a branch the plan cannot bring into its tolerance band.
+type Shortfall struct {
+	ID        string
+	Target    float64 // m3/s
+	Predicted float64 // m3/s
+	Percent   float64 // % of target
+	Reason    string
+}
+
+// State returns the plant state of the plan: its settings and boundary.
+func (p *Plan) State() plant.State {
+	return plant.State{Label: "plan", Settings: append([]float64(nil), p.Settings...), Speed: p.Speed, Differential: p.Differential}
+}
+
+// InTolerance returns how many branches the plan predicts inside the band.
+func (p *Plan) InTolerance() int {
+	var n int
+	for _, b := range p.Branches {
+		if b.InTolerance {
+			n++
+		}
+	}
+	return n
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

@@ -1,0 +1,97 @@
+package balance
+
+import (
+	"fmt"
+	"math"
+
+	"flowset/internal/plant"
+)
+
+// band propagates the calibration's uncertainty to every predicted flow by
+// the implicit-function sensitivities of the final solution: one
+// Sensitivity per uncertain parameter, each O(n) on a ladder's narrow band.
+// For a multiplier θ on a link's drop, ∂Δp/∂ln θ is the drop it scales (the
+// fixed parts for a resistance multiplier, all header segments for the
+// header multiplier, the pump's negative drop for its head multiplier) and
+// -2 Δp_valve for a Kv scale (Δp ∝ Kv⁻²).
+func (pl *planner) band(sol *plant.Solved) error {
+	u := pl.opt.Uncertainty
+	m := pl.m
+	n := len(m.Branches)
+	nl := sol.Built.Net.NumLinks()
+	dh := make([]float64, nl)
+	variance := make([]float64, n)
+	add := func(sigma float64) error {
+		dq, _, err := sol.Sol.Sensitivity(dh)
+		if err != nil {
+			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
+		}
+		for i := range n {
+			d := pl.flowDelta(sol, i, dq) / sol.Flow(i) * sigma
+			variance[i] += d * d
+		}
+		clear(dh)
+		return nil
+	}
+	for j := range n {
+		l := sol.Built.Branch[m.Branches[j].ID]
+		if l < 0 {
+			continue
+		}
+		if j < len(u.LnResistance) && u.LnResistance[j] > 0 {
+			if f := m.FixedElement(j, pl.p.Resistance[j]); f != nil {
+				dh[l], _ = f.Drop(sol.Flow(j), m.Fluid)
+				if err := add(u.LnResistance[j]); err != nil {
+					return err
+				}
+			}
+		}
+		if j < len(u.LnKvScale) && u.LnKvScale[j] > 0 && m.Branches[j].Valve != nil {
+			dh[l] = -2 * sol.ValveDiff(j)
+			if err := add(u.LnKvScale[j]); err != nil {
+				return err
+			}
+		}
+	}
+	if u.LnHeader > 0 && len(sol.Built.Headers) > 0 {
+		for _, l := range sol.Built.Headers {
+			dh[l] = sol.Sol.Drop[l]
+		}
+		if err := add(u.LnHeader); err != nil {
+			return err
+		}
+	}
+	if u.LnPumpHead > 0 && sol.Built.PumpLink >= 0 {
+		dh[sol.Built.PumpLink] = sol.Sol.Drop[sol.Built.PumpLink]
+		if err := add(u.LnPumpHead); err != nil {
+			return err
+		}
+	}
+	k := u.Coverage
+	if k == 0 {
+		k = 2
+	}
+	pl.plan.Banded = true
+	for b := range pl.plan.Branches {
+		bp := &pl.plan.Branches[b]
+		i, _ := m.Index(bp.ID)
+		sd := math.Sqrt(variance[i])
+		bp.BandLow, bp.BandHigh = bp.Percent*math.Exp(-k*sd), bp.Percent*math.Exp(k*sd)
+		bp.BandInTolerance = pl.inBand(bp.BandLow) && pl.inBand(bp.BandHigh)
+	}
+	return nil
+}
+
+// flowDelta is branch i's share of the link flow changes dq: its link's, or
+// a riser without parts' children's summed, as plant.Solved.Flow does.
+func (pl *planner) flowDelta(sol *plant.Solved, i int, dq []float64) float64 {
+	b := &pl.m.Branches[i]
+	if l := sol.Built.Branch[b.ID]; l >= 0 {
+		return dq[l]
+	}
+	var s float64
+	for _, c := range b.Children {
+		s += pl.flowDelta(sol, c, dq)
+	}
+	return s
+}

@@ -1,0 +1,156 @@
+package balance
+
+import (
+	"fmt"
+	"math"
+
+	"flowset/internal/plant"
+)
+
+// Default smallest reliable valve differential when a valve model gives
+// none: 3 kPa across a variable-orifice valve, common practice
+// (shared/references.md §6).
+const defaultMinDiff = 3e3
+
+// lowTravel is the fraction of a valve's range below which a setting is in
+// the part of the range where Kv is least certain (common practice, no
+// source: handwheel tables are steepest and valve tolerances widest there).
+const lowTravel = 0.25
+
+// walk returns the branch indices in walk order: take-off order, the
+// sub-branches of a riser before the riser.
+func walk(m *plant.Model) []int {
+	out := make([]int, 0, len(m.Branches))
+	var visit func(ids []int)
+	visit = func(ids []int) {
+		for _, i := range ids {
+			if m.Branches[i].Riser() {
+				visit(m.Branches[i].Children)
+			}
+			out = append(out, i)
+		}
+	}
+	visit(m.Top())
+	return out
+}
+
+// branches fills the plan's branch list from the final solution.
+func (pl *planner) branches(sol *plant.Solved) error {
+	m, ex := pl.m, pl.ex
+	depth := make([]int, len(m.Branches))
+	var setDepth func(ids []int, d int)
+	setDepth = func(ids []int, d int) {
+		for _, i := range ids {
+			depth[i] = d
+			setDepth(m.Branches[i].Children, d+1)
+		}
+	}
+	setDepth(m.Top(), 0)
+	for _, i := range walk(m) {
+		b := &m.Branches[i]
+		bp := BranchPlan{
+			ID: b.ID, Parent: b.Parent, Depth: depth[i], Riser: b.Riser(), OnIndex: ex.index[i],
+			Current: math.NaN(), Exact: math.NaN(), New: math.NaN(), KvRequired: math.NaN(), Authority: math.NaN(),
+			Target: ex.q[i], Design: b.Design, Predicted: sol.Flow(i), BranchDiff: sol.BranchDiff(i),
+		}
+		if b.Riser() {
+			var d float64
+			for _, c := range b.Children {
+				d += m.Branches[c].Design
+			}
+			bp.Design = d
+		}
+		bp.Percent = 100 * bp.Predicted / bp.Target
+		bp.PercentDesign = 100 * bp.Predicted / bp.Design
+		bp.BandLow, bp.BandHigh = bp.Percent, bp.Percent
+		bp.InTolerance = pl.inBand(bp.Percent)
+		bp.BandInTolerance = bp.InTolerance
+		if !finite(bp.Predicted) || !finite(bp.BranchDiff) {
+			return fmt.Errorf("branch %q: predicted flow %g m3/s: %w", b.ID, bp.Predicted, ErrSolve)
+		}
+		if ex.index[i] && !b.Riser() {
+			bp.Notes = append(bp.Notes, "index circuit: valve fully open, the pump is set for this branch")
+		} else if ex.index[i] {
+			bp.Notes = append(bp.Notes, "on the index path: valve fully open")
+		}
+		if b.Valve != nil {
+			pl.valveNotes(i, &bp, sol)
+		} else if s := ex.surplus[i]; !b.Riser() && s > 0.01*ex.avail[i] {
+			bp.Notes = append(bp.Notes, fmt.Sprintf("no balancing valve: %.1f kPa more than the branch needs cannot be taken off, so it runs above target", s/1e3))
+		}
+		pl.plan.Branches = append(pl.plan.Branches, bp)
+	}
+	return nil
+}
+
+func (pl *planner) valveNotes(i int, bp *BranchPlan, sol *plant.Solved) {
+	m, ex := pl.m, pl.ex
+	b := &m.Branches[i]
+	if b.ValveModel != nil {
+		bp.Valve, bp.Unit = b.ValveModel.Name, b.ValveModel.Unit
+		if !b.ValveModel.Table() {
+			bp.Unit = "%"
+		}
+	}
+	bp.Current, bp.Exact, bp.New, bp.KvRequired = b.AsFound, ex.setting[i], pl.plan.Settings[i], ex.kv[i]
+	bp.ValveDiff = sol.ValveDiff(i)
+	if bp.BranchDiff > 0 {
+		bp.Authority = bp.ValveDiff / bp.BranchDiff
+	}
+	minDiff := pl.opt.MinValveDiff
+	if minDiff == 0 && b.ValveModel != nil {
+		minDiff = b.ValveModel.MinDiff
+	}
+	if !(minDiff > 0) {
+		minDiff = defaultMinDiff
+	}
+	if bp.ValveDiff < minDiff {
+		bp.Notes = append(bp.Notes, fmt.Sprintf("valve differential %.2f kPa is below the %.1f kPa that reads reliably: the flow reading at this valve is poor", bp.ValveDiff/1e3, minDiff/1e3))
+	}
+	lo, hi := b.Valve.Range()
+	if hi > lo && (bp.New-lo)/(hi-lo) < lowTravel {
+		bp.Notes = append(bp.Notes, "setting in the lowest quarter of the valve's range, where its Kv is least certain; a smaller valve would set more precisely")
+	}
+	if ex.clamped[i] {
+		bp.Notes = append(bp.Notes, fmt.Sprintf("valve too large: even fully throttled it passes more than the target (needs Kv %.3g, its lowest is higher); fit a smaller valve", ex.kv[i]))
+	}
+}
+
+func (pl *planner) inBand(percent float64) bool {
+	r := percent / 100
+	return r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9
+}
+
+// shortfalls lists the branches outside the band that the plan cannot
+// bring in, and warns about the others.
+func (pl *planner) shortfalls() {
+	m, ex := pl.m, pl.ex
+	short := pl.pump && pl.plan.Pump.NeededSpeed > pl.plan.Pump.MaxSpeed*(1+1e-9)
+	var rounding int
+	for _, bp := range pl.plan.Branches {
+		if bp.InTolerance {
+			continue
+		}
+		i, _ := m.Index(bp.ID)
+		var reason string
+		switch {
+		case short && bp.Percent < 100*(1+pl.lo):
+			reason = "pump at its maximum speed"
+		case ex.clamped[i]:
+			reason = "valve cannot throttle enough"
+		case m.Branches[i].Valve == nil && !bp.Riser:
+			reason = "no balancing valve"
+		default:
+			rounding++
+			continue
+		}
+		pl.plan.Unmet = append(pl.plan.Unmet, Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason})
+	}
+	if rounding > 0 {
+		w := fmt.Sprintf("%d branches fall outside the band through handwheel rounding", rounding)
+		if pl.opt.Rounding == Nearest {
+			w += "; smart rounding may bring them in"
+		}
+		pl.plan.Warnings = append(pl.plan.Warnings, w)
+	}
+}

@@ -1,0 +1,407 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// Default tolerance band when the site gives none, as fractions of target
+// (±10 %: shared/references.md §6, the usual specification).
+const (
+	defaultToleranceLow  = -0.10
+	defaultToleranceHigh = 0.10
+)
+
+// planner carries one Compute call.
+type planner struct {
+	m      *plant.Model
+	p      plant.Params
+	opt    Options
+	pump   bool // the boundary is a pump curve
+	lo, hi float64
+	ex     *exact
+	plan   *Plan
+}
+
+// Compute works out a balancing plan for model m with multipliers p (the
+// design's, m.Design(), or a calibration's). See the package comment for the
+// method.
+func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) (*Plan, error) {
+	if m == nil || m.Site == nil {
+		return nil, fmt.Errorf("no model: %w", ErrInput)
+	}
+	pl := &planner{m: m, p: p}
+	if opt != nil {
+		pl.opt = *opt
+	}
+	if err := pl.check(); err != nil {
+		return nil, err
+	}
+	q, err := pl.targets()
+	if err != nil {
+		return nil, err
+	}
+	pl.ex, err = newExact(m, p, q)
+	if err != nil {
+		return nil, err
+	}
+	pl.lo, pl.hi = m.Site.ToleranceLow, m.Site.ToleranceHigh
+	if !(pl.lo < pl.hi) || !finite(pl.lo) || !finite(pl.hi) {
+		pl.lo, pl.hi = defaultToleranceLow, defaultToleranceHigh
+	}
+	pl.pump = m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil
+	pl.plan = &Plan{
+		Rounding: pl.opt.Rounding, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
+		IndexPath: pl.ex.indexIDs, ToleranceLow: pl.lo, ToleranceHigh: pl.hi,
+	}
+	sol, err := pl.settle(ctx)
+	if err != nil {
+		return nil, err
+	}
+	if err := pl.branches(sol); err != nil {
+		return nil, err
+	}
+	if err := pl.pumpPlan(ctx, sol); err != nil {
+		return nil, err
+	}
+	if pl.opt.Uncertainty != nil {
+		if err := pl.band(sol); err != nil {
+			return nil, err
+		}
+	}
+	pl.shortfalls()
+	return pl.plan, nil
+}
+
+func (pl *planner) check() error {
+	n := len(pl.m.Branches)
+	p := pl.p
+	if len(p.Resistance) != n || len(p.KvScale) != n {
+		return fmt.Errorf("multipliers for %d and %d branches, model has %d: %w", len(p.Resistance), len(p.KvScale), n, ErrInput)
+	}
+	for i := range n {
+		if !(p.Resistance[i] > 0) || !finite(p.Resistance[i]) || !(p.KvScale[i] > 0) || !finite(p.KvScale[i]) {
+			return fmt.Errorf("branch %q: multipliers %g, %g must be positive and finite: %w", pl.m.Branches[i].ID, p.Resistance[i], p.KvScale[i], ErrInput)
+		}
+	}
+	if !(p.Header > 0) || !finite(p.Header) || !(p.PumpHead > 0) || !finite(p.PumpHead) {
+		return fmt.Errorf("header and pump multipliers %g, %g must be positive and finite: %w", p.Header, p.PumpHead, ErrInput)
+	}
+	if pl.opt.Scale == 0 {
+		pl.opt.Scale = 1
+	}
+	if !(pl.opt.Scale > 0) || !finite(pl.opt.Scale) {
+		return fmt.Errorf("target scale %g must be positive: %w", pl.opt.Scale, ErrInput)
+	}
+	if pl.opt.MinValveDiff < 0 || !finite(pl.opt.MinValveDiff) {
+		return fmt.Errorf("minimum valve differential %g Pa must be positive: %w", pl.opt.MinValveDiff, ErrInput)
+	}
+	if pl.opt.Rounding != Nearest && pl.opt.Rounding != Smart {
+		return fmt.Errorf("rounding mode %d: %w", int(pl.opt.Rounding), ErrInput)
+	}
+	if u := pl.opt.Uncertainty; u != nil {
+		if len(u.LnResistance) != 0 && len(u.LnResistance) != n || len(u.LnKvScale) != 0 && len(u.LnKvScale) != n {
+			return fmt.Errorf("uncertainty for %d and %d branches, model has %d: %w", len(u.LnResistance), len(u.LnKvScale), n, ErrInput)
+		}
+		for _, v := range append(append([]float64{u.LnHeader, u.LnPumpHead, u.Coverage}, u.LnResistance...), u.LnKvScale...) {
+			if !(v >= 0) || math.IsInf(v, 1) {
+				return fmt.Errorf("uncertainty %g must be a non-negative standard deviation: %w", v, ErrInput)
+			}
+		}
+	}
+	return nil
+}
+
+// targets returns every terminal branch's target flow (risers' are summed
+// later).
+func (pl *planner) targets() ([]float64, error) {
+	m := pl.m
+	q := make([]float64, len(m.Branches))
+	for id := range pl.opt.Targets {
+		if _, ok := m.Index(id); !ok {
+			return nil, fmt.Errorf("target for unknown branch %q: %w", id, ErrInput)
+		}
+	}
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		t, over := pl.opt.Targets[b.ID]
+		if b.Riser() {
+			if over {
+				return nil, fmt.Errorf("target for riser %q: a riser carries the sum of its sub-branches: %w", b.ID, ErrInput)
+			}
+			continue
+		}
+		if !over {
+			t = b.Target * pl.opt.Scale
+		}
+		if !(t > 0) || !finite(t) {
+			return nil, fmt.Errorf("branch %q: target flow %g m3/s must be positive: %w", b.ID, t, ErrInput)
+		}
+		q[i] = t
+	}
+	return q, nil
+}
+
+// state returns the plant state for settings at control value x: the speed
+// ratio with a pump curve, else the source differential.
+func (pl *planner) state(settings []float64, x float64) plant.State {
+	st := plant.State{Label: "plan", Settings: settings}
+	if pl.pump {
+		st.Speed = x
+	} else {
+		st.Differential = x
+	}
+	return st
+}
+
+func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*plant.Solved, error) {
+	s, err := pl.m.Solve(ctx, pl.p, pl.state(settings, x))
+	if err != nil {
+		return nil, fmt.Errorf("%w: %w", ErrSolve, err)
+	}
+	return s, nil
+}
+
+// control converts between the control value (speed ratio, or source
+// differential) and u, in which flows are about proportional: u = s for a
+// pump (affinity laws), u = √Δp for a differential (square law).
+func (pl *planner) toU(x float64) float64 {
+	if pl.pump {
+		return x
+	}
+	return math.Sqrt(x)
+}
+
+func (pl *planner) fromU(u float64) float64 {
+	if pl.pump {
+		return u
+	}
+	return u * u
+}
+
+// exactControl returns the control value at which the source gives the
+// least differential at the total target flow.
+func (pl *planner) exactControl() (float64, error) {
+	if !pl.pump {
+		return pl.ex.least, nil
+	}
+	return pl.speedFor(pl.ex.total(), pl.ex.least)
+}
+
+// speedFor returns the speed ratio at which the pump element (as the plant
+// builds it, head multiplier and curve limits included) gives differential
+// dp at flow q: bracketing, then bisection to machine precision.
+func (pl *planner) speedFor(q, dp float64) (float64, error) {
+	f := func(s float64) float64 {
+		src := pl.m.Source(pl.p, plant.State{Speed: s})
+		d, _ := src.Pump.Drop(q, pl.m.Fluid)
+		return -d - dp
+	}
+	// The larger root of the quadratic, as a start.
+	c := *pl.m.Pump
+	a0, a1, a2 := c.A0*pl.p.PumpHead, c.A1*pl.p.PumpHead*q, c.A2*pl.p.PumpHead*q*q-dp/(pl.m.Fluid.Density*hydraulics.StandardGravity)
+	s0 := 1.0
+	if disc := a1*a1 - 4*a0*a2; disc >= 0 && a0 > 0 {
+		if r := (-a1 + math.Sqrt(disc)) / (2 * a0); r > 0 {
+			s0 = r
+		}
+	}
+	lo, hi := s0, s0
+	for k := 0; f(hi) < 0; k++ {
+		if k > 200 {
+			return 0, fmt.Errorf("no pump speed gives %g Pa at %g m3/s: %w", dp, q, ErrSolve)
+		}
+		hi *= 1.25
+	}
+	for k := 0; f(lo) > 0; k++ {
+		if k > 200 {
+			return 0, fmt.Errorf("no pump speed gives %g Pa at %g m3/s: %w", dp, q, ErrSolve)
+		}
+		lo /= 1.25
+	}
+	for range 200 {
+		mid := lo + (hi-lo)/2
+		if mid <= lo || mid >= hi {
+			break
+		}
+		if f(mid) < 0 {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return hi, nil
+}
+
+// root finds the control value at which g(solution) = 0, g increasing with
+// the control value, starting from x0. Flows are about proportional to u, so
+// the first step scales u by 1/(1+g) when g is a flow ratio less one; then
+// the secant method inside the bracket found, bisecting when it leaves it.
+func (pl *planner) root(ctx context.Context, settings []float64, x0 float64, g func(*plant.Solved) float64) (float64, *plant.Solved, error) {
+	const tol = 1e-10
+	u0 := pl.toU(x0)
+	s0, err := pl.solve(ctx, settings, x0)
+	if err != nil {
+		return 0, nil, err
+	}
+	g0 := g(s0)
+	if math.Abs(g0) < tol {
+		return x0, s0, nil
+	}
+	ulo, uhi := math.NaN(), math.NaN()
+	bracket := func(u, v float64) {
+		if v < 0 {
+			ulo = max(u, nanTo(ulo, u))
+		} else {
+			uhi = min(u, nanTo(uhi, u))
+		}
+	}
+	bracket(u0, g0)
+	u1 := u0 / (1 + g0)
+	if !(u1 > 0) || !finite(u1) {
+		u1 = u0 * 2
+		if g0 > 0 {
+			u1 = u0 / 2
+		}
+	}
+	for range 60 {
+		s1, err := pl.solve(ctx, settings, pl.fromU(u1))
+		if err != nil {
+			return 0, nil, err
+		}
+		g1 := g(s1)
+		if math.Abs(g1) < tol || (finite(ulo) && finite(uhi) && uhi-ulo < 1e-13*uhi) {
+			return pl.fromU(u1), s1, nil
+		}
+		bracket(u1, g1)
+		next := u1 - g1*(u1-u0)/(g1-g0)
+		if !finite(next) || next <= 0 {
+			next = u1 / (1 + g1)
+		}
+		if finite(ulo) && finite(uhi) && !(next > ulo && next < uhi) {
+			next = ulo + (uhi-ulo)/2
+		}
+		u0, g0, u1 = u1, g1, next
+	}
+	return 0, nil, fmt.Errorf("pump control did not converge: %w", ErrSolve)
+}
+
+func nanTo(v, d float64) float64 {
+	if math.IsNaN(v) {
+		return d
+	}
+	return v
+}
+
+// settle rounds the settings, re-solves the network and sets the pump: steps
+// 5 and 6 of the package comment. It fills the plan's settings and boundary
+// and returns the final solution.
+func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
+	ex, m := pl.ex, pl.m
+	x0, err := pl.exactControl()
+	if err != nil {
+		return nil, err
+	}
+	r := newRounder(pl)
+	idx := ex.indexID
+	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
+	settings := r.settings()
+	x, sol, err := pl.root(ctx, settings, x0, indexOK)
+	if err != nil {
+		return nil, err
+	}
+	if pl.opt.Rounding == Smart {
+		for range 4 {
+			if !r.flip(sol) {
+				break
+			}
+			settings = r.settings()
+			if x, sol, err = pl.root(ctx, settings, x, indexOK); err != nil {
+				return nil, err
+			}
+		}
+		// Raise the pump when a branch is still below the band.
+		low := 1 + pl.lo + 1e-3
+		worst := func(s *plant.Solved) float64 {
+			w := math.Inf(1)
+			for i := range m.Branches {
+				w = min(w, s.Flow(i)/ex.q[i])
+			}
+			return w/low - 1
+		}
+		if worst(sol) < 0 {
+			if x, sol, err = pl.root(ctx, settings, x, worst); err != nil {
+				return nil, err
+			}
+			pl.plan.Warnings = append(pl.plan.Warnings, "rounding leaves a branch below its band with the index at target: the pump is raised until the lowest branch reaches the band")
+		}
+	}
+	pl.plan.Pump.NeededSpeed = math.NaN()
+	if pl.pump {
+		pl.plan.Pump.NeededSpeed = x
+		maxSpeed := m.Site.Boundary.MaxSpeed
+		if !(maxSpeed > 0) {
+			maxSpeed = 1
+		}
+		pl.plan.Pump.MaxSpeed = maxSpeed
+		if x > maxSpeed*(1+1e-9) {
+			x = maxSpeed
+			if sol, err = pl.solve(ctx, settings, x); err != nil {
+				return nil, err
+			}
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("the pump would need speed ratio %.3f, above its maximum %.3f: the plan runs it at the maximum and some branches fall short", pl.plan.Pump.NeededSpeed, maxSpeed))
+			pl.suggest(ctx)
+		}
+		pl.plan.Speed = x
+	} else {
+		pl.plan.Differential = x
+	}
+	pl.plan.Settings = settings
+	pl.plan.Required = sol.PumpDiff()
+	pl.plan.TotalFlow = sol.TotalFlow()
+	return sol, nil
+}
+
+// suggest adds what would help a pump that falls short: a larger pump or
+// speed, cleaning a fouled branch, a larger valve on the index.
+func (pl *planner) suggest(ctx context.Context) {
+	ex := pl.ex
+	pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("a pump giving %.1f kPa at %.3f l/s would meet every target", pl.plan.Least/1e3, ex.total()*1e3))
+	least := func(p plant.Params) float64 {
+		e, err := newExact(pl.m, p, append([]float64(nil), ex.q...))
+		if err != nil {
+			return math.NaN()
+		}
+		return e.least
+	}
+	var tried int
+	for i := range pl.m.Branches {
+		if pl.p.Resistance[i] <= 2 || tried >= 20 {
+			continue
+		}
+		tried++
+		p := pl.p.Clone()
+		p.Resistance[i] = 1
+		if l := least(p); l < ex.least*0.99 {
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("branch %q has %.1f times its design resistance (fouled or a closed part?): restoring it would lower the differential needed from %.1f to %.1f kPa",
+				pl.m.Branches[i].ID, pl.p.Resistance[i], ex.least/1e3, l/1e3))
+		}
+	}
+	for _, id := range ex.indexIDs {
+		i, _ := pl.m.Index(id)
+		if pl.m.Branches[i].Valve == nil {
+			continue
+		}
+		p := pl.p.Clone()
+		p.KvScale[i] *= 2
+		if l := least(p); l < ex.least*0.99 {
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("the open valve on index branch %q takes %.1f kPa at target: a valve of twice its Kv would lower the differential needed from %.1f to %.1f kPa",
+				id, ex.open[i]/1e3, ex.least/1e3, l/1e3))
+		}
+	}
+}

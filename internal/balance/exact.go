@@ -1,0 +1,271 @@
+package balance
+
+import (
+	"fmt"
+	"math"
+
+	"flowset/internal/fluid"
+	"flowset/internal/hydraulics"
+	"flowset/internal/network"
+	"flowset/internal/plant"
+)
+
+// exact is the plan with exact (unrounded) settings: steps 1-3 of the
+// package comment.
+type exact struct {
+	m *plant.Model
+	p plant.Params
+	f fluid.State
+
+	q     []float64 // target flow per branch, m3/s
+	fixed []float64 // drop of the fixed parts at q, Pa
+	open  []float64 // drop of the fully open valve at q (0 without a valve)
+	sub   []float64 // a riser's ladder's need, Pa
+	need  []float64 // differential needed across the take-offs, valve open
+	path  []float64 // header loss from its ladder's source connections
+	avail []float64 // differential across the take-offs at the plan
+	valve []float64 // drop the valve must take at the plan
+	index []bool    // on the index path
+	// kv is the nominal Kv the valve's characteristic must give and
+	// setting its exact setting; NaN without a valve.
+	kv, setting []float64
+	// surplus is the differential a branch without a valve cannot absorb,
+	// clamped the Kv below what the valve reaches when fully throttled.
+	surplus []float64
+	clamped []bool
+
+	least    float64 // source differential needed, Pa
+	indexID  int
+	indexIDs []string
+}
+
+// newExact computes the exact plan for targets q (risers' entries are
+// overwritten with the sums of their sub-branches).
+func newExact(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
+	n := len(m.Branches)
+	e := &exact{m: m, p: p, f: m.Fluid, q: q,
+		fixed: make([]float64, n), open: make([]float64, n), sub: make([]float64, n), need: make([]float64, n),
+		path: make([]float64, n), avail: make([]float64, n), valve: make([]float64, n), index: make([]bool, n),
+		kv: make([]float64, n), setting: make([]float64, n), surplus: make([]float64, n), clamped: make([]bool, n),
+	}
+	top := m.Top()
+	e.flows(top)
+	need, err := e.ladderNeed(top)
+	if err != nil {
+		return nil, err
+	}
+	e.least = need
+	if err := e.assign(top, need); err != nil {
+		return nil, err
+	}
+	// Index path: the largest need-plus-path in each ladder, going down
+	// while the index is a riser whose valve (or lack of one) passes the
+	// ladder exactly its need.
+	ids := top
+	for {
+		k := argmaxNeed(e, ids)
+		e.index[k] = true
+		e.indexIDs = append(e.indexIDs, m.Branches[k].ID)
+		if !m.Branches[k].Riser() {
+			e.indexID = k
+			break
+		}
+		ids = m.Branches[k].Children
+	}
+	return e, nil
+}
+
+func argmaxNeed(e *exact, ids []int) int {
+	best := ids[0]
+	for _, i := range ids[1:] {
+		if e.need[i]+e.path[i] > e.need[best]+e.path[best] {
+			best = i
+		}
+	}
+	return best
+}
+
+// flows sums the targets of a ladder's branches up through the risers.
+func (e *exact) flows(ids []int) float64 {
+	var s float64
+	for _, i := range ids {
+		b := &e.m.Branches[i]
+		if b.Riser() {
+			e.q[i] = e.flows(b.Children)
+		}
+		s += e.q[i]
+	}
+	return s
+}
+
+func (e *exact) drop(el hydraulics.Element, q float64) float64 {
+	if el == nil {
+		return 0
+	}
+	d, _ := el.Drop(q, e.f)
+	return d
+}
+
+func (e *exact) segment(els []hydraulics.Element, q float64) float64 {
+	var s float64
+	for _, el := range els {
+		s += e.drop(el, q)
+	}
+	return s * e.p.Header
+}
+
+// ladderNeed fills need and path for a ladder's branches and returns the
+// differential the ladder needs across its source connections.
+func (e *exact) ladderNeed(ids []int) (float64, error) {
+	m := e.m
+	for _, i := range ids {
+		b := &m.Branches[i]
+		e.fixed[i] = e.drop(m.FixedElement(i, e.p.Resistance[i]), e.q[i])
+		if b.Valve != nil {
+			_, hi := b.Valve.Range()
+			e.open[i] = e.drop(m.ValveElement(i, hi, e.p.KvScale[i]), e.q[i])
+		}
+		e.need[i] = e.fixed[i] + e.open[i]
+		if b.Riser() {
+			s, err := e.ladderNeed(b.Children)
+			if err != nil {
+				return 0, err
+			}
+			e.sub[i] = s
+			e.need[i] += s
+		}
+		if !finite(e.need[i]) {
+			return 0, fmt.Errorf("branch %q: differential needed at target is %g: %w", b.ID, e.need[i], ErrInput)
+		}
+	}
+	nb := len(ids)
+	// suf[k] is the flow of the branches from position k on: what supply
+	// segment k carries (and return segment k in direct return).
+	suf := make([]float64, nb+1)
+	for k := nb - 1; k >= 0; k-- {
+		suf[k] = suf[k+1] + e.q[ids[k]]
+	}
+	switch m.Arrangement {
+	case network.DirectReturn:
+		var ls, lr float64
+		for k, i := range ids {
+			ls += e.segment(m.Branches[i].Supply, suf[k])
+			lr += e.segment(m.Branches[i].Return, suf[k])
+			e.path[i] = ls + lr
+		}
+	case network.ReverseReturn:
+		total := suf[0]
+		// Return loss from take-off k to the source: the return segments
+		// after it, each carrying the branches before it, then the return
+		// leg (held by the first branch) carrying the total.
+		lr := make([]float64, nb)
+		acc := e.segment(m.Branches[ids[0]].Return, total)
+		prefix := total
+		for k := nb - 1; k >= 0; k-- {
+			lr[k] = acc
+			if k > 0 {
+				prefix -= e.q[ids[k]]
+				acc += e.segment(m.Branches[ids[k]].Return, prefix)
+			}
+		}
+		var ls float64
+		for k, i := range ids {
+			ls += e.segment(m.Branches[i].Supply, suf[k])
+			e.path[i] = ls + lr[k]
+		}
+	default:
+		for _, i := range ids {
+			e.path[i] = 0
+		}
+	}
+	var best float64
+	for _, i := range ids {
+		best = max(best, e.need[i]+e.path[i])
+	}
+	return best, nil
+}
+
+// assign gives a ladder the differential d across its source connections
+// and works out every valve's drop, Kv and setting below it.
+func (e *exact) assign(ids []int, d float64) error {
+	m := e.m
+	for _, i := range ids {
+		b := &m.Branches[i]
+		e.avail[i] = d - e.path[i]
+		rest := e.avail[i] - e.fixed[i] // for the valve and any sub-ladder
+		if b.Riser() {
+			sub := e.sub[i]
+			if b.Valve == nil {
+				sub = rest
+			}
+			if err := e.assign(b.Children, sub); err != nil {
+				return err
+			}
+			rest -= sub
+		}
+		e.kv[i], e.setting[i] = math.NaN(), math.NaN()
+		if b.Valve == nil {
+			e.surplus[i] = max(rest, 0)
+			continue
+		}
+		e.valve[i] = rest
+		if err := e.set(i); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// set turns valve i's drop into its nominal Kv and setting.
+func (e *exact) set(i int) error {
+	b := &e.m.Branches[i]
+	lo, hi := b.Valve.Range()
+	kvHi, err := b.Valve.KvAt(hi)
+	if err != nil {
+		return fmt.Errorf("branch %q: valve %w", b.ID, err)
+	}
+	kvLo, err := b.Valve.KvAt(lo)
+	if err != nil {
+		return fmt.Errorf("branch %q: valve %w", b.ID, err)
+	}
+	// The open drop was computed at hi, so a drop at or below it (the index,
+	// up to rounding error) is the fully open valve.
+	if e.valve[i] <= e.open[i]*(1+1e-12) {
+		e.kv[i], e.setting[i] = kvHi, hi
+		return nil
+	}
+	kv, err := hydraulics.KvFromDrop(e.q[i], e.valve[i], e.f.Density)
+	if err != nil {
+		return fmt.Errorf("branch %q: %w: %w", b.ID, err, ErrInput)
+	}
+	kv /= e.p.KvScale[i]
+	e.kv[i] = kv
+	switch {
+	case kv >= kvHi:
+		e.setting[i] = hi
+	case kv <= kvLo:
+		e.setting[i] = lo
+		e.clamped[i] = kv < kvLo*(1-1e-9)
+	default:
+		s, err := b.Valve.SettingFor(kv)
+		if err != nil {
+			return fmt.Errorf("branch %q: %w", b.ID, err)
+		}
+		e.setting[i] = min(max(s, lo), hi)
+	}
+	return nil
+}
+
+// settings returns the exact settings by branch (NaN without a valve).
+func (e *exact) settings() []float64 {
+	return append([]float64(nil), e.setting...)
+}
+
+// total returns the total target flow.
+func (e *exact) total() float64 {
+	var s float64
+	for _, i := range e.m.Top() {
+		s += e.q[i]
+	}
+	return s
+}

@@ -1,0 +1,153 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// Efficiencies used when the site gives none (the site sheets' defaults:
+// common practice, no source).
+const (
+	defaultPumpEfficiency  = 0.70
+	defaultMotorEfficiency = 0.90
+)
+
+// pumpPlan fills the pump's duty, set-point and energy figures.
+func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
+	m, s := pl.m, pl.m.Site
+	pp := &pl.plan.Pump
+	rg := m.Fluid.Density * hydraulics.StandardGravity
+	pp.Boundary = s.Boundary.Kind
+	pp.SpeedRatio, pp.TrimRatio, pp.AnnualEnergySaving, pp.AnnualCostSaving = math.NaN(), math.NaN(), math.NaN(), math.NaN()
+	pp.Currency = s.Currency
+	pp.After = OperatingPoint{Flow: sol.TotalFlow(), Differential: sol.PumpDiff(), Speed: pl.plan.Speed}
+	pp.After.Head = pp.After.Differential / rg
+	if pl.pump {
+		pp.SpeedRatio = pl.plan.Speed
+		c := *m.Pump
+		c.A0 *= pl.p.PumpHead
+		c.A1 *= pl.p.PumpHead
+		c.A2 *= pl.p.PumpHead
+		if pl.plan.Speed <= 1 {
+			if d, err := hydraulics.TrimDiameterRatio(c, pp.After.Flow, pp.After.Head); err == nil {
+				pp.TrimRatio = d
+				pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("at fixed speed, an impeller trimmed to %.1f %% of its diameter gives the same duty (diameter affinity laws: approximate, trim in steps and re-test)", 100*d))
+			}
+		}
+	}
+	pp.Sensor = s.Boundary.Sensor
+	if pp.Sensor == "" {
+		pp.Sensor = site.AtPump
+	}
+	pp.SetPoint = sol.PumpDiff()
+	if i, ok := m.Index(pp.Sensor); ok && pp.Sensor != site.AtPump {
+		pp.SetPoint = sol.BranchDiff(i)
+	}
+
+	before, why, err := pl.before(ctx)
+	if err != nil {
+		return err
+	}
+	if before != nil {
+		pp.HaveBefore = true
+		pp.Before = OperatingPoint{Flow: before.TotalFlow(), Differential: before.PumpDiff()}
+		pp.Before.Head = pp.Before.Differential / rg
+		if pl.pump {
+			pp.Before.Speed = before.State.Speed
+		}
+	} else {
+		pp.Assumptions = append(pp.Assumptions, "no before figures: "+why)
+	}
+
+	etaP, etaM := s.PumpEfficiency, s.MotorEfficiency
+	if !(etaP > 0 && etaP <= 1) {
+		etaP = defaultPumpEfficiency
+		pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("pump efficiency not given: %.0f %% taken (common practice, no source)", 100*etaP))
+	}
+	if !(etaM > 0 && etaM <= 1) {
+		etaM = defaultMotorEfficiency
+		pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("motor efficiency not given: %.0f %% taken (common practice, no source)", 100*etaM))
+	}
+	along := "held constant at both duty points (approximate)"
+	if pl.pump {
+		along = "held constant at both duty points: a speed change moves the duty along an affinity parabola, on which pump efficiency stays about constant (affinity laws; approximate, it falls at low speed)"
+	}
+	pp.Assumptions = append(pp.Assumptions,
+		fmt.Sprintf("pump efficiency %.0f %% %s", 100*etaP, along),
+		fmt.Sprintf("motor and drive efficiency %.0f %% at both duty points (approximate: it falls at part load)", 100*etaM))
+	pp.HydraulicAfter = hydraulics.HydraulicPower(pp.After.Flow, pp.After.Differential)
+	pp.ElectricalAfter = pp.HydraulicAfter / (etaP * etaM)
+	if !pp.HaveBefore {
+		return nil
+	}
+	pp.HydraulicBefore = hydraulics.HydraulicPower(pp.Before.Flow, pp.Before.Differential)
+	pp.ElectricalBefore = pp.HydraulicBefore / (etaP * etaM)
+	if !(s.Hours > 0) || !finite(s.Hours) {
+		pp.Assumptions = append(pp.Assumptions, "no running hours given: no annual figures")
+		return nil
+	}
+	// W × h / 1000 = kWh.
+	pp.AnnualEnergySaving = (pp.ElectricalBefore - pp.ElectricalAfter) * s.Hours / 1e3
+	pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("%.0f running hours a year at the one duty point", s.Hours))
+	if finite(s.EnergyPrice) && s.EnergyPrice >= 0 {
+		pp.AnnualCostSaving = pp.AnnualEnergySaving * s.EnergyPrice
+	}
+	return nil
+}
+
+// before solves the as-found state: as-found settings at the present speed,
+// set-point or measured differential. It returns nil and the reason when
+// the boundary of the as-found state is unknown.
+func (pl *planner) before(ctx context.Context) (*plant.Solved, string, error) {
+	m, s := pl.m, pl.m.Site
+	found := m.AsFound()
+	if pl.pump {
+		sol, err := pl.solve(ctx, found, m.BaseState().Speed)
+		return sol, "", err
+	}
+	var d float64
+	switch s.Boundary.Kind {
+	case site.ConstantDiff:
+		d = s.Boundary.SetPoint
+		if !(d > 0) || !finite(d) {
+			return nil, "the present set-point is not given", nil
+		}
+		if i, ok := m.Index(s.Boundary.Sensor); ok && s.Boundary.Sensor != site.AtPump {
+			// The controller holds the sensor branch's differential:
+			// find the source differential that gives it.
+			set := d
+			_, sol, err := pl.root(ctx, found, set, func(sv *plant.Solved) float64 { return sv.BranchDiff(i)/set - 1 })
+			return sol, "", err
+		}
+	default:
+		d = math.NaN()
+		for _, st := range m.States {
+			if st.Differential > 0 && sameSettings(st.Settings, found) {
+				d = st.Differential
+				break
+			}
+		}
+		if math.IsNaN(d) {
+			return nil, "no survey state with the as-found settings gives the pump or header differential", nil
+		}
+	}
+	sol, err := pl.solve(ctx, found, d)
+	return sol, "", err
+}
+
+func sameSettings(a, b []float64) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] && !(math.IsNaN(a[i]) && math.IsNaN(b[i])) {
+			return false
+		}
+	}
+	return true
+}
