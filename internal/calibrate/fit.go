@@ -1,0 +1,606 @@
+package calibrate
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// ErrSurvey reports readings that cannot be fitted to the model: a reading
+// at an unknown branch, a valve reading where there is no valve, an
+// uncertainty that is not positive, no readings at all.
+var ErrSurvey = errors.New("survey cannot be fitted")
+
+// Default prior standard deviations of the log-multipliers.
+const (
+	// DefaultPriorResistance is the sd of ln R: a design estimate of a
+	// branch's fixed resistance (pipe friction with an assumed roughness,
+	// handbook fitting coefficients, a terminal's rated drop) is commonly
+	// taken as good to within a factor of about 2 unless something is wrong
+	// (common practice, no source). ln 2 per sd puts ×0.25-×4 inside two sd,
+	// so a fouled branch (×3) is not shrunk hard towards design, while a
+	// branch the readings barely touch stays near it (the fall-back towards
+	// design the tech notes ask for).
+	DefaultPriorResistance = math.Ln2
+	// DefaultPriorKv is the sd of ln KvScale: BS 7350:1990 allows ±5 % on the
+	// nominal Kv of a fully open regulating valve (shared/references.md §6);
+	// the whole ±5 % is taken as one sd because accuracy falls off markedly
+	// when the valve is closed by half or more (same source).
+	DefaultPriorKv = 0.05
+	// DefaultPriorHeader is the sd of ln Header, on the same basis as a
+	// branch's resistance.
+	DefaultPriorHeader = math.Ln2
+	// DefaultPriorPump is the sd of ln PumpHead: ISO 9906 acceptance grades
+	// allow ±5-7 % on head at the guarantee point (grades 2B and 3B, from
+	// memory), and a worn impeller loses more; 10 % per sd covers both.
+	DefaultPriorPump = 0.1
+	// DefaultMatrixFreeAbove is the number of parameters above which Fit
+	// solves matrix-free: below it the engine forms the Jacobian and keeps
+	// the exact covariance.
+	DefaultMatrixFreeAbove = 1500
+)
+
+// freeSigma is the prior sd of a Kv parameter a valve hypothesis frees: e³
+// ≈ 20 per sd, effectively free, but it keeps the information matrix
+// definite where the readings cannot tell the valve from the branch.
+const freeSigma = 3.0
+
+// FitOptions tune Fit. The zero value (or nil) selects the defaults; a
+// prior sd of +Inf removes that prior.
+type FitOptions struct {
+	PriorResistance float64 // sd of ln R; 0: DefaultPriorResistance
+	PriorKv         float64 // sd of ln KvScale; 0: DefaultPriorKv
+	PriorHeader     float64 // sd of ln Header; 0: DefaultPriorHeader
+	PriorPump       float64 // sd of ln PumpHead; 0: DefaultPriorPump
+	Loss            Loss    // zero value: plain least squares
+	// OutlierZ is the engine's outlier threshold (see Settings.OutlierZ):
+	// 0 selects the Bonferroni default, negative disables the test.
+	OutlierZ float64
+	MaxIter  int // accepted steps per fit; 0: the engine's default
+	// MeterDensity is the density a valve meter assumed when it turned its
+	// differential into a flow, kg/m3. 0 takes the site's fluid at the
+	// survey temperature, on the assumption the technician set the meter
+	// up for the fluid (meters ask for it); a meter left on its default of
+	// water at 20 °C would need 998.2.
+	MeterDensity float64
+	// MatrixFreeAbove is the number of parameters above which the fit runs
+	// matrix-free; 0: DefaultMatrixFreeAbove.
+	MatrixFreeAbove int
+	// NoHypotheses skips the valve hypothesis tests.
+	NoHypotheses bool
+}
+
+func (o *FitOptions) withDefaults() (FitOptions, error) {
+	var out FitOptions
+	if o != nil {
+		out = *o
+	}
+	for _, p := range []*float64{&out.PriorResistance, &out.PriorKv, &out.PriorHeader, &out.PriorPump} {
+		if *p < 0 || math.IsNaN(*p) {
+			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, ErrSettings)
+		}
+	}
+	if out.MeterDensity < 0 || math.IsNaN(out.MeterDensity) || math.IsInf(out.MeterDensity, 0) {
+		return out, fmt.Errorf("calibrate: meter density %g must be positive: %w", out.MeterDensity, ErrSettings)
+	}
+	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 {
+		return out, fmt.Errorf("calibrate: negative count: %w", ErrSettings)
+	}
+	def := func(p *float64, d float64) {
+		if *p == 0 {
+			*p = d
+		}
+	}
+	def(&out.PriorResistance, DefaultPriorResistance)
+	def(&out.PriorKv, DefaultPriorKv)
+	def(&out.PriorHeader, DefaultPriorHeader)
+	def(&out.PriorPump, DefaultPriorPump)
+	if out.MatrixFreeAbove == 0 {
+		out.MatrixFreeAbove = DefaultMatrixFreeAbove
+	}
+	return out, nil
+}
+
+// ValveHypothesis is what a branch's balancing valve is taken to do.
+type ValveHypothesis int
+
+// The valve hypotheses.
+const (
+	// NotTested: the readings say nothing about the valve apart from its
+	// branch, or they gave no reason to doubt it.
+	NotTested ValveHypothesis = iota
+	// FollowsTable: the valve's Kv follows its table at the recorded
+	// settings, within the manufacturing tolerance.
+	FollowsTable
+	// HoldsOneKv: the valve keeps one Kv whatever its recorded setting, as
+	// a seized valve whose handwheel turns without moving the plug does.
+	HoldsOneKv
+	// SetElsewhere: the valve follows its table but with a consistent
+	// offset, as when it was set elsewhere than recorded (or its table is
+	// wrong).
+	SetElsewhere
+)
+
+// String names the hypothesis.
+func (h ValveHypothesis) String() string {
+	switch h {
+	case NotTested:
+		return "not tested"
+	case FollowsTable:
+		return "follows its table"
+	case HoldsOneKv:
+		return "holds one kv (seized)"
+	case SetElsewhere:
+		return "set elsewhere than recorded"
+	}
+	return fmt.Sprintf("hypothesis(%d)", int(h))
+}
+
+// ValveVerdict is the outcome of a branch's valve hypothesis test.
+type ValveVerdict struct {
+	Hypothesis ValveHypothesis
+	// Score is χ² + prior penalty + k ln m (the Bayesian information
+	// criterion of Schwarz 1978, Ann. Statist. 6(2), with the priors of the
+	// parameters that keep one) of each hypothesis's refit, indexed by
+	// hypothesis; NaN where it was not fitted. ChiSquare is the refit's χ².
+	Score, ChiSquare [4]float64
+	// DeltaChiSquare and DeltaScore are what the chosen hypothesis gains
+	// over FollowsTable (0 when FollowsTable is chosen).
+	DeltaChiSquare, DeltaScore float64
+	// Kv is the valve's fitted effective Kv (m3/h) in each survey state,
+	// Recorded the setting recorded there and Implied the setting its
+	// table gives for Kv (NaN where Kv is outside the table).
+	Kv, Recorded, Implied []float64
+	Note                  string
+}
+
+// BranchFit is the fit of one branch.
+type BranchFit struct {
+	ID    string
+	Index int
+	// Fitted reports whether the branch has fixed parts whose resistance
+	// was fitted. Ratio is the fitted resistance over design with its 95 %
+	// interval [Lo, Hi]; SD is the sd of ln Ratio. Determined reports that
+	// the readings (not the prior) fix it: posterior sd under half the
+	// prior's.
+	Fitted           bool
+	Ratio, Lo, Hi    float64
+	SD               float64
+	Determined       bool
+	HasValve         bool
+	KvFitted         bool // the valve's Kv scale was fitted
+	KvScale          float64
+	KvLo, KvHi, KvSD float64
+	KvDetermined     bool
+	Valve            ValveVerdict
+}
+
+// Above reports whether the branch's resistance is shown to exceed f times
+// design: the whole 95 % interval lies above f.
+func (b *BranchFit) Above(f float64) bool { return b.Fitted && b.Lo > f }
+
+// Below reports whether the whole 95 % interval lies below f times design.
+func (b *BranchFit) Below(f float64) bool { return b.Fitted && b.Hi < f }
+
+// ParamFit is the fit of the header or pump multiplier.
+type ParamFit struct {
+	Fitted            bool
+	Ratio, Lo, Hi, SD float64
+	Determined        bool
+}
+
+// ReadingFit is how one reading compares with the fitted model.
+type ReadingFit struct {
+	Index int // into Site.Readings
+	Pos   site.Pos
+	// Value and Predicted are in the reading's own quantity and SI unit;
+	// for a valve-meter flow Predicted is the flow the meter would show
+	// for the model's valve differential.
+	Value, Predicted, Residual float64
+	// Normalised is the residual over the reading's uncertainty in the
+	// fitted quantity (the valve differential for a valve-meter flow).
+	Normalised float64
+	Outlier    bool
+	// Boundary marks a differential that set the boundary of its state
+	// (measured-differential sites): it is used, not fitted.
+	Boundary bool
+	// AsValveDiff marks a valve-meter flow fitted as the differential the
+	// meter measured.
+	AsValveDiff bool
+}
+
+// Calibration is the outcome of Fit.
+type Calibration struct {
+	Params   plant.Params // fitted multipliers
+	Branches []BranchFit
+	Header   ParamFit
+	Pump     ParamFit
+	Readings []ReadingFit
+	States   []string // survey state labels, the order of ValveVerdict's slices
+	// Parameters describes Result.X (log-multipliers) one by one.
+	Parameters                  []Param
+	ChiSquare, ReducedChiSquare float64
+	DOF                         int
+	Iterations                  int
+	Status                      Status
+	Converged                   bool
+	Result                      *Result
+	// LogSD is the posterior sd of each branch's ln Ratio (0 for a branch
+	// without fixed parts), for the balancing plan's uncertainty.
+	LogSD []float64
+	// Solves counts the network solves of the whole fit, hypothesis tests
+	// included.
+	Solves int
+}
+
+// Outliers returns the readings the fit removed as outliers.
+func (c *Calibration) Outliers() []ReadingFit {
+	var out []ReadingFit
+	for _, r := range c.Readings {
+		if r.Outlier {
+			out = append(out, r)
+		}
+	}
+	return out
+}
+
+// Fit calibrates a plant model to its survey readings: it fits the log
+// resistance multiplier of every branch with fixed parts, the log Kv scale
+// of valves where the readings can tell them from their branch, one header
+// multiplier where the site has header segments and the pump head
+// multiplier on a pump boundary, by Solve with weak priors at design.
+//
+// Each reading is weighted by its stated standard uncertainty. A
+// valve-meter flow is not an independent flow: the meter derived it from
+// the valve's differential and the valve's table at the recorded setting,
+// so it is turned back into that differential, dp = KvDrop(q, Kv(recorded),
+// ρ_meter), with sd c·√(4q²σ² + 2σ⁴) (the variance of the square of a
+// normal variable; ≈ 2 dp σ/q), and fitted as a valve differential.
+// Otherwise a valve whose Kv is off would be hidden by counting one
+// measurement twice. On a measured-differential boundary the pump and header
+// differentials of each state set its boundary and are not fitted.
+//
+// The Jacobian comes from the implicit-function theorem on each state's
+// solved network (network.Solution.Sensitivity and SensitivityT), plus the
+// direct terms of valve differentials. Above MatrixFreeAbove parameters the
+// fit runs matrix-free.
+//
+// Branches whose valve readings disagree with the fit, or whose Kv scale is
+// far from 1, get the valve hypothesis test (see ValveHypothesis): refits
+// that free only that valve are compared by their score, and a hypothesis
+// other than FollowsTable is adopted when it scores at least 6 lower,
+// "strong" evidence on the scale of Kass & Raftery (1995, J. Amer. Statist.
+// Assoc. 90(430), 773-795, §3.2) for 2 ln B, which the score difference
+// approximates.
+func Fit(ctx context.Context, m *plant.Model, opt *FitOptions) (*Calibration, error) {
+	o, err := opt.withDefaults()
+	if err != nil {
+		return nil, err
+	}
+	su, err := newSetup(m, o)
+	if err != nil {
+		return nil, err
+	}
+	hyp := make([]ValveHypothesis, len(m.Branches))
+	for i := range hyp {
+		if m.Branches[i].Valve != nil {
+			hyp[i] = FollowsTable
+		}
+	}
+	base, err := su.run(ctx, hyp, su.allObs(), nil, o.OutlierZ)
+	if err != nil {
+		return nil, err
+	}
+	verdicts := make([]ValveVerdict, len(m.Branches))
+	fin := base
+	if !o.NoHypotheses {
+		if fin, err = su.hypotheses(ctx, base, verdicts); err != nil {
+			return nil, err
+		}
+	}
+	return su.calibration(fin, verdicts)
+}
+
+// setup is what Fit works out once from the model and its readings.
+type setup struct {
+	m   *plant.Model
+	opt FitOptions
+	obs []obs
+	// boundary marks readings that set their state's boundary; byReading
+	// maps a reading to its observation (-1 none).
+	boundary  []bool
+	byReading []int
+	state     []int // reading -> survey state
+	// kvSep: the readings can tell branch i's valve from its fixed parts;
+	// evidence: they say something about the valve at all.
+	kvSep, evidence []bool
+	multi           []bool // the valve was read at two or more settings
+	refKv           []float64
+	hasHeader       bool
+	hasPump         bool
+	solves          int
+}
+
+const valveMeter = "valve-meter"
+
+func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
+	s := m.Site
+	nb := len(m.Branches)
+	su := &setup{m: m, opt: o, boundary: make([]bool, len(s.Readings)), byReading: make([]int, len(s.Readings)),
+		kvSep: make([]bool, nb), evidence: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb)}
+	su.state = make([]int, len(s.Readings))
+	for i := range su.byReading {
+		su.byReading[i], su.state[i] = -1, -1
+	}
+	rhoMeter := o.MeterDensity
+	if rhoMeter == 0 {
+		rhoMeter = m.Fluid.Density
+	}
+	for k, st := range m.States {
+		for _, ri := range st.Readings {
+			r := &s.Readings[ri]
+			su.state[ri] = k
+			bad := func(msg string, a ...any) error {
+				return fmt.Errorf("%s: reading of %s at %q: %s: %w", r.Pos, r.What, r.Where, fmt.Sprintf(msg, a...), ErrSurvey)
+			}
+			if !finite(r.Value) {
+				return nil, bad("value %g", r.Value)
+			}
+			if !(r.Sigma > 0) || math.IsInf(r.Sigma, 1) {
+				return nil, bad("uncertainty %g must be positive", r.Sigma)
+			}
+			o := obs{reading: ri, state: k, what: r.What, branch: -1, value: r.Value, sigma: r.Sigma}
+			switch r.What {
+			case site.HeaderDiff, site.PumpDiff:
+				if s.Boundary.Kind == site.MeasuredDiff {
+					su.boundary[ri] = true
+					continue
+				}
+			case site.TotalFlow:
+			case site.Flow, site.ValveDiff, site.BranchDiff:
+				i, ok := m.Index(r.Where)
+				if !ok {
+					return nil, bad("no such branch")
+				}
+				o.branch = i
+				b := &m.Branches[i]
+				meter := r.What == site.Flow && r.Instrument == valveMeter
+				if (r.What == site.ValveDiff || meter) && b.Valve == nil {
+					return nil, bad("branch %q has no balancing valve", b.ID)
+				}
+				if meter {
+					kv, err := b.Valve.KvAt(st.Settings[i])
+					if err != nil {
+						return nil, bad("valve setting: %v", err)
+					}
+					c, _ := hydraulics.KvDrop(1, kv, rhoMeter)
+					q, sq := r.Value, r.Sigma
+					o.what, o.meter, o.meterKv, o.meterC = site.ValveDiff, true, kv, c
+					o.value = c * q * math.Abs(q)
+					o.sigma = c * math.Sqrt(4*q*q*sq*sq+2*sq*sq*sq*sq)
+				}
+			default:
+				return nil, bad("unknown quantity")
+			}
+			su.byReading[ri] = len(su.obs)
+			su.obs = append(su.obs, o)
+		}
+	}
+	if len(su.obs) == 0 {
+		return nil, fmt.Errorf("calibrate: no readings to fit: %w", ErrSurvey)
+	}
+	su.valveEvidence()
+	// Probe the network once for header segments and a pump.
+	sn, err := newStateNet(m, m.States[0], m.Design())
+	if err != nil {
+		return nil, err
+	}
+	su.hasHeader = len(sn.built.Headers) > 0
+	su.hasPump = sn.built.PumpLink >= 0
+	return su, nil
+}
+
+// valveEvidence works out, per valve, whether the readings separate its Kv
+// from its branch's fixed parts: an independent flow and a valve
+// differential in one state, or independent readings (flow or branch
+// differential) at two different settings; and whether they say anything
+// about the valve at all (also: any readings at two settings).
+func (su *setup) valveEvidence() {
+	m := su.m
+	type seen struct{ flow, vdiff, indep, any bool }
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if b.Valve == nil {
+			continue
+		}
+		per := make([]seen, len(m.States))
+		for _, o := range su.obs {
+			if o.branch != i {
+				continue
+			}
+			s := &per[o.state]
+			s.any = true
+			switch {
+			case o.what == site.Flow:
+				s.flow, s.indep = true, true
+			case o.what == site.ValveDiff:
+				s.vdiff = true
+			case o.what == site.BranchDiff:
+				s.indep = true
+			}
+		}
+		var indepSettings, anySettings []float64
+		ref := -1
+		for k, s := range per {
+			set := m.States[k].Settings[i]
+			if s.any && ref < 0 {
+				ref = k
+			}
+			if s.flow && s.vdiff {
+				su.kvSep[i] = true
+			}
+			if s.indep {
+				indepSettings = addDistinct(indepSettings, set)
+			}
+			if s.any {
+				anySettings = addDistinct(anySettings, set)
+			}
+		}
+		if len(indepSettings) >= 2 || len(b.Fixed) == 0 {
+			su.kvSep[i] = true
+		}
+		su.multi[i] = len(anySettings) >= 2
+		su.evidence[i] = su.kvSep[i] || su.multi[i]
+		if ref < 0 {
+			ref = 0
+		}
+		su.refKv[i], _ = b.Valve.KvAt(m.States[ref].Settings[i])
+	}
+}
+
+func addDistinct(xs []float64, v float64) []float64 {
+	for _, x := range xs {
+		if x == v {
+			return xs
+		}
+	}
+	return append(xs, v)
+}
+
+func (su *setup) allObs() []int {
+	out := make([]int, len(su.obs))
+	for i := range out {
+		out[i] = i
+	}
+	return out
+}
+
+// params lists the parameters for valve hypotheses hyp.
+func (su *setup) params(hyp []ValveHypothesis) []Param {
+	m, o := su.m, su.opt
+	var ps []Param
+	for i := range m.Branches {
+		if len(m.Branches[i].Fixed) > 0 {
+			ps = append(ps, Param{Kind: ResistanceParam, Branch: i, Sigma: o.PriorResistance})
+		}
+	}
+	for i := range m.Branches {
+		if m.Branches[i].Valve == nil {
+			continue
+		}
+		switch hyp[i] {
+		case FollowsTable:
+			if su.kvSep[i] {
+				ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: o.PriorKv})
+			}
+		case SetElsewhere:
+			ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: freeSigma, free: true})
+		case HoldsOneKv:
+			ps = append(ps, Param{Kind: StuckParam, Branch: i, Sigma: freeSigma, free: true})
+		}
+	}
+	if su.hasHeader {
+		ps = append(ps, Param{Kind: HeaderParam, Branch: -1, Sigma: o.PriorHeader})
+	}
+	if su.hasPump {
+		ps = append(ps, Param{Kind: PumpParam, Branch: -1, Sigma: o.PriorPump})
+	}
+	return ps
+}
+
+// fitRun is one engine fit.
+type fitRun struct {
+	hyp  []ValveHypothesis
+	sel  []int // the observations fitted (indices into setup.obs)
+	prob *problem
+	res  *Result
+}
+
+// newProblem builds the problem of hypotheses hyp over observations sel.
+func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []int) (*problem, error) {
+	m := su.m
+	nb := len(m.Branches)
+	p := &problem{ctx: ctx, m: m, params: su.params(hyp), rIdx: make([]int, nb), kvIdx: make([]int, nb),
+		hIdx: -1, pIdx: -1, refKv: su.refKv}
+	for i := range nb {
+		p.rIdx[i], p.kvIdx[i] = -1, -1
+	}
+	for j, par := range p.params {
+		switch par.Kind {
+		case ResistanceParam:
+			p.rIdx[par.Branch] = j
+		case KvParam, StuckParam:
+			p.kvIdx[par.Branch] = j
+		case HeaderParam:
+			p.hIdx = j
+		case PumpParam:
+			p.pIdx = j
+		}
+	}
+	for _, k := range sel {
+		p.obs = append(p.obs, su.obs[k])
+	}
+	p.pred = make([]float64, len(p.obs))
+	for k, st := range m.States {
+		sn, err := newStateNet(m, st, m.Design())
+		if err != nil {
+			return nil, err
+		}
+		for oi, o := range p.obs {
+			if o.state == k {
+				sn.obs = append(sn.obs, oi)
+			}
+		}
+		p.states = append(p.states, sn)
+	}
+	return p, nil
+}
+
+// run fits hypotheses hyp to observations sel, starting from the values of
+// matching parameters in from (design where none).
+func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64) (*fitRun, error) {
+	p, err := su.newProblem(ctx, hyp, sel)
+	if err != nil {
+		return nil, err
+	}
+	n := len(p.params)
+	x0 := make([]float64, n)
+	prior := &Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
+	for j, par := range p.params {
+		prior.Sigma[j] = par.Sigma
+		if from != nil {
+			x0[j] = from.value(par)
+		}
+	}
+	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ}
+	var prob Problem = p
+	if n > su.opt.MatrixFreeAbove {
+		prob = opProblem{p}
+	}
+	res, err := Solve(ctx, prob, x0, prior, set)
+	su.solves += p.solves
+	if err != nil {
+		return nil, fmt.Errorf("calibrate: fit: %w", err)
+	}
+	return &fitRun{hyp: hyp, sel: sel, prob: p, res: res}, nil
+}
+
+// value returns the fitted value of the parameter matching par: the same
+// kind on the same branch, or any valve parameter of that branch.
+func (f *fitRun) value(par Param) float64 {
+	for j, q := range f.prob.params {
+		if q.Branch != par.Branch {
+			continue
+		}
+		valve := func(k ParamKind) bool { return k == KvParam || k == StuckParam }
+		if q.Kind == par.Kind || (valve(q.Kind) && valve(par.Kind)) {
+			return f.res.X[j]
+		}
+	}
+	return 0
+}

@@ -1,0 +1,385 @@
+package calibrate
+
+import (
+	"context"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"gonum.org/v1/gonum/mat"
+
+	"flowset/internal/site"
+)
+
+// richSurvey reads every quantity in two states; valve b00 is moved from its
+// as-found setting to 3.5 turns in the second state and b02 to 1.5 turns.
+func richSurvey(s *site.Site) {
+	nan := math.NaN()
+	for _, st := range []string{"as-found", "after"} {
+		set := func(id string) float64 {
+			if st == "after" {
+				switch id {
+				case "b00":
+					return 3.5
+				case "b02":
+					return 1.5
+				}
+			}
+			return nan
+		}
+		for i, b := range s.Branches {
+			if b.Valve == "" {
+				read(s, st, b.ID, site.BranchDiff, "manometer", nan)
+				continue
+			}
+			read(s, st, b.ID, site.Flow, "clamp-on", set(b.ID))
+			switch i % 3 {
+			case 0:
+				read(s, st, b.ID, site.ValveDiff, "manometer", set(b.ID))
+			case 1:
+				read(s, st, b.ID, site.BranchDiff, "manometer", set(b.ID))
+			default:
+				read(s, st, b.ID, site.Flow, "valve-meter", set(b.ID))
+			}
+		}
+		read(s, st, site.AtHeader, site.HeaderDiff, "manometer", nan)
+		read(s, st, site.AtPump, site.PumpDiff, "manometer", nan)
+		read(s, st, site.AtPump, site.TotalFlow, "clamp-on", nan)
+	}
+}
+
+func richCases() []struct {
+	name string
+	spec plantSpec
+} {
+	return []struct {
+		name string
+		spec plantSpec
+	}{
+		{"direct return with riser", plantSpec{branches: 5, arrangement: site.DirectReturn, riser: true, seed: 1}},
+		{"reverse return", plantSpec{branches: 4, arrangement: site.ReverseReturn, seed: 2}},
+		{"no header loss", plantSpec{branches: 4, arrangement: site.NoHeaderLoss, seed: 3}},
+		{"constant differential", plantSpec{branches: 4, arrangement: site.DirectReturn, constDiff: true, seed: 4}},
+	}
+}
+
+// TestFitPredictions checks the fit's own predictions against the plant
+// package's (plant.Solved.Predict) at an arbitrary point, reading by
+// reading, valve-meter flows included as the meter would show them.
+func TestFitPredictions(t *testing.T) {
+	ctx := context.Background()
+	for _, c := range richCases() {
+		t.Run(c.name, func(t *testing.T) {
+			s := newPlantSite(t, c.spec)
+			richSurvey(s)
+			m := mustModel(t, s)
+			tr := newTruth(m)
+			rng := rand.New(rand.NewPCG(9, 9))
+			for i := range tr.p.Resistance {
+				tr.p.Resistance[i] = math.Exp(0.4 * rng.NormFloat64())
+				tr.p.KvScale[i] = math.Exp(0.1 * rng.NormFloat64())
+			}
+			tr.p.Header, tr.p.PumpHead = 1.3, 0.95
+			simulate(t, m, tr, nil, 1)
+			su, err := newSetup(m, mustOptions(t, nil))
+			if err != nil {
+				t.Fatal(err)
+			}
+			hyp := make([]ValveHypothesis, len(m.Branches))
+			for i := range hyp {
+				hyp[i] = SetElsewhere // every valve's Kv is a parameter
+			}
+			p, err := su.newProblem(ctx, hyp, su.allObs())
+			if err != nil {
+				t.Fatal(err)
+			}
+			x := make([]float64, len(p.params))
+			for j, par := range p.params {
+				switch par.Kind {
+				case ResistanceParam:
+					x[j] = math.Log(tr.p.Resistance[par.Branch])
+				case KvParam:
+					x[j] = math.Log(tr.p.KvScale[par.Branch])
+				case HeaderParam:
+					x[j] = math.Log(tr.p.Header)
+				case PumpParam:
+					x[j] = math.Log(tr.p.PumpHead)
+				}
+			}
+			r := make([]float64, len(p.obs))
+			if err := p.Residuals(x, r, nil); err != nil {
+				t.Fatal(err)
+			}
+			// At the truth every simulated reading is matched exactly.
+			for oi, v := range r {
+				if math.Abs(v) > 1e-7 {
+					o := p.obs[oi]
+					t.Errorf("reading %d (%v at %q, state %d): normalised residual %g at the truth, want 0", o.reading, s.Readings[o.reading].What, s.Readings[o.reading].Where, o.state, v)
+				}
+			}
+		})
+	}
+}
+
+func mustOptions(tb testing.TB, o *FitOptions) FitOptions {
+	tb.Helper()
+	out, err := o.withDefaults()
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return out
+}
+
+// TestFitJacobian checks the implicit-function Jacobian, forward and
+// adjoint, and the matrix-free products against central finite
+// differences of the residuals (the test oracle), with a seized valve, a
+// mis-set valve, the header and the pump among the parameters.
+func TestFitJacobian(t *testing.T) {
+	ctx := context.Background()
+	for _, c := range richCases() {
+		t.Run(c.name, func(t *testing.T) {
+			s := newPlantSite(t, c.spec)
+			richSurvey(s)
+			m := mustModel(t, s)
+			simulate(t, m, newTruth(m), nil, 1)
+			su, err := newSetup(m, mustOptions(t, nil))
+			if err != nil {
+				t.Fatal(err)
+			}
+			hyp := make([]ValveHypothesis, len(m.Branches))
+			for i, b := range m.Branches {
+				if b.Valve != nil {
+					hyp[i] = FollowsTable
+				}
+			}
+			hyp[0], hyp[2] = HoldsOneKv, SetElsewhere
+			p, err := su.newProblem(ctx, hyp, su.allObs())
+			if err != nil {
+				t.Fatal(err)
+			}
+			n, mo := p.Dims()
+			rng := rand.New(rand.NewPCG(5, 5))
+			x := make([]float64, n)
+			for j := range x {
+				x[j] = 0.2 * rng.NormFloat64()
+			}
+			jac := mat.NewDense(mo, n, nil)
+			r := make([]float64, mo)
+			if err := p.Residuals(x, r, jac); err != nil {
+				t.Fatal(err)
+			}
+			// Finite differences, central, step 1e-5 in the log-multiplier.
+			const h = 1e-5
+			fd := mat.NewDense(mo, n, nil)
+			rp, rm := make([]float64, mo), make([]float64, mo)
+			xp := make([]float64, n)
+			for j := range n {
+				copy(xp, x)
+				xp[j] = x[j] + h
+				if err := p.Residuals(xp, rp, nil); err != nil {
+					t.Fatal(err)
+				}
+				xp[j] = x[j] - h
+				if err := p.Residuals(xp, rm, nil); err != nil {
+					t.Fatal(err)
+				}
+				for i := range mo {
+					fd.Set(i, j, (rp[i]-rm[i])/(2*h))
+				}
+			}
+			// The network converges to a relative 1e-10, so the differences
+			// carry about 1e-10·|r|/h of noise: compare against the row's
+			// scale.
+			for i := range mo {
+				scale := mat.Norm(jac.RowView(i), math.Inf(1)) + 1e-3
+				for j := range n {
+					if d := math.Abs(jac.At(i, j) - fd.At(i, j)); d > 2e-5*scale {
+						o := p.obs[i]
+						t.Errorf("J[%d,%d] (%v at %q; %v of branch %d) = %.8g, finite difference %.8g", i, j, o.what,
+							s.Readings[o.reading].Where, p.params[j].Kind, p.params[j].Branch, jac.At(i, j), fd.At(i, j))
+					}
+				}
+			}
+			// The forward and adjoint paths agree to rounding.
+			if err := p.Residuals(x, r, jac); err != nil {
+				t.Fatal(err)
+			}
+			alt := mat.NewDense(mo, n, nil)
+			forceOtherPath(t, p, x, alt)
+			if d := maxAbsDiff(jac, alt); d > 1e-9*mat.Norm(jac, math.Inf(1)) {
+				t.Errorf("forward and adjoint Jacobians differ by %g", d)
+			}
+			// Matrix-free products equal J v and Jᵀ w.
+			if err := p.Residuals(x, r, nil); err != nil {
+				t.Fatal(err)
+			}
+			op := opProblem{p}
+			v, w := make([]float64, n), make([]float64, mo)
+			for j := range v {
+				v[j] = rng.NormFloat64()
+			}
+			for i := range w {
+				w[i] = rng.NormFloat64()
+			}
+			jv, jtw := make([]float64, mo), make([]float64, n)
+			op.MulVec(jv, v)
+			op.MulTransVec(jtw, w)
+			var want mat.VecDense
+			want.MulVec(jac, mat.NewVecDense(n, v))
+			if d := maxVecDiff(jv, want.RawVector().Data); d > 1e-9*mat.Norm(&want, math.Inf(1)) {
+				t.Errorf("MulVec differs from J v by %g", d)
+			}
+			var wantT mat.VecDense
+			wantT.MulVec(jac.T(), mat.NewVecDense(mo, w))
+			if d := maxVecDiff(jtw, wantT.RawVector().Data); d > 1e-9*mat.Norm(&wantT, math.Inf(1)) {
+				t.Errorf("MulTransVec differs from Jᵀ w by %g", d)
+			}
+		})
+	}
+}
+
+// forceOtherPath fills jac by the adjoint path when the problem would take
+// the forward one, and the other way round, by padding or trimming the
+// comparison: it evaluates each state with the other method.
+func forceOtherPath(t *testing.T, p *problem, x []float64, jac *mat.Dense) {
+	t.Helper()
+	r := make([]float64, len(p.obs))
+	if err := p.Residuals(x, r, nil); err != nil {
+		t.Fatal(err)
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 {
+			continue
+		}
+		var err error
+		if len(p.params) <= len(sn.obs) {
+			err = p.jacobianAdjoint(sn, jac)
+		} else {
+			err = p.jacobianForward(sn, jac)
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		p.jacobianDirect(sn, jac)
+	}
+}
+
+func maxAbsDiff(a, b *mat.Dense) float64 {
+	var d mat.Dense
+	d.Sub(a, b)
+	return mat.Norm(&d, math.Inf(1))
+}
+
+func maxVecDiff(a, b []float64) float64 {
+	var d float64
+	for i := range a {
+		d = max(d, math.Abs(a[i]-b[i]))
+	}
+	return d
+}
+
+// TestFitNoiseFree fits noise-free simulated surveys of plants whose
+// multipliers are all away from design, without priors, and wants them
+// back to 1e-6 (closed-form truth: the simulated plant itself).
+func TestFitNoiseFree(t *testing.T) {
+	ctx := context.Background()
+	noPrior := &FitOptions{PriorResistance: math.Inf(1), PriorKv: math.Inf(1), PriorHeader: math.Inf(1), PriorPump: math.Inf(1)}
+	for _, c := range richCases() {
+		t.Run(c.name, func(t *testing.T) {
+			s := newPlantSite(t, c.spec)
+			richSurvey(s)
+			m := mustModel(t, s)
+			tr := newTruth(m)
+			rng := rand.New(rand.NewPCG(c.spec.seed, 77))
+			for i := range tr.p.Resistance {
+				tr.p.Resistance[i] = math.Exp(0.5 * rng.NormFloat64())
+			}
+			tr.p.KvScale[0] = 0.9 // b00 has a valve differential and a flow
+			tr.p.Header, tr.p.PumpHead = 1.4, 0.92
+			simulate(t, m, tr, nil, 1)
+			cal, err := Fit(ctx, m, noPrior)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !cal.Converged {
+				t.Errorf("Fit status %v, want convergence", cal.Status)
+			}
+			check := func(what string, got, want float64) {
+				t.Helper()
+				if math.Abs(got/want-1) > 1e-6 {
+					t.Errorf("%s = %.9g, want %.9g", what, got, want)
+				}
+			}
+			for i, b := range cal.Branches {
+				if b.Fitted {
+					check("resistance ratio of "+b.ID, b.Ratio, tr.p.Resistance[i])
+				}
+				if b.KvFitted {
+					check("kv scale of "+b.ID, b.KvScale, tr.p.KvScale[i])
+				}
+			}
+			if !cal.Branches[0].KvFitted {
+				t.Errorf("b00's kv scale not fitted although it has a flow and a valve differential in one state")
+			}
+			if cal.Header.Fitted {
+				check("header", cal.Header.Ratio, tr.p.Header)
+			} else if c.spec.arrangement != site.NoHeaderLoss {
+				t.Errorf("header multiplier not fitted")
+			}
+			if cal.Pump.Fitted {
+				check("pump head", cal.Pump.Ratio, tr.p.PumpHead)
+			} else if !c.spec.constDiff {
+				t.Errorf("pump head multiplier not fitted")
+			}
+			if cal.ChiSquare > 1e-10 {
+				t.Errorf("chi-square %g of a noise-free fit, want 0", cal.ChiSquare)
+			}
+			for _, rf := range cal.Readings {
+				if math.Abs(rf.Residual) > 1e-6*math.Abs(rf.Value) {
+					t.Errorf("%v: residual %g", rf, rf.Residual)
+				}
+			}
+		})
+	}
+}
+
+// TestFitErrors checks the sentinel causes of unusable input.
+func TestFitErrors(t *testing.T) {
+	ctx := context.Background()
+	base := func() *site.Site {
+		s := newPlantSite(t, plantSpec{branches: 3, arrangement: site.DirectReturn, seed: 1})
+		flowSurvey(s, "as-found")
+		return s
+	}
+	cases := []struct {
+		name  string
+		edit  func(s *site.Site)
+		opt   *FitOptions
+		cause error
+	}{
+		{"negative prior", nil, &FitOptions{PriorKv: -1}, ErrSettings},
+		{"NaN meter density", nil, &FitOptions{MeterDensity: math.NaN()}, ErrSettings},
+		{"zero sigma", func(s *site.Site) { s.Readings[0].Sigma = 0 }, nil, ErrSurvey},
+		{"NaN value", func(s *site.Site) { s.Readings[0].Value = math.NaN() }, nil, ErrSurvey},
+		{"valve meter without valve", func(s *site.Site) {
+			s.Branches[0].Valve, s.Branches[0].Setting = "", math.NaN()
+			s.Readings[0].Instrument = "valve-meter"
+		}, nil, ErrSurvey},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			s := base()
+			m := mustModel(t, s)
+			simulate(t, m, newTruth(m), nil, 1)
+			if c.edit != nil {
+				c.edit(s)
+				m = mustModel(t, s)
+			}
+			_, err := Fit(ctx, m, c.opt)
+			if !errors.Is(err, c.cause) {
+				t.Errorf("Fit: error %v, want %v", err, c.cause)
+			}
+		})
+	}
+}

@@ -1,0 +1,606 @@
+package calibrate
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/network"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// ParamKind says what a fitted parameter multiplies.
+type ParamKind int
+
+// The parameter kinds. Every parameter is the natural logarithm of a
+// multiplier that is 1 at design.
+const (
+	ResistanceParam ParamKind = iota // a branch's fixed parts
+	KvParam                          // a branch's valve Kv, in every state
+	StuckParam                       // a seized valve's one Kv, relative to the table at its first surveyed setting
+	HeaderParam                      // every header segment
+	PumpParam                        // the pump's head curve
+)
+
+// String names the kind.
+func (k ParamKind) String() string {
+	switch k {
+	case ResistanceParam:
+		return "resistance"
+	case KvParam:
+		return "kv scale"
+	case StuckParam:
+		return "seized kv"
+	case HeaderParam:
+		return "header"
+	case PumpParam:
+		return "pump head"
+	}
+	return fmt.Sprintf("param(%d)", int(k))
+}
+
+// Param is one fitted parameter: the log of a multiplier.
+type Param struct {
+	Kind   ParamKind
+	Branch int // branch index; -1 for the header and pump
+	// Sigma is the prior sd of the log-multiplier (+Inf: none).
+	Sigma float64
+	free  bool // freed by a valve hypothesis
+}
+
+// obs is one observation of the fit: a reading, or a valve-meter flow
+// turned back into the valve differential the meter measured.
+type obs struct {
+	reading int // index into Site.Readings
+	state   int
+	what    site.Quantity // what is modelled (ValveDiff for a valve-meter flow)
+	branch  int           // -1 for the pump, header and total flow
+	value   float64       // SI, of what
+	sigma   float64
+	meter   bool    // a valve-meter flow
+	meterKv float64 // the table Kv at the recorded setting the meter used, m3/h
+	meterC  float64 // the meter's conversion dp = meterC·q|q|
+}
+
+type term struct {
+	i int
+	c float64
+}
+
+// lin is an observation's linearisation: coefficients on the link flows,
+// node pressures and (directly) on the parameters.
+type lin struct {
+	q, p, x []term
+}
+
+// stateNet is one survey state's network, kept between evaluations so that
+// its node ordering is reused and each solve starts warm from the last.
+type stateNet struct {
+	st     plant.State
+	built  *network.Built
+	obs    []int // indices into problem.obs
+	flowOf [][]int
+	// supplyHdr and returnHdr are each branch's header links (-1 none).
+	supplyHdr, returnHdr []int
+	top, ret             int // header top node and the pressurisation point
+	outlet               int // pump outlet node (-1 without a pump)
+	topFlow              []int
+	sol                  *network.Solution
+	params               plant.Params
+	dh                   [][]term // per parameter, the link-drop derivatives
+	lin                  []lin    // parallel to obs
+}
+
+// problem is the calibration least-squares problem for the engine.
+type problem struct {
+	// ctx is kept because the engine's Problem interface carries none; it
+	// only lets a long network solve stop early.
+	ctx    context.Context
+	m      *plant.Model
+	params []Param
+	obs    []obs
+	states []*stateNet
+	rIdx   []int // branch -> resistance parameter, -1
+	kvIdx  []int // branch -> Kv or stuck parameter, -1
+	hIdx   int
+	pIdx   int
+	refKv  []float64 // table Kv of each valve at its reference setting
+	pred   []float64 // predictions at the latest evaluation
+	x      []float64 // the latest evaluation point
+	solves int       // network solves
+}
+
+// maxLog bounds the log-multipliers the model is evaluated at: e^±30 is
+// far outside anything physical and keeps the network finite.
+const maxLog = 30
+
+func (p *problem) Dims() (int, int) { return len(p.params), len(p.obs) }
+
+// stateParams returns the multipliers the network of state s is built with.
+func (p *problem) stateParams(x []float64, s int) plant.Params {
+	pp := p.m.Design()
+	for i := range p.m.Branches {
+		if j := p.rIdx[i]; j >= 0 {
+			pp.Resistance[i] = math.Exp(x[j])
+		}
+		if j := p.kvIdx[i]; j >= 0 {
+			k := math.Exp(x[j])
+			if p.params[j].Kind == StuckParam {
+				// One Kv in every state: the scale on the table at this
+				// state's setting that gives the reference Kv times e^x.
+				kv, err := p.m.Branches[i].Valve.KvAt(p.states[s].st.Settings[i])
+				if err == nil && kv > 0 {
+					k *= p.refKv[i] / kv
+				}
+			}
+			pp.KvScale[i] = k
+		}
+	}
+	if p.hIdx >= 0 {
+		pp.Header = math.Exp(x[p.hIdx])
+	}
+	if p.pIdx >= 0 {
+		pp.PumpHead = math.Exp(x[p.pIdx])
+	}
+	return pp
+}
+
+// setElements puts the elements of multipliers pp on state s's network.
+func (p *problem) setElements(sn *stateNet, pp plant.Params) {
+	net := sn.built.Net
+	for i := range p.m.Branches {
+		b := &p.m.Branches[i]
+		if l := sn.built.Branch[b.ID]; l >= 0 {
+			net.SetElements(l, p.m.Elements(i, pp, sn.st.Settings[i])...)
+		}
+		if l := sn.supplyHdr[i]; l >= 0 {
+			net.SetElements(l, scaled(b.Supply, pp.Header)...)
+		}
+		if l := sn.returnHdr[i]; l >= 0 {
+			net.SetElements(l, scaled(b.Return, pp.Header)...)
+		}
+	}
+	if l := sn.built.PumpLink; l >= 0 {
+		net.SetElements(l, p.m.Source(pp, sn.st).Pump)
+	}
+}
+
+func scaled(es []hydraulics.Element, f float64) []hydraulics.Element {
+	if f == 1 {
+		return es
+	}
+	out := make([]hydraulics.Element, len(es))
+	for i, e := range es {
+		out[i] = hydraulics.Scaled{E: e, Factor: f}
+	}
+	return out
+}
+
+// solve brings state s's network to multipliers pp.
+func (p *problem) solve(sn *stateNet, pp plant.Params) error {
+	p.setElements(sn, pp)
+	var opt *network.Options
+	if sn.sol != nil {
+		opt = &network.Options{Initial: sn.sol.Flow}
+	}
+	p.solves++
+	sol, err := sn.built.Net.Solve(p.ctx, opt)
+	if err != nil && opt != nil && p.ctx.Err() == nil {
+		// A warm start from far away can fail where a cold one does not.
+		p.solves++
+		sol, err = sn.built.Net.Solve(p.ctx, nil)
+	}
+	if err != nil {
+		return fmt.Errorf("state %q: %w: %w", sn.st.Label, err, ErrDomain)
+	}
+	sn.sol, sn.params = sol, pp
+	return nil
+}
+
+// Residuals implements Problem.
+func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
+	for _, v := range x {
+		if !(math.Abs(v) <= maxLog) {
+			return fmt.Errorf("log-multiplier %g beyond ±%d: %w", v, maxLog, ErrDomain)
+		}
+	}
+	p.x = append(p.x[:0], x...)
+	if jac != nil {
+		jac.Zero()
+	}
+	for s, sn := range p.states {
+		if len(sn.obs) == 0 {
+			continue
+		}
+		if err := p.solve(sn, p.stateParams(x, s)); err != nil {
+			return err
+		}
+		p.linearise(sn)
+		for _, oi := range sn.obs {
+			o := &p.obs[oi]
+			p.pred[oi] = p.predict(sn, o)
+			r[oi] = (p.pred[oi] - o.value) / o.sigma
+			if !finite(r[oi]) {
+				return fmt.Errorf("reading %d predicted %g: %w", o.reading, p.pred[oi], ErrDomain)
+			}
+		}
+		if jac != nil {
+			if err := p.jacobian(sn, jac); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// valveDrop returns the drop and slope of branch i's valve at flow q in the
+// state's solution.
+func (p *problem) valveDrop(sn *stateNet, i int, q float64) (dp, slope float64) {
+	v := p.m.ValveElement(i, sn.st.Settings[i], sn.params.KvScale[i])
+	return v.Drop(q, p.m.Fluid)
+}
+
+func (p *problem) flow(sn *stateNet, links []int) float64 {
+	var q float64
+	for _, l := range links {
+		q += sn.sol.Flow[l]
+	}
+	return q
+}
+
+func (p *problem) predict(sn *stateNet, o *obs) float64 {
+	sol := sn.sol
+	switch o.what {
+	case site.Flow:
+		return p.flow(sn, sn.flowOf[o.branch])
+	case site.TotalFlow:
+		return p.flow(sn, sn.topFlow)
+	case site.BranchDiff:
+		id := p.m.Branches[o.branch].ID
+		return sol.Pressure[sn.built.SupplyNode[id]] - sol.Pressure[sn.built.ReturnNode[id]]
+	case site.HeaderDiff:
+		return sol.Pressure[sn.top] - sol.Pressure[sn.ret]
+	case site.PumpDiff:
+		if sn.outlet < 0 {
+			return sn.st.Differential
+		}
+		return sol.Pressure[sn.outlet] - sol.Pressure[sn.ret]
+	case site.ValveDiff:
+		dp, _ := p.valveDrop(sn, o.branch, p.flow(sn, sn.flowOf[o.branch]))
+		return dp
+	}
+	return math.NaN()
+}
+
+// linearise fills the link-drop derivatives of every parameter and the
+// linear functionals of every observation of state sn at its solution.
+func (p *problem) linearise(sn *stateNet) {
+	sol := sn.sol
+	if len(sn.dh) != len(p.params) {
+		sn.dh = make([][]term, len(p.params))
+	}
+	if len(sn.lin) != len(sn.obs) {
+		sn.lin = make([]lin, len(sn.obs))
+	}
+	for j, par := range p.params {
+		d := sn.dh[j][:0]
+		switch par.Kind {
+		case ResistanceParam:
+			i := par.Branch
+			if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
+				// d(drop)/d(ln R) of a Scaled element is its scaled drop.
+				dp, _ := p.m.FixedElement(i, sn.params.Resistance[i]).Drop(sol.Flow[l], p.m.Fluid)
+				d = append(d, term{l, dp})
+			}
+		case KvParam, StuckParam:
+			i := par.Branch
+			if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
+				// dp ∝ 1/KvScale² (also at the leakage floor, which scales
+				// with KvScale): d(drop)/d(ln KvScale) = -2 dp.
+				dp, _ := p.valveDrop(sn, i, sol.Flow[l])
+				d = append(d, term{l, -2 * dp})
+			}
+		case HeaderParam:
+			for _, l := range sn.built.Headers {
+				d = append(d, term{l, sol.Drop[l]})
+			}
+		case PumpParam:
+			// The pump's head, hence its (negative) drop, is linear in the
+			// multiplier on all three curve coefficients.
+			if l := sn.built.PumpLink; l >= 0 {
+				d = append(d, term{l, sol.Drop[l]})
+			}
+		}
+		sn.dh[j] = d
+	}
+	for k, oi := range sn.obs {
+		o := &p.obs[oi]
+		ln := lin{q: sn.lin[k].q[:0], p: sn.lin[k].p[:0], x: sn.lin[k].x[:0]}
+		switch o.what {
+		case site.Flow:
+			for _, l := range sn.flowOf[o.branch] {
+				ln.q = append(ln.q, term{l, 1})
+			}
+		case site.TotalFlow:
+			for _, l := range sn.topFlow {
+				ln.q = append(ln.q, term{l, 1})
+			}
+		case site.BranchDiff:
+			id := p.m.Branches[o.branch].ID
+			ln.p = append(ln.p, term{sn.built.SupplyNode[id], 1}, term{sn.built.ReturnNode[id], -1})
+		case site.HeaderDiff:
+			ln.p = append(ln.p, term{sn.top, 1}, term{sn.ret, -1})
+		case site.PumpDiff:
+			if sn.outlet >= 0 {
+				ln.p = append(ln.p, term{sn.outlet, 1}, term{sn.ret, -1})
+			}
+		case site.ValveDiff:
+			links := sn.flowOf[o.branch]
+			dp, slope := p.valveDrop(sn, o.branch, p.flow(sn, links))
+			for _, l := range links {
+				ln.q = append(ln.q, term{l, slope})
+			}
+			if j := p.kvIdx[o.branch]; j >= 0 {
+				ln.x = append(ln.x, term{j, -2 * dp})
+			}
+		}
+		sn.lin[k] = ln
+	}
+}
+
+// jacobian fills the rows of state sn's observations, each divided by its
+// sigma, by the implicit-function theorem: forward (one Sensitivity per
+// parameter) or adjoint (one SensitivityT per observation), whichever needs
+// fewer solves, then adds the direct terms.
+func (p *problem) jacobian(sn *stateNet, jac *mat.Dense) error {
+	var err error
+	if len(p.params) <= len(sn.obs) {
+		err = p.jacobianForward(sn, jac)
+	} else {
+		err = p.jacobianAdjoint(sn, jac)
+	}
+	if err != nil {
+		return err
+	}
+	p.jacobianDirect(sn, jac)
+	return nil
+}
+
+// jacobianForward sets the network part of the rows: column j is the
+// observations' functionals of Sensitivity(dh_j).
+func (p *problem) jacobianForward(sn *stateNet, jac *mat.Dense) error {
+	sol := sn.sol
+	dh := make([]float64, len(sol.Flow))
+	for j := range p.params {
+		if len(sn.dh[j]) == 0 {
+			for _, oi := range sn.obs {
+				jac.Set(oi, j, 0)
+			}
+			continue
+		}
+		for _, t := range sn.dh[j] {
+			dh[t.i] += t.c
+		}
+		dq, dp, err := sol.Sensitivity(dh)
+		if err != nil {
+			return fmt.Errorf("state %q: %w", sn.st.Label, err)
+		}
+		for _, t := range sn.dh[j] {
+			dh[t.i] = 0
+		}
+		for k, oi := range sn.obs {
+			ln := &sn.lin[k]
+			var v float64
+			for _, t := range ln.q {
+				v += t.c * dq[t.i]
+			}
+			for _, t := range ln.p {
+				v += t.c * dp[t.i]
+			}
+			jac.Set(oi, j, v/p.obs[oi].sigma)
+		}
+	}
+	return nil
+}
+
+// jacobianAdjoint sets the network part of the rows: row k is
+// SensitivityT of observation k's functional, applied to every dh_j.
+func (p *problem) jacobianAdjoint(sn *stateNet, jac *mat.Dense) error {
+	sol := sn.sol
+	wq := make([]float64, len(sol.Flow))
+	wp := make([]float64, len(sol.Pressure))
+	for k, oi := range sn.obs {
+		ln := &sn.lin[k]
+		row := jac.RawRowView(oi)
+		if len(ln.q) == 0 && len(ln.p) == 0 {
+			clear(row)
+			continue
+		}
+		for _, t := range ln.q {
+			wq[t.i] += t.c
+		}
+		for _, t := range ln.p {
+			wp[t.i] += t.c
+		}
+		g, err := sol.SensitivityT(wq, wp)
+		if err != nil {
+			return fmt.Errorf("state %q: %w", sn.st.Label, err)
+		}
+		for _, t := range ln.q {
+			wq[t.i] = 0
+		}
+		for _, t := range ln.p {
+			wp[t.i] = 0
+		}
+		s := p.obs[oi].sigma
+		for j := range p.params {
+			var v float64
+			for _, t := range sn.dh[j] {
+				v += g[t.i] * t.c
+			}
+			row[j] = v / s
+		}
+	}
+	return nil
+}
+
+// jacobianDirect adds the terms through which an observation depends on a
+// parameter other than through the network (a valve differential on its
+// valve's Kv).
+func (p *problem) jacobianDirect(sn *stateNet, jac *mat.Dense) {
+	for k, oi := range sn.obs {
+		for _, t := range sn.lin[k].x {
+			jac.Set(oi, t.i, jac.At(oi, t.i)+t.c/p.obs[oi].sigma)
+		}
+	}
+}
+
+// opProblem is a problem solved matrix-free: its Jacobian products are one
+// Sensitivity (or SensitivityT) per state at the latest evaluation.
+type opProblem struct{ *problem }
+
+// MulVec implements Operator.
+func (p opProblem) MulVec(dst, v []float64) {
+	for i := range dst {
+		dst[i] = 0
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 || sn.sol == nil {
+			continue
+		}
+		dh := make([]float64, len(sn.sol.Flow))
+		for j, vj := range v {
+			if vj == 0 {
+				continue
+			}
+			for _, t := range sn.dh[j] {
+				dh[t.i] += vj * t.c
+			}
+		}
+		dq, dp, err := sn.sol.Sensitivity(dh)
+		if err != nil {
+			// The factor was valid when the state was solved: an error here
+			// is a non-finite v, which the engine rules out.
+			fillNaN(dst)
+			return
+		}
+		for k, oi := range sn.obs {
+			ln := &sn.lin[k]
+			var s float64
+			for _, t := range ln.q {
+				s += t.c * dq[t.i]
+			}
+			for _, t := range ln.p {
+				s += t.c * dp[t.i]
+			}
+			for _, t := range ln.x {
+				s += t.c * v[t.i]
+			}
+			dst[oi] = s / p.obs[oi].sigma
+		}
+	}
+}
+
+// MulTransVec implements Operator.
+func (p opProblem) MulTransVec(dst, w []float64) {
+	for j := range dst {
+		dst[j] = 0
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 || sn.sol == nil {
+			continue
+		}
+		wq := make([]float64, len(sn.sol.Flow))
+		wp := make([]float64, len(sn.sol.Pressure))
+		for k, oi := range sn.obs {
+			ln := &sn.lin[k]
+			c := w[oi] / p.obs[oi].sigma
+			for _, t := range ln.q {
+				wq[t.i] += c * t.c
+			}
+			for _, t := range ln.p {
+				wp[t.i] += c * t.c
+			}
+			for _, t := range ln.x {
+				dst[t.i] += c * t.c
+			}
+		}
+		g, err := sn.sol.SensitivityT(wq, wp)
+		if err != nil {
+			fillNaN(dst)
+			return
+		}
+		for j := range dst {
+			var s float64
+			for _, t := range sn.dh[j] {
+				s += g[t.i] * t.c
+			}
+			dst[j] += s
+		}
+	}
+}
+
+func fillNaN(v []float64) {
+	for i := range v {
+		v[i] = math.NaN()
+	}
+}
+
+// newStateNet builds the network of state st at multipliers pp and the
+// index maps the predictions need.
+func newStateNet(m *plant.Model, st plant.State, pp plant.Params) (*stateNet, error) {
+	built, err := network.Build(m.Ladder(pp, st.Settings), m.Source(pp, st), m.Fluid)
+	if err != nil {
+		return nil, fmt.Errorf("state %q: %w", st.Label, err)
+	}
+	net := built.Net
+	nb := len(m.Branches)
+	sn := &stateNet{st: st, built: built, flowOf: make([][]int, nb),
+		supplyHdr: make([]int, nb), returnHdr: make([]int, nb), outlet: -1}
+	var links func(i int) []int
+	links = func(i int) []int {
+		b := &m.Branches[i]
+		if l := built.Branch[b.ID]; l >= 0 {
+			return []int{l}
+		}
+		var out []int
+		for _, c := range b.Children {
+			out = append(out, links(c)...)
+		}
+		return out
+	}
+	for i, b := range m.Branches {
+		sn.flowOf[i] = links(i)
+		sn.supplyHdr[i], sn.returnHdr[i] = -1, -1
+		if l, ok := net.LinkIndex(b.ID + ".supply-header"); ok {
+			sn.supplyHdr[i] = l
+		}
+		if l, ok := net.LinkIndex(b.ID + ".return-header"); ok {
+			sn.returnHdr[i] = l
+		}
+	}
+	var ok bool
+	if sn.ret, ok = net.NodeIndex(network.ReturnID); !ok {
+		return nil, fmt.Errorf("state %q: network has no return node: %w", st.Label, ErrSurvey)
+	}
+	if sn.top, ok = net.NodeIndex(network.MainOutletID); !ok {
+		if sn.top, ok = net.NodeIndex(network.PumpOutletID); !ok {
+			sn.top, _ = net.NodeIndex(network.SupplyID)
+		}
+	}
+	if built.PumpLink >= 0 {
+		sn.outlet, _ = net.NodeIndex(network.PumpOutletID)
+		sn.topFlow = []int{built.PumpLink}
+	} else {
+		for _, i := range m.Top() {
+			sn.topFlow = append(sn.topFlow, sn.flowOf[i]...)
+		}
+	}
+	return sn, nil
+}

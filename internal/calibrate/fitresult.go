@@ -1,0 +1,139 @@
+package calibrate
+
+import (
+	"fmt"
+	"math"
+)
+
+// calibration assembles the outcome of fit f.
+func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, error) {
+	m, p, res := su.m, f.prob, f.res
+	// Bring every state to the fitted point for the predictions.
+	r := make([]float64, len(p.obs))
+	if err := p.Residuals(res.X, r, nil); err != nil {
+		return nil, fmt.Errorf("calibrate: evaluating the fit: %w", err)
+	}
+	su.solves += p.solves
+	nb := len(m.Branches)
+	c := &Calibration{
+		Params: m.Design(), Branches: make([]BranchFit, nb), States: m.StateLabels(),
+		Parameters: append([]Param(nil), p.params...), ChiSquare: res.ChiSquare, ReducedChiSquare: res.ReducedChiSquare,
+		DOF: res.DOF, Iterations: res.Iterations, Status: res.Status, Converged: res.Status.OK(), Result: res,
+		LogSD: make([]float64, nb), Solves: su.solves,
+	}
+	interval := func(j int) (ratio, lo, hi, sd float64) {
+		ratio, lo, hi = Multiplier(res.X[j], res.Lo95[j], res.Hi95[j])
+		return ratio, lo, hi, res.StdErr[j]
+	}
+	for i := range nb {
+		b := &m.Branches[i]
+		bf := BranchFit{ID: b.ID, Index: i, Ratio: 1, Lo: 1, Hi: 1, HasValve: b.Valve != nil, KvScale: 1, KvLo: 1, KvHi: 1, Valve: verdicts[i]}
+		if j := p.rIdx[i]; j >= 0 {
+			bf.Fitted, bf.Determined = true, res.Determined[j]
+			bf.Ratio, bf.Lo, bf.Hi, bf.SD = interval(j)
+			c.Params.Resistance[i] = bf.Ratio
+			c.LogSD[i] = bf.SD
+		}
+		if j := p.kvIdx[i]; j >= 0 {
+			bf.KvFitted, bf.KvDetermined = true, res.Determined[j]
+			bf.KvScale, bf.KvLo, bf.KvHi, bf.KvSD = interval(j)
+			c.Params.KvScale[i] = bf.KvScale
+			if p.params[j].Kind == StuckParam {
+				// One Kv in every state: give the scale that reproduces it
+				// at the as-found setting.
+				if kv, err := b.Valve.KvAt(b.AsFound); err == nil && kv > 0 {
+					c.Params.KvScale[i] = bf.KvScale * su.refKv[i] / kv
+				}
+			}
+			su.valveStates(p, i, &bf.Valve)
+		}
+		c.Branches[i] = bf
+	}
+	if p.hIdx >= 0 {
+		c.Header.Fitted, c.Header.Determined = true, res.Determined[p.hIdx]
+		c.Header.Ratio, c.Header.Lo, c.Header.Hi, c.Header.SD = interval(p.hIdx)
+		c.Params.Header = c.Header.Ratio
+	} else {
+		c.Header = ParamFit{Ratio: 1, Lo: 1, Hi: 1}
+	}
+	if p.pIdx >= 0 {
+		c.Pump.Fitted, c.Pump.Determined = true, res.Determined[p.pIdx]
+		c.Pump.Ratio, c.Pump.Lo, c.Pump.Hi, c.Pump.SD = interval(p.pIdx)
+		c.Params.PumpHead = c.Pump.Ratio
+	} else {
+		c.Pump = ParamFit{Ratio: 1, Lo: 1, Hi: 1}
+	}
+	out := make(map[int]bool, len(res.Outliers))
+	for _, oi := range res.Outliers {
+		out[oi] = true
+	}
+	at := make(map[int]int, len(f.sel)) // setup observation -> problem observation
+	for oi, k := range f.sel {
+		at[k] = oi
+	}
+	s := m.Site
+	c.Readings = make([]ReadingFit, len(s.Readings))
+	for ri := range s.Readings {
+		rd := &s.Readings[ri]
+		rf := ReadingFit{Index: ri, Pos: rd.Pos, Value: rd.Value, Predicted: math.NaN(), Residual: math.NaN(), Normalised: math.NaN()}
+		switch k := su.byReading[ri]; {
+		case su.boundary[ri]:
+			rf.Boundary = true
+			if st := su.state[ri]; st >= 0 {
+				rf.Predicted = m.States[st].Differential
+				rf.Residual = rf.Predicted - rf.Value
+				rf.Normalised = rf.Residual / rd.Sigma
+			}
+		case k >= 0:
+			oi, ok := at[k]
+			if !ok {
+				break
+			}
+			o := &p.obs[oi]
+			rf.Predicted = p.pred[oi]
+			if o.meter {
+				rf.AsValveDiff = true
+				rf.Predicted = math.Copysign(math.Sqrt(math.Abs(rf.Predicted)/o.meterC), rf.Predicted)
+			}
+			rf.Residual = rf.Predicted - rf.Value
+			rf.Normalised = res.Residual[oi]
+			rf.Outlier = out[oi]
+		}
+		c.Readings[ri] = rf
+	}
+	return c, nil
+}
+
+// valveStates fills the verdict's per-state Kv, recorded and implied
+// settings of branch i's valve at the fitted point of p.
+func (su *setup) valveStates(p *problem, i int, v *ValveVerdict) {
+	b := &su.m.Branches[i]
+	v.Kv = make([]float64, len(p.states))
+	v.Recorded = make([]float64, len(p.states))
+	v.Implied = make([]float64, len(p.states))
+	for s, sn := range p.states {
+		set := sn.st.Settings[i]
+		v.Recorded[s] = set
+		v.Kv[s], v.Implied[s] = math.NaN(), math.NaN()
+		kv, err := b.Valve.KvAt(set)
+		if err != nil {
+			continue
+		}
+		v.Kv[s] = kv * p.stateParams(p.x, s).KvScale[i]
+		if h, err := b.Valve.SettingFor(v.Kv[s]); err == nil {
+			v.Implied[s] = h
+		}
+	}
+}
+
+// String summarises a reading's fit in one line.
+func (r ReadingFit) String() string {
+	tag := ""
+	switch {
+	case r.Outlier:
+		tag = " (outlier)"
+	case r.Boundary:
+		tag = " (boundary)"
+	}
+	return fmt.Sprintf("%s: read %.4g, model %.4g, %+.2f sd%s", r.Pos, r.Value, r.Predicted, r.Normalised, tag)
+}

@@ -1,0 +1,164 @@
+package calibrate
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+	"sort"
+)
+
+// Thresholds of the valve hypothesis test.
+const (
+	// suspectResidual: a valve whose readings have a normalised residual
+	// beyond it (about the two-sided 95 % point) is tested.
+	suspectResidual = 2.0
+	// suspectKv: a valve whose fitted ln Kv scale is beyond this many prior
+	// sd from 0 is tested.
+	suspectKv = 2.0
+	// strongEvidence is the score gain a hypothesis needs over
+	// FollowsTable to be adopted: 6 on 2 ln B is "strong" (Kass & Raftery
+	// 1995, §3.2).
+	strongEvidence = 6.0
+)
+
+// candidates returns the branches whose valve the hypothesis test should
+// look at, the most suspect first.
+func (su *setup) candidates(f *fitRun) []int {
+	nb := len(su.m.Branches)
+	worst := make([]float64, nb)
+	outlier := make([]bool, nb)
+	for _, oi := range f.res.Outliers {
+		if b := f.prob.obs[oi].branch; b >= 0 {
+			outlier[b] = true
+		}
+	}
+	for oi, o := range f.prob.obs {
+		if o.branch >= 0 {
+			worst[o.branch] = max(worst[o.branch], math.Abs(f.res.Residual[oi]))
+		}
+	}
+	var out []int
+	for i := range nb {
+		if !su.evidence[i] {
+			continue
+		}
+		suspect := worst[i] > suspectResidual || outlier[i]
+		if j := f.prob.kvIdx[i]; j >= 0 && math.Abs(f.res.X[j]) > suspectKv*su.opt.PriorKv {
+			suspect = true
+		}
+		if suspect {
+			out = append(out, i)
+		}
+	}
+	sort.SliceStable(out, func(a, b int) bool { return worst[out[a]] > worst[out[b]] })
+	return out
+}
+
+// score is χ² plus the prior penalty of the parameters that keep a prior,
+// plus ln m for each parameter a hypothesis freed.
+func score(f *fitRun) float64 {
+	s := f.res.ChiSquare
+	var free int
+	for j, par := range f.prob.params {
+		if par.free {
+			free++
+			continue
+		}
+		if !math.IsInf(par.Sigma, 1) {
+			z := f.res.X[j] / par.Sigma
+			s += z * z
+		}
+	}
+	return s + float64(free)*math.Log(float64(len(f.sel)))
+}
+
+// hypotheses runs the valve hypothesis test on every candidate of base and
+// returns the fit with the adopted hypotheses; verdicts are filled for
+// every valve with evidence.
+func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveVerdict) (*fitRun, error) {
+	nan := math.NaN()
+	for i := range verdicts {
+		if su.evidence[i] {
+			verdicts[i].Hypothesis = FollowsTable
+			verdicts[i].Note = "readings agree with the valve's table: not tested further"
+		}
+		verdicts[i].Score = [4]float64{nan, nan, nan, nan}
+		verdicts[i].ChiSquare = verdicts[i].Score
+	}
+	cur := base
+	for _, i := range su.candidates(base) {
+		// Compare the hypotheses on one set of readings with the outlier
+		// test off: the current outliers stay out, except those at this
+		// branch, which a hypothesis about its valve may explain.
+		drop := map[int]bool{}
+		for _, oi := range cur.res.Outliers {
+			if k := cur.sel[oi]; su.obs[k].branch != i {
+				drop[k] = true
+			}
+		}
+		var sel []int
+		for k := range su.obs {
+			if !drop[k] {
+				sel = append(sel, k)
+			}
+		}
+		hs := []ValveHypothesis{FollowsTable, SetElsewhere}
+		if su.multi[i] {
+			hs = append(hs, HoldsOneKv)
+		}
+		var runs [4]*fitRun
+		v := &verdicts[i]
+		for _, h := range hs {
+			hyp := slices.Clone(cur.hyp)
+			hyp[i] = h
+			r, err := su.run(ctx, hyp, sel, cur, -1)
+			if err != nil {
+				if ctx.Err() != nil {
+					return nil, err
+				}
+				continue
+			}
+			runs[h] = r
+			v.Score[h], v.ChiSquare[h] = score(r), r.res.ChiSquare
+		}
+		if runs[FollowsTable] == nil {
+			v.Note = "the refit under the valve's table failed: not tested"
+			continue
+		}
+		best := FollowsTable
+		for _, h := range hs[1:] {
+			if runs[h] != nil && v.Score[h] < v.Score[best] {
+				best = h
+			}
+		}
+		gain := v.Score[FollowsTable] - v.Score[best]
+		if best == FollowsTable || gain < strongEvidence {
+			v.Hypothesis = FollowsTable
+			v.Note = fmt.Sprintf("tested: freeing the valve gains %.1f in score, under the %.0f needed", max(gain, 0), strongEvidence)
+			continue
+		}
+		v.Hypothesis = best
+		v.DeltaChiSquare = v.ChiSquare[FollowsTable] - v.ChiSquare[best]
+		v.DeltaScore = gain
+		switch {
+		case best == SetElsewhere && !su.multi[i]:
+			v.Note = fmt.Sprintf("kv off its table by a consistent factor (score gain %.1f); read at one setting only, so a seized valve would look the same", gain)
+		case best == SetElsewhere:
+			v.Note = fmt.Sprintf("kv off its table by a consistent factor at every setting (score gain %.1f over the table, %.1f over a seized valve)", gain, v.Score[HoldsOneKv]-v.Score[best])
+		default:
+			v.Note = fmt.Sprintf("kv unchanged although the setting was moved (score gain %.1f over the table, %.1f over a consistent offset)", gain, v.Score[SetElsewhere]-v.Score[best])
+		}
+		next, err := su.run(ctx, runs[best].hyp, su.allObs(), runs[best], su.opt.OutlierZ)
+		if err != nil {
+			if ctx.Err() != nil {
+				return nil, err
+			}
+			v.Note += "; the final refit failed, the table was kept"
+			v.Hypothesis = FollowsTable
+			continue
+		}
+		cur = next
+	}
+	return cur, nil
+}
