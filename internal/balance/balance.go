@@ -178,6 +178,10 @@ type Plan struct {
 	// the plan with rounded settings, Pa (both at the pump, or across the
 	// source connections without one).
 	Least, Required float64
+	// LeastHigh is the least source differential if the one parameter that
+	// matters most sat at the end of its uncertainty band (Least without an
+	// Uncertainty); the warnings name the parameters behind it.
+	LeastHigh float64
 	// TotalFlow is the planned flow through the source, m3/s.
 	TotalFlow float64
 	Pump      PumpPlan

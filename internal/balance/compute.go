@@ -69,10 +69,12 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	if err := pl.pumpPlan(ctx, sol); err != nil {
 		return nil, err
 	}
+	pl.plan.LeastHigh = pl.ex.least
 	if pl.opt.Uncertainty != nil {
 		if err := pl.band(sol); err != nil {
 			return nil, err
 		}
+		pl.robust()
 	}
 	pl.shortfalls()
 	return pl.plan, nil
