@@ -4,9 +4,11 @@ import (
 	"context"
 	"errors"
 	"math"
+	"slices"
 	"strings"
 	"testing"
 
+	"flowset/internal/fluid"
 	"flowset/internal/hydraulics"
 )
 
@@ -324,40 +326,55 @@ func TestTopologyErrors(t *testing.T) {
 }
 
 func TestConvergenceError(t *testing.T) {
-	build := func() *Network {
-		n := New(water20)
-		s, m, r := n.AddNode("s"), n.AddNode("m"), n.AddNode("r")
-		n.FixPressure(s, 1e4)
-		n.FixPressure(r, 0)
-		n.AddLink("upper", s, m, quad{1e10})
-		n.AddLink("lower", m, r, quad{3e10})
-		return n
-	}
 	t.Run("iterations exhausted", func(t *testing.T) {
-		_, err := build().Solve(context.Background(), &Options{MaxIter: 1})
+		_, err := sensitivityNet().Solve(context.Background(), &Options{MaxIter: 2})
 		var ce *ConvergenceError
 		if !errors.As(err, &ce) || !errors.Is(err, ErrNoConvergence) {
 			t.Fatalf("Solve error = %v, want *ConvergenceError", err)
 		}
-		if ce.Iterations != 1 || ce.WorstLink == "" || !(ce.Residual > 0) {
-			t.Errorf("ConvergenceError = %+v, want 1 iteration, a worst link and a positive residual", ce)
+		if ce.Iterations != 2 || ce.WorstLink == "" || !(ce.Residual > DefaultTol) {
+			t.Errorf("ConvergenceError = %+v, want 2 iterations, a worst link and a residual above tolerance", ce)
 		}
 	})
-	t.Run("context cancelled", func(t *testing.T) {
+	t.Run("cancelled before", func(t *testing.T) {
 		ctx, cancel := context.WithCancel(context.Background())
 		cancel()
-		_, err := build().Solve(ctx, nil)
-		if !errors.Is(err, context.Canceled) || !errors.Is(err, ErrNoConvergence) {
-			t.Fatalf("Solve error = %v, want context.Canceled and ErrNoConvergence", err)
+		if _, err := sensitivityNet().Solve(ctx, nil); !errors.Is(err, context.Canceled) {
+			t.Fatalf("Solve error = %v, want context.Canceled", err)
+		}
+	})
+	t.Run("cancelled between iterations", func(t *testing.T) {
+		ctx, cancel := context.WithCancel(context.Background())
+		defer cancel()
+		n := sensitivityNet()
+		// The element cancels the context during the third pass over the links.
+		calls := 0
+		n.SetElements(1, append(slices.Clone(n.Elements(1)), hook(func() {
+			if calls++; calls == 3 {
+				cancel()
+			}
+		}))...)
+		_, err := n.Solve(ctx, nil)
+		var ce *ConvergenceError
+		if !errors.Is(err, context.Canceled) || !errors.As(err, &ce) {
+			t.Fatalf("Solve error = %v, want context.Canceled in a *ConvergenceError", err)
+		}
+		if calls > 4 {
+			t.Errorf("%d passes over the links after cancelling, want at most one more", calls-3)
 		}
 	})
 	t.Run("bad options", func(t *testing.T) {
-		_, err := build().Solve(context.Background(), &Options{Initial: []float64{1}})
+		_, err := sensitivityNet().Solve(context.Background(), &Options{Initial: []float64{1}})
 		if !errors.Is(err, ErrInput) {
 			t.Fatalf("Solve error = %v, want ErrInput", err)
 		}
 	})
 }
+
+// hook is an element with no drop that calls f on every evaluation.
+type hook func()
+
+func (h hook) Drop(float64, fluid.State) (float64, float64) { h(); return 0, 0 }
 
 // TestWarmStart: starting from the previous solution after a small change
 // converges in fewer steps to the same answer as a cold start.

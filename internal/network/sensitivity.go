@@ -1,10 +1,6 @@
 package network
 
-import (
-	"fmt"
-
-	"gonum.org/v1/gonum/mat"
-)
+import "fmt"
 
 // Sensitivity returns the first-order change of every link flow dq and node
 // pressure dp when the pressure drop of each link i is increased by the
@@ -117,11 +113,8 @@ func (s *Solution) solveS(r []float64) ([]float64, error) {
 	if s.pl.nFree == 0 {
 		return r, nil
 	}
-	x := mat.NewVecDense(len(r), nil)
-	if err := solveBand(s.chol, x, mat.NewVecDense(len(r), r)); err != nil {
-		return nil, err
-	}
-	return x.RawVector().Data, nil
+	s.chol.solve(r)
+	return r, nil
 }
 
 // at returns x[pos], or 0 for a fixed node (pos < 0).

@@ -2,11 +2,13 @@ package network
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
+	"slices"
 
-	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // Defaults used when Options or one of its fields is zero.
@@ -30,13 +32,18 @@ const (
 	// never the residuals that decide convergence.
 	slopeFloorRel = 1e-8
 	// probeFlow [m3/s] (3.6 m3/h, a typical hydronic branch) is where each
-	// link is probed once on a cold start to estimate its resistance.
+	// link's first secant is taken on a cold start.
 	probeFlow = 1e-3
-	// defaultDrive [Pa] is the characteristic differential assumed on a
-	// cold start when neither fixed pressures nor pumps drive the flow (an
-	// open network fed only by demands): 10 kPa, common practice for a
-	// hydronic branch, no source; it only shapes the first step.
-	defaultDrive = 1e4
+	// maxLinear bounds the linear-theory solves of a cold start; they stop
+	// earlier once every flow above linearSettle of the largest changes by
+	// less than the factor linearRatio.
+	maxLinear    = 10
+	linearSettle = 1e-12
+	linearRatio  = 1.5
+	// fullStep is the largest relative flow change of a step taken without
+	// line search; flows below trustFloor of the largest count as that.
+	fullStep   = 0.5
+	trustFloor = 1e-6
 	// maxBacktrack bounds the step halvings of one line search.
 	maxBacktrack = 40
 	// armijo is the sufficient-decrease fraction of the line search.
@@ -57,13 +64,13 @@ type Solution struct {
 	Drop     []float64 // per link, Pa: sum of the elements' drops at Flow
 	Slope    []float64 // per link, Pa s/m3: d(Drop)/d(Flow)
 
-	Iterations     int     // Newton steps taken
+	Iterations     int     // linear solves: cold-start linear-theory steps, then Newton steps
 	MaxImbalance   float64 // largest continuity error at a node, m3/s
 	MaxEnergyError float64 // largest |Drop - (p_from - p_to)| over links, Pa
 
 	pl   *plan
-	d    []float64         // the (floored) slopes of the factorised matrix
-	chol *mat.BandCholesky // factor of A21 D^-1 A12 at the solution
+	d    []float64   // the (floored) slopes of the factorised matrix
+	chol *bandFactor // factor of A21 D^-1 A12 at the solution
 }
 
 // ConvergenceError reports a Solve that stopped before meeting its
@@ -72,7 +79,7 @@ type ConvergenceError struct {
 	Iterations     int
 	WorstLink      string  // link with the largest energy error
 	WorstNode      string  // node with the largest continuity imbalance ("" if none)
-	Residual       float64 // largest residual relative to its tolerance scale (1 = on the tolerance)
+	Residual       float64 // largest residual relative to its scale (largest drop or flow), to compare with Tol
 	MaxEnergyError float64 // Pa
 	MaxImbalance   float64 // m3/s
 	Cause          error   // non-nil when the iteration was stopped (context), not exhausted
@@ -141,6 +148,9 @@ func newState(nl, nn, nf int) *state {
 // otherwise it returns a *ConvergenceError. ctx is checked between
 // iterations.
 func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, fmt.Errorf("solve: %w", err)
+	}
 	pl, err := n.prepare()
 	if err != nil {
 		return nil, err
@@ -199,66 +209,25 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	if err := n.evaluate(pl, cur); err != nil {
 		return nil, err
 	}
-	var char []float64
+	sy := newSystem(pl, nl)
+	iter := 0
 	if initial == nil {
-		if char, err = n.characteristicSlopes(cur); err != nil {
+		if cur, trial, iter, err = n.linearTheory(ctx, pl, sy, cur, trial, min(maxLinear, maxIter)); err != nil {
 			return nil, err
 		}
 	}
 
-	d := make([]float64, nl)
-	invD := make([]float64, nl)
-	dp := make([]float64, nf)
-	dq := make([]float64, nl)
-	wc := make([]float64, nf) // continuity weights 1/S_jj: turn m3/s into Pa
-	var band []float64
-	var sym *mat.SymBandDense
-	var chol *mat.BandCholesky
-	if nf > 0 {
-		band = make([]float64, nf*(pl.k+1))
-		sym = mat.NewSymBandDense(nf, pl.k, band)
-		chol = &mat.BandCholesky{}
-	}
-	rhsVec := mat.NewVecDense(max(nf, 1), nil)
-	dpVec := mat.NewVecDense(max(nf, 1), nil)
-
-	for iter := 0; ; iter++ {
+	for ; ; iter++ {
 		// Newton matrix at the current iterate.
 		floor := slopeFloor(cur.s)
-		for i := range d {
-			di := max(cur.s[i], floor)
-			if iter == 0 && char != nil {
-				di = max(di, char[i])
-			}
-			d[i] = di
-			invD[i] = 1 / di
+		for i, s := range cur.s {
+			sy.d[i] = max(s, floor)
 		}
-		if nf > 0 {
-			clear(band)
-			w := pl.k + 1
-			for i := range nl {
-				a, b := pl.pa[i], pl.pb[i]
-				g := invD[i]
-				if a >= 0 {
-					band[a*w] += g
-				}
-				if b >= 0 {
-					band[b*w] += g
-				}
-				if a >= 0 && b >= 0 {
-					lo, hi := min(a, b), max(a, b)
-					band[lo*w+hi-lo] -= g
-				}
-			}
-			for j := range nf {
-				wc[j] = 1 / band[j*w]
-			}
-			if !chol.Factorize(sym) {
-				return nil, fmt.Errorf("node matrix not positive definite at iteration %d: %w", iter, ErrNoConvergence)
-			}
+		if err := sy.factor(); err != nil {
+			return nil, err
 		}
 		if converged(cur, tol) {
-			return n.solution(pl, cur, d, chol, iter), nil
+			return n.solution(pl, cur, sy, iter), nil
 		}
 		if iter >= maxIter {
 			return nil, n.convergenceError(pl, cur, iter, nil)
@@ -266,54 +235,38 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 		if err := ctx.Err(); err != nil {
 			return nil, n.convergenceError(pl, cur, iter, err)
 		}
+		sy.step(cur.e, cur.c)
 
-		// Newton step: S dp = C - A21 D^-1 E, dq = -D^-1 (E + A12 dp).
-		if nf > 0 {
-			r := rhsVec.RawVector().Data
-			copy(r, cur.c)
-			for i := range nl {
-				t := cur.e[i] * invD[i]
-				if a := pl.pa[i]; a >= 0 {
-					r[a] += t
-				}
-				if b := pl.pb[i]; b >= 0 {
-					r[b] -= t
-				}
+		// A step that changes no flow by more than fullStep of itself is
+		// taken whole: Newton's method is then in its region of quadratic
+		// convergence, where a residual norm can rise on the way (a flow
+		// error without energy error shows up only after the step). A
+		// larger step backtracks on f = |E|² + |C/S_jj|², the residual
+		// norm with continuity expressed in Pa.
+		trust := true
+		qtiny := trustFloor * cur.scaleQ
+		for i, v := range sy.dq {
+			if math.Abs(v) > fullStep*(math.Abs(cur.q[i])+qtiny) {
+				trust = false
+				break
 			}
-			if err := solveBand(chol, dpVec, rhsVec); err != nil {
-				return nil, err
-			}
-			copy(dp, dpVec.RawVector().Data[:nf])
 		}
-		for i := range nl {
-			var adp float64
-			if b := pl.pb[i]; b >= 0 {
-				adp += dp[b]
-			}
-			if a := pl.pa[i]; a >= 0 {
-				adp -= dp[a]
-			}
-			dq[i] = -(cur.e[i] + adp) * invD[i]
-		}
-
-		// Backtracking on f = |E|² + |C/S_jj|², the residual norm with
-		// continuity expressed in Pa.
-		f0 := merit(cur, wc)
+		f0 := merit(cur, sy.wc)
 		alpha := 1.0
 		for bt := 0; ; bt++ {
 			for i := range nl {
-				trial.q[i] = cur.q[i] + alpha*dq[i]
+				trial.q[i] = cur.q[i] + alpha*sy.dq[i]
 			}
 			for node, pos := range pl.pos {
 				if pos >= 0 {
-					trial.p[node] = cur.p[node] + alpha*dp[pos]
+					trial.p[node] = cur.p[node] + alpha*sy.dp[pos]
 				}
 			}
 			if err := n.evaluate(pl, trial); err != nil {
 				return nil, err
 			}
-			ft := merit(trial, wc)
-			if ft <= (1-armijo*alpha)*f0 || bt == maxBacktrack {
+			ft := merit(trial, sy.wc)
+			if trust || ft <= (1-armijo*alpha)*f0 || bt == maxBacktrack {
 				break
 			}
 			// Minimiser of the quadratic through f(0), f'(0) = -2 f(0)
@@ -329,16 +282,202 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	}
 }
 
-// solveBand solves with the factor, accepting gonum's ill-conditioning
-// warning: the residual test, not the condition estimate, decides
-// convergence.
-func solveBand(chol *mat.BandCholesky, dst, b *mat.VecDense) error {
-	err := chol.SolveVecTo(dst, b)
-	var cond mat.Condition
-	if err != nil && !errors.As(err, &cond) {
-		return err
+// linearTheory brings a cold start (zero flow, held in cur) to flows of the
+// right order everywhere before Newton's method, which from far too small
+// flows overshoots and crawls under its line search. Each link's drop is
+// replaced by its secant from zero flow, h(q) ≈ h(0) + D q; the linear
+// network is solved, the secants are taken at the new flows and the flows
+// averaged with the previous ones, in the manner of the linear theory method
+// of D. J. Wood & C. O. A. Charles ("Hydraulic network analysis using linear
+// theory", J. Hydraul. Div. ASCE 98(HY7), 1972, 1157-1170). The average is
+// geometric (per link, where the signs agree): a square-law link whose
+// secant solve answers q' = Q²/q from q then lands on Q exactly. The first
+// secants are taken at probeFlow. At most maxSolves solves are made. It
+// returns the state at the averaged
+// flows, the spare state and the number of linear solves.
+func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, trial *state, maxSolves int) (_, _ *state, solves int, err error) {
+	nl := len(n.links)
+	h0 := slices.Clone(cur.h)
+	e0 := slices.Clone(cur.e)
+	c0 := slices.Clone(cur.c)
+	p0 := slices.Clone(cur.p)
+	for i := range n.links {
+		var hp float64
+		for _, e := range n.links[i].elems {
+			a, _ := e.Drop(probeFlow, n.Fluid)
+			hp += a
+		}
+		if !finite(hp) {
+			return nil, nil, 0, fmt.Errorf("link %q at flow %g m3/s: drop %g Pa: %w", n.links[i].id, probeFlow, hp, ErrElement)
+		}
+		sy.d[i] = (hp - h0[i]) / probeFlow
+	}
+	var prev []float64
+	for range maxSolves {
+		if err := ctx.Err(); err != nil {
+			return nil, nil, 0, n.convergenceError(pl, cur, solves, err)
+		}
+		floor := slopeFloor(sy.d)
+		for i := range sy.d {
+			sy.d[i] = max(sy.d[i], floor)
+		}
+		if err := sy.factor(); err != nil {
+			return nil, nil, 0, err
+		}
+		sy.step(e0, c0)
+		solves++
+		// From zero flow the linear solution is dq itself.
+		done := prev != nil
+		var qmax float64
+		for _, v := range sy.dq {
+			qmax = max(qmax, math.Abs(v))
+		}
+		if qmax == 0 {
+			return cur, trial, solves, nil // nothing drives a flow
+		}
+		for i := range nl {
+			q := sy.dq[i]
+			if prev != nil && q*prev[i] > 0 {
+				if math.Abs(q) > linearSettle*qmax {
+					if r := q / prev[i]; r > linearRatio || r < 1/linearRatio {
+						done = false
+					}
+				}
+				q = math.Copysign(math.Sqrt(q*prev[i]), q)
+			} else if prev != nil && math.Abs(q) > linearSettle*qmax {
+				done = false
+			}
+			trial.q[i] = q
+		}
+		for node, pos := range pl.pos {
+			if pos >= 0 {
+				trial.p[node] = p0[node] + sy.dp[pos]
+			}
+		}
+		if err := n.evaluate(pl, trial); err != nil {
+			return nil, nil, 0, err
+		}
+		cur, trial = trial, cur
+		if done {
+			break
+		}
+		prev = append(prev[:0], cur.q...)
+		for i, q := range cur.q {
+			if q != 0 {
+				if sec := (cur.h[i] - h0[i]) / q; sec > 0 {
+					sy.d[i] = sec
+				}
+			}
+		}
+	}
+	return cur, trial, solves, nil
+}
+
+// system holds the linearised equations of one step: the diagonal D (set
+// by the caller), the factor of S = A21 D^-1 A12 and the step.
+type system struct {
+	pl     *plan
+	d      []float64 // link slopes, positive
+	invD   []float64
+	dq, dp []float64 // step per link and per band position
+	wc     []float64 // continuity weights 1/S_jj: turn m3/s into Pa
+	band   []float64
+	chol   *bandFactor
+}
+
+func newSystem(pl *plan, nl int) *system {
+	sy := &system{
+		pl: pl, d: make([]float64, nl), invD: make([]float64, nl), dq: make([]float64, nl),
+		dp: make([]float64, pl.nFree), wc: make([]float64, pl.nFree),
+	}
+	if pl.nFree > 0 {
+		sy.band = make([]float64, pl.nFree*(pl.k+1))
+	}
+	return sy
+}
+
+// factor assembles S from d and factorises it.
+func (sy *system) factor() error {
+	pl := sy.pl
+	for i, v := range sy.d {
+		sy.invD[i] = 1 / v
+	}
+	if pl.nFree == 0 {
+		return nil
+	}
+	band := sy.band
+	clear(band)
+	w := pl.k + 1
+	for i, g := range sy.invD {
+		a, b := pl.pa[i], pl.pb[i]
+		if a >= 0 {
+			band[a*w] += g
+		}
+		if b >= 0 {
+			band[b*w] += g
+		}
+		if a >= 0 && b >= 0 {
+			lo, hi := min(a, b), max(a, b)
+			band[lo*w+hi-lo] -= g
+		}
+	}
+	for j := range sy.wc {
+		sy.wc[j] = 1 / band[j*w]
+	}
+	var ok bool
+	if sy.chol, ok = factorBand(pl.nFree, pl.k, band); !ok {
+		return fmt.Errorf("node matrix not positive definite: %w", ErrNoConvergence)
 	}
 	return nil
+}
+
+// step solves S dp = C - A21 D^-1 E, dq = -D^-1 (E + A12 dp) for the
+// energy residuals e (per link) and continuity residuals c (per position).
+func (sy *system) step(e, c []float64) {
+	pl := sy.pl
+	if pl.nFree > 0 {
+		r := sy.dp
+		copy(r, c)
+		for i, ei := range e {
+			t := ei * sy.invD[i]
+			if a := pl.pa[i]; a >= 0 {
+				r[a] += t
+			}
+			if b := pl.pb[i]; b >= 0 {
+				r[b] -= t
+			}
+		}
+		sy.chol.solve(r)
+	}
+	for i, ei := range e {
+		var adp float64
+		if b := pl.pb[i]; b >= 0 {
+			adp += sy.dp[b]
+		}
+		if a := pl.pa[i]; a >= 0 {
+			adp -= sy.dp[a]
+		}
+		sy.dq[i] = -(ei + adp) * sy.invD[i]
+	}
+}
+
+// bandFactor is the Cholesky factor Uᵀ U of a symmetric positive definite
+// band matrix. gonum's mat.BandCholesky also estimates the condition number
+// on every factorisation, which costs O(n²) and dominated large networks, so
+// the LAPACK routines are called directly; the residual test, not a
+// condition estimate, decides convergence.
+type bandFactor struct{ t blas64.TriangularBand }
+
+// factorBand factorises in place the n×n matrix of half bandwidth k stored
+// by rows from the diagonal: data[i*(k+1)+j-i] = A[i][j] for i <= j <= i+k.
+func factorBand(n, k int, data []float64) (*bandFactor, bool) {
+	t, ok := lapack64.Pbtrf(blas64.SymmetricBand{Uplo: blas.Upper, N: n, K: k, Stride: k + 1, Data: data})
+	return &bandFactor{t: t}, ok
+}
+
+// solve overwrites x with A^-1 x.
+func (f *bandFactor) solve(x []float64) {
+	lapack64.Pbtrs(f.t, blas64.General{Rows: len(x), Cols: 1, Stride: 1, Data: x})
 }
 
 // evaluate fills the drops, slopes and residuals of st at its q and p.
@@ -439,53 +578,6 @@ func slopeFloor(s []float64) float64 {
 	return slopeFloorRel * math.Ldexp(1, sum/cnt)
 }
 
-// characteristicSlopes estimates, for a cold start at zero flow, the secant
-// slope of each link at a characteristic differential so the first step has
-// the right order of magnitude even where the slope at zero flow vanishes:
-// each link is probed once at probeFlow, taken as square-law from there
-// (r = Δh/q²), and given the slope sqrt(P r) it would have at the
-// differential P of the fixed pressures or pumps. st holds the drops at zero
-// flow.
-func (n *Network) characteristicSlopes(st *state) ([]float64, error) {
-	var drive float64
-	pmin, pmax := math.Inf(1), math.Inf(-1)
-	for i := range n.nodeID {
-		if n.fixed[i] {
-			pmin, pmax = min(pmin, n.pfix[i]), max(pmax, n.pfix[i])
-		}
-	}
-	drive = pmax - pmin
-	for _, h := range st.h {
-		drive = max(drive, -h, h) // pump gains at shut-off, any offset
-	}
-	if drive == 0 {
-		for _, q := range n.demand {
-			if q != 0 {
-				drive = defaultDrive
-				break
-			}
-		}
-	}
-	if drive == 0 {
-		return nil, nil // nothing drives a flow: zero flow is the answer
-	}
-	char := make([]float64, len(n.links))
-	for i := range n.links {
-		var hp float64
-		for _, e := range n.links[i].elems {
-			a, _ := e.Drop(probeFlow, n.Fluid)
-			hp += a
-		}
-		if !finite(hp) {
-			return nil, fmt.Errorf("link %q at flow %g m3/s: drop %g Pa: %w", n.links[i].id, probeFlow, hp, ErrElement)
-		}
-		if r := (hp - st.h[i]) / (probeFlow * probeFlow); r > 0 {
-			char[i] = math.Sqrt(drive * r)
-		}
-	}
-	return char, nil
-}
-
 func (n *Network) convergenceError(pl *plan, st *state, iter int, cause error) error {
 	ce := &ConvergenceError{
 		Iterations:     iter,
@@ -521,7 +613,7 @@ func relative(x, scale float64) float64 {
 	return x / scale
 }
 
-func (n *Network) solution(pl *plan, st *state, d []float64, chol *mat.BandCholesky, iter int) *Solution {
+func (n *Network) solution(pl *plan, st *state, sy *system, iter int) *Solution {
 	sol := &Solution{
 		Flow:           append([]float64(nil), st.q...),
 		Pressure:       append([]float64(nil), st.p...),
@@ -531,8 +623,8 @@ func (n *Network) solution(pl *plan, st *state, d []float64, chol *mat.BandChole
 		MaxImbalance:   st.maxC,
 		MaxEnergyError: st.maxE,
 		pl:             pl,
-		d:              append([]float64(nil), d...),
-		chol:           chol,
+		d:              slices.Clone(sy.d),
+		chol:           sy.chol,
 	}
 	return sol
 }

@@ -1,0 +1,72 @@
+package network
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"testing"
+
+	"flowset/internal/hydraulics"
+)
+
+// benchLadder is a direct-return ladder of nb branches, each a terminal
+// (10 kPa at 0.36 m3/h), an equal-percentage valve and 6 m of DN15 pipe, on
+// headers sized for about 1 m/s with 1 m segments, driven by a pump whose
+// curve meets the estimated design head at the design flow.
+func benchLadder(tb testing.TB, nb int) *Built {
+	const qd = 1e-4 // m3/s per branch
+	valve := hydraulics.Valve{
+		Char:    hydraulics.Inherent{Kind: hydraulics.EqualPercentage, Kvs: 2.5, Rangeability: 50},
+		Setting: 0.8,
+	}
+	l := Ladder{Arrangement: DirectReturn}
+	var header float64 // design drop of supply + return headers to the far branch
+	for k := range nb {
+		flow := float64(nb-k) * qd
+		seg := hydraulics.Pipe{Bore: math.Sqrt(4 * flow / math.Pi), Length: 1, Roughness: 4.5e-5}
+		d, _ := seg.Drop(flow, water20)
+		header += 2 * d
+		l.Branches = append(l.Branches, Branch{
+			ID: fmt.Sprintf("b%d", k),
+			Elements: []Element{
+				hydraulics.Terminal{RatedDrop: 1e4, RatedFlow: qd},
+				valve,
+				hydraulics.Pipe{Bore: 0.0161, Length: 6, Roughness: 4.5e-5},
+			},
+			Supply: []Element{seg},
+			Return: []Element{seg},
+		})
+	}
+	var branch float64
+	for _, e := range l.Branches[0].Elements {
+		d, _ := e.Drop(qd, water20)
+		branch += d
+	}
+	// Head in m at design: H = A0 + A2 Q² with A0 = 1.25 H.
+	qTot := float64(nb) * qd
+	h := (branch + header) / (water20.Density * hydraulics.StandardGravity)
+	pump := hydraulics.Pump{Curve: hydraulics.PumpCurve{A0: 1.25 * h, A2: -0.25 * h / (qTot * qTot), QMax: 2 * qTot}}
+	bt, err := Build(l, Source{Pump: pump, Static: 1.5e5}, water20)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return bt
+}
+
+func BenchmarkSolve(b *testing.B) {
+	for _, nb := range []int{10, 100, 1000, 10000, 100000} {
+		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			bt := benchLadder(b, nb)
+			var iters int
+			b.ReportAllocs()
+			for b.Loop() {
+				sol, err := bt.Net.Solve(context.Background(), nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				iters = sol.Iterations
+			}
+			b.ReportMetric(float64(iters), "newton-steps")
+		})
+	}
+}
