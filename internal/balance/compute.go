@@ -327,20 +327,49 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 				return nil, err
 			}
 		}
-		// Raise the pump when a branch is still below the band.
-		low := 1 + pl.lo + 1e-3
-		worst := func(s *plant.Solved) float64 {
-			w := math.Inf(1)
+		// Where rounding leaves branches outside the band, try moving the
+		// pump until the lowest branch reaches the band's lower edge, or
+		// the highest its upper edge, and keep the move only if it brings
+		// more branches into the band.
+		count := func(s *plant.Solved) int {
+			var c int
 			for i := range m.Branches {
-				w = min(w, s.Flow(i)/ex.q[i])
+				if r := s.Flow(i) / ex.q[i]; r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9 {
+					c++
+				}
 			}
-			return w/low - 1
+			return c
 		}
-		if worst(sol) < 0 {
-			if x, sol, err = pl.root(ctx, settings, x, worst); err != nil {
-				return nil, err
+		ratio := func(s *plant.Solved, worst func(a, b float64) float64, start float64) float64 {
+			w := start
+			for i := range m.Branches {
+				w = worst(w, s.Flow(i)/ex.q[i])
 			}
-			pl.plan.Warnings = append(pl.plan.Warnings, "rounding leaves a branch below its band with the index at target: the pump is raised until the lowest branch reaches the band")
+			return w
+		}
+		best := count(sol)
+		if best < len(m.Branches) {
+			low, high := 1+pl.lo+1e-3, 1+pl.hi-1e-3
+			moves := []struct {
+				g    func(*plant.Solved) float64
+				what string
+			}{
+				{func(s *plant.Solved) float64 { return ratio(s, math.Min, math.Inf(1))/low - 1 }, "raised until the lowest branch reaches the band"},
+				{func(s *plant.Solved) float64 { return ratio(s, math.Max, math.Inf(-1))/high - 1 }, "lowered until the highest branch reaches the band"},
+			}
+			var why string
+			for _, mv := range moves {
+				xm, sm, err := pl.root(ctx, settings, x, mv.g)
+				if err != nil {
+					return nil, err
+				}
+				if c := count(sm); c > best {
+					best, x, sol, why = c, xm, sm, mv.what
+				}
+			}
+			if why != "" {
+				pl.plan.Warnings = append(pl.plan.Warnings, "with the index at target, rounding leaves branches outside the band: the pump is "+why)
+			}
 		}
 	}
 	pl.plan.Pump.NeededSpeed = math.NaN()

@@ -1,0 +1,124 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"flowset/internal/site"
+)
+
+// TestBandClosedForm checks the band on parallel square-law branches held
+// at a constant differential: each branch sees the source differential
+// whatever the others do, so q_i = √(Δp_s / (R_i r_i + r_v,i)) and
+// d ln q_i / d ln R_i = -½ Δp_fixed,i / Δp_branch,i exactly (differentiate
+// the square law), with no effect on the other branches.
+func TestBandClosedForm(t *testing.T) {
+	m := mustModel(t, parallelSite())
+	const sd, k = 0.2, 2.0
+	for j := range m.Branches {
+		t.Run(m.Branches[j].ID, func(t *testing.T) {
+			u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), Coverage: k}
+			u.LnResistance[j] = sd
+			pl := mustCompute(t, m, m.Design(), &Options{Uncertainty: u})
+			for _, b := range pl.Branches {
+				i, _ := m.Index(b.ID)
+				want := 0.0
+				if i == j {
+					fd, _ := m.FixedElement(i, 1).Drop(b.Predicted, m.Fluid)
+					want = k * sd * 0.5 * fd / b.BranchDiff
+				}
+				if got := math.Log(b.BandHigh / b.Percent); math.Abs(got-want) > 1e-9 {
+					t.Errorf("branch %s: ln(high/predicted) = %.12f, want %.12f", b.ID, got, want)
+				}
+				if got := math.Log(b.Percent / b.BandLow); math.Abs(got-want) > 1e-9 {
+					t.Errorf("branch %s: ln(predicted/low) = %.12f, want %.12f", b.ID, got, want)
+				}
+			}
+		})
+	}
+}
+
+// TestBandFiniteDifference checks the linearised band of every branch
+// against central finite differences of full network solves (the plan's
+// state with one multiplier moved by e^±δ), for each kind of parameter, on
+// random ladders with risers, pumps and both return arrangements.
+func TestBandFiniteDifference(t *testing.T) {
+	ctx := context.Background()
+	const sd, delta = 0.1, 1e-5
+	for seed := range uint64(3) {
+		rng := rand.New(rand.NewPCG(seed, 23))
+		o := genOpts{n: 5 + rng.IntN(8), header: site.Arrangement(1 + seed%2), risers: true, pump: seed != 1}
+		s := randomSite(rng, o)
+		m := mustModel(t, s)
+		if o.pump {
+			m = withPump(t, s)
+		}
+		p := randomParams(rng, m)
+		p.PumpHead = 1.1
+		n := len(m.Branches)
+		kinds := []string{"resistance", "kv", "header"}
+		if o.pump {
+			kinds = append(kinds, "pump")
+		}
+		for _, kind := range kinds {
+			for j := range n {
+				if kind != "resistance" && kind != "kv" && j > 0 {
+					break
+				}
+				if kind == "kv" && m.Branches[j].Valve == nil {
+					continue
+				}
+				name := fmt.Sprintf("seed=%d/%s/%s", seed, kind, m.Branches[j].ID)
+				u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
+				switch kind {
+				case "resistance":
+					u.LnResistance[j] = sd
+				case "kv":
+					u.LnKvScale[j] = sd
+				case "header":
+					u.LnHeader = sd
+				case "pump":
+					u.LnPumpHead = sd
+				}
+				pl, err := Compute(ctx, m, p, &Options{Uncertainty: u})
+				if err != nil {
+					t.Fatalf("%s: %v", name, err)
+				}
+				flows := func(f float64) []float64 {
+					q := p.Clone()
+					switch kind {
+					case "resistance":
+						q.Resistance[j] *= f
+					case "kv":
+						q.KvScale[j] *= f
+					case "header":
+						q.Header *= f
+					case "pump":
+						q.PumpHead *= f
+					}
+					sol, err := m.Solve(ctx, q, pl.State())
+					if err != nil {
+						t.Fatalf("%s: %v", name, err)
+					}
+					out := make([]float64, n)
+					for i := range out {
+						out[i] = sol.Flow(i)
+					}
+					return out
+				}
+				hi, lo := flows(math.Exp(delta)), flows(math.Exp(-delta))
+				for _, b := range pl.Branches {
+					i, _ := m.Index(b.ID)
+					want := 2 * sd * math.Abs(math.Log(hi[i]/lo[i])/(2*delta))
+					got := math.Log(b.BandHigh / b.Percent)
+					if math.Abs(got-want) > 1e-5*max(want, 1e-3) {
+						t.Errorf("%s: branch %s: band half-width %.9f in ln q, finite difference %.9f", name, b.ID, got, want)
+					}
+				}
+			}
+		}
+	}
+}
