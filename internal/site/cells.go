@@ -141,13 +141,19 @@ func parseNum(c *column, u units.Unit, cv bool, raw string, decimalComma bool) (
 	if math.IsInf(si, 0) || math.IsNaN(si) {
 		return nan, &numError{ErrRange, "number too large", "a finite number"}
 	}
+	if si != 0 && math.Abs(si) < minMagnitude {
+		return nan, &numError{ErrRange, "too small", "0 or a number of sensible size"}
+	}
 	return si, checkRange(c, u, cv, si)
 }
 
 // checkRange tests si against the column's bounds and words the problem in
 // the unit the sheet used.
 func checkRange(c *column, u units.Unit, cv bool, si float64) *numError {
-	if si >= c.lo && si <= c.hi {
+	// A hair of slack keeps a value at a bound inside it after a
+	// conversion to another unit and back.
+	lo, hi := c.lo-boundSlack*math.Abs(c.lo), c.hi+boundSlack*math.Abs(c.hi)
+	if si >= lo && si <= hi {
 		return nil
 	}
 	show := func(x float64) string {
@@ -166,11 +172,11 @@ func checkRange(c *column, u units.Unit, cv bool, si float64) *numError {
 	what := article(c.what)
 	ne := &numError{err: ErrRange}
 	switch {
-	case si <= 0 && c.lo > 0 && c.kind != units.Temperature:
+	case si <= 0 && lo > 0 && c.kind != units.Temperature:
 		ne.msg, ne.want = "must be positive", what+" above 0"
 	case si < 0 && c.lo == 0:
 		ne.msg, ne.want = "must not be negative", what+" of 0 or more"
-	case si < c.lo:
+	case si < lo:
 		ne.msg, ne.want = "too small", fmt.Sprintf("%s from %s to %s", what, show(c.lo), show(c.hi))
 	case c.lo == 0:
 		ne.msg, ne.want = "too large", fmt.Sprintf("%s up to %s", what, show(c.hi))
@@ -211,6 +217,15 @@ func checkText(text string) *numError {
 		return &numError{ErrSyntax, "holds a line break or control character", "text on one line"}
 	}
 	return nil
+}
+
+// checkName is checkText for the name a row starts with when written
+// back: it may not start with #, which would make the row a comment.
+func checkName(text string) *numError {
+	if strings.HasPrefix(text, "#") {
+		return &numError{ErrSyntax, "starts with #", "a name that does not start with #, which marks a comment"}
+	}
+	return checkText(text)
 }
 
 // sheetReader reads the cells of one columnar sheet by column name.
@@ -403,8 +418,12 @@ func (sr *sheetReader) text(r row, name string, ok *bool) string {
 		return ""
 	}
 	s := r.cell(i)
+	check := checkText
+	if name == sr.sc.columns[0].name {
+		check = checkName
+	}
 	if name != "note" {
-		if ne := checkText(s); ne != nil {
+		if ne := check(s); ne != nil {
 			sr.fail(r, name, ne)
 			*ok = false
 			return ""

@@ -194,6 +194,11 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 	for _, r := range rows {
 		key, unit, bracket := splitUnit(r.cell(0))
 		kref := cellRef{file: t.file, line: r.line, col: 1, field: key}
+		if ne := checkName(key); ne != nil {
+			kref.value = r.cell(0)
+			p.add(kref.problem(SeverityError, ne.err, ne.msg, ne.want))
+			continue
+		}
 		c, _ := siteKeys.find(key)
 		if c == nil {
 			want := "one of: " + strings.Join(siteKeys.names(), ", ")
@@ -702,8 +707,10 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		return nil
 	}
 	ids := make([]string, len(s.Branches))
-	for i, b := range s.Branches {
-		ids[i] = b.ID
+	byID := make(map[string]*Branch, len(s.Branches))
+	for i := range s.Branches {
+		ids[i] = s.Branches[i].ID
+		byID[ids[i]] = &s.Branches[i]
 	}
 	var out []Reading
 	type moved struct {
@@ -746,7 +753,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		case strings.EqualFold(rd.Where, AtHeader):
 			rd.Where = AtHeader
 		default:
-			br = s.Branch(rd.Where)
+			br = byID[rd.Where]
 			if br == nil {
 				if haveBranches {
 					p.add(wref.problem(SeverityError, ErrReference, "no branch has this id",
@@ -933,7 +940,7 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 	}
 	var U float64
 	if pct {
-		if x <= 0 || x > 100 {
+		if x < 1e-6 || x > 100 {
 			p.add(uref.problem(SeverityError, ErrRange, "relative uncertainty out of range", "a percentage above 0 and up to 100"))
 			return false
 		}
@@ -948,12 +955,16 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 			p.add(uref.problem(SeverityError, ErrRange, "must be positive", "an uncertainty above 0"))
 			return false
 		}
-		if U > limit.hi {
-			p.add(uref.problem(SeverityError, ErrRange, "too large", "an uncertainty no larger than the largest reading"))
-			return false
-		}
 	}
 	rd.Sigma = U / k
+	switch {
+	case rd.Sigma > limit.hi:
+		p.add(uref.problem(SeverityError, ErrRange, "too large", "an uncertainty no larger than the largest reading"))
+		return false
+	case rd.Sigma < minMagnitude:
+		p.add(uref.problem(SeverityError, ErrRange, "too small", "an uncertainty of sensible size"))
+		return false
+	}
 	return true
 }
 
@@ -1008,8 +1019,10 @@ func readTargets(t *table, s *Site, haveBranches bool, p *Problems) map[string]f
 		return out
 	}
 	ids := make([]string, len(s.Branches))
+	known := make(map[string]bool, len(s.Branches))
 	for i, b := range s.Branches {
 		ids[i] = b.ID
+		known[b.ID] = true
 	}
 	lines := map[string]int{}
 	for _, r := range t.rows {
@@ -1024,7 +1037,7 @@ func readTargets(t *table, s *Site, haveBranches bool, p *Problems) map[string]f
 		case id == "":
 			p.add(ref.problem(SeverityError, ErrMissing, "blank", "a branch id"))
 			continue
-		case haveBranches && s.Branch(id) == nil:
+		case haveBranches && !known[id]:
 			p.add(ref.problem(SeverityError, ErrReference, "no branch has this id", refWant("a branch id from the branches sheet", id, ids)))
 			continue
 		}

@@ -68,7 +68,11 @@ const (
 	maxKv       = 1e5  // m3/h
 	maxSetting  = 1e6  // any setting unit
 	minTemp     = 223.15
-	maxTemp     = 473.15
+	// minMagnitude is the smallest non-zero SI value accepted anywhere;
+	// smaller ones are slips, and could not be written in every unit.
+	minMagnitude = 1e-15
+	boundSlack   = 1e-9
+	maxTemp      = 473.15
 )
 
 var siteKeys = schema{name: "site", columns: []column{

@@ -16,6 +16,7 @@ package site
 import (
 	"fmt"
 	"strings"
+	"unicode"
 )
 
 // Site is one surveyed circuit, in SI units. Fields documented as NaN hold NaN
@@ -243,9 +244,22 @@ func word(words []string, i int, what string) string {
 // normWord folds a keyword for comparison: lower case, spaces, hyphens and
 // underscores all alike.
 func normWord(s string) string {
-	s = strings.ToLower(strings.TrimSpace(s))
-	s = strings.NewReplacer("_", " ", "-", " ").Replace(s)
-	return strings.Join(strings.Fields(s), " ")
+	var b strings.Builder
+	b.Grow(len(s))
+	space := false
+	for _, r := range strings.TrimSpace(s) {
+		switch r {
+		case '_', '-', ' ', '\t':
+			space = true
+			continue
+		}
+		if space && b.Len() > 0 {
+			b.WriteByte(' ')
+		}
+		space = false
+		b.WriteRune(unicode.ToLower(r))
+	}
+	return b.String()
 }
 
 // Branch returns the branch with the given ID, or nil.
