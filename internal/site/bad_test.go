@@ -7,6 +7,8 @@ type badCase struct {
 	files map[string]string
 	want  []string
 	cause error
+	// prefix marks wants that end where another package's words begin.
+	prefix bool
 }
 
 const brHead = "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],valve,setting\n"
@@ -430,8 +432,18 @@ var badCases = []badCase{
 	{name: "frozen water", files: map[string]string{"site.csv": "temperature [degC],-5\n"},
 		cause: ErrRange,
 		want: []string{
-			"site.csv:1:2: field \"temperature\": value \"-5\": water freezes below 0 degC (want a temperature of 0 degC or more, or a glycol fluid)",
+			"site.csv:1:2: field \"temperature\": value \"-5\": outside the fluid property tables (want water: temperature 268.15 K",
+		}, prefix: true},
+	{name: "glycol beyond the tables", files: map[string]string{"site.csv": "fluid,ethylene-glycol\nglycol [%],60\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:2:2: field \"glycol\": value \"60\": outside the fluid property tables (want 10 to 50 % by volume)",
 		}},
+	{name: "glycol below its freezing point", files: map[string]string{"site.csv": "fluid,propylene-glycol\nglycol [%],20\ntemperature [degC],-20\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:3:2: field \"temperature\": value \"-20\": outside the fluid property tables (want propylene-glycol 20 % by volume",
+		}, prefix: true},
 	{name: "pump boundary without pump", files: map[string]string{"site.csv": "boundary,pump\n"},
 		cause: ErrMissing,
 		want: []string{

@@ -12,6 +12,7 @@ import (
 	"strconv"
 	"strings"
 
+	"flowset/internal/fluid"
 	"flowset/internal/units"
 )
 
@@ -1072,9 +1073,8 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 		p.add(ref.problem(SeverityError, ErrMissing, "glycol concentration is missing", "a glycol [%] line, e.g. 30"))
 	case s.Fluid != "water" && s.GlycolPercent == 0:
 		p.add(at("glycol").problem(SeverityError, ErrRange, "must be positive for a glycol", "a concentration above 0 %"))
-	}
-	if s.Fluid == "water" && s.Temperature < 273.15 {
-		p.add(at("temperature").problem(SeverityError, ErrRange, "water freezes below 0 degC", "a temperature of 0 degC or more, or a glycol fluid"))
+	default:
+		checkFluid(s, at, p)
 	}
 	b := &s.Boundary
 	if b.Speed > b.MaxSpeed {
@@ -1112,5 +1112,28 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 				break
 			}
 		}
+	}
+}
+
+// checkFluid asks the fluid package whether its property tables cover the
+// site's fluid, concentration and temperature, so that a gap is reported
+// at the line of the site sheet that causes it.
+func checkFluid(s *Site, at func(string) cellRef, p *Problems) {
+	kind, err := fluid.ParseKind(s.Fluid)
+	if err != nil {
+		return // the reader only accepts the fluids the package knows
+	}
+	spec := fluid.Spec{Kind: kind, Percent: s.GlycolPercent}
+	if err := spec.Validate(); err != nil {
+		e := at("glycol").problem(SeverityError, ErrRange, "outside the fluid property tables",
+			fmt.Sprintf("%g to %g %% by volume", fluid.MinGlycolPercent, fluid.MaxGlycolPercent))
+		e.Cause = err
+		p.add(e)
+		return
+	}
+	if _, err := spec.At(s.Temperature); err != nil {
+		e := at("temperature").problem(SeverityError, ErrRange, "outside the fluid property tables", err.Error())
+		e.Cause = err
+		p.add(e)
 	}
 }

@@ -2,6 +2,7 @@ package site
 
 import (
 	"errors"
+	"strings"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -64,7 +65,15 @@ func TestReadDirBad(t *testing.T) {
 	for _, c := range badCases {
 		t.Run(c.name, func(t *testing.T) {
 			s, p, err := ReadDir(mapFS(c.files), ".")
-			if diff := cmp.Diff(c.want, problemStrings(p), cmpopts.EquateEmpty()); diff != "" {
+			got := problemStrings(p)
+			if c.prefix {
+				for i := range got {
+					if i < len(c.want) && strings.HasPrefix(got[i], c.want[i]) {
+						got[i] = c.want[i]
+					}
+				}
+			}
+			if diff := cmp.Diff(c.want, got, cmpopts.EquateEmpty()); diff != "" {
 				t.Errorf("ReadDir problems (-want +got):\n%s", diff)
 			}
 			if len(p) > 0 && !errors.Is(p[0], c.cause) {
