@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 	"testing"
 
 	"flowset/internal/hydraulics"
@@ -65,6 +66,37 @@ func BenchmarkSolve(b *testing.B) {
 					b.Fatal(err)
 				}
 				iters = sol.Iterations
+			}
+			b.ReportMetric(float64(iters), "newton-steps")
+		})
+	}
+}
+
+// BenchmarkSolveWarm re-solves after one valve setting changed, starting
+// from the previous flows, as balancing and calibration do.
+func BenchmarkSolveWarm(b *testing.B) {
+	for _, nb := range []int{10, 100, 1000, 10000, 100000} {
+		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			bt := benchLadder(b, nb)
+			sol, err := bt.Net.Solve(context.Background(), nil)
+			if err != nil {
+				b.Fatal(err)
+			}
+			link := bt.Branch["b0"]
+			elems := slices.Clone(bt.Net.Elements(link))
+			v := elems[1].(hydraulics.Valve)
+			v.Setting = 0.7
+			elems[1] = v
+			bt.Net.SetElements(link, elems...)
+			opt := &Options{Initial: sol.Flow}
+			var iters int
+			b.ReportAllocs()
+			for b.Loop() {
+				s, err := bt.Net.Solve(context.Background(), opt)
+				if err != nil {
+					b.Fatal(err)
+				}
+				iters = s.Iterations
 			}
 			b.ReportMetric(float64(iters), "newton-steps")
 		})

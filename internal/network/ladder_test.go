@@ -4,6 +4,8 @@ import (
 	"errors"
 	"math"
 	"testing"
+
+	"flowset/internal/hydraulics"
 )
 
 // ladderR holds square-law coefficients of a ladder: a[k] supply segment,
@@ -224,5 +226,79 @@ func TestHardyCrossDirect(t *testing.T) {
 		if relErr(hc[3+k], cf[k]) > 1e-9 {
 			t.Errorf("branch %d: Hardy Cross %.12g, closed form %.12g", k, hc[3+k], cf[k])
 		}
+	}
+}
+
+// TestLadderNested: a riser r_s feeding a sub-ladder of ideal headers with
+// branches s_i, beside a plain branch b, all under a differential dp. By the
+// series and parallel rules for square-law elements (exact, textbook), the
+// riser path has R = r_s + 1/(Σ 1/sqrt(s_i))², its flow is sqrt(dp/R), the
+// sub-branches split it as q_i = Q/(sqrt(s_i) Σ 1/sqrt(s_j)), and b carries
+// sqrt(dp/b).
+func TestLadderNested(t *testing.T) {
+	const dp, rs, rb = 4e4, 3e9, 2e10
+	sub := []float64{1e10, 2.5e10, 4e10}
+	inner := Ladder{Arrangement: NoHeaderLoss}
+	var sum float64
+	for i, r := range sub {
+		inner.Branches = append(inner.Branches, Branch{ID: "riser/" + string(rune('a'+i)), Elements: []Element{quad{r}}})
+		sum += 1 / math.Sqrt(r)
+	}
+	l := Ladder{Arrangement: DirectReturn, Branches: []Branch{
+		{ID: "plain", Elements: []Element{quad{rb}}},
+		{ID: "riser", Elements: []Element{quad{rs}}, Sub: &inner},
+	}}
+	bt, err := Build(l, Source{Differential: dp}, water20)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sol := mustSolve(t, bt.Net, nil)
+	qr := math.Sqrt(dp / (rs + 1/(sum*sum)))
+	if got := sol.Flow[bt.Branch["riser"]]; relErr(got, qr) > 1e-9 {
+		t.Errorf("riser flow = %.12g, want %.12g", got, qr)
+	}
+	for i, r := range sub {
+		id := "riser/" + string(rune('a'+i))
+		want := qr / (math.Sqrt(r) * sum)
+		if got := sol.Flow[bt.Branch[id]]; relErr(got, want) > 1e-9 {
+			t.Errorf("sub-branch %s flow = %.12g, want %.12g", id, got, want)
+		}
+		if bt.ReturnNode[id] != bt.ReturnNode["riser"] {
+			t.Errorf("sub-branch %s returns to node %d, want the riser's return take-off %d", id, bt.ReturnNode[id], bt.ReturnNode["riser"])
+		}
+	}
+	if got, want := sol.Flow[bt.Branch["plain"]], math.Sqrt(dp/rb); relErr(got, want) > 1e-9 {
+		t.Errorf("plain branch flow = %.12g, want %.12g", got, want)
+	}
+}
+
+// TestLadderClosedValve: a branch whose valve is shut (hydraulics.Valve at
+// setting 0 passes only its seat leakage) takes almost no flow, and the
+// other branches see the differential they would without it.
+func TestLadderClosedValve(t *testing.T) {
+	const dp = 3e4
+	shut := hydraulics.Valve{Char: hydraulics.Inherent{Kind: hydraulics.Linear, Kvs: 2.5, Rangeability: 1e6}, Setting: 0}
+	l := Ladder{Arrangement: NoHeaderLoss, Branches: []Branch{
+		{ID: "open", Elements: []Element{quad{1e10}}},
+		{ID: "shut", Elements: []Element{quad{1e10}, shut}},
+	}}
+	bt, err := Build(l, Source{Differential: dp}, water20)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sol := mustSolve(t, bt.Net, nil)
+	if got, want := sol.Flow[bt.Branch["open"]], math.Sqrt(dp/1e10); relErr(got, want) > 1e-9 {
+		t.Errorf("open branch flow = %.12g, want %.12g", got, want)
+	}
+	// Leakage Kv = LeakageFraction·Kvs; Δp[bar] = (Q[m3/h]/Kv)² (references §3.1)
+	// in series with the 1e10 resistance.
+	kv := hydraulics.LeakageFraction * 2.5
+	q := sol.Flow[bt.Branch["shut"]]
+	dv, _ := hydraulics.KvDrop(q, kv, water20.Density)
+	if relErr(1e10*q*q+dv, dp) > 1e-9 {
+		t.Errorf("shut branch: drop %g at flow %g, want %g", 1e10*q*q+dv, q, dp)
+	}
+	if want := kv / 3600 * math.Sqrt(dp/1e5*hydraulics.KvRefDensity/water20.Density); relErr(q, want) > 1e-3 {
+		t.Errorf("shut branch flow = %g, want about the leakage %g", q, want)
 	}
 }
