@@ -189,13 +189,17 @@ kPa on a flow column, is an error. Unit names are case-sensitive (mbar is
 not Mbar). Accepted units by kind:
 `)
 	for _, k := range []units.Kind{units.Flow, units.Pressure, units.Length, units.Temperature, units.Head, units.Dimensionless} {
+		label := k.String()
+		if k == units.Dimensionless {
+			label = "fraction"
+		}
 		syms := units.Symbols(k)
 		for i, s := range syms {
 			if s == "" {
 				syms[i] = `(none)`
 			}
 		}
-		fmt.Fprintf(&b, "  %-13s %s\n", k.String()+":", strings.Join(syms, ", "))
+		fmt.Fprintf(&b, "  %-13s %s\n", label+":", strings.Join(syms, ", "))
 	}
 	b.WriteString(`Pressure units ending in H2O or "wc" are conventional water columns
 (1 mH2O = 9.80665 kPa). A pump head is a height of the pumped fluid and
@@ -214,8 +218,6 @@ uncertainty cell is blank the reading gets the default of its instrument:
 the larger of a fraction of the reading and a floor, as an expanded
 uncertainty with coverage factor k = 2 (about 95 %). It is divided by k to
 give the standard uncertainty the calibration weighs readings with.
-
-  instrument     reads                          default (k = 2)
 `)
 	for _, in := range instruments {
 		var reads []string
@@ -233,8 +235,10 @@ give the standard uncertainty the calibration weighs readings with.
 		if len(floors) > 0 {
 			def += ", at least " + strings.Join(floors, " or ")
 		}
-		fmt.Fprintf(&b, "  %-14s %-30s %s\n", in.Name, strings.Join(reads, ", "), def)
-		fmt.Fprintf(&b, "  %-14s %s; source: %s\n", "", in.Title, in.Source)
+		fmt.Fprintf(&b, "\n  %s: %s\n", in.Name, in.Title)
+		fmt.Fprintf(&b, "      reads %s\n", strings.Join(reads, ", "))
+		fmt.Fprintf(&b, "      default %s (k = 2)\n", def)
+		fmt.Fprintf(&b, "      basis: %s\n", in.Source)
 	}
 	b.WriteString(`
 A stated uncertainty replaces the default: "5 %" is relative to the

@@ -23,13 +23,16 @@ type Instrument struct {
 var instruments = []Instrument{
 	{Name: "clamp-on", Title: "ultrasonic clamp-on flow meter", Reads: []Quantity{Flow, TotalFlow},
 		Rel: 0.05, FlowFloor: 1e-5,
-		Source: "site instruments ±5 % at best (shared/references.md §6); floor 0.01 l/s common practice, no source"},
+		// shared/references.md §6: "site instruments ±5 % at best".
+		Source: "site instruments are good to ±5 % at best; the floor is common practice, no source"},
 	{Name: "valve-meter", Title: "flow derived from a regulating valve's differential and its Kv table", Reads: []Quantity{Flow},
 		Rel: 0.10, FlowFloor: 1e-5,
-		Source: "±5 % fully open, markedly worse closed by half or more (shared/references.md §6); ±10 % taken for an unknown opening, common practice, no source"},
+		// shared/references.md §6: ±5 % fully open, markedly worse closed by half or more.
+		Source: "±5 % fully open and markedly worse when closed by half or more; ±10 % is taken for an unknown opening, common practice, no source"},
 	{Name: "orifice", Title: "fixed-orifice metering station", Reads: []Quantity{Flow, TotalFlow},
 		Rel: 0.05, FlowFloor: 1e-5,
-		Source: "±5 % with 5 D upstream and 2 D downstream straight pipe (shared/references.md §6)"},
+		// shared/references.md §6, fixed-orifice metering station.
+		Source: "±5 % with 5 diameters of straight pipe upstream and 2 downstream"},
 	{Name: "mag-meter", Title: "electromagnetic in-line flow meter", Reads: []Quantity{Flow, TotalFlow},
 		Rel: 0.02, FlowFloor: 1e-5, Source: "common practice, no source"},
 	{Name: "manometer", Title: "digital differential manometer", Reads: []Quantity{ValveDiff, BranchDiff, HeaderDiff, PumpDiff},
