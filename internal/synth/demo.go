@@ -201,7 +201,11 @@ func Demo(ctx context.Context) (*site.Site, *Truth, error) {
 		{Label: "as-found", Takes: asFound},
 		{Label: "after-change", Takes: after, Moves: []move{{"AHU-1", 5}, {"CAL-1", 4.5}, {"RAD-GN", 2.5}, {"RAD-2F", 4}}},
 	}
-	rs, err := survey(ctx, s, t, states, rand.New(rand.NewPCG(2026, 1)), surveyOpts{noise: 1, round: true})
+	m, err := model(s)
+	if err != nil {
+		return nil, nil, err
+	}
+	rs, err := survey(ctx, m, t, states, rand.New(rand.NewPCG(2026, 1)), surveyOpts{noise: 1, round: true})
 	if err != nil {
 		return nil, nil, err
 	}
@@ -265,7 +269,11 @@ func Plantroom(ctx context.Context) (*site.Site, *Truth, error) {
 		{Where: "MTU-1", What: site.Flow, Instrument: "clamp-on", Time: "14:45"},
 		{Where: "AC-1", What: site.Flow, Instrument: "valve-meter", Time: "14:55"},
 	}
-	rs, err := survey(ctx, s, t, []stateDef{{Label: "as-found", Takes: takes}}, rand.New(rand.NewPCG(2026, 2)),
+	m, err := model(s)
+	if err != nil {
+		return nil, nil, err
+	}
+	rs, err := survey(ctx, m, t, []stateDef{{Label: "as-found", Takes: takes}}, rand.New(rand.NewPCG(2026, 2)),
 		surveyOpts{noise: 1, round: true})
 	if err != nil {
 		return nil, nil, err

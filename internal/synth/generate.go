@@ -58,17 +58,14 @@ func Generate(ctx context.Context, spec Spec) (*site.Site, *Truth, error) {
 	if err := d.design(ctx); err != nil {
 		return nil, nil, err
 	}
+	d.asFound()
 	m, err := model(s)
 	if err != nil {
 		return nil, nil, fmt.Errorf("generated site: %w", err)
 	}
-	d.asFound(m)
-	if m, err = model(s); err != nil {
-		return nil, nil, fmt.Errorf("generated site: %w", err)
-	}
 	t := d.truth(m)
 	states := d.plan(m, t)
-	rs, err := survey(ctx, s, t, states, rng, surveyOpts{noise: spec.Noise})
+	rs, err := survey(ctx, m, t, states, rng, surveyOpts{noise: spec.Noise})
 	if err != nil {
 		return nil, nil, err
 	}
@@ -153,18 +150,18 @@ func onStep(x, lo, hi float64) float64 {
 
 // asFound records the settings found: about 60 % fully open, the rest in
 // the upper two thirds of the travel.
-func (d *designer) asFound(m *plant.Model) {
-	for i := range m.Branches {
-		b := &m.Branches[i]
-		if b.Valve == nil {
+func (d *designer) asFound() {
+	for i := range d.s.Branches {
+		b := &d.s.Branches[i]
+		v := d.s.Valve(b.Valve)
+		if v == nil {
 			continue
 		}
-		lo, hi := b.Valve.Range()
-		set := hi
+		lo, hi := v.Range()
+		b.Setting = hi
 		if d.rng.Float64() >= 0.6 {
-			set = onStep(lo+(hi-lo)*(1.0/3+2.0/3*d.rng.Float64()), lo, hi)
+			b.Setting = onStep(lo+(hi-lo)*(1.0/3+2.0/3*d.rng.Float64()), lo, hi)
 		}
-		d.s.Branches[i].Setting = set
 	}
 }
 
@@ -173,10 +170,8 @@ func (d *designer) truth(m *plant.Model) *Truth {
 	n := len(m.Branches)
 	t := &Truth{Params: m.Design(), ActualSetting: make([]float64, n), Stuck: make([]float64, n), Faults: make([]string, n)}
 	t.Params.Header, t.Params.PumpHead = d.spec.Header, d.spec.PumpHead
-	if d.s.Boundary.Kind == site.PumpCurve {
-		t.Params.PumpHead = d.spec.PumpHead
-	} else {
-		t.Params.PumpHead = 1
+	if d.s.Boundary.Kind != site.PumpCurve {
+		t.Params.PumpHead = 1 // no pump curve to scale
 		t.Differential = d.s.Boundary.SetPoint
 		if d.s.Boundary.Kind == site.MeasuredDiff {
 			// Whatever holds the differential: the design need with margin.

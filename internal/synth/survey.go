@@ -43,15 +43,12 @@ type surveyOpts struct {
 	round bool
 }
 
-// survey simulates the readings of states on the true plant t of s. Each
+// survey simulates the readings of states on the true plant t of model m
+// (built by model). Each
 // valve whose setting differs from its as-found record carries its setting on
 // every reading at its branch in that state, and must have one, so that the
 // sheets say where the handwheel was; valve-meter readings always carry it.
-func survey(ctx context.Context, s *site.Site, t *Truth, states []stateDef, rng *rand.Rand, o surveyOpts) ([]site.Reading, error) {
-	m, err := model(s)
-	if err != nil {
-		return nil, err
-	}
+func survey(ctx context.Context, m *plant.Model, t *Truth, states []stateDef, rng *rand.Rand, o surveyOpts) ([]site.Reading, error) {
 	if err := t.check(len(m.Branches)); err != nil {
 		return nil, err
 	}
@@ -128,8 +125,8 @@ func readState(sol *plant.Solved, sd stateDef, rec, asFound []float64, rng *rand
 		var v float64
 		switch {
 		case tk.What == site.Flow && tk.Instrument == "valve-meter":
-			if b == nil || b.Valve == nil {
-				return nil, fmt.Errorf("state %q: valve meter at %q, which has no valve: %w", sd.Label, tk.Where, ErrSpec)
+			if b == nil || b.ValveModel == nil || !b.ValveModel.Table() {
+				return nil, fmt.Errorf("state %q: valve meter at %q, which has no valve with a Kv table: %w", sd.Label, tk.Where, ErrSpec)
 			}
 			// The meter turns the differential at the tappings into a flow
 			// by the valve's table at the setting the handwheel shows:

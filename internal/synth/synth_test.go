@@ -134,10 +134,9 @@ func TestNoiseFree(t *testing.T) {
 func TestNoiseScale(t *testing.T) {
 	spec := Spec{Branches: 300, Arrangement: site.DirectReturn, Seed: 9, Noise: 1,
 		Readings: ReadingMix{ClampOn: 1, ValveDiff: 1, BranchDiff: 1}}
-	s, tr := generate(t, spec)
+	s, _ := generate(t, spec)
 	spec.Noise = 0
 	s0, _ := generate(t, spec)
-	_ = tr
 	var sum float64
 	n := 0
 	for i, r := range s.Readings {
