@@ -397,3 +397,29 @@ func TestWarmStart(t *testing.T) {
 		t.Errorf("warm pump flow %.12g, cold %.12g", warm.Flow[pump], again.Flow[pump])
 	}
 }
+
+// TestRealPumpAgainstBackPressure: a hydraulics.Pump whose shut-off head is
+// below the back-pressure it faces runs backwards (its element extrapolates
+// the curve to reverse flow); the answer must be a consistent reversed flow:
+// pump and pipe drops at the solved flow add up to the imposed difference.
+func TestRealPumpAgainstBackPressure(t *testing.T) {
+	// H = 8 - 2000 q² m (shut-off 8 m, about 78 kPa), against 100 kPa.
+	pump := hydraulics.Pump{Curve: hydraulics.PumpCurve{A0: 8, A2: -2000, QMax: 0.06}}
+	pipe := hydraulics.Pipe{Bore: 0.05248, Length: 20, Roughness: 4.5e-5}
+	n := New(water20)
+	in, mid, out := n.AddNode("in"), n.AddNode("mid"), n.AddNode("out")
+	n.FixPressure(in, 1e5)
+	n.FixPressure(out, 2e5)
+	p := n.AddLink("pump", in, mid, pump)
+	l := n.AddLink("pipe", mid, out, pipe)
+	sol := mustSolve(t, n, nil)
+	q := sol.Flow[p]
+	if !(q < 0) {
+		t.Fatalf("pump flow = %g, want reversed (negative)", q)
+	}
+	dp1, _ := pump.Drop(q, water20)
+	dp2, _ := pipe.Drop(sol.Flow[l], water20)
+	if relErr(dp1+dp2, -1e5) > 1e-9 {
+		t.Errorf("pump + pipe drop = %g Pa at flow %g, want -1e5", dp1+dp2, q)
+	}
+}

@@ -25,12 +25,20 @@ const (
 
 // Constants of the Newton iteration.
 const (
-	// slopeFloorRel: a link slope below this fraction of the geometric mean
-	// of the positive link slopes is raised to it, so the diagonal D stays
-	// invertible at zero flow through square-law elements, nearly closed
-	// valves and pumps near shut-off. It only changes the step direction,
-	// never the residuals that decide convergence.
-	slopeFloorRel = 1e-8
+	// slopeFloorRel: a link slope below this fraction of the largest link
+	// slope is raised to it, so the diagonal D stays invertible at zero flow
+	// through square-law elements, nearly closed valves and pumps near
+	// shut-off, and the conductances 1/D in the node matrix span at most 12
+	// decades (beyond that round-off in the band Cholesky can exceed the
+	// smallest pivots). Real hydronic slopes, from a main at full flow to a
+	// shut valve's seat leakage, span about 10 decades. The floor only
+	// changes the step direction, never the residuals that decide
+	// convergence.
+	slopeFloorRel = 1e-12
+	// floorRetries: if round-off still makes the node matrix indefinite,
+	// the floor is raised a thousandfold and the factorisation retried this
+	// many times.
+	floorRetries = 3
 	// probeFlow [m3/s] (3.6 m3/h, a typical hydronic branch) is where each
 	// link's first secant is taken on a cold start.
 	probeFlow = 1e-3
@@ -219,11 +227,7 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 
 	for ; ; iter++ {
 		// Newton matrix at the current iterate.
-		floor := slopeFloor(cur.s)
-		for i, s := range cur.s {
-			sy.d[i] = max(s, floor)
-		}
-		if err := sy.factor(); err != nil {
+		if err := sy.factor(cur.s); err != nil {
 			return nil, err
 		}
 		if converged(cur, tol) {
@@ -301,6 +305,7 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 	e0 := slices.Clone(cur.e)
 	c0 := slices.Clone(cur.c)
 	p0 := slices.Clone(cur.p)
+	sec := make([]float64, nl) // secant slopes from zero flow
 	for i := range n.links {
 		var hp float64
 		for _, e := range n.links[i].elems {
@@ -310,18 +315,14 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 		if !finite(hp) {
 			return nil, nil, 0, fmt.Errorf("link %q at flow %g m3/s: drop %g Pa: %w", n.links[i].id, probeFlow, hp, ErrElement)
 		}
-		sy.d[i] = (hp - h0[i]) / probeFlow
+		sec[i] = (hp - h0[i]) / probeFlow
 	}
 	var prev []float64
 	for range maxSolves {
 		if err := ctx.Err(); err != nil {
 			return nil, nil, 0, n.convergenceError(pl, cur, solves, err)
 		}
-		floor := slopeFloor(sy.d)
-		for i := range sy.d {
-			sy.d[i] = max(sy.d[i], floor)
-		}
-		if err := sy.factor(); err != nil {
+		if err := sy.factor(sec); err != nil {
 			return nil, nil, 0, err
 		}
 		sy.step(e0, c0)
@@ -364,8 +365,8 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 		prev = append(prev[:0], cur.q...)
 		for i, q := range cur.q {
 			if q != 0 {
-				if sec := (cur.h[i] - h0[i]) / q; sec > 0 {
-					sy.d[i] = sec
+				if v := (cur.h[i] - h0[i]) / q; v > 0 {
+					sec[i] = v
 				}
 			}
 		}
@@ -377,7 +378,7 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 // by the caller), the factor of S = A21 D^-1 A12 and the step.
 type system struct {
 	pl     *plan
-	d      []float64 // link slopes, positive
+	d      []float64 // floored link slopes
 	invD   []float64
 	dq, dp []float64 // step per link and per band position
 	wc     []float64 // continuity weights 1/S_jj: turn m3/s into Pa
@@ -396,39 +397,54 @@ func newSystem(pl *plan, nl int) *system {
 	return sy
 }
 
-// factor assembles S from d and factorises it.
-func (sy *system) factor() error {
+// factor sets D to the slopes, floored (see slopeFloorRel), assembles S
+// and factorises it.
+func (sy *system) factor(slopes []float64) error {
 	pl := sy.pl
-	for i, v := range sy.d {
-		sy.invD[i] = 1 / v
+	var smax float64
+	for _, v := range slopes {
+		smax = max(smax, v)
 	}
-	if pl.nFree == 0 {
-		return nil
+	floor := slopeFloorRel * smax
+	if !(floor > 0) {
+		floor = 1 // all slopes zero: any positive D gives the same step direction
 	}
-	band := sy.band
-	clear(band)
-	w := pl.k + 1
-	for i, g := range sy.invD {
-		a, b := pl.pa[i], pl.pb[i]
-		if a >= 0 {
-			band[a*w] += g
+	for attempt := 0; ; attempt++ {
+		for i, v := range slopes {
+			d := max(v, floor)
+			sy.d[i], sy.invD[i] = d, 1/d
 		}
-		if b >= 0 {
-			band[b*w] += g
+		if pl.nFree == 0 {
+			return nil
 		}
-		if a >= 0 && b >= 0 {
-			lo, hi := min(a, b), max(a, b)
-			band[lo*w+hi-lo] -= g
+		band := sy.band
+		clear(band)
+		w := pl.k + 1
+		for i, g := range sy.invD {
+			a, b := pl.pa[i], pl.pb[i]
+			if a >= 0 {
+				band[a*w] += g
+			}
+			if b >= 0 {
+				band[b*w] += g
+			}
+			if a >= 0 && b >= 0 {
+				lo, hi := min(a, b), max(a, b)
+				band[lo*w+hi-lo] -= g
+			}
 		}
+		for j := range sy.wc {
+			sy.wc[j] = 1 / band[j*w]
+		}
+		var ok bool
+		if sy.chol, ok = factorBand(pl.nFree, pl.k, band); ok {
+			return nil
+		}
+		if attempt == floorRetries {
+			return fmt.Errorf("node matrix not positive definite (link slopes %g to %g Pa s/m3): %w", floor, smax, ErrNoConvergence)
+		}
+		floor *= 1e3
 	}
-	for j := range sy.wc {
-		sy.wc[j] = 1 / band[j*w]
-	}
-	var ok bool
-	if sy.chol, ok = factorBand(pl.nFree, pl.k, band); !ok {
-		return fmt.Errorf("node matrix not positive definite: %w", ErrNoConvergence)
-	}
-	return nil
 }
 
 // step solves S dp = C - A21 D^-1 E, dq = -D^-1 (E + A12 dp) for the
@@ -558,24 +574,6 @@ func merit(st *state, wc []float64) float64 {
 		f += x * x
 	}
 	return f
-}
-
-// slopeFloor returns slopeFloorRel times the geometric mean of the positive
-// slopes, the mean taken over binary exponents to stay cheap and immune to
-// the huge slopes of closed valves.
-func slopeFloor(s []float64) float64 {
-	var sum, cnt int
-	for _, v := range s {
-		if v > 0 {
-			_, e := math.Frexp(v)
-			sum += e
-			cnt++
-		}
-	}
-	if cnt == 0 {
-		return 1
-	}
-	return slopeFloorRel * math.Ldexp(1, sum/cnt)
 }
 
 func (n *Network) convergenceError(pl *plan, st *state, iter int, cause error) error {
