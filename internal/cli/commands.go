@@ -15,6 +15,10 @@ func addCommands(root *cobra.Command, ios *IO) {
 		newCheckCmd(ios),
 		newCurvesCmd(ios),
 		newTemplateCmd(ios),
+		newFitCmd(ios),
+		newPlanCmd(ios),
+		newRunCmd(ios),
+		newDemoCmd(ios),
 	)
 	for _, t := range site.Topics() {
 		// A command without Run is listed by cobra as an additional help

@@ -12,30 +12,34 @@ import (
 type loaded struct {
 	Site     *site.Site
 	Model    *plant.Model
-	Problems site.Problems // structural and physical, sorted
+	Problems site.Problems // structural and physical warnings, sorted
 }
 
 // loadSite reads a site folder or workbook, builds its model and runs the
-// physical checks. Problems of error severity come back as a *dataError after
-// being listed on w; warnings are listed and the load goes on.
+// physical checks. Problems of error severity are listed on w and come back
+// as a *dataError; warnings are kept in loaded.Problems for the caller.
 func loadSite(path string, w io.Writer) (*loaded, error) {
 	s, probs, err := site.Load(path)
 	if err != nil {
 		return nil, &dataError{err}
 	}
+	return finishLoad(s, probs, path, w)
+}
+
+func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*loaded, error) {
 	if probs.Err() != nil {
 		printProblems(w, probs)
-		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site sheets", path, len(probs.Errors()))}
+		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site sheets", label, len(probs.Errors()))}
 	}
 	m, err := plant.New(s)
 	if err != nil {
 		printProblems(w, probs)
-		return nil, &dataError{fmt.Errorf("%s: %w", path, err)}
+		return nil, &dataError{fmt.Errorf("%s: %w", label, err)}
 	}
 	probs = append(probs, m.Check()...)
 	if probs.Err() != nil {
 		printProblems(w, probs)
-		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", path, len(probs.Errors()))}
+		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}
 	}
 	return &loaded{Site: s, Model: m, Problems: probs}, nil
 }

@@ -10,6 +10,7 @@ import (
 	"fmt"
 	"io"
 	"strings"
+	"time"
 
 	"github.com/spf13/cobra"
 )
@@ -29,6 +30,16 @@ type IO struct {
 	Err io.Writer
 	// Terminal reports whether Err is a terminal, to decide on progress output.
 	Terminal bool
+	// Now is the clock stamped on outputs; nil means time.Now. Tests inject
+	// a fixed one so outputs can be compared byte for byte.
+	Now func() time.Time
+}
+
+func (ios *IO) now() time.Time {
+	if ios.Now != nil {
+		return ios.Now()
+	}
+	return time.Now()
 }
 
 // usageError marks a mistake on the command line (exit code 2).

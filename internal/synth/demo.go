@@ -116,7 +116,7 @@ func Demo(ctx context.Context) (*site.Site, *Truth, error) {
 			tableValve("RV-40", []float64{1, 2, 3, 4, 5, 6, 7, 8}, []float64{1.26, 2.15, 3.58, 5.78, 9, 13.5, 19, 24}),
 		},
 		Pump: []site.PumpPoint{
-			{Flow: lps(0), Head: 14.2}, {Flow: lps(3), Head: 13.6}, {Flow: lps(6), Head: 12.2}, {Flow: lps(8), Head: 10.9}, {Flow: lps(10), Head: 9.2},
+			{Flow: lps(0), Head: 21.5}, {Flow: lps(3), Head: 20.8}, {Flow: lps(6), Head: 19.0}, {Flow: lps(8), Head: 17.2}, {Flow: lps(10), Head: 14.8},
 		},
 	}
 	const st, cu = "en10255-m", "en1057"
@@ -149,7 +149,7 @@ func Demo(ctx context.Context) (*site.Site, *Truth, error) {
 			hlen: 10, rlen: nan, hstd: st, hsize: "DN32", hk: 1, note: "underfloor heating manifold, entrance hall"},
 		{id: "RAD-SH", flow: 0.65, std: st, size: "DN32", length: 40, k: 8, terminal: 15, valve: "RV-25", setting: 4,
 			hlen: 14, rlen: nan, hstd: st, hsize: "DN32", hk: 1, note: "radiant panels, changing rooms"},
-		{id: "RAD-LIB", flow: 0.25, std: st, size: "DN20", length: 64, k: 12, terminal: 15, valve: "RV-20", setting: 4,
+		{id: "RAD-LIB", flow: 0.25, std: st, size: "DN20", length: 64, k: 12, terminal: 15, valve: "RV-20", setting: 2,
 			hlen: 15, rlen: nan, hstd: st, hsize: "DN20", hk: 1, note: "radiators, library (far end)"},
 	}
 	for i := range rows {

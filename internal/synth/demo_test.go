@@ -206,10 +206,10 @@ func TestDemoStory(t *testing.T) {
 		{"near calorifier over", 0, "CAL-1", 1.2, 10},
 		{"near radiators over", 0, "RAD-GN", 1.2, 10},
 		{"far library short", 0, "RAD-LIB", 0, 0.95},
-		{"fouled AHU-2 short", 0, "AHU-2", 0, 0.8},
-		{"fouled AHU-2 still short", 1, "AHU-2", 0, 0.8},
+		{"fouled AHU-2 short", 0, "AHU-2", 0, 0.9},
+		{"fouled AHU-2 still short", 1, "AHU-2", 0, 0.92},
 		{"mis-set RAD-2F far short", 0, "RAD-2F", 0, 0.5},
-		{"RAD-2F better after opening", 1, "RAD-2F", 0.6, 0.9},
+		{"RAD-2F better after opening", 1, "RAD-2F", 0.6, 0.95},
 	}
 	for _, c := range checks {
 		if r := ratio[c.state][c.id]; r < c.lo || r > c.hi {

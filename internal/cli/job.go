@@ -1,0 +1,251 @@
+package cli
+
+import (
+	"context"
+	"fmt"
+	"io"
+	"math"
+	"time"
+
+	"flowset/internal/balance"
+	"flowset/internal/calibrate"
+	"flowset/internal/diagnose"
+	"flowset/internal/network"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// jobOptions are the knobs shared by fit, plan and run.
+type jobOptions struct {
+	Scale        float64
+	Rounding     string
+	DesignOnly   bool // plan from the design model even when readings exist
+	Thresholds   diagnose.Thresholds
+	FlowUnit     string
+	PressureUnit string
+}
+
+// job is the outcome of the main computation on one site.
+type job struct {
+	L        *loaded
+	Cal      *calibrate.Calibration // nil when planning from design
+	Params   plant.Params           // the model the plan used
+	Before   *plant.Solved          // the first survey state (or the base state) on Params
+	Findings []diagnose.Finding
+	Evidence []diagnose.Branch
+	Plan     *balance.Plan
+	After    *plant.Solved // the plan's state on Params
+}
+
+// progress reports long steps on stderr when it is a terminal.
+type progress struct {
+	w     io.Writer
+	on    bool
+	start time.Time
+}
+
+func newProgress(ios *IO, quiet bool) *progress {
+	return &progress{w: ios.Err, on: ios.Terminal && !quiet, start: time.Now()}
+}
+
+func (p *progress) step(format string, a ...any) {
+	if p.on {
+		fmt.Fprintf(p.w, "[%5.1fs] %s\n", time.Since(p.start).Seconds(), fmt.Sprintf(format, a...))
+	}
+}
+
+// calibrateSite fits the survey, or returns nil when there is nothing to fit.
+func calibrateSite(ctx context.Context, l *loaded, pr *progress) (*calibrate.Calibration, error) {
+	if len(l.Site.Readings) == 0 {
+		return nil, nil
+	}
+	pr.step("fitting %d readings in %d survey state(s) to %d branches", len(l.Site.Readings), len(l.Model.States), len(l.Model.Branches))
+	cal, err := calibrate.Fit(ctx, l.Model, nil)
+	if err != nil {
+		return nil, &dataError{fmt.Errorf("calibration: %w", err)}
+	}
+	return cal, nil
+}
+
+// runJob does check, fit, diagnose and plan.
+func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*job, error) {
+	m := l.Model
+	j := &job{L: l, Params: m.Design()}
+	if !opts.DesignOnly {
+		cal, err := calibrateSite(ctx, l, pr)
+		if err != nil {
+			return nil, err
+		}
+		if cal != nil {
+			j.Cal, j.Params = cal, planParams(cal)
+		}
+	}
+	st := m.BaseState()
+	if len(m.States) > 0 {
+		st = m.States[0]
+	}
+	pr.step("solving the as-found state %q", st.Label)
+	before, err := m.Solve(ctx, j.Params, st)
+	if err != nil {
+		return nil, &dataError{fmt.Errorf("as-found state: %w", err)}
+	}
+	j.Before = before
+	j.Evidence = evidence(l, j.Cal, before)
+	j.Findings = diagnose.Check(j.Evidence, readingEvidence(l, j.Cal), opts.Thresholds)
+
+	pr.step("planning valve settings for %d branches", len(m.Branches))
+	bo := &balance.Options{Scale: opts.Scale}
+	if opts.Rounding == "smart" {
+		bo.Rounding = balance.Smart
+	}
+	if j.Cal != nil {
+		bo.Uncertainty = uncertainty(j.Cal)
+	}
+	plan, err := balance.Compute(ctx, m, j.Params, bo)
+	if err != nil {
+		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
+	}
+	plan.DesignOnly = j.Cal == nil
+	j.Plan = plan
+	after, err := m.Solve(ctx, j.Params, plan.State())
+	if err != nil {
+		return nil, &dataError{fmt.Errorf("planned state: %w", err)}
+	}
+	j.After = after
+	return j, nil
+}
+
+// planParams are the calibrated multipliers the plan works on. A valve found
+// set elsewhere than recorded follows its table once its handwheel is read
+// correctly, so its apparent Kv offset is dropped: the plan's settings are
+// then true handwheel positions (the finding tells the technician to check
+// the indicator first).
+func planParams(c *calibrate.Calibration) plant.Params {
+	p := c.Params.Clone()
+	for i, b := range c.Branches {
+		if b.Valve.Hypothesis == calibrate.SetElsewhere {
+			p.KvScale[i] = 1
+		}
+	}
+	return p
+}
+
+// uncertainty carries the calibration's spread into the plan.
+func uncertainty(c *calibrate.Calibration) *balance.Uncertainty {
+	u := &balance.Uncertainty{LnResistance: make([]float64, len(c.Branches)), LnKvScale: make([]float64, len(c.Branches))}
+	for i, b := range c.Branches {
+		if b.Fitted {
+			u.LnResistance[i] = b.SD
+		}
+		if b.KvFitted {
+			u.LnKvScale[i] = b.KvSD
+		}
+	}
+	if c.Header.Fitted {
+		u.LnHeader = c.Header.SD
+	}
+	if c.Pump.Fitted {
+		u.LnPumpHead = c.Pump.SD
+	}
+	return u
+}
+
+// evidence gathers what diagnose needs about each terminal branch.
+func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved) []diagnose.Branch {
+	m := l.Model
+	sum := l.Site.Summary()
+	measured := map[string][]string{}
+	hasFlow := map[string]bool{}
+	for _, b := range sum.Measured {
+		for _, by := range b.By {
+			measured[b.ID] = append(measured[b.ID], by.String())
+		}
+	}
+	for _, r := range l.Site.Readings {
+		if r.What == site.Flow && r.Instrument != "valve-meter" {
+			hasFlow[r.Where] = true
+		}
+	}
+	var out []diagnose.Branch
+	for i, b := range m.Branches {
+		if b.Riser() {
+			continue
+		}
+		e := diagnose.Branch{ID: b.ID, Ratio: 1, LogSD: math.Inf(1), Target: b.Target, OpenFlow: openFlow(m, before, i),
+			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil}
+		if c != nil {
+			bf := c.Branches[i]
+			if bf.Fitted {
+				e.Ratio, e.LogSD, e.Determined = bf.Ratio, bf.SD, bf.Determined
+			}
+			if v := valveEvidence(c, i); v != nil {
+				if b.ValveModel != nil {
+					v.Unit = b.ValveModel.Unit
+				}
+				e.Valve = v
+			}
+		} else {
+			e.Determined = false
+			e.LogSD = 0
+		}
+		out = append(out, e)
+	}
+	return out
+}
+
+func valveEvidence(c *calibrate.Calibration, i int) *diagnose.Valve {
+	v := c.Branches[i].Valve
+	var h string
+	switch v.Hypothesis {
+	case calibrate.HoldsOneKv:
+		h = "holds one Kv"
+	case calibrate.SetElsewhere:
+		h = "set elsewhere"
+	case calibrate.FollowsTable:
+		h = "follows its table"
+	default:
+		return nil
+	}
+	out := &diagnose.Valve{Hypothesis: h, DeltaChi2: v.DeltaChiSquare, Recorded: math.NaN(), Implied: math.NaN()}
+	if len(v.Recorded) > 0 {
+		out.Recorded = v.Recorded[0]
+	}
+	if len(v.Implied) > 0 {
+		out.Implied = v.Implied[0]
+	}
+	return out
+}
+
+// openFlow is the flow branch i would pass with its valve fully open at the
+// differential it sees now. Opening one valve barely changes the header
+// pressures of a many-branch circuit, so the differential is held; for a
+// small circuit this overstates the open-valve flow slightly.
+func openFlow(m *plant.Model, s *plant.Solved, i int) float64 {
+	b := &m.Branches[i]
+	if b.Valve == nil {
+		return math.NaN()
+	}
+	_, hi := b.Valve.Range()
+	c := network.ElementCurve(m.Fluid, m.Elements(i, s.Params, hi)...)
+	q, err := network.Invert(c, s.BranchDiff(i))
+	if err != nil {
+		return math.NaN()
+	}
+	return q
+}
+
+// readingEvidence lists each reading's fit for diagnose.
+func readingEvidence(l *loaded, c *calibrate.Calibration) []diagnose.Reading {
+	if c == nil {
+		return nil
+	}
+	out := make([]diagnose.Reading, 0, len(c.Readings))
+	for _, rf := range c.Readings {
+		if rf.Boundary {
+			continue
+		}
+		r := l.Site.Readings[rf.Index]
+		out = append(out, diagnose.Reading{Label: rf.Pos.String(), Where: r.Where, What: r.What.String(), Normalised: rf.Normalised, Outlier: rf.Outlier})
+	}
+	return out
+}

@@ -1,0 +1,105 @@
+package cli
+
+import "math"
+
+// planJSON is the plan as written to plan.json, in SI units.
+type planJSON struct {
+	Site          string           `json:"site"`
+	Generated     string           `json:"generated"`
+	DesignOnly    bool             `json:"design_only"`
+	Rounding      string           `json:"rounding"`
+	Index         string           `json:"index_circuit"`
+	IndexPath     []string         `json:"index_path"`
+	LeastPa       num              `json:"least_differential_pa"`
+	RequiredPa    num              `json:"required_differential_pa"`
+	TotalFlow     num              `json:"total_flow_m3_s"`
+	ToleranceLow  num              `json:"tolerance_low"`
+	ToleranceHigh num              `json:"tolerance_high"`
+	Pump          pumpJSON         `json:"pump"`
+	Branches      []branchPlanJSON `json:"branches"`
+	Unmet         []shortfallJSON  `json:"unmet"`
+	Warnings      []string         `json:"warnings"`
+	Summary       []string         `json:"summary"`
+}
+
+type pumpJSON struct {
+	Boundary          string   `json:"boundary"`
+	BeforeFlow        num      `json:"before_flow_m3_s"`
+	BeforeDiff        num      `json:"before_differential_pa"`
+	AfterFlow         num      `json:"after_flow_m3_s"`
+	AfterDiff         num      `json:"after_differential_pa"`
+	SpeedRatio        num      `json:"speed_ratio"`
+	NeededSpeed       num      `json:"needed_speed_ratio"`
+	TrimRatio         num      `json:"impeller_trim_ratio"`
+	Sensor            string   `json:"sensor"`
+	SetPoint          num      `json:"set_point_pa"`
+	HydraulicBeforeW  num      `json:"hydraulic_power_before_w"`
+	HydraulicAfterW   num      `json:"hydraulic_power_after_w"`
+	ElectricBeforeW   num      `json:"electrical_power_before_w"`
+	ElectricAfterW    num      `json:"electrical_power_after_w"`
+	AnnualEnergyKWh   num      `json:"annual_energy_saving_kwh"`
+	AnnualCostSaving  num      `json:"annual_cost_saving"`
+	Currency          string   `json:"currency"`
+	EfficiencyAssumed []string `json:"assumptions"`
+}
+
+type branchPlanJSON struct {
+	ID              string   `json:"branch"`
+	Parent          string   `json:"parent,omitempty"`
+	OnIndex         bool     `json:"on_index_path"`
+	Valve           string   `json:"valve,omitempty"`
+	Unit            string   `json:"setting_unit,omitempty"`
+	Current         num      `json:"as_found_setting"`
+	Exact           num      `json:"exact_setting"`
+	New             num      `json:"new_setting"`
+	KvRequired      num      `json:"kv_required"`
+	Target          num      `json:"target_m3_s"`
+	Predicted       num      `json:"predicted_m3_s"`
+	Percent         num      `json:"percent_of_target"`
+	BandLow         num      `json:"band_low_percent"`
+	BandHigh        num      `json:"band_high_percent"`
+	InTolerance     bool     `json:"in_tolerance"`
+	BandInTolerance bool     `json:"band_in_tolerance"`
+	ValveDiff       num      `json:"check_valve_differential_pa"`
+	BranchDiff      num      `json:"branch_differential_pa"`
+	Authority       num      `json:"authority"`
+	Notes           []string `json:"notes"`
+}
+
+type shortfallJSON struct {
+	ID        string `json:"branch"`
+	Target    num    `json:"target_m3_s"`
+	Predicted num    `json:"predicted_m3_s"`
+	Percent   num    `json:"percent_of_target"`
+	Reason    string `json:"reason"`
+}
+
+func (j *job) planOut(generated string) planJSON {
+	p := j.Plan
+	pp := p.Pump
+	out := planJSON{Site: j.L.Site.Name, Generated: generated, DesignOnly: p.DesignOnly, Rounding: p.Rounding.String(),
+		Index: p.Index, IndexPath: p.IndexPath, LeastPa: num(p.Least), RequiredPa: num(p.Required), TotalFlow: num(p.TotalFlow),
+		ToleranceLow: num(p.ToleranceLow), ToleranceHigh: num(p.ToleranceHigh), Warnings: p.Warnings, Summary: p.Summary(),
+		Pump: pumpJSON{Boundary: pp.Boundary.String(), BeforeFlow: num(pp.Before.Flow), BeforeDiff: num(pp.Before.Differential),
+			AfterFlow: num(pp.After.Flow), AfterDiff: num(pp.After.Differential), SpeedRatio: num(pp.SpeedRatio), NeededSpeed: num(pp.NeededSpeed),
+			TrimRatio: num(pp.TrimRatio), Sensor: pp.Sensor, SetPoint: num(pp.SetPoint),
+			HydraulicBeforeW: num(pp.HydraulicBefore), HydraulicAfterW: num(pp.HydraulicAfter),
+			ElectricBeforeW: num(pp.ElectricalBefore), ElectricAfterW: num(pp.ElectricalAfter),
+			AnnualEnergyKWh: num(pp.AnnualEnergySaving), AnnualCostSaving: num(pp.AnnualCostSaving), Currency: pp.Currency, EfficiencyAssumed: pp.Assumptions}}
+	if !pp.HaveBefore {
+		out.Pump.BeforeFlow, out.Pump.BeforeDiff = num(nan()), num(nan())
+	}
+	for _, b := range p.Branches {
+		out.Branches = append(out.Branches, branchPlanJSON{ID: b.ID, Parent: b.Parent, OnIndex: b.OnIndex, Valve: b.Valve, Unit: b.Unit,
+			Current: num(b.Current), Exact: num(b.Exact), New: num(b.New), KvRequired: num(b.KvRequired), Target: num(b.Target),
+			Predicted: num(b.Predicted), Percent: num(b.Percent), BandLow: num(b.BandLow), BandHigh: num(b.BandHigh),
+			InTolerance: b.InTolerance, BandInTolerance: b.BandInTolerance, ValveDiff: num(b.ValveDiff), BranchDiff: num(b.BranchDiff),
+			Authority: num(b.Authority), Notes: b.Notes})
+	}
+	for _, u := range p.Unmet {
+		out.Unmet = append(out.Unmet, shortfallJSON{u.ID, num(u.Target), num(u.Predicted), num(u.Percent), u.Reason})
+	}
+	return out
+}
+
+func nan() float64 { return math.NaN() }

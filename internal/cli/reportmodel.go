@@ -1,0 +1,261 @@
+package cli
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"strings"
+
+	"flowset/internal/balance"
+	"flowset/internal/diagnose"
+	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
+	"flowset/internal/report"
+	"flowset/internal/site"
+)
+
+// Display units of the report and field sheets.
+const (
+	toFlow = 1e3  // m3/s -> l/s
+	toDiff = 1e-3 // Pa -> kPa
+)
+
+// reportInput maps a job onto the report's view model.
+func (j *job) reportInput(ctx context.Context, generated string) (report.Input, error) {
+	l, m, plan := j.L, j.L.Model, j.Plan
+	s := l.Site
+	fluidText := s.Fluid
+	if s.Fluid != "water" {
+		fluidText = fmt.Sprintf("%s %g %% by volume", strings.ReplaceAll(s.Fluid, "-", " "), s.GlycolPercent)
+	}
+	in := report.Input{
+		Site: s.Name, Fluid: fluidText, Temperature: fmt.Sprintf("%.1f °C", s.Temperature-273.15),
+		Generated: generated, Measured: measuredSentence(s),
+		FlowUnit: "l/s", PressureUnit: "kPa",
+		ToleranceLow: 100 * s.ToleranceLow, ToleranceHigh: 100 * s.ToleranceHigh,
+	}
+	// Summary.
+	sum := &in.Summary
+	for i, b := range m.Branches {
+		if b.Riser() {
+			continue
+		}
+		pct := j.Before.Flow(i) / b.Target
+		if pct >= 1+s.ToleranceLow && pct <= 1+s.ToleranceHigh {
+			sum.InBefore++
+		} else {
+			sum.OutBefore++
+		}
+	}
+	for _, b := range plan.Branches {
+		if b.Riser {
+			continue
+		}
+		if b.InTolerance {
+			sum.InAfter++
+		} else {
+			sum.OutAfter++
+		}
+	}
+	for _, f := range j.Findings {
+		if f.Severity == diagnose.Fault {
+			where := f.Branch
+			if where == "" {
+				where = f.Reading
+			}
+			sum.Faults = append(sum.Faults, fmt.Sprintf("%s: %s", where, f.Message))
+		}
+	}
+	pp := plan.Pump
+	sum.SpeedRatio = math.NaN()
+	switch s.Boundary.Kind {
+	case site.PumpCurve:
+		sum.SetpointBefore = fmt.Sprintf("pump at %.0f %% speed: %.1f kPa at %.2f l/s", 100*j.Before.State.Speed, j.Before.PumpDiff()*toDiff, j.Before.TotalFlow()*toFlow)
+		sum.SetpointAfter = fmt.Sprintf("pump at %.0f %% speed: %.1f kPa at %.2f l/s", 100*plan.Speed, j.After.PumpDiff()*toDiff, j.After.TotalFlow()*toFlow)
+		if j.Before.State.Speed > 0 {
+			sum.SpeedRatio = plan.Speed / j.Before.State.Speed
+		}
+	default:
+		sum.SetpointBefore = fmt.Sprintf("%.1f kPa held at %s", j.Before.State.Differential*toDiff, sensorName(s.Boundary.Sensor))
+		sum.SetpointAfter = fmt.Sprintf("%.1f kPa at %s", pp.SetPoint*toDiff, sensorName(pp.Sensor))
+	}
+	if pp.HaveBefore && pp.ElectricalBefore > 0 {
+		sum.EnergySaving = fmt.Sprintf("pump electrical power %.2f kW -> %.2f kW (%.0f %%), about %.0f kWh a year",
+			pp.ElectricalBefore/1e3, pp.ElectricalAfter/1e3, 100*(pp.ElectricalAfter/pp.ElectricalBefore-1), pp.AnnualEnergySaving)
+		if !math.IsNaN(pp.AnnualCostSaving) {
+			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", pp.AnnualCostSaving, pp.Currency)
+		}
+	}
+	sum.Notes = append(sum.Notes, plan.Summary()...)
+	sum.Notes = append(sum.Notes, pp.Assumptions...)
+	if j.Cal == nil {
+		sum.Notes = append(sum.Notes, "No readings: everything here comes from the design data alone.")
+	} else if !j.Cal.Converged {
+		sum.Notes = append(sum.Notes, fmt.Sprintf("The calibration stopped without converging (%s): treat its figures with care.", j.Cal.Status))
+	}
+
+	// Branches.
+	planBy := map[string]*balance.BranchPlan{}
+	for k := range plan.Branches {
+		planBy[plan.Branches[k].ID] = &plan.Branches[k]
+	}
+	design := m.Design()
+	for i, b := range m.Branches {
+		if b.Riser() {
+			continue
+		}
+		bp := planBy[b.ID]
+		rb := report.Branch{ID: b.ID, Design: b.Design * toFlow, Before: j.Before.Flow(i) * toFlow,
+			After: math.NaN(), AfterLow: math.NaN(), AfterHigh: math.NaN(),
+			RatioFit: math.NaN(), RatioLow: math.NaN(), RatioHigh: math.NaN(),
+			NowValue: math.NaN(), PlannedValue: math.NaN()}
+		if bp != nil {
+			rb.After = bp.Predicted * toFlow
+			rb.AfterLow = bp.BandLow / 100 * bp.Target * toFlow
+			rb.AfterHigh = bp.BandHigh / 100 * bp.Target * toFlow
+			if b.Valve != nil {
+				rb.ValveUnit = bp.Unit
+				rb.NowValue, rb.PlannedValue = bp.Current, bp.New
+				rb.SettingNow, rb.SettingPlanned = fmt.Sprintf("%g %s", bp.Current, bp.Unit), fmt.Sprintf("%g %s", bp.New, bp.Unit)
+			}
+		}
+		if j.Cal != nil && j.Cal.Branches[i].Fitted {
+			bf := j.Cal.Branches[i]
+			rb.RatioFit, rb.RatioLow, rb.RatioHigh = bf.Ratio, bf.Lo, bf.Hi
+		}
+		for _, f := range j.Findings {
+			if f.Branch == b.ID && f.Reading == "" && f.Code != diagnose.Undetermined {
+				rb.Flags = append(rb.Flags, f.Code.String())
+			}
+		}
+		// Curves at the as-found setting, 0-150 % of design.
+		set := j.Before.State.Settings[i]
+		flows := make([]float64, 13)
+		for k := range flows {
+			flows[k] = b.Design * 1.5 * float64(k) / 12
+		}
+		rb.DesignCurve = xy(m.BranchCurve(design, i, set, flows))
+		rb.FitCurve = xy(m.BranchCurve(j.Params, i, set, flows))
+		if j.Cal != nil && j.Cal.Branches[i].Fitted {
+			lo, hi := j.Params.Clone(), j.Params.Clone()
+			lo.Resistance[i] = j.Cal.Branches[i].Lo
+			hi.Resistance[i] = j.Cal.Branches[i].Hi
+			rb.FitLow = xy(m.BranchCurve(lo, i, set, flows))
+			rb.FitHigh = xy(m.BranchCurve(hi, i, set, flows))
+		}
+		rb.Measured = measuredPoints(j, i)
+		in.Branches = append(in.Branches, rb)
+	}
+
+	// Whole circuit.
+	opB := plant.Point{Flow: j.Before.TotalFlow(), Diff: j.Before.PumpDiff()}
+	opA := plant.Point{Flow: j.After.TotalFlow(), Diff: j.After.PumpDiff()}
+	top := 1.4 * math.Max(opB.Diff, opA.Diff)
+	if m.Pump != nil && s.Boundary.Kind == site.PumpCurve {
+		top = math.Max(top, m.Pump.AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
+	}
+	diffs := make([]float64, 16)
+	for k := range diffs {
+		diffs[k] = top * float64(k) / float64(len(diffs)-1)
+	}
+	sysB, err := m.SystemCurve(ctx, j.Params, j.Before.State.Settings, diffs)
+	if err != nil {
+		return in, err
+	}
+	sysA, err := m.SystemCurve(ctx, j.Params, plan.Settings, diffs)
+	if err != nil {
+		return in, err
+	}
+	in.Combined.System, in.Combined.SystemAfter = xy(sysB), xy(sysA)
+	qmax := math.Max(sysB[len(sysB)-1].Flow, sysA[len(sysA)-1].Flow)
+	qs := make([]float64, 16)
+	for k := range qs {
+		qs[k] = qmax * float64(k) / float64(len(qs)-1)
+	}
+	in.Combined.PumpBefore = xy(m.PumpCurve(j.Params, j.Before.State.Speed, qs))
+	if plan.Speed > 0 {
+		in.Combined.PumpAfter = xy(m.PumpCurve(j.Params, plan.Speed, qs))
+	}
+	in.Combined.OpBefore = report.XY{X: opB.Flow * toFlow, Y: opB.Diff * toDiff}
+	in.Combined.OpAfter = report.XY{X: opA.Flow * toFlow, Y: opA.Diff * toDiff}
+
+	// Tables.
+	h, rows := plan.Rows()
+	in.Plan = report.Table{Title: "Field sheet", Columns: h, Rows: rows, Notes: plan.Warnings}
+	h, rows = j.findingRows()
+	in.Diagnosis = report.Table{Title: "Diagnosis", Columns: h, Rows: rows, Notes: []string{
+		"Thresholds: restricted when the fitted resistance ratio exceeds 1.5 with 95 % confidence (free below 1/1.5); suspect reading beyond 3 standard uncertainties or removed by the fit's outlier test."}}
+	h, rows = j.readingRows()
+	in.Readings = report.Table{Title: "Readings and residuals", Columns: h, Rows: rows}
+	return in, nil
+}
+
+func xy(ps []plant.Point) []report.XY {
+	out := make([]report.XY, 0, len(ps))
+	for _, p := range ps {
+		if math.IsNaN(p.Diff) {
+			continue
+		}
+		out = append(out, report.XY{X: p.Flow * toFlow, Y: p.Diff * toDiff})
+	}
+	return out
+}
+
+// measuredPoints places branch i's readings of the first survey state on its
+// curve: a flow with a branch differential read in the same state is one
+// point; a flow alone is drawn at the fitted differential.
+func measuredPoints(j *job, i int) []report.Point {
+	s := j.L.Site
+	id := j.L.Model.Branches[i].ID
+	var flows, diffs []site.Reading
+	for _, ri := range j.Before.State.Readings {
+		r := s.Readings[ri]
+		if r.Where != id {
+			continue
+		}
+		switch {
+		case r.What == site.Flow:
+			flows = append(flows, r)
+		case r.What == site.BranchDiff:
+			diffs = append(diffs, r)
+		}
+	}
+	var out []report.Point
+	for _, f := range flows {
+		p := report.Point{X: f.Value * toFlow, XErr: 2 * f.Sigma * toFlow, Y: j.Before.BranchDiff(i) * toDiff, YErr: math.NaN(),
+			Label: fmt.Sprintf("%s, %s (%s)", f.State, f.Instrument, f.Pos)}
+		if len(diffs) > 0 {
+			p.Y, p.YErr = diffs[0].Value*toDiff, 2*diffs[0].Sigma*toDiff
+		}
+		out = append(out, p)
+	}
+	return out
+}
+
+func sensorName(s string) string {
+	if s == "" || s == site.AtPump {
+		return "the pump"
+	}
+	return "branch " + s
+}
+
+func measuredSentence(s *site.Site) string {
+	sum := s.Summary()
+	if sum.Readings == 0 {
+		return "Nothing was measured: the plan is from design data alone."
+	}
+	kinds := map[string]int{}
+	var order []string
+	for _, r := range s.Readings {
+		k := r.What.String() + " by " + r.Instrument
+		if kinds[k] == 0 {
+			order = append(order, k)
+		}
+		kinds[k]++
+	}
+	var parts []string
+	for _, k := range order {
+		parts = append(parts, fmt.Sprintf("%d %s", kinds[k], k))
+	}
+	return fmt.Sprintf("%d readings in %d survey state(s): %s.", sum.Readings, len(sum.States), strings.Join(parts, ", "))
+}
