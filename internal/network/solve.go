@@ -150,11 +150,19 @@ func newState(nl, nn, nf int) *state {
 // nodes (+1 at a link's to node, -1 at its from node; A21 = A12ᵀ). Eliminating
 // dq leaves S dp = C - A21 D^-1 E with S = A21 D^-1 A12 symmetric positive
 // definite; S is factorised by a banded Cholesky after reverse Cuthill-McKee
-// reordering, then dq = -D^-1 (E + A12 dp). Steps are damped by backtracking
-// on the weighted residual norm. The iteration stops when the largest
+// reordering, then dq = -D^-1 (E + A12 dp). Slopes are floored (see
+// slopeFloorRel) so D is invertible at zero flow. A cold start (no
+// Options.Initial) first runs a few linear-theory solves to get flows of the
+// right order everywhere (see linearTheory). A Newton step that changes no
+// flow by more than half is taken whole; a larger one is damped by
+// backtracking on the residual norm. The iteration stops when the largest
 // continuity imbalance and energy error are within the relative tolerance;
 // otherwise it returns a *ConvergenceError. ctx is checked between
 // iterations.
+//
+// Square-law links whose answer is near zero flow (branches starved by an
+// undersized header) converge only linearly, their flow halving at each
+// step, so such networks take more iterations.
 func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	if err := ctx.Err(); err != nil {
 		return nil, fmt.Errorf("solve: %w", err)
