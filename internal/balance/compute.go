@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"flowset/internal/hydraulics"
+	"flowset/internal/network"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -26,6 +27,10 @@ type planner struct {
 	lo, hi float64
 	ex     *exact
 	plan   *Plan
+	// The network kept between solves (see solve).
+	net         *network.Built
+	netSettings []float64
+	flows       []float64
 }
 
 // Compute works out a balancing plan for model m with multipliers p (the
@@ -161,12 +166,76 @@ func (pl *planner) state(settings []float64, x float64) plant.State {
 	return st
 }
 
+// solve solves the plant at settings and control value x. The plan solves
+// the same network many times with a few valves or the pump changed, so it
+// keeps one built network, swaps the changed elements in place and warm-starts
+// Newton's method from the last flows; the result is what plant.Solve gives
+// (TestProperties compares them).
 func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*plant.Solved, error) {
-	s, err := pl.m.Solve(ctx, pl.p, pl.state(settings, x))
-	if err != nil {
-		return nil, fmt.Errorf("%w: %w", ErrSolve, err)
+	st := pl.state(append([]float64(nil), settings...), x)
+	m, p := pl.m, pl.p
+	if !pl.pump && !(x > 0 && finite(x)) {
+		return nil, fmt.Errorf("source differential %g Pa must be positive: %w", x, ErrSolve)
 	}
-	return s, nil
+	src := m.Source(p, st)
+	if pl.net == nil {
+		b, err := network.Build(m.Ladder(p, st.Settings), src, m.Fluid)
+		if err != nil {
+			return nil, fmt.Errorf("%w: %w", ErrSolve, err)
+		}
+		pl.net, pl.netSettings = b, append([]float64(nil), st.Settings...)
+	} else {
+		n := pl.net.Net
+		for i, v := range st.Settings {
+			if v == pl.netSettings[i] || (math.IsNaN(v) && math.IsNaN(pl.netSettings[i])) {
+				continue
+			}
+			if l := pl.net.Branch[m.Branches[i].ID]; l >= 0 {
+				n.SetElements(l, m.Elements(i, p, v)...)
+			}
+			pl.netSettings[i] = v
+		}
+		if pl.net.PumpLink >= 0 {
+			n.SetElements(pl.net.PumpLink, src.Pump)
+		} else if k, ok := n.NodeIndex(network.SupplyID); ok {
+			n.FixPressure(k, src.Static+src.Differential)
+		}
+	}
+	if pl.flows == nil {
+		pl.flows = pl.targetFlows()
+	}
+	opt := &network.Options{Initial: pl.flows}
+	sol, err := pl.net.Net.Solve(ctx, opt)
+	if err != nil && ctx.Err() == nil {
+		sol, err = pl.net.Net.Solve(ctx, nil) // cold start
+	}
+	if err != nil {
+		return nil, fmt.Errorf("%w: state %q: %w", ErrSolve, st.Label, err)
+	}
+	pl.flows = sol.Flow
+	return &plant.Solved{Model: m, Params: p, State: st, Built: pl.net, Sol: sol}, nil
+}
+
+// targetFlows returns the link flows of the exact plan (every branch at
+// target, header segments by continuity), the first solve's starting point.
+func (pl *planner) targetFlows() []float64 {
+	b, ex := pl.net, pl.ex
+	q := make([]float64, b.Net.NumLinks())
+	for i, br := range pl.m.Branches {
+		if l := b.Branch[br.ID]; l >= 0 {
+			q[l] = ex.q[i]
+		}
+		if l, ok := b.Net.LinkIndex(br.ID + ".supply-header"); ok {
+			q[l] = ex.supFlow[i]
+		}
+		if l, ok := b.Net.LinkIndex(br.ID + ".return-header"); ok {
+			q[l] = ex.retFlow[i]
+		}
+	}
+	if b.PumpLink >= 0 {
+		q[b.PumpLink] = ex.total()
+	}
+	return q
 }
 
 // control converts between the control value (speed ratio, or source
@@ -241,15 +310,18 @@ func (pl *planner) speedFor(q, dp float64) (float64, error) {
 }
 
 // root finds the control value at which g(solution) = 0, g increasing with
-// the control value, starting from x0. Flows are about proportional to u, so
-// the first step scales u by 1/(1+g) when g is a flow ratio less one; then
-// the secant method inside the bracket found, bisecting when it leaves it.
-func (pl *planner) root(ctx context.Context, settings []float64, x0 float64, g func(*plant.Solved) float64) (float64, *plant.Solved, error) {
-	const tol = 1e-10
+// the control value, to |g| < tol, starting from x0 (s0 is the solution
+// there when the caller has it, else nil). Flows are about proportional to
+// u, so the first step scales u by 1/(1+g) when g is a flow ratio less one;
+// then the secant method inside the bracket found, bisecting when it leaves
+// it.
+func (pl *planner) root(ctx context.Context, settings []float64, x0 float64, s0 *plant.Solved, g func(*plant.Solved) float64, tol float64) (float64, *plant.Solved, error) {
 	u0 := pl.toU(x0)
-	s0, err := pl.solve(ctx, settings, x0)
-	if err != nil {
-		return 0, nil, err
+	if s0 == nil {
+		var err error
+		if s0, err = pl.solve(ctx, settings, x0); err != nil {
+			return 0, nil, err
+		}
 	}
 	g0 := g(s0)
 	if math.Abs(g0) < tol {
@@ -288,6 +360,9 @@ func (pl *planner) root(ctx context.Context, settings []float64, x0 float64, g f
 		if finite(ulo) && finite(uhi) && !(next > ulo && next < uhi) {
 			next = ulo + (uhi-ulo)/2
 		}
+		if math.Abs(next-u1) <= 1e-13*u1 {
+			return pl.fromU(u1), s1, nil
+		}
 		u0, g0, u1 = u1, g1, next
 	}
 	return 0, nil, fmt.Errorf("pump control did not converge: %w", ErrSolve)
@@ -299,6 +374,10 @@ func nanTo(v, d float64) float64 {
 	}
 	return v
 }
+
+// rootTol is the relative accuracy to which the pump is set for the index's
+// target: far below any reading, well above the solver's tolerance.
+const rootTol = 1e-9
 
 // settle rounds the settings, re-solves the network and sets the pump: steps
 // 5 and 6 of the package comment. It fills the plan's settings and boundary
@@ -313,7 +392,7 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 	idx := ex.indexID
 	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
 	settings := r.settings()
-	x, sol, err := pl.root(ctx, settings, x0, indexOK)
+	x, sol, err := pl.root(ctx, settings, x0, nil, indexOK, rootTol)
 	if err != nil {
 		return nil, err
 	}
@@ -323,7 +402,7 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 				break
 			}
 			settings = r.settings()
-			if x, sol, err = pl.root(ctx, settings, x, indexOK); err != nil {
+			if x, sol, err = pl.root(ctx, settings, x, nil, indexOK, rootTol); err != nil {
 				return nil, err
 			}
 		}
@@ -331,10 +410,20 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 		// pump until the lowest branch reaches the band's lower edge, or
 		// the highest its upper edge, and keep the move only if it brings
 		// more branches into the band.
+		// A valve too large to throttle, or a branch without one, stays
+		// out of the band whatever the pump does: leave it out.
+		fixable := make([]bool, len(m.Branches))
+		var nfix int
+		for i := range fixable {
+			fixable[i] = !ex.clamped[i] && !(m.Branches[i].Valve == nil && ex.surplus[i] > 0)
+			if fixable[i] {
+				nfix++
+			}
+		}
 		count := func(s *plant.Solved) int {
 			var c int
 			for i := range m.Branches {
-				if r := s.Flow(i) / ex.q[i]; r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9 {
+				if r := s.Flow(i) / ex.q[i]; fixable[i] && r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9 {
 					c++
 				}
 			}
@@ -343,12 +432,14 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 		ratio := func(s *plant.Solved, worst func(a, b float64) float64, start float64) float64 {
 			w := start
 			for i := range m.Branches {
-				w = worst(w, s.Flow(i)/ex.q[i])
+				if fixable[i] {
+					w = worst(w, s.Flow(i)/ex.q[i])
+				}
 			}
 			return w
 		}
 		best := count(sol)
-		if best < len(m.Branches) {
+		if best < nfix {
 			low, high := 1+pl.lo+1e-3, 1+pl.hi-1e-3
 			moves := []struct {
 				g    func(*plant.Solved) float64
@@ -358,8 +449,13 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 				{func(s *plant.Solved) float64 { return ratio(s, math.Max, math.Inf(-1))/high - 1 }, "lowered until the highest branch reaches the band"},
 			}
 			var why string
-			for _, mv := range moves {
-				xm, sm, err := pl.root(ctx, settings, x, mv.g)
+			for k, mv := range moves {
+				// Only towards the band: raise for a branch below it,
+				// lower for one above it.
+				if g0 := mv.g(sol); (k == 0) != (g0 < 0) {
+					continue
+				}
+				xm, sm, err := pl.root(ctx, settings, x, sol, mv.g, 1e-6)
 				if err != nil {
 					return nil, err
 				}

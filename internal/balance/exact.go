@@ -33,6 +33,14 @@ type exact struct {
 	// clamped the Kv below what the valve reaches when fully throttled.
 	surplus []float64
 	clamped []bool
+	// supFlow and retFlow are the flows of the header segments ahead of
+	// each take-off, in the direction the network builder draws them.
+	supFlow, retFlow []float64
+
+	// ends caches each valve's Kv at the ends of its range, by branch
+	// (valves of one model share a characteristic, but Characteristic
+	// values are not comparable, so by branch is simplest).
+	ends [][2]float64
 
 	least    float64 // source differential needed, Pa
 	indexID  int
@@ -47,6 +55,31 @@ func newExact(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
 		fixed: make([]float64, n), open: make([]float64, n), sub: make([]float64, n), need: make([]float64, n),
 		path: make([]float64, n), avail: make([]float64, n), valve: make([]float64, n), index: make([]bool, n),
 		kv: make([]float64, n), setting: make([]float64, n), surplus: make([]float64, n), clamped: make([]bool, n),
+		supFlow: make([]float64, n), retFlow: make([]float64, n), ends: make([][2]float64, n),
+	}
+	byModel := map[any][2]float64{}
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if b.Valve == nil {
+			continue
+		}
+		var key any = b.ValveModel
+		if b.ValveModel == nil {
+			key = i
+		}
+		kv, ok := byModel[key]
+		if !ok {
+			lo, hi := b.Valve.Range()
+			var err error
+			if kv[0], err = b.Valve.KvAt(lo); err == nil {
+				kv[1], err = b.Valve.KvAt(hi)
+			}
+			if err != nil {
+				return nil, fmt.Errorf("branch %q: valve: %w: %w", b.ID, err, ErrInput)
+			}
+			byModel[key] = kv
+		}
+		e.ends[i] = kv
 	}
 	top := m.Top()
 	e.flows(top)
@@ -122,8 +155,8 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 		b := &m.Branches[i]
 		e.fixed[i] = e.drop(m.FixedElement(i, e.p.Resistance[i]), e.q[i])
 		if b.Valve != nil {
-			_, hi := b.Valve.Range()
-			e.open[i] = e.drop(m.ValveElement(i, hi, e.p.KvScale[i]), e.q[i])
+			// The valve element's law above its leakage floor.
+			e.open[i], _ = hydraulics.KvDrop(e.q[i], e.ends[i][1]*e.p.KvScale[i], e.f.Density)
 		}
 		e.need[i] = e.fixed[i] + e.open[i]
 		if b.Riser() {
@@ -152,6 +185,7 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 			ls += e.segment(m.Branches[i].Supply, suf[k])
 			lr += e.segment(m.Branches[i].Return, suf[k])
 			e.path[i] = ls + lr
+			e.supFlow[i], e.retFlow[i] = suf[k], suf[k]
 		}
 	case network.ReverseReturn:
 		total := suf[0]
@@ -161,17 +195,20 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 		lr := make([]float64, nb)
 		acc := e.segment(m.Branches[ids[0]].Return, total)
 		prefix := total
+		e.retFlow[ids[0]] = total
 		for k := nb - 1; k >= 0; k-- {
 			lr[k] = acc
 			if k > 0 {
 				prefix -= e.q[ids[k]]
 				acc += e.segment(m.Branches[ids[k]].Return, prefix)
+				e.retFlow[ids[k]] = prefix
 			}
 		}
 		var ls float64
 		for k, i := range ids {
 			ls += e.segment(m.Branches[i].Supply, suf[k])
 			e.path[i] = ls + lr[k]
+			e.supFlow[i] = suf[k]
 		}
 	default:
 		for _, i := range ids {
@@ -220,14 +257,7 @@ func (e *exact) assign(ids []int, d float64) error {
 func (e *exact) set(i int) error {
 	b := &e.m.Branches[i]
 	lo, hi := b.Valve.Range()
-	kvHi, err := b.Valve.KvAt(hi)
-	if err != nil {
-		return fmt.Errorf("branch %q: valve %w", b.ID, err)
-	}
-	kvLo, err := b.Valve.KvAt(lo)
-	if err != nil {
-		return fmt.Errorf("branch %q: valve %w", b.ID, err)
-	}
+	kvLo, kvHi := e.ends[i][0], e.ends[i][1]
 	// The open drop was computed at hi, so a drop at or below it (the index,
 	// up to rounding error) is the fully open valve.
 	if e.valve[i] <= e.open[i]*(1+1e-12) {

@@ -121,7 +121,7 @@ func (pl *planner) before(ctx context.Context) (*plant.Solved, string, error) {
 			// The controller holds the sensor branch's differential:
 			// find the source differential that gives it.
 			set := d
-			_, sol, err := pl.root(ctx, found, set, func(sv *plant.Solved) float64 { return sv.BranchDiff(i)/set - 1 })
+			_, sol, err := pl.root(ctx, found, set, nil, func(sv *plant.Solved) float64 { return sv.BranchDiff(i)/set - 1 }, rootTol)
 			return sol, "", err
 		}
 	default:
