@@ -42,7 +42,7 @@ const (
 	// DefaultMatrixFreeAbove is the number of parameters above which Fit
 	// solves matrix-free: below it the engine forms the Jacobian and keeps
 	// the exact covariance.
-	DefaultMatrixFreeAbove = 1500
+	DefaultMatrixFreeAbove = 300
 )
 
 // freeSigma is the prior sd of a Kv parameter a valve hypothesis frees: e³
@@ -413,32 +413,44 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 func (su *setup) valveEvidence() {
 	m := su.m
 	type seen struct{ flow, vdiff, indep, any bool }
+	at := make([][]int, len(m.Branches)) // observations at each branch
+	for k, o := range su.obs {
+		if o.branch >= 0 {
+			at[o.branch] = append(at[o.branch], k)
+		}
+	}
 	for i := range m.Branches {
 		b := &m.Branches[i]
 		if b.Valve == nil {
 			continue
 		}
-		per := make([]seen, len(m.States))
-		for _, o := range su.obs {
-			if o.branch != i {
-				continue
+		per := map[int]*seen{}
+		for _, k := range at[i] {
+			o := &su.obs[k]
+			s := per[o.state]
+			if s == nil {
+				s = &seen{}
+				per[o.state] = s
 			}
-			s := &per[o.state]
 			s.any = true
-			switch {
-			case o.what == site.Flow:
+			switch o.what {
+			case site.Flow:
 				s.flow, s.indep = true, true
-			case o.what == site.ValveDiff:
+			case site.ValveDiff:
 				s.vdiff = true
-			case o.what == site.BranchDiff:
+			case site.BranchDiff:
 				s.indep = true
 			}
 		}
 		var indepSettings, anySettings []float64
 		ref := -1
-		for k, s := range per {
+		for k := range m.States {
+			s := per[k]
+			if s == nil {
+				continue
+			}
 			set := m.States[k].Settings[i]
-			if s.any && ref < 0 {
+			if ref < 0 {
 				ref = k
 			}
 			if s.flow && s.vdiff {
@@ -447,9 +459,7 @@ func (su *setup) valveEvidence() {
 			if s.indep {
 				indepSettings = addDistinct(indepSettings, set)
 			}
-			if s.any {
-				anySettings = addDistinct(anySettings, set)
-			}
+			anySettings = addDistinct(anySettings, set)
 		}
 		if len(indepSettings) >= 2 || len(b.Fixed) == 0 {
 			su.kvSep[i] = true
@@ -581,6 +591,10 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 	var prob Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}
+		// Probe the variances: the exact covariance costs O(n³) in dense
+		// algebra (seconds at 1000 parameters); the header and pump get
+		// exact variances afterwards (exactHubVariances).
+		set.DenseCovMax = -1
 	}
 	res, err := Solve(ctx, prob, x0, prior, set)
 	su.solves += p.solves

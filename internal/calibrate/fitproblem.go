@@ -93,6 +93,20 @@ type stateNet struct {
 	params               plant.Params
 	dh                   [][]term // per parameter, the link-drop derivatives
 	lin                  []lin    // parallel to obs
+	// bufL and bufN are scratch vectors over links and nodes for the
+	// matrix-free products.
+	bufL, bufN []float64
+}
+
+// scratch returns sn's zeroed scratch vectors.
+func (sn *stateNet) scratch() (links, nodes []float64) {
+	nl, nn := len(sn.sol.Flow), len(sn.sol.Pressure)
+	if len(sn.bufL) != nl || len(sn.bufN) != nn {
+		sn.bufL, sn.bufN = make([]float64, nl), make([]float64, nn)
+	}
+	clear(sn.bufL)
+	clear(sn.bufN)
+	return sn.bufL, sn.bufN
 }
 
 // problem is the calibration least-squares problem for the engine.
@@ -474,7 +488,7 @@ func (p opProblem) MulVec(dst, v []float64) {
 		if len(sn.obs) == 0 || sn.sol == nil {
 			continue
 		}
-		dh := make([]float64, len(sn.sol.Flow))
+		dh, _ := sn.scratch()
 		for j, vj := range v {
 			if vj == 0 {
 				continue
@@ -516,8 +530,7 @@ func (p opProblem) MulTransVec(dst, w []float64) {
 		if len(sn.obs) == 0 || sn.sol == nil {
 			continue
 		}
-		wq := make([]float64, len(sn.sol.Flow))
-		wp := make([]float64, len(sn.sol.Pressure))
+		wq, wp := sn.scratch()
 		for k, oi := range sn.obs {
 			ln := &sn.lin[k]
 			c := w[oi] / p.obs[oi].sigma

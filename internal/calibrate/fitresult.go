@@ -13,6 +13,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	if err := p.Residuals(res.X, r, nil); err != nil {
 		return nil, fmt.Errorf("calibrate: evaluating the fit: %w", err)
 	}
+	exactHubVariances(p, res)
 	su.solves += p.solves
 	nb := len(m.Branches)
 	c := &Calibration{

@@ -42,6 +42,7 @@ func newPlantSite(tb testing.TB, sp plantSpec) *site.Site {
 	if sp.constDiff {
 		s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 60e3, Sensor: "pump"}
 	}
+	var total float64 // design flow still to come, for sizing long headers
 	for i := range sp.branches {
 		b := site.Branch{
 			ID: fmt.Sprintf("b%02d", i), DesignFlow: (0.2 + 0.4*rng.Float64()) * 1e-3,
@@ -51,7 +52,15 @@ func newPlantSite(tb testing.TB, sp plantSpec) *site.Site {
 			SupplyLength: 4, ReturnLength: 4, HeaderBore: 0.053, HeaderK: 1,
 		}
 		b.TerminalFlow = b.DesignFlow
+		total += b.DesignFlow
 		s.Branches = append(s.Branches, b)
+	}
+	if sp.branches > 20 {
+		// A long header is sized for about 1 m/s along its length.
+		for i := range s.Branches {
+			s.Branches[i].HeaderBore = math.Sqrt(4 * total / math.Pi)
+			total -= s.Branches[i].DesignFlow
+		}
 	}
 	if sp.riser && sp.branches >= 3 {
 		// Branch 1 feeds two sub-branches; it keeps a pipe of its own.
