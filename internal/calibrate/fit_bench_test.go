@@ -15,7 +15,6 @@ import (
 // ratios drawn around design, normal reading errors. Above
 // DefaultMatrixFreeAbove parameters the fit runs matrix-free.
 
-
 func BenchmarkFit(b *testing.B) {
 	ctx := context.Background()
 	nan := math.NaN()
