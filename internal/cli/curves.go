@@ -154,7 +154,7 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 }
 
 func writeCurvesTable(w io.Writer, cs *curveSet) error {
-	fmt.Fprintf(w, "system curves of %q, valve settings of state %q\n\n", cs.Site, cs.State)
+	fmt.Fprintf(w, "system curves of %s\nvalves at their settings in state %q\n\n", clip(cs.Site, 63), cs.State)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprint(tw, "branch\tdesign\t")
 	for _, f := range cs.Fractions {

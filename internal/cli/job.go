@@ -29,7 +29,8 @@ type jobOptions struct {
 type job struct {
 	L        *loaded
 	Cal      *calibrate.Calibration // nil when planning from design
-	Params   plant.Params           // the model the plan used
+	Fitted   plant.Params           // the calibrated model (design without readings)
+	Params   plant.Params           // the model the plan used (see planParams)
 	Before   *plant.Solved          // the first survey state (or the base state) on Params
 	Findings []diagnose.Finding
 	Evidence []diagnose.Branch
@@ -70,14 +71,14 @@ func calibrateSite(ctx context.Context, l *loaded, pr *progress) (*calibrate.Cal
 // runJob does check, fit, diagnose and plan.
 func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*job, error) {
 	m := l.Model
-	j := &job{L: l, Params: m.Design()}
+	j := &job{L: l, Fitted: m.Design(), Params: m.Design()}
 	if !opts.DesignOnly {
 		cal, err := calibrateSite(ctx, l, pr)
 		if err != nil {
 			return nil, err
 		}
 		if cal != nil {
-			j.Cal, j.Params = cal, planParams(cal)
+			j.Cal, j.Fitted, j.Params = cal, cal.Params, planParams(cal)
 		}
 	}
 	st := m.BaseState()
@@ -85,12 +86,12 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 		st = m.States[0]
 	}
 	pr.step("solving the as-found state %q", st.Label)
-	before, err := m.Solve(ctx, j.Params, st)
+	before, err := m.Solve(ctx, j.Fitted, st)
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("as-found state: %w", err)}
 	}
 	j.Before = before
-	j.Evidence = evidence(l, j.Cal, before)
+	j.Evidence = evidence(l, j.Cal, before, j.Params)
 	j.Findings = diagnose.Check(j.Evidence, readingEvidence(l, j.Cal), opts.Thresholds)
 
 	pr.step("planning valve settings for %d branches", len(m.Branches))
@@ -151,7 +152,7 @@ func uncertainty(c *calibrate.Calibration) *balance.Uncertainty {
 }
 
 // evidence gathers what diagnose needs about each terminal branch.
-func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved) []diagnose.Branch {
+func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved, open plant.Params) []diagnose.Branch {
 	m := l.Model
 	sum := l.Site.Summary()
 	measured := map[string][]string{}
@@ -171,7 +172,7 @@ func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved) []diagn
 		if b.Riser() {
 			continue
 		}
-		e := diagnose.Branch{ID: b.ID, Ratio: 1, LogSD: math.Inf(1), Target: b.Target, OpenFlow: openFlow(m, before, i),
+		e := diagnose.Branch{ID: b.ID, Ratio: 1, LogSD: math.Inf(1), Target: b.Target, OpenFlow: openFlow(m, before, i, open),
 			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil}
 		if c != nil {
 			bf := c.Branches[i]
@@ -216,17 +217,17 @@ func valveEvidence(c *calibrate.Calibration, i int) *diagnose.Valve {
 	return out
 }
 
-// openFlow is the flow branch i would pass with its valve fully open at the
-// differential it sees now. Opening one valve barely changes the header
+// openFlow is the flow branch i would pass, with multipliers p, with its
+// valve fully open at the differential it sees now. Opening one valve barely changes the header
 // pressures of a many-branch circuit, so the differential is held; for a
 // small circuit this overstates the open-valve flow slightly.
-func openFlow(m *plant.Model, s *plant.Solved, i int) float64 {
+func openFlow(m *plant.Model, s *plant.Solved, i int, p plant.Params) float64 {
 	b := &m.Branches[i]
 	if b.Valve == nil {
 		return math.NaN()
 	}
 	_, hi := b.Valve.Range()
-	c := network.ElementCurve(m.Fluid, m.Elements(i, s.Params, hi)...)
+	c := network.ElementCurve(m.Fluid, m.Elements(i, p, hi)...)
 	q, err := network.Invert(c, s.BranchDiff(i))
 	if err != nil {
 		return math.NaN()

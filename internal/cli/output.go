@@ -76,6 +76,10 @@ func writeDirAtomic(dest string, force bool, fill func(create func(name string) 
 		return err
 	}
 	defer os.RemoveAll(tmp) // no-op after a successful rename
+	// MkdirTemp makes a private folder; the result is an ordinary one.
+	if err := os.Chmod(tmp, 0o755); err != nil {
+		return err
+	}
 	if err := fill((&dirWriter{tmp}).create); err != nil {
 		return err
 	}

@@ -135,9 +135,9 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			flows[k] = b.Design * 1.5 * float64(k) / 12
 		}
 		rb.DesignCurve = xy(m.BranchCurve(design, i, set, flows))
-		rb.FitCurve = xy(m.BranchCurve(j.Params, i, set, flows))
+		rb.FitCurve = xy(m.BranchCurve(j.Fitted, i, set, flows))
 		if j.Cal != nil && j.Cal.Branches[i].Fitted {
-			lo, hi := j.Params.Clone(), j.Params.Clone()
+			lo, hi := j.Fitted.Clone(), j.Fitted.Clone()
 			lo.Resistance[i] = j.Cal.Branches[i].Lo
 			hi.Resistance[i] = j.Cal.Branches[i].Hi
 			rb.FitLow = xy(m.BranchCurve(lo, i, set, flows))
@@ -158,7 +158,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	for k := range diffs {
 		diffs[k] = top * float64(k) / float64(len(diffs)-1)
 	}
-	sysB, err := m.SystemCurve(ctx, j.Params, j.Before.State.Settings, diffs)
+	sysB, err := m.SystemCurve(ctx, j.Fitted, j.Before.State.Settings, diffs)
 	if err != nil {
 		return in, err
 	}
@@ -172,7 +172,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	for k := range qs {
 		qs[k] = qmax * float64(k) / float64(len(qs)-1)
 	}
-	in.Combined.PumpBefore = xy(m.PumpCurve(j.Params, j.Before.State.Speed, qs))
+	in.Combined.PumpBefore = xy(m.PumpCurve(j.Fitted, j.Before.State.Speed, qs))
 	if plan.Speed > 0 {
 		in.Combined.PumpAfter = xy(m.PumpCurve(j.Params, plan.Speed, qs))
 	}

@@ -53,20 +53,24 @@ func usagef(format string, a ...any) error { return &usageError{fmt.Errorf(forma
 // Run executes flowset with args (without the program name) and returns the
 // process exit code.
 func Run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) int {
-	ios := &IO{In: stdin, Out: stdout, Err: stderr, Terminal: isTerminal(stderr)}
+	return RunIO(ctx, args, &IO{In: stdin, Out: stdout, Err: stderr, Terminal: isTerminal(stderr)})
+}
+
+// RunIO is Run with the streams and clock given in ios.
+func RunIO(ctx context.Context, args []string, ios *IO) int {
 	root := NewRoot(ios)
 	root.SetArgs(args)
-	root.SetIn(stdin)
-	root.SetOut(stdout)
-	root.SetErr(stderr)
+	root.SetIn(ios.In)
+	root.SetOut(ios.Out)
+	root.SetErr(ios.Err)
 	err := root.ExecuteContext(ctx)
 	if err == nil {
 		return ExitOK
 	}
-	fmt.Fprintf(stderr, "flowset: %v\n", err)
+	fmt.Fprintf(ios.Err, "flowset: %v\n", err)
 	var ue *usageError
 	if errors.As(err, &ue) || isCobraUsage(err) {
-		fmt.Fprintln(stderr, "run 'flowset help' for usage")
+		fmt.Fprintln(ios.Err, "run 'flowset help' for usage")
 		return ExitUsage
 	}
 	return exitCode(err)

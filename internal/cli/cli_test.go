@@ -1,0 +1,343 @@
+package cli
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/csv"
+	"flag"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/google/go-cmp/cmp"
+
+	"flowset/internal/site"
+	"flowset/surveys"
+)
+
+var update = flag.Bool("update", false, "rewrite the golden files in testdata")
+
+// fixedClock is the clock injected into every test run, so outputs are
+// byte-for-byte repeatable.
+func fixedClock() time.Time { return time.Date(2026, 3, 14, 9, 30, 0, 0, time.UTC) }
+
+// run executes flowset with args and returns its exit code and streams.
+func run(t *testing.T, args ...string) (int, string, string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code := RunIO(context.Background(), args, &IO{In: strings.NewReader(""), Out: &out, Err: &errb, Now: fixedClock})
+	return code, out.String(), errb.String()
+}
+
+func surveyDir(name string) string { return filepath.Join("..", "..", "surveys", name) }
+
+func golden(t *testing.T, name string, got string) {
+	t.Helper()
+	path := filepath.Join("testdata", name)
+	if *update {
+		if err := os.WriteFile(path, []byte(got), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test ./internal/cli -update to create it)", err)
+	}
+	if d := cmp.Diff(string(want), got); d != "" {
+		t.Errorf("output differs from %s (-want +got):\n%s", path, d)
+	}
+}
+
+func TestCheckDemoGolden(t *testing.T) {
+	code, out, errs := run(t, "check", surveyDir("demo"))
+	if code != ExitOK {
+		t.Fatalf("check demo: exit %d, stderr:\n%s", code, errs)
+	}
+	golden(t, "check-demo.golden", out)
+}
+
+func TestCurvesDemoGolden(t *testing.T) {
+	code, out, errs := run(t, "curves", surveyDir("demo"))
+	if code != ExitOK {
+		t.Fatalf("curves demo: exit %d, stderr:\n%s", code, errs)
+	}
+	for i, line := range strings.Split(out, "\n") {
+		if n := len([]rune(line)); n > 80 {
+			t.Errorf("curves table line %d is %d columns wide, want at most 80: %q", i+1, n, line)
+		}
+	}
+	golden(t, "curves-demo.golden", out)
+	for _, f := range []string{"csv", "json"} {
+		if code, _, errs := run(t, "curves", "--format", f, surveyDir("demo")); code != ExitOK {
+			t.Errorf("curves --format %s: exit %d: %s", f, code, errs)
+		}
+	}
+}
+
+// checksums maps every file under dir to its SHA-256.
+func checksums(t *testing.T, dir string) map[string][32]byte {
+	t.Helper()
+	out := map[string][32]byte{}
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		b, err := os.ReadFile(p)
+		out[p] = sha256.Sum256(b)
+		return err
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return out
+}
+
+var wantOutputs = []string{"calibration.csv", "calibration.json", "field-sheet.csv", "field-sheet.xlsx", "findings.csv", "plan.json", "readings.csv", "report.html"}
+
+// TestRunEverySurvey runs the whole job on every site under surveys/ and
+// checks that the outputs are all there and the inputs untouched.
+func TestRunEverySurvey(t *testing.T) {
+	for _, name := range surveys.Names() {
+		t.Run(name, func(t *testing.T) {
+			before := checksums(t, surveyDir(name))
+			out := filepath.Join(t.TempDir(), "out")
+			code, stdout, errs := run(t, "run", surveyDir(name), "--out", out, "--quiet")
+			if code != ExitOK {
+				t.Fatalf("run %s: exit %d, stderr:\n%s", name, code, errs)
+			}
+			if !strings.Contains(stdout, filepath.Join(out, "report.html")) {
+				t.Errorf("run %s does not say where the report is:\n%s", name, stdout)
+			}
+			var got []string
+			entries, err := os.ReadDir(out)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, e := range entries {
+				got = append(got, e.Name())
+			}
+			sort.Strings(got)
+			if d := cmp.Diff(wantOutputs, got); d != "" {
+				t.Errorf("run %s outputs (-want +got):\n%s", name, d)
+			}
+			if d := cmp.Diff(before, checksums(t, surveyDir(name))); d != "" {
+				t.Errorf("run %s changed its inputs:\n%s", name, d)
+			}
+		})
+	}
+}
+
+// TestRunDeterministic runs the demo twice with the same clock: every output
+// must be identical byte for byte.
+func TestRunDeterministic(t *testing.T) {
+	a, b := filepath.Join(t.TempDir(), "a"), filepath.Join(t.TempDir(), "b")
+	for _, d := range []string{a, b} {
+		if code, _, errs := run(t, "demo", "--out", d, "--quiet"); code != ExitOK {
+			t.Fatalf("demo: exit %d: %s", code, errs)
+		}
+	}
+	for _, f := range wantOutputs {
+		if f == "field-sheet.xlsx" {
+			continue // the workbook library stamps zip times; its content is checked elsewhere
+		}
+		x, _ := os.ReadFile(filepath.Join(a, f))
+		y, _ := os.ReadFile(filepath.Join(b, f))
+		if !bytes.Equal(x, y) {
+			t.Errorf("%s differs between two runs with the same inputs and clock", f)
+		}
+	}
+}
+
+// TestDemoReportDataGolden pins the demo report without the inlined charting
+// library (not ours to pin): its data, tables and text.
+func TestDemoReportDataGolden(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "demo")
+	if code, _, errs := run(t, "demo", "--out", out, "--quiet"); code != ExitOK {
+		t.Fatalf("demo: exit %d: %s", code, errs)
+	}
+	html, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := string(html)
+	i := strings.Index(s, "<script>")
+	j := strings.Index(s[i:], "</script>")
+	if i < 0 || j < 0 || !strings.Contains(s[i:i+j], "echarts") {
+		t.Fatal("report does not start with the inlined charting library")
+	}
+	golden(t, "demo-report.golden", s[:i]+"<script>/* charting library omitted */"+s[i+j:])
+}
+
+func TestOutputNotOverwritten(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "out")
+	if err := os.Mkdir(out, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	keep := filepath.Join(out, "keep.txt")
+	if err := os.WriteFile(keep, []byte("mine"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, errs := run(t, "demo", "--out", out, "--quiet")
+	if code != ExitUsage || !strings.Contains(errs, "--force") {
+		t.Fatalf("demo into an existing folder: exit %d, stderr %q; want exit 2 naming --force", code, errs)
+	}
+	if b, err := os.ReadFile(keep); err != nil || string(b) != "mine" {
+		t.Fatalf("existing output folder was touched: %v %q", err, b)
+	}
+	if code, _, errs := run(t, "demo", "--out", out, "--quiet", "--force"); code != ExitOK {
+		t.Fatalf("demo --force: exit %d: %s", code, errs)
+	}
+	if _, err := os.Stat(keep); err == nil {
+		t.Error("--force kept a file of the old folder: the folder should be replaced whole")
+	}
+	if _, err := os.Stat(filepath.Join(out, "report.html")); err != nil {
+		t.Errorf("--force: %v", err)
+	}
+	entries, _ := os.ReadDir(filepath.Dir(out))
+	for _, e := range entries {
+		if strings.HasPrefix(e.Name(), ".") {
+			t.Errorf("temporary %s left behind", e.Name())
+		}
+	}
+}
+
+func TestOutInsideInput(t *testing.T) {
+	dir := t.TempDir()
+	copySite(t, "demo", dir)
+	code, _, errs := run(t, "run", dir, "--out", filepath.Join(dir, "out"))
+	if code != ExitUsage || !strings.Contains(errs, "inside the input") {
+		t.Fatalf("run with --out inside the input: exit %d, stderr %q; want exit 2", code, errs)
+	}
+}
+
+func TestUsageErrors(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"unknown command", []string{"balance-all"}, "unknown command"},
+		{"unknown flag", []string{"check", "--frobnicate", "x"}, "unknown flag"},
+		{"missing site", []string{"check"}, "takes 1 argument"},
+		{"run without out", []string{"run", "x"}, "--out is required"},
+		{"bad format", []string{"curves", "--format", "xml", "x"}, "--format"},
+		{"bad rounding", []string{"plan", "--rounding", "up", "x"}, "--rounding"},
+		{"bad scale", []string{"plan", "--scale", "7", "x"}, "--scale"},
+		{"unknown demo site", []string{"demo", "--site", "nowhere"}, "built-in sites"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			code, _, errs := run(t, c.args...)
+			if code != ExitUsage || !strings.Contains(errs, c.want) {
+				t.Errorf("flowset %q: exit %d, stderr %q; want exit 2 mentioning %q", c.args, code, errs, c.want)
+			}
+		})
+	}
+}
+
+func TestBadSiteExitsOne(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "blank")
+	if code, _, errs := run(t, "template", dir); code != ExitOK {
+		t.Fatalf("template: exit %d: %s", code, errs)
+	}
+	code, _, errs := run(t, "check", dir)
+	if code != ExitData || !strings.Contains(errs, "branches.csv:") {
+		t.Fatalf("check of a blank site: exit %d, stderr %q; want exit 1 naming branches.csv", code, errs)
+	}
+}
+
+// copySite writes a built-in site's sheets into dir.
+func copySite(t *testing.T, name, dir string) {
+	t.Helper()
+	err := fs.WalkDir(surveys.FS, name, func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		b, err := fs.ReadFile(surveys.FS, p)
+		if err != nil {
+			return err
+		}
+		return os.WriteFile(filepath.Join(dir, filepath.Base(p)), b, 0o644)
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+}
+
+// TestFormulaInjection gives branches names a spreadsheet would run as
+// formulas and checks no output cell starts with a formula character
+// (OWASP, "CSV Injection").
+func TestFormulaInjection(t *testing.T) {
+	s, probs, err := site.ReadDir(surveys.FS, "plantroom")
+	if err != nil || probs.Err() != nil {
+		t.Fatal(err, probs)
+	}
+	hostile := []string{"=HYPERLINK(\"http://x\",\"y\")", "+1+cmd|' /C calc'!A0", "-2+3", "@SUM(A1)"}
+	rename := map[string]string{}
+	for i := range s.Branches {
+		if i < len(hostile) {
+			rename[s.Branches[i].ID] = hostile[i]
+			s.Branches[i].ID = hostile[i]
+		}
+	}
+	for i := range s.Branches {
+		if n, ok := rename[s.Branches[i].Parent]; ok {
+			s.Branches[i].Parent = n
+		}
+	}
+	for i := range s.Readings {
+		if n, ok := rename[s.Readings[i].Where]; ok {
+			s.Readings[i].Where = n
+		}
+	}
+	dir := t.TempDir()
+	err = site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) })
+	if err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(t.TempDir(), "out")
+	if code, _, errs := run(t, "run", dir, "--out", out, "--quiet"); code != ExitOK {
+		t.Fatalf("run with formula-like names: exit %d: %s", code, errs)
+	}
+	for _, f := range []string{"field-sheet.csv", "calibration.csv", "findings.csv", "readings.csv"} {
+		b, err := os.ReadFile(filepath.Join(out, f))
+		if err != nil {
+			t.Fatal(err)
+		}
+		recs, err := csv.NewReader(bytes.NewReader(b)).ReadAll()
+		if err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		seen := false
+		for _, r := range recs {
+			for _, c := range r {
+				for _, h := range hostile {
+					if strings.Contains(c, h) {
+						seen = true
+					}
+				}
+				if c != "" && strings.ContainsRune("=+@\t\r", rune(c[0])) {
+					t.Errorf("%s: cell %q starts with a formula character", f, c)
+				}
+				if strings.HasPrefix(c, "-") && !isNumber(c) {
+					t.Errorf("%s: cell %q starts with a formula character", f, c)
+				}
+			}
+		}
+		if f == "field-sheet.csv" && !seen {
+			t.Errorf("%s: the hostile names do not appear at all; the test proves nothing", f)
+		}
+	}
+}
+
+func isNumber(s string) bool {
+	var x float64
+	_, err := fmt.Sscanf(s, "%g", &x)
+	return err == nil && fmt.Sprint(x) != "" && !strings.ContainsAny(s, " +")
+}
