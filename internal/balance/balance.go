@@ -47,14 +47,25 @@
 //     tolerance band, then re-solves and flips the valves of branches still
 //     outside the band where the other mark is nearer it (a few passes).
 //     The index valve stays fully open.
-//  6. Re-solve. The network is solved (plant.Solve) with the rounded
-//     settings, and the pump speed (or source differential) is found by a
-//     1-D root search on the full network so the index branch again gets its
-//     target. With Smart rounding, when a branch is still below the band the
-//     pump is raised until the lowest branch reaches the band's lower edge
-//     (a warning says so). The flows reported are those of this solve. If
-//     the speed exceeds the drive's maximum the plan is solved at the
-//     maximum and the shortfalls are reported with what would help.
+//  6. Re-solve. The network is solved with the rounded settings, and the
+//     pump speed (or source differential) is found by a 1-D root search on
+//     the full network so the index branch again gets its target. With
+//     Smart rounding, when branches are still outside the band the pump is
+//     also tried raised until the lowest reaches the band's lower edge, and
+//     lowered until the highest reaches its upper edge; a move is kept only
+//     if it brings more branches into the band (a warning says so). The
+//     flows reported are those of this solve. If the speed exceeds the
+//     drive's maximum the plan is solved at the maximum and the shortfalls
+//     are reported with what would help (a larger pump, cleaning a branch
+//     whose resistance multiplier exceeds 2, a larger index valve), each
+//     with the differential it would save.
+//
+// The tolerance band (Site.ToleranceLow/High, ±10 % when not given) is
+// applied to each branch's target, which is its design flow unless a target
+// or Scale says otherwise. The many solves of steps 5-6 share one network:
+// changed valves and the pump are swapped in place and Newton's method starts
+// from the last flows (the first time from the target flows), which gives
+// what plant.Solve gives at a fraction of the cost.
 //
 // Because every quantity is computed from the same element laws the network
 // solver uses, solving with the unrounded settings at the computed speed
@@ -84,7 +95,11 @@
 // header and pump interactions are included), parameters taken as
 // independent, pump speed (or source differential) held at the plan:
 // σ²(ln q_i) = Σ_j (∂ln q_i/∂ln θ_j)² σ_j², band = predicted × exp(±k σ) with
-// k = Uncertainty.Coverage (2 by default, about 95 % for a normal ln q).
+// k = Uncertainty.Coverage (2 by default, about 95 % for a normal ln q). The
+// plan also works out, exactly, the least differential if any one poorly
+// known resistance (or valve Kv, or the header) sat at the end of its band
+// (Plan.LeastHigh) and warns by name about those that would raise it by
+// more than 2 %: a branch the survey did not pin down may be the true index.
 //
 // # Walk order
 //
