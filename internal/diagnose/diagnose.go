@@ -21,13 +21,13 @@ type Code int
 
 // The kinds of finding.
 const (
-	Restricted       Code = iota + 1 // resistance well above design
-	Free                             // resistance well below design
-	ValveStuck                       // valve held one Kv while its setting was changed
-	ValveMisSet                      // valve sits elsewhere than its recorded setting
-	SuspectReading                   // reading far from the fitted model
-	CannotReachDesign                // short of design even with its valve fully open
-	Undetermined                     // the survey does not pin the branch down
+	Restricted        Code = iota + 1 // resistance well above design
+	Free                              // resistance well below design
+	ValveStuck                        // valve held one Kv while its setting was changed
+	ValveMisSet                       // valve sits elsewhere than its recorded setting
+	SuspectReading                    // reading far from the fitted model
+	CannotReachDesign                 // short of design even with its valve fully open
+	Undetermined                      // the survey does not pin the branch down
 )
 
 var codeNames = [...]string{"", "restricted", "free", "valve-stuck", "valve-mis-set", "suspect-reading", "cannot-reach-design", "undetermined"}
@@ -102,7 +102,7 @@ type Branch struct {
 	// Ratio is the fitted resistance over design, with the standard
 	// deviation of its logarithm (posterior, normal in log space).
 	Ratio, LogSD float64
-	Determined  bool
+	Determined   bool
 	// Valve holds the valve hypothesis test, when one was made.
 	Valve *Valve
 	// Target is the flow to reach; OpenFlow what the calibrated model gives
