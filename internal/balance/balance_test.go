@@ -73,13 +73,16 @@ func TestParallelClosedForm(t *testing.T) {
 }
 
 // TestLadderRecursion checks the least differential and every Kv of direct-
-// and reverse-return ladders against an independent recursion written here
-// (pressure march along the headers): start with the return header's
-// pressures from the source end, each segment adding the drop of the flow it
-// carries by continuity, then find the least source pressure that gives
-// every branch its need, then each valve's drop as what is left. Elements are
-// built here from the site's numbers with the hydraulics laws, not taken
-// from the plant model.
+// and reverse-return ladders against independent recursions written here,
+// with elements built from the site's numbers by the hydraulics laws, not
+// taken from the plant model. Direct return: the far-end recursion (from the
+// last branch towards the source, the differential needed at each take-off
+// is the larger of its own need and the next take-off's plus the segments
+// between, which carry the branches beyond by continuity). Reverse return: a
+// pressure march (return pressures from the source up the return leg and
+// back along the return header, supply pressures down from the source,
+// each segment adding the drop of the flow it carries). Each valve's drop is
+// then what is left of the take-off differential over its fixed parts.
 func TestLadderRecursion(t *testing.T) {
 	for _, arr := range []site.Arrangement{site.DirectReturn, site.ReverseReturn} {
 		for seed := range uint64(4) {
@@ -133,9 +136,8 @@ func marchLadder(t *testing.T, s *site.Site, m *plant.Model) (float64, map[strin
 	supplyBelow := make([]float64, n)
 	returnAbove := make([]float64, n)
 	var ps, flowBeyond float64
-	for k := n - 1; k >= 0; k-- {
-		flowBeyond += bs[k].DesignFlow
-		_ = k
+	for _, b := range bs {
+		flowBeyond += b.DesignFlow
 	}
 	beyond := flowBeyond
 	for k := range n {
@@ -165,12 +167,31 @@ func marchLadder(t *testing.T, s *site.Site, m *plant.Model) (float64, map[strin
 			}
 		}
 	}
-	var least float64
 	need := make([]float64, n)
 	for k, b := range bs {
 		open, _ := hydraulics.KvDrop(b.DesignFlow, kvMax[b.Valve], f.Density)
 		need[k] = fixed(b) + open
-		least = max(least, need[k]+supplyBelow[k]+returnAbove[k])
+	}
+	var least float64
+	if s.Header == site.DirectReturn {
+		// Far-end recursion: the differential needed at take-off k to serve
+		// k and everything beyond is the larger of its own need and what
+		// take-off k+1 needs plus the two segments between them, which carry
+		// the flow of the branches from k+1 on.
+		req := need[n-1]
+		for k := n - 2; k >= 0; k-- {
+			beyond := 0.0
+			for _, b := range bs[k+1:] {
+				beyond += b.DesignFlow
+			}
+			h := seg(bs[k+1], bs[k+1].SupplyLength, beyond) + seg(bs[k+1], bs[k+1].ReturnLength, beyond)
+			req = max(need[k], req+h)
+		}
+		least = req + seg(bs[0], bs[0].SupplyLength, flowBeyond) + seg(bs[0], bs[0].ReturnLength, flowBeyond)
+	} else {
+		for k := range bs {
+			least = max(least, need[k]+supplyBelow[k]+returnAbove[k])
+		}
 	}
 	kv := map[string]float64{}
 	for k, b := range bs {
