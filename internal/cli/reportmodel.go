@@ -87,7 +87,6 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		}
 	}
 	sum.Notes = append(sum.Notes, plan.Summary()...)
-	sum.Notes = append(sum.Notes, pp.Assumptions...)
 	if j.Cal == nil {
 		sum.Notes = append(sum.Notes, "No readings: everything here comes from the design data alone.")
 	} else if !j.Cal.Converged {
@@ -128,11 +127,17 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 				rb.Flags = append(rb.Flags, f.Code.String())
 			}
 		}
-		// Curves at the as-found setting, 0-150 % of design.
+		// Curves at the as-found setting, from zero to beyond both 150 % of
+		// design and every reading, so the readings sit on the drawn range.
 		set := j.Before.State.Settings[i]
+		rb.Measured = measuredPoints(j, i)
+		span := 1.5 * b.Design
+		for _, p := range rb.Measured {
+			span = math.Max(span, 1.1*p.X/toFlow)
+		}
 		flows := make([]float64, 13)
 		for k := range flows {
-			flows[k] = b.Design * 1.5 * float64(k) / 12
+			flows[k] = span * float64(k) / 12
 		}
 		rb.DesignCurve = xy(m.BranchCurve(design, i, set, flows))
 		rb.FitCurve = xy(m.BranchCurve(j.Fitted, i, set, flows))
@@ -143,7 +148,6 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			rb.FitLow = xy(m.BranchCurve(lo, i, set, flows))
 			rb.FitHigh = xy(m.BranchCurve(hi, i, set, flows))
 		}
-		rb.Measured = measuredPoints(j, i)
 		in.Branches = append(in.Branches, rb)
 	}
 
