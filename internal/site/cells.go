@@ -202,6 +202,11 @@ func parseWord(words []string, text string) (string, *numError) {
 	if text == "" {
 		return "", nil
 	}
+	for _, w := range words {
+		if strings.EqualFold(w, text) {
+			return w, nil // the usual case, without allocating
+		}
+	}
 	n := normWord(text)
 	for _, w := range words {
 		if normWord(w) == n {
