@@ -28,6 +28,7 @@ const (
 	SeverityWarning                 // the site is used, but something looks wrong
 )
 
+// String returns "error" or "warning".
 func (s Severity) String() string {
 	if s == SeverityWarning {
 		return "warning"
@@ -55,6 +56,9 @@ type Error struct {
 // maxValueShown limits how much of a cell an error message quotes.
 const maxValueShown = 60
 
+// Error formats the problem as
+// file:line:column: [warning: ]field "f": value "v": message (want ...),
+// leaving out the parts that are empty.
 func (e *Error) Error() string {
 	var b strings.Builder
 	b.WriteString(e.File)

@@ -70,6 +70,7 @@ const (
 
 var arrangementWords = []string{NoHeaderLoss: "none", DirectReturn: "direct-return", ReverseReturn: "reverse-return"}
 
+// String returns the word the site sheet uses for a.
 func (a Arrangement) String() string { return word(arrangementWords, int(a), "arrangement") }
 
 // BoundaryKind is what holds the circuit's differential pressure.
@@ -84,6 +85,7 @@ const (
 
 var boundaryWords = []string{PumpCurve: "pump", ConstantDiff: "constant-differential", MeasuredDiff: "measured-differential"}
 
+// String returns the word the site sheet uses for k.
 func (k BoundaryKind) String() string { return word(boundaryWords, int(k), "boundary") }
 
 // Boundary is the pressure boundary condition of the circuit.
@@ -185,6 +187,7 @@ const (
 var quantityWords = []string{Flow: "flow", ValveDiff: "valve diff", BranchDiff: "branch diff",
 	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow"}
 
+// String returns the word the readings sheet uses for q.
 func (q Quantity) String() string { return word(quantityWords, int(q), "quantity") }
 
 // IsFlow reports whether q is a flow (SI m3/s); otherwise it is a pressure
@@ -212,6 +215,7 @@ type Pos struct {
 	Line int
 }
 
+// String returns "file:line", or the file alone when the line is 0.
 func (p Pos) String() string {
 	if p.Line == 0 {
 		return p.File

@@ -42,6 +42,7 @@ type Measure struct {
 	Count      int
 }
 
+// String describes m as "flow by clamp-on ×2".
 func (m Measure) String() string {
 	if m.Instrument == "" {
 		return fmt.Sprintf("%s ×%d", m.What, m.Count)
