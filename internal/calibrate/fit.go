@@ -120,9 +120,12 @@ const (
 	// HoldsOneKv: the valve keeps one Kv whatever its recorded setting, as
 	// a seized valve whose handwheel turns without moving the plug does.
 	HoldsOneKv
-	// SetElsewhere: the valve follows its table but with a consistent
-	// offset, as when it was set elsewhere than recorded (or its table is
-	// wrong).
+	// SetElsewhere: the valve sits a consistent offset (in its own setting
+	// units) from every setting recorded, as when its indicator has
+	// slipped or it was set elsewhere than recorded. An offset rather than
+	// a Kv factor, because a move of the handwheel moves the plug by the
+	// same turns from wherever it really is, and a table's Kv is not a
+	// fixed multiple across settings (it flattens towards fully open).
 	SetElsewhere
 )
 
@@ -153,10 +156,14 @@ type ValveVerdict struct {
 	// over FollowsTable (0 when FollowsTable is chosen).
 	DeltaChiSquare, DeltaScore float64
 	// Kv is the valve's fitted effective Kv (m3/h) in each survey state,
-	// Recorded the setting recorded there and Implied the setting its
-	// table gives for Kv (NaN where Kv is outside the table).
+	// Recorded the setting recorded there and Implied where the valve
+	// really is: the recorded setting plus the offset for SetElsewhere,
+	// else the setting its table gives for Kv (NaN outside the table).
 	Kv, Recorded, Implied []float64
-	Note                  string
+	// Offset is how far a valve set elsewhere sits from its recorded
+	// setting, in the valve's units, with its sd (0 for other hypotheses).
+	Offset, OffsetSD float64
+	Note             string
 }
 
 // BranchFit is the fit of one branch.
@@ -320,10 +327,12 @@ type setup struct {
 	// evidence: they say something about the valve at all.
 	kvSep, evidence []bool
 	multi           []bool // the valve was read at two or more settings
-	refKv           []float64
-	hasHeader       bool
-	hasPump         bool
-	solves          int
+	// refSet and refKv are each valve's setting in the first state that
+	// reads its branch, and its table Kv there.
+	refSet, refKv []float64
+	hasHeader     bool
+	hasPump       bool
+	solves        int
 }
 
 const valveMeter = "valve-meter"
@@ -332,7 +341,7 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 	s := m.Site
 	nb := len(m.Branches)
 	su := &setup{m: m, opt: o, boundary: make([]bool, len(s.Readings)), byReading: make([]int, len(s.Readings)),
-		kvSep: make([]bool, nb), evidence: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb)}
+		kvSep: make([]bool, nb), evidence: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb), refSet: make([]float64, nb)}
 	su.state = make([]int, len(s.Readings))
 	for i := range su.byReading {
 		su.byReading[i], su.state[i] = -1, -1
@@ -469,7 +478,8 @@ func (su *setup) valveEvidence() {
 		if ref < 0 {
 			ref = 0
 		}
-		su.refKv[i], _ = b.Valve.KvAt(m.States[ref].Settings[i])
+		su.refSet[i] = m.States[ref].Settings[i]
+		su.refKv[i], _ = b.Valve.KvAt(su.refSet[i])
 	}
 }
 
@@ -509,7 +519,9 @@ func (su *setup) params(hyp []ValveHypothesis) []Param {
 				ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: o.PriorKv})
 			}
 		case SetElsewhere:
-			ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: freeSigma, free: true})
+			// A prior as wide as the valve's range: effectively free.
+			lo, hi := m.Branches[i].Valve.Range()
+			ps = append(ps, Param{Kind: OffsetParam, Branch: i, Sigma: hi - lo, free: true})
 		case HoldsOneKv:
 			ps = append(ps, Param{Kind: StuckParam, Branch: i, Sigma: freeSigma, free: true})
 		}
@@ -544,7 +556,7 @@ func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []in
 		switch par.Kind {
 		case ResistanceParam:
 			p.rIdx[par.Branch] = j
-		case KvParam, StuckParam:
+		case KvParam, StuckParam, OffsetParam:
 			p.kvIdx[par.Branch] = j
 		case HeaderParam:
 			p.hIdx = j
@@ -584,7 +596,7 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 	for j, par := range p.params {
 		prior.Sigma[j] = par.Sigma
 		if from != nil {
-			x0[j] = from.value(par)
+			x0[j] = su.start(from, par)
 		}
 	}
 	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ}
@@ -604,17 +616,46 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 	return &fitRun{hyp: hyp, sel: sel, prob: p, res: res}, nil
 }
 
-// value returns the fitted value of the parameter matching par: the same
-// kind on the same branch, or any valve parameter of that branch.
-func (f *fitRun) value(par Param) float64 {
+// start returns a starting value for par from fit f: the value of the same
+// parameter, or for a valve parameter the one that gives the valve the Kv f
+// found at its reference setting (design where f has none).
+func (su *setup) start(f *fitRun, par Param) float64 {
 	for j, q := range f.prob.params {
 		if q.Branch != par.Branch {
 			continue
 		}
-		valve := func(k ParamKind) bool { return k == KvParam || k == StuckParam }
-		if q.Kind == par.Kind || (valve(q.Kind) && valve(par.Kind)) {
+		if q.Kind == par.Kind {
 			return f.res.X[j]
 		}
+		valve := func(k ParamKind) bool { return k == KvParam || k == StuckParam || k == OffsetParam }
+		if !valve(q.Kind) || !valve(par.Kind) {
+			continue
+		}
+		b := &su.m.Branches[par.Branch]
+		ref := su.refSet[par.Branch]
+		kv := math.Exp(f.res.X[j]) * su.refKv[par.Branch]
+		if q.Kind == OffsetParam {
+			lo, hi := b.Valve.Range()
+			k, err := b.Valve.KvAt(min(max(ref+f.res.X[j], lo), hi))
+			if err != nil {
+				return 0
+			}
+			kv = k
+		}
+		if par.Kind == OffsetParam {
+			lo, hi := b.Valve.Range()
+			kvLo, err1 := b.Valve.KvAt(lo)
+			kvHi, err2 := b.Valve.KvAt(hi)
+			if err1 != nil || err2 != nil {
+				return 0
+			}
+			s, err := b.Valve.SettingFor(min(max(kv, kvLo), kvHi))
+			if err != nil {
+				return 0
+			}
+			return s - ref
+		}
+		return math.Log(kv / su.refKv[par.Branch])
 	}
 	return 0
 }

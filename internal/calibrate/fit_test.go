@@ -87,8 +87,10 @@ func TestFitPredictions(t *testing.T) {
 				t.Fatal(err)
 			}
 			hyp := make([]ValveHypothesis, len(m.Branches))
-			for i := range hyp {
-				hyp[i] = SetElsewhere // every valve's Kv is a parameter
+			for i, b := range m.Branches {
+				if b.Valve != nil {
+					hyp[i], su.kvSep[i] = FollowsTable, true // every valve's Kv scale is a parameter
+				}
 			}
 			p, err := su.newProblem(ctx, hyp, su.allObs())
 			if err != nil {

@@ -22,6 +22,7 @@ const (
 	ResistanceParam ParamKind = iota // a branch's fixed parts
 	KvParam                          // a branch's valve Kv, in every state
 	StuckParam                       // a seized valve's one Kv, relative to the table at its first surveyed setting
+	OffsetParam                      // a mis-set valve's offset from its recorded setting, in setting units (not a log)
 	HeaderParam                      // every header segment
 	PumpParam                        // the pump's head curve
 )
@@ -35,6 +36,8 @@ func (k ParamKind) String() string {
 		return "kv scale"
 	case StuckParam:
 		return "seized kv"
+	case OffsetParam:
+		return "setting offset"
 	case HeaderParam:
 		return "header"
 	case PumpParam:
@@ -43,11 +46,12 @@ func (k ParamKind) String() string {
 	return fmt.Sprintf("param(%d)", int(k))
 }
 
-// Param is one fitted parameter: the log of a multiplier.
+// Param is one fitted parameter: the log of a multiplier, or for
+// OffsetParam a setting offset in the valve's units.
 type Param struct {
 	Kind   ParamKind
 	Branch int // branch index; -1 for the header and pump
-	// Sigma is the prior sd of the log-multiplier (+Inf: none).
+	// Sigma is the prior sd (+Inf: none).
 	Sigma float64
 	free  bool // freed by a valve hypothesis
 }
@@ -96,6 +100,8 @@ type stateNet struct {
 	// bufL and bufN are scratch vectors over links and nodes for the
 	// matrix-free products.
 	bufL, bufN []float64
+	// kvGain is d(ln KvScale_i)/dx_j of each branch's valve parameter.
+	kvGain []float64
 }
 
 // scratch returns sn's zeroed scratch vectors.
@@ -134,24 +140,48 @@ const maxLog = 30
 
 func (p *problem) Dims() (int, int) { return len(p.params), len(p.obs) }
 
-// stateParams returns the multipliers the network of state s is built with.
-func (p *problem) stateParams(x []float64, s int) plant.Params {
+// stateParams returns the multipliers the network of state s is built
+// with, and fills gain with d(ln KvScale_i)/dx_j for each valve parameter j
+// of branch i (nil gain: not wanted).
+func (p *problem) stateParams(x []float64, s int, gain []float64) plant.Params {
 	pp := p.m.Design()
 	for i := range p.m.Branches {
 		if j := p.rIdx[i]; j >= 0 {
 			pp.Resistance[i] = math.Exp(x[j])
 		}
-		if j := p.kvIdx[i]; j >= 0 {
-			k := math.Exp(x[j])
-			if p.params[j].Kind == StuckParam {
-				// One Kv in every state: the scale on the table at this
-				// state's setting that gives the reference Kv times e^x.
-				kv, err := p.m.Branches[i].Valve.KvAt(p.states[s].st.Settings[i])
-				if err == nil && kv > 0 {
-					k *= p.refKv[i] / kv
+		j := p.kvIdx[i]
+		if j < 0 {
+			continue
+		}
+		k, g := math.Exp(x[j]), 1.0
+		b := &p.m.Branches[i]
+		rec := p.states[s].st.Settings[i]
+		switch p.params[j].Kind {
+		case StuckParam:
+			// One Kv in every state: the scale on the table at this
+			// state's setting that gives the reference Kv times e^x.
+			if kv, err := b.Valve.KvAt(rec); err == nil && kv > 0 {
+				k *= p.refKv[i] / kv
+			}
+		case OffsetParam:
+			// The valve sits x away from the recorded setting (within its
+			// range): its table Kv there over the table Kv recorded.
+			k, g = 1, 0
+			lo, hi := b.Valve.Range()
+			at := rec + x[j]
+			set := min(max(at, lo), hi)
+			kv, slope, err := kvSlope(b, set)
+			kr, err2 := b.Valve.KvAt(rec)
+			if err == nil && err2 == nil && kv > 0 && kr > 0 {
+				k = kv / kr
+				if at >= lo && at <= hi {
+					g = slope / kv
 				}
 			}
-			pp.KvScale[i] = k
+		}
+		pp.KvScale[i] = k
+		if gain != nil {
+			gain[i] = g
 		}
 	}
 	if p.hIdx >= 0 {
@@ -161,6 +191,28 @@ func (p *problem) stateParams(x []float64, s int) plant.Params {
 		pp.PumpHead = math.Exp(x[p.pIdx])
 	}
 	return pp
+}
+
+// kvSlope returns branch b's valve Kv at a setting and its derivative.
+func kvSlope(b *plant.Branch, set float64) (kv, slope float64, err error) {
+	if ks, ok := b.Valve.(interface {
+		KvSlope(float64) (float64, float64, error)
+	}); ok {
+		return ks.KvSlope(set)
+	}
+	// plant presents a generic characteristic in % of travel without its
+	// slope: rebuild it from the valve model.
+	vm := b.ValveModel
+	if vm == nil {
+		return 0, 0, fmt.Errorf("valve of branch %q has no model: %w", b.ID, ErrSurvey)
+	}
+	kinds := map[string]hydraulics.Kind{"linear": hydraulics.Linear, "equal-percentage": hydraulics.EqualPercentage, "quick-opening": hydraulics.QuickOpening}
+	kind, ok := kinds[vm.Characteristic]
+	if !ok {
+		return 0, 0, fmt.Errorf("valve %q: unknown characteristic %q: %w", vm.Name, vm.Characteristic, ErrSurvey)
+	}
+	kv, slope, err = hydraulics.Inherent{Kind: kind, Kvs: vm.Kvs, Rangeability: vm.Rangeability}.KvSlope(set / 100)
+	return kv, slope / 100, err
 }
 
 // setElements puts the elements of multipliers pp on state s's network.
@@ -217,8 +269,8 @@ func (p *problem) solve(sn *stateNet, pp plant.Params) error {
 
 // Residuals implements Problem.
 func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
-	for _, v := range x {
-		if !(math.Abs(v) <= maxLog) {
+	for j, v := range x {
+		if !(math.Abs(v) <= maxLog) && p.params[j].Kind != OffsetParam || math.IsNaN(v) || math.IsInf(v, 0) {
 			return fmt.Errorf("log-multiplier %g beyond ±%d: %w", v, maxLog, ErrDomain)
 		}
 	}
@@ -230,7 +282,10 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 		if len(sn.obs) == 0 {
 			continue
 		}
-		if err := p.solve(sn, p.stateParams(x, s)); err != nil {
+		if len(sn.kvGain) != len(p.m.Branches) {
+			sn.kvGain = make([]float64, len(p.m.Branches))
+		}
+		if err := p.solve(sn, p.stateParams(x, s, sn.kvGain)); err != nil {
 			return err
 		}
 		p.linearise(sn)
@@ -312,13 +367,13 @@ func (p *problem) linearise(sn *stateNet) {
 				dp, _ := p.m.FixedElement(i, sn.params.Resistance[i]).Drop(sol.Flow[l], p.m.Fluid)
 				d = append(d, term{l, dp})
 			}
-		case KvParam, StuckParam:
+		case KvParam, StuckParam, OffsetParam:
 			i := par.Branch
 			if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
 				// dp ∝ 1/KvScale² (also at the leakage floor, which scales
 				// with KvScale): d(drop)/d(ln KvScale) = -2 dp.
 				dp, _ := p.valveDrop(sn, i, sol.Flow[l])
-				d = append(d, term{l, -2 * dp})
+				d = append(d, term{l, -2 * dp * sn.kvGain[i]})
 			}
 		case HeaderParam:
 			for _, l := range sn.built.Headers {
@@ -361,7 +416,7 @@ func (p *problem) linearise(sn *stateNet) {
 				ln.q = append(ln.q, term{l, slope})
 			}
 			if j := p.kvIdx[o.branch]; j >= 0 {
-				ln.x = append(ln.x, term{j, -2 * dp})
+				ln.x = append(ln.x, term{j, -2 * dp * sn.kvGain[o.branch]})
 			}
 		}
 		sn.lin[k] = ln

@@ -38,14 +38,38 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		if j := p.kvIdx[i]; j >= 0 {
 			bf.KvFitted, bf.KvDetermined = true, res.Determined[j]
 			bf.KvScale, bf.KvLo, bf.KvHi, bf.KvSD = interval(j)
-			c.Params.KvScale[i] = bf.KvScale
-			if p.params[j].Kind == StuckParam {
+			switch p.params[j].Kind {
+			case StuckParam:
 				// One Kv in every state: give the scale that reproduces it
 				// at the as-found setting.
 				if kv, err := b.Valve.KvAt(b.AsFound); err == nil && kv > 0 {
-					c.Params.KvScale[i] = bf.KvScale * su.refKv[i] / kv
+					f := su.refKv[i] / kv
+					bf.KvScale, bf.KvLo, bf.KvHi = bf.KvScale*f, bf.KvLo*f, bf.KvHi*f
 				}
+			case OffsetParam:
+				// The scale the offset gives at the as-found setting, its
+				// interval from the offset's and its sd to first order.
+				bf.Valve.Offset, bf.Valve.OffsetSD = res.X[j], res.StdErr[j]
+				lo, hi := b.Valve.Range()
+				scale := func(d float64) (k, g float64) {
+					at := b.AsFound + d
+					kv, slope, err := kvSlope(b, min(max(at, lo), hi))
+					kr, err2 := b.Valve.KvAt(b.AsFound)
+					if err != nil || err2 != nil || !(kv > 0) || !(kr > 0) {
+						return math.NaN(), math.NaN()
+					}
+					if at < lo || at > hi {
+						slope = 0
+					}
+					return kv / kr, slope / kv
+				}
+				var g float64
+				bf.KvScale, g = scale(res.X[j])
+				bf.KvLo, _ = scale(res.Lo95[j])
+				bf.KvHi, _ = scale(res.Hi95[j])
+				bf.KvSD = math.Abs(g) * res.StdErr[j]
 			}
+			c.Params.KvScale[i] = bf.KvScale
 			su.valveStates(p, i, &bf.Valve)
 		}
 		c.Branches[i] = bf
@@ -109,9 +133,11 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 // settings of branch i's valve at the fitted point of p.
 func (su *setup) valveStates(p *problem, i int, v *ValveVerdict) {
 	b := &su.m.Branches[i]
+	j := p.kvIdx[i]
 	v.Kv = make([]float64, len(p.states))
 	v.Recorded = make([]float64, len(p.states))
 	v.Implied = make([]float64, len(p.states))
+	lo, hi := b.Valve.Range()
 	for s, sn := range p.states {
 		set := sn.st.Settings[i]
 		v.Recorded[s] = set
@@ -120,7 +146,13 @@ func (su *setup) valveStates(p *problem, i int, v *ValveVerdict) {
 		if err != nil {
 			continue
 		}
-		v.Kv[s] = kv * p.stateParams(p.x, s).KvScale[i]
+		v.Kv[s] = kv * p.stateParams(p.x, s, nil).KvScale[i]
+		if p.params[j].Kind == OffsetParam {
+			if at := set + p.x[j]; at >= lo && at <= hi {
+				v.Implied[s] = at
+			}
+			continue
+		}
 		if h, err := b.Valve.SettingFor(v.Kv[s]); err == nil {
 			v.Implied[s] = h
 		}

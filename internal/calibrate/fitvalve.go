@@ -143,9 +143,9 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 		v.DeltaScore = gain
 		switch {
 		case best == SetElsewhere && !su.multi[i]:
-			v.Note = fmt.Sprintf("kv off its table by a consistent factor (score gain %.1f); read at one setting only, so a seized valve would look the same", gain)
+			v.Note = fmt.Sprintf("valve not where its setting was recorded (score gain %.1f); read at one setting only, so a seized valve would look the same", gain)
 		case best == SetElsewhere:
-			v.Note = fmt.Sprintf("kv off its table by a consistent factor at every setting (score gain %.1f over the table, %.1f over a seized valve)", gain, v.Score[HoldsOneKv]-v.Score[best])
+			v.Note = fmt.Sprintf("valve a consistent offset from its recorded settings in every state (score gain %.1f over the table, %.1f over a seized valve)", gain, v.Score[HoldsOneKv]-v.Score[best])
 		default:
 			v.Note = fmt.Sprintf("kv unchanged although the setting was moved (score gain %.1f over the table, %.1f over a consistent offset)", gain, v.Score[SetElsewhere]-v.Score[best])
 		}
