@@ -278,6 +278,11 @@ var badCases = []badCase{
 		want: []string{
 			"valves.csv:4:3: field \"kv\": value \"0.35\": kv falls as the setting rises (want a kv of at least 0.4 (line 3))",
 		}},
+	{name: "shut position in kv table", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0,0\nV15,0.5,0.2\nV15,4,2.1\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:2:3: field \"kv\": value \"0\": kv 0 is a shut valve, which cannot be modelled (want a kv above 0: start the table at the first setting that passes water)",
+		}},
 	{name: "kv flat", files: map[string]string{"valves.csv": "model,setting,kv\nV15,0.5,0.2\nV15,1,0.4\nV15,2,0.4\nV15,4,2.1\n"},
 		cause: ErrRange,
 		want: []string{
@@ -501,6 +506,12 @@ var badCases = []badCase{
 		cause: ErrUnit,
 		want: []string{
 			"pump.csv:1:2: field \"head\": value \"kPa\": unit \"kPa\" is a pressure, not a head (want a head unit: m or ft of the pumped fluid; convert a pressure to head with the fluid's density)",
+		}},
+	{name: "target of zero", files: map[string]string{"targets.csv": "branch,target flow [l/s]\nA,0\nB,0.00001\n"},
+		cause: ErrRange,
+		want: []string{
+			"targets.csv:2:2: field \"target flow\": value \"0\": must be positive (want a flow above 0)",
+			"targets.csv:3:2: field \"target flow\": value \"0.00001\": too small (want a flow from 0.0001 l/s to 10000 l/s)",
 		}},
 	{name: "target for unknown branch", files: map[string]string{"targets.csv": "branch,target flow [l/s]\nA,0.5\nC,0.3\nA,0.45\n"},
 		cause: ErrReference,

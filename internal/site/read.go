@@ -637,6 +637,15 @@ func checkTable(m *ValveModel, setRefs, kvRefs []cellRef, modelRef cellRef, p *P
 		return false
 	}
 	ok := true
+	for i, kv := range m.Kv {
+		// A shut position passes no water at any differential: the
+		// network model has no finite resistance for it.
+		if kv == 0 {
+			p.add(kvRefs[i].problem(SeverityError, ErrRange, "kv 0 is a shut valve, which cannot be modelled",
+				"a kv above 0: start the table at the first setting that passes water"))
+			ok = false
+		}
+	}
 	for i := 1; i < len(m.Settings); i++ {
 		if m.Settings[i] <= m.Settings[i-1] {
 			p.add(setRefs[i].problem(SeverityError, ErrRange, "settings must rise down the table",

@@ -180,7 +180,7 @@ var readingColumns = schema{name: "readings", columns: []column{
 
 var targetColumns = schema{name: "targets", columns: []column{
 	{name: "branch", typ: textCol, required: true, help: "branch id"},
-	{name: "target flow", typ: numCol, kind: units.Flow, unit: "l/s", required: true, what: "flow", lo: 0, hi: maxFlow,
+	{name: "target flow", typ: numCol, kind: units.Flow, unit: "l/s", required: true, what: "flow", lo: minFlow, hi: maxFlow,
 		help: "flow to balance to instead of the design flow"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
