@@ -175,11 +175,17 @@ type BranchFit struct {
 	// interval [Lo, Hi]; SD is the sd of ln Ratio. Determined reports that
 	// the readings (not the prior) fix it: posterior sd under half the
 	// prior's.
-	Fitted           bool
-	Ratio, Lo, Hi    float64
-	SD               float64
-	Determined       bool
-	HasValve         bool
+	Fitted        bool
+	Ratio, Lo, Hi float64
+	SD            float64
+	Determined    bool
+	HasValve      bool
+	// ValveAssumed reports a valve the readings cannot tell from the rest
+	// of its branch: Ratio then assumes the valve follows its table at the
+	// recorded settings. A valve more closed than recorded reads as a
+	// higher Ratio through a flow reading, and as a lower one through a
+	// valve differential (or a valve-meter flow).
+	ValveAssumed     bool
 	KvFitted         bool // the valve's Kv scale was fitted
 	KvScale          float64
 	KvLo, KvHi, KvSD float64
@@ -205,6 +211,9 @@ type ParamFit struct {
 type ReadingFit struct {
 	Index int // into Site.Readings
 	Pos   site.Pos
+	State string
+	Where string
+	What  site.Quantity
 	// Value and Predicted are in the reading's own quantity and SI unit;
 	// for a valve-meter flow Predicted is the flow the meter would show
 	// for the model's valve differential.

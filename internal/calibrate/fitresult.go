@@ -72,6 +72,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			c.Params.KvScale[i] = bf.KvScale
 			su.valveStates(p, i, &bf.Valve)
 		}
+		bf.ValveAssumed = b.Valve != nil && !bf.KvFitted
 		c.Branches[i] = bf
 	}
 	if p.hIdx >= 0 {
@@ -100,7 +101,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	c.Readings = make([]ReadingFit, len(s.Readings))
 	for ri := range s.Readings {
 		rd := &s.Readings[ri]
-		rf := ReadingFit{Index: ri, Pos: rd.Pos, Value: rd.Value, Predicted: math.NaN(), Residual: math.NaN(), Normalised: math.NaN()}
+		rf := ReadingFit{Index: ri, Pos: rd.Pos, State: rd.State, Where: rd.Where, What: rd.What, Value: rd.Value, Predicted: math.NaN(), Residual: math.NaN(), Normalised: math.NaN()}
 		switch k := su.byReading[ri]; {
 		case su.boundary[ri]:
 			rf.Boundary = true
@@ -168,5 +169,9 @@ func (r ReadingFit) String() string {
 	case r.Boundary:
 		tag = " (boundary)"
 	}
-	return fmt.Sprintf("%s: read %.4g, model %.4g, %+.2f sd%s", r.Pos, r.Value, r.Predicted, r.Normalised, tag)
+	at := fmt.Sprintf("%v at %s in state %q", r.What, r.Where, r.State)
+	if r.Pos.File != "" {
+		at = r.Pos.String() + ": " + at
+	}
+	return fmt.Sprintf("%s: read %.4g, model %.4g, %+.2f sd%s", at, r.Value, r.Predicted, r.Normalised, tag)
 }

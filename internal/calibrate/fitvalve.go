@@ -20,6 +20,12 @@ const (
 	// FollowsTable to be adopted: 6 on 2 ln B is "strong" (Kass & Raftery
 	// 1995, §3.2).
 	strongEvidence = 6.0
+	// suspectRatio: a branch whose fitted resistance ratio is beyond it (or
+	// its inverse) has its valve tested, as it is about to be flagged.
+	suspectRatio = 1.5
+	// tieScore: score differences under 2 are "not worth more than a bare
+	// mention" (Kass & Raftery 1995, §3.2).
+	tieScore = 2.0
 )
 
 // candidates returns the branches whose valve the hypothesis test should
@@ -45,6 +51,13 @@ func (su *setup) candidates(f *fitRun) []int {
 		}
 		suspect := worst[i] > suspectResidual || outlier[i]
 		if j := f.prob.kvIdx[i]; j >= 0 && math.Abs(f.res.X[j]) > suspectKv*su.opt.PriorKv {
+			suspect = true
+		}
+		// A branch about to be flagged whose valve could explain the
+		// readings as well: a valve more closed than recorded looks like a
+		// restricted branch through a flow and like a free one through a
+		// valve differential.
+		if j := f.prob.rIdx[i]; j >= 0 && math.Abs(f.res.X[j]) > math.Log(suspectRatio) {
 			suspect = true
 		}
 		if suspect {
@@ -132,6 +145,11 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 				best = h
 			}
 		}
+		if best == SetElsewhere && runs[HoldsOneKv] != nil && v.Score[HoldsOneKv]-v.Score[best] < tieScore && su.pinned(runs[best], i) {
+			// An offset that puts the valve against the end of its range
+			// in every state is a valve holding one Kv: say so.
+			best = HoldsOneKv
+		}
 		gain := v.Score[FollowsTable] - v.Score[best]
 		if best == FollowsTable || gain < strongEvidence {
 			v.Hypothesis = FollowsTable
@@ -148,6 +166,10 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 			v.Note = fmt.Sprintf("valve a consistent offset from its recorded settings in every state (score gain %.1f over the table, %.1f over a seized valve)", gain, v.Score[HoldsOneKv]-v.Score[best])
 		default:
 			v.Note = fmt.Sprintf("kv unchanged although the setting was moved (score gain %.1f over the table, %.1f over a consistent offset)", gain, v.Score[SetElsewhere]-v.Score[best])
+			if v.Score[SetElsewhere] >= v.Score[best] {
+				break
+			}
+			v.Note = fmt.Sprintf("kv unchanged although the setting was moved, at the end of the valve's range (score gain %.1f over the table; an offset past the end of the range fits as well)", gain)
 		}
 		next, err := su.run(ctx, runs[best].hyp, su.allObs(), runs[best], su.opt.OutlierZ)
 		if err != nil {
@@ -161,4 +183,41 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 		cur = next
 	}
 	return cur, nil
+}
+
+// pinned reports whether fit f's setting offset for branch i's valve puts
+// the valve at (its Kv within 1 % of the Kv there) or beyond one end of its
+// range in every state.
+func (su *setup) pinned(f *fitRun, i int) bool {
+	j := f.prob.kvIdx[i]
+	if j < 0 || f.prob.params[j].Kind != OffsetParam {
+		return false
+	}
+	v := su.m.Branches[i].Valve
+	lo, hi := v.Range()
+	kvLo, err1 := v.KvAt(lo)
+	kvHi, err2 := v.KvAt(hi)
+	if err1 != nil || err2 != nil {
+		return false
+	}
+	near := func(a, b float64) bool { return math.Abs(a/b-1) <= 0.01 }
+	end := 0.0 // the end every state sits at
+	for _, sn := range f.prob.states {
+		if len(sn.obs) == 0 {
+			continue
+		}
+		kv, err := v.KvAt(min(max(sn.st.Settings[i]+f.res.X[j], lo), hi))
+		if err != nil {
+			return false
+		}
+		switch {
+		case near(kv, kvHi) && end != kvLo:
+			end = kvHi
+		case near(kv, kvLo) && end != kvHi:
+			end = kvLo
+		default:
+			return false
+		}
+	}
+	return end != 0
 }
