@@ -69,7 +69,12 @@ type FitOptions struct {
 	// water at 20 °C would need 998.2.
 	MeterDensity float64
 	// MatrixFreeAbove is the number of parameters above which the fit runs
-	// matrix-free; 0: DefaultMatrixFreeAbove.
+	// matrix-free; 0: DefaultMatrixFreeAbove. Up to it the covariance is
+	// exact. Above it the branch variances are the engine's stochastic
+	// estimate (VarProbed; on a 1000-branch ladder read by flows the sd
+	// came out 1.4 % high on average, none more than 10 % low, up to 41 %
+	// high at the far end of the header) and the header and pump
+	// variances are recomputed exactly, one conjugate-gradient solve each.
 	MatrixFreeAbove int
 	// NoHypotheses skips the valve hypothesis tests.
 	NoHypotheses bool
@@ -245,7 +250,9 @@ type Calibration struct {
 	Iterations                  int
 	Status                      Status
 	Converged                   bool
-	Result                      *Result
+	// Result is the engine's outcome of the final fit; on the matrix-free
+	// path its header and pump variances and intervals are the exact ones.
+	Result *Result
 	// LogSD is the posterior sd of each branch's ln Ratio (0 for a branch
 	// without fixed parts), for the balancing plan's uncertainty.
 	LogSD []float64

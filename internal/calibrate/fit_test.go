@@ -385,3 +385,17 @@ func TestFitErrors(t *testing.T) {
 		})
 	}
 }
+
+// TestFitCancelled checks that a cancelled context stops the fit with the
+// context's error.
+func TestFitCancelled(t *testing.T) {
+	s := newPlantSite(t, plantSpec{branches: 4, arrangement: site.DirectReturn, seed: 1})
+	flowSurvey(s, "as-found")
+	m := mustModel(t, s)
+	simulate(t, m, newTruth(m), nil, 1)
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := Fit(ctx, m, nil); !errors.Is(err, context.Canceled) {
+		t.Errorf("Fit with a cancelled context: error %v, want %v", err, context.Canceled)
+	}
+}

