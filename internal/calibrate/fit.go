@@ -78,7 +78,14 @@ type FitOptions struct {
 	MatrixFreeAbove int
 	// NoHypotheses skips the valve hypothesis tests.
 	NoHypotheses bool
+	// MaxValveTests caps how many valves get the hypothesis test, the most
+	// suspect first (each test is two or three refits of the whole
+	// problem); 0: DefaultMaxValveTests.
+	MaxValveTests int
 }
+
+// DefaultMaxValveTests is the default cap on valve hypothesis tests.
+const DefaultMaxValveTests = 20
 
 func (o *FitOptions) withDefaults() (FitOptions, error) {
 	var out FitOptions
@@ -93,7 +100,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	if out.MeterDensity < 0 || math.IsNaN(out.MeterDensity) || math.IsInf(out.MeterDensity, 0) {
 		return out, fmt.Errorf("calibrate: meter density %g must be positive: %w", out.MeterDensity, ErrSettings)
 	}
-	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 {
+	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 || out.MaxValveTests < 0 {
 		return out, fmt.Errorf("calibrate: negative count: %w", ErrSettings)
 	}
 	def := func(p *float64, d float64) {
@@ -107,6 +114,9 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	def(&out.PriorPump, DefaultPriorPump)
 	if out.MatrixFreeAbove == 0 {
 		out.MatrixFreeAbove = DefaultMatrixFreeAbove
+	}
+	if out.MaxValveTests == 0 {
+		out.MaxValveTests = DefaultMaxValveTests
 	}
 	return out, nil
 }
@@ -320,6 +330,11 @@ func Fit(ctx context.Context, m *plant.Model, opt *FitOptions) (*Calibration, er
 		return nil, err
 	}
 	verdicts := make([]ValveVerdict, len(m.Branches))
+	nan := math.NaN()
+	for i := range verdicts {
+		verdicts[i].Score = [4]float64{nan, nan, nan, nan}
+		verdicts[i].ChiSquare = verdicts[i].Score
+	}
 	fin := base
 	if !o.NoHypotheses {
 		if fin, err = su.hypotheses(ctx, base, verdicts); err != nil {

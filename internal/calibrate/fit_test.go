@@ -362,6 +362,8 @@ func TestFitErrors(t *testing.T) {
 	}{
 		{"negative prior", nil, &FitOptions{PriorKv: -1}, ErrSettings},
 		{"NaN meter density", nil, &FitOptions{MeterDensity: math.NaN()}, ErrSettings},
+		{"negative valve tests", nil, &FitOptions{MaxValveTests: -1}, ErrSettings},
+		{"no readings", func(s *site.Site) { s.Readings = nil }, nil, ErrSurvey},
 		{"zero sigma", func(s *site.Site) { s.Readings[0].Sigma = 0 }, nil, ErrSurvey},
 		{"NaN value", func(s *site.Site) { s.Readings[0].Value = math.NaN() }, nil, ErrSurvey},
 		{"valve meter without valve", func(s *site.Site) {

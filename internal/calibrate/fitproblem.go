@@ -270,8 +270,8 @@ func (p *problem) solve(sn *stateNet, pp plant.Params) error {
 // Residuals implements Problem.
 func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 	for j, v := range x {
-		if !(math.Abs(v) <= maxLog) && p.params[j].Kind != OffsetParam || math.IsNaN(v) || math.IsInf(v, 0) {
-			return fmt.Errorf("log-multiplier %g beyond ±%d: %w", v, maxLog, ErrDomain)
+		if !finite(v) || p.params[j].Kind != OffsetParam && math.Abs(v) > maxLog {
+			return fmt.Errorf("%v parameter %g beyond ±%d: %w", p.params[j].Kind, v, maxLog, ErrDomain)
 		}
 	}
 	p.x = append(p.x[:0], x...)

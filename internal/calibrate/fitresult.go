@@ -10,11 +10,12 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	m, p, res := su.m, f.prob, f.res
 	// Bring every state to the fitted point for the predictions.
 	r := make([]float64, len(p.obs))
+	before := p.solves
 	if err := p.Residuals(res.X, r, nil); err != nil {
 		return nil, fmt.Errorf("calibrate: evaluating the fit: %w", err)
 	}
 	exactHubVariances(p, res)
-	su.solves += p.solves
+	su.solves += p.solves - before
 	nb := len(m.Branches)
 	c := &Calibration{
 		Params: m.Design(), Branches: make([]BranchFit, nb), States: m.StateLabels(),

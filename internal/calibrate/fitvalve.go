@@ -90,17 +90,19 @@ func score(f *fitRun) float64 {
 // returns the fit with the adopted hypotheses; verdicts are filled for
 // every valve with evidence.
 func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveVerdict) (*fitRun, error) {
-	nan := math.NaN()
 	for i := range verdicts {
 		if su.evidence[i] {
 			verdicts[i].Hypothesis = FollowsTable
 			verdicts[i].Note = "readings agree with the valve's table: not tested further"
 		}
-		verdicts[i].Score = [4]float64{nan, nan, nan, nan}
-		verdicts[i].ChiSquare = verdicts[i].Score
 	}
 	cur := base
-	for _, i := range su.candidates(base) {
+	cands := su.candidates(base)
+	for k, i := range cands {
+		if k >= su.opt.MaxValveTests {
+			verdicts[i].Note = fmt.Sprintf("suspect, but not tested: only the %d most suspect valves are", su.opt.MaxValveTests)
+			continue
+		}
 		// Compare the hypotheses on one set of readings with the outlier
 		// test off: the current outliers stay out, except those at this
 		// branch, which a hypothesis about its valve may explain.
