@@ -5,7 +5,10 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"time"
+
+	"gonum.org/v1/gonum/stat/distuv"
 
 	"flowset/internal/balance"
 	"flowset/internal/calibrate"
@@ -93,6 +96,11 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	j.Before = before
 	j.Evidence = evidence(l, j.Cal, before, j.Params)
 	j.Findings = diagnose.Check(j.Evidence, readingEvidence(l, j.Cal), opts.Thresholds)
+	if j.Cal == nil {
+		// Without a fit every branch is undetermined and there is no
+		// posterior to quote; the plan says once that it is from design.
+		j.Findings = slices.DeleteFunc(j.Findings, func(f diagnose.Finding) bool { return f.Code == diagnose.Undetermined })
+	}
 
 	pr.step("planning valve settings for %d branches", len(m.Branches))
 	bo := &balance.Options{Scale: opts.Scale}
@@ -114,6 +122,24 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 	j.After = after
 	return j, nil
+}
+
+// fitWarning says, when the fit is far worse than the readings' stated
+// uncertainties allow, that the model and readings disagree, so a plan from
+// them is not taken on trust; "" otherwise. The test is the chi-square
+// goodness of fit, Q = P(chi2_dof > chi2) below 0.001 calling the model or
+// the uncertainties into question (Press et al., Numerical Recipes, 3rd ed.,
+// §15.1; threshold from memory).
+func fitWarning(c *calibrate.Calibration) string {
+	if c == nil || c.DOF <= 0 || !(c.ChiSquare >= 0) {
+		return ""
+	}
+	q := distuv.ChiSquared{K: float64(c.DOF)}.Survival(c.ChiSquare)
+	if q >= 1e-3 {
+		return ""
+	}
+	return fmt.Sprintf("the readings disagree with the model far beyond their stated uncertainties (chi-square %.1f on %d degrees of freedom, probability below 0.001): check units, the boundary (set point or pump curve) and the suspect readings before trusting the plan",
+		c.ChiSquare, c.DOF)
 }
 
 // planParams are the calibrated multipliers the plan works on. A valve found

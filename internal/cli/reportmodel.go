@@ -80,10 +80,20 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		sum.SetpointAfter = fmt.Sprintf("%.1f kPa at %s", pp.SetPoint*toDiff, sensorName(pp.Sensor))
 	}
 	if pp.HaveBefore && pp.ElectricalBefore > 0 {
-		sum.EnergySaving = fmt.Sprintf("pump electrical power %.2f kW -> %.2f kW (%.0f %%), about %.0f kWh a year",
-			pp.ElectricalBefore/1e3, pp.ElectricalAfter/1e3, 100*(pp.ElectricalAfter/pp.ElectricalBefore-1), pp.AnnualEnergySaving)
+		// A change in percent of a power that rounds to nothing (a
+		// boundary of a few Pa) would be a meaningless huge number.
+		change := ""
+		if pp.ElectricalBefore >= 1 {
+			change = fmt.Sprintf(" (%.0f %%)", round0(100*(pp.ElectricalAfter/pp.ElectricalBefore-1)))
+		}
+		format, scale := "%.2f kW", 1e-3
+		if max(pp.ElectricalBefore, pp.ElectricalAfter) < 1000 {
+			format, scale = "%.0f W", 1
+		}
+		sum.EnergySaving = fmt.Sprintf("pump electrical power "+format+" -> "+format+"%s, about %.0f kWh a year",
+			pp.ElectricalBefore*scale, pp.ElectricalAfter*scale, change, round0(pp.AnnualEnergySaving))
 		if !math.IsNaN(pp.AnnualCostSaving) {
-			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", pp.AnnualCostSaving, pp.Currency)
+			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", round0(pp.AnnualCostSaving), pp.Currency)
 		}
 	}
 	sum.Notes = append(sum.Notes, plan.Summary()...)
@@ -91,6 +101,9 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		sum.Notes = append(sum.Notes, "No readings: everything here comes from the design data alone.")
 	} else if !j.Cal.Converged {
 		sum.Notes = append(sum.Notes, fmt.Sprintf("The calibration stopped without converging (%s): treat its figures with care.", j.Cal.Status))
+	}
+	if w := fitWarning(j.Cal); w != "" {
+		sum.Notes = append(sum.Notes, "Warning: "+w+".")
 	}
 
 	// Branches.
@@ -263,3 +276,7 @@ func measuredSentence(s *site.Site) string {
 	}
 	return fmt.Sprintf("%d readings in %d survey state(s): %s.", sum.Readings, len(sum.States), strings.Join(parts, ", "))
 }
+
+// round0 rounds x to a whole number without a negative zero, which %.0f
+// would print as "-0".
+func round0(x float64) float64 { return math.Round(x) + 0 }

@@ -300,12 +300,21 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) error {
 }
 
 func printFit(w io.Writer, j *job) {
-	if j.Cal == nil {
+	switch c := j.Cal; {
+	case c == nil && len(j.L.Site.Readings) > 0:
+		fmt.Fprintln(w, "design only: the readings are not used; the model stays at design")
+	case c == nil:
 		fmt.Fprintln(w, "no readings: nothing to fit; the model stays at design")
-	} else {
-		c := j.Cal
+	case c.DOF <= 0:
+		// With no degrees of freedom left a reduced chi-square is undefined.
+		fmt.Fprintf(w, "calibration: %s after %d iterations, chi-square %.1f with no degrees of freedom left (as many effective parameters as readings), so the fit cannot be tested\n\n",
+			c.Status, c.Iterations, c.ChiSquare)
+	default:
 		fmt.Fprintf(w, "calibration: %s after %d iterations, chi-square %.1f on %d degrees of freedom (reduced %.2f)\n\n",
 			c.Status, c.Iterations, c.ChiSquare, c.DOF, c.ReducedChiSquare)
+	}
+	if note := fitWarning(j.Cal); note != "" {
+		fmt.Fprintf(w, "warning: %s\n\n", note)
 	}
 	h, rows := j.fitRows()
 	cols := []int{0, 1, 2, 3, 5, 7, 8, 9}

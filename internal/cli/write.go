@@ -215,6 +215,12 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 	}
 	out.Status, out.Converged, out.Iterations = c.Status.String(), c.Converged, c.Iterations
 	out.ChiSquare, out.ReducedChiSquare, out.DOF = num(c.ChiSquare), num(c.ReducedChiSquare), c.DOF
+	if c.DOF <= 0 {
+		out.ReducedChiSquare = num(nan()) // undefined without degrees of freedom
+	}
+	if w := fitWarning(c); w != "" {
+		out.Notes = append(out.Notes, w)
+	}
 	out.Header, out.Pump, out.States = paramOut(c.Header), paramOut(c.Pump), c.States
 	for i, b := range c.Branches {
 		out.Branches = append(out.Branches, branchFitJSON{ID: b.ID, Fitted: b.Fitted, Ratio: num(b.Ratio), Lo95: num(b.Lo), Hi95: num(b.Hi),
