@@ -56,6 +56,66 @@ func TestFrictionFactorColebrook(t *testing.T) {
 	}
 }
 
+// newtonColebrook solves the Colebrook-White equation for x = 1/√f by plain
+// Newton iteration from x = 8 until the iterate repeats, independently of
+// the production start and step.
+func newtonColebrook(re, rr float64) float64 {
+	a, b := rr/3.7, 2.51/re
+	x := 8.0
+	for range 200 {
+		s := a + b*x
+		next := x - (x+2*math.Log10(s))/(1+2*b/(s*math.Ln10))
+		if next == x {
+			break
+		}
+		x = next
+	}
+	return 1 / (x * x)
+}
+
+// TestColebrookMachinePrecision checks the two-step solution over a dense
+// grid of the Moody chart and beyond (Re 4000 to 1e9, ε/D 0 and 1e-8 to
+// 0.1) against Newton's method run to its fixed point: they must agree to a
+// few ulp (4e-15 relative, the spread of two correctly converged float64
+// solutions), and the equation's residual must vanish to rounding.
+func TestColebrookMachinePrecision(t *testing.T) {
+	rrs := []float64{0}
+	for e := -8.0; e <= -1; e += 0.125 {
+		rrs = append(rrs, math.Pow(10, e))
+	}
+	var worst float64
+	for _, rr := range rrs {
+		for e := math.Log10(TurbulentLimit); e <= 9; e += 1.0 / 64 {
+			re := math.Pow(10, e)
+			f, err := FrictionFactor(re, rr)
+			if err != nil {
+				t.Fatalf("FrictionFactor(%g, %g): %v", re, rr, err)
+			}
+			want := newtonColebrook(re, rr)
+			worst = max(worst, relErr(f, want))
+			if relErr(f, want) > 4e-15 {
+				t.Errorf("FrictionFactor(%g, %g) = %.17g, Newton to convergence %.17g (rel %.2g)", re, rr, f, want, relErr(f, want))
+			}
+			x := 1 / math.Sqrt(f)
+			if res := x + 2*math.Log10(rr/3.7+2.51*x/re); math.Abs(res) > 1e-13*x {
+				t.Errorf("Colebrook residual at Re=%g, eps/D=%g: %g", re, rr, res)
+			}
+		}
+	}
+	t.Logf("largest relative difference from Newton: %.2g", worst)
+}
+
+// TestLnApprox checks the starting-point logarithm against math.Log within
+// its stated 1e-3 over the Reynolds numbers colebrook sees and beyond.
+func TestLnApprox(t *testing.T) {
+	for e := 0.0; e <= 300; e += 0.01 {
+		x := math.Pow(10, e)
+		if d := math.Abs(lnApprox(x) - math.Log(x)); d > 1e-3 {
+			t.Errorf("lnApprox(%g) = %g, math.Log %g (error %.2g > 1e-3)", x, lnApprox(x), math.Log(x), d)
+		}
+	}
+}
+
 func TestFrictionFactorLaminar(t *testing.T) {
 	// Hagen-Poiseuille, closed form: f = 64/Re.
 	for _, re := range []float64{1e-3, 1, 100, 1000, 2000} {
