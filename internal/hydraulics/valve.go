@@ -3,6 +3,8 @@ package hydraulics
 import (
 	"fmt"
 	"math"
+	"reflect"
+	"slices"
 	"sort"
 
 	"flowset/internal/fluid"
@@ -46,10 +48,58 @@ const (
 // interpolating Kv linearly overestimates it near closed; the monotone cubic,
 // because it never overshoots (so SettingFor has a unique answer) and has a
 // continuous slope for the balancing and calibration solvers.
+//
+// A Table written as a literal works out ln Kv and the node slopes, and
+// validates itself, on every call. NewTable does that once; its result gives
+// the same values faster.
 type Table struct {
 	Settings []float64 // strictly increasing
 	Kv       []float64 // m3/h at 1 bar, positive and non-decreasing
 	Step     float64   // handwheel resolution in setting units; 0 = continuous
+
+	pre *tablePre // set by NewTable
+}
+
+// tablePre is what NewTable works out once, with the slices and step it was
+// worked out for: a copy of the Table given other slices or another step
+// falls back to computing on each call.
+type tablePre struct {
+	settings, kv *float64 // first elements of Settings and Kv
+	n            int
+	step         float64
+	lnKv, slope  []float64 // ln Kv and the interpolant's slope at each point
+}
+
+// NewTable returns a validated table of copies of settings and kv, with ln
+// Kv and the slopes of the interpolant at the points worked out once. Its
+// methods give the same values as those of the literal Table{settings, kv,
+// step}, without the per-call validation and logarithms. The elements of the
+// returned table's slices must not be modified (assigning new slices or a
+// new Step is noticed and falls back to the literal's behaviour).
+func NewTable(settings, kv []float64, step float64) (Table, error) {
+	t := Table{Settings: slices.Clone(settings), Kv: slices.Clone(kv), Step: step}
+	if err := t.Validate(); err != nil {
+		return Table{}, err
+	}
+	n := len(t.Settings)
+	pre := &tablePre{settings: &t.Settings[0], kv: &t.Kv[0], n: n, step: step, lnKv: make([]float64, n), slope: make([]float64, n)}
+	for i, v := range t.Kv {
+		pre.lnKv[i] = math.Log(v)
+	}
+	for i := range n {
+		pre.slope[i] = t.nodeSlope(i)
+	}
+	t.pre = pre
+	return t, nil
+}
+
+// prepared returns the precomputed values when they still describe t.
+func (t Table) prepared() *tablePre {
+	p := t.pre
+	if p == nil || len(t.Settings) != p.n || len(t.Kv) != p.n || &t.Settings[0] != p.settings || &t.Kv[0] != p.kv || t.Step != p.step {
+		return nil
+	}
+	return p
 }
 
 // Validate reports whether the table can be interpolated.
@@ -98,8 +148,10 @@ func (t Table) KvAt(setting float64) (float64, error) {
 
 // KvSlope returns Kv at setting and its derivative dKv/dsetting.
 func (t Table) KvSlope(setting float64) (kv, slope float64, err error) {
-	if err := t.Validate(); err != nil {
-		return 0, 0, err
+	if t.prepared() == nil {
+		if err := t.Validate(); err != nil {
+			return 0, 0, err
+		}
 	}
 	lo, hi := t.Range()
 	if !(setting >= lo && setting <= hi) {
@@ -160,9 +212,14 @@ func (t Table) nodeSlope(k int) float64 {
 
 // eval returns ln Kv and d(ln Kv)/ds at s on segment k.
 func (t Table) eval(k int, s float64) (y, dy float64) {
+	var y0, y1, m0, m1 float64
+	if p := t.prepared(); p != nil {
+		y0, y1, m0, m1 = p.lnKv[k], p.lnKv[k+1], p.slope[k], p.slope[k+1]
+	} else {
+		y0, y1 = math.Log(t.Kv[k]), math.Log(t.Kv[k+1])
+		m0, m1 = t.nodeSlope(k), t.nodeSlope(k+1)
+	}
 	x0, x1 := t.Settings[k], t.Settings[k+1]
-	y0, y1 := math.Log(t.Kv[k]), math.Log(t.Kv[k+1])
-	m0, m1 := t.nodeSlope(k), t.nodeSlope(k+1)
 	h := x1 - x0
 	u := (s - x0) / h
 	u2, u3 := u*u, u*u*u
@@ -174,8 +231,10 @@ func (t Table) eval(k int, s float64) (y, dy float64) {
 // SettingFor implements Characteristic: the lowest setting whose interpolated
 // Kv equals kv, found by bisection on the monotone interpolant.
 func (t Table) SettingFor(kv float64) (float64, error) {
-	if err := t.Validate(); err != nil {
-		return 0, err
+	if t.prepared() == nil {
+		if err := t.Validate(); err != nil {
+			return 0, err
+		}
 	}
 	n := len(t.Kv)
 	if !(kv >= t.Kv[0] && kv <= t.Kv[n-1]) {
@@ -207,8 +266,10 @@ func (t Table) SettingFor(kv float64) (float64, error) {
 // Settings within 1e-9 step of a mark count as on it. With Step 0 the
 // setting is returned unchanged.
 func (t Table) Round(setting float64, dir RoundDir) (float64, error) {
-	if err := t.Validate(); err != nil {
-		return 0, err
+	if t.prepared() == nil {
+		if err := t.Validate(); err != nil {
+			return 0, err
+		}
 	}
 	lo, hi := t.Range()
 	if !(setting >= lo && setting <= hi) {
@@ -358,6 +419,9 @@ const LeakageFraction = 1e-4
 // Valve is a balancing or control valve at a fixed setting. Its drop follows
 // KvDrop with Kv = Char.KvAt(Setting) × KvScale, but never below the leakage
 // Kv (LeakageFraction of Kv at the top of the range, × KvScale).
+//
+// A Valve written as a literal asks its characteristic for both flow
+// coefficients on every Drop; NewValve asks once.
 type Valve struct {
 	Char    Characteristic
 	Setting float64
@@ -365,6 +429,71 @@ type Valve struct {
 	// as the valve's Kv offset. 0 means 1 so the zero value is a nominal
 	// valve.
 	KvScale float64
+
+	memo valveMemo // set by NewValve
+}
+
+// valveMemo holds the flow coefficients NewValve worked out and what they
+// were worked out from, so a copy with another Char, Setting or KvScale is
+// noticed and computes afresh.
+type valveMemo struct {
+	char           Characteristic
+	setting, scale float64
+	kv, leak       float64 // Kv() and LeakageKv(); 0 when not worked out
+}
+
+// NewValve returns the valve of characteristic c at a setting and Kv scale
+// (0 means 1) with its flow coefficient and leakage Kv worked out once, so
+// Drop costs no more than FixedKv's. It gives the same values as the literal
+// Valve{Char: c, Setting: setting, KvScale: kvScale}, which it also returns,
+// without the memo, when Validate fails (its Drop then returns NaN).
+//
+// The memo is keyed on Char, Setting and KvScale: changing any of them on
+// a copy is safe. A characteristic must not change its values in place
+// (a Table's slice elements, a pointer's target) after NewValve.
+func NewValve(c Characteristic, setting, kvScale float64) (Valve, error) {
+	v := Valve{Char: c, Setting: setting, KvScale: kvScale}
+	if err := v.Validate(); err != nil {
+		return v, err
+	}
+	kv, err := v.Kv()
+	if err != nil {
+		return v, err
+	}
+	leak, err := v.LeakageKv()
+	if err != nil {
+		return v, err
+	}
+	v.memo = valveMemo{char: c, setting: setting, scale: kvScale, kv: kv, leak: leak}
+	return v, nil
+}
+
+// memoized returns the valve's memo when it still describes the valve.
+func (v *Valve) memoized() *valveMemo {
+	m := &v.memo
+	if m.kv > 0 && m.setting == v.Setting && m.scale == v.KvScale && sameChar(m.char, v.Char) {
+		return m
+	}
+	return nil
+}
+
+// sameChar reports whether a and b are the same characteristic without
+// comparing values Go cannot compare: tables by their slices and step,
+// other comparable types by ==, anything else as different.
+func sameChar(a, b Characteristic) bool {
+	if ta, ok := a.(Table); ok {
+		tb, ok := b.(Table)
+		return ok && ta.Step == tb.Step && sameSlice(ta.Settings, tb.Settings) && sameSlice(ta.Kv, tb.Kv)
+	}
+	if a == nil || !reflect.TypeOf(a).Comparable() {
+		return false
+	}
+	return a == b
+}
+
+// sameSlice reports whether x and y are the same slice of one array.
+func sameSlice(x, y []float64) bool {
+	return len(x) == len(y) && (len(x) == 0 || &x[0] == &y[0])
 }
 
 func (v Valve) scale() float64 {
@@ -390,6 +519,9 @@ func (v Valve) Validate() error {
 // Kv returns the valve's effective flow coefficient Char.KvAt(Setting) ×
 // KvScale, without the leakage floor.
 func (v Valve) Kv() (float64, error) {
+	if m := v.memoized(); m != nil {
+		return m.kv, nil
+	}
 	if v.Char == nil {
 		return 0, fmt.Errorf("valve: no characteristic: %w", ErrInvalid)
 	}
@@ -402,6 +534,9 @@ func (v Valve) Kv() (float64, error) {
 
 // LeakageKv returns the Kv the valve passes when closed.
 func (v Valve) LeakageKv() (float64, error) {
+	if m := v.memoized(); m != nil {
+		return m.leak, nil
+	}
 	if v.Char == nil {
 		return 0, fmt.Errorf("valve: no characteristic: %w", ErrInvalid)
 	}
@@ -428,6 +563,9 @@ func (v Valve) IsClosed() bool {
 // the leakage floor dp ∝ 1/KvScale², so d(dp)/d(KvScale) = -2 dp/KvScale
 // for the calibration.
 func (v Valve) Drop(q float64, f fluid.State) (dp, slope float64) {
+	if m := v.memoized(); m != nil {
+		return KvDrop(q, max(m.kv, m.leak), f.Density)
+	}
 	kv, err := v.Kv()
 	if err != nil {
 		return math.NaN(), math.NaN()

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 	"testing"
 )
@@ -303,6 +304,180 @@ func TestValveClosed(t *testing.T) {
 	}
 }
 
+// TestNewTableSameValues checks that a table made by NewTable gives
+// bit-for-bit the values of the literal table (whose interpolation the
+// tests above check against closed forms), and that it owns copies of its
+// points.
+func TestNewTableSameValues(t *testing.T) {
+	for name, lit := range map[string]Table{
+		"handwheel":  handwheel(),
+		"two points": {Settings: []float64{0, 10}, Kv: []float64{1, 4}},
+		"flat part":  {Settings: []float64{0, 1, 2, 3}, Kv: []float64{0.5, 1, 1, 2}, Step: 0.5},
+	} {
+		t.Run(name, func(t *testing.T) {
+			settings, kv := slices.Clone(lit.Settings), slices.Clone(lit.Kv)
+			tb, err := NewTable(settings, kv, lit.Step)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if tb.prepared() == nil {
+				t.Fatal("NewTable kept no precomputed values")
+			}
+			settings[0], kv[0] = -1, 1e9 // the caller's slices are not the table's
+			lo, hi := lit.Range()
+			for i := range 1001 {
+				s := lo + (hi-lo)*float64(i)/1000
+				k1, d1, err1 := lit.KvSlope(s)
+				k2, d2, err2 := tb.KvSlope(s)
+				if k1 != k2 || d1 != d2 || err1 != nil || err2 != nil {
+					t.Fatalf("KvSlope(%g): literal %v %v %v, NewTable %v %v %v", s, k1, d1, err1, k2, d2, err2)
+				}
+				b1, err1 := lit.SettingFor(k1)
+				b2, err2 := tb.SettingFor(k1)
+				if b1 != b2 || err1 != nil || err2 != nil {
+					t.Fatalf("SettingFor(%g): literal %v %v, NewTable %v %v", k1, b1, err1, b2, err2)
+				}
+				r1, _ := lit.Round(s, RoundUp)
+				r2, _ := tb.Round(s, RoundUp)
+				if r1 != r2 {
+					t.Fatalf("Round(%g): literal %v, NewTable %v", s, r1, r2)
+				}
+			}
+			for _, s := range []float64{lo - 0.1, hi + 0.1, math.NaN()} {
+				if _, err := tb.KvAt(s); !errors.Is(err, ErrOutOfRange) {
+					t.Errorf("KvAt(%g) error = %v, want ErrOutOfRange", s, err)
+				}
+			}
+		})
+	}
+}
+
+// TestNewTableChanged checks that a copy of a NewTable table given other
+// points or a bad step behaves as the literal table with those values.
+func TestNewTableChanged(t *testing.T) {
+	hw := handwheel()
+	tb, err := NewTable(hw.Settings, hw.Kv, hw.Step)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := tb
+	c.Kv = []float64{0.2, 0.5, 0.84, 1.26, 2.2, 3.4, 4.8, 6.2, 7.4, 8.2} // twice the handwheel
+	if got, _ := c.KvAt(3); relErr(got, 2.2) > 1e-14 {
+		t.Errorf("copy with new Kv: KvAt(3) = %g, want 2.2", got)
+	}
+	c = tb
+	c.Settings = c.Settings[:5]
+	c.Kv = c.Kv[:5]
+	if _, err := c.KvAt(3.5); !errors.Is(err, ErrOutOfRange) {
+		t.Errorf("copy cut to 5 points: KvAt(3.5) error = %v, want ErrOutOfRange", err)
+	}
+	c = tb
+	c.Step = -1
+	if _, err := c.KvAt(3); !errors.Is(err, ErrInvalid) {
+		t.Errorf("copy with step -1: KvAt error = %v, want ErrInvalid", err)
+	}
+	for name, bad := range map[string][2][]float64{
+		"one point":  {{1}, {1}},
+		"decreasing": {{1, 2}, {2, 1}},
+	} {
+		if _, err := NewTable(bad[0], bad[1], 0); !errors.Is(err, ErrInvalid) {
+			t.Errorf("NewTable %s: error = %v, want ErrInvalid", name, err)
+		}
+	}
+}
+
+// TestNewValveSameValues checks that NewValve's valve gives bit-for-bit
+// what the literal valve gives (checked against KvDrop above), including at
+// the leakage floor, and that copies with another setting, scale or
+// characteristic are worked out afresh.
+func TestNewValveSameValues(t *testing.T) {
+	hw := handwheel()
+	prep, err := NewTable(hw.Settings, hw.Kv, hw.Step)
+	if err != nil {
+		t.Fatal(err)
+	}
+	leaky := Table{Settings: []float64{0, 1, 2}, Kv: []float64{1e-9, 0.5, 2}}
+	inh := Inherent{Kind: EqualPercentage, Kvs: 4, Rangeability: 50}
+	cases := []struct {
+		name  string
+		char  Characteristic
+		set   float64
+		scale float64
+	}{
+		{"table", hw, 3.3, 0},
+		{"NewTable", prep, 0.5, 1.1},
+		{"closed", leaky, 0, 0.8},
+		{"inherent", inh, 0.6, 1},
+	}
+	same := func(t *testing.T, what string, got, want Valve) {
+		t.Helper()
+		for _, q := range []float64{-1e-3, -2e-5, 0, 3e-6, 4e-4} {
+			d1, s1 := want.Drop(q, water20)
+			d2, s2 := got.Drop(q, water20)
+			if d1 != d2 || s1 != s2 {
+				t.Errorf("%s: Drop(%g) = %v, %v; literal %v, %v", what, q, d2, s2, d1, s1)
+			}
+		}
+		k1, err1 := want.Kv()
+		k2, err2 := got.Kv()
+		l1, _ := want.LeakageKv()
+		l2, _ := got.LeakageKv()
+		if k1 != k2 || (err1 == nil) != (err2 == nil) || l1 != l2 || want.IsClosed() != got.IsClosed() {
+			t.Errorf("%s: Kv %v %v, leakage %v, closed %v; literal %v %v, %v, %v", what, k2, err2, l2, got.IsClosed(), k1, err1, l1, want.IsClosed())
+		}
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			v, err := NewValve(tc.char, tc.set, tc.scale)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if v.memoized() == nil {
+				t.Error("NewValve kept no memo")
+			}
+			same(t, "NewValve", v, Valve{Char: tc.char, Setting: tc.set, KvScale: tc.scale})
+			c := v
+			c.Setting = tc.set + 0.25
+			if c.memoized() != nil {
+				t.Error("copy with a new setting uses the old memo")
+			}
+			same(t, "copy with new setting", c, Valve{Char: tc.char, Setting: c.Setting, KvScale: tc.scale})
+			c = v
+			c.KvScale = 0.5
+			same(t, "copy with new scale", c, Valve{Char: tc.char, Setting: tc.set, KvScale: 0.5})
+			c = v
+			c.Char = Inherent{Kind: Linear, Kvs: 9, Rangeability: 30}
+			c.Setting = 0.5
+			same(t, "copy with new characteristic", c, Valve{Char: c.Char, Setting: 0.5, KvScale: tc.scale})
+		})
+	}
+	// A table copy with other points is another characteristic.
+	v, err := NewValve(prep, 3, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	other := prep
+	other.Kv = slices.Clone(prep.Kv)
+	other.Kv[4] = 1.2
+	v.Char = other
+	same(t, "table copy with new points", v, Valve{Char: other, Setting: 3, KvScale: 1})
+	// Invalid: the literal valve back, an error, NaN from Drop.
+	for name, bad := range map[string][3]float64{"out of range": {9, 1}, "negative scale": {1, -1}, "NaN setting": {math.NaN(), 1}} {
+		v, err := NewValve(hw, bad[0], bad[1])
+		if !errors.Is(err, ErrInvalid) && !errors.Is(err, ErrOutOfRange) {
+			t.Errorf("%s: NewValve error = %v", name, err)
+		}
+		if name != "negative scale" {
+			if dp, _ := v.Drop(1e-4, water20); !math.IsNaN(dp) {
+				t.Errorf("%s: Drop = %g, want NaN", name, dp)
+			}
+		}
+	}
+	if _, err := NewValve(nil, 0, 1); !errors.Is(err, ErrInvalid) {
+		t.Errorf("NewValve(nil) error = %v, want ErrInvalid", err)
+	}
+}
+
 func TestAuthority(t *testing.T) {
 	// Engineering Toolbox worked example (references §3.5): circuit 15 kPa,
 	// valve 60 kPa -> N = 0.8.
@@ -370,16 +545,49 @@ func ExampleTable_SettingFor() {
 }
 
 func BenchmarkValveDrop(b *testing.B) {
-	v := Valve{Char: handwheel(), Setting: 3.3}
-	b.Run("table n=10", func(b *testing.B) {
-		for b.Loop() {
-			v.Drop(3e-4, water20)
+	hw := handwheel()
+	prep, err := NewTable(hw.Settings, hw.Kv, hw.Step)
+	if err != nil {
+		b.Fatal(err)
+	}
+	inh := Inherent{Kind: EqualPercentage, Kvs: 4, Rangeability: 50}
+	memo := func(c Characteristic, s float64) Valve {
+		v, err := NewValve(c, s, 1)
+		if err != nil {
+			b.Fatal(err)
 		}
-	})
-	v = Valve{Char: Inherent{Kind: EqualPercentage, Kvs: 4, Rangeability: 50}, Setting: 0.6}
-	b.Run("inherent", func(b *testing.B) {
-		for b.Loop() {
-			v.Drop(3e-4, water20)
-		}
-	})
+		return v
+	}
+	for _, bc := range []struct {
+		name string
+		v    Valve
+	}{
+		{"table n=10", Valve{Char: hw, Setting: 3.3}},
+		{"NewTable n=10", Valve{Char: prep, Setting: 3.3}},
+		{"inherent", Valve{Char: inh, Setting: 0.6}},
+		{"NewValve", memo(hw, 3.3)},
+	} {
+		b.Run(bc.name, func(b *testing.B) {
+			for b.Loop() {
+				bc.v.Drop(3e-4, water20)
+			}
+		})
+	}
+}
+
+func BenchmarkTableSettingFor(b *testing.B) {
+	hw := handwheel()
+	prep, err := NewTable(hw.Settings, hw.Kv, hw.Step)
+	if err != nil {
+		b.Fatal(err)
+	}
+	for name, tb := range map[string]Table{"literal": hw, "NewTable": prep} {
+		b.Run(name, func(b *testing.B) {
+			for b.Loop() {
+				if _, err := tb.SettingFor(1.37); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
 }
