@@ -296,8 +296,8 @@ func pipeBore(standard, size string, bore, rough float64) (float64, float64, err
 // Generic characteristics take their setting in % of travel.
 func Characteristic(vm *site.ValveModel) (hydraulics.Characteristic, error) {
 	if vm.Table() {
-		t := hydraulics.Table{Settings: vm.Settings, Kv: vm.Kv, Step: vm.Step}
-		if err := t.Validate(); err != nil {
+		t, err := hydraulics.NewTable(vm.Settings, vm.Kv, vm.Step)
+		if err != nil {
 			return nil, fmt.Errorf("valve %q: %w", vm.Name, err)
 		}
 		return t, nil
@@ -486,13 +486,15 @@ func (m *Model) FixedElement(i int, r float64) hydraulics.Element {
 }
 
 // ValveElement returns branch i's balancing valve at a setting and Kv scale,
-// or nil when it has none.
+// or nil when it has none. The valve works out its Kv once (an invalid one
+// is kept as it is, and its Drop gives NaN for the solver to report).
 func (m *Model) ValveElement(i int, setting, kvScale float64) hydraulics.Element {
 	b := &m.Branches[i]
 	if b.Valve == nil {
 		return nil
 	}
-	return hydraulics.Valve{Char: b.Valve, Setting: setting, KvScale: kvScale}
+	v, _ := hydraulics.NewValve(b.Valve, setting, kvScale)
+	return v
 }
 
 // Elements returns branch i's series parts for given multipliers and setting.
