@@ -325,7 +325,7 @@ func Fit(ctx context.Context, m *plant.Model, opt *FitOptions) (*Calibration, er
 			hyp[i] = FollowsTable
 		}
 	}
-	base, err := su.run(ctx, hyp, su.allObs(), nil, o.OutlierZ)
+	base, err := su.run(ctx, hyp, su.allObs(), nil, o.OutlierZ, false)
 	if err != nil {
 		return nil, err
 	}
@@ -572,6 +572,9 @@ type fitRun struct {
 	sel  []int // the observations fitted (indices into setup.obs)
 	prob *problem
 	res  *Result
+	// parent is the fit a local refit held its other parameters at (nil
+	// for a full fit).
+	parent *fitRun
 }
 
 // newProblem builds the problem of hypotheses hyp over observations sel.
@@ -615,11 +618,25 @@ func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []in
 }
 
 // run fits hypotheses hyp to observations sel, starting from the values of
-// matching parameters in from (design where none).
-func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64) (*fitRun, error) {
+// matching parameters in from (design where none). With estimateOnly the
+// fit stops at the estimate and its chi-square (a hypothesis comparison
+// needs no covariance).
+func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64, estimateOnly bool) (*fitRun, error) {
+	return su.runLocal(ctx, hyp, sel, from, outlierZ, estimateOnly, -1)
+}
+
+// runLocal is run with, for local >= 0, only branch local's parameters
+// fitted and every other parameter held at its value in from. A valve
+// hypothesis concerns one valve: refitting its own branch against the rest
+// of the fitted plant costs a few network solves instead of a whole
+// calibration, which matters on sites of hundreds of branches.
+func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64, estimateOnly bool, local int) (*fitRun, error) {
 	p, err := su.newProblem(ctx, hyp, sel)
 	if err != nil {
 		return nil, err
+	}
+	if local >= 0 && from != nil {
+		p.restrict(local, from)
 	}
 	n := len(p.params)
 	x0 := make([]float64, n)
@@ -630,7 +647,7 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 			x0[j] = su.start(from, par)
 		}
 	}
-	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ}
+	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly}
 	var prob Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}
@@ -644,7 +661,11 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 	if err != nil {
 		return nil, fmt.Errorf("calibrate: fit: %w", err)
 	}
-	return &fitRun{hyp: hyp, sel: sel, prob: p, res: res}, nil
+	out := &fitRun{hyp: hyp, sel: sel, prob: p, res: res}
+	if local >= 0 && from != nil {
+		out.parent = from
+	}
+	return out, nil
 }
 
 // start returns a starting value for par from fit f: the value of the same
@@ -687,6 +708,9 @@ func (su *setup) start(f *fitRun, par Param) float64 {
 			return s - ref
 		}
 		return math.Log(kv / su.refKv[par.Branch])
+	}
+	if f.parent != nil {
+		return su.start(f.parent, par)
 	}
 	return 0
 }

@@ -132,6 +132,37 @@ type problem struct {
 	pred   []float64 // predictions at the latest evaluation
 	x      []float64 // the latest evaluation point
 	solves int       // network solves
+	// base, when set, holds per state the multipliers of the parameters
+	// this problem does not fit (a local refit); nil means design.
+	base []plant.Params
+}
+
+// restrict keeps only branch i's parameters and holds every other one at
+// its value in fit f, state by state.
+func (p *problem) restrict(i int, f *fitRun) {
+	p.base = make([]plant.Params, len(p.states))
+	for s := range p.states {
+		p.base[s] = f.prob.stateParams(f.res.X, s, nil)
+	}
+	var keep []Param
+	for _, par := range p.params {
+		if par.Branch == i {
+			keep = append(keep, par)
+		}
+	}
+	p.params = keep
+	for b := range p.rIdx {
+		p.rIdx[b], p.kvIdx[b] = -1, -1
+	}
+	p.hIdx, p.pIdx = -1, -1
+	for j, par := range p.params {
+		switch par.Kind {
+		case ResistanceParam:
+			p.rIdx[par.Branch] = j
+		case KvParam, StuckParam, OffsetParam:
+			p.kvIdx[par.Branch] = j
+		}
+	}
 }
 
 // maxLog bounds the log-multipliers the model is evaluated at: e^±30 is
@@ -144,7 +175,12 @@ func (p *problem) Dims() (int, int) { return len(p.params), len(p.obs) }
 // with, and fills gain with d(ln KvScale_i)/dx_j for each valve parameter j
 // of branch i (nil gain: not wanted).
 func (p *problem) stateParams(x []float64, s int, gain []float64) plant.Params {
-	pp := p.m.Design()
+	var pp plant.Params
+	if p.base != nil {
+		pp = p.base[s].Clone()
+	} else {
+		pp = p.m.Design()
+	}
 	for i := range p.m.Branches {
 		if j := p.rIdx[i]; j >= 0 {
 			pp.Resistance[i] = math.Exp(x[j])
