@@ -78,73 +78,54 @@ func isInside(out, in string) bool {
 	return err == nil && (rel == "." || !strings.HasPrefix(rel, ".."))
 }
 
-func newFitCmd(ios *IO) *cobra.Command {
-	o := &runOptions{writeFit: true}
+// newSiteJobCmd builds fit, plan and run: one site argument, the job flags,
+// and what each writes.
+func newSiteJobCmd(ios *IO, o *runOptions, use, short, long string, needOut bool) *cobra.Command {
 	cmd := &cobra.Command{
-		Use:   "fit SITE",
-		Short: "Fit the survey to the plant and say what deviates from design",
-		Long: `Fit estimates each branch's actual hydraulic resistance (and, where the
-readings allow, valve Kv offsets, the header and the pump) from every survey
-state together, prints the fitted ratios with 95 % intervals and the findings,
-and with --out writes the calibrated model as CSV and JSON.`,
-		Args: exactArgs(1),
+		Use:   use,
+		Short: short,
+		Long:  long,
+		Args:  exactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Site = args[0]
-			if err := o.validate(false); err != nil {
+			if err := o.validate(needOut); err != nil {
 				return err
 			}
 			return runMain(cmd.Context(), ios, o, loadSite)
 		},
 	}
-	addJobFlags(cmd, o, false)
+	addJobFlags(cmd, o, o.writePlan)
 	return cmd
 }
 
+func newFitCmd(ios *IO) *cobra.Command {
+	return newSiteJobCmd(ios, &runOptions{writeFit: true}, "fit SITE",
+		"Fit the survey to the plant and say what deviates from design",
+		`Fit estimates each branch's actual hydraulic resistance (and, where the
+readings allow, valve Kv offsets, the header and the pump) from every survey
+state together, prints the fitted ratios with 95 % intervals and the findings,
+and with --out writes the calibrated model as CSV and JSON.`, false)
+}
+
 func newPlanCmd(ios *IO) *cobra.Command {
-	o := &runOptions{writePlan: true}
-	cmd := &cobra.Command{
-		Use:   "plan SITE",
-		Short: "Plan every balancing valve setting and the pump set-point at once",
-		Long: `Plan calibrates the model on the survey (or uses the design data when there
+	return newSiteJobCmd(ios, &runOptions{writePlan: true}, "plan SITE",
+		"Plan every balancing valve setting and the pump set-point at once",
+		`Plan calibrates the model on the survey (or uses the design data when there
 are no readings, and says so), finds the index circuit, and computes one set of
 valve settings that gives every branch its target flow at the lowest pump head,
 with the pump speed or differential set-point then needed and the energy saved.
 With --out it writes the field sheet (CSV and workbook, in walking order) and
-JSON.`,
-		Args: exactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			o.Site = args[0]
-			if err := o.validate(false); err != nil {
-				return err
-			}
-			return runMain(cmd.Context(), ios, o, loadSite)
-		},
-	}
-	addJobFlags(cmd, o, true)
-	return cmd
+JSON.`, false)
 }
 
 func newRunCmd(ios *IO) *cobra.Command {
-	o := &runOptions{writeFit: true, writePlan: true, writeReport: true}
-	cmd := &cobra.Command{
-		Use:   "run SITE --out DIR",
-		Short: "Do the whole job: check, fit, diagnose, plan, report",
-		Long: `Run checks the site, fits the survey, diagnoses deviations, plans the valve
+	return newSiteJobCmd(ios, &runOptions{writeFit: true, writePlan: true, writeReport: true}, "run SITE --out DIR",
+		"Do the whole job: check, fit, diagnose, plan, report",
+		`Run checks the site, fits the survey, diagnoses deviations, plans the valve
 settings and pump set-point, and writes into DIR the HTML report (one file
 that works offline), the field sheets (CSV and workbook), the calibrated model
 and the findings. DIR must not exist unless --force is given; it is written
-whole or not at all.`,
-		Args: exactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			o.Site = args[0]
-			if err := o.validate(true); err != nil {
-				return err
-			}
-			return runMain(cmd.Context(), ios, o, loadSite)
-		},
-	}
-	addJobFlags(cmd, o, true)
-	return cmd
+whole or not at all.`, true)
 }
 
 func newDemoCmd(ios *IO) *cobra.Command {
