@@ -13,12 +13,13 @@ import (
 // benchLadder is a direct-return ladder of nb branches, each a terminal
 // (10 kPa at 0.36 m3/h), an equal-percentage valve and 6 m of DN15 pipe, on
 // headers sized for about 1 m/s with 1 m segments, driven by a pump whose
-// curve meets the estimated design head at the design flow.
+// curve meets the estimated design head at the design flow. The valve is
+// made by NewValve, as plant makes its valves.
 func benchLadder(tb testing.TB, nb int) *Built {
 	const qd = 1e-4 // m3/s per branch
-	valve := hydraulics.Valve{
-		Char:    hydraulics.Inherent{Kind: hydraulics.EqualPercentage, Kvs: 2.5, Rangeability: 50},
-		Setting: 0.8,
+	valve, err := hydraulics.NewValve(hydraulics.Inherent{Kind: hydraulics.EqualPercentage, Kvs: 2.5, Rangeability: 50}, 0.8, 0)
+	if err != nil {
+		tb.Fatal(err)
 	}
 	l := Ladder{Arrangement: DirectReturn}
 	var header float64 // design drop of supply + return headers to the far branch

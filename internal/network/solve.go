@@ -5,10 +5,6 @@ import (
 	"fmt"
 	"math"
 	"slices"
-
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // Defaults used when Options or one of its fields is zero.
@@ -483,25 +479,6 @@ func (sy *system) step(e, c []float64) {
 		}
 		sy.dq[i] = -(ei + adp) * sy.invD[i]
 	}
-}
-
-// bandFactor is the Cholesky factor Uᵀ U of a symmetric positive definite
-// band matrix. gonum's mat.BandCholesky also estimates the condition number
-// on every factorisation, which costs O(n²) and dominated large networks, so
-// the LAPACK routines are called directly; the residual test, not a
-// condition estimate, decides convergence.
-type bandFactor struct{ t blas64.TriangularBand }
-
-// factorBand factorises in place the n×n matrix of half bandwidth k stored
-// by rows from the diagonal: data[i*(k+1)+j-i] = A[i][j] for i <= j <= i+k.
-func factorBand(n, k int, data []float64) (*bandFactor, bool) {
-	t, ok := lapack64.Pbtrf(blas64.SymmetricBand{Uplo: blas.Upper, N: n, K: k, Stride: k + 1, Data: data})
-	return &bandFactor{t: t}, ok
-}
-
-// solve overwrites x with A^-1 x.
-func (f *bandFactor) solve(x []float64) {
-	lapack64.Pbtrs(f.t, blas64.General{Rows: len(x), Cols: 1, Stride: 1, Data: x})
 }
 
 // evaluate fills the drops, slopes and residuals of st at its q and p.
