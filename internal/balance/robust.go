@@ -78,10 +78,10 @@ func (pl *planner) robust() {
 	sort.SliceStable(hits, func(a, b int) bool { return hits[a].least > hits[b].least })
 	for c, h := range hits {
 		if c == 5 {
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("%d more poorly known parameters could raise the differential needed", len(hits)-5))
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("%d more uncertain parameters could raise the differential needed", len(hits)-5))
 			break
 		}
-		w := fmt.Sprintf("%s is poorly known: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, h.least/1e3, ex.least/1e3)
+		w := fmt.Sprintf("the uncertainty of %s matters: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, h.least/1e3, ex.least/1e3)
 		if pl.pump {
 			if s, err := pl.speedFor(ex.total(), h.least); err == nil {
 				w += fmt.Sprintf(" (pump speed ratio %.3f)", s)

@@ -197,14 +197,40 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	in.Combined.OpAfter = report.XY{X: opA.Flow * toFlow, Y: opA.Diff * toDiff}
 
 	// Tables.
-	h, rows := plan.Rows()
-	in.Plan = report.Table{Title: "Field sheet", Columns: h, Rows: rows, Notes: plan.Warnings}
-	h, rows = j.findingRows()
+	in.Plan = report.Table{Title: "Field sheet", Notes: append([]string{
+		"The full field sheet, with Kv, branch differential and authority, is field-sheet.csv / field-sheet.xlsx beside this report."}, plan.Warnings...)}
+	in.Plan.Columns, in.Plan.Rows = fieldSheetColumns(plan)
+	h, rows := j.findingRows()
 	in.Diagnosis = report.Table{Title: "Diagnosis", Columns: h, Rows: rows, Notes: []string{
 		"Thresholds: restricted when the fitted resistance ratio exceeds 1.5 with 95 % confidence (free below 1/1.5); suspect reading beyond 3 standard uncertainties or removed by the fit's outlier test."}}
 	h, rows = j.readingRows()
 	in.Readings = report.Table{Title: "Readings and residuals", Columns: h, Rows: rows}
 	return in, nil
+}
+
+// fieldSheetColumns picks the field sheet's columns a page can hold: what
+// to set, what to expect and the check reading.
+func fieldSheetColumns(plan *balance.Plan) ([]string, [][]string) {
+	h, rows := plan.Rows()
+	want := []string{"Order", "Branch", "Valve", "As-found setting", "New setting", "Target (l/s)", "Predicted (% of target)",
+		"Band low (% of target)", "Band high (% of target)", "In tolerance", "Check: valve differential (kPa)", "Notes"}
+	idx := make([]int, 0, len(want))
+	cols := make([]string, 0, len(want))
+	for _, w := range want {
+		for k, c := range h {
+			if c == w {
+				idx = append(idx, k)
+				cols = append(cols, c)
+			}
+		}
+	}
+	out := make([][]string, len(rows))
+	for r, row := range rows {
+		for _, k := range idx {
+			out[r] = append(out[r], row[k])
+		}
+	}
+	return cols, out
 }
 
 func xy(ps []plant.Point) []report.XY {
