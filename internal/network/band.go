@@ -35,40 +35,73 @@ func factorBand(n, k int, data []float64) (*bandFactor, bool) {
 		_, ok := lapack64.Pbtrf(blas64.SymmetricBand{Uplo: blas.Upper, N: n, K: k, Stride: k + 1, Data: data})
 		return f, ok
 	}
+	if k == 2 {
+		return f, factorBand2(n, data)
+	}
 	// Row j of U is the scaled row j of what remains of A; its outer
 	// product is taken off the trailing block (LAPACK's Dpbtf2, upper).
 	w := k + 1
 	for j := range n {
-		ajj := data[j*w]
+		o := j * w
+		ajj := data[o]
 		if !(ajj > 0) {
 			return f, false
 		}
 		ajj = math.Sqrt(ajj)
-		data[j*w] = ajj
+		data[o] = ajj
 		kn := min(k, n-j-1)
-		if kn == 0 {
-			continue
-		}
-		row := data[j*w+1 : j*w+1+kn]
 		r := 1 / ajj
-		for i := range row {
-			row[i] *= r
+		for i := 1; i <= kn; i++ {
+			data[o+i] *= r
 		}
-		for i, xi := range row {
-			t := -xi
-			a := data[(j+1+i)*w : (j+1+i)*w+kn-i]
-			for c, v := range row[i:] {
-				a[c] += v * t
+		for i := 1; i <= kn; i++ {
+			t := -data[o+i]
+			ro := o + i*w - i // row j+i, indexed by column offset from j
+			for c := i; c <= kn; c++ {
+				data[ro+c] += data[o+c] * t
 			}
 		}
 	}
 	return f, true
 }
 
+// factorBand2 is factorBand's loop written out for half bandwidth 2, the
+// bandwidth of Build's ladders, with the same operations in the same order.
+func factorBand2(n int, data []float64) bool {
+	for j := range n {
+		o := j * 3
+		ajj := data[o]
+		if !(ajj > 0) {
+			return false
+		}
+		ajj = math.Sqrt(ajj)
+		data[o] = ajj
+		r := 1 / ajj
+		switch {
+		case j+2 < n:
+			x0, x1 := data[o+1]*r, data[o+2]*r
+			data[o+1], data[o+2] = x0, x1
+			t := -x0
+			data[o+3] += x0 * t
+			data[o+4] += x1 * t
+			data[o+6] += x1 * -x1
+		case j+1 < n:
+			x0 := data[o+1] * r
+			data[o+1] = x0
+			data[o+3] += x0 * -x0
+		}
+	}
+	return true
+}
+
 // solve overwrites x with A^-1 x: Uᵀ y = x forwards, then U x = y
 // backwards.
 func (f *bandFactor) solve(x []float64) {
 	n, k, u := f.n, f.k, f.u
+	if k == 2 && n >= 2 {
+		solveBand2(n, u, x)
+		return
+	}
 	w := k + 1
 	for i := range n {
 		b := min(k, i)
@@ -80,11 +113,33 @@ func (f *bandFactor) solve(x []float64) {
 	}
 	for i := n - 1; i >= 0; i-- {
 		b := min(k, n-i-1)
-		row := u[i*w+1 : i*w+1+b]
 		var sum float64
-		for j, v := range x[i+1 : i+1+b] {
-			sum += v * row[j]
+		for j := range b {
+			sum += x[i+1+j] * u[i*w+1+j]
 		}
 		x[i] = (x[i] - sum) / u[i*w]
+	}
+}
+
+// solveBand2 is solve's loops written out for half bandwidth 2 and n >= 2,
+// with the same operations in the same order.
+func solveBand2(n int, u, x []float64) {
+	u = u[:3*n]
+	x = x[:n]
+	x[0] = x[0] / u[0]
+	x[1] = (x[1] - x[0]*u[1]) / u[3]
+	for i := 2; i < n; i++ {
+		sum := x[i-2] * u[3*i-4]
+		sum += x[i-1] * u[3*i-2]
+		x[i] = (x[i] - sum) / u[3*i]
+	}
+	i := n - 1
+	x[i] = x[i] / u[3*i]
+	i--
+	x[i] = (x[i] - x[i+1]*u[3*i+1]) / u[3*i]
+	for i--; i >= 0; i-- {
+		sum := x[i+1] * u[3*i+1]
+		sum += x[i+2] * u[3*i+2]
+		x[i] = (x[i] - sum) / u[3*i]
 	}
 }

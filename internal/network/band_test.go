@@ -50,7 +50,7 @@ func bandMul(n, k int, a, x []float64) []float64 {
 // narrow factors must equal LAPACK's unblocked Dpbtf2 to the last bit, as
 // the loop is the same algorithm.
 func TestBandFactor(t *testing.T) {
-	for _, tc := range []struct{ n, k int }{{1, 0}, {7, 0}, {50, 1}, {200, 2}, {200, 5}, {300, 31}, {300, 40}} {
+	for _, tc := range []struct{ n, k int }{{1, 0}, {7, 0}, {50, 1}, {3, 2}, {4, 2}, {200, 2}, {200, 3}, {200, 5}, {300, 31}, {300, 40}} {
 		t.Run(fmt.Sprintf("n=%d,k=%d", tc.n, tc.k), func(t *testing.T) {
 			a := randomBand(tc.n, tc.k, uint64(tc.n*100+tc.k))
 			orig := append([]float64(nil), a...)

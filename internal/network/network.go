@@ -64,7 +64,8 @@ type Network struct {
 	addErr    error // first error found by AddNode/AddLink, reported by Solve
 
 	mu   sync.Mutex
-	plan *plan // cached ordering; nil after a structural change
+	plan *plan      // cached ordering; nil after a structural change
+	ws   *workspace // Solve's scratch memory for plan, when no Solve holds it
 }
 
 // New returns an empty network carrying fluid f.
@@ -74,7 +75,7 @@ func New(f fluid.State) *Network {
 
 func (n *Network) invalidate() {
 	n.mu.Lock()
-	n.plan = nil
+	n.plan, n.ws = nil, nil
 	n.mu.Unlock()
 }
 

@@ -13,10 +13,11 @@ const maxBandFloats = 1 << 26
 // order in the band and the half bandwidth. It depends on the topology and
 // the set of fixed nodes only, so it is reused across solves.
 type plan struct {
-	nFree  int
-	pos    []int // node -> band position, -1 for a fixed node
-	pa, pb []int // per link: band position of its from and to node, -1 if fixed
-	k      int   // half bandwidth
+	nFree    int
+	pos      []int // node -> band position, -1 for a fixed node
+	pa, pb   []int // per link: band position of its from and to node, -1 if fixed
+	from, to []int // per link: its from and to node
+	k        int   // half bandwidth
 }
 
 // prepare validates the topology and returns the (cached) plan.
@@ -48,9 +49,12 @@ func (n *Network) prepare() (*plan, error) {
 	}
 	pl.pa = make([]int, len(n.links))
 	pl.pb = make([]int, len(n.links))
+	pl.from = make([]int, len(n.links))
+	pl.to = make([]int, len(n.links))
 	for i, l := range n.links {
 		a, b := pl.pos[l.from], pl.pos[l.to]
 		pl.pa[i], pl.pb[i] = a, b
+		pl.from[i], pl.to[i] = l.from, l.to
 		if a >= 0 && b >= 0 {
 			pl.k = max(pl.k, a-b, b-a)
 		}

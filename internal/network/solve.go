@@ -195,8 +195,18 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 		}
 	}
 
-	nl, nn, nf := len(n.links), len(n.nodeID), pl.nFree
-	cur, trial := newState(nl, nn, nf), newState(nl, nn, nf)
+	nn := len(n.nodeID)
+	ws := n.takeWorkspace(pl)
+	defer n.putWorkspace(ws)
+	cur, trial, sy := ws.cur, ws.trial, ws.sy
+	// Demands by band position, and their scale, for the residuals.
+	ws.dmax = 0
+	for node, d := range n.demand {
+		if pos := pl.pos[node]; pos >= 0 {
+			ws.demand[pos] = d
+		}
+		ws.dmax = max(ws.dmax, math.Abs(d))
+	}
 	// Free pressures start at the mean fixed pressure; with a full Newton
 	// step the new pressures do not depend on the old ones.
 	var pmean float64
@@ -217,17 +227,19 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	copy(trial.p, cur.p)
 	if initial != nil {
 		copy(cur.q, initial)
+	} else {
+		clear(cur.q)
 	}
-	if err := n.evaluate(pl, cur); err != nil {
+	if err := n.evaluate(ws, cur); err != nil {
 		return nil, err
 	}
-	sy := newSystem(pl, nl)
 	iter := 0
 	if initial == nil {
-		if cur, trial, iter, err = n.linearTheory(ctx, pl, sy, cur, trial, min(maxLinear, maxIter)); err != nil {
+		if cur, trial, iter, err = n.linearTheory(ctx, ws, cur, trial, min(maxLinear, maxIter)); err != nil {
 			return nil, err
 		}
 	}
+	nl := len(n.links)
 
 	for ; ; iter++ {
 		// Newton matrix at the current iterate.
@@ -235,7 +247,7 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 			return nil, err
 		}
 		if converged(cur, tol) {
-			return n.solution(pl, cur, sy, iter), nil
+			return n.solution(ws, cur, iter), nil
 		}
 		if iter >= maxIter {
 			return nil, n.convergenceError(pl, cur, iter, nil)
@@ -259,7 +271,10 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 				break
 			}
 		}
-		f0 := merit(cur, sy.wc)
+		var f0 float64
+		if !trust {
+			f0 = merit(cur, sy.wc)
+		}
 		alpha := 1.0
 		for bt := 0; ; bt++ {
 			for i := range nl {
@@ -270,11 +285,14 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 					trial.p[node] = cur.p[node] + alpha*sy.dp[pos]
 				}
 			}
-			if err := n.evaluate(pl, trial); err != nil {
+			if err := n.evaluate(ws, trial); err != nil {
 				return nil, err
 			}
+			if trust {
+				break
+			}
 			ft := merit(trial, sy.wc)
-			if trust || ft <= (1-armijo*alpha)*f0 || bt == maxBacktrack {
+			if ft <= (1-armijo*alpha)*f0 || bt == maxBacktrack {
 				break
 			}
 			// Minimiser of the quadratic through f(0), f'(0) = -2 f(0)
@@ -303,13 +321,15 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 // secants are taken at probeFlow. At most maxSolves solves are made. It
 // returns the state at the averaged
 // flows, the spare state and the number of linear solves.
-func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, trial *state, maxSolves int) (_, _ *state, solves int, err error) {
+func (n *Network) linearTheory(ctx context.Context, ws *workspace, cur, trial *state, maxSolves int) (_, _ *state, solves int, err error) {
+	pl, sy := ws.pl, ws.sy
 	nl := len(n.links)
-	h0 := slices.Clone(cur.h)
-	e0 := slices.Clone(cur.e)
-	c0 := slices.Clone(cur.c)
-	p0 := slices.Clone(cur.p)
-	sec := make([]float64, nl) // secant slopes from zero flow
+	h0, e0, c0, p0 := ws.h0, ws.e0, ws.c0, ws.p0
+	copy(h0, cur.h)
+	copy(e0, cur.e)
+	copy(c0, cur.c)
+	copy(p0, cur.p)
+	sec := ws.sec // secant slopes from zero flow
 	for i := range n.links {
 		var hp float64
 		for _, e := range n.links[i].elems {
@@ -321,7 +341,7 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 		}
 		sec[i] = (hp - h0[i]) / probeFlow
 	}
-	var prev []float64
+	var prev []float64 // the previous solve's flows, nil before the second
 	for range maxSolves {
 		if err := ctx.Err(); err != nil {
 			return nil, nil, 0, n.convergenceError(pl, cur, solves, err)
@@ -359,14 +379,15 @@ func (n *Network) linearTheory(ctx context.Context, pl *plan, sy *system, cur, t
 				trial.p[node] = p0[node] + sy.dp[pos]
 			}
 		}
-		if err := n.evaluate(pl, trial); err != nil {
+		if err := n.evaluate(ws, trial); err != nil {
 			return nil, nil, 0, err
 		}
 		cur, trial = trial, cur
 		if done {
 			break
 		}
-		prev = append(prev[:0], cur.q...)
+		prev = ws.prev
+		copy(prev, cur.q)
 		for i, q := range cur.q {
 			if q != 0 {
 				if v := (cur.h[i] - h0[i]) / q; v > 0 {
@@ -391,14 +412,10 @@ type system struct {
 }
 
 func newSystem(pl *plan, nl int) *system {
-	sy := &system{
+	return &system{
 		pl: pl, d: make([]float64, nl), invD: make([]float64, nl), dq: make([]float64, nl),
 		dp: make([]float64, pl.nFree), wc: make([]float64, pl.nFree),
 	}
-	if pl.nFree > 0 {
-		sy.band = make([]float64, pl.nFree*(pl.k+1))
-	}
-	return sy
 }
 
 // factor sets D to the slopes, floored (see slopeFloorRel), assembles S
@@ -413,19 +430,24 @@ func (sy *system) factor(slopes []float64) error {
 	if !(floor > 0) {
 		floor = 1 // all slopes zero: any positive D gives the same step direction
 	}
+	dd, invD := sy.d[:len(slopes)], sy.invD[:len(slopes)]
 	for attempt := 0; ; attempt++ {
 		for i, v := range slopes {
 			d := max(v, floor)
-			sy.d[i], sy.invD[i] = d, 1/d
+			dd[i], invD[i] = d, 1/d
 		}
 		if pl.nFree == 0 {
 			return nil
 		}
+		if sy.band == nil {
+			sy.band = make([]float64, pl.nFree*(pl.k+1))
+		}
 		band := sy.band
 		clear(band)
 		w := pl.k + 1
-		for i, g := range sy.invD {
-			a, b := pl.pa[i], pl.pb[i]
+		pa, pb := pl.pa[:len(invD)], pl.pb[:len(invD)]
+		for i, g := range invD {
+			a, b := pa[i], pb[i]
 			if a >= 0 {
 				band[a*w] += g
 			}
@@ -437,8 +459,9 @@ func (sy *system) factor(slopes []float64) error {
 				band[lo*w+hi-lo] -= g
 			}
 		}
-		for j := range sy.wc {
-			sy.wc[j] = 1 / band[j*w]
+		wc := sy.wc
+		for j := range wc {
+			wc[j] = 1 / band[j*w]
 		}
 		var ok bool
 		if sy.chol, ok = factorBand(pl.nFree, pl.k, band); ok {
@@ -455,15 +478,16 @@ func (sy *system) factor(slopes []float64) error {
 // energy residuals e (per link) and continuity residuals c (per position).
 func (sy *system) step(e, c []float64) {
 	pl := sy.pl
+	invD, pa, pb, dq, dp := sy.invD[:len(e)], pl.pa[:len(e)], pl.pb[:len(e)], sy.dq[:len(e)], sy.dp
 	if pl.nFree > 0 {
-		r := sy.dp
+		r := dp
 		copy(r, c)
 		for i, ei := range e {
-			t := ei * sy.invD[i]
-			if a := pl.pa[i]; a >= 0 {
+			t := ei * invD[i]
+			if a := pa[i]; a >= 0 {
 				r[a] += t
 			}
-			if b := pl.pb[i]; b >= 0 {
+			if b := pb[i]; b >= 0 {
 				r[b] -= t
 			}
 		}
@@ -471,75 +495,77 @@ func (sy *system) step(e, c []float64) {
 	}
 	for i, ei := range e {
 		var adp float64
-		if b := pl.pb[i]; b >= 0 {
-			adp += sy.dp[b]
+		if b := pb[i]; b >= 0 {
+			adp += dp[b]
 		}
-		if a := pl.pa[i]; a >= 0 {
-			adp -= sy.dp[a]
+		if a := pa[i]; a >= 0 {
+			adp -= dp[a]
 		}
-		sy.dq[i] = -(ei + adp) * sy.invD[i]
+		dq[i] = -(ei + adp) * invD[i]
 	}
 }
 
 // evaluate fills the drops, slopes and residuals of st at its q and p.
-func (n *Network) evaluate(pl *plan, st *state) error {
+func (n *Network) evaluate(ws *workspace, st *state) error {
 	fl := n.Fluid
+	q := st.q[:len(n.links)]
+	h, s := st.h[:len(q)], st.s[:len(q)]
 	for i := range n.links {
-		l := &n.links[i]
 		var dp, sl float64
-		for _, e := range l.elems {
-			a, b := e.Drop(st.q[i], fl)
+		for _, e := range n.links[i].elems {
+			a, b := e.Drop(q[i], fl)
 			dp += a
 			sl += b
 		}
 		if !finite(dp) || !finite(sl) {
-			return fmt.Errorf("link %q at flow %g m3/s: drop %g Pa, slope %g: %w", l.id, st.q[i], dp, sl, ErrElement)
+			return fmt.Errorf("link %q at flow %g m3/s: drop %g Pa, slope %g: %w", n.links[i].id, q[i], dp, sl, ErrElement)
 		}
-		st.h[i], st.s[i] = dp, sl
+		h[i], s[i] = dp, sl
 	}
-	n.residuals(pl, st)
+	residuals(ws, st)
 	return nil
 }
 
 // residuals fills e and c and their norms from q, p and h.
-func (n *Network) residuals(pl *plan, st *state) {
-	for node, pos := range pl.pos {
-		if pos >= 0 {
-			st.c[pos] = -n.demand[node]
-		}
+func residuals(ws *workspace, st *state) {
+	pl := ws.pl
+	c := st.c
+	for j, d := range ws.demand[:len(c)] {
+		c[j] = -d
 	}
-	st.maxE, st.scaleE, st.scaleQ = 0, 0, 0
-	st.worstL, st.worstN = 0, -1
 	var pmax float64
 	for _, p := range st.p {
 		pmax = max(pmax, math.Abs(p))
 	}
-	for i := range n.links {
-		l := &n.links[i]
-		q := st.q[i]
-		e := st.h[i] - st.p[l.from] + st.p[l.to]
-		st.e[i] = e
-		if ae := math.Abs(e); ae > st.maxE {
-			st.maxE, st.worstL = ae, i
+	q, p := st.q, st.p
+	h, e := st.h[:len(q)], st.e[:len(q)]
+	from, to, pa, pb := pl.from[:len(q)], pl.to[:len(q)], pl.pa[:len(q)], pl.pb[:len(q)]
+	var maxE, scaleE, scaleQ float64
+	worstL := 0
+	for i, qi := range q {
+		ei := h[i] - p[from[i]] + p[to[i]]
+		e[i] = ei
+		if ae := math.Abs(ei); ae > maxE {
+			maxE, worstL = ae, i
 		}
-		st.scaleE = max(st.scaleE, math.Abs(st.h[i]))
-		st.scaleQ = max(st.scaleQ, math.Abs(q))
-		if a := pl.pa[i]; a >= 0 {
-			st.c[a] -= q
+		scaleE = max(scaleE, math.Abs(h[i]))
+		scaleQ = max(scaleQ, math.Abs(qi))
+		if a := pa[i]; a >= 0 {
+			c[a] -= qi
 		}
-		if b := pl.pb[i]; b >= 0 {
-			st.c[b] += q
-		}
-	}
-	st.maxC = 0
-	for j, c := range st.c {
-		if ac := math.Abs(c); ac > st.maxC {
-			st.maxC, st.worstN = ac, j
+		if b := pb[i]; b >= 0 {
+			c[b] += qi
 		}
 	}
-	for _, q := range n.demand {
-		st.scaleQ = max(st.scaleQ, math.Abs(q))
+	var maxC float64
+	worstN := -1
+	for j, cj := range c {
+		if ac := math.Abs(cj); ac > maxC {
+			maxC, worstN = ac, j
+		}
 	}
+	st.maxE, st.worstL, st.maxC, st.worstN = maxE, worstL, maxC, worstN
+	st.scaleE, st.scaleQ = scaleE, max(scaleQ, ws.dmax)
 	// A pressure difference cannot be resolved better than a few ulp of
 	// the absolute pressures.
 	st.floorE = 8 * pmax * 0x1p-52
@@ -596,18 +622,64 @@ func relative(x, scale float64) float64 {
 	return x / scale
 }
 
-func (n *Network) solution(pl *plan, st *state, sy *system, iter int) *Solution {
+// solution returns the Solution of the converged state st. It takes the
+// factorised band matrix over from the workspace.
+func (n *Network) solution(ws *workspace, st *state, iter int) *Solution {
+	sy := ws.sy
 	sol := &Solution{
-		Flow:           append([]float64(nil), st.q...),
-		Pressure:       append([]float64(nil), st.p...),
-		Drop:           append([]float64(nil), st.h...),
-		Slope:          append([]float64(nil), st.s...),
+		Flow:           slices.Clone(st.q),
+		Pressure:       slices.Clone(st.p),
+		Drop:           slices.Clone(st.h),
+		Slope:          slices.Clone(st.s),
 		Iterations:     iter,
 		MaxImbalance:   st.maxC,
 		MaxEnergyError: st.maxE,
-		pl:             pl,
+		pl:             ws.pl,
 		d:              slices.Clone(sy.d),
 		chol:           sy.chol,
 	}
+	sy.band, sy.chol = nil, nil
 	return sol
+}
+
+// workspace is the scratch memory of Solve for one plan: two states, the
+// linear system and the cold start's copies. The Network keeps one between
+// solves (about 0.5 kB per link), so repeated solves of a large network do
+// not allocate and clear it again.
+type workspace struct {
+	pl                        *plan
+	cur, trial                *state
+	sy                        *system
+	h0, e0, c0, p0, sec, prev []float64
+	demand                    []float64 // per band position
+	dmax                      float64   // largest |demand| over all nodes
+}
+
+// takeWorkspace returns the Network's workspace for pl, or a new one.
+func (n *Network) takeWorkspace(pl *plan) *workspace {
+	n.mu.Lock()
+	ws := n.ws
+	n.ws = nil
+	n.mu.Unlock()
+	if ws != nil && ws.pl == pl {
+		return ws
+	}
+	nl, nn, nf := len(pl.pa), len(pl.pos), pl.nFree
+	return &workspace{
+		pl:  pl,
+		cur: newState(nl, nn, nf), trial: newState(nl, nn, nf),
+		sy: newSystem(pl, nl),
+		h0: make([]float64, nl), e0: make([]float64, nl), c0: make([]float64, nf), p0: make([]float64, nn),
+		sec: make([]float64, nl), prev: make([]float64, nl),
+		demand: make([]float64, nf),
+	}
+}
+
+// putWorkspace gives ws back to the Network if its plan is still current.
+func (n *Network) putWorkspace(ws *workspace) {
+	n.mu.Lock()
+	if n.plan == ws.pl {
+		n.ws = ws
+	}
+	n.mu.Unlock()
 }
