@@ -395,7 +395,13 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 				return nil, bad("uncertainty %g must be positive", r.Sigma)
 			}
 			o := obs{reading: ri, state: k, what: r.What, branch: -1, value: r.Value, sigma: r.Sigma}
-			switch r.What {
+			what := r.What
+			if _, atBranch := m.Index(r.Where); atBranch && what == site.HeaderDiff {
+				// A header differential read at a branch's take-off is
+				// that branch's differential.
+				what, o.what = site.BranchDiff, site.BranchDiff
+			}
+			switch what {
 			case site.HeaderDiff, site.PumpDiff:
 				if s.Boundary.Kind == site.MeasuredDiff {
 					su.boundary[ri] = true

@@ -419,7 +419,8 @@ func (m *Model) measuredDiff(st *State) (float64, error) {
 	var n int
 	for _, ri := range st.Readings {
 		r := m.Site.Readings[ri]
-		if r.What == site.HeaderDiff || r.What == site.PumpDiff {
+		_, atBranch := m.index[r.Where]
+		if r.What == site.PumpDiff || (r.What == site.HeaderDiff && !atBranch) {
 			sum += r.Value
 			n++
 		}
@@ -648,6 +649,11 @@ func (s *Solved) TotalFlow() float64 {
 
 // Predict returns the model's value of reading r.
 func (s *Solved) Predict(r *site.Reading) (float64, error) {
+	if i, ok := s.Model.index[r.Where]; ok && r.What == site.HeaderDiff {
+		// A header differential read at a branch's take-off is that
+		// branch's differential.
+		return s.BranchDiff(i), nil
+	}
 	switch r.What {
 	case site.TotalFlow:
 		return s.TotalFlow(), nil

@@ -66,3 +66,29 @@ func TestSolveContinuity(t *testing.T) {
 		}
 	}
 }
+
+// TestHeaderDiffAtBranch checks that a header differential read at a
+// branch's take-off is predicted as that branch's differential, and one read
+// at the header as the differential where the branches begin.
+func TestHeaderDiffAtBranch(t *testing.T) {
+	m, err := New(smallSite())
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := m.Solve(context.Background(), m.Design(), m.States[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	nan := math.NaN()
+	got, err := s.Predict(&site.Reading{Where: "b", What: site.HeaderDiff, Setting: nan})
+	if err != nil || got != s.BranchDiff(1) {
+		t.Errorf("Predict(header diff at b) = %g, %v; want branch b's differential %g", got, err, s.BranchDiff(1))
+	}
+	got, err = s.Predict(&site.Reading{Where: site.AtHeader, What: site.HeaderDiff, Setting: nan})
+	if err != nil || got != s.HeaderDiff() {
+		t.Errorf("Predict(header diff at the header) = %g, %v; want %g", got, err, s.HeaderDiff())
+	}
+	if !(s.HeaderDiff() > s.BranchDiff(0)) {
+		t.Errorf("header differential %g not above the first branch's %g in direct return", s.HeaderDiff(), s.BranchDiff(0))
+	}
+}
