@@ -344,6 +344,11 @@ var edgeCases = []edgeCase{
 		not:  []string{"no readings", "posterior sd"}},
 
 	// Topology.
+	{name: "a branch with nothing in it", code: ExitData, edit: func(t *testing.T, s *site.Site) {
+		b := &s.Branches[3]
+		b.PipeLength, b.FittingsK, b.TerminalDrop, b.Valve, b.Setting = 0, 0, 0, "", math.NaN()
+		s.Readings = s.Readings[:3]
+	}, want: []string{`branches.csv:5: branch "d" has nothing that resists flow`}},
 	{name: "branches in a loop", code: ExitData, edit: func(t *testing.T, s *site.Site) {
 		s.Branches[1].Parent, s.Branches[2].Parent = "c", "b"
 	}, want: []string{`field "parent": value "c": branches in a loop: b -> c -> b`}},

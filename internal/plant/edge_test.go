@@ -59,6 +59,11 @@ func TestNewRefuses(t *testing.T) {
 		{"nothing to size the fittings by", func(s *site.Site) {
 			s.Branches[0].PipeLength, s.Branches[0].PipeStandard, s.Branches[0].PipeSize = 0, "", ""
 		}, ErrModel, `branch "a": fittings K needs a pipe size or bore`},
+		{"a terminal with nothing in it", func(s *site.Site) {
+			b := &s.Branches[1]
+			b.PipeLength, b.FittingsK, b.TerminalDrop, b.Valve, b.Setting = 0, 0, 0, "", math.NaN()
+			b.Pos = site.Pos{File: "branches.csv", Line: 3}
+		}, ErrModel, `branches.csv:3: branch "b" has nothing that resists flow`},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			s := smallSite()

@@ -150,6 +150,13 @@ func New(s *site.Site) (*Model, error) {
 	if len(m.top) == 0 {
 		return nil, fmt.Errorf("no branch hangs from the main headers: %w", ErrModel)
 	}
+	for i := range m.Branches {
+		// A terminal with nothing in it is a short circuit: the network
+		// cannot split the flow between it and anything else.
+		if b := &m.Branches[i]; !b.Riser() && len(b.Fixed) == 0 && b.Valve == nil {
+			return nil, fmt.Errorf("%s: branch %q has nothing that resists flow (no pipe length, fittings, terminal drop, control valve or balancing valve): %w", s.Branches[i].Pos, b.ID, ErrModel)
+		}
+	}
 	if err := m.checkTree(); err != nil {
 		return nil, err
 	}
