@@ -297,6 +297,11 @@ var edgeCases = []edgeCase{
 			s.Pump[i].Head = 0
 		}
 	}, want: []string{"pump curve: pump fit: shut-off head 0 m of the fit is not positive"}},
+	{name: "measured differential of 0 Pa", code: ExitData, edit: func(t *testing.T, s *site.Site) {
+		s.Boundary = site.Boundary{Kind: site.MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: math.NaN()}
+		s.Pump = nil
+		s.Readings[4] = site.Reading{State: "as-found", Where: site.AtHeader, What: site.HeaderDiff, Value: 0, Setting: math.NaN(), Instrument: "manometer", Sigma: 100}
+	}, want: []string{`readings.csv:6: boundary is the measured differential but state "as-found" reads 0 Pa, which drives no flow`}},
 	{name: "constant differential of 3 Pa", edit: func(t *testing.T, s *site.Site) {
 		s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 3, Sensor: site.AtPump}
 		s.Pump = nil

@@ -46,6 +46,11 @@ func TestNewRefuses(t *testing.T) {
 		{"measured boundary without a differential", func(s *site.Site) {
 			s.Boundary.Kind = site.MeasuredDiff
 		}, ErrModel, `state "as-found" has no header or pump differential reading`},
+		{"measured boundary reading 0 Pa", func(s *site.Site) {
+			s.Boundary.Kind = site.MeasuredDiff
+			s.Readings = append(s.Readings, site.Reading{State: "as-found", Where: site.AtHeader, What: site.HeaderDiff, Value: 0,
+				Setting: math.NaN(), Sigma: 100, Pos: site.Pos{File: "readings.csv", Line: 3}})
+		}, ErrModel, `readings.csv:3: boundary is the measured differential but state "as-found" reads 0 Pa, which drives no flow`},
 		{"setting on a branch without a valve", func(s *site.Site) {
 			s.Branches[0].Valve = ""
 			s.Readings[0].Setting = 2

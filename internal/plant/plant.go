@@ -424,16 +424,23 @@ func (m *Model) states() ([]State, error) {
 func (m *Model) measuredDiff(st *State) (float64, error) {
 	var sum float64
 	var n int
+	var pos site.Pos // of the first differential reading
 	for _, ri := range st.Readings {
 		r := m.Site.Readings[ri]
 		_, atBranch := m.index[r.Where]
 		if r.What == site.PumpDiff || (r.What == site.HeaderDiff && !atBranch) {
+			if n == 0 {
+				pos = r.Pos
+			}
 			sum += r.Value
 			n++
 		}
 	}
 	if n == 0 {
 		return 0, fmt.Errorf("boundary is the measured differential but state %q has no header or pump differential reading: %w", st.Label, ErrModel)
+	}
+	if !(sum > 0) {
+		return 0, fmt.Errorf("%s: boundary is the measured differential but state %q reads 0 Pa, which drives no flow: %w", pos, st.Label, ErrModel)
 	}
 	return sum / float64(n), nil
 }
