@@ -490,7 +490,12 @@ var badCases = []badCase{
 	{name: "one pump point", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n1,6\n"},
 		cause: ErrMissing,
 		want: []string{
-			"pump.csv:1: pump curve has only one usable point (want at least two flow and head points, three or more for a curved fit)",
+			"pump.csv:1: pump curve has only one usable point (want at least three flow and head points, for the quadratic fit of the curve)",
+		}},
+	{name: "two pump points", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n0,6\n2,4\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:1: pump curve has only two usable points (want at least three flow and head points, for the quadratic fit of the curve)",
 		}},
 	{name: "pump flows not rising", files: map[string]string{"pump.csv": "flow [l/s],head [m]\n0,8\n2,7\n1.5,7.5\n3,6.5\n"},
 		cause: ErrRange,

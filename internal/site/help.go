@@ -85,7 +85,7 @@ Model-wide values (setting unit, step, min diff) may sit on any row of the
 model, once or repeated the same. Optional when no branch names a valve.`,
 	"pump": `The pump sheet is the pump's head curve at nominal speed: flows rising down
 the sheet, head in height of the pumped fluid (m or ft; not a pressure).
-At least two points, three or more for a curved fit. Optional; when present
+At least three points: the curve is fitted as a quadratic. Optional; when present
 the boundary defaults to pump.`,
 	"readings": `The readings sheet holds every measurement of the visit, one per row. A
 reading names its state (as-found, after-change, ...), where it was taken (a

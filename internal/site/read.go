@@ -700,13 +700,17 @@ func readPump(t *table, p *Problems) []PumpPoint {
 		}
 		out = append(out, pt)
 	}
-	if len(out) < 2 && len(sr.broken) == 0 {
+	// The model fits a quadratic head curve, which takes three points.
+	if len(out) < 3 && len(sr.broken) == 0 {
 		msg := "pump curve has no usable points"
-		if len(out) == 1 {
+		switch len(out) {
+		case 1:
 			msg = "pump curve has only one usable point"
+		case 2:
+			msg = "pump curve has only two usable points"
 		}
 		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: msg,
-			Want: "at least two flow and head points, three or more for a curved fit"})
+			Want: "at least three flow and head points, for the quadratic fit of the curve"})
 	}
 	return out
 }

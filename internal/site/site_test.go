@@ -160,7 +160,7 @@ func TestUnits(t *testing.T) {
 		"site.csv":     "temperature [degF],45\n",
 		"branches.csv": "id,design flow [gpm],pipe length [ft],pipe bore [in],control cvs\nA,10,100,0.824,1\n",
 		"valves.csv":   "model;setting;cv\nV;0,5;0,25\nV;4;2\n",
-		"pump.csv":     "flow [gpm],head [ft]\n0,40\n50,30\n",
+		"pump.csv":     "flow [gpm],head [ft]\n0,40\n50,30\n70,22\n",
 		"readings.csv": "where;quantity;value [bar];unit;uncertainty;instrument\nA;branch diff;0,2;;2 %;manometer\nA;flow;1,5;l/s;;clamp-on\n",
 	}
 	s, p, err := ReadDir(mapFS(files), ".")
@@ -336,7 +336,7 @@ func (m *mapFile) Close() error {
 func TestTemplate(t *testing.T) {
 	want := []string{
 		"%sbranches%s:1: no branches listed (want one row per branch below the header)",
-		"%spump%s:1: pump curve has no usable points (want at least two flow and head points, three or more for a curved fit)",
+		"%spump%s:1: pump curve has no usable points (want at least three flow and head points, for the quadratic fit of the curve)",
 		"%sreadings%s:1: warning: no readings: nothing to calibrate (want one row per reading below the header)",
 	}
 	format := func(pre, post string) []string {
