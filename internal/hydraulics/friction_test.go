@@ -105,13 +105,14 @@ func TestColebrookMachinePrecision(t *testing.T) {
 	t.Logf("largest relative difference from Newton: %.2g", worst)
 }
 
-// TestLnApprox checks the starting-point logarithm against math.Log within
-// its stated 1e-3 over the Reynolds numbers colebrook sees and beyond.
+// TestLnApprox checks the approximate logarithm against math.Log within
+// its stated 1.1e-5, from the arguments of colebrook's first step (1e-10 and
+// up) through the Reynolds numbers it sees and beyond.
 func TestLnApprox(t *testing.T) {
-	for e := 0.0; e <= 300; e += 0.01 {
+	for e := -300.0; e <= 300; e += 0.001 {
 		x := math.Pow(10, e)
-		if d := math.Abs(lnApprox(x) - math.Log(x)); d > 1e-3 {
-			t.Errorf("lnApprox(%g) = %g, math.Log %g (error %.2g > 1e-3)", x, lnApprox(x), math.Log(x), d)
+		if d := math.Abs(lnApprox(x) - math.Log(x)); d > 1.1e-5 {
+			t.Fatalf("lnApprox(%g) = %g, math.Log %g (error %.2g > 1.1e-5)", x, lnApprox(x), math.Log(x), d)
 		}
 	}
 }
