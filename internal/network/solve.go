@@ -40,9 +40,13 @@ const (
 	probeFlow = 1e-3
 	// maxLinear bounds the linear-theory solves of a cold start; they stop
 	// earlier once every flow above linearSettle of the largest changes by
-	// less than the factor linearRatio.
+	// less than the factor linearRatio. Newton's step control counts flows
+	// below trustFloor of the largest as that floor, so smaller ones need
+	// not settle first (on long ladders the far branches' flows otherwise
+	// kept the linear solves going for several rounds at 1e-8 of the
+	// largest flow).
 	maxLinear    = 10
-	linearSettle = 1e-12
+	linearSettle = trustFloor
 	linearRatio  = 1.5
 	// fullStep is the largest relative flow change of a step taken without
 	// line search; flows below trustFloor of the largest count as that.
