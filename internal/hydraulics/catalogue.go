@@ -97,60 +97,80 @@ func tubes(pairs ...float64) []sizeRow {
 	return rows
 }
 
-// catalogue returns the pipe standards. It is built on each call so the
-// package holds no mutable state.
-func catalogue() []standardDef {
-	return []standardDef{
-		{
-			// ASME B36.10M Schedule 40, metric columns (references §4.1);
-			// bore = OD - 2t in mm as tabulated in B36.10M.
+// standardNames lists the catalogue's standards in catalogue order.
+func standardNames() []string {
+	return []string{"sch40", "sch80", "en10255-m", "en10255-h", "en1057", "pe100-sdr11"}
+}
+
+// standardByName builds the one standard of the catalogue with the given
+// (normalised) name, so a lookup does not build the others. It is built on
+// each call so the package holds no mutable state.
+func standardByName(name string) (standardDef, bool) {
+	switch name {
+	case "sch40":
+		// ASME B36.10M Schedule 40, metric columns (references §4.1);
+		// bore = OD - 2t in mm as tabulated in B36.10M.
+		return standardDef{
 			name: "sch40", title: "ASME B36.10M Schedule 40 steel", roughness: RoughnessSteel, byDN: true,
 			rows: asme([]float64{2.77, 2.87, 3.38, 3.56, 3.68, 3.91, 5.16, 5.49, 5.74, 6.02, 6.55, 7.11, 8.18, 9.27, 10.31}),
-		},
-		{
-			// ASME B36.10M Schedule 80 (= XS up to NPS 8), metric columns,
-			// from public reproductions of the B36.10M table (inch walls
-			// 0.147 ... 0.688).
+		}, true
+	case "sch80":
+		// ASME B36.10M Schedule 80 (= XS up to NPS 8), metric columns,
+		// from public reproductions of the B36.10M table (inch walls
+		// 0.147 ... 0.688).
+		return standardDef{
 			name: "sch80", title: "ASME B36.10M Schedule 80 steel", roughness: RoughnessSteel, byDN: true,
 			rows: asme([]float64{3.73, 3.91, 4.55, 4.85, 5.08, 5.54, 7.01, 7.62, 8.08, 8.56, 9.53, 10.97, 12.70, 15.09, 17.48}),
-		},
-		{
-			// EN 10255 medium series (ex BS 1387 medium), references §4.2.
+		}, true
+	case "en10255-m":
+		// EN 10255 medium series (ex BS 1387 medium), references §4.2.
+		return standardDef{
 			name: "en10255-m", title: "EN 10255 medium series steel tube", roughness: RoughnessSteel, byDN: true,
 			rows: en10255([]float64{2.6, 2.6, 3.2, 3.2, 3.2, 3.6, 3.6, 4.0, 4.5, 5.0, 5.0}),
-		},
-		{
-			// EN 10255 heavy series (ex BS 1387 heavy), references §4.2.
+		}, true
+	case "en10255-h":
+		// EN 10255 heavy series (ex BS 1387 heavy), references §4.2.
+		return standardDef{
 			name: "en10255-h", title: "EN 10255 heavy series steel tube", roughness: RoughnessSteel, byDN: true,
 			rows: en10255([]float64{3.2, 3.2, 4.0, 4.0, 4.0, 4.5, 4.5, 5.0, 5.4, 5.4, 5.4}),
-		},
-		{
-			// EN 1057 copper tube: the OD x wall combinations sold for
-			// heating in the UK and on the Continent (a UK maker's EN 1057
-			// size list and a Greek maker's catalogue; 28x1.0 from memory).
+		}, true
+	case "en1057":
+		// EN 1057 copper tube: the OD x wall combinations sold for
+		// heating in the UK and on the Continent (a UK maker's EN 1057
+		// size list and a Greek maker's catalogue; 28x1.0 from memory).
+		return standardDef{
 			name: "en1057", title: "EN 1057 copper tube", roughness: RoughnessCopper,
 			rows: tubes(15, 0.7, 15, 1.0, 22, 0.9, 22, 1.0, 22, 1.2, 28, 0.9, 28, 1.0, 28, 1.2,
 				35, 1.2, 35, 1.5, 42, 1.2, 42, 1.5, 54, 1.2, 54, 2.0, 66.7, 1.2, 76.1, 1.5,
 				108, 1.5, 133, 1.5, 159, 2.0),
-		},
-		{
-			// EN 12201-2 PE100 SDR 11 (PN 16) minimum walls, from a maker's
-			// reproduction of the EN 12201-2 table (32 mm: 3.0, not 32/11).
+		}, true
+	case "pe100-sdr11":
+		// EN 12201-2 PE100 SDR 11 (PN 16) minimum walls, from a maker's
+		// reproduction of the EN 12201-2 table (32 mm: 3.0, not 32/11).
+		return standardDef{
 			name: "pe100-sdr11", title: "EN 12201-2 PE100 SDR 11 pipe", roughness: RoughnessPlastic,
 			rows: tubes(20, 2.0, 25, 2.3, 32, 3.0, 40, 3.7, 50, 4.6, 63, 5.8, 75, 6.8, 90, 8.2,
 				110, 10.0, 125, 11.4, 160, 14.6, 200, 18.2, 225, 20.5, 250, 22.7),
-		},
+		}, true
 	}
+	return standardDef{}, false
 }
 
 // Standards returns the names LookupPipe accepts, sorted.
 func Standards() []string {
-	var names []string
-	for _, d := range catalogue() {
-		names = append(names, d.name)
-	}
+	names := standardNames()
 	sort.Strings(names)
 	return names
+}
+
+// StandardRoughness returns the absolute roughness [m] the catalogue gives
+// a standard's clean pipe, for a pipe of that standard known by its bore.
+func StandardRoughness(standard string) (float64, error) {
+	d, err := findStandard(standard)
+	if err != nil {
+		return 0, err
+	}
+	return d.roughness, nil
 }
 
 // StandardTitle returns the descriptive title of a standard name.
@@ -207,20 +227,30 @@ func (d standardDef) valid() string {
 }
 
 // normStandard folds case, spaces and "schedule" so "Sch 40", "SCH40" and
-// "schedule 40" name the same standard.
+// "schedule 40" name the same standard: lower case, "schedule" as "sch",
+// spaces and dots dropped, underscores as hyphens.
 func normStandard(s string) string {
 	s = strings.ToLower(strings.TrimSpace(s))
 	s = strings.ReplaceAll(s, "schedule", "sch")
-	s = strings.NewReplacer(" ", "", "_", "-", ".", "").Replace(s)
-	return s
+	if !strings.ContainsAny(s, " _.") {
+		return s
+	}
+	b := make([]byte, 0, len(s))
+	for i := range len(s) {
+		switch c := s[i]; c {
+		case ' ', '.':
+		case '_':
+			b = append(b, '-')
+		default:
+			b = append(b, c)
+		}
+	}
+	return string(b)
 }
 
 func findStandard(standard string) (standardDef, error) {
-	n := normStandard(standard)
-	for _, d := range catalogue() {
-		if d.name == n {
-			return d, nil
-		}
+	if d, ok := standardByName(normStandard(standard)); ok {
+		return d, nil
 	}
 	return standardDef{}, fmt.Errorf("pipe catalogue: standard %q not known (valid: %s): %w", standard, strings.Join(Standards(), ", "), ErrUnknown)
 }

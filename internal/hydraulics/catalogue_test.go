@@ -191,6 +191,46 @@ func TestStandardsAndSizes(t *testing.T) {
 	}
 }
 
+// TestStandardRoughness checks each standard's roughness against the
+// material constants (sources beside them) and that names fold as
+// LookupPipe folds them.
+func TestStandardRoughness(t *testing.T) {
+	for _, tc := range []struct {
+		std  string
+		want float64
+	}{
+		{"sch40", RoughnessSteel}, {"Schedule 80", RoughnessSteel}, {"EN10255_M", RoughnessSteel},
+		{"en10255-h", RoughnessSteel}, {"EN 1057", RoughnessCopper}, {"pe100-sdr11", RoughnessPlastic},
+	} {
+		got, err := StandardRoughness(tc.std)
+		if err != nil || got != tc.want {
+			t.Errorf("StandardRoughness(%q) = %g, %v; want %g", tc.std, got, err, tc.want)
+		}
+	}
+	if _, err := StandardRoughness("sch10"); !errors.Is(err, ErrUnknown) {
+		t.Errorf("StandardRoughness(sch10) error = %v, want ErrUnknown", err)
+	}
+}
+
+// refNormStandard is the name folding as first written, with a
+// strings.Replacer: the oracle of FuzzNormStandard.
+func refNormStandard(s string) string {
+	s = strings.ToLower(strings.TrimSpace(s))
+	s = strings.ReplaceAll(s, "schedule", "sch")
+	return strings.NewReplacer(" ", "", "_", "-", ".", "").Replace(s)
+}
+
+func FuzzNormStandard(f *testing.F) {
+	for _, s := range []string{"Sch 40", "SCH40", "schedule 40", " EN_10255-m ", "pe100.sdr11", "é_ .x", "sched ule", ""} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		if got, want := normStandard(s), refNormStandard(s); got != want {
+			t.Errorf("normStandard(%q) = %q, want %q", s, got, want)
+		}
+	})
+}
+
 func FuzzLookupPipe(f *testing.F) {
 	for _, s := range []string{"DN50", "2", "1-1/4", "1 1/4", `3/4"`, "22x1.0", "63", "1e3", "-1", "0/0", "x", ""} {
 		f.Add("sch40", s)
