@@ -122,12 +122,14 @@ func New(s *site.Site) (*Model, error) {
 	for i := range s.Valves {
 		valves[s.Valves[i].Name] = &s.Valves[i]
 	}
+	chars := map[*site.ValveModel]hydraulics.Characteristic{}
+	pipes := pipeCache{}
 	for i := range s.Branches {
 		sb := &s.Branches[i]
 		if _, dup := m.index[sb.ID]; dup {
 			return nil, fmt.Errorf("%s: branch %q appears twice: %w", sb.Pos, sb.ID, ErrModel)
 		}
-		b, err := newBranch(s, sb, valves)
+		b, err := newBranch(s, sb, valves, chars, pipes)
 		if err != nil {
 			return nil, err
 		}
@@ -197,14 +199,17 @@ func fluidState(s *site.Site) (fluid.State, error) {
 	return st, nil
 }
 
-func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel) (Branch, error) {
+// newBranch builds branch sb. chars and pipes hold the characteristics and
+// pipe lookups made so far: a site has far fewer valve models and pipe
+// sizes than branches.
+func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel, chars map[*site.ValveModel]hydraulics.Characteristic, pipes pipeCache) (Branch, error) {
 	b := Branch{ID: sb.ID, Parent: sb.Parent, Design: sb.DesignFlow, Target: sb.DesignFlow}
 	if t, ok := s.Targets[sb.ID]; ok {
 		b.Target = t
 	}
 	where := func(err error) error { return fmt.Errorf("%s: branch %q: %w", sb.Pos, sb.ID, err) }
 	if sb.PipeLength > 0 {
-		bore, rough, err := pipeBore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
+		bore, rough, err := pipes.bore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
 		if err != nil {
 			return b, where(err)
 		}
@@ -214,7 +219,7 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 			b.Fixed = append(b.Fixed, hydraulics.Fitting{K: sb.FittingsK, Bore: bore})
 		}
 	} else if sb.FittingsK > 0 {
-		bore, _, err := pipeBore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
+		bore, _, err := pipes.bore(sb.PipeStandard, sb.PipeSize, sb.PipeBore, sb.Roughness)
 		if err != nil {
 			return b, where(fmt.Errorf("fittings K needs a pipe size or bore: %w", err))
 		}
@@ -236,9 +241,13 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 		if !ok {
 			return b, where(fmt.Errorf("valve model %q is not on the valves sheet: %w", sb.Valve, ErrModel))
 		}
-		c, err := Characteristic(vm)
-		if err != nil {
-			return b, where(err)
+		c, ok := chars[vm]
+		if !ok {
+			var err error
+			if c, err = Characteristic(vm); err != nil {
+				return b, where(err)
+			}
+			chars[vm] = c
 		}
 		b.Valve, b.ValveModel = c, vm
 		_, hi := c.Range()
@@ -253,7 +262,7 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 		b.Fixed = nil
 	}
 	if sb.SupplyLength > 0 || sb.ReturnLength > 0 || sb.HeaderK > 0 {
-		bore, rough, err := pipeBore(sb.HeaderStandard, sb.HeaderSize, sb.HeaderBore, math.NaN())
+		bore, rough, err := pipes.bore(sb.HeaderStandard, sb.HeaderSize, sb.HeaderBore, math.NaN())
 		if err != nil {
 			return b, where(fmt.Errorf("header segment: %w", err))
 		}
@@ -274,13 +283,30 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 	return b, nil
 }
 
-func pipeBore(standard, size string, bore, rough float64) (float64, float64, error) {
+// pipeCache remembers the catalogue lookups of one New, by standard and
+// size ("" size: the standard's roughness).
+type pipeCache map[[2]string]pipeLookup
+
+type pipeLookup struct {
+	bore, rough float64
+	err         error
+}
+
+// bore returns the bore and roughness of a pipe given by its bore or by
+// standard and size; a NaN roughness means the standard's (steel's when
+// none is named).
+func (c pipeCache) bore(standard, size string, bore, rough float64) (float64, float64, error) {
 	if !math.IsNaN(bore) && bore > 0 {
 		if math.IsNaN(rough) {
 			rough = hydraulics.RoughnessSteel
 			if standard != "" {
-				if ps, err := hydraulics.Sizes(standard); err == nil && len(ps) > 0 {
-					rough = ps[0].Roughness
+				r, ok := c[[2]string{standard, ""}]
+				if !ok {
+					r.rough, r.err = hydraulics.StandardRoughness(standard)
+					c[[2]string{standard, ""}] = r
+				}
+				if r.err == nil {
+					rough = r.rough
 				}
 			}
 		}
@@ -289,14 +315,20 @@ func pipeBore(standard, size string, bore, rough float64) (float64, float64, err
 	if standard == "" || size == "" {
 		return 0, 0, fmt.Errorf("no bore and no pipe standard and size: %w", ErrModel)
 	}
-	ps, err := hydraulics.LookupPipe(standard, size)
-	if err != nil {
-		return 0, 0, err
+	key := [2]string{standard, size}
+	r, ok := c[key]
+	if !ok {
+		ps, err := hydraulics.LookupPipe(standard, size)
+		r = pipeLookup{ps.Bore, ps.Roughness, err}
+		c[key] = r
+	}
+	if r.err != nil {
+		return 0, 0, r.err
 	}
 	if math.IsNaN(rough) {
-		rough = ps.Roughness
+		rough = r.rough
 	}
-	return ps.Bore, rough, nil
+	return r.bore, rough, nil
 }
 
 // Characteristic turns a valve model of the sheets into its characteristic.
