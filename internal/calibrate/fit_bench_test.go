@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"flowset/internal/site"
+	"flowset/internal/synth"
 )
 
 // BenchmarkFit fits one survey state of an invented direct-return plant: a
@@ -43,5 +44,56 @@ func BenchmarkFit(b *testing.B) {
 			b.ReportMetric(float64(cal.Iterations), "steps")
 			b.ReportMetric(cal.ReducedChiSquare, "chi2/dof")
 		})
+	}
+}
+
+// BenchmarkFitSurvey fits the survey of a generated site as the command-line
+// job does (synth's default reading mix: clamp-on and valve-meter flows on
+// half the branches each, valve differentials on half, branch differentials
+// on a fifth, header and pump differentials and the total flow; one state,
+// hidden fouled and free branches), valve hypothesis tests included.
+func BenchmarkFitSurvey(b *testing.B) {
+	ctx := context.Background()
+	for _, nb := range []int{100, 1000, 10000} {
+		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			s, _, err := synth.Generate(ctx, synth.Spec{Branches: nb, Arrangement: site.DirectReturn, Nested: true,
+				Seed: 7, Fouled: 0.05, Free: 0.02, Noise: 1, States: 1})
+			if err != nil {
+				b.Fatal(err)
+			}
+			m := mustModel(b, s)
+			var cal *Calibration
+			cpu := startCPU()
+			for b.Loop() {
+				if cal, err = Fit(ctx, m, nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+			cpu.report(b)
+			b.ReportMetric(float64(cal.Solves), "solves")
+			b.ReportMetric(float64(cal.Iterations), "steps")
+			b.ReportMetric(float64(len(cal.Outliers())), "outliers")
+			b.ReportMetric(float64(len(cal.Readings)), "readings")
+		})
+	}
+}
+
+// cpuClock measures the process CPU time of a benchmark loop. On a machine
+// shared with other work wall time (ns/op) varies with the load; CPU time
+// (cpu-ns/op, which includes the garbage collector's) much less.
+type cpuClock struct {
+	start int64
+	ok    bool
+}
+
+func startCPU() cpuClock {
+	t, ok := processCPU()
+	return cpuClock{t, ok}
+}
+
+func (c cpuClock) report(b *testing.B) {
+	t, ok := processCPU()
+	if c.ok && ok && b.N > 0 {
+		b.ReportMetric(float64(t-c.start)/float64(b.N), "cpu-ns/op")
 	}
 }

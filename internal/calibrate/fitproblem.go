@@ -102,6 +102,7 @@ type stateNet struct {
 	bufL, bufN []float64
 	// kvGain is d(ln KvScale_i)/dx_j of each branch's valve parameter.
 	kvGain []float64
+	local  *localNet // for ApproxJacobian, built on first use
 }
 
 // scratch returns sn's zeroed scratch vectors.

@@ -481,6 +481,7 @@ func Solve(ctx context.Context, p Problem, x0 []float64, prior *Prior, s *Settin
 	case isOp:
 		sv.op = op
 		sv.pre, _ = p.(Preconditioner)
+		sv.sa, _ = p.(SparseApprox)
 		sv.matrixFree = true
 	case n > denseMax:
 		sv.matrixFree = true // J formed densely, but steps by CGLS
@@ -497,6 +498,7 @@ type solver struct {
 	p          Problem
 	op         Operator
 	pre        Preconditioner
+	sa         SparseApprox
 	n, m       int
 	s          Settings
 	mu, prec   []float64
@@ -608,7 +610,8 @@ type linear struct {
 	g     []float64
 	diagA []float64
 	a     *mat.SymDense
-	rnorm float64 // ‖[W^½ r; P^½(x-μ)]‖
+	rnorm float64    // ‖[W^½ r; P^½(x-μ)]‖
+	bp    *blockPrec // block preconditioner from a SparseApprox, or nil
 }
 
 func (s *solver) linearise(pt *point) (*linear, error) {
@@ -647,9 +650,21 @@ func (s *solver) linearise(pt *point) (*linear, error) {
 		floats.Add(ln.diagA, s.prec)
 	default:
 		s.diagJTJ(ln.diagA, ln.w)
+		ln.bp = s.blockPrec(ln.w, ln.diagA)
 		floats.Add(ln.diagA, s.prec)
 	}
 	return ln, nil
+}
+
+// blockPrec builds the block preconditioner of a SparseApprox problem at
+// the point the products refer to, with weights w and diag(JᵀWJ) diagJ;
+// nil without one.
+func (s *solver) blockPrec(w, diagJ []float64) *blockPrec {
+	if s.sa == nil {
+		return nil
+	}
+	rows, cols, vals := s.sa.ApproxJacobian()
+	return newBlockPrec(s.n, rows, cols, vals, w, append([]float64(nil), diagJ...))
 }
 
 // diagJTJ fills dst with diag(JᵀWJ) on the Operator path: exact from a
@@ -858,6 +873,24 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 		sp[j] = math.Sqrt(s.prec[j])
 		sl[j] = math.Sqrt(lambda * s.dscale[j])
 	}
+	// right sets dst = C v and left dst = Cᵀ v: the diagonal scaling, or
+	// with a block preconditioner M = L Lᵀ, C = L⁻ᵀ.
+	right := func(dst, v []float64) {
+		for j := range n {
+			dst[j] = c[j] * v[j]
+		}
+	}
+	left := right
+	if bp := ln.bp; bp != nil && bp.set(1, s.prec, lambda, s.dscale) {
+		right = func(dst, v []float64) {
+			copy(dst, v)
+			bp.upperSolve(dst)
+		}
+		left = func(dst, v []float64) {
+			copy(dst, v)
+			bp.lowerSolve(dst)
+		}
+	}
 	// Residual s = b - K C y, stored in three parts.
 	s1 := make([]float64, m)
 	s2 := make([]float64, n)
@@ -877,8 +910,9 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 		}
 		s.mulJT(pt, tmpN, tmpM)
 		for j := range n {
-			t[j] = c[j] * (tmpN[j] + sp[j]*s2[j] + sl[j]*s3[j])
+			tmpN[j] += sp[j]*s2[j] + sl[j]*s3[j]
 		}
+		left(t, tmpN)
 	}
 	y := make([]float64, n)
 	t := make([]float64, n)
@@ -900,9 +934,7 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 		if gamma <= s.s.CGTol*s.s.CGTol*gamma0 || gamma <= floor*floor*ss || gamma == 0 {
 			break
 		}
-		for j := range n {
-			cp[j] = c[j] * p[j]
-		}
+		right(cp, p)
 		s.mulJ(pt, q1, cp)
 		for i := range m {
 			q1[i] *= sw[i]
@@ -936,10 +968,9 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 			p[j] = t[j] + beta*p[j]
 		}
 	}
-	for j := range n {
-		y[j] *= c[j]
-	}
-	return y
+	h := make([]float64, n)
+	right(h, y)
+	return h
 }
 
 // predicted is the decrease of the local model, -gᵀh - ½hᵀAh.
@@ -1229,13 +1260,22 @@ func invertInfo(jtj *mat.SymDense, c float64, prec []float64) (*mat.SymDense, er
 // -(c-1)·P·y_k is small under a weak prior.
 func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]float64) ([]float64, [][]float64, error) {
 	n, m := s.n, s.m
+	diagJ := make([]float64, n)
+	s.diagJTJ(diagJ, w)
 	diagA := make([]float64, n)
-	s.diagJTJ(diagA, w)
 	for j := range n {
-		diagA[j] = diagA[j]/c + s.prec[j]
+		diagA[j] = diagJ[j]/c + s.prec[j]
 		if !(diagA[j] > 0) {
 			return nil, nil, fmt.Errorf("calibrate: parameter %d has no information: %w", j, ErrSingular)
 		}
+	}
+	precond := func(dst, r []float64) {
+		for j := range dst {
+			dst[j] = r[j] / diagA[j]
+		}
+	}
+	if bp := s.blockPrec(w, diagJ); bp != nil && bp.set(c, s.prec, 0, nil) {
+		precond = bp.solve
 	}
 	tm := make([]float64, m)
 	apply := func(dst, v []float64) {
@@ -1267,7 +1307,7 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 			start = append([]float64(nil), warm[k]...)
 			floats.Scale(c, start)
 		}
-		y, ok := pcg(apply, diagA, z, start, probeTol, s.s.CGMaxIter)
+		y, ok := pcg(apply, precond, z, start, probeTol, s.s.CGMaxIter)
 		if !ok {
 			return nil, nil, fmt.Errorf("calibrate: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
 		}
@@ -1285,11 +1325,11 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	return v, ys, nil
 }
 
-// pcg solves A y = b by Jacobi-preconditioned conjugate gradients (Hestenes &
+// pcg solves A y = b by preconditioned conjugate gradients (Hestenes &
 // Stiefel 1952; Saad 2003, "Iterative Methods for Sparse Linear Systems",
-// Alg. 9.1).
+// Alg. 9.1), precond setting dst = M⁻¹ r.
 // y0, when not nil, is the starting guess and is overwritten.
-func pcg(apply func(dst, v []float64), diag, b, y0 []float64, tol float64, maxIter int) ([]float64, bool) {
+func pcg(apply, precond func(dst, v []float64), b, y0 []float64, tol float64, maxIter int) ([]float64, bool) {
 	n := len(b)
 	y := y0
 	r := append([]float64(nil), b...)
@@ -1301,9 +1341,7 @@ func pcg(apply func(dst, v []float64), diag, b, y0 []float64, tol float64, maxIt
 		floats.Sub(r, ay)
 	}
 	z := make([]float64, n)
-	for j := range n {
-		z[j] = r[j] / diag[j]
-	}
+	precond(z, r)
 	p := append([]float64(nil), z...)
 	rz := floats.Dot(r, z)
 	bnorm := floats.Norm(b, 2)
@@ -1323,9 +1361,7 @@ func pcg(apply func(dst, v []float64), diag, b, y0 []float64, tol float64, maxIt
 		alpha := rz / pap
 		floats.AddScaled(y, alpha, p)
 		floats.AddScaled(r, -alpha, ap)
-		for j := range n {
-			z[j] = r[j] / diag[j]
-		}
+		precond(z, r)
 		rzNew := floats.Dot(r, z)
 		beta := rzNew / rz
 		rz = rzNew

@@ -1,0 +1,327 @@
+package calibrate
+
+import "math"
+
+// The local Jacobian: an approximation of the fit's Jacobian in which the
+// pressures at the take-off nodes of the main ladder are held. Each branch,
+// or each riser with its sub-ladder, then responds to its own parameters
+// only, through a network of a few nodes solved exactly, so the
+// approximation is sparse and cheap while it keeps what makes the
+// information matrix hard for conjugate gradients: the near-collinear
+// parameters of one branch (its resistance and its valve's Kv seen through
+// one flow) and of one riser (the riser and its sub-branches seen through
+// their flows). What it leaves out is the response of the main headers and
+// the pump, which couples every branch weakly. The engine uses it only as a
+// preconditioner (see SparseApprox), so it changes how fast the solves
+// converge, never what they converge to.
+
+// maxLocalNodes bounds the nodes of one local network: a larger one (a
+// riser with a very long sub-ladder) keeps its nodes held too, which keeps
+// the dense factorisations small at the cost of a coarser approximation.
+const maxLocalNodes = 64
+
+// localNet is the topology of a state's local networks, fixed with the
+// network's.
+type localNet struct {
+	from, to []int   // link ends
+	comp     []int   // node -> local network (-1: held)
+	pos      []int   // node -> position within its local network
+	nodes    [][]int // per local network, its nodes
+	links    [][]int // per local network, the links touching its nodes
+	// per linearisation
+	d    []float64   // floored link slopes
+	chol [][]float64 // per local network, its Cholesky factor (row-major)
+}
+
+// newLocalNet works out the local networks of state sn.
+func (p *problem) newLocalNet(sn *stateNet) *localNet {
+	net := sn.built.Net
+	nn, nl := net.NumNodes(), net.NumLinks()
+	ln := &localNet{from: make([]int, nl), to: make([]int, nl), comp: make([]int, nn), pos: make([]int, nn)}
+	held := make([]bool, nn)
+	for i := range nn {
+		_, held[i] = net.Fixed(i)
+	}
+	for _, i := range p.m.Top() {
+		id := p.m.Branches[i].ID
+		held[sn.built.SupplyNode[id]] = true
+		held[sn.built.ReturnNode[id]] = true
+	}
+	// Union-find over links joining two free nodes.
+	parent := make([]int, nn)
+	for i := range parent {
+		parent[i] = i
+	}
+	var find func(int) int
+	find = func(i int) int {
+		for parent[i] != i {
+			parent[i] = parent[parent[i]]
+			i = parent[i]
+		}
+		return i
+	}
+	for l := range nl {
+		a, b := net.LinkEnds(l)
+		ln.from[l], ln.to[l] = a, b
+		if !held[a] && !held[b] {
+			parent[find(a)] = find(b)
+		}
+	}
+	root := map[int]int{}
+	for i := range nn {
+		ln.comp[i] = -1
+		if held[i] {
+			continue
+		}
+		r := find(i)
+		c, ok := root[r]
+		if !ok {
+			c = len(ln.nodes)
+			root[r] = c
+			ln.nodes = append(ln.nodes, nil)
+		}
+		ln.comp[i] = c
+		ln.pos[i] = len(ln.nodes[c])
+		ln.nodes[c] = append(ln.nodes[c], i)
+	}
+	for c, ns := range ln.nodes {
+		if len(ns) > maxLocalNodes {
+			for _, i := range ns {
+				ln.comp[i] = -1
+			}
+			ln.nodes[c] = nil
+		}
+	}
+	ln.links = make([][]int, len(ln.nodes))
+	for l := range nl {
+		ca, cb := ln.comp[ln.from[l]], ln.comp[ln.to[l]]
+		if ca >= 0 {
+			ln.links[ca] = append(ln.links[ca], l)
+		}
+		if cb >= 0 && cb != ca {
+			ln.links[cb] = append(ln.links[cb], l)
+		}
+	}
+	ln.chol = make([][]float64, len(ln.nodes))
+	return ln
+}
+
+// factor assembles and factorises every local network's node matrix
+// A21 D⁻¹ A12 at the slopes of sn's solution, floored as the network solver
+// floors them.
+func (ln *localNet) factor(sn *stateNet) bool {
+	slope := sn.sol.Slope
+	if len(ln.d) != len(slope) {
+		ln.d = make([]float64, len(slope))
+	}
+	var smax float64
+	for _, v := range slope {
+		smax = max(smax, v)
+	}
+	floor := 1e-12 * smax
+	if !(floor > 0) {
+		floor = 1
+	}
+	for l, v := range slope {
+		ln.d[l] = max(v, floor)
+	}
+	for c, ns := range ln.nodes {
+		k := len(ns)
+		if k == 0 {
+			continue
+		}
+		a := ln.chol[c]
+		if len(a) != k*k {
+			a = make([]float64, k*k)
+			ln.chol[c] = a
+		}
+		clear(a)
+		for _, l := range ln.links[c] {
+			g := 1 / ln.d[l]
+			pa, pb := ln.local(c, ln.from[l]), ln.local(c, ln.to[l])
+			if pa >= 0 {
+				a[pa*k+pa] += g
+			}
+			if pb >= 0 {
+				a[pb*k+pb] += g
+			}
+			if pa >= 0 && pb >= 0 {
+				a[pa*k+pb] -= g
+				a[pb*k+pa] -= g
+			}
+		}
+		if !cholesky(a, k) {
+			return false
+		}
+	}
+	return true
+}
+
+// local returns node's position in local network c, or -1.
+func (ln *localNet) local(c, node int) int {
+	if ln.comp[node] != c {
+		return -1
+	}
+	return ln.pos[node]
+}
+
+// cholesky factorises the k×k symmetric positive definite a in place into
+// its lower factor L (a = L Lᵀ); the upper triangle is left as it was.
+func cholesky(a []float64, k int) bool {
+	for j := range k {
+		s := a[j*k+j]
+		for p := range j {
+			s -= a[j*k+p] * a[j*k+p]
+		}
+		if !(s > 0) {
+			return false
+		}
+		ljj := math.Sqrt(s)
+		a[j*k+j] = ljj
+		for i := j + 1; i < k; i++ {
+			s := a[i*k+j]
+			for p := range j {
+				s -= a[i*k+p] * a[j*k+p]
+			}
+			a[i*k+j] = s / ljj
+		}
+	}
+	return true
+}
+
+// cholSolve solves L Lᵀ x = b in place, L from cholesky.
+func cholSolve(l []float64, k int, b []float64) {
+	for i := range k {
+		s := b[i]
+		for p := range i {
+			s -= l[i*k+p] * b[p]
+		}
+		b[i] = s / l[i*k+i]
+	}
+	for i := k - 1; i >= 0; i-- {
+		s := b[i]
+		for p := i + 1; p < k; p++ {
+			s -= l[p*k+i] * b[p]
+		}
+		b[i] = s / l[i*k+i]
+	}
+}
+
+// ApproxJacobian implements SparseApprox: the local Jacobian (see above) at
+// the latest Residuals call, entries (row, column, value).
+func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
+	_, m := p.Dims()
+	acc := make([]float64, m)
+	var touched []int
+	add := func(oi int, v float64) {
+		if v == 0 {
+			return
+		}
+		if acc[oi] == 0 {
+			touched = append(touched, oi)
+		}
+		acc[oi] += v
+		if acc[oi] == 0 {
+			acc[oi] = math.SmallestNonzeroFloat64 // keep it listed once
+		}
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 || sn.sol == nil {
+			continue
+		}
+		if sn.local == nil {
+			sn.local = p.newLocalNet(sn)
+		}
+		ln := sn.local
+		if !ln.factor(sn) {
+			continue // leaves the state out: a coarser preconditioner
+		}
+		// Which observations read each link's flow and each node's
+		// pressure, and which depend on a parameter directly.
+		linkObs := make([][]term, len(ln.from))
+		nodeObs := make([][]term, len(ln.comp))
+		direct := make([][]term, len(p.params))
+		for k, oi := range sn.obs {
+			for _, t := range sn.lin[k].q {
+				linkObs[t.i] = append(linkObs[t.i], term{oi, t.c})
+			}
+			for _, t := range sn.lin[k].p {
+				nodeObs[t.i] = append(nodeObs[t.i], term{oi, t.c})
+			}
+			for _, t := range sn.lin[k].x {
+				direct[t.i] = append(direct[t.i], term{oi, t.c})
+			}
+		}
+		rhs := make([][]float64, len(ln.nodes))
+		dq := make([]float64, len(ln.from))
+		var marked, links []int
+		addq := func(l int, v float64) {
+			if dq[l] == 0 {
+				links = append(links, l)
+			}
+			dq[l] += v
+			if dq[l] == 0 {
+				dq[l] = math.SmallestNonzeroFloat64
+			}
+		}
+		for j := range p.params {
+			marked, links = marked[:0], links[:0]
+			for _, t := range sn.dh[j] {
+				l := t.i
+				g := t.c / ln.d[l]
+				addq(l, -g)
+				for _, e := range [2]struct {
+					node int
+					s    float64
+				}{{ln.from[l], g}, {ln.to[l], -g}} {
+					c := ln.comp[e.node]
+					if c < 0 {
+						continue
+					}
+					if rhs[c] == nil {
+						rhs[c] = make([]float64, len(ln.nodes[c]))
+						marked = append(marked, c)
+					}
+					rhs[c][ln.pos[e.node]] += e.s
+				}
+			}
+			for _, c := range marked {
+				x := rhs[c]
+				cholSolve(ln.chol[c], len(x), x)
+				for _, l := range ln.links[c] {
+					var xa, xb float64
+					if q := ln.local(c, ln.from[l]); q >= 0 {
+						xa = x[q]
+					}
+					if q := ln.local(c, ln.to[l]); q >= 0 {
+						xb = x[q]
+					}
+					addq(l, -(xb-xa)/ln.d[l])
+				}
+				for q, node := range ln.nodes[c] {
+					for _, t := range nodeObs[node] {
+						add(t.i, t.c*x[q])
+					}
+				}
+				rhs[c] = nil
+			}
+			for _, l := range links {
+				for _, t := range linkObs[l] {
+					add(t.i, t.c*dq[l])
+				}
+				dq[l] = 0
+			}
+			for _, t := range direct[j] {
+				add(t.i, t.c)
+			}
+			for _, oi := range touched {
+				rows = append(rows, oi)
+				cols = append(cols, j)
+				vals = append(vals, acc[oi]/p.obs[oi].sigma)
+				acc[oi] = 0
+			}
+			touched = touched[:0]
+		}
+	}
+	return rows, cols, vals
+}

@@ -1,0 +1,282 @@
+package calibrate
+
+import "math"
+
+// SparseApprox is optional for an Operator problem: ApproxJacobian returns
+// the non-zero entries (row i, column j, value) of an approximation J̃ of
+// the Jacobian at the latest Residuals call, each (i, j) at most once, whose
+// rows touch few parameters. Solve then preconditions its conjugate-gradient
+// solves with the block-diagonal part of J̃ᵀWJ̃ + P (+ λD in a step), the
+// blocks being the groups of parameters that share rows of J̃ (block Jacobi;
+// Saad 2003, "Iterative Methods for Sparse Linear Systems", §10.1), instead
+// of the diagonal of JᵀWJ + P alone. J̃ changes only how fast the solves
+// converge and how noisy the probed variances are, never what the solves
+// converge to: a poor J̃ makes them slower, not wrong.
+type SparseApprox interface {
+	ApproxJacobian() (rows, cols []int, vals []float64)
+}
+
+// Limits of the block preconditioner: a row of J̃ with more non-zeros
+// couples too much to be kept whole (a total flow over every branch) and
+// adds only to the diagonal, a column with more stays out of every block,
+// and a group larger than maxBlock is split into single parameters.
+const (
+	maxRowCoupling = 64
+	maxBlock       = 64
+)
+
+// blockPrec is the block-Jacobi preconditioner M = blocks of J̃ᵀWJ̃/c + P
+// + λD, with J̃ from SparseApprox. Parameters outside every block use the
+// diagonal alone: the larger of J̃'s and diag(A), which is exact or an
+// unbiased estimate of the true one.
+type blockPrec struct {
+	n      int
+	blocks [][]int     // parameters of each block (two or more)
+	gram   [][]float64 // per block, J̃ᵀWJ̃ restricted to it, row-major
+	gdiag  []float64   // diag(J̃ᵀWJ̃)
+	diagA  []float64   // diag(JᵀWJ) as the engine has it, for the rest
+	single []int       // parameters outside every block
+	// current M
+	chol [][]float64 // per block, lower Cholesky factor
+	sd   []float64   // per single parameter, √M_jj
+}
+
+// newBlockPrec groups the parameters by the rows of J̃ and accumulates
+// J̃ᵀWJ̃ on each group.
+func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec {
+	bp := &blockPrec{n: n, gdiag: make([]float64, n), diagA: diagA}
+	// Rows in order.
+	m := len(w)
+	start := make([]int, m+1)
+	for _, i := range rows {
+		start[i+1]++
+	}
+	for i := range m {
+		start[i+1] += start[i]
+	}
+	next := append([]int(nil), start[:m]...)
+	rc := make([]int, len(rows))
+	rv := make([]float64, len(rows))
+	for k, i := range rows {
+		rc[next[i]], rv[next[i]] = cols[k], vals[k]
+		next[i]++
+	}
+	parent := make([]int, n)
+	for j := range parent {
+		parent[j] = j
+	}
+	find := func(j int) int {
+		for parent[j] != j {
+			parent[j] = parent[parent[j]]
+			j = parent[j]
+		}
+		return j
+	}
+	// A column with many entries (the header, the pump) would join every
+	// group into one: it stays on its own.
+	colN := make([]int, n)
+	for _, j := range cols {
+		colN[j]++
+	}
+	hub := func(j int) bool { return colN[j] > maxRowCoupling }
+	for i := range m {
+		cs := rc[start[i]:start[i+1]]
+		if len(cs) < 2 || len(cs) > maxRowCoupling {
+			continue
+		}
+		r0 := -1
+		for _, j := range cs {
+			if hub(j) {
+				continue
+			}
+			if r0 < 0 {
+				r0 = find(j)
+			} else if r := find(j); r != r0 {
+				parent[r] = r0
+			}
+		}
+	}
+	size := make([]int, n)
+	for j := range n {
+		size[find(j)]++
+	}
+	block := make([]int, n) // parameter -> block, -1
+	pos := make([]int, n)   // position within its block
+	id := map[int]int{}
+	for j := range n {
+		block[j] = -1
+		r := find(j)
+		if hub(j) || size[r] < 2 || size[r] > maxBlock {
+			bp.single = append(bp.single, j)
+			continue
+		}
+		b, ok := id[r]
+		if !ok {
+			b = len(bp.blocks)
+			id[r] = b
+			bp.blocks = append(bp.blocks, nil)
+		}
+		block[j], pos[j] = b, len(bp.blocks[b])
+		bp.blocks[b] = append(bp.blocks[b], j)
+	}
+	bp.gram = make([][]float64, len(bp.blocks))
+	for b, ps := range bp.blocks {
+		bp.gram[b] = make([]float64, len(ps)*len(ps))
+	}
+	for i := range m {
+		if w[i] == 0 {
+			continue
+		}
+		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
+		for a, j := range cs {
+			bp.gdiag[j] += w[i] * vs[a] * vs[a]
+			if len(cs) > maxRowCoupling || block[j] < 0 {
+				continue
+			}
+			g, k := bp.gram[block[j]], len(bp.blocks[block[j]])
+			for e, l := range cs {
+				if block[l] == block[j] {
+					g[pos[j]*k+pos[l]] += w[i] * vs[a] * vs[e]
+				}
+			}
+		}
+	}
+	// Rows too long to keep whole still add their diagonal.
+	for i := range m {
+		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
+		if len(cs) <= maxRowCoupling {
+			continue
+		}
+		for a, j := range cs {
+			if b := block[j]; b >= 0 {
+				k := len(bp.blocks[b])
+				bp.gram[b][pos[j]*k+pos[j]] += w[i] * vs[a] * vs[a]
+			}
+		}
+	}
+	bp.chol = make([][]float64, len(bp.blocks))
+	bp.sd = make([]float64, len(bp.single))
+	return bp
+}
+
+// set factorises M = gram/c + diag(prec) + λ·diag(dscale) (dscale nil: no
+// damping). It returns false when a block is not positive definite.
+func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []float64) bool {
+	damp := func(j int) float64 {
+		if dscale == nil {
+			return 0
+		}
+		return lambda * dscale[j]
+	}
+	for b, ps := range bp.blocks {
+		k := len(ps)
+		l := bp.chol[b]
+		if len(l) != k*k {
+			l = make([]float64, k*k)
+			bp.chol[b] = l
+		}
+		for e, v := range bp.gram[b] {
+			l[e] = v / c
+		}
+		for a, j := range ps {
+			l[a*k+a] += prec[j] + damp(j)
+		}
+		if !cholesky(l, k) {
+			return false
+		}
+	}
+	for a, j := range bp.single {
+		d := max(bp.gdiag[j], bp.diagA[j])/c + prec[j] + damp(j)
+		if !(d > 0) {
+			return false
+		}
+		bp.sd[a] = math.Sqrt(d)
+	}
+	return true
+}
+
+// lowerSolve sets v ← L⁻¹ v and upperSolve v ← L⁻ᵀ v, with M = L Lᵀ.
+func (bp *blockPrec) lowerSolve(v []float64) {
+	var buf [maxBlock]float64
+	for b, ps := range bp.blocks {
+		k, l := len(ps), bp.chol[b]
+		x := buf[:k]
+		for a, j := range ps {
+			x[a] = v[j]
+		}
+		for i := range k {
+			s := x[i]
+			for p := range i {
+				s -= l[i*k+p] * x[p]
+			}
+			x[i] = s / l[i*k+i]
+		}
+		for a, j := range ps {
+			v[j] = x[a]
+		}
+	}
+	for a, j := range bp.single {
+		v[j] /= bp.sd[a]
+	}
+}
+
+func (bp *blockPrec) upperSolve(v []float64) {
+	var buf [maxBlock]float64
+	for b, ps := range bp.blocks {
+		k, l := len(ps), bp.chol[b]
+		x := buf[:k]
+		for a, j := range ps {
+			x[a] = v[j]
+		}
+		for i := k - 1; i >= 0; i-- {
+			s := x[i]
+			for p := i + 1; p < k; p++ {
+				s -= l[p*k+i] * x[p]
+			}
+			x[i] = s / l[i*k+i]
+		}
+		for a, j := range ps {
+			v[j] = x[a]
+		}
+	}
+	for a, j := range bp.single {
+		v[j] /= bp.sd[a]
+	}
+}
+
+// solve sets dst = M⁻¹ r.
+func (bp *blockPrec) solve(dst, r []float64) {
+	copy(dst, r)
+	bp.lowerSolve(dst)
+	bp.upperSolve(dst)
+}
+
+// invDiag returns diag(M⁻¹).
+func (bp *blockPrec) invDiag() []float64 {
+	out := make([]float64, bp.n)
+	for b, ps := range bp.blocks {
+		k, l := len(ps), bp.chol[b]
+		// (M⁻¹)_aa = ‖L⁻¹ e_a‖².
+		x := make([]float64, k)
+		for a := range k {
+			clear(x)
+			x[a] = 1
+			for i := a; i < k; i++ {
+				s := x[i]
+				for p := a; p < i; p++ {
+					s -= l[i*k+p] * x[p]
+				}
+				x[i] = s / l[i*k+i]
+			}
+			var s float64
+			for _, v := range x[a:] {
+				s += v * v
+			}
+			out[ps[a]] = s
+		}
+	}
+	for a, j := range bp.single {
+		out[j] = 1 / (bp.sd[a] * bp.sd[a])
+	}
+	return out
+}
