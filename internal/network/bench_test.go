@@ -127,3 +127,29 @@ func (c cpuClock) report(b *testing.B) {
 		b.ReportMetric(float64(t-c.start)/float64(b.N), "cpu-ns/op")
 	}
 }
+
+// BenchmarkBuild makes the network of a direct-return ladder, as plant
+// does before each cold solve.
+func BenchmarkBuild(b *testing.B) {
+	for _, nb := range []int{1000, 10000, 100000} {
+		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			bt := benchLadder(b, nb)
+			var l Ladder
+			l.Arrangement = DirectReturn
+			for k := range nb {
+				id := bt.Net.LinkID(bt.Branch[fmt.Sprintf("b%d", k)])
+				l.Branches = append(l.Branches, Branch{ID: id, Elements: bt.Net.Elements(bt.Branch[id]),
+					Supply: bt.Net.Elements(bt.Branch[id] - 2), Return: bt.Net.Elements(bt.Branch[id] - 1)})
+			}
+			src := Source{Pump: bt.Net.Elements(bt.PumpLink)[0], Static: 1.5e5}
+			b.ReportAllocs()
+			cpu := startCPU()
+			for b.Loop() {
+				if _, err := Build(l, src, water20); err != nil {
+					b.Fatal(err)
+				}
+			}
+			cpu.report(b)
+		})
+	}
+}

@@ -110,14 +110,26 @@ const (
 // "<ID>.riser". Nodes are added in take-off order, supply and return
 // interleaved, so the node matrix has a small bandwidth.
 func Build(l Ladder, src Source, f fluid.State) (*Built, error) {
+	// Size the maps and slices for the whole tree at once: growing maps of
+	// tens of thousands of IDs cost more than solving the network.
+	nb := countBranches(&l, map[*Ladder]bool{})
+	net := New(f)
+	net.nodeIndex = make(map[string]int, 3*nb+3)
+	net.linkIndex = make(map[string]int, 3*nb+2)
+	net.nodeID = make([]string, 0, 3*nb+3)
+	net.fixed = make([]bool, 0, 3*nb+3)
+	net.pfix = make([]float64, 0, 3*nb+3)
+	net.demand = make([]float64, 0, 3*nb+3)
+	net.links = make([]link, 0, 3*nb+2)
 	b := &builder{
-		net: New(f),
+		net: net,
 		out: &Built{
-			Branch:     map[string]int{},
-			SupplyNode: map[string]int{},
-			ReturnNode: map[string]int{},
+			Branch:     make(map[string]int, nb),
+			SupplyNode: make(map[string]int, nb),
+			ReturnNode: make(map[string]int, nb),
 			PumpLink:   -1,
 			MainLink:   -1,
+			Headers:    make([]int, 0, 2*nb),
 		},
 		path: map[*Ladder]bool{},
 	}
@@ -125,22 +137,22 @@ func Build(l Ladder, src Source, f fluid.State) (*Built, error) {
 	if !finite(src.Static) {
 		return nil, fmt.Errorf("build: static pressure %g: %w", src.Static, ErrInput)
 	}
-	ret := b.net.AddNode(ReturnID)
+	ret := b.net.addNode(ReturnID)
 	b.net.FixPressure(ret, src.Static)
 	var sup int
 	if src.Pump != nil {
-		sup = b.net.AddNode(PumpOutletID)
-		b.out.PumpLink = b.net.AddLink(PumpID, ret, sup, src.Pump)
+		sup = b.net.addNode(PumpOutletID)
+		b.out.PumpLink = b.net.addLink(PumpID, ret, sup, []hydraulics.Element{src.Pump})
 	} else {
 		if !(src.Differential > 0) || math.IsInf(src.Differential, 1) {
 			return nil, fmt.Errorf("build: source differential %g Pa must be positive without a pump: %w", src.Differential, ErrInput)
 		}
-		sup = b.net.AddNode(SupplyID)
+		sup = b.net.addNode(SupplyID)
 		b.net.FixPressure(sup, src.Static+src.Differential)
 	}
 	if len(src.Main) > 0 {
-		top := b.net.AddNode(MainOutletID)
-		b.out.MainLink = b.net.AddLink(MainID, sup, top, src.Main...)
+		top := b.net.addNode(MainOutletID)
+		b.out.MainLink = b.net.addLink(MainID, sup, top, b.elems(src.Main))
 		sup = top
 	}
 	if err := b.ladder(&l, sup, ret); err != nil {
@@ -149,13 +161,48 @@ func Build(l Ladder, src Source, f fluid.State) (*Built, error) {
 	if b.net.addErr != nil {
 		return nil, fmt.Errorf("build: %w", b.net.addErr)
 	}
+	b.net.invalidate()
 	return b.out, nil
+}
+
+// countBranches returns the number of branches of l and its sub-ladders,
+// each ladder counted once on a path (Build reports a ladder that contains
+// itself).
+func countBranches(l *Ladder, path map[*Ladder]bool) int {
+	if path[l] {
+		return 0
+	}
+	path[l] = true
+	defer delete(path, l)
+	n := len(l.Branches)
+	for i := range l.Branches {
+		if sub := l.Branches[i].Sub; sub != nil {
+			n += countBranches(sub, path)
+		}
+	}
+	return n
 }
 
 type builder struct {
 	net  *Network
 	out  *Built
-	path map[*Ladder]bool // ladders being built, to catch a Sub that contains itself
+	path map[*Ladder]bool     // ladders being built, to catch a Sub that contains itself
+	slab []hydraulics.Element // free part of the chunk the links' element lists are cut from
+}
+
+// elems returns a copy of es for a link, cut from a shared chunk so a large
+// ladder does not allocate once per link.
+func (b *builder) elems(es []hydraulics.Element) []hydraulics.Element {
+	if len(es) == 0 {
+		return nil
+	}
+	if len(b.slab) < len(es) {
+		b.slab = make([]hydraulics.Element, max(len(es), 4096))
+	}
+	out := b.slab[:len(es):len(es)]
+	copy(out, es)
+	b.slab = b.slab[len(es):]
+	return out
 }
 
 func (b *builder) ladder(l *Ladder, sup, ret int) error {
@@ -172,13 +219,13 @@ func (b *builder) ladder(l *Ladder, sup, ret int) error {
 		if br.ID == "" {
 			return fmt.Errorf("build: branch with an empty id: %w", ErrInput)
 		}
-		if _, dup := b.out.Branch[br.ID]; dup {
+		before := len(b.out.Branch)
+		if b.out.Branch[br.ID] = -1; len(b.out.Branch) == before {
 			return fmt.Errorf("build: duplicate branch id %q: %w", br.ID, ErrInput)
 		}
-		b.out.Branch[br.ID] = -1
 	}
 	header := func(id string, from, to int, elems []hydraulics.Element) {
-		b.out.Headers = append(b.out.Headers, b.net.AddLink(id, from, to, elems...))
+		b.out.Headers = append(b.out.Headers, b.net.addLink(id, from, to, b.elems(elems)))
 	}
 	switch l.Arrangement {
 	case NoHeaderLoss:
@@ -192,11 +239,11 @@ func (b *builder) ladder(l *Ladder, sup, ret int) error {
 		for _, br := range l.Branches {
 			s, r := ps, pr
 			if len(br.Supply) > 0 {
-				s = b.net.AddNode(br.ID + ".supply")
+				s = b.net.addNode(br.ID + ".supply")
 				header(br.ID+".supply-header", ps, s, br.Supply)
 			}
 			if len(br.Return) > 0 {
-				r = b.net.AddNode(br.ID + ".return")
+				r = b.net.addNode(br.ID + ".return")
 				header(br.ID+".return-header", r, pr, br.Return)
 			}
 			if err := b.branch(br, s, r); err != nil {
@@ -221,14 +268,14 @@ func (b *builder) ladder(l *Ladder, sup, ret int) error {
 		for k, br := range l.Branches {
 			s := ps
 			if len(br.Supply) > 0 {
-				s = b.net.AddNode(br.ID + ".supply")
+				s = b.net.addNode(br.ID + ".supply")
 				header(br.ID+".supply-header", ps, s, br.Supply)
 			}
 			switch {
 			case legEmpty && group[k] == group[nb-1]:
 				rn[k] = ret
 			case group[k] == k:
-				rn[k] = b.net.AddNode(br.ID + ".return")
+				rn[k] = b.net.addNode(br.ID + ".return")
 			default:
 				rn[k] = rn[k-1]
 			}
@@ -256,13 +303,13 @@ func (b *builder) branch(br Branch, s, r int) error {
 		if len(br.Elements) == 0 {
 			return fmt.Errorf("build: branch %q has no elements and no sub-ladder: %w", br.ID, ErrInput)
 		}
-		b.out.Branch[br.ID] = b.net.AddLink(br.ID, s, r, br.Elements...)
+		b.out.Branch[br.ID] = b.net.addLink(br.ID, s, r, b.elems(br.Elements))
 		return nil
 	}
 	top := s
 	if len(br.Elements) > 0 {
-		top = b.net.AddNode(br.ID + ".riser")
-		b.out.Branch[br.ID] = b.net.AddLink(br.ID, s, top, br.Elements...)
+		top = b.net.addNode(br.ID + ".riser")
+		b.out.Branch[br.ID] = b.net.addLink(br.ID, s, top, b.elems(br.Elements))
 	}
 	return b.ladder(br.Sub, top, r)
 }

@@ -14,6 +14,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sync"
 
 	"flowset/internal/fluid"
@@ -88,20 +89,28 @@ func (n *Network) noteErr(err error) {
 // AddNode adds a node and returns its index. IDs should be unique; a
 // duplicate is reported by Solve.
 func (n *Network) AddNode(id string) int {
+	i := n.addNode(id)
+	n.invalidate()
+	return i
+}
+
+// addNode is AddNode without invalidating the plan, for Build.
+func (n *Network) addNode(id string) int {
 	if n.nodeIndex == nil {
 		n.nodeIndex = map[string]int{}
 	}
 	i := len(n.nodeID)
-	if _, dup := n.nodeIndex[id]; dup {
+	// One map operation for a new ID; a duplicate keeps the first index.
+	before := len(n.nodeIndex)
+	n.nodeIndex[id] = i
+	if len(n.nodeIndex) == before {
+		n.nodeIndex[id] = slices.Index(n.nodeID, id)
 		n.noteErr(fmt.Errorf("duplicate node id %q: %w", id, ErrTopology))
-	} else {
-		n.nodeIndex[id] = i
 	}
 	n.nodeID = append(n.nodeID, id)
 	n.fixed = append(n.fixed, false)
 	n.pfix = append(n.pfix, 0)
 	n.demand = append(n.demand, 0)
-	n.invalidate()
 	return i
 }
 
@@ -111,17 +120,25 @@ func (n *Network) AddNode(id string) int {
 // is an ideal connection (zero drop). Invalid node indices, a link from a
 // node to itself and duplicate IDs are reported by Solve.
 func (n *Network) AddLink(id string, from, to int, elems ...hydraulics.Element) int {
+	i := n.addLink(id, from, to, append([]hydraulics.Element(nil), elems...))
+	n.invalidate()
+	return i
+}
+
+// addLink is AddLink without invalidating the plan, keeping elems (which
+// the caller gives up) as the link's elements.
+func (n *Network) addLink(id string, from, to int, elems []hydraulics.Element) int {
 	if n.linkIndex == nil {
 		n.linkIndex = map[string]int{}
 	}
 	i := len(n.links)
-	if _, dup := n.linkIndex[id]; dup {
+	before := len(n.linkIndex)
+	n.linkIndex[id] = i
+	if len(n.linkIndex) == before {
+		n.linkIndex[id] = slices.IndexFunc(n.links, func(l link) bool { return l.id == id })
 		n.noteErr(fmt.Errorf("duplicate link id %q: %w", id, ErrTopology))
-	} else {
-		n.linkIndex[id] = i
 	}
-	n.links = append(n.links, link{id: id, from: from, to: to, elems: append([]hydraulics.Element(nil), elems...)})
-	n.invalidate()
+	n.links = append(n.links, link{id: id, from: from, to: to, elems: elems})
 	return i
 }
 
