@@ -33,10 +33,11 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 		c.A0 *= pl.p.PumpHead
 		c.A1 *= pl.p.PumpHead
 		c.A2 *= pl.p.PumpHead
-		if pl.plan.Speed <= 1 {
-			if d, err := hydraulics.TrimDiameterRatio(c, pp.After.Flow, pp.After.Head); err == nil {
+		// A trim only helps a pump with head to spare: at full speed (or
+		// short of the targets) there is nothing to trim.
+		if pl.plan.Speed < 1 && len(pl.plan.Unmet) == 0 {
+			if d, err := hydraulics.TrimDiameterRatio(c, pp.After.Flow, pp.After.Head); err == nil && d < 1 {
 				pp.TrimRatio = d
-				pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("at fixed speed, an impeller trimmed to %.1f %% of its diameter gives the same duty (diameter affinity laws: approximate, trim in steps and re-test)", 100*d))
 			}
 		}
 	}

@@ -58,16 +58,22 @@ func (p *Plan) Summary() []string {
 		out = append(out, fmt.Sprintf("Pump speed: %.1f %% of nominal.", 100*pp.SpeedRatio))
 	}
 	if finite(pp.TrimRatio) {
-		out = append(out, fmt.Sprintf("Fixed-speed alternative: impeller trimmed to %.1f %% of its diameter (approximate).", 100*pp.TrimRatio))
+		out = append(out, fmt.Sprintf("Fixed-speed alternative: impeller trimmed to %.1f %% of its diameter (diameter affinity laws, approximate: trim in steps and re-test).", 100*pp.TrimRatio))
 	}
 	out = append(out, fmt.Sprintf("Differential at the sensor (%s): %.1f kPa.", pp.Sensor, pp.SetPoint/1e3))
 	out = append(out, fmt.Sprintf("Branches predicted in tolerance (%+.0f %% to %+.0f %%): %d of %d.", 100*p.ToleranceLow, 100*p.ToleranceHigh, p.InTolerance(), len(p.Branches)))
 	if pp.HaveBefore {
 		out = append(out, fmt.Sprintf("Pump electrical power: %.0f W before, %.0f W after.", pp.ElectricalBefore, pp.ElectricalAfter))
 		if finite(pp.AnnualEnergySaving) {
-			line := fmt.Sprintf("Annual energy saving: %.0f kWh", pp.AnnualEnergySaving)
-			if finite(pp.AnnualCostSaving) {
-				line += fmt.Sprintf(", %.0f %s", pp.AnnualCostSaving, pp.Currency)
+			word, kwh, cost := "saving", pp.AnnualEnergySaving, pp.AnnualCostSaving
+			if math.Round(kwh) < 0 {
+				// The plan needs more pump power than as found (short
+				// branches brought up to design): say so without a minus.
+				word, kwh, cost = "increase", -kwh, -cost
+			}
+			line := fmt.Sprintf("Annual energy %s: %.0f kWh", word, math.Abs(math.Round(kwh)))
+			if finite(cost) {
+				line += fmt.Sprintf(", %.0f %s", math.Abs(math.Round(cost)), pp.Currency)
 			}
 			out = append(out, line+".")
 		}

@@ -90,10 +90,14 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		if max(pp.ElectricalBefore, pp.ElectricalAfter) < 1000 {
 			format, scale = "%.0f W", 1
 		}
-		sum.EnergySaving = fmt.Sprintf("pump electrical power "+format+" -> "+format+"%s, about %.0f kWh a year",
-			pp.ElectricalBefore*scale, pp.ElectricalAfter*scale, change, round0(pp.AnnualEnergySaving))
-		if !math.IsNaN(pp.AnnualCostSaving) {
-			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", round0(pp.AnnualCostSaving), pp.Currency)
+		word, kwh, cost := "saved", pp.AnnualEnergySaving, pp.AnnualCostSaving
+		if round0(kwh) < 0 {
+			word, kwh, cost = "more", -kwh, -cost
+		}
+		sum.EnergySaving = fmt.Sprintf("pump electrical power "+format+" -> "+format+"%s, about %.0f kWh a year %s",
+			pp.ElectricalBefore*scale, pp.ElectricalAfter*scale, change, round0(kwh), word)
+		if !math.IsNaN(cost) {
+			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", round0(cost), pp.Currency)
 		}
 	}
 	sum.Notes = append(sum.Notes, plan.Summary()...)
