@@ -127,8 +127,9 @@ func colebrook(re, rr float64) (f, df float64) {
 	u -= clamondStep(u, x1, u+math.Log(a+beta*u))
 	x := twoOverLn10 * u
 	s := a + b*x
-	f = 1 / (x * x)
-	df = -4 * b * inv * f / (s*math.Ln10 + 2*b)
+	x2 := x * x
+	f = 1 / x2
+	df = -4 * b * inv / (x2 * (s*math.Ln10 + 2*b)) // = -4b f/(Re (s ln10 + 2b)), not waiting for f
 	return f, df
 }
 

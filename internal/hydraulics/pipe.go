@@ -45,18 +45,23 @@ func (p Pipe) Reynolds(q float64, f fluid.State) float64 {
 // dp = 32 μ L v / D², which is the Darcy-Weisbach equation with f = 64/Re
 // written without the division by Re, so the slope stays finite at q = 0.
 // Elsewhere the slope is exact: d(f v|v|)/dv = |v| (2f + Re df/dRe).
+//
+// The divisions are by the pipe's and fluid's constants only, so they do not
+// wait for q: Drop sits on the critical path of every network evaluation.
 func (p Pipe) Drop(q float64, f fluid.State) (dp, slope float64) {
 	area := p.Area()
-	v := q / area
-	re := f.Density * math.Abs(v) * p.Bore / f.Viscosity
+	invA := 1 / area
+	req := f.Density * p.Bore / (f.Viscosity * area) // Re per unit |q|
+	v := q * invA
+	re := math.Abs(q) * req
 	if re <= LaminarLimit {
 		c := 32 * f.Viscosity * p.Length / (p.Bore * p.Bore)
-		return c * v, c / area
+		return c * v, c * invA
 	}
 	ff, df := friction(re, p.Roughness/p.Bore)
 	k := p.Length / p.Bore * f.Density / 2
 	av := math.Abs(v)
-	return k * ff * v * av, k * av * (2*ff + re*df) / area
+	return k * ff * v * av, k * av * (2*ff + re*df) * invA
 }
 
 // Fitting is a lumped minor loss (bend, tee, strainer, entry and exit):
