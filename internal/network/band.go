@@ -24,19 +24,26 @@ const blockedBand = 32
 type bandFactor struct {
 	n, k int
 	u    []float64
+	rd   []float64 // 1/U[i][i]: the solves multiply, which is shorter on their critical path than dividing
 }
 
 // factorBand factorises in place the n×n matrix of half bandwidth k stored
-// by rows from the diagonal: data[i*(k+1)+j-i] = A[i][j] for i <= j <= i+k.
-// It reports false when the matrix is not positive definite.
-func factorBand(n, k int, data []float64) (*bandFactor, bool) {
-	f := &bandFactor{n: n, k: k, u: data}
+// by rows from the diagonal: data[i*(k+1)+j-i] = A[i][j] for i <= j <= i+k,
+// and fills rd (length n) with the reciprocals of U's diagonal. It reports
+// false when the matrix is not positive definite.
+func factorBand(n, k int, data, rd []float64) (*bandFactor, bool) {
+	f := &bandFactor{n: n, k: k, u: data, rd: rd[:n]}
 	if k >= blockedBand {
 		_, ok := lapack64.Pbtrf(blas64.SymmetricBand{Uplo: blas.Upper, N: n, K: k, Stride: k + 1, Data: data})
+		if ok {
+			for i := range f.rd {
+				f.rd[i] = 1 / data[i*(k+1)]
+			}
+		}
 		return f, ok
 	}
 	if k == 2 {
-		return f, factorBand2(n, data)
+		return f, factorBand2(n, data, f.rd)
 	}
 	// Row j of U is the scaled row j of what remains of A; its outer
 	// product is taken off the trailing block (LAPACK's Dpbtf2, upper).
@@ -51,6 +58,7 @@ func factorBand(n, k int, data []float64) (*bandFactor, bool) {
 		data[o] = ajj
 		kn := min(k, n-j-1)
 		r := 1 / ajj
+		rd[j] = r
 		for i := 1; i <= kn; i++ {
 			data[o+i] *= r
 		}
@@ -67,7 +75,8 @@ func factorBand(n, k int, data []float64) (*bandFactor, bool) {
 
 // factorBand2 is factorBand's loop written out for half bandwidth 2, the
 // bandwidth of Build's ladders, with the same operations in the same order.
-func factorBand2(n int, data []float64) bool {
+func factorBand2(n int, data, rd []float64) bool {
+	rd = rd[:n]
 	for j := range n {
 		o := j * 3
 		ajj := data[o]
@@ -77,6 +86,7 @@ func factorBand2(n int, data []float64) bool {
 		ajj = math.Sqrt(ajj)
 		data[o] = ajj
 		r := 1 / ajj
+		rd[j] = r
 		switch {
 		case j+2 < n:
 			x0, x1 := data[o+1]*r, data[o+2]*r
@@ -97,9 +107,9 @@ func factorBand2(n int, data []float64) bool {
 // solve overwrites x with A^-1 x: Uᵀ y = x forwards, then U x = y
 // backwards.
 func (f *bandFactor) solve(x []float64) {
-	n, k, u := f.n, f.k, f.u
+	n, k, u, rd := f.n, f.k, f.u, f.rd
 	if k == 2 && n >= 2 {
-		solveBand2(n, u, x)
+		solveBand2(n, u, rd, x)
 		return
 	}
 	w := k + 1
@@ -109,7 +119,7 @@ func (f *bandFactor) solve(x []float64) {
 		for j := range b {
 			sum += x[i-b+j] * u[(i-b+j)*w+b-j]
 		}
-		x[i] = (x[i] - sum) / u[i*w]
+		x[i] = (x[i] - sum) * rd[i]
 	}
 	for i := n - 1; i >= 0; i-- {
 		b := min(k, n-i-1)
@@ -117,29 +127,30 @@ func (f *bandFactor) solve(x []float64) {
 		for j := range b {
 			sum += x[i+1+j] * u[i*w+1+j]
 		}
-		x[i] = (x[i] - sum) / u[i*w]
+		x[i] = (x[i] - sum) * rd[i]
 	}
 }
 
 // solveBand2 is solve's loops written out for half bandwidth 2 and n >= 2,
 // with the same operations in the same order.
-func solveBand2(n int, u, x []float64) {
+func solveBand2(n int, u, rd, x []float64) {
 	u = u[:3*n]
+	rd = rd[:n]
 	x = x[:n]
-	x[0] = x[0] / u[0]
-	x[1] = (x[1] - x[0]*u[1]) / u[3]
+	x[0] *= rd[0]
+	x[1] = (x[1] - x[0]*u[1]) * rd[1]
 	for i := 2; i < n; i++ {
 		sum := x[i-2] * u[3*i-4]
 		sum += x[i-1] * u[3*i-2]
-		x[i] = (x[i] - sum) / u[3*i]
+		x[i] = (x[i] - sum) * rd[i]
 	}
 	i := n - 1
-	x[i] = x[i] / u[3*i]
+	x[i] *= rd[i]
 	i--
-	x[i] = (x[i] - x[i+1]*u[3*i+1]) / u[3*i]
+	x[i] = (x[i] - x[i+1]*u[3*i+1]) * rd[i]
 	for i--; i >= 0; i-- {
 		sum := x[i+1] * u[3*i+1]
 		sum += x[i+2] * u[3*i+2]
-		x[i] = (x[i] - sum) / u[3*i]
+		x[i] = (x[i] - sum) * rd[i]
 	}
 }

@@ -55,7 +55,7 @@ func TestBandFactor(t *testing.T) {
 			a := randomBand(tc.n, tc.k, uint64(tc.n*100+tc.k))
 			orig := append([]float64(nil), a...)
 			want := append([]float64(nil), a...)
-			f, ok := factorBand(tc.n, tc.k, a)
+			f, ok := factorBand(tc.n, tc.k, a, make([]float64, tc.n))
 			if !ok {
 				t.Fatal("factorBand: not positive definite")
 			}
@@ -95,7 +95,7 @@ func TestBandFactorIndefinite(t *testing.T) {
 		"singular":          {1, 1, 1, 0, 1, 0}, // [[1 1 0] [1 1 0] [0 0 1]]
 		"NaN":               {math.NaN(), 0, 1, 0, 1, 0},
 	} {
-		if _, ok := factorBand(3, 1, a); ok {
+		if _, ok := factorBand(3, 1, a, make([]float64, 3)); ok {
 			t.Errorf("%s: factorBand reported positive definite", name)
 		}
 	}

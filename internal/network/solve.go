@@ -411,7 +411,8 @@ type system struct {
 	invD   []float64
 	dq, dp []float64 // step per link and per band position
 	wc     []float64 // continuity weights 1/S_jj: turn m3/s into Pa
-	band   []float64
+	band   []float64 // S, factorised in place; handed to the Solution
+	rdiag  []float64 // reciprocals of the factor's diagonal; handed to the Solution
 	chol   *bandFactor
 }
 
@@ -428,7 +429,9 @@ func (sy *system) factor(slopes []float64) error {
 	pl := sy.pl
 	var smax float64
 	for _, v := range slopes {
-		smax = max(smax, v)
+		if v > smax {
+			smax = v
+		}
 	}
 	floor := slopeFloorRel * smax
 	if !(floor > 0) {
@@ -437,7 +440,10 @@ func (sy *system) factor(slopes []float64) error {
 	dd, invD := sy.d[:len(slopes)], sy.invD[:len(slopes)]
 	for attempt := 0; ; attempt++ {
 		for i, v := range slopes {
-			d := max(v, floor)
+			d := v
+			if !(d >= floor) {
+				d = floor
+			}
 			dd[i], invD[i] = d, 1/d
 		}
 		if pl.nFree == 0 {
@@ -445,6 +451,7 @@ func (sy *system) factor(slopes []float64) error {
 		}
 		if sy.band == nil {
 			sy.band = make([]float64, pl.nFree*(pl.k+1))
+			sy.rdiag = make([]float64, pl.nFree)
 		}
 		band := sy.band
 		clear(band)
@@ -468,7 +475,7 @@ func (sy *system) factor(slopes []float64) error {
 			wc[j] = 1 / band[j*w]
 		}
 		var ok bool
-		if sy.chol, ok = factorBand(pl.nFree, pl.k, band); ok {
+		if sy.chol, ok = factorBand(pl.nFree, pl.k, band, sy.rdiag); ok {
 			return nil
 		}
 		if attempt == floorRetries {
@@ -537,9 +544,13 @@ func residuals(ws *workspace, st *state) {
 	for j, d := range ws.demand[:len(c)] {
 		c[j] = -d
 	}
+	// Plain comparisons rather than max, whose NaN and signed-zero rules
+	// cost more: evaluate has already refused non-finite drops.
 	var pmax float64
 	for _, p := range st.p {
-		pmax = max(pmax, math.Abs(p))
+		if a := math.Abs(p); a > pmax {
+			pmax = a
+		}
 	}
 	q, p := st.q, st.p
 	h, e := st.h[:len(q)], st.e[:len(q)]
@@ -552,8 +563,12 @@ func residuals(ws *workspace, st *state) {
 		if ae := math.Abs(ei); ae > maxE {
 			maxE, worstL = ae, i
 		}
-		scaleE = max(scaleE, math.Abs(h[i]))
-		scaleQ = max(scaleQ, math.Abs(qi))
+		if ah := math.Abs(h[i]); ah > scaleE {
+			scaleE = ah
+		}
+		if aq := math.Abs(qi); aq > scaleQ {
+			scaleQ = aq
+		}
 		if a := pa[i]; a >= 0 {
 			c[a] -= qi
 		}
@@ -642,7 +657,7 @@ func (n *Network) solution(ws *workspace, st *state, iter int) *Solution {
 		d:              slices.Clone(sy.d),
 		chol:           sy.chol,
 	}
-	sy.band, sy.chol = nil, nil
+	sy.band, sy.rdiag, sy.chol = nil, nil, nil
 	return sol
 }
 
