@@ -39,8 +39,9 @@ const (
 	// link's first secant is taken on a cold start.
 	probeFlow = 1e-3
 	// maxLinear bounds the linear-theory solves of a cold start; they stop
-	// earlier once every flow above linearSettle of the largest changes by
-	// less than the factor linearRatio. Newton's step control counts flows
+	// earlier once every flow above linearSettle of the largest (but for
+	// linearStragglers of them) changes by less than the factor
+	// linearRatio. Newton's step control counts flows
 	// below trustFloor of the largest as that floor, so smaller ones need
 	// not settle first (on long ladders the far branches' flows otherwise
 	// kept the linear solves going for several rounds at 1e-8 of the
@@ -48,6 +49,11 @@ const (
 	maxLinear    = 10
 	linearSettle = trustFloor
 	linearRatio  = 1.5
+	// linearStragglers is the fraction of the flows that may still be
+	// unsettled when the linear solves stop (none below 100 links): on long
+	// ladders a few far-end header segments settle a solve or two after
+	// the rest, and Newton's step control copes with them.
+	linearStragglers = 0.01
 	// fullStep is the largest relative flow change of a step taken without
 	// line search; flows below trustFloor of the largest count as that.
 	fullStep   = 0.5
@@ -356,7 +362,7 @@ func (n *Network) linearTheory(ctx context.Context, ws *workspace, cur, trial *s
 		sy.step(e0, c0)
 		solves++
 		// From zero flow the linear solution is dq itself.
-		done := prev != nil
+		unsettled := 0
 		var qmax float64
 		for _, v := range sy.dq {
 			qmax = max(qmax, math.Abs(v))
@@ -369,15 +375,16 @@ func (n *Network) linearTheory(ctx context.Context, ws *workspace, cur, trial *s
 			if prev != nil && q*prev[i] > 0 {
 				if math.Abs(q) > linearSettle*qmax {
 					if r := q / prev[i]; r > linearRatio || r < 1/linearRatio {
-						done = false
+						unsettled++
 					}
 				}
 				q = math.Copysign(math.Sqrt(q*prev[i]), q)
 			} else if prev != nil && math.Abs(q) > linearSettle*qmax {
-				done = false
+				unsettled++
 			}
 			trial.q[i] = q
 		}
+		done := prev != nil && unsettled <= int(linearStragglers*float64(nl))
 		for node, pos := range pl.pos {
 			if pos >= 0 {
 				trial.p[node] = p0[node] + sy.dp[pos]
