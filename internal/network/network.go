@@ -51,7 +51,9 @@ type link struct {
 // demands and fixed pressure values may change between solves; the reordering
 // of the node matrix is kept until the topology changes.
 //
-// A Network must not be modified while Solve runs on it.
+// A Network must not be modified while Solve runs on it. Solve keeps its
+// scratch memory (about 150 bytes per link) on the Network for the next
+// solve; solves may run concurrently.
 type Network struct {
 	Fluid fluid.State
 

@@ -670,7 +670,7 @@ func (n *Network) solution(ws *workspace, st *state, iter int) *Solution {
 
 // workspace is the scratch memory of Solve for one plan: two states, the
 // linear system and the cold start's copies. The Network keeps one between
-// solves (about 0.5 kB per link), so repeated solves of a large network do
+// solves (about 150 bytes per link), so repeated solves of a large network do
 // not allocate and clear it again.
 type workspace struct {
 	pl                        *plan
