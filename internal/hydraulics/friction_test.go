@@ -105,6 +105,26 @@ func TestColebrookMachinePrecision(t *testing.T) {
 	t.Logf("largest relative difference from Newton: %.2g", worst)
 }
 
+// TestClamondStepOrder checks the convergence order colebrook relies on:
+// from u* + d, one step (with the exact G) leaves an error that shrinks as
+// d⁴ (a tenth of d, a ten-thousandth of the error, within a factor 3),
+// where u* = x ln10/2 is Newton's converged solution.
+func TestClamondStepOrder(t *testing.T) {
+	for _, c := range []struct{ re, rr float64 }{{1e4, 0}, {1e5, 1e-3}, {4000, 0.05}} {
+		a, beta := c.rr/3.7, 5.02/(c.re*math.Ln10)
+		x1 := a / beta
+		star := math.Ln10 / 2 / math.Sqrt(newtonColebrook(c.re, c.rr))
+		after := func(d float64) float64 {
+			u := star + d
+			return math.Abs(u - clamondStep(u, x1, u+math.Log(a+beta*u)) - star)
+		}
+		e1, e2 := after(0.3), after(0.03)
+		if r := e1 / e2; !(r > 1e4/3 && r < 3e4) {
+			t.Errorf("Re=%g, eps/D=%g: errors %.3g from 0.3 and %.3g from 0.03 (ratio %.3g, want about 1e4)", c.re, c.rr, e1, e2, r)
+		}
+	}
+}
+
 // TestLnApprox checks the approximate logarithm against math.Log within
 // its stated 1.1e-5, from the arguments of colebrook's first step (1e-10 and
 // up) through the Reynolds numbers it sees and beyond.
