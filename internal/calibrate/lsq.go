@@ -248,23 +248,52 @@ type Settings struct {
 	MaxOutliers int
 	Dense       bool    // force the dense path even for an Operator problem
 	Scale       Scaling // model-error scaling of the covariance
-	CGTol       float64 // relative residual of the CG solves; 0: 1e-10
-	CGMaxIter   int     // per CG solve; 0: 2n + 100
+	// CGTol is the relative residual of the matrix-free steps' CG solves.
+	// 0 makes it adaptive (an inexact Newton method, Dembo, Eisenstat &
+	// Steihaug 1982, SIAM J. Numer. Anal. 19(2), 400-408): min(0.1, √cos)
+	// with cos the gradient cosine of the current point (see Converged),
+	// never below 1e-10. A forcing term of order ‖g‖^½ keeps the local
+	// convergence superlinear, of order 1.5, while the first steps, far from
+	// the optimum, cost a few CG iterations instead of a hundred.
+	CGTol float64
+	// CostTol stops the fit (SmallDecrease) when an accepted step lowered F
+	// by at most CostTol and the local model predicted no more (the
+	// criterion of MINPACK's ftol, Moré, Garbow & Hillstrom 1980, in
+	// absolute terms). F is in units of χ²/2, so 1e-6 leaves the estimate
+	// about 1e-3 posterior sd from the optimum, far below anything a
+	// reading can show, where the gradient test may not be reachable when
+	// the residuals carry the rounding of an iterative model. 0: off.
+	CostTol   float64
+	CGMaxIter int // per CG solve; 0: 2n + 100
 	// DenseCovMax is the largest n for which the matrix-free path forms J
 	// column by column (n products J e_j) at the optimum to get the exact
 	// covariance; above it the variances are estimated. 0: 1500; negative:
 	// always estimate.
 	DenseCovMax int
-	Probes      int    // random probes for the variance estimate; 0: 64
-	Seed        uint64 // seed of those probes
+	// Probes is the number of random probes of the variance estimate. 0
+	// makes it adaptive: probes are added in eights, up to 64, until the
+	// standard errors the probes' own spread gives are below ProbeTol (see
+	// VarProbed).
+	Probes int
+	// ProbeTol is the relative standard error of the probed variances at
+	// which adaptive probing stops; 0: 0.1 (5 % on the sd).
+	ProbeTol float64
+	Seed     uint64 // seed of the probes
 	// EstimateOnly skips everything after the optimum: no covariance,
 	// variances, intervals or outlier test. Result then holds X, the
 	// residuals, weights and ChiSquare only: enough to compare models (the
 	// valve hypothesis tests), at a fraction of the cost on large problems.
 	EstimateOnly bool
+
+	cgForcing      bool // CGTol was 0: adaptive
+	adaptiveProbes bool // Probes was 0: adaptive
 }
 
 const (
+	cgTolMin     = 1e-10 // floor of the adaptive CG tolerance
+	minProbes    = 8     // adaptive probing adds probes in eights
+	maxProbes    = 64    // and stops at this many
+	varFloor     = 1e-3  // a probed variance is kept above this fraction of the local one
 	eps          = 0x1p-52
 	denseMax     = 1500
 	lambdaMax    = 1e16
@@ -290,12 +319,16 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 		return bad("step tolerance not a finite non-negative number")
 	case out.CGTol < 0 || math.IsNaN(out.CGTol) || out.CGTol >= 1:
 		return bad("cg tolerance outside [0, 1)")
+	case out.CostTol < 0 || math.IsNaN(out.CostTol) || math.IsInf(out.CostTol, 0):
+		return bad("cost tolerance not a finite non-negative number")
 	case math.IsNaN(out.OutlierZ) || math.IsInf(out.OutlierZ, 0):
 		return bad("outlier threshold not finite")
 	case math.IsNaN(out.Loss.k) || math.IsInf(out.Loss.k, 0) || (out.Loss.kind != squared && out.Loss.k <= 0):
 		return bad("loss constant not finite and positive")
 	case out.Scale < ScaleAboveOne || out.Scale > ScaleNever:
 		return bad("unknown covariance scaling")
+	case out.ProbeTol < 0 || math.IsNaN(out.ProbeTol) || out.ProbeTol >= 1:
+		return bad("probe tolerance outside [0, 1)")
 	case out.MaxOutliers < 0 || out.CGMaxIter < 0 || out.Probes < 0:
 		return bad("negative count")
 	}
@@ -309,7 +342,7 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 		out.StepTol = 1e-10
 	}
 	if out.CGTol == 0 {
-		out.CGTol = 1e-10
+		out.CGTol, out.cgForcing = cgTolMin, true
 	}
 	if out.CGMaxIter == 0 {
 		out.CGMaxIter = 2*n + 100
@@ -318,7 +351,10 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 		out.DenseCovMax = denseMax
 	}
 	if out.Probes == 0 {
-		out.Probes = 64
+		out.Probes, out.adaptiveProbes = maxProbes, true
+	}
+	if out.ProbeTol == 0 {
+		out.ProbeTol = 0.1
 	}
 	if out.MaxOutliers == 0 {
 		out.MaxOutliers = m / 5
@@ -339,6 +375,7 @@ const (
 	MaxIterations               // Settings.MaxIter accepted steps taken
 	Stalled                     // no step reduced F even with the largest damping
 	Cancelled                   // the context was done
+	SmallDecrease               // the decrease of F fell below Settings.CostTol
 )
 
 // String names the status.
@@ -356,12 +393,14 @@ func (s Status) String() string {
 		return "stalled"
 	case Cancelled:
 		return "cancelled"
+	case SmallDecrease:
+		return "converged (small decrease)"
 	}
 	return fmt.Sprintf("status(%d)", int(s))
 }
 
 // OK reports whether the status is a convergence.
-func (s Status) OK() bool { return s == Converged || s == SmallStep }
+func (s Status) OK() bool { return s == Converged || s == SmallStep || s == SmallDecrease }
 
 // VarMethod says how Result.Var was obtained.
 type VarMethod int
@@ -612,6 +651,7 @@ type linear struct {
 	a     *mat.SymDense
 	rnorm float64    // ‖[W^½ r; P^½(x-μ)]‖
 	bp    *blockPrec // block preconditioner from a SparseApprox, or nil
+	cos   float64    // the gradient cosine (gradientSmall)
 }
 
 func (s *solver) linearise(pt *point) (*linear, error) {
@@ -790,7 +830,7 @@ func weightedRows(j *mat.Dense, w []float64) *mat.Dense {
 	return out
 }
 
-// gradientSmall is MINPACK's cosine test.
+// gradientSmall is MINPACK's cosine test; it keeps the cosine in ln.cos.
 func (s *solver) gradientSmall(ln *linear) bool {
 	if ln.rnorm == 0 {
 		return true
@@ -802,7 +842,16 @@ func (s *solver) gradientSmall(ln *linear) bool {
 		}
 		worst = max(worst, math.Abs(g)/(math.Sqrt(ln.diagA[j])*ln.rnorm))
 	}
+	ln.cos = worst
 	return worst <= s.s.GradTol
+}
+
+// cgTol is the relative tolerance of a step's CG solve: see Settings.CGTol.
+func (s *solver) cgTol(ln *linear) float64 {
+	if !s.s.cgForcing {
+		return s.s.CGTol
+	}
+	return max(s.s.CGTol, min(0.1, math.Sqrt(ln.cos)))
 }
 
 // step solves (A + λD) h = -g. ok is false when the damped matrix could not
@@ -926,12 +975,13 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 	// comes first: below the latter the recurrences only amplify rounding
 	// errors (large-residual problems near the optimum reach it first).
 	floor := 8 * eps * math.Sqrt(float64(n))
+	tol := s.cgTol(ln)
 	q1 := make([]float64, m)
 	q2 := make([]float64, n)
 	q3 := make([]float64, n)
 	cp := make([]float64, n)
 	for it := 0; it < s.s.CGMaxIter; it++ {
-		if gamma <= s.s.CGTol*s.s.CGTol*gamma0 || gamma <= floor*floor*ss || gamma == 0 {
+		if gamma <= tol*tol*gamma0 || gamma <= floor*floor*ss || gamma == 0 {
 			break
 		}
 		right(cp, p)
@@ -1047,10 +1097,14 @@ func (s *solver) fit(ctx context.Context, start *point) (*point, Status, int, er
 			}
 			if ee == nil && pred > 0 {
 				if rho := (cur.cost - trial.cost) / pred; rho > 0 {
+					actual := cur.cost - trial.cost
 					cur = trial
 					lambda *= max(1.0/3, 1-math.Pow(2*rho-1, 3))
 					nu = 2
 					iter++
+					if tol := s.s.CostTol; actual <= tol && pred <= tol && rho <= 2 {
+						return cur, SmallDecrease, iter, nil
+					}
 					break
 				}
 			}
@@ -1274,8 +1328,15 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 			dst[j] = r[j] / diagA[j]
 		}
 	}
-	if bp := s.blockPrec(w, diagJ); bp != nil && bp.set(c, s.prec, 0, nil) {
-		precond = bp.solve
+	// With a block preconditioner M the probes estimate only
+	// diag(A⁻¹ - M⁻¹), M⁻¹'s own diagonal being exact (a control variate),
+	// and entry j of each probe is ±1/√v̂_j with v̂ the variance M gives
+	// (see VarProbed).
+	var bp *blockPrec
+	var mdiag, vhat, mz []float64
+	if b := s.blockPrec(w, diagJ); b != nil && b.set(c, s.prec, 0, nil) {
+		bp, precond = b, b.solve
+		mdiag, vhat, mz = b.invDiag(), b.localVar(c, s.prec), make([]float64, n)
 	}
 	tm := make([]float64, m)
 	apply := func(dst, v []float64) {
@@ -1288,11 +1349,17 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 			dst[j] += s.prec[j] * v[j]
 		}
 	}
+	maxProbes, adaptive := s.s.Probes, s.s.adaptiveProbes
+	if warm != nil {
+		maxProbes, adaptive = len(warm), false
+	}
 	rng := rand.New(rand.NewPCG(s.s.Seed, 0x2545f4914f6cdd1d))
-	num := make([]float64, n)
+	sum := make([]float64, n)   // Σ_k e_jk, the per-probe estimates
+	sumSq := make([]float64, n) // Σ_k e_jk²
 	z := make([]float64, n)
 	var ys [][]float64
-	for k := range s.s.Probes {
+	probes := 0
+	for probes < maxProbes {
 		if err := ctx.Err(); err != nil {
 			return nil, nil, fmt.Errorf("calibrate: variance probes: %w", err)
 		}
@@ -1301,10 +1368,17 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 			if rng.Uint64()&1 == 1 {
 				z[j] = -1
 			}
+			if vhat != nil {
+				z[j] /= math.Sqrt(vhat[j])
+			}
 		}
 		var start []float64
+		if bp != nil {
+			bp.solve(mz, z)
+			start = append([]float64(nil), mz...)
+		}
 		if warm != nil {
-			start = append([]float64(nil), warm[k]...)
+			start = append(start[:0], warm[probes]...)
 			floats.Scale(c, start)
 		}
 		y, ok := pcg(apply, precond, z, start, probeTol, s.s.CGMaxIter)
@@ -1312,17 +1386,57 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 			return nil, nil, fmt.Errorf("calibrate: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
 		}
 		for j := range n {
-			num[j] += z[j] * y[j]
+			e := z[j] * y[j]
+			if bp != nil {
+				e = vhat[j] * z[j] * (y[j] - mz[j])
+			}
+			sum[j] += e
+			sumSq[j] += e * e
 		}
 		if warm == nil {
 			ys = append(ys, y)
 		}
+		probes++
+		if adaptive && probes >= minProbes && probes%minProbes == 0 && s.probesEnough(sum, sumSq, mdiag, probes) {
+			break
+		}
 	}
 	v := make([]float64, n)
 	for j := range n {
-		v[j] = max(num[j]/float64(s.s.Probes), 1/diagA[j])
+		v[j] = sum[j] / float64(probes)
+		if mdiag == nil {
+			v[j] = max(v[j], 1/diagA[j])
+			continue
+		}
+		// No clip at 1/A_jj here: A_jj is itself estimated, and an
+		// estimate on the low side would lift a good variance to it. The
+		// floor only keeps a variance positive.
+		v[j] = max(v[j]+mdiag[j], vhat[j]*varFloor)
 	}
 	return v, ys, nil
+}
+
+// probesEnough reports whether the standard error of the probed variances,
+// estimated from the spread of the per-probe estimates, is below
+// Settings.ProbeTol relative to the variance for all but 1 % of the
+// parameters (a few always mix with everything: the header and the pump
+// of a calibration, which it recomputes exactly).
+func (s *solver) probesEnough(sum, sumSq, base []float64, k int) bool {
+	n := len(sum)
+	bad := 0
+	kf := float64(k)
+	for j := range n {
+		mean := sum[j] / kf
+		varE := max(sumSq[j]/kf-mean*mean, 0) * kf / (kf - 1)
+		v := mean
+		if base != nil {
+			v += base[j]
+		}
+		if !(v > 0) || math.Sqrt(varE/kf) > s.s.ProbeTol*v {
+			bad++
+		}
+	}
+	return bad <= n/100
 }
 
 // pcg solves A y = b by preconditioned conjugate gradients (Hestenes &

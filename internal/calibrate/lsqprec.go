@@ -16,10 +16,13 @@ type SparseApprox interface {
 	ApproxJacobian() (rows, cols []int, vals []float64)
 }
 
-// Limits of the block preconditioner: a row of J̃ with more non-zeros
-// couples too much to be kept whole (a total flow over every branch) and
-// adds only to the diagonal, a column with more stays out of every block,
-// and a group larger than maxBlock is split into single parameters.
+// Limits of the block preconditioner: a row of J̃ with more non-zeros (a
+// total flow over every branch) is left out, a column with more (the
+// header, the pump) stays out of every block, and a group larger than
+// maxBlock is split into single parameters. Such a row or column is a
+// perturbation of low rank, which costs conjugate gradients an iteration or
+// two; spreading it over the diagonal would credit each parameter with the
+// whole information of a reading it shares with hundreds.
 const (
 	maxRowCoupling = 64
 	maxBlock       = 64
@@ -124,13 +127,13 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec 
 		bp.gram[b] = make([]float64, len(ps)*len(ps))
 	}
 	for i := range m {
-		if w[i] == 0 {
+		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
+		if w[i] == 0 || len(cs) > maxRowCoupling {
 			continue
 		}
-		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
 		for a, j := range cs {
 			bp.gdiag[j] += w[i] * vs[a] * vs[a]
-			if len(cs) > maxRowCoupling || block[j] < 0 {
+			if block[j] < 0 {
 				continue
 			}
 			g, k := bp.gram[block[j]], len(bp.blocks[block[j]])
@@ -138,19 +141,6 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec 
 				if block[l] == block[j] {
 					g[pos[j]*k+pos[l]] += w[i] * vs[a] * vs[e]
 				}
-			}
-		}
-	}
-	// Rows too long to keep whole still add their diagonal.
-	for i := range m {
-		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
-		if len(cs) <= maxRowCoupling {
-			continue
-		}
-		for a, j := range cs {
-			if b := block[j]; b >= 0 {
-				k := len(bp.blocks[b])
-				bp.gram[b][pos[j]*k+pos[j]] += w[i] * vs[a] * vs[a]
 			}
 		}
 	}
@@ -249,6 +239,20 @@ func (bp *blockPrec) solve(dst, r []float64) {
 	copy(dst, r)
 	bp.lowerSolve(dst)
 	bp.upperSolve(dst)
+}
+
+// localVar returns the variances the local approximation alone gives for
+// A = JᵀWJ/c + P: diag(M⁻¹) on the blocks, 1/(J̃ᵀWJ̃/c + P)_jj elsewhere
+// (not M's diagonal there, which for a parameter J̃ does not see, such as a
+// branch nobody read, holds information it shares with hundreds of others).
+func (bp *blockPrec) localVar(c float64, prec []float64) []float64 {
+	v := bp.invDiag()
+	for _, j := range bp.single {
+		if d := bp.gdiag[j]/c + prec[j]; d > 0 {
+			v[j] = 1 / d
+		}
+	}
+	return v
 }
 
 // invDiag returns diag(M⁻¹).
