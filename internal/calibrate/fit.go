@@ -45,6 +45,13 @@ const (
 	DefaultMatrixFreeAbove = 300
 )
 
+// fitCostTol is the engine's Settings.CostTol for Fit's matrix-free fits
+// and local refits: the network solves converge to a relative 1e-10, which
+// leaves the residuals of a large site too noisy for the gradient test to
+// be met soon, while a change of 2e-6 in χ² is far below anything the
+// readings can tell. Small sites keep the gradient test alone.
+const fitCostTol = 1e-6
+
 // freeSigma is the prior sd of a Kv parameter a valve hypothesis frees: e³
 // ≈ 20 per sd, effectively free, but it keeps the information matrix
 // definite where the readings cannot tell the valve from the branch.
@@ -311,6 +318,12 @@ func (c *Calibration) Outliers() []ReadingFit {
 // Assoc. 90(430), 773-795, §3.2) for 2 ln B, which the score difference
 // approximates.
 func Fit(ctx context.Context, m *plant.Model, opt *FitOptions) (*Calibration, error) {
+	return fit(ctx, m, opt, false)
+}
+
+// fit is Fit, with the valve hypotheses' local refits exact (see
+// setup.exactLocal) when exactLocal is set.
+func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) (*Calibration, error) {
 	o, err := opt.withDefaults()
 	if err != nil {
 		return nil, err
@@ -319,6 +332,7 @@ func Fit(ctx context.Context, m *plant.Model, opt *FitOptions) (*Calibration, er
 	if err != nil {
 		return nil, err
 	}
+	su.exactLocal = exactLocal
 	hyp := make([]ValveHypothesis, len(m.Branches))
 	for i := range hyp {
 		if m.Branches[i].Valve != nil {
@@ -364,6 +378,10 @@ type setup struct {
 	hasHeader     bool
 	hasPump       bool
 	solves        int
+	// exactLocal makes a local refit solve the whole network at every
+	// evaluation instead of linearising the rest of it (runReduced); only
+	// tests set it, to measure what the linearisation changes.
+	exactLocal bool
 }
 
 const valveMeter = "valve-meter"
@@ -586,8 +604,27 @@ type fitRun struct {
 // newProblem builds the problem of hypotheses hyp over observations sel.
 func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []int) (*problem, error) {
 	m := su.m
-	nb := len(m.Branches)
-	p := &problem{ctx: ctx, m: m, params: su.params(hyp), rIdx: make([]int, nb), kvIdx: make([]int, nb),
+	p := su.problemFor(ctx, hyp, sel)
+	for k, st := range m.States {
+		sn, err := newStateNet(m, st, m.Design())
+		if err != nil {
+			return nil, err
+		}
+		for oi, o := range p.obs {
+			if o.state == k {
+				sn.obs = append(sn.obs, oi)
+			}
+		}
+		p.states = append(p.states, sn)
+	}
+	return p, nil
+}
+
+// problemFor is the problem of hypotheses hyp over observations sel
+// without its states' networks.
+func (su *setup) problemFor(ctx context.Context, hyp []ValveHypothesis, sel []int) *problem {
+	nb := len(su.m.Branches)
+	p := &problem{ctx: ctx, m: su.m, params: su.params(hyp), rIdx: make([]int, nb), kvIdx: make([]int, nb),
 		hIdx: -1, pIdx: -1, refKv: su.refKv}
 	for i := range nb {
 		p.rIdx[i], p.kvIdx[i] = -1, -1
@@ -608,19 +645,7 @@ func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []in
 		p.obs = append(p.obs, su.obs[k])
 	}
 	p.pred = make([]float64, len(p.obs))
-	for k, st := range m.States {
-		sn, err := newStateNet(m, st, m.Design())
-		if err != nil {
-			return nil, err
-		}
-		for oi, o := range p.obs {
-			if o.state == k {
-				sn.obs = append(sn.obs, oi)
-			}
-		}
-		p.states = append(p.states, sn)
-	}
-	return p, nil
+	return p
 }
 
 // run fits hypotheses hyp to observations sel, starting from the values of
@@ -657,6 +682,7 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 	var prob Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}
+		set.CostTol = fitCostTol
 		// Probe the variances: the exact covariance costs O(n³) in dense
 		// algebra (seconds at 1000 parameters); the header and pump get
 		// exact variances afterwards (exactHubVariances).

@@ -103,6 +103,8 @@ type stateNet struct {
 	// kvGain is d(ln KvScale_i)/dx_j of each branch's valve parameter.
 	kvGain []float64
 	local  *localNet // for ApproxJacobian, built on first use
+	th     *thevenin // set in a reduced refit (runReduced)
+	valves []valveElem
 }
 
 // scratch returns sn's zeroed scratch vectors.
@@ -322,7 +324,12 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 		if len(sn.kvGain) != len(p.m.Branches) {
 			sn.kvGain = make([]float64, len(p.m.Branches))
 		}
-		if err := p.solve(sn, p.stateParams(x, s, sn.kvGain)); err != nil {
+		pp := p.stateParams(x, s, sn.kvGain)
+		solve := p.solve
+		if sn.th != nil {
+			solve = p.solveReduced
+		}
+		if err := solve(sn, pp); err != nil {
 			return err
 		}
 		p.linearise(sn)
@@ -334,7 +341,11 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 				return fmt.Errorf("reading %d predicted %g: %w", o.reading, p.pred[oi], ErrDomain)
 			}
 		}
-		if jac != nil {
+		switch {
+		case jac == nil:
+		case sn.th != nil:
+			p.jacobianReduced(sn, jac)
+		default:
 			if err := p.jacobian(sn, jac); err != nil {
 				return err
 			}
@@ -348,8 +359,30 @@ func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 // valveDrop returns the drop and slope of branch i's valve at flow q in the
 // state's solution.
 func (p *problem) valveDrop(sn *stateNet, i int, q float64) (dp, slope float64) {
-	v := p.m.ValveElement(i, sn.st.Settings[i], sn.params.KvScale[i])
-	return v.Drop(q, p.m.Fluid)
+	return sn.valve(p.m, i).Drop(q, p.m.Fluid)
+}
+
+// valveElem is a branch's valve element at one Kv scale.
+type valveElem struct {
+	scale float64
+	e     hydraulics.Element
+}
+
+// valve returns branch i's valve element at the state's setting and
+// multipliers, kept between evaluations until its Kv scale changes: most
+// valves keep theirs throughout a local refit, and building one looks its
+// table up.
+func (sn *stateNet) valve(m *plant.Model, i int) hydraulics.Element {
+	if len(sn.valves) != len(m.Branches) {
+		sn.valves = make([]valveElem, len(m.Branches))
+	}
+	k := sn.params.KvScale[i]
+	if c := &sn.valves[i]; c.e != nil && c.scale == k {
+		return c.e
+	}
+	e := m.ValveElement(i, sn.st.Settings[i], k)
+	sn.valves[i] = valveElem{k, e}
+	return e
 }
 
 func (p *problem) flow(sn *stateNet, links []int) float64 {
