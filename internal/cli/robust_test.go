@@ -308,7 +308,7 @@ var edgeCases = []edgeCase{
 		simulate(t, s)
 	}, want: []string{"cannot-reach-design", "Differential at the sensor (pump): 55.9 kPa", "4 of 4"},
 		// The 3 Pa before gives a few microwatts: no percentage of it.
-		files: map[string][]string{"report.html": {"pump electrical power 0 W -&gt; 198 W, about -396 kWh a year (-79 EUR)"}}},
+		files: map[string][]string{"report.html": {"pump electrical power 0 W -&gt; 198 W, about 396 kWh a year more (79 EUR)"}}},
 	{name: "constant differential of 3 Pa, readings at 56 kPa", edit: func(t *testing.T, s *site.Site) {
 		simulate(t, s)
 		s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 3, Sensor: site.AtPump}
