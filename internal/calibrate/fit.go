@@ -683,6 +683,7 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}
 		set.CostTol = fitCostTol
+		set.OutlierGroups = su.outlierGroups(p)
 		// Probe the variances: the exact covariance costs O(n³) in dense
 		// algebra (seconds at 1000 parameters); the header and pump get
 		// exact variances afterwards (exactHubVariances).
@@ -698,6 +699,34 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 		out.parent = from
 	}
 	return out, nil
+}
+
+// outlierGroups groups p's observations by the branch of the main ladder
+// they read (a riser with its sub-branches is one), the site-wide readings
+// together: on a site large enough to be fitted matrix-free, a bad reading
+// barely moves the residuals of another main branch, so the outlier test
+// may remove the worst of each in one round (Settings.OutlierGroups).
+func (su *setup) outlierGroups(p *problem) []int {
+	top := make([]int, len(su.m.Branches))
+	for i := range top {
+		top[i] = i
+		for k := 0; k < len(top); k++ {
+			pid := su.m.Branches[top[i]].Parent
+			j, ok := su.m.Index(pid)
+			if pid == "" || !ok {
+				break
+			}
+			top[i] = j
+		}
+	}
+	g := make([]int, len(p.obs))
+	for k, o := range p.obs {
+		g[k] = -1
+		if o.branch >= 0 {
+			g[k] = top[o.branch]
+		}
+	}
+	return g
 }
 
 // start returns a starting value for par from fit f: the value of the same

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -134,6 +135,8 @@ type problem struct {
 	refKv  []float64 // table Kv of each valve at its reference setting
 	pred   []float64 // predictions at the latest evaluation
 	x      []float64 // the latest evaluation point
+	ok     bool      // the latest evaluation completed
+	prev   evalCache
 	solves int       // network solves
 	// base, when set, holds per state the multipliers of the parameters
 	// this problem does not fit (a local refit); nil means design.
@@ -313,7 +316,28 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 			return fmt.Errorf("%v parameter %g beyond ±%d: %w", p.params[j].Kind, v, maxLog, ErrDomain)
 		}
 	}
+	if jac == nil && (p.ok && slices.Equal(x, p.x) || p.prev.ok && slices.Equal(x, p.prev.x)) {
+		// Back to the point before the latest (a rejected trial): its
+		// solutions and linearisations are kept.
+		if !slices.Equal(x, p.x) {
+			p.swapPrev()
+		}
+		for oi, o := range p.obs {
+			r[oi] = (p.pred[oi] - o.value) / o.sigma
+		}
+		return nil
+	}
+	p.swapPrev()
+	p.ok = false
 	p.x = append(p.x[:0], x...)
+	if len(p.pred) != len(p.obs) {
+		p.pred = make([]float64, len(p.obs))
+	}
+	for s, sn := range p.states {
+		if latest := p.prev.st[s].sol; latest != nil {
+			sn.sol = latest // to start from
+		}
+	}
 	if jac != nil {
 		jac.Zero()
 	}
@@ -351,7 +375,44 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 			}
 		}
 	}
+	p.ok = true
 	return nil
+}
+
+// stateEval is what an evaluation leaves on a state.
+type stateEval struct {
+	sol    *network.Solution
+	params plant.Params
+	lin    []lin
+	dh     [][]term
+	kvGain []float64
+}
+
+// evalCache is the evaluation before the latest, kept because the engine
+// returns to it after every rejected trial.
+type evalCache struct {
+	ok      bool
+	x, pred []float64
+	st      []stateEval
+}
+
+// swapPrev exchanges the latest evaluation with the one before.
+func (p *problem) swapPrev() {
+	c := &p.prev
+	if len(c.st) != len(p.states) {
+		c.st = make([]stateEval, len(p.states))
+	}
+	c.ok, p.ok = p.ok, c.ok
+	c.x, p.x = p.x, c.x
+	c.pred, p.pred = p.pred, c.pred
+	for s, sn := range p.states {
+		e := &c.st[s]
+		e.sol, sn.sol = sn.sol, e.sol
+		e.params, sn.params = sn.params, e.params
+		e.lin, sn.lin = sn.lin, e.lin
+		e.dh, sn.dh = sn.dh, e.dh
+		e.kvGain, sn.kvGain = sn.kvGain, e.kvGain
+	}
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }

@@ -11,9 +11,9 @@ import (
 // mass, where the stochastic diagonal estimate is worst (measured on a
 // 1000-branch ladder: header and pump sd over-estimated 2-2.6 times while
 // the branch resistances were within a few per cent on average). Each exact
-// variance is e_jᵀ A⁻¹ e_j with A = JᵀWJ/c + P, from one
-// Jacobi-preconditioned conjugate-gradient solve (pcg) with the Jacobian
-// products of the problem at res.X; p must have been evaluated there.
+// variance is e_jᵀ A⁻¹ e_j with A = JᵀWJ/c + P, from one preconditioned
+// conjugate-gradient solve (pcg) with the Jacobian products of the problem
+// at res.X; p must have been evaluated there.
 func exactHubVariances(p *problem, res *Result) {
 	if res.VarMethod != VarProbed {
 		return
@@ -41,8 +41,9 @@ func exactHubVariances(p *problem, res *Result) {
 			dst[j] += prec[j] * v[j]
 		}
 	}
-	// Jacobi preconditioner from Rademacher probes of Jᵀ W^½ u, unbiased
-	// for the squared column norms (the engine's own estimate).
+	// Preconditioner: the block one of the local approximation, whose
+	// singles take Rademacher estimates of the squared column norms (as the
+	// engine does); those alone without it.
 	const probes = 16
 	diag := make([]float64, n)
 	rng := rand.New(rand.NewPCG(1, 2))
@@ -50,7 +51,7 @@ func exactHubVariances(p *problem, res *Result) {
 	t := make([]float64, n)
 	for range probes {
 		for i := range u {
-			u[i] = math.Sqrt(res.Weight[i] / c)
+			u[i] = math.Sqrt(res.Weight[i])
 			if rng.Uint64()&1 == 1 {
 				u[i] = -u[i]
 			}
@@ -60,11 +61,19 @@ func exactHubVariances(p *problem, res *Result) {
 			diag[j] += v * v / probes
 		}
 	}
+	precond := func(dst, r []float64) {
+		for j := range dst {
+			dst[j] = r[j] / (diag[j]/c + prec[j])
+		}
+	}
 	for j := range diag {
-		diag[j] += prec[j]
-		if !(diag[j] > 0) {
+		if !(diag[j]/c+prec[j] > 0) {
 			return
 		}
+	}
+	rows, cols, vals := op.ApproxJacobian()
+	if bp := newBlockPrec(n, rows, cols, vals, res.Weight, diag); bp.set(c, prec, 0, nil) {
+		precond = bp.solve
 	}
 	for _, j := range []int{p.hIdx, p.pIdx} {
 		if j < 0 {
@@ -72,7 +81,7 @@ func exactHubVariances(p *problem, res *Result) {
 		}
 		e := make([]float64, n)
 		e[j] = 1
-		y, ok := jacobiCG(apply, diag, e, 1e-10, 2*n+100)
+		y, ok := pcg(apply, precond, e, nil, 1e-10, 2*n+100)
 		if !ok || !(y[j] > 0) {
 			continue
 		}
@@ -82,53 +91,4 @@ func exactHubVariances(p *problem, res *Result) {
 		res.Hi95[j] = res.X[j] + res.TQuantile*sd
 		res.Determined[j] = prec[j] == 0 || sd < determinedAt/math.Sqrt(prec[j])
 	}
-}
-
-// jacobiCG solves A y = b for a symmetric positive definite A given by its
-// product, by conjugate gradients with a Jacobi preconditioner (Saad 2003,
-// "Iterative Methods for Sparse Linear Systems", Alg. 9.1), to a relative
-// residual of tol.
-func jacobiCG(apply func(dst, v []float64), diag, b []float64, tol float64, maxIter int) ([]float64, bool) {
-	n := len(b)
-	y := make([]float64, n)
-	r := append([]float64(nil), b...)
-	z := make([]float64, n)
-	for j := range n {
-		z[j] = r[j] / diag[j]
-	}
-	p := append([]float64(nil), z...)
-	ap := make([]float64, n)
-	rz := dot(r, z)
-	bnorm := math.Sqrt(dot(b, b))
-	for range maxIter {
-		if math.Sqrt(dot(r, r)) <= tol*bnorm {
-			return y, true
-		}
-		apply(ap, p)
-		pap := dot(p, ap)
-		if !(pap > 0) {
-			return y, false
-		}
-		alpha := rz / pap
-		for j := range n {
-			y[j] += alpha * p[j]
-			r[j] -= alpha * ap[j]
-			z[j] = r[j] / diag[j]
-		}
-		next := dot(r, z)
-		beta := next / rz
-		rz = next
-		for j := range n {
-			p[j] = z[j] + beta*p[j]
-		}
-	}
-	return y, math.Sqrt(dot(r, r)) <= tol*bnorm
-}
-
-func dot(a, b []float64) float64 {
-	var s float64
-	for i, v := range a {
-		s += v * b[i]
-	}
-	return s
 }

@@ -69,14 +69,21 @@
 // this repeats until none exceeds it. The default threshold is the two-sided
 // Bonferroni normal quantile for a 5 % family-wise false-alarm rate over the m
 // observations, Φ⁻¹(1 − 0.025/m) (3.19 for m = 14, 3.48 for m = 100).
+// With Settings.OutlierGroups one round removes the worst observation of every
+// group. On the probed path (no leverages: h_ii is taken as 0) the refits
+// after a removal test with the effective number of parameters of the last
+// probed uncertainty, and the variances are probed again once no outlier is
+// left; should the new degrees of freedom reveal one, the loop goes on.
 package calibrate
 
 import (
+	"cmp"
 	"context"
 	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
@@ -246,6 +253,12 @@ type Settings struct {
 	OutlierZ float64
 	// MaxOutliers caps how many observations may be removed; 0: m/5.
 	MaxOutliers int
+	// OutlierGroups, when set, gives each observation a group, and each
+	// round of the outlier test removes the worst observation of every group
+	// over the threshold instead of only the worst of all: where an
+	// observation barely moves the residuals of other groups (the readings
+	// of one branch among hundreds), that saves a refit per outlier.
+	OutlierGroups []int
 	Dense       bool    // force the dense path even for an Operator problem
 	Scale       Scaling // model-error scaling of the covariance
 	// CGTol is the relative residual of the matrix-free steps' CG solves.
@@ -497,6 +510,9 @@ func Solve(ctx context.Context, p Problem, x0 []float64, prior *Prior, s *Settin
 	set, err := s.withDefaults(n, m)
 	if err != nil {
 		return nil, err
+	}
+	if set.OutlierGroups != nil && len(set.OutlierGroups) != m {
+		return nil, fmt.Errorf("calibrate: %d outlier groups for %d observations: %w", len(set.OutlierGroups), m, ErrDimension)
 	}
 	sv := &solver{p: p, n: n, m: m, s: set, mu: make([]float64, n), prec: make([]float64, n)}
 	if prior != nil {
@@ -1121,6 +1137,7 @@ func (s *solver) run(ctx context.Context, x0 []float64) (*Result, error) {
 	}
 	res := &Result{MatrixFree: s.matrixFree}
 	cur := start
+	var stale *uncert // the uncertainty before the latest removals (probed path)
 	for {
 		pt, st, it, err := s.fit(ctx, cur)
 		res.Iterations += it
@@ -1139,21 +1156,55 @@ func (s *solver) run(ctx context.Context, x0 []float64) (*Result, error) {
 			}
 			return res, nil
 		}
-		unc, err := s.uncertainty(ctx, cur)
-		if err != nil {
+		// On the probed path the outlier test needs of the uncertainty only
+		// the degrees of freedom, through the effective number of
+		// parameters, which one removal changes by at most one reading's
+		// leverage: refits after a removal keep the last one, and the
+		// variances are probed again only once no outlier is left.
+		var unc *uncert
+		if stale != nil {
+			unc = s.restat(cur, stale)
+		} else if unc, err = s.uncertainty(ctx, cur); err != nil {
 			res.Evaluations = s.evals
 			fillPoint(res, cur, s)
 			return res, err
 		}
-		worst := s.worstOutlier(cur, unc)
-		if worst < 0 || len(res.Outliers) >= s.s.MaxOutliers {
+		worst := s.worstOutliers(cur, unc, s.s.MaxOutliers-len(res.Outliers))
+		if len(worst) == 0 && stale != nil {
+			stale = nil
+			if unc, err = s.uncertainty(ctx, cur); err != nil {
+				res.Evaluations = s.evals
+				fillPoint(res, cur, s)
+				return res, err
+			}
+			worst = s.worstOutliers(cur, unc, s.s.MaxOutliers-len(res.Outliers))
+		}
+		if len(worst) == 0 {
 			s.fill(res, cur, unc)
 			return res, nil
 		}
-		res.Outliers = append(res.Outliers, worst)
-		s.keep[worst] = 0
+		for _, i := range worst {
+			res.Outliers = append(res.Outliers, i)
+			s.keep[i] = 0
+		}
 		cur.cost = s.cost(cur)
+		if unc.lev == nil {
+			stale = unc
+		}
 	}
+}
+
+// restat is the outlier test's summary at pt with the effective number of
+// parameters of an earlier uncertainty prev (see run).
+func (s *solver) restat(pt *point, prev *uncert) *uncert {
+	u := &uncert{w: s.weights(pt), c: 1, peff: prev.peff, method: prev.method}
+	var used float64
+	for i, r := range pt.r {
+		u.chi2 += u.w[i] * r * r
+		used += s.keep[i]
+	}
+	s.scaleFactor(u, used)
+	return u
 }
 
 func fillPoint(res *Result, pt *point, s *solver) {
@@ -1486,13 +1537,18 @@ func pcg(apply, precond func(dst, v []float64), b, y0 []float64, tol float64, ma
 	return y, floats.Norm(r, 2) <= tol*bnorm
 }
 
-// worstOutlier returns the used observation with the largest |t_i| above the
-// threshold, or -1.
-func (s *solver) worstOutlier(pt *point, u *uncert) int {
-	if s.s.OutlierZ < 0 {
-		return -1
+// worstOutliers returns the used observation with the largest |t_i| above
+// the threshold, or with Settings.OutlierGroups the largest of each group,
+// worst first and at most limit of them; none when none exceeds it.
+func (s *solver) worstOutliers(pt *point, u *uncert, limit int) []int {
+	if s.s.OutlierZ < 0 || limit <= 0 {
+		return nil
 	}
-	worst, tmax := -1, s.s.OutlierZ
+	type cand struct {
+		i int
+		t float64
+	}
+	best := map[int]cand{} // group -> worst
 	for i, r := range pt.r {
 		if s.keep[i] == 0 {
 			continue
@@ -1517,11 +1573,33 @@ func (s *solver) worstOutlier(pt *point, u *uncert) int {
 		if !(c > 0) {
 			continue
 		}
-		if t := math.Abs(r) / math.Sqrt((1-h)*c); t > tmax {
-			worst, tmax = i, t
+		t := math.Abs(r) / math.Sqrt((1-h)*c)
+		if t <= s.s.OutlierZ {
+			continue
+		}
+		g := 0
+		if s.s.OutlierGroups != nil {
+			g = s.s.OutlierGroups[i]
+		}
+		if b, ok := best[g]; !ok || t > b.t {
+			best[g] = cand{i, t}
 		}
 	}
-	return worst
+	out := make([]cand, 0, len(best))
+	for _, c := range best {
+		out = append(out, c)
+	}
+	slices.SortFunc(out, func(a, b cand) int {
+		if a.t != b.t {
+			return cmp.Compare(b.t, a.t)
+		}
+		return cmp.Compare(a.i, b.i)
+	})
+	idx := make([]int, 0, min(len(out), limit))
+	for _, c := range out[:min(len(out), limit)] {
+		idx = append(idx, c.i)
+	}
+	return idx
 }
 
 func (s *solver) fill(res *Result, pt *point, u *uncert) {
