@@ -137,7 +137,7 @@ type problem struct {
 	x      []float64 // the latest evaluation point
 	ok     bool      // the latest evaluation completed
 	prev   evalCache
-	solves int       // network solves
+	solves int // network solves
 	// base, when set, holds per state the multipliers of the parameters
 	// this problem does not fit (a local refit); nil means design.
 	base []plant.Params
