@@ -653,7 +653,7 @@ func (su *setup) problemFor(ctx context.Context, hyp []ValveHypothesis, sel []in
 // fit stops at the estimate and its chi-square (a hypothesis comparison
 // needs no covariance).
 func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64, estimateOnly bool) (*fitRun, error) {
-	return su.runLocal(ctx, hyp, sel, from, outlierZ, estimateOnly, -1)
+	return su.runLocal(ctx, hyp, sel, from, outlierZ, estimateOnly, -1, nil)
 }
 
 // runLocal is run with, for local >= 0, only branch local's parameters
@@ -661,7 +661,10 @@ func (su *setup) run(ctx context.Context, hyp []ValveHypothesis, sel []int, from
 // hypothesis concerns one valve: refitting its own branch against the rest
 // of the fitted plant costs a few network solves instead of a whole
 // calibration, which matters on sites of hundreds of branches.
-func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64, estimateOnly bool, local int) (*fitRun, error) {
+//
+// exclude lists observations (indices into sel) left out from the start as
+// outliers already found (Settings.Exclude).
+func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int, from *fitRun, outlierZ float64, estimateOnly bool, local int, exclude []int) (*fitRun, error) {
 	p, err := su.newProblem(ctx, hyp, sel)
 	if err != nil {
 		return nil, err
@@ -678,7 +681,7 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 			x0[j] = su.start(from, par)
 		}
 	}
-	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly}
+	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly, Exclude: exclude}
 	var prob Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}

@@ -31,6 +31,56 @@ type localNet struct {
 	// per linearisation
 	d    []float64   // floored link slopes
 	chol [][]float64 // per local network, its Cholesky factor (row-major)
+	// scratch of ApproxJacobian
+	rhs  [][]float64
+	dq   []float64
+	mark []bool
+	ix   *obsIndex
+}
+
+// ref is term t of observation k's linear functional (stateNet.lin).
+type ref struct{ k, t int32 }
+
+// obsIndex lists, per link, node and parameter, the terms of the state's
+// observations on it (link flows, node pressures, direct dependences), in
+// compressed rows: the structure of the functionals is fixed, their
+// coefficients change with every evaluation.
+type obsIndex struct {
+	linkAt, nodeAt, directAt []int
+	link, node, direct       []ref
+}
+
+// index returns sn's observation index, built on first use.
+func (ln *localNet) index(sn *stateNet, nparams int) *obsIndex {
+	if ln.ix != nil {
+		return ln.ix
+	}
+	ix := &obsIndex{}
+	build := func(size int, terms func(l *lin) []term) ([]int, []ref) {
+		at := make([]int, size+1)
+		for k := range sn.obs {
+			for _, t := range terms(&sn.lin[k]) {
+				at[t.i+1]++
+			}
+		}
+		for i := range size {
+			at[i+1] += at[i]
+		}
+		refs := make([]ref, at[size])
+		next := append([]int(nil), at[:size]...)
+		for k := range sn.obs {
+			for e, t := range terms(&sn.lin[k]) {
+				refs[next[t.i]] = ref{int32(k), int32(e)}
+				next[t.i]++
+			}
+		}
+		return at, refs
+	}
+	ix.linkAt, ix.link = build(len(ln.from), func(l *lin) []term { return l.q })
+	ix.nodeAt, ix.node = build(len(ln.comp), func(l *lin) []term { return l.p })
+	ix.directAt, ix.direct = build(nparams, func(l *lin) []term { return l.x })
+	ln.ix = ix
+	return ix
 }
 
 // newLocalNet works out the local networks of state sn.
@@ -236,24 +286,16 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 		if !ln.factor(sn) {
 			continue // leaves the state out: a coarser preconditioner
 		}
-		// Which observations read each link's flow and each node's
-		// pressure, and which depend on a parameter directly.
-		linkObs := make([][]term, len(ln.from))
-		nodeObs := make([][]term, len(ln.comp))
-		direct := make([][]term, len(p.params))
-		for k, oi := range sn.obs {
-			for _, t := range sn.lin[k].q {
-				linkObs[t.i] = append(linkObs[t.i], term{oi, t.c})
+		ix := ln.index(sn, len(p.params))
+		if len(ln.rhs) != len(ln.nodes) {
+			ln.rhs = make([][]float64, len(ln.nodes))
+			for c, ns := range ln.nodes {
+				ln.rhs[c] = make([]float64, len(ns))
 			}
-			for _, t := range sn.lin[k].p {
-				nodeObs[t.i] = append(nodeObs[t.i], term{oi, t.c})
-			}
-			for _, t := range sn.lin[k].x {
-				direct[t.i] = append(direct[t.i], term{oi, t.c})
-			}
+			ln.dq = make([]float64, len(ln.from))
+			ln.mark = make([]bool, len(ln.nodes))
 		}
-		rhs := make([][]float64, len(ln.nodes))
-		dq := make([]float64, len(ln.from))
+		rhs, dq := ln.rhs, ln.dq
 		var marked, links []int
 		addq := func(l int, v float64) {
 			if dq[l] == 0 {
@@ -278,8 +320,8 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 					if c < 0 {
 						continue
 					}
-					if rhs[c] == nil {
-						rhs[c] = make([]float64, len(ln.nodes[c]))
+					if !ln.mark[c] {
+						ln.mark[c] = true
 						marked = append(marked, c)
 					}
 					rhs[c][ln.pos[e.node]] += e.s
@@ -299,20 +341,21 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 					addq(l, -(xb-xa)/ln.d[l])
 				}
 				for q, node := range ln.nodes[c] {
-					for _, t := range nodeObs[node] {
-						add(t.i, t.c*x[q])
+					for _, rf := range ix.node[ix.nodeAt[node]:ix.nodeAt[node+1]] {
+						add(sn.obs[rf.k], sn.lin[rf.k].p[rf.t].c*x[q])
 					}
 				}
-				rhs[c] = nil
+				clear(x)
+				ln.mark[c] = false
 			}
 			for _, l := range links {
-				for _, t := range linkObs[l] {
-					add(t.i, t.c*dq[l])
+				for _, rf := range ix.link[ix.linkAt[l]:ix.linkAt[l+1]] {
+					add(sn.obs[rf.k], sn.lin[rf.k].q[rf.t].c*dq[l])
 				}
 				dq[l] = 0
 			}
-			for _, t := range direct[j] {
-				add(t.i, t.c)
+			for _, rf := range ix.direct[ix.directAt[j]:ix.directAt[j+1]] {
+				add(sn.obs[rf.k], sn.lin[rf.k].x[rf.t].c)
 			}
 			for _, oi := range touched {
 				rows = append(rows, oi)

@@ -106,6 +106,9 @@ type stateNet struct {
 	local  *localNet // for ApproxJacobian, built on first use
 	th     *thevenin // set in a reduced refit (runReduced)
 	valves []valveElem
+	// applied holds the multipliers whose elements are on the network
+	// (nil Resistance: none yet).
+	applied plant.Params
 }
 
 // scratch returns sn's zeroed scratch vectors.
@@ -260,10 +263,25 @@ func kvSlope(b *plant.Branch, set float64) (kv, slope float64, err error) {
 // setElements puts the elements of multipliers pp on state s's network.
 func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 	net := sn.built.Net
+	// Only what changed since the last call: on a large site a step moves
+	// every resistance, but the valves' Kv scales, the header and the pump
+	// mostly stay, and building their elements is not free.
+	old, ok := sn.applied, sn.applied.Resistance != nil
+	hdr := !ok || old.Header != pp.Header
 	for i := range p.m.Branches {
 		b := &p.m.Branches[i]
-		if l := sn.built.Branch[b.ID]; l >= 0 {
-			net.SetElements(l, p.m.Elements(i, pp, sn.st.Settings[i])...)
+		if l := sn.built.Branch[b.ID]; l >= 0 && (!ok || old.Resistance[i] != pp.Resistance[i] || old.KvScale[i] != pp.KvScale[i]) {
+			var es []hydraulics.Element
+			if f := p.m.FixedElement(i, pp.Resistance[i]); f != nil {
+				es = append(es, f)
+			}
+			if b.Valve != nil {
+				es = append(es, sn.valveAt(p.m, i, pp.KvScale[i]))
+			}
+			net.SetElements(l, es...)
+		}
+		if !hdr {
+			continue
 		}
 		if l := sn.supplyHdr[i]; l >= 0 {
 			net.SetElements(l, scaled(b.Supply, pp.Header)...)
@@ -272,9 +290,10 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 			net.SetElements(l, scaled(b.Return, pp.Header)...)
 		}
 	}
-	if l := sn.built.PumpLink; l >= 0 {
+	if l := sn.built.PumpLink; l >= 0 && (!ok || old.PumpHead != pp.PumpHead) {
 		net.SetElements(l, p.m.Source(pp, sn.st).Pump)
 	}
+	sn.applied = pp
 }
 
 func scaled(es []hydraulics.Element, f float64) []hydraulics.Element {
@@ -434,10 +453,14 @@ type valveElem struct {
 // valves keep theirs throughout a local refit, and building one looks its
 // table up.
 func (sn *stateNet) valve(m *plant.Model, i int) hydraulics.Element {
+	return sn.valveAt(m, i, sn.params.KvScale[i])
+}
+
+// valveAt is valve at Kv scale k.
+func (sn *stateNet) valveAt(m *plant.Model, i int, k float64) hydraulics.Element {
 	if len(sn.valves) != len(m.Branches) {
 		sn.valves = make([]valveElem, len(m.Branches))
 	}
-	k := sn.params.KvScale[i]
 	if c := &sn.valves[i]; c.e != nil && c.scale == k {
 		return c.e
 	}

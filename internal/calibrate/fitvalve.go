@@ -148,7 +148,7 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 			if local >= 0 && !su.exactLocal {
 				r, err = su.runReduced(ctx, hyp, sel, cur, local)
 			} else {
-				r, err = su.runLocal(ctx, hyp, sel, cur, -1, true, local)
+				r, err = su.runLocal(ctx, hyp, sel, cur, -1, true, local, nil)
 			}
 			if err != nil {
 				if ctx.Err() != nil {
@@ -222,7 +222,22 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 		link.parent = from
 		from = &link
 	}
-	fin, err := su.run(ctx, finalHyp, su.allObs(), from, su.opt.OutlierZ, false)
+	// The base fit's outliers stay out, except at the adopted valves'
+	// branches, which their hypotheses may explain; the outlier test goes
+	// on from there.
+	changed := map[int]bool{}
+	for i, h := range finalHyp {
+		if h != base.hyp[i] {
+			changed[i] = true
+		}
+	}
+	var exclude []int
+	for _, oi := range base.res.Outliers {
+		if k := base.sel[oi]; !changed[su.obs[k].branch] {
+			exclude = append(exclude, k)
+		}
+	}
+	fin, err := su.runLocal(ctx, finalHyp, su.allObs(), from, su.opt.OutlierZ, false, -1, exclude)
 	if err != nil {
 		if ctx.Err() != nil {
 			return nil, err

@@ -1,9 +1,6 @@
 package calibrate
 
-import (
-	"math"
-	"math/rand/v2"
-)
+import "math"
 
 // exactHubVariances replaces the probed variances of the header and pump
 // parameters by exact ones. Every reading depends on those two, so their
@@ -41,40 +38,17 @@ func exactHubVariances(p *problem, res *Result) {
 			dst[j] += prec[j] * v[j]
 		}
 	}
-	// Preconditioner: the block one of the local approximation, whose
-	// singles take Rademacher estimates of the squared column norms (as the
-	// engine does); those alone without it.
-	const probes = 16
-	diag := make([]float64, n)
-	rng := rand.New(rand.NewPCG(1, 2))
-	u := make([]float64, m)
-	t := make([]float64, n)
-	for range probes {
-		for i := range u {
-			u[i] = math.Sqrt(res.Weight[i])
-			if rng.Uint64()&1 == 1 {
-				u[i] = -u[i]
-			}
-		}
-		op.MulTransVec(t, u)
-		for j, v := range t {
-			diag[j] += v * v / probes
-		}
-	}
-	precond := func(dst, r []float64) {
-		for j := range dst {
-			dst[j] = r[j] / (diag[j]/c + prec[j])
-		}
-	}
-	for j := range diag {
-		if !(diag[j]/c+prec[j] > 0) {
-			return
-		}
-	}
+	// Preconditioner: the block one of the local approximation, with exact
+	// norms for the columns it leaves out (the header and pump themselves).
 	rows, cols, vals := op.ApproxJacobian()
-	if bp := newBlockPrec(n, rows, cols, vals, res.Weight, diag); bp.set(c, prec, 0, nil) {
-		precond = bp.solve
+	bp := newBlockPrec(n, rows, cols, vals, res.Weight, nil)
+	d := append([]float64(nil), bp.gdiag...)
+	exactColumns(op, d, res.Weight, bp.hubs)
+	bp.diagA = d
+	if !bp.set(c, prec, 0, nil) {
+		return
 	}
+	precond := bp.solve
 	for _, j := range []int{p.hIdx, p.pIdx} {
 		if j < 0 {
 			continue

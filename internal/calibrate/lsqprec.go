@@ -39,6 +39,7 @@ type blockPrec struct {
 	gdiag  []float64   // diag(J̃ᵀWJ̃)
 	diagA  []float64   // diag(JᵀWJ) as the engine has it, for the rest
 	single []int       // parameters outside every block
+	hubs   []int       // those left out for touching many rows
 	// current M
 	chol [][]float64 // per block, lower Cholesky factor
 	sd   []float64   // per single parameter, √M_jj
@@ -109,6 +110,9 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec 
 	for j := range n {
 		block[j] = -1
 		r := find(j)
+		if hub(j) {
+			bp.hubs = append(bp.hubs, j)
+		}
 		if hub(j) || size[r] < 2 || size[r] > maxBlock {
 			bp.single = append(bp.single, j)
 			continue
@@ -176,7 +180,10 @@ func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []flo
 		}
 	}
 	for a, j := range bp.single {
-		d := max(bp.gdiag[j], bp.diagA[j])/c + prec[j] + damp(j)
+		d := bp.gdiag[j]/c + prec[j] + damp(j)
+		if bp.diagA != nil {
+			d = max(bp.gdiag[j], bp.diagA[j])/c + prec[j] + damp(j)
+		}
 		if !(d > 0) {
 			return false
 		}
