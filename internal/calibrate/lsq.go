@@ -263,8 +263,8 @@ type Settings struct {
 	// already found (by an earlier fit of the same readings); they head
 	// Result.Outliers and count towards MaxOutliers.
 	Exclude []int
-	Dense         bool    // force the dense path even for an Operator problem
-	Scale         Scaling // model-error scaling of the covariance
+	Dense   bool    // force the dense path even for an Operator problem
+	Scale   Scaling // model-error scaling of the covariance
 	// CGTol is the relative residual of the matrix-free steps' CG solves.
 	// 0 makes it adaptive (an inexact Newton method, Dembo, Eisenstat &
 	// Steihaug 1982, SIAM J. Numer. Anal. 19(2), 400-408): min(0.1, √cos)
