@@ -6,6 +6,8 @@ import (
 	"math"
 	"slices"
 	"sort"
+
+	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // Thresholds of the valve hypothesis test.
@@ -222,18 +224,28 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 		link.parent = from
 		from = &link
 	}
-	// The base fit's outliers stay out, except at the adopted valves'
-	// branches, which their hypotheses may explain; the outlier test goes
-	// on from there.
-	changed := map[int]bool{}
-	for i, h := range finalHyp {
-		if h != base.hyp[i] {
-			changed[i] = true
+	// The base fit's outliers stay out, except those an adopted
+	// hypothesis explains (its refit brings them within the outlier
+	// threshold); the outlier test goes on from there.
+	explained := map[int]bool{} // setup observation -> explained
+	z := su.opt.OutlierZ
+	if z == 0 {
+		z = math.Inf(1)
+		if len(base.res.Residual) > 0 {
+			// The engine's default threshold (Settings.OutlierZ).
+			z = distuv.UnitNormal.Quantile(1 - 0.025/float64(len(base.sel)))
+		}
+	}
+	for _, r := range adopted {
+		for oi, k := range r.sel {
+			if math.Abs(r.res.Residual[oi]) <= z {
+				explained[k] = true
+			}
 		}
 	}
 	var exclude []int
 	for _, oi := range base.res.Outliers {
-		if k := base.sel[oi]; !changed[su.obs[k].branch] {
+		if k := base.sel[oi]; !explained[k] {
 			exclude = append(exclude, k)
 		}
 	}
