@@ -3,6 +3,8 @@ package calibrate
 import (
 	"fmt"
 	"math"
+
+	"flowset/internal/plant"
 )
 
 // calibration assembles the outcome of fit f.
@@ -22,6 +24,10 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		Parameters: append([]Param(nil), p.params...), ChiSquare: res.ChiSquare, ReducedChiSquare: res.ReducedChiSquare,
 		DOF: res.DOF, Iterations: res.Iterations, Status: res.Status, Converged: res.Status.OK(), Result: res,
 		LogSD: make([]float64, nb), Solves: su.solves,
+	}
+	pps := make([]plant.Params, len(p.states)) // each state's multipliers at the fit
+	for s := range p.states {
+		pps[s] = p.stateParams(p.x, s, nil)
 	}
 	interval := func(j int) (ratio, lo, hi, sd float64) {
 		ratio, lo, hi = Multiplier(res.X[j], res.Lo95[j], res.Hi95[j])
@@ -71,7 +77,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 				bf.KvSD = math.Abs(g) * res.StdErr[j]
 			}
 			c.Params.KvScale[i] = bf.KvScale
-			su.valveStates(p, i, &bf.Valve)
+			su.valveStates(p, i, &bf.Valve, pps)
 		}
 		bf.ValveAssumed = b.Valve != nil && !bf.KvFitted
 		c.Branches[i] = bf
@@ -133,7 +139,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 
 // valveStates fills the verdict's per-state Kv, recorded and implied
 // settings of branch i's valve at the fitted point of p.
-func (su *setup) valveStates(p *problem, i int, v *ValveVerdict) {
+func (su *setup) valveStates(p *problem, i int, v *ValveVerdict, pps []plant.Params) {
 	b := &su.m.Branches[i]
 	j := p.kvIdx[i]
 	v.Kv = make([]float64, len(p.states))
@@ -148,7 +154,7 @@ func (su *setup) valveStates(p *problem, i int, v *ValveVerdict) {
 		if err != nil {
 			continue
 		}
-		v.Kv[s] = kv * p.stateParams(p.x, s, nil).KvScale[i]
+		v.Kv[s] = kv * pps[s].KvScale[i]
 		if p.params[j].Kind == OffsetParam {
 			if at := set + p.x[j]; at >= lo && at <= hi {
 				v.Implied[s] = at
