@@ -483,15 +483,43 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 			}
 			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("the pump would need speed ratio %.3f, above its maximum %.3f: the plan runs it at the maximum and some branches fall short", pl.plan.Pump.NeededSpeed, maxSpeed))
 			pl.suggest(ctx)
+		} else {
+			pl.suggestCleaning()
 		}
 		pl.plan.Speed = x
 	} else {
 		pl.plan.Differential = x
+		pl.suggestCleaning()
 	}
 	pl.plan.Settings = settings
 	pl.plan.Required = sol.PumpDiff()
 	pl.plan.TotalFlow = sol.TotalFlow()
 	return sol, nil
+}
+
+// suggestCleaning names the fouled branches (resistance over twice design)
+// whose cleaning would lower the differential the whole circuit needs: on
+// the index path that is pump energy saved for good, whether or not the
+// pump can meet the targets today.
+func (pl *planner) suggestCleaning() {
+	ex := pl.ex
+	var tried int
+	for i := range pl.m.Branches {
+		if pl.p.Resistance[i] <= 2 || tried >= 20 {
+			continue
+		}
+		tried++
+		p := pl.p.Clone()
+		p.Resistance[i] = 1
+		e, err := newExact(pl.m, p, append([]float64(nil), ex.q...))
+		if err != nil {
+			continue
+		}
+		if l := e.least; l < ex.least*0.99 {
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("branch %q has %.1f times its design resistance (fouled or a closed part?): restoring it would lower the differential needed from %.1f to %.1f kPa",
+				pl.m.Branches[i].ID, pl.p.Resistance[i], ex.least/1e3, l/1e3))
+		}
+	}
 }
 
 // suggest adds what would help a pump that falls short: a larger pump or
@@ -506,19 +534,7 @@ func (pl *planner) suggest(ctx context.Context) {
 		}
 		return e.least
 	}
-	var tried int
-	for i := range pl.m.Branches {
-		if pl.p.Resistance[i] <= 2 || tried >= 20 {
-			continue
-		}
-		tried++
-		p := pl.p.Clone()
-		p.Resistance[i] = 1
-		if l := least(p); l < ex.least*0.99 {
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("branch %q has %.1f times its design resistance (fouled or a closed part?): restoring it would lower the differential needed from %.1f to %.1f kPa",
-				pl.m.Branches[i].ID, pl.p.Resistance[i], ex.least/1e3, l/1e3))
-		}
-	}
+	pl.suggestCleaning()
 	for _, id := range ex.indexIDs {
 		i, _ := pl.m.Index(id)
 		if pl.m.Branches[i].Valve == nil {
