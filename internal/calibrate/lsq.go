@@ -317,7 +317,7 @@ const (
 	denseMax     = 1500
 	lambdaMax    = 1e16
 	diagProbes   = 8
-	probeTol     = 1e-6 // CG tolerance of a variance probe: far below the estimator's own noise
+	probeTol     = 1e-4 // CG tolerance of a variance probe: far below the estimator's own noise
 	determinedAt = 0.5  // Determined: posterior sd below this fraction of the prior sigma
 )
 
@@ -431,7 +431,7 @@ const (
 	// of Bekas, Kokiopoulou & Saad (2007), Appl. Numer. Math. 57(11-12),
 	// diag(A⁻¹) ≈ (1/s) Σ_k z_k ⊙ A⁻¹z_k with s Rademacher vectors z_k, each
 	// A⁻¹z_k by preconditioned conjugate gradients to a relative residual of
-	// 1e-6. Without a SparseApprox the estimate is clipped below by 1/A_jj,
+	// 1e-4. Without a SparseApprox the estimate is clipped below by 1/A_jj,
 	// which bounds (A⁻¹)_jj from below for any positive definite A (A_jj is
 	// exact with a Preconditioner and the squared loss, estimated
 	// otherwise); its error shrinks like 1/√s times the off-diagonal mass of
