@@ -647,3 +647,98 @@ func BenchmarkSolveDense(b *testing.B) {
 		})
 	}
 }
+
+// TestOutlierRounds plants two gross outliers in a sparse problem and
+// checks that the ways of removing them agree: one at a time, one per group
+// in a round (Settings.OutlierGroups), and with the first given as already
+// found (Settings.Exclude), on the exact and on the probed path (which
+// tests after a removal with the last effective parameter count). All must
+// remove the same two readings and reach the same estimate.
+func TestOutlierRounds(t *testing.T) {
+	const n, m, bad1, bad2 = 60, 180, 77, 140
+	p := lsqtest.NewSparse(n, m, 3, 0.02, 3)
+	p.Y[bad1] += 30 * p.Sigma[bad1]
+	p.Y[bad2] -= 25 * p.Sigma[bad2]
+	groups := make([]int, m)
+	for i := range groups {
+		groups[i] = i
+	}
+	for _, probed := range []bool{false, true} {
+		covMax := 0
+		if probed {
+			covMax = -1
+		}
+		solve := func(s calibrate.Settings) *calibrate.Result {
+			t.Helper()
+			s.DenseCovMax, s.CGTol = covMax, 1e-12
+			res, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &s)
+			if err != nil {
+				t.Fatalf("Solve: %v", err)
+			}
+			return res
+		}
+		one := solve(calibrate.Settings{})
+		grouped := solve(calibrate.Settings{OutlierGroups: groups})
+		excluded := solve(calibrate.Settings{Exclude: []int{bad1}})
+		for _, c := range []struct {
+			name string
+			res  *calibrate.Result
+			want []int
+		}{
+			{"one at a time", one, []int{bad1, bad2}},
+			{"grouped", grouped, []int{bad1, bad2}},
+			{"first excluded", excluded, []int{bad1, bad2}},
+		} {
+			if diff := cmp.Diff(c.want, c.res.Outliers); diff != "" {
+				t.Errorf("probed=%v, %s: outliers mismatch (-want +got):\n%s", probed, c.name, diff)
+			}
+			if e := maxRelDiff(c.res.X, one.X); e > 1e-8 {
+				t.Errorf("probed=%v, %s: estimate differs from one at a time by %.2e", probed, c.name, e)
+			}
+			if c.res.VarMethod == calibrate.VarProbed != probed {
+				t.Errorf("probed=%v, %s: variances %v", probed, c.name, c.res.VarMethod)
+			}
+		}
+		if grouped.Evaluations >= one.Evaluations {
+			t.Errorf("probed=%v: %d evaluations grouped, %d one at a time; want fewer", probed, grouped.Evaluations, one.Evaluations)
+		}
+	}
+	_, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierGroups: groups[:10]})
+	if !errors.Is(err, calibrate.ErrDimension) {
+		t.Errorf("10 groups for %d observations: error %v, want ErrDimension", m, err)
+	}
+	_, err = calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{Exclude: []int{m}})
+	if !errors.Is(err, calibrate.ErrDimension) {
+		t.Errorf("excluding observation %d of %d: error %v, want ErrDimension", m, m, err)
+	}
+}
+
+// TestCostTol stops a fit on a negligible decrease (Settings.CostTol) and
+// wants it within a small fraction of a posterior sd of the fit run to the
+// gradient test; a negative tolerance is refused.
+func TestCostTol(t *testing.T) {
+	const n = 60
+	p := lsqtest.NewSparse(n, 180, 3, 0.02, 5)
+	full, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierZ: -1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	loose, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierZ: -1, CostTol: 1e-6})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !loose.Status.OK() {
+		t.Fatalf("status %v", loose.Status)
+	}
+	// A decrease of at most 1e-6 in F leaves the estimate about √(2e-6)
+	// posterior sd from the optimum; 0.01 sd gives room.
+	for j := range n {
+		if d := math.Abs(loose.X[j]-full.X[j]) / full.StdErr[j]; d > 0.01 {
+			t.Errorf("parameter %d: %.3g sd from the full fit", j, d)
+		}
+	}
+	t.Logf("status %v after %d steps; full fit %v after %d", loose.Status, loose.Iterations, full.Status, full.Iterations)
+	if _, err := calibrate.Solve(context.Background(), p, make([]float64, n), nil, &calibrate.Settings{CostTol: -1}); !errors.Is(err, calibrate.ErrSettings) {
+		t.Errorf("negative CostTol: error %v, want ErrSettings", err)
+	}
+}
