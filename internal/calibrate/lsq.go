@@ -278,7 +278,8 @@ type Settings struct {
 	// CostTol stops the fit (SmallDecrease) when an accepted step lowered F
 	// by at most CostTol and the local model predicted no more (the
 	// criterion of MINPACK's ftol, Moré, Garbow & Hillstrom 1980, in
-	// absolute terms). F is in units of χ²/2, so 1e-6 leaves the estimate
+	// absolute terms), or when a step the model credits with at most
+	// CostTol is rejected. F is in units of χ²/2, so 1e-6 leaves the estimate
 	// about 1e-3 posterior sd from the optimum, far below anything a
 	// reading can show, where the gradient test may not be reachable when
 	// the residuals carry the rounding of an iterative model. 0: off.
@@ -1188,6 +1189,12 @@ func (s *solver) fit(ctx context.Context, start *point) (*point, Status, int, er
 					}
 					break
 				}
+			}
+			if ee == nil && s.s.CostTol > 0 && pred <= s.s.CostTol && iter > 0 {
+				// The local model promises no more than the tolerance and
+				// the evaluation does not even confirm that: what is left
+				// is rounding in the residuals.
+				return cur, SmallDecrease, iter, nil
 			}
 			lambda *= nu
 			nu *= 2
