@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"context"
+	"flowset/internal/cpuclock"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -63,37 +64,17 @@ func BenchmarkFitSurvey(b *testing.B) {
 			}
 			m := mustModel(b, s)
 			var cal *Calibration
-			cpu := startCPU()
+			cpu := cpuclock.Start()
 			for b.Loop() {
 				if cal, err = Fit(ctx, m, nil); err != nil {
 					b.Fatal(err)
 				}
 			}
-			cpu.report(b)
+			cpu.Report(b)
 			b.ReportMetric(float64(cal.Solves), "solves")
 			b.ReportMetric(float64(cal.Iterations), "steps")
 			b.ReportMetric(float64(len(cal.Outliers())), "outliers")
 			b.ReportMetric(float64(len(cal.Readings)), "readings")
 		})
-	}
-}
-
-// cpuClock measures the process CPU time of a benchmark loop. On a machine
-// shared with other work wall time (ns/op) varies with the load; CPU time
-// (cpu-ns/op, which includes the garbage collector's) much less.
-type cpuClock struct {
-	start int64
-	ok    bool
-}
-
-func startCPU() cpuClock {
-	t, ok := processCPU()
-	return cpuClock{t, ok}
-}
-
-func (c cpuClock) report(b *testing.B) {
-	t, ok := processCPU()
-	if c.ok && ok && b.N > 0 {
-		b.ReportMetric(float64(t-c.start)/float64(b.N), "cpu-ns/op")
 	}
 }

@@ -2,6 +2,7 @@ package network
 
 import (
 	"context"
+	"flowset/internal/cpuclock"
 	"fmt"
 	"math"
 	"slices"
@@ -61,7 +62,7 @@ func BenchmarkSolve(b *testing.B) {
 			bt := benchLadder(b, nb)
 			var iters int
 			b.ReportAllocs()
-			cpu := startCPU()
+			cpu := cpuclock.Start()
 			for b.Loop() {
 				sol, err := bt.Net.Solve(context.Background(), nil)
 				if err != nil {
@@ -69,7 +70,7 @@ func BenchmarkSolve(b *testing.B) {
 				}
 				iters = sol.Iterations
 			}
-			cpu.report(b)
+			cpu.Report(b)
 			b.ReportMetric(float64(iters), "newton-steps")
 		})
 	}
@@ -94,7 +95,7 @@ func BenchmarkSolveWarm(b *testing.B) {
 			opt := &Options{Initial: sol.Flow}
 			var iters int
 			b.ReportAllocs()
-			cpu := startCPU()
+			cpu := cpuclock.Start()
 			for b.Loop() {
 				s, err := bt.Net.Solve(context.Background(), opt)
 				if err != nil {
@@ -102,29 +103,9 @@ func BenchmarkSolveWarm(b *testing.B) {
 				}
 				iters = s.Iterations
 			}
-			cpu.report(b)
+			cpu.Report(b)
 			b.ReportMetric(float64(iters), "newton-steps")
 		})
-	}
-}
-
-// cpuClock measures the process CPU time of a benchmark loop. On a machine
-// shared with other work wall time (ns/op) varies with the load; CPU time
-// (cpu-ns/op, which includes the garbage collector's) much less.
-type cpuClock struct {
-	start int64
-	ok    bool
-}
-
-func startCPU() cpuClock {
-	t, ok := processCPU()
-	return cpuClock{t, ok}
-}
-
-func (c cpuClock) report(b *testing.B) {
-	t, ok := processCPU()
-	if c.ok && ok && b.N > 0 {
-		b.ReportMetric(float64(t-c.start)/float64(b.N), "cpu-ns/op")
 	}
 }
 
@@ -143,13 +124,13 @@ func BenchmarkBuild(b *testing.B) {
 			}
 			src := Source{Pump: bt.Net.Elements(bt.PumpLink)[0], Static: 1.5e5}
 			b.ReportAllocs()
-			cpu := startCPU()
+			cpu := cpuclock.Start()
 			for b.Loop() {
 				if _, err := Build(l, src, water20); err != nil {
 					b.Fatal(err)
 				}
 			}
-			cpu.report(b)
+			cpu.Report(b)
 		})
 	}
 }

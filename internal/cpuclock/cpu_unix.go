@@ -1,6 +1,6 @@
 //go:build unix
 
-package calibrate
+package cpuclock
 
 import "syscall"
 

@@ -1,6 +1,0 @@
-//go:build !unix
-
-package calibrate
-
-// processCPU is not available here; benchmarks then report wall time only.
-func processCPU() (int64, bool) { return 0, false }
