@@ -3,6 +3,7 @@ package calibrate
 import (
 	"context"
 	"errors"
+	"flowset/internal/lsq"
 	"fmt"
 	"math"
 
@@ -60,11 +61,11 @@ const freeSigma = 3.0
 // FitOptions tune Fit. The zero value (or nil) selects the defaults; a
 // prior sd of +Inf removes that prior.
 type FitOptions struct {
-	PriorResistance float64 // sd of ln R; 0: DefaultPriorResistance
-	PriorKv         float64 // sd of ln KvScale; 0: DefaultPriorKv
-	PriorHeader     float64 // sd of ln Header; 0: DefaultPriorHeader
-	PriorPump       float64 // sd of ln PumpHead; 0: DefaultPriorPump
-	Loss            Loss    // zero value: plain least squares
+	PriorResistance float64  // sd of ln R; 0: DefaultPriorResistance
+	PriorKv         float64  // sd of ln KvScale; 0: DefaultPriorKv
+	PriorHeader     float64  // sd of ln Header; 0: DefaultPriorHeader
+	PriorPump       float64  // sd of ln PumpHead; 0: DefaultPriorPump
+	Loss            lsq.Loss // zero value: plain least squares
 	// OutlierZ is the engine's outlier threshold (see Settings.OutlierZ):
 	// 0 selects the Bonferroni default, negative disables the test.
 	OutlierZ float64
@@ -107,14 +108,14 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	}
 	for _, p := range []*float64{&out.PriorResistance, &out.PriorKv, &out.PriorHeader, &out.PriorPump} {
 		if *p < 0 || math.IsNaN(*p) {
-			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, ErrSettings)
+			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, lsq.ErrSettings)
 		}
 	}
 	if out.MeterDensity < 0 || math.IsNaN(out.MeterDensity) || math.IsInf(out.MeterDensity, 0) {
-		return out, fmt.Errorf("calibrate: meter density %g must be positive: %w", out.MeterDensity, ErrSettings)
+		return out, fmt.Errorf("calibrate: meter density %g must be positive: %w", out.MeterDensity, lsq.ErrSettings)
 	}
 	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 || out.MaxValveTests < 0 {
-		return out, fmt.Errorf("calibrate: negative count: %w", ErrSettings)
+		return out, fmt.Errorf("calibrate: negative count: %w", lsq.ErrSettings)
 	}
 	def := func(p *float64, d float64) {
 		if *p == 0 {
@@ -271,11 +272,11 @@ type Calibration struct {
 	ChiSquare, ReducedChiSquare float64
 	DOF                         int
 	Iterations                  int
-	Status                      Status
+	Status                      lsq.Status
 	Converged                   bool
 	// Result is the engine's outcome of the final fit; on the matrix-free
 	// path its header and pump variances and intervals are the exact ones.
-	Result *Result
+	Result *lsq.Result
 	// LogSD is the posterior sd of each branch's ln Ratio (0 for a branch
 	// without fixed parts), for the balancing plan's uncertainty.
 	LogSD []float64
@@ -601,7 +602,7 @@ type fitRun struct {
 	hyp  []ValveHypothesis
 	sel  []int // the observations fitted (indices into setup.obs)
 	prob *problem
-	res  *Result
+	res  *lsq.Result
 	// parent is the fit a local refit held its other parameters at (nil
 	// for a full fit).
 	parent *fitRun
@@ -680,15 +681,15 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 	}
 	n := len(p.params)
 	x0 := make([]float64, n)
-	prior := &Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
+	prior := &lsq.Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
 	for j, par := range p.params {
 		prior.Sigma[j] = par.Sigma
 		if from != nil {
 			x0[j] = su.start(from, par)
 		}
 	}
-	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly, Exclude: exclude}
-	var prob Problem = p
+	set := &lsq.Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly, Exclude: exclude}
+	var prob lsq.Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}
 		set.CostTol = fitCostTol
@@ -698,7 +699,7 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 		// exact variances afterwards (exactHubVariances).
 		set.DenseCovMax = -1
 	}
-	res, err := Solve(ctx, prob, x0, prior, set)
+	res, err := lsq.Solve(ctx, prob, x0, prior, set)
 	su.solves += p.solves
 	if err != nil {
 		return nil, fmt.Errorf("calibrate: fit: %w", err)

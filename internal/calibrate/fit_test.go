@@ -3,6 +3,7 @@ package calibrate
 import (
 	"context"
 	"errors"
+	"flowset/internal/lsq"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -360,9 +361,9 @@ func TestFitErrors(t *testing.T) {
 		opt   *FitOptions
 		cause error
 	}{
-		{"negative prior", nil, &FitOptions{PriorKv: -1}, ErrSettings},
-		{"NaN meter density", nil, &FitOptions{MeterDensity: math.NaN()}, ErrSettings},
-		{"negative valve tests", nil, &FitOptions{MaxValveTests: -1}, ErrSettings},
+		{"negative prior", nil, &FitOptions{PriorKv: -1}, lsq.ErrSettings},
+		{"NaN meter density", nil, &FitOptions{MeterDensity: math.NaN()}, lsq.ErrSettings},
+		{"negative valve tests", nil, &FitOptions{MaxValveTests: -1}, lsq.ErrSettings},
 		{"no readings", func(s *site.Site) { s.Readings = nil }, nil, ErrSurvey},
 		{"zero sigma", func(s *site.Site) { s.Readings[0].Sigma = 0 }, nil, ErrSurvey},
 		{"NaN value", func(s *site.Site) { s.Readings[0].Value = math.NaN() }, nil, ErrSurvey},

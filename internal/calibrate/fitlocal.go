@@ -1,6 +1,10 @@
 package calibrate
 
-import "math"
+import (
+	"math"
+
+	"flowset/internal/lsq"
+)
 
 // The local Jacobian: an approximation of the fit's Jacobian in which the
 // pressures at the take-off nodes of the main ladder are held. Each branch,
@@ -200,7 +204,7 @@ func (ln *localNet) factor(sn *stateNet) bool {
 				a[pb*k+pa] -= g
 			}
 		}
-		if !cholesky(a, k) {
+		if !lsq.Cholesky(a, k) {
 			return false
 		}
 	}
@@ -213,48 +217,6 @@ func (ln *localNet) local(c, node int) int {
 		return -1
 	}
 	return ln.pos[node]
-}
-
-// cholesky factorises the k×k symmetric positive definite a in place into
-// its lower factor L (a = L Lᵀ); the upper triangle is left as it was.
-func cholesky(a []float64, k int) bool {
-	for j := range k {
-		s := a[j*k+j]
-		for p := range j {
-			s -= a[j*k+p] * a[j*k+p]
-		}
-		if !(s > 0) {
-			return false
-		}
-		ljj := math.Sqrt(s)
-		a[j*k+j] = ljj
-		for i := j + 1; i < k; i++ {
-			s := a[i*k+j]
-			for p := range j {
-				s -= a[i*k+p] * a[j*k+p]
-			}
-			a[i*k+j] = s / ljj
-		}
-	}
-	return true
-}
-
-// cholSolve solves L Lᵀ x = b in place, L from cholesky.
-func cholSolve(l []float64, k int, b []float64) {
-	for i := range k {
-		s := b[i]
-		for p := range i {
-			s -= l[i*k+p] * b[p]
-		}
-		b[i] = s / l[i*k+i]
-	}
-	for i := k - 1; i >= 0; i-- {
-		s := b[i]
-		for p := i + 1; p < k; p++ {
-			s -= l[p*k+i] * b[p]
-		}
-		b[i] = s / l[i*k+i]
-	}
 }
 
 // ApproxJacobian implements SparseApprox: the local Jacobian (see above) at
@@ -329,7 +291,7 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 			}
 			for _, c := range marked {
 				x := rhs[c]
-				cholSolve(ln.chol[c], len(x), x)
+				lsq.CholSolve(ln.chol[c], len(x), x)
 				for _, l := range ln.links[c] {
 					var xa, xb float64
 					if q := ln.local(c, ln.from[l]); q >= 0 {

@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"context"
+	"flowset/internal/lsq"
 	"fmt"
 	"math"
 	"slices"
@@ -322,7 +323,7 @@ func (p *problem) solve(sn *stateNet, pp plant.Params) error {
 		sol, err = sn.built.Net.Solve(p.ctx, nil)
 	}
 	if err != nil {
-		return fmt.Errorf("state %q: %w: %w", sn.st.Label, err, ErrDomain)
+		return fmt.Errorf("state %q: %w: %w", sn.st.Label, err, lsq.ErrDomain)
 	}
 	sn.sol, sn.params = sol, pp
 	return nil
@@ -332,7 +333,7 @@ func (p *problem) solve(sn *stateNet, pp plant.Params) error {
 func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 	for j, v := range x {
 		if !finite(v) || p.params[j].Kind != OffsetParam && math.Abs(v) > maxLog {
-			return fmt.Errorf("%v parameter %g beyond ±%d: %w", p.params[j].Kind, v, maxLog, ErrDomain)
+			return fmt.Errorf("%v parameter %g beyond ±%d: %w", p.params[j].Kind, v, maxLog, lsq.ErrDomain)
 		}
 	}
 	if jac == nil && (p.ok && slices.Equal(x, p.x) || p.prev.ok && slices.Equal(x, p.prev.x)) {
@@ -381,7 +382,7 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 			p.pred[oi] = p.predict(sn, o)
 			r[oi] = (p.pred[oi] - o.value) / o.sigma
 			if !finite(r[oi]) {
-				return fmt.Errorf("reading %d predicted %g: %w", o.reading, p.pred[oi], ErrDomain)
+				return fmt.Errorf("reading %d predicted %g: %w", o.reading, p.pred[oi], lsq.ErrDomain)
 			}
 		}
 		switch {

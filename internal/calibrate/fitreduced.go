@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"context"
+	"flowset/internal/lsq"
 	"fmt"
 	"math"
 	"slices"
@@ -77,7 +78,7 @@ func (su *setup) runReduced(ctx context.Context, hyp []ValveHypothesis, sel []in
 			}
 			g := dq[l] // -1/(d_l + Z)
 			if !(g < 0) {
-				return nil, fmt.Errorf("calibrate: state %q: link %q does not respond to its drop: %w", psn.st.Label, id, ErrDomain)
+				return nil, fmt.Errorf("calibrate: state %q: link %q does not respond to its drop: %w", psn.st.Label, id, lsq.ErrDomain)
 			}
 			th.l = l
 			th.rq, th.rp = dq, dp
@@ -96,13 +97,13 @@ func (su *setup) runReduced(ctx context.Context, hyp []ValveHypothesis, sel []in
 	p.restrict(i, from)
 	n := len(p.params)
 	x0 := make([]float64, n)
-	prior := &Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
+	prior := &lsq.Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
 	for j, par := range p.params {
 		prior.Sigma[j] = par.Sigma
 		x0[j] = su.start(from, par)
 	}
-	set := &Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: -1, EstimateOnly: true, Dense: true, CostTol: fitCostTol}
-	res, err := Solve(ctx, p, x0, prior, set)
+	set := &lsq.Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: -1, EstimateOnly: true, Dense: true, CostTol: fitCostTol}
+	res, err := lsq.Solve(ctx, p, x0, prior, set)
 	if err != nil {
 		return nil, fmt.Errorf("calibrate: fit: %w", err)
 	}
@@ -146,7 +147,7 @@ func (p *problem) solveReduced(sn *stateNet, pp plant.Params) error {
 		}
 		delta, slope, err := rootReduced(f, math.Max(math.Abs(q0), 1e-9))
 		if err != nil {
-			return fmt.Errorf("state %q: branch %q: %w: %w", sn.st.Label, p.m.Branches[th.br].ID, err, ErrDomain)
+			return fmt.Errorf("state %q: branch %q: %w: %w", sn.st.Label, p.m.Branches[th.br].ID, err, lsq.ErrDomain)
 		}
 		th.slope = slope
 		q = make([]float64, len(th.q0))

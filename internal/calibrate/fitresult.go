@@ -1,6 +1,7 @@
 package calibrate
 
 import (
+	"flowset/internal/lsq"
 	"fmt"
 	"math"
 
@@ -30,7 +31,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		pps[s] = p.stateParams(p.x, s, nil)
 	}
 	interval := func(j int) (ratio, lo, hi, sd float64) {
-		ratio, lo, hi = Multiplier(res.X[j], res.Lo95[j], res.Hi95[j])
+		ratio, lo, hi = lsq.Multiplier(res.X[j], res.Lo95[j], res.Hi95[j])
 		return ratio, lo, hi, res.StdErr[j]
 	}
 	for i := range nb {

@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"context"
+	"flowset/internal/lsq"
 	"math"
 	"slices"
 	"testing"
@@ -41,7 +42,7 @@ func TestFitProbedVarianceSurvey(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if exact.Result.VarMethod != VarExact || probed.Result.VarMethod != VarProbed {
+	if exact.Result.VarMethod != lsq.VarExact || probed.Result.VarMethod != lsq.VarProbed {
 		t.Fatalf("methods %v and %v, want exact and probed", exact.Result.VarMethod, probed.Result.VarMethod)
 	}
 	n := len(exact.Result.X)
@@ -81,11 +82,11 @@ func TestFitProbedVarianceSurvey(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	prior := &Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
+	prior := &lsq.Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
 	for j, par := range p.params {
 		prior.Sigma[j] = par.Sigma
 	}
-	plain, err := Solve(ctx, plainOp{opProblem{p}}, exact.Result.X, prior, &Settings{OutlierZ: -1, DenseCovMax: -1, Probes: 64, CostTol: fitCostTol})
+	plain, err := lsq.Solve(ctx, plainOp{opProblem{p}}, exact.Result.X, prior, &lsq.Settings{OutlierZ: -1, DenseCovMax: -1, Probes: 64, CostTol: fitCostTol})
 	if err != nil {
 		t.Fatal(err)
 	}

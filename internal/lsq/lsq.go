@@ -1,4 +1,4 @@
-// Package calibrate fits model parameters to site readings by weighted
+// Package lsq fits model parameters to observations by weighted
 // nonlinear least squares with a weak Gaussian prior, and reports how well the
 // readings determine each parameter.
 //
@@ -76,7 +76,7 @@
 // after a removal test with the effective number of parameters of the last
 // probed uncertainty, and the variances are probed again once no outlier is
 // left; should the new degrees of freedom reveal one, the loop goes on.
-package calibrate
+package lsq
 
 import (
 	"cmp"
@@ -328,7 +328,7 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 		out = *s
 	}
 	bad := func(what string) (Settings, error) {
-		return out, fmt.Errorf("calibrate: %s: %w", what, ErrSettings)
+		return out, fmt.Errorf("lsq: %s: %w", what, ErrSettings)
 	}
 	switch {
 	case out.MaxIter < 0:
@@ -521,14 +521,14 @@ func Multiplier(x, lo, hi float64) (m, mlo, mhi float64) {
 func Solve(ctx context.Context, p Problem, x0 []float64, prior *Prior, s *Settings) (*Result, error) {
 	n, m := p.Dims()
 	if n <= 0 || m <= 0 {
-		return nil, fmt.Errorf("calibrate: problem has %d parameters and %d observations: %w", n, m, ErrDimension)
+		return nil, fmt.Errorf("lsq: problem has %d parameters and %d observations: %w", n, m, ErrDimension)
 	}
 	if len(x0) != n {
-		return nil, fmt.Errorf("calibrate: start has %d values, problem %d parameters: %w", len(x0), n, ErrDimension)
+		return nil, fmt.Errorf("lsq: start has %d values, problem %d parameters: %w", len(x0), n, ErrDimension)
 	}
 	for _, v := range x0 {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, fmt.Errorf("calibrate: start point: %w", ErrNonFinite)
+			return nil, fmt.Errorf("lsq: start point: %w", ErrNonFinite)
 		}
 	}
 	set, err := s.withDefaults(n, m)
@@ -536,17 +536,17 @@ func Solve(ctx context.Context, p Problem, x0 []float64, prior *Prior, s *Settin
 		return nil, err
 	}
 	if set.OutlierGroups != nil && len(set.OutlierGroups) != m {
-		return nil, fmt.Errorf("calibrate: %d outlier groups for %d observations: %w", len(set.OutlierGroups), m, ErrDimension)
+		return nil, fmt.Errorf("lsq: %d outlier groups for %d observations: %w", len(set.OutlierGroups), m, ErrDimension)
 	}
 	sv := &solver{p: p, n: n, m: m, s: set, mu: make([]float64, n), prec: make([]float64, n)}
 	if prior != nil {
 		if len(prior.Mean) != n || len(prior.Sigma) != n {
-			return nil, fmt.Errorf("calibrate: prior sizes %d and %d, problem %d parameters: %w", len(prior.Mean), len(prior.Sigma), n, ErrDimension)
+			return nil, fmt.Errorf("lsq: prior sizes %d and %d, problem %d parameters: %w", len(prior.Mean), len(prior.Sigma), n, ErrDimension)
 		}
 		for j := range n {
 			sg, mu := prior.Sigma[j], prior.Mean[j]
 			if !(sg > 0) || math.IsNaN(mu) || math.IsInf(mu, 0) {
-				return nil, fmt.Errorf("calibrate: prior of parameter %d: %w", j, ErrPrior)
+				return nil, fmt.Errorf("lsq: prior of parameter %d: %w", j, ErrPrior)
 			}
 			sv.mu[j] = mu
 			if !math.IsInf(sg, 1) {
@@ -571,7 +571,7 @@ func Solve(ctx context.Context, p Problem, x0 []float64, prior *Prior, s *Settin
 	}
 	for _, i := range set.Exclude {
 		if i < 0 || i >= m {
-			return nil, fmt.Errorf("calibrate: excluded observation %d of %d: %w", i, m, ErrDimension)
+			return nil, fmt.Errorf("lsq: excluded observation %d of %d: %w", i, m, ErrDimension)
 		}
 		sv.keep[i] = 0
 	}
@@ -621,13 +621,13 @@ func (s *solver) eval(x []float64) (*point, *evalErr) {
 	}
 	for _, v := range pt.r {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, &evalErr{err: fmt.Errorf("calibrate: residual: %w", ErrNonFinite), reject: true}
+			return nil, &evalErr{err: fmt.Errorf("lsq: residual: %w", ErrNonFinite), reject: true}
 		}
 	}
 	if pt.jac != nil {
 		for _, v := range pt.jac.RawMatrix().Data {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, &evalErr{err: fmt.Errorf("calibrate: jacobian: %w", ErrNonFinite), reject: true}
+				return nil, &evalErr{err: fmt.Errorf("lsq: jacobian: %w", ErrNonFinite), reject: true}
 			}
 		}
 	}
@@ -643,7 +643,7 @@ func (s *solver) relinearise(pt *point) error {
 	r := make([]float64, s.m)
 	s.evals++
 	if err := s.p.Residuals(pt.x, r, nil); err != nil {
-		return fmt.Errorf("calibrate: re-evaluating the current point: %w", err)
+		return fmt.Errorf("lsq: re-evaluating the current point: %w", err)
 	}
 	s.linAt = pt
 	return nil
@@ -1127,7 +1127,7 @@ func (s *solver) fit(ctx context.Context, start *point) (*point, Status, int, er
 	iter := 0
 	for {
 		if err := ctx.Err(); err != nil {
-			return cur, Cancelled, iter, fmt.Errorf("calibrate: %w", err)
+			return cur, Cancelled, iter, fmt.Errorf("lsq: %w", err)
 		}
 		ln, err := s.linearise(cur)
 		if err != nil {
@@ -1147,7 +1147,7 @@ func (s *solver) fit(ctx context.Context, start *point) (*point, Status, int, er
 		}
 		for {
 			if err := ctx.Err(); err != nil {
-				return cur, Cancelled, iter, fmt.Errorf("calibrate: %w", err)
+				return cur, Cancelled, iter, fmt.Errorf("lsq: %w", err)
 			}
 			if lambda > lambdaMax {
 				return cur, Stalled, iter, nil
@@ -1205,7 +1205,7 @@ func (s *solver) fit(ctx context.Context, start *point) (*point, Status, int, er
 func (s *solver) run(ctx context.Context, x0 []float64) (*Result, error) {
 	start, ee := s.eval(x0)
 	if ee != nil {
-		return nil, fmt.Errorf("calibrate: start point: %w", ee.err)
+		return nil, fmt.Errorf("lsq: start point: %w", ee.err)
 	}
 	res := &Result{MatrixFree: s.matrixFree}
 	for i, k := range s.keep {
@@ -1420,7 +1420,7 @@ func invertInfo(jtj *mat.SymDense, c float64, prec []float64) (*mat.SymDense, er
 	for j := range n {
 		d := jtj.At(j, j)/c + prec[j]
 		if !(d > 0) {
-			return nil, fmt.Errorf("calibrate: parameter %d has no information: %w", j, ErrSingular)
+			return nil, fmt.Errorf("lsq: parameter %d has no information: %w", j, ErrSingular)
 		}
 		sc[j] = 1 / math.Sqrt(d)
 	}
@@ -1436,14 +1436,14 @@ func invertInfo(jtj *mat.SymDense, c float64, prec []float64) (*mat.SymDense, er
 	}
 	var ch mat.Cholesky
 	if !ch.Factorize(b) {
-		return nil, fmt.Errorf("calibrate: not positive definite: %w", ErrSingular)
+		return nil, fmt.Errorf("lsq: not positive definite: %w", ErrSingular)
 	}
 	if cond := ch.Cond(); cond > 1e15 {
-		return nil, fmt.Errorf("calibrate: condition number %.3g: %w", cond, ErrSingular)
+		return nil, fmt.Errorf("lsq: condition number %.3g: %w", cond, ErrSingular)
 	}
 	inv := mat.NewSymDense(n, nil)
 	if err := ch.InverseTo(inv); err != nil {
-		return nil, fmt.Errorf("calibrate: %v: %w", err, ErrSingular)
+		return nil, fmt.Errorf("lsq: %v: %w", err, ErrSingular)
 	}
 	for i := range n {
 		for j := i; j < n; j++ {
@@ -1464,7 +1464,7 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	for j := range n {
 		diagA[j] = diagJ[j]/c + s.prec[j]
 		if !(diagA[j] > 0) {
-			return nil, nil, fmt.Errorf("calibrate: parameter %d has no information: %w", j, ErrSingular)
+			return nil, nil, fmt.Errorf("lsq: parameter %d has no information: %w", j, ErrSingular)
 		}
 	}
 	precond := func(dst, r []float64) {
@@ -1505,7 +1505,7 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	probes := 0
 	for probes < maxProbes {
 		if err := ctx.Err(); err != nil {
-			return nil, nil, fmt.Errorf("calibrate: variance probes: %w", err)
+			return nil, nil, fmt.Errorf("lsq: variance probes: %w", err)
 		}
 		for j := range z {
 			z[j] = 1
@@ -1527,7 +1527,7 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 		}
 		y, ok := pcg(apply, precond, z, start, probeTol, s.s.CGMaxIter)
 		if !ok {
-			return nil, nil, fmt.Errorf("calibrate: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
+			return nil, nil, fmt.Errorf("lsq: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
 		}
 		for j := range n {
 			e := z[j] * y[j]

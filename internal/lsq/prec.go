@@ -1,4 +1,4 @@
-package calibrate
+package lsq
 
 import "math"
 
@@ -175,7 +175,7 @@ func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []flo
 		for a, j := range ps {
 			l[a*k+a] += prec[j] + damp(j)
 		}
-		if !cholesky(l, k) {
+		if !Cholesky(l, k) {
 			return false
 		}
 	}

@@ -8,7 +8,7 @@ import (
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 
-	"flowset/internal/calibrate/lsqtest"
+	"flowset/internal/lsq/lsqtest"
 )
 
 type problem interface {

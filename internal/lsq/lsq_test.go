@@ -1,4 +1,4 @@
-package calibrate_test
+package lsq_test
 
 import (
 	"context"
@@ -12,8 +12,8 @@ import (
 	"github.com/google/go-cmp/cmp"
 	"gonum.org/v1/gonum/mat"
 
-	"flowset/internal/calibrate"
-	"flowset/internal/calibrate/lsqtest"
+	"flowset/internal/lsq"
+	"flowset/internal/lsq/lsqtest"
 )
 
 func relErr(got, want float64) float64 { return math.Abs(got-want) / math.Abs(want) }
@@ -32,8 +32,8 @@ func TestNIST(t *testing.T) {
 	for _, c := range []*lsqtest.Curve{lsqtest.Misra1a(), lsqtest.Thurber(), lsqtest.MGH09()} {
 		for k, start := range c.Starts {
 			t.Run(fmt.Sprintf("%s/%s/start%d", c.Level, c.Name, k+1), func(t *testing.T) {
-				res, err := calibrate.Solve(context.Background(), c, start, nil,
-					&calibrate.Settings{Scale: calibrate.ScaleAlways, OutlierZ: -1, MaxIter: 1000})
+				res, err := lsq.Solve(context.Background(), c, start, nil,
+					&lsq.Settings{Scale: lsq.ScaleAlways, OutlierZ: -1, MaxIter: 1000})
 				if err != nil {
 					t.Fatalf("Solve(%s from %v): %v", c.Name, start, err)
 				}
@@ -133,8 +133,8 @@ func TestFiniteDifferenceOracle(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			p := lsqtest.NewPowerLaw(tc.k, tc.e, tc.m, tc.rel, tc.seed)
-			res, err := calibrate.Solve(context.Background(), p, tc.start, nil,
-				&calibrate.Settings{Scale: calibrate.ScaleNever, OutlierZ: -1})
+			res, err := lsq.Solve(context.Background(), p, tc.start, nil,
+				&lsq.Settings{Scale: lsq.ScaleNever, OutlierZ: -1})
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
@@ -156,7 +156,7 @@ func TestFiniteDifferenceOracle(t *testing.T) {
 
 // withIdle adds parameters that no observation depends on.
 type withIdle struct {
-	p    calibrate.Problem
+	p    lsq.Problem
 	idle int
 }
 
@@ -194,8 +194,8 @@ func TestPrior(t *testing.T) {
 				p.Sigma[i] *= tc.rel / tc.noise
 			}
 			prob := withIdle{p: p, idle: 1}
-			prior := &calibrate.Prior{Mean: []float64{0, 2, 0.3}, Sigma: []float64{5, 5, 0.25}}
-			res, err := calibrate.Solve(context.Background(), prob, []float64{0, 1, 0}, prior, nil)
+			prior := &lsq.Prior{Mean: []float64{0, 2, 0.3}, Sigma: []float64{5, 5, 0.25}}
+			res, err := lsq.Solve(context.Background(), prob, []float64{0, 1, 0}, prior, nil)
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
@@ -232,18 +232,18 @@ func TestCoverage(t *testing.T) {
 	truth := []float64{math.Log(2.5), 1.85}
 	for _, tc := range []struct {
 		name  string
-		scale calibrate.Scaling
+		scale lsq.Scaling
 	}{
-		{name: "scale above one (default)", scale: calibrate.ScaleAboveOne},
-		{name: "scale always, Student t", scale: calibrate.ScaleAlways},
-		{name: "known sigma, normal", scale: calibrate.ScaleNever},
+		{name: "scale above one (default)", scale: lsq.ScaleAboveOne},
+		{name: "scale always, Student t", scale: lsq.ScaleAlways},
+		{name: "known sigma, normal", scale: lsq.ScaleNever},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			var cover [2]int
 			for seed := uint64(1); seed <= seeds; seed++ {
 				p := lsqtest.NewPowerLaw(2.5, 1.85, 40, 0.05, seed)
-				res, err := calibrate.Solve(context.Background(), p, []float64{0, 1}, nil,
-					&calibrate.Settings{Scale: tc.scale, OutlierZ: -1})
+				res, err := lsq.Solve(context.Background(), p, []float64{0, 1}, nil,
+					&lsq.Settings{Scale: tc.scale, OutlierZ: -1})
 				if err != nil {
 					t.Fatalf("seed %d: %v", seed, err)
 				}
@@ -274,13 +274,13 @@ func TestOutlier(t *testing.T) {
 	truth := []float64{math.Log(4), 2}
 	const bad = 19
 	p := lsqtest.NewPowerLaw(4, 2, 20, 0.02, 7)
-	clean, err := calibrate.Solve(context.Background(), p, []float64{0, 1}, nil, nil)
+	clean, err := lsq.Solve(context.Background(), p, []float64{0, 1}, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
 	p.Y[bad] += 25 * p.Sigma[bad]
 
-	recovered := func(res *calibrate.Result) bool {
+	recovered := func(res *lsq.Result) bool {
 		for j := range truth {
 			if math.Abs(res.X[j]-truth[j]) > 3*clean.StdErr[j] {
 				return false
@@ -290,17 +290,17 @@ func TestOutlier(t *testing.T) {
 	}
 	for _, tc := range []struct {
 		name      string
-		set       calibrate.Settings
+		set       lsq.Settings
 		outliers  []int
 		recovered bool
 	}{
 		{name: "outlier test (default)", outliers: []int{bad}, recovered: true},
-		{name: "plain least squares", set: calibrate.Settings{OutlierZ: -1}, recovered: false},
-		{name: "Huber IRLS without the test", set: calibrate.Settings{OutlierZ: -1, Loss: calibrate.Huber(0)}, recovered: true},
-		{name: "Cauchy IRLS with the test", set: calibrate.Settings{Loss: calibrate.Cauchy(0)}, outliers: []int{bad}, recovered: true},
+		{name: "plain least squares", set: lsq.Settings{OutlierZ: -1}, recovered: false},
+		{name: "Huber IRLS without the test", set: lsq.Settings{OutlierZ: -1, Loss: lsq.Huber(0)}, recovered: true},
+		{name: "Cauchy IRLS with the test", set: lsq.Settings{Loss: lsq.Cauchy(0)}, outliers: []int{bad}, recovered: true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			res, err := calibrate.Solve(context.Background(), p, []float64{0, 1}, nil, &tc.set)
+			res, err := lsq.Solve(context.Background(), p, []float64{0, 1}, nil, &tc.set)
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
@@ -328,7 +328,7 @@ func TestOutlierSparse(t *testing.T) {
 			const bad = 77
 			p.Y[bad] += 30 * p.Sigma[bad]
 			prior := flatPrior(60, 1)
-			res, err := calibrate.Solve(context.Background(), p, make([]float64, 60), prior, &calibrate.Settings{Dense: dense})
+			res, err := lsq.Solve(context.Background(), p, make([]float64, 60), prior, &lsq.Settings{Dense: dense})
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
@@ -342,8 +342,8 @@ func TestOutlierSparse(t *testing.T) {
 	}
 }
 
-func flatPrior(n int, sigma float64) *calibrate.Prior {
-	pr := &calibrate.Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
+func flatPrior(n int, sigma float64) *lsq.Prior {
+	pr := &lsq.Prior{Mean: make([]float64, n), Sigma: make([]float64, n)}
 	for j := range pr.Sigma {
 		pr.Sigma[j] = sigma
 	}
@@ -368,10 +368,10 @@ func TestMatrixFreeAgreesWithDense(t *testing.T) {
 	p := lsqtest.NewSparse(n, 2*n, 3, 0.03, 42)
 	prior := flatPrior(n, 1)
 	x0 := make([]float64, n)
-	solve := func(dense bool, maxIter int) *calibrate.Result {
+	solve := func(dense bool, maxIter int) *lsq.Result {
 		t.Helper()
-		res, err := calibrate.Solve(context.Background(), p, x0, prior,
-			&calibrate.Settings{Dense: dense, MaxIter: maxIter, CGTol: 1e-13, OutlierZ: -1})
+		res, err := lsq.Solve(context.Background(), p, x0, prior,
+			&lsq.Settings{Dense: dense, MaxIter: maxIter, CGTol: 1e-13, OutlierZ: -1})
 		if err != nil {
 			t.Fatalf("Solve(dense=%v, maxIter=%d): %v", dense, maxIter, err)
 		}
@@ -420,16 +420,16 @@ func TestProbedVariance(t *testing.T) {
 			for i := range p.Sigma {
 				p.Sigma[i] *= tc.sigmaFactor
 			}
-			exact, err := calibrate.Solve(context.Background(), p, x0, prior, &calibrate.Settings{Dense: true, OutlierZ: -1})
+			exact, err := lsq.Solve(context.Background(), p, x0, prior, &lsq.Settings{Dense: true, OutlierZ: -1})
 			if err != nil {
 				t.Fatal(err)
 			}
-			res, err := calibrate.Solve(context.Background(), p, x0, prior,
-				&calibrate.Settings{DenseCovMax: -1, Probes: tc.probes, OutlierZ: -1, Seed: 1})
+			res, err := lsq.Solve(context.Background(), p, x0, prior,
+				&lsq.Settings{DenseCovMax: -1, Probes: tc.probes, OutlierZ: -1, Seed: 1})
 			if err != nil {
 				t.Fatal(err)
 			}
-			if res.VarMethod != calibrate.VarProbed || res.Cov != nil {
+			if res.VarMethod != lsq.VarProbed || res.Cov != nil {
 				t.Fatalf("VarMethod %v, Cov nil %v; want probed and nil", res.VarMethod, res.Cov == nil)
 			}
 			if tc.sigmaFactor < 1 && !(res.CovScale > 2) {
@@ -459,7 +459,7 @@ func TestProbedVariance(t *testing.T) {
 
 // failing evaluates to NaN or an error where told to.
 type failing struct {
-	p       calibrate.Problem
+	p       lsq.Problem
 	nanAt   func(x []float64) bool
 	errAt   func(x []float64) bool
 	errWith error
@@ -488,23 +488,23 @@ func TestErrors(t *testing.T) {
 	for _, tc := range []struct {
 		name   string
 		ctx    context.Context
-		p      calibrate.Problem
+		p      lsq.Problem
 		x0     []float64
-		prior  *calibrate.Prior
-		set    *calibrate.Settings
+		prior  *lsq.Prior
+		set    *lsq.Settings
 		want   error
 		result bool // a Result comes back with the error
 	}{
-		{name: "short start", p: pl, x0: []float64{0}, want: calibrate.ErrDimension},
-		{name: "NaN start", p: pl, x0: []float64{math.NaN(), 1}, want: calibrate.ErrNonFinite},
-		{name: "prior size", p: pl, x0: []float64{0, 1}, prior: &calibrate.Prior{Mean: []float64{0}, Sigma: []float64{1}}, want: calibrate.ErrDimension},
-		{name: "zero prior sigma", p: pl, x0: []float64{0, 1}, prior: &calibrate.Prior{Mean: []float64{0, 0}, Sigma: []float64{1, 0}}, want: calibrate.ErrPrior},
-		{name: "negative tolerance", p: pl, x0: []float64{0, 1}, set: &calibrate.Settings{GradTol: -1}, want: calibrate.ErrSettings},
-		{name: "NaN loss constant", p: pl, x0: []float64{0, 1}, set: &calibrate.Settings{Loss: calibrate.Huber(math.NaN())}, want: calibrate.ErrSettings},
-		{name: "NaN residual at start", p: failing{p: pl, nanAt: func([]float64) bool { return true }}, x0: []float64{0, 1}, want: calibrate.ErrNonFinite},
-		{name: "domain error at start", p: failing{p: pl, errAt: func([]float64) bool { return true }, errWith: calibrate.ErrDomain}, x0: []float64{0, 1}, want: calibrate.ErrDomain},
+		{name: "short start", p: pl, x0: []float64{0}, want: lsq.ErrDimension},
+		{name: "NaN start", p: pl, x0: []float64{math.NaN(), 1}, want: lsq.ErrNonFinite},
+		{name: "prior size", p: pl, x0: []float64{0, 1}, prior: &lsq.Prior{Mean: []float64{0}, Sigma: []float64{1}}, want: lsq.ErrDimension},
+		{name: "zero prior sigma", p: pl, x0: []float64{0, 1}, prior: &lsq.Prior{Mean: []float64{0, 0}, Sigma: []float64{1, 0}}, want: lsq.ErrPrior},
+		{name: "negative tolerance", p: pl, x0: []float64{0, 1}, set: &lsq.Settings{GradTol: -1}, want: lsq.ErrSettings},
+		{name: "NaN loss constant", p: pl, x0: []float64{0, 1}, set: &lsq.Settings{Loss: lsq.Huber(math.NaN())}, want: lsq.ErrSettings},
+		{name: "NaN residual at start", p: failing{p: pl, nanAt: func([]float64) bool { return true }}, x0: []float64{0, 1}, want: lsq.ErrNonFinite},
+		{name: "domain error at start", p: failing{p: pl, errAt: func([]float64) bool { return true }, errWith: lsq.ErrDomain}, x0: []float64{0, 1}, want: lsq.ErrDomain},
 		{name: "model error during the fit", p: failing{p: pl, errAt: func(x []float64) bool { return x[1] > 1.2 }, errWith: errModel}, x0: []float64{0, 1}, want: errModel, result: true},
-		{name: "idle parameter without prior", p: withIdle{p: pl, idle: 1}, x0: []float64{0, 1, 0}, want: calibrate.ErrSingular, result: true},
+		{name: "idle parameter without prior", p: withIdle{p: pl, idle: 1}, x0: []float64{0, 1, 0}, want: lsq.ErrSingular, result: true},
 		{name: "cancelled", ctx: cancelled, p: pl, x0: []float64{0, 1}, want: context.Canceled, result: true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
@@ -512,7 +512,7 @@ func TestErrors(t *testing.T) {
 			if ctx == nil {
 				ctx = context.Background()
 			}
-			res, err := calibrate.Solve(ctx, tc.p, tc.x0, tc.prior, tc.set)
+			res, err := lsq.Solve(ctx, tc.p, tc.x0, tc.prior, tc.set)
 			if !errors.Is(err, tc.want) {
 				t.Fatalf("Solve error %v, want %v", err, tc.want)
 			}
@@ -531,7 +531,7 @@ func TestErrors(t *testing.T) {
 // fit still reaches the optimum of the unconstrained problem.
 func TestRejectedTrials(t *testing.T) {
 	pl := lsqtest.NewPowerLaw(2, 2, 10, 0.02, 3)
-	ref, err := calibrate.Solve(context.Background(), pl, []float64{0, 1}, nil, nil)
+	ref, err := lsq.Solve(context.Background(), pl, []float64{0, 1}, nil, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -539,13 +539,13 @@ func TestRejectedTrials(t *testing.T) {
 	wall := func(x []float64) bool { return x[1] > 2.3 || x[0] < -0.5 }
 	for _, tc := range []struct {
 		name string
-		p    calibrate.Problem
+		p    lsq.Problem
 	}{
-		{name: "domain error", p: failing{p: pl, errAt: wall, errWith: calibrate.ErrDomain}},
+		{name: "domain error", p: failing{p: pl, errAt: wall, errWith: lsq.ErrDomain}},
 		{name: "NaN residual", p: failing{p: pl, nanAt: wall}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			res, err := calibrate.Solve(context.Background(), tc.p, []float64{0, 1}, nil, nil)
+			res, err := lsq.Solve(context.Background(), tc.p, []float64{0, 1}, nil, nil)
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
@@ -559,7 +559,7 @@ func TestRejectedTrials(t *testing.T) {
 func TestMultiplier(t *testing.T) {
 	// exp(±ln 2) = 2 and 1/2: the interval of a log-multiplier maps to an
 	// asymmetric one around the multiplier (closed form).
-	m, lo, hi := calibrate.Multiplier(0, -math.Ln2, math.Ln2)
+	m, lo, hi := lsq.Multiplier(0, -math.Ln2, math.Ln2)
 	if m != 1 || math.Abs(lo-0.5) > 1e-15 || math.Abs(hi-2) > 1e-15 {
 		t.Errorf("Multiplier(0, -ln2, ln2) = %v %v %v, want 1 0.5 2", m, lo, hi)
 	}
@@ -569,16 +569,16 @@ func TestStrings(t *testing.T) {
 	for _, tc := range []struct {
 		got, want string
 	}{
-		{calibrate.Converged.String(), "converged"},
-		{calibrate.SmallStep.String(), "converged (small step)"},
-		{calibrate.MaxIterations.String(), "maximum iterations"},
-		{calibrate.Stalled.String(), "stalled"},
-		{calibrate.Cancelled.String(), "cancelled"},
-		{calibrate.Status(42).String(), "status(42)"},
-		{calibrate.Huber(0).String(), "huber(1.345)"},
-		{calibrate.Cauchy(1.5).String(), "cauchy(1.5)"},
-		{calibrate.Squared().String(), "squared"},
-		{calibrate.VarProbed.String(), "probed diagonal"},
+		{lsq.Converged.String(), "converged"},
+		{lsq.SmallStep.String(), "converged (small step)"},
+		{lsq.MaxIterations.String(), "maximum iterations"},
+		{lsq.Stalled.String(), "stalled"},
+		{lsq.Cancelled.String(), "cancelled"},
+		{lsq.Status(42).String(), "status(42)"},
+		{lsq.Huber(0).String(), "huber(1.345)"},
+		{lsq.Cauchy(1.5).String(), "cauchy(1.5)"},
+		{lsq.Squared().String(), "squared"},
+		{lsq.VarProbed.String(), "probed diagonal"},
 	} {
 		if tc.got != tc.want {
 			t.Errorf("String() = %q, want %q", tc.got, tc.want)
@@ -590,12 +590,12 @@ func TestStrings(t *testing.T) {
 // twelve readings with 2 % uncertainty.
 func ExampleSolve() {
 	p := lsqtest.NewPowerLaw(3.2, 1.9, 12, 0.02, 1)
-	res, err := calibrate.Solve(context.Background(), p, []float64{0, 1}, nil, nil)
+	res, err := lsq.Solve(context.Background(), p, []float64{0, 1}, nil, nil)
 	if err != nil {
 		fmt.Println(err)
 		return
 	}
-	k, klo, khi := calibrate.Multiplier(res.X[0], res.Lo95[0], res.Hi95[0])
+	k, klo, khi := lsq.Multiplier(res.X[0], res.Lo95[0], res.Hi95[0])
 	fmt.Printf("%v, outliers %v\n", res.Status.OK(), res.Outliers)
 	fmt.Printf("k = %.2f (95 %%: %.2f to %.2f)\n", k, klo, khi)
 	fmt.Printf("e = %.2f ± %.2f\n", res.X[1], res.Hi95[1]-res.X[1])
@@ -608,7 +608,7 @@ func ExampleSolve() {
 // ExampleMultiplier turns a log-multiplier and its interval into a multiplier
 // on design resistance.
 func ExampleMultiplier() {
-	m, lo, hi := calibrate.Multiplier(0.2, 0.1, 0.3)
+	m, lo, hi := lsq.Multiplier(0.2, 0.1, 0.3)
 	fmt.Printf("%.3f (%.3f to %.3f)\n", m, lo, hi)
 	// Output: 1.221 (1.105 to 1.350)
 }
@@ -623,7 +623,7 @@ func BenchmarkSolve(b *testing.B) {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				if _, err := calibrate.Solve(context.Background(), p, x0, prior, nil); err != nil {
+				if _, err := lsq.Solve(context.Background(), p, x0, prior, nil); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -640,7 +640,7 @@ func BenchmarkSolveDense(b *testing.B) {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
 			for b.Loop() {
-				if _, err := calibrate.Solve(context.Background(), p, x0, prior, &calibrate.Settings{Dense: true}); err != nil {
+				if _, err := lsq.Solve(context.Background(), p, x0, prior, &lsq.Settings{Dense: true}); err != nil {
 					b.Fatal(err)
 				}
 			}
@@ -668,21 +668,21 @@ func TestOutlierRounds(t *testing.T) {
 		if probed {
 			covMax = -1
 		}
-		solve := func(s calibrate.Settings) *calibrate.Result {
+		solve := func(s lsq.Settings) *lsq.Result {
 			t.Helper()
 			s.DenseCovMax, s.CGTol = covMax, 1e-12
-			res, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &s)
+			res, err := lsq.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &s)
 			if err != nil {
 				t.Fatalf("Solve: %v", err)
 			}
 			return res
 		}
-		one := solve(calibrate.Settings{})
-		grouped := solve(calibrate.Settings{OutlierGroups: groups})
-		excluded := solve(calibrate.Settings{Exclude: []int{bad1}})
+		one := solve(lsq.Settings{})
+		grouped := solve(lsq.Settings{OutlierGroups: groups})
+		excluded := solve(lsq.Settings{Exclude: []int{bad1}})
 		for _, c := range []struct {
 			name string
-			res  *calibrate.Result
+			res  *lsq.Result
 			want []int
 		}{
 			{"one at a time", one, []int{bad1, bad2}},
@@ -695,7 +695,7 @@ func TestOutlierRounds(t *testing.T) {
 			if e := maxRelDiff(c.res.X, one.X); e > 1e-8 {
 				t.Errorf("probed=%v, %s: estimate differs from one at a time by %.2e", probed, c.name, e)
 			}
-			if c.res.VarMethod == calibrate.VarProbed != probed {
+			if c.res.VarMethod == lsq.VarProbed != probed {
 				t.Errorf("probed=%v, %s: variances %v", probed, c.name, c.res.VarMethod)
 			}
 		}
@@ -703,12 +703,12 @@ func TestOutlierRounds(t *testing.T) {
 			t.Errorf("probed=%v: %d evaluations grouped, %d one at a time; want fewer", probed, grouped.Evaluations, one.Evaluations)
 		}
 	}
-	_, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierGroups: groups[:10]})
-	if !errors.Is(err, calibrate.ErrDimension) {
+	_, err := lsq.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &lsq.Settings{OutlierGroups: groups[:10]})
+	if !errors.Is(err, lsq.ErrDimension) {
 		t.Errorf("10 groups for %d observations: error %v, want ErrDimension", m, err)
 	}
-	_, err = calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{Exclude: []int{m}})
-	if !errors.Is(err, calibrate.ErrDimension) {
+	_, err = lsq.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &lsq.Settings{Exclude: []int{m}})
+	if !errors.Is(err, lsq.ErrDimension) {
 		t.Errorf("excluding observation %d of %d: error %v, want ErrDimension", m, m, err)
 	}
 }
@@ -719,11 +719,11 @@ func TestOutlierRounds(t *testing.T) {
 func TestCostTol(t *testing.T) {
 	const n = 60
 	p := lsqtest.NewSparse(n, 180, 3, 0.02, 5)
-	full, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierZ: -1})
+	full, err := lsq.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &lsq.Settings{OutlierZ: -1})
 	if err != nil {
 		t.Fatal(err)
 	}
-	loose, err := calibrate.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &calibrate.Settings{OutlierZ: -1, CostTol: 1e-6})
+	loose, err := lsq.Solve(context.Background(), p, make([]float64, n), flatPrior(n, 1), &lsq.Settings{OutlierZ: -1, CostTol: 1e-6})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -738,7 +738,7 @@ func TestCostTol(t *testing.T) {
 		}
 	}
 	t.Logf("status %v after %d steps; full fit %v after %d", loose.Status, loose.Iterations, full.Status, full.Iterations)
-	if _, err := calibrate.Solve(context.Background(), p, make([]float64, n), nil, &calibrate.Settings{CostTol: -1}); !errors.Is(err, calibrate.ErrSettings) {
+	if _, err := lsq.Solve(context.Background(), p, make([]float64, n), nil, &lsq.Settings{CostTol: -1}); !errors.Is(err, lsq.ErrSettings) {
 		t.Errorf("negative CostTol: error %v, want ErrSettings", err)
 	}
 }

@@ -1,8 +1,8 @@
 // Package lsqtest holds known-answer least-squares problems for testing and
-// benchmarking the calibrate engine, in the manner of gonum's
-// optimize/functions. Its types satisfy calibrate.Problem (and, for Sparse,
-// calibrate.Operator and calibrate.Preconditioner) structurally, so the
-// package does not import calibrate.
+// benchmarking the lsq engine, in the manner of gonum's
+// optimize/functions. Its types satisfy lsq.Problem (and, for Sparse,
+// lsq.Operator and lsq.Preconditioner) structurally, so the
+// package does not import lsq.
 package lsqtest
 
 import (
@@ -15,7 +15,7 @@ import (
 // (NIST/ITL StRD, https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml):
 // data, model, starting values and certified results. Its residuals are the
 // unweighted y_model - y, so certified standard deviations correspond to the
-// covariance scaled by the residual variance (calibrate.ScaleAlways).
+// covariance scaled by the residual variance (lsq.ScaleAlways).
 type Curve struct {
 	Name  string
 	Level string // NIST level of difficulty: "lower", "average" or "higher"
