@@ -433,6 +433,10 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 					continue
 				}
 			case site.TotalFlow:
+			case site.Speed:
+				if !m.PumpDriven() {
+					return nil, bad("a speed reading needs a pump curve (pump sheet)")
+				}
 			case site.Flow, site.ValveDiff, site.BranchDiff:
 				i, ok := m.Index(r.Where)
 				if !ok {

@@ -498,8 +498,44 @@ func (p *problem) predict(sn *stateNet, o *obs) float64 {
 	case site.ValveDiff:
 		dp, _ := p.valveDrop(sn, o.branch, p.flow(sn, sn.flowOf[o.branch]))
 		return dp
+	case site.Speed:
+		v, _, _, _ := p.speed(sn)
+		return v
 	}
 	return math.NaN()
+}
+
+// speed returns the pump's speed ratio in state sn and its derivatives with
+// respect to the pump flow, the pump differential and ln PumpHead: the
+// state's speed on a pump boundary (no derivatives), the speed at which the
+// curve gives the differential at the flow while a drive holds its set
+// point, its maximum once it cannot (no derivatives).
+func (p *problem) speed(sn *stateNet) (v, dq, ddp, dk float64) {
+	m := p.m
+	if !m.Controlled() {
+		return sn.st.Speed, 0, 0, 0
+	}
+	l := sn.built.PumpLink
+	if l < 0 {
+		return math.NaN(), 0, 0, 0
+	}
+	q := sn.sol.Flow[l]
+	dp := -sn.sol.Drop[l]
+	k := sn.params.PumpHead
+	if c, ok := m.Source(sn.params, sn.st).Pump.(hydraulics.ControlledPump); ok && c.Saturated(q, m.Fluid) {
+		return m.MaxSpeed(), 0, 0, 0
+	}
+	at := func(q, dp, k float64) float64 {
+		return hydraulics.SpeedFor(*m.ScaledPump(k), q, dp, m.Fluid)
+	}
+	v = at(q, dp, k)
+	// Central differences of a closed-form root: smooth away from the
+	// saturation point, where the branch above takes over.
+	hq, hp, hk := 1e-6*max(math.Abs(q), 1e-9), 1e-6*max(math.Abs(dp), 1), 1e-6
+	dq = (at(q+hq, dp, k) - at(q-hq, dp, k)) / (2 * hq)
+	ddp = (at(q, dp+hp, k) - at(q, dp-hp, k)) / (2 * hp)
+	dk = (at(q, dp, k*math.Exp(hk)) - at(q, dp, k*math.Exp(-hk))) / (2 * hk)
+	return v, dq, ddp, dk
 }
 
 // linearise fills the link-drop derivatives of every parameter and the
@@ -536,9 +572,12 @@ func (p *problem) linearise(sn *stateNet) {
 			}
 		case PumpParam:
 			// The pump's head, hence its (negative) drop, is linear in the
-			// multiplier on all three curve coefficients.
+			// multiplier on all three curve coefficients, where the curve
+			// sets it; a drive holding its set point does not depend on it.
 			if l := sn.built.PumpLink; l >= 0 {
-				d = append(d, term{l, sol.Drop[l]})
+				if c := p.m.PumpHeadDrop(sn.params, sn.st, sol.Flow[l]); c != 0 {
+					d = append(d, term{l, c})
+				}
 			}
 		}
 		sn.dh[j] = d
@@ -563,6 +602,16 @@ func (p *problem) linearise(sn *stateNet) {
 		case site.PumpDiff:
 			if sn.outlet >= 0 {
 				ln.p = append(ln.p, term{sn.outlet, 1}, term{sn.ret, -1})
+			}
+		case site.Speed:
+			if _, dq, ddp, dk := p.speed(sn); dq != 0 || ddp != 0 || dk != 0 {
+				if l := sn.built.PumpLink; l >= 0 {
+					ln.q = append(ln.q, term{l, dq})
+					ln.p = append(ln.p, term{sn.outlet, ddp}, term{sn.ret, -ddp})
+				}
+				if p.pIdx >= 0 && dk != 0 {
+					ln.x = append(ln.x, term{p.pIdx, dk})
+				}
 			}
 		case site.ValveDiff:
 			links := sn.flowOf[o.branch]

@@ -357,3 +357,96 @@ func TrimDiameterRatio(c PumpCurve, q, h float64) (float64, error) {
 	}
 	return d, nil
 }
+
+// ControlDroop is the fall of a ControlledPump's held differential across
+// its curve's flow range, as a fraction of the set point: 0.1 %, far below
+// what a differential gauge resolves (±1 % of reading at best), but a
+// non-zero slope keeps the network Jacobian definite where the drive holds
+// the differential flat (a numerical choice, no source).
+const ControlDroop = 1e-3
+
+// ControlledPump is a variable-speed pump whose drive holds the differential
+// SetPoint across it while it can and runs at MaxSpeed on its curve when it
+// cannot: its pressure rise is min(SetPoint, ρ g H_max(q)), H_max the curve
+// at MaxSpeed by the affinity laws (with the slope limits of Pump). The
+// differential sensor is taken to sit across the pump.
+type ControlledPump struct {
+	Curve    PumpCurve // at rated speed
+	MaxSpeed float64   // N/N_curve the drive allows; 0 means 1
+	SetPoint float64   // Pa
+}
+
+func (p ControlledPump) maxSpeed() float64 {
+	if p.MaxSpeed == 0 {
+		return 1
+	}
+	return p.MaxSpeed
+}
+
+// Validate reports whether the pump can serve as an element.
+func (p ControlledPump) Validate() error {
+	if !(p.SetPoint > 0) || math.IsInf(p.SetPoint, 1) {
+		return fmt.Errorf("controlled pump: set point %g Pa must be positive: %w", p.SetPoint, ErrInvalid)
+	}
+	return Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Validate()
+}
+
+// droopSlope is the held differential's fall per flow, Pa s/m3.
+func (p ControlledPump) droopSlope() float64 {
+	c := p.Curve.AtSpeed(p.maxSpeed())
+	qref := c.QMax
+	if !(qref > 0) {
+		if q, err := c.MaxFlow(); err == nil && q > 0 {
+			qref = q
+		}
+	}
+	if !(qref > 0) {
+		return 0
+	}
+	return ControlDroop * p.SetPoint / qref
+}
+
+// Drop implements Element: the negative of the pressure rise.
+func (p ControlledPump) Drop(q float64, f fluid.State) (dp, slope float64) {
+	mx, mxSlope := Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Drop(q, f)
+	s := p.droopSlope()
+	held := -p.SetPoint + s*q
+	if mx > held {
+		return mx, mxSlope
+	}
+	return held, s
+}
+
+// Saturated reports whether at flow q the drive runs flat out (the pump
+// cannot give the set point).
+func (p ControlledPump) Saturated(q float64, f fluid.State) bool {
+	mx, _ := Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Drop(q, f)
+	return mx > -p.SetPoint+p.droopSlope()*q
+}
+
+// SpeedFor returns the speed ratio at which curve c gives pressure rise dp
+// [Pa] at flow q [m3/s] by the affinity laws: the positive root s of
+// A0 s² + A1 q s + A2 q² = dp/(ρ g). It returns NaN where no positive speed
+// gives it.
+func SpeedFor(c PumpCurve, q, dp float64, f fluid.State) float64 {
+	h := dp / (f.Density * StandardGravity)
+	a, b, cc := c.A0, c.A1*q, c.A2*q*q-h
+	if !(a > 0) {
+		return math.NaN()
+	}
+	d := b*b - 4*a*cc
+	if d < 0 {
+		return math.NaN()
+	}
+	// The larger root, written to avoid cancellation when b > 0.
+	var s float64
+	if b <= 0 {
+		s = (-b + math.Sqrt(d)) / (2 * a)
+	} else {
+		s = -2 * cc / (b + math.Sqrt(d))
+	}
+	if !(s > 0) {
+		return math.NaN()
+	}
+	return s
+}

@@ -162,7 +162,9 @@ func New(s *site.Site) (*Model, error) {
 	if err := m.checkTree(); err != nil {
 		return nil, err
 	}
-	if s.Boundary.Kind == site.PumpCurve {
+	if s.Boundary.Kind == site.PumpCurve || s.Boundary.Kind == site.ConstantDiff && len(s.Pump) > 0 {
+		// A differential held by a pump whose curve is known is held only
+		// while the pump can give it (see Controlled).
 		if len(s.Pump) == 0 {
 			return nil, fmt.Errorf("boundary is a pump but the pump sheet has no points: %w", ErrModel)
 		}
@@ -590,16 +592,70 @@ func (m *Model) Ladder(p Params, settings []float64) network.Ladder {
 	return *build(m.top)
 }
 
+// Controlled reports whether the circuit is driven by a variable-speed pump
+// whose drive holds a differential set point while it can and runs at its
+// maximum speed when it cannot: a constant-differential boundary with a pump
+// curve. Pumps that cannot hold their set point are common on exactly the
+// plants that get surveyed, so the model never assumes the set point holds.
+func (m *Model) Controlled() bool {
+	return m.Site.Boundary.Kind == site.ConstantDiff && m.Pump != nil
+}
+
+// PumpDriven reports whether a pump curve sets the circuit's differential in
+// some state: a pump boundary or a Controlled one.
+func (m *Model) PumpDriven() bool {
+	return m.Pump != nil && (m.Site.Boundary.Kind == site.PumpCurve || m.Controlled())
+}
+
+// MaxSpeed returns the highest speed ratio the drive allows (1 when not
+// given).
+func (m *Model) MaxSpeed() float64 {
+	if v := m.Site.Boundary.MaxSpeed; v > 0 {
+		return v
+	}
+	return 1
+}
+
+// ScaledPump returns the pump curve at rated speed with head multiplier k, or
+// nil without one.
+func (m *Model) ScaledPump(k float64) *hydraulics.PumpCurve {
+	if m.Pump == nil {
+		return nil
+	}
+	c := *m.Pump
+	c.A0 *= k
+	c.A1 *= k
+	c.A2 *= k
+	return &c
+}
+
 // Source returns the network source for multipliers p and state st.
 func (m *Model) Source(p Params, st State) network.Source {
-	if m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil {
-		c := *m.Pump
-		c.A0 *= p.PumpHead
-		c.A1 *= p.PumpHead
-		c.A2 *= p.PumpHead
-		return network.Source{Pump: hydraulics.Pump{Curve: c, Speed: st.Speed}}
+	switch {
+	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil:
+		return network.Source{Pump: hydraulics.Pump{Curve: *m.ScaledPump(p.PumpHead), Speed: st.Speed}}
+	case m.Controlled():
+		return network.Source{Pump: hydraulics.ControlledPump{Curve: *m.ScaledPump(p.PumpHead), MaxSpeed: m.MaxSpeed(), SetPoint: st.Differential}}
 	}
 	return network.Source{Differential: st.Differential}
+}
+
+// PumpHeadDrop returns d(drop)/d(ln PumpHead) of the source link at flow q
+// in state st: the pump's drop where its curve sets it, 0 where a drive holds
+// the set point (or there is no pump).
+func (m *Model) PumpHeadDrop(p Params, st State, q float64) float64 {
+	src := m.Source(p, st)
+	switch e := src.Pump.(type) {
+	case hydraulics.Pump:
+		dp, _ := e.Drop(q, m.Fluid)
+		return dp
+	case hydraulics.ControlledPump:
+		if e.Saturated(q, m.Fluid) {
+			dp, _ := e.Drop(q, m.Fluid)
+			return dp
+		}
+	}
+	return 0
 }
 
 // Solved is a model solved for one state.
@@ -613,7 +669,7 @@ type Solved struct {
 
 // Solve builds and solves the network of multipliers p in state st.
 func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) {
-	if st.Differential <= 0 && !(m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil) {
+	if !(st.Differential > 0) && !(m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil) {
 		return nil, fmt.Errorf("state %q: no pump curve and no positive differential to drive the circuit: %w", st.Label, ErrModel)
 	}
 	built, err := network.Build(m.Ladder(p, st.Settings), m.Source(p, st), m.Fluid)
@@ -681,6 +737,34 @@ func (s *Solved) PumpDiff() float64 {
 	return s.State.Differential
 }
 
+// Speed returns the pump's speed ratio in the solved state: the state's
+// speed on a pump boundary, the speed the drive needs to hold the set point
+// (at most the maximum) on a Controlled one, NaN without a pump curve.
+func (s *Solved) Speed() float64 {
+	m := s.Model
+	switch {
+	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil:
+		return s.State.Speed
+	case m.Controlled():
+		v := hydraulics.SpeedFor(*m.ScaledPump(s.Params.PumpHead), s.TotalFlow(), s.PumpDiff(), m.Fluid)
+		if !(v <= m.MaxSpeed()) {
+			return m.MaxSpeed()
+		}
+		return v
+	}
+	return math.NaN()
+}
+
+// Saturated reports whether a Controlled pump runs flat out in the solved
+// state, unable to give its set point.
+func (s *Solved) Saturated() bool {
+	if !s.Model.Controlled() {
+		return false
+	}
+	e, ok := s.Model.Source(s.Params, s.State).Pump.(hydraulics.ControlledPump)
+	return ok && e.Saturated(s.TotalFlow(), s.Model.Fluid)
+}
+
 // TotalFlow returns the flow through the source, m3/s.
 func (s *Solved) TotalFlow() float64 {
 	if s.Built.PumpLink >= 0 {
@@ -707,6 +791,12 @@ func (s *Solved) Predict(r *site.Reading) (float64, error) {
 		return s.PumpDiff(), nil
 	case site.HeaderDiff:
 		return s.HeaderDiff(), nil
+	case site.Speed:
+		v := s.Speed()
+		if math.IsNaN(v) {
+			return 0, fmt.Errorf("%s: a speed reading needs a pump curve (pump sheet) to be modelled: %w", r.Pos, ErrModel)
+		}
+		return v, nil
 	}
 	i, ok := s.Model.index[r.Where]
 	if !ok {

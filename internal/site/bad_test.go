@@ -328,7 +328,7 @@ var badCases = []badCase{
 	{name: "unknown quantity", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,velocity,0.4,m/s,clamp-on\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"readings.csv:3:3: field \"quantity\": value \"velocity\": unknown word (want one of: flow, valve diff, branch diff, header diff, pump diff, total flow)",
+			"readings.csv:3:3: field \"quantity\": value \"velocity\": unknown word (want one of: flow, valve diff, branch diff, header diff, pump diff, total flow, speed)",
 		}},
 	{name: "unknown instrument", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,l/s,bucket\n"},
 		cause: ErrUnknown,

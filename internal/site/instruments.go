@@ -11,10 +11,11 @@ type Instrument struct {
 	// Rel and Floor give the default expanded uncertainty (k = 2) of one
 	// reading: the larger of Rel times the reading and Floor (SI, m3/s for
 	// flows, Pa for differentials; FlowFloor and DiffFloor below).
-	Rel       float64
-	FlowFloor float64
-	DiffFloor float64
-	Source    string
+	Rel        float64
+	FlowFloor  float64
+	DiffFloor  float64
+	SpeedFloor float64 // of a speed ratio
+	Source     string
 }
 
 // instruments is the table behind Instruments. The figures are the
@@ -41,8 +42,9 @@ var instruments = []Instrument{
 		Rel: 0.05, DiffFloor: 5e3, Source: "common practice, no source"},
 	{Name: "transmitter", Title: "installed sensor read from the controls", Reads: []Quantity{Flow, ValveDiff, BranchDiff, HeaderDiff, PumpDiff, TotalFlow},
 		Rel: 0.05, FlowFloor: 1e-5, DiffFloor: 500, Source: "common practice, no source"},
-	{Name: "pump-display", Title: "flow or head estimated by the pump's own controller", Reads: []Quantity{PumpDiff, TotalFlow},
-		Rel: 0.10, FlowFloor: 5e-5, DiffFloor: 1e3, Source: "common practice, no source"},
+	{Name: "pump-display", Title: "flow, head or speed shown by the pump's own controller", Reads: []Quantity{PumpDiff, TotalFlow, Speed},
+		Rel: 0.10, FlowFloor: 5e-5, DiffFloor: 1e3, SpeedFloor: 0.01,
+		Source: "common practice, no source; a drive's speed display: ±1 % of rated (common practice, no source)"},
 }
 
 // Instruments returns the instrument kinds a reading may name.
@@ -83,8 +85,11 @@ func (in *Instrument) reads(q Quantity) bool {
 // default gives a reading of value v of quantity q.
 func (in *Instrument) DefaultSigma(q Quantity, v float64) float64 {
 	floor := in.DiffFloor
-	if q.IsFlow() {
+	switch {
+	case q.IsFlow():
 		floor = in.FlowFloor
+	case q == Speed:
+		return in.SpeedFloor / defaultCoverage
 	}
 	return math.Max(in.Rel*math.Abs(v), floor) / defaultCoverage
 }

@@ -842,7 +842,7 @@ func placeWant(q Quantity, where string, branch bool) string {
 		if !branch && where != AtHeader {
 			return "a branch id (at its take-off) or header"
 		}
-	case PumpDiff:
+	case PumpDiff, Speed:
 		if where != AtPump {
 			return "pump"
 		}
@@ -862,6 +862,12 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 	}
 	kind, def := units.Pressure, "kPa"
 	limit := &column{name: "value", typ: numCol, kind: units.Pressure, what: "pressure difference", lo: 0, hi: maxPressure}
+	if rd.What == Speed {
+		// A drive shows its speed as % of rated or as a ratio; a little
+		// above the maximum is display noise, not a fault.
+		kind, def = units.Dimensionless, "1"
+		limit = &column{name: "value", typ: numCol, kind: units.Dimensionless, what: "speed ratio", lo: 0, hi: 2}
+	}
 	if rd.What.IsFlow() {
 		kind, def = units.Flow, "l/s"
 		limit = &column{name: "value", typ: numCol, kind: units.Flow, what: "flow", lo: 0, hi: maxFlow}

@@ -182,16 +182,17 @@ const (
 	HeaderDiff                     // differential between supply and return headers
 	PumpDiff                       // differential across the pump
 	TotalFlow                      // flow through the pump
+	Speed                          // the pump drive's displayed speed, as a ratio to rated
 )
 
 var quantityWords = []string{Flow: "flow", ValveDiff: "valve diff", BranchDiff: "branch diff",
-	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow"}
+	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow", Speed: "speed"}
 
 // String returns the word the readings sheet uses for q.
 func (q Quantity) String() string { return word(quantityWords, int(q), "quantity") }
 
 // IsFlow reports whether q is a flow (SI m3/s); otherwise it is a pressure
-// difference (Pa).
+// difference (Pa) or, for Speed, a ratio.
 func (q Quantity) IsFlow() bool { return q == Flow || q == TotalFlow }
 
 // Reading is one measurement taken on the survey.
