@@ -254,8 +254,12 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 			for c, ns := range ln.nodes {
 				ln.rhs[c] = make([]float64, len(ns))
 			}
-			ln.dq = make([]float64, len(ln.from))
 			ln.mark = make([]bool, len(ln.nodes))
+		}
+		// Sized on its own: a state with no local network at all (every
+		// branch a single link between held take-offs) still has links.
+		if len(ln.dq) != len(ln.from) {
+			ln.dq = make([]float64, len(ln.from))
 		}
 		rhs, dq := ln.rhs, ln.dq
 		var marked, links []int
