@@ -14,6 +14,13 @@ import (
 
 func main() {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	go func() {
+		// The first signal cancels the run, which stops cleanly; a second
+		// one then ends the process at once (the next run to the same
+		// output removes what that leaves).
+		<-ctx.Done()
+		stop()
+	}()
 	code := cli.Run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
 	stop()
 	os.Exit(code)

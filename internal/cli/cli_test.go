@@ -99,7 +99,7 @@ func checksums(t *testing.T, dir string) map[string][32]byte {
 	return out
 }
 
-var wantOutputs = []string{"calibration.csv", "calibration.json", "field-sheet.csv", "field-sheet.xlsx", "findings.csv", "plan.json", "readings.csv", "report.html"}
+var wantOutputs = []string{".flowset-output", "calibration.csv", "calibration.json", "field-sheet.csv", "field-sheet.xlsx", "findings.csv", "plan.json", "readings.csv", "report.html"}
 
 // TestRunEverySurvey runs the whole job on every site under surveys/ and
 // checks that the outputs are all there and the inputs untouched.
@@ -188,16 +188,27 @@ func TestOutputNotOverwritten(t *testing.T) {
 	if code != ExitUsage || !strings.Contains(errs, "--force") {
 		t.Fatalf("demo into an existing folder: exit %d, stderr %q; want exit 2 naming --force", code, errs)
 	}
+	// --force replaces only a folder flowset wrote: not this one.
+	code, _, errs = run(t, "demo", "--out", out, "--quiet", "--force")
+	if code != ExitUsage || !strings.Contains(errs, "was not written by flowset") {
+		t.Fatalf("demo --force into a folder flowset did not write: exit %d, stderr %q; want exit 2", code, errs)
+	}
 	if b, err := os.ReadFile(keep); err != nil || string(b) != "mine" {
 		t.Fatalf("existing output folder was touched: %v %q", err, b)
 	}
+	if err := os.RemoveAll(out); err != nil {
+		t.Fatal(err)
+	}
+	if code, _, errs := run(t, "demo", "--out", out, "--quiet"); code != ExitOK {
+		t.Fatalf("demo: exit %d: %s", code, errs)
+	}
+	if err := os.Remove(filepath.Join(out, "findings.csv")); err != nil {
+		t.Fatal(err)
+	}
 	if code, _, errs := run(t, "demo", "--out", out, "--quiet", "--force"); code != ExitOK {
-		t.Fatalf("demo --force: exit %d: %s", code, errs)
+		t.Fatalf("demo --force over its own output: exit %d: %s", code, errs)
 	}
-	if _, err := os.Stat(keep); err == nil {
-		t.Error("--force kept a file of the old folder: the folder should be replaced whole")
-	}
-	if _, err := os.Stat(filepath.Join(out, "report.html")); err != nil {
+	if _, err := os.Stat(filepath.Join(out, "findings.csv")); err != nil {
 		t.Errorf("--force: %v", err)
 	}
 	entries, _ := os.ReadDir(filepath.Dir(out))

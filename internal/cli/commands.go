@@ -1,7 +1,7 @@
 package cli
 
 import (
-	"errors"
+	"fmt"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -25,18 +25,32 @@ func addCommands(root *cobra.Command, ios *IO) {
 		// topic, shown by `flowset help NAME`.
 		root.AddCommand(&cobra.Command{Use: t.Name, Short: t.Title, Long: t.Title + "\n\n" + strings.TrimRight(t.Body, "\n")})
 	}
+	root.AddCommand(&cobra.Command{Use: "exit", Short: "Exit statuses", Long: exitHelp})
+	root.SetHelpCommand(newHelpCmd())
 }
 
-// dataError marks a run that found problems in the user's data (exit 1).
-type dataError struct{ err error }
-
-func (e *dataError) Error() string { return e.err.Error() }
-func (e *dataError) Unwrap() error { return e.err }
-
-func exitCode(err error) int {
-	var de *dataError
-	if errors.As(err, &de) {
-		return ExitData
+// newHelpCmd is cobra's help command, except that an unknown topic is a
+// wrong command line (exit 2) instead of a usage text and success.
+func newHelpCmd() *cobra.Command {
+	return &cobra.Command{
+		Use:   "help [command or topic]",
+		Short: "Help about any command or topic",
+		RunE: func(c *cobra.Command, args []string) error {
+			cmd, rest, err := c.Root().Find(args)
+			if err != nil || cmd == nil || len(rest) > 0 {
+				var names []string
+				for _, sub := range c.Root().Commands() {
+					if !sub.Hidden {
+						names = append(names, sub.Name())
+					}
+				}
+				return usagef("help %s: no such command or topic; there are %s", termSafe(strings.Join(args, " ")), strings.Join(names, ", "))
+			}
+			cmd.InitDefaultHelpFlag()
+			if err := cmd.Help(); err != nil {
+				return sysErr(fmt.Errorf("help: %w", err))
+			}
+			return nil
+		},
 	}
-	return exitUnknown
 }

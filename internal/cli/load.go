@@ -1,8 +1,11 @@
 package cli
 
 import (
+	"errors"
 	"fmt"
 	"io"
+	"io/fs"
+	"os"
 
 	"flowset/internal/plant"
 	"flowset/internal/site"
@@ -19,7 +22,13 @@ type loaded struct {
 // physical checks. Problems of error severity are listed on w and come back
 // as a *dataError; warnings are kept in loaded.Problems for the caller.
 func loadSite(path string, w io.Writer) (*loaded, error) {
+	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
+		return nil, usagef("SITE %s: no such folder or workbook", shown(path))
+	}
 	s, probs, err := site.Load(path)
+	if err != nil && len(probs) == 0 {
+		return nil, sysErr(err)
+	}
 	if err != nil {
 		return nil, &dataError{err}
 	}

@@ -6,21 +6,12 @@ package cli
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"io"
 	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
-)
-
-// Exit codes.
-const (
-	ExitOK      = 0 // done, nothing wrong
-	ExitData    = 1 // problems in the data, or a computation that could not finish
-	ExitUsage   = 2 // wrong command line
-	exitUnknown = 1
 )
 
 // IO carries the streams a command reads and writes.
@@ -56,8 +47,20 @@ func Run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 	return RunIO(ctx, args, &IO{In: stdin, Out: stdout, Err: stderr, Terminal: isTerminal(stderr)})
 }
 
-// RunIO is Run with the streams and clock given in ios.
-func RunIO(ctx context.Context, args []string, ios *IO) int {
+// RunIO is Run with the streams and clock given in ios. It never panics:
+// a panic below is reported briefly and ends with ExitInternal. Everything
+// it writes to ios.Out and ios.Err passes through a filter that escapes
+// terminal control sequences (see termSafe).
+func RunIO(ctx context.Context, args []string, ios *IO) (code int) {
+	safe := *ios
+	safe.Out, safe.Err = &safeWriter{w: ios.Out}, &safeWriter{w: ios.Err}
+	ios = &safe
+	defer func() {
+		if v := recover(); v != nil {
+			reportPanic(ios.Err, v)
+			code = ExitInternal
+		}
+	}()
 	root := NewRoot(ios)
 	root.SetArgs(args)
 	root.SetIn(ios.In)
@@ -67,13 +70,17 @@ func RunIO(ctx context.Context, args []string, ios *IO) int {
 	if err == nil {
 		return ExitOK
 	}
-	fmt.Fprintf(ios.Err, "flowset: %v\n", err)
-	var ue *usageError
-	if errors.As(err, &ue) || isCobraUsage(err) {
+	code = exitCode(ctx, err)
+	switch code {
+	case ExitCancelled:
+		fmt.Fprintln(ios.Err, "flowset: stopped (interrupted); nothing was written")
+	case ExitUsage:
+		fmt.Fprintf(ios.Err, "flowset: %v\n", err)
 		fmt.Fprintln(ios.Err, "run 'flowset help' for usage")
-		return ExitUsage
+	default:
+		fmt.Fprintf(ios.Err, "flowset: %v\n", err)
 	}
-	return exitCode(err)
+	return code
 }
 
 // NewRoot builds the whole command tree in one place.

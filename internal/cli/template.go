@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"bytes"
 	"context"
 	"fmt"
 	"path/filepath"
@@ -23,7 +24,8 @@ func newTemplateCmd(ios *IO) *cobra.Command {
 		Short: "Write a blank site (CSV folder, or an .xlsx workbook) to fill in",
 		Long: `Template writes the sheets of a new site with their headers and a help row:
 a folder of CSV files, or one workbook when DEST ends in .xlsx. It never
-overwrites an existing folder or file unless --force is given.`,
+overwrites an existing folder or file; with --force it replaces only a
+blank template flowset wrote that nobody has changed since.`,
 		Args: exactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			opts.Dest = args[0]
@@ -34,16 +36,33 @@ overwrites an existing folder or file unless --force is given.`,
 	return cmd
 }
 
-func runTemplate(_ context.Context, ios *IO, opts *templateOptions) error {
-	if strings.EqualFold(filepath.Ext(opts.Dest), ".xlsx") {
-		if err := writeFileAtomic(opts.Dest, opts.Force, site.WriteTemplateWorkbook); err != nil {
-			return err
-		}
-	} else {
-		if err := writeDirAtomic(opts.Dest, opts.Force, site.WriteTemplateCSV); err != nil {
-			return err
-		}
+func runTemplate(ctx context.Context, ios *IO, opts *templateOptions) error {
+	xlsx := strings.EqualFold(filepath.Ext(opts.Dest), ".xlsx")
+	c, err := claimOut("", opts.Dest, opts.Force, xlsx, nil)
+	if err != nil {
+		return err
 	}
-	fmt.Fprintf(ios.Out, "wrote a blank site to %s; see 'flowset help sheets'\n", opts.Dest)
+	written := false
+	defer func() { c.finish(written) }()
+	if xlsx {
+		err = c.writeFile(ctx, site.WriteTemplateWorkbook, isBlankTemplate)
+	} else {
+		err = c.writeDir(ctx, site.WriteTemplateCSV)
+	}
+	if err != nil {
+		return err
+	}
+	written = true
+	fmt.Fprintf(ios.Out, "wrote a blank site to %s; see 'flowset help sheets'\n", shown(opts.Dest))
 	return nil
+}
+
+// isBlankTemplate reports whether b is the blank template workbook, byte
+// for byte (the writer is deterministic): --force replaces nothing else.
+func isBlankTemplate(b []byte) bool {
+	var fresh bytes.Buffer
+	if err := site.WriteTemplateWorkbook(&fresh); err != nil {
+		return false
+	}
+	return bytes.Equal(b, fresh.Bytes())
 }
