@@ -43,7 +43,7 @@ func BenchmarkRun(b *testing.B) {
 			var size int64
 			for b.Loop() {
 				var so, se bytes.Buffer
-				if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK {
+				if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK && code != ExitShort {
 					b.Fatalf("run: exit %d: %s", code, se.String())
 				}
 				st, err := os.Stat(filepath.Join(out, "report.html"))
@@ -76,8 +76,9 @@ func TestRunSynthetic(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "out")
-	code, stdout, errs := run(t, "run", dir, "--out", out, "--quiet")
-	if code != ExitOK {
+	code, stdout, errs := run(t, "run", dir, "--out", out)
+	// Five per cent of the branches fouled: the plan may fall short (exit 5).
+	if code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d: %s", code, errs)
 	}
 	clamped := map[string]bool{}
@@ -93,7 +94,7 @@ func TestRunSynthetic(t *testing.T) {
 		}
 		planted++
 		id := s.Branches[i].ID
-		if bytes.Contains([]byte(stdout), []byte("restricted          "+id+":")) {
+		if bytes.Contains([]byte(stdout), []byte(id+" (restricted, fault)")) {
 			found++
 		}
 	}

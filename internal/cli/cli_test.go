@@ -108,7 +108,7 @@ func TestRunEverySurvey(t *testing.T) {
 		t.Run(name, func(t *testing.T) {
 			before := checksums(t, surveyDir(name))
 			out := filepath.Join(t.TempDir(), "out")
-			code, stdout, errs := run(t, "run", surveyDir(name), "--out", out, "--quiet")
+			code, stdout, errs := run(t, "run", surveyDir(name), "--out", out)
 			if code != ExitOK {
 				t.Fatalf("run %s: exit %d, stderr:\n%s", name, code, errs)
 			}

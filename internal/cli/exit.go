@@ -17,11 +17,12 @@ const (
 	ExitUsage     = 2   // wrong command line (including an output that may not be written)
 	ExitSystem    = 3   // the system failed: a file or folder could not be read or written, disk full, no permission
 	ExitInternal  = 4   // a bug in flowset (an internal error); nothing was written
+	ExitShort     = 5   // the plan cannot meet its targets; the outputs are written and say so
 	ExitCancelled = 130 // stopped by an interrupt (Ctrl-C) or terminate signal; nothing was written
 )
 
 // exitStatuses is the documented set, for tests.
-var exitStatuses = []int{ExitOK, ExitData, ExitUsage, ExitSystem, ExitInternal, ExitCancelled}
+var exitStatuses = []int{ExitOK, ExitData, ExitUsage, ExitSystem, ExitInternal, ExitShort, ExitCancelled}
 
 // exitHelp is the text of 'flowset help exit'.
 const exitHelp = `Exit status
@@ -36,6 +37,8 @@ const exitHelp = `Exit status
        disk is full, or permission was refused
   4    an internal error: a bug in flowset; please report it with the command
        line and the site
+  5    the plan cannot meet its targets: the outputs are written, and the plan
+       says first what is short, why and what would fix it (no saving claimed)
   130  stopped by an interrupt (Ctrl-C) or a terminate signal
 
 Whatever the status, the inputs are never modified, and an output folder or
@@ -62,7 +65,8 @@ func sysErr(err error) error {
 	var ue *usageError
 	var de *dataError
 	var se *systemError
-	if errors.As(err, &ue) || errors.As(err, &de) || errors.As(err, &se) ||
+	var sh *shortError
+	if errors.As(err, &ue) || errors.As(err, &de) || errors.As(err, &se) || errors.As(err, &sh) ||
 		errors.Is(err, context.Canceled) || errors.Is(err, context.DeadlineExceeded) {
 		return err
 	}
@@ -77,7 +81,10 @@ func exitCode(ctx context.Context, err error) int {
 	}
 	var ue *usageError
 	var de *dataError
+	var sh *shortError
 	switch {
+	case errors.As(err, &sh):
+		return ExitShort
 	case errors.As(err, &ue) || isCobraUsage(err):
 		return ExitUsage
 	case errors.As(err, &de):

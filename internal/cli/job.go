@@ -20,12 +20,11 @@ import (
 
 // jobOptions are the knobs shared by fit, plan and run.
 type jobOptions struct {
-	Scale        float64
-	Rounding     string
-	DesignOnly   bool // plan from the design model even when readings exist
-	Thresholds   diagnose.Thresholds
-	FlowUnit     string
-	PressureUnit string
+	Scale      float64
+	Rounding   string
+	DesignOnly bool // plan from the design model even when readings exist
+	Thresholds diagnose.Thresholds
+	Units      display // display units of every output but JSON
 }
 
 // job is the outcome of the main computation on one site.
@@ -39,6 +38,10 @@ type job struct {
 	Evidence []diagnose.Branch
 	Plan     *balance.Plan
 	After    *plant.Solved // the plan's state on Params
+	// Remedy holds, by restricted branch ID, the plan once that branch is
+	// cleaned, and under "" the plan once all of them are (nil when none).
+	Remedy map[string]*remedy
+	opts   *jobOptions
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -74,7 +77,10 @@ func calibrateSite(ctx context.Context, l *loaded, pr *progress) (*calibrate.Cal
 // runJob does check, fit, diagnose and plan.
 func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*job, error) {
 	m := l.Model
-	j := &job{L: l, Fitted: m.Design(), Params: m.Design()}
+	if opts.Units.Name == "" {
+		opts.Units = siDisplay()
+	}
+	j := &job{L: l, Fitted: m.Design(), Params: m.Design(), opts: opts}
 	if !opts.DesignOnly {
 		cal, err := calibrateSite(ctx, l, pr)
 		if err != nil {
@@ -103,14 +109,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 
 	pr.step("planning valve settings for %d branches", len(m.Branches))
-	bo := &balance.Options{Scale: opts.Scale}
-	if opts.Rounding == "smart" {
-		bo.Rounding = balance.Smart
-	}
-	if j.Cal != nil {
-		bo.Uncertainty = uncertainty(j.Cal)
-	}
-	plan, err := balance.Compute(ctx, m, j.Params, bo)
+	plan, err := balance.Compute(ctx, m, j.Params, j.planOptions())
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
@@ -121,7 +120,22 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 		return nil, &dataError{fmt.Errorf("planned state: %w", err)}
 	}
 	j.After = after
+	if err := j.remedies(ctx); err != nil {
+		return nil, err
+	}
 	return j, nil
+}
+
+// planOptions are the plan's options from the job's.
+func (j *job) planOptions() *balance.Options {
+	bo := &balance.Options{Scale: j.opts.Scale}
+	if j.opts.Rounding == "smart" {
+		bo.Rounding = balance.Smart
+	}
+	if j.Cal != nil {
+		bo.Uncertainty = uncertainty(j.Cal)
+	}
+	return bo
 }
 
 // fitWarning says, when the fit is far worse than the readings' stated

@@ -53,8 +53,14 @@ func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*
 	return &loaded{Site: s, Model: m, Problems: probs}, nil
 }
 
+// printProblems lists problems one a line; each one's text already says
+// where it is and whether it is a warning.
 func printProblems(w io.Writer, probs site.Problems) {
 	for _, p := range probs {
-		fmt.Fprintf(w, "%s: %v\n", p.Severity, p)
+		if p.Severity == site.SeverityError {
+			fmt.Fprintf(w, "%s: %v\n", p.Severity, p)
+			continue
+		}
+		fmt.Fprintln(w, p)
 	}
 }

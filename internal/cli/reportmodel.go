@@ -14,16 +14,17 @@ import (
 	"flowset/internal/site"
 )
 
-// Display units of the report and field sheets.
-const (
-	toFlow = 1e3  // m3/s -> l/s
-	toDiff = 1e-3 // Pa -> kPa
-)
+// curvePoints is how many points each drawn curve is sampled at: enough
+// that a square-law curve shows no kinks at chart size.
+const curvePoints = 49
 
 // reportInput maps a job onto the report's view model.
 func (j *job) reportInput(ctx context.Context, generated string) (report.Input, error) {
 	l, m, plan := j.L, j.L.Model, j.Plan
 	s := l.Site
+	u := j.opts.Units
+	toFlow, toDiff := u.toFlow(1), u.toDiff(1)
+	xy := func(ps []plant.Point) []report.XY { return xyIn(ps, toFlow, toDiff) }
 	fluidText := s.Fluid
 	if s.Fluid != "water" {
 		fluidText = fmt.Sprintf("%s %g %% by volume", strings.ReplaceAll(s.Fluid, "-", " "), s.GlycolPercent)
@@ -31,32 +32,13 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	in := report.Input{
 		Site: s.Name, Fluid: fluidText, Temperature: fmt.Sprintf("%.1f °C", s.Temperature-273.15),
 		Generated: generated, Measured: measuredSentence(s),
-		FlowUnit: "l/s", PressureUnit: "kPa",
+		FlowUnit: u.FlowUnit, PressureUnit: u.DiffUnit,
 		ToleranceLow: 100 * s.ToleranceLow, ToleranceHigh: 100 * s.ToleranceHigh,
 	}
 	// Summary.
 	sum := &in.Summary
-	for i, b := range m.Branches {
-		if b.Riser() {
-			continue
-		}
-		pct := j.Before.Flow(i) / b.Target
-		if pct >= 1+s.ToleranceLow && pct <= 1+s.ToleranceHigh {
-			sum.InBefore++
-		} else {
-			sum.OutBefore++
-		}
-	}
-	for _, b := range plan.Branches {
-		if b.Riser {
-			continue
-		}
-		if b.InTolerance {
-			sum.InAfter++
-		} else {
-			sum.OutAfter++
-		}
-	}
+	in0, n, in1 := j.toleranceCounts()
+	sum.InBefore, sum.OutBefore, sum.InAfter, sum.OutAfter = in0, n-in0, in1, n-in1
 	for _, f := range j.Findings {
 		if f.Severity == diagnose.Fault {
 			where := f.Branch
@@ -70,16 +52,19 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	sum.SpeedRatio = math.NaN()
 	switch s.Boundary.Kind {
 	case site.PumpCurve:
-		sum.SetpointBefore = fmt.Sprintf("pump at %.0f %% speed: %.1f kPa at %.2f l/s", 100*j.Before.State.Speed, j.Before.PumpDiff()*toDiff, j.Before.TotalFlow()*toFlow)
-		sum.SetpointAfter = fmt.Sprintf("pump at %.0f %% speed: %.1f kPa at %.2f l/s", 100*plan.Speed, j.After.PumpDiff()*toDiff, j.After.TotalFlow()*toFlow)
+		bq, bd := j.pumpBefore()
+		sum.SetpointBefore = fmt.Sprintf("pump at %s speed: %s at %s", u.speed(j.Before.State.Speed), u.diff(bd), u.flow(bq))
+		sum.SetpointAfter = fmt.Sprintf("pump at %s speed: %s at %s", u.speed(plan.Speed), u.diff(j.After.PumpDiff()), u.flow(j.After.TotalFlow()))
 		if j.Before.State.Speed > 0 {
 			sum.SpeedRatio = plan.Speed / j.Before.State.Speed
 		}
 	default:
-		sum.SetpointBefore = fmt.Sprintf("%.1f kPa held at %s", j.Before.State.Differential*toDiff, sensorName(s.Boundary.Sensor))
-		sum.SetpointAfter = fmt.Sprintf("%.1f kPa at %s", pp.SetPoint*toDiff, sensorName(pp.Sensor))
+		sum.SetpointBefore = fmt.Sprintf("%s held at %s", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor))
+		sum.SetpointAfter = fmt.Sprintf("%s at %s", u.diff(pp.SetPoint), sensorName(pp.Sensor))
 	}
-	if pp.HaveBefore && pp.ElectricalBefore > 0 {
+	if j.short() {
+		sum.EnergySaving = "none claimed: the plan cannot meet its targets"
+	} else if pp.HaveBefore && pp.ElectricalBefore > 0 {
 		// A change in percent of a power that rounds to nothing (a
 		// boundary of a few Pa) would be a meaningless huge number.
 		change := ""
@@ -100,7 +85,12 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			sum.EnergySaving += fmt.Sprintf(" (%.0f %s)", round0(cost), pp.Currency)
 		}
 	}
-	sum.Notes = append(sum.Notes, plan.Summary()...)
+	for _, line := range plan.Summary() {
+		if j.short() && strings.HasPrefix(line, "Annual energy") {
+			continue // no saving is claimed for a plan that cannot meet its targets
+		}
+		sum.Notes = append(sum.Notes, line)
+	}
 	if j.Cal == nil {
 		sum.Notes = append(sum.Notes, "No readings: everything here comes from the design data alone.")
 	} else if !j.Cal.Converged {
@@ -147,14 +137,14 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		// Curves at the as-found setting, from zero to beyond both 150 % of
 		// design and every reading, so the readings sit on the drawn range.
 		set := j.Before.State.Settings[i]
-		rb.Measured = measuredPoints(j, i)
+		rb.Measured = measuredPoints(j, i, toFlow, toDiff)
 		span := 1.5 * b.Design
 		for _, p := range rb.Measured {
 			span = math.Max(span, 1.1*p.X/toFlow)
 		}
-		flows := make([]float64, 13)
+		flows := make([]float64, curvePoints)
 		for k := range flows {
-			flows[k] = span * float64(k) / 12
+			flows[k] = span * float64(k) / float64(curvePoints-1)
 		}
 		rb.DesignCurve = xy(m.BranchCurve(design, i, set, flows))
 		rb.FitCurve = xy(m.BranchCurve(j.Fitted, i, set, flows))
@@ -175,7 +165,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	if m.Pump != nil && s.Boundary.Kind == site.PumpCurve {
 		top = math.Max(top, m.Pump.AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
 	}
-	diffs := make([]float64, 16)
+	diffs := make([]float64, curvePoints)
 	for k := range diffs {
 		diffs[k] = top * float64(k) / float64(len(diffs)-1)
 	}
@@ -189,7 +179,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	}
 	in.Combined.System, in.Combined.SystemAfter = xy(sysB), xy(sysA)
 	qmax := math.Max(sysB[len(sysB)-1].Flow, sysA[len(sysA)-1].Flow)
-	qs := make([]float64, 16)
+	qs := make([]float64, curvePoints)
 	for k := range qs {
 		qs[k] = qmax * float64(k) / float64(len(qs)-1)
 	}
@@ -200,10 +190,12 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	in.Combined.OpBefore = report.XY{X: opB.Flow * toFlow, Y: opB.Diff * toDiff}
 	in.Combined.OpAfter = report.XY{X: opA.Flow * toFlow, Y: opA.Diff * toDiff}
 
-	// Tables.
-	in.Plan = report.Table{Title: "Field sheet", Notes: append([]string{
-		"The full field sheet, with Kv, branch differential and authority, is field-sheet.csv / field-sheet.xlsx beside this report."}, plan.Warnings...)}
-	in.Plan.Columns, in.Plan.Rows = fieldSheetColumns(plan)
+	// The visit, then the appendix's tables.
+	in.Visit = j.visit(u)
+	in.Cautions = cautions(s)
+	in.Plan = report.Table{Title: "Full field sheet", Notes: []string{
+		"The field sheet with every column (Kv, branch differential, authority) is field-sheet.csv / field-sheet.xlsx beside this report."}}
+	in.Plan.Columns, in.Plan.Rows = fieldSheetColumns(j.fieldSheet(u))
 	h, rows := j.findingRows()
 	in.Diagnosis = report.Table{Title: "Diagnosis", Columns: h, Rows: rows, Notes: []string{
 		"Thresholds: restricted when the fitted resistance ratio exceeds 1.5 with 95 % confidence (free below 1/1.5); suspect reading beyond 3 standard uncertainties or removed by the fit's outlier test."}}
@@ -214,10 +206,9 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 
 // fieldSheetColumns picks the field sheet's columns a page can hold: what
 // to set, what to expect and the check reading.
-func fieldSheetColumns(plan *balance.Plan) ([]string, [][]string) {
-	h, rows := plan.Rows()
-	want := []string{"Order", "Branch", "Valve", "As-found setting", "New setting", "Target (l/s)", "Predicted (% of target)",
-		"Band low (% of target)", "Band high (% of target)", "In tolerance", "Check: valve differential (kPa)", "Notes"}
+func fieldSheetColumns(h []string, rows [][]string) ([]string, [][]string) {
+	want := []string{"Order", "Branch", "Valve", "As-found setting", "New setting", "Setting unit", "Predicted (% of target)",
+		"Band low (% of target)", "Band high (% of target)", "In tolerance", "Notes"}
 	idx := make([]int, 0, len(want))
 	cols := make([]string, 0, len(want))
 	for _, w := range want {
@@ -237,7 +228,7 @@ func fieldSheetColumns(plan *balance.Plan) ([]string, [][]string) {
 	return cols, out
 }
 
-func xy(ps []plant.Point) []report.XY {
+func xyIn(ps []plant.Point, toFlow, toDiff float64) []report.XY {
 	out := make([]report.XY, 0, len(ps))
 	for _, p := range ps {
 		if math.IsNaN(p.Diff) {
@@ -251,7 +242,7 @@ func xy(ps []plant.Point) []report.XY {
 // measuredPoints places branch i's readings of the first survey state on its
 // curve: a flow with a branch differential read in the same state is one
 // point; a flow alone is drawn at the fitted differential.
-func measuredPoints(j *job, i int) []report.Point {
+func measuredPoints(j *job, i int, toFlow, toDiff float64) []report.Point {
 	s := j.L.Site
 	id := j.L.Model.Branches[i].ID
 	var flows, diffs []site.Reading
@@ -310,3 +301,13 @@ func measuredSentence(s *site.Site) string {
 // round0 rounds x to a whole number without a negative zero, which %.0f
 // would print as "-0".
 func round0(x float64) float64 { return math.Round(x) + 0 }
+
+// cautions are the report's safety cautions: the defaults, and glycol
+// handling where the circuit holds glycol.
+func cautions(s *site.Site) []string {
+	out := report.DefaultCautions()
+	if s.Fluid != "water" {
+		out = append(out, "The circuit holds "+strings.ReplaceAll(s.Fluid, "-", " ")+": wear gloves and eye protection at test points, catch what escapes rather than letting it reach a drain, and follow its safety data sheet.")
+	}
+	return out
+}

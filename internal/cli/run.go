@@ -6,7 +6,6 @@ import (
 	"io"
 	"os"
 	"path/filepath"
-	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
@@ -22,6 +21,8 @@ type runOptions struct {
 	Out   string
 	Force bool
 	Quiet bool
+	Units string // display units: si or us
+	JSON  bool   // print the result as JSON on stdout instead of text
 	// builtin is set for demo: the site is built in, not a path.
 	builtin bool
 	job     jobOptions
@@ -32,7 +33,9 @@ type runOptions struct {
 func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 	cmd.Flags().StringVar(&o.Out, "out", "", "output folder (must not exist unless --force)")
 	cmd.Flags().BoolVar(&o.Force, "force", false, "replace an existing output folder")
-	cmd.Flags().BoolVar(&o.Quiet, "quiet", false, "no progress messages on stderr")
+	cmd.Flags().BoolVar(&o.Quiet, "quiet", false, "print nothing but errors and warnings (no progress, no summary)")
+	cmd.Flags().StringVar(&o.Units, "units", "si", "display units: si (l/s, kPa) or us (gpm, psi); JSON stays SI")
+	cmd.Flags().BoolVar(&o.JSON, "json", false, "print the result as JSON on stdout (SI units, named in every key)")
 	cmd.Flags().Float64Var(&o.job.Thresholds.Restricted, "restricted-ratio", 1.5, "resistance ratio above which a branch is flagged restricted (1/ratio for free)")
 	cmd.Flags().Float64Var(&o.job.Thresholds.Confidence, "confidence", 0.95, "probability a ratio must have of passing its threshold to be flagged")
 	cmd.Flags().Float64Var(&o.job.Thresholds.SuspectZ, "suspect-z", 3, "normalised residual above which a reading is suspect")
@@ -48,6 +51,11 @@ func (o *runOptions) validate(needOut bool) error {
 	if needOut && o.Out == "" {
 		return usagef("--out is required: name a folder for the outputs")
 	}
+	u, err := displayUnits(o.Units)
+	if err != nil {
+		return usagef("--%v", err)
+	}
+	o.job.Units = u
 	if o.job.Rounding != "" && o.job.Rounding != "smart" && o.job.Rounding != "nearest" {
 		return usagef("--rounding %q: want smart or nearest", o.job.Rounding)
 	}
@@ -200,22 +208,28 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	if err != nil {
 		return err
 	}
-	for _, p := range l.Problems {
-		fmt.Fprintf(ios.Err, "%s: %v\n", p.Severity, p)
-	}
 	j, err := runJob(ctx, l, &o.job, pr)
 	if err != nil {
+		printProblems(ios.Err, l.Problems)
 		return err
 	}
+	printWarnings(ios.Err, l.Problems, j)
 	generated := ios.now().UTC().Format("2006-01-02 15:04 MST")
-	if o.writeFit {
-		printFit(ios.Out, j)
-	}
-	if o.writePlan {
-		printPlan(ios.Out, j)
+	switch {
+	case o.JSON:
+		if err := printJSON(ios.Out, j, o, generated); err != nil {
+			return err
+		}
+	case !o.Quiet:
+		if o.writeFit {
+			printFit(ios.Out, j)
+		}
+		if o.writePlan {
+			printVisit(ios.Out, j)
+		}
 	}
 	if o.Out == "" {
-		return nil
+		return j.shortErr(o)
 	}
 	var in report.Input
 	if o.writeReport {
@@ -255,7 +269,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			}
 		}
 		if o.writePlan || o.writeReport {
-			h, rows := j.Plan.Rows()
+			h, rows := j.fieldSheet(o.job.Units)
 			if err := put("field-sheet.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
 				return err
 			}
@@ -278,89 +292,114 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	if err != nil {
 		return err
 	}
-	if o.writeReport {
-		fmt.Fprintf(ios.Out, "\nreport: %s\n", shown(filepath.Join(o.Out, "report.html")))
+	if !o.Quiet && !o.JSON {
+		if o.writeReport {
+			fmt.Fprintf(ios.Out, "\nreport: %s\n", shown(filepath.Join(o.Out, "report.html")))
+		}
+		fmt.Fprintf(ios.Out, "outputs written to %s\n", shown(o.Out))
 	}
-	fmt.Fprintf(ios.Out, "outputs written to %s\n", shown(o.Out))
+	return j.shortErr(o)
+}
+
+// shortErr is a *shortError when the job planned and its plan cannot meet
+// its targets, else nil.
+func (j *job) shortErr(o *runOptions) error {
+	if (o.writePlan || o.writeReport) && j.short() {
+		return &shortError{len(j.Plan.Unmet)}
+	}
 	return nil
 }
 
 func printFit(w io.Writer, j *job) {
 	switch c := j.Cal; {
 	case c == nil && len(j.L.Site.Readings) > 0:
-		fmt.Fprintln(w, "design only: the readings are not used; the model stays at design")
+		fmt.Fprintln(w, "Design only: the readings are not used; the model stays at design.")
 	case c == nil:
-		fmt.Fprintln(w, "no readings: nothing to fit; the model stays at design")
+		fmt.Fprintln(w, "No readings: nothing to fit; the model stays at design.")
 	case c.DOF <= 0:
-		// With no degrees of freedom left a reduced chi-square is undefined.
-		fmt.Fprintf(w, "calibration: %s after %d iterations, chi-square %.1f with no degrees of freedom left (as many effective parameters as readings), so the fit cannot be tested\n\n",
-			c.Status, c.Iterations, c.ChiSquare)
+		fmt.Fprintf(w, "Fit: %d readings, no more than the unknowns they must pin down, so how well the model matches them cannot be tested.\n", len(c.Readings))
+	case fitWarning(c) != "":
+		fmt.Fprintf(w, "Fit: the readings disagree with the model far beyond their stated uncertainties: check units, the boundary (set point or pump curve) and the suspect readings before trusting the plan.\n")
 	default:
-		fmt.Fprintf(w, "calibration: %s after %d iterations, chi-square %.1f on %d degrees of freedom (reduced %.2f)\n\n",
-			c.Status, c.Iterations, c.ChiSquare, c.DOF, c.ReducedChiSquare)
+		fmt.Fprintf(w, "Fit: the model matches the %d readings within their stated uncertainties.\n", len(c.Readings))
 	}
-	if note := fitWarning(j.Cal); note != "" {
-		fmt.Fprintf(w, "warning: %s\n\n", note)
+	if c := j.Cal; c != nil && !c.Converged {
+		fmt.Fprintf(w, "The fit stopped before it settled (%s): treat its figures with care.\n", c.Status)
 	}
-	h, rows := j.fitRows()
-	cols := []int{0, 1, 2, 3, 5, 7, 8, 9}
+	fmt.Fprintln(w)
+	u := j.opts.Units
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	for _, c := range cols {
-		fmt.Fprintf(tw, "%s\t", h[c])
-	}
-	fmt.Fprintln(tw)
-	for _, r := range rows {
-		for _, c := range cols {
-			v := r[c]
-			if v == "" {
-				v = "-"
+	fmt.Fprintf(tw, "branch\tresistance ÷ design (95 %% range)\tvalve\tflow as found (%s)\tdesign (%s)\tflags\n", u.FlowUnit, u.FlowUnit)
+	for i, b := range j.L.Model.Branches {
+		ratio, valve := "-", "-"
+		if j.Cal != nil {
+			bf := j.Cal.Branches[i]
+			if bf.Fitted {
+				ratio = fmt.Sprintf("%.2f (%.2f-%.2f)", bf.Ratio, bf.Lo, bf.Hi)
 			}
-			fmt.Fprintf(tw, "%s\t", clip(v, 22))
+			if b.Valve != nil {
+				valve = bf.Valve.Hypothesis.String()
+			}
 		}
-		fmt.Fprintln(tw)
+		flow := u.flowNum(j.Before.Flow(i)) + " (model)"
+		if q, ok := j.flowRead(b.ID); ok {
+			flow = u.flowNum(q) + " (read)"
+		}
+		flags := flagsOf(j.Findings, b.ID)
+		if flags == "" {
+			flags = "-"
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", b.ID, ratio, valve, flow, u.flowNum(b.Design), flags)
 	}
 	tw.Flush()
 	if len(j.Findings) > 0 {
-		fmt.Fprintln(w, "\nfindings:")
+		fmt.Fprintln(w, "\nFindings")
 		for _, f := range j.Findings {
 			where := f.Branch
 			if f.Reading != "" {
 				where = f.Reading
 			}
-			fmt.Fprintf(w, "  %-7s %-19s %s: %s\n          %s\n", f.Severity, f.Code, where, f.Message, f.Evidence)
+			wrap(w, "  - ", fmt.Sprintf("%s (%s, %s): %s. Do: %s.", where, f.Code, f.Severity, f.Message, f.Action))
 		}
 	}
 	fmt.Fprintln(w)
 }
 
-func printPlan(w io.Writer, j *job) {
-	for _, line := range j.Plan.Summary() {
-		fmt.Fprintln(w, line)
-	}
-	fmt.Fprintln(w)
-	h, rows := j.Plan.Rows()
-	// Order, Branch, Valve, As-found, New, Target, Predicted %, Check diff.
-	cols := []int{0, 1, 4, 6, 7, 9, 11, 15}
-	names := []string{"#", "branch", "valve", "now", "set to", "target l/s", "% target", "check kPa"}
-	_ = h
-	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(tw, strings.Join(names, "\t")+"\t")
-	for _, r := range rows {
-		for _, c := range cols {
-			v := r[c]
-			if v == "" {
-				v = "-"
-			}
-			fmt.Fprintf(tw, "%s\t", clip(v, 16))
+// flowRead is the flow read on branch id in the as-found state: a clamp-on
+// or other independent reading first, else the valve meter's; false when the
+// survey read none.
+func (j *job) flowRead(id string) (float64, bool) {
+	var meter float64
+	found := false
+	for _, ri := range j.Before.State.Readings {
+		r := j.L.Site.Readings[ri]
+		if r.Where != id || !r.What.IsFlow() {
+			continue
 		}
-		fmt.Fprintln(tw)
+		if r.Instrument != "valve-meter" {
+			return r.Value, true
+		}
+		if !found {
+			meter, found = r.Value, true
+		}
 	}
-	tw.Flush()
-	for _, wn := range j.Plan.Warnings {
-		fmt.Fprintf(w, "warning: %s\n", wn)
+	return meter, found
+}
+
+// printJSON prints the job's result as one JSON document on w: the fit
+// (calibration.json's content) for fit, the plan (plan.json's) for plan,
+// both under "calibration" and "plan" for run and demo. SI units, named in
+// every key.
+func printJSON(w io.Writer, j *job, o *runOptions, generated string) error {
+	switch {
+	case o.writeFit && (o.writePlan || o.writeReport):
+		return writeJSON(w, struct {
+			Calibration calibrationJSON `json:"calibration"`
+			Plan        planJSON        `json:"plan"`
+		}{j.calibrationOut(generated), j.planOut(generated)})
+	case o.writeFit:
+		return writeJSON(w, j.calibrationOut(generated))
+	default:
+		return writeJSON(w, j.planOut(generated))
 	}
-	for _, u := range j.Plan.Unmet {
-		fmt.Fprintf(w, "cannot meet: %s at %.0f %% of target: %s\n", u.ID, u.Percent, u.Reason)
-	}
-	fmt.Fprintln(w, "\nThese are predictions: verify each setting with a reading at the valve's test points.")
 }

@@ -34,7 +34,10 @@ type Input struct {
 	Branches []Branch
 	Combined Combined
 
-	Plan      Table // the field sheet: what to set where, in order
+	// Visit is the order of work on site: the report's first pages.
+	Visit Visit
+
+	Plan      Table // the full field sheet (appendix): every column, in walk order
 	Diagnosis Table // findings with their evidence
 	Readings  Table // every reading with its residual
 
@@ -89,6 +92,56 @@ type Branch struct {
 	Measured []Point // readings on this branch
 }
 
+// Visit is the job in the order a technician does it on site, shown first
+// on screen and on paper: before you start, fix first, pump, valve settings,
+// prove it, hand-over. Every text is already in plain words and display
+// units; empty parts are left out (a part with nothing to do says so).
+type Visit struct {
+	// Short, when not empty, says the plan cannot meet its targets: what is
+	// short, why and what would fix it, one line each. It is shown above
+	// everything else and the report then claims no saving.
+	Short []string
+
+	BeforeStart []string // what would make the readings or settings wrong
+	Fixes       []Fix    // faults to put right before setting valves
+
+	Pump PumpStep
+
+	// OrderReason says once why the settings are in this order.
+	OrderReason string
+	// Settings are the valve settings in adjustment order, each with its
+	// unit and check reading; Settings.WriteIn names the blank columns for
+	// paper. Remedied are the settings once the fixes are made (no rows
+	// when no fault changes them); its Notes say which to use when.
+	Settings, Remedied Table
+
+	// Prove lists the branches to read after setting, with the value
+	// expected and its band.
+	Prove Table
+
+	// Handover is the hand-over record: each field with its value, or ""
+	// for a blank to fill in on site.
+	Handover []Field
+}
+
+// Fix is one fault to put right, with what it saves and what to read after.
+type Fix struct {
+	Where     string // branch or reading
+	Action    string // what to do, e.g. "clean the strainer, check the isolating valve"
+	Saves     string // what fixing it saves, e.g. "pump differential 169.3 -> 105.7 kPa"; "" when unknown
+	ReadAfter string // what to read after fixing it
+}
+
+// PumpStep is the change asked of the pump.
+type PumpStep struct {
+	From, To string   // e.g. "98.5 % speed, 169.3 kPa"
+	Where    string   // where it is set, e.g. "drive speed" or "differential set point at branch X"
+	Warnings []string // e.g. no pump curve given, raised differential
+}
+
+// Field is one line of the hand-over record.
+type Field struct{ Label, Value string }
+
 // XY is one point of a curve.
 type XY struct{ X, Y float64 }
 
@@ -117,14 +170,17 @@ type Table struct {
 	Columns []string
 	Rows    [][]string
 	Notes   []string
+	// WriteIn names blank columns added after Columns for writing in on
+	// site (e.g. "set", "read after", "initials"); they hold no data.
+	WriteIn []string
 }
 
 // DefaultCautions are shown when Input.Cautions is empty.
 func DefaultCautions() []string {
 	return []string{
-		"Hydronic systems hold pressurised water that may be hot enough to scald or cold enough to burn, and pumps are rotating machinery: isolate, drain down and lock off before opening anything.",
-		"Every figure here is a prediction from a model fitted to the readings. Verify each setting and flow on site, with calibrated instruments, before relying on it; the work is for competent, authorised people only.",
-		"Local codes, the plant's own instructions and licensed practice prevail over anything in this report.",
+		"The readings are taken on a running system: test points carry pressurised water that may be hot enough to scald or cold enough to burn. Open them only with the meter's probes fitted, wear gloves and eye protection, and keep clear of hot and cold pipework and of rotating machinery and its electrical supply.",
+		"Raising a pump's speed or set point raises the pressure in everything it serves: check the ratings of pipework, valves and equipment first. Put every control back to automatic before leaving.",
+		"Every figure here is a prediction from a model fitted to the readings. Verify each setting and flow on site, with calibrated instruments; the work is for competent, authorised people only. Local codes, the plant's own instructions and licensed practice prevail over anything in this report.",
 	}
 }
 
@@ -185,7 +241,8 @@ func (in *Input) validate() error {
 	for _, t := range []struct {
 		n string
 		t *Table
-	}{{"plan", &in.Plan}, {"diagnosis", &in.Diagnosis}, {"readings", &in.Readings}} {
+	}{{"plan", &in.Plan}, {"diagnosis", &in.Diagnosis}, {"readings", &in.Readings},
+		{"settings", &in.Visit.Settings}, {"remedied settings", &in.Visit.Remedied}, {"prove", &in.Visit.Prove}} {
 		for i, r := range t.t.Rows {
 			if len(t.t.Columns) > 0 && len(r) != len(t.t.Columns) {
 				errs = append(errs, fmt.Errorf("%s table row %d has %d cells, want %d: %w", t.n, i, len(r), len(t.t.Columns), ErrInvalid))

@@ -19,6 +19,8 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
+	"unicode"
 )
 
 // EChartsVersion is the version of the echarts build inlined in reports.
@@ -58,6 +60,7 @@ type summaryRow struct {
 
 type pageData struct {
 	In       *Input
+	PageHead template.CSS // quoted site and date for the printed page header, reduced to plain characters
 	Cautions []string
 	HowTo    []string
 	Summary  []summaryRow
@@ -78,8 +81,35 @@ type pageData struct {
 const maxFaults = 10
 
 var tmpl = template.Must(template.New("report").Funcs(template.FuncMap{
-	"inc": func(i int) int { return i + 1 },
+	"add":    func(a, b int) int { return a + b },
+	"letter": letter,
+	"dash":   dash,
+	"nowrap": nowrap,
 }).Parse(pageTmpl))
+
+// letter numbers the appendix's parts: 0 is B (A is the summary), 25 is Z,
+// then AA, AB and so on.
+func letter(i int) string {
+	i++ // A is the summary
+	s := ""
+	for {
+		s = string(rune('A'+i%26)) + s
+		i = i/26 - 1
+		if i < 0 {
+			return s
+		}
+	}
+}
+
+// maxNoWrap is the longest cell kept on one line: identifiers and numbers
+// ("FCU-R.1", "3.8 turns") must not break at a hyphen or a space, but a
+// long text must still wrap rather than widen the page.
+const maxNoWrap = 24
+
+// nowrap reports whether a table cell is short enough to keep on one line.
+func nowrap(s string) bool {
+	return len([]rune(s)) <= maxNoWrap && !strings.Contains(s, "; ")
+}
 
 // Write writes the whole report for in to w. The output depends on in
 // alone: the same Input gives byte-identical files. It returns an error
@@ -115,6 +145,8 @@ func build(in *Input) (*pageData, error) {
 	if len(p.Cautions) == 0 {
 		p.Cautions = DefaultCautions()
 	}
+	// pageHead leaves nothing that can end the quoted string or the rule.
+	p.PageHead = template.CSS(`"` + pageHead(in.Site+" · "+in.Generated) + `"`)
 	tol := fmt.Sprintf("%s %% to %s %%", fnum(100+in.ToleranceLow), fnum(100+in.ToleranceHigh))
 	p.HowTo = []string{
 		"A branch is in tolerance when its flow is within " + tol + " of its design flow.",
@@ -122,7 +154,6 @@ func build(in *Input) (*pageData, error) {
 		"Dashed lines and hollow circles mean as found; solid lines and filled diamonds mean after the plan; triangles mark flagged branches.",
 		"Shaded bands and error bars are 95 % intervals: the narrower they are, the better the readings pin the value.",
 		"Point at a chart for values. The tables at the end list every setting, finding and reading.",
-		"Carry out the field sheet in its order, then measure again to confirm.",
 	}
 	s := &in.Summary
 	p.Summary = []summaryRow{
@@ -196,7 +227,7 @@ func build(in *Input) (*pageData, error) {
 	}
 	p.Data = template.JS(data)
 	p.Tables = []Table{
-		withTitle(in.Plan, "Field sheet"),
+		withTitle(in.Plan, "Full field sheet"),
 		withTitle(in.Diagnosis, "Diagnosis"),
 		withTitle(in.Readings, "Readings and residuals"),
 	}
@@ -238,4 +269,28 @@ func dash(s string) string {
 		return "—"
 	}
 	return s
+}
+
+// maxPageHead is the longest printed page header, in characters.
+const maxPageHead = 80
+
+// pageHead reduces s to letters, digits, spaces and a few harmless marks
+// for the printed page header, which lives in the style sheet: nothing
+// there can then open a URL, a comment or a rule, whatever the site name
+// holds (html/template escapes it as well).
+func pageHead(s string) string {
+	var b strings.Builder
+	n := 0
+	for _, r := range s {
+		if n == maxPageHead {
+			b.WriteString("…")
+			break
+		}
+		switch {
+		case unicode.IsLetter(r), unicode.IsDigit(r), r == ' ', r == '-', r == '.', r == ',', r == ':', r == '·', r == '_':
+			b.WriteRune(r)
+			n++
+		}
+	}
+	return b.String()
 }

@@ -64,7 +64,27 @@ func sampleInput() Input {
 			readings.Rows = append(readings.Rows, []string{b.ID, m.Label, fmt.Sprintf("%.1f kPa", m.Y), fmt.Sprintf("%.1f kPa", m.Y+0.3), "-0.3 kPa"})
 		}
 	}
+	settings := Table{Title: "Valve settings", Columns: []string{"#", "Branch", "Valve", "Now", "Set to", "Check: valve Δp (kPa)", "Flow (l/s)"},
+		WriteIn: []string{"Set", "Read after", "Initials"}}
+	for i, b := range bs {
+		settings.Rows = append(settings.Rows, []string{fmt.Sprint(i + 1), b.ID, "V-25", b.SettingNow, b.SettingPlanned, fmt.Sprintf("%.1f", 10+2*float64(i)), fmt.Sprintf("%.2f", b.Design)})
+	}
+	visit := Visit{
+		BeforeStart: []string{
+			"Put every control valve fully open for the readings and the settings; put them back to automatic before you leave.",
+			"Reading readings.csv:7 (flow at H2-02, valve meter): read 0.62 l/s; the rest of the survey implies 0.33 l/s.",
+		},
+		Fixes: []Fix{{Where: "H2-03 hall", Action: "clean the strainer and check the isolating valves are fully open",
+			Saves: "pump differential 45.0 → 38.0 kPa", ReadAfter: "read its flow: about 0.42 l/s once clean, against 0.29 l/s now"}},
+		Pump:        PumpStep{From: "45.0 kPa at the pump", To: "38.0 kPa at the pump", Where: "the differential set point of the pump's controller", Warnings: []string{"No pump curve was given: check the pump can give 38.0 kPa at 1.53 l/s."}},
+		OrderReason: "Set the valves in this order, furthest from the pump first.",
+		Settings:    settings,
+		Prove: Table{Title: "Prove it", Columns: []string{"Branch", "Why read it", "Expect (l/s)", "95 % band (l/s)"}, WriteIn: []string{"Read", "Initials"},
+			Rows: [][]string{{"H2-03 hall", "index circuit", "0.31", "0.27 to 0.35"}}},
+		Handover: []Field{{Label: "Site", Value: "Invented example school, heating circuit H2"}, {Label: "Date of visit"}, {Label: "Signed, technician"}},
+	}
 	return Input{
+		Visit:        visit,
 		Site:         "Invented example school, heating circuit H2",
 		Fluid:        "water",
 		Temperature:  "70 °C flow",

@@ -1,0 +1,247 @@
+package cli
+
+import (
+	"fmt"
+	"io"
+	"strings"
+	"text/tabwriter"
+
+	"flowset/internal/diagnose"
+	"flowset/internal/report"
+	"flowset/internal/site"
+)
+
+// printVisit prints the plan in the order of work on site, from the same
+// view as the report's first pages: each message once, warnings in one
+// block, no cut cells.
+func printVisit(w io.Writer, j *job) {
+	v := j.visit(j.opts.Units)
+	if len(v.Short) > 0 {
+		fmt.Fprintln(w, "THIS PLAN CANNOT MEET ITS TARGETS")
+		for _, l := range v.Short {
+			fmt.Fprintf(w, "  %s\n", l)
+		}
+		fmt.Fprintln(w)
+	}
+	if j.Plan.DesignOnly {
+		fmt.Fprintln(w, "Plan from design data only: no survey calibrated the model; expect to fine-tune on site.")
+		fmt.Fprintln(w)
+	}
+	in0, n, in1 := j.toleranceCounts()
+	fmt.Fprintf(w, "Branches in tolerance (%+.0f %% to %+.0f %% of target): %d of %d as found, %d of %d after the plan.\n\n",
+		100*j.Plan.ToleranceLow, 100*j.Plan.ToleranceHigh, in0, n, in1, n)
+	fmt.Fprintln(w, "1. Before you start")
+	bullets(w, v.BeforeStart)
+	fmt.Fprintln(w, "\n2. Fix first")
+	if len(v.Fixes) == 0 {
+		fmt.Fprintln(w, "  No fault found: nothing to put right before setting the valves.")
+	}
+	for _, f := range v.Fixes {
+		wrap(w, "  - ", f.Where+": "+f.Action+".")
+		if f.Saves != "" {
+			wrap(w, "    ", "Saves: "+f.Saves+".")
+		}
+		if f.ReadAfter != "" {
+			wrap(w, "    ", "Read after: "+f.ReadAfter+".")
+		}
+	}
+	fmt.Fprintln(w, "\n3. Pump")
+	wrap(w, "  ", v.Pump.From+" → "+v.Pump.To)
+	wrap(w, "  ", "Set at: "+v.Pump.Where+".")
+	if e := j.energyLine(); e != "" {
+		fmt.Fprintf(w, "  Energy: %s.\n", e)
+	}
+	fmt.Fprintln(w, "\n4. Valve settings, in adjustment order")
+	wrap(w, "  ", v.OrderReason)
+	table(w, v.Settings)
+	if len(v.Remedied.Rows) > 0 {
+		fmt.Fprintf(w, "\n  %s\n", v.Remedied.Title)
+		table(w, v.Remedied)
+	}
+	fmt.Fprintln(w, "\n5. Prove it: read these after setting")
+	table(w, v.Prove)
+	var warns []string
+	for _, p := range v.Pump.Warnings {
+		warns = append(warns, p)
+	}
+	warns = append(warns, j.planNotes()...)
+	if len(warns) > 0 {
+		fmt.Fprintln(w, "\nWarnings")
+		bullets(w, warns)
+	}
+	fmt.Fprintln(w, "\nThese are predictions: verify each setting with a reading at the valve's test points.")
+}
+
+// planNotes are the plan's own warnings the visit does not already say in
+// its steps (the saving of a repair is in step 2, shortfalls at the top).
+func (j *job) planNotes() []string {
+	var out []string
+	for _, w := range j.Plan.Warnings {
+		// Said elsewhere in plain words: repairs in step 2, the pump's
+		// shortfall and its remedies at the top, the doubt below.
+		if isRemedyWarning(w) || strings.Contains(w, "sd of ln") || strings.Contains(w, "above its maximum") ||
+			strings.Contains(w, "more uncertain parameters") {
+			continue
+		}
+		out = append(out, w)
+	}
+	if j.uncertainIndex() != "" {
+		out = append(out, j.uncertainIndex())
+	}
+	return out
+}
+
+// uncertainIndex says, in plain words, when the plan's pump differential
+// rests on a branch the survey pinned down poorly; "" otherwise.
+func (j *job) uncertainIndex() string {
+	p := j.Plan
+	if !finite(p.LeastHigh) || p.LeastHigh <= 1.02*p.Least {
+		return ""
+	}
+	u := j.opts.Units
+	return fmt.Sprintf("The readings leave some doubt: the circuit may need up to %s rather than %s. Read the index branch %s after setting and raise the pump if it is short.", u.diff(p.LeastHigh), u.diff(p.Least), p.Index)
+}
+
+// energyLine is the pump power and energy change in plain words, or "" when
+// there is none to quote (no pump power worked out, or a short plan).
+func (j *job) energyLine() string {
+	pp := j.Plan.Pump
+	if j.short() || !pp.HaveBefore || pp.ElectricalBefore <= 0 {
+		return ""
+	}
+	word, kwh, cost := "saved", pp.AnnualEnergySaving, pp.AnnualCostSaving
+	if round0(kwh) < 0 {
+		word, kwh, cost = "more", -kwh, -cost
+	}
+	s := fmt.Sprintf("pump power %s → %s, about %.0f kWh a year %s", power(pp.ElectricalBefore), power(pp.ElectricalAfter), round0(kwh), word)
+	if finite(cost) {
+		s += fmt.Sprintf(" (%.0f %s)", round0(cost), pp.Currency)
+	}
+	return s
+}
+
+func bullets(w io.Writer, lines []string) {
+	for _, l := range lines {
+		wrap(w, "  - ", l)
+	}
+}
+
+// wrapWidth is the console line width text is wrapped to.
+const wrapWidth = 100
+
+// wrap prints s wrapped at word boundaries, the first line after lead and
+// the others indented to match.
+func wrap(w io.Writer, lead, s string) {
+	pad := strings.Repeat(" ", len([]rune(lead)))
+	line := lead
+	n := len([]rune(lead))
+	for _, word := range strings.Fields(s) {
+		lw := len([]rune(word))
+		if n > len([]rune(pad)) && n+1+lw > wrapWidth {
+			fmt.Fprintln(w, line)
+			line, n = pad+word, len([]rune(pad))+lw
+			continue
+		}
+		if n > len([]rune(pad)) {
+			line += " "
+			n++
+		}
+		line += word
+		n += lw
+	}
+	fmt.Fprintln(w, line)
+}
+
+// table prints a report table in aligned columns, whole cells, no write-in
+// columns (those are for paper).
+func table(w io.Writer, t report.Table) {
+	if len(t.Rows) == 0 {
+		for _, n := range t.Notes {
+			wrap(w, "  ", n)
+		}
+		return
+	}
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	fmt.Fprintln(tw, "  "+strings.Join(t.Columns, "\t"))
+	for _, r := range t.Rows {
+		cells := make([]string, len(r))
+		for k, c := range r {
+			if c == "" {
+				c = "-"
+			}
+			cells[k] = c
+		}
+		fmt.Fprintln(tw, "  "+strings.Join(cells, "\t"))
+	}
+	tw.Flush()
+	for _, n := range t.Notes {
+		wrap(w, "  ", n)
+	}
+}
+
+// printWarnings lists the site's warnings once, in one block; a warning on
+// a reading that a finding of the fit explains points to that finding.
+func printWarnings(w io.Writer, probs site.Problems, j *job) {
+	var warns site.Problems
+	for _, p := range probs {
+		if p.Severity == site.SeverityWarning {
+			warns = append(warns, p)
+		}
+	}
+	if len(warns) == 0 {
+		return
+	}
+	at := map[site.Pos]string{}
+	for _, r := range j.L.Site.Readings {
+		at[r.Pos] = r.Where
+	}
+	explained := map[string]string{}
+	for _, f := range j.Findings {
+		switch f.Code {
+		case diagnose.ValveMisSet, diagnose.ValveStuck, diagnose.SuspectReading:
+			if f.Branch != "" && explained[f.Branch] == "" {
+				explained[f.Branch] = f.Message
+			}
+		}
+	}
+	for _, p := range warns {
+		line := p.Error()
+		if b, ok := at[site.Pos{File: p.File, Line: p.Line}]; ok && explained[b] != "" {
+			line += fmt.Sprintf(" [the fit explains it: %s: %s; see step 2]", b, explained[b])
+		}
+		fmt.Fprintln(w, line)
+	}
+}
+
+// shortError ends a fit, plan or run whose plan cannot meet its targets
+// (ExitShort): the outputs are written and say so at the top.
+type shortError struct{ n int }
+
+func (e *shortError) Error() string {
+	if e.n == 1 {
+		return "the plan cannot meet its targets: 1 branch stays short (see the top of the plan)"
+	}
+	return fmt.Sprintf("the plan cannot meet its targets: %d branches stay short (see the top of the plan)", e.n)
+}
+
+// toleranceCounts counts the branches of the plan (risers included) inside
+// the tolerance band as found and after the plan, and their number. The
+// console, the report and the field sheet all count with it.
+func (j *job) toleranceCounts() (before, n, after int) {
+	p := j.Plan
+	for _, b := range p.Branches {
+		n++
+		if b.InTolerance {
+			after++
+		}
+		i := j.branchIndex(b.ID)
+		if i < 0 || !(b.Target > 0) {
+			continue
+		}
+		r := j.Before.Flow(i) / b.Target
+		if r >= 1+p.ToleranceLow && r <= 1+p.ToleranceHigh {
+			before++
+		}
+	}
+	return before, n, after
+}

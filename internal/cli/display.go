@@ -1,0 +1,102 @@
+package cli
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+
+	"flowset/internal/units"
+)
+
+// display is the set of units results are shown in on the console, the
+// field sheets and the report. JSON outputs stay SI whatever it is.
+type display struct {
+	Name     string // "si" or "us"
+	FlowUnit string // e.g. "l/s" or "gpm"
+	DiffUnit string // e.g. "kPa" or "psi"
+	flowU    units.Unit
+	diffU    units.Unit
+}
+
+// displayUnits returns the display units by name: "si" (l/s, kPa) or "us"
+// (US gallons per minute, psi).
+func displayUnits(name string) (display, error) {
+	var f, d string
+	switch name {
+	case "", "si":
+		name, f, d = "si", "l/s", "kPa"
+	case "us":
+		f, d = "gpm", "psi"
+	default:
+		return display{}, fmt.Errorf("units %q: want si (l/s, kPa) or us (gpm, psi)", name)
+	}
+	fu, err := units.Lookup(units.Flow, f)
+	if err != nil {
+		return display{}, err
+	}
+	du, err := units.Lookup(units.Pressure, d)
+	if err != nil {
+		return display{}, err
+	}
+	return display{Name: name, FlowUnit: f, DiffUnit: d, flowU: fu, diffU: du}, nil
+}
+
+// siDisplay is the default display.
+func siDisplay() display {
+	d, err := displayUnits("si")
+	if err != nil {
+		panic(err) // the table always has l/s and kPa
+	}
+	return d
+}
+
+// toFlow converts a flow in m3/s to the display unit.
+func (u display) toFlow(q float64) float64 { return u.flowU.FromSI(q) }
+
+// toDiff converts a differential in Pa to the display unit.
+func (u display) toDiff(p float64) float64 { return u.diffU.FromSI(p) }
+
+// flowNum formats a flow in the display unit without the unit: three
+// decimals below 1, two up to 100, one above (gpm: one decimal).
+func (u display) flowNum(q float64) string {
+	if !finite(q) {
+		return ""
+	}
+	v := u.toFlow(q)
+	d := 1
+	switch a := math.Abs(v); {
+	case u.Name == "us" && a < 10:
+		d = 2
+	case u.Name == "us":
+		d = 1
+	case a < 1:
+		d = 3
+	case a < 100:
+		d = 2
+	}
+	return strconv.FormatFloat(v, 'f', d, 64)
+}
+
+// diffNum formats a differential in the display unit without the unit: kPa
+// to 0.1, psi to 0.01.
+func (u display) diffNum(p float64) string {
+	if !finite(p) {
+		return ""
+	}
+	d := 1
+	if u.Name == "us" {
+		d = 2
+	}
+	return strconv.FormatFloat(u.toDiff(p)+0, 'f', d, 64)
+}
+
+func (u display) flow(q float64) string { return u.flowNum(q) + " " + u.FlowUnit }
+func (u display) diff(p float64) string { return u.diffNum(p) + " " + u.DiffUnit }
+
+// speed formats a speed ratio as a percentage of nominal.
+func (u display) speed(r float64) string {
+	if !finite(r) {
+		return "-"
+	}
+	return fmt.Sprintf("%.1f %%", 100*r)
+}

@@ -1,0 +1,48 @@
+package cli
+
+import (
+	"strconv"
+	"strings"
+)
+
+// fieldSheetWriteIn are the blank columns of the field sheet for writing in
+// on site.
+var fieldSheetWriteIn = []string{"Set (tick)", "Read after", "Initials"}
+
+// fieldSheet is the plan's field sheet (balance.Plan.Rows) in the display
+// units, with the write-in columns at the end. The plan's rows are in l/s
+// and kPa; each such column is converted and renamed here, so the sheet
+// and the report quote the same figures.
+func (j *job) fieldSheet(u display) ([]string, [][]string) {
+	h, rows := j.Plan.Rows()
+	conv := make([]func(float64) float64, len(h))
+	head := make([]string, len(h))
+	for k, c := range h {
+		head[k] = c
+		switch {
+		case strings.Contains(c, "(l/s)"):
+			head[k] = strings.Replace(c, "(l/s)", "("+u.FlowUnit+")", 1)
+			conv[k] = func(v float64) float64 { return u.toFlow(v * 1e-3) }
+		case strings.Contains(c, "(kPa)"):
+			head[k] = strings.Replace(c, "(kPa)", "("+u.DiffUnit+")", 1)
+			conv[k] = func(v float64) float64 { return u.toDiff(v * 1e3) }
+		}
+	}
+	out := make([][]string, len(rows))
+	for r, row := range rows {
+		nr := make([]string, 0, len(row)+len(fieldSheetWriteIn))
+		for k, cell := range row {
+			if conv[k] != nil && u.Name != "si" && cell != "" {
+				if v, err := strconv.ParseFloat(cell, 64); err == nil {
+					cell = strconv.FormatFloat(conv[k](v), 'f', 2, 64)
+				}
+			}
+			nr = append(nr, cell)
+		}
+		for range fieldSheetWriteIn {
+			nr = append(nr, "")
+		}
+		out[r] = nr
+	}
+	return append(head, fieldSheetWriteIn...), out
+}

@@ -1,0 +1,545 @@
+package cli
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+
+	"flowset/internal/balance"
+	"flowset/internal/diagnose"
+	"flowset/internal/plant"
+	"flowset/internal/report"
+	"flowset/internal/site"
+)
+
+// maxRemedies is the most faults given a plan of their own to say what
+// fixing each one saves; beyond it only the combined saving is given.
+const maxRemedies = 10
+
+// remedy is what putting one or more faults right would change: the plan on
+// the repaired model and the flows at the present settings once repaired.
+type remedy struct {
+	Plan *balance.Plan
+	Now  *plant.Solved // the as-found state on the repaired model
+}
+
+// remedies works out, for every restricted branch (and for all of them
+// together), the plan and the present flows once the branch is cleaned back
+// to its design resistance. It only calls the plan and the solver with other
+// multipliers; nothing here changes how either computes.
+func (j *job) remedies(ctx context.Context) error {
+	var restricted []int
+	for _, f := range j.Findings {
+		if f.Code != diagnose.Restricted {
+			continue
+		}
+		if i := j.branchIndex(f.Branch); i >= 0 {
+			restricted = append(restricted, i)
+		}
+	}
+	if len(restricted) == 0 || j.Cal == nil {
+		return nil
+	}
+	j.Remedy = map[string]*remedy{}
+	fix := func(idx []int) (*remedy, error) {
+		p := j.Params.Clone()
+		f := j.Fitted.Clone()
+		for _, i := range idx {
+			p.Resistance[i] = 1
+			f.Resistance[i] = 1
+		}
+		pl, err := balance.Compute(ctx, j.L.Model, p, j.planOptions())
+		if err != nil {
+			return nil, err
+		}
+		now, err := j.L.Model.Solve(ctx, f, j.Before.State)
+		if err != nil {
+			return nil, err
+		}
+		return &remedy{Plan: pl, Now: now}, nil
+	}
+	if len(restricted) <= maxRemedies {
+		for _, i := range restricted {
+			r, err := fix([]int{i})
+			if err != nil {
+				return &dataError{fmt.Errorf("plan after cleaning %s: %w", j.L.Model.Branches[i].ID, err)}
+			}
+			j.Remedy[j.L.Model.Branches[i].ID] = r
+		}
+	}
+	all, err := fix(restricted)
+	if err != nil {
+		return &dataError{fmt.Errorf("plan after the repairs: %w", err)}
+	}
+	j.Remedy[""] = all
+	return nil
+}
+
+// branchIndex is the model index of branch id, or -1.
+func (j *job) branchIndex(id string) int {
+	for i := range j.L.Model.Branches {
+		if j.L.Model.Branches[i].ID == id {
+			return i
+		}
+	}
+	return -1
+}
+
+// pumpBefore is the pump's duty as found (flow, differential) as the plan
+// worked it out, so the pump step and the energy figures quote one duty;
+// the as-found solve where the plan has none.
+func (j *job) pumpBefore() (flow, diff float64) {
+	if pp := j.Plan.Pump; pp.HaveBefore {
+		return pp.Before.Flow, pp.Before.Differential
+	}
+	return j.Before.TotalFlow(), j.Before.PumpDiff()
+}
+
+// short reports whether the plan cannot meet its targets.
+func (j *job) short() bool { return len(j.Plan.Unmet) > 0 }
+
+// visit lays the job out in the order of work on site. The report's first
+// pages and the console summary are both drawn from it, so they count the
+// same branches (risers included) and quote the same numbers.
+func (j *job) visit(u display) report.Visit {
+	var v report.Visit
+	m, s, plan := j.L.Model, j.L.Site, j.Plan
+	v.Short = j.shortLines(u)
+
+	// 1. Before you start.
+	var controls []string
+	for _, b := range s.Branches {
+		if b.ControlKvs > 0 {
+			controls = append(controls, b.ID)
+		}
+	}
+	if len(controls) > 0 {
+		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Drive the control valves on %s fully open (or to manual, open) for the readings and the settings; put them back to automatic before you leave.", joinIDs(controls)))
+	} else {
+		v.BeforeStart = append(v.BeforeStart, "Put every control valve and thermostatic head the circuit has fully open (or to manual, open) for the readings and the settings; put them back to automatic before you leave.")
+	}
+	switch s.Boundary.Kind {
+	case site.PumpCurve:
+		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Run the pump at the speed of the survey (%s) until step 3.", u.speed(j.Before.State.Speed)))
+	default:
+		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Leave the pump holding %s at %s (as surveyed) until step 3.", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor)))
+	}
+	v.BeforeStart = append(v.BeforeStart, j.suspectLines(u)...)
+	var undet []string
+	for _, f := range j.Findings {
+		if f.Code == diagnose.Undetermined {
+			undet = append(undet, f.Branch)
+		}
+	}
+	if len(undet) > 0 {
+		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("The survey did not pin down %s: the plan assumes design there; read %s after setting (step 5).", joinIDs(undet), pronoun(len(undet))))
+	}
+
+	// 2. Fix first.
+	v.Fixes = j.fixes(u)
+
+	// 3. Pump.
+	v.Pump = j.pumpStep(u)
+
+	// 4. Valve settings.
+	v.OrderReason = "Set the valves in this order: along the main headers from the pump outwards, and on a riser its branches before the riser's own valve, so each riser is one visit. Every setting comes from one calculation, so the order does not change the result; the check readings hold once every valve is set and the pump runs as in step 3."
+	v.Settings = settingsTable(plan, u, "Valve settings")
+	v.Settings.WriteIn = []string{"Set", "Read after", "Initials"}
+	if r := j.Remedy[""]; r != nil && settingsDiffer(plan, r.Plan) {
+		v.Remedied = settingsTable(r.Plan, u, "Valve settings after the repairs in step 2")
+		v.Remedied.Notes = []string{"Use these settings if every repair in step 2 is done before you set the valves; if not, use the settings above and come back to re-balance after the repair."}
+		v.Remedied.WriteIn = []string{"Set", "Initials"}
+	}
+
+	// 5. Prove it.
+	v.Prove = j.proveTable(u)
+
+	// 6. Hand-over.
+	v.Handover = j.handover(u)
+	_ = m
+	return v
+}
+
+// shortLines says what is short, why and what would fix it; nil when the
+// plan meets every target.
+func (j *job) shortLines(u display) []string {
+	plan := j.Plan
+	if !j.short() {
+		return nil
+	}
+	var out []string
+	var parts []string
+	for _, s := range plan.Unmet {
+		parts = append(parts, fmt.Sprintf("%s %s of %s (%.0f %%)", s.ID, u.flow(s.Predicted), u.flow(s.Target), s.Percent))
+	}
+	out = append(out, fmt.Sprintf("Short after the plan: %s.", strings.Join(parts, ", ")))
+	pp := plan.Pump
+	if j.L.Site.Boundary.Kind == site.PumpCurve && j.L.Model.Pump != nil && finite(pp.NeededSpeed) && pp.NeededSpeed > pp.MaxSpeed {
+		total := 0.0
+		for _, b := range plan.Branches {
+			if b.Depth == 0 {
+				total += b.Target
+			}
+		}
+		full := j.L.Model.PumpCurve(j.Params, pp.MaxSpeed, []float64{total})
+		why := fmt.Sprintf("Why: the pump must give %s at %s", u.diff(plan.Least), u.flow(total))
+		if len(full) == 1 && finite(full[0].Diff) {
+			why += fmt.Sprintf("; at full speed (%s) it gives %s", u.speed(pp.MaxSpeed), u.diff(full[0].Diff))
+		}
+		out = append(out, why+".")
+	}
+	seen := map[string]bool{}
+	for _, s := range plan.Unmet {
+		if s.Reason != "" && !seen[s.Reason] {
+			seen[s.Reason] = true
+			out = append(out, "Cause: "+s.Reason+".")
+		}
+	}
+	for _, w := range plan.Warnings {
+		if isRemedyWarning(w) {
+			out = append(out, "What would fix it: "+w+".")
+		}
+	}
+	out = append(out, "Set the valves as below all the same: every other branch gets its target, and the short ones get as much as the pump can give. No energy saving is claimed.")
+	return out
+}
+
+// suspectLines states each suspect reading with its numbers and, where the
+// evidence points to one, its usual cause.
+func (j *job) suspectLines(u display) []string {
+	if j.Cal == nil {
+		return nil
+	}
+	var out []string
+	byLabel := map[string]diagnose.Finding{}
+	for _, f := range j.Findings {
+		if f.Code == diagnose.SuspectReading {
+			byLabel[f.Reading] = f
+		}
+	}
+	for _, r := range j.Cal.Readings {
+		if _, ok := byLabel[r.Pos.String()]; !ok {
+			continue
+		}
+		sr := j.L.Site.Readings[r.Index]
+		val, pred := u.diff(r.Value), u.diff(r.Predicted)
+		if sr.What.IsFlow() {
+			val, pred = u.flow(r.Value), u.flow(r.Predicted)
+		}
+		line := fmt.Sprintf("Reading %s (%s at %s, %s): read %s; the rest of the survey implies %s.", r.Pos, sr.What, sr.Where, sr.Instrument, val, pred)
+		if r.Outlier {
+			line += " It was left out of the calculation."
+		}
+		switch {
+		case sr.Instrument == "valve-meter" && j.hasValveDiff(sr.Where, sr.State):
+			line += " A valve-meter flow that disagrees with the valve differential read at the same time usually means the wrong valve size or model was dialled into the meter: check it, then re-read."
+		case sr.Instrument == "valve-meter":
+			line += " Check the valve size, model and setting dialled into the meter, then re-read."
+		default:
+			line += " Re-read it: check the test points, the unit and the setting noted."
+		}
+		out = append(out, line)
+	}
+	return out
+}
+
+func (j *job) hasValveDiff(where, state string) bool {
+	for _, r := range j.L.Site.Readings {
+		if r.Where == where && r.State == state && r.What == site.ValveDiff {
+			return true
+		}
+	}
+	return false
+}
+
+// fixes lists the faults to put right before setting, one per branch, with
+// what fixing it saves and what to read after.
+func (j *job) fixes(u display) []report.Fix {
+	var out []report.Fix
+	idx := map[string]int{}
+	add := func(where, action string) *report.Fix {
+		if k, ok := idx[where]; ok {
+			out[k].Action += "; " + action
+			return &out[k]
+		}
+		idx[where] = len(out)
+		out = append(out, report.Fix{Where: where, Action: action})
+		return &out[len(out)-1]
+	}
+	for _, f := range j.Findings {
+		switch f.Code {
+		case diagnose.Restricted:
+			i := j.branchIndex(f.Branch)
+			ratio := math.NaN()
+			if j.Cal != nil && i >= 0 {
+				ratio = j.Cal.Branches[i].Ratio
+			}
+			fx := add(f.Branch, fmt.Sprintf("clean the strainer, check that the isolating valves are fully open and the coil or terminal is not fouled (it passes water as if %.1f times its design resistance)", ratio))
+			if r := j.Remedy[f.Branch]; r != nil {
+				fx.Saves = j.saving(r.Plan, u)
+				if i >= 0 {
+					fx.ReadAfter = fmt.Sprintf("before touching any balancing valve, read %s's flow: about %s once clean, against %s now", f.Branch, u.flow(r.Now.Flow(i)), u.flow(j.Before.Flow(i)))
+				}
+			} else if r := j.Remedy[""]; r != nil {
+				fx.Saves = "with every repair in this step: " + j.saving(r.Plan, u)
+			}
+		case diagnose.CannotReachDesign:
+			if _, ok := idx[f.Branch]; !ok {
+				add(f.Branch, "it cannot reach its target even with its valve fully open at the present pump: find what restricts it, or the pump must rise (step 3)")
+			}
+		case diagnose.ValveStuck:
+			fx := add(f.Branch, "free or replace the balancing valve: its flow did not change when its setting was changed")
+			fx.ReadAfter = "move the valve and read the flow again: it must change"
+		case diagnose.ValveMisSet:
+			i := j.branchIndex(f.Branch)
+			what := "the valve does not sit where its handwheel says"
+			if j.Cal != nil && i >= 0 {
+				vf := j.Cal.Branches[i].Valve
+				if len(vf.Recorded) > 0 && len(vf.Implied) > 0 && finite(vf.Implied[0]) {
+					unit := ""
+					if mv := j.L.Model.Branches[i].ValveModel; mv != nil {
+						unit = " " + mv.Unit
+					}
+					what = fmt.Sprintf("the valve is recorded at %g%s, but the readings say it passes water as if at about %.1f%s", vf.Recorded[0], unit, vf.Implied[0], unit)
+				}
+			}
+			fx := add(f.Branch, what+": check the handwheel's indicator and memory stop, and that the valve fitted is the model on the sheet")
+			fx.ReadAfter = "the settings in step 4 assume the valve follows its table once read correctly; read its flow after setting (step 5)"
+		case diagnose.Free:
+			add(f.Branch, "it passes more water than its design allows: look for an open bypass or a terminal that differs from the schedule")
+		}
+	}
+	return out
+}
+
+// saving says what a repair saves in pump differential and power.
+func (j *job) saving(r *balance.Plan, u display) string {
+	p := j.Plan
+	s := fmt.Sprintf("pump differential %s → %s", u.diff(p.Required), u.diff(r.Required))
+	if p.Pump.HaveBefore && r.Pump.HaveBefore && p.Pump.ElectricalAfter > 0 {
+		s += fmt.Sprintf(", pump power %s → %s", power(p.Pump.ElectricalAfter), power(r.Pump.ElectricalAfter))
+	}
+	return s
+}
+
+func power(w float64) string {
+	if w >= 1000 {
+		return fmt.Sprintf("%.2f kW", w/1000)
+	}
+	return fmt.Sprintf("%.0f W", w)
+}
+
+// pumpStep is the change asked of the pump, where it is made, and what to
+// check before making it.
+func (j *job) pumpStep(u display) report.PumpStep {
+	s, plan := j.L.Site, j.Plan
+	pp := plan.Pump
+	var st report.PumpStep
+	switch s.Boundary.Kind {
+	case site.PumpCurve:
+		bq, bd := j.pumpBefore()
+		st.From = fmt.Sprintf("%s speed (%s at %s)", u.speed(j.Before.State.Speed), u.diff(bd), u.flow(bq))
+		st.To = fmt.Sprintf("%s speed (%s at %s)", u.speed(plan.Speed), u.diff(j.After.PumpDiff()), u.flow(j.After.TotalFlow()))
+		st.Where = "the pump's drive speed"
+		if finite(pp.TrimRatio) {
+			st.Where += fmt.Sprintf("; on a fixed-speed pump, trim the impeller to about %.1f %% of its diameter instead (approximate: trim in steps and re-test)", 100*pp.TrimRatio)
+		}
+		if j.After.PumpDiff() > bd*1.001 {
+			st.Warnings = append(st.Warnings, fmt.Sprintf("The pump's differential rises from %s to %s: check the pressure ratings of the pipework, valves and equipment it serves before raising it.", u.diff(bd), u.diff(j.After.PumpDiff())))
+		}
+	default:
+		st.From = fmt.Sprintf("%s at %s", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor))
+		st.To = fmt.Sprintf("%s at %s", u.diff(pp.SetPoint), sensorName(pp.Sensor))
+		st.Where = fmt.Sprintf("the differential set point of the pump's controller, its sensor at %s", sensorName(pp.Sensor))
+		st.Warnings = append(st.Warnings, fmt.Sprintf("No pump curve was given: nobody has checked that the pump can give %s at %s. Check it against the pump's own curve before relying on the plan.", u.diff(plan.Required), u.flow(plan.TotalFlow)))
+		if pp.SetPoint > j.Before.State.Differential*1.001 {
+			st.Warnings = append(st.Warnings, fmt.Sprintf("The set point rises from %s to %s: check the pressure ratings of the pipework, valves and equipment it serves before raising it.", u.diff(j.Before.State.Differential), u.diff(pp.SetPoint)))
+		}
+	}
+	if j.short() {
+		st.Warnings = append(st.Warnings, "The pump cannot give what the targets need: see the top of this report.")
+	}
+	return st
+}
+
+// settingsTable is the valve settings in adjustment order, every branch of
+// the plan (risers included), each setting with its unit and check reading.
+func settingsTable(p *balance.Plan, u display, title string) report.Table {
+	t := report.Table{Title: title, Columns: []string{"#", "Branch", "Valve", "Now", "Set to", "Check: valve Δp (" + u.DiffUnit + ")", "Flow (" + u.FlowUnit + ")"}}
+	for k, b := range p.Branches {
+		now, set, check := "", "no valve", ""
+		if b.Valve != "" {
+			now, set = withUnit(b.Current, b.Unit), withUnit(b.New, b.Unit)
+			if b.OnIndex {
+				set += " (fully open)"
+			}
+			check = u.diffNum(b.ValveDiff)
+		}
+		t.Rows = append(t.Rows, []string{fmt.Sprint(k + 1), b.ID, b.Valve, now, set, check, u.flowNum(b.Target)})
+	}
+	return t
+}
+
+// settingsDiffer reports whether two plans set any valve differently.
+func settingsDiffer(a, b *balance.Plan) bool {
+	if len(a.Branches) != len(b.Branches) {
+		return true
+	}
+	for k := range a.Branches {
+		x, y := a.Branches[k].New, b.Branches[k].New
+		if finite(x) != finite(y) || (finite(x) && x != y) {
+			return true
+		}
+	}
+	return false
+}
+
+// withUnit prints a valve setting with its unit and the decimals the unit
+// needs: "3.8 turns", "54 %", "12 steps".
+func withUnit(v float64, unit string) string {
+	if !finite(v) {
+		return ""
+	}
+	switch unit {
+	case "%":
+		return fmt.Sprintf("%.0f %%", v)
+	case "steps":
+		if v == math.Trunc(v) {
+			return fmt.Sprintf("%.0f steps", v)
+		}
+		return fmt.Sprintf("%.1f steps", v)
+	case "":
+		return fmt.Sprintf("%.2f", v)
+	}
+	return fmt.Sprintf("%.2f %s", v, unit)
+}
+
+// proveTable lists the branches to read after setting: the index, those
+// whose predicted band leaves the tolerance or that the plan leaves
+// outside it, and those the survey did not read or pin down.
+func (j *job) proveTable(u display) report.Table {
+	t := report.Table{Title: "Prove it", Columns: []string{"Branch", "Why read it", "Expect (" + u.FlowUnit + ")", "95 % band (" + u.FlowUnit + ")", "Tolerance (" + u.FlowUnit + ")"},
+		WriteIn: []string{"Read", "Initials"}}
+	read := map[string]bool{}
+	for _, r := range j.L.Site.Readings {
+		if r.What.IsFlow() || r.What == site.BranchDiff || r.What == site.ValveDiff {
+			read[r.Where] = true
+		}
+	}
+	undet := map[string]bool{}
+	for _, f := range j.Findings {
+		if f.Code == diagnose.Undetermined {
+			undet[f.Branch] = true
+		}
+	}
+	p := j.Plan
+	for _, b := range p.Branches {
+		var why []string
+		if b.ID == p.Index {
+			why = append(why, "index circuit: proves the pump is high enough")
+		}
+		if !b.InTolerance {
+			why = append(why, "predicted outside the tolerance")
+		} else if p.Banded && !b.BandInTolerance {
+			why = append(why, "its band leaves the tolerance")
+		}
+		if !b.Riser && !read[b.ID] && !j.Plan.DesignOnly {
+			why = append(why, "not read in the survey")
+		} else if undet[b.ID] {
+			why = append(why, "the survey did not pin it down")
+		}
+		if j.Plan.DesignOnly && !b.Riser {
+			why = append(why, "plan from design data")
+		}
+		if len(why) == 0 {
+			continue
+		}
+		lo, hi := b.BandLow/100*b.Target, b.BandHigh/100*b.Target
+		tlo, thi := (1+p.ToleranceLow)*b.Target, (1+p.ToleranceHigh)*b.Target
+		t.Rows = append(t.Rows, []string{b.ID, strings.Join(why, "; "), u.flowNum(b.Predicted),
+			u.flowNum(lo) + " to " + u.flowNum(hi), u.flowNum(tlo) + " to " + u.flowNum(thi)})
+	}
+	if len(t.Rows) == 0 {
+		t.Notes = []string{"No branch needs a reading to prove the plan; read any you like."}
+	}
+	return t
+}
+
+// handover is the record to fill in and sign when the visit ends.
+func (j *job) handover(u display) []report.Field {
+	s := j.L.Site
+	out := []report.Field{
+		{Label: "Site", Value: s.Name},
+		{Label: "Date of visit", Value: ""},
+		{Label: "Work done by (name, company)", Value: ""},
+	}
+	var kinds []string
+	for _, r := range s.Readings {
+		if !slices.Contains(kinds, r.Instrument) {
+			kinds = append(kinds, r.Instrument)
+		}
+	}
+	if len(kinds) == 0 {
+		kinds = []string{"flow or differential meter"}
+	}
+	for _, k := range kinds {
+		out = append(out, report.Field{Label: "Instrument: " + k + " (serial, calibration date)"})
+	}
+	out = append(out,
+		report.Field{Label: "Final readings", Value: "in the “Read after” column of step 4 and in step 5"},
+		report.Field{Label: "Memory stops set and locked on every valve", Value: "yes / no"},
+		report.Field{Label: "Controls back to automatic", Value: "yes / no"},
+	)
+	st := j.pumpStep(u)
+	out = append(out, report.Field{Label: "Pump changed from → to", Value: st.From + " → " + st.To + "; as left: "})
+	var defects []string
+	for _, fx := range j.fixes(u) {
+		defects = append(defects, fx.Where)
+	}
+	for _, sh := range j.Plan.Unmet {
+		if !slices.Contains(defects, sh.ID) {
+			defects = append(defects, sh.ID)
+		}
+	}
+	val := "none found"
+	if len(defects) > 0 {
+		val = "found: " + joinIDs(defects) + " (step 2); still open after the visit: "
+	}
+	out = append(out,
+		report.Field{Label: "Outstanding defects", Value: val},
+		report.Field{Label: "Signed, technician", Value: ""},
+		report.Field{Label: "Signed, for the client", Value: ""},
+	)
+	return out
+}
+
+// maxIDs is the most identifiers listed in one sentence.
+const maxIDs = 8
+
+func joinIDs(ids []string) string {
+	if len(ids) > maxIDs {
+		return strings.Join(ids[:maxIDs], ", ") + fmt.Sprintf(" and %d more", len(ids)-maxIDs)
+	}
+	if len(ids) > 1 {
+		return strings.Join(ids[:len(ids)-1], ", ") + " and " + ids[len(ids)-1]
+	}
+	return strings.Join(ids, "")
+}
+
+func pronoun(n int) string {
+	if n == 1 {
+		return "it"
+	}
+	return "them"
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// isRemedyWarning recognises the plan's warnings that say what would let a
+// short plan meet its targets; the visit shows them with the shortfall.
+func isRemedyWarning(w string) bool {
+	return strings.Contains(w, "would meet every target") || strings.Contains(w, "restoring it would lower") ||
+		strings.Contains(w, "a valve of twice its Kv")
+}
