@@ -35,8 +35,8 @@ has errors, 2 for a wrong command line.`,
 	}
 }
 
-func runCheck(_ context.Context, ios *IO, opts *checkOptions) error {
-	l, err := loadSite(opts.Site, ios.Out)
+func runCheck(ctx context.Context, ios *IO, opts *checkOptions) error {
+	l, err := loadSite(ctx, opts.Site, ios.Out)
 	if err != nil {
 		return err
 	}

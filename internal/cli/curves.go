@@ -71,7 +71,7 @@ type displayPoint struct {
 func disp(p plant.Point) displayPoint { return displayPoint{p.Flow * 1000, p.Diff / 1000} }
 
 func runCurves(ctx context.Context, ios *IO, opts *curvesOptions) error {
-	l, err := loadSite(opts.Site, ios.Err)
+	l, err := loadSite(ctx, opts.Site, ios.Err)
 	if err != nil {
 		return err
 	}

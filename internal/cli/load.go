@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"io"
@@ -21,11 +22,14 @@ type loaded struct {
 // loadSite reads a site folder or workbook, builds its model and runs the
 // physical checks. Problems of error severity are listed on w and come back
 // as a *dataError; warnings are kept in loaded.Problems for the caller.
-func loadSite(path string, w io.Writer) (*loaded, error) {
+func loadSite(ctx context.Context, path string, w io.Writer) (*loaded, error) {
 	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
 		return nil, usagef("SITE %s: no such folder or workbook", shown(path))
 	}
-	s, probs, err := site.Load(path)
+	s, probs, err := site.Load(ctx, path)
+	if errors.Is(err, site.ErrNotSite) {
+		return nil, &usageError{err}
+	}
 	if err != nil && len(probs) == 0 {
 		return nil, sysErr(err)
 	}

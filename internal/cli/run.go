@@ -151,7 +151,7 @@ next free ./flowset-demo-N; or --out) and prints where the report is.
 			if err := o.validate(true); err != nil {
 				return err
 			}
-			return runMain(cmd.Context(), ios, o, func(_ string, w io.Writer) (*loaded, error) { return loadEmbedded(name, w) })
+			return runMain(cmd.Context(), ios, o, func(_ context.Context, _ string, w io.Writer) (*loaded, error) { return loadEmbedded(name, w) })
 		},
 	}
 	addJobFlags(cmd, o, true)
@@ -173,7 +173,7 @@ func freshDir(base string) string {
 }
 
 // loader reads a site, listing its problems on w.
-type loader func(path string, w io.Writer) (*loaded, error)
+type loader func(ctx context.Context, path string, w io.Writer) (*loaded, error)
 
 // loadEmbedded reads a built-in site.
 func loadEmbedded(name string, w io.Writer) (*loaded, error) {
@@ -204,7 +204,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		defer func() { claim.finish(err == nil) }()
 	}
 	pr.step("reading %s", shown(o.Site))
-	l, err := load(o.Site, ios.Err)
+	l, err := load(ctx, o.Site, ios.Err)
 	if err != nil {
 		return err
 	}

@@ -1,5 +1,7 @@
 package site
 
+import "strings"
+
 // badCase changes files of the base site and lists every problem expected,
 // in order, with the cause of the first.
 type badCase struct {
@@ -24,7 +26,31 @@ var badCases = []badCase{
 	{name: "quoted cells", files: map[string]string{"branches.csv": "\"id\",\"design flow [l/s]\",pipe bore [mm],pipe length [m],note\n\"A\",\"0.5\",21.6,10,\"east, \"\"low\"\" end\"\nB,0.4,21.6,12,\n"}},
 	{name: "trailing empty column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],\nA,0.5,21.6,10,\nB,0.4,21.6,12,\n"}},
 
+	{name: "lone CR line ends", files: map[string]string{"branches.csv": strings.ReplaceAll(base["branches.csv"], "\n", "\r")}},
+	{name: "sep= line naming semicolons", files: map[string]string{"branches.csv": "sep=;\nid;design flow [l/s];pipe bore [mm];pipe length [m]\nA;0,5;21.6;10\nB;0.4;21.6;12\n"}},
+	{name: "sep= line naming commas after a byte order mark", files: map[string]string{"branches.csv": "\ufeffsep=,\r\n" + base["branches.csv"]}},
+
 	// Encoding and file shape.
+	{name: "sep= line naming another separator", files: map[string]string{"branches.csv": "sep=|\nid|design flow [l/s]\nA|0.5\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:1: sep= line names the separator "|", which flowset does not read (want "sep=," "sep=;" or a tab after "sep=", or no sep= line)`,
+		}},
+	{name: "lone CR line ends with an error on line 3", files: map[string]string{"branches.csv": strings.ReplaceAll(brHead+"A,,0.5,21.6,10,V15,2\nB,,lots,21.6,12,V15,3\n", "\n", "\r")},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:3:3: field "design flow": value "lots": not a number (want a number such as 1.5)`,
+		}},
+	{name: "line too long", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3," + strings.Repeat("x", MaxLineBytes) + "\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:3: line is longer than 1024 KiB (want lines of at most 1 MiB: one row of the sheet per line)",
+		}},
+	{name: "cell too long", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],note\nA,0.5,21.6,10,ok\nB,0.4,21.6,12," + strings.Repeat("y", MaxCellBytes+1) + "\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:3:5: cell is longer than 32767 characters (want a shorter cell)",
+		}},
 	{name: "utf-16", files: map[string]string{"branches.csv": "\xff\xfei\x00d\x00"},
 		cause: ErrSyntax,
 		want: []string{

@@ -5,7 +5,10 @@ import (
 	"errors"
 	"fmt"
 	"slices"
+	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf8"
 )
 
 // The causes an Error wraps; test with errors.Is.
@@ -61,7 +64,7 @@ const maxValueShown = 60
 // leaving out the parts that are empty.
 func (e *Error) Error() string {
 	var b strings.Builder
-	b.WriteString(e.File)
+	b.WriteString(printable(e.File))
 	if e.Line > 0 {
 		fmt.Fprintf(&b, ":%d", e.Line)
 		if e.Column > 0 {
@@ -160,4 +163,40 @@ func (p Problems) sort() {
 	slices.SortStableFunc(p, func(a, b *Error) int {
 		return cmp.Or(cmp.Compare(a.File, b.File), cmp.Compare(a.Line, b.Line), cmp.Compare(a.Column, b.Column))
 	})
+}
+
+// unsafeRune reports whether r must not reach a terminal or an output as
+// itself: a control character (it can move the cursor, recolour a terminal
+// or start a forged line), an invisible formatting or direction-changing
+// character (it can make text look other than it is; Unicode Technical
+// Report #36, "Unicode Security Considerations"), or a line or paragraph
+// separator.
+func unsafeRune(r rune) bool {
+	return unicode.IsControl(r) || unicode.Is(unicode.Cf, r) || r == '\u2028' || r == '\u2029' || r == utf8.RuneError
+}
+
+// printable returns s with each unsafe rune (see unsafeRune) written as a
+// Go escape (\n, \x1b, \u202e), so that a file path or name shows on one
+// line what it really holds.
+func printable(s string) string {
+	if strings.IndexFunc(s, unsafeRune) < 0 {
+		return s
+	}
+	var b strings.Builder
+	for i, w := 0, 0; i < len(s); i += w {
+		r, n := utf8.DecodeRuneInString(s[i:])
+		w = n
+		switch {
+		case r == utf8.RuneError && n == 1:
+			fmt.Fprintf(&b, `\x%02x`, s[i])
+		case !unsafeRune(r):
+			b.WriteRune(r)
+		case r < 0x80:
+			q := strconv.QuoteRune(r)
+			b.WriteString(q[1 : len(q)-1])
+		default:
+			fmt.Fprintf(&b, `\u%04x`, r)
+		}
+	}
+	return b.String()
 }

@@ -1,8 +1,10 @@
 package site
 
 import (
+	"context"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"math"
 	"os"
@@ -22,26 +24,60 @@ import (
 // non-nil, and the Site nil, when the folder cannot be read or any problem
 // is an error; it is then either an I/O error or Problems.Err().
 func ReadDir(fsys fs.FS, dir string) (*Site, Problems, error) {
+	return ReadDirContext(context.Background(), fsys, dir)
+}
+
+// ReadDirContext is ReadDir that stops, returning ctx's error, once ctx is
+// done.
+func ReadDirContext(ctx context.Context, fsys fs.FS, dir string) (*Site, Problems, error) {
 	name := path.Base(dir)
 	if name == "." || name == "/" {
 		name = "site"
 	}
-	return readDir(fsys, dir, func(f string) string { return path.Join(dir, f) }, Source{Path: dir, Format: "csv"}, name)
+	return readDir(ctx, fsys, dir, func(f string) string { return path.Join(dir, f) }, Source{Path: dir, Format: "csv"}, name)
 }
 
-func readDir(fsys fs.FS, dir string, label func(string) string, src Source, name string) (*Site, Problems, error) {
+// Limits on what a site may hold, so that a hostile or mistaken file cannot
+// exhaust memory or time: each is far above what a survey needs (a site of
+// 10,000 branches with a million readings fits), and each refusal names
+// the file and the limit.
+const (
+	MaxSheetBytes    = 64 << 20 // one CSV sheet
+	MaxLineBytes     = 1 << 20  // one line of a CSV sheet
+	MaxCellBytes     = 32767    // one cell (a spreadsheet's own limit, in characters)
+	MaxWorkbookBytes = 64 << 20 // an .xlsx workbook as stored
+	MaxPartBytes     = 64 << 20 // one part of a workbook, unpacked
+	MaxUnpackedBytes = 96 << 20 // all parts of a workbook, unpacked
+	maxParts         = 4096     // parts in a workbook
+)
+
+// ErrNotSite is wrapped by Load's error when the path is neither a folder
+// nor a workbook file.
+var ErrNotSite = errors.New("want a folder of CSV sheets or an .xlsx workbook")
+
+func mib(n int) string { return fmt.Sprintf("%d MiB", n>>20) }
+
+func readDir(ctx context.Context, fsys fs.FS, dir string, label func(string) string, src Source, name string) (*Site, Problems, error) {
 	entries, err := fs.ReadDir(fsys, dir)
 	if err != nil {
 		return nil, nil, fmt.Errorf("read site folder %s: %w", src.Path, err)
 	}
-	files := map[string]string{} // lower-case name -> name
-	for _, e := range entries {
-		if !e.IsDir() && strings.EqualFold(path.Ext(e.Name()), ".csv") {
-			files[strings.ToLower(e.Name())] = e.Name()
-		}
-	}
 	in := input{tables: map[string]*table{}, present: map[string]bool{}, src: src, name: name,
 		label: func(sheet string) string { return label(sheet + ".csv") }}
+	files := map[string]string{} // lower-case name -> name
+	for _, e := range entries {
+		if !strings.EqualFold(path.Ext(e.Name()), ".csv") {
+			continue
+		}
+		if e.IsDir() {
+			if isSheetName(e.Name()) {
+				in.probs.add(&Error{File: label(e.Name()), Err: ErrSyntax, Msg: "is a folder, not a sheet", Want: "a CSV file"})
+				in.present[strings.ToLower(strings.TrimSuffix(e.Name(), path.Ext(e.Name())))] = true
+			}
+			continue
+		}
+		files[strings.ToLower(e.Name())] = e.Name()
+	}
 	var known []string
 	for _, sc := range sheets {
 		known = append(known, sc.name+".csv")
@@ -50,13 +86,23 @@ func readDir(fsys fs.FS, dir string, label func(string) string, src Source, name
 			continue
 		}
 		delete(files, sc.name+".csv")
-		data, err := fs.ReadFile(fsys, path.Join(dir, actual))
-		if err != nil {
-			return nil, nil, fmt.Errorf("read %s: %w", label(actual), err)
+		if err := ctx.Err(); err != nil {
+			return nil, nil, err
 		}
-		t, p := decodeCSV(label(actual), data)
-		in.probs = append(in.probs, p...)
 		in.present[sc.name] = true
+		data, prob, err := readSheet(fsys, path.Join(dir, actual), label(actual))
+		if err != nil {
+			return nil, nil, err
+		}
+		if prob != nil {
+			in.probs.add(prob)
+			continue
+		}
+		t, p, err := decodeCSV(ctx, label(actual), data)
+		if err != nil {
+			return nil, nil, err
+		}
+		in.probs = append(in.probs, p...)
 		in.tables[sc.name] = t
 	}
 	for _, lower := range sortedKeys(files) {
@@ -67,13 +113,78 @@ func readDir(fsys fs.FS, dir string, label func(string) string, src Source, name
 		}
 		in.probs.add(&Error{File: label(f), Severity: SeverityWarning, Err: ErrUnknown, Msg: "unknown sheet, ignored", Want: want})
 	}
-	return in.finish()
+	return in.finish(ctx)
+}
+
+// isSheetName reports whether file is one of the sheets' CSV names.
+func isSheetName(file string) bool {
+	for _, sc := range sheets {
+		if strings.EqualFold(file, sc.name+".csv") {
+			return true
+		}
+	}
+	return false
+}
+
+// readSheet reads one CSV sheet, refusing (as a problem) anything but a
+// regular file of at most MaxSheetBytes: a pipe would block for ever and
+// a device read without end. The error is for an I/O failure.
+func readSheet(fsys fs.FS, name, label string) ([]byte, *Error, error) {
+	notFile := func(fi fs.FileInfo) *Error {
+		what := "not a regular file"
+		switch m := fi.Mode(); {
+		case m.IsDir():
+			what = "a folder"
+		case m&fs.ModeNamedPipe != 0:
+			what = "a named pipe"
+		case m&fs.ModeSocket != 0:
+			what = "a socket"
+		case m&fs.ModeDevice != 0:
+			what = "a device"
+		}
+		return &Error{File: label, Err: ErrSyntax, Msg: "is " + what + ", not a sheet, so it is not read", Want: "a CSV file"}
+	}
+	tooBig := &Error{File: label, Err: ErrRange, Msg: "file is larger than " + mib(MaxSheetBytes),
+		Want: "a sheet of at most " + mib(MaxSheetBytes) + "; split the survey into several sites"}
+	fi, err := fs.Stat(fsys, name)
+	if err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			// A symbolic link to nothing.
+			return nil, &Error{File: label, Err: ErrMissing, Msg: "cannot be opened: it is a link to nothing", Want: "a CSV file"}, nil
+		}
+		return nil, nil, fmt.Errorf("read %s: %w", label, err)
+	}
+	if !fi.Mode().IsRegular() {
+		return nil, notFile(fi), nil
+	}
+	if fi.Size() > MaxSheetBytes {
+		return nil, tooBig, nil
+	}
+	f, err := fsys.Open(name)
+	if err != nil {
+		return nil, nil, fmt.Errorf("read %s: %w", label, err)
+	}
+	defer f.Close()
+	if fi, err := f.Stat(); err != nil {
+		return nil, nil, fmt.Errorf("read %s: %w", label, err)
+	} else if !fi.Mode().IsRegular() {
+		return nil, notFile(fi), nil // replaced since the first look
+	}
+	data, err := io.ReadAll(io.LimitReader(f, MaxSheetBytes+1))
+	if err != nil {
+		return nil, nil, fmt.Errorf("read %s: %w", label, err)
+	}
+	if len(data) > MaxSheetBytes {
+		return nil, tooBig, nil
+	}
+	return data, nil, nil
 }
 
 // Load reads a site from path: a folder of CSV files, or an .xlsx
 // workbook. It is the only function of the package that uses the
-// operating system's files.
-func Load(p string) (*Site, Problems, error) {
+// operating system's files. It stops, returning ctx's error, once ctx is
+// done.
+func Load(ctx context.Context, p string) (*Site, Problems, error) {
 	fi, err := os.Stat(p)
 	if err != nil {
 		return nil, nil, fmt.Errorf("load site: %w", err)
@@ -83,17 +194,29 @@ func Load(p string) (*Site, Problems, error) {
 		if abs, err := filepath.Abs(p); err == nil {
 			name = filepath.Base(abs)
 		}
-		return readDir(os.DirFS(p), ".", func(f string) string { return filepath.Join(p, f) }, Source{Path: p, Format: "csv"}, name)
+		return readDir(ctx, os.DirFS(p), ".", func(f string) string { return filepath.Join(p, f) }, Source{Path: p, Format: "csv"}, printable(name))
 	}
 	if !strings.EqualFold(filepath.Ext(p), ".xlsx") {
-		return nil, nil, fmt.Errorf("load site %s: want a folder of CSV sheets or an .xlsx workbook", p)
+		return nil, nil, fmt.Errorf("load site %s: %w", printable(p), ErrNotSite)
+	}
+	if !fi.Mode().IsRegular() {
+		return nil, nil, fmt.Errorf("load site %s: not a regular file: %w", printable(p), ErrNotSite)
+	}
+	if fi.Size() > MaxWorkbookBytes {
+		probs := Problems{{File: p, Err: ErrRange, Msg: "workbook is larger than " + mib(MaxWorkbookBytes), Want: "a workbook of at most " + mib(MaxWorkbookBytes)}}
+		return nil, probs, probs.Err()
 	}
 	f, err := os.Open(p)
 	if err != nil {
 		return nil, nil, fmt.Errorf("load site: %w", err)
 	}
 	defer f.Close()
-	return ReadWorkbook(f, fi.Size(), p)
+	if fi, err = f.Stat(); err != nil {
+		return nil, nil, fmt.Errorf("load site: %w", err)
+	} else if !fi.Mode().IsRegular() || fi.Size() > MaxWorkbookBytes {
+		return nil, nil, fmt.Errorf("load site %s: changed while being read", p)
+	}
+	return ReadWorkbookContext(ctx, f, fi.Size(), p)
 }
 
 // input is the sheets of a site as tables, whatever they were read from.
@@ -106,8 +229,14 @@ type input struct {
 	probs   Problems
 }
 
-func (in *input) finish() (*Site, Problems, error) {
-	s := in.build()
+func (in *input) finish(ctx context.Context) (*Site, Problems, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, nil, err
+	}
+	s := in.build(ctx)
+	if err := ctx.Err(); err != nil {
+		return nil, nil, err
+	}
 	probs := in.probs
 	probs.sort()
 	if err := probs.Err(); err != nil {
@@ -117,7 +246,7 @@ func (in *input) finish() (*Site, Problems, error) {
 }
 
 // build turns the tables into a Site and checks references between sheets.
-func (in *input) build() *Site {
+func (in *input) build(ctx context.Context) *Site {
 	s := &Site{
 		Name:            in.name,
 		Fluid:           defaultFluid,
@@ -156,14 +285,26 @@ func (in *input) build() *Site {
 		s.Branches, brRefs = readBranches(t, p)
 		checkBranches(s, brRefs, valves, p)
 	}
+	if ctx.Err() != nil {
+		return s // finish returns ctx's error
+	}
 	if t := in.tables[pumpColumns.name]; t != nil {
 		s.Pump = readPump(t, p)
+	}
+	if ctx.Err() != nil {
+		return s // finish returns ctx's error
 	}
 	if t := in.tables[readingColumns.name]; t != nil {
 		s.Readings = readReadings(t, s, len(s.Branches) > 0, valves, p)
 	}
+	if ctx.Err() != nil {
+		return s // finish returns ctx's error
+	}
 	if t := in.tables[targetColumns.name]; t != nil {
 		s.Targets = readTargets(t, s, len(s.Branches) > 0, p)
+	}
+	if ctx.Err() != nil {
+		return s // finish returns ctx's error
 	}
 	checkSite(s, keys, in, brRefs)
 	return s
@@ -996,30 +1137,72 @@ func mustNum(sr *sheetReader, r row, name string) float64 {
 // checkAgreement warns about readings of the same quantity at the same
 // place, state and setting that differ by more than three combined
 // standard uncertainties: one of them is likely mis-typed or mis-read.
+//
+// Each reading is compared with every earlier reading of its group while
+// the group is small (up to agreeAll), which is every survey anyone takes;
+// beyond that, with the earlier readings of lowest and highest value and
+// of smallest uncertainty only, which keeps the check linear in the number
+// of readings (a million readings of one flow would otherwise take hours)
+// and still catches a reading that stands apart from the rest.
 func checkAgreement(rs []Reading, p *Problems) {
 	type key struct {
 		state, where string
 		what         Quantity
 		setting      float64
 	}
-	groups := map[key][]int{}
+	// group is the earlier readings of one key: all of them while few,
+	// and the three that stand for the rest.
+	type group struct {
+		all             []int
+		many            bool
+		lo, hi, precise int
+	}
+	const agreeAll = 16
+	groups := map[key]*group{}
 	for i, r := range rs {
 		k := key{r.State, r.Where, r.What, r.Setting}
 		if math.IsNaN(r.Setting) {
 			k.setting = -1 // NaN keys never match; no setting is -1 here
 		}
-		for _, j := range groups[k] {
-			o := rs[j]
-			if math.Abs(r.Value-o.Value) > 3*math.Hypot(r.Sigma, o.Sigma) {
-				u := displayUnit(r.What)
-				p.add(&Error{File: r.Pos.File, Line: r.Pos.Line, Field: "value", Value: units.Format(r.Value, u, -1),
-					Severity: SeverityWarning, Err: ErrRange,
-					Msg:  fmt.Sprintf("disagrees with line %d (%s) by more than 3 standard uncertainties", o.Pos.Line, units.Format(o.Value, u, -1)),
-					Want: "readings of one quantity in one state that agree within their uncertainties"})
-				break
+		g := groups[k]
+		if g == nil {
+			g = &group{lo: i, hi: i, precise: i}
+			groups[k] = g
+		} else {
+			cand := g.all
+			if g.many {
+				cand = []int{g.lo, g.hi, g.precise}
+				slices.Sort(cand)
+				cand = slices.Compact(cand)
+			}
+			for _, j := range cand {
+				o := rs[j]
+				if math.Abs(r.Value-o.Value) > 3*math.Hypot(r.Sigma, o.Sigma) {
+					u := displayUnit(r.What)
+					p.add(&Error{File: r.Pos.File, Line: r.Pos.Line, Field: "value", Value: units.Format(r.Value, u, -1),
+						Severity: SeverityWarning, Err: ErrRange,
+						Msg:  fmt.Sprintf("disagrees with line %d (%s) by more than 3 standard uncertainties", o.Pos.Line, units.Format(o.Value, u, -1)),
+						Want: "readings of one quantity in one state that agree within their uncertainties"})
+					break
+				}
 			}
 		}
-		groups[k] = append(groups[k], i)
+		if r.Value < rs[g.lo].Value {
+			g.lo = i
+		}
+		if r.Value > rs[g.hi].Value {
+			g.hi = i
+		}
+		if r.Sigma < rs[g.precise].Sigma {
+			g.precise = i
+		}
+		switch {
+		case g.many:
+		case len(g.all) < agreeAll:
+			g.all = append(g.all, i)
+		default:
+			g.many, g.all = true, nil // the three stand for them from now on
+		}
 	}
 }
 

@@ -2,6 +2,7 @@ package site
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
 	"errors"
 	"flag"
@@ -505,7 +506,7 @@ func TestLoad(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, p := range []string{filepath.Join(dir, "annex"), book} {
-		got, probs, err := Load(p)
+		got, probs, err := Load(context.Background(), p)
 		if err != nil || len(probs) > 0 {
 			t.Fatalf("Load(%s): %v\n%v", p, err, probs)
 		}
@@ -516,15 +517,15 @@ func TestLoad(t *testing.T) {
 			t.Errorf("Load(%s): source %q", p, got.Source.Path)
 		}
 	}
-	if _, _, err := Load(filepath.Join(dir, "annex", "branches.csv")); err == nil || !strings.Contains(err.Error(), "want a folder of CSV sheets or an .xlsx workbook") {
+	if _, _, err := Load(context.Background(), filepath.Join(dir, "annex", "branches.csv")); err == nil || !strings.Contains(err.Error(), "want a folder of CSV sheets or an .xlsx workbook") {
 		t.Errorf("Load(a .csv file) error = %v", err)
 	}
-	if _, _, err := Load(filepath.Join(dir, "nowhere")); !errors.Is(err, os.ErrNotExist) {
+	if _, _, err := Load(context.Background(), filepath.Join(dir, "nowhere")); !errors.Is(err, os.ErrNotExist) {
 		t.Errorf("Load(missing) error = %v, want not-exist", err)
 	}
 	// A site name defaults to the folder's.
 	os.WriteFile(filepath.Join(dir, "annex", "site.csv"), []byte("fluid,propylene-glycol\nglycol [%],30\nboundary,constant-differential\nset point [kPa],60\nsensor,R2\n"), 0o644)
-	got, _, err := Load(filepath.Join(dir, "annex"))
+	got, _, err := Load(context.Background(), filepath.Join(dir, "annex"))
 	if err != nil || got.Name != "annex" {
 		t.Errorf("Load: name %q, err %v; want the folder name", got.Name, err)
 	}

@@ -2,8 +2,10 @@ package site
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
 	"errors"
+	"fmt"
 	"io"
 	"math"
 	"strconv"
@@ -71,17 +73,36 @@ const wantUTF8 = "UTF-8 text: save the sheet as CSV UTF-8"
 
 // decodeCSV reads a CSV file into a table. It accepts a UTF-8 byte order
 // mark, comma, semicolon or tab separators (whichever the header line uses
-// most) and, when the separator is not a comma, decimal commas. Rows whose
-// first cell starts with # and rows with nothing in them are skipped.
-func decodeCSV(file string, data []byte) (*table, Problems) {
-	fail := func(line int, err error, msg, want string) (*table, Problems) {
-		return nil, Problems{{File: file, Line: line, Err: err, Msg: msg, Want: want}}
+// most, or the one a spreadsheet's "sep=" first line names) and, when the
+// separator is not a comma, decimal commas. Lines may end in LF, CRLF or a
+// lone CR (old Mac files). Rows whose first cell starts with # and rows
+// with nothing in them are skipped. A line longer than MaxLineBytes or a
+// cell longer than MaxCellBytes is refused. The error is ctx's, once done.
+func decodeCSV(ctx context.Context, file string, data []byte) (*table, Problems, error) {
+	fail := func(line int, err error, msg, want string) (*table, Problems, error) {
+		return nil, Problems{{File: file, Line: line, Err: err, Msg: msg, Want: want}}, nil
 	}
 	if bytes.HasPrefix(data, bomUTF16LE) || bytes.HasPrefix(data, bomUTF16BE) {
 		return fail(0, ErrSyntax, "file is UTF-16 text", wantUTF8)
 	}
 	data = bytes.TrimPrefix(data, bomUTF8)
-	sep := detectSeparator(data)
+	if bytes.IndexByte(data, '\n') < 0 && bytes.IndexByte(data, '\r') >= 0 {
+		// Lines end in a lone CR: as LF, the line numbers stay right.
+		data = bytes.ReplaceAll(data, []byte("\r"), []byte("\n"))
+	}
+	if n, at := longestLine(data); n > MaxLineBytes {
+		return fail(at, ErrRange, fmt.Sprintf("line is longer than %d KiB", MaxLineBytes>>10), "lines of at most 1 MiB: one row of the sheet per line")
+	}
+	sep, given, err := sepLine(data)
+	if err != nil {
+		return fail(1, ErrSyntax, err.Error(), `"sep=," "sep=;" or a tab after "sep=", or no sep= line`)
+	}
+	if given {
+		// The line becomes a comment, so line numbers stay right.
+		data = append([]byte("#"), data[1:]...)
+	} else {
+		sep = detectSeparator(data)
+	}
 	r := csv.NewReader(bytes.NewReader(data))
 	r.Comma = sep
 	r.Comment = '#'
@@ -91,7 +112,12 @@ func decodeCSV(file string, data []byte) (*table, Problems) {
 
 	t := &table{file: file, decimalComma: sep != ','}
 	var probs Problems
-	for {
+	for n := 0; ; n++ {
+		if n%4096 == 0 {
+			if err := ctx.Err(); err != nil {
+				return nil, nil, err
+			}
+		}
 		rec, err := r.Read()
 		if errors.Is(err, io.EOF) {
 			break
@@ -105,13 +131,19 @@ func decodeCSV(file string, data []byte) (*table, Problems) {
 			}
 			probs = append(probs, &Error{File: file, Line: line, Err: ErrSyntax, Msg: "cannot split line: " + msg,
 				Want: `cells separated by one separator, with " only around a whole cell`, Cause: err})
-			return nil, probs
+			return nil, probs, nil
 		}
 		line, _ := r.FieldPos(0)
 		bad := false
 		for i, c := range rec {
+			fl, _ := r.FieldPos(i)
+			if len(c) > MaxCellBytes {
+				probs = append(probs, &Error{File: file, Line: fl, Column: i + 1, Err: ErrRange,
+					Msg: fmt.Sprintf("cell is longer than %d characters", MaxCellBytes), Want: "a shorter cell"})
+				bad = true
+				break
+			}
 			if !utf8.ValidString(c) {
-				fl, _ := r.FieldPos(i)
 				probs = append(probs, &Error{File: file, Line: fl, Column: i + 1, Err: ErrSyntax,
 					Msg: "invalid UTF-8 text", Want: wantUTF8, Value: strings.ToValidUTF8(c, "?")})
 				bad = true
@@ -120,7 +152,7 @@ func decodeCSV(file string, data []byte) (*table, Problems) {
 			rec[i] = strings.TrimSpace(c)
 		}
 		if bad {
-			return nil, probs
+			return nil, probs, nil
 		}
 		if isComment(rec) || isBlank(rec) {
 			continue
@@ -134,7 +166,39 @@ func decodeCSV(file string, data []byte) (*table, Problems) {
 	if t.header == nil {
 		return fail(0, ErrMissing, "file is empty", "a header line naming the columns")
 	}
-	return t, probs
+	return t, probs, nil
+}
+
+// longestLine returns the length of the longest line of data and its
+// number (from 1).
+func longestLine(data []byte) (n, line int) {
+	for l := 1; len(data) > 0; l++ {
+		i := bytes.IndexByte(data, '\n')
+		if i < 0 {
+			i = len(data)
+		}
+		if i > n {
+			n, line = i, l
+		}
+		data = data[min(i+1, len(data)):]
+	}
+	return n, line
+}
+
+// sepLine reads a spreadsheet's "sep=X" first line, which names the
+// separator: given is false when there is none.
+func sepLine(data []byte) (sep rune, given bool, err error) {
+	first, _, _ := bytes.Cut(data, []byte("\n"))
+	first = bytes.TrimSuffix(first, []byte("\r"))
+	if len(first) < 4 || !strings.EqualFold(string(first[:4]), "sep=") {
+		return 0, false, nil
+	}
+	switch v := string(first[4:]); v {
+	case ",", ";", "\t":
+		return rune(v[0]), true, nil
+	default:
+		return 0, false, fmt.Errorf("sep= line names the separator %q, which flowset does not read", v)
+	}
 }
 
 // detectSeparator picks the separator the first non-comment line uses most,

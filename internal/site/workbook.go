@@ -1,6 +1,8 @@
 package site
 
 import (
+	"archive/zip"
+	"context"
 	"fmt"
 	"io"
 	"math"
@@ -15,6 +17,15 @@ import (
 // valves, pump, readings, targets; any case). name is used in messages,
 // which read "name[tab]:row:column: ...". Results are as for ReadDir.
 func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Problems, err error) {
+	return ReadWorkbookContext(context.Background(), r, size, name)
+}
+
+// ReadWorkbookContext is ReadWorkbook that stops, returning ctx's error,
+// once ctx is done. A workbook is a zip archive; its parts are checked
+// against MaxPartBytes and MaxUnpackedBytes from the archive's directory
+// before anything is unpacked (the zip reader refuses a part that unpacks
+// to more than its directory says).
+func ReadWorkbookContext(ctx context.Context, r io.ReaderAt, size int64, name string) (s *Site, probs Problems, err error) {
 	defer func() {
 		// The workbook library is not hardened against every malformed
 		// file; a panic there must not cross this package's boundary.
@@ -23,7 +34,18 @@ func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Proble
 			s, err = nil, probs.Err()
 		}
 	}()
-	f, ferr := excelize.OpenReader(io.NewSectionReader(r, 0, size))
+	if size > MaxWorkbookBytes {
+		probs = Problems{{File: name, Err: ErrRange, Msg: "workbook is larger than " + mib(MaxWorkbookBytes), Want: "a workbook of at most " + mib(MaxWorkbookBytes)}}
+		return nil, probs, probs.Err()
+	}
+	if p := checkParts(r, size, name); p != nil {
+		probs = Problems{p}
+		return nil, probs, probs.Err()
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, nil, err
+	}
+	f, ferr := excelize.OpenReader(io.NewSectionReader(r, 0, size), excelize.Options{UnzipSizeLimit: MaxUnpackedBytes, UnzipXMLSizeLimit: MaxPartBytes})
 	if ferr != nil {
 		probs = Problems{{File: name, Err: ErrSyntax, Msg: "not a readable .xlsx workbook", Want: "a workbook saved as .xlsx", Cause: ferr}}
 		return nil, probs, probs.Err()
@@ -48,6 +70,9 @@ func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Proble
 			continue
 		}
 		delete(tabs, sc.name)
+		if err := ctx.Err(); err != nil {
+			return nil, nil, err
+		}
 		t, p, terr := readTab(f, tab, name+"["+tab+"]")
 		if terr != nil {
 			return nil, nil, fmt.Errorf("read workbook %s: %w", name, terr)
@@ -64,7 +89,33 @@ func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Proble
 		}
 		in.probs.add(&Error{File: name + "[" + tab + "]", Severity: SeverityWarning, Err: ErrUnknown, Msg: "unknown sheet, ignored", Want: want})
 	}
-	return in.finish()
+	return in.finish(ctx)
+}
+
+// checkParts refuses a workbook whose parts unpack to more than the limits,
+// or that is not a zip archive at all, from the archive's directory alone.
+func checkParts(r io.ReaderAt, size int64, name string) *Error {
+	zr, err := zip.NewReader(r, size)
+	if err != nil {
+		return &Error{File: name, Err: ErrSyntax, Msg: "not a readable .xlsx workbook", Want: "a workbook saved as .xlsx", Cause: err}
+	}
+	if len(zr.File) > maxParts {
+		return &Error{File: name, Err: ErrRange, Msg: fmt.Sprintf("workbook has %d parts", len(zr.File)), Want: fmt.Sprintf("a workbook of at most %d parts", maxParts)}
+	}
+	var total uint64
+	for _, zf := range zr.File {
+		if zf.UncompressedSize64 > MaxPartBytes {
+			return &Error{File: name + "[" + printable(zf.Name) + "]", Err: ErrRange,
+				Msg:  fmt.Sprintf("workbook part unpacks to %d MiB", zf.UncompressedSize64>>20),
+				Want: "parts of at most " + mib(MaxPartBytes) + " unpacked"}
+		}
+		total += zf.UncompressedSize64
+		if total > MaxUnpackedBytes {
+			return &Error{File: name, Err: ErrRange, Msg: "workbook unpacks to more than " + mib(MaxUnpackedBytes),
+				Want: "a workbook of at most " + mib(MaxUnpackedBytes) + " unpacked"}
+		}
+	}
+	return nil
 }
 
 // readTab reads one tab into a table. A cell's shown text is used for text
