@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"unicode/utf16"
 
 	"github.com/xuri/excelize/v2"
 
@@ -84,7 +85,13 @@ func writeWorkbook(w io.Writer, header []string, rows [][]string, about []string
 		if x, err := strconv.ParseFloat(v, 64); err == nil && !math.IsNaN(x) && !math.IsInf(x, 0) {
 			return f.SetCellValue(sh, ref, x)
 		}
-		return f.SetCellStr(sh, ref, cell(v))
+		text := cell(v)
+		// The workbook library cuts a longer text short without a word;
+		// the site's limits keep every cell below it, so this is a bug.
+		if n := len(utf16.Encode([]rune(text))); n > excelize.TotalCellChars {
+			return fmt.Errorf("%s %s: text of %d characters does not fit a workbook cell", sh, ref, n)
+		}
+		return f.SetCellStr(sh, ref, text)
 	}
 	for c, h := range header {
 		if err := put(sheet, c+1, 1, h); err != nil {

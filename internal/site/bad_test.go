@@ -49,7 +49,7 @@ var badCases = []badCase{
 	{name: "cell too long", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],note\nA,0.5,21.6,10,ok\nB,0.4,21.6,12," + strings.Repeat("y", MaxCellBytes+1) + "\n"},
 		cause: ErrRange,
 		want: []string{
-			"branches.csv:3:5: cell is longer than 32767 characters (want a shorter cell)",
+			"branches.csv:3:5: cell is longer than 32000 characters (want a shorter cell)",
 		}},
 	{name: "utf-16", files: map[string]string{"branches.csv": "\xff\xfei\x00d\x00"},
 		cause: ErrSyntax,
@@ -90,6 +90,45 @@ var badCases = []badCase{
 		cause: ErrMissing,
 		want: []string{
 			"branches.csv:1: no branches listed (want one row per branch below the header)",
+		}},
+
+	// Names that look alike but differ, or look other than they are.
+	{name: "id with a right-to-left override", files: map[string]string{"branches.csv": brHead + "A\u202e1-UHA,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:2:1: field "id": value "A\u202e1-UHA": holds the invisible character U+202E (right-to-left override) at character 2 (want visible characters only: retype the text)`,
+			`readings.csv:2:2: field "where": value "A": no branch has this id (want a branch id from the branches sheet, pump or header)`,
+		}},
+	{name: "id with a zero width space", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB\u200b,,0.4,21.6,12,V15,3\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:3:1: field "id": value "B\u200b": holds the invisible character U+200B (zero width space) at character 2 (want visible characters only: retype the text)`,
+			`readings.csv:3:2: field "where": value "B": no branch has this id (want a branch id from the branches sheet, pump or header)`,
+		}},
+	{name: "reading place with a direction isolate", files: map[string]string{"readings.csv": rdHead + "as-found,\u2066A,flow,0.45,l/s,clamp-on\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`readings.csv:2:2: field "where": value "\u2066A": holds the invisible character U+2066 (left-to-right isolate) at character 1 (want visible characters only: retype the text)`,
+		}},
+	{name: "id too long", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\n" + strings.Repeat("C", MaxNameChars+1) + ",,0.4,21.6,12,V15,3\n"},
+		cause: ErrRange,
+		want: []string{
+			`branches.csv:4:1: field "id": value "` + strings.Repeat("C", 60) + `...": name is 257 characters long (want a name of at most 256 characters)`,
+		}},
+	{name: "ids differing only in case", files: map[string]string{"branches.csv": brHead + "ahu-1,,0.5,21.6,10,V15,2\nAHU-1,,0.4,21.6,12,V15,3\nA,,0.4,21.6,12,V15,3\nB,,0.4,21.6,12,V15,3\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			`branches.csv:3:1: field "id": value "AHU-1": branch id differs from "ahu-1" on line 2 only in letter case (want names that differ in more than letter case)`,
+		}},
+	{name: "ids differing only in Unicode form", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V15,2\nB,,0.4,21.6,12,V15,3\nCAF\u00c9,,0.4,21.6,12,V15,3\nCAFE\u0301,,0.4,21.6,12,V15,3\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			`branches.csv:5:1: field "id": value "CAFÉ": branch id "CAFE\u0301" looks the same as "CAF\u00c9" on line 4 but is written with other characters (want names that differ visibly; retype one of them)`,
+		}},
+	{name: "valve models differing only in case", files: map[string]string{"valves.csv": base["valves.csv"] + "v15,5,2.5\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			`valves.csv:7:1: field "model": value "v15": valve model differs from "V15" on line 2 only in letter case (want names that differ in more than letter case)`,
 		}},
 
 	// Header problems.

@@ -1,6 +1,10 @@
 package site
 
 import (
+	"golang.org/x/text/unicode/norm"
+	"unicode"
+	"unicode/utf8"
+
 	"errors"
 	"fmt"
 	"math"
@@ -221,12 +225,82 @@ func checkText(text string) *numError {
 	if hasControl(text) {
 		return &numError{ErrSyntax, "holds a line break or control character", "text on one line"}
 	}
+	if at, r, ok := invisibleAt(text); ok {
+		return &numError{ErrSyntax, fmt.Sprintf("holds the invisible character %s at character %d", runeName(r), at),
+			"visible characters only: retype the text"}
+	}
 	return nil
 }
 
+// invisibleAt returns the first invisible formatting or direction-changing
+// character of s (Unicode category Cf: zero-width spaces and joiners,
+// direction marks, embeddings, overrides and isolates, the soft hyphen;
+// and the line and paragraph separators) with its position in characters
+// from 1. Such characters make two names that look alike differ, or make a
+// name look other than it is (Unicode Technical Report #36).
+func invisibleAt(s string) (at int, r rune, ok bool) {
+	n := 0
+	for _, c := range s {
+		n++
+		if unicode.Is(unicode.Cf, c) || c == '\u2028' || c == '\u2029' {
+			return n, c, true
+		}
+	}
+	return 0, 0, false
+}
+
+// runeNames names the invisible characters most often met in pasted text.
+var runeNames = map[rune]string{
+	0x00AD: "soft hyphen", 0x061C: "Arabic letter mark", 0x180E: "Mongolian vowel separator",
+	0x200B: "zero width space", 0x200C: "zero width non-joiner", 0x200D: "zero width joiner",
+	0x200E: "left-to-right mark", 0x200F: "right-to-left mark",
+	0x2028: "line separator", 0x2029: "paragraph separator",
+	0x202A: "left-to-right embedding", 0x202B: "right-to-left embedding", 0x202C: "pop directional formatting",
+	0x202D: "left-to-right override", 0x202E: "right-to-left override",
+	0x2060: "word joiner", 0x2066: "left-to-right isolate", 0x2067: "right-to-left isolate",
+	0x2068: "first strong isolate", 0x2069: "pop directional isolate", 0xFEFF: "zero width no-break space",
+}
+
+// runeName writes r as U+XXXX with its name where known.
+func runeName(r rune) string {
+	if n, ok := runeNames[r]; ok {
+		return fmt.Sprintf("U+%04X (%s)", r, n)
+	}
+	return fmt.Sprintf("U+%04X (a formatting character)", r)
+}
+
+// idKey is the form in which names are compared for duplicates: two ids
+// that differ only in letter case, or only in Unicode normalisation (an
+// accented letter typed as one character or as a letter and a combining
+// accent; a ligature or a full-width letter against plain letters; NFKC,
+// Unicode Standard Annex #15), look the same to the people on site and
+// are refused as the same id.
+func idKey(s string) string { return strings.ToLower(strings.ToUpper(norm.NFKC.String(s))) }
+
+// sameIDMsg says how what, named id, clashes with prev given on line: in
+// letter case, or in characters that look alike (both then spelt out in
+// ASCII, since on screen they look the same).
+func sameIDMsg(what, id, prev string, line int) (msg, want string) {
+	if strings.EqualFold(id, prev) {
+		return fmt.Sprintf("%s differs from %q on line %d only in letter case", what, prev, line),
+			"names that differ in more than letter case"
+	}
+	return fmt.Sprintf("%s %+q looks the same as %+q on line %d but is written with other characters", what, id, prev, line),
+		"names that differ visibly; retype one of them"
+}
+
+// MaxNameChars bounds a name a row starts with (a branch id, a valve
+// model, a key): every output then holds it whole, in a workbook cell and
+// in every message that quotes it.
+const MaxNameChars = 256
+
 // checkName is checkText for the name a row starts with when written
-// back: it may not start with #, which would make the row a comment.
+// back: it may not start with #, which would make the row a comment, and
+// it may not be longer than MaxNameChars.
 func checkName(text string) *numError {
+	if n := utf8.RuneCountInString(text); n > MaxNameChars {
+		return &numError{ErrRange, fmt.Sprintf("name is %d characters long", n), fmt.Sprintf("a name of at most %d characters", MaxNameChars)}
+	}
 	if strings.HasPrefix(text, "#") {
 		return &numError{ErrSyntax, "starts with #", "a name that does not start with #, which marks a comment"}
 	}

@@ -44,7 +44,7 @@ func ReadDirContext(ctx context.Context, fsys fs.FS, dir string) (*Site, Problem
 const (
 	MaxSheetBytes    = 64 << 20 // one CSV sheet
 	MaxLineBytes     = 1 << 20  // one line of a CSV sheet
-	MaxCellBytes     = 32767    // one cell (a spreadsheet's own limit, in characters)
+	MaxCellBytes     = 32000    // one cell: below a spreadsheet's 32,767 characters, so a cell written back whole still fits
 	MaxWorkbookBytes = 64 << 20 // an .xlsx workbook as stored
 	MaxPartBytes     = 64 << 20 // one part of a workbook, unpacked
 	MaxUnpackedBytes = 96 << 20 // all parts of a workbook, unpacked
@@ -439,7 +439,12 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 	sr := bind(t, &branchColumns, p)
 	var out []Branch
 	var refs []branchRefs
-	first := map[string]int{}
+	// idLine is where an id was first given, keyed by idKey.
+	type idLine struct {
+		id   string
+		line int
+	}
+	first := map[string]idLine{}
 	for _, r := range t.rows {
 		ok := true
 		b := Branch{Pos: Pos{File: t.file, Line: r.line}}
@@ -478,11 +483,16 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 			p.add(ref.id.problem(SeverityError, ErrRange, "pump and header are reserved names", "another branch id"))
 			continue
 		}
-		if line, dup := first[b.ID]; dup {
-			p.add(ref.id.problem(SeverityError, ErrDuplicate, "branch id given twice", fmt.Sprintf("a unique id; the first is on line %d", line)))
+		if prev, dup := first[idKey(b.ID)]; dup {
+			if prev.id == b.ID {
+				p.add(ref.id.problem(SeverityError, ErrDuplicate, "branch id given twice", fmt.Sprintf("a unique id; the first is on line %d", prev.line)))
+			} else {
+				msg, want := sameIDMsg("branch id", b.ID, prev.id, prev.line)
+				p.add(ref.id.problem(SeverityError, ErrDuplicate, msg, want))
+			}
 			continue
 		}
-		first[b.ID] = r.line
+		first[idKey(b.ID)] = idLine{b.ID, r.line}
 		if b.PipeLength > 0 && boreOK && math.IsNaN(b.PipeBore) && (b.PipeStandard == "" || b.PipeSize == "") {
 			p.add(sr.ref(r, "pipe size").problem(SeverityError, ErrMissing, "pipe length given without the pipe's size",
 				"a pipe standard and size, or a pipe bore"))
@@ -640,6 +650,7 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 	}
 	var order []string
 	byName := map[string]*build{}
+	folded := map[string]*build{} // by idKey
 	for _, r := range t.rows {
 		ok := true
 		name := sr.text(r, "model", &ok)
@@ -652,9 +663,15 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 		}
 		b := byName[name]
 		if b == nil {
+			if other, ok := folded[idKey(name)]; ok {
+				msg, want := sameIDMsg("valve model", name, other.m.Name, other.m.Pos.Line)
+				p.add(mref.problem(SeverityError, ErrDuplicate, msg, want))
+				continue
+			}
 			b = &build{m: ValveModel{Name: name, Pos: Pos{File: t.file, Line: r.line}, Kvs: nan, Rangeability: nan, Step: nan, MinDiff: nan},
 				attrs: map[string]attr{}, modelRef: mref}
 			byName[name] = b
+			folded[idKey(name)] = b
 			order = append(order, name)
 		}
 		// Model-wide attributes may sit on any row of the model, once.
