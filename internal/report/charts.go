@@ -14,24 +14,28 @@ import (
 
 // Colours are the Okabe-Ito palette (Okabe and Ito, "Color Universal Design",
 // 2008), chosen because its eight colours stay distinct under the common
-// colour-vision deficiencies. Shapes and line styles carry the same meaning,
-// so nothing depends on colour alone: before is dashed / hollow circle,
-// after is solid / filled diamond, a flag is a triangle.
+// colour-vision deficiencies. Readings and flags are vermillion, so "as
+// found" takes the palette's reddish purple rather than its orange, which
+// sits too close to vermillion to tell apart at a glance (and under
+// protanopia and deuteranopia); the pump, which never shares a chart with
+// the design curve, is black. Shapes and line styles carry the same
+// meaning, so nothing depends on colour alone: before is dashed / hollow
+// circle, after is solid / filled diamond, a flag is a triangle.
 const (
-	colBlack      = "#000000"
-	colOrange     = "#E69F00" // before
+	colBlack      = "#000000" // design; pump
+	colAsFound    = "#CC79A7" // before (Okabe-Ito reddish purple)
 	colSky        = "#56B4E9" // uncertainty band
 	colGreen      = "#009E73" // after
 	colBlue       = "#0072B2" // fitted / system
 	colVermillion = "#D55E00" // measured, flagged
-	colPurple     = "#CC79A7" // pump
+	colPump       = colBlack  // pump curves
 	colGrey       = "#777777" // connectors
 )
 
 // palette is the series colour cycle; every series sets its own colour,
 // so it only matters for anything echarts adds itself.
 func palette() opts.Colors {
-	return opts.Colors{colBlue, colOrange, colGreen, colVermillion, colPurple, colSky, colBlack}
+	return opts.Colors{colBlue, colAsFound, colGreen, colVermillion, colSky, colBlack}
 }
 
 // Chart sizes in CSS pixels: 680 px is 180 mm at 96 dpi, the printable width
@@ -209,7 +213,7 @@ func branchChart(id string, b *Branch, in *Input) chart {
 		charts.WithLegendOpts(opts.Legend{Show: opts.Bool(false)}),
 		charts.WithGridOpts(opts.Grid{Left: "54", Right: "18", Top: "50", Bottom: "40"}),
 		charts.WithXAxisOpts(opts.XAxis{Type: "value", Name: Clean("flow, " + in.FlowUnit), NameLocation: "middle", NameGap: 24, Scale: opts.Bool(false)}),
-		charts.WithYAxisOpts(opts.YAxis{Type: "value", Name: Clean("Δp, " + in.PressureUnit), NameLocation: "middle", NameGap: 38}),
+		charts.WithYAxisOpts(branchYAxis(b, in)),
 	)
 	// The band goes first so that it lies under everything else.
 	band := charts.NewCustom()
@@ -250,6 +254,65 @@ func branchChart(id string, b *Branch, in *Input) chart {
 		charts.WithItemStyleOpts(opts.ItemStyle{Color: colVermillion, BorderColor: "#ffffff", BorderWidth: 1}))
 	l.Overlap(bars, pts)
 	return finish(l, id, "", smallW, smallH)
+}
+
+// branchYAxis scales a branch chart's differential axis to what matters:
+// the readings with their error bars and the design curve up to the design
+// flow and the readings' flows. A fitted curve of a badly
+// restricted branch can run to many times that at the chart's right edge;
+// it is cut at the top rather than squashing the readings into the floor.
+func branchYAxis(b *Branch, in *Input) opts.YAxis {
+	ax := opts.YAxis{Type: "value", Name: Clean("Δp, " + in.PressureUnit), NameLocation: "middle", NameGap: 42}
+	top := 0.0
+	xs := []float64{b.Design}
+	for _, p := range b.Measured {
+		if finite(p.X, p.Y) {
+			xs = append(xs, p.X)
+			e := p.YErr
+			if !finite(e) {
+				e = 0
+			}
+			top = math.Max(top, p.Y+e)
+		}
+	}
+	for _, x := range xs {
+		if y := yAt(b.DesignCurve, x); finite(y) {
+			top = math.Max(top, y)
+		}
+	}
+	if top > 0 {
+		ax.Max = niceCeil(1.25 * top)
+	}
+	return ax
+}
+
+// yAt interpolates curve c (in increasing X) linearly at x; NaN outside it.
+func yAt(c []XY, x float64) float64 {
+	for i := 1; i < len(c); i++ {
+		a, b := c[i-1], c[i]
+		if finite(a.X, a.Y, b.X, b.Y) && a.X <= x && x <= b.X {
+			if b.X == a.X {
+				return b.Y
+			}
+			return a.Y + (b.Y-a.Y)*(x-a.X)/(b.X-a.X)
+		}
+	}
+	return math.NaN()
+}
+
+// niceCeil rounds v up to 1, 1.5, 2, 2.5, 3, 4, 5, 6, 8 or 10 times a power
+// of ten, so the axis ends on a round number.
+func niceCeil(v float64) float64 {
+	if !(v > 0) || !finite(v) {
+		return v
+	}
+	p := math.Pow(10, math.Floor(math.Log10(v)))
+	for _, m := range []float64{1, 1.5, 2, 2.5, 3, 4, 5, 6, 8, 10} {
+		if m*p >= v*(1-1e-12) {
+			return sig(m * p)
+		}
+	}
+	return 10 * p
 }
 
 // pickBranches returns the indices of the branches that get their own
@@ -301,10 +364,12 @@ func combinedChart(id string, in *Input) chart {
 	}
 	curve("system as found", c.System, colBlue, "dashed", 1.5)
 	curve("system after plan", c.SystemAfter, colBlue, "solid", 2)
-	curve("pump as found", c.PumpBefore, colPurple, "dashed", 1.5)
-	curve("pump after plan", c.PumpAfter, colPurple, "solid", 2)
+	curve("pump as found", c.PumpBefore, colPump, "dashed", 1.5)
+	curve("pump after plan", c.PumpAfter, colPump, "solid", 2)
 	op := charts.NewScatter()
-	point := func(name string, p XY, sym string, col string, size int) {
+	// The two points are labelled on opposite sides, each on a white
+	// ground, so that neither label sits on the other or on a curve's line.
+	point := func(name, label string, p XY, sym string, col string, size int, pos string) {
 		var d []opts.ScatterData
 		if finite(p.X, p.Y) {
 			d = append(d, opts.ScatterData{Name: name, Value: []float64{sig(p.X), sig(p.Y)}})
@@ -312,10 +377,15 @@ func combinedChart(id string, in *Input) chart {
 		op.AddSeries(name, d,
 			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: sym, SymbolSize: size}),
 			charts.WithItemStyleOpts(opts.ItemStyle{Color: col, BorderColor: col, BorderWidth: 2}),
-			charts.WithLabelOpts(opts.Label{Show: opts.Bool(true), Position: "right", Formatter: "{a}", Color: col}))
+			charts.WithLabelOpts(opts.Label{Show: opts.Bool(true), Position: pos, Formatter: label, Color: col,
+				BackgroundColor: "#ffffff", FontWeight: "bold"}))
 	}
-	point("operating point as found", c.OpBefore, "emptyCircle", colOrange, 13)
-	point("operating point after plan", c.OpAfter, "diamond", colGreen, 15)
+	posB, posA := "left", "right"
+	if finite(c.OpBefore.X, c.OpAfter.X) && c.OpBefore.X > c.OpAfter.X {
+		posB, posA = "right", "left"
+	}
+	point("operating point as found", "as found", c.OpBefore, "emptyCircle", colAsFound, 13, posB)
+	point("operating point after plan", "after plan", c.OpAfter, "diamond", colGreen, 15, posA)
 	l.Overlap(op)
 	return finish(l, id, "", wideW, wideH)
 }
@@ -384,7 +454,7 @@ func flowChart(id string, in *Input) chart {
 	sc := charts.NewScatter()
 	sc.AddSeries("as found", before,
 		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
-		charts.WithItemStyleOpts(opts.ItemStyle{Color: colOrange, BorderColor: colOrange, BorderWidth: 2}),
+		charts.WithItemStyleOpts(opts.ItemStyle{Color: colAsFound, BorderColor: colAsFound, BorderWidth: 2}),
 		charts.WithSeriesOpts(func(s *charts.SingleSeries) {
 			if !finite(lo, hi) {
 				return
@@ -520,7 +590,7 @@ func valveCharts(idPrefix string, in *Input) []chart {
 		sc := charts.NewScatter()
 		sc.AddSeries("now", now,
 			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
-			charts.WithItemStyleOpts(opts.ItemStyle{Color: colOrange, BorderColor: colOrange, BorderWidth: 2}))
+			charts.WithItemStyleOpts(opts.ItemStyle{Color: colAsFound, BorderColor: colAsFound, BorderWidth: 2}))
 		sc.AddSeries("planned", planned,
 			charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "diamond", SymbolSize: 11}),
 			seriesColor(colGreen))

@@ -60,6 +60,7 @@
       if (s.type !== "custom") { return; }
       var kind = s.renderItem;
       s.silent = true;
+      s.clip = true; // bands and bars stop at an axis cut short on purpose
       s.tooltip = { show: false };
       if (kind === "errbar") {
         s.renderItem = errbar;
