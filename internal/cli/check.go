@@ -80,7 +80,7 @@ func printSummary(ios *IO, s *site.Site) {
 func exactArgs(n int) cobra.PositionalArgs {
 	return func(cmd *cobra.Command, args []string) error {
 		if len(args) != n {
-			return usagef("%s: takes %d argument(s), got %d", cmd.Name(), n, len(args))
+			return usagef("%s: takes %d argument(s), got %d\nusage: %s", cmd.Name(), n, len(args), cmd.UseLine())
 		}
 		return nil
 	}

@@ -26,6 +26,7 @@ func addCommands(root *cobra.Command, ios *IO) {
 		root.AddCommand(&cobra.Command{Use: t.Name, Short: t.Title, Long: t.Title + "\n\n" + strings.TrimRight(t.Body, "\n")})
 	}
 	root.AddCommand(&cobra.Command{Use: "exit", Short: "Exit statuses", Long: exitHelp})
+	root.AddCommand(newPipesTopic(), newCompletionCmd(ios))
 	root.SetHelpCommand(newHelpCmd())
 }
 

@@ -18,9 +18,7 @@ func printVisit(w io.Writer, j *job) {
 	v := j.visit(j.opts.Units)
 	if len(v.Short) > 0 {
 		fmt.Fprintln(w, "THIS PLAN CANNOT MEET ITS TARGETS")
-		for _, l := range v.Short {
-			fmt.Fprintf(w, "  %s\n", l)
-		}
+		bullets(w, v.Short)
 		fmt.Fprintln(w)
 	}
 	if j.Plan.DesignOnly {

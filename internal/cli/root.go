@@ -101,6 +101,8 @@ licensed practice.`,
 		SilenceErrors: true,
 	}
 	root.CompletionOptions.DisableDefaultCmd = true
+	root.Version = versionText()
+	root.SetVersionTemplate("flowset {{.Version}}\n")
 	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return &usageError{err} })
 	addCommands(root, ios)
 	return root

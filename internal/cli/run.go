@@ -221,11 +221,16 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			return err
 		}
 	case !o.Quiet:
-		if o.writeFit {
-			printFit(ios.Out, j)
-		}
+		// The order of work first; the fit behind it after, as in the
+		// report's appendix.
 		if o.writePlan {
 			printVisit(ios.Out, j)
+		}
+		if o.writeFit && o.writePlan {
+			fmt.Fprintln(ios.Out, "\nThe model behind the plan")
+		}
+		if o.writeFit {
+			printFit(ios.Out, j)
 		}
 	}
 	if o.Out == "" {

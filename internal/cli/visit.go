@@ -171,10 +171,25 @@ func (j *job) shortLines(u display) []string {
 	}
 	var out []string
 	var parts []string
+	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, s := range plan.Unmet {
-		parts = append(parts, fmt.Sprintf("%s %s of %s (%.0f %%)", s.ID, u.flow(s.Predicted), u.flow(s.Target), s.Percent))
+		lo, hi = math.Min(lo, s.Percent), math.Max(hi, s.Percent)
+		if len(parts) < maxIDs {
+			parts = append(parts, fmt.Sprintf("%s %s of %s (%.0f %%)", s.ID, u.flow(s.Predicted), u.flow(s.Target), s.Percent))
+		}
 	}
-	out = append(out, fmt.Sprintf("Short after the plan: %s.", strings.Join(parts, ", ")))
+	switch n := len(plan.Unmet); {
+	case n == len(plan.Branches) && n > 1:
+		span := fmt.Sprintf("%.0f %% to %.0f %%", lo, hi)
+		if math.Round(lo) == math.Round(hi) {
+			span = fmt.Sprintf("%.0f %%", hi)
+		}
+		out = append(out, fmt.Sprintf("Short after the plan: every branch, at %s of its target.", span))
+	case n > maxIDs:
+		out = append(out, fmt.Sprintf("Short after the plan: %s and %d more.", strings.Join(parts, ", "), n-maxIDs))
+	default:
+		out = append(out, fmt.Sprintf("Short after the plan: %s.", strings.Join(parts, ", ")))
+	}
 	pp := plan.Pump
 	if j.L.Site.Boundary.Kind == site.PumpCurve && j.L.Model.Pump != nil && finite(pp.NeededSpeed) && pp.NeededSpeed > pp.MaxSpeed {
 		total := 0.0
@@ -202,7 +217,7 @@ func (j *job) shortLines(u display) []string {
 			out = append(out, "What would fix it: "+w+".")
 		}
 	}
-	out = append(out, "Set the valves as below all the same: every other branch gets its target, and the short ones get as much as the pump can give. No energy saving is claimed.")
+	out = append(out, "Set the valves as below all the same: every branch the pump can serve gets its target and the short ones what is left. No energy saving is claimed.")
 	return out
 }
 

@@ -112,7 +112,7 @@ var branchColumns = schema{name: "branches", columns: []column{
 	{name: "parent", typ: textCol, help: "id of the riser this branch hangs from; blank on the main headers"},
 	{name: "design flow", typ: numCol, kind: units.Flow, unit: "l/s", required: true, what: "flow", lo: minFlow, hi: maxFlow,
 		help: "design flow of the branch"},
-	{name: "pipe standard", typ: textCol, help: "pipe catalogue, e.g. en10255-m, sch40, copper"},
+	{name: "pipe standard", typ: textCol, help: "pipe catalogue: en10255-m, en10255-h, sch40, sch80, en1057 (copper), pe100-sdr11; see flowset help pipes"},
 	{name: "pipe size", typ: textCol, help: "nominal size in that catalogue, e.g. DN25 or 1"},
 	{name: "pipe bore", typ: numCol, kind: units.Length, unit: "mm", what: "bore", lo: minBore, hi: maxBore,
 		help: "inside diameter; blank = from the catalogue"},

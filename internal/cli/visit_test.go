@@ -1,0 +1,239 @@
+package cli
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"testing"
+
+	"flowset/internal/hydraulics"
+)
+
+// TestDemoConsole runs the demo as a new user would and reads its console
+// output as a technician would: the order of work, each message once, no
+// cut cells, no statistician's words, and the branch counts of the
+// console, the field sheet and the report the same.
+func TestDemoConsole(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "out")
+	code, stdout, stderr := run(t, "demo", "--out", out)
+	if code != ExitOK {
+		t.Fatalf("demo: exit %d\n%s", code, stderr)
+	}
+	// The steps in their order.
+	last := -1
+	for _, step := range []string{"1. Before you start", "2. Fix first", "3. Pump", "4. Valve settings, in adjustment order", "5. Prove it"} {
+		i := strings.Index(stdout, step)
+		if i < 0 || i < last {
+			t.Errorf("step %q missing or out of order", step)
+		}
+		last = i
+	}
+	// Each message once.
+	seen := map[string]bool{}
+	for _, line := range strings.Split(stdout+stderr, "\n") {
+		l := strings.TrimSpace(line)
+		if len(l) < 30 || strings.HasPrefix(l, "#") { // table headers repeat by design
+			continue
+		}
+		if seen[l] {
+			t.Errorf("line printed twice: %q", l)
+		}
+		seen[l] = true
+	}
+	for _, bad := range []string{"~", "chi-square", "posterior", "sd of ln", "reduced "} {
+		if strings.Contains(stdout, bad) {
+			t.Errorf("console says %q", bad)
+		}
+	}
+	// Plain words: the fault with its action, what it saves, what to read.
+	for _, want := range []string{"AHU-2: clean the strainer", "Saves: pump differential 169.3 kPa → ", "Read after: before touching any balancing valve",
+		"Energy: pump power 2.68 kW → 2.17 kW", "the fit explains it: RAD-2F"} {
+		if !strings.Contains(strings.Join(strings.Fields(stdout+stderr), " "), want) {
+			t.Errorf("console does not say %q", want)
+		}
+	}
+	// One count everywhere: 14 branches, risers included.
+	if !strings.Contains(stdout, "0 of 14 as found, 14 of 14 after the plan") {
+		t.Errorf("console count of branches in tolerance is not 0 of 14 -> 14 of 14")
+	}
+	f, err := os.Open(filepath.Join(out, "field-sheet.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	rows, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(rows)-1 != 14 {
+		t.Errorf("field sheet has %d rows, want 14", len(rows)-1)
+	}
+	for _, w := range fieldSheetWriteIn {
+		if !strings.Contains(strings.Join(rows[0], ","), w) {
+			t.Errorf("field sheet has no write-in column %q", w)
+		}
+	}
+	html, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	page := string(html)
+	if !regexp.MustCompile(`Branches in tolerance \([^)]*\)</td><td>0</td><td>14</td>`).MatchString(page) {
+		t.Errorf("report summary does not count 0 -> 14 branches in tolerance")
+	}
+	if a, b := strings.Index(page, `id="settings"`), strings.Index(page, `class="appendix"`); a < 0 || b < 0 || a > b {
+		t.Errorf("valve settings do not come before the appendix")
+	}
+}
+
+// TestShortPlanSaysSoFirst checks that a plan that cannot meet its targets
+// says so before anything else, claims no saving and exits ExitShort.
+func TestShortPlanSaysSoFirst(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "out")
+	// Twice the design flows: the pump would need four times the
+	// differential (square law), far beyond it at full speed.
+	code, stdout, stderr := run(t, "run", surveyDir("demo"), "--out", out, "--scale", "2")
+	if code != ExitShort {
+		t.Fatalf("run at twice design: exit %d, want %d\n%s\n%s", code, ExitShort, stdout, stderr)
+	}
+	if !strings.HasPrefix(stdout, "THIS PLAN CANNOT MEET ITS TARGETS") {
+		t.Errorf("the shortfall is not the first thing said:\n%s", stdout)
+	}
+	flat := strings.Join(strings.Fields(stdout), " ")
+	for _, want := range []string{"Short after the plan: every branch, at 49 % to 52 % of its target.",
+		"Why: the pump must give 670.8 kPa at 13.56 l/s; at full speed (100.0 %) it gives 89.7 kPa.", "No energy saving is claimed"} {
+		if !strings.Contains(flat, want) {
+			t.Errorf("console does not say %q", want)
+		}
+	}
+	if strings.Contains(stdout, "Energy:") || strings.Contains(stdout, "saved") {
+		t.Errorf("a short plan claims a saving:\n%s", stdout)
+	}
+	html, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	page := string(html)
+	if a, b := strings.Index(page, `id="short"`), strings.Index(page, `id="before"`); a < 0 || a > b {
+		t.Errorf("report does not show the shortfall above the steps")
+	}
+	if strings.Contains(page, "Annual energy saving") {
+		t.Errorf("report of a short plan claims a saving")
+	}
+}
+
+// TestUnitsUS runs the demo in US units: every output but JSON in gpm and
+// psi, JSON still SI.
+func TestUnitsUS(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "out")
+	code, stdout, stderr := run(t, "run", surveyDir("demo"), "--out", out, "--units", "us")
+	if code != ExitOK {
+		t.Fatalf("exit %d\n%s", code, stderr)
+	}
+	if !strings.Contains(stdout, "gpm") || !strings.Contains(stdout, "psi") || strings.Contains(stdout, "l/s") || strings.Contains(stdout, "kPa") {
+		t.Errorf("console not in gpm and psi:\n%s", stdout)
+	}
+	sheet, err := os.ReadFile(filepath.Join(out, "field-sheet.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	head := strings.SplitN(string(sheet), "\n", 2)[0]
+	if !strings.Contains(head, "(gpm)") || !strings.Contains(head, "(psi)") || strings.Contains(head, "(l/s)") {
+		t.Errorf("field sheet header not in gpm and psi: %s", head)
+	}
+	// AHU-1's target 1.6 l/s is 25.36 gpm (NIST SP 811: 1 gal/min =
+	// 6.309020E-05 m3/s).
+	if !strings.Contains(string(sheet), ",25.36,") {
+		t.Errorf("field sheet has no 25.36 gpm target for AHU-1")
+	}
+	js, err := os.ReadFile(filepath.Join(out, "plan.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(js), `"total_flow_m3_s"`) {
+		t.Errorf("plan.json is not in SI with the unit in its keys")
+	}
+	if code, _, _ := run(t, "plan", surveyDir("demo"), "--units", "imperial"); code != ExitUsage {
+		t.Errorf("--units imperial: exit %d, want %d", code, ExitUsage)
+	}
+}
+
+func TestJSONOnStdout(t *testing.T) {
+	for _, tc := range []struct {
+		cmd  string
+		keys []string
+	}{
+		{"fit", []string{"branches", "readings"}},
+		{"plan", []string{"least_differential_pa", "branches"}},
+		{"run", []string{"calibration", "plan"}},
+	} {
+		args := []string{tc.cmd, surveyDir("demo"), "--json"}
+		if tc.cmd == "run" {
+			args = append(args, "--out", filepath.Join(t.TempDir(), "out"))
+		}
+		code, stdout, stderr := run(t, args...)
+		if code != ExitOK {
+			t.Fatalf("%s --json: exit %d\n%s", tc.cmd, code, stderr)
+		}
+		var v map[string]any
+		if err := json.Unmarshal([]byte(stdout), &v); err != nil {
+			t.Fatalf("%s --json: stdout is not one JSON document: %v\n%s", tc.cmd, err, stdout)
+		}
+		for _, k := range tc.keys {
+			if _, ok := v[k]; !ok {
+				t.Errorf("%s --json: no key %q", tc.cmd, k)
+			}
+		}
+	}
+}
+
+func TestQuiet(t *testing.T) {
+	code, stdout, _ := run(t, "run", surveyDir("demo"), "--out", filepath.Join(t.TempDir(), "out"), "--quiet")
+	if code != ExitOK || stdout != "" {
+		t.Errorf("run --quiet: exit %d, stdout %q; want 0 and nothing", code, stdout)
+	}
+}
+
+func TestCommandLineHelp(t *testing.T) {
+	code, stdout, _ := run(t, "help", "pipes")
+	if code != ExitOK {
+		t.Fatalf("help pipes: exit %d", code)
+	}
+	for _, s := range hydraulics.Standards() {
+		if !strings.Contains(stdout, "\n"+s+": ") {
+			t.Errorf("help pipes does not list %s", s)
+		}
+	}
+	// Every size example the topic gives is accepted by its catalogue.
+	for _, ex := range []struct{ std, size string }{
+		{"sch40", "DN50"}, {"sch40", "dn 50"}, {"sch40", "2"}, {"sch40", "2in"}, {"sch40", "NPS 2"},
+		{"sch40", "1-1/4"}, {"sch40", "1 1/4"}, {"sch40", "1.25"}, {"en1057", "22x1.0"}, {"en1057", "22 x 1"}, {"pe100-sdr11", "32mm"},
+	} {
+		if !strings.Contains(stdout, `"`+ex.size+`"`) {
+			t.Errorf("help pipes does not give the example %q", ex.size)
+		}
+		if _, err := hydraulics.LookupPipe(ex.std, ex.size); err != nil {
+			t.Errorf("help pipes example %s %q is refused: %v", ex.std, ex.size, err)
+		}
+	}
+	for _, sh := range []string{"bash", "zsh", "fish", "powershell"} {
+		code, stdout, _ := run(t, "completion", sh)
+		if code != ExitOK || !strings.Contains(stdout, "flowset") {
+			t.Errorf("completion %s: exit %d, %d bytes", sh, code, len(stdout))
+		}
+	}
+	if code, _, _ := run(t, "completion", "tcsh"); code != ExitUsage {
+		t.Errorf("completion tcsh: exit %d, want %d", code, ExitUsage)
+	}
+	code, stdout, _ = run(t, "--version")
+	if code != ExitOK || !strings.HasPrefix(stdout, "flowset "+Version) {
+		t.Errorf("--version: exit %d, %q", code, stdout)
+	}
+	code, _, stderr := run(t, "plan")
+	if code != ExitUsage || !strings.Contains(stderr, "usage: flowset plan SITE") {
+		t.Errorf("plan without SITE: exit %d, %q; want 2 and the usage line", code, stderr)
+	}
+}
