@@ -263,24 +263,27 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 		// allowed only as a riser whose children carry the resistance.
 		b.Fixed = nil
 	}
-	if sb.SupplyLength > 0 || sb.ReturnLength > 0 || sb.HeaderK > 0 {
-		bore, rough, err := pipes.bore(sb.HeaderStandard, sb.HeaderSize, sb.HeaderBore, math.NaN())
+	// Each leg of the header segment is built from its own pipe: in a
+	// reverse-return header the two legs carry different flows and are
+	// often of different bores.
+	for _, leg := range []struct {
+		name string
+		l    site.Leg
+		dst  *[]hydraulics.Element
+	}{{"supply", sb.SupplyLeg(), &b.Supply}, {"return", sb.ReturnLeg(), &b.Return}} {
+		if !(leg.l.Length > 0 || leg.l.K > 0) {
+			continue
+		}
+		bore, rough, err := pipes.bore(leg.l.Standard, leg.l.Size, leg.l.Bore, leg.l.Roughness)
 		if err != nil {
-			return b, where(fmt.Errorf("header segment: %w", err))
+			return b, where(fmt.Errorf("header segment, %s leg: %w", leg.name, err))
 		}
-		seg := func(l float64) []hydraulics.Element {
-			var e []hydraulics.Element
-			if l > 0 {
-				e = append(e, hydraulics.Pipe{Bore: bore, Length: l, Roughness: rough})
-			}
-			if sb.HeaderK > 0 {
-				// The lumped K of the segment is split evenly between flow
-				// and return.
-				e = append(e, hydraulics.Fitting{K: sb.HeaderK / 2, Bore: bore})
-			}
-			return e
+		if leg.l.Length > 0 {
+			*leg.dst = append(*leg.dst, hydraulics.Pipe{Bore: bore, Length: leg.l.Length, Roughness: rough})
 		}
-		b.Supply, b.Return = seg(sb.SupplyLength), seg(sb.ReturnLength)
+		if leg.l.K > 0 {
+			*leg.dst = append(*leg.dst, hydraulics.Fitting{K: leg.l.K, Bore: bore})
+		}
 	}
 	return b, nil
 }
@@ -420,6 +423,16 @@ func (m *Model) states() ([]State, error) {
 			k = len(out)
 			byLabel[r.State] = k
 			st := State{Label: r.State, Settings: m.AsFound(), Speed: speed(s), Differential: s.Boundary.SetPoint}
+			// The states sheet gives a state its own pump setting; the
+			// site reader keeps only the one the boundary uses.
+			if own := s.State(r.State); own != nil {
+				if own.Speed > 0 && s.Boundary.Kind == site.PumpCurve {
+					st.Speed = own.Speed
+				}
+				if own.SetPoint > 0 && s.Boundary.Kind == site.ConstantDiff {
+					st.Differential = own.SetPoint
+				}
+			}
 			out = append(out, st)
 		}
 		out[k].Readings = append(out[k].Readings, ri)

@@ -17,6 +17,9 @@ const brHead = "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],valve
 const rdHead = "state,where,quantity,value,unit,instrument\n"
 const rdBase = "as-found,A,flow,0.45,l/s,clamp-on\n"
 
+// pumpCurve is a pump sheet for cases that need a pump boundary.
+const pumpCurve = "flow [l/s],head [m]\n0,8\n1,7\n2,5\n"
+
 var badCases = []badCase{
 	// Accepted variants: no problems at all.
 	{name: "byte order mark", files: map[string]string{"branches.csv": "\ufeff" + base["branches.csv"]}},
@@ -150,7 +153,7 @@ var badCases = []badCase{
 	{name: "unknown column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],colour,pipe lenght\nA,0.5,21.6,10,red,1\nB,0.4,21.6,12,blue,1\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, note)",
+			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, note)",
 			"branches.csv:1:6: warning: field \"pipe lenght\": unknown column, ignored (want \"pipe length\")",
 		}},
 	{name: "missing required column", files: map[string]string{"branches.csv": "id,pipe bore [mm],pipe length [m]\nA,21.6,10\nB,21.6,12\n"},
@@ -418,14 +421,47 @@ var badCases = []badCase{
 	{name: "negative reading", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,valve diff,-3,kPa,manometer\n"},
 		cause: ErrRange,
 		want: []string{
-			"readings.csv:3:4: field \"value\": value \"-3\": must not be negative (want a pressure difference of 0 or more)",
+			"readings.csv:3:4: field \"value\": value \"-3\": negative beyond its uncertainty (want a pressure difference of 0 or more; a reading near zero is taken as read down to -0.2 kPa, twice its expanded uncertainty)",
+		}},
+	{name: "negative differentials near zero", files: map[string]string{"readings.csv": "where,quantity,value,unit,instrument,uncertainty\nA,flow,0.45,l/s,clamp-on,\nA,valve diff,-0.1,kPa,manometer,\nB,branch diff,-0.9,kPa,gauge,0.5\nB,valve diff,-1.2,kPa,manometer,0.5\nheader,header diff,-0.15,kPa,manometer,\n"},
+		cause: ErrRange,
+		want: []string{
+			// manometer default: ±0.1 kPa floor at k = 2, so down to -0.2 kPa; a stated ±0.5 kPa allows -1 kPa.
+			"readings.csv:3:3: warning: field \"value\": value \"-0.1\": negative, but within its uncertainty of zero: kept as read (want nothing to change if the instrument showed it; the fit compares it as read)",
+			"readings.csv:4:3: warning: field \"value\": value \"-0.9\": negative, but within its uncertainty of zero: kept as read (want nothing to change if the instrument showed it; the fit compares it as read)",
+			"readings.csv:5:3: field \"value\": value \"-1.2\": negative beyond its uncertainty (want a pressure difference of 0 or more; a reading near zero is taken as read down to -1 kPa, twice its expanded uncertainty)",
+			"readings.csv:6:3: warning: field \"value\": value \"-0.15\": negative, but within its uncertainty of zero: kept as read (want nothing to change if the instrument showed it; the fit compares it as read)",
+		}},
+	{name: "zero uncertainties", files: map[string]string{"readings.csv": "where,quantity,value,unit,instrument,uncertainty\nA,flow,0,l/s,clamp-on,5 %\nA,valve diff,0,kPa,manometer,0\nB,flow,0.4,m3/h,mag-meter,0 %\npump,total flow,0.9,l/s,orifice,0\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:2:6: warning: field \"uncertainty\": value \"5 %\": a percentage of a zero reading is zero: replaced by the clamp-on default, ±0.01 l/s at k = 2 (want the reading's uncertainty: no reading is exact)",
+			"readings.csv:3:6: warning: field \"uncertainty\": value \"0\": zero uncertainty: replaced by the manometer default, ±0.1 kPa at k = 2 (want the reading's uncertainty: no reading is exact)",
+			// mag-meter ±2 % of 0.4 m3/h is above its 0.036 m3/h floor.
+			"readings.csv:4:6: warning: field \"uncertainty\": value \"0 %\": zero uncertainty: replaced by the mag-meter default, ±0.036 m3/h at k = 2 (want the reading's uncertainty: no reading is exact)",
+			"readings.csv:5:6: warning: field \"uncertainty\": value \"0\": zero uncertainty: replaced by the orifice default, ±0.045 l/s at k = 2 (want the reading's uncertainty: no reading is exact)",
+		}},
+	{name: "speed readings against max speed", files: map[string]string{"readings.csv": "where,quantity,value,unit,instrument\npump,speed,1.001,,pump-display\npump,speed,100.5,%,pump-display\npump,speed,1.05,,pump-display\npump,speed,103,%,pump-display\npump,speed,95,,pump-display\npump,speed,-0.1,,pump-display\n"},
+		cause: ErrRange,
+		want: []string{
+			// pump-display: ±1 % of rated at k = 2, so up to 2 % above max speed.
+			"readings.csv:4:3: field \"value\": value \"1.05\": above the drive's max speed 1 by more than the display's uncertainty (want a speed up to 1.02 (max speed plus twice the reading's expanded uncertainty); check the max speed in the site sheet, and give unit % for a percentage)",
+			"readings.csv:5:3: field \"value\": value \"103\": above the drive's max speed 100 % by more than the display's uncertainty (want a speed up to 102 % (max speed plus twice the reading's expanded uncertainty); check the max speed in the site sheet, and give unit % for a percentage)",
+			"readings.csv:6:3: field \"value\": value \"95\": too large (want a ratio to rated speed from 0 to 2; give unit % for a percentage)",
+			"readings.csv:7:3: field \"value\": value \"-0.1\": must not be negative (want a ratio to rated speed from 0 to 2; give unit % for a percentage)",
+		}},
+	{name: "speed reading below a lowered max speed", files: map[string]string{"site.csv": "max speed [%],90\nspeed [%],85\n",
+		"readings.csv": "where,quantity,value,unit,instrument,uncertainty\npump,speed,0.905,,pump-display,\npump,speed,0.93,,pump-display,0.005\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:3: field \"value\": value \"0.93\": above the drive's max speed 0.9 by more than the display's uncertainty (want a speed up to 0.91 (max speed plus twice the reading's expanded uncertainty); check the max speed in the site sheet, and give unit % for a percentage)",
 		}},
 	{name: "bad uncertainty", files: map[string]string{"readings.csv": "where,quantity,value,uncertainty\nA,flow,0.45,about 5\nB,flow,0.4,0\nB,flow,0,5 %\nB,flow,0.41,0.02\n"},
 		cause: ErrSyntax,
 		want: []string{
 			"readings.csv:2:4: field \"uncertainty\": value \"about 5\": not a number (want a percentage such as 5 %, or a number in the row's unit)",
-			"readings.csv:3:4: field \"uncertainty\": value \"0\": must be positive (want an uncertainty above 0)",
-			"readings.csv:4:4: field \"uncertainty\": value \"5 %\": a percentage of a zero reading is zero (want an absolute uncertainty in the row's unit)",
+			"readings.csv:3:4: field \"uncertainty\": value \"0\": must be positive (want an uncertainty above 0, or an instrument kind whose default applies)",
+			"readings.csv:4:4: field \"uncertainty\": value \"5 %\": a percentage of a zero reading is zero (want an absolute uncertainty in the row's unit, or an instrument kind whose default applies)",
 		}},
 	{name: "uncertainty column unit", files: map[string]string{"readings.csv": "where,quantity,value,uncertainty [kPa]\nA,flow,0.45,5\n"},
 		cause: ErrUnit,
@@ -576,6 +612,63 @@ var badCases = []badCase{
 		cause: ErrUnit,
 		want: []string{
 			"pump.csv:1:2: field \"head\": value \"kPa\": unit \"kPa\" is a pressure, not a head (want a head unit: m or ft of the pumped fluid; convert a pressure to head with the fluid's density)",
+		}},
+	{name: "states sheet", files: map[string]string{"site.csv": "boundary,pump\n", "pump.csv": pumpCurve,
+		"readings.csv": "state,where,quantity,value,unit,instrument\nas-found,A,flow,0.45,l/s,clamp-on\nafter,A,flow,0.4,l/s,clamp-on\n",
+		"states.csv":   "state,speed [%],set point [kPa],note\nas-found,90,,\nAfter,80,50,\nafter,70,,\nmoved,85,,\n,80,,\nas-fond,95,,\n"},
+		cause: ErrRange,
+		want: []string{
+			"states.csv:3:3: warning: field \"set point\": value \"50\": set point ignored with boundary pump (want boundary constant-differential)",
+			"states.csv:4:1: field \"state\": value \"after\": state given twice (want one row per state; the first is on line 3)",
+			"states.csv:5:1: field \"state\": value \"moved\": no reading is in this state (want a state label from the readings sheet: after, as-found)",
+			"states.csv:6:1: field \"state\": blank (want a survey state label from the readings sheet)",
+			"states.csv:7:1: field \"state\": value \"as-fond\": no reading is in this state (want a state label from the readings sheet: after, as-found; did you mean \"as-found\")",
+		}},
+	{name: "state speed above max", files: map[string]string{"site.csv": "boundary,pump\nmax speed,0.9\nspeed,0.8\n", "pump.csv": pumpCurve,
+		"states.csv": "state,speed\nas-found,0.95\n"},
+		cause: ErrRange,
+		want: []string{
+			"states.csv:2:2: field \"speed\": value \"0.95\": above max speed (want a speed up to the max speed, 0.9)",
+		}},
+	{name: "state speed with a set point boundary", files: map[string]string{"site.csv": "boundary,constant-differential\nset point [kPa],40\n", "pump.csv": pumpCurve,
+		"states.csv": "state,speed,set point [kPa]\nas-found,0.9,35\n"},
+		cause: ErrRange,
+		want: []string{
+			"states.csv:2:2: warning: field \"speed\": value \"0.9\": speed ignored with boundary constant-differential (want boundary pump; a drive holding a set point finds its own speed)",
+		}},
+	{name: "state set point out of range", files: map[string]string{"site.csv": "boundary,constant-differential\nset point [kPa],40\n",
+		"states.csv": "state,set point [kPa],speed\nas-found,0,120\n"},
+		cause: ErrRange,
+		want: []string{
+			"states.csv:2:2: field \"set point\": value \"0\": must be positive (want a pressure difference above 0)",
+			"states.csv:2:3: field \"speed\": value \"120\": too large (want a ratio to nominal speed from 0.001 to 2; write \"speed [%]\" for a percentage)",
+		}},
+	{name: "states sheet without a state column", files: map[string]string{"states.csv": "label,speed\nas-found,0.9\n"},
+		cause: ErrMissing,
+		want: []string{
+			"states.csv:1: field \"state\": column is missing (want a column named \"state\")",
+			"states.csv:1:1: warning: field \"label\": unknown column, ignored (want one of: state, speed, set point, note)",
+		}},
+	{name: "header legs without sizes", files: map[string]string{"site.csv": "header,reverse-return\n",
+		"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],supply length [m],return length [m],header standard,header bore [mm],return standard,return size,return bore [mm]\n" +
+			"A,0.5,21.6,10,5,5,,40,,DN32,\n" + // a return size with no standard to look it up in
+			"B,0.4,21.6,12,0,5,,,en10255-m,,\n" + // a return standard alone, and no header pipe
+			"C,0.4,21.6,12,5,5,,,,,35\n" + // the supply leg has no pipe
+			"D,0.4,21.6,12,5,5,en10255-m,40,,DN32,\n" + // return DN32 in the header's standard: fine
+			"E,0.4,21.6,12,5,5,,40,,,35\n"}, // its own return bore: fine
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2:10: field \"return size\": value \"DN32\": return size given without a pipe standard (want a return or header standard to look the size up in, or a return bore)",
+			"branches.csv:3:10: field \"return size\": return length given without the return leg's size (want a return size with a header or return standard, or a return bore)",
+			"branches.csv:4: field \"header size\": header length given without the header's size (want a header standard and size, or a header bore)",
+		}},
+	{name: "header leg roughness out of range", files: map[string]string{"site.csv": "header,direct-return\n",
+		"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],supply length [m],return length [m],header bore [mm],header roughness [mm],return roughness [mm],supply k,return k\n" +
+			"A,0.5,21.6,10,5,5,40,0.05,20,1,-1\nB,0.4,21.6,12,5,5,40,,,,\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:9: field \"return roughness\": value \"20\": too large (want a roughness up to 10 mm)",
+			"branches.csv:2:11: field \"return k\": value \"-1\": must not be negative (want a loss coefficient of 0 or more)",
 		}},
 	{name: "target of zero", files: map[string]string{"targets.csv": "branch,target flow [l/s]\nA,0\nB,0.00001\n"},
 		cause: ErrRange,

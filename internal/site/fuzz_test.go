@@ -99,15 +99,42 @@ func checkResult(t *testing.T, s *Site, p Problems, err error) {
 			}
 		}
 	}
+	labels := map[string]bool{}
+	for _, r := range s.Readings {
+		labels[r.State] = true
+	}
+	for _, st := range s.States {
+		finite(st.Label+" speed", st.Speed, true)
+		finite(st.Label+" set point", st.SetPoint, true)
+		if !labels[st.Label] {
+			t.Errorf("%v: state %q has no readings", st.Pos, st.Label)
+		}
+		if st.Speed > s.Boundary.MaxSpeed || st.Speed <= 0 || st.SetPoint <= 0 {
+			t.Errorf("%v: state %q speed %g set point %g", st.Pos, st.Label, st.Speed, st.SetPoint)
+		}
+	}
+	for _, b := range s.Branches {
+		for _, l := range []Leg{b.SupplyLeg(), b.ReturnLeg()} {
+			if l.Length > 0 && !l.Sized() {
+				t.Errorf("branch %q: a header leg of %g m with no bore or size", b.ID, l.Length)
+			}
+		}
+	}
 	for _, r := range s.Readings {
 		finite("reading value", r.Value, false)
+		if r.Value < 0 && (r.What.IsFlow() || r.What == Speed || -r.Value > 4*r.Sigma*(1+1e-9)) {
+			t.Errorf("%v: negative %v reading %g with sigma %g", r.Pos, r.What, r.Value, r.Sigma)
+		}
+		if r.What == Speed && r.Value > s.Boundary.MaxSpeed+4*r.Sigma*(1+1e-9) {
+			t.Errorf("%v: speed %g above max %g", r.Pos, r.Value, s.Boundary.MaxSpeed)
+		}
 		if !(r.Sigma > 0) || math.IsInf(r.Sigma, 0) {
 			t.Errorf("%v: sigma %g", r.Pos, r.Sigma)
 		}
 		if r.Where != AtPump && r.Where != AtHeader && !ids[r.Where] {
 			t.Errorf("%v: reading at unknown %q", r.Pos, r.Where)
 		}
-		if r.What < Flow || r.What > TotalFlow {
+		if r.What < Flow || r.What > Speed {
 			t.Errorf("%v: quantity %d", r.Pos, r.What)
 		}
 	}
@@ -142,6 +169,7 @@ func FuzzBranchesSheet(f *testing.F) { fuzzSheet(f, "branches.csv") }
 func FuzzValvesSheet(f *testing.F)   { fuzzSheet(f, "valves.csv") }
 func FuzzPumpSheet(f *testing.F)     { fuzzSheet(f, "pump.csv") }
 func FuzzReadingsSheet(f *testing.F) { fuzzSheet(f, "readings.csv") }
+func FuzzStatesSheet(f *testing.F)   { fuzzSheet(f, "states.csv") }
 func FuzzTargetsSheet(f *testing.F)  { fuzzSheet(f, "targets.csv") }
 
 // FuzzRoundTrip reads a site, writes it back and reads it again: the

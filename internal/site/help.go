@@ -28,11 +28,11 @@ hours,5000
 energy price,0.25
 currency,EUR
 `,
-	"branches": `id,parent,design flow [l/s],pipe standard,pipe size,pipe length [m],terminal drop [kPa],valve,setting,supply length [m],return length [m],header standard,header size
-R1,,1.20,en10255-m,DN40,12,0,V25,3.5,8,8,en10255-m,DN65
-R1.1,R1,0.40,en10255-m,DN20,25,10,V15,2.0,0,0,,
-R1.2,R1,0.80,en10255-m,DN25,30,12,V15,4.0,3,3,en10255-m,DN40
-R2,,0.60,en10255-m,DN25,40,15,V15,3.0,15,15,en10255-m,DN50
+	"branches": `id,parent,design flow [l/s],pipe standard,pipe size,pipe length [m],terminal drop [kPa],valve,setting,supply length [m],return length [m],header standard,header size,header k,return size,return k
+R1,,1.20,en10255-m,DN40,12,0,V25,3.5,8,8,en10255-m,DN65,1.0,,
+R1.1,R1,0.40,en10255-m,DN20,25,10,V15,2.0,0,0,,,,,
+R1.2,R1,0.80,en10255-m,DN25,30,12,V15,4.0,3,3,en10255-m,DN40,,,
+R2,,0.60,en10255-m,DN25,40,15,V15,3.0,15,17,en10255-m,DN50,,DN40,0.9
 `,
 	"valves": `model,setting unit,setting,kv,characteristic,kvs,rangeability
 V15,turns,0.5,0.15,,,
@@ -56,8 +56,13 @@ as-found,R1.1,flow,0.52,l/s,,clamp-on,,09:40
 as-found,R1.1,valve diff,8.4,kPa,,manometer,,09:42
 as-found,R2,branch diff,31,kPa,,manometer,,09:45
 as-found,pump,pump diff,62,kPa,,gauge,,09:50
+as-found,pump,speed,85,%,,pump-display,,09:50
 as-found,header,total flow,2.6,l/s,,orifice,4 %,09:55
 after-change,R1.1,flow,0.41,l/s,1.5,valve-meter,,10:30
+`,
+	"states": `state,speed [%],note
+as-found,85,drive as found
+after-change,80,drive turned down for the second round
 `,
 	"targets": `branch,target flow [l/s]
 R2,0.55
@@ -74,7 +79,12 @@ flow, its pipe, its terminal, its regulating valve and the header segment
 between the previous take-off and its own. Rows go in order along the
 headers from the pump. A branch with a parent hangs from that riser; its
 header segment is then the riser pipe from the previous take-off on the same
-riser. Required.`,
+riser. The header columns describe both legs of the segment (supply and
+return) and header k is shared evenly between them; where the return leg
+differs, as in a reverse-return header whose legs carry different flows, give
+its own return size or bore, return standard and return roughness, and put
+each leg's own loss coefficients in supply k and return k. Blank return
+columns take the header's. Required.`,
 	"valves": `The valves sheet defines the regulating valve models the branches name,
 one row per point of each model's Kv table ("long" format): settings must
 rise down the table and Kv must rise with them. A valve without a table is
@@ -96,13 +106,27 @@ branch id, pump or header) and what it measures:
   header diff  differential between the headers           at a branch take-off or header
   pump diff    differential across the pump               at pump
   total flow   flow through the pump                      at pump or header
-The unit column gives the unit of value and uncertainty for that row. A
+  speed        the drive's displayed speed                at pump
+The unit column gives the unit of value and uncertainty for that row; a
+speed is a ratio to rated speed, or a percentage with unit %. A
 setting records a valve moved for that reading; blank means the as-found
 setting. Give an instrument kind or an uncertainty (or both); see
 "flowset help instruments". Readings of one quantity at one place in one
 state that disagree by more than three combined standard uncertainties are
-warned about. Required; a sheet without readings is read with a warning,
-as there is nothing to calibrate.`,
+warned about.
+
+Readings are taken as the instruments gave them. A differential a little
+below zero (a gauge read at no flow) is kept as read, with a warning, down to
+twice its expanded uncertainty below zero; further below it is an error. A
+speed may pass the site's max speed by as much (display noise), not more. An
+uncertainty of 0 is replaced by the instrument's default, with a warning.
+Required; a sheet without readings is read with a warning, as there is
+nothing to calibrate.`,
+	"states": `The states sheet gives a survey state its own pump setting, one row per
+state: the speed the pump ran at (pump boundary) or the differential its
+controller held (constant-differential boundary). A state not listed runs at
+the site sheet's speed or set point; a blank cell does too. Every state
+named must appear in the readings sheet. Optional.`,
 	"targets": `The targets sheet overrides the design flow of some branches as the flow to
 balance to, one row per branch. Optional.`,
 }
@@ -113,6 +137,7 @@ var sheetTitles = map[string]string{
 	"valves":   "valves.csv: regulating valve Kv tables and characteristics",
 	"pump":     "pump.csv: the pump curve",
 	"readings": "readings.csv: what was measured on the visit",
+	"states":   "states.csv: the pump's speed or set point in each survey state",
 	"targets":  "targets.csv: flows to balance to other than design",
 }
 
@@ -155,6 +180,7 @@ func sheetsTopic() Topic {
   valves.csv     regulating valve models                 when branches name valves
   pump.csv       pump curve                              optional
   readings.csv   the measurements of the visit           required
+  states.csv     pump speed or set point per state       optional
   targets.csv    flows to balance to other than design   optional
 In a workbook each sheet is a tab of the same name without ".csv".
 "flowset help <sheet>" describes each one.
@@ -235,6 +261,9 @@ give the standard uncertainty the calibration weighs readings with.
 		if len(floors) > 0 {
 			def += ", at least " + strings.Join(floors, " or ")
 		}
+		if in.SpeedFloor > 0 {
+			def += fmt.Sprintf("; a speed ±%g %% of rated", in.SpeedFloor*100)
+		}
 		fmt.Fprintf(&b, "\n  %s: %s\n", in.Name, in.Title)
 		fmt.Fprintf(&b, "      reads %s\n", strings.Join(reads, ", "))
 		fmt.Fprintf(&b, "      default %s (k = 2)\n", def)
@@ -245,7 +274,10 @@ A stated uncertainty replaces the default: "5 %" is relative to the
 reading, a bare number is in the row's unit ("uncertainty [%]" makes all
 bare numbers percentages). It is taken as expanded with k = 2 unless the k
 column says otherwise (k = 1 for a standard uncertainty). A reading with
-neither instrument nor uncertainty is an error.
+neither instrument nor uncertainty is an error. An uncertainty of 0 (or 0 %,
+or a percentage of a zero reading) says nothing about the instrument: the
+instrument's default replaces it, with a warning; without an instrument it is
+an error.
 
 A valve-meter flow is computed from the valve's differential and its Kv
 table; the calibration converts it back to that differential, so it is not

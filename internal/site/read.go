@@ -19,7 +19,7 @@ import (
 )
 
 // ReadDir reads the site in folder dir of fsys: site.csv, branches.csv,
-// valves.csv, pump.csv, readings.csv and targets.csv (file names in any
+// valves.csv, pump.csv, readings.csv, states.csv and targets.csv (file names in any
 // case). The Problems hold every error and warning found. The error is
 // non-nil, and the Site nil, when the folder cannot be read or any problem
 // is an error; it is then either an I/O error or Problems.Err().
@@ -294,8 +294,12 @@ func (in *input) build(ctx context.Context) *Site {
 	if ctx.Err() != nil {
 		return s // finish returns ctx's error
 	}
+	var labels map[string]bool // every state the readings sheet names; nil when it cannot be read
 	if t := in.tables[readingColumns.name]; t != nil {
-		s.Readings = readReadings(t, s, len(s.Branches) > 0, valves, p)
+		s.Readings, labels = readReadings(t, s, len(s.Branches) > 0, valves, p)
+	}
+	if t := in.tables[stateColumns.name]; t != nil {
+		s.States = readStates(t, s, labels, p)
 	}
 	if ctx.Err() != nil {
 		return s // finish returns ctx's error
@@ -470,6 +474,14 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.HeaderSize = sr.text(r, "header size", &ok)
 		b.HeaderBore, hboreOK = sr.num(r, "header bore")
 		b.HeaderK = sr.numOr(r, "header k", 0, &ok)
+		b.HeaderRoughness, _ = sr.num(r, "header roughness")
+		b.SupplyK = sr.numOr(r, "supply k", 0, &ok)
+		b.ReturnK = sr.numOr(r, "return k", 0, &ok)
+		b.ReturnStandard = sr.text(r, "return standard", &ok)
+		b.ReturnSize = sr.text(r, "return size", &ok)
+		var rboreOK bool
+		b.ReturnBore, rboreOK = sr.num(r, "return bore")
+		b.ReturnRoughness, _ = sr.num(r, "return roughness")
 		b.Note = sr.text(r, "note", &ok)
 		ref := branchRefs{id: sr.ref(r, "id"), parent: sr.ref(r, "parent"), valve: sr.ref(r, "valve"),
 			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length")}
@@ -498,10 +510,24 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 				"a pipe standard and size, or a pipe bore"))
 			ok = false
 		}
-		if b.SupplyLength+b.ReturnLength > 0 && hboreOK && math.IsNaN(b.HeaderBore) && (b.HeaderStandard == "" || b.HeaderSize == "") {
-			p.add(sr.ref(r, "header size").problem(SeverityError, ErrMissing, "header length given without the header's size",
-				"a header standard and size, or a header bore"))
-			ok = false
+		if hboreOK && rboreOK {
+			ownReturn := b.ReturnStandard != "" || b.ReturnSize != "" || !math.IsNaN(b.ReturnBore)
+			supplyBare := b.SupplyLength > 0 && !b.SupplyLeg().Sized()
+			returnBare := b.ReturnLength > 0 && !b.ReturnLeg().Sized()
+			switch {
+			case supplyBare || returnBare && !ownReturn:
+				p.add(sr.ref(r, "header size").problem(SeverityError, ErrMissing, "header length given without the header's size",
+					"a header standard and size, or a header bore"))
+				ok = false
+			case returnBare && b.ReturnSize != "":
+				p.add(sr.ref(r, "return size").problem(SeverityError, ErrMissing, "return size given without a pipe standard",
+					"a return or header standard to look the size up in, or a return bore"))
+				ok = false
+			case returnBare:
+				p.add(sr.ref(r, "return size").problem(SeverityError, ErrMissing, "return length given without the return leg's size",
+					"a return size with a header or return standard, or a return bore"))
+				ok = false
+			}
 		}
 		if !math.IsNaN(b.Setting) && b.Valve == "" {
 			p.add(ref.setting.problem(SeverityError, ErrMissing, "setting given for a branch without a valve",
@@ -873,11 +899,15 @@ func readPump(t *table, p *Problems) []PumpPoint {
 	return out
 }
 
-func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Problems) []Reading {
+// readReadings returns the readings and the label of every state a row
+// names, whether or not the row could be read, for the states sheet to
+// refer to.
+func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Problems) ([]Reading, map[string]bool) {
 	sr := bind(t, &readingColumns, p)
-	if !sr.has("where") || !sr.has("quantity") || !sr.has("value") {
-		return nil
+	if !sr.has("where") || !sr.has("quantity") || !sr.has("value") || sr.broken["state"] {
+		return nil, nil
 	}
+	labels := map[string]bool{}
 	ids := make([]string, len(s.Branches))
 	byID := make(map[string]*Branch, len(s.Branches))
 	for i := range s.Branches {
@@ -896,6 +926,9 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		rd.State = strings.ToLower(sr.text(r, "state", &ok))
 		if rd.State == "" {
 			rd.State = defaultState
+		}
+		if ok {
+			labels[rd.State] = true
 		}
 		rd.Where = sr.text(r, "where", &ok)
 		if w := sr.word(r, "quantity", &ok); w != "" {
@@ -938,7 +971,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 			p.add(wref.problem(SeverityError, ErrRange, fmt.Sprintf("%s is not read here", rd.What), want))
 			continue
 		}
-		if !readingValue(sr, r, &rd, p) {
+		if !readingValue(sr, r, &rd, s.Boundary.MaxSpeed, p) {
 			continue
 		}
 		// Valve-related checks.
@@ -985,6 +1018,68 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 			Msg: "no readings: nothing to calibrate", Want: "one row per reading below the header"})
 	}
 	checkAgreement(out, p)
+	return out, labels
+}
+
+// readStates reads the states sheet: each listed survey state's pump speed
+// or set point. labels are the states the readings name (nil when the
+// readings sheet cannot be read: references are then not checked).
+func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateSetting {
+	sr := bind(t, &stateColumns, p)
+	if !sr.has("state") {
+		return nil
+	}
+	known := sortedKeys(labels)
+	b := s.Boundary
+	first := map[string]int{}
+	out := []StateSetting{}
+	for _, r := range t.rows {
+		ok := true
+		st := StateSetting{Pos: Pos{File: t.file, Line: r.line}}
+		st.Label = strings.ToLower(sr.text(r, "state", &ok))
+		sp, good1 := sr.num(r, "speed")
+		set, good2 := sr.num(r, "set point")
+		st.Speed, st.SetPoint = sp, set
+		st.Note = sr.text(r, "note", &ok)
+		ref := sr.ref(r, "state")
+		switch {
+		case !ok || !good1 || !good2:
+			continue
+		case st.Label == "":
+			p.add(ref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
+			continue
+		case labels != nil && !labels[st.Label]:
+			want := "a state label from the readings sheet, which names none"
+			if len(known) > 0 {
+				want = refWant("a state label from the readings sheet: "+strings.Join(known, ", "), st.Label, known)
+			}
+			p.add(ref.problem(SeverityError, ErrReference, "no reading is in this state", want))
+			continue
+		}
+		if line, dup := first[st.Label]; dup {
+			p.add(ref.problem(SeverityError, ErrDuplicate, "state given twice", fmt.Sprintf("one row per state; the first is on line %d", line)))
+			continue
+		}
+		first[st.Label] = r.line
+		if !math.IsNaN(st.Speed) {
+			switch {
+			case b.Kind != PumpCurve:
+				p.add(sr.ref(r, "speed").problem(SeverityWarning, ErrRange, fmt.Sprintf("speed ignored with boundary %s", b.Kind),
+					"boundary pump; a drive holding a set point finds its own speed"))
+				st.Speed = nan
+			case st.Speed > b.MaxSpeed:
+				p.add(sr.ref(r, "speed").problem(SeverityError, ErrRange, "above max speed",
+					fmt.Sprintf("a speed up to the max speed, %s", fmtNum(b.MaxSpeed))))
+				continue
+			}
+		}
+		if !math.IsNaN(st.SetPoint) && b.Kind != ConstantDiff {
+			p.add(sr.ref(r, "set point").problem(SeverityWarning, ErrRange, fmt.Sprintf("set point ignored with boundary %s", b.Kind),
+				"boundary constant-differential"))
+			st.SetPoint = nan
+		}
+		out = append(out, st)
+	}
 	return out
 }
 
@@ -1013,18 +1108,22 @@ func placeWant(q Quantity, where string, branch bool) string {
 }
 
 // readingValue reads the value, unit, instrument and uncertainty of a
-// reading row into rd.
-func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
+// reading row into rd. maxSpeed is the drive's highest speed ratio, which a
+// speed reading may pass only by its display's noise.
+func readingValue(sr *sheetReader, r row, rd *Reading, maxSpeed float64, p *Problems) bool {
 	if sr.broken["uncertainty"] || sr.broken["unit"] {
 		return false // reported on the header line
 	}
+	// A differential near zero read by a gauge may come out a little below
+	// it: such a reading is kept as read (see negativeDiff), so the value
+	// is bounded below only by the plausible range here.
 	kind, def := units.Pressure, "kPa"
-	limit := &column{name: "value", typ: numCol, kind: units.Pressure, what: "pressure difference", lo: 0, hi: maxPressure}
+	limit := &column{name: "value", typ: numCol, kind: units.Pressure, what: "pressure difference", lo: -maxPressure, hi: maxPressure}
 	if rd.What == Speed {
-		// A drive shows its speed as % of rated or as a ratio; a little
-		// above the maximum is display noise, not a fault.
+		// A drive shows its speed as % of rated or as a ratio.
 		kind, def = units.Dimensionless, "1"
-		limit = &column{name: "value", typ: numCol, kind: units.Dimensionless, what: "speed ratio", lo: 0, hi: 2}
+		limit = &column{name: "value", typ: numCol, kind: units.Dimensionless, what: "speed ratio", lo: 0, hi: 2,
+			want: "a ratio to rated speed from 0 to 2; give unit % for a percentage"}
 	}
 	if rd.What.IsFlow() {
 		kind, def = units.Flow, "l/s"
@@ -1080,11 +1179,49 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 			return false
 		}
 	}
-	ok := true
-	k := sr.numOr(r, "k", defaultCoverage, &ok)
+	sigma, ok := readingSigma(sr, r, rd, in, u, limit.hi, p)
 	if !ok {
 		return false
 	}
+	rd.Sigma = sigma
+	// Twice the expanded uncertainty at k = 2: a reading this far past a
+	// bound is a slip, not noise. Common practice, no source.
+	slack := 2 * defaultCoverage * sigma
+	show := func(x float64) string {
+		s := strconv.FormatFloat(u.FromSI(x), 'g', 3, 64)
+		if u.Symbol != "" && u.Symbol != "1" {
+			s += " " + u.Symbol
+		}
+		return s
+	}
+	switch {
+	case v < 0 && -v > slack:
+		p.add(vref.problem(SeverityError, ErrRange, "negative beyond its uncertainty",
+			fmt.Sprintf("a pressure difference of 0 or more; a reading near zero is taken as read down to -%s, twice its expanded uncertainty", show(slack))))
+		return false
+	case v < 0:
+		p.add(vref.problem(SeverityWarning, ErrRange, "negative, but within its uncertainty of zero: kept as read",
+			"nothing to change if the instrument showed it; the fit compares it as read"))
+	case rd.What == Speed && v > maxSpeed+slack:
+		p.add(vref.problem(SeverityError, ErrRange, fmt.Sprintf("above the drive's max speed %s by more than the display's uncertainty", show(maxSpeed)),
+			fmt.Sprintf("a speed up to %s (max speed plus twice the reading's expanded uncertainty); check the max speed in the site sheet, and give unit %% for a percentage", show(maxSpeed+slack))))
+		return false
+	}
+	return true
+}
+
+// readingSigma returns the standard uncertainty of a reading: its stated
+// uncertainty over its coverage factor, else its instrument's default. A
+// stated uncertainty of zero (no reading is exact) takes the instrument's
+// default, with a warning. u is the row's unit, hi the largest value of the
+// quantity.
+func readingSigma(sr *sheetReader, r row, rd *Reading, in *Instrument, u units.Unit, hi float64, p *Problems) (float64, bool) {
+	ok := true
+	k := sr.numOr(r, "k", defaultCoverage, &ok)
+	if !ok {
+		return 0, false
+	}
+	v := rd.Value
 	uc := ""
 	if i, ok := sr.idx["uncertainty"]; ok {
 		uc = r.rawCell(i)
@@ -1094,15 +1231,14 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 			ref := sr.ref(r, "instrument")
 			ref.field = "instrument"
 			p.add(ref.problem(SeverityError, ErrMissing, "no instrument and no uncertainty", "an instrument kind or an uncertainty"))
-			return false
+			return 0, false
 		}
-		rd.Sigma = in.DefaultSigma(rd.What, v)
 		if sr.has("k") && !math.IsNaN(mustNum(sr, r, "k")) {
 			p.add(sr.ref(r, "k").problem(SeverityWarning, ErrRange, "coverage factor without an uncertainty, ignored", "an uncertainty with it"))
 		}
-		return true
+		return in.DefaultSigma(rd.What, v), true
 	}
-	uref = sr.ref(r, "uncertainty")
+	uref := sr.ref(r, "uncertainty")
 	_, pct := sr.units["uncertainty"]
 	text := strings.TrimSpace(uc)
 	if t, ok := strings.CutSuffix(text, "%"); ok {
@@ -1114,36 +1250,57 @@ func readingValue(sr *sheetReader, r row, rd *Reading, p *Problems) bool {
 			ne.want = "a percentage such as 5 %, or a number in the row's unit"
 		}
 		p.add(uref.problem(SeverityError, ne.err, ne.msg, ne.want))
-		return false
+		return 0, false
 	}
 	var U float64
+	zeroMsg, zeroWant, zeroWhy := "must be positive", "an uncertainty above 0", "zero uncertainty"
 	if pct {
-		if x < 1e-6 || x > 100 {
+		if x != 0 && x < 1e-6 || x > 100 {
 			p.add(uref.problem(SeverityError, ErrRange, "relative uncertainty out of range", "a percentage above 0 and up to 100"))
-			return false
+			return 0, false
 		}
 		U = x / 100 * math.Abs(v)
-		if U == 0 {
-			p.add(uref.problem(SeverityError, ErrRange, "a percentage of a zero reading is zero", "an absolute uncertainty in the row's unit"))
-			return false
+		if x > 0 {
+			zeroMsg, zeroWant = "a percentage of a zero reading is zero", "an absolute uncertainty in the row's unit"
+			zeroWhy = zeroMsg
 		}
 	} else {
 		U = u.ToSI(x)
-		if !(U > 0) || math.IsInf(U, 0) {
+		if U < 0 || math.IsInf(U, 0) {
 			p.add(uref.problem(SeverityError, ErrRange, "must be positive", "an uncertainty above 0"))
-			return false
+			return 0, false
 		}
 	}
-	rd.Sigma = U / k
-	switch {
-	case rd.Sigma > limit.hi:
-		p.add(uref.problem(SeverityError, ErrRange, "too large", "an uncertainty no larger than the largest reading"))
-		return false
-	case rd.Sigma < minMagnitude:
-		p.add(uref.problem(SeverityError, ErrRange, "too small", "an uncertainty of sensible size"))
-		return false
+	if U == 0 {
+		// A technician who writes 0 means the instrument's resolution, not
+		// an exact reading; a zero weight would be infinite.
+		var d float64
+		if in != nil {
+			d = in.DefaultSigma(rd.What, v)
+		}
+		if !(d > 0) {
+			p.add(uref.problem(SeverityError, ErrRange, zeroMsg, zeroWant+", or an instrument kind whose default applies"))
+			return 0, false
+		}
+		show := strconv.FormatFloat(u.FromSI(d*defaultCoverage), 'g', 3, 64)
+		if u.Symbol != "" && u.Symbol != "1" {
+			show += " " + u.Symbol
+		}
+		p.add(uref.problem(SeverityWarning, ErrRange,
+			fmt.Sprintf("%s: replaced by the %s default, ±%s at k = 2", zeroWhy, in.Name, show),
+			"the reading's uncertainty: no reading is exact"))
+		return d, true
 	}
-	return true
+	sigma := U / k
+	switch {
+	case sigma > hi:
+		p.add(uref.problem(SeverityError, ErrRange, "too large", "an uncertainty no larger than the largest reading"))
+		return 0, false
+	case sigma < minMagnitude:
+		p.add(uref.problem(SeverityError, ErrRange, "too small", "an uncertainty of sensible size"))
+		return 0, false
+	}
+	return sigma, true
 }
 
 func mustNum(sr *sheetReader, r row, name string) float64 {
@@ -1224,6 +1381,10 @@ func checkAgreement(rs []Reading, p *Problems) {
 }
 
 func displayUnit(q Quantity) units.Unit {
+	if q == Speed {
+		u, _ := units.Lookup(units.Dimensionless, "")
+		return u
+	}
 	if q.IsFlow() {
 		u, _ := units.Lookup(units.Flow, "l/s")
 		return u

@@ -137,7 +137,20 @@ var branchColumns = schema{name: "branches", columns: []column{
 	{name: "header size", typ: textCol, help: "nominal size of that header segment"},
 	{name: "header bore", typ: numCol, kind: units.Length, unit: "mm", what: "bore", lo: minBore, hi: maxBore,
 		help: "inside diameter of that header segment; blank = from the catalogue"},
-	{name: "header k", typ: numCol, what: "loss coefficient", lo: 0, hi: maxK, help: "loss coefficients of that header segment; default 0"},
+	{name: "header k", typ: numCol, what: "loss coefficient", lo: 0, hi: maxK,
+		help: "loss coefficients of that header segment, shared evenly by its supply and return legs; default 0"},
+	{name: "header roughness", typ: numCol, kind: units.Length, unit: "mm", what: "roughness", lo: 0, hi: maxRough,
+		help: "absolute roughness of that header segment; blank or 0 = by the material of its standard"},
+	{name: "supply k", typ: numCol, what: "loss coefficient", lo: 0, hi: maxK,
+		help: "loss coefficients of the supply leg alone, added to its share of header k; default 0"},
+	{name: "return k", typ: numCol, what: "loss coefficient", lo: 0, hi: maxK,
+		help: "loss coefficients of the return leg alone, added to its share of header k; default 0"},
+	{name: "return standard", typ: textCol, help: "pipe catalogue of the return leg; blank = the header standard"},
+	{name: "return size", typ: textCol, help: "nominal size of the return leg; blank = as the header (supply leg)"},
+	{name: "return bore", typ: numCol, kind: units.Length, unit: "mm", what: "bore", lo: minBore, hi: maxBore,
+		help: "inside diameter of the return leg; blank = as the header, or from the return size"},
+	{name: "return roughness", typ: numCol, kind: units.Length, unit: "mm", what: "roughness", lo: 0, hi: maxRough,
+		help: "absolute roughness of the return leg; blank or 0 = as the header, or by the return standard"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 
@@ -166,15 +179,25 @@ var readingColumns = schema{name: "readings", columns: []column{
 	{name: "state", typ: textCol, help: "survey state, e.g. as-found or after-change; default as-found"},
 	{name: "where", typ: textCol, required: true, help: "branch id, pump or header"},
 	{name: "quantity", typ: wordCol, required: true, words: quantityWords[1:],
-		help: "flow, valve diff, branch diff, header diff, pump diff or total flow"},
+		help: "flow, valve diff, branch diff, header diff, pump diff, total flow or speed"},
 	{name: "value", typ: numCol, required: true, what: "reading", help: "the reading, in the row's unit"},
-	{name: "unit", typ: textCol, help: "unit of value and uncertainty; default l/s for flows, kPa for differentials"},
+	{name: "unit", typ: textCol, help: "unit of value and uncertainty; default l/s for flows, kPa for differentials, a ratio for speed"},
 	{name: "setting", typ: numCol, what: "setting", lo: 0, hi: maxSetting, help: "valve setting when read; blank = the as-found setting"},
 	{name: "instrument", typ: wordCol, words: instrumentNames(), help: "instrument kind, see flowset help instruments"},
 	{name: "uncertainty", typ: textCol, help: "expanded uncertainty, e.g. 5 % or 0.2 in the row's unit; default by instrument"},
 	{name: "k", aliases: []string{"coverage", "coverage factor"}, typ: numCol, what: "coverage factor", lo: 0.5, hi: 10,
 		help: "coverage factor of the uncertainty; default 2 (about 95 %)"},
 	{name: "time", typ: textCol, help: "when it was read, free text"},
+	{name: "note", typ: textCol, help: "free text"},
+}}
+
+var stateColumns = schema{name: "states", columns: []column{
+	{name: "state", typ: textCol, required: true, help: "survey state label as used in the readings sheet, e.g. as-found"},
+	{name: "speed", typ: numCol, kind: units.Dimensionless, unit: "", what: "speed ratio", lo: 1e-3, hi: 2,
+		want: `a ratio to nominal speed from 0.001 to 2; write "speed [%]" for a percentage`,
+		help: "pump speed in that state as a ratio to nominal, for a pump boundary; blank = the site's speed"},
+	{name: "set point", aliases: []string{"setpoint"}, typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 1, hi: maxPressure,
+		help: "differential the controller held in that state, for a constant-differential boundary; blank = the site's set point"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 
@@ -186,7 +209,7 @@ var targetColumns = schema{name: "targets", columns: []column{
 }}
 
 // sheets lists every sheet in reading order.
-var sheets = []*schema{&siteKeys, &branchColumns, &valveColumns, &pumpColumns, &readingColumns, &targetColumns}
+var sheets = []*schema{&siteKeys, &branchColumns, &valveColumns, &pumpColumns, &readingColumns, &stateColumns, &targetColumns}
 
 // Defaults stated in the help and applied by the reader.
 const (

@@ -4,7 +4,7 @@
 // sheets with the file, line, column and field a technician has to fix.
 //
 // A site is either a folder of CSV files (site.csv, branches.csv, valves.csv,
-// pump.csv, readings.csv, targets.csv) or one .xlsx workbook with one tab per
+// pump.csv, readings.csv, states.csv, targets.csv) or one .xlsx workbook with one tab per
 // sheet of the same name. Only branches and readings are required. The
 // layout of each sheet is given by Topics, which is also the text of
 // `flowset help`.
@@ -45,6 +45,10 @@ type Site struct {
 	Valves   []ValveModel
 	Pump     []PumpPoint
 	Readings []Reading
+	// States gives some survey states their own pump speed or set point;
+	// nil when states.csv is absent. A state not listed runs at the
+	// Boundary's.
+	States []StateSetting
 	// Targets overrides the design flow of some branches as the flow to
 	// balance to, m3/s, keyed by branch ID; nil when targets.csv is absent.
 	Targets map[string]float64
@@ -119,16 +123,85 @@ type Branch struct {
 	Setting    float64 // as-found setting in the valve's units; NaN if not recorded
 	ControlKvs float64 // m3/h at 1 bar of a control valve in series; 0 = none
 
-	// The header segment between the previous take-off and this one.
-	SupplyLength   float64 // m
-	ReturnLength   float64 // m
-	HeaderStandard string
-	HeaderSize     string
-	HeaderBore     float64 // m; NaN = from the catalogue
-	HeaderK        float64
+	// The header segment between the previous take-off and this one. The
+	// header columns describe both legs; the return columns, where given,
+	// the return leg alone (see ReturnLeg).
+	SupplyLength    float64 // m
+	ReturnLength    float64 // m
+	HeaderStandard  string
+	HeaderSize      string
+	HeaderBore      float64 // m; NaN = from the catalogue
+	HeaderK         float64 // loss coefficients of the segment, shared evenly by its two legs
+	HeaderRoughness float64 // m; NaN or 0 = by the material of the standard
+	SupplyK         float64 // loss coefficients of the supply leg alone
+	ReturnK         float64 // loss coefficients of the return leg alone
+	ReturnStandard  string  // "" = the header standard
+	ReturnSize      string  // "" = as the supply leg
+	ReturnBore      float64 // m; NaN or 0 = as the supply leg, or from ReturnSize
+	ReturnRoughness float64 // m; NaN or 0 = as the supply leg, or by ReturnStandard
 
 	Note string
 	Pos  Pos
+}
+
+// Leg is one leg (supply or return) of a branch's header segment as the
+// sheets give it: a bore, or a standard and size to look the bore up by.
+type Leg struct {
+	Standard, Size string
+	Bore           float64 // m; NaN or 0 = from the catalogue by Standard and Size
+	Roughness      float64 // m; NaN = by the material of Standard
+	Length         float64 // m
+	K              float64 // loss coefficients
+}
+
+// Sized reports whether the leg names a bore or a catalogue size.
+func (l Leg) Sized() bool { return l.Bore > 0 || l.Standard != "" && l.Size != "" }
+
+// SupplyLeg returns the supply leg of b's header segment: the header
+// columns, half the header k and the supply k. A roughness of 0 counts as not
+// given (no pipe is smooth), so a Branch built in code with the new fields
+// left zero keeps the behaviour of one header pipe for both legs.
+func (b *Branch) SupplyLeg() Leg {
+	l := Leg{Standard: b.HeaderStandard, Size: b.HeaderSize, Bore: b.HeaderBore, Roughness: nan,
+		Length: b.SupplyLength, K: b.HeaderK/2 + b.SupplyK}
+	if b.HeaderRoughness > 0 {
+		l.Roughness = b.HeaderRoughness
+	}
+	return l
+}
+
+// ReturnLeg returns the return leg of b's header segment: the header columns
+// where the return columns are blank, half the header k and the return k. A
+// return bore or size replaces the header's pipe (a return size is looked up
+// in the return standard, else the header's); a return standard alone names
+// the return leg's material, so its roughness follows it unless a header or
+// return roughness is given.
+func (b *Branch) ReturnLeg() Leg {
+	l := b.SupplyLeg()
+	l.Length, l.K = b.ReturnLength, b.HeaderK/2+b.ReturnK
+	if b.ReturnStandard != "" {
+		l.Standard = b.ReturnStandard
+	}
+	switch {
+	case b.ReturnBore > 0:
+		l.Bore, l.Size = b.ReturnBore, b.ReturnSize
+	case b.ReturnSize != "":
+		l.Bore, l.Size = nan, b.ReturnSize
+	}
+	if b.ReturnRoughness > 0 {
+		l.Roughness = b.ReturnRoughness
+	}
+	return l
+}
+
+// StateSetting is one row of the states sheet: the pump as it ran in one
+// survey state.
+type StateSetting struct {
+	Label    string
+	Speed    float64 // pump speed ratio (pump boundary); NaN = the site's
+	SetPoint float64 // Pa (constant-differential boundary); NaN = the site's
+	Note     string
+	Pos      Pos
 }
 
 // ValveModel is a regulating valve: either a table of Kv against setting,
@@ -282,6 +355,16 @@ func (s *Site) Valve(name string) *ValveModel {
 	for i := range s.Valves {
 		if s.Valves[i].Name == name {
 			return &s.Valves[i]
+		}
+	}
+	return nil
+}
+
+// State returns the states sheet's row for survey state label, or nil.
+func (s *Site) State(label string) *StateSetting {
+	for i := range s.States {
+		if s.States[i].Label == label {
+			return &s.States[i]
 		}
 	}
 	return nil

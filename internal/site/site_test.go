@@ -80,6 +80,13 @@ func TestReadDirValues(t *testing.T) {
 		{"R2.1 bore", s.Branches[2].PipeBore, 0.0217},
 		{"R2.1 roughness", s.Branches[2].Roughness, 45e-6},
 		{"R2.2 header bore", s.Branches[3].HeaderBore, 0.036},
+		{"AHU-1 header roughness", s.Branches[0].HeaderRoughness, 50e-6},
+		{"AHU-1 return k", s.Branches[0].ReturnK, 0.3},
+		// The supply leg takes half the header k; the return leg half plus its own.
+		{"AHU-1 supply leg k", s.Branches[0].SupplyLeg().K, 0.4},
+		{"AHU-1 return leg k", s.Branches[0].ReturnLeg().K, 0.7},
+		{"AHU-1 return leg roughness", s.Branches[0].ReturnLeg().Roughness, 50e-6},
+		{"after-change set point", s.States[0].SetPoint, 55e3},
 		{"BV32 min diff", s.Valves[1].MinDiff, 2e3},
 		{"BV40 min diff (default 3 kPa)", s.Valves[2].MinDiff, 3e3},
 		{"BV40 step", s.Valves[2].Step, 0.2},
@@ -112,6 +119,10 @@ func TestReadDirValues(t *testing.T) {
 		{"AHU-1 roughness", s.Branches[0].Roughness},
 		{"R2 terminal flow", s.Branches[1].TerminalFlow},
 		{"R2.1 header bore", s.Branches[2].HeaderBore},
+		{"AHU-1 return bore", s.Branches[0].ReturnBore},
+		{"AHU-1 return leg bore (from its size)", s.Branches[0].ReturnLeg().Bore},
+		{"R2 header roughness", s.Branches[1].HeaderRoughness},
+		{"after-change speed", s.States[0].Speed},
 		{"reading 1 setting", s.Readings[0].Setting},
 		{"BV20 kvs", s.Valves[0].Kvs},
 	}
@@ -133,6 +144,10 @@ func TestReadDirValues(t *testing.T) {
 		{"CV25 characteristic", s.Valves[3].Characteristic, "equal-percentage"},
 		{"reading 2 quantity", s.Readings[1].What.String(), "valve diff"},
 		{"reading 9 state", s.Readings[8].State, "after-change"},
+		{"AHU-1 return leg size", s.Branches[0].ReturnLeg().Size, "DN65"},
+		{"AHU-1 return leg standard", s.Branches[0].ReturnLeg().Standard, "en10255-m"},
+		{"AHU-1 supply leg size", s.Branches[0].SupplyLeg().Size, "DN80"},
+		{"state label", s.States[0].Label, "after-change"},
 		{"R2.1 position", s.Branches[2].Pos.String(), "testdata/small/branches.csv:6"},
 	}
 	for _, c := range words[:len(words)-1] {
@@ -387,7 +402,7 @@ func TestTopics(t *testing.T) {
 			t.Errorf("topic %q: title %q, body of %d bytes", tp.Name, tp.Title, len(tp.Body))
 		}
 	}
-	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "targets", "units", "instruments"}
+	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "units", "instruments"}
 	if diff := cmp.Diff(wantNames, names); diff != "" {
 		t.Errorf("topic names (-want +got):\n%s", diff)
 	}
@@ -400,7 +415,7 @@ func TestTopics(t *testing.T) {
 		}
 	}
 	for _, in := range instruments {
-		if !strings.Contains(topics[8].Body, in.Name) || !strings.Contains(topics[8].Body, in.Source) {
+		if body := topics[len(topics)-1].Body; !strings.Contains(body, in.Name) || !strings.Contains(body, in.Source) {
 			t.Errorf("instruments topic lacks %q or its source", in.Name)
 		}
 	}

@@ -113,8 +113,17 @@ func render(s *Site) []outSheet {
 			"roughness": b.Roughness, "fittings k": b.FittingsK, "terminal drop": b.TerminalDrop, "terminal flow": b.TerminalFlow,
 			"valve": b.Valve, "setting": b.Setting, "control kvs": b.ControlKvs,
 			"supply length": b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
-			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK, "note": b.Note,
+			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK,
+			"header roughness": given(b.HeaderRoughness), "supply k": b.SupplyK, "return k": b.ReturnK,
+			"return standard": b.ReturnStandard, "return size": b.ReturnSize, "return bore": given(b.ReturnBore),
+			"return roughness": given(b.ReturnRoughness), "note": b.Note,
 		}))
+	}
+
+	if !slices.ContainsFunc(s.Branches, ownLegs) {
+		// The per-leg columns are written only where a branch uses them,
+		// so a site with one pipe per header segment reads as before.
+		br = dropColumns(br, legColumns)
 	}
 
 	va := columnSheet(&valveColumns)
@@ -152,6 +161,15 @@ func render(s *Site) []outSheet {
 		}))
 	}
 	out := []outSheet{site, br, va, pu, rd}
+	if s.States != nil {
+		st := columnSheet(&stateColumns)
+		st.help = nil
+		for _, x := range s.States {
+			st.rows = append(st.rows, cellsOf(&stateColumns, map[string]any{"state": x.Label, "speed": x.Speed,
+				"set point": x.SetPoint, "note": x.Note}))
+		}
+		out = append(out, st)
+	}
 	if s.Targets != nil {
 		tg := columnSheet(&targetColumns)
 		tg.help = nil
@@ -169,6 +187,47 @@ func render(s *Site) []outSheet {
 		out = slices.DeleteFunc(out, func(o outSheet) bool { return o.name == pumpColumns.name })
 	}
 	return out
+}
+
+// legColumns are the branches sheet's columns for header legs that differ.
+var legColumns = []string{"header roughness", "supply k", "return k", "return standard", "return size", "return bore", "return roughness"}
+
+// ownLegs reports whether b's header legs need the per-leg columns.
+func ownLegs(b Branch) bool {
+	return b.HeaderRoughness > 0 || b.SupplyK > 0 || b.ReturnK > 0 || b.ReturnStandard != "" || b.ReturnSize != "" ||
+		b.ReturnBore > 0 || b.ReturnRoughness > 0
+}
+
+// dropColumns removes the named columns of a sheet without help rows.
+func dropColumns(o outSheet, names []string) outSheet {
+	var keep []int
+	for i, h := range o.header {
+		name, _, _ := splitUnit(h)
+		if !slices.Contains(names, name) {
+			keep = append(keep, i)
+		}
+	}
+	out := outSheet{name: o.name}
+	for _, i := range keep {
+		out.header = append(out.header, o.header[i])
+	}
+	for _, r := range o.rows {
+		row := make([]any, 0, len(keep))
+		for _, i := range keep {
+			row = append(row, r[i])
+		}
+		out.rows = append(out.rows, row)
+	}
+	return out
+}
+
+// given writes a value whose zero means "not given" (a Branch built in code
+// leaves the header leg fields zero) as a blank cell.
+func given(x float64) float64 {
+	if x > 0 {
+		return x
+	}
+	return nan
 }
 
 func branchIndex(s *Site, id string) int {
