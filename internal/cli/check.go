@@ -51,6 +51,10 @@ func printSummary(ios *IO, s *site.Site) {
 	fmt.Fprintf(w, "site %q: %d branches (%d risers), %d valve models, %d pump points, %d readings\n",
 		s.Name, sum.Branches, sum.Risers, sum.Valves, sum.PumpPoints, sum.Readings)
 	for _, st := range sum.States {
+		if st.Pump != "" {
+			fmt.Fprintf(w, "  state %-20s %d readings, pump at %s\n", st.State, st.Readings, st.Pump)
+			continue
+		}
 		fmt.Fprintf(w, "  state %-20s %d readings\n", st.State, st.Readings)
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)

@@ -26,6 +26,10 @@ type Summary struct {
 type StateCount struct {
 	State    string
 	Readings int
+	// Pump is the state's own pump setting from the states sheet, in
+	// words ("speed 0.8", "set point 55 kPa"); "" when it runs at the
+	// site's.
+	Pump string
 }
 
 // BranchReading tells how one branch was measured.
@@ -68,7 +72,7 @@ func (s *Site) Summary() Summary {
 	for _, r := range s.Readings {
 		k := slices.IndexFunc(sum.States, func(c StateCount) bool { return c.State == r.State })
 		if k < 0 {
-			sum.States = append(sum.States, StateCount{State: r.State})
+			sum.States = append(sum.States, StateCount{State: r.State, Pump: s.statePump(r.State)})
 			k = len(sum.States) - 1
 		}
 		sum.States[k].Readings++
@@ -117,3 +121,17 @@ func joinShort(names []string, n int) string {
 }
 
 func join(names []string) string { return strings.Join(names, ", ") }
+
+// statePump words the states sheet's pump setting for a state.
+func (s *Site) statePump(label string) string {
+	st := s.State(label)
+	switch {
+	case st == nil:
+		return ""
+	case st.Speed > 0:
+		return "speed " + fmtNum(st.Speed)
+	case st.SetPoint > 0:
+		return "set point " + fmtNum(st.SetPoint/1e3) + " kPa"
+	}
+	return ""
+}
