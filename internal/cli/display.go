@@ -100,3 +100,23 @@ func (u display) speed(r float64) string {
 	}
 	return fmt.Sprintf("%.1f %%", 100*r)
 }
+
+// cvPerKv is the ratio of a valve's Cv (US gpm at 1 psi) to its Kv (m3/h at
+// 1 bar), from the unit table: (1 m3/h in gpm) / sqrt(1 bar in psi) = 1.156
+// (IEC 60534-1 gives Kv = 0.865 Cv).
+func (u display) cvPerKv() float64 {
+	m3h, err1 := units.Lookup(units.Flow, "m3/h")
+	bar, err2 := units.Lookup(units.Pressure, "bar")
+	if err1 != nil || err2 != nil {
+		return math.NaN()
+	}
+	return u.flowU.FromSI(m3h.ToSI(1)) / math.Sqrt(u.diffU.FromSI(bar.ToSI(1)))
+}
+
+// temperature formats a temperature in K: °C for si, °F for us.
+func (u display) temperature(k float64) string {
+	if u.Name == "us" {
+		return fmt.Sprintf("%.1f °F", (k-273.15)*1.8+32)
+	}
+	return fmt.Sprintf("%.1f °C", k-273.15)
+}

@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"fmt"
 	"strconv"
 	"strings"
 )
@@ -23,6 +24,10 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 		case strings.Contains(c, "(l/s)"):
 			head[k] = strings.Replace(c, "(l/s)", "("+u.FlowUnit+")", 1)
 			conv[k] = func(v float64) float64 { return u.toFlow(v * 1e-3) }
+		case strings.HasPrefix(c, "Kv required") && u.Name == "us":
+			head[k] = "Cv required (US gpm at 1 psi)"
+			f := u.cvPerKv()
+			conv[k] = func(v float64) float64 { return v * f }
 		case strings.Contains(c, "(kPa)"):
 			head[k] = strings.Replace(c, "(kPa)", "("+u.DiffUnit+")", 1)
 			conv[k] = func(v float64) float64 { return u.toDiff(v * 1e3) }
@@ -35,6 +40,9 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 			if conv[k] != nil && u.Name != "si" && cell != "" {
 				if v, err := strconv.ParseFloat(cell, 64); err == nil {
 					cell = strconv.FormatFloat(conv[k](v), 'f', 2, 64)
+					if strings.HasPrefix(head[k], "Cv") {
+						cell = strconv.FormatFloat(conv[k](v), 'g', 3, 64)
+					}
 				}
 			}
 			nr = append(nr, cell)
@@ -45,4 +53,18 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 		out[r] = nr
 	}
 	return append(head, fieldSheetWriteIn...), out
+}
+
+// fieldSheetAbout is the workbook's "about" sheet: site, date, the visit's
+// pump step and order of work in the display units, and the cautions.
+func (j *job) fieldSheetAbout(u display, generated string) []string {
+	v := j.visit(u)
+	about := []string{j.L.Site.Name, "generated " + generated}
+	about = append(about, v.Short...)
+	in0, n, in1 := j.toleranceCounts()
+	about = append(about, fmt.Sprintf("Branches in tolerance: %d of %d as found, %d of %d after the plan.", in0, n, in1, n))
+	about = append(about, "Pump: "+v.Pump.From+" → "+v.Pump.To+"; set at "+v.Pump.Where+".")
+	about = append(about, v.Pump.Warnings...)
+	about = append(about, v.OrderReason)
+	return append(about, cautions(j.L.Site)...)
 }

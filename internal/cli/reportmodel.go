@@ -30,7 +30,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		fluidText = fmt.Sprintf("%s %g %% by volume", strings.ReplaceAll(s.Fluid, "-", " "), s.GlycolPercent)
 	}
 	in := report.Input{
-		Site: s.Name, Fluid: fluidText, Temperature: fmt.Sprintf("%.1f °C", s.Temperature-273.15),
+		Site: s.Name, Fluid: fluidText, Temperature: u.temperature(s.Temperature),
 		Generated: generated, Measured: measuredSentence(s),
 		FlowUnit: u.FlowUnit, PressureUnit: u.DiffUnit,
 		ToleranceLow: 100 * s.ToleranceLow, ToleranceHigh: 100 * s.ToleranceHigh,

@@ -278,8 +278,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			if err := put("field-sheet.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
 				return err
 			}
-			about := append([]string{j.L.Site.Name, "generated " + generated}, j.Plan.Summary()...)
-			about = append(about, report.DefaultCautions()...)
+			about := j.fieldSheetAbout(o.job.Units, generated)
 			if err := put("field-sheet.xlsx", func(w io.Writer) error { return writeWorkbook(w, h, rows, about) }); err != nil {
 				return err
 			}

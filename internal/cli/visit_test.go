@@ -3,6 +3,7 @@ package cli
 import (
 	"encoding/csv"
 	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -235,5 +236,26 @@ func TestCommandLineHelp(t *testing.T) {
 	code, _, stderr := run(t, "plan")
 	if code != ExitUsage || !strings.Contains(stderr, "usage: flowset plan SITE") {
 		t.Errorf("plan without SITE: exit %d, %q; want 2 and the usage line", code, stderr)
+	}
+}
+
+// TestDisplayUS checks the US display's conversions against published
+// factors.
+func TestDisplayUS(t *testing.T) {
+	u, err := displayUnits("us")
+	if err != nil {
+		t.Fatal(err)
+	}
+	// IEC 60534-1 (and ISA-75.01.01): Kv = 0.865 Cv, so Cv/Kv = 1.156.
+	if got := u.cvPerKv(); math.Abs(got-1/0.865) > 0.001 {
+		t.Errorf("Cv per Kv = %.5f, want 1.156 (IEC 60534-1: Kv = 0.865 Cv)", got)
+	}
+	// NIST SP 811 B.9: t/°F = 1.8 t/°C + 32; 70 °C = 158 °F.
+	if got := u.temperature(343.15); got != "158.0 °F" {
+		t.Errorf("temperature(343.15 K) = %q, want 158.0 °F", got)
+	}
+	// NIST SP 811 B.8: 1 psi = 6.894757 kPa.
+	if got := u.diffNum(6894.757); got != "1.00" {
+		t.Errorf("diffNum(6894.757 Pa) = %q, want 1.00 psi", got)
 	}
 }
