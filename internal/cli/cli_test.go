@@ -257,8 +257,8 @@ func TestBadSiteExitsOne(t *testing.T) {
 	if code, _, errs := run(t, "template", dir); code != ExitOK {
 		t.Fatalf("template: exit %d: %s", code, errs)
 	}
-	code, _, errs := run(t, "check", dir)
-	if code != ExitData || !strings.Contains(errs, "branches.csv:") {
+	code, out, errs := run(t, "check", dir)
+	if code != ExitData || !strings.Contains(out, "branches.csv:") || !strings.Contains(errs, "error(s)") {
 		t.Fatalf("check of a blank site: exit %d, stderr %q; want exit 1 naming branches.csv", code, errs)
 	}
 }

@@ -74,8 +74,8 @@ func TestSheetsThatAreNotFiles(t *testing.T) {
 				t.Fatal(err)
 			}
 			c.make(t, p)
-			code, _, errs := runWithin(t, 20*time.Second, "check", dir)
-			if code != c.code || !strings.Contains(errs, c.want) {
+			code, out, errs := runWithin(t, 20*time.Second, "check", dir)
+			if code != c.code || !strings.Contains(out+errs, c.want) {
 				t.Errorf("check: exit %d, stderr:\n%s\nwant exit %d saying %q", code, errs, c.code, c.want)
 			}
 		})

@@ -7,6 +7,8 @@ import (
 	"io"
 	"io/fs"
 	"os"
+	"path/filepath"
+	"strings"
 
 	"flowset/internal/plant"
 	"flowset/internal/site"
@@ -33,10 +35,8 @@ func loadSite(ctx context.Context, path string, w io.Writer) (*loaded, error) {
 	if err != nil && len(probs) == 0 {
 		return nil, sysErr(err)
 	}
-	if err != nil {
-		return nil, &dataError{err}
-	}
-	return finishLoad(s, probs, path, w)
+	// With errors, finishLoad lists every problem, warnings included.
+	return finishLoad(s, probs, shown(path), w)
 }
 
 func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*loaded, error) {
@@ -46,8 +46,10 @@ func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*
 	}
 	m, err := plant.New(s)
 	if err != nil {
+		probs = append(probs, locate(s, err))
+		probs.Sort()
 		printProblems(w, probs)
-		return nil, &dataError{fmt.Errorf("%s: %w", label, err)}
+		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}
 	}
 	probs = append(probs, m.Check()...)
 	if probs.Err() != nil {
@@ -67,4 +69,51 @@ func printProblems(w io.Writer, probs site.Problems) {
 		}
 		fmt.Fprintln(w, p)
 	}
+}
+
+// locate turns an error of the model (plant.New) into a problem at the
+// sheet cell that caused it, as the sheets' own problems are: an error
+// that starts with a sheet position keeps it; one about the pump curve is
+// put on the pump sheet's head column; one about the boundary on the site
+// sheet's boundary key.
+func locate(s *site.Site, err error) *site.Error {
+	msg := err.Error()
+	e := &site.Error{Err: err, Msg: msg}
+	positions := func(yield func(site.Pos) bool) {
+		for _, b := range s.Branches {
+			if !yield(b.Pos) {
+				return
+			}
+		}
+		for _, r := range s.Readings {
+			if !yield(r.Pos) {
+				return
+			}
+		}
+	}
+	for pos := range positions {
+		if pos.File == "" {
+			continue
+		}
+		if rest, ok := strings.CutPrefix(msg, pos.String()+": "); ok {
+			e.File, e.Line, e.Msg = pos.File, pos.Line, rest
+			return e
+		}
+	}
+	switch {
+	case strings.HasPrefix(msg, "pump curve: ") && len(s.Pump) > 0:
+		last := s.Pump[len(s.Pump)-1].Pos
+		e.File, e.Line, e.Field = last.File, last.Line, "head"
+		e.Msg = strings.TrimPrefix(strings.TrimPrefix(msg, "pump curve: "), "pump fit: ")
+		e.Want = "flows and heads read from the pump's curve, the head falling as the flow rises"
+	case strings.HasPrefix(msg, "boundary "):
+		e.Field = "boundary"
+		e.File = s.Source.Path
+		if s.Source.Format == "csv" {
+			e.File = filepath.Join(s.Source.Path, "site.csv")
+		}
+	default:
+		e.File = s.Source.Path
+	}
+	return e
 }

@@ -135,7 +135,7 @@ func (s Spec) At(T float64) (State, error) {
 		lo = math.Max(lo, glycolTemps[firstTabulated(tab.density[r.i][:])])
 	}
 	if !(tC >= lo && tC <= hi) {
-		return State{}, fmt.Errorf("%v: temperature %g K %w %g–%g K (%g to %g °C, table range at this concentration)",
+		return State{}, fmt.Errorf("%v: temperature %.6g K %w %g–%g K (%g to %g °C, table range at this concentration)",
 			s, T, ErrOutOfRange, lo+273.15, hi+273.15, lo, hi)
 	}
 	ti, tf := bracket(glycolTemps[:], tC)

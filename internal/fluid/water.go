@@ -76,7 +76,7 @@ const (
 // valid from 273.15 K to the critical temperature 647.096 K.
 func WaterSaturationPressure(T float64) (float64, error) {
 	if !(T >= region4TMin && T <= region4TMax) {
-		return 0, fmt.Errorf("saturation pressure: temperature %g K %w %g–%g K", T, ErrOutOfRange, region4TMin, region4TMax)
+		return 0, fmt.Errorf("saturation pressure: temperature %.6g K %w %g–%g K", T, ErrOutOfRange, region4TMin, region4TMax)
 	}
 	n := &if97Region4
 	theta := T + n[8]/(T-n[9]) // T* = 1 K
@@ -96,14 +96,14 @@ func WaterSaturationPressure(T float64) (float64, error) {
 // the error wraps ErrOutOfRange.
 func WaterDensity(T, p float64) (float64, error) {
 	if !(T >= region1TMin && T <= region1TMax) {
-		return 0, fmt.Errorf("water density: temperature %g K %w %g–%g K (IAPWS-IF97 region 1)", T, ErrOutOfRange, region1TMin, region1TMax)
+		return 0, fmt.Errorf("water density: temperature %.6g K %w %g–%g K (IAPWS-IF97 region 1)", T, ErrOutOfRange, region1TMin, region1TMax)
 	}
 	ps, err := WaterSaturationPressure(T)
 	if err != nil {
 		return 0, err
 	}
 	if !(p >= ps && p <= region1PMax) {
-		return 0, fmt.Errorf("water density: pressure %g Pa at %g K %w %.6g Pa (saturation)–%g Pa (IAPWS-IF97 region 1)", p, T, ErrOutOfRange, ps, region1PMax)
+		return 0, fmt.Errorf("water density: pressure %.6g Pa at %.6g K %w %.6g Pa (saturation)–%g Pa (IAPWS-IF97 region 1)", p, T, ErrOutOfRange, ps, region1PMax)
 	}
 	pi := p / if97PStar
 	tau := if97TStar / T
@@ -154,7 +154,7 @@ var viscH1 = [6][7]float64{
 // without it.
 func WaterViscosity(T, rho float64) (float64, error) {
 	if !(T >= viscTMin && T <= viscTMax) {
-		return 0, fmt.Errorf("water viscosity: temperature %g K %w %g–%g K (IAPWS 2008)", T, ErrOutOfRange, viscTMin, viscTMax)
+		return 0, fmt.Errorf("water viscosity: temperature %.6g K %w %g–%g K (IAPWS 2008)", T, ErrOutOfRange, viscTMin, viscTMax)
 	}
 	if !(rho > 0 && rho <= viscRhoMax) {
 		return 0, fmt.Errorf("water viscosity: density %g kg/m3 %w 0–%g kg/m3", rho, ErrOutOfRange, viscRhoMax)
@@ -205,7 +205,7 @@ func WaterPressure(T float64) (float64, error) {
 // region 1, viscosity IAPWS 2008.
 func Water(T float64) (State, error) {
 	if !(T >= WaterMinTemperature && T <= WaterMaxTemperature) {
-		return State{}, fmt.Errorf("water: temperature %g K %w %g–%g K (1–150 °C)", T, ErrOutOfRange, WaterMinTemperature, WaterMaxTemperature)
+		return State{}, fmt.Errorf("water: temperature %.6g K %w %g–%g K (1–150 °C)", T, ErrOutOfRange, WaterMinTemperature, WaterMaxTemperature)
 	}
 	p, err := WaterPressure(T)
 	if err != nil {

@@ -87,7 +87,7 @@ func FitPump(points []PumpPoint) (PumpCurve, FitReport, error) {
 		return PumpCurve{}, FitReport{}, fmt.Errorf("pump fit: shut-off head %g m of the fit is not positive: %w", curve.A0, ErrInvalid)
 	}
 	if s := curve.Slope(qmax); s > 0 {
-		return PumpCurve{}, FitReport{}, fmt.Errorf("pump fit: fitted head rises with flow (%g m per m3/s) at the highest flow %g m3/s: %w", s, qmax, ErrInvalid)
+		return PumpCurve{}, FitReport{}, fmt.Errorf("pump fit: fitted head rises with flow (%.3g m per m3/s) at the highest flow %.4g m3/s: %w", s, qmax, ErrInvalid)
 	}
 	var rep FitReport
 	var ss float64

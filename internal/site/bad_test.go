@@ -145,6 +145,12 @@ var badCases = []badCase{
 		want: []string{
 			"branches.csv:1:5: blank column name (want a name for the column that holds \"oops\" on line 3)",
 		}},
+	{name: "unit bracket not closed", files: map[string]string{"branches.csv": "id,design flow [l/s,pipe bore [mm],pipe length [m],roughnes [mm]\nA,0.5,21.6,10,\nB,0.4,21.6,12,\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:1:2: field "design flow": value "design flow [l/s": unit bracket [ is not closed (want "design flow [l/s]")`,
+			`branches.csv:1:5: warning: field "roughnes": unknown column, ignored (want "roughness")`,
+		}},
 	{name: "duplicate header", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],Design-Flow [m3/h]\nA,0.5,21.6,10,1.8\nB,0.4,21.6,12,1.4\n"},
 		cause: ErrDuplicate,
 		want: []string{

@@ -59,6 +59,17 @@ func splitUnit(h string) (name, unit string, bracket bool) {
 	return h, "", false
 }
 
+// unclosedBracket reports whether h opens a unit bracket it does not
+// close, with the bracket and its closing partner.
+func unclosedBracket(h string) (open, close string, ok bool) {
+	for _, p := range [][2]string{{"[", "]"}, {"(", ")"}} {
+		if i := strings.LastIndex(h, p[0]); i >= 0 && !strings.Contains(h[i:], p[1]) {
+			return p[0], p[1], true
+		}
+	}
+	return "", "", false
+}
+
 // find returns the column of a schema named name, and whether name is the
 // column's US Cv variant.
 func (s *schema) find(name string) (c *column, cv bool) {
@@ -348,6 +359,15 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 		name, unit, bracket := splitUnit(h)
 		c, cv := sc.find(name)
 		if c == nil {
+			if open, close, ok := unclosedBracket(name); ok {
+				if oc, _ := sc.find(strings.TrimSpace(name[:strings.IndexAny(name, "[(")])); oc != nil {
+					ref.field = oc.name
+					probs.add(ref.problem(SeverityError, ErrSyntax, fmt.Sprintf("unit bracket %s is not closed", open),
+						fmt.Sprintf("%q", strings.TrimSpace(h)+close)))
+					sr.broken[oc.name] = true
+					continue
+				}
+			}
 			want := "one of: " + strings.Join(sc.names(), ", ")
 			if s := suggest(name, sc.names()); s != "" {
 				want = fmt.Sprintf("%q", s)

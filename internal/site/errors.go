@@ -159,7 +159,9 @@ func (p Problems) Unwrap() []error {
 	return out
 }
 
-func (p Problems) sort() {
+// Sort orders the problems by file, line and column, keeping the order of
+// problems at one place.
+func (p Problems) Sort() {
 	slices.SortStableFunc(p, func(a, b *Error) int {
 		return cmp.Or(cmp.Compare(a.File, b.File), cmp.Compare(a.Line, b.Line), cmp.Compare(a.Column, b.Column))
 	})

@@ -238,7 +238,7 @@ func (in *input) finish(ctx context.Context) (*Site, Problems, error) {
 		return nil, nil, err
 	}
 	probs := in.probs
-	probs.sort()
+	probs.Sort()
 	if err := probs.Err(); err != nil {
 		return nil, probs, err
 	}
