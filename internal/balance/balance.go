@@ -149,6 +149,32 @@ func (r RoundMode) String() string {
 	return "round(?)"
 }
 
+// Share is how a plan shares out a pump that cannot give every target.
+type Share int
+
+// Share-out policies.
+const (
+	// DesignFirst gives every branch that can reach its target its target
+	// and opens fully the valves of those that cannot: a shortfall stays
+	// where its cause is, and the remedies say what would cure it.
+	DesignFirst Share = iota
+	// Proportional sets every valve as if the pump could serve every
+	// target, so all branches fall short by about the same fraction (the
+	// proportionality of a balanced circuit).
+	Proportional
+)
+
+// String returns the policy's name as the command line spells it.
+func (s Share) String() string {
+	switch s {
+	case DesignFirst:
+		return "design-first"
+	case Proportional:
+		return "proportional"
+	}
+	return "share(?)"
+}
+
 // Options tunes Compute. A nil *Options or a zero field means the default.
 type Options struct {
 	// Scale multiplies every branch's target (the site's target or design
@@ -158,6 +184,9 @@ type Options struct {
 	Targets map[string]float64
 	// Rounding is the rounding mode; the zero value is Nearest.
 	Rounding RoundMode
+	// Share is how a pump short of head is shared out; the zero value is
+	// DesignFirst.
+	Share Share
 	// Uncertainty gives the calibration's spread, for the band of each
 	// predicted flow; nil for none.
 	Uncertainty *Uncertainty
@@ -184,6 +213,7 @@ type Plan struct {
 	// design model, not a calibrated one; the field sheet then says so.
 	DesignOnly bool
 	Rounding   RoundMode
+	Share      Share
 	// Index is the index branch (a terminal branch), IndexPath the branches
 	// from the main header down to it (risers first).
 	Index     string
@@ -202,8 +232,15 @@ type Plan struct {
 	Pump      PumpPlan
 	// Branches are in walk order (see the package comment).
 	Branches []BranchPlan
-	Unmet    []Shortfall
-	Warnings []string
+	// Remedies are the faults valves cannot set right, with what putting
+	// each right would give, most saving first; the plan's settings are
+	// for the plant as it stands.
+	Remedies []Remedy
+	// LeastRemedied is the least source differential with every Restore
+	// remedy carried out together, Pa (NaN with fewer than two).
+	LeastRemedied float64
+	Unmet         []Shortfall
+	Warnings      []string
 	// ToleranceLow and ToleranceHigh are the band used, as fractions of
 	// target (-0.1, +0.1 for ±10 %).
 	ToleranceLow, ToleranceHigh float64
@@ -232,10 +269,18 @@ type PumpPlan struct {
 	// HaveBefore reports whether the before figures could be worked out.
 	HaveBefore    bool
 	Before, After OperatingPoint
-	// SpeedRatio is the speed to run at (pump curve only; NaN otherwise),
-	// NeededSpeed the speed the targets need (above MaxSpeed when the pump
-	// falls short).
+	// SpeedRatio is the speed to run at (a pump boundary), or the speed a
+	// controlled pump's drive will run at to hold the set point; NaN
+	// without a pump curve. NeededSpeed is the speed every target needs
+	// (above MaxSpeed when the pump falls short).
 	SpeedRatio, NeededSpeed, MaxSpeed float64
+	// Needed is the least source differential that serves every target
+	// (Plan.Least) and Available what the pump gives at their total flow
+	// at its maximum speed, Pa (+Inf without a pump curve: an ideal
+	// source). Short reports that Needed exceeds Available: the pump runs
+	// flat out and the plan shares the shortfall out (Options.Share).
+	Needed, Available float64
+	Short             bool
 	// TrimRatio is the impeller diameter ratio that would give the planned
 	// duty at nominal speed (a fixed-speed alternative; approximate); NaN
 	// when not applicable.
@@ -296,6 +341,67 @@ type Shortfall struct {
 	Predicted float64 // m3/s
 	Percent   float64 // % of target
 	Reason    string
+	// Remedy is what would cure it ("" when the plan knows none); Saves
+	// the source differential the remedy saves, Pa, and AnnualEnergy the
+	// energy, kWh a year (NaN when not worked out).
+	Remedy              string
+	Saves, AnnualEnergy float64
+}
+
+// RemedyKind is what a remedy does.
+type RemedyKind int
+
+// Remedy kinds.
+const (
+	// Restore brings a branch whose resistance is well above design
+	// (fouled, or a strainer, isolating valve or coil partly blocked) back
+	// to design.
+	Restore RemedyKind = iota
+	// LargerValve fits a valve of twice the Kv where the open valve takes
+	// much of what a branch needs.
+	LargerValve
+	// LargerPump is a pump, or a drive allowed a higher speed, that gives
+	// the least differential at the target flow.
+	LargerPump
+)
+
+// String returns the kind's name.
+func (k RemedyKind) String() string {
+	switch k {
+	case Restore:
+		return "restore"
+	case LargerValve:
+		return "larger-valve"
+	case LargerPump:
+		return "larger-pump"
+	}
+	return "remedy(?)"
+}
+
+// Remedy is a fault the valves cannot set right and what putting it right
+// would give.
+type Remedy struct {
+	// ID is the branch ("" for the pump).
+	ID   string
+	Kind RemedyKind
+	// Action says what to do, in a technician's words.
+	Action string
+	// Ratio is the branch's resistance multiplier (Restore), else NaN.
+	Ratio float64
+	// Need and NeedAfter are the source differentials the branch's chain
+	// needs at its target before and after the remedy, Pa.
+	Need, NeedAfter float64
+	// Least and LeastAfter are the least source differentials that serve
+	// every target before and after, Pa; Saves is their difference.
+	Least, LeastAfter, Saves float64
+	// Power is the electrical power Saves is worth at the total target
+	// flow, W, and AnnualEnergy that over the running hours, kWh (NaN
+	// without running hours).
+	Power, AnnualEnergy float64
+	// Starved reports that the branch (or one below it) falls short of
+	// its target without the remedy; Serves that after it the pump gives
+	// every target.
+	Starved, Serves bool
 }
 
 // State returns the plant state of the plan: its settings and boundary.

@@ -235,7 +235,7 @@ func TestProperties(t *testing.T) {
 			}
 			cases++
 			// Exact settings at the exact control value.
-			pr := &planner{m: m, p: p, pump: o.pump}
+			pr := &planner{m: m, p: p, pump: o.pump, bySpeed: o.pump, capped: o.pump}
 			q := make([]float64, len(m.Branches))
 			for i, b := range m.Branches {
 				q[i] = b.Target
@@ -244,7 +244,7 @@ func TestProperties(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			pr.ex = ex
+			pr.ex, pr.run = ex, ex
 			x, err := pr.exactControl()
 			if err != nil {
 				t.Fatal(err)

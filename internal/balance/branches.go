@@ -73,9 +73,12 @@ func (pl *planner) branches(sol *plant.Solved) error {
 		} else if ex.index[i] {
 			bp.Notes = append(bp.Notes, "on the index path: valve fully open")
 		}
+		if pl.starved != nil && pl.starved[i] {
+			bp.Notes = append(bp.Notes, fmt.Sprintf("the pump cannot give what this branch needs at target: valve fully open, it gets %.0f %% of target (see the remedies)", bp.Percent))
+		}
 		if b.Valve != nil {
 			pl.valveNotes(i, &bp, sol)
-		} else if s := ex.surplus[i]; !b.Riser() && s > 0.01*ex.avail[i] {
+		} else if s := pl.run.surplus[i]; !b.Riser() && s > 0.01*pl.run.avail[i] {
 			bp.Notes = append(bp.Notes, fmt.Sprintf("no balancing valve: %.1f kPa more than the branch needs cannot be taken off, so it runs above target", s/1e3))
 		}
 		pl.plan.Branches = append(pl.plan.Branches, bp)
@@ -84,7 +87,7 @@ func (pl *planner) branches(sol *plant.Solved) error {
 }
 
 func (pl *planner) valveNotes(i int, bp *BranchPlan, sol *plant.Solved) {
-	m, ex := pl.m, pl.ex
+	m, ex := pl.m, pl.run
 	b := &m.Branches[i]
 	if b.ValveModel != nil {
 		bp.Valve, bp.Unit = b.ValveModel.Name, b.ValveModel.Unit
@@ -122,10 +125,10 @@ func (pl *planner) inBand(percent float64) bool {
 }
 
 // shortfalls lists the branches outside the band that the plan cannot
-// bring in, and warns about the others.
+// bring in, each with the remedy that would, and warns about the others.
 func (pl *planner) shortfalls() {
-	m, ex := pl.m, pl.ex
-	short := pl.pump && pl.plan.Pump.NeededSpeed > pl.plan.Pump.MaxSpeed*(1+1e-9)
+	m, run := pl.m, pl.run
+	atMax := pl.short || pl.capped && finite(pl.plan.Pump.NeededSpeed) && pl.plan.Pump.NeededSpeed > pl.plan.Pump.MaxSpeed*(1+1e-9)
 	var rounding int
 	for _, bp := range pl.plan.Branches {
 		if bp.InTolerance {
@@ -133,10 +136,15 @@ func (pl *planner) shortfalls() {
 		}
 		i, _ := m.Index(bp.ID)
 		var reason string
+		low := bp.Percent < 100*(1+pl.lo)
 		switch {
-		case short && bp.Percent < 100*(1+pl.lo):
+		case pl.starved != nil && pl.starved[i]:
+			reason = fmt.Sprintf("needs %.1f kPa at the pump for its target, the pump gives %.1f kPa flat out: valve fully open", pl.chain[i]/1e3, pl.plan.Required/1e3)
+		case pl.short && pl.opt.Share == Proportional && low:
+			reason = "pump short of head, shared out in proportion"
+		case atMax && low:
 			reason = "pump at its maximum speed"
-		case ex.clamped[i]:
+		case run.clamped[i]:
 			reason = "valve cannot throttle enough"
 		case m.Branches[i].Valve == nil && !bp.Riser:
 			reason = "no balancing valve"
@@ -144,7 +152,11 @@ func (pl *planner) shortfalls() {
 			rounding++
 			continue
 		}
-		pl.plan.Unmet = append(pl.plan.Unmet, Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason})
+		sf := Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason, Saves: math.NaN(), AnnualEnergy: math.NaN()}
+		if r := pl.remedyFor(i); r != nil {
+			sf.Remedy, sf.Saves, sf.AnnualEnergy = r.Action, r.Saves, r.AnnualEnergy
+		}
+		pl.plan.Unmet = append(pl.plan.Unmet, sf)
 	}
 	if rounding > 0 {
 		w := fmt.Sprintf("%d branches fall outside the band through handwheel rounding", rounding)

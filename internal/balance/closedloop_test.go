@@ -237,10 +237,13 @@ func TestClosedLoopValveFaults(t *testing.T) {
 }
 
 // TestClosedLoopShortPump plans a plant whose fouled index needs more than
-// the pump can give at its maximum speed: the plan must say so, list the
-// shortfalls, and, applied to the true plant, leave the branches short by
-// about the same proportion (a balanced circuit scales together: the
-// proportionality law of shared/references.md §6), which the plan predicts.
+// the pump can give at its maximum speed, both ways a shortfall can be
+// shared out, and applies each plan to the true plant. Design first: the
+// plan runs the pump flat out, names the starved branches in Unmet with a
+// remedy and opens their valves fully, and every other branch gets its
+// target (within the ±10 % band on the true plant). Proportional: a balanced
+// circuit scales together (the proportionality law of shared/references.md
+// §6), so the flows spread by under 10 points.
 func TestClosedLoopShortPump(t *testing.T) {
 	ctx := context.Background()
 	spec := synth.Spec{Branches: 20, Arrangement: site.DirectReturn, Boundary: site.PumpCurve, Seed: 11, Noise: 1, States: 2, Fouled: 0.15, Free: 0.1}
@@ -252,19 +255,52 @@ func TestClosedLoopShortPump(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	pl, err := balance.Compute(ctx, m, tr.Params, &balance.Options{Rounding: balance.Smart})
-	if err != nil {
-		t.Fatal(err)
+	for _, share := range []balance.Share{balance.DesignFirst, balance.Proportional} {
+		t.Run(share.String(), func(t *testing.T) {
+			pl, err := balance.Compute(ctx, m, tr.Params, &balance.Options{Rounding: balance.Smart, Share: share})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !pl.Pump.Short || !(pl.Pump.NeededSpeed > pl.Pump.MaxSpeed) || pl.Speed != pl.Pump.MaxSpeed {
+				t.Fatalf("short %v, needed speed %g, max %g, plan speed %g: want a pump short of the targets run at its maximum", pl.Pump.Short, pl.Pump.NeededSpeed, pl.Pump.MaxSpeed, pl.Speed)
+			}
+			if len(pl.Unmet) == 0 {
+				t.Errorf("no shortfall reported")
+			}
+			o := apply(t, s, tr, m, pl, pl.Least)
+			switch share {
+			case balance.Proportional:
+				if o.worstHigh-o.worstLow > 10 {
+					t.Errorf("flows %.1f-%.1f %% of target: want a spread under 10 points when the balanced circuit is short", o.worstLow, o.worstHigh)
+				}
+			case balance.DesignFirst:
+				unmet := map[string]bool{}
+				for _, u := range pl.Unmet {
+					unmet[u.ID] = true
+					if u.Remedy == "" {
+						t.Errorf("unmet %s: no remedy", u.ID)
+					}
+				}
+				cs := *s
+				cs.Boundary.Speed = pl.Speed
+				sol, err := synth.Simulate(ctx, &cs, tr, pl.Settings)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for _, b := range pl.Branches {
+					i, _ := m.Index(b.ID)
+					r := sol.Flow(i) / b.Target
+					if !unmet[b.ID] && !b.Riser && (r < 0.9 || r > 1.1) {
+						t.Errorf("branch %s not named unmet: %.1f %% of target on the true plant, want within ±10 %%", b.ID, 100*r)
+					}
+					if unmet[b.ID] && b.Valve != "" {
+						if _, hi := m.Branches[i].Valve.Range(); b.New != hi {
+							t.Errorf("unmet branch %s: setting %g, want fully open %g", b.ID, b.New, hi)
+						}
+					}
+				}
+			}
+			t.Logf("short pump, %s: needed speed %.3f (max %.3f), flows %.1f-%.1f %% of target, %.0f %% within ±10 %%, %d unmet; summary: %q", share, pl.Pump.NeededSpeed, pl.Pump.MaxSpeed, o.worstLow, o.worstHigh, 100*o.within, len(pl.Unmet), pl.Summary())
+		})
 	}
-	if !(pl.Pump.NeededSpeed > pl.Pump.MaxSpeed) || pl.Speed != pl.Pump.MaxSpeed {
-		t.Fatalf("needed speed %g, max %g, plan speed %g: want a pump short of the targets run at its maximum", pl.Pump.NeededSpeed, pl.Pump.MaxSpeed, pl.Speed)
-	}
-	if len(pl.Unmet) == 0 {
-		t.Errorf("no shortfall reported")
-	}
-	o := apply(t, s, tr, m, pl, pl.Least)
-	if o.worstHigh-o.worstLow > 10 {
-		t.Errorf("flows %.1f-%.1f %% of target: want a spread under 10 points when the balanced circuit is short", o.worstLow, o.worstHigh)
-	}
-	t.Logf("short pump: needed speed %.3f (max %.3f), flows %.1f-%.1f %% of target, %d unmet; warnings: %q", pl.Pump.NeededSpeed, pl.Pump.MaxSpeed, o.worstLow, o.worstHigh, len(pl.Unmet), pl.Warnings)
 }

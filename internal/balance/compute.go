@@ -22,11 +22,23 @@ const (
 type planner struct {
 	m      *plant.Model
 	p      plant.Params
-	opt    Options
-	pump   bool // the boundary is a pump curve
-	lo, hi float64
-	ex     *exact
-	plan   *Plan
+	opt Options
+	// pump: the boundary is a pump curve; capped: a pump curve limits
+	// the source (a pump boundary or a controlled pump); bySpeed: the
+	// control value of the solves is a speed ratio on the pump's curve
+	// (else an ideal source differential).
+	pump, capped, bySpeed bool
+	lo, hi                float64
+	// ex is the exact plan for every target; run the one the settings
+	// come from: ex itself, or, when the pump cannot serve every target
+	// and design-first is asked, the plan with the starved branches open
+	// (starved marks them).
+	ex, run *exact
+	starved []bool
+	short   bool    // the pump cannot give every target
+	eta     float64   // pump × motor efficiency (set by pumpPlan)
+	chain   []float64 // per branch, the source differential its chain needs at every target
+	plan    *Plan
 	// The network kept between solves (see solve).
 	net         *network.Built
 	netSettings []float64
@@ -60,8 +72,11 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 		pl.lo, pl.hi = defaultToleranceLow, defaultToleranceHigh
 	}
 	pl.pump = m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil
+	pl.capped = m.PumpDriven()
+	pl.bySpeed = pl.pump
+	pl.run = pl.ex
 	pl.plan = &Plan{
-		Rounding: pl.opt.Rounding, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
+		Rounding: pl.opt.Rounding, Share: pl.opt.Share, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
 		IndexPath: pl.ex.indexIDs, ToleranceLow: pl.lo, ToleranceHigh: pl.hi,
 	}
 	sol, err := pl.settle(ctx)
@@ -81,6 +96,7 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 		}
 		pl.robust()
 	}
+	pl.remedies()
 	pl.shortfalls()
 	return pl.plan, nil
 }
@@ -110,6 +126,9 @@ func (pl *planner) check() error {
 	}
 	if pl.opt.Rounding != Nearest && pl.opt.Rounding != Smart {
 		return fmt.Errorf("rounding mode %d: %w", int(pl.opt.Rounding), ErrInput)
+	}
+	if pl.opt.Share != DesignFirst && pl.opt.Share != Proportional {
+		return fmt.Errorf("share-out policy %d: %w", int(pl.opt.Share), ErrInput)
 	}
 	if u := pl.opt.Uncertainty; u != nil {
 		if len(u.LnResistance) != 0 && len(u.LnResistance) != n || len(u.LnKvScale) != 0 && len(u.LnKvScale) != n {
@@ -158,7 +177,7 @@ func (pl *planner) targets() ([]float64, error) {
 // ratio with a pump curve, else the source differential.
 func (pl *planner) state(settings []float64, x float64) plant.State {
 	st := plant.State{Label: "plan", Settings: settings}
-	if pl.pump {
+	if pl.bySpeed {
 		st.Speed = x
 	} else {
 		st.Differential = x
@@ -174,10 +193,10 @@ func (pl *planner) state(settings []float64, x float64) plant.State {
 func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*plant.Solved, error) {
 	st := pl.state(append([]float64(nil), settings...), x)
 	m, p := pl.m, pl.p
-	if !pl.pump && !(x > 0 && finite(x)) {
+	if !pl.bySpeed && !(x > 0 && finite(x)) {
 		return nil, fmt.Errorf("source differential %g Pa must be positive: %w", x, ErrSolve)
 	}
-	src := m.Source(p, st)
+	src := pl.source(x)
 	if pl.net == nil {
 		b, err := network.Build(m.Ladder(p, st.Settings), src, m.Fluid)
 		if err != nil {
@@ -219,7 +238,7 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 // targetFlows returns the link flows of the exact plan (every branch at
 // target, header segments by continuity), the first solve's starting point.
 func (pl *planner) targetFlows() []float64 {
-	b, ex := pl.net, pl.ex
+	b, ex := pl.net, pl.run
 	q := make([]float64, b.Net.NumLinks())
 	for i, br := range pl.m.Branches {
 		if l := b.Branch[br.ID]; l >= 0 {
@@ -242,14 +261,14 @@ func (pl *planner) targetFlows() []float64 {
 // differential) and u, in which flows are about proportional: u = s for a
 // pump (affinity laws), u = √Δp for a differential (square law).
 func (pl *planner) toU(x float64) float64 {
-	if pl.pump {
+	if pl.bySpeed {
 		return x
 	}
 	return math.Sqrt(x)
 }
 
 func (pl *planner) fromU(u float64) float64 {
-	if pl.pump {
+	if pl.bySpeed {
 		return u
 	}
 	return u * u
@@ -258,7 +277,7 @@ func (pl *planner) fromU(u float64) float64 {
 // exactControl returns the control value at which the source gives the
 // least differential at the total target flow.
 func (pl *planner) exactControl() (float64, error) {
-	if !pl.pump {
+	if !pl.bySpeed {
 		return pl.ex.least, nil
 	}
 	return pl.speedFor(pl.ex.total(), pl.ex.least)
@@ -269,8 +288,7 @@ func (pl *planner) exactControl() (float64, error) {
 // dp at flow q: bracketing, then bisection to machine precision.
 func (pl *planner) speedFor(q, dp float64) (float64, error) {
 	f := func(s float64) float64 {
-		src := pl.m.Source(pl.p, plant.State{Speed: s})
-		d, _ := src.Pump.Drop(q, pl.m.Fluid)
+		d, _ := pl.pumpAt(s).Drop(q, pl.m.Fluid)
 		return -d - dp
 	}
 	// The larger root of the quadratic, as a start.
@@ -379,172 +397,3 @@ func nanTo(v, d float64) float64 {
 // target: far below any reading, well above the solver's tolerance.
 const rootTol = 1e-9
 
-// settle rounds the settings, re-solves the network and sets the pump: steps
-// 5 and 6 of the package comment. It fills the plan's settings and boundary
-// and returns the final solution.
-func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
-	ex, m := pl.ex, pl.m
-	x0, err := pl.exactControl()
-	if err != nil {
-		return nil, err
-	}
-	r := newRounder(pl)
-	idx := ex.indexID
-	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
-	settings := r.settings()
-	x, sol, err := pl.root(ctx, settings, x0, nil, indexOK, rootTol)
-	if err != nil {
-		return nil, err
-	}
-	if pl.opt.Rounding == Smart {
-		for range 4 {
-			if !r.flip(sol) {
-				break
-			}
-			settings = r.settings()
-			if x, sol, err = pl.root(ctx, settings, x, nil, indexOK, rootTol); err != nil {
-				return nil, err
-			}
-		}
-		// Where rounding leaves branches outside the band, try moving the
-		// pump until the lowest branch reaches the band's lower edge, or
-		// the highest its upper edge, and keep the move only if it brings
-		// more branches into the band.
-		// A valve too large to throttle, or a branch without one, stays
-		// out of the band whatever the pump does: leave it out.
-		fixable := make([]bool, len(m.Branches))
-		var nfix int
-		for i := range fixable {
-			fixable[i] = !ex.clamped[i] && !(m.Branches[i].Valve == nil && ex.surplus[i] > 0)
-			if fixable[i] {
-				nfix++
-			}
-		}
-		count := func(s *plant.Solved) int {
-			var c int
-			for i := range m.Branches {
-				if r := s.Flow(i) / ex.q[i]; fixable[i] && r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9 {
-					c++
-				}
-			}
-			return c
-		}
-		ratio := func(s *plant.Solved, worst func(a, b float64) float64, start float64) float64 {
-			w := start
-			for i := range m.Branches {
-				if fixable[i] {
-					w = worst(w, s.Flow(i)/ex.q[i])
-				}
-			}
-			return w
-		}
-		best := count(sol)
-		if best < nfix {
-			low, high := 1+pl.lo+1e-3, 1+pl.hi-1e-3
-			moves := []struct {
-				g    func(*plant.Solved) float64
-				what string
-			}{
-				{func(s *plant.Solved) float64 { return ratio(s, math.Min, math.Inf(1))/low - 1 }, "raised until the lowest branch reaches the band"},
-				{func(s *plant.Solved) float64 { return ratio(s, math.Max, math.Inf(-1))/high - 1 }, "lowered until the highest branch reaches the band"},
-			}
-			var why string
-			for k, mv := range moves {
-				// Only towards the band: raise for a branch below it,
-				// lower for one above it.
-				if g0 := mv.g(sol); (k == 0) != (g0 < 0) {
-					continue
-				}
-				xm, sm, err := pl.root(ctx, settings, x, sol, mv.g, 1e-6)
-				if err != nil {
-					return nil, err
-				}
-				if c := count(sm); c > best {
-					best, x, sol, why = c, xm, sm, mv.what
-				}
-			}
-			if why != "" {
-				pl.plan.Warnings = append(pl.plan.Warnings, "with the index at target, rounding leaves branches outside the band: the pump is "+why)
-			}
-		}
-	}
-	pl.plan.Pump.NeededSpeed = math.NaN()
-	if pl.pump {
-		pl.plan.Pump.NeededSpeed = x
-		maxSpeed := m.Site.Boundary.MaxSpeed
-		if !(maxSpeed > 0) {
-			maxSpeed = 1
-		}
-		pl.plan.Pump.MaxSpeed = maxSpeed
-		if x > maxSpeed*(1+1e-9) {
-			x = maxSpeed
-			if sol, err = pl.solve(ctx, settings, x); err != nil {
-				return nil, err
-			}
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("the pump would need speed ratio %.3f, above its maximum %.3f: the plan runs it at the maximum and some branches fall short", pl.plan.Pump.NeededSpeed, maxSpeed))
-			pl.suggest(ctx)
-		} else {
-			pl.suggestCleaning()
-		}
-		pl.plan.Speed = x
-	} else {
-		pl.plan.Differential = x
-		pl.suggestCleaning()
-	}
-	pl.plan.Settings = settings
-	pl.plan.Required = sol.PumpDiff()
-	pl.plan.TotalFlow = sol.TotalFlow()
-	return sol, nil
-}
-
-// suggestCleaning names the fouled branches (resistance over twice design)
-// whose cleaning would lower the differential the whole circuit needs: on
-// the index path that is pump energy saved for good, whether or not the
-// pump can meet the targets today.
-func (pl *planner) suggestCleaning() {
-	ex := pl.ex
-	var tried int
-	for i := range pl.m.Branches {
-		if pl.p.Resistance[i] <= 2 || tried >= 20 {
-			continue
-		}
-		tried++
-		p := pl.p.Clone()
-		p.Resistance[i] = 1
-		e, err := newExact(pl.m, p, append([]float64(nil), ex.q...))
-		if err != nil {
-			continue
-		}
-		if l := e.least; l < ex.least*0.99 {
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("branch %q has %.1f times its design resistance (fouled or a closed part?): restoring it would lower the differential needed from %.1f to %.1f kPa",
-				pl.m.Branches[i].ID, pl.p.Resistance[i], ex.least/1e3, l/1e3))
-		}
-	}
-}
-
-// suggest adds what would help a pump that falls short: a larger pump or
-// speed, cleaning a fouled branch, a larger valve on the index.
-func (pl *planner) suggest(ctx context.Context) {
-	ex := pl.ex
-	pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("a pump giving %.1f kPa at %.3f l/s would meet every target", pl.plan.Least/1e3, ex.total()*1e3))
-	least := func(p plant.Params) float64 {
-		e, err := newExact(pl.m, p, append([]float64(nil), ex.q...))
-		if err != nil {
-			return math.NaN()
-		}
-		return e.least
-	}
-	pl.suggestCleaning()
-	for _, id := range ex.indexIDs {
-		i, _ := pl.m.Index(id)
-		if pl.m.Branches[i].Valve == nil {
-			continue
-		}
-		p := pl.p.Clone()
-		p.KvScale[i] *= 2
-		if l := least(p); l < ex.least*0.99 {
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("the open valve on index branch %q takes %.1f kPa at target: a valve of twice its Kv would lower the differential needed from %.1f to %.1f kPa",
-				id, ex.open[i]/1e3, ex.least/1e3, l/1e3))
-		}
-	}
-}

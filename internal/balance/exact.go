@@ -299,3 +299,48 @@ func (e *exact) total() float64 {
 	}
 	return s
 }
+
+// above returns, per branch, what the risers above it take out of the
+// source differential with their valves fully open: the sum over its strict
+// ancestors of fixed parts, open valve and path. A branch's chain, the
+// source differential it needs at its flow, is need + path + above.
+func (e *exact) above() []float64 {
+	m := e.m
+	up := make([]float64, len(m.Branches))
+	var down func(ids []int, acc float64)
+	down = func(ids []int, acc float64) {
+		for _, i := range ids {
+			up[i] = acc
+			if m.Branches[i].Riser() {
+				down(m.Branches[i].Children, acc+e.fixed[i]+e.open[i]+e.path[i])
+			}
+		}
+	}
+	down(m.Top(), 0)
+	return up
+}
+
+// openStarved opens fully the valves of the starved branches and of the risers
+// above them, and marks them with the index path's branches as ones the
+// rounding leaves open (their drop differs from the open drop only by the
+// iteration's tolerance).
+func (e *exact) openStarved(starved []bool) {
+	m := e.m
+	for i, s := range starved {
+		if !s {
+			continue
+		}
+		for k := i; ; {
+			e.index[k] = true
+			if m.Branches[k].Valve != nil {
+				_, hi := m.Branches[k].Valve.Range()
+				e.setting[k], e.kv[k] = hi, e.ends[k][1]
+			}
+			p, ok := m.Index(m.Branches[k].Parent)
+			if !ok {
+				break
+			}
+			k = p
+		}
+	}
+}

@@ -27,6 +27,12 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 	pp.Currency = s.Currency
 	pp.After = OperatingPoint{Flow: sol.TotalFlow(), Differential: sol.PumpDiff(), Speed: pl.plan.Speed}
 	pp.After.Head = pp.After.Differential / rg
+	if pl.capped && !pl.pump {
+		// The speed the drive will run at to hold the set point.
+		v := hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), pp.After.Flow, pp.After.Differential, m.Fluid)
+		pp.SpeedRatio = min(v, m.MaxSpeed())
+		pp.After.Speed = pp.SpeedRatio
+	}
 	if pl.pump {
 		pp.SpeedRatio = pl.plan.Speed
 		c := *m.Pump
@@ -58,8 +64,8 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 		pp.HaveBefore = true
 		pp.Before = OperatingPoint{Flow: before.TotalFlow(), Differential: before.PumpDiff()}
 		pp.Before.Head = pp.Before.Differential / rg
-		if pl.pump {
-			pp.Before.Speed = before.State.Speed
+		if pl.capped {
+			pp.Before.Speed = before.Speed()
 		}
 	} else {
 		pp.Assumptions = append(pp.Assumptions, "no before figures: "+why)
@@ -81,6 +87,7 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 	pp.Assumptions = append(pp.Assumptions,
 		fmt.Sprintf("pump efficiency %.0f %% %s", 100*etaP, along),
 		fmt.Sprintf("motor and drive efficiency %.0f %% at both duty points (approximate: it falls at part load)", 100*etaM))
+	pl.eta = etaP * etaM
 	pp.HydraulicAfter = hydraulics.HydraulicPower(pp.After.Flow, pp.After.Differential)
 	pp.ElectricalAfter = pp.HydraulicAfter / (etaP * etaM)
 	if !pp.HaveBefore {
@@ -118,6 +125,9 @@ func (pl *planner) before(ctx context.Context) (*plant.Solved, string, error) {
 		if !(d > 0) || !finite(d) {
 			return nil, "the present set-point is not given", nil
 		}
+		if pl.capped {
+			return pl.beforeControlled(ctx, found, d)
+		}
 		if i, ok := m.Index(s.Boundary.Sensor); ok && s.Boundary.Sensor != site.AtPump {
 			// The controller holds the sensor branch's differential:
 			// find the source differential that gives it.
@@ -151,4 +161,26 @@ func sameSettings(a, b []float64) bool {
 		}
 	}
 	return true
+}
+
+// beforeControlled solves the as-found state of a controlled pump: its drive
+// raises the speed until the sensor reads the set point d, up to its
+// maximum speed, where it runs flat out. The solves are on the pump's curve
+// (the planner's own network, rebuilt for the speed as control value).
+func (pl *planner) beforeControlled(ctx context.Context, found []float64, d float64) (*plant.Solved, string, error) {
+	m := pl.m
+	pl.toSpeed()
+	read := func(sv *plant.Solved) float64 { return sv.PumpDiff() }
+	if i, ok := m.Index(m.Site.Boundary.Sensor); ok && m.Site.Boundary.Sensor != site.AtPump {
+		read = func(sv *plant.Solved) float64 { return sv.BranchDiff(i) }
+	}
+	top, err := pl.solve(ctx, found, m.MaxSpeed())
+	if err != nil {
+		return nil, "", err
+	}
+	if read(top) <= d {
+		return top, "", nil // flat out and still short of the set point
+	}
+	_, sol, err := pl.root(ctx, found, m.MaxSpeed(), top, func(sv *plant.Solved) float64 { return read(sv)/d - 1 }, rootTol)
+	return sol, "", err
 }

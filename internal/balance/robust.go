@@ -29,17 +29,7 @@ func (pl *planner) robust() {
 		k = 2
 	}
 	n := len(m.Branches)
-	up := make([]float64, n) // Σ over strict ancestors of fixed + open + path
-	var down func(ids []int, acc float64)
-	down = func(ids []int, acc float64) {
-		for _, i := range ids {
-			up[i] = acc
-			if m.Branches[i].Riser() {
-				down(m.Branches[i].Children, acc+ex.fixed[i]+ex.open[i]+ex.path[i])
-			}
-		}
-	}
-	down(m.Top(), 0)
+	up := ex.above()
 	type hit struct {
 		what  string
 		least float64
@@ -82,7 +72,7 @@ func (pl *planner) robust() {
 			break
 		}
 		w := fmt.Sprintf("the uncertainty of %s matters: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, h.least/1e3, ex.least/1e3)
-		if pl.pump {
+		if pl.capped {
 			if s, err := pl.speedFor(ex.total(), h.least); err == nil {
 				w += fmt.Sprintf(" (pump speed ratio %.3f)", s)
 			}

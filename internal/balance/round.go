@@ -32,7 +32,7 @@ func mark(s, lo, hi, step float64, up bool) float64 {
 }
 
 func newRounder(pl *planner) *rounder {
-	ex, m := pl.ex, pl.m
+	ex, m := pl.run, pl.m
 	n := len(m.Branches)
 	r := &rounder{pl: pl, down: make([]float64, n), up: make([]float64, n), rDown: make([]float64, n), rUp: make([]float64, n), useUp: make([]bool, n)}
 	centre := 1 + (pl.lo+pl.hi)/2
@@ -65,7 +65,7 @@ func newRounder(pl *planner) *rounder {
 // differential held at the plan's: with the square law in valve and the
 // rest, q'/q = √(Δp_b / (Δp_b - Δp_v + Δp_v (Kv/Kv')²)).
 func (r *rounder) ratio(i int, s float64) float64 {
-	ex := r.pl.ex
+	ex := r.pl.run
 	kv, err := r.pl.m.Branches[i].Valve.KvAt(s)
 	if err != nil || !(kv > 0) || !(ex.kv[i] > 0) {
 		return 1
@@ -101,7 +101,7 @@ func (r *rounder) flip(sol *plant.Solved) bool {
 		if math.IsNaN(r.down[i]) || r.down[i] == r.up[i] {
 			continue
 		}
-		now := sol.Flow(i) / pl.ex.q[i]
+		now := sol.Flow(i) / pl.run.q[i]
 		if now >= 1+pl.lo && now <= 1+pl.hi {
 			continue
 		}

@@ -5,6 +5,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"flowset/internal/site"
 )
 
 // Rows returns the field sheet: a header naming each column with its unit,
@@ -51,11 +53,20 @@ func (p *Plan) Summary() []string {
 	if p.DesignOnly {
 		out = append(out, "Plan from design data only: no survey calibrated this model; expect to fine-tune on site.")
 	}
+	out = append(out, p.RemedyLines()...)
 	out = append(out, fmt.Sprintf("Index circuit: %s (path %s); valve fully open.", p.Index, strings.Join(p.IndexPath, " > ")))
 	out = append(out, fmt.Sprintf("Source differential needed: %.1f kPa (least with exact settings %.1f kPa) at %.3f l/s.", p.Required/1e3, p.Least/1e3, p.TotalFlow*1e3))
 	pp := p.Pump
+	if pp.Short {
+		out = append(out, fmt.Sprintf("Pump short of head: every target needs %.1f kPa at %.3f l/s, the pump gives %.1f kPa there at its maximum speed (%.1f kPa short; speed ratio %.3f would be needed, %.3f is allowed); it runs flat out and the plan shares the shortfall out %s.",
+			pp.Needed/1e3, p.TotalTarget()*1e3, pp.Available/1e3, (pp.Needed-pp.Available)/1e3, pp.NeededSpeed, pp.MaxSpeed, shareWords[p.Share]))
+	}
 	if finite(pp.SpeedRatio) {
-		out = append(out, fmt.Sprintf("Pump speed: %.1f %% of nominal.", 100*pp.SpeedRatio))
+		line := fmt.Sprintf("Pump speed: %.1f %% of nominal.", 100*pp.SpeedRatio)
+		if pp.Boundary == site.ConstantDiff {
+			line = fmt.Sprintf("The drive will run at %.1f %% of nominal speed to hold the set point.", 100*pp.SpeedRatio)
+		}
+		out = append(out, line)
 	}
 	if finite(pp.TrimRatio) {
 		out = append(out, fmt.Sprintf("Fixed-speed alternative: impeller trimmed to %.1f %% of its diameter (diameter affinity laws, approximate: trim in steps and re-test).", 100*pp.TrimRatio))
@@ -79,12 +90,78 @@ func (p *Plan) Summary() []string {
 		}
 	}
 	for _, s := range p.Unmet {
-		out = append(out, fmt.Sprintf("Not met: %s at %.0f %% of target (%s).", s.ID, s.Percent, s.Reason))
+		line := fmt.Sprintf("Not met: %s at %.0f %% of target (%s)", s.ID, s.Percent, s.Reason)
+		if s.Remedy != "" {
+			line += "; remedy: " + s.Remedy
+		}
+		out = append(out, line+".")
 	}
 	out = append(out, p.Warnings...)
 	out = append(out, pp.Assumptions...)
 	out = append(out, "Check readings hold once every valve is set and the pump runs as planned.")
 	return out
+}
+
+// shareWords says how each policy shares a shortfall out.
+var shareWords = map[Share]string{
+	DesignFirst:  "design first (branches that can reach target get it; the rest have their valves fully open)",
+	Proportional: "in proportion (every branch short by about the same fraction)",
+}
+
+// RemedyLines returns the remedies as the plan's first lines: what to put
+// right, what each saves, and that the settings are for the plant as it
+// stands.
+func (p *Plan) RemedyLines() []string {
+	if len(p.Remedies) == 0 {
+		return nil
+	}
+	out := []string{fmt.Sprintf("Put right first (%d); the settings below are for the plant as it stands:", len(p.Remedies))}
+	for k, r := range p.Remedies {
+		line := fmt.Sprintf("%d. %s.", k+1, upper(r.Action))
+		if r.Kind != LargerPump {
+			if r.Saves > 0.005*r.Least {
+				line += fmt.Sprintf(" Saves %.1f kPa of source differential (%.1f to %.1f kPa for every target)", r.Saves/1e3, r.Least/1e3, r.LeastAfter/1e3)
+				if finite(r.Power) {
+					line += fmt.Sprintf(", %.0f W of pump power", r.Power)
+					if finite(r.AnnualEnergy) {
+						line += fmt.Sprintf(", %.0f kWh a year", r.AnnualEnergy)
+					}
+				}
+				line += "."
+			}
+			if r.Starved {
+				line += fmt.Sprintf(" The branch needs %.1f kPa at the pump for its target, %.1f kPa after.", r.Need/1e3, r.NeedAfter/1e3)
+			}
+			if p.Pump.Short && r.Serves {
+				line += " With it the pump serves every target."
+			}
+		}
+		out = append(out, line)
+	}
+	if finite(p.LeastRemedied) {
+		out = append(out, fmt.Sprintf("With every restriction above cleared, every target needs %.1f kPa (now %.1f kPa).", p.LeastRemedied/1e3, p.Least/1e3))
+	}
+	return out
+}
+
+// upper returns s with its first letter in upper case.
+func upper(s string) string {
+	if s == "" || s[0] < 'a' || s[0] > 'z' {
+		return s
+	}
+	return string(s[0]-'a'+'A') + s[1:]
+}
+
+// TotalTarget returns the total target flow, m3/s: the sum over the
+// branches on the main headers.
+func (p *Plan) TotalTarget() float64 {
+	var q float64
+	for _, b := range p.Branches {
+		if b.Depth == 0 {
+			q += b.Target
+		}
+	}
+	return q
 }
 
 func num(v float64, f string) string {

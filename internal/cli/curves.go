@@ -130,8 +130,12 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 	}
 	cs.Operating = displayPoint{op.TotalFlow() * 1000, op.PumpDiff() / 1000}
 	top := 1.5 * op.PumpDiff()
-	if m.Pump != nil {
-		top = math.Max(top, m.Pump.AtSpeed(st.Speed).ShutOff()*m.Fluid.Density*9.80665)
+	if m.PumpDriven() {
+		speed := st.Speed
+		if m.Controlled() {
+			speed = m.MaxSpeed() // the curve drawn is the drive's limit
+		}
+		top = math.Max(top, m.Pump.AtSpeed(speed).ShutOff()*m.Fluid.Density*9.80665)
 	}
 	const n = 10
 	diffs := make([]float64, n+1)

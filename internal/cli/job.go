@@ -22,6 +22,7 @@ import (
 type jobOptions struct {
 	Scale      float64
 	Rounding   string
+	Share      string // design-first (default) or proportional
 	DesignOnly bool // plan from the design model even when readings exist
 	Thresholds diagnose.Thresholds
 	Units      display // display units of every output but JSON
@@ -131,6 +132,9 @@ func (j *job) planOptions() *balance.Options {
 	bo := &balance.Options{Scale: j.opts.Scale}
 	if j.opts.Rounding == "smart" {
 		bo.Rounding = balance.Smart
+	}
+	if j.opts.Share == "proportional" {
+		bo.Share = balance.Proportional
 	}
 	if j.Cal != nil {
 		bo.Uncertainty = uncertainty(j.Cal)

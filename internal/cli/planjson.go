@@ -8,6 +8,7 @@ type planJSON struct {
 	Generated     string           `json:"generated"`
 	DesignOnly    bool             `json:"design_only"`
 	Rounding      string           `json:"rounding"`
+	Share         string           `json:"share"`
 	Index         string           `json:"index_circuit"`
 	IndexPath     []string         `json:"index_path"`
 	LeastPa       num              `json:"least_differential_pa"`
@@ -16,6 +17,8 @@ type planJSON struct {
 	ToleranceLow  num              `json:"tolerance_low"`
 	ToleranceHigh num              `json:"tolerance_high"`
 	Pump          pumpJSON         `json:"pump"`
+	Remedies      []remedyJSON     `json:"remedies"`
+	LeastRemedied num              `json:"least_differential_remedied_pa"`
 	Branches      []branchPlanJSON `json:"branches"`
 	Unmet         []shortfallJSON  `json:"unmet"`
 	Warnings      []string         `json:"warnings"`
@@ -30,6 +33,10 @@ type pumpJSON struct {
 	AfterDiff         num      `json:"after_differential_pa"`
 	SpeedRatio        num      `json:"speed_ratio"`
 	NeededSpeed       num      `json:"needed_speed_ratio"`
+	MaxSpeed          num      `json:"max_speed_ratio"`
+	NeededPa          num      `json:"needed_differential_pa"`
+	AvailablePa       num      `json:"available_differential_pa"`
+	Short             bool     `json:"short"`
 	TrimRatio         num      `json:"impeller_trim_ratio"`
 	Sensor            string   `json:"sensor"`
 	SetPoint          num      `json:"set_point_pa"`
@@ -67,21 +74,42 @@ type branchPlanJSON struct {
 }
 
 type shortfallJSON struct {
-	ID        string `json:"branch"`
-	Target    num    `json:"target_m3_s"`
-	Predicted num    `json:"predicted_m3_s"`
-	Percent   num    `json:"percent_of_target"`
-	Reason    string `json:"reason"`
+	ID           string `json:"branch"`
+	Target       num    `json:"target_m3_s"`
+	Predicted    num    `json:"predicted_m3_s"`
+	Percent      num    `json:"percent_of_target"`
+	Reason       string `json:"reason"`
+	Remedy       string `json:"remedy,omitempty"`
+	SavesPa      num    `json:"remedy_saves_pa"`
+	AnnualEnergy num    `json:"remedy_saves_kwh_a_year"`
+}
+
+type remedyJSON struct {
+	ID           string `json:"branch,omitempty"`
+	Kind         string `json:"kind"`
+	Action       string `json:"action"`
+	Ratio        num    `json:"resistance_ratio"`
+	NeedPa       num    `json:"branch_needs_pa"`
+	NeedAfterPa  num    `json:"branch_needs_after_pa"`
+	LeastPa      num    `json:"least_differential_pa"`
+	LeastAfterPa num    `json:"least_differential_after_pa"`
+	SavesPa      num    `json:"saves_pa"`
+	PowerW       num    `json:"saves_electrical_w"`
+	AnnualEnergy num    `json:"saves_kwh_a_year"`
+	Starved      bool   `json:"starved"`
+	Serves       bool   `json:"pump_then_serves_every_target"`
 }
 
 func (j *job) planOut(generated string) planJSON {
 	p := j.Plan
 	pp := p.Pump
-	out := planJSON{Site: j.L.Site.Name, Generated: generated, DesignOnly: p.DesignOnly, Rounding: p.Rounding.String(),
+	out := planJSON{Site: j.L.Site.Name, Generated: generated, DesignOnly: p.DesignOnly, Rounding: p.Rounding.String(), Share: p.Share.String(),
+		LeastRemedied: num(p.LeastRemedied),
 		Index: p.Index, IndexPath: p.IndexPath, LeastPa: num(p.Least), RequiredPa: num(p.Required), TotalFlow: num(p.TotalFlow),
 		ToleranceLow: num(p.ToleranceLow), ToleranceHigh: num(p.ToleranceHigh), Warnings: p.Warnings, Summary: p.Summary(),
 		Pump: pumpJSON{Boundary: pp.Boundary.String(), BeforeFlow: num(pp.Before.Flow), BeforeDiff: num(pp.Before.Differential),
 			AfterFlow: num(pp.After.Flow), AfterDiff: num(pp.After.Differential), SpeedRatio: num(pp.SpeedRatio), NeededSpeed: num(pp.NeededSpeed),
+			MaxSpeed: num(pp.MaxSpeed), NeededPa: num(pp.Needed), AvailablePa: num(pp.Available), Short: pp.Short,
 			TrimRatio: num(pp.TrimRatio), Sensor: pp.Sensor, SetPoint: num(pp.SetPoint),
 			HydraulicBeforeW: num(pp.HydraulicBefore), HydraulicAfterW: num(pp.HydraulicAfter),
 			ElectricBeforeW: num(pp.ElectricalBefore), ElectricAfterW: num(pp.ElectricalAfter),
@@ -97,7 +125,12 @@ func (j *job) planOut(generated string) planJSON {
 			Authority: num(b.Authority), Notes: b.Notes})
 	}
 	for _, u := range p.Unmet {
-		out.Unmet = append(out.Unmet, shortfallJSON{u.ID, num(u.Target), num(u.Predicted), num(u.Percent), u.Reason})
+		out.Unmet = append(out.Unmet, shortfallJSON{u.ID, num(u.Target), num(u.Predicted), num(u.Percent), u.Reason, u.Remedy, num(u.Saves), num(u.AnnualEnergy)})
+	}
+	for _, r := range p.Remedies {
+		out.Remedies = append(out.Remedies, remedyJSON{ID: r.ID, Kind: r.Kind.String(), Action: r.Action, Ratio: num(r.Ratio),
+			NeedPa: num(r.Need), NeedAfterPa: num(r.NeedAfter), LeastPa: num(r.Least), LeastAfterPa: num(r.LeastAfter), SavesPa: num(r.Saves),
+			PowerW: num(r.Power), AnnualEnergy: num(r.AnnualEnergy), Starved: r.Starved, Serves: r.Serves})
 	}
 	return out
 }

@@ -43,6 +43,7 @@ func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 	if plan {
 		cmd.Flags().Float64Var(&o.job.Scale, "scale", 1, "balance to this fraction of the design (or target) flows, e.g. 0.9")
 		cmd.Flags().StringVar(&o.job.Rounding, "rounding", "smart", "valve setting rounding: smart (keep branches in tolerance) or nearest")
+		cmd.Flags().StringVar(&o.job.Share, "share", "design-first", "when the pump cannot serve every target: design-first (branches that can reach target get it, the rest open fully) or proportional (all short by the same fraction)")
 		cmd.Flags().BoolVar(&o.job.DesignOnly, "design-only", false, "plan from the design data, ignoring the readings")
 	}
 }
@@ -58,6 +59,9 @@ func (o *runOptions) validate(needOut bool) error {
 	o.job.Units = u
 	if o.job.Rounding != "" && o.job.Rounding != "smart" && o.job.Rounding != "nearest" {
 		return usagef("--rounding %q: want smart or nearest", o.job.Rounding)
+	}
+	if o.job.Share != "" && o.job.Share != "design-first" && o.job.Share != "proportional" {
+		return usagef("--share %q: want design-first or proportional", o.job.Share)
 	}
 	// Written so that NaN fails every test: a comparison with NaN is false.
 	if !(o.job.Scale >= 0.2 && o.job.Scale <= 2) {

@@ -7,7 +7,6 @@ import (
 
 	"flowset/internal/hydraulics"
 	"flowset/internal/network"
-	"flowset/internal/site"
 )
 
 // Point is one point of a curve: flow m3/s and differential Pa.
@@ -65,10 +64,15 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 }
 
 // PumpCurve returns the pump's differential at the given flows and speed
-// ratio, or nil without a pump.
+// ratio, or nil without a pump. For a Controlled pump it is the curve at
+// its maximum speed whatever the speed asked: the most its drive can give,
+// the limit every set point meets.
 func (m *Model) PumpCurve(p Params, speed float64, flows []float64) []Point {
-	if m.Pump == nil || m.Site.Boundary.Kind != site.PumpCurve {
+	if !m.PumpDriven() {
 		return nil
+	}
+	if m.Controlled() {
+		speed = m.MaxSpeed()
 	}
 	c := m.Pump.AtSpeed(speed)
 	out := make([]Point, 0, len(flows))

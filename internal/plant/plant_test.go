@@ -92,3 +92,53 @@ func TestHeaderDiffAtBranch(t *testing.T) {
 		t.Errorf("header differential %g not above the first branch's %g in direct return", s.HeaderDiff(), s.BranchDiff(0))
 	}
 }
+
+// TestPumpCurveControlled checks the pump curve the curves and the report
+// draw: on a pump boundary the curve at the speed asked, on a controlled
+// pump the curve at its maximum speed whatever the speed asked (the affinity
+// laws, H(q, s) = A0 s² + A1 q s + A2 q², at s = MaxSpeed), and nothing on
+// a differential boundary without a pump sheet.
+func TestPumpCurveControlled(t *testing.T) {
+	flows := []float64{0, 0.5e-3, 1e-3}
+	for _, c := range []struct {
+		name  string
+		b     site.Boundary
+		pump  bool
+		speed float64 // the speed the curve must be drawn at
+	}{
+		{"pump", site.Boundary{Kind: site.PumpCurve, Speed: 0.9, MaxSpeed: 1.1, SetPoint: math.NaN()}, true, 0.9},
+		{"controlled", site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1.1, SetPoint: 60e3}, true, 1.1},
+		{"ideal", site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 60e3}, false, 0},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s := smallSite()
+			s.Boundary = c.b
+			if !c.pump {
+				s.Pump = nil
+			}
+			m, err := New(s)
+			if err != nil {
+				t.Fatal(err)
+			}
+			got := m.PumpCurve(m.Design(), 0.9, flows)
+			if !c.pump {
+				if got != nil {
+					t.Fatalf("PumpCurve = %v, want nil without a pump", got)
+				}
+				return
+			}
+			if len(got) != len(flows) {
+				t.Fatalf("PumpCurve gave %d points, want %d", len(got), len(flows))
+			}
+			p := *m.Pump
+			rg := m.Fluid.Density * hydraulics.StandardGravity
+			for k, q := range flows {
+				v := c.speed
+				want := (p.A0*v*v + p.A1*q*v + p.A2*q*q) * rg
+				if math.Abs(got[k].Diff-want) > 1e-9*want {
+					t.Errorf("at %g m3/s: %.9g Pa, want %.9g (speed %g)", q, got[k].Diff, want, v)
+				}
+			}
+		})
+	}
+}

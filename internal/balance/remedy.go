@@ -1,0 +1,178 @@
+package balance
+
+import (
+	"fmt"
+	"math"
+	"sort"
+)
+
+// remedyRatio is the resistance multiplier above which a branch is offered
+// a Restore remedy: 1.5 times design, the threshold at which the diagnosis
+// calls a branch restricted (common practice, no source).
+const remedyRatio = 1.5
+
+// maxRemedies bounds the candidates tried (each costs one exact plan, O(n)),
+// the worst first.
+const maxRemedies = 20
+
+// chains fills pl.chain: the source differential each branch's chain needs
+// at every target (exact.above).
+func (pl *planner) chains() {
+	ex := pl.ex
+	up := ex.above()
+	pl.chain = make([]float64, len(ex.q))
+	for i := range ex.q {
+		pl.chain[i] = ex.need[i] + ex.path[i] + up[i]
+	}
+}
+
+// starvedUnder reports whether branch i, or a branch below it, is starved.
+func (pl *planner) starvedUnder(i int) bool {
+	if pl.starved == nil {
+		return false
+	}
+	if pl.starved[i] {
+		return true
+	}
+	for _, c := range pl.m.Branches[i].Children {
+		if pl.starvedUnder(c) {
+			return true
+		}
+	}
+	return false
+}
+
+// remedies lists the faults valves cannot set right: each branch whose
+// resistance multiplier exceeds remedyRatio (restore it to design), the
+// valves of starved or index branches that a larger valve would help, and,
+// when the pump is short, the pump. Each is judged by an exact plan with the
+// remedy carried out: the least source differential for every target
+// before and after, and the branch's own chain. A remedy is kept when it
+// lowers the least differential by more than 1 %, or when its branch is
+// starved and the remedy lowers what it needs.
+func (pl *planner) remedies() {
+	m, ex := pl.m, pl.ex
+	pl.chains()
+	pl.plan.LeastRemedied = math.NaN()
+	q := ex.total()
+	give := pl.maxDiff(q)
+	judge := func(r Remedy, i int, e *exact) (Remedy, bool) {
+		r.Least, r.LeastAfter = ex.least, e.least
+		r.Saves = ex.least - e.least
+		r.Need = pl.chain[i]
+		up := e.above()
+		r.NeedAfter = e.need[i] + e.path[i] + up[i]
+		r.Starved = pl.starvedUnder(i)
+		r.Serves = e.least <= give*(1+1e-9)
+		r.Power, r.AnnualEnergy = math.NaN(), math.NaN()
+		if pl.eta > 0 {
+			r.Power = q * r.Saves / pl.eta
+			if h := m.Site.Hours; h > 0 && finite(h) {
+				r.AnnualEnergy = r.Power * h / 1e3
+			}
+		}
+		keep := r.Saves > 0.01*ex.least || r.Starved && r.NeedAfter < r.Need*0.99
+		return r, keep
+	}
+	var cand []int
+	for i := range m.Branches {
+		if pl.p.Resistance[i] > remedyRatio {
+			cand = append(cand, i)
+		}
+	}
+	sort.SliceStable(cand, func(a, b int) bool { return pl.chain[cand[a]] > pl.chain[cand[b]] })
+	if len(cand) > maxRemedies {
+		cand = cand[:maxRemedies]
+	}
+	restored := pl.p.Clone()
+	var nRestore int
+	has := map[int]bool{}
+	for _, i := range cand {
+		p := pl.p.Clone()
+		p.Resistance[i] = 1
+		e, err := newExact(m, p, append([]float64(nil), ex.q...))
+		if err != nil {
+			continue
+		}
+		r := Remedy{ID: m.Branches[i].ID, Kind: Restore, Ratio: pl.p.Resistance[i],
+			Action: fmt.Sprintf("branch %s has %.1f times its design resistance (fouled, or a strainer, isolating valve or coil partly blocked): find and clear the restriction", m.Branches[i].ID, pl.p.Resistance[i])}
+		if r, ok := judge(r, i, e); ok {
+			pl.plan.Remedies = append(pl.plan.Remedies, r)
+			restored.Resistance[i] = 1
+			nRestore++
+			has[i] = true
+		}
+	}
+	// A larger valve where the open valve takes much of what a starved or
+	// index branch needs.
+	var valves []int
+	for i := range m.Branches {
+		if m.Branches[i].Valve == nil || has[i] || m.Branches[i].Riser() {
+			continue
+		}
+		if ex.index[i] && (pl.short || ex.open[i] > 0.3*ex.need[i]) || pl.starved != nil && pl.starved[i] {
+			valves = append(valves, i)
+		}
+	}
+	sort.SliceStable(valves, func(a, b int) bool { return pl.chain[valves[a]] > pl.chain[valves[b]] })
+	if len(valves) > maxRemedies {
+		valves = valves[:maxRemedies]
+	}
+	for _, i := range valves {
+		p := pl.p.Clone()
+		p.KvScale[i] *= 2
+		e, err := newExact(m, p, append([]float64(nil), ex.q...))
+		if err != nil {
+			continue
+		}
+		r := Remedy{ID: m.Branches[i].ID, Kind: LargerValve, Ratio: math.NaN(),
+			Action: fmt.Sprintf("the fully open valve of branch %s takes %.1f kPa at target: fit a valve of twice its Kv", m.Branches[i].ID, ex.open[i]/1e3)}
+		if r, ok := judge(r, i, e); ok {
+			pl.plan.Remedies = append(pl.plan.Remedies, r)
+		}
+	}
+	if pl.short {
+		r := Remedy{Kind: LargerPump, Ratio: math.NaN(), Need: ex.least, NeedAfter: ex.least, Least: ex.least, LeastAfter: ex.least,
+			Power: math.NaN(), AnnualEnergy: math.NaN(), Starved: true, Serves: true,
+			Action: fmt.Sprintf("a pump giving %.1f kPa at %.3f l/s (this one at speed ratio %.3f, its drive allows %.3f) serves every target as the plant stands", ex.least/1e3, q*1e3, pl.plan.Pump.NeededSpeed, pl.plan.Pump.MaxSpeed)}
+		pl.plan.Remedies = append(pl.plan.Remedies, r)
+	}
+	sort.SliceStable(pl.plan.Remedies, func(a, b int) bool {
+		ra, rb := pl.plan.Remedies[a], pl.plan.Remedies[b]
+		if (ra.Kind == LargerPump) != (rb.Kind == LargerPump) {
+			return rb.Kind == LargerPump
+		}
+		return ra.Saves > rb.Saves
+	})
+	if nRestore >= 2 {
+		if e, err := newExact(m, restored, append([]float64(nil), ex.q...)); err == nil {
+			pl.plan.LeastRemedied = e.least
+		}
+	}
+}
+
+// remedyFor returns the remedy for branch i or the nearest riser above it
+// with one, preferring its own; nil when there is none.
+func (pl *planner) remedyFor(i int) *Remedy {
+	m := pl.m
+	for k := i; ; {
+		for r := range pl.plan.Remedies {
+			if pl.plan.Remedies[r].ID == m.Branches[k].ID {
+				return &pl.plan.Remedies[r]
+			}
+		}
+		p, ok := m.Index(m.Branches[k].Parent)
+		if !ok {
+			break
+		}
+		k = p
+	}
+	if pl.short {
+		for r := range pl.plan.Remedies {
+			if pl.plan.Remedies[r].Kind == LargerPump {
+				return &pl.plan.Remedies[r]
+			}
+		}
+	}
+	return nil
+}

@@ -1,0 +1,327 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/network"
+	"flowset/internal/plant"
+)
+
+// pumpAt returns the pump element at speed ratio s on its curve (head
+// multiplier applied), whatever drives it in the site.
+func (pl *planner) pumpAt(s float64) hydraulics.Element {
+	return hydraulics.Pump{Curve: *pl.m.ScaledPump(pl.p.PumpHead), Speed: s}
+}
+
+// source returns the network source of control value x: the pump at speed
+// x, or an ideal source differential x.
+func (pl *planner) source(x float64) network.Source {
+	if pl.bySpeed {
+		return network.Source{Pump: pl.pumpAt(x)}
+	}
+	return network.Source{Differential: x}
+}
+
+// maxDiff returns the differential the pump gives at flow q at its maximum
+// speed, Pa: the most any set point or speed can ask of it. +Inf when no
+// pump curve limits the source.
+func (pl *planner) maxDiff(q float64) float64 {
+	if !pl.capped {
+		return math.Inf(1)
+	}
+	d, _ := pl.pumpAt(pl.m.MaxSpeed()).Drop(q, pl.m.Fluid)
+	return -d
+}
+
+// toSpeed makes the control value a speed ratio on the pump's curve (a
+// controlled pump that must run flat out); the network is rebuilt.
+func (pl *planner) toSpeed() {
+	if pl.bySpeed {
+		return
+	}
+	pl.bySpeed = true
+	pl.net, pl.netSettings, pl.flows = nil, nil, nil
+}
+
+// settle rounds the settings, re-solves the network and sets the pump: steps
+// 5 and 6 of the package comment. It fills the plan's settings and boundary
+// and returns the final solution.
+func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
+	ex, m := pl.ex, pl.m
+	pp := &pl.plan.Pump
+	pp.NeededSpeed, pp.MaxSpeed, pp.Available = math.NaN(), math.NaN(), math.NaN()
+	pp.Needed = ex.least
+	if pl.capped {
+		pp.MaxSpeed = m.MaxSpeed()
+		pp.Available = pl.maxDiff(ex.total())
+		if s, err := pl.speedFor(ex.total(), ex.least); err == nil {
+			pp.NeededSpeed = s
+		}
+		if ex.least > pp.Available*(1+1e-9) {
+			return pl.settleShort(ctx)
+		}
+	}
+	x0, err := pl.exactControl()
+	if err != nil {
+		return nil, err
+	}
+	r := newRounder(pl)
+	idx := ex.indexID
+	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
+	settings := r.settings()
+	x, sol, err := pl.root(ctx, settings, x0, nil, indexOK, rootTol)
+	if err != nil {
+		return nil, err
+	}
+	if pl.opt.Rounding == Smart {
+		for range 4 {
+			if !r.flip(sol) {
+				break
+			}
+			settings = r.settings()
+			if x, sol, err = pl.root(ctx, settings, x, nil, indexOK, rootTol); err != nil {
+				return nil, err
+			}
+		}
+		if x, sol, err = pl.movePump(ctx, settings, x, sol); err != nil {
+			return nil, err
+		}
+	}
+	switch {
+	case pl.pump:
+		pp.NeededSpeed = x
+		if maxSpeed := m.MaxSpeed(); x > maxSpeed*(1+1e-9) {
+			x = maxSpeed
+			if sol, err = pl.solve(ctx, settings, x); err != nil {
+				return nil, err
+			}
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("with the settings rounded the pump would need speed ratio %.3f, above its maximum %.3f: the plan runs it at the maximum and some branches fall a little short", pp.NeededSpeed, maxSpeed))
+		}
+		pl.plan.Speed = x
+	case pl.capped:
+		// A controlled pump: x is the differential its drive holds, which
+		// it can only while its curve at maximum speed lies above it.
+		pp.NeededSpeed = hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), sol.TotalFlow(), x, m.Fluid)
+		if give := pl.maxDiff(sol.TotalFlow()); x > give*(1+1e-9) {
+			pl.toSpeed()
+			if sol, err = pl.solve(ctx, settings, m.MaxSpeed()); err != nil {
+				return nil, err
+			}
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("with the settings rounded the circuit needs %.1f kPa, the pump gives %.1f kPa flat out: the set point is what it gives and some branches fall a little short", x/1e3, give/1e3))
+			x = sol.PumpDiff()
+		}
+		pl.plan.Differential = x
+	default:
+		pl.plan.Differential = x
+	}
+	pl.plan.Settings = settings
+	pl.plan.Required = sol.PumpDiff()
+	pl.plan.TotalFlow = sol.TotalFlow()
+	return sol, nil
+}
+
+// movePump tries, where rounding leaves branches outside the band, moving
+// the pump until the lowest branch reaches the band's lower edge, or the
+// highest its upper edge, and keeps the move only if it brings more
+// branches into the band.
+func (pl *planner) movePump(ctx context.Context, settings []float64, x float64, sol *plant.Solved) (float64, *plant.Solved, error) {
+	m, ex := pl.m, pl.run
+	// A valve too large to throttle, or a branch without one, stays out of
+	// the band whatever the pump does: leave it out.
+	fixable := make([]bool, len(m.Branches))
+	var nfix int
+	for i := range fixable {
+		fixable[i] = !ex.clamped[i] && !(m.Branches[i].Valve == nil && ex.surplus[i] > 0)
+		if fixable[i] {
+			nfix++
+		}
+	}
+	count := func(s *plant.Solved) int {
+		var c int
+		for i := range m.Branches {
+			if r := s.Flow(i) / ex.q[i]; fixable[i] && r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9 {
+				c++
+			}
+		}
+		return c
+	}
+	ratio := func(s *plant.Solved, worst func(a, b float64) float64, start float64) float64 {
+		w := start
+		for i := range m.Branches {
+			if fixable[i] {
+				w = worst(w, s.Flow(i)/ex.q[i])
+			}
+		}
+		return w
+	}
+	best := count(sol)
+	if best >= nfix {
+		return x, sol, nil
+	}
+	low, high := 1+pl.lo+1e-3, 1+pl.hi-1e-3
+	moves := []struct {
+		g    func(*plant.Solved) float64
+		what string
+	}{
+		{func(s *plant.Solved) float64 { return ratio(s, math.Min, math.Inf(1))/low - 1 }, "raised until the lowest branch reaches the band"},
+		{func(s *plant.Solved) float64 { return ratio(s, math.Max, math.Inf(-1))/high - 1 }, "lowered until the highest branch reaches the band"},
+	}
+	var why string
+	for k, mv := range moves {
+		// Only towards the band: raise for a branch below it, lower for one
+		// above it.
+		if g0 := mv.g(sol); (k == 0) != (g0 < 0) {
+			continue
+		}
+		xm, sm, err := pl.root(ctx, settings, x, sol, mv.g, 1e-6)
+		if err != nil {
+			return 0, nil, err
+		}
+		if c := count(sm); c > best {
+			best, x, sol, why = c, xm, sm, mv.what
+		}
+	}
+	if why != "" {
+		pl.plan.Warnings = append(pl.plan.Warnings, "with the index at target, rounding leaves branches outside the band: the pump is "+why)
+	}
+	return x, sol, nil
+}
+
+// settleShort plans a pump that cannot give the least differential every
+// target needs, even at its maximum speed: it runs flat out. Design first
+// (the default), the branches that cannot reach their target get their
+// valves fully open and every other branch is set for its target at the
+// differential the pump then gives; proportional, every valve is set as if
+// the pump could serve every target, and all flows fall short together.
+func (pl *planner) settleShort(ctx context.Context) (*plant.Solved, error) {
+	m := pl.m
+	pl.short, pl.plan.Pump.Short = true, true
+	if pl.opt.Share == DesignFirst {
+		run, starved, err := pl.starve()
+		if err != nil {
+			return nil, err
+		}
+		pl.run, pl.starved = run, starved
+		var n int
+		for i, s := range starved {
+			if s && !m.Branches[i].Riser() {
+				n++
+			}
+		}
+		pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("design first: branches that cannot reach their target (%d) get their valves fully open; every other branch is set for its target at what the pump gives", n))
+	} else {
+		pl.plan.Warnings = append(pl.plan.Warnings, "proportional share-out: every valve is set as if the pump could serve every target, so all branches fall short by about the same fraction")
+	}
+	pl.toSpeed()
+	x := m.MaxSpeed()
+	r := newRounder(pl)
+	settings := r.settings()
+	sol, err := pl.solve(ctx, settings, x)
+	if err != nil {
+		return nil, err
+	}
+	if pl.opt.Rounding == Smart && pl.opt.Share == DesignFirst {
+		for range 4 {
+			if !r.flip(sol) {
+				break
+			}
+			settings = r.settings()
+			if sol, err = pl.solve(ctx, settings, x); err != nil {
+				return nil, err
+			}
+		}
+	}
+	if pl.pump {
+		pl.plan.Speed = x
+	} else {
+		// A controlled pump: the set point is what it gives flat out.
+		pl.plan.Differential = sol.PumpDiff()
+	}
+	pl.plan.Settings = settings
+	pl.plan.Required = sol.PumpDiff()
+	pl.plan.TotalFlow = sol.TotalFlow()
+	return sol, nil
+}
+
+// starve works out the design-first plan of a pump short of head: the set
+// of branches that cannot reach their target and the flows they then get.
+// A branch is starved when the differential its chain (its own parts and
+// open valve, its path along the headers, and the parts, open valves and
+// paths of the risers above it) needs at its flow exceeds D, what the pump
+// gives at maximum speed at the total flow. Each starved branch's flow is
+// then moved until its chain needs exactly D (its valve, and those of the
+// risers above it, fully open); every other branch keeps its target, so its
+// chain needs no more than D and its valve absorbs the rest. The header
+// flows, and so D, depend on the starved flows: the flows are iterated to a
+// relative 1e-10 in ln(chain/D), each step Newton's in ln q with the slope of
+// ln chain against ln q estimated by secant, kept between the branch's own
+// share (2 × own/chain: nothing else moves) and 2 (the whole chain moves
+// with it).
+func (pl *planner) starve() (*exact, []bool, error) {
+	m := pl.m
+	n := len(m.Branches)
+	target := pl.ex.q
+	q := append([]float64(nil), target...)
+	starved := make([]bool, n)
+	prevLn, prevR := make([]float64, n), make([]float64, n)
+	for i := range prevLn {
+		prevLn[i] = math.NaN()
+	}
+	const floor = 1e-3 // of target: a branch the pump cannot reach at all
+	for it := 0; ; it++ {
+		e, err := newExact(m, pl.p, append([]float64(nil), q...))
+		if err != nil {
+			return nil, nil, err
+		}
+		d := pl.maxDiff(e.total())
+		if !(d > 0) {
+			return nil, nil, fmt.Errorf("the pump gives no head at %.3g m3/s: %w", e.total(), ErrSolve)
+		}
+		up := e.above()
+		var worst float64
+		changed := false
+		for i := range n {
+			if m.Branches[i].Riser() {
+				continue
+			}
+			chain := e.need[i] + e.path[i] + up[i]
+			r := math.Log(chain / d)
+			if !starved[i] {
+				if r <= 1e-9 {
+					continue
+				}
+				starved[i], changed = true, true
+				prevLn[i] = math.NaN()
+			}
+			lnq := math.Log(q[i])
+			slope := 2.0
+			if finite(prevLn[i]) && lnq != prevLn[i] {
+				lo := 2 * (e.fixed[i] + e.open[i]) / chain
+				slope = min(max((r-prevR[i])/(lnq-prevLn[i]), lo), 2)
+			}
+			prevLn[i], prevR[i] = lnq, r
+			next := lnq - r/slope
+			switch {
+			case next >= math.Log(target[i]):
+				// It reaches its target after all.
+				q[i], starved[i], changed = target[i], false, true
+				continue
+			case next <= math.Log(floor*target[i]):
+				q[i] = floor * target[i]
+				continue
+			}
+			q[i] = math.Exp(next)
+			worst = max(worst, math.Abs(r))
+		}
+		if !changed && worst < 1e-10 {
+			e.openStarved(starved)
+			return e, starved, nil
+		}
+		if it == 300 {
+			return nil, nil, fmt.Errorf("design-first plan: the starved flows did not settle (%.2g): %w", worst, ErrSolve)
+		}
+	}
+}
