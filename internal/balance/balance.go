@@ -39,7 +39,11 @@
 //  4. Pump. With a pump curve, the speed ratio s is the one at which the
 //     pump (affinity laws, head multiplier applied) gives the least
 //     differential at the total target flow. With a differential boundary
-//     the source differential is the set-point.
+//     the source differential is the set-point; a controlled pump (a
+//     differential boundary with a pump sheet, plant.Model.Controlled) is
+//     never asked a set point above what its curve gives at its maximum
+//     speed at the planned flow, and the plan reports the speed its drive
+//     will run at (hydraulics.SpeedFor).
 //  5. Rounding. Settings are rounded to the handwheel's resolution (marks
 //     counted from the lowest setting). Nearest rounds each to the nearest
 //     mark. Smart picks, per valve, the mark below or above whose flow at the
@@ -54,11 +58,39 @@
 //     also tried raised until the lowest reaches the band's lower edge, and
 //     lowered until the highest reaches its upper edge; a move is kept only
 //     if it brings more branches into the band (a warning says so). The
-//     flows reported are those of this solve. If the speed exceeds the
-//     drive's maximum the plan is solved at the maximum and the shortfalls
-//     are reported with what would help (a larger pump, cleaning a branch
-//     whose resistance multiplier exceeds 2, a larger index valve), each
-//     with the differential it would save.
+//     flows reported are those of this solve. If rounding alone takes the
+//     speed (or set point) past what the pump gives, the plan runs it flat
+//     out and says so.
+//  7. Remedies. Each branch whose resistance multiplier exceeds 1.5, and
+//     the valve of a starved or index branch, is tried put right (the
+//     multiplier back to 1, or a valve of twice the Kv) with an exact plan:
+//     the least differential for every target before and after, the
+//     branch's own chain, and the pump power and energy the difference is
+//     worth at the target flow. Those that save over 1 % (or let a starved
+//     branch be served) head the plan (Plan.Remedies, Summary); the
+//     settings are for the plant as it stands.
+//
+// # A pump short of head
+//
+// When the least differential exceeds what the pump gives at its maximum
+// speed at the total target flow (PumpPlan.Short, with Needed and
+// Available), the pump runs flat out (a controlled pump's set point is what
+// it then gives) and the shortfall is shared out by Options.Share:
+//
+//   - DesignFirst (the default): a branch whose chain — its own parts and
+//     open valve, its path along the headers, and the parts, open valves
+//     and paths of the risers above it — needs more than the source
+//     differential D at its target is starved: its valve (and those of the
+//     risers above it) is fully open and it takes the flow at which its
+//     chain needs exactly D; every other branch is set for its target. The
+//     circuit's flow Q(D) rises with D and the pump's P(Q) falls with Q, so
+//     D = P(Q(D)) is found by regula falsi, each Q(D) by a per-branch
+//     Newton iteration in ln q (starve). A technician is never told to
+//     throttle every branch to 80 % because one is fouled: the fault stays
+//     where it is, with its remedy, and the rest of the plant gets design.
+//   - Proportional: every valve is set as if the pump could serve every
+//     target; at the pump's maximum all flows fall short by about the same
+//     fraction (a balanced circuit scales together).
 //
 // The tolerance band (Site.ToleranceLow/High, ±10 % when not given) is
 // applied to each branch's target, which is its design flow unless a target

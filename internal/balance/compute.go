@@ -20,8 +20,8 @@ const (
 
 // planner carries one Compute call.
 type planner struct {
-	m      *plant.Model
-	p      plant.Params
+	m   *plant.Model
+	p   plant.Params
 	opt Options
 	// pump: the boundary is a pump curve; capped: a pump curve limits
 	// the source (a pump boundary or a controlled pump); bySpeed: the
@@ -35,7 +35,7 @@ type planner struct {
 	// (starved marks them).
 	ex, run *exact
 	starved []bool
-	short   bool    // the pump cannot give every target
+	short   bool      // the pump cannot give every target
 	eta     float64   // pump × motor efficiency (set by pumpPlan)
 	chain   []float64 // per branch, the source differential its chain needs at every target
 	plan    *Plan
@@ -396,4 +396,3 @@ func nanTo(v, d float64) float64 {
 // rootTol is the relative accuracy to which the pump is set for the index's
 // target: far below any reading, well above the solver's tolerance.
 const rootTol = 1e-9
-

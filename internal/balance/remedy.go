@@ -127,7 +127,9 @@ func (pl *planner) remedies() {
 		}
 		r := Remedy{ID: m.Branches[i].ID, Kind: LargerValve, Ratio: math.NaN(),
 			Action: fmt.Sprintf("the fully open valve of branch %s takes %.1f kPa at target: fit a valve of twice its Kv", m.Branches[i].ID, ex.open[i]/1e3)}
-		if r, ok := judge(r, i, e); ok {
+		// A larger valve on a starved branch is worth naming only when
+		// the pump could then serve it.
+		if r, ok := judge(r, i, e); ok && (r.Saves > 0.01*ex.least || r.NeedAfter <= pl.plan.Required) {
 			pl.plan.Remedies = append(pl.plan.Remedies, r)
 		}
 	}

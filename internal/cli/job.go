@@ -23,7 +23,7 @@ type jobOptions struct {
 	Scale      float64
 	Rounding   string
 	Share      string // design-first (default) or proportional
-	DesignOnly bool // plan from the design model even when readings exist
+	DesignOnly bool   // plan from the design model even when readings exist
 	Thresholds diagnose.Thresholds
 	Units      display // display units of every output but JSON
 }

@@ -105,7 +105,7 @@ func (j *job) planOut(generated string) planJSON {
 	pp := p.Pump
 	out := planJSON{Site: j.L.Site.Name, Generated: generated, DesignOnly: p.DesignOnly, Rounding: p.Rounding.String(), Share: p.Share.String(),
 		LeastRemedied: num(p.LeastRemedied),
-		Index: p.Index, IndexPath: p.IndexPath, LeastPa: num(p.Least), RequiredPa: num(p.Required), TotalFlow: num(p.TotalFlow),
+		Index:         p.Index, IndexPath: p.IndexPath, LeastPa: num(p.Least), RequiredPa: num(p.Required), TotalFlow: num(p.TotalFlow),
 		ToleranceLow: num(p.ToleranceLow), ToleranceHigh: num(p.ToleranceHigh), Warnings: p.Warnings, Summary: p.Summary(),
 		Pump: pumpJSON{Boundary: pp.Boundary.String(), BeforeFlow: num(pp.Before.Flow), BeforeDiff: num(pp.Before.Differential),
 			AfterFlow: num(pp.After.Flow), AfterDiff: num(pp.After.Differential), SpeedRatio: num(pp.SpeedRatio), NeededSpeed: num(pp.NeededSpeed),
