@@ -373,6 +373,8 @@ type Shortfall struct {
 	Predicted float64 // m3/s
 	Percent   float64 // % of target
 	Reason    string
+	// Needs is the source differential its chain needs at target, Pa.
+	Needs float64
 	// Remedy is what would cure it ("" when the plan knows none); Saves
 	// the source differential the remedy saves, Pa, and AnnualEnergy the
 	// energy, kWh a year (NaN when not worked out).

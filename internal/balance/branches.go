@@ -124,6 +124,10 @@ func (pl *planner) inBand(percent float64) bool {
 	return r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9
 }
 
+// StarvedReason is the Shortfall.Reason of a branch a design-first plan
+// leaves short: its valve (or one below it) fully open.
+const StarvedReason = "the pump cannot give what it needs at target: valve fully open"
+
 // shortfalls lists the branches outside the band that the plan cannot
 // bring in, each with the remedy that would, and warns about the others.
 func (pl *planner) shortfalls() {
@@ -138,8 +142,8 @@ func (pl *planner) shortfalls() {
 		var reason string
 		low := bp.Percent < 100*(1+pl.lo)
 		switch {
-		case pl.starved != nil && pl.starved[i]:
-			reason = fmt.Sprintf("needs %.1f kPa at the pump for its target, the pump gives %.1f kPa flat out: valve fully open", pl.chain[i]/1e3, pl.plan.Required/1e3)
+		case pl.starvedUnder(i):
+			reason = StarvedReason
 		case pl.short && pl.opt.Share == Proportional && low:
 			reason = "pump short of head, shared out in proportion"
 		case atMax && low:
@@ -152,7 +156,7 @@ func (pl *planner) shortfalls() {
 			rounding++
 			continue
 		}
-		sf := Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason, Saves: math.NaN(), AnnualEnergy: math.NaN()}
+		sf := Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason, Needs: pl.chain[i], Saves: math.NaN(), AnnualEnergy: math.NaN()}
 		if r := pl.remedyFor(i); r != nil {
 			sf.Remedy, sf.Saves, sf.AnnualEnergy = r.Action, r.Saves, r.AnnualEnergy
 		}

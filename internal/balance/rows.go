@@ -91,6 +91,9 @@ func (p *Plan) Summary() []string {
 	}
 	for _, s := range p.Unmet {
 		line := fmt.Sprintf("Not met: %s at %.0f %% of target (%s)", s.ID, s.Percent, s.Reason)
+		if s.Reason == StarvedReason {
+			line = fmt.Sprintf("Not met: %s at %.0f %% of target (needs %.1f kPa at the pump for its target, which gives %.1f kPa flat out: valve fully open)", s.ID, s.Percent, s.Needs/1e3, p.Required/1e3)
+		}
 		if s.Remedy != "" {
 			line += "; remedy: " + s.Remedy
 		}

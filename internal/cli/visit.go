@@ -191,33 +191,48 @@ func (j *job) shortLines(u display) []string {
 		out = append(out, fmt.Sprintf("Short after the plan: %s.", strings.Join(parts, ", ")))
 	}
 	pp := plan.Pump
-	if j.L.Site.Boundary.Kind == site.PumpCurve && j.L.Model.Pump != nil && finite(pp.NeededSpeed) && pp.NeededSpeed > pp.MaxSpeed {
-		total := 0.0
-		for _, b := range plan.Branches {
-			if b.Depth == 0 {
-				total += b.Target
-			}
-		}
-		full := j.L.Model.PumpCurve(j.Params, pp.MaxSpeed, []float64{total})
-		why := fmt.Sprintf("Why: the pump must give %s at %s", u.diff(plan.Least), u.flow(total))
-		if len(full) == 1 && finite(full[0].Diff) {
-			why += fmt.Sprintf("; at full speed (%s) it gives %s", u.speed(pp.MaxSpeed), u.diff(full[0].Diff))
-		}
-		out = append(out, why+".")
+	if pp.Short {
+		out = append(out, fmt.Sprintf("Why: every target needs %s at the pump at %s; at full speed (%s) it gives %s there, %s short.",
+			u.diff(pp.Needed), u.flow(plan.TotalTarget()), u.speed(pp.MaxSpeed), u.diff(pp.Available), u.diff(pp.Needed-pp.Available)))
+	} else if j.L.Model.PumpDriven() && finite(pp.NeededSpeed) && pp.NeededSpeed > pp.MaxSpeed {
+		out = append(out, fmt.Sprintf("Why: with the valves on their handwheel marks the pump would need %s speed; it allows %s.", u.speed(pp.NeededSpeed), u.speed(pp.MaxSpeed)))
 	}
 	seen := map[string]bool{}
+	var starved []string
 	for _, s := range plan.Unmet {
+		if s.Reason == balance.StarvedReason {
+			if len(starved) < maxIDs {
+				starved = append(starved, fmt.Sprintf("%s %s", s.ID, u.diff(s.Needs)))
+			}
+			continue
+		}
 		if s.Reason != "" && !seen[s.Reason] {
 			seen[s.Reason] = true
 			out = append(out, "Cause: "+s.Reason+".")
 		}
 	}
-	for _, w := range plan.Warnings {
-		if isRemedyWarning(w) {
-			out = append(out, "What would fix it: "+w+".")
+	if len(starved) > 0 {
+		more := ""
+		if n := len(plan.Unmet) - len(starved); n > 0 && len(starved) == maxIDs {
+			more = " and more"
 		}
+		out = append(out, fmt.Sprintf("Cause: the pump gives %s flat out; the short branches need more at the pump for their targets (%s%s), so their valves are fully open.", u.diff(plan.Required), strings.Join(starved, ", "), more))
 	}
-	out = append(out, "Set the valves as below all the same: every branch the pump can serve gets its target and the short ones what is left. No energy saving is claimed.")
+	for _, r := range plan.Remedies {
+		line := "What would fix it: " + r.Action
+		if r.Kind != balance.LargerPump && r.Saves > 0.005*r.Least {
+			line += fmt.Sprintf(" (every target would then need %s instead of %s)", u.diff(r.LeastAfter), u.diff(r.Least))
+		}
+		if pp.Short && r.Serves && r.Kind != balance.LargerPump {
+			line += "; the pump then serves every target"
+		}
+		out = append(out, line+".")
+	}
+	if plan.Share == balance.Proportional && pp.Short {
+		out = append(out, "Set the valves as below all the same (shared out in proportion, as asked): every branch gets about the same fraction of its target. No energy saving is claimed.")
+	} else {
+		out = append(out, "Set the valves as below all the same: every other branch gets its target, and the short ones, their valves fully open, get as much as the pump can give. No energy saving is claimed.")
+	}
 	return out
 }
 
@@ -368,7 +383,14 @@ func (j *job) pumpStep(u display) report.PumpStep {
 		st.From = fmt.Sprintf("%s at %s", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor))
 		st.To = fmt.Sprintf("%s at %s", u.diff(pp.SetPoint), sensorName(pp.Sensor))
 		st.Where = fmt.Sprintf("the differential set point of the pump's controller, its sensor at %s", sensorName(pp.Sensor))
-		st.Warnings = append(st.Warnings, fmt.Sprintf("No pump curve was given: nobody has checked that the pump can give %s at %s. Check it against the pump's own curve before relying on the plan.", u.diff(plan.Required), u.flow(plan.TotalFlow)))
+		switch {
+		case j.L.Model.Controlled() && pp.Short:
+			st.Where += fmt.Sprintf("; the pump cannot give more: its drive will run flat out (%s speed)", u.speed(pp.SpeedRatio))
+		case j.L.Model.Controlled() && finite(pp.SpeedRatio):
+			st.Where += fmt.Sprintf("; its drive will run at about %s speed to hold it", u.speed(pp.SpeedRatio))
+		default:
+			st.Warnings = append(st.Warnings, fmt.Sprintf("No pump curve was given: nobody has checked that the pump can give %s at %s. Check it against the pump's own curve before relying on the plan.", u.diff(plan.Required), u.flow(plan.TotalFlow)))
+		}
 		if pp.SetPoint > j.Before.State.Differential*1.001 {
 			st.Warnings = append(st.Warnings, fmt.Sprintf("The set point rises from %s to %s: check the pressure ratings of the pipework, valves and equipment it serves before raising it.", u.diff(j.Before.State.Differential), u.diff(pp.SetPoint)))
 		}
