@@ -134,6 +134,11 @@ func TestClosedLoop(t *testing.T) {
 			}
 			unc := &balance.Uncertainty{LnResistance: cal.LogSD, LnKvScale: make([]float64, len(m.Branches)), LnHeader: cal.Header.SD, LnPumpHead: cal.Pump.SD}
 			for i, b := range cal.Branches {
+				if b.ID == oracle.Index {
+					t.Logf("true index %s: fitted %.3f sd %.3f determined %v fault probability %.3f", b.ID, b.Ratio, cal.LogSD[i], b.Determined, b.FaultProb)
+				}
+			}
+			for i, b := range cal.Branches {
 				if b.KvFitted {
 					unc.LnKvScale[i] = b.KvSD
 				}

@@ -3,11 +3,11 @@ package calibrate
 import (
 	"context"
 	"errors"
-	"flowset/internal/lsq"
 	"fmt"
 	"math"
 
 	"flowset/internal/hydraulics"
+	"flowset/internal/lsq"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -28,6 +28,19 @@ const (
 	// branch the readings barely touch stays near it (the fall-back towards
 	// design the tech notes ask for).
 	DefaultPriorResistance = math.Ln2
+	// DefaultPriorClean is the sd of ln R of a branch as designed and
+	// built, without a fault: pipe roughness, lengths, fitting coefficients
+	// and a terminal's rated drop each off by some per cent, together
+	// within about ±20 % at two sd (common practice, no source). The
+	// resistance prior is a mixture (see FitOptions.FaultShare): most
+	// branches are clean and stay near design unless the readings say
+	// otherwise, a few are not and are fitted under DefaultPriorResistance.
+	DefaultPriorClean = 0.1
+	// DefaultFaultShare is the prior probability that a branch departs from
+	// its design by a fault (fouled terminal or strainer, part-closed
+	// isolating valve, wrong fitting): one in ten (common practice, no
+	// source).
+	DefaultFaultShare = 0.1
 	// DefaultPriorKv is the sd of ln KvScale: BS 7350:1990 allows ±5 % on the
 	// nominal Kv of a fully open regulating valve (shared/references.md §6);
 	// the whole ±5 % is taken as one sd because accuracy falls off markedly
@@ -61,11 +74,16 @@ const freeSigma = 3.0
 // FitOptions tune Fit. The zero value (or nil) selects the defaults; a
 // prior sd of +Inf removes that prior.
 type FitOptions struct {
-	PriorResistance float64  // sd of ln R; 0: DefaultPriorResistance
-	PriorKv         float64  // sd of ln KvScale; 0: DefaultPriorKv
-	PriorHeader     float64  // sd of ln Header; 0: DefaultPriorHeader
-	PriorPump       float64  // sd of ln PumpHead; 0: DefaultPriorPump
-	Loss            lsq.Loss // zero value: plain least squares
+	PriorResistance float64 // sd of ln R of a faulty branch; 0: DefaultPriorResistance
+	PriorClean      float64 // sd of ln R of a clean branch; 0: DefaultPriorClean
+	// FaultShare is the prior probability of a faulty branch; 0:
+	// DefaultFaultShare, negative: every branch gets PriorResistance (one
+	// wide prior, no mixture).
+	FaultShare  float64
+	PriorKv     float64  // sd of ln KvScale; 0: DefaultPriorKv
+	PriorHeader float64  // sd of ln Header; 0: DefaultPriorHeader
+	PriorPump   float64  // sd of ln PumpHead; 0: DefaultPriorPump
+	Loss        lsq.Loss // zero value: plain least squares
 	// OutlierZ is the engine's outlier threshold (see Settings.OutlierZ):
 	// 0 selects the Bonferroni default, negative disables the test.
 	OutlierZ float64
@@ -106,7 +124,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	if o != nil {
 		out = *o
 	}
-	for _, p := range []*float64{&out.PriorResistance, &out.PriorKv, &out.PriorHeader, &out.PriorPump} {
+	for _, p := range []*float64{&out.PriorResistance, &out.PriorClean, &out.PriorKv, &out.PriorHeader, &out.PriorPump} {
 		if *p < 0 || math.IsNaN(*p) {
 			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, lsq.ErrSettings)
 		}
@@ -123,6 +141,11 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 		}
 	}
 	def(&out.PriorResistance, DefaultPriorResistance)
+	def(&out.PriorClean, DefaultPriorClean)
+	def(&out.FaultShare, DefaultFaultShare)
+	if out.FaultShare >= 1 || math.IsNaN(out.FaultShare) {
+		return out, fmt.Errorf("calibrate: fault share %g must be below 1: %w", out.FaultShare, lsq.ErrSettings)
+	}
 	def(&out.PriorKv, DefaultPriorKv)
 	def(&out.PriorHeader, DefaultPriorHeader)
 	def(&out.PriorPump, DefaultPriorPump)
@@ -220,6 +243,10 @@ type BranchFit struct {
 	KvLo, KvHi, KvSD float64
 	KvDetermined     bool
 	Valve            ValveVerdict
+	// FaultProb is the probability, given the readings, that the branch's
+	// resistance departs from design by more than a clean branch's scatter
+	// (see FitOptions.FaultShare); NaN when the fit used one wide prior.
+	FaultProb float64
 }
 
 // Above reports whether the branch's resistance is shown to exceed f times
@@ -257,6 +284,12 @@ type ReadingFit struct {
 	// AsValveDiff marks a valve-meter flow fitted as the differential the
 	// meter measured.
 	AsValveDiff bool
+	// SameAs is, for a valve-meter flow that is the same measurement as a
+	// valve differential of the same state (the meter's flow for the
+	// differential it read), that reading's index; -1 otherwise. Such a
+	// flow is not fitted on its own: Predicted is the flow the meter would
+	// show for the model's valve differential, Normalised the twin's.
+	SameAs int
 }
 
 // Calibration is the outcome of Fit.
@@ -350,6 +383,14 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 	if err != nil {
 		return nil, err
 	}
+	if o.FaultShare > 0 && !math.IsInf(o.PriorResistance, 1) {
+		// Second pass under the mixture prior: each branch's prior is the
+		// component its readings favour.
+		su.classify(base)
+		if base, err = su.run(ctx, hyp, su.allObs(), base, o.OutlierZ, false); err != nil {
+			return nil, err
+		}
+	}
 	verdicts := make([]ValveVerdict, len(m.Branches))
 	nan := math.NaN()
 	for i := range verdicts {
@@ -374,7 +415,19 @@ type setup struct {
 	// maps a reading to its observation (-1 none).
 	boundary  []bool
 	byReading []int
-	state     []int // reading -> survey state
+	// twin maps a valve-meter flow merged with the valve differential of
+	// the same measurement to that reading (-1 none; mergeMeterTwins).
+	twin []int
+	// rhoMeter is the density valve meters are taken to assume, kg/m3.
+	rhoMeter float64
+	// rSigma is each branch's resistance prior sd and faultProb the
+	// probability its readings give of a fault (classify); nil before.
+	rSigma, faultProb []float64
+	// mixSD is each branch's posterior sd of ln R under the whole mixture,
+	// slabSD under the faulty component alone: whether the readings could
+	// see a fault in the branch at all.
+	mixSD, slabSD, slabMean []float64
+	state                   []int // reading -> survey state
 	// kvSep: the readings can tell branch i's valve from its fixed parts;
 	// evidence: they say something about the valve at all.
 	kvSep, evidence []bool
@@ -399,13 +452,15 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 	su := &setup{m: m, opt: o, boundary: make([]bool, len(s.Readings)), byReading: make([]int, len(s.Readings)),
 		kvSep: make([]bool, nb), evidence: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb), refSet: make([]float64, nb)}
 	su.state = make([]int, len(s.Readings))
+	su.twin = make([]int, len(s.Readings))
 	for i := range su.byReading {
-		su.byReading[i], su.state[i] = -1, -1
+		su.byReading[i], su.state[i], su.twin[i] = -1, -1, -1
 	}
 	rhoMeter := o.MeterDensity
 	if rhoMeter == 0 {
 		rhoMeter = m.Fluid.Density
 	}
+	su.rhoMeter = rhoMeter
 	for k, st := range m.States {
 		for _, ri := range st.Readings {
 			r := &s.Readings[ri]
@@ -466,6 +521,7 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 			su.obs = append(su.obs, o)
 		}
 	}
+	su.mergeMeterTwins()
 	if len(su.obs) == 0 {
 		return nil, fmt.Errorf("calibrate: no readings to fit: %w", ErrSurvey)
 	}
@@ -478,6 +534,129 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 	su.hasHeader = len(sn.built.Headers) > 0
 	su.hasPump = sn.built.PumpLink >= 0
 	return su, nil
+}
+
+// classify chooses each branch's resistance prior from fit f (made under
+// the wide prior PriorResistance) by the evidence of its readings: with the
+// readings' information about ln R taken as a normal likelihood (estimate
+// m_d, variance v_d, recovered from f's posterior by removing the wide
+// prior), the branch's marginal likelihood under a clean prior N(0, c²) is
+// N(m_d; 0, c² + v_d) and under a faulty one N(m_d; 0, w² + v_d); the
+// posterior probability of a fault weighs them by FaultShare (Bayes factor
+// of nested normal models; Kass & Raftery 1995, J. Amer. Statist. Assoc.
+// 90(430), §2). A branch goes to the faulty component when that
+// probability exceeds one half, else it keeps near design. A branch the
+// readings barely touch keeps the clean prior, so noise in a weak reading
+// (a valve-meter flow at 1 kPa) cannot move it far.
+func (su *setup) classify(f *fitRun) {
+	o := su.opt
+	nb := len(su.m.Branches)
+	su.rSigma = make([]float64, nb)
+	su.faultProb = make([]float64, nb)
+	su.mixSD, su.slabSD, su.slabMean = make([]float64, nb), make([]float64, nb), make([]float64, nb)
+	for i := range su.rSigma {
+		su.rSigma[i] = o.PriorClean
+		su.faultProb[i] = o.FaultShare
+		// No information: the prior mixture's own spread.
+		su.mixSD[i] = math.Sqrt((1-o.FaultShare)*o.PriorClean*o.PriorClean + o.FaultShare*o.PriorResistance*o.PriorResistance)
+		su.slabSD[i] = o.PriorResistance
+	}
+	res := f.res
+	w2, c2 := o.PriorResistance*o.PriorResistance, o.PriorClean*o.PriorClean
+	for j, par := range f.prob.params {
+		if par.Kind != ResistanceParam {
+			continue
+		}
+		i := par.Branch
+		v := res.Var[j]
+		if !(v > 0) {
+			continue
+		}
+		prec := 1/v - 1/w2
+		if !(prec > 1e-9) {
+			continue
+		}
+		vd := 1 / prec
+		md := res.X[j] * (1 / v) * vd
+		lf := normLogPDF(md, w2+vd)
+		lc := normLogPDF(md, c2+vd)
+		pf := 1 / (1 + (1-o.FaultShare)/o.FaultShare*math.Exp(lc-lf))
+		su.faultProb[i] = pf
+		// The spread of the mixture posterior, for a branch kept under the
+		// clean prior: its point estimate stays the clean component's, but
+		// its uncertainty keeps the chance of a fault the readings could not
+		// rule out, so the plan's bands and warnings still name a weakly
+		// read branch that may be the index.
+		vc, vf := 1/(1/c2+1/vd), 1/(1/w2+1/vd)
+		mc, mf := md*vc/vd, md*vf/vd
+		su.mixSD[i] = math.Sqrt((1-pf)*vc + pf*vf + pf*(1-pf)*(mf-mc)*(mf-mc))
+		su.slabSD[i], su.slabMean[i] = math.Sqrt(vf), mf
+		if pf > 0.5 {
+			su.rSigma[i] = o.PriorResistance
+		}
+	}
+}
+
+// normLogPDF is the log density of N(0, v) at x.
+func normLogPDF(x, v float64) float64 {
+	return -0.5 * (x*x/v + math.Log(2*math.Pi*v))
+}
+
+// twinTol is how closely a valve-meter flow, turned back into the
+// differential its meter read, must match a valve differential read in the
+// same state for the two to be taken as one measurement: 5 % of the
+// differential or 20 Pa, whichever is larger (the rounding of a displayed
+// flow to three figures and of a differential to 0.01 kPa, with room for
+// a meter's own table; common practice, no source).
+const twinTol, twinFloor = 0.05, 20.0
+
+// mergeMeterTwins keeps one observation where a valve-meter flow and a valve
+// differential of the same branch in the same state are the same
+// measurement: a balancing-valve meter reads the differential at the valve's
+// test points and shows the flow its table gives for it, and a technician
+// notes both. Counting both would count one differential twice, halving its
+// variance and hiding a valve whose Kv is off its table. The differential,
+// read directly with its own uncertainty, is kept; the flow is marked as its
+// twin. A pair that does not match through the table is left as two
+// readings (the fit then weighs them; a meter dialled to the wrong valve
+// size is the usual cause).
+func (su *setup) mergeMeterTwins() {
+	type key struct{ state, branch int }
+	direct := map[key]int{}
+	for k, o := range su.obs {
+		if o.what == site.ValveDiff && !o.meter && o.branch >= 0 {
+			direct[key{o.state, o.branch}] = k
+		}
+	}
+	drop := map[int]bool{}
+	for k, o := range su.obs {
+		if !o.meter {
+			continue
+		}
+		d, ok := direct[key{o.state, o.branch}]
+		if !ok {
+			continue
+		}
+		dv := su.obs[d].value
+		if math.Abs(o.value-dv) > max(twinTol*math.Abs(dv), twinFloor) {
+			continue
+		}
+		drop[k] = true
+		su.twin[o.reading] = su.obs[d].reading
+	}
+	if len(drop) == 0 {
+		return
+	}
+	kept := su.obs[:0]
+	for k, o := range su.obs {
+		if drop[k] {
+			su.byReading[o.reading] = -1
+			continue
+		}
+		su.byReading[o.reading] = len(kept)
+		kept = append(kept, o)
+	}
+	su.obs = kept
 }
 
 // valveEvidence works out, per valve, whether the readings separate its Kv
@@ -572,7 +751,11 @@ func (su *setup) params(hyp []ValveHypothesis) []Param {
 	var ps []Param
 	for i := range m.Branches {
 		if len(m.Branches[i].Fixed) > 0 {
-			ps = append(ps, Param{Kind: ResistanceParam, Branch: i, Sigma: o.PriorResistance})
+			sd := o.PriorResistance
+			if su.rSigma != nil {
+				sd = su.rSigma[i]
+			}
+			ps = append(ps, Param{Kind: ResistanceParam, Branch: i, Sigma: sd})
 		}
 	}
 	for i := range m.Branches {

@@ -2,12 +2,12 @@ package calibrate
 
 import (
 	"context"
-	"flowset/internal/cpuclock"
 	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
 
+	"flowset/internal/cpuclock"
 	"flowset/internal/site"
 	"flowset/internal/synth"
 )

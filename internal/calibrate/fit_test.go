@@ -3,13 +3,13 @@ package calibrate
 import (
 	"context"
 	"errors"
-	"flowset/internal/lsq"
 	"math"
 	"math/rand/v2"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
 
+	"flowset/internal/lsq"
 	"flowset/internal/site"
 )
 

@@ -43,10 +43,12 @@ func TestFitCoverage(t *testing.T) {
 		opt   *FitOptions
 		seeds int
 	}{
-		{"dense", nil, 200},
+		// The engine's coverage under the law the truth is drawn from: one
+		// wide prior (the mixture's coverage is TestFitMixture's).
+		{"dense", &FitOptions{FaultShare: -1}, 200},
 		// The matrix-free path with probed variances, forced on a small
 		// plant: fewer seeds, the same band.
-		{"matrix-free", &FitOptions{MatrixFreeAbove: 1}, 100},
+		{"matrix-free", &FitOptions{MatrixFreeAbove: 1, FaultShare: -1}, 100},
 	} {
 		t.Run(c.name, func(t *testing.T) { coverage(t, c.opt, c.seeds) })
 	}
@@ -230,7 +232,7 @@ func TestFitAgainstGaussNewton(t *testing.T) {
 			tr.p.Resistance = []float64{1.5, 0.8, 1.1}
 			tr.p.Header, tr.p.PumpHead = 1.2, 0.95
 			simulate(t, m, tr, rand.New(rand.NewPCG(41, 2)), 1)
-			cal, err := Fit(ctx, m, &FitOptions{OutlierZ: -1})
+			cal, err := Fit(ctx, m, &FitOptions{OutlierZ: -1, FaultShare: -1})
 			if err != nil {
 				t.Fatal(err)
 			}

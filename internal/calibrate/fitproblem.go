@@ -2,7 +2,6 @@ package calibrate
 
 import (
 	"context"
-	"flowset/internal/lsq"
 	"fmt"
 	"math"
 	"slices"
@@ -10,6 +9,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"flowset/internal/hydraulics"
+	"flowset/internal/lsq"
 	"flowset/internal/network"
 	"flowset/internal/plant"
 	"flowset/internal/site"

@@ -2,13 +2,13 @@ package calibrate
 
 import (
 	"context"
-	"flowset/internal/lsq"
 	"fmt"
 	"math"
 	"slices"
 
 	"gonum.org/v1/gonum/mat"
 
+	"flowset/internal/lsq"
 	"flowset/internal/network"
 	"flowset/internal/plant"
 )

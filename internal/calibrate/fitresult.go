@@ -1,12 +1,17 @@
 package calibrate
 
 import (
-	"flowset/internal/lsq"
 	"fmt"
 	"math"
 
+	"flowset/internal/hydraulics"
+	"flowset/internal/lsq"
 	"flowset/internal/plant"
 )
+
+// determinedFraction: a parameter is determined by the readings when its
+// posterior sd is under this fraction of its prior sd (as in the engine).
+const determinedFraction = 0.5
 
 // calibration assembles the outcome of fit f.
 func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, error) {
@@ -36,7 +41,10 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	}
 	for i := range nb {
 		b := &m.Branches[i]
-		bf := BranchFit{ID: b.ID, Index: i, Ratio: 1, Lo: 1, Hi: 1, HasValve: b.Valve != nil, KvScale: 1, KvLo: 1, KvHi: 1, Valve: verdicts[i]}
+		bf := BranchFit{ID: b.ID, Index: i, Ratio: 1, Lo: 1, Hi: 1, HasValve: b.Valve != nil, KvScale: 1, KvLo: 1, KvHi: 1, Valve: verdicts[i], FaultProb: math.NaN()}
+		if su.faultProb != nil {
+			bf.FaultProb = su.faultProb[i]
+		}
 		if j := p.rIdx[i]; j >= 0 {
 			bf.Fitted, bf.Determined = true, res.Determined[j]
 			bf.Ratio, bf.Lo, bf.Hi, bf.SD = interval(j)
@@ -83,6 +91,33 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		bf.ValveAssumed = b.Valve != nil && !bf.KvFitted
 		c.Branches[i] = bf
 	}
+	if su.mixSD != nil {
+		// A branch kept under the clean prior reports the mixture's spread
+		// (see classify), never less than its own fit's. Its readings
+		// determine it when they could have seen a fault: its sd under the
+		// faulty component alone is under half that component's prior sd.
+		// One they do not determine keeps that wide sd, so that the plan
+		// warns where an unseen fault could make it the index.
+		for i := range c.Branches {
+			b := &c.Branches[i]
+			if !b.Fitted || su.rSigma[i] != su.opt.PriorClean {
+				continue
+			}
+			b.Determined = su.slabSD[i] < determinedFraction*su.opt.PriorResistance
+			sd := su.mixSD[i]
+			if !b.Determined {
+				// Wide enough that the band's upper end reaches the
+				// faulty component's: what the branch may be if it is
+				// faulty, which the readings cannot rule out.
+				sd = max(su.slabSD[i], (su.slabMean[i]+2*su.slabSD[i]-math.Log(b.Ratio))/2)
+			}
+			if sd > b.SD {
+				b.SD = sd
+				b.Lo, b.Hi = b.Ratio*math.Exp(-res.TQuantile*sd), b.Ratio*math.Exp(res.TQuantile*sd)
+				c.LogSD[i] = sd
+			}
+		}
+	}
 	if p.hIdx >= 0 {
 		c.Header.Fitted, c.Header.Determined = true, res.Determined[p.hIdx]
 		c.Header.Ratio, c.Header.Lo, c.Header.Hi, c.Header.SD = interval(p.hIdx)
@@ -109,8 +144,19 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	c.Readings = make([]ReadingFit, len(s.Readings))
 	for ri := range s.Readings {
 		rd := &s.Readings[ri]
-		rf := ReadingFit{Index: ri, Pos: rd.Pos, State: rd.State, Where: rd.Where, What: rd.What, Value: rd.Value, Predicted: math.NaN(), Residual: math.NaN(), Normalised: math.NaN()}
-		switch k := su.byReading[ri]; {
+		rf := ReadingFit{Index: ri, Pos: rd.Pos, State: rd.State, Where: rd.Where, What: rd.What, Value: rd.Value, Predicted: math.NaN(), Residual: math.NaN(), Normalised: math.NaN(), SameAs: su.twin[ri]}
+		k := su.byReading[ri]
+		meterC := 0.0
+		if t := su.twin[ri]; t >= 0 {
+			// Report the flow against its twin differential's fit.
+			k = su.byReading[t]
+			if b, ok := m.Index(rd.Where); ok {
+				if kv, err := m.Branches[b].Valve.KvAt(m.States[su.state[ri]].Settings[b]); err == nil {
+					meterC, _ = hydraulics.KvDrop(1, kv, su.rhoMeter)
+				}
+			}
+		}
+		switch {
 		case su.boundary[ri]:
 			rf.Boundary = true
 			if st := su.state[ri]; st >= 0 {
@@ -125,7 +171,10 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			}
 			o := &p.obs[oi]
 			rf.Predicted = p.pred[oi]
-			if o.meter {
+			if meterC > 0 {
+				rf.AsValveDiff = true
+				rf.Predicted = math.Copysign(math.Sqrt(math.Abs(rf.Predicted)/meterC), rf.Predicted)
+			} else if o.meter {
 				rf.AsValveDiff = true
 				rf.Predicted = math.Copysign(math.Sqrt(math.Abs(rf.Predicted)/o.meterC), rf.Predicted)
 			}

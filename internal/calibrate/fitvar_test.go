@@ -2,13 +2,13 @@ package calibrate
 
 import (
 	"context"
-	"flowset/internal/lsq"
 	"math"
 	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
 
+	"flowset/internal/lsq"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 	"flowset/internal/synth"
