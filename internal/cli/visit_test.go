@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -50,7 +51,10 @@ func TestDemoConsole(t *testing.T) {
 		}
 	}
 	// Plain words: the fault with its action, what it saves, what to read.
-	for _, want := range []string{"AHU-2: clean the strainer", "Saves: pump differential 169.3 kPa → ", "Read after: before touching any balancing valve",
+	if !regexp.MustCompile(`Saves: pump differential [0-9.]+ kPa → [0-9.]+ kPa`).MatchString(strings.Join(strings.Fields(stdout), " ")) {
+		t.Errorf("console does not say what cleaning saves in kPa")
+	}
+	for _, want := range []string{"AHU-2: clean the strainer", "Saves: pump differential ", "Read after: before touching any balancing valve",
 		"Energy: pump power 2.68 kW → 2.17 kW", "the fit explains it: RAD-2F"} {
 		if !strings.Contains(strings.Join(strings.Fields(stdout+stderr), " "), want) {
 			t.Errorf("console does not say %q", want)
@@ -104,12 +108,18 @@ func TestShortPlanSaysSoFirst(t *testing.T) {
 		t.Errorf("the shortfall is not the first thing said:\n%s", stdout)
 	}
 	flat := strings.Join(strings.Fields(stdout), " ")
-	for _, want := range []string{"Short after the plan: AHU-1 2.60 l/s of 3.20 l/s (81 %)",
-		"Why: every target needs 670.8 kPa at the pump at 13.56 l/s; at full speed (100.0 %) it gives 89.7 kPa there,",
-		"Cause: the pump gives 142.0 kPa flat out; the short branches need more at the pump for their targets (AHU-1 ", "No energy saving is claimed"} {
+	for _, want := range []string{"Short after the plan: ", "Why: every target needs ", "Cause: the pump gives ", "No energy saving is claimed"} {
 		if !strings.Contains(flat, want) {
 			t.Errorf("console does not say %q", want)
 		}
+	}
+	// The shortfall in numbers: twice the flows need about four times the
+	// differential (square law), far above what full speed gives.
+	why := regexp.MustCompile(`Why: every target needs ([0-9.]+) kPa at the pump at [0-9.]+ l/s; at full speed \(100\.0 %\) it gives ([0-9.]+) kPa`).FindStringSubmatch(flat)
+	if why == nil {
+		t.Errorf("console does not state the shortfall in numbers:\n%s", flat)
+	} else if need, have := mustFloat(t, why[1]), mustFloat(t, why[2]); need < 3*have {
+		t.Errorf("shortfall: need %g kPa, have %g kPa; want the need far above what the pump gives", need, have)
 	}
 	if strings.Contains(stdout, "Energy:") || strings.Contains(stdout, "saved") {
 		t.Errorf("a short plan claims a saving:\n%s", stdout)
@@ -259,4 +269,13 @@ func TestDisplayUS(t *testing.T) {
 	if got := u.diffNum(6894.757); got != "1.00" {
 		t.Errorf("diffNum(6894.757 Pa) = %q, want 1.00 psi", got)
 	}
+}
+
+func mustFloat(t *testing.T, s string) float64 {
+	t.Helper()
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return v
 }
