@@ -84,7 +84,9 @@ return) and header k is shared evenly between them; where the return leg
 differs, as in a reverse-return header whose legs carry different flows, give
 its own return size or bore, return standard and return roughness, and put
 each leg's own loss coefficients in supply k and return k. Blank return
-columns take the header's. Required.`,
+columns take the header's. In a reverse-return header the return leg runs
+from the first take-off onwards, so the first row's return leg is the return
+main from the last take-off back to the pump. Required.`,
 	"valves": `The valves sheet defines the regulating valve models the branches name,
 one row per point of each model's Kv table ("long" format): settings must
 rise down the table and Kv must rise with them. A valve without a table is

@@ -14,7 +14,7 @@ import (
 
 // ReadWorkbook reads a site from an .xlsx workbook of size bytes, with one
 // tab per sheet named as the CSV files are without ".csv" (site, branches,
-// valves, pump, readings, targets; any case). name is used in messages,
+// valves, pump, readings, states, targets; any case). name is used in messages,
 // which read "name[tab]:row:column: ...". Results are as for ReadDir.
 func ReadWorkbook(r io.ReaderAt, size int64, name string) (s *Site, probs Problems, err error) {
 	return ReadWorkbookContext(context.Background(), r, size, name)
