@@ -176,13 +176,13 @@ func FuzzTargetsSheet(f *testing.F)  { fuzzSheet(f, "targets.csv") }
 // second read must succeed and give the same site.
 func FuzzRoundTrip(f *testing.F) {
 	small := smallFiles(f)
-	f.Add(small["site.csv"], small["branches.csv"], small["valves.csv"], small["readings.csv"])
-	f.Add([]byte(""), []byte(base["branches.csv"]), []byte(base["valves.csv"]), []byte(base["readings.csv"]))
-	f.Add([]byte(examples["site"]), []byte(examples["branches"]), []byte(examples["valves"]), []byte(examples["readings"]))
+	f.Add(small["site.csv"], small["branches.csv"], small["valves.csv"], small["readings.csv"], small["states.csv"])
+	f.Add([]byte(""), []byte(base["branches.csv"]), []byte(base["valves.csv"]), []byte(base["readings.csv"]), []byte(""))
+	f.Add([]byte(examples["site"]), []byte(examples["branches"]), []byte(examples["valves"]), []byte(examples["readings"]), []byte(examples["states"]))
 	for _, c := range badCases {
-		f.Add([]byte(c.files["site.csv"]), []byte(c.files["branches.csv"]), []byte(c.files["valves.csv"]), []byte(c.files["readings.csv"]))
+		f.Add([]byte(c.files["site.csv"]), []byte(c.files["branches.csv"]), []byte(c.files["valves.csv"]), []byte(c.files["readings.csv"]), []byte(c.files["states.csv"]))
 	}
-	f.Fuzz(func(t *testing.T, site, branches, valves, readings []byte) {
+	f.Fuzz(func(t *testing.T, site, branches, valves, readings, states []byte) {
 		fsys := fstest.MapFS{
 			"branches.csv": {Data: branches},
 			"readings.csv": {Data: readings},
@@ -190,6 +190,9 @@ func FuzzRoundTrip(f *testing.F) {
 		}
 		if len(site) > 0 {
 			fsys["site.csv"] = &fstest.MapFile{Data: site}
+		}
+		if len(states) > 0 {
+			fsys["states.csv"] = &fstest.MapFile{Data: states}
 		}
 		if len(valves) > 0 {
 			fsys["valves.csv"] = &fstest.MapFile{Data: valves}
