@@ -39,6 +39,16 @@ var badCases = []badCase{
 		want: []string{
 			`branches.csv:1: sep= line names the separator "|", which flowset does not read (want "sep=," "sep=;" or a tab after "sep=", or no sep= line)`,
 		}},
+	{name: "thousands point in a decimal-comma file", files: map[string]string{"branches.csv": "id;design flow [l/s];pipe bore [mm];pipe length [m]\nA;0,5;21,6;10\nB;0.4;21.6;1.200\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:3:4: field "pipe length": value "1.200": decimal point or thousands separator? line 2 writes numbers with a decimal comma (want the number without a thousands separator (1200), or with the file's decimal comma)`,
+		}},
+	{name: "thousands comma in a decimal-point semicolon file", files: map[string]string{"branches.csv": "id;design flow [l/s];pipe bore [mm];pipe length [m]\nA;0.5;21.6;10\nB;0.4;21.6;1,200\n"},
+		cause: ErrSyntax,
+		want: []string{
+			`branches.csv:3:4: field "pipe length": value "1,200": decimal comma or thousands separator? line 2 writes numbers with a decimal point (want the number without a thousands separator (1200), or with the file's decimal point)`,
+		}},
 	{name: "lone CR line ends with an error on line 3", files: map[string]string{"branches.csv": strings.ReplaceAll(brHead+"A,,0.5,21.6,10,V15,2\nB,,lots,21.6,12,V15,3\n", "\n", "\r")},
 		cause: ErrSyntax,
 		want: []string{

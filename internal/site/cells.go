@@ -481,6 +481,10 @@ func (sr *sheetReader) num(r row, name string) (v float64, ok bool) {
 		sr.fail(r, name, ne)
 		return nan, false
 	}
+	if ne := sr.t.convention(r.rawCell(i), r.line); ne != nil {
+		sr.fail(r, name, ne)
+		return nan, false
+	}
 	return v, true
 }
 

@@ -13,6 +13,8 @@ import (
 	"strings"
 	"testing"
 	"testing/fstest"
+
+	"github.com/xuri/excelize/v2"
 )
 
 // TestReadDirFileKinds gives sheets that are not regular files: each must
@@ -181,6 +183,57 @@ func BenchmarkCheckAgreement(b *testing.B) {
 			for b.Loop() {
 				var p Problems
 				checkAgreement(rs, &p)
+			}
+		})
+	}
+}
+
+// TestWorkbookCells gives workbooks whose cells show other than they hold:
+// merged cells, a true/false and a date in number columns. Each must be reported at its cell.
+func TestWorkbookCells(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		edit func(f *excelize.File)
+		want string
+	}{
+		{"merged cells", func(f *excelize.File) { f.MergeCell("branches", "B3", "C3") },
+			"w.xlsx[branches]:3:2: cells B3:C3 are merged (want one value in each cell: unmerge them)"},
+		{"true/false in a number column", func(f *excelize.File) { f.SetCellBool("branches", "C2", true) },
+			`w.xlsx[branches]:2:3: field "design flow": value "TRUE": not a number (want a number such as 1.5)`},
+		{"date in a number column", func(f *excelize.File) {
+			f.SetCellValue("branches", "C2", 45000.0)
+			st, _ := f.NewStyle(&excelize.Style{NumFmt: 14})
+			f.SetCellStyle("branches", "C2", "C2", st)
+		}, `w.xlsx[branches]:2:3: field "design flow": value "03-15-23": not a number (want a number such as 1.5)`},
+		{"custom date format in a number column", func(f *excelize.File) {
+			f.SetCellValue("branches", "C2", 45000.0)
+			code := `dd"."mm"."yyyy`
+			st, _ := f.NewStyle(&excelize.Style{CustomNumFmt: &code})
+			f.SetCellStyle("branches", "C2", "C2", st)
+		}, `w.xlsx[branches]:2:3: field "design flow": value "15.03.2023": not a number (want a number such as 1.5)`},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s, _, err := ReadDir(mapFS(nil), ".")
+			if err != nil {
+				t.Fatal(err)
+			}
+			var buf bytes.Buffer
+			if err := WriteWorkbook(s, &buf); err != nil {
+				t.Fatal(err)
+			}
+			f, err := excelize.OpenReader(&buf)
+			if err != nil {
+				t.Fatal(err)
+			}
+			c.edit(f)
+			buf.Reset()
+			if err := f.Write(&buf); err != nil {
+				t.Fatal(err)
+			}
+			_, p, _ := ReadWorkbook(bytes.NewReader(buf.Bytes()), int64(buf.Len()), "w.xlsx")
+			got := strings.Join(problemStrings(p), "\n")
+			if !strings.Contains(got, c.want) {
+				t.Errorf("ReadWorkbook problems:\n%s\nwant among them:\n%s", got, c.want)
 			}
 		})
 	}

@@ -25,6 +25,41 @@ type table struct {
 	header       []string
 	rows         []row
 	decimalComma bool // numbers may use a decimal comma (semicolon or tab separated files)
+	// commaLine and pointLine are the first lines whose numbers use a
+	// decimal comma and a decimal point, in a file that may use either.
+	commaLine, pointLine int
+}
+
+// convention checks a number of a file that may use a decimal comma
+// against the file's earlier numbers. Such files may mix "0,5" and "0.4"
+// (both read as decimals), but a separator followed by exactly three
+// digits, "1.500" in a file that elsewhere writes "0,5", is as likely a
+// thousands separator (one thousand five hundred) as a decimal: it is
+// refused rather than guessed.
+func (t *table) convention(cell string, line int) *numError {
+	if !t.decimalComma {
+		return nil
+	}
+	c := strings.TrimLeft(strings.TrimSpace(cell), "+-")
+	sep, other := ",", &t.pointLine
+	mine := &t.commaLine
+	if strings.Contains(c, ".") {
+		sep, other, mine = ".", &t.commaLine, &t.pointLine
+	} else if !strings.Contains(c, ",") {
+		return nil
+	}
+	if *mine == 0 {
+		*mine = line
+	}
+	whole, frac, _ := strings.Cut(c, sep)
+	if *other == 0 || len(frac) != 3 || len(whole) == 0 || len(whole) > 3 || strings.Trim(whole+frac, "0123456789") != "" {
+		return nil
+	}
+	words := map[string]string{",": "comma", ".": "point"}
+	otherSep := map[string]string{",": ".", ".": ","}[sep]
+	return &numError{ErrSyntax,
+		fmt.Sprintf("decimal %s or thousands separator? line %d writes numbers with a decimal %s", words[sep], *other, words[otherSep]),
+		fmt.Sprintf("the number without a thousands separator (%s%s), or with the file's decimal %s", whole, frac, words[otherSep])}
 }
 
 // row is one data row. cells holds the text as shown; raw holds the stored

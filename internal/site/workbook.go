@@ -130,6 +130,33 @@ func readTab(f *excelize.File, tab, file string) (*table, Problems, error) {
 	if err != nil {
 		return nil, nil, err
 	}
+	var probs Problems
+	at := func(col, row int) string { ref, _ := excelize.CoordinatesToCellName(col, row); return ref }
+	// Merged cells hold one value shown across several: the others read
+	// blank, which would be taken for values not given.
+	merged, err := f.GetMergeCells(tab)
+	if err != nil {
+		return nil, nil, err
+	}
+	for _, mc := range merged {
+		col, row, err := excelize.CellNameToCoordinates(mc.GetStartAxis())
+		if err != nil {
+			continue
+		}
+		probs = append(probs, &Error{File: file, Line: row, Column: col, Err: ErrSyntax,
+			Msg: fmt.Sprintf("cells %s:%s are merged", mc.GetStartAxis(), mc.GetEndAxis()), Want: "one value in each cell: unmerge them"})
+	}
+	width := 0
+	for _, cells := range shown {
+		width = max(width, len(cells))
+	}
+	if dim, err := f.GetSheetDimension(tab); err == nil {
+		if _, end, ok := strings.Cut(dim, ":"); ok {
+			if col, _, err := excelize.CellNameToCoordinates(end); err == nil {
+				width = max(width, min(col, 1024))
+			}
+		}
+	}
 	t := &table{file: file}
 	for i, cells := range shown {
 		rc := make([]string, len(cells))
@@ -139,10 +166,37 @@ func readTab(f *excelize.File, tab, file string) (*table, Problems, error) {
 			if i < len(raw) && j < len(raw[i]) {
 				rc[j] = strings.TrimSpace(raw[i][j])
 			}
-			if strings.HasSuffix(cells[j], "%") && rc[j] != cells[j] {
+			if len(cells[j]) > MaxCellBytes {
+				probs = append(probs, &Error{File: file, Line: i + 1, Column: j + 1, Err: ErrRange,
+					Msg: fmt.Sprintf("cell is longer than %d characters", MaxCellBytes), Want: "a shorter cell"})
+				cells[j], rc[j] = "", ""
+				continue
+			}
+			if rc[j] == cells[j] {
+				continue
+			}
+			if strings.HasSuffix(cells[j], "%") {
 				if v, err := strconv.ParseFloat(rc[j], 64); err == nil && !math.IsInf(v, 0) && !math.IsNaN(v) {
 					rc[j] = strconv.FormatFloat(v*100, 'g', 12, 64) + " %"
 				}
+				continue
+			}
+			// A cell that shows other than a number holds one only by the
+			// spreadsheet's way of storing it: a true/false or a date is
+			// read as what it shows, which no number column takes.
+			if cellKind(f, tab, at(j+1, i+1)) != "" {
+				rc[j] = cells[j]
+			}
+		}
+		// A formula saved without its value (by a program that does not
+		// calculate) shows blank: say so rather than read it as blank.
+		for j := range width {
+			if j < len(cells) && cells[j] != "" {
+				continue
+			}
+			if fm, err := f.GetCellFormula(tab, at(j+1, i+1)); err == nil && fm != "" {
+				probs = append(probs, &Error{File: file, Line: i + 1, Column: j + 1, Value: "=" + fm, Err: ErrMissing,
+					Msg: "formula without a saved value", Want: "the workbook saved by a spreadsheet program that calculates it, or the value typed in"})
 			}
 		}
 		if isComment(cells) || isBlank(cells) {
@@ -155,9 +209,58 @@ func readTab(f *excelize.File, tab, file string) (*table, Problems, error) {
 		t.rows = append(t.rows, row{line: i + 1, cells: cells, raw: rc})
 	}
 	if t.header == nil {
-		return nil, Problems{{File: file, Err: ErrMissing, Msg: "sheet is empty", Want: "a header row naming the columns"}}, nil
+		probs = append(probs, &Error{File: file, Err: ErrMissing, Msg: "sheet is empty", Want: "a header row naming the columns"})
+		return nil, probs, nil
 	}
-	return t, nil, nil
+	return t, probs, nil
+}
+
+// cellKind returns "a true/false cell" or "a date or time" for a cell
+// whose stored number is not what it shows, and "" otherwise.
+func cellKind(f *excelize.File, tab, ref string) string {
+	if ct, err := f.GetCellType(tab, ref); err == nil && ct == excelize.CellTypeBool {
+		return "a true/false cell"
+	}
+	idx, err := f.GetCellStyle(tab, ref)
+	if err != nil {
+		return ""
+	}
+	st, err := f.GetStyle(idx)
+	if err != nil || st == nil {
+		return ""
+	}
+	if st.CustomNumFmt != nil {
+		if dateFormat(*st.CustomNumFmt) {
+			return "a date or time"
+		}
+		return ""
+	}
+	switch n := st.NumFmt; {
+	case n >= 14 && n <= 22, n >= 27 && n <= 36, n >= 45 && n <= 47, n >= 50 && n <= 58:
+		return "a date or time"
+	}
+	return ""
+}
+
+// dateFormat reports whether a custom number format shows a date or a
+// time: a y, m, d, h or s outside quoted text and bracketed sections.
+func dateFormat(code string) bool {
+	quoted, bracket := false, false
+	for _, c := range strings.ToLower(code) {
+		switch {
+		case c == '"':
+			quoted = !quoted
+		case quoted:
+		case c == '[':
+			bracket = true
+		case c == ']':
+			bracket = false
+		case bracket:
+		case strings.ContainsRune("ymdhs", c):
+			return true
+		}
+	}
+	return false
 }
 
 // WriteWorkbook writes s as an .xlsx workbook with one tab per sheet.
