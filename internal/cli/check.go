@@ -2,7 +2,10 @@ package cli
 
 import (
 	"context"
+	"encoding/csv"
 	"fmt"
+	"os"
+	"path/filepath"
 	"strings"
 	"text/tabwriter"
 
@@ -36,6 +39,12 @@ has errors, 2 for a wrong command line.`,
 }
 
 func runCheck(ctx context.Context, ios *IO, opts *checkOptions) error {
+	if blankSite(opts.Site) {
+		// A sheet with a header and no rows is a sheet not filled in yet:
+		// a blank template is not a site with errors.
+		fmt.Fprintf(ios.Out, "%s: a blank site (headers and help rows only): nothing to check yet.\nFill in branches.csv and readings.csv at least; 'flowset help sheets' says how.\n", shown(opts.Site))
+		return nil
+	}
 	l, err := loadSite(ctx, opts.Site, ios.Out)
 	if err != nil {
 		return err
@@ -89,3 +98,54 @@ func exactArgs(n int) cobra.PositionalArgs {
 		return nil
 	}
 }
+
+// maxBlankSheet is the largest sheet blankSite reads: a blank template's
+// sheets are a header and a help row, far below it.
+const maxBlankSheet = 64 << 10
+
+// blankSite reports whether path is a folder of CSV sheets none of which
+// has a data row: only headers, "#" help rows and blank lines, as
+// 'flowset template' writes them.
+func blankSite(path string) bool {
+	st, err := os.Stat(path)
+	if err != nil || !st.IsDir() {
+		return false
+	}
+	names, err := filepath.Glob(filepath.Join(path, "*.csv"))
+	if err != nil || len(names) == 0 {
+		return false
+	}
+	for _, n := range names {
+		fi, err := os.Stat(n)
+		if err != nil || !fi.Mode().IsRegular() || fi.Size() > maxBlankSheet {
+			return false
+		}
+		b, err := os.ReadFile(n)
+		if err != nil {
+			return false
+		}
+		r := csv.NewReader(strings.NewReader(strings.TrimPrefix(string(b), "\ufeff")))
+		r.FieldsPerRecord, r.LazyQuotes, r.Comment = -1, true, '#'
+		recs, err := r.ReadAll()
+		if err != nil {
+			return false
+		}
+		rows := 0
+		for _, rec := range recs {
+			// The site sheet lists its keys with blank values: a row
+			// counts once a value is filled in. Elsewhere any cell does.
+			cells := rec
+			if filepath.Base(n) == "site.csv" && len(rec) > 1 {
+				cells = rec[1:2]
+			}
+			if strings.TrimSpace(strings.Join(cells, "")) != "" {
+				rows++
+			}
+		}
+		if rows > 1 {
+			return false
+		}
+	}
+	return true
+}
+

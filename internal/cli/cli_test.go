@@ -257,9 +257,19 @@ func TestBadSiteExitsOne(t *testing.T) {
 	if code, _, errs := run(t, "template", dir); code != ExitOK {
 		t.Fatalf("template: exit %d: %s", code, errs)
 	}
+	// A blank template passes check (see TestBlankTemplatePassesCheck);
+	// a branch with nothing in it does not.
+	f, err := os.OpenFile(filepath.Join(dir, "branches.csv"), os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := f.WriteString("A-1,,0.5\n"); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
 	code, out, errs := run(t, "check", dir)
 	if code != ExitData || !strings.Contains(out, "branches.csv:") || !strings.Contains(errs, "error(s)") {
-		t.Fatalf("check of a blank site: exit %d, stderr %q; want exit 1 naming branches.csv", code, errs)
+		t.Fatalf("check of a site with an empty branch: exit %d, stderr %q; want exit 1 naming branches.csv", code, errs)
 	}
 }
 

@@ -279,3 +279,28 @@ func mustFloat(t *testing.T, s string) float64 {
 	}
 	return v
 }
+
+// TestBlankTemplatePassesCheck: a sheet with a header and no rows is a
+// sheet not filled in yet, so the blank template passes check; one filled
+// row makes it a site that is checked in full.
+func TestBlankTemplatePassesCheck(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if code, _, errs := run(t, "template", dir); code != ExitOK {
+		t.Fatalf("template: exit %d: %s", code, errs)
+	}
+	code, stdout, stderr := run(t, "check", dir)
+	if code != ExitOK || !strings.Contains(stdout, "a blank site") {
+		t.Errorf("check of a blank template: exit %d\n%s%s", code, stdout, stderr)
+	}
+	f, err := os.OpenFile(filepath.Join(dir, "branches.csv"), os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := f.WriteString("A-1,,0.5\n"); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	if code, _, _ := run(t, "check", dir); code != ExitData {
+		t.Errorf("check of a half-filled template: exit %d, want %d", code, ExitData)
+	}
+}

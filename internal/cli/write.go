@@ -244,10 +244,16 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 
 // fitRows is the branch table of the fit, for CSV and the terminal.
 func (j *job) fitRows() ([]string, [][]string) {
-	header := []string{"branch", "resistance ratio", "95% low", "95% high", "determined", "valve", "kv scale", "flow as found [l/s]", "design [l/s]", "flags"}
+	header := []string{"branch", "resistance ratio", "95% low", "95% high", "determined", "valve", "kv scale", "flow as found [l/s]", "flow as found from", "design [l/s]", "flags"}
 	var rows [][]string
 	for i, b := range j.L.Model.Branches {
-		r := []string{b.ID, "", "", "", "", "", "", f3(j.Before.Flow(i) * 1000), f3(b.Design * 1000), flagsOf(j.Findings, b.ID)}
+		// The reading where there is one; the model's value, marked as
+		// such, where the survey read no flow on the branch.
+		found, from := j.Before.Flow(i), "model"
+		if q, ok := j.flowRead(b.ID); ok {
+			found, from = q, "reading"
+		}
+		r := []string{b.ID, "", "", "", "", "", "", f3(found * 1000), from, f3(b.Design * 1000), flagsOf(j.Findings, b.ID)}
 		if j.Cal != nil {
 			bf := j.Cal.Branches[i]
 			if bf.Fitted {

@@ -860,6 +860,11 @@ func readPump(t *table, p *Problems) []PumpPoint {
 	if !sr.has("flow") || !sr.has("head") {
 		return nil
 	}
+	if len(t.rows) == 0 {
+		// A header with no rows, as 'flowset template' writes it, is a
+		// pump sheet not filled in: the site has no pump curve.
+		return nil
+	}
 	var out []PumpPoint
 	for _, r := range t.rows {
 		ok := true
