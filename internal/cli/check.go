@@ -148,4 +148,3 @@ func blankSite(path string) bool {
 	}
 	return true
 }
-
