@@ -63,8 +63,10 @@
 //     out and says so.
 //  7. Remedies. Each branch whose resistance multiplier exceeds 1.5, and
 //     the valve of a starved or index branch, is tried put right (the
-//     multiplier back to 1, or a valve of twice the Kv) with an exact plan:
-//     the least differential for every target before and after, the
+//     multiplier back to 1, or a valve of twice the Kv), exactly: the
+//     targets fix every header flow, so only the chains through the branch
+//     fall, by the drop cured. It gives the least differential for every
+//     target before and after, the
 //     branch's own chain, and the pump power and energy the difference is
 //     worth at the target flow. Those that save over 1 % (or let a starved
 //     branch be served) head the plan (Plan.Remedies, Summary); the

@@ -11,8 +11,8 @@ import (
 // calls a branch restricted (common practice, no source).
 const remedyRatio = 1.5
 
-// maxRemedies bounds the candidates tried (each costs one exact plan, O(n)),
-// the worst first.
+// maxRemedies bounds the candidates tried (each costs one pass over the
+// tree), the worst first.
 const maxRemedies = 20
 
 // chains fills pl.chain: the source differential each branch's chain needs
@@ -45,8 +45,8 @@ func (pl *planner) starvedUnder(i int) bool {
 // remedies lists the faults valves cannot set right: each branch whose
 // resistance multiplier exceeds remedyRatio (restore it to design), the
 // valves of starved or index branches that a larger valve would help, and,
-// when the pump is short, the pump. Each is judged by an exact plan with the
-// remedy carried out: the least source differential for every target
+// when the pump is short, the pump. Each is judged exactly with the remedy
+// carried out (leastWith): the least source differential for every target
 // before and after, and the branch's own chain. A remedy is kept when it
 // lowers the least differential by more than 1 %, or when its branch is
 // starved and the remedy lowers what it needs.
@@ -56,14 +56,13 @@ func (pl *planner) remedies() {
 	pl.plan.LeastRemedied = math.NaN()
 	q := ex.total()
 	give := pl.maxDiff(q)
-	judge := func(r Remedy, i int, e *exact) (Remedy, bool) {
-		r.Least, r.LeastAfter = ex.least, e.least
-		r.Saves = ex.least - e.least
-		r.Need = pl.chain[i]
-		up := e.above()
-		r.NeedAfter = e.need[i] + e.path[i] + up[i]
+	judge := func(r Remedy, i int, cut map[int]float64) (Remedy, bool) {
+		least, inside := pl.leastWith(i, cut)
+		r.Least, r.LeastAfter = ex.least, least
+		r.Saves = ex.least - least
+		r.Need, r.NeedAfter = pl.chain[i], inside
 		r.Starved = pl.starvedUnder(i)
-		r.Serves = e.least <= give*(1+1e-9)
+		r.Serves = least <= give*(1+1e-9)
 		r.Power, r.AnnualEnergy = math.NaN(), math.NaN()
 		if pl.eta > 0 {
 			r.Power = q * r.Saves / pl.eta
@@ -84,22 +83,19 @@ func (pl *planner) remedies() {
 	if len(cand) > maxRemedies {
 		cand = cand[:maxRemedies]
 	}
-	restored := pl.p.Clone()
-	var nRestore int
+	// The targets fix every header flow, so a remedy changes only the
+	// drop it cures: the fixed parts' drop scales with the multiplier
+	// (restored: fixed/R), the open valve's with 1/KvScale² (twice the Kv:
+	// a quarter), and every chain through the branch falls by as much.
+	restored := map[int]float64{}
 	has := map[int]bool{}
 	for _, i := range cand {
-		p := pl.p.Clone()
-		p.Resistance[i] = 1
-		e, err := newExact(m, p, append([]float64(nil), ex.q...))
-		if err != nil {
-			continue
-		}
+		cut := map[int]float64{i: ex.fixed[i] * (1 - 1/pl.p.Resistance[i])}
 		r := Remedy{ID: m.Branches[i].ID, Kind: Restore, Ratio: pl.p.Resistance[i],
 			Action: fmt.Sprintf("branch %s has %.1f times its design resistance (fouled, or a strainer, isolating valve or coil partly blocked): find and clear the restriction", m.Branches[i].ID, pl.p.Resistance[i])}
-		if r, ok := judge(r, i, e); ok {
+		if r, ok := judge(r, i, cut); ok {
 			pl.plan.Remedies = append(pl.plan.Remedies, r)
-			restored.Resistance[i] = 1
-			nRestore++
+			restored[i] = cut[i]
 			has[i] = true
 		}
 	}
@@ -119,17 +115,12 @@ func (pl *planner) remedies() {
 		valves = valves[:maxRemedies]
 	}
 	for _, i := range valves {
-		p := pl.p.Clone()
-		p.KvScale[i] *= 2
-		e, err := newExact(m, p, append([]float64(nil), ex.q...))
-		if err != nil {
-			continue
-		}
+		cut := map[int]float64{i: 0.75 * ex.open[i]}
 		r := Remedy{ID: m.Branches[i].ID, Kind: LargerValve, Ratio: math.NaN(),
 			Action: fmt.Sprintf("the fully open valve of branch %s takes %.1f kPa at target: fit a valve of twice its Kv", m.Branches[i].ID, ex.open[i]/1e3)}
 		// A larger valve on a starved branch is worth naming only when
 		// the pump could then serve it.
-		if r, ok := judge(r, i, e); ok && (r.Saves > 0.01*ex.least || r.NeedAfter <= pl.plan.Required) {
+		if r, ok := judge(r, i, cut); ok && (r.Saves > 0.01*ex.least || r.NeedAfter <= pl.plan.Required) {
 			pl.plan.Remedies = append(pl.plan.Remedies, r)
 		}
 	}
@@ -146,11 +137,35 @@ func (pl *planner) remedies() {
 		}
 		return ra.Saves > rb.Saves
 	})
-	if nRestore >= 2 {
-		if e, err := newExact(m, restored, append([]float64(nil), ex.q...)); err == nil {
-			pl.plan.LeastRemedied = e.least
+	if len(restored) >= 2 {
+		pl.plan.LeastRemedied, _ = pl.leastWith(-1, restored)
+	}
+}
+
+// leastWith returns the least source differential for every target with
+// the drops of the branches in cut lowered by the amounts given, Pa (the
+// largest chain over the terminal branches, each chain lowered by the cuts
+// on it), and the largest chain through branch i (its own for a terminal
+// branch).
+func (pl *planner) leastWith(i int, cut map[int]float64) (least, inside float64) {
+	m := pl.m
+	var walk func(ids []int, acc float64, in bool)
+	walk = func(ids []int, acc float64, in bool) {
+		for _, b := range ids {
+			a, inB := acc+cut[b], in || b == i
+			if m.Branches[b].Riser() {
+				walk(m.Branches[b].Children, a, inB)
+				continue
+			}
+			c := pl.chain[b] - a
+			least = max(least, c)
+			if inB {
+				inside = max(inside, c)
+			}
 		}
 	}
+	walk(m.Top(), 0, false)
+	return least, inside
 }
 
 // remedyFor returns the remedy for branch i or the nearest riser above it

@@ -4,10 +4,12 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"strings"
 	"testing"
 
 	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
 	"flowset/internal/site"
 )
 
@@ -219,5 +221,71 @@ func TestControlledFeasible(t *testing.T) {
 				t.Errorf("as found: %.6g Pa at %.6g m3/s, want min(set point %.6g, curve %.6g)", before.Differential, before.Flow, sp, give)
 			}
 		})
+	}
+}
+
+// TestRemediesExact checks each remedy's figures, worked out by lowering
+// the chains through the branch (leastWith), against a whole exact re-plan
+// with the remedy carried out (the multiplier back to 1, or the Kv scale
+// doubled): the least differential for every target after it, and with
+// every restoration together.
+func TestRemediesExact(t *testing.T) {
+	var checked int
+	for seed := range uint64(12) {
+		for _, arr := range []site.Arrangement{site.DirectReturn, site.ReverseReturn} {
+			rng := rand.New(rand.NewPCG(seed, 5))
+			s := randomSite(rng, genOpts{n: 8 + rng.IntN(30), header: arr, risers: true, noValve: true})
+			m := withPump(t, s)
+			p := randomParams(rng, m)
+			for i := range p.Resistance {
+				if rng.Float64() < 0.15 {
+					p.Resistance[i] *= 2 + 2*rng.Float64() // fouled
+				}
+			}
+			pl := mustCompute(t, m, p, &Options{Rounding: Smart})
+			q := make([]float64, len(m.Branches))
+			least := func(p plant.Params) float64 {
+				for i, b := range m.Branches {
+					q[i] = b.Target
+				}
+				e, err := newExact(m, p, q)
+				if err != nil {
+					t.Fatal(err)
+				}
+				return e.least
+			}
+			all := p.Clone()
+			var nRestore int
+			for _, r := range pl.Remedies {
+				i, ok := m.Index(r.ID)
+				if r.Kind == LargerPump {
+					continue
+				}
+				if !ok {
+					t.Fatalf("remedy for unknown branch %q", r.ID)
+				}
+				pr := p.Clone()
+				switch r.Kind {
+				case Restore:
+					pr.Resistance[i] = 1
+					all.Resistance[i] = 1
+					nRestore++
+				case LargerValve:
+					pr.KvScale[i] *= 2
+				}
+				if want := least(pr); math.Abs(r.LeastAfter-want) > 1e-9*want {
+					t.Errorf("seed %d %v: %v %s: least after %.9g Pa, re-plan %.9g", seed, arr, r.Kind, r.ID, r.LeastAfter, want)
+				}
+				checked++
+			}
+			if nRestore >= 2 {
+				if want := least(all); math.Abs(pl.LeastRemedied-want) > 1e-9*want {
+					t.Errorf("seed %d %v: least with every restoration %.9g Pa, re-plan %.9g", seed, arr, pl.LeastRemedied, want)
+				}
+			}
+		}
+	}
+	if checked < 10 {
+		t.Errorf("only %d remedies checked", checked)
 	}
 }
