@@ -362,3 +362,21 @@ func isNumber(s string) bool {
 	_, err := fmt.Sscanf(s, "%g", &x)
 	return err == nil && fmt.Sprint(x) != "" && !strings.ContainsAny(s, " +")
 }
+
+// TestCheckStatePump checks that the summary names the pump setting the
+// states sheet gives a survey state (the site package's fixture: the
+// after-change state's controller lowered to 55 kPa).
+func TestCheckStatePump(t *testing.T) {
+	code, out, errs := run(t, "check", filepath.Join("..", "site", "testdata", "small"))
+	if code != ExitOK {
+		t.Fatalf("check: exit %d, stderr:\n%s", code, errs)
+	}
+	for _, want := range []string{
+		"  state as-found             8 readings\n",
+		"  state after-change         3 readings, pump at set point 55 kPa\n",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("check output lacks %q:\n%s", want, out)
+		}
+	}
+}
