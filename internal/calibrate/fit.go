@@ -59,6 +59,15 @@ const (
 	DefaultMatrixFreeAbove = 300
 )
 
+// localTestsAbove is the number of parameters above which the valve
+// hypotheses are tested by refitting the tested branch alone against the
+// rest of the plant linearised at the base fit, even on the dense path: a
+// whole refit per hypothesis costs seconds on a site of a few hundred
+// branches (4.6 s CPU of a 180-branch fit went to them), while the local
+// refit gives the same verdicts on all but a few per cent of valves
+// (TestFitReducedRefit).
+const localTestsAbove = 60
+
 // fitCostTol is the engine's Settings.CostTol for Fit's matrix-free fits
 // and local refits: the network solves converge to a relative 1e-10, which
 // leaves the residuals of a large site too noisy for the gradient test to
@@ -246,7 +255,9 @@ type BranchFit struct {
 	// FaultProb is the probability, given the readings, that the branch's
 	// resistance departs from design by more than a clean branch's scatter
 	// (see FitOptions.FaultShare); NaN when the fit used one wide prior.
-	FaultProb float64
+	// DataLn and DataSD are what the readings alone say of ln Ratio, the
+	// priors taken out (normal approximation; NaN where they say nothing).
+	FaultProb, DataLn, DataSD float64
 }
 
 // Above reports whether the branch's resistance is shown to exceed f times
@@ -427,7 +438,10 @@ type setup struct {
 	// slabSD under the faulty component alone: whether the readings could
 	// see a fault in the branch at all.
 	mixSD, slabSD, slabMean []float64
-	state                   []int // reading -> survey state
+	// dataLn and dataSD are what the readings alone say of ln R (NaN where
+	// they say nothing).
+	dataLn, dataSD []float64
+	state          []int // reading -> survey state
 	// kvSep: the readings can tell branch i's valve from its fixed parts;
 	// evidence: they say something about the valve at all.
 	kvSep, evidence []bool
@@ -554,6 +568,10 @@ func (su *setup) classify(f *fitRun) {
 	su.rSigma = make([]float64, nb)
 	su.faultProb = make([]float64, nb)
 	su.mixSD, su.slabSD, su.slabMean = make([]float64, nb), make([]float64, nb), make([]float64, nb)
+	su.dataLn, su.dataSD = make([]float64, nb), make([]float64, nb)
+	for i := range su.dataLn {
+		su.dataLn[i], su.dataSD[i] = math.NaN(), math.NaN()
+	}
 	for i := range su.rSigma {
 		su.rSigma[i] = o.PriorClean
 		su.faultProb[i] = o.FaultShare
@@ -591,6 +609,7 @@ func (su *setup) classify(f *fitRun) {
 		mc, mf := md*vc/vd, md*vf/vd
 		su.mixSD[i] = math.Sqrt((1-pf)*vc + pf*vf + pf*(1-pf)*(mf-mc)*(mf-mc))
 		su.slabSD[i], su.slabMean[i] = math.Sqrt(vf), mf
+		su.dataLn[i], su.dataSD[i] = md, math.Sqrt(vd)
 		if pf > 0.5 {
 			su.rSigma[i] = o.PriorResistance
 		}

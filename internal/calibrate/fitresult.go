@@ -41,9 +41,14 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	}
 	for i := range nb {
 		b := &m.Branches[i]
-		bf := BranchFit{ID: b.ID, Index: i, Ratio: 1, Lo: 1, Hi: 1, HasValve: b.Valve != nil, KvScale: 1, KvLo: 1, KvHi: 1, Valve: verdicts[i], FaultProb: math.NaN()}
+		bf := BranchFit{ID: b.ID, Index: i, Ratio: 1, Lo: 1, Hi: 1, HasValve: b.Valve != nil, KvScale: 1, KvLo: 1, KvHi: 1, Valve: verdicts[i], FaultProb: math.NaN(), DataLn: math.NaN(), DataSD: math.NaN()}
 		if su.faultProb != nil {
-			bf.FaultProb = su.faultProb[i]
+			bf.FaultProb, bf.DataLn, bf.DataSD = su.faultProb[i], su.dataLn[i], su.dataSD[i]
+			if h := verdicts[i].Hypothesis; h == SetElsewhere || h == HoldsOneKv {
+				// The data's view of the resistance was taken with the
+				// valve on its table; the valve explains the branch now.
+				bf.DataLn, bf.DataSD = math.NaN(), math.NaN()
+			}
 		}
 		if j := p.rIdx[i]; j >= 0 {
 			bf.Fitted, bf.Determined = true, res.Determined[j]

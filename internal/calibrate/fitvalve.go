@@ -103,7 +103,7 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 	// rest of the plant held, and the hypotheses adopted are refitted
 	// together once at the end: a full refit after each adoption would cost
 	// a whole calibration per faulty valve.
-	batch := len(base.prob.params) > su.opt.MatrixFreeAbove
+	batch := len(base.prob.params) > min(su.opt.MatrixFreeAbove, localTestsAbove)
 	finalHyp := slices.Clone(base.hyp)
 	var adopted []*fitRun
 	cands := su.candidates(base)

@@ -217,14 +217,15 @@ func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved, open pl
 			continue
 		}
 		e := diagnose.Branch{ID: b.ID, Ratio: 1, LogSD: math.Inf(1), Target: b.Target, OpenFlow: openFlow(m, before, i, open),
-			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil, FaultProb: math.NaN(), DesignDrop: math.NaN()}
+			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil, FaultProb: math.NaN(), DataLn: math.NaN(), DataSD: math.NaN(), DesignDrop: math.NaN()}
 		if f := m.FixedElement(i, 1); f != nil {
 			e.DesignDrop, _ = f.Drop(b.Design, m.Fluid)
 		}
 		if c != nil {
 			bf := c.Branches[i]
 			if bf.Fitted {
-				e.Ratio, e.LogSD, e.Determined, e.FaultProb = bf.Ratio, bf.SD, bf.Determined, bf.FaultProb
+				e.Ratio, e.LogSD, e.Determined = bf.Ratio, bf.SD, bf.Determined
+				e.FaultProb, e.DataLn, e.DataSD = bf.FaultProb, bf.DataLn, bf.DataSD
 			}
 			if v := valveEvidence(c, i); v != nil {
 				if b.ValveModel != nil {

@@ -72,21 +72,24 @@ type Thresholds struct {
 	// flow must be to say a branch cannot reach design. Default 0.10,
 	// matching the usual lower tolerance.
 	ShortFraction float64
-	// FaultProb is the probability of a fault (Branch.FaultProb) at which a
-	// branch whose extra pressure drop at design flow reaches ExtraDrop is
-	// flagged even when its ratio stays under Restricted: a fouled pipe or
-	// strainer in a branch dominated by its coil adds kilopascals but only
-	// a few tens of per cent to the whole branch. Default 0.9.
-	FaultProb float64
-	// ExtraDrop is that least extra drop, Pa. Default 3 kPa: about what a
-	// clean strainer or a fully open isolating valve drops at design flow,
-	// so more is worth a look (common practice, no source).
-	ExtraDrop float64
+	// ScatterRatio and ExtraDrop flag a branch by its part even when its
+	// ratio stays under Restricted: a fouled pipe or strainer in a branch
+	// dominated by its coil adds kilopascals but only a few tens of per cent
+	// to the whole branch. The readings alone (Branch.DataLn, DataSD) must
+	// show, with probability Confidence, the resistance above ScatterRatio
+	// times design and the extra drop at design flow above ExtraDrop.
+	// ScatterRatio default 1.2: two standard deviations of a clean branch's
+	// departure from its design estimate (calibrate.DefaultPriorClean).
+	// ExtraDrop default 3 kPa: about what a clean strainer or a fully open
+	// isolating valve drops at design flow, so more is worth a look
+	// (common practice, no source). Mirrored for Free.
+	ScatterRatio float64
+	ExtraDrop    float64
 }
 
 // DefaultThresholds returns the documented defaults.
 func DefaultThresholds() Thresholds {
-	return Thresholds{Restricted: 1.5, Confidence: 0.95, SuspectZ: 3, ShortFraction: 0.10, FaultProb: 0.9, ExtraDrop: 3000}
+	return Thresholds{Restricted: 1.5, Confidence: 0.95, SuspectZ: 3, ShortFraction: 0.10, ScatterRatio: 1.2, ExtraDrop: 3000}
 }
 
 func (t Thresholds) withDefaults() Thresholds {
@@ -103,8 +106,8 @@ func (t Thresholds) withDefaults() Thresholds {
 	if t.ShortFraction > 0 && t.ShortFraction < 1 {
 		d.ShortFraction = t.ShortFraction
 	}
-	if t.FaultProb > 0 && t.FaultProb < 1 {
-		d.FaultProb = t.FaultProb
+	if t.ScatterRatio > 1 {
+		d.ScatterRatio = t.ScatterRatio
 	}
 	if t.ExtraDrop > 0 {
 		d.ExtraDrop = t.ExtraDrop
@@ -121,9 +124,10 @@ type Branch struct {
 	Determined   bool
 	// FaultProb is the calibration's probability that the branch departs
 	// from design by a fault rather than a clean branch's scatter (NaN when
-	// not worked out); DesignDrop the drop of its fixed parts (pipe,
+	// not worked out); DataLn and DataSD what the readings alone say of ln
+	// Ratio (NaN unknown); DesignDrop the drop of its fixed parts (pipe,
 	// fittings, terminal) at design flow as designed, Pa (NaN unknown).
-	FaultProb, DesignDrop float64
+	FaultProb, DataLn, DataSD, DesignDrop float64
 	// Valve holds the valve hypothesis test, when one was made.
 	Valve *Valve
 	// Target is the flow to reach; OpenFlow what the calibrated model gives
@@ -182,11 +186,11 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 		if b.LogSD > 0 && b.Ratio > 0 {
 			x := math.Log(b.Ratio)
 			extra := (b.Ratio - 1) * b.DesignDrop
-			byPart := b.FaultProb >= t.FaultProb && math.Abs(extra) >= t.ExtraDrop
-			if p := normalCDF((x - lnThr) / b.LogSD); p < t.Confidence && byPart && extra > 0 {
-				out = append(out, Finding{Code: Restricted, Severity: Fault, Branch: b.ID, Confidence: b.FaultProb,
+			up, down := byPart(b, t)
+			if p := normalCDF((x - lnThr) / b.LogSD); p < t.Confidence && up >= t.Confidence {
+				out = append(out, Finding{Code: Restricted, Severity: Fault, Branch: b.ID, Confidence: up,
 					Message:  "pressure drop above design: a fouled strainer, pipe or coil, or a partly closed isolating valve",
-					Evidence: fmt.Sprintf("about %.1f kPa more than designed at design flow (resistance %.2f x design, 95 %% interval %.2f-%.2f); probability of a fault %.3f", extra/1000, b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), b.FaultProb),
+					Evidence: fmt.Sprintf("about %.1f kPa more than designed at design flow (resistance %.2f x design, 95 %% interval %.2f-%.2f)", extra/1000, b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD)),
 					Action:   "check strainers, isolating valves and the terminal for fouling before setting the valve"})
 			} else if p >= t.Confidence {
 				out = append(out, Finding{Code: Restricted, Severity: Fault, Branch: b.ID, Confidence: p,
@@ -194,10 +198,8 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio > %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), t.Restricted, p),
 					Action:   "check strainers, isolating valves and the terminal for fouling before setting the valve"})
 			}
-			if p := normalCDF((-lnThr - x) / b.LogSD); p >= t.Confidence || byPart && extra < 0 {
-				if p < t.Confidence {
-					p = b.FaultProb
-				}
+			if p := normalCDF((-lnThr - x) / b.LogSD); p >= t.Confidence || down >= t.Confidence {
+				p = max(p, down)
 				out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
 					Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
 					Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
@@ -253,6 +255,23 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 		return order[out[i].Branch] < order[out[j].Branch]
 	})
 	return out
+}
+
+// byPart returns the probabilities, from the readings alone, that branch b's
+// resistance lies above (below) both ScatterRatio times design and the ratio
+// that adds (removes) ExtraDrop at design flow; 0 where there is no such
+// evidence.
+func byPart(b Branch, t Thresholds) (up, down float64) {
+	if !(b.DataSD > 0) || math.IsNaN(b.DataLn) || !(b.DesignDrop > 0) {
+		return 0, 0
+	}
+	hi := max(math.Log(t.ScatterRatio), math.Log1p(t.ExtraDrop/b.DesignDrop))
+	up = normalCDF((b.DataLn - hi) / b.DataSD)
+	if t.ExtraDrop < b.DesignDrop {
+		lo := max(math.Log(t.ScatterRatio), -math.Log1p(-t.ExtraDrop/b.DesignDrop))
+		down = normalCDF((-lo - b.DataLn) / b.DataSD)
+	}
+	return up, down
 }
 
 func branchOf(r Reading) string {

@@ -759,6 +759,9 @@ func (s *Solved) Speed() float64 {
 	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil:
 		return s.State.Speed
 	case m.Controlled():
+		if s.Saturated() {
+			return m.MaxSpeed()
+		}
 		v := hydraulics.SpeedFor(*m.ScaledPump(s.Params.PumpHead), s.TotalFlow(), s.PumpDiff(), m.Fluid)
 		if !(v <= m.MaxSpeed()) {
 			return m.MaxSpeed()
