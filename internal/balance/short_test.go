@@ -289,3 +289,75 @@ func TestRemediesExact(t *testing.T) {
 		t.Errorf("only %d remedies checked", checked)
 	}
 }
+
+// TestNeverAboveMax plans random plants, with risers, on a pump boundary and
+// on a controlled pump, the pump's head multiplier from a third to twice the
+// one that just serves them: the plan never asks more than the pump gives at
+// its maximum speed (a pump boundary's speed at most MaxSpeed; a controlled
+// pump's set point at most its curve there at the planned flow), it is short
+// exactly when the least differential exceeds what the pump gives at the
+// total target flow, and every branch not named unmet is inside the band or
+// off it only by rounding (a warning says so).
+func TestNeverAboveMax(t *testing.T) {
+	ctx := context.Background()
+	for seed := range uint64(6) {
+		for _, kind := range []site.BoundaryKind{site.PumpCurve, site.ConstantDiff} {
+			for _, head := range []float64{0.3, 0.7, 1, 2} {
+				t.Run(fmt.Sprintf("seed=%d/%v/head=%g", seed, kind, head), func(t *testing.T) {
+					rng := rand.New(rand.NewPCG(seed, 9))
+					s := randomSite(rng, genOpts{n: 6 + rng.IntN(25), header: []site.Arrangement{site.DirectReturn, site.ReverseReturn}[seed%2], risers: true, noValve: true})
+					m := withPump(t, s)
+					if kind == site.ConstantDiff {
+						s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1.1, SetPoint: 80e3, Sensor: site.AtPump}
+						m = mustModel(t, s)
+					}
+					p := randomParams(rng, m)
+					p.PumpHead = head
+					pl := mustCompute(t, m, p, &Options{Rounding: Smart})
+					rg := m.Fluid.Density * hydraulics.StandardGravity
+					give := func(q float64) float64 { return m.ScaledPump(p.PumpHead).AtSpeed(m.MaxSpeed()).Head(q) * rg }
+					if short := pl.Least > give(pl.TotalTarget())*(1+1e-9); short != pl.Pump.Short {
+						t.Errorf("Short = %v; least %.6g Pa, the pump gives %.6g Pa at the target flow", pl.Pump.Short, pl.Least, give(pl.TotalTarget()))
+					}
+					switch kind {
+					case site.PumpCurve:
+						if pl.Speed > m.MaxSpeed()*(1+1e-12) {
+							t.Errorf("speed %.9g above the maximum %g", pl.Speed, m.MaxSpeed())
+						}
+					default:
+						if g := give(pl.TotalFlow); pl.Differential > g*(1+1e-9) {
+							t.Errorf("set point %.6g Pa above the %.6g Pa the pump gives flat out at %.6g m3/s", pl.Differential, g, pl.TotalFlow)
+						}
+						if pl.Pump.SpeedRatio > m.MaxSpeed()*(1+1e-12) {
+							t.Errorf("drive speed %.9g above the maximum %g", pl.Pump.SpeedRatio, m.MaxSpeed())
+						}
+					}
+					sol, err := m.Solve(ctx, p, pl.State())
+					if err != nil {
+						t.Fatal(err)
+					}
+					for _, b := range pl.Branches {
+						k, _ := m.Index(b.ID)
+						if got := sol.Flow(k); math.Abs(got/b.Predicted-1) > 2e-3 {
+							t.Errorf("branch %s: %.6g m3/s re-solved on the plant model, plan says %.6g", b.ID, got, b.Predicted)
+						}
+					}
+					t.Logf("short %v, %d unmet of %d", pl.Pump.Short, len(pl.Unmet), len(pl.Branches))
+					unmet := map[string]bool{}
+					for _, u := range pl.Unmet {
+						unmet[u.ID] = true
+					}
+					var rounding bool
+					for _, w := range pl.Warnings {
+						rounding = rounding || strings.Contains(w, "handwheel rounding")
+					}
+					for _, b := range pl.Branches {
+						if !b.InTolerance && !unmet[b.ID] && !rounding {
+							t.Errorf("branch %s at %.1f %% of target, not named unmet and no rounding warning", b.ID, b.Percent)
+						}
+					}
+				})
+			}
+		}
+	}
+}
