@@ -252,7 +252,11 @@ func findStandard(standard string) (standardDef, error) {
 	if d, ok := standardByName(normStandard(standard)); ok {
 		return d, nil
 	}
-	return standardDef{}, fmt.Errorf("pipe catalogue: standard %q not known (valid: %s): %w", standard, strings.Join(Standards(), ", "), ErrUnknown)
+	hint := ""
+	if n := normStandard(standard); strings.Contains(n, "copper") || n == "cu" {
+		hint = `; copper tube is "en1057"`
+	}
+	return standardDef{}, &unknownError{fmt.Sprintf("pipe catalogue: standard %q not known%s (valid: %s; see flowset help pipes)", standard, hint, strings.Join(Standards(), ", "))}
 }
 
 // LookupPipe returns a size of a pipe standard (see Standards).
@@ -281,7 +285,7 @@ func LookupPipe(standard, size string) (PipeSize, error) {
 }
 
 func (d standardDef) notFound(size, why string) error {
-	return fmt.Errorf("pipe catalogue: %s size %q %s (valid: %s): %w", d.name, size, why, d.valid(), ErrUnknown)
+	return &unknownError{fmt.Sprintf("pipe catalogue: %s size %q %s (valid: %s)", d.name, size, why, d.valid())}
 }
 
 func (d standardDef) lookupSteel(size string) (sizeRow, error) {
@@ -404,3 +408,10 @@ func parseMM(s string) (float64, error) {
 	}
 	return f, nil
 }
+
+// unknownError is a name not found in the catalogue, said in full by its
+// message; it wraps ErrUnknown for errors.Is without adding its words.
+type unknownError struct{ msg string }
+
+func (e *unknownError) Error() string { return e.msg }
+func (e *unknownError) Unwrap() error { return ErrUnknown }

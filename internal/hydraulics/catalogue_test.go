@@ -261,5 +261,5 @@ func ExampleLookupPipe() {
 	fmt.Println(err)
 	// Output:
 	// sch40 DN32: bore 35.08 mm
-	// pipe catalogue: en1057 size "22" has several walls; write OD x wall (valid: 15x0.7, 15x1.0, 22x0.9, 22x1.0, 22x1.2, 28x0.9, 28x1.0, 28x1.2, 35x1.2, 35x1.5, 42x1.2, 42x1.5, 54x1.2, 54x2.0, 66.7x1.2, 76.1x1.5, 108x1.5, 133x1.5, 159x2.0): unknown name
+	// pipe catalogue: en1057 size "22" has several walls; write OD x wall (valid: 15x0.7, 15x1.0, 22x0.9, 22x1.0, 22x1.2, 28x0.9, 28x1.0, 28x1.2, 35x1.2, 35x1.5, 42x1.2, 42x1.5, 54x1.2, 54x2.0, 66.7x1.2, 76.1x1.5, 108x1.5, 133x1.5, 159x2.0)
 }
