@@ -2,6 +2,7 @@ package cli
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -22,7 +23,9 @@ type runOptions struct {
 	Force bool
 	Quiet bool
 	Units string // display units: si or us
-	JSON  bool   // print the result as JSON on stdout instead of text
+	// unitsSet records that --units was given, overriding the site's key.
+	unitsSet bool
+	JSON     bool // print the result as JSON on stdout instead of text
 	// builtin is set for demo: the site is built in, not a path.
 	builtin bool
 	job     jobOptions
@@ -89,6 +92,7 @@ func newSiteJobCmd(ios *IO, o *runOptions, use, short, long string, needOut bool
 		Args:  exactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Site = args[0]
+			o.unitsSet = cmd.Flags().Changed("units")
 			if err := o.validate(needOut); err != nil {
 				return err
 			}
@@ -152,6 +156,7 @@ next free ./flowset-demo-N; or --out) and prints where the report is.
 				o.Out = freshDir("flowset-demo")
 			}
 			o.Site, o.builtin = "(built-in) "+name, true
+			o.unitsSet = cmd.Flags().Changed("units")
 			if err := o.validate(true); err != nil {
 				return err
 			}
@@ -205,12 +210,23 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		}
 		// err is the named result: the claim is released, and the parent
 		// folders it made removed, unless the folder was written.
-		defer func() { claim.finish(err == nil) }()
+		defer func() {
+			var short *shortError
+			claim.finish(err == nil || errors.As(err, &short)) // a short plan's outputs are written
+		}()
 	}
 	pr.step("reading %s", shown(o.Site))
 	l, err := load(ctx, o.Site, ios.Err)
 	if err != nil {
 		return err
+	}
+	if !o.unitsSet && l.Site.Units != "" {
+		// The site's own "units" key, unless --units was given.
+		u, err := displayUnits(l.Site.Units)
+		if err != nil {
+			return &dataError{err}
+		}
+		o.job.Units = u
 	}
 	j, err := runJob(ctx, l, &o.job, pr)
 	if err != nil {

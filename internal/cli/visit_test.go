@@ -304,3 +304,35 @@ func TestBlankTemplatePassesCheck(t *testing.T) {
 		t.Errorf("check of a half-filled template: exit %d, want %d", code, ExitData)
 	}
 }
+
+// TestSiteUnitsKey: the site's "units" key picks the display units unless
+// --units is given; a short plan's outputs stay written even in a folder
+// whose parents the run made.
+func TestSiteUnitsKey(t *testing.T) {
+	dir := t.TempDir()
+	copySite(t, "demo", dir)
+	f, err := os.OpenFile(filepath.Join(dir, "site.csv"), os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := f.WriteString("units,us\n"); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	_, stdout, stderr := run(t, "plan", dir)
+	if !strings.Contains(stdout, "gpm") || strings.Contains(stdout, "l/s") {
+		t.Errorf("plan of a site with units us is not in gpm:\n%s%s", stdout, stderr)
+	}
+	_, stdout, _ = run(t, "plan", dir, "--units", "si")
+	if !strings.Contains(stdout, "l/s") || strings.Contains(stdout, "gpm") {
+		t.Errorf("--units si does not override the site's key")
+	}
+	out := filepath.Join(t.TempDir(), "new", "parent", "out")
+	code, _, stderr := run(t, "run", dir, "--out", out, "--scale", "2")
+	if code != ExitShort {
+		t.Fatalf("run --scale 2: exit %d, want %d\n%s", code, ExitShort, stderr)
+	}
+	if _, err := os.Stat(filepath.Join(out, "report.html")); err != nil {
+		t.Errorf("a short plan's report is not left written: %v", err)
+	}
+}

@@ -527,7 +527,7 @@ var badCases = []badCase{
 	{name: "site unknown and duplicate keys", files: map[string]string{"site.csv": "key,value\nname,Annex\ncolour,blue\ntemprature [degC],12\nname,Annex 2\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high)",
+			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
 			"site.csv:4:1: warning: field \"temprature\": unknown key, ignored (want \"temperature\")",
 			"site.csv:5:1: field \"name\": key given twice (want one \"name\" line; the first is line 2)",
 		}},

@@ -431,6 +431,7 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 		}
 	}
 	s.Currency = words["currency"]
+	s.Units = words["units"]
 	return given
 }
 

@@ -41,6 +41,10 @@ type Site struct {
 	// design (-0.10 and +0.10 by default).
 	ToleranceLow, ToleranceHigh float64
 
+	// Units names the units results are shown in: "si", "us", or "" for
+	// the default (si). Inputs are SI inside whatever it says.
+	Units string
+
 	Branches []Branch
 	Valves   []ValveModel
 	Pump     []PumpPoint

@@ -99,6 +99,7 @@ func render(s *Site) []outSheet {
 	key("hours", s.Hours)
 	key("energy price", s.EnergyPrice)
 	key("currency", s.Currency)
+	key("units", s.Units)
 	key("pump efficiency", s.PumpEfficiency)
 	key("motor efficiency", s.MotorEfficiency)
 	key("tolerance low", s.ToleranceLow)
