@@ -99,11 +99,13 @@ func render(s *Site) []outSheet {
 	key("hours", s.Hours)
 	key("energy price", s.EnergyPrice)
 	key("currency", s.Currency)
-	key("units", s.Units)
 	key("pump efficiency", s.PumpEfficiency)
 	key("motor efficiency", s.MotorEfficiency)
 	key("tolerance low", s.ToleranceLow)
 	key("tolerance high", s.ToleranceHigh)
+	if s.Units != "" {
+		key("units", s.Units) // only when given, so older sheets read back unchanged
+	}
 
 	br := columnSheet(&branchColumns)
 	br.help = nil
