@@ -295,6 +295,11 @@ type ReadingFit struct {
 	// AsValveDiff marks a valve-meter flow fitted as the differential the
 	// meter measured.
 	AsValveDiff bool
+	// Why explains, for a reading set aside or far from the fit (more than
+	// 3 standard uncertainties), what it says against what the model needs
+	// and which explanation the other readings at the same place point to;
+	// "" for the others.
+	Why string
 	// SameAs is, for a valve-meter flow that is the same measurement as a
 	// valve differential of the same state (the meter's flow for the
 	// differential it read), that reading's index; -1 otherwise. Such a

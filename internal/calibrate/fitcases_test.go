@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"flowset/internal/diagnose"
@@ -275,6 +276,9 @@ func TestFitBiasedMeter(t *testing.T) {
 	rf := cal.Readings[fl]
 	if !rf.Outlier && math.Abs(rf.Normalised) < 3 {
 		t.Errorf("the biased flow reading fits (normalised residual %.2f): want it doubted", rf.Normalised)
+	}
+	if !strings.Contains(rf.Why, "fit the model: this reading is doubted") {
+		t.Errorf("the biased reading's explanation %q does not say its branch's other readings fit and the reading is doubted", rf.Why)
 	}
 	b := cal.Branches[3]
 	if math.Abs(math.Log(b.Ratio)) > 0.2 {

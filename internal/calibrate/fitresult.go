@@ -3,10 +3,12 @@ package calibrate
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"flowset/internal/hydraulics"
 	"flowset/internal/lsq"
 	"flowset/internal/plant"
+	"flowset/internal/site"
 )
 
 // determinedFraction: a parameter is determined by the readings when its
@@ -189,6 +191,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		}
 		c.Readings[ri] = rf
 	}
+	explain(c.Readings)
 	return c, nil
 }
 
@@ -236,4 +239,68 @@ func (r ReadingFit) String() string {
 		at = r.Pos.String() + ": " + at
 	}
 	return fmt.Sprintf("%s: read %.4g, model %.4g, %+.2f sd%s", at, r.Value, r.Predicted, r.Normalised, tag)
+}
+
+// suspectZ is the normalised residual beyond which explain says why a
+// reading disagrees (the diagnosis's default for a suspect reading).
+const suspectZ = 3
+
+// explain fills Why for each reading set aside or beyond suspectZ: the
+// value read against the model's, and which explanation the other readings
+// of the same place and state point to. Two independent readings that agree
+// with each other are rarely both wrong, so when the others at the branch
+// miss the model the same way, the model around the branch is doubted
+// before the reading; when they fit, the reading is.
+func explain(rs []ReadingFit) {
+	type key struct{ state, where string }
+	at := map[key][]int{}
+	for i, r := range rs {
+		if r.Boundary || math.IsNaN(r.Normalised) {
+			continue
+		}
+		k := key{r.State, r.Where}
+		at[k] = append(at[k], i)
+	}
+	for i := range rs {
+		r := &rs[i]
+		if r.Boundary || math.IsNaN(r.Normalised) || !r.Outlier && math.Abs(r.Normalised) <= suspectZ {
+			continue
+		}
+		head := fmt.Sprintf("read %s, the model needs %s (%+.1f standard uncertainties)", quantity(r.What, r.Value), quantity(r.What, r.Predicted), r.Normalised)
+		var fit, miss []string
+		for _, j := range at[key{r.State, r.Where}] {
+			o := &rs[j]
+			if j == i || o.SameAs == r.Index || r.SameAs == o.Index {
+				continue
+			}
+			w := fmt.Sprintf("%s %+.1f", o.What, o.Normalised)
+			if math.Abs(o.Normalised) <= 2 {
+				fit = append(fit, w)
+			} else if o.Normalised*r.Normalised > 0 || o.What != r.What {
+				miss = append(miss, w)
+			}
+		}
+		switch {
+		case len(fit) == 0 && len(miss) == 0:
+			r.Why = head + "; nothing else reads " + r.Where + " in this state, so the reading cannot be checked against another: re-take it, or read the branch another way"
+		case len(miss) > 0 && len(fit) == 0:
+			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(miss, ", ") + ") miss the model too: they agree with each other, so the model around " + r.Where + " (its resistance, its valve, the header or the pump's boundary) is doubted before the reading"
+		default:
+			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(fit, ", ") + ") fit the model: this reading is doubted (misread, wrong unit or test points, or a meter set up for another valve)"
+		}
+	}
+}
+
+// quantity formats a value of q for a sentence: flows in l/s, a speed as a
+// percentage, differentials in kPa.
+func quantity(q site.Quantity, v float64) string {
+	switch {
+	case math.IsNaN(v):
+		return "nothing"
+	case q.IsFlow():
+		return fmt.Sprintf("%.3g l/s", v*1000)
+	case q == site.Speed:
+		return fmt.Sprintf("%.1f %%", 100*v)
+	}
+	return fmt.Sprintf("%.3g kPa", v/1000)
 }

@@ -109,12 +109,17 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 		j.Findings = slices.DeleteFunc(j.Findings, func(f diagnose.Finding) bool { return f.Code == diagnose.Undetermined })
 	}
 
+	unconfirmed := holdUnconfirmed(m, j)
+
 	pr.step("planning valve settings for %d branches", len(m.Branches))
 	plan, err := balance.Compute(ctx, m, j.Params, j.planOptions())
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
 	plan.DesignOnly = j.Cal == nil
+	for _, id := range unconfirmed {
+		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as restricted beyond reach, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, open its valve fully", id))
+	}
 	j.Plan = plan
 	after, err := m.Solve(ctx, j.Params, plan.State())
 	if err != nil {
@@ -173,6 +178,39 @@ func planParams(c *calibrate.Calibration) plant.Params {
 		}
 	}
 	return p
+}
+
+// holdUnconfirmed plans at design the branches found unable to reach their
+// target whose only flow evidence is their own valve's test points: a
+// valve meter turns one differential into a flow through the valve's table,
+// so a meter set up for another valve, a blocked tapping or a plug off its
+// spindle reads exactly as a fouled branch does, and opening the valve fully
+// on that evidence alone would flood the branch if the reading is wrong.
+// Two independent instruments that agree are rarely both wrong; one is. It
+// returns the IDs held and notes the hold on their findings.
+func holdUnconfirmed(m *plant.Model, j *job) []string {
+	if j.Cal == nil {
+		return nil
+	}
+	indep := map[string]bool{}
+	for _, e := range j.Evidence {
+		indep[e.ID] = e.HasFlow
+	}
+	var held []string
+	for k := range j.Findings {
+		f := &j.Findings[k]
+		if f.Code != diagnose.CannotReachDesign || indep[f.Branch] {
+			continue
+		}
+		i, ok := m.Index(f.Branch)
+		if !ok || !(j.Params.Resistance[i] > 1) {
+			continue
+		}
+		j.Params.Resistance[i] = 1
+		held = append(held, f.Branch)
+		f.Action = "read its flow with a clamp-on meter to confirm before anything else: only its valve's test points say it is short, and a meter set up for another valve reads the same way; the plan holds its design setting until then"
+	}
+	return held
 }
 
 // uncertainty carries the calibration's spread into the plan.
@@ -294,7 +332,7 @@ func readingEvidence(l *loaded, c *calibrate.Calibration) []diagnose.Reading {
 			continue
 		}
 		r := l.Site.Readings[rf.Index]
-		out = append(out, diagnose.Reading{Label: rf.Pos.String(), Where: r.Where, What: r.What.String(), Normalised: rf.Normalised, Outlier: rf.Outlier})
+		out = append(out, diagnose.Reading{Label: rf.Pos.String(), Where: r.Where, What: r.What.String(), Normalised: rf.Normalised, Outlier: rf.Outlier, Why: rf.Why})
 	}
 	return out
 }

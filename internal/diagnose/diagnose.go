@@ -157,6 +157,9 @@ type Reading struct {
 	What       string // the quantity in words
 	Normalised float64
 	Outlier    bool // removed by the fit's outlier test
+	// Why is the fit's explanation: what was read against what the model
+	// needs, and what the other readings at the place point to ("" none).
+	Why string
 }
 
 // Finding is one flag with its evidence.
@@ -238,6 +241,9 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 			ev := fmt.Sprintf("normalised residual %.1f", r.Normalised)
 			if r.Outlier {
 				ev += "; left out of the fit by the outlier test"
+			}
+			if r.Why != "" {
+				ev += "; " + r.Why
 			}
 			out = append(out, Finding{Code: SuspectReading, Severity: Warning, Branch: branchOf(r), Reading: r.Label,
 				Confidence: 2*normalCDF(math.Abs(r.Normalised)) - 1, Message: msg, Evidence: ev,
