@@ -15,6 +15,7 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
+	"syscall"
 )
 
 // errExists is returned when an output would replace something without
@@ -64,13 +65,20 @@ func claimOut(what, dest string, force, file bool, inputs []string) (*outClaim, 
 		// The parent folders are made now (they are needed for the lock)
 		// and removed again if the run fails.
 		if c.made, err = mkdirs(parent); err != nil {
+			if errors.Is(err, syscall.ENOTDIR) || errors.Is(err, fs.ErrExist) {
+				return nil, usagef("%s%s: a part of the path is a file, not a folder", what, shown(dest))
+			}
 			return nil, sysErr(err)
 		}
 		rparent, err = filepath.EvalSymlinks(parent)
 	}
+	if errors.Is(err, syscall.ENOTDIR) {
+		c.unmake()
+		return nil, usagef("%s%s: a part of the path is a file, not a folder", what, shown(dest))
+	}
 	if err != nil {
 		c.unmake()
-		return nil, sysErr(err)
+		return nil, sysErr(fmt.Errorf("%s%s: %w", what, shown(dest), err))
 	}
 	c.rdest = filepath.Join(rparent, base)
 	if err := c.checkInputs(inputs); err != nil {

@@ -139,6 +139,8 @@ func TestOutputRefused(t *testing.T) {
 			func(r string) []string { return []string{"run", r + "/p/site", "--out", "."} }, "current folder"},
 		{"--out the parent of the current folder, --force", func(t *testing.T, r string) { t.Chdir(mkdir(t, r+"/work/deep")) },
 			func(r string) []string { return []string{"run", r + "/p/site", "--out", "..", "--force"} }, "current folder"},
+		{"--out below a file", func(t *testing.T, r string) { mustWrite(t, r+"/file", "data") },
+			func(r string) []string { return []string{"run", r + "/p/site", "--out", r + "/file/deeper/out"} }, "is a file, not a folder"},
 		{"--out the root", nil, func(r string) []string { return []string{"run", r + "/p/site", "--out", "/", "--force"} }, "root of the file system"},
 		{"template --force on a filled-in site", func(t *testing.T, r string) {
 			mustRun(t, "template", r+"/blank")

@@ -75,10 +75,10 @@ func RunIO(ctx context.Context, args []string, ios *IO) (code int) {
 	case ExitCancelled:
 		fmt.Fprintln(ios.Err, "flowset: stopped (interrupted); nothing was written")
 	case ExitUsage:
-		fmt.Fprintf(ios.Err, "flowset: %v\n", err)
+		fmt.Fprintf(ios.Err, "flowset: %s\n", termSafe(err.Error()))
 		fmt.Fprintln(ios.Err, "run 'flowset help' for usage")
 	default:
-		fmt.Fprintf(ios.Err, "flowset: %v\n", err)
+		fmt.Fprintf(ios.Err, "flowset: %s\n", termSafe(err.Error()))
 	}
 	return code
 }
