@@ -35,7 +35,7 @@ type runOptions struct {
 
 func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 	cmd.Flags().StringVar(&o.Out, "out", "", "output folder (must not exist unless --force)")
-	cmd.Flags().BoolVar(&o.Force, "force", false, "replace an existing output folder")
+	cmd.Flags().BoolVar(&o.Force, "force", false, "replace an output folder flowset wrote earlier, if nothing in it was changed or added")
 	cmd.Flags().BoolVar(&o.Quiet, "quiet", false, "print nothing but errors and warnings (no progress, no summary)")
 	cmd.Flags().StringVar(&o.Units, "units", "si", "display units: si (l/s, kPa) or us (gpm, psi); JSON stays SI")
 	cmd.Flags().BoolVar(&o.JSON, "json", false, "print the result as JSON on stdout (SI units, named in every key)")
@@ -129,7 +129,8 @@ func newRunCmd(ios *IO) *cobra.Command {
 		`Run checks the site, fits the survey, diagnoses deviations, plans the valve
 settings and pump set-point, and writes into DIR the HTML report (one file
 that works offline), the field sheets (CSV and workbook), the calibrated model
-and the findings. DIR must not exist unless --force is given; it is written
+and the findings. DIR must not exist; --force replaces only an output of an
+earlier run whose files are unchanged (see 'flowset help exit'). It is written
 whole or not at all.`, true)
 }
 

@@ -32,7 +32,7 @@ blank template flowset wrote that nobody has changed since.`,
 			return runTemplate(cmd.Context(), ios, opts)
 		},
 	}
-	cmd.Flags().BoolVar(&opts.Force, "force", false, "replace an existing destination")
+	cmd.Flags().BoolVar(&opts.Force, "force", false, "replace a blank template flowset wrote earlier, if nothing in it was changed or added")
 	return cmd
 }
 
