@@ -94,6 +94,11 @@ var badCases = []badCase{
 		want: []string{
 			"readings.csv: sheet is missing (want a readings sheet; see flowset help readings)",
 		}},
+	{name: "two files for one sheet", files: map[string]string{"Readings.csv": rdHead + rdBase},
+		cause: ErrDuplicate,
+		want: []string{
+			"readings.csv: a second file for the sheet of Readings.csv (want one file per sheet: remove or rename one of them)",
+		}},
 	{name: "unknown file", files: map[string]string{"target.csv": "branch,target flow\nA,0.5\n"},
 		cause: ErrUnknown,
 		want: []string{

@@ -76,6 +76,13 @@ func readDir(ctx context.Context, fsys fs.FS, dir string, label func(string) str
 			}
 			continue
 		}
+		if prev, dup := files[strings.ToLower(e.Name())]; dup {
+			// Names differing only in case: which one is meant cannot be
+			// told (and on some systems they are one file).
+			in.probs.add(&Error{File: label(e.Name()), Err: ErrDuplicate, Msg: fmt.Sprintf("a second file for the sheet of %s", prev),
+				Want: "one file per sheet: remove or rename one of them"})
+			continue
+		}
 		files[strings.ToLower(e.Name())] = e.Name()
 	}
 	var known []string

@@ -60,7 +60,13 @@ func ReadWorkbookContext(ctx context.Context, r io.ReaderAt, size int64, name st
 		label: func(sheet string) string { return name + "[" + sheet + "]" }}
 	tabs := map[string]string{}
 	for _, tab := range f.GetSheetList() {
-		tabs[strings.ToLower(strings.TrimSpace(tab))] = tab
+		key := strings.ToLower(strings.TrimSpace(tab))
+		if prev, dup := tabs[key]; dup {
+			in.probs.add(&Error{File: name + "[" + printable(tab) + "]", Err: ErrDuplicate, Msg: fmt.Sprintf("a second tab for the sheet of tab %q", prev),
+				Want: "one tab per sheet: remove or rename one of them"})
+			continue
+		}
+		tabs[key] = tab
 	}
 	var known []string
 	for _, sc := range sheets {
