@@ -6,7 +6,6 @@ import (
 	"strings"
 	"text/tabwriter"
 
-	"flowset/internal/diagnose"
 	"flowset/internal/report"
 	"flowset/internal/site"
 )
@@ -193,15 +192,7 @@ func printWarnings(w io.Writer, probs site.Problems, j *job) {
 	for _, r := range j.L.Site.Readings {
 		at[r.Pos] = r.Where
 	}
-	explained := map[string]string{}
-	for _, f := range j.Findings {
-		switch f.Code {
-		case diagnose.ValveMisSet, diagnose.ValveStuck, diagnose.SuspectReading:
-			if f.Branch != "" && explained[f.Branch] == "" {
-				explained[f.Branch] = f.Message
-			}
-		}
-	}
+	explained := j.explainedBranches()
 	for _, p := range warns {
 		line := p.Error()
 		if b, ok := at[site.Pos{File: p.File, Line: p.Line}]; ok && explained[b] != "" {

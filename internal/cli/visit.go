@@ -4,7 +4,9 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 
 	"flowset/internal/balance"
@@ -127,6 +129,7 @@ func (j *job) visit(u display) report.Visit {
 		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Leave the pump holding %s at %s (as surveyed) until step 3.", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor)))
 	}
 	v.BeforeStart = append(v.BeforeStart, j.suspectLines(u)...)
+	v.BeforeStart = append(v.BeforeStart, j.disagreeLines(u)...)
 	var undet []string
 	for _, f := range j.Findings {
 		if f.Code == diagnose.Undetermined {
@@ -579,4 +582,77 @@ func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 func isRemedyWarning(w string) bool {
 	return strings.Contains(w, "would meet every target") || strings.Contains(w, "restoring it would lower") ||
 		strings.Contains(w, "a valve of twice its Kv")
+}
+
+// disagreeLines are the check's warnings about readings that disagree with
+// each other, each pointing to the finding of the fit that explains it
+// where there is one.
+func (j *job) disagreeLines(u display) []string {
+	byPos := map[site.Pos]*site.Reading{}
+	for k := range j.L.Site.Readings {
+		r := &j.L.Site.Readings[k]
+		byPos[r.Pos] = r
+	}
+	quote := func(r *site.Reading) string {
+		if r.What.IsFlow() {
+			return fmt.Sprintf("%s (%s)", u.flow(r.Value), r.Instrument)
+		}
+		return fmt.Sprintf("%s (%s)", u.diff(r.Value), r.Instrument)
+	}
+	explained := j.explainedBranches()
+	var out []string
+	for _, p := range j.L.Problems {
+		if p.Severity != site.SeverityWarning || !strings.Contains(p.Msg, "disagrees with") {
+			continue
+		}
+		r := byPos[site.Pos{File: p.File, Line: p.Line}]
+		if r == nil {
+			continue
+		}
+		line := fmt.Sprintf("Readings that disagree: %s at %s, %s line %d, read %s", r.What, r.Where, p.File, p.Line, quote(r))
+		if m := otherLine.FindStringSubmatch(p.Msg); m != nil {
+			n, _ := strconv.Atoi(m[1])
+			if o := byPos[site.Pos{File: p.File, Line: n}]; o != nil {
+				line += fmt.Sprintf(" where line %d read %s", n, quote(o))
+			}
+		}
+		line += ", more than their uncertainties allow."
+		if j.hasMeterFlow(r.Where, r.State) && r.What.IsFlow() {
+			line += " A valve-meter flow that disagrees with another flow reading usually means the wrong valve size, model or setting was dialled into the meter."
+		}
+		if explained[r.Where] != "" {
+			line += fmt.Sprintf(" The fit explains it at %s: %s (step 2).", r.Where, explained[r.Where])
+		}
+		out = append(out, line)
+	}
+	return out
+}
+
+// otherLine finds the line a "disagrees with line N" warning names.
+var otherLine = regexp.MustCompile(`disagrees with line (\d+)`)
+
+// explainedBranches maps a branch to the finding of the fit that explains
+// odd readings on it: a valve off its table or a suspect reading.
+func (j *job) explainedBranches() map[string]string {
+	explained := map[string]string{}
+	for _, f := range j.Findings {
+		switch f.Code {
+		case diagnose.ValveMisSet, diagnose.ValveStuck, diagnose.SuspectReading:
+			if f.Branch != "" && explained[f.Branch] == "" {
+				explained[f.Branch] = f.Message
+			}
+		}
+	}
+	return explained
+}
+
+// hasMeterFlow reports whether branch where was read by a valve meter in
+// state.
+func (j *job) hasMeterFlow(where, state string) bool {
+	for _, r := range j.L.Site.Readings {
+		if r.Where == where && r.State == state && r.What.IsFlow() && r.Instrument == "valve-meter" {
+			return true
+		}
+	}
+	return false
 }

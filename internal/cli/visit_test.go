@@ -320,11 +320,12 @@ func TestSiteUnitsKey(t *testing.T) {
 	}
 	f.Close()
 	_, stdout, stderr := run(t, "plan", dir)
-	if !strings.Contains(stdout, "gpm") || strings.Contains(stdout, "l/s") {
+	// Readings are quoted as read; the results are in the display units.
+	if !strings.Contains(stdout, "Flow (gpm)") || strings.Contains(stdout, "Flow (l/s)") {
 		t.Errorf("plan of a site with units us is not in gpm:\n%s%s", stdout, stderr)
 	}
 	_, stdout, _ = run(t, "plan", dir, "--units", "si")
-	if !strings.Contains(stdout, "l/s") || strings.Contains(stdout, "gpm") {
+	if !strings.Contains(stdout, "Flow (l/s)") || strings.Contains(stdout, "gpm") {
 		t.Errorf("--units si does not override the site's key")
 	}
 	out := filepath.Join(t.TempDir(), "new", "parent", "out")
