@@ -525,12 +525,20 @@ func (sr *sheetReader) text(r row, name string, ok *bool) string {
 	if name == sr.sc.columns[0].name {
 		check = checkName
 	}
-	if name != "note" {
-		if ne := check(s); ne != nil {
-			sr.fail(r, name, ne)
-			*ok = false
-			return ""
-		}
+	if name == "note" {
+		// A note is free text: a line break or an invisible character in
+		// it is kept out of the outputs, not refused.
+		return strings.Map(func(r rune) rune {
+			if unsafeRune(r) {
+				return ' '
+			}
+			return r
+		}, s)
+	}
+	if ne := check(s); ne != nil {
+		sr.fail(r, name, ne)
+		*ok = false
+		return ""
 	}
 	return s
 }

@@ -238,3 +238,16 @@ func TestWorkbookCells(t *testing.T) {
 		})
 	}
 }
+
+// TestNotesMadeSafe gives a note with a line break, a terminal escape and
+// a right-to-left override: the note is kept, with each of them a space.
+func TestNotesMadeSafe(t *testing.T) {
+	fsys := mapFS(map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],note\nA,0.5,21.6,10,\"east\nlow \x1b[31mend\u202e\"\nB,0.4,21.6,12,\n"})
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil {
+		t.Fatalf("ReadDir: %v\n%v", err, p)
+	}
+	if got, want := s.Branches[0].Note, "east low  [31mend "; got != want {
+		t.Errorf("note %q, want %q", got, want)
+	}
+}
