@@ -69,7 +69,9 @@
 //     target before and after, the
 //     branch's own chain, and the pump power and energy the difference is
 //     worth at the target flow. Those that save over 1 % (or let a starved
-//     branch be served) head the plan (Plan.Remedies, Summary); the
+//     branch be served) head the plan (Plan.Remedies, Summary), with a
+//     smaller valve where the fitted one cannot throttle to its target and
+//     a valve where a branch has none and differential to spare; the
 //     settings are for the plant as it stands.
 //
 // # A pump short of head
@@ -399,6 +401,12 @@ const (
 	// LargerPump is a pump, or a drive allowed a higher speed, that gives
 	// the least differential at the target flow.
 	LargerPump
+	// SmallerValve fits a valve whose lowest setting passes no more than
+	// the target where the fitted one, fully throttled, passes more.
+	SmallerValve
+	// FitValve fits a balancing valve on a branch that has none and runs
+	// above its target.
+	FitValve
 )
 
 // String returns the kind's name.
@@ -410,6 +418,10 @@ func (k RemedyKind) String() string {
 		return "larger-valve"
 	case LargerPump:
 		return "larger-pump"
+	case SmallerValve:
+		return "smaller-valve"
+	case FitValve:
+		return "fit-valve"
 	}
 	return "remedy(?)"
 }

@@ -124,6 +124,23 @@ func (pl *planner) remedies() {
 			pl.plan.Remedies = append(pl.plan.Remedies, r)
 		}
 	}
+	// Valves that cannot take off what a branch has to spare: nothing to
+	// save at the pump, but the branch comes into its band.
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		var r Remedy
+		switch {
+		case pl.run.clamped[i]:
+			r = Remedy{Kind: SmallerValve, Action: fmt.Sprintf("the valve of branch %s passes more than its target even fully throttled (it needs Kv %.3g, its lowest setting gives %.3g): fit a smaller valve", b.ID, pl.run.kv[i], pl.run.ends[i][0])}
+		case b.Valve == nil && !b.Riser() && pl.run.surplus[i] > 0.01*pl.run.avail[i]:
+			r = Remedy{Kind: FitValve, Action: fmt.Sprintf("branch %s has no balancing valve and %.1f kPa more than it needs: fit one", b.ID, pl.run.surplus[i]/1e3)}
+		default:
+			continue
+		}
+		r.ID, r.Ratio, r.Need, r.NeedAfter, r.Least, r.LeastAfter = b.ID, math.NaN(), pl.chain[i], pl.chain[i], ex.least, ex.least
+		r.Power, r.AnnualEnergy, r.Serves = math.NaN(), math.NaN(), ex.least <= give*(1+1e-9)
+		pl.plan.Remedies = append(pl.plan.Remedies, r)
+	}
 	if pl.short {
 		r := Remedy{Kind: LargerPump, Ratio: math.NaN(), Need: ex.least, NeedAfter: ex.least, Least: ex.least, LeastAfter: ex.least,
 			Power: math.NaN(), AnnualEnergy: math.NaN(), Starved: true, Serves: true,

@@ -121,7 +121,7 @@ func (p *Plan) RemedyLines() []string {
 	out := []string{fmt.Sprintf("Put right first (%d); the settings below are for the plant as it stands:", len(p.Remedies))}
 	for k, r := range p.Remedies {
 		line := fmt.Sprintf("%d. %s.", k+1, upper(r.Action))
-		if r.Kind != LargerPump {
+		if r.Kind != LargerPump && r.Kind != SmallerValve && r.Kind != FitValve {
 			if r.Saves > 0.005*r.Least {
 				line += fmt.Sprintf(" Saves %.1f kPa of source differential (%.1f to %.1f kPa for every target)", r.Saves/1e3, r.Least/1e3, r.LeastAfter/1e3)
 				if finite(r.Power) {

@@ -361,3 +361,43 @@ func TestNeverAboveMax(t *testing.T) {
 		}
 	}
 }
+
+// TestValveRemedies checks the remedies of branches a valve cannot set: a
+// target so small that the fully throttled valve passes more (branch c at
+// 0.05 m3/h needs Kv 0.05/√0.393 ≈ 0.08 from its table's lowest 0.5: the
+// Kv law, IEC 60534-2-1 short form), and a branch without a valve with
+// differential to spare (a, once its valve is taken away). Each is named
+// unmet with the remedy that fits it, and the remedy saves nothing at the
+// pump.
+func TestValveRemedies(t *testing.T) {
+	s := parallelSite()
+	s.Branches[0].Valve, s.Branches[0].Setting = "", nan
+	m := mustModel(t, s)
+	pl := mustCompute(t, m, m.Design(), &Options{Targets: map[string]float64{"c": 0.05 * m3h}})
+	want := map[string]RemedyKind{"a": FitValve, "c": SmallerValve}
+	got := map[string]RemedyKind{}
+	for _, r := range pl.Remedies {
+		if r.Kind == LargerValve {
+			continue // on the index b: its open valve takes 25 of 40 kPa
+		}
+		got[r.ID] = r.Kind
+		if r.Saves != 0 {
+			t.Errorf("remedy %v for %s saves %g Pa, want nothing at the pump", r.Kind, r.ID, r.Saves)
+		}
+	}
+	for id, k := range want {
+		if g, ok := got[id]; !ok || g != k {
+			t.Errorf("branch %s: remedy %v (present %v), want %v", id, g, ok, k)
+		}
+	}
+	words := map[string]string{"a": "fit one", "c": "fit a smaller valve"}
+	var n int
+	for _, u := range pl.Unmet {
+		if w, ok := words[u.ID]; ok && strings.Contains(u.Remedy, w) {
+			n++
+		}
+	}
+	if n != 2 {
+		t.Errorf("unmet %+v: want a and c, each with its remedy", pl.Unmet)
+	}
+}
