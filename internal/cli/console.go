@@ -57,11 +57,7 @@ func printVisit(w io.Writer, j *job) {
 	}
 	fmt.Fprintln(w, "\n5. Prove it: read these after setting")
 	table(w, v.Prove)
-	var warns []string
-	for _, p := range v.Pump.Warnings {
-		warns = append(warns, p)
-	}
-	warns = append(warns, j.planNotes()...)
+	warns := v.Pump.Warnings
 	if len(warns) > 0 {
 		fmt.Fprintln(w, "\nWarnings")
 		bullets(w, warns)
@@ -96,7 +92,9 @@ func (j *job) uncertainIndex() string {
 		return ""
 	}
 	u := j.opts.Units
-	return fmt.Sprintf("The readings leave some doubt: the circuit may need up to %s rather than %s. Read the index branch %s after setting and raise the pump if it is short.", u.diff(p.LeastHigh), u.diff(p.Least), p.Index)
+	// The doubt is worked out on the exact settings (Least); it is added
+	// to the plan's own differential so the figures quoted agree.
+	return fmt.Sprintf("The readings leave some doubt: the circuit may need up to %s rather than %s. Read the index branch %s after setting and raise the pump if it is short.", u.diff(p.Required+p.LeastHigh-p.Least), u.diff(p.Required), p.Index)
 }
 
 // energyLine is the pump power and energy change in plain words, or "" when

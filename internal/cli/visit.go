@@ -143,8 +143,9 @@ func (j *job) visit(u display) report.Visit {
 	// 2. Fix first.
 	v.Fixes = j.fixes(u)
 
-	// 3. Pump.
+	// 3. Pump, with the plan's own warnings that are not said elsewhere.
 	v.Pump = j.pumpStep(u)
+	v.Pump.Warnings = append(v.Pump.Warnings, j.planNotes()...)
 
 	// 4. Valve settings.
 	v.OrderReason = "Set the valves in this order: along the main headers from the pump outwards, and on a riser its branches before the riser's own valve, so each riser is one visit. Every setting comes from one calculation, so the order does not change the result; the check readings hold once every valve is set and the pump runs as in step 3."
