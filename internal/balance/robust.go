@@ -74,7 +74,11 @@ func (pl *planner) robust() {
 		w := fmt.Sprintf("the uncertainty of %s matters: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, h.least/1e3, ex.least/1e3)
 		if pl.capped {
 			if s, err := pl.speedFor(ex.total(), h.least); err == nil {
-				w += fmt.Sprintf(" (pump speed ratio %.3f)", s)
+				if s > pl.m.MaxSpeed()*(1+1e-9) {
+					w += fmt.Sprintf(" (pump speed ratio %.3f, above its maximum %.3f: the pump could not give it)", s, pl.m.MaxSpeed())
+				} else {
+					w += fmt.Sprintf(" (pump speed ratio %.3f)", s)
+				}
 			}
 		}
 		pl.plan.Warnings = append(pl.plan.Warnings, w+"; read that branch's flow after setting and raise the pump if it is short")

@@ -55,7 +55,11 @@ func (p *Plan) Summary() []string {
 	}
 	out = append(out, p.RemedyLines()...)
 	out = append(out, fmt.Sprintf("Index circuit: %s (path %s); valve fully open.", p.Index, strings.Join(p.IndexPath, " > ")))
-	out = append(out, fmt.Sprintf("Source differential needed: %.1f kPa (least with exact settings %.1f kPa) at %.3f l/s.", p.Required/1e3, p.Least/1e3, p.TotalFlow*1e3))
+	if p.Pump.Short {
+		out = append(out, fmt.Sprintf("Source differential of the plan: %.1f kPa at %.3f l/s, all the pump gives (every target would need %.1f kPa).", p.Required/1e3, p.TotalFlow*1e3, p.Least/1e3))
+	} else {
+		out = append(out, fmt.Sprintf("Source differential needed: %.1f kPa (least with exact settings %.1f kPa) at %.3f l/s.", p.Required/1e3, p.Least/1e3, p.TotalFlow*1e3))
+	}
 	pp := p.Pump
 	if pp.Short {
 		out = append(out, fmt.Sprintf("Pump short of head: every target needs %.1f kPa at %.3f l/s, the pump gives %.1f kPa there at its maximum speed (%.1f kPa short; speed ratio %.3f would be needed, %.3f is allowed); it runs flat out and the plan shares the shortfall out %s.",
