@@ -19,13 +19,14 @@ import (
 var fuzzCommands = []string{"check", "curves", "fit", "plan", "run", "template", "demo", "help"}
 
 // FuzzCommandLine drives the whole command line: a command, fuzzed extra
-// arguments (flags and their values), a fuzzed output name and where it
-// points (a new folder, an existing output, the site, the site's parent,
-// a file of the user's), and one sheet of the plantroom site replaced by
-// fuzzed bytes. Whatever it is given, flowset must keep its promises:
+// arguments (flags and their values), a fuzzed name for the site folder and
+// the output, where the output points (a new folder, an existing output,
+// the site, the site's parent, a file of the user's), and one sheet of the
+// plantroom site replaced by fuzzed bytes. Whatever it is given, flowset must keep its promises:
 //
 //   - no panic reaches the caller and no internal error is reported;
 //   - the exit status is one of the documented ones;
+//   - nothing printed holds a control, invisible or direction character raw;
 //   - the input sheets and the user's file are byte for byte unchanged;
 //   - nothing is visible but the whole output: no temporary or lock file
 //     is left, and a run that did not succeed leaves no output folder;
@@ -62,7 +63,12 @@ func FuzzCommandLine(f *testing.F) {
 
 	f.Fuzz(func(t *testing.T, cmd uint8, extra string, where uint8, name string, sheet uint8, data []byte) {
 		root := t.TempDir()
-		dir := mkdir(t, filepath.Join(root, "p", "site"))
+		// The site folder takes the fuzzed name too (control characters,
+		// newlines, direction marks), or "site" where the system refuses it.
+		dir := filepath.Join(root, "p", "site"+strings.ReplaceAll(name, "/", "_"))
+		if len(name) > 64 || strings.ContainsRune(name, 0) || os.MkdirAll(dir, 0o755) != nil {
+			dir = mkdir(t, filepath.Join(root, "p", "site"))
+		}
 		sheetName := fuzzSheets[int(sheet)%len(fuzzSheets)]
 		for n, b := range base {
 			if err := os.WriteFile(filepath.Join(dir, n), b, 0o644); err != nil {
@@ -118,6 +124,9 @@ func FuzzCommandLine(f *testing.F) {
 			code := RunIO(ctx, args, &IO{In: strings.NewReader(""), Out: &so, Err: &se, Now: fixedClock})
 			if ctx.Err() != nil {
 				t.Fatalf("flowset %q did not finish in 60 s", args)
+			}
+			if c := rawControls(so.String() + se.String()); len(c) > 0 {
+				t.Fatalf("flowset %q printed %q raw", args, c)
 			}
 			if code == ExitInternal {
 				t.Fatalf("flowset %q: internal error:\n%s", args, se.String())
