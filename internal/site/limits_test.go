@@ -189,7 +189,8 @@ func BenchmarkCheckAgreement(b *testing.B) {
 }
 
 // TestWorkbookCells gives workbooks whose cells show other than they hold:
-// merged cells, a true/false and a date in number columns. Each must be reported at its cell.
+// merged cells, a formula saved without its value, a true/false and a date
+// in number columns. Each must be reported at its cell.
 func TestWorkbookCells(t *testing.T) {
 	for _, c := range []struct {
 		name string
@@ -198,6 +199,8 @@ func TestWorkbookCells(t *testing.T) {
 	}{
 		{"merged cells", func(f *excelize.File) { f.MergeCell("branches", "B3", "C3") },
 			"w.xlsx[branches]:3:2: cells B3:C3 are merged (want one value in each cell: unmerge them)"},
+		{"formula without a saved value", func(f *excelize.File) { f.SetCellFormula("branches", "H2", "A3") },
+			`w.xlsx[branches]:2:8: value "=A3": formula without a saved value (want the workbook saved by a spreadsheet program that calculates it, or the value typed in)`},
 		{"true/false in a number column", func(f *excelize.File) { f.SetCellBool("branches", "C2", true) },
 			`w.xlsx[branches]:2:3: field "design flow": value "TRUE": not a number (want a number such as 1.5)`},
 		{"date in a number column", func(f *excelize.File) {
