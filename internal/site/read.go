@@ -927,7 +927,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		ids[i] = s.Branches[i].ID
 		byID[ids[i]] = &s.Branches[i]
 	}
-	var out []Reading
+	out := make([]Reading, 0, len(t.rows))
 	type moved struct {
 		setting float64
 		line    int
