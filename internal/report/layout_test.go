@@ -26,9 +26,9 @@ const overflowJS = `(() => {
 	return out;
 })()`
 
-// brokenJS lists the identifier cells (kept on one line) whose text runs
+// brokenJS lists the identifier cells and words (kept on one line) whose text runs
 // over more than one line box.
-const brokenJS = `Array.from(document.querySelectorAll("td.nw")).filter(td => {
+const brokenJS = `Array.from(document.querySelectorAll("td.nw, span.id")).filter(td => {
 	const r = document.createRange();
 	r.selectNodeContents(td);
 	const tops = new Set(Array.from(r.getClientRects()).map(x => Math.round(x.top)));

@@ -15,6 +15,7 @@ import (
 	_ "embed"
 	"encoding/json"
 	"fmt"
+	"html"
 	"html/template"
 	"io"
 	"math"
@@ -85,7 +86,27 @@ var tmpl = template.Must(template.New("report").Funcs(template.FuncMap{
 	"letter": letter,
 	"dash":   dash,
 	"nowrap": nowrap,
+	"keep":   keepIDs,
 }).Parse(pageTmpl))
+
+// keepIDs escapes s for HTML and wraps each short word holding a hyphen
+// ("AHU-2's", "FCU-R.3") in a span kept on one line, so a line of text
+// never breaks inside an identifier. Everything else is plain escaped text.
+func keepIDs(s string) template.HTML {
+	var b strings.Builder
+	for i, w := range strings.Split(s, " ") {
+		if i > 0 {
+			b.WriteByte(' ')
+		}
+		e := html.EscapeString(w)
+		if strings.Contains(w, "-") && len([]rune(w)) <= maxNoWrap {
+			b.WriteString(`<span class="id">` + e + `</span>`)
+			continue
+		}
+		b.WriteString(e)
+	}
+	return template.HTML(b.String())
+}
 
 // letter numbers the appendix's parts: 0 is B (A is the summary), 25 is Z,
 // then AA, AB and so on.
