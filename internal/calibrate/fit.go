@@ -401,9 +401,11 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 	}
 	if o.FaultShare > 0 && !math.IsInf(o.PriorResistance, 1) {
 		// Second pass under the mixture prior: each branch's prior is the
-		// component its readings favour.
+		// component its readings favour. The first pass's outliers stay out
+		// from the start (its test goes on from there), which saves a refit
+		// per outlier.
 		su.classify(base)
-		if base, err = su.run(ctx, hyp, su.allObs(), base, o.OutlierZ, false); err != nil {
+		if base, err = su.runLocal(ctx, hyp, su.allObs(), base, o.OutlierZ, false, -1, base.res.Outliers); err != nil {
 			return nil, err
 		}
 	}
@@ -909,6 +911,11 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 		// algebra (seconds at 1000 parameters); the header and pump get
 		// exact variances afterwards (exactHubVariances).
 		set.DenseCovMax = -1
+	} else if n > localTestsAbove {
+		// On a site of some size a bad reading barely moves another main
+		// branch: the worst of each may go in one outlier round, as on the
+		// matrix-free path, instead of one refit per reading.
+		set.OutlierGroups = su.outlierGroups(p)
 	}
 	res, err := lsq.Solve(ctx, prob, x0, prior, set)
 	su.solves += p.solves

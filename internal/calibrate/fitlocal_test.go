@@ -49,7 +49,10 @@ func TestFitLocalNoFreeNodes(t *testing.T) {
 				tr.p.Resistance[i] = 1 + 0.05*float64(i%7)
 			}
 			simulate(t, m, tr, nil, 1e-3)
-			cal, err := Fit(context.Background(), m, &FitOptions{MatrixFreeAbove: 2})
+			// One wide prior: recovery to 1e-3 is the engine's, not the
+			// clean-branch prior's, which holds a branch 30 % off design
+			// a little towards it.
+			cal, err := Fit(context.Background(), m, &FitOptions{MatrixFreeAbove: 2, FaultShare: -1})
 			if err != nil {
 				t.Fatalf("Fit: %v", err)
 			}

@@ -143,6 +143,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	for _, oi := range res.Outliers {
 		out[oi] = true
 	}
+
 	at := make(map[int]int, len(f.sel)) // setup observation -> problem observation
 	for oi, k := range f.sel {
 		at[k] = oi
