@@ -158,7 +158,7 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 }
 
 func writeCurvesTable(w io.Writer, cs *curveSet) error {
-	fmt.Fprintf(w, "system curves of %s\nvalves at their settings in state %q\n\n", clip(cs.Site, 63), cs.State)
+	fmt.Fprintf(w, "system curves of %s\nvalves at their settings in state %q\n\n", cs.Site, cs.State)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprint(tw, "branch\tdesign\t")
 	for _, f := range cs.Fractions {
@@ -171,7 +171,7 @@ func writeCurvesTable(w io.Writer, cs *curveSet) error {
 	}
 	fmt.Fprintln(tw)
 	for _, b := range cs.Branches {
-		fmt.Fprintf(tw, "%s\t%.3f\t", clip(b.ID, 14), b.Design)
+		fmt.Fprintf(tw, "%s\t%.3f\t", b.ID, b.Design) // whole: no cut cells
 		for _, p := range b.Points {
 			fmt.Fprintf(tw, "%.1f\t", p.Diff)
 		}
@@ -217,14 +217,6 @@ func writeCurvesCSV(w io.Writer, cs *curveSet) error {
 }
 
 func ff(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
-
-func clip(s string, n int) string {
-	r := []rune(s)
-	if len(r) <= n {
-		return s
-	}
-	return string(r[:n-1]) + "~"
-}
 
 // safeCell neutralises a user string that a spreadsheet would take as a
 // formula (OWASP, "CSV Injection"): a cell starting with = + - @ tab or
