@@ -108,7 +108,7 @@ func locate(s *site.Site, err error) *site.Error {
 		e.Want = "flows and heads read from the pump's curve, the head falling as the flow rises"
 	case strings.HasPrefix(msg, "boundary "):
 		e.Field = "boundary"
-		e.File = s.Source.Path
+		e.File = s.Source.Path + "[site]"
 		if s.Source.Format == "csv" {
 			e.File = filepath.Join(s.Source.Path, "site.csv")
 		}

@@ -90,7 +90,7 @@ func TestLoadLimits(t *testing.T) {
 		data []byte
 		want string
 	}{
-		{"one part too large", bomb("xl/worksheets/sheet1.xml", MaxPartBytes+(1<<20)), "[xl/worksheets/sheet1.xml]: workbook part unpacks to 65 MiB (want parts of at most 64 MiB unpacked)"},
+		{"one part too large", bomb("xl/worksheets/sheet1.xml", MaxPartBytes+(1<<20)), "[xl/worksheets/sheet1.xml]: workbook part unpacks to 17 MiB (want parts of at most 16 MiB unpacked)"},
 		{"not a zip", []byte("just text"), ": not a readable .xlsx workbook (want a workbook saved as .xlsx)"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
@@ -110,14 +110,14 @@ func TestLoadLimits(t *testing.T) {
 	chunk := make([]byte, 1<<20)
 	for i := range 4 {
 		w, _ := zw.Create(fmt.Sprintf("xl/media/image%d.bin", i))
-		for range 30 {
+		for range 15 {
 			w.Write(chunk)
 		}
 	}
 	zw.Close()
 	_, p, err = ReadWorkbook(bytes.NewReader(b.Bytes()), int64(b.Len()), "many.xlsx")
-	if want := "many.xlsx: workbook unpacks to more than 96 MiB (want a workbook of at most 96 MiB unpacked)"; err == nil || len(p) != 1 || p[0].Error() != want {
-		t.Errorf("ReadWorkbook(120 MiB in 4 parts): %v\n%v\nwant %s", err, p, want)
+	if want := "many.xlsx: workbook unpacks to more than 48 MiB (want a workbook of at most 48 MiB unpacked)"; err == nil || len(p) != 1 || p[0].Error() != want {
+		t.Errorf("ReadWorkbook(60 MiB in 4 parts): %v\n%v\nwant %s", err, p, want)
 	}
 }
 

@@ -39,15 +39,16 @@ func ReadDirContext(ctx context.Context, fsys fs.FS, dir string) (*Site, Problem
 
 // Limits on what a site may hold, so that a hostile or mistaken file cannot
 // exhaust memory or time: each is far above what a survey needs (a site of
-// 10,000 branches with a million readings fits), and each refusal names
+// 10,000 branches with a million readings fits in CSV sheets, with some
+// 50,000 readings in a workbook), and each refusal names
 // the file and the limit.
 const (
 	MaxSheetBytes    = 64 << 20 // one CSV sheet
 	MaxLineBytes     = 1 << 20  // one line of a CSV sheet
 	MaxCellBytes     = 32000    // one cell: below a spreadsheet's 32,767 characters, so a cell written back whole still fits
-	MaxWorkbookBytes = 64 << 20 // an .xlsx workbook as stored
-	MaxPartBytes     = 64 << 20 // one part of a workbook, unpacked
-	MaxUnpackedBytes = 96 << 20 // all parts of a workbook, unpacked
+	MaxWorkbookBytes = 32 << 20 // an .xlsx workbook as stored
+	MaxPartBytes     = 16 << 20 // one part of a workbook, unpacked (a tab of about 50,000 rows; reading it takes some 300 MB)
+	MaxUnpackedBytes = 48 << 20 // all parts of a workbook, unpacked
 	maxParts         = 4096     // parts in a workbook
 )
 
