@@ -5,6 +5,7 @@ import (
 	"math"
 	"strconv"
 
+	"flowset/internal/hydraulics"
 	"flowset/internal/units"
 )
 
@@ -18,17 +19,19 @@ type display struct {
 	diffU    units.Unit
 }
 
-// displayUnits returns the display units by name: "si" (l/s, kPa) or "us"
-// (US gallons per minute, psi).
+// displayUnits returns the display units by name: "si" (l/s, kPa),
+// "si-m3h" (m3/h, kPa) or "us" (US gallons per minute, psi).
 func displayUnits(name string) (display, error) {
 	var f, d string
 	switch name {
 	case "", "si":
 		name, f, d = "si", "l/s", "kPa"
+	case "si-m3h":
+		f, d = "m3/h", "kPa"
 	case "us":
 		f, d = "gpm", "psi"
 	default:
-		return display{}, fmt.Errorf("units %q: want si (l/s, kPa) or us (gpm, psi)", name)
+		return display{}, fmt.Errorf("units %q: want si (l/s, kPa), si-m3h (m3/h, kPa) or us (gpm, psi)", name)
 	}
 	fu, err := units.Lookup(units.Flow, f)
 	if err != nil {
@@ -68,6 +71,10 @@ func (u display) flowNum(q float64) string {
 	case u.Name == "us" && a < 10:
 		d = 2
 	case u.Name == "us":
+		d = 1
+	case u.FlowUnit == "m3/h" && a < 10:
+		d = 2
+	case u.FlowUnit == "m3/h":
 		d = 1
 	case a < 1:
 		d = 3
@@ -119,4 +126,14 @@ func (u display) temperature(k float64) string {
 		return fmt.Sprintf("%.1f °F", (k-273.15)*1.8+32)
 	}
 	return fmt.Sprintf("%.1f °C", k-273.15)
+}
+
+// head formats a pump differential with, in US units, its head in feet of
+// the circulated fluid (density rho, kg/m3) beside it.
+func (u display) head(p, rho float64) string {
+	if u.Name != "us" || !(rho > 0) {
+		return u.diff(p)
+	}
+	ft := p / (rho * hydraulics.StandardGravity) / 0.3048 // NIST SP 811: 1 ft = 0.3048 m exactly
+	return fmt.Sprintf("%s, %.1f ft head", u.diff(p), ft)
 }

@@ -37,7 +37,7 @@ func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 	cmd.Flags().StringVar(&o.Out, "out", "", "output folder (must not exist unless --force)")
 	cmd.Flags().BoolVar(&o.Force, "force", false, "replace an output folder flowset wrote earlier, if nothing in it was changed or added")
 	cmd.Flags().BoolVar(&o.Quiet, "quiet", false, "print nothing but errors and warnings (no progress, no summary)")
-	cmd.Flags().StringVar(&o.Units, "units", "si", "display units: si (l/s, kPa) or us (gpm, psi); JSON stays SI")
+	cmd.Flags().StringVar(&o.Units, "units", "si", "display units: si (l/s, kPa), si-m3h (m3/h, kPa) or us (gpm, psi, Cv, °F); JSON stays SI")
 	cmd.Flags().BoolVar(&o.JSON, "json", false, "print the result as JSON on stdout (SI units, named in every key)")
 	cmd.Flags().Float64Var(&o.job.Thresholds.Restricted, "restricted-ratio", 1.5, "resistance ratio above which a branch is flagged restricted (1/ratio for free)")
 	cmd.Flags().Float64Var(&o.job.Thresholds.Confidence, "confidence", 0.95, "probability a ratio must have of passing its threshold to be flagged")

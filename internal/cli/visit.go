@@ -374,8 +374,9 @@ func (j *job) pumpStep(u display) report.PumpStep {
 	switch s.Boundary.Kind {
 	case site.PumpCurve:
 		bq, bd := j.pumpBefore()
-		st.From = fmt.Sprintf("%s speed (%s at %s)", u.speed(j.Before.State.Speed), u.diff(bd), u.flow(bq))
-		st.To = fmt.Sprintf("%s speed (%s at %s)", u.speed(plan.Speed), u.diff(j.After.PumpDiff()), u.flow(j.After.TotalFlow()))
+		rho := j.L.Model.Fluid.Density
+		st.From = fmt.Sprintf("%s speed (%s at %s)", u.speed(j.Before.State.Speed), u.head(bd, rho), u.flow(bq))
+		st.To = fmt.Sprintf("%s speed (%s at %s)", u.speed(plan.Speed), u.head(j.After.PumpDiff(), rho), u.flow(j.After.TotalFlow()))
 		st.Where = "the pump's drive speed"
 		if finite(pp.TrimRatio) {
 			st.Where += fmt.Sprintf("; on a fixed-speed pump, trim the impeller to about %.1f %% of its diameter instead (approximate: trim in steps and re-test)", 100*pp.TrimRatio)

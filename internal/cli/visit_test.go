@@ -337,3 +337,16 @@ func TestSiteUnitsKey(t *testing.T) {
 		t.Errorf("a short plan's report is not left written: %v", err)
 	}
 }
+
+// TestUnitsM3h: the si-m3h display gives flows in m3/h (1.6 l/s = 5.76
+// m3/h exactly) and differentials in kPa.
+func TestUnitsM3h(t *testing.T) {
+	code, stdout, stderr := run(t, "plan", surveyDir("demo"), "--units", "si-m3h")
+	if code != ExitOK {
+		t.Fatalf("exit %d\n%s", code, stderr)
+	}
+	flat := strings.Join(strings.Fields(stdout), " ")
+	if !strings.Contains(flat, "Flow (m3/h)") || !strings.Contains(flat, " 5.76 ") {
+		t.Errorf("plan --units si-m3h does not give AHU-1's 1.6 l/s as 5.76 m3/h:\n%s", stdout)
+	}
+}

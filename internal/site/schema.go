@@ -106,11 +106,11 @@ var siteKeys = schema{name: "site", columns: []column{
 	{name: "tolerance high", typ: numCol, kind: units.Dimensionless, unit: "%", what: "tolerance", lo: 0, hi: 10,
 		want: "a value from 0 % to 1000 %, e.g. 10", help: "highest acceptable flow relative to design; default +10 %"},
 	{name: "units", typ: wordCol, words: displayUnitWords,
-		help: "units of the results: si (l/s, kPa, Kv, degC) or us (gpm, psi, Cv, degF); default si; --units overrides"},
+		help: "units of the results: si (l/s, kPa, Kv, degC), si-m3h (m3/h, kPa, Kv, degC) or us (gpm, psi, Cv, degF); default si; --units overrides"},
 }}
 
 // displayUnitWords are the accepted values of the site's "units" key.
-var displayUnitWords = []string{"si", "us"}
+var displayUnitWords = []string{"si", "si-m3h", "us"}
 
 var branchColumns = schema{name: "branches", columns: []column{
 	{name: "id", typ: textCol, required: true, help: "unique name of the branch, e.g. AHU-2 or R1.3"},
