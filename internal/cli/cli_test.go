@@ -380,3 +380,46 @@ func TestCheckStatePump(t *testing.T) {
 		}
 	}
 }
+
+// TestRunSpeedReading checks that a drive's displayed speed goes through the
+// whole job and comes out as a ratio to rated speed, not as a pressure.
+func TestRunSpeedReading(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.CopyFS(dir, os.DirFS(filepath.Join("..", "site", "testdata", "small"))); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.OpenFile(filepath.Join(dir, "readings.csv"), os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := f.WriteString("as-found,pump,speed,92,%,,pump-display,,,10:42,\n"); err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(t.TempDir(), "out")
+	if code, _, errs := run(t, "run", dir, "--out", out); code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	}
+	data, err := os.ReadFile(filepath.Join(out, "readings.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows, err := csv.NewReader(bytes.NewReader(data)).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	found := false
+	for _, r := range rows {
+		if len(r) > 7 && r[3] == "speed" {
+			found = true
+			if r[5] != "0.920" || r[7] != "ratio" {
+				t.Errorf("speed row %q: want value 0.920 in unit ratio", r)
+			}
+		}
+	}
+	if !found {
+		t.Errorf("no speed row in readings.csv:\n%s", data)
+	}
+}

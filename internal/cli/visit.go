@@ -259,8 +259,11 @@ func (j *job) suspectLines(u display) []string {
 		}
 		sr := j.L.Site.Readings[r.Index]
 		val, pred := u.diff(r.Value), u.diff(r.Predicted)
-		if sr.What.IsFlow() {
+		switch {
+		case sr.What.IsFlow():
 			val, pred = u.flow(r.Value), u.flow(r.Predicted)
+		case sr.What == site.Speed:
+			val, pred = fmt.Sprintf("%.3f of rated speed", r.Value), fmt.Sprintf("%.3f", r.Predicted)
 		}
 		line := fmt.Sprintf("Reading %s (%s at %s, %s): read %s; the rest of the survey implies %s.", r.Pos, sr.What, sr.Where, sr.Instrument, val, pred)
 		if r.Outlier {

@@ -13,6 +13,7 @@ import (
 
 	"flowset/internal/calibrate"
 	"flowset/internal/diagnose"
+	"flowset/internal/site"
 )
 
 // num is a float that encodes NaN and infinities as JSON null, so outputs
@@ -294,8 +295,11 @@ func (j *job) readingRows() ([]string, [][]string) {
 	for _, r := range j.Cal.Readings {
 		sr := j.L.Site.Readings[r.Index]
 		scale, unit := 1e-3, "kPa"
-		if sr.What.IsFlow() {
+		switch {
+		case sr.What.IsFlow():
 			scale, unit = 1e3, "l/s"
+		case sr.What == site.Speed:
+			scale, unit = 1, "ratio" // to rated speed, as the drive shows it
 		}
 		note := ""
 		switch {
