@@ -186,9 +186,15 @@ func planParams(c *calibrate.Calibration) plant.Params {
 // so a meter set up for another valve, a blocked tapping or a plug off its
 // spindle reads exactly as a fouled branch does, and opening the valve fully
 // on that evidence alone would flood the branch if the reading is wrong.
-// Two independent instruments that agree are rarely both wrong; one is. It
-// returns the IDs held and notes the hold on their findings.
+// Two independent instruments that agree are rarely both wrong; one is.
+// Only a departure of holdRatio or more is held: a meter dialled to the
+// valve size next to the one fitted implies a differential some 2.5 times
+// off (Kv of adjacent sizes differ by about 1.6, squared), so beyond that a
+// reading error is as likely as a fault, while a smaller departure is
+// planned as fitted. It returns the IDs held and notes the hold on their
+// findings.
 func holdUnconfirmed(m *plant.Model, j *job) []string {
+	const holdRatio = 2.5 // common practice, no source: see above
 	if j.Cal == nil {
 		return nil
 	}
@@ -203,7 +209,7 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 			continue
 		}
 		i, ok := m.Index(f.Branch)
-		if !ok || !(j.Params.Resistance[i] > 1) {
+		if !ok || !(j.Params.Resistance[i] >= holdRatio) {
 			continue
 		}
 		j.Params.Resistance[i] = 1
