@@ -300,6 +300,9 @@ type ReadingFit struct {
 	// and which explanation the other readings at the same place point to;
 	// "" for the others.
 	Why string
+	// Doubted marks a flow reading left out because the branch's
+	// differentials and its design agree without it (a biased meter).
+	Doubted bool
 	// SameAs is, for a valve-meter flow that is the same measurement as a
 	// valve differential of the same state (the meter's flow for the
 	// differential it read), that reading's index; -1 otherwise. Such a
@@ -420,6 +423,9 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 		if fin, err = su.hypotheses(ctx, base, verdicts); err != nil {
 			return nil, err
 		}
+		if fin, su.doubted, err = su.doubtFlows(ctx, fin, verdicts); err != nil {
+			return nil, err
+		}
 	}
 	return su.calibration(fin, verdicts)
 }
@@ -436,6 +442,9 @@ type setup struct {
 	// twin maps a valve-meter flow merged with the valve differential of
 	// the same measurement to that reading (-1 none; mergeMeterTwins).
 	twin []int
+	// doubted holds the observations of flow readings the fit doubts
+	// (doubtFlows).
+	doubted map[int]bool
 	// rhoMeter is the density valve meters are taken to assume, kg/m3.
 	rhoMeter float64
 	// rSigma is each branch's resistance prior sd and faultProb the

@@ -189,6 +189,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			rf.Residual = rf.Predicted - rf.Value
 			rf.Normalised = res.Residual[oi]
 			rf.Outlier = out[oi]
+			rf.Doubted = su.doubted[k]
 		}
 		c.Readings[ri] = rf
 	}
@@ -268,6 +269,10 @@ func explain(rs []ReadingFit) {
 			continue
 		}
 		head := fmt.Sprintf("read %s, the model needs %s (%+.1f standard uncertainties)", quantity(r.What, r.Value), quantity(r.What, r.Predicted), r.Normalised)
+		if r.Doubted {
+			r.Why = head + fmt.Sprintf("; the differentials at %s agree with each other and with its design without this flow, and two independent instruments that agree are rarely both wrong: the flow reading is doubted (a clamp-on meter set up with the wrong pipe size or wall, or a biased meter; about %+.0f %%)", r.Where, 100*(r.Value/r.Predicted-1))
+			continue
+		}
 		var fit, miss []string
 		for _, j := range at[key{r.State, r.Where}] {
 			o := &rs[j]

@@ -8,6 +8,8 @@ import (
 	"sort"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"flowset/internal/site"
 )
 
 // Thresholds of the valve hypothesis test.
@@ -302,4 +304,120 @@ func (su *setup) pinned(f *fitRun, i int) bool {
 		}
 	}
 	return end != 0
+}
+
+// doubtFlows weighs, for each branch whose independent flow reading pulls
+// its valve off its table (Kv scale beyond suspectKv prior sd) or its
+// resistance beyond a clean branch's scatter while the valve was found to
+// follow its table, the hypothesis that the flow reading itself is off (a
+// clamp-on meter with the wrong pipe size, wall or transducer spacing, or
+// any meter biased): the branch is refitted with its flow readings left out
+// and the two compared by score, the left-out readings counted as one free
+// parameter each. Two independent instruments that agree (the valve
+// differential through the valve's table, the branch differential through
+// its resistance) are rarely both wrong, so when they and the design agree
+// without the flow, the flow is doubted rather than the branch moved. The
+// doubted readings are left out of the final fit (they head its outliers)
+// and listed in doubted, keyed by observation.
+func (su *setup) doubtFlows(ctx context.Context, fin *fitRun, verdicts []ValveVerdict) (*fitRun, map[int]bool, error) {
+	p := fin.prob
+	res := fin.res
+	out := map[int]bool{}
+	for _, oi := range res.Outliers {
+		out[fin.sel[oi]] = true
+	}
+	batch := len(p.params) > min(su.opt.MatrixFreeAbove, localTestsAbove)
+	doubted := map[int]bool{}
+	for i := range su.m.Branches {
+		if v := verdicts[i].Hypothesis; v == SetElsewhere || v == HoldsOneKv {
+			continue
+		}
+		pull := false
+		if j := p.kvIdx[i]; j >= 0 && p.params[j].Kind == KvParam && math.Abs(res.X[j]) > suspectKv*su.opt.PriorKv {
+			pull = true
+		}
+		if j := p.rIdx[i]; j >= 0 && su.rSigma != nil && su.rSigma[i] == su.opt.PriorClean && math.Abs(res.X[j]) > suspectKv*su.opt.PriorClean {
+			pull = true
+		}
+		if !pull {
+			continue
+		}
+		var flows []int // setup observations: the branch's independent flows
+		hasDiff := false
+		for _, k := range fin.sel {
+			o := &su.obs[k]
+			if o.branch != i || out[k] {
+				continue
+			}
+			switch {
+			case o.what == site.Flow:
+				flows = append(flows, k)
+			case o.what == site.ValveDiff || o.what == site.BranchDiff:
+				hasDiff = true
+			}
+		}
+		if len(flows) == 0 || !hasDiff {
+			continue
+		}
+		drop := map[int]bool{}
+		for _, k := range flows {
+			drop[k] = true
+		}
+		var sel []int
+		for _, k := range fin.sel {
+			if !drop[k] && !out[k] {
+				sel = append(sel, k)
+			}
+		}
+		var withRun *fitRun
+		var err error
+		var withSel []int
+		for _, k := range fin.sel {
+			if !out[k] {
+				withSel = append(withSel, k)
+			}
+		}
+		var without *fitRun
+		if batch && !su.exactLocal {
+			withRun, err = su.runReduced(ctx, fin.hyp, withSel, fin, i)
+			if err == nil {
+				without, err = su.runReduced(ctx, fin.hyp, sel, fin, i)
+			}
+		} else {
+			withRun, err = su.runLocal(ctx, fin.hyp, withSel, fin, -1, true, -1, nil)
+			if err == nil {
+				without, err = su.runLocal(ctx, fin.hyp, sel, fin, -1, true, -1, nil)
+			}
+		}
+		if err != nil {
+			if ctx.Err() != nil {
+				return nil, nil, err
+			}
+			continue
+		}
+		gain := score(withRun) - score(without) - float64(len(flows))*math.Log(float64(len(withSel)))
+		if gain < strongEvidence {
+			continue
+		}
+		for _, k := range flows {
+			doubted[k] = true
+		}
+	}
+	if len(doubted) == 0 {
+		return fin, nil, nil
+	}
+	var exclude []int
+	for oi, k := range fin.sel {
+		if doubted[k] || out[k] {
+			exclude = append(exclude, oi)
+		}
+	}
+	next, err := su.runLocal(ctx, fin.hyp, fin.sel, fin, su.opt.OutlierZ, false, -1, exclude)
+	if err != nil {
+		if ctx.Err() != nil {
+			return nil, nil, err
+		}
+		return fin, nil, nil
+	}
+	return next, doubted, nil
 }
