@@ -131,7 +131,18 @@ settings and pump set-point, and writes into DIR the HTML report (one file
 that works offline), the field sheets (CSV and workbook), the calibrated model
 and the findings. DIR must not exist; --force replaces only an output of an
 earlier run whose files are unchanged (see 'flowset help exit'). It is written
-whole or not at all.`, true)
+whole or not at all.
+
+The console, the report's first pages and the field sheet follow the order
+of work on site: before you start, fix first, pump, valve settings, prove it
+(and, on paper, the hand-over). A plan that cannot meet its targets says so
+first, claims no saving, writes its outputs all the same and exits with
+status 5 (see 'flowset help exit').
+
+Examples:
+  flowset run site --out job
+  flowset run site.xlsx --out job --units us
+  flowset run site --json --out job > result.json`, true)
 }
 
 func newDemoCmd(ios *IO) *cobra.Command {
