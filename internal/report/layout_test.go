@@ -140,3 +140,64 @@ func TestBrowserLayout(t *testing.T) {
 		})
 	}
 }
+
+// TestBrowserLayoutControls shows that the layout checks can fail: a
+// settings table too wide for a tablet, an identifier cell allowed to
+// wrap, and a first step long enough to push the pump off the first page
+// are each caught.
+func TestBrowserLayoutControls(t *testing.T) {
+	browserCtx := startBrowser(t)
+	in := sampleInput()
+	wide := in.Visit.Settings
+	for k := 0; k < 20; k++ {
+		wide.Columns = append(wide.Columns, fmt.Sprintf("extra column %d", k))
+	}
+	for r := range wide.Rows {
+		for k := 0; k < 20; k++ {
+			wide.Rows[r] = append(wide.Rows[r], "12345.678")
+		}
+	}
+	in.Visit.Settings = wide
+	for k := 0; k < 40; k++ {
+		in.Visit.BeforeStart = append(in.Visit.BeforeStart, fmt.Sprintf("Line %d of a long list of things to do before starting.", k))
+	}
+	ctx, _ := open(t, browserCtx, writeFile(t, in))
+	if _, err := chromedp.Run(ctx, chromedp.Poll[int](readyJS, chromedp.WithPollingTimeout(15*time.Second))); err != nil {
+		t.Fatalf("charts not ready: %v", err)
+	}
+	if _, err := chromedp.Call(ctx, emulation.SetDeviceMetricsOverride, emulation.SetDeviceMetricsOverrideParams{Width: 768, Height: 1000, DeviceScaleFactor: 1}); err != nil {
+		t.Fatal(err)
+	}
+	o, err := chromedp.Run(ctx, chromedp.Evaluate[overflow](overflowJS))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(o.Tables) == 0 {
+		t.Errorf("a 27-column settings table at 768 px is not caught as running off the side")
+	}
+	// An identifier cell made to wrap in a narrow column.
+	const squeeze = `(() => { const td = document.querySelector("td.nw"); td.style.whiteSpace = "normal"; td.style.maxWidth = "2em"; td.textContent = "FCU-R.3-LONG-ID"; return 1; })()`
+	if _, err := chromedp.Run(ctx, chromedp.Evaluate[int](squeeze)); err != nil {
+		t.Fatal(err)
+	}
+	broken, err := chromedp.Run(ctx, chromedp.Evaluate[[]string](brokenJS))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(broken) == 0 {
+		t.Errorf("an identifier squeezed over lines is not caught")
+	}
+	if _, err := chromedp.Call(ctx, emulation.SetEmulatedMedia, emulation.SetEmulatedMediaParams{Media: "print"}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := chromedp.Call(ctx, emulation.SetDeviceMetricsOverride, emulation.SetDeviceMetricsOverrideParams{Width: 703, Height: 1009, DeviceScaleFactor: 1}); err != nil {
+		t.Fatal(err)
+	}
+	bottoms, err := chromedp.Run(ctx, chromedp.Evaluate[[]float64](firstPageJS))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if bottoms[2] <= 1009 {
+		t.Errorf("with 40 lines before it, the pump heading still ends at %.0f px, on the first page", bottoms[2])
+	}
+}
