@@ -36,10 +36,10 @@ func loadSite(ctx context.Context, path string, w io.Writer) (*loaded, error) {
 		return nil, sysErr(err)
 	}
 	// With errors, finishLoad lists every problem, warnings included.
-	return finishLoad(s, probs, shown(path), w)
+	return finishLoad(ctx, s, probs, shown(path), w)
 }
 
-func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*loaded, error) {
+func finishLoad(ctx context.Context, s *site.Site, probs site.Problems, label string, w io.Writer) (*loaded, error) {
 	if probs.Err() != nil {
 		printProblems(w, probs)
 		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site sheets", label, len(probs.Errors()))}
@@ -51,7 +51,15 @@ func finishLoad(s *site.Site, probs site.Problems, label string, w io.Writer) (*
 		printProblems(w, probs)
 		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}
 	}
+	// The model and its checks do not watch the context; between them,
+	// a signal is heard.
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
 	probs = append(probs, m.Check()...)
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
 	if probs.Err() != nil {
 		printProblems(w, probs)
 		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}

@@ -172,7 +172,7 @@ next free ./flowset-demo-N; or --out) and prints where the report is.
 			if err := o.validate(true); err != nil {
 				return err
 			}
-			return runMain(cmd.Context(), ios, o, func(_ context.Context, _ string, w io.Writer) (*loaded, error) { return loadEmbedded(name, w) })
+			return runMain(cmd.Context(), ios, o, func(ctx context.Context, _ string, w io.Writer) (*loaded, error) { return loadEmbedded(ctx, name, w) })
 		},
 	}
 	addJobFlags(cmd, o, true)
@@ -197,12 +197,12 @@ func freshDir(base string) string {
 type loader func(ctx context.Context, path string, w io.Writer) (*loaded, error)
 
 // loadEmbedded reads a built-in site.
-func loadEmbedded(name string, w io.Writer) (*loaded, error) {
+func loadEmbedded(ctx context.Context, name string, w io.Writer) (*loaded, error) {
 	s, probs, err := site.ReadDir(surveys.FS, name)
 	if err != nil {
 		return nil, &dataError{err}
 	}
-	return finishLoad(s, probs, "built-in site "+name, w)
+	return finishLoad(ctx, s, probs, "built-in site "+name, w)
 }
 
 // runMain is fit, plan, run and demo: compute, print, write.
