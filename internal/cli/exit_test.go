@@ -87,6 +87,7 @@ func TestExitStatuses(t *testing.T) {
 	}{
 		{"missing SITE", []string{"check"}, ExitUsage, "takes 1 argument"},
 		{"SITE that does not exist", []string{"check", "no/such/site"}, ExitUsage, "no such folder or workbook"},
+		{"SITE below a file", []string{"check", filepath.Join(plant, "site.csv", "x")}, ExitUsage, "no such folder or workbook"},
 		{"fit of a SITE that does not exist", []string{"fit", "no/such/site"}, ExitUsage, "no such folder or workbook"},
 		{"unknown help topic", []string{"help", "nosuch"}, ExitUsage, "no such command or topic"},
 		{"help topic with extra words", []string{"help", "check", "nosuch"}, ExitUsage, "no such command or topic"},

@@ -65,6 +65,11 @@ func TestSheetsThatAreNotFiles(t *testing.T) {
 			}
 		}, ExitData, "readings.csv: cannot be opened: it is a link to nothing"},
 		{"readings.csv a folder", func(t *testing.T, p string) { mkdir(t, p) }, ExitData, "readings.csv: is a folder, not a sheet"},
+		{"readings.csv a link to itself", func(t *testing.T, p string) {
+			if err := os.Symlink("readings.csv", p); err != nil {
+				t.Skip(err)
+			}
+		}, ExitData, "readings.csv: cannot be opened: it is a link in a loop of links"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			dir := mkdir(t, filepath.Join(t.TempDir(), "site"))

@@ -9,6 +9,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 
 	"flowset/internal/plant"
 	"flowset/internal/site"
@@ -27,6 +28,8 @@ type loaded struct {
 func loadSite(ctx context.Context, path string, w io.Writer) (*loaded, error) {
 	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
 		return nil, usagef("SITE %s: no such folder or workbook", shown(path))
+	} else if errors.Is(err, syscall.ENOTDIR) || errors.Is(err, syscall.ELOOP) {
+		return nil, usagef("SITE %s: no such folder or workbook (a part of the path is a file, or links in a loop)", shown(path))
 	}
 	s, probs, err := site.Load(ctx, path)
 	if errors.Is(err, site.ErrNotSite) {

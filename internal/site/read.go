@@ -13,6 +13,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"syscall"
 
 	"flowset/internal/fluid"
 	"flowset/internal/units"
@@ -159,6 +160,9 @@ func readSheet(fsys fs.FS, name, label string) ([]byte, *Error, error) {
 		if errors.Is(err, fs.ErrNotExist) {
 			// A symbolic link to nothing.
 			return nil, &Error{File: label, Err: ErrMissing, Msg: "cannot be opened: it is a link to nothing", Want: "a CSV file"}, nil
+		}
+		if errors.Is(err, syscall.ELOOP) {
+			return nil, &Error{File: label, Err: ErrMissing, Msg: "cannot be opened: it is a link in a loop of links", Want: "a CSV file"}, nil
 		}
 		return nil, nil, fmt.Errorf("read %s: %w", label, err)
 	}
