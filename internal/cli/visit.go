@@ -488,7 +488,14 @@ func (j *job) proveTable(u display) report.Table {
 		if !b.InTolerance {
 			why = append(why, "predicted outside the tolerance")
 		} else if p.Banded && !b.BandInTolerance {
-			why = append(why, "its band leaves the tolerance")
+			// Say by how much: the band and the tolerance can look equal
+			// once rounded to the flow's decimals.
+			switch lo := 100 * (1 + p.ToleranceLow); {
+			case b.BandLow < lo:
+				why = append(why, fmt.Sprintf("band down to %.1f %% of target", b.BandLow))
+			default:
+				why = append(why, fmt.Sprintf("band up to %.1f %% of target", b.BandHigh))
+			}
 		}
 		if !b.Riser && !read[b.ID] && !j.Plan.DesignOnly {
 			why = append(why, "not read in the survey")
