@@ -41,7 +41,7 @@ func newHelpCmd() *cobra.Command {
 			if err != nil || cmd == nil || len(rest) > 0 {
 				var names []string
 				for _, sub := range c.Root().Commands() {
-					if !sub.Hidden {
+					if !sub.Hidden && sub.Name() != "completion" && sub.Name() != "help" {
 						names = append(names, sub.Name())
 					}
 				}
