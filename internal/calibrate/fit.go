@@ -56,7 +56,7 @@ const (
 	// DefaultMatrixFreeAbove is the number of parameters above which Fit
 	// solves matrix-free: below it the engine forms the Jacobian and keeps
 	// the exact covariance.
-	DefaultMatrixFreeAbove = 300
+	DefaultMatrixFreeAbove = 100
 )
 
 // localTestsAbove is the number of parameters above which the valve

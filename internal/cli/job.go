@@ -118,7 +118,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 	plan.DesignOnly = j.Cal == nil
 	for _, id := range unconfirmed {
-		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as restricted beyond reach, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, open its valve fully", id))
+		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.1f times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
 	}
 	j.Plan = plan
 	after, err := m.Solve(ctx, j.Params, plan.State())
@@ -180,8 +180,8 @@ func planParams(c *calibrate.Calibration) plant.Params {
 	return p
 }
 
-// holdUnconfirmed plans at design the branches found unable to reach their
-// target whose only flow evidence is their own valve's test points: a
+// holdUnconfirmed plans at design the branches found far above design
+// whose only flow evidence is their own valve's test points: a
 // valve meter turns one differential into a flow through the valve's table,
 // so a meter set up for another valve, a blocked tapping or a plug off its
 // spindle reads exactly as a fouled branch does, and opening the valve fully
@@ -203,20 +203,26 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 		indep[e.ID] = e.HasFlow
 	}
 	var held []string
-	for k := range j.Findings {
-		f := &j.Findings[k]
-		if f.Code != diagnose.CannotReachDesign || indep[f.Branch] {
-			continue
-		}
-		i, ok := m.Index(f.Branch)
-		if !ok || !(j.Params.Resistance[i] >= holdRatio) {
+	for _, e := range j.Evidence {
+		i, ok := m.Index(e.ID)
+		if !ok || e.HasFlow || !(j.Params.Resistance[i] >= holdRatio) {
 			continue
 		}
 		j.Params.Resistance[i] = 1
-		held = append(held, f.Branch)
-		f.Action = "read its flow with a clamp-on meter to confirm before anything else: only its valve's test points say it is short, and a meter set up for another valve reads the same way; the plan holds its design setting until then"
+		held = append(held, e.ID)
+	}
+	for k := range j.Findings {
+		f := &j.Findings[k]
+		if (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && slices.Contains(held, f.Branch) {
+			f.Action = "read its flow with a clamp-on meter to confirm before anything else: only its valve's test points say it is restricted, and a meter set up for another valve reads the same way; the plan holds its design setting until then"
+		}
 	}
 	return held
+}
+
+func mustIndex(m *plant.Model, id string) int {
+	i, _ := m.Index(id)
+	return i
 }
 
 // uncertainty carries the calibration's spread into the plan.
