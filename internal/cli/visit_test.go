@@ -92,6 +92,18 @@ func TestDemoConsole(t *testing.T) {
 	if a, b := strings.Index(page, `id="settings"`), strings.Index(page, `class="appendix"`); a < 0 || b < 0 || a > b {
 		t.Errorf("valve settings do not come before the appendix")
 	}
+	// The action pages speak plainly; the statistics stay in the appendix.
+	if i := strings.Index(page, `class="appendix"`); i > 0 {
+		first := page[strings.Index(page, "<body>"):i]
+		for _, bad := range []string{"sd of ln", "chi-square", "posterior", "Source differential", "least with exact"} {
+			if strings.Contains(first, bad) {
+				t.Errorf("the report's action pages say %q", bad)
+			}
+		}
+		if !strings.Contains(page[i:], "chi-square") && !strings.Contains(page[i:], "posterior") {
+			t.Errorf("the appendix lost the fit's statistics")
+		}
+	}
 }
 
 // TestShortPlanSaysSoFirst checks that a plan that cannot meet its targets
