@@ -50,6 +50,7 @@ func finishLoad(ctx context.Context, s *site.Site, probs site.Problems, label st
 	m, err := plant.New(s)
 	if err != nil {
 		probs = append(probs, locate(s, err))
+		s.Locate(probs)
 		probs.Sort()
 		printProblems(w, probs)
 		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}
@@ -63,6 +64,7 @@ func finishLoad(ctx context.Context, s *site.Site, probs site.Problems, label st
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
+	s.Locate(probs)
 	if probs.Err() != nil {
 		printProblems(w, probs)
 		return nil, &dataError{fmt.Errorf("%s: %d error(s) in the site data", label, len(probs.Errors()))}

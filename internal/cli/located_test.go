@@ -21,8 +21,10 @@ func TestProblemsLocated(t *testing.T) {
 		not  []string
 	}{
 		{name: "pump curve rising with flow", file: "pump.csv", text: "flow [l/s],head [m]\n0,5\n3,6\n6,7\n8,8\n",
-			want: []string{`pump.csv:5: field "head": fitted head rises with flow (468 m per m3/s) at the highest flow 0.008 m3/s`,
+			want: []string{`pump.csv:5:2: field "head": fitted head rises with flow (468 m per m3/s) at the highest flow 0.008 m3/s`,
 				`pump.csv:3:2: warning: field "head": value "6": head rises with flow`}},
+		{name: "flows beyond the pump", file: "pump.csv", text: "flow [l/s],head [m]\n0,1\n0.1,0.9\n0.2,0.5\n",
+			want: []string{`readings.csv:3:4: field "value": value "9.46 l/s": flow above the 0.275 l/s the pump can give at its highest speed`}},
 		{name: "water below its table", file: "site.csv", edit: func(s string) string {
 			return strings.Replace(s, "temperature [degC],70", "temperature [degC],-20", 1)
 		}, want: []string{`site.csv:5:2: field "temperature": value "-20": outside the fluid property tables (want water: temperature 253.15 K`},

@@ -296,7 +296,7 @@ var edgeCases = []edgeCase{
 		for i := range s.Pump {
 			s.Pump[i].Head = 0
 		}
-	}, want: []string{`pump.csv:5: field "head": shut-off head 0 m of the fit is not positive`}},
+	}, want: []string{`pump.csv:5:2: field "head": shut-off head 0 m of the fit is not positive`}},
 	{name: "measured differential of 0 Pa", code: ExitData, edit: func(t *testing.T, s *site.Site) {
 		s.Boundary = site.Boundary{Kind: site.MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: math.NaN()}
 		s.Pump = nil

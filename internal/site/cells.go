@@ -440,6 +440,10 @@ func bind(t *table, sc *schema, probs *Problems) *sheetReader {
 				Msg: "column is missing", Want: fmt.Sprintf("a column named %q", c.name)})
 		}
 	}
+	t.columns = make(map[string]int, len(sr.idx))
+	for name, i := range sr.idx {
+		t.columns[name] = i + 1
+	}
 	return sr
 }
 

@@ -323,6 +323,14 @@ func (in *input) build(ctx context.Context) *Site {
 		return s // finish returns ctx's error
 	}
 	checkSite(s, keys, in, brRefs)
+	for _, t := range in.tables {
+		if t != nil && t.columns != nil {
+			if s.Source.Columns == nil {
+				s.Source.Columns = map[string]map[string]int{}
+			}
+			s.Source.Columns[t.file] = t.columns
+		}
+	}
 	return s
 }
 

@@ -64,6 +64,20 @@ type Site struct {
 type Source struct {
 	Path   string // folder or workbook as given
 	Format string // "csv" or "xlsx"
+	// Columns gives, per sheet (named as in problems), the column of each
+	// field found in its header, from 1: problems found later, by the
+	// model, are placed at their cell with Locate.
+	Columns map[string]map[string]int
+}
+
+// Locate gives each problem that names a file, a line and a field but no
+// column the column of that field in the sheet it was read from.
+func (s *Site) Locate(probs Problems) {
+	for _, p := range probs {
+		if p.Column == 0 && p.Line > 0 && p.Field != "" {
+			p.Column = s.Source.Columns[p.File][p.Field]
+		}
+	}
 }
 
 // Arrangement is how the main supply and return headers are laid out.

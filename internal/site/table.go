@@ -25,6 +25,9 @@ type table struct {
 	header       []string
 	rows         []row
 	decimalComma bool // numbers may use a decimal comma (semicolon or tab separated files)
+	// columns is where each field of the sheet's schema is, from 1, once
+	// the header is bound.
+	columns map[string]int
 	// commaLine and pointLine are the first lines whose numbers use a
 	// decimal comma and a decimal point, in a file that may use either.
 	commaLine, pointLine int
