@@ -524,7 +524,9 @@ func ratioChart(id string, in *Input) chart {
 					MarkLineStyle: opts.MarkLineStyle{
 						Symbol:    []string{"none", "none"},
 						LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
-						Label:     &opts.Label{Show: opts.Bool(true), Position: "insideEndTop", Formatter: "design", Color: colBlack},
+						// No label: at the line's end it sat on the last branch's
+						// bar; the section's intro names the dotted line.
+						Label: &opts.Label{Show: opts.Bool(false)},
 					},
 				}
 			}))...)

@@ -224,7 +224,7 @@ func build(in *Input) (*pageData, error) {
 		zoom(&f)
 		r := section{
 			ID: "resistance", Title: "Fitted resistance",
-			Intro:  "Each branch’s fitted fixed resistance divided by its design resistance, with its 95 % interval. 1 means as designed; well above 1 suggests a blockage or a closed valve, well below 1 a missing fitting or a bypass.",
+			Intro:  "Each branch’s fitted fixed resistance divided by its design resistance, with its 95 % interval. 1 (the dotted line) means as designed; well above 1 suggests a blockage or a closed valve, well below 1 a missing fitting or a bypass.",
 			Charts: []chart{ratioChart("fs-ratio", in)},
 		}
 		zoom(&r)
