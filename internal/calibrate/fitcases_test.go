@@ -73,6 +73,11 @@ func TestFitSaturatedControlledPump(t *testing.T) {
 		if pd.Value > 0.75*s.Boundary.SetPoint {
 			t.Fatalf("seed %d: the simulated pump gives %.0f Pa of its %.0f Pa set point: not saturated", seed, pd.Value, s.Boundary.SetPoint)
 		}
+		// The matrix-free path predicts the speed reading too (its
+		// solutions keep no link drops).
+		if _, err := Fit(ctx, m, &FitOptions{MatrixFreeAbove: 1}); err != nil {
+			t.Fatalf("seed %d, matrix-free: %v", seed, err)
+		}
 		cal, err := Fit(ctx, m, nil)
 		if err != nil {
 			t.Fatal(err)

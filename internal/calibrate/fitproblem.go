@@ -520,11 +520,18 @@ func (p *problem) speed(sn *stateNet) (v, dq, ddp, dk float64) {
 		return math.NaN(), 0, 0, 0
 	}
 	q := sn.sol.Flow[l]
-	dp := -sn.sol.Drop[l]
 	k := sn.params.PumpHead
-	if c, ok := m.Source(sn.params, sn.st).Pump.(hydraulics.ControlledPump); ok && c.Saturated(q, m.Fluid) {
+	c, ok := m.Source(sn.params, sn.st).Pump.(hydraulics.ControlledPump)
+	if !ok {
+		return math.NaN(), 0, 0, 0
+	}
+	if c.Saturated(q, m.Fluid) {
 		return m.MaxSpeed(), 0, 0, 0
 	}
+	// The pump's rise from its element: a matrix-free solution keeps no
+	// link drops.
+	d, _ := c.Drop(q, m.Fluid)
+	dp := -d
 	at := func(q, dp, k float64) float64 {
 		return hydraulics.SpeedFor(*m.ScaledPump(k), q, dp, m.Fluid)
 	}
