@@ -203,10 +203,23 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 			}
 			if p := normalCDF((-lnThr - x) / b.LogSD); p >= t.Confidence || down >= t.Confidence {
 				p = max(p, down)
-				out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
-					Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
-					Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
-					Action:   "check for an open bypass or a terminal that differs from the schedule"})
+				if b.HasValve && (b.Valve == nil || b.Valve.Hypothesis == "follows its table") {
+					// Where the readings cannot tell the valve from the
+					// rest of the branch, a branch passing far more than
+					// designed most often has its valve more open than its
+					// handwheel says: a plug loose from its spindle sits in
+					// the upper part of its travel, a handwheel slips off
+					// its mark (common practice, no source).
+					out = append(out, Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: p,
+						Message:  "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, or else an open bypass",
+						Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f) with the valve taken at its recorded setting; P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
+						Action:   "move the handwheel a turn and read the flow again: it must change; then check for an open bypass"})
+				} else {
+					out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
+						Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
+						Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
+						Action:   "check for an open bypass or a terminal that differs from the schedule"})
+				}
 			}
 		}
 		if v := b.Valve; v != nil {
