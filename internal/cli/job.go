@@ -118,7 +118,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 	plan.DesignOnly = j.Cal == nil
 	for _, id := range unconfirmed {
-		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.1f times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
+		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
 	}
 	j.Plan = plan
 	after, err := m.Solve(ctx, j.Params, plan.State())
@@ -209,11 +209,22 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 	var held []string
 	for k := range j.Findings {
 		f := &j.Findings[k]
-		if f.Code != diagnose.CannotReachDesign || indep[f.Branch] {
+		if indep[f.Branch] {
 			continue
 		}
 		i, ok := m.Index(f.Branch)
-		if !ok || !(j.Params.Resistance[i] >= holdRatio) {
+		if !ok || slices.Contains(held, f.Branch) {
+			continue
+		}
+		switch {
+		case f.Code == diagnose.CannotReachDesign && j.Params.Resistance[i] >= holdRatio:
+		case f.Code == diagnose.ValveMisSet && j.Cal.Branches[i].Valve.Hypothesis != calibrate.SetElsewhere && j.Params.Resistance[i] < 1:
+			// Found passing far more than designed behind a valve the
+			// readings cannot separate: a plug off its spindle, a
+			// handwheel off its mark or a meter reading low. Under the
+			// first two the valve's table no longer applies and no setting
+			// computed from it is right; under the third the design is.
+		default:
 			continue
 		}
 		j.Params.Resistance[i] = 1
