@@ -1,14 +1,14 @@
 package cli
 
 import (
-	"fmt"
 	"io"
 	"os"
 	"strings"
-	"unicode"
 	"unicode/utf8"
 
 	"golang.org/x/term"
+
+	"flowset/internal/site"
 )
 
 func isTerminal(w io.Writer) bool {
@@ -16,46 +16,12 @@ func isTerminal(w io.Writer) bool {
 	return ok && term.IsTerminal(int(f.Fd()))
 }
 
-// unsafeRune reports whether r must not reach a terminal or a text output
-// as itself: a control character (which can move the cursor, recolour or
-// retitle a terminal, or start a forged line) or an invisible formatting or
-// direction-changing character (which can make text look other than it is,
-// Unicode Technical Report #36 "Unicode Security Considerations").
-func unsafeRune(r rune) bool {
-	return unicode.IsControl(r) || unicode.Is(unicode.Cf, r) || r == utf8.RuneError ||
-		r == '\u2028' || r == '\u2029'
-}
+// unsafeRune is site.UnsafeRune.
+func unsafeRune(r rune) bool { return site.UnsafeRune(r) }
 
-// termSafe returns s with every unsafe rune (see unsafeRune), newlines and
-// tabs included, written as a Go escape (\n, \x1b, \u202e), so a path or a
-// name from the user prints as one visible line that shows what it holds.
-func termSafe(s string) string {
-	if strings.IndexFunc(s, unsafeRune) < 0 && utf8.ValidString(s) {
-		return s
-	}
-	var b strings.Builder
-	for i, w := 0, 0; i < len(s); i += w {
-		r, n := utf8.DecodeRuneInString(s[i:])
-		w = n
-		switch {
-		case r == utf8.RuneError && n == 1:
-			fmt.Fprintf(&b, `\x%02x`, s[i])
-		case r == '\n':
-			b.WriteString(`\n`)
-		case r == '\r':
-			b.WriteString(`\r`)
-		case r == '\t':
-			b.WriteString(`\t`)
-		case r < 0x80 && unsafeRune(r):
-			fmt.Fprintf(&b, `\x%02x`, r)
-		case unsafeRune(r):
-			fmt.Fprintf(&b, `\u%04x`, r)
-		default:
-			b.WriteRune(r)
-		}
-	}
-	return b.String()
-}
+// termSafe is site.Printable: a path or a name from the user prints as one
+// visible line that shows what it holds.
+func termSafe(s string) string { return site.Printable(s) }
 
 // safeWriter is the last guard before the standard streams: every control
 // character other than newline and tab, and every invisible or

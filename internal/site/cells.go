@@ -533,7 +533,7 @@ func (sr *sheetReader) text(r row, name string, ok *bool) string {
 		// A note is free text: a line break or an invisible character in
 		// it is kept out of the outputs, not refused.
 		return strings.Map(func(r rune) rune {
-			if unsafeRune(r) {
+			if UnsafeRune(r) {
 				return ' '
 			}
 			return r

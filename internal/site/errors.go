@@ -64,7 +64,7 @@ const maxValueShown = 60
 // leaving out the parts that are empty.
 func (e *Error) Error() string {
 	var b strings.Builder
-	b.WriteString(printable(e.File))
+	b.WriteString(Printable(e.File))
 	if e.Line > 0 {
 		fmt.Fprintf(&b, ":%d", e.Line)
 		if e.Column > 0 {
@@ -167,21 +167,22 @@ func (p Problems) Sort() {
 	})
 }
 
-// unsafeRune reports whether r must not reach a terminal or an output as
+// UnsafeRune reports whether r must not reach a terminal or an output as
 // itself: a control character (it can move the cursor, recolour a terminal
 // or start a forged line), an invisible formatting or direction-changing
 // character (it can make text look other than it is; Unicode Technical
 // Report #36, "Unicode Security Considerations"), or a line or paragraph
 // separator.
-func unsafeRune(r rune) bool {
+func UnsafeRune(r rune) bool {
 	return unicode.IsControl(r) || unicode.Is(unicode.Cf, r) || r == '\u2028' || r == '\u2029' || r == utf8.RuneError
 }
 
-// printable returns s with each unsafe rune (see unsafeRune) written as a
-// Go escape (\n, \x1b, \u202e), so that a file path or name shows on one
-// line what it really holds.
-func printable(s string) string {
-	if strings.IndexFunc(s, unsafeRune) < 0 {
+// Printable returns s with each unsafe rune (see UnsafeRune), newlines and
+// tabs included, written as a Go escape (\n, \x1b, \u202e), so that a file
+// path or name shows on one line what it really holds. Everything printed
+// or written that comes from a path or an id passes through it.
+func Printable(s string) string {
+	if strings.IndexFunc(s, UnsafeRune) < 0 {
 		return s
 	}
 	var b strings.Builder
@@ -191,7 +192,7 @@ func printable(s string) string {
 		switch {
 		case r == utf8.RuneError && n == 1:
 			fmt.Fprintf(&b, `\x%02x`, s[i])
-		case !unsafeRune(r):
+		case !UnsafeRune(r):
 			b.WriteRune(r)
 		case r < 0x80:
 			q := strconv.QuoteRune(r)

@@ -206,13 +206,13 @@ func Load(ctx context.Context, p string) (*Site, Problems, error) {
 		if abs, err := filepath.Abs(p); err == nil {
 			name = filepath.Base(abs)
 		}
-		return readDir(ctx, os.DirFS(p), ".", func(f string) string { return filepath.Join(p, f) }, Source{Path: p, Format: "csv"}, printable(name))
+		return readDir(ctx, os.DirFS(p), ".", func(f string) string { return filepath.Join(p, f) }, Source{Path: p, Format: "csv"}, Printable(name))
 	}
 	if !strings.EqualFold(filepath.Ext(p), ".xlsx") {
-		return nil, nil, fmt.Errorf("load site %s: %w", printable(p), ErrNotSite)
+		return nil, nil, fmt.Errorf("load site %s: %w", Printable(p), ErrNotSite)
 	}
 	if !fi.Mode().IsRegular() {
-		return nil, nil, fmt.Errorf("load site %s: not a regular file: %w", printable(p), ErrNotSite)
+		return nil, nil, fmt.Errorf("load site %s: not a regular file: %w", Printable(p), ErrNotSite)
 	}
 	if fi.Size() > MaxWorkbookBytes {
 		probs := Problems{{File: p, Err: ErrRange, Msg: "workbook is larger than " + mib(MaxWorkbookBytes), Want: "a workbook of at most " + mib(MaxWorkbookBytes)}}

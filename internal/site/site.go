@@ -310,9 +310,9 @@ type Pos struct {
 // String returns "file:line", or the file alone when the line is 0.
 func (p Pos) String() string {
 	if p.Line == 0 {
-		return printable(p.File)
+		return Printable(p.File)
 	}
-	return fmt.Sprintf("%s:%d", printable(p.File), p.Line)
+	return fmt.Sprintf("%s:%d", Printable(p.File), p.Line)
 }
 
 // The places a reading can name besides a branch.

@@ -62,7 +62,7 @@ func ReadWorkbookContext(ctx context.Context, r io.ReaderAt, size int64, name st
 	for _, tab := range f.GetSheetList() {
 		key := strings.ToLower(strings.TrimSpace(tab))
 		if prev, dup := tabs[key]; dup {
-			in.probs.add(&Error{File: name + "[" + printable(tab) + "]", Err: ErrDuplicate, Msg: fmt.Sprintf("a second tab for the sheet of tab %q", prev),
+			in.probs.add(&Error{File: name + "[" + Printable(tab) + "]", Err: ErrDuplicate, Msg: fmt.Sprintf("a second tab for the sheet of tab %q", prev),
 				Want: "one tab per sheet: remove or rename one of them"})
 			continue
 		}
@@ -111,7 +111,7 @@ func checkParts(r io.ReaderAt, size int64, name string) *Error {
 	var total uint64
 	for _, zf := range zr.File {
 		if zf.UncompressedSize64 > MaxPartBytes {
-			return &Error{File: name + "[" + printable(zf.Name) + "]", Err: ErrRange,
+			return &Error{File: name + "[" + Printable(zf.Name) + "]", Err: ErrRange,
 				Msg:  fmt.Sprintf("workbook part unpacks to %d MiB", zf.UncompressedSize64>>20),
 				Want: "parts of at most " + mib(MaxPartBytes) + " unpacked"}
 		}
