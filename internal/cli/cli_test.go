@@ -259,14 +259,7 @@ func TestBadSiteExitsOne(t *testing.T) {
 	}
 	// A blank template passes check (see TestBlankTemplatePassesCheck);
 	// a branch with nothing in it does not.
-	f, err := os.OpenFile(filepath.Join(dir, "branches.csv"), os.O_APPEND|os.O_WRONLY, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := f.WriteString("A-1,,0.5\n"); err != nil {
-		t.Fatal(err)
-	}
-	f.Close()
+	appendLine(t, filepath.Join(dir, "branches.csv"), "A-1,,0.5")
 	code, out, errs := run(t, "check", dir)
 	if code != ExitData || !strings.Contains(out, "branches.csv:") || !strings.Contains(errs, "error(s)") {
 		t.Fatalf("check of a site with an empty branch: exit %d, stderr %q; want exit 1 naming branches.csv", code, errs)
@@ -421,5 +414,21 @@ func TestRunSpeedReading(t *testing.T) {
 	}
 	if !found {
 		t.Errorf("no speed row in readings.csv:\n%s", data)
+	}
+}
+
+// appendLine adds one line to the end of a sheet.
+func appendLine(tb testing.TB, path, line string) {
+	tb.Helper()
+	f, err := os.OpenFile(path, os.O_APPEND|os.O_WRONLY, 0)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if _, err := f.WriteString(line + "\n"); err != nil {
+		f.Close()
+		tb.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
+		tb.Fatal(err)
 	}
 }

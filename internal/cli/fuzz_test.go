@@ -25,18 +25,7 @@ var fuzzSheets = []string{"site.csv", "branches.csv", "valves.csv", "readings.cs
 //
 //	go test ./internal/cli -run '^$' -fuzz FuzzRun -fuzztime 3m -fuzzminimizetime 5s
 func FuzzRun(f *testing.F) {
-	base := map[string][]byte{}
-	err := fs.WalkDir(surveys.FS, "plantroom", func(p string, d fs.DirEntry, err error) error {
-		if err != nil || d.IsDir() {
-			return err
-		}
-		b, err := fs.ReadFile(surveys.FS, p)
-		base[path.Base(p)] = b
-		return err
-	})
-	if err != nil {
-		f.Fatal(err)
-	}
+	base := plantroomSheets(f)
 	for i, name := range fuzzSheets {
 		if b, ok := base[name]; ok {
 			f.Add(uint8(i), b)
@@ -96,4 +85,23 @@ func FuzzRun(f *testing.F) {
 			t.Errorf("run with %s fuzzed: non-finite number: %s", name, b)
 		}
 	})
+}
+
+// plantroomSheets returns the built-in plantroom site's sheets by file name,
+// the seed of the whole-job fuzz targets.
+func plantroomSheets(tb testing.TB) map[string][]byte {
+	tb.Helper()
+	base := map[string][]byte{}
+	err := fs.WalkDir(surveys.FS, "plantroom", func(p string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		b, err := fs.ReadFile(surveys.FS, p)
+		base[path.Base(p)] = b
+		return err
+	})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return base
 }

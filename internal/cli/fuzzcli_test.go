@@ -5,14 +5,12 @@ import (
 	"context"
 	"io/fs"
 	"os"
-	"path"
 	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
 	"time"
 
-	"flowset/surveys"
 )
 
 // fuzzCommands are the commands FuzzCommandLine drives.
@@ -36,18 +34,7 @@ var fuzzCommands = []string{"check", "curves", "fit", "plan", "run", "template",
 //
 //	go test ./internal/cli -run '^$' -fuzz FuzzCommandLine -fuzztime 5m -fuzzminimizetime 5s
 func FuzzCommandLine(f *testing.F) {
-	base := map[string][]byte{}
-	err := fs.WalkDir(surveys.FS, "plantroom", func(p string, d fs.DirEntry, err error) error {
-		if err != nil || d.IsDir() {
-			return err
-		}
-		b, err := fs.ReadFile(surveys.FS, p)
-		base[path.Base(p)] = b
-		return err
-	})
-	if err != nil {
-		f.Fatal(err)
-	}
+	base := plantroomSheets(f)
 	f.Add(uint8(4), "", uint8(0), "out", uint8(1), base["branches.csv"])
 	f.Add(uint8(4), "--force", uint8(1), "out", uint8(1), base["branches.csv"])
 	f.Add(uint8(4), "--force", uint8(2), "", uint8(3), base["readings.csv"])

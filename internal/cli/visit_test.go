@@ -323,14 +323,7 @@ func TestBlankTemplatePassesCheck(t *testing.T) {
 func TestSiteUnitsKey(t *testing.T) {
 	dir := t.TempDir()
 	copySite(t, "demo", dir)
-	f, err := os.OpenFile(filepath.Join(dir, "site.csv"), os.O_APPEND|os.O_WRONLY, 0)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if _, err := f.WriteString("units,us\n"); err != nil {
-		t.Fatal(err)
-	}
-	f.Close()
+	appendLine(t, filepath.Join(dir, "site.csv"), "units,us")
 	_, stdout, stderr := run(t, "plan", dir)
 	// Readings are quoted as read; the results are in the display units.
 	if !strings.Contains(stdout, "Flow (gpm)") || strings.Contains(stdout, "Flow (l/s)") {
