@@ -10,7 +10,6 @@ import (
 	"strings"
 	"testing"
 	"time"
-
 )
 
 // fuzzCommands are the commands FuzzCommandLine drives.
