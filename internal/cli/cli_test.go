@@ -432,3 +432,40 @@ func appendLine(tb testing.TB, path, line string) {
 		tb.Fatal(err)
 	}
 }
+
+// TestRunFluidAsMeasured runs the whole job on a site whose fluid is given
+// by its measured density and viscosity: check passes, and the report names
+// the fluid with the values it was modelled with.
+func TestRunFluidAsMeasured(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.CopyFS(dir, os.DirFS(filepath.Join("..", "site", "testdata", "small"))); err != nil {
+		t.Fatal(err)
+	}
+	b, err := os.ReadFile(filepath.Join(dir, "site.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(b), "fluid,propylene-glycol,\nglycol [%],30,\n",
+		"fluid,other,\ndensity [kg/m3],1031.5,lab sample\nkinematic viscosity [cSt],4.2,lab sample\n", 1)
+	if text == string(b) {
+		t.Fatal("fixture's fluid lines not found")
+	}
+	if err := os.WriteFile(filepath.Join(dir, "site.csv"), []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := run(t, "check", dir); code != ExitOK {
+		t.Fatalf("check: exit %d\n%s%s", code, out, errs)
+	}
+	out := filepath.Join(t.TempDir(), "out")
+	if code, _, errs := run(t, "run", dir, "--out", out); code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	}
+	html, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	// 4.2 mm2/s times 1031.5 kg/m3 is 4.332 mPa s.
+	if want := "a fluid not in the tables (as measured: 1032 kg/m3, 4.332 mPa s)"; !strings.Contains(string(html), want) {
+		t.Errorf("report does not name the fluid as %q", want)
+	}
+}

@@ -8,6 +8,7 @@ import (
 
 	"flowset/internal/balance"
 	"flowset/internal/diagnose"
+	"flowset/internal/fluid"
 	"flowset/internal/hydraulics"
 	"flowset/internal/plant"
 	"flowset/internal/report"
@@ -25,10 +26,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	u := j.opts.Units
 	toFlow, toDiff := u.toFlow(1), u.toDiff(1)
 	xy := func(ps []plant.Point) []report.XY { return xyIn(ps, toFlow, toDiff) }
-	fluidText := s.Fluid
-	if s.Fluid != "water" {
-		fluidText = fmt.Sprintf("%s %g %% by volume", strings.ReplaceAll(s.Fluid, "-", " "), s.GlycolPercent)
-	}
+	fluidText := fluidName(s, m.Fluid)
 	in := report.Input{
 		Site: s.Name, Fluid: fluidText, Temperature: u.temperature(s.Temperature),
 		Generated: generated, Measured: measuredSentence(s),
@@ -306,8 +304,30 @@ func round0(x float64) float64 { return math.Round(x) + 0 }
 // handling where the circuit holds glycol.
 func cautions(s *site.Site) []string {
 	out := report.DefaultCautions()
-	if s.Fluid != "water" {
+	switch s.Fluid {
+	case "water":
+	case site.OtherFluid:
+		out = append(out, "The circuit holds a fluid other than water: wear gloves and eye protection at test points, catch what escapes rather than letting it reach a drain, and follow its safety data sheet.")
+	default:
 		out = append(out, "The circuit holds "+strings.ReplaceAll(s.Fluid, "-", " ")+": wear gloves and eye protection at test points, catch what escapes rather than letting it reach a drain, and follow its safety data sheet.")
 	}
 	return out
+}
+
+// fluidName names the circulating fluid for the report, with its
+// properties where they were given as measured rather than taken from the
+// tables.
+func fluidName(s *site.Site, st fluid.State) string {
+	name := s.Fluid
+	switch s.Fluid {
+	case "water":
+	case site.OtherFluid:
+		name = "a fluid not in the tables"
+	default:
+		name = fmt.Sprintf("%s %g %% by volume", strings.ReplaceAll(s.Fluid, "-", " "), s.GlycolPercent)
+	}
+	if s.Density > 0 || s.Viscosity > 0 || s.KinematicViscosity > 0 {
+		name += fmt.Sprintf(" (as measured: %.4g kg/m3, %.4g mPa s)", st.Density, st.Viscosity*1e3)
+	}
+	return name
 }

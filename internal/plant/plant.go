@@ -185,18 +185,38 @@ func New(s *site.Site) (*Model, error) {
 	return m, nil
 }
 
+// fluidState gives the fluid's properties at the survey temperature: from
+// the property tables, with any property given as measured in the site
+// sheet in place of the table's. A density and a viscosity given together
+// need no table (a fluid not in them, or one outside their range).
 func fluidState(s *site.Site) (fluid.State, error) {
-	k, err := fluid.ParseKind(s.Fluid)
-	if err != nil {
-		return fluid.State{}, fmt.Errorf("fluid: %w", err)
+	st := fluid.State{Temperature: s.Temperature}
+	if !(s.Density > 0 && (s.Viscosity > 0 || s.KinematicViscosity > 0)) {
+		if s.Fluid == site.OtherFluid {
+			return fluid.State{}, fmt.Errorf("fluid other needs its density and viscosity in the site sheet: %w", ErrModel)
+		}
+		k, err := fluid.ParseKind(s.Fluid)
+		if err != nil {
+			return fluid.State{}, fmt.Errorf("fluid: %w", err)
+		}
+		spec := fluid.Spec{Kind: k, Percent: s.GlycolPercent}
+		if k == fluid.PlainWater {
+			spec.Percent = 0
+		}
+		if st, err = spec.At(s.Temperature); err != nil {
+			return fluid.State{}, fmt.Errorf("fluid %s at %.1f degC: %w", spec, s.Temperature-273.15, err)
+		}
 	}
-	spec := fluid.Spec{Kind: k, Percent: s.GlycolPercent}
-	if k == fluid.PlainWater {
-		spec.Percent = 0
+	if s.Density > 0 {
+		st.Density = s.Density
 	}
-	st, err := spec.At(s.Temperature)
-	if err != nil {
-		return fluid.State{}, fmt.Errorf("fluid %s at %.1f degC: %w", spec, s.Temperature-273.15, err)
+	switch {
+	case s.Viscosity > 0:
+		st.Viscosity = s.Viscosity
+	case s.KinematicViscosity > 0:
+		// A kinematic viscosity is measured on the sample itself, so it
+		// goes with the density in force (as measured when given).
+		st.Viscosity = s.KinematicViscosity * st.Density
 	}
 	return st, nil
 }

@@ -532,7 +532,7 @@ var badCases = []badCase{
 	{name: "site unknown and duplicate keys", files: map[string]string{"site.csv": "key,value\nname,Annex\ncolour,blue\ntemprature [degC],12\nname,Annex 2\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
+			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, density, viscosity, kinematic viscosity, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
 			"site.csv:4:1: warning: field \"temprature\": unknown key, ignored (want \"temperature\")",
 			"site.csv:5:1: field \"name\": key given twice (want one \"name\" line; the first is line 2)",
 		}},
@@ -554,7 +554,7 @@ var badCases = []badCase{
 	{name: "unknown fluid", files: map[string]string{"site.csv": "fluid,brine\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"site.csv:1:2: field \"fluid\": value \"brine\": unknown word (want one of: water, ethylene-glycol, propylene-glycol)",
+			"site.csv:1:2: field \"fluid\": value \"brine\": unknown word (want one of: water, ethylene-glycol, propylene-glycol, other)",
 		}},
 	{name: "frozen water", files: map[string]string{"site.csv": "temperature [degC],-5\n"},
 		cause: ErrRange,
@@ -571,6 +571,38 @@ var badCases = []badCase{
 		want: []string{
 			"site.csv:3:2: field \"temperature\": value \"-20\": outside the fluid property tables (want propylene-glycol 20 % by volume",
 		}, prefix: true},
+	{name: "fluid as measured", files: map[string]string{"site.csv": "fluid,other\ntemperature [degC],30\ndensity [kg/m3],1050\nkinematic viscosity [cSt],2.5\n"}},
+	{name: "water as measured beyond the tables", files: map[string]string{"site.csv": "temperature [degC],200\ndensity [g/cm3],0.8647\nviscosity [cP],0.1344\n"}},
+	{name: "negative density", files: map[string]string{"site.csv": "fluid,other\ndensity [kg/m3],-998\nviscosity [mPa s],1.0\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:2:2: field \"density\": value \"-998\": must be positive (want a density above 0)",
+		}},
+	{name: "density in lb/ft3 too small", files: map[string]string{"site.csv": "density [lb/ft3],6.2\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"density\": value \"6.2\": too small (want a density from 24.9712 lb/ft3 to 156.07 lb/ft3)",
+		}},
+	{name: "other fluid without viscosity", files: map[string]string{"site.csv": "fluid,other\ndensity,1050\n"},
+		cause: ErrMissing,
+		want: []string{
+			"site.csv:1:2: field \"viscosity\": fluid other needs its density and viscosity (want a viscosity [mPa s] or kinematic viscosity [mm2/s] line)",
+		}},
+	{name: "other fluid without density", files: map[string]string{"site.csv": "fluid,other\nviscosity [mPa s],3\n"},
+		cause: ErrMissing,
+		want: []string{
+			"site.csv:1:2: field \"density\": fluid other needs its density and viscosity (want a density [kg/m3] line)",
+		}},
+	{name: "both viscosities", files: map[string]string{"site.csv": "density,1050\nviscosity [mPa s],3\nkinematic viscosity [mm2/s],2.9\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"site.csv:3:2: field \"kinematic viscosity\": value \"2.9\": viscosity given twice (want either viscosity or kinematic viscosity; viscosity is line 2)",
+		}},
+	{name: "viscosity in a pressure unit", files: map[string]string{"site.csv": "viscosity [kPa],3\n"},
+		cause: ErrUnit,
+		want: []string{
+			"site.csv:1:1: field \"viscosity\": value \"kPa\": unit \"kPa\" is a pressure, not a dynamic viscosity (want a dynamic viscosity unit: mPa s, cP or Pa s)",
+		}},
 	{name: "pump boundary without pump", files: map[string]string{"site.csv": "boundary,pump\n"},
 		cause: ErrMissing,
 		want: []string{

@@ -33,12 +33,15 @@ func (p *Problems) add(e *Error) { *p = append(*p, e) }
 
 // unitExamples names common units of each kind for messages.
 var unitExamples = map[units.Kind]string{
-	units.Flow:          "l/s, m3/h, l/h or gpm",
-	units.Pressure:      "kPa, Pa, bar, mbar, mH2O or psi",
-	units.Length:        "m, mm, ft or in",
-	units.Temperature:   "degC, degF or K",
-	units.Head:          "m or ft of the pumped fluid",
-	units.Dimensionless: "% or none",
+	units.Flow:               "l/s, m3/h, l/h or gpm",
+	units.Pressure:           "kPa, Pa, bar, mbar, mH2O or psi",
+	units.Length:             "m, mm, ft or in",
+	units.Temperature:        "degC, degF or K",
+	units.Head:               "m or ft of the pumped fluid",
+	units.Dimensionless:      "% or none",
+	units.Density:            "kg/m3, g/cm3 or lb/ft3",
+	units.Viscosity:          "mPa s, cP or Pa s",
+	units.KinematicViscosity: "mm2/s, cSt, m2/s or ft2/s",
 }
 
 func unitWant(k units.Kind) string {

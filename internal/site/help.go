@@ -73,7 +73,22 @@ var sheetIntro = map[string]string{
 	"site": `The site sheet holds one setting per line as key and value. A unit goes in
 brackets after the key, e.g. "temperature [degF]". Every key is optional; a
 missing key or a blank value takes the default below. The sheet itself is
-optional. A first line "key,value" is allowed and skipped.`,
+optional. A first line "key,value" is allowed and skipped.
+
+Fluid as measured: the density and viscosity come from the property tables
+for water and the glycols at the temperature given. For a fluid not in the
+tables (fluid other), or a lab sample of the circuit's own fluid, give them
+instead: a density and either a (dynamic) viscosity or a kinematic viscosity,
+each with its unit. What is given replaces the table's value; fluid other
+needs a density and a viscosity. For example:
+  fluid,other
+  temperature [degC],30
+  density [kg/m3],1052
+  kinematic viscosity [cSt],2.9
+or, for water whose sample read a little denser than the tables say:
+  fluid,water
+  temperature [degF],45
+  density [lb/ft3],62.5`,
 	"branches": `The branches sheet lists every parallel branch, one per row: its design
 flow, its pipe, its terminal, its regulating valve and the header segment
 between the previous take-off and its own. Rows go in order along the

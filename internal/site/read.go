@@ -260,17 +260,20 @@ func (in *input) finish(ctx context.Context) (*Site, Problems, error) {
 // build turns the tables into a Site and checks references between sheets.
 func (in *input) build(ctx context.Context) *Site {
 	s := &Site{
-		Name:            in.name,
-		Fluid:           defaultFluid,
-		Temperature:     defaultTemperature,
-		Hours:           defaultHours,
-		EnergyPrice:     nan,
-		PumpEfficiency:  defaultPumpEfficiency,
-		MotorEfficiency: defaultMotorEfficiency,
-		ToleranceLow:    defaultToleranceLow,
-		ToleranceHigh:   defaultToleranceHigh,
-		Boundary:        Boundary{Kind: MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: nan, Sensor: defaultSensor},
-		Source:          in.src,
+		Name:               in.name,
+		Fluid:              defaultFluid,
+		Temperature:        defaultTemperature,
+		Density:            nan,
+		Viscosity:          nan,
+		KinematicViscosity: nan,
+		Hours:              defaultHours,
+		EnergyPrice:        nan,
+		PumpEfficiency:     defaultPumpEfficiency,
+		MotorEfficiency:    defaultMotorEfficiency,
+		ToleranceLow:       defaultToleranceLow,
+		ToleranceHigh:      defaultToleranceHigh,
+		Boundary:           Boundary{Kind: MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: nan, Sensor: defaultSensor},
+		Source:             in.src,
 	}
 	if in.present[pumpColumns.name] {
 		s.Boundary.Kind = PumpCurve
@@ -420,6 +423,9 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 		}
 	}
 	num("temperature", &s.Temperature)
+	num("density", &s.Density)
+	num("viscosity", &s.Viscosity)
+	num("kinematic viscosity", &s.KinematicViscosity)
 	num("speed", &s.Boundary.Speed)
 	num("max speed", &s.Boundary.MaxSpeed)
 	num("set point", &s.Boundary.SetPoint)
@@ -1469,7 +1475,12 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 		return cellRef{file: in.label(siteKeys.name), field: key}
 	}
 	_, glycolGiven := keys["glycol"]
+	measured := checkMeasured(s, keys, at, p)
 	switch {
+	case s.Fluid == OtherFluid:
+		if s.GlycolPercent > 0 {
+			p.add(at("glycol").problem(SeverityError, ErrRange, "fluid other takes no glycol", "0, or fluid ethylene-glycol or propylene-glycol"))
+		}
 	case s.Fluid == "water" && s.GlycolPercent > 0:
 		p.add(at("glycol").problem(SeverityError, ErrRange, "water takes no glycol", "0, or fluid ethylene-glycol or propylene-glycol"))
 	case s.Fluid != "water" && !glycolGiven:
@@ -1479,7 +1490,7 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 		p.add(ref.problem(SeverityError, ErrMissing, "glycol concentration is missing", "a glycol [%] line, e.g. 30"))
 	case s.Fluid != "water" && s.GlycolPercent == 0:
 		p.add(at("glycol").problem(SeverityError, ErrRange, "must be positive for a glycol", "a concentration above 0 %"))
-	default:
+	case !measured:
 		checkFluid(s, at, p)
 	}
 	b := &s.Boundary
@@ -1519,6 +1530,39 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 			}
 		}
 	}
+}
+
+// checkMeasured checks the fluid properties given as measured and reports
+// whether they are complete (a density and one viscosity), so that the
+// property tables are not needed.
+func checkMeasured(s *Site, keys map[string]cellRef, at func(string) cellRef, p *Problems) bool {
+	if s.Viscosity > 0 && s.KinematicViscosity > 0 {
+		p.add(at("kinematic viscosity").problem(SeverityError, ErrDuplicate, "viscosity given twice",
+			fmt.Sprintf("either viscosity or kinematic viscosity; viscosity is line %d", keys["viscosity"].line)))
+	}
+	complete := s.Density > 0 && (s.Viscosity > 0 || s.KinematicViscosity > 0)
+	// blank reports a key not given, or given with a blank value; a value
+	// that was refused has its own problem already.
+	blank := func(key string) bool {
+		r, ok := keys[key]
+		return !ok || strings.TrimSpace(r.value) == ""
+	}
+	if s.Fluid == OtherFluid && !complete {
+		missing, want := "", ""
+		switch {
+		case !(s.Density > 0) && blank("density"):
+			missing, want = "density", "a density [kg/m3] line"
+		case !(s.Viscosity > 0 || s.KinematicViscosity > 0) && blank("viscosity") && blank("kinematic viscosity"):
+			missing, want = "viscosity", "a viscosity [mPa s] or kinematic viscosity [mm2/s] line"
+		default:
+			return false
+		}
+		ref := at("fluid")
+		ref.field = missing
+		ref.value = ""
+		p.add(ref.problem(SeverityError, ErrMissing, "fluid other needs its density and viscosity", want))
+	}
+	return complete
 }
 
 // checkFluid asks the fluid package whether its property tables cover the

@@ -73,15 +73,31 @@ const (
 	minMagnitude = 1e-15
 	boundSlack   = 1e-9
 	maxTemp      = 473.15
+	// A liquid in a hydronic or process circuit: light oils and
+	// hydrocarbons (about 600 kg/m3) to brines (about 1300 kg/m3), with
+	// room either side; viscosities from hot water (0.14 mPa s at 150 degC)
+	// to a heavy oil. Common practice, no source.
+	minDensity   = 400  // kg/m3
+	maxDensity   = 2500 // kg/m3
+	minViscosity = 1e-5 // Pa s, 0.01 mPa s
+	maxViscosity = 10   // Pa s
+	minKinematic = 1e-8 // m2/s, 0.01 mm2/s
+	maxKinematic = 1e-2 // m2/s
 )
 
 var siteKeys = schema{name: "site", columns: []column{
 	{name: "name", typ: textCol, help: "site name shown in reports; default the folder or workbook name"},
-	{name: "fluid", typ: wordCol, words: fluids, help: "water, ethylene-glycol or propylene-glycol; default water"},
+	{name: "fluid", typ: wordCol, words: fluids, help: "water, ethylene-glycol, propylene-glycol or other (density and viscosity given); default water"},
 	{name: "glycol", typ: numCol, kind: units.Dimensionless, unit: "%", what: "concentration", lo: 0, hi: 1,
 		help: "glycol concentration by volume; required for a glycol, 0 for water"},
 	{name: "temperature", typ: numCol, kind: units.Temperature, unit: "degC", what: "temperature", lo: minTemp, hi: maxTemp,
 		help: "mean circulating temperature during the survey; default 20 degC"},
+	{name: "density", typ: numCol, kind: units.Density, unit: "kg/m3", what: "density", lo: minDensity, hi: maxDensity,
+		help: "density of the fluid as measured (a lab sample); blank = from the fluid tables at the temperature"},
+	{name: "viscosity", typ: numCol, kind: units.Viscosity, unit: "mPa s", what: "dynamic viscosity", lo: minViscosity, hi: maxViscosity,
+		help: "dynamic viscosity as measured (1 cP = 1 mPa s); blank = from the fluid tables"},
+	{name: "kinematic viscosity", typ: numCol, kind: units.KinematicViscosity, unit: "mm2/s", what: "kinematic viscosity", lo: minKinematic, hi: maxKinematic,
+		help: "kinematic viscosity as measured (1 cSt = 1 mm2/s), instead of viscosity; blank = from the fluid tables"},
 	{name: "header", typ: wordCol, words: arrangementWords, help: "none, direct-return or reverse-return; default none (header losses neglected)"},
 	{name: "boundary", typ: wordCol, words: boundaryWords,
 		help: "pump, constant-differential or measured-differential; default pump when pump.csv is given, else measured-differential"},

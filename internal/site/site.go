@@ -23,9 +23,14 @@ import (
 // when the sheets do not give a value and no default applies.
 type Site struct {
 	Name          string
-	Fluid         string  // "water", "ethylene-glycol" or "propylene-glycol"
+	Fluid         string  // "water", "ethylene-glycol", "propylene-glycol" or OtherFluid
 	GlycolPercent float64 // glycol concentration, percent by volume; 0 for water
 	Temperature   float64 // K, the circulating fluid during the survey
+	// Density, Viscosity and KinematicViscosity are the fluid's properties
+	// as measured (kg/m3, Pa s, m2/s), overriding the property tables; NaN
+	// (or 0, in a Site built in code) when not given. At most one of the two
+	// viscosities is given.
+	Density, Viscosity, KinematicViscosity float64
 
 	Header   Arrangement
 	Boundary Boundary
@@ -322,7 +327,11 @@ const (
 )
 
 // Fluids lists the accepted fluid names.
-var fluids = []string{"water", "ethylene-glycol", "propylene-glycol"}
+var fluids = []string{"water", "ethylene-glycol", "propylene-glycol", OtherFluid}
+
+// OtherFluid names a fluid not in the property tables: its density and
+// viscosity are given in the site sheet.
+const OtherFluid = "other"
 
 // Characteristics lists the accepted generic valve characteristics.
 var characteristics = []string{"linear", "equal-percentage", "quick-opening"}

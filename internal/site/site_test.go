@@ -577,3 +577,91 @@ func TestReadWorkbookBad(t *testing.T) {
 		t.Errorf("ReadWorkbook problems (-want +got):\n%s", diff)
 	}
 }
+
+// TestRoundTripMeasured writes a site whose fluid properties are given as
+// measured (each viscosity in turn) and reads it back from CSV files and a
+// workbook: the values come back as written, in SI.
+func TestRoundTripMeasured(t *testing.T) {
+	for _, c := range []struct {
+		name          string
+		dyn, kin      float64
+		fluid         string
+		density, temp float64
+	}{
+		{name: "other, dynamic", fluid: OtherFluid, density: 1052.5, dyn: 3.1e-3, kin: nan, temp: 278.15},
+		{name: "other, kinematic", fluid: OtherFluid, density: 1052.5, dyn: nan, kin: 2.95e-6, temp: 278.15},
+		{name: "water, density only", fluid: "water", density: 998.2071, dyn: nan, kin: nan, temp: 293.15},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			want := readSmall(t)
+			want.Fluid, want.GlycolPercent, want.Temperature = c.fluid, 0, c.temp
+			want.Density, want.Viscosity, want.KinematicViscosity = c.density, c.dyn, c.kin
+			fsys := fstest.MapFS{}
+			if err := WriteDir(want, mapCreate(fsys)); err != nil {
+				t.Fatalf("WriteDir: %v", err)
+			}
+			got, p, err := ReadDir(fsys, ".")
+			if err != nil || len(p) > 0 {
+				t.Fatalf("ReadDir after WriteDir: %v\n%v\n%s", err, p, fsys["site.csv"].Data)
+			}
+			if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+				t.Errorf("csv round trip (-before +after):\n%s", diff)
+			}
+			var buf bytes.Buffer
+			if err := WriteWorkbook(want, &buf); err != nil {
+				t.Fatalf("WriteWorkbook: %v", err)
+			}
+			got, p, err = ReadWorkbook(bytes.NewReader(buf.Bytes()), int64(buf.Len()), "out.xlsx")
+			if err != nil || len(p) > 0 {
+				t.Fatalf("ReadWorkbook after WriteWorkbook: %v\n%v", err, p)
+			}
+			if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+				t.Errorf("xlsx round trip (-before +after):\n%s", diff)
+			}
+		})
+	}
+}
+
+// TestSiteIntroExamples reads every example in the site topic's text (each
+// run of indented lines is a site sheet) with the other sheets' examples:
+// each must read cleanly and give what its text says.
+func TestSiteIntroExamples(t *testing.T) {
+	var blocks []string
+	var cur []string
+	for _, line := range strings.Split(sheetIntro["site"]+"\n", "\n") {
+		if strings.HasPrefix(line, "  ") {
+			cur = append(cur, strings.TrimSpace(line))
+			continue
+		}
+		if len(cur) > 0 {
+			blocks = append(blocks, strings.Join(cur, "\n")+"\n")
+			cur = nil
+		}
+	}
+	if len(blocks) < 2 {
+		t.Fatalf("site topic has %d examples, want at least 2", len(blocks))
+	}
+	for i, b := range blocks {
+		fsys := fstest.MapFS{}
+		for name, text := range examples {
+			fsys[name+".csv"] = &fstest.MapFile{Data: []byte(text)}
+		}
+		// The example's keys with the rest of the help's site sheet.
+		sheet := b
+		for _, line := range strings.Split(examples["site"], "\n") {
+			key, _, _ := strings.Cut(line, ",")
+			if key, _, _ = splitUnit(key); line != "" && key != "key" && !strings.Contains(b, key+",") && !strings.Contains(b, key+" [") {
+				sheet += line + "\n"
+			}
+		}
+		fsys["site.csv"] = &fstest.MapFile{Data: []byte(sheet)}
+		s, p, err := ReadDir(fsys, ".")
+		if err != nil || len(p) > 0 {
+			t.Errorf("site topic example %d does not read cleanly: %v\n%v\n%s", i+1, err, p, b)
+			continue
+		}
+		if strings.Contains(b, "density") && !(s.Density > 0) {
+			t.Errorf("example %d: density not read", i+1)
+		}
+	}
+}

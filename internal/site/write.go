@@ -90,6 +90,17 @@ func render(s *Site) []outSheet {
 	key("fluid", s.Fluid)
 	key("glycol", s.GlycolPercent/100)
 	key("temperature", s.Temperature)
+	// The measured properties only when given, so older sheets read back
+	// unchanged.
+	if s.Density > 0 {
+		key("density", s.Density)
+	}
+	if s.Viscosity > 0 {
+		key("viscosity", s.Viscosity)
+	}
+	if s.KinematicViscosity > 0 {
+		key("kinematic viscosity", s.KinematicViscosity)
+	}
 	key("header", s.Header.String())
 	key("boundary", s.Boundary.Kind.String())
 	key("speed", s.Boundary.Speed)

@@ -22,28 +22,34 @@ type Kind int
 // The kinds of quantity flowset reads and prints. The zero Kind is not a
 // quantity; it stands for "any kind" in errors from Find.
 const (
-	Flow          Kind = iota + 1 // volumetric flow rate, SI m3/s
-	Pressure                      // pressure or pressure difference, SI Pa
-	Length                        // SI m
-	Temperature                   // absolute temperature, SI K
-	Head                          // pump or friction head: a height of the pumped fluid, SI m
-	Dimensionless                 // ratios, fractions, valve openings; SI 1
-	Power                         // SI W
-	Energy                        // SI J
-	Velocity                      // SI m/s
+	Flow               Kind = iota + 1 // volumetric flow rate, SI m3/s
+	Pressure                           // pressure or pressure difference, SI Pa
+	Length                             // SI m
+	Temperature                        // absolute temperature, SI K
+	Head                               // pump or friction head: a height of the pumped fluid, SI m
+	Dimensionless                      // ratios, fractions, valve openings; SI 1
+	Power                              // SI W
+	Energy                             // SI J
+	Velocity                           // SI m/s
+	Density                            // mass density, SI kg/m3
+	Viscosity                          // dynamic viscosity, SI Pa s
+	KinematicViscosity                 // kinematic viscosity, SI m2/s
 )
 
 var kindNames = [...]string{
-	0:             "quantity",
-	Flow:          "flow",
-	Pressure:      "pressure",
-	Length:        "length",
-	Temperature:   "temperature",
-	Head:          "head",
-	Dimensionless: "dimensionless quantity",
-	Power:         "power",
-	Energy:        "energy",
-	Velocity:      "velocity",
+	0:                  "quantity",
+	Flow:               "flow",
+	Pressure:           "pressure",
+	Length:             "length",
+	Temperature:        "temperature",
+	Head:               "head",
+	Dimensionless:      "dimensionless quantity",
+	Power:              "power",
+	Energy:             "energy",
+	Velocity:           "velocity",
+	Density:            "density",
+	Viscosity:          "dynamic viscosity",
+	KinematicViscosity: "kinematic viscosity",
 }
 
 // String returns the lower-case name of the quantity, as used in messages.
@@ -162,6 +168,19 @@ var table = []entry{
 
 	{Velocity, []string{"m/s"}, 1, 0},
 	{Velocity, []string{"ft/s", "fps"}, foot, 0},
+
+	{Density, []string{"kg/m3", "kg/m³", "kg/m^3"}, 1, 0},
+	{Density, []string{"g/cm3", "g/cm³", "g/ml", "g/mL", "kg/l", "kg/L"}, 1e3, 0},
+	{Density, []string{"lb/ft3", "lb/ft³", "lbm/ft3"}, poundM / (foot * foot * foot), 0},
+
+	// 1 cP = 1 mPa s (NIST SP 811 B.8: centipoise 1.0E-03 Pa s).
+	{Viscosity, []string{"Pa s", "Pa·s", "Pa.s"}, 1, 0},
+	{Viscosity, []string{"mPa s", "mPa·s", "mPa.s", "cP", "cp"}, 1e-3, 0},
+
+	// 1 cSt = 1 mm2/s (NIST SP 811 B.8: centistokes 1.0E-06 m2/s).
+	{KinematicViscosity, []string{"m2/s", "m²/s", "m^2/s"}, 1, 0},
+	{KinematicViscosity, []string{"mm2/s", "mm²/s", "mm^2/s", "cSt", "cst"}, 1e-6, 0},
+	{KinematicViscosity, []string{"ft2/s", "ft²/s"}, foot * foot, 0},
 }
 
 // Sentinel causes wrapped by the errors of Lookup and Find.

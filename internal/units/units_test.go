@@ -43,6 +43,11 @@ func TestFactorsNIST(t *testing.T) {
 		{"foot of water", Pressure, "ftH2O", 2.989067e3, sig7, "NIST SP 811 B.8 foot of water, conventional 2.989067E+03 Pa"},
 		{"inch of water", Pressure, "inH2O", 2.490889e2, sig7, "NIST SP 811 B.8 inch of water, conventional 2.490889E+02 Pa"},
 		{"horsepower", Power, "hp", 7.456999e2, sig7, "NIST SP 811 B.8 horsepower (550 ft lbf/s) 7.456999E+02 W"},
+		{"pound per cubic foot", Density, "lb/ft3", 1.601846e1, sig7, "NIST SP 811 B.8 pound per cubic foot 1.601846E+01 kg/m3"},
+		{"gram per cubic centimetre", Density, "g/cm3", 1e3, exact, "NIST SP 811 B.8 gram per cubic centimeter 1.0E+03 kg/m3 (exact)"},
+		{"centipoise", Viscosity, "cP", 1e-3, exact, "NIST SP 811 B.8 centipoise 1.0E-03 Pa s (exact)"},
+		{"centistokes", KinematicViscosity, "cSt", 1e-6, exact, "NIST SP 811 B.8 centistokes 1.0E-06 m2/s (exact)"},
+		{"square foot per second", KinematicViscosity, "ft2/s", 9.290304e-2, exact, "NIST SP 811 B.8 square foot per second 9.290304E-02 m2/s (exact)"},
 		{"Btu per hour", Power, "Btu/h", 2.930711e-1, sig7, "NIST SP 811 B.8 British thermal unit_IT per hour 2.930711E-01 W"},
 		{"kilowatt", Power, "kW", 1e3, exact, "SI prefix kilo (exact)"},
 		{"Btu", Energy, "Btu", 1.055056e3, sig7, "NIST SP 811 B.8 British thermal unit_IT 1.055056E+03 J"},
@@ -131,6 +136,7 @@ func TestSI(t *testing.T) {
 	want := map[Kind]string{
 		Flow: "m3/s", Pressure: "Pa", Length: "m", Temperature: "K", Head: "m",
 		Dimensionless: "", Power: "W", Energy: "J", Velocity: "m/s",
+		Density: "kg/m3", Viscosity: "Pa s", KinematicViscosity: "m2/s",
 	}
 	got := map[Kind]string{}
 	for k := range want {
