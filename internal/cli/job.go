@@ -43,6 +43,9 @@ type job struct {
 	// cleaned, and under "" the plan once all of them are (nil when none).
 	Remedy map[string]*remedy
 	opts   *jobOptions
+	// margin raises the index branch's target (by ID) to cover the
+	// uncertainty of what it needs (see indexMargin); nil for none.
+	margin map[string]float64
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -116,6 +119,15 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
+	if id, q, f := indexMargin(j, plan); f > 0 {
+		j.margin = map[string]float64{id: q}
+		if p2, err := balance.Compute(ctx, m, j.Params, j.planOptions()); err == nil && len(p2.Unmet) == 0 {
+			p2.Warnings = append(p2.Warnings, fmt.Sprintf("the index circuit %s is planned %.1f %% above its target: what it needs is known only to within its readings' uncertainty, and a pump set for exactly its target would leave it short half the time; read it after setting (step 5)", id, 100*f))
+			plan = p2
+		} else {
+			j.margin = nil
+		}
+	}
 	plan.DesignOnly = j.Cal == nil
 	for _, id := range unconfirmed {
 		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
@@ -144,7 +156,40 @@ func (j *job) planOptions() *balance.Options {
 	if j.Cal != nil {
 		bo.Uncertainty = uncertainty(j.Cal)
 	}
+	if len(j.margin) > 0 {
+		bo.Targets = j.margin
+	}
 	return bo
+}
+
+// maxIndexMargin caps the index margin at 1.5 % of its flow (about 3 % of the
+// differential it needs): beyond it the plan would waste more pump head than
+// a technician trims on site (common practice, no source).
+const maxIndexMargin = 0.015
+
+// indexMargin returns the index branch of plan, its raised target and the
+// fraction it is raised by: half the rise of the least differential that
+// the one parameter that matters most would cause at the end of its band
+// (Plan.LeastHigh at two standard deviations, so about one), in flow by
+// the square law, at most maxIndexMargin. A fitted plant's index is the
+// branch whose estimated need is largest, so its estimate is as likely low
+// as high while a low one leaves it short; a margin of one standard
+// deviation keeps it in its band in most cases at a small cost in head.
+// Zero without a fit, for a short plan or a negligible spread.
+func indexMargin(j *job, plan *balance.Plan) (string, float64, float64) {
+	if j.Cal == nil || len(plan.Unmet) > 0 || !(plan.Least > 0) || !(plan.LeastHigh > plan.Least) || j.opts.Scale != 1 && j.opts.Scale != 0 {
+		return "", 0, 0
+	}
+	f := min(math.Sqrt(1+(plan.LeastHigh/plan.Least-1)/2)-1, maxIndexMargin)
+	if f < 0.002 {
+		return "", 0, 0
+	}
+	for _, b := range plan.Branches {
+		if b.ID == plan.Index && b.Target > 0 {
+			return b.ID, b.Target * (1 + f), f
+		}
+	}
+	return "", 0, 0
 }
 
 // fitWarning says, when the fit is far worse than the readings' stated
