@@ -62,7 +62,9 @@ func (pl *planner) band(sol *plant.Solved) error {
 		}
 	}
 	if u.LnPumpHead > 0 && sol.Built.PumpLink >= 0 {
-		dh[sol.Built.PumpLink] = sol.Sol.Drop[sol.Built.PumpLink]
+		// The pump's own drop: the static lift in its link does not
+		// scale with the head multiplier.
+		dh[sol.Built.PumpLink] = sol.Sol.Drop[sol.Built.PumpLink] - m.Lift()
 		if err := add(u.LnPumpHead); err != nil {
 			return err
 		}

@@ -23,6 +23,11 @@ type planner struct {
 	m   *plant.Model
 	p   plant.Params
 	opt Options
+	// lift is an open circuit's static head at the pump, Pa (0 for a
+	// closed loop). The planner works in the circuit's friction (the
+	// exact plan, control values without a pump curve); what it reports
+	// at the pump includes the lift.
+	lift float64
 	// pump: the boundary is a pump curve; capped: a pump curve limits
 	// the source (a pump boundary or a controlled pump); bySpeed: the
 	// control value of the solves is a speed ratio on the pump's curve
@@ -75,6 +80,7 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	pl.capped = m.PumpDriven()
 	pl.bySpeed = pl.pump
 	pl.run = pl.ex
+	pl.lift = m.Lift()
 	pl.plan = &Plan{
 		Rounding: pl.opt.Rounding, Share: pl.opt.Share, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
 		IndexPath: pl.ex.indexIDs, ToleranceLow: pl.lo, ToleranceHigh: pl.hi,
@@ -98,7 +104,28 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	}
 	pl.remedies()
 	pl.shortfalls()
+	pl.atPump()
 	return pl.plan, nil
+}
+
+// atPump adds an open circuit's static lift to the plan's least
+// differentials, which the exact plan works out as friction alone: the
+// plan reports every source differential at the pump.
+func (pl *planner) atPump() {
+	if pl.lift == 0 {
+		return
+	}
+	p := pl.plan
+	p.Least += pl.lift
+	p.LeastHigh += pl.lift
+	p.LeastRemedied += pl.lift // NaN stays NaN
+	for i := range p.Remedies {
+		r := &p.Remedies[i]
+		r.Need += pl.lift
+		r.NeedAfter += pl.lift
+		r.Least += pl.lift
+		r.LeastAfter += pl.lift
+	}
 }
 
 func (pl *planner) check() error {
@@ -180,7 +207,9 @@ func (pl *planner) state(settings []float64, x float64) plant.State {
 	if pl.bySpeed {
 		st.Speed = x
 	} else {
-		st.Differential = x
+		// A plant state's differential is the pump's: friction and the
+		// static lift of an open circuit.
+		st.Differential = x + pl.lift
 	}
 	return st
 }
@@ -215,9 +244,9 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 			pl.netSettings[i] = v
 		}
 		if pl.net.PumpLink >= 0 {
-			n.SetElements(pl.net.PumpLink, src.Pump)
+			n.SetElements(pl.net.PumpLink, src.PumpElements()...)
 		} else if k, ok := n.NodeIndex(network.SupplyID); ok {
-			n.FixPressure(k, src.Static+src.Differential)
+			n.FixPressure(k, src.Static+src.Held())
 		}
 	}
 	if pl.flows == nil {
@@ -286,7 +315,10 @@ func (pl *planner) exactControl() (float64, error) {
 // speedFor returns the speed ratio at which the pump element (as the plant
 // builds it, head multiplier and curve limits included) gives differential
 // dp at flow q: bracketing, then bisection to machine precision.
+//
+// dp is the circuit's friction: the pump gives it plus the static lift.
 func (pl *planner) speedFor(q, dp float64) (float64, error) {
+	dp += pl.lift
 	f := func(s float64) float64 {
 		d, _ := pl.pumpAt(s).Drop(q, pl.m.Fluid)
 		return -d - dp

@@ -147,7 +147,9 @@ func (pl *planner) before(ctx context.Context) (*plant.Solved, string, error) {
 			return nil, "no survey state with the as-found settings gives the pump or header differential", nil
 		}
 	}
-	sol, err := pl.solve(ctx, found, d)
+	// d is the pump's differential; the planner's control value is the
+	// circuit's friction.
+	sol, err := pl.solve(ctx, found, d-pl.lift)
 	return sol, "", err
 }
 

@@ -120,7 +120,7 @@ func (pl *planner) remedies() {
 			Action: fmt.Sprintf("the fully open valve of branch %s takes %.1f kPa at target: fit a valve of twice its Kv", m.Branches[i].ID, ex.open[i]/1e3)}
 		// A larger valve on a starved branch is worth naming only when
 		// the pump could then serve it.
-		if r, ok := judge(r, i, cut); ok && (r.Saves > 0.01*ex.least || r.NeedAfter <= pl.plan.Required) {
+		if r, ok := judge(r, i, cut); ok && (r.Saves > 0.01*ex.least || r.NeedAfter+pl.lift <= pl.plan.Required) {
 			pl.plan.Remedies = append(pl.plan.Remedies, r)
 		}
 	}
@@ -144,7 +144,7 @@ func (pl *planner) remedies() {
 	if pl.short {
 		r := Remedy{Kind: LargerPump, Ratio: math.NaN(), Need: ex.least, NeedAfter: ex.least, Least: ex.least, LeastAfter: ex.least,
 			Power: math.NaN(), AnnualEnergy: math.NaN(), Starved: true, Serves: true,
-			Action: fmt.Sprintf("a pump giving %.1f kPa at %.3f l/s (this one at speed ratio %.3f, its drive allows %.3f) serves every target as the plant stands", ex.least/1e3, q*1e3, pl.plan.Pump.NeededSpeed, pl.plan.Pump.MaxSpeed)}
+			Action: fmt.Sprintf("a pump giving %.1f kPa at %.3f l/s (this one at speed ratio %.3f, its drive allows %.3f) serves every target as the plant stands", (ex.least+pl.lift)/1e3, q*1e3, pl.plan.Pump.NeededSpeed, pl.plan.Pump.MaxSpeed)}
 		pl.plan.Remedies = append(pl.plan.Remedies, r)
 	}
 	sort.SliceStable(pl.plan.Remedies, func(a, b int) bool {

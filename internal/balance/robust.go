@@ -71,7 +71,7 @@ func (pl *planner) robust() {
 			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("%d more uncertain parameters could raise the differential needed", len(hits)-5))
 			break
 		}
-		w := fmt.Sprintf("the uncertainty of %s matters: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, h.least/1e3, ex.least/1e3)
+		w := fmt.Sprintf("the uncertainty of %s matters: at the end of its band the circuit would need %.1f kPa, not %.1f kPa", h.what, (h.least+pl.lift)/1e3, (ex.least+pl.lift)/1e3)
 		if pl.capped {
 			if s, err := pl.speedFor(ex.total(), h.least); err == nil {
 				if s > pl.m.MaxSpeed()*(1+1e-9) {

@@ -17,23 +17,26 @@ func (pl *planner) pumpAt(s float64) hydraulics.Element {
 }
 
 // source returns the network source of control value x: the pump at speed
-// x, or an ideal source differential x.
+// x (working against an open circuit's static lift), or an ideal source
+// differential x across the circuit's friction.
 func (pl *planner) source(x float64) network.Source {
 	if pl.bySpeed {
-		return network.Source{Pump: pl.pumpAt(x)}
+		return network.Source{Pump: pl.pumpAt(x), Lift: pl.lift}
 	}
 	return network.Source{Differential: x}
 }
 
 // maxDiff returns the differential the pump gives at flow q at its maximum
-// speed, Pa: the most any set point or speed can ask of it. +Inf when no
-// pump curve limits the source.
+// speed, less an open circuit's static lift, Pa: the most any set point or
+// speed can give the circuit's friction (like the exact plan's least
+// differential, which is friction alone). +Inf when no pump curve limits
+// the source.
 func (pl *planner) maxDiff(q float64) float64 {
 	if !pl.capped {
 		return math.Inf(1)
 	}
 	d, _ := pl.pumpAt(pl.m.MaxSpeed()).Drop(q, pl.m.Fluid)
-	return -d
+	return -d - pl.lift
 }
 
 // toSpeed makes the control value a speed ratio on the pump's curve (a
@@ -53,14 +56,16 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 	ex, m := pl.ex, pl.m
 	pp := &pl.plan.Pump
 	pp.NeededSpeed, pp.MaxSpeed, pp.Available = math.NaN(), math.NaN(), math.NaN()
-	pp.Needed = ex.least
+	// Needed and Available are at the pump: the static lift besides the
+	// index path's friction.
+	pp.Needed = ex.least + pl.lift
 	if pl.capped {
 		pp.MaxSpeed = m.MaxSpeed()
-		pp.Available = pl.maxDiff(ex.total())
+		pp.Available = pl.maxDiff(ex.total()) + pl.lift
 		if s, err := pl.speedFor(ex.total(), ex.least); err == nil {
 			pp.NeededSpeed = s
 		}
-		if ex.least > pp.Available*(1+1e-9) {
+		if ex.least > pl.maxDiff(ex.total())+1e-9*pp.Available {
 			return pl.settleShort(ctx)
 		}
 	}
@@ -104,18 +109,21 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 	case pl.capped:
 		// A controlled pump: x is the differential its drive holds, which
 		// it can only while its curve at maximum speed lies above it.
-		pp.NeededSpeed = hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), sol.TotalFlow(), x, m.Fluid)
-		if give := pl.maxDiff(sol.TotalFlow()); x > give*(1+1e-9) {
+		// x is the differential across the circuit's friction; the pump
+		// holds it plus the static lift.
+		held := x + pl.lift
+		pp.NeededSpeed = hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), sol.TotalFlow(), held, m.Fluid)
+		if give := pl.maxDiff(sol.TotalFlow()); x > give+1e-9*(give+pl.lift) {
 			pl.toSpeed()
 			if sol, err = pl.solve(ctx, settings, m.MaxSpeed()); err != nil {
 				return nil, err
 			}
-			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("with the settings rounded the circuit needs %.1f kPa, the pump gives %.1f kPa flat out: the set point is what it gives and some branches fall a little short", x/1e3, give/1e3))
-			x = sol.PumpDiff()
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("with the settings rounded the circuit needs %.1f kPa, the pump gives %.1f kPa flat out: the set point is what it gives and some branches fall a little short", held/1e3, (give+pl.lift)/1e3))
+			held = sol.PumpDiff()
 		}
-		pl.plan.Differential = x
+		pl.plan.Differential = held
 	default:
-		pl.plan.Differential = x
+		pl.plan.Differential = x + pl.lift
 	}
 	pl.plan.Settings = settings
 	pl.plan.Required = sol.PumpDiff()

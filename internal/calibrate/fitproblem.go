@@ -292,7 +292,7 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 		}
 	}
 	if l := sn.built.PumpLink; l >= 0 && (!ok || old.PumpHead != pp.PumpHead) {
-		net.SetElements(l, p.m.Source(pp, sn.st).Pump)
+		net.SetElements(l, p.m.Source(pp, sn.st).PumpElements()...)
 	}
 	sn.applied = pp
 }
@@ -494,7 +494,9 @@ func (p *problem) predict(sn *stateNet, o *obs) float64 {
 		if sn.outlet < 0 {
 			return sn.st.Differential
 		}
-		return sol.Pressure[sn.outlet] - sol.Pressure[sn.ret]
+		// The pump gives the static lift of an open circuit besides the
+		// friction its outlet node sees.
+		return sol.Pressure[sn.outlet] - sol.Pressure[sn.ret] + p.m.Lift()
 	case site.ValveDiff:
 		dp, _ := p.valveDrop(sn, o.branch, p.flow(sn, sn.flowOf[o.branch]))
 		return dp

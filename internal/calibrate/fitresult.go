@@ -169,6 +169,11 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			rf.Boundary = true
 			if st := su.state[ri]; st >= 0 {
 				rf.Predicted = m.States[st].Differential
+				if rd.What == site.HeaderDiff {
+					// The state's differential is the pump's: an open
+					// circuit's lift is not in the headers'.
+					rf.Predicted -= m.Lift()
+				}
 				rf.Residual = rf.Predicted - rf.Value
 				rf.Normalised = rf.Residual / rd.Sigma
 			}

@@ -59,6 +59,23 @@ func printSummary(ios *IO, s *site.Site) {
 	w := ios.Out
 	fmt.Fprintf(w, "site %q: %d branches (%d risers), %d valve models, %d pump points, %d readings\n",
 		s.Name, sum.Branches, sum.Risers, sum.Valves, sum.PumpPoints, sum.Readings)
+	if s.StaticLift > 0 || s.OutletPressure > 0 {
+		fmt.Fprintf(w, "  open circuit: static lift %.2f m, outlet pressure %.1f kPa (the pump gives both before any water moves)\n",
+			s.StaticLift, s.OutletPressure/1e3)
+	}
+	if s.Density > 0 || s.Viscosity > 0 || s.KinematicViscosity > 0 {
+		var given []string
+		if s.Density > 0 {
+			given = append(given, fmt.Sprintf("density %.4g kg/m3", s.Density))
+		}
+		if s.Viscosity > 0 {
+			given = append(given, fmt.Sprintf("viscosity %.4g mPa s", s.Viscosity*1e3))
+		}
+		if s.KinematicViscosity > 0 {
+			given = append(given, fmt.Sprintf("kinematic viscosity %.4g mm2/s", s.KinematicViscosity*1e6))
+		}
+		fmt.Fprintf(w, "  fluid as measured: %s (in place of the tables)\n", strings.Join(given, ", "))
+	}
 	for _, st := range sum.States {
 		if st.Pump != "" {
 			fmt.Fprintf(w, "  state %-20s %d readings, pump at %s\n", st.State, st.Readings, st.Pump)

@@ -5,10 +5,12 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/csv"
+	"encoding/json"
 	"flag"
 	"fmt"
 	"io"
 	"io/fs"
+	"math"
 	"os"
 	"path/filepath"
 	"sort"
@@ -467,5 +469,50 @@ func TestRunFluidAsMeasured(t *testing.T) {
 	// 4.2 mm2/s times 1031.5 kg/m3 is 4.332 mPa s.
 	if want := "a fluid not in the tables (as measured: 1032 kg/m3, 4.332 mPa s)"; !strings.Contains(string(html), want) {
 		t.Errorf("report does not name the fluid as %q", want)
+	}
+}
+
+// TestCurvesOpenCircuit gives the demo site a static lift and an outlet
+// pressure: its system curve starts there at no flow, the operating point
+// lies above it, and the whole job runs.
+func TestCurvesOpenCircuit(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.CopyFS(dir, os.DirFS(surveyDir("demo"))); err != nil {
+		t.Fatal(err)
+	}
+	appendLine(t, filepath.Join(dir, "site.csv"), "\nstatic lift [m],4\noutlet pressure [kPa],15")
+	code, out, errs := run(t, "check", dir)
+	if code != ExitOK || !strings.Contains(out, "open circuit: static lift 4.00 m, outlet pressure 15.0 kPa") {
+		t.Fatalf("check: exit %d\n%s%s", code, out, errs)
+	}
+	code, out, errs = run(t, "curves", "--format", "json", dir)
+	if code != ExitOK {
+		t.Fatalf("curves: exit %d: %s", code, errs)
+	}
+	var cs curveSet
+	if err := json.Unmarshal([]byte(out), &cs); err != nil {
+		t.Fatal(err)
+	}
+	// 4 m of water at 70 degC (977.76 kg/m3, IAPWS-IF97; about 977.8 in
+	// the CRC table) is 38.35 kPa, plus 15 kPa at the outlet.
+	if math.Abs(cs.StaticLift-53.35) > 0.01 {
+		t.Errorf("static lift %.3f kPa, want 53.35", cs.StaticLift)
+	}
+	if p := cs.System[0]; p.Flow != 0 || math.Abs(p.Diff-cs.StaticLift) > 1e-9 {
+		t.Errorf("system curve starts at %+v, want no flow at the static lift %.3f kPa", p, cs.StaticLift)
+	}
+	for k := 1; k < len(cs.System); k++ {
+		if !(cs.System[k].Flow > cs.System[k-1].Flow) {
+			t.Errorf("system curve flow not rising at point %d: %+v", k, cs.System[k-1:k+1])
+		}
+	}
+	if !(cs.Operating.Diff > cs.StaticLift) {
+		t.Errorf("operating point %+v not above the static lift", cs.Operating)
+	}
+	if code, out, _ := run(t, "curves", dir); code != ExitOK || !strings.Contains(out, "open circuit: the system curve starts at the static lift, 53.4 kPa at no flow") {
+		t.Errorf("curves table: exit %d\n%s", code, out)
+	}
+	if code, _, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out")); code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
 	}
 }

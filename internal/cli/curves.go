@@ -55,6 +55,9 @@ type curveSet struct {
 	System    []displayPoint `json:"system"`
 	Pump      []displayPoint `json:"pump,omitempty"`
 	Operating displayPoint   `json:"operating_point"`
+	// StaticLift is an open circuit's static head, kPa, where the system
+	// curve starts; 0 for a closed loop.
+	StaticLift float64 `json:"static_lift_kPa,omitempty"`
 }
 
 type branchCurve struct {
@@ -139,8 +142,14 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 	}
 	const n = 10
 	diffs := make([]float64, n+1)
+	lift := m.Lift()
+	if !(lift < top) {
+		lift = 0
+	}
+	cs.StaticLift = m.Lift() / 1000
 	for k := range diffs {
-		diffs[k] = top * float64(k) / n
+		// An open circuit's curve starts at its static lift, at no flow.
+		diffs[k] = lift + (top-lift)*float64(k)/n
 	}
 	sys, err := m.SystemCurve(ctx, p, st.Settings, diffs)
 	if err != nil {
@@ -180,6 +189,9 @@ func writeCurvesTable(w io.Writer, cs *curveSet) error {
 	tw.Flush()
 	fmt.Fprintln(w, "\nbranch differential at a % of its design flow")
 	fmt.Fprintln(w, "\ncombined curve seen from the pump (header losses included)")
+	if cs.StaticLift > 0 {
+		fmt.Fprintf(w, "open circuit: the system curve starts at the static lift, %.1f kPa at no flow\n", cs.StaticLift)
+	}
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintln(tw, "flow [l/s]\tsystem [kPa]\tpump [kPa]\t")
 	for k, p := range cs.System {

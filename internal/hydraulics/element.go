@@ -17,3 +17,15 @@ import "flowset/internal/fluid"
 type Element interface {
 	Drop(q float64, f fluid.State) (dp, slope float64)
 }
+
+// StaticHead is a pressure difference that does not depend on flow: the
+// static lift of an open circuit (from the free surface a pump draws from to
+// the open outlet, with the outlet's required pressure), Pa. Its slope is 0,
+// so it is only used in series with an element whose slope is positive (a
+// pump).
+type StaticHead struct {
+	Pressure float64 // Pa
+}
+
+// Drop implements Element: the same pressure at every flow.
+func (s StaticHead) Drop(q float64, f fluid.State) (dp, slope float64) { return s.Pressure, 0 }

@@ -72,7 +72,26 @@ type Source struct {
 	Differential float64              // Pa, used when Pump is nil; must be positive
 	Main         []hydraulics.Element // common main (flow and return) in series with the source
 	Static       float64              // Pa held at the pressurisation point (pump suction, or the return connection); 0 gives gauge pressures
+	// Lift is the static head of an open circuit, Pa: what the source must
+	// give before any water moves (the rise from the free surface it draws
+	// from to the open outlet, and the outlet's required pressure). It sits
+	// in series with the pump, or is taken from Differential; 0 for a
+	// closed loop.
+	Lift float64
 }
+
+// PumpElements returns the elements of the pump link: the pump and, in an
+// open circuit, the static lift it works against.
+func (s Source) PumpElements() []hydraulics.Element {
+	if s.Lift != 0 {
+		return []hydraulics.Element{s.Pump, hydraulics.StaticHead{Pressure: s.Lift}}
+	}
+	return []hydraulics.Element{s.Pump}
+}
+
+// Held returns the differential a source without a pump holds across the
+// circuit's friction: Differential less the static lift.
+func (s Source) Held() float64 { return s.Differential - s.Lift }
 
 // Built is a network made by Build, with the indices a caller needs to read
 // its solution.
@@ -137,18 +156,24 @@ func Build(l Ladder, src Source, f fluid.State) (*Built, error) {
 	if !finite(src.Static) {
 		return nil, fmt.Errorf("build: static pressure %g: %w", src.Static, ErrInput)
 	}
+	if !(src.Lift >= 0) || math.IsInf(src.Lift, 1) {
+		return nil, fmt.Errorf("build: static lift %g Pa must be zero or positive: %w", src.Lift, ErrInput)
+	}
 	ret := b.net.addNode(ReturnID)
 	b.net.FixPressure(ret, src.Static)
 	var sup int
 	if src.Pump != nil {
 		sup = b.net.addNode(PumpOutletID)
-		b.out.PumpLink = b.net.addLink(PumpID, ret, sup, []hydraulics.Element{src.Pump})
+		b.out.PumpLink = b.net.addLink(PumpID, ret, sup, src.PumpElements())
 	} else {
 		if !(src.Differential > 0) || math.IsInf(src.Differential, 1) {
 			return nil, fmt.Errorf("build: source differential %g Pa must be positive without a pump: %w", src.Differential, ErrInput)
 		}
+		if !(src.Held() > 0) {
+			return nil, fmt.Errorf("build: source differential %g Pa does not exceed the static lift %g Pa: no flow: %w", src.Differential, src.Lift, ErrInput)
+		}
 		sup = b.net.addNode(SupplyID)
-		b.net.FixPressure(sup, src.Static+src.Differential)
+		b.net.FixPressure(sup, src.Static+src.Held())
 	}
 	if len(src.Main) > 0 {
 		top := b.net.addNode(MainOutletID)

@@ -32,18 +32,26 @@ func (m *Model) BranchCurve(p Params, i int, setting float64, flows []float64) [
 }
 
 // SystemCurve returns the combined curve of all branches seen from the source
-// (header losses included): the total flow at each source differential,
+// (header losses and an open circuit's static lift included): the total
+// flow at each source differential,
 // found by solving the network held at that differential. It is exact, not a
 // fit to samples.
 func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, diffs []float64) ([]Point, error) {
 	out := make([]Point, 0, len(diffs))
 	var warm []float64
+	lift := m.Lift()
 	for _, d := range diffs {
 		if d <= 0 {
 			out = append(out, Point{0, 0})
 			continue
 		}
-		b, err := network.Build(m.Ladder(p, settings), network.Source{Differential: d}, m.Fluid)
+		if d <= lift {
+			// An open circuit: nothing flows until the source gives the
+			// static lift, where the system curve starts.
+			out = append(out, Point{0, d})
+			continue
+		}
+		b, err := network.Build(m.Ladder(p, settings), network.Source{Differential: d, Lift: lift}, m.Fluid)
 		if err != nil {
 			return nil, err
 		}

@@ -500,6 +500,11 @@ func (m *Model) measuredDiff(st *State) (float64, error) {
 				pos = r.Pos
 			}
 			sum += r.Value
+			if r.What == site.HeaderDiff {
+				// The state's differential is the pump's: an open
+				// circuit's lift is not in the headers' differential.
+				sum += m.Lift()
+			}
 			n++
 		}
 	}
@@ -662,15 +667,28 @@ func (m *Model) ScaledPump(k float64) *hydraulics.PumpCurve {
 	return &c
 }
 
-// Source returns the network source for multipliers p and state st.
+// Lift returns the static head of an open circuit in Pa: the site's static
+// lift as a height of the circulating fluid plus the open outlet's
+// pressure; 0 for a closed loop. The pump gives it before any water moves,
+// so it is in every pump differential (read, predicted or planned) and in
+// no branch or header differential.
+func (m *Model) Lift() float64 {
+	s := m.Site
+	return m.Fluid.Density*hydraulics.StandardGravity*max(s.StaticLift, 0) + max(s.OutletPressure, 0)
+}
+
+// Source returns the network source for multipliers p and state st. A
+// state's Differential is the pump's (static lift included); the network
+// takes the lift from it.
 func (m *Model) Source(p Params, st State) network.Source {
+	lift := m.Lift()
 	switch {
 	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil:
-		return network.Source{Pump: hydraulics.Pump{Curve: *m.ScaledPump(p.PumpHead), Speed: st.Speed}}
+		return network.Source{Pump: hydraulics.Pump{Curve: *m.ScaledPump(p.PumpHead), Speed: st.Speed}, Lift: lift}
 	case m.Controlled():
-		return network.Source{Pump: hydraulics.ControlledPump{Curve: *m.ScaledPump(p.PumpHead), MaxSpeed: m.MaxSpeed(), SetPoint: st.Differential}}
+		return network.Source{Pump: hydraulics.ControlledPump{Curve: *m.ScaledPump(p.PumpHead), MaxSpeed: m.MaxSpeed(), SetPoint: st.Differential}, Lift: lift}
 	}
-	return network.Source{Differential: st.Differential}
+	return network.Source{Differential: st.Differential, Lift: lift}
 }
 
 // PumpHeadDrop returns d(drop)/d(ln PumpHead) of the source link at flow q
@@ -704,6 +722,9 @@ type Solved struct {
 func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) {
 	if !(st.Differential > 0) && !(m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil) {
 		return nil, fmt.Errorf("state %q: no pump curve and no positive differential to drive the circuit: %w", st.Label, ErrModel)
+	}
+	if lift := m.Lift(); m.Pump == nil && !(st.Differential > lift) {
+		return nil, fmt.Errorf("state %q: the differential %.1f kPa does not exceed the static lift %.1f kPa, so no water reaches the outlet: %w", st.Label, st.Differential/1e3, lift/1e3, ErrModel)
 	}
 	built, err := network.Build(m.Ladder(p, st.Settings), m.Source(p, st), m.Fluid)
 	if err != nil {
@@ -765,7 +786,8 @@ func (s *Solved) HeaderDiff() float64 {
 // a pump), Pa.
 func (s *Solved) PumpDiff() float64 {
 	if s.Built.PumpLink >= 0 {
-		return -s.Sol.Drop[s.Built.PumpLink]
+		// The link holds the pump and the lift it works against.
+		return -s.Sol.Drop[s.Built.PumpLink] + s.Model.Lift()
 	}
 	return s.State.Differential
 }

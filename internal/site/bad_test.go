@@ -532,7 +532,7 @@ var badCases = []badCase{
 	{name: "site unknown and duplicate keys", files: map[string]string{"site.csv": "key,value\nname,Annex\ncolour,blue\ntemprature [degC],12\nname,Annex 2\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, density, viscosity, kinematic viscosity, header, boundary, speed, max speed, set point, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
+			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, density, viscosity, kinematic viscosity, header, boundary, speed, max speed, set point, static lift, outlet pressure, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
 			"site.csv:4:1: warning: field \"temprature\": unknown key, ignored (want \"temperature\")",
 			"site.csv:5:1: field \"name\": key given twice (want one \"name\" line; the first is line 2)",
 		}},
@@ -602,6 +602,17 @@ var badCases = []badCase{
 		cause: ErrUnit,
 		want: []string{
 			"site.csv:1:1: field \"viscosity\": value \"kPa\": unit \"kPa\" is a pressure, not a dynamic viscosity (want a dynamic viscosity unit: mPa s, cP or Pa s)",
+		}},
+	{name: "open circuit", files: map[string]string{"site.csv": "static lift [ft],24.6\noutlet pressure [psi],2.9\n"}},
+	{name: "negative static lift", files: map[string]string{"site.csv": "static lift [m],-4\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"static lift\": value \"-4\": must not be negative (want a height of 0 or more)",
+		}},
+	{name: "outlet pressure in metres", files: map[string]string{"site.csv": "outlet pressure [m],3\n"},
+		cause: ErrUnit,
+		want: []string{
+			"site.csv:1:1: field \"outlet pressure\": value \"m\": unit \"m\" is a length, not a pressure (want a pressure unit: kPa, Pa, bar, mbar, mH2O or psi)",
 		}},
 	{name: "pump boundary without pump", files: map[string]string{"site.csv": "boundary,pump\n"},
 		cause: ErrMissing,

@@ -88,7 +88,26 @@ needs a density and a viscosity. For example:
 or, for water whose sample read a little denser than the tables say:
   fluid,water
   temperature [degF],45
-  density [lb/ft3],62.5`,
+  density [lb/ft3],62.5
+
+Open circuits: a condenser-water or process circuit that lifts water from a
+free surface (a cooling-tower basin, an open tank) to an open outlet (a
+spray header, nozzles, an open tank above) takes two keys: static lift, the
+height from the free surface the pump draws from up to the outlet (m or ft),
+and outlet pressure, what the outlet needs above the air (kPa or psi; 0 for
+a free discharge). The pump gives both before any water moves: every pump
+differential (read, predicted, planned) includes them, branch and header
+differentials do not, the system curve starts at them at no flow, and the
+plan's least differential is the lift plus the index path's friction. A
+differential boundary's set point, or a measured pump differential, is the
+pump's (lift included); a header differential read is the branches'. For
+example, a condenser circuit with its tower's spray header 7.5 m above the
+basin and nozzles wanting 20 kPa:
+  static lift [m],7.5
+  outlet pressure [kPa],20
+or in US units:
+  static lift [ft],24.6
+  outlet pressure [psi],2.9`,
 	"branches": `The branches sheet lists every parallel branch, one per row: its design
 flow, its pipe, its terminal, its regulating valve and the header segment
 between the previous take-off and its own. Rows go in order along the

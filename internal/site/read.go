@@ -429,6 +429,8 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 	num("speed", &s.Boundary.Speed)
 	num("max speed", &s.Boundary.MaxSpeed)
 	num("set point", &s.Boundary.SetPoint)
+	num("static lift", &s.StaticLift)
+	num("outlet pressure", &s.OutletPressure)
 	num("hours", &s.Hours)
 	num("energy price", &s.EnergyPrice)
 	num("pump efficiency", &s.PumpEfficiency)

@@ -35,6 +35,11 @@ type Site struct {
 	Header   Arrangement
 	Boundary Boundary
 
+	// StaticLift (m) and OutletPressure (Pa) describe an open circuit: the
+	// height from the free surface the pump draws from to the open outlet,
+	// and the pressure the outlet needs. Both 0 for a closed loop.
+	StaticLift, OutletPressure float64
+
 	Hours       float64 // running hours per year
 	EnergyPrice float64 // price per kWh in Currency; NaN when not given
 	Currency    string

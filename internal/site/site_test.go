@@ -579,7 +579,7 @@ func TestReadWorkbookBad(t *testing.T) {
 }
 
 // TestRoundTripMeasured writes a site whose fluid properties are given as
-// measured (each viscosity in turn) and reads it back from CSV files and a
+// measured (each viscosity in turn), or an open circuit, and reads it back from CSV files and a
 // workbook: the values come back as written, in SI.
 func TestRoundTripMeasured(t *testing.T) {
 	for _, c := range []struct {
@@ -587,15 +587,19 @@ func TestRoundTripMeasured(t *testing.T) {
 		dyn, kin      float64
 		fluid         string
 		density, temp float64
+		lift, outlet  float64
 	}{
 		{name: "other, dynamic", fluid: OtherFluid, density: 1052.5, dyn: 3.1e-3, kin: nan, temp: 278.15},
 		{name: "other, kinematic", fluid: OtherFluid, density: 1052.5, dyn: nan, kin: 2.95e-6, temp: 278.15},
 		{name: "water, density only", fluid: "water", density: 998.2071, dyn: nan, kin: nan, temp: 293.15},
+		{name: "open circuit", fluid: "water", density: nan, dyn: nan, kin: nan, temp: 301.15, lift: 7.5, outlet: 20e3},
+		{name: "open circuit, free discharge", fluid: "water", density: nan, dyn: nan, kin: nan, temp: 301.15, lift: 3.25},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			want := readSmall(t)
 			want.Fluid, want.GlycolPercent, want.Temperature = c.fluid, 0, c.temp
 			want.Density, want.Viscosity, want.KinematicViscosity = c.density, c.dyn, c.kin
+			want.StaticLift, want.OutletPressure = c.lift, c.outlet
 			fsys := fstest.MapFS{}
 			if err := WriteDir(want, mapCreate(fsys)); err != nil {
 				t.Fatalf("WriteDir: %v", err)
@@ -662,6 +666,9 @@ func TestSiteIntroExamples(t *testing.T) {
 		}
 		if strings.Contains(b, "density") && !(s.Density > 0) {
 			t.Errorf("example %d: density not read", i+1)
+		}
+		if strings.Contains(b, "static lift") && !(s.StaticLift > 7 && s.StaticLift < 8 && s.OutletPressure > 19.9e3 && s.OutletPressure < 20.1e3) {
+			t.Errorf("example %d: static lift %g m, outlet pressure %g Pa; want the text's 7.5 m and 20 kPa (24.6 ft, 2.9 psi)", i+1, s.StaticLift, s.OutletPressure)
 		}
 	}
 }

@@ -107,6 +107,12 @@ func render(s *Site) []outSheet {
 	key("max speed", s.Boundary.MaxSpeed)
 	key("set point", s.Boundary.SetPoint)
 	key("sensor", s.Boundary.Sensor)
+	// An open circuit's lift only when it has one, so older sheets read
+	// back unchanged.
+	if s.StaticLift > 0 || s.OutletPressure > 0 {
+		key("static lift", s.StaticLift)
+		key("outlet pressure", s.OutletPressure)
+	}
 	key("hours", s.Hours)
 	key("energy price", s.EnergyPrice)
 	key("currency", s.Currency)

@@ -1,0 +1,83 @@
+package calibrate
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/site"
+)
+
+// TestFitOpenCircuit fits noise-free simulated surveys of open circuits (a
+// static lift and an outlet pressure) whose multipliers are away from
+// design, without priors, and wants them back to 1e-6 (closed-form truth:
+// the simulated plant itself). The pump's curve (and a controller's set
+// point) is raised by the lift, so the friction it works against is the
+// closed loop's; every pump differential read includes the lift.
+func TestFitOpenCircuit(t *testing.T) {
+	ctx := context.Background()
+	noPrior := &FitOptions{PriorResistance: math.Inf(1), PriorKv: math.Inf(1), PriorHeader: math.Inf(1), PriorPump: math.Inf(1)}
+	const liftM, outletPa = 6.5, 35e3
+	for _, c := range richCases() {
+		t.Run(c.name, func(t *testing.T) {
+			s := newPlantSite(t, c.spec)
+			richSurvey(s)
+			s.StaticLift, s.OutletPressure = liftM, outletPa
+			m := mustModel(t, s)
+			lift := m.Fluid.Density*hydraulics.StandardGravity*liftM + outletPa
+			if got := m.Lift(); math.Abs(got/lift-1) > 1e-15 {
+				t.Fatalf("Lift() = %g Pa, want %g", got, lift)
+			}
+			for k := range s.Pump {
+				s.Pump[k].Head += lift / (m.Fluid.Density * hydraulics.StandardGravity)
+			}
+			if s.Boundary.Kind == site.ConstantDiff {
+				s.Boundary.SetPoint += lift
+			}
+			m = mustModel(t, s)
+			tr := newTruth(m)
+			rng := rand.New(rand.NewPCG(c.spec.seed, 77))
+			for i := range tr.p.Resistance {
+				tr.p.Resistance[i] = math.Exp(0.5 * rng.NormFloat64())
+			}
+			tr.p.KvScale[0] = 0.9
+			tr.p.Header, tr.p.PumpHead = 1.4, 0.92
+			simulate(t, m, tr, nil, 1)
+			// Every pump differential read holds the lift and the
+			// friction beyond it: the header differential plus the mains.
+			for _, r := range s.Readings {
+				if r.What == site.PumpDiff && !(r.Value > lift) {
+					t.Fatalf("simulated pump differential %g Pa, not above the lift %g Pa", r.Value, lift)
+				}
+			}
+			cal, err := Fit(ctx, m, noPrior)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !cal.Converged {
+				t.Errorf("Fit status %v, want convergence", cal.Status)
+			}
+			check := func(what string, got, want float64) {
+				t.Helper()
+				if math.Abs(got/want-1) > 1e-6 {
+					t.Errorf("%s = %.9g, want %.9g", what, got, want)
+				}
+			}
+			for i, b := range cal.Branches {
+				if b.Fitted {
+					check("resistance ratio of "+b.ID, b.Ratio, tr.p.Resistance[i])
+				}
+			}
+			if cal.Pump.Fitted {
+				check("pump head", cal.Pump.Ratio, tr.p.PumpHead)
+			}
+			for _, rf := range cal.Readings {
+				if math.Abs(rf.Residual) > 1e-6*math.Max(math.Abs(rf.Value), 1) {
+					t.Errorf("reading %v at %s: predicted %.9g, read %.9g", rf.What, rf.Where, rf.Predicted, rf.Value)
+				}
+			}
+		})
+	}
+}
