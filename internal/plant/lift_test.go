@@ -2,7 +2,9 @@ package plant
 
 import (
 	"context"
+	"errors"
 	"math"
+	"strings"
 	"testing"
 
 	"flowset/internal/hydraulics"
@@ -99,5 +101,18 @@ func TestLiftRefused(t *testing.T) {
 	}
 	if _, err := m.Solve(context.Background(), m.Design(), m.States[0]); err == nil {
 		t.Fatal("a pump differential below the static lift solved")
+	}
+}
+
+// TestLiftAbovePump checks that a pump whose shut-off head at maximum
+// speed does not reach the static lift is refused when the model is built.
+func TestLiftAbovePump(t *testing.T) {
+	s := liftSite(30, 40000, 40, 0, 80e3, 0.012) // 30 m shut-off, 1.2 max speed: 43.2 m
+	if _, err := New(s); err != nil {
+		t.Fatalf("a lift of 40 m under a 43.2 m shut-off refused: %v", err)
+	}
+	s.StaticLift = 44
+	if _, err := New(s); !errors.Is(err, ErrModel) || !strings.Contains(err.Error(), "does not reach the static lift") {
+		t.Fatalf("New: %v, want the lift refused", err)
 	}
 }

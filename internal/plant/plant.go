@@ -177,6 +177,14 @@ func New(s *site.Site) (*Model, error) {
 			return nil, fmt.Errorf("pump curve: %w", err)
 		}
 		m.Pump, m.PumpFit = &c, rep
+		if lift := m.Lift(); lift > 0 {
+			// An open circuit whose pump cannot reach the outlet even
+			// flat out would be solved with the water running backwards.
+			if h := c.AtSpeed(m.MaxSpeed()).ShutOff(); !(h*m.Fluid.Density*hydraulics.StandardGravity > lift) {
+				return nil, fmt.Errorf("site sheet: the pump's shut-off head at its maximum speed, %.2f m, does not reach the static lift and outlet pressure, %.2f m: no water would reach the outlet: %w",
+					h, lift/(m.Fluid.Density*hydraulics.StandardGravity), ErrModel)
+			}
+		}
 	}
 	m.States, err = m.states()
 	if err != nil {
