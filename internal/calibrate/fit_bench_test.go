@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"os"
 	"testing"
 
 	"flowset/internal/cpuclock"
@@ -59,6 +60,41 @@ func BenchmarkFitSurvey(b *testing.B) {
 		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
 			s, _, err := synth.Generate(ctx, synth.Spec{Branches: nb, Arrangement: site.DirectReturn, Nested: true,
 				Seed: 7, Fouled: 0.05, Free: 0.02, Noise: 1, States: 1})
+			if err != nil {
+				b.Fatal(err)
+			}
+			m := mustModel(b, s)
+			var cal *Calibration
+			cpu := cpuclock.Start()
+			for b.Loop() {
+				if cal, err = Fit(ctx, m, nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+			cpu.Report(b)
+			b.ReportMetric(float64(cal.Solves), "solves")
+			b.ReportMetric(float64(cal.Iterations), "steps")
+			b.ReportMetric(float64(len(cal.Outliers())), "outliers")
+			b.ReportMetric(float64(len(cal.Readings)), "readings")
+		})
+	}
+}
+
+// BenchmarkFitRisers fits the survey of a large building's generated site
+// (risers of about 30 terminals on a direct-return main, 70 % of the flows by
+// valve meter with the valve differential, 30 % by clamp-on, half the
+// branches with a branch differential, 5 % of the terminals fouled; the
+// site of the cli's BenchmarkRunRisers). 100,000 branches only with
+// FLOWSET_BENCH_LARGE set and not under -short.
+func BenchmarkFitRisers(b *testing.B) {
+	ctx := context.Background()
+	for _, nb := range []int{1000, 10000, 100000} {
+		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			if nb >= 100000 && (testing.Short() || os.Getenv("FLOWSET_BENCH_LARGE") == "") {
+				b.Skip("100,000 branches: set FLOWSET_BENCH_LARGE=1 (takes minutes)")
+			}
+			s, _, err := synth.Generate(ctx, synth.Spec{Branches: nb, Arrangement: site.DirectReturn, RiserTerminals: 30,
+				Seed: 7, Fouled: 0.05, Noise: 1, States: 1, Readings: synth.SurveyMix()})
 			if err != nil {
 				b.Fatal(err)
 			}

@@ -7,8 +7,11 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"testing"
 
+	"flowset/internal/cpuclock"
 	"flowset/internal/site"
 	"flowset/internal/synth"
 )
@@ -17,8 +20,25 @@ import (
 // and a one-state survey) into a folder and returns it.
 func writeSynthetic(tb testing.TB, n int) string {
 	tb.Helper()
-	s, _, err := synth.Generate(context.Background(), synth.Spec{Branches: n, Arrangement: site.DirectReturn, Nested: true,
+	return writeSpec(tb, synth.Spec{Branches: n, Arrangement: site.DirectReturn, Nested: true,
 		Seed: 7, Fouled: 0.05, Free: 0.02, Noise: 1, States: 1})
+}
+
+// risersSpec is a large building's site of n branches: risers of about 30
+// terminals (radiators, fan coils, a few air-handler coils) on a
+// direct-return main, 5 % of the terminals fouled, one survey state read
+// with synth.SurveyMix (70 % valve meter with the valve differential, 30 %
+// clamp-on, half with a branch differential; about 14 % of the valve
+// differentials below 3 kPa at 1,000 branches, 20 % at 10,000).
+func risersSpec(n int) synth.Spec {
+	return synth.Spec{Branches: n, Arrangement: site.DirectReturn, RiserTerminals: 30,
+		Seed: 7, Fouled: 0.05, Noise: 1, States: 1, Readings: synth.SurveyMix()}
+}
+
+// writeSpec writes the site generated from spec into a folder and returns it.
+func writeSpec(tb testing.TB, spec synth.Spec) string {
+	tb.Helper()
+	s, _, err := synth.Generate(context.Background(), spec)
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -54,6 +74,68 @@ func BenchmarkRun(b *testing.B) {
 			}
 			b.ReportMetric(float64(size), "report-bytes")
 		})
+	}
+}
+
+// largeBench says whether the 100,000-branch benchmarks run: they take
+// minutes, so only with FLOWSET_BENCH_LARGE set and not under -short.
+func largeBench(b *testing.B, n int) {
+	if n >= 100000 && (testing.Short() || os.Getenv("FLOWSET_BENCH_LARGE") == "") {
+		b.Skip("100,000 branches: set FLOWSET_BENCH_LARGE=1 (takes minutes)")
+	}
+}
+
+// BenchmarkRunRisers is the whole job on a large building's generated site
+// (risersSpec: risers of about 30 terminals, 70 % of the flows by valve
+// meter, small valve differentials, 5 % fouled). It reports the process CPU
+// time per run (the machine is shared) and the report's size.
+func BenchmarkRunRisers(b *testing.B) {
+	for _, n := range []int{1000, 10000, 100000} {
+		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
+			largeBench(b, n)
+			dir := writeSpec(b, risersSpec(n))
+			out := filepath.Join(b.TempDir(), "out")
+			var size int64
+			cpu := cpuclock.Start()
+			for b.Loop() {
+				var so, se bytes.Buffer
+				if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK && code != ExitShort {
+					b.Fatalf("run: exit %d: %s", code, se.String())
+				}
+				st, err := os.Stat(filepath.Join(out, "report.html"))
+				if err != nil {
+					b.Fatal(err)
+				}
+				size = st.Size()
+			}
+			cpu.Report(b)
+			b.ReportMetric(float64(size), "report-bytes")
+		})
+	}
+}
+
+// TestWriteRisersSite writes the BenchmarkRunRisers site of
+// FLOWSET_RISERS_SITE=N:DIR branches into DIR, for timing the binary
+// (/usr/bin/time -v flowset run DIR); skipped without the variable.
+func TestWriteRisersSite(t *testing.T) {
+	v := os.Getenv("FLOWSET_RISERS_SITE")
+	if v == "" {
+		t.Skip("set FLOWSET_RISERS_SITE=N:DIR to write a site")
+	}
+	ns, dir, ok := strings.Cut(v, ":")
+	n, err := strconv.Atoi(ns)
+	if !ok || err != nil {
+		t.Fatalf("FLOWSET_RISERS_SITE=%q, want N:DIR", v)
+	}
+	s, _, err := synth.Generate(context.Background(), risersSpec(n))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) }); err != nil {
+		t.Fatal(err)
 	}
 }
 

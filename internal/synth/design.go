@@ -148,6 +148,9 @@ type designer struct {
 	top  []node
 	// leaves are the rows of terminal branches, in sheet order.
 	leaves []int
+	// units are the building terminals drawn (Spec.RiserTerminals), by
+	// leaf.
+	units []unitDraw
 	// The pipe catalogue's sizes the designer picks from.
 	copper, steel, header []pipeChoice
 }
@@ -164,6 +167,21 @@ func (d *designer) layout() {
 	}
 	for pos := 1; len(d.s.Branches) < n; pos++ {
 		left := n - len(d.s.Branches)
+		if rt := d.spec.RiserTerminals; rt > 0 && left >= 4 {
+			k := int(math.Round(float64(rt) * (0.8 + 0.4*d.rng.Float64())))
+			k = min(max(k, 3), left-1)
+			if left-1-k < 4 {
+				k = left - 1 // no stub riser at the end
+			}
+			id := fmt.Sprintf("R%d", pos)
+			nd := node{branch: row(id, "")}
+			for c := 1; c <= k; c++ {
+				nd.children = append(nd.children, row(fmt.Sprintf("%s.%d", id, c), id))
+			}
+			d.leaves = append(d.leaves, nd.children...)
+			d.top = append(d.top, nd)
+			continue
+		}
 		if d.spec.Nested && left >= 4 && d.rng.Float64() < 0.25 {
 			k := min(3+d.rng.IntN(4), left-1)
 			id := fmt.Sprintf("R%d", pos)
@@ -186,9 +204,13 @@ func (d *designer) terminals() {
 	flows := make([]float64, len(d.leaves))
 	var total float64
 	for k := range d.leaves {
-		// Log-uniform over 0.05-3 l/s, to 0.01 l/s.
-		q := math.Exp(math.Log(0.05e-3) + d.rng.Float64()*math.Log(3/0.05))
-		flows[k] = math.Max(0.05e-3, math.Round(q*1e5)/1e5)
+		if d.spec.RiserTerminals > 0 {
+			flows[k] = d.unit(k).flow
+		} else {
+			// Log-uniform over 0.05-3 l/s, to 0.01 l/s.
+			q := math.Exp(math.Log(0.05e-3) + d.rng.Float64()*math.Log(3/0.05))
+			flows[k] = math.Max(0.05e-3, math.Round(q*1e5)/1e5)
+		}
 		total += flows[k]
 	}
 	scale := 1.0
@@ -207,11 +229,43 @@ func (d *designer) terminals() {
 		b.PipeLength = math.Round(10 + 50*d.rng.Float64())
 		b.FittingsK = math.Round(4 + 8*d.rng.Float64())
 		b.TerminalDrop = math.Round(20+60*d.rng.Float64()) * 500 // 10-40 kPa in 0.5 kPa
+		if d.spec.RiserTerminals > 0 {
+			u := d.units[k]
+			b.TerminalDrop = math.Round(u.drop/500) * 500
+			b.Note = u.kind
+		}
 		if d.rng.Float64() < 0.3 {
 			// A two-port control valve held open, sized for about 15 kPa.
 			b.ControlKvs = sigFigs(b.DesignFlow*3600/math.Sqrt(0.15), 2)
 		}
 	}
+}
+
+// unitDraw is one building terminal drawn by unit.
+type unitDraw struct {
+	kind       string
+	flow, drop float64 // m3/s, Pa
+}
+
+// unit draws the k-th terminal of a building (Spec.RiserTerminals): its kind,
+// design flow (to 0.01 l/s) and terminal drop, and keeps it in d.units.
+func (d *designer) unit(k int) unitDraw {
+	logU := func(lo, hi float64) float64 { return math.Exp(math.Log(lo) + d.rng.Float64()*math.Log(hi/lo)) }
+	var u unitDraw
+	switch x := d.rng.Float64(); {
+	case x < 0.6:
+		u = unitDraw{"radiator", logU(0.05e-3, 0.2e-3), logU(5e3, 15e3)}
+	case x < 0.96:
+		u = unitDraw{"fan coil", logU(0.1e-3, 0.5e-3), logU(15e3, 30e3)}
+	default:
+		u = unitDraw{"air-handler coil", logU(1e-3, 4e-3), logU(20e3, 40e3)}
+	}
+	u.flow = math.Max(0.01e-3, math.Round(u.flow*1e5)/1e5)
+	if len(d.units) <= k {
+		d.units = append(d.units, make([]unitDraw, k+1-len(d.units))...)
+	}
+	d.units[k] = u
+	return u
 }
 
 // risers gives each riser its flow, pipe and the header segments of its

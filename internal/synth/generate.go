@@ -30,6 +30,12 @@ const (
 // as-found settings are not balanced: about 60 % of the valves fully open,
 // the rest anywhere in the upper two thirds of their travel.
 //
+// With Spec.RiserTerminals the site is a building's: risers of about that
+// many terminals on the main, each terminal a radiator (60 %: 0.05-0.2 l/s,
+// 5-15 kPa), a fan coil (36 %: 0.1-0.5 l/s, 15-30 kPa) or an air-handler
+// coil (4 %: 1-4 l/s, 20-40 kPa), all log-uniform (common practice, no
+// source).
+//
 // The survey: readings by Spec.Readings, computed by plant.Solve on the true
 // plant and given Gaussian noise of Spec.Noise times each instrument's
 // standard uncertainty. A reading's Setting is what the handwheel shows,
@@ -85,6 +91,8 @@ func (spec Spec) normal() (Spec, error) {
 		return bad("unknown header arrangement %d", spec.Arrangement)
 	case spec.Boundary < site.PumpCurve || spec.Boundary > site.MeasuredDiff:
 		return bad("unknown boundary %d", spec.Boundary)
+	case spec.RiserTerminals < 0 || spec.RiserTerminals > 1000:
+		return bad("%d terminals a riser, want 0 to 1000", spec.RiserTerminals)
 	case spec.States < 0 || spec.States > MaxStates:
 		return bad("%d states, want 1 to %d", spec.States, MaxStates)
 	case !(spec.Noise >= 0) || math.IsInf(spec.Noise, 0):
@@ -247,6 +255,12 @@ func (d *designer) plan(m *plant.Model, t *Truth) []stateDef {
 		return sel
 	}
 	clamp, meter, vdiff, bdiff := choose(mix.ClampOn), choose(mix.ValveMeter), choose(mix.ValveDiff), choose(mix.BranchDiff)
+	if mix.Paired {
+		for i := range m.Branches {
+			meter[i] = meter[i] && m.Branches[i].Valve != nil
+			clamp[i], vdiff[i] = !meter[i], meter[i]
+		}
+	}
 	var takes []take
 	read := make([]bool, n)
 	for i := range m.Branches {

@@ -47,9 +47,14 @@ type Spec struct {
 	Arrangement site.Arrangement
 	// Nested makes about one in four entries on the main headers a riser
 	// with 3-6 sub-branches (counted in Branches).
-	Nested   bool
-	Boundary site.BoundaryKind
-	Seed     int64
+	Nested bool
+	// RiserTerminals, when above 0, lays the site out as a building's
+	// risers instead: every main take-off a riser of about this many
+	// terminals (within 20 %), the terminals radiators, fan coils and a few
+	// air-handler coils (see Generate). Nested is then ignored.
+	RiserTerminals int
+	Boundary       site.BoundaryKind
+	Seed           int64
 
 	// Fouled, Free, MisSet and Stuck are the fractions of the terminal
 	// (non-riser) branches given each hidden fault; their sum must not
@@ -92,6 +97,12 @@ type ReadingMix struct {
 	HeaderDiff bool // header differential by manometer
 	PumpDiff   bool // pump differential by manometer
 	TotalFlow  bool // pump flow by clamp-on meter
+
+	// Paired reads every branch's flow once: by valve meter at the
+	// ValveMeter share, by clamp-on meter at the others (ClampOn is then
+	// ignored), and the valve differential by manometer at every
+	// valve-metered branch (ValveDiff is then ignored).
+	Paired bool
 }
 
 // DefaultMix is the reading mix of a thorough survey: half the branches by
@@ -101,6 +112,14 @@ type ReadingMix struct {
 func DefaultMix() ReadingMix {
 	return ReadingMix{ClampOn: 0.5, ValveMeter: 0.5, ValveDiff: 0.5, BranchDiff: 0.2,
 		HeaderDiff: true, PumpDiff: true, TotalFlow: true}
+}
+
+// SurveyMix is the reading mix of a large building's survey: 70 % of the
+// branches read by valve meter (with the valve differential at the same
+// tappings), the other 30 % by clamp-on meter, half with their branch
+// differential, and the header and pump differentials and the total flow.
+func SurveyMix() ReadingMix {
+	return ReadingMix{ValveMeter: 0.7, BranchDiff: 0.5, HeaderDiff: true, PumpDiff: true, TotalFlow: true, Paired: true}
 }
 
 // Truth is what a synthetic site really is, hidden from the sheets.
