@@ -10,10 +10,17 @@ import (
 	"flowset/internal/site"
 )
 
+// consoleRows is the most rows a table of the plan gets on the console when
+// the whole table is also written to a file (sheets): a large site's
+// console says what to do and where the full tables are, not thousands of
+// rows.
+const consoleRows = 100
+
 // printVisit prints the plan in the order of work on site, from the same
 // view as the report's first pages: each message once, warnings in one
-// block, no cut cells.
-func printVisit(w io.Writer, j *job) {
+// block, no cut cells. With sheets (the field sheet and report are being
+// written) a table longer than consoleRows is summarised and the file named.
+func printVisit(w io.Writer, j *job, sheets bool) {
 	v := j.visit(j.opts.Units)
 	if len(v.Short) > 0 {
 		fmt.Fprintln(w, "THIS PLAN CANNOT MEET ITS TARGETS")
@@ -49,20 +56,51 @@ func printVisit(w io.Writer, j *job) {
 		fmt.Fprintf(w, "  Energy: %s.\n", e)
 	}
 	fmt.Fprintln(w, "\n4. Valve settings, in adjustment order")
-	wrap(w, "  ", v.OrderReason)
-	table(w, v.Settings)
+	if sheets && len(v.Settings.Rows) > consoleRows {
+		wrap(w, "  ", fmt.Sprintf("%d valves to set (%d to move from where they were found): the settings, in this order, are in field-sheet.csv, field-sheet.xlsx and the report.",
+			len(v.Settings.Rows), moved(v.Settings)))
+	} else {
+		wrap(w, "  ", v.OrderReason)
+		table(w, v.Settings)
+	}
 	if len(v.Remedied.Rows) > 0 {
 		fmt.Fprintf(w, "\n  %s\n", v.Remedied.Title)
-		table(w, v.Remedied)
+		if sheets && len(v.Remedied.Rows) > consoleRows {
+			wrap(w, "  ", "In the report, beside the settings above.")
+			for _, n := range v.Remedied.Notes {
+				wrap(w, "  ", n)
+			}
+		} else {
+			table(w, v.Remedied)
+		}
 	}
 	fmt.Fprintln(w, "\n5. Prove it: read these after setting")
-	table(w, v.Prove)
+	if sheets && len(v.Prove.Rows) > consoleRows {
+		n := len(v.Prove.Rows)
+		v.Prove.Rows = v.Prove.Rows[:consoleRows]
+		table(w, v.Prove)
+		wrap(w, "  ", fmt.Sprintf("... and %d more: the whole list of %d is in the report.", n-consoleRows, n))
+	} else {
+		table(w, v.Prove)
+	}
 	warns := v.Pump.Warnings
 	if len(warns) > 0 {
 		fmt.Fprintln(w, "\nWarnings")
 		bullets(w, warns)
 	}
 	fmt.Fprintln(w, "\nThese are predictions: verify each setting with a reading at the valve's test points.")
+}
+
+// moved counts the rows of a settings table whose valve is set somewhere
+// other than where it was found.
+func moved(t report.Table) int {
+	var n int
+	for _, r := range t.Rows {
+		if r[3] != "" && r[4] != "" && !strings.HasPrefix(r[4], r[3]) {
+			n++
+		}
+	}
+	return n
 }
 
 // planNotes are the plan's own warnings the visit does not already say in

@@ -46,6 +46,11 @@ type job struct {
 	// margin raises the index branch's target (by ID) to cover the
 	// uncertainty of what it needs (see indexMargin); nil for none.
 	margin map[string]float64
+	// flowsRead and flags are flowRead's and flagsOf's answers by branch,
+	// worked out once: looked up per branch, a scan of every reading or
+	// finding made the tables quadratic in the size of the site.
+	flowsRead map[string]float64
+	flags     map[string]string
 }
 
 // progress reports long steps on stderr when it is a terminal.

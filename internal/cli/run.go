@@ -255,14 +255,17 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	case !o.Quiet:
 		// The order of work first; the fit behind it after, as in the
 		// report's appendix.
+		// With the report and sheets written, a large site's tables go to
+		// them and the console keeps what needs action.
+		sheets := o.Out != "" && o.writeReport && o.writePlan
 		if o.writePlan {
-			printVisit(ios.Out, j)
+			printVisit(ios.Out, j, sheets)
 		}
 		if o.writeFit && o.writePlan {
 			fmt.Fprintln(ios.Out, "\nThe model behind the plan")
 		}
 		if o.writeFit {
-			printFit(ios.Out, j)
+			printFit(ios.Out, j, sheets)
 		}
 	}
 	if o.Out == "" {
@@ -346,7 +349,10 @@ func (j *job) shortErr(o *runOptions) error {
 	return nil
 }
 
-func printFit(w io.Writer, j *job) {
+// printFit prints the fit: its verdict, a row per branch (with sheets, on a
+// site of more than consoleRows branches, only those with a finding) and the
+// findings.
+func printFit(w io.Writer, j *job, sheets bool) {
 	switch c := j.Cal; {
 	case c == nil && len(j.L.Site.Readings) > 0:
 		fmt.Fprintln(w, "Design only: the readings are not used; the model stays at design.")
@@ -366,7 +372,11 @@ func printFit(w io.Writer, j *job) {
 	u := j.opts.Units
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "branch\tresistance ÷ design (95 %% range)\tvalve\tflow as found (%s)\tdesign (%s)\tflags\n", u.FlowUnit, u.FlowUnit)
+	short := sheets && len(j.L.Model.Branches) > consoleRows
 	for i, b := range j.L.Model.Branches {
+		if short && j.flagsOf(b.ID) == "" {
+			continue // the whole table is in calibration.csv
+		}
 		ratio, valve := "-", "-"
 		if j.Cal != nil {
 			bf := j.Cal.Branches[i]
@@ -381,13 +391,16 @@ func printFit(w io.Writer, j *job) {
 		if q, ok := j.flowRead(b.ID); ok {
 			flow = u.flowNum(q) + " (read)"
 		}
-		flags := flagsOf(j.Findings, b.ID)
+		flags := j.flagsOf(b.ID)
 		if flags == "" {
 			flags = "-"
 		}
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", b.ID, ratio, valve, flow, u.flowNum(b.Design), flags)
 	}
 	tw.Flush()
+	if short {
+		wrap(w, "", fmt.Sprintf("The branches with a finding, of %d: every branch is in calibration.csv and the report.", len(j.L.Model.Branches)))
+	}
 	if len(j.Findings) > 0 {
 		fmt.Fprintln(w, "\nFindings")
 		for _, f := range j.Findings {
@@ -405,21 +418,26 @@ func printFit(w io.Writer, j *job) {
 // or other independent reading first, else the valve meter's; false when the
 // survey read none.
 func (j *job) flowRead(id string) (float64, bool) {
-	var meter float64
-	found := false
-	for _, ri := range j.Before.State.Readings {
-		r := j.L.Site.Readings[ri]
-		if r.Where != id || !r.What.IsFlow() {
-			continue
-		}
-		if r.Instrument != "valve-meter" {
-			return r.Value, true
-		}
-		if !found {
-			meter, found = r.Value, true
+	if j.flowsRead == nil {
+		j.flowsRead = map[string]float64{}
+		clamp := map[string]bool{}
+		for _, ri := range j.Before.State.Readings {
+			r := j.L.Site.Readings[ri]
+			if !r.What.IsFlow() || clamp[r.Where] {
+				continue
+			}
+			if r.Instrument != "valve-meter" {
+				// The first reading not by valve meter wins.
+				j.flowsRead[r.Where], clamp[r.Where] = r.Value, true
+				continue
+			}
+			if _, ok := j.flowsRead[r.Where]; !ok {
+				j.flowsRead[r.Where] = r.Value
+			}
 		}
 	}
-	return meter, found
+	q, ok := j.flowsRead[id]
+	return q, ok
 }
 
 // printJSON prints the job's result as one JSON document on w: the fit

@@ -81,10 +81,8 @@ func (j *job) remedies(ctx context.Context) error {
 
 // branchIndex is the model index of branch id, or -1.
 func (j *job) branchIndex(id string) int {
-	for i := range j.L.Model.Branches {
-		if j.L.Model.Branches[i].ID == id {
-			return i
-		}
+	if i, ok := j.L.Model.Index(id); ok {
+		return i
 	}
 	return -1
 }

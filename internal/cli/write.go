@@ -195,17 +195,22 @@ func findingsJSON(fs []diagnose.Finding) []findingJSON {
 	return out
 }
 
-func flagsOf(fs []diagnose.Finding, id string) string {
-	var s string
-	for _, f := range fs {
-		if f.Branch == id && f.Reading == "" {
-			if s != "" {
-				s += " "
+// flagsOf is the codes of branch id's findings (not those on a reading),
+// space-separated; "" when it has none.
+func (j *job) flagsOf(id string) string {
+	if j.flags == nil {
+		j.flags = map[string]string{}
+		for _, f := range j.Findings {
+			if f.Reading == "" {
+				if s := j.flags[f.Branch]; s != "" {
+					j.flags[f.Branch] = s + " " + f.Code.String()
+				} else {
+					j.flags[f.Branch] = f.Code.String()
+				}
 			}
-			s += f.Code.String()
 		}
 	}
-	return s
+	return j.flags[id]
 }
 
 func paramOut(p calibrate.ParamFit) paramJSON {
@@ -233,7 +238,7 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 	for i, b := range c.Branches {
 		out.Branches = append(out.Branches, branchFitJSON{ID: b.ID, Fitted: b.Fitted, Ratio: num(b.Ratio), Lo95: num(b.Lo), Hi95: num(b.Hi),
 			SDLn: num(b.SD), Determined: b.Determined, KvFitted: b.KvFitted, KvScale: num(b.KvScale), KvLo95: num(b.KvLo), KvHi95: num(b.KvHi),
-			Valve: b.Valve.Hypothesis.String(), Flags: flagsOf(j.Findings, b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
+			Valve: b.Valve.Hypothesis.String(), Flags: j.flagsOf(b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
 	}
 	for _, r := range c.Readings {
 		sr := j.L.Site.Readings[r.Index]
@@ -254,7 +259,7 @@ func (j *job) fitRows() ([]string, [][]string) {
 		if q, ok := j.flowRead(b.ID); ok {
 			found, from = q, "reading"
 		}
-		r := []string{b.ID, "", "", "", "", "", "", f3(found * 1000), from, f3(b.Design * 1000), flagsOf(j.Findings, b.ID)}
+		r := []string{b.ID, "", "", "", "", "", "", f3(found * 1000), from, f3(b.Design * 1000), j.flagsOf(b.ID)}
 		if j.Cal != nil {
 			bf := j.Cal.Branches[i]
 			if bf.Fitted {

@@ -18,6 +18,9 @@ type plan struct {
 	pa, pb   []int // per link: band position of its from and to node, -1 if fixed
 	from, to []int // per link: its from and to node
 	k        int   // half bandwidth
+	// sp, when set, replaces the band: positions are in minimum-degree
+	// order and the factor is sparse (see sparseAbove).
+	sp *sparsePlan
 }
 
 // prepare validates the topology and returns the (cached) plan.
@@ -33,6 +36,18 @@ func (n *Network) prepare() (*plan, error) {
 	if err := n.validateTopology(); err != nil {
 		return nil, err
 	}
+	pl, err := n.newPlan(true)
+	if err != nil {
+		return nil, err
+	}
+	n.plan = pl
+	return pl, nil
+}
+
+// newPlan orders the free nodes of a valid topology: reverse Cuthill-McKee
+// for the band, or, when sparse is allowed and the band is wide, minimum
+// degree for a sparse factor (see sparseAbove).
+func (n *Network) newPlan(sparse bool) (*plan, error) {
 	nn := len(n.nodeID)
 	free := make([]bool, nn)
 	for i := range nn {
@@ -59,10 +74,25 @@ func (n *Network) prepare() (*plan, error) {
 			pl.k = max(pl.k, a-b, b-a)
 		}
 	}
-	if pl.nFree*(pl.k+1) > maxBandFloats {
+	if sparse && pl.k > sparseAbove {
+		order, cols := minimumDegree(adj, free)
+		var nnz int
+		for _, c := range cols {
+			nnz += len(c)
+		}
+		if nnz+pl.nFree < pl.nFree*(pl.k+1)/4 {
+			for p, node := range order {
+				pl.pos[node] = p
+			}
+			for i, l := range n.links {
+				pl.pa[i], pl.pb[i] = pl.pos[l.from], pl.pos[l.to]
+			}
+			pl.sp = newSparsePlan(cols, pl.pos, n.links)
+		}
+	}
+	if pl.sp == nil && pl.nFree*(pl.k+1) > maxBandFloats {
 		return nil, fmt.Errorf("%d unknown pressures with half bandwidth %d after reordering: %w", pl.nFree, pl.k, ErrTooWide)
 	}
-	n.plan = pl
 	return pl, nil
 }
 

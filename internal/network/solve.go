@@ -83,8 +83,8 @@ type Solution struct {
 	MaxEnergyError float64 // largest |Drop - (p_from - p_to)| over links, Pa
 
 	pl   *plan
-	d    []float64   // the (floored) slopes of the factorised matrix
-	chol *bandFactor // factor of A21 D^-1 A12 at the solution
+	d    []float64 // the (floored) slopes of the factorised matrix
+	chol factorer  // factor of A21 D^-1 A12 at the solution
 }
 
 // ConvergenceError reports a Solve that stopped before meeting its
@@ -420,7 +420,7 @@ type system struct {
 	wc     []float64 // continuity weights 1/S_jj: turn m3/s into Pa
 	band   []float64 // S, factorised in place; handed to the Solution
 	rdiag  []float64 // reciprocals of the factor's diagonal; handed to the Solution
-	chol   *bandFactor
+	chol   factorer
 }
 
 func newSystem(pl *plan, nl int) *system {
@@ -456,6 +456,16 @@ func (sy *system) factor(slopes []float64) error {
 		if pl.nFree == 0 {
 			return nil
 		}
+		if pl.sp != nil {
+			if sy.factorSparse() {
+				return nil
+			}
+			if attempt == floorRetries {
+				return fmt.Errorf("node matrix not positive definite (link slopes %g to %g Pa s/m3): %w", floor, smax, ErrNoConvergence)
+			}
+			floor *= 1e3
+			continue
+		}
 		if sy.band == nil {
 			sy.band = make([]float64, pl.nFree*(pl.k+1))
 			sy.rdiag = make([]float64, pl.nFree)
@@ -490,6 +500,39 @@ func (sy *system) factor(slopes []float64) error {
 		}
 		floor *= 1e3
 	}
+}
+
+// factorSparse assembles S = A21 D^-1 A12 on the sparse plan's structure
+// (diagonal first in sy.band, then the entries below it) and factorises it;
+// false when S is not positive definite.
+func (sy *system) factorSparse() bool {
+	pl := sy.pl
+	sp := pl.sp
+	if sy.band == nil {
+		sy.band = make([]float64, pl.nFree+len(sp.row))
+		sy.rdiag = make([]float64, pl.nFree)
+	}
+	clear(sy.band)
+	diag, val := sy.band[:pl.nFree], sy.band[pl.nFree:]
+	pa, pb := pl.pa[:len(sy.invD)], pl.pb[:len(sy.invD)]
+	for i, g := range sy.invD {
+		a, b := pa[i], pb[i]
+		if a >= 0 {
+			diag[a] += g
+		}
+		if b >= 0 {
+			diag[b] += g
+		}
+		if e := sp.entry[i]; e >= 0 {
+			val[e] -= g
+		}
+	}
+	for j := range sy.wc {
+		sy.wc[j] = 1 / diag[j]
+	}
+	var ok bool
+	sy.chol, ok = factorSparse(sp, diag, val, sy.rdiag)
+	return ok
 }
 
 // step solves S dp = C - A21 D^-1 E, dq = -D^-1 (E + A12 dp) for the

@@ -194,7 +194,17 @@ func render(s *Site) []outSheet {
 		tg := columnSheet(&targetColumns)
 		tg.help = nil
 		ids := sortedKeys(s.Targets)
-		slices.SortStableFunc(ids, func(a, b string) int { return branchIndex(s, a) - branchIndex(s, b) })
+		row := make(map[string]int, len(s.Branches))
+		for i := range s.Branches {
+			row[s.Branches[i].ID] = i
+		}
+		at := func(id string) int {
+			if i, ok := row[id]; ok {
+				return i
+			}
+			return len(s.Branches)
+		}
+		slices.SortStableFunc(ids, func(a, b string) int { return at(a) - at(b) })
 		for _, id := range ids {
 			tg.rows = append(tg.rows, cellsOf(&targetColumns, map[string]any{"branch": id, "target flow": s.Targets[id]}))
 		}
@@ -248,15 +258,6 @@ func given(x float64) float64 {
 		return x
 	}
 	return nan
-}
-
-func branchIndex(s *Site, id string) int {
-	for i := range s.Branches {
-		if s.Branches[i].ID == id {
-			return i
-		}
-	}
-	return len(s.Branches)
 }
 
 // cellsOf lays values out in the schema's column order, converting SI
