@@ -123,6 +123,17 @@ type FitOptions struct {
 	// up to MatrixFreeAbove parameters, of the tested branch alone above);
 	// 0: DefaultMaxValveTests.
 	MaxValveTests int
+	// Progress, when set, is told as each stage of the fit begins (done
+	// and total 0) and, in the valve tests, after each test (done of
+	// total), so a caller can show progress on a long fit.
+	Progress func(stage string, done, total int)
+}
+
+// progress tells o.Progress, when set, where the fit has got to.
+func (o *FitOptions) progress(stage string, done, total int) {
+	if o.Progress != nil {
+		o.Progress(stage, done, total)
+	}
 }
 
 // DefaultMaxValveTests is the default cap on valve hypothesis tests.
@@ -398,11 +409,13 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 			hyp[i] = FollowsTable
 		}
 	}
+	o.progress("first pass", 0, 0)
 	base, err := su.run(ctx, hyp, su.allObs(), nil, o.OutlierZ, false)
 	if err != nil {
 		return nil, err
 	}
 	if o.FaultShare > 0 && !math.IsInf(o.PriorResistance, 1) {
+		o.progress("second pass under the mixture prior", 0, 0)
 		// Second pass under the mixture prior: each branch's prior is the
 		// component its readings favour. Its outlier test starts afresh:
 		// carrying the first pass's outliers over set aside good readings
@@ -423,6 +436,7 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 		if fin, err = su.hypotheses(ctx, base, verdicts); err != nil {
 			return nil, err
 		}
+		o.progress("doubted flow readings", 0, 0)
 		if fin, su.doubted, err = su.doubtFlows(ctx, fin, verdicts); err != nil {
 			return nil, err
 		}

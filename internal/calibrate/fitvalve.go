@@ -109,7 +109,11 @@ func (su *setup) hypotheses(ctx context.Context, base *fitRun, verdicts []ValveV
 	finalHyp := slices.Clone(base.hyp)
 	var adopted []*fitRun
 	cands := su.candidates(base)
+	tests := min(len(cands), su.opt.MaxValveTests)
 	for k, i := range cands {
+		if k < tests {
+			su.opt.progress("valve tests", k, tests)
+		}
 		if k >= su.opt.MaxValveTests {
 			verdicts[i].Note = fmt.Sprintf("suspect, but not tested: only the %d most suspect valves are", su.opt.MaxValveTests)
 			continue

@@ -70,13 +70,37 @@ func (p *progress) step(format string, a ...any) {
 	}
 }
 
+// fit returns the calibration's progress callback (nil when progress is
+// off): each stage of the fit on a line, and in a stage that counts its
+// work (the valve tests) the time it still needs at the pace so far.
+func (p *progress) fit() func(stage string, done, total int) {
+	if !p.on {
+		return nil
+	}
+	var began time.Time
+	return func(stage string, done, total int) {
+		switch {
+		case done == 0:
+			began = time.Now()
+			if total > 0 {
+				p.step("  fit: %s (%d)", stage, total)
+			} else {
+				p.step("  fit: %s", stage)
+			}
+		case total > 0:
+			left := time.Since(began).Seconds() / float64(done) * float64(total-done)
+			p.step("  fit: %s, %d of %d done, about %.0f s left in them", stage, done, total, math.Ceil(left))
+		}
+	}
+}
+
 // calibrateSite fits the survey, or returns nil when there is nothing to fit.
 func calibrateSite(ctx context.Context, l *loaded, pr *progress) (*calibrate.Calibration, error) {
 	if len(l.Site.Readings) == 0 {
 		return nil, nil
 	}
 	pr.step("fitting %d readings in %d survey state(s) to %d branches", len(l.Site.Readings), len(l.Model.States), len(l.Model.Branches))
-	cal, err := calibrate.Fit(ctx, l.Model, nil)
+	cal, err := calibrate.Fit(ctx, l.Model, &calibrate.FitOptions{Progress: pr.fit()})
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("calibration: %w", err)}
 	}
