@@ -14,6 +14,7 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -514,5 +515,88 @@ func TestCurvesOpenCircuit(t *testing.T) {
 	}
 	if code, _, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out")); code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	}
+}
+
+// TestOpenCircuitLikeClosed lifts the demo site consistently: a static lift
+// and an outlet pressure, the pump curve raised by them and every pump
+// differential read raised by as much. The friction is the closed demo's,
+// so the plan must set every valve as for the demo and ask the pump for
+// the demo's differentials plus the lift (the fitted pump-head multiplier
+// now scales the lift too, hence the small tolerances).
+func TestOpenCircuitLikeClosed(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.CopyFS(dir, os.DirFS(surveyDir("demo"))); err != nil {
+		t.Fatal(err)
+	}
+	appendLine(t, filepath.Join(dir, "site.csv"), "static lift [m],4\noutlet pressure [kPa],15")
+	l, err := loadSite(context.Background(), dir, io.Discard)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lift := l.Model.Lift()
+	rg := l.Model.Fluid.Density * 9.80665
+	rewrite := func(name string, col int, add float64) {
+		t.Helper()
+		path := filepath.Join(dir, name)
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		rows, err := csv.NewReader(bytes.NewReader(b)).ReadAll()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, r := range rows[1:] {
+			if name == "readings.csv" && r[2] != "pump diff" {
+				continue
+			}
+			var v float64
+			if _, err := fmt.Sscan(r[col], &v); err != nil {
+				t.Fatal(err)
+			}
+			r[col] = strconv.FormatFloat(v+add, 'g', -1, 64)
+		}
+		var out bytes.Buffer
+		w := csv.NewWriter(&out)
+		w.WriteAll(rows)
+		if err := os.WriteFile(path, out.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	rewrite("pump.csv", 1, lift/rg)       // head [m]
+	rewrite("readings.csv", 3, lift/1000) // pump diff [kPa]
+	plan := func(site string) map[string]any {
+		t.Helper()
+		code, out, errs := run(t, "plan", "--json", site)
+		if code != ExitOK {
+			t.Fatalf("plan %s: exit %d: %s", site, code, errs)
+		}
+		var v map[string]any
+		if err := json.Unmarshal([]byte(out), &v); err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	closed, open := plan(surveyDir("demo")), plan(dir)
+	for _, k := range []string{"least_differential_pa", "required_differential_pa"} {
+		c, o := closed[k].(float64), open[k].(float64)
+		if math.Abs(o-c-lift) > 1e-4*c {
+			t.Errorf("%s: %.1f Pa open, %.1f Pa closed: differ by %.1f Pa, want the lift %.1f Pa", k, o, c, o-c, lift)
+		}
+	}
+	cb, ob := closed["branches"].([]any), open["branches"].([]any)
+	if len(cb) != len(ob) || len(cb) == 0 {
+		t.Fatalf("%d branches closed, %d open", len(cb), len(ob))
+	}
+	for i := range cb {
+		c, o := cb[i].(map[string]any), ob[i].(map[string]any)
+		if c["new_setting"] != o["new_setting"] {
+			t.Errorf("branch %v: setting %v open, %v closed", c["branch"], o["new_setting"], c["new_setting"])
+		}
+		cq, oq := c["predicted_m3_s"].(float64), o["predicted_m3_s"].(float64)
+		if math.Abs(oq/cq-1) > 1e-4 {
+			t.Errorf("branch %v: predicted flow %.6g open, %.6g closed", c["branch"], oq, cq)
+		}
 	}
 }

@@ -209,7 +209,14 @@ func indexMargin(j *job, plan *balance.Plan) (string, float64, float64) {
 	if j.Cal == nil || len(plan.Unmet) > 0 || !(plan.Least > 0) || !(plan.LeastHigh > plan.Least) || j.opts.Scale != 1 && j.opts.Scale != 0 {
 		return "", 0, 0
 	}
-	f := min(math.Sqrt(1+(plan.LeastHigh/plan.Least-1)/2)-1, maxIndexMargin)
+	// Flows go as the square root of the friction they overcome: an open
+	// circuit's static lift, in both least differentials, is not part of
+	// it.
+	friction := plan.Least - j.L.Model.Lift()
+	if !(friction > 0) {
+		return "", 0, 0
+	}
+	f := min(math.Sqrt(1+(plan.LeastHigh-plan.Least)/friction/2)-1, maxIndexMargin)
 	if f < 0.002 {
 		return "", 0, 0
 	}
