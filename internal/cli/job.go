@@ -212,7 +212,10 @@ func indexMargin(j *job, plan *balance.Plan) (string, float64, float64) {
 	// Flows go as the square root of the friction they overcome: an open
 	// circuit's static lift, in both least differentials, is not part of
 	// it.
-	friction := plan.Least - j.L.Model.Lift()
+	friction := plan.Least
+	if j.L != nil && j.L.Model != nil {
+		friction -= j.L.Model.Lift()
+	}
 	if !(friction > 0) {
 		return "", 0, 0
 	}
