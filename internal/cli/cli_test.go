@@ -513,8 +513,12 @@ func TestCurvesOpenCircuit(t *testing.T) {
 	if code, out, _ := run(t, "curves", dir); code != ExitOK || !strings.Contains(out, "open circuit: the system curve starts at the static lift, 53.4 kPa at no flow") {
 		t.Errorf("curves table: exit %d\n%s", code, out)
 	}
-	if code, _, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out")); code != ExitOK && code != ExitShort {
+	code, out, errs = run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out"))
+	if code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	}
+	if want := "53.4 kPa lifts the water to the open outlet"; !strings.Contains(strings.Join(strings.Fields(out), " "), want) {
+		t.Errorf("run's pump step does not say %q:\n%s", want, out)
 	}
 }
 

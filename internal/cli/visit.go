@@ -401,6 +401,11 @@ func (j *job) pumpStep(u display) report.PumpStep {
 			st.Warnings = append(st.Warnings, fmt.Sprintf("The set point rises from %s to %s: check the pressure ratings of the pipework, valves and equipment it serves before raising it.", u.diff(j.Before.State.Differential), u.diff(pp.SetPoint)))
 		}
 	}
+	if lift := j.L.Model.Lift(); lift > 0 {
+		// An open circuit: part of what the pump gives is not friction,
+		// and no balancing lowers it.
+		st.Where += fmt.Sprintf("; of its differential, %s lifts the water to the open outlet (static lift and outlet pressure), which no valve setting changes", u.diff(lift))
+	}
 	if j.short() {
 		st.Warnings = append(st.Warnings, "The pump cannot give what the targets need: see the top of this report.")
 	}
