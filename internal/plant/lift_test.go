@@ -116,3 +116,45 @@ func TestLiftAbovePump(t *testing.T) {
 		t.Fatalf("New: %v, want the lift refused", err)
 	}
 }
+
+// TestMeasuredDifferentialWithLift checks the measured-differential
+// boundary of an open circuit: a pump differential read holds the lift, a
+// header differential read does not, so a pump reading of header + lift
+// drives the same flow, Q = sqrt(friction / b) (square law).
+func TestMeasuredDifferentialWithLift(t *testing.T) {
+	const lift, drop, qr = 12.0, 80e3, 0.012
+	s := liftSite(30, 40000, lift, 0, drop, qr)
+	s.Boundary = site.Boundary{Kind: site.MeasuredDiff, Speed: 1, MaxSpeed: 1, SetPoint: math.NaN(), Sensor: site.AtPump}
+	s.Pump = nil
+	nan := math.NaN()
+	m0, err := New(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rg := m0.Fluid.Density * hydraulics.StandardGravity
+	const friction = 60e3 // Pa
+	s.Readings = []site.Reading{
+		{State: "pump read", Where: site.AtPump, What: site.PumpDiff, Value: friction + rg*lift, Setting: nan, Sigma: 1},
+		{State: "header read", Where: site.AtHeader, What: site.HeaderDiff, Value: friction, Setting: nan, Sigma: 1},
+	}
+	m, err := New(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := qr * math.Sqrt(friction/drop)
+	for _, st := range m.States {
+		sol, err := m.Solve(context.Background(), m.Design(), st)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := sol.TotalFlow(); math.Abs(got/want-1) > 1e-9 {
+			t.Errorf("state %q: flow %.9g, want %.9g", st.Label, got, want)
+		}
+		if got := sol.HeaderDiff(); math.Abs(got/friction-1) > 1e-9 {
+			t.Errorf("state %q: header differential %.6g, want %.6g", st.Label, got, friction)
+		}
+		if got := sol.PumpDiff(); math.Abs(got/(friction+rg*lift)-1) > 1e-9 {
+			t.Errorf("state %q: pump differential %.6g, want %.6g", st.Label, got, friction+rg*lift)
+		}
+	}
+}

@@ -250,7 +250,8 @@ the column name, e.g. "design flow [m3/h]". A unit of the wrong kind, e.g.
 kPa on a flow column, is an error. Unit names are case-sensitive (mbar is
 not Mbar). Accepted units by kind:
 `)
-	for _, k := range []units.Kind{units.Flow, units.Pressure, units.Length, units.Temperature, units.Head, units.Dimensionless} {
+	for _, k := range []units.Kind{units.Flow, units.Pressure, units.Length, units.Temperature, units.Head, units.Dimensionless,
+		units.Density, units.Viscosity, units.KinematicViscosity} {
 		label := k.String()
 		if k == units.Dimensionless {
 			label = "fraction"
@@ -262,6 +263,9 @@ not Mbar). Accepted units by kind:
 			}
 		}
 		fmt.Fprintf(&b, "  %-13s %s\n", label+":", strings.Join(syms, ", "))
+		if k == units.Dimensionless {
+			b.WriteString("  fluid properties, for the site sheet's density and viscosities:\n")
+		}
 	}
 	b.WriteString(`Pressure units ending in H2O or "wc" are conventional water columns
 (1 mH2O = 9.80665 kPa). A pump head is a height of the pumped fluid and
