@@ -21,20 +21,29 @@ func (pl *planner) band(sol *plant.Solved) error {
 	nl := sol.Built.Net.NumLinks()
 	dh := make([]float64, nl)
 	variance := make([]float64, n)
+	// Each branch's link and flow, looked up once: this loop runs once per
+	// uncertain parameter, and a map lookup per branch in it cost more than
+	// the sensitivity solve on large sites.
+	link := make([]int, n)
+	flow := make([]float64, n)
+	for i := range n {
+		link[i] = sol.Built.Branch[m.Branches[i].ID]
+		flow[i] = sol.Flow(i)
+	}
 	add := func(sigma float64) error {
 		dq, _, err := sol.Sol.Sensitivity(dh)
 		if err != nil {
 			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
 		}
 		for i := range n {
-			d := pl.flowDelta(sol, i, dq) / sol.Flow(i) * sigma
+			d := pl.flowDelta(link, i, dq) / flow[i] * sigma
 			variance[i] += d * d
 		}
 		clear(dh)
 		return nil
 	}
 	for j := range n {
-		l := sol.Built.Branch[m.Branches[j].ID]
+		l := link[j]
 		if l < 0 {
 			continue
 		}
@@ -85,15 +94,15 @@ func (pl *planner) band(sol *plant.Solved) error {
 }
 
 // flowDelta is branch i's share of the link flow changes dq: its link's, or
-// a riser without parts' children's summed, as plant.Solved.Flow does.
-func (pl *planner) flowDelta(sol *plant.Solved, i int, dq []float64) float64 {
-	b := &pl.m.Branches[i]
-	if l := sol.Built.Branch[b.ID]; l >= 0 {
+// a riser without parts' children's summed, as plant.Solved.Flow does
+// (link holds each branch's link, -1 for a riser without parts).
+func (pl *planner) flowDelta(link []int, i int, dq []float64) float64 {
+	if l := link[i]; l >= 0 {
 		return dq[l]
 	}
 	var s float64
-	for _, c := range b.Children {
-		s += pl.flowDelta(sol, c, dq)
+	for _, c := range pl.m.Branches[i].Children {
+		s += pl.flowDelta(link, c, dq)
 	}
 	return s
 }

@@ -40,10 +40,18 @@ func printVisit(w io.Writer, j *job, sheets bool) {
 	if len(v.Fixes) == 0 {
 		fmt.Fprintln(w, "  No fault found: nothing to put right before setting the valves.")
 	}
-	for _, f := range v.Fixes {
+	// A large site's fixes: those asking the same in the same words as
+	// one, and a saving said once until it changes.
+	fixes, large := v.Fixes, sheets && len(v.Fixes) > consoleRows
+	if large {
+		fixes = groupFixes(fixes)
+	}
+	var saves string
+	for _, f := range fixes {
 		wrap(w, "  - ", f.Where+": "+f.Action+".")
-		if f.Saves != "" {
+		if f.Saves != "" && !(large && f.Saves == saves) {
 			wrap(w, "    ", "Saves: "+f.Saves+".")
+			saves = f.Saves
 		}
 		if f.ReadAfter != "" {
 			wrap(w, "    ", "Read after: "+f.ReadAfter+".")
@@ -89,6 +97,27 @@ func printVisit(w io.Writer, j *job, sheets bool) {
 		bullets(w, warns)
 	}
 	fmt.Fprintln(w, "\nThese are predictions: verify each setting with a reading at the valve's test points.")
+}
+
+// groupFixes joins the fixes that ask the same thing in the same words
+// (every branch that cannot reach its target at the present pump, say)
+// into one, naming all their branches, in the order each first appears: a
+// large site's console lists every branch needing action without a
+// paragraph each.
+func groupFixes(fs []report.Fix) []report.Fix {
+	var out []report.Fix
+	at := map[report.Fix]int{}
+	for _, f := range fs {
+		key := f
+		key.Where = ""
+		if k, ok := at[key]; ok {
+			out[k].Where += ", " + f.Where
+			continue
+		}
+		at[key] = len(out)
+		out = append(out, f)
+	}
+	return out
 }
 
 // moved counts the rows of a settings table whose valve is set somewhere

@@ -401,7 +401,23 @@ func printFit(w io.Writer, j *job, sheets bool) {
 	if short {
 		wrap(w, "", fmt.Sprintf("The branches with a finding, of %d: every branch is in calibration.csv and the report.", len(j.L.Model.Branches)))
 	}
-	if len(j.Findings) > 0 {
+	if short && len(j.Findings) > consoleRows {
+		// Each finding's action is in step 2 of the plan; the evidence
+		// of every one is in findings.csv and the report.
+		var codes []string
+		count := map[string]int{}
+		for _, f := range j.Findings {
+			c := fmt.Sprintf("%s, %s", f.Code, f.Severity)
+			if count[c] == 0 {
+				codes = append(codes, c)
+			}
+			count[c]++
+		}
+		fmt.Fprintf(w, "\nFindings: %d, each with its evidence in findings.csv and the report\n", len(j.Findings))
+		for _, c := range codes {
+			fmt.Fprintf(w, "  - %s: %d\n", c, count[c])
+		}
+	} else if len(j.Findings) > 0 {
 		fmt.Fprintln(w, "\nFindings")
 		for _, f := range j.Findings {
 			where := f.Branch
