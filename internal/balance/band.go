@@ -30,9 +30,10 @@ func (pl *planner) band(sol *plant.Solved) error {
 		link[i] = sol.Built.Branch[m.Branches[i].ID]
 		flow[i] = sol.Flow(i)
 	}
+	dq := make([]float64, nl)
+	scratch := make([]float64, sol.Built.Net.NumNodes())
 	add := func(sigma float64) error {
-		dq, _, err := sol.Sol.Sensitivity(dh)
-		if err != nil {
+		if err := sol.Sol.SensitivityFlows(dh, dq, scratch); err != nil {
 			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
 		}
 		for i := range n {

@@ -16,16 +16,41 @@ import "fmt"
 // the floored slope, so their response is that of a very small linear
 // resistance.
 func (s *Solution) Sensitivity(dh []float64) (dq, dp []float64, err error) {
+	pl := s.pl
+	dq = make([]float64, len(s.d))
+	x := make([]float64, pl.nFree)
+	if err := s.SensitivityFlows(dh, dq, x); err != nil {
+		return nil, nil, err
+	}
+	dp = make([]float64, len(pl.pos))
+	for node, pos := range pl.pos {
+		if pos >= 0 {
+			dp[node] = x[pos]
+		}
+	}
+	return dq, dp, nil
+}
+
+// SensitivityFlows is Sensitivity's flow changes written into dq (one per
+// link), with scratch (at least one per unknown pressure) left holding the
+// pressure changes of the free nodes by solver position; it allocates
+// nothing, for callers that take one sensitivity per parameter of a large
+// network.
+func (s *Solution) SensitivityFlows(dh, dq, scratch []float64) error {
 	nl := len(s.d)
-	if len(dh) != nl {
-		return nil, nil, fmt.Errorf("sensitivity: %d drop changes for %d links: %w", len(dh), nl, ErrInput)
+	if len(dh) != nl || len(dq) != nl {
+		return fmt.Errorf("sensitivity: %d drop changes and %d flow changes for %d links: %w", len(dh), len(dq), nl, ErrInput)
 	}
 	pl := s.pl
+	if len(scratch) < pl.nFree {
+		return fmt.Errorf("sensitivity: scratch of %d for %d unknown pressures: %w", len(scratch), pl.nFree, ErrInput)
+	}
 	// r = -A21 D^-1 dh
-	r := make([]float64, pl.nFree)
+	r := scratch[:pl.nFree]
+	clear(r)
 	for i, v := range dh {
 		if !finite(v) {
-			return nil, nil, fmt.Errorf("sensitivity: drop change %d is %g: %w", i, v, ErrElement)
+			return fmt.Errorf("sensitivity: drop change %d is %g: %w", i, v, ErrElement)
 		}
 		t := v / s.d[i]
 		if a := pl.pa[i]; a >= 0 {
@@ -37,19 +62,12 @@ func (s *Solution) Sensitivity(dh []float64) (dq, dp []float64, err error) {
 	}
 	x, err := s.solveS(r)
 	if err != nil {
-		return nil, nil, err
+		return err
 	}
-	dq = make([]float64, nl)
 	for i := range dq {
 		dq[i] = -(dh[i] + at(x, pl.pb[i]) - at(x, pl.pa[i])) / s.d[i]
 	}
-	dp = make([]float64, len(pl.pos))
-	for node, pos := range pl.pos {
-		if pos >= 0 {
-			dp[node] = x[pos]
-		}
-	}
-	return dq, dp, nil
+	return nil
 }
 
 // SensitivityT is the transpose (adjoint) product of Sensitivity: given
