@@ -191,3 +191,36 @@ func TestRunSynthetic(t *testing.T) {
 		t.Errorf("flagged %d of %d fouled branches:\n%s", found, planted, stdout)
 	}
 }
+
+// TestConsoleLargeSite: on a site of more than consoleRows branches with
+// the report and sheets written, the console names the files for the
+// settings instead of printing a row per valve, and keeps only the flagged
+// branches of the fit; `plan` without --out (the console its only output)
+// still prints every setting.
+func TestConsoleLargeSite(t *testing.T) {
+	if testing.Short() {
+		t.Skip("fits a 300-branch site")
+	}
+	dir := writeSpec(t, synth.Spec{Branches: 300, Arrangement: site.DirectReturn, RiserTerminals: 30,
+		Seed: 5, Fouled: 0.05, Noise: 1, States: 1, Readings: synth.SurveyMix()})
+	code, stdout, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out"))
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(stdout, "300 valves to set") || !strings.Contains(stdout, "field-sheet.csv") {
+		t.Errorf("run: the settings step does not name the field sheet:\n%s", stdout)
+	}
+	if strings.Contains(stdout, "Set to") {
+		t.Errorf("run: the console prints the settings table of 300 valves")
+	}
+	if n := strings.Count(stdout, "\n"); n > 400 {
+		t.Errorf("run: %d console lines for 300 branches", n)
+	}
+	code, stdout, errs = run(t, "plan", dir)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("plan: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(stdout, "Set to") || strings.Count(stdout, "R1.") < 25 {
+		t.Errorf("plan without --out does not print every setting:\n%.2000s", stdout)
+	}
+}
