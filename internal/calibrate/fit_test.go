@@ -308,12 +308,7 @@ func TestFitNoiseFree(t *testing.T) {
 			if !cal.Converged {
 				t.Errorf("Fit status %v, want convergence", cal.Status)
 			}
-			check := func(what string, got, want float64) {
-				t.Helper()
-				if math.Abs(got/want-1) > 1e-6 {
-					t.Errorf("%s = %.9g, want %.9g", what, got, want)
-				}
-			}
+			check := func(what string, got, want float64) { checkRel(t, what, got, want, 1e-6) }
 			for i, b := range cal.Branches {
 				if b.Fitted {
 					check("resistance ratio of "+b.ID, b.Ratio, tr.p.Resistance[i])
@@ -400,5 +395,13 @@ func TestFitCancelled(t *testing.T) {
 	cancel()
 	if _, err := Fit(ctx, m, nil); !errors.Is(err, context.Canceled) {
 		t.Errorf("Fit with a cancelled context: error %v, want %v", err, context.Canceled)
+	}
+}
+
+// checkRel reports got unless it is within a relative tol of want.
+func checkRel(tb testing.TB, what string, got, want, tol float64) {
+	tb.Helper()
+	if math.Abs(got/want-1) > tol {
+		tb.Errorf("%s = %.9g, want %.9g", what, got, want)
 	}
 }

@@ -59,12 +59,7 @@ func TestFitOpenCircuit(t *testing.T) {
 			if !cal.Converged {
 				t.Errorf("Fit status %v, want convergence", cal.Status)
 			}
-			check := func(what string, got, want float64) {
-				t.Helper()
-				if math.Abs(got/want-1) > 1e-6 {
-					t.Errorf("%s = %.9g, want %.9g", what, got, want)
-				}
-			}
+			check := func(what string, got, want float64) { checkRel(t, what, got, want, 1e-6) }
 			for i, b := range cal.Branches {
 				if b.Fitted {
 					check("resistance ratio of "+b.ID, b.Ratio, tr.p.Resistance[i])
