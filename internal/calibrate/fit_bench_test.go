@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"flowset/internal/cpuclock"
+	"flowset/internal/plant"
 	"flowset/internal/site"
 	"flowset/internal/synth"
 )
@@ -63,19 +64,7 @@ func BenchmarkFitSurvey(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			m := mustModel(b, s)
-			var cal *Calibration
-			cpu := cpuclock.Start()
-			for b.Loop() {
-				if cal, err = Fit(ctx, m, nil); err != nil {
-					b.Fatal(err)
-				}
-			}
-			cpu.Report(b)
-			b.ReportMetric(float64(cal.Solves), "solves")
-			b.ReportMetric(float64(cal.Iterations), "steps")
-			b.ReportMetric(float64(len(cal.Outliers())), "outliers")
-			b.ReportMetric(float64(len(cal.Readings)), "readings")
+			benchFit(b, mustModel(b, s))
 		})
 	}
 }
@@ -98,19 +87,26 @@ func BenchmarkFitRisers(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			m := mustModel(b, s)
-			var cal *Calibration
-			cpu := cpuclock.Start()
-			for b.Loop() {
-				if cal, err = Fit(ctx, m, nil); err != nil {
-					b.Fatal(err)
-				}
-			}
-			cpu.Report(b)
-			b.ReportMetric(float64(cal.Solves), "solves")
-			b.ReportMetric(float64(cal.Iterations), "steps")
-			b.ReportMetric(float64(len(cal.Outliers())), "outliers")
-			b.ReportMetric(float64(len(cal.Readings)), "readings")
+			benchFit(b, mustModel(b, s))
 		})
 	}
+}
+
+// benchFit times Fit on m with the default options and reports its CPU
+// time, network solves, steps, outliers and readings.
+func benchFit(b *testing.B, m *plant.Model) {
+	ctx := context.Background()
+	var cal *Calibration
+	var err error
+	cpu := cpuclock.Start()
+	for b.Loop() {
+		if cal, err = Fit(ctx, m, nil); err != nil {
+			b.Fatal(err)
+		}
+	}
+	cpu.Report(b)
+	b.ReportMetric(float64(cal.Solves), "solves")
+	b.ReportMetric(float64(cal.Iterations), "steps")
+	b.ReportMetric(float64(len(cal.Outliers())), "outliers")
+	b.ReportMetric(float64(len(cal.Readings)), "readings")
 }

@@ -58,23 +58,28 @@ func writeSpec(tb testing.TB, spec synth.Spec) string {
 func BenchmarkRun(b *testing.B) {
 	for _, n := range []int{100, 1000, 10000} {
 		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
-			dir := writeSynthetic(b, n)
-			out := filepath.Join(b.TempDir(), "out")
-			var size int64
-			for b.Loop() {
-				var so, se bytes.Buffer
-				if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK && code != ExitShort {
-					b.Fatalf("run: exit %d: %s", code, se.String())
-				}
-				st, err := os.Stat(filepath.Join(out, "report.html"))
-				if err != nil {
-					b.Fatal(err)
-				}
-				size = st.Size()
-			}
-			b.ReportMetric(float64(size), "report-bytes")
+			benchRun(b, writeSynthetic(b, n))
 		})
 	}
+}
+
+// benchRun times `flowset run` on the site in dir and reports the report's
+// size.
+func benchRun(b *testing.B, dir string) {
+	out := filepath.Join(b.TempDir(), "out")
+	var size int64
+	for b.Loop() {
+		var so, se bytes.Buffer
+		if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK && code != ExitShort {
+			b.Fatalf("run: exit %d: %s", code, se.String())
+		}
+		st, err := os.Stat(filepath.Join(out, "report.html"))
+		if err != nil {
+			b.Fatal(err)
+		}
+		size = st.Size()
+	}
+	b.ReportMetric(float64(size), "report-bytes")
 }
 
 // largeBench says whether the 100,000-branch benchmarks run: they take
@@ -93,23 +98,9 @@ func BenchmarkRunRisers(b *testing.B) {
 	for _, n := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
 			largeBench(b, n)
-			dir := writeSpec(b, risersSpec(n))
-			out := filepath.Join(b.TempDir(), "out")
-			var size int64
 			cpu := cpuclock.Start()
-			for b.Loop() {
-				var so, se bytes.Buffer
-				if code := RunIO(context.Background(), []string{"run", dir, "--out", out, "--force", "--quiet"}, &IO{Out: &so, Err: &se, Now: fixedClock}); code != ExitOK && code != ExitShort {
-					b.Fatalf("run: exit %d: %s", code, se.String())
-				}
-				st, err := os.Stat(filepath.Join(out, "report.html"))
-				if err != nil {
-					b.Fatal(err)
-				}
-				size = st.Size()
-			}
+			benchRun(b, writeSpec(b, risersSpec(n)))
 			cpu.Report(b)
-			b.ReportMetric(float64(size), "report-bytes")
 		})
 	}
 }
