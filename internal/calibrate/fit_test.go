@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 
 	"flowset/internal/lsq"
+	"flowset/internal/plant"
 	"flowset/internal/site"
 )
 
@@ -286,28 +287,14 @@ func maxVecDiff(a, b []float64) float64 {
 // multipliers are all away from design, without priors, and wants them
 // back to 1e-6 (closed-form truth: the simulated plant itself).
 func TestFitNoiseFree(t *testing.T) {
-	ctx := context.Background()
 	noPrior := &FitOptions{PriorResistance: math.Inf(1), PriorKv: math.Inf(1), PriorHeader: math.Inf(1), PriorPump: math.Inf(1)}
 	for _, c := range richCases() {
 		t.Run(c.name, func(t *testing.T) {
 			s := newPlantSite(t, c.spec)
 			richSurvey(s)
 			m := mustModel(t, s)
-			tr := newTruth(m)
-			rng := rand.New(rand.NewPCG(c.spec.seed, 77))
-			for i := range tr.p.Resistance {
-				tr.p.Resistance[i] = math.Exp(0.5 * rng.NormFloat64())
-			}
-			tr.p.KvScale[0] = 0.9 // b00 has a valve differential and a flow
-			tr.p.Header, tr.p.PumpHead = 1.4, 0.92
-			simulate(t, m, tr, nil, 1)
-			cal, err := Fit(ctx, m, noPrior)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if !cal.Converged {
-				t.Errorf("Fit status %v, want convergence", cal.Status)
-			}
+			tr := richTruth(t, m, c.spec.seed) // b00 has a valve differential and a flow
+			cal := mustFit(t, m, noPrior)
 			check := func(what string, got, want float64) { checkRel(t, what, got, want, 1e-6) }
 			for i, b := range cal.Branches {
 				if b.Fitted {
@@ -404,4 +391,34 @@ func checkRel(tb testing.TB, what string, got, want, tol float64) {
 	if math.Abs(got/want-1) > tol {
 		tb.Errorf("%s = %.9g, want %.9g", what, got, want)
 	}
+}
+
+// richTruth draws a true plant far from design for the noise-free tests
+// (resistances spread by a factor e^0.5 per sd, b00's valve 10 % below its
+// table, header ×1.4, pump ×0.92) and simulates m's readings on it without
+// noise.
+func richTruth(tb testing.TB, m *plant.Model, seed uint64) *truth {
+	tb.Helper()
+	tr := newTruth(m)
+	rng := rand.New(rand.NewPCG(seed, 77))
+	for i := range tr.p.Resistance {
+		tr.p.Resistance[i] = math.Exp(0.5 * rng.NormFloat64())
+	}
+	tr.p.KvScale[0] = 0.9
+	tr.p.Header, tr.p.PumpHead = 1.4, 0.92
+	simulate(tb, m, tr, nil, 1)
+	return tr
+}
+
+// mustFit fits m with opt and reports a fit that did not converge.
+func mustFit(tb testing.TB, m *plant.Model, opt *FitOptions) *Calibration {
+	tb.Helper()
+	cal, err := Fit(context.Background(), m, opt)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if !cal.Converged {
+		tb.Errorf("Fit status %v, want convergence", cal.Status)
+	}
+	return cal
 }

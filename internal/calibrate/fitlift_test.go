@@ -1,9 +1,7 @@
 package calibrate
 
 import (
-	"context"
 	"math"
-	"math/rand/v2"
 	"testing"
 
 	"flowset/internal/hydraulics"
@@ -17,7 +15,6 @@ import (
 // point) is raised by the lift, so the friction it works against is the
 // closed loop's; every pump differential read includes the lift.
 func TestFitOpenCircuit(t *testing.T) {
-	ctx := context.Background()
 	noPrior := &FitOptions{PriorResistance: math.Inf(1), PriorKv: math.Inf(1), PriorHeader: math.Inf(1), PriorPump: math.Inf(1)}
 	const liftM, outletPa = 6.5, 35e3
 	for _, c := range richCases() {
@@ -37,14 +34,7 @@ func TestFitOpenCircuit(t *testing.T) {
 				s.Boundary.SetPoint += lift
 			}
 			m = mustModel(t, s)
-			tr := newTruth(m)
-			rng := rand.New(rand.NewPCG(c.spec.seed, 77))
-			for i := range tr.p.Resistance {
-				tr.p.Resistance[i] = math.Exp(0.5 * rng.NormFloat64())
-			}
-			tr.p.KvScale[0] = 0.9
-			tr.p.Header, tr.p.PumpHead = 1.4, 0.92
-			simulate(t, m, tr, nil, 1)
+			tr := richTruth(t, m, c.spec.seed)
 			// Every pump differential read holds the lift and the
 			// friction beyond it: the header differential plus the mains.
 			for _, r := range s.Readings {
@@ -52,13 +42,7 @@ func TestFitOpenCircuit(t *testing.T) {
 					t.Fatalf("simulated pump differential %g Pa, not above the lift %g Pa", r.Value, lift)
 				}
 			}
-			cal, err := Fit(ctx, m, noPrior)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if !cal.Converged {
-				t.Errorf("Fit status %v, want convergence", cal.Status)
-			}
+			cal := mustFit(t, m, noPrior)
 			check := func(what string, got, want float64) { checkRel(t, what, got, want, 1e-6) }
 			for i, b := range cal.Branches {
 				if b.Fitted {
