@@ -370,10 +370,23 @@ const ControlDroop = 1e-3
 // cannot: its pressure rise is min(SetPoint, ρ g H_max(q)), H_max the curve
 // at MaxSpeed by the affinity laws (with the slope limits of Pump). The
 // differential sensor is taken to sit across the pump.
+//
+// Set, when it has members, is a set of pumps the drives run together
+// (their speed ratio the set's) in place of Curve: the set's combined
+// curve at MaxSpeed bounds the pressure rise.
 type ControlledPump struct {
 	Curve    PumpCurve // at rated speed
 	MaxSpeed float64   // N/N_curve the drive allows; 0 means 1
 	SetPoint float64   // Pa
+	Set      PumpSet
+}
+
+// flatOut returns the pump (or set) at its maximum speed.
+func (p ControlledPump) flatOut() Element {
+	if len(p.Set.Members) > 0 {
+		return p.Set.AtSpeed(p.maxSpeed())
+	}
+	return Pump{Curve: p.Curve, Speed: p.maxSpeed()}
 }
 
 func (p ControlledPump) maxSpeed() float64 {
@@ -388,11 +401,20 @@ func (p ControlledPump) Validate() error {
 	if !(p.SetPoint > 0) || math.IsInf(p.SetPoint, 1) {
 		return fmt.Errorf("controlled pump: set point %g Pa must be positive: %w", p.SetPoint, ErrInvalid)
 	}
+	if len(p.Set.Members) > 0 {
+		return p.Set.AtSpeed(p.maxSpeed()).Validate()
+	}
 	return Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Validate()
 }
 
 // droopSlope is the held differential's fall per flow, Pa s/m3.
 func (p ControlledPump) droopSlope() float64 {
+	if len(p.Set.Members) > 0 {
+		if qref := p.Set.AtSpeed(p.maxSpeed()).RefFlow(); qref > 0 {
+			return ControlDroop * p.SetPoint / qref
+		}
+		return 0
+	}
 	c := p.Curve.AtSpeed(p.maxSpeed())
 	qref := c.QMax
 	if !(qref > 0) {
@@ -408,7 +430,7 @@ func (p ControlledPump) droopSlope() float64 {
 
 // Drop implements Element: the negative of the pressure rise.
 func (p ControlledPump) Drop(q float64, f fluid.State) (dp, slope float64) {
-	mx, mxSlope := Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Drop(q, f)
+	mx, mxSlope := p.flatOut().Drop(q, f)
 	s := p.droopSlope()
 	held := -p.SetPoint + s*q
 	if mx > held {
@@ -420,7 +442,7 @@ func (p ControlledPump) Drop(q float64, f fluid.State) (dp, slope float64) {
 // Saturated reports whether at flow q the drive runs flat out (the pump
 // cannot give the set point).
 func (p ControlledPump) Saturated(q float64, f fluid.State) bool {
-	mx, _ := Pump{Curve: p.Curve, Speed: p.maxSpeed()}.Drop(q, f)
+	mx, _ := p.flatOut().Drop(q, f)
 	return mx > -p.SetPoint+p.droopSlope()*q
 }
 

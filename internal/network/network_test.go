@@ -423,3 +423,43 @@ func TestRealPumpAgainstBackPressure(t *testing.T) {
 		t.Errorf("pump + pipe drop = %g Pa at flow %g, want -1e5", dp1+dp2, q)
 	}
 }
+
+// TestPumpSetLoop: n identical pumps H0 - aQ² (a hydraulics.PumpSet) in a
+// loop with a resistance bQ² run where H0 - a(Q/n)² = bQ² (parallel:
+// flows add at equal head) or n(H0 - aQ²) = bQ² (series: heads add at
+// equal flow), so Q = sqrt(H0/(a/n² + b)) or sqrt(nH0/(na + b)) (the
+// combination rules of pump handbooks, from memory; closed forms computed).
+// The network solver meets the set's kinks and slope limits as it would
+// on a site.
+func TestPumpSetLoop(t *testing.T) {
+	const h0, a, b = 30.0, 2.4e4, 1.2e4 // m, m/(m3/s)²
+	c := hydraulics.PumpCurve{A0: h0, A2: -a, QMax: math.Sqrt(h0 / a)}
+	rg := water20.Density * hydraulics.StandardGravity
+	for _, tc := range []struct {
+		name   string
+		n      int
+		series bool
+		want   float64
+	}{
+		{"one", 1, false, math.Sqrt(h0 / (a + b))},
+		{"two in parallel", 2, false, math.Sqrt(h0 / (a/4 + b))},
+		{"three in parallel", 3, false, math.Sqrt(h0 / (a/9 + b))},
+		{"two in series", 2, true, math.Sqrt(2 * h0 / (2*a + b))},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			set := hydraulics.PumpSet{Series: tc.series}
+			for range tc.n {
+				set.Members = append(set.Members, hydraulics.SetMember{Curve: c})
+			}
+			n := New(water20)
+			s, ret := n.AddNode("s"), n.AddNode("r")
+			n.FixPressure(ret, 1.5e5)
+			p := n.AddLink("pump", ret, s, set)
+			n.AddLink("load", s, ret, quad{b * rg})
+			sol := mustSolve(t, n, nil)
+			if relErr(sol.Flow[p], tc.want) > 1e-9 {
+				t.Errorf("flow = %.12g m3/s, want %.12g", sol.Flow[p], tc.want)
+			}
+		})
+	}
+}
