@@ -289,6 +289,19 @@ type Plan struct {
 	// Banded reports whether the uncertainty bands come from an
 	// Uncertainty; without one they collapse onto the prediction.
 	Banded bool
+	// Needs are, by model branch index, what each branch's chain needs at
+	// its target with its valve (and those above it) fully open.
+	Needs []Need
+}
+
+// Need is what one branch's chain needs at its target, Pa, friction only
+// (an open circuit's lift not included): Chain is the source differential
+// (the largest over all branches is Plan.Least less the lift), Fixed the
+// drop of the branch's own fixed parts and OpenValve that of its fully
+// open valve (0 without one); the rest of Chain is the header path and
+// the risers above it.
+type Need struct {
+	Chain, Fixed, OpenValve float64
 }
 
 // OperatingPoint is a pump's duty.

@@ -103,6 +103,10 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 		pl.robust()
 	}
 	pl.remedies()
+	pl.plan.Needs = make([]Need, len(m.Branches))
+	for i := range pl.plan.Needs {
+		pl.plan.Needs[i] = Need{Chain: pl.chain[i], Fixed: pl.ex.fixed[i], OpenValve: pl.ex.open[i]}
+	}
 	pl.shortfalls()
 	pl.atPump()
 	return pl.plan, nil

@@ -1,0 +1,336 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"flowset/internal/hydraulics"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// Verdict is what the model, fitted to every survey state, says of a
+// branch's flow as left after setting.
+type Verdict int
+
+// Verdicts on a branch as left.
+const (
+	// Undecided: its band straddles an edge of the tolerance, so the
+	// readings cannot tell whether it is in or out.
+	Undecided Verdict = iota
+	// ProvenIn: its whole band lies inside the tolerance.
+	ProvenIn
+	// ProvenOut: its whole band lies outside the tolerance.
+	ProvenOut
+)
+
+// String returns the verdict in a technician's words.
+func (v Verdict) String() string {
+	switch v {
+	case ProvenIn:
+		return "proven in tolerance"
+	case ProvenOut:
+		return "proven out of tolerance"
+	}
+	return "cannot tell"
+}
+
+// defaultTrimInner is the fraction of the tolerance band beyond which a
+// branch is trimmed: one predicted in the outer half of the band is worth a
+// turn of its handwheel while the technician is at it, one in the inner half
+// is left alone (common practice, no source).
+const defaultTrimInner = 0.5
+
+// TrimOptions tune Trim. A nil *TrimOptions or a zero field means the
+// default.
+type TrimOptions struct {
+	// Uncertainty is the calibration's spread (fitted to every state, the
+	// as-left one included); nil gives bands that collapse onto the
+	// predictions and no branch proven either way.
+	Uncertainty *Uncertainty
+	// Inner is the fraction of the tolerance band beyond which a branch is
+	// trimmed; 0 means 0.5.
+	Inner float64
+	// Hold marks, by model index, branches whose valve must not be
+	// trimmed (one the fit found not following its handwheel: a trim
+	// would not move it).
+	Hold []bool
+}
+
+// TrimPlan is the outcome of Trim: the verdict on every branch as left, the
+// small setting corrections for those outside the inner band and the pump
+// correction, and what the model predicts once they are made.
+type TrimPlan struct {
+	// Label is the as-left state's label.
+	Label string
+	// Branches are in walk order (see the package comment).
+	Branches []TrimBranch
+	// Counts of the branches by verdict as left, and of those trimmed.
+	ProvenIn, ProvenOut, Undecided, Trimmed int
+	// BySpeed reports that the pump is set by its speed (PumpLeft and
+	// PumpNew are speed ratios), else by a differential (Pa).
+	BySpeed bool
+	// PumpLeft is the pump as left and PumpNew as corrected; PumpChanged
+	// reports a correction worth making (over half a per cent).
+	PumpLeft, PumpNew float64
+	PumpChanged       bool
+	// InBefore and InAfter count the branches predicted inside the
+	// tolerance as left and after the trims.
+	InBefore, InAfter int
+	// ToleranceLow and ToleranceHigh are the band used, as fractions of
+	// target.
+	ToleranceLow, ToleranceHigh float64
+	// Settings and the boundary after the trims, ready for a plant.State.
+	Settings     []float64
+	Speed        float64
+	Differential float64
+}
+
+// TrimBranch is the trim of one branch.
+type TrimBranch struct {
+	ID    string
+	Index int // model index
+	Riser bool
+	// Valve and Unit name the valve model and its setting unit; empty
+	// without a balancing valve.
+	Valve, Unit string
+	// Target flow, m3/s.
+	Target float64
+	// Left is the setting as left and New the setting to trim it to
+	// (equal when untouched; NaN without a valve).
+	Left, New float64
+	Trimmed   bool
+	// LeftPercent is the flow as left in % of target, with its 95 % band;
+	// AfterPercent the same once the trims are made.
+	LeftPercent, LeftLow, LeftHigh    float64
+	AfterPercent, AfterLow, AfterHigh float64
+	Verdict                           Verdict
+	// Note says why a branch outside the band is not trimmed ("" else).
+	Note string
+}
+
+// State returns the plant state after the trims.
+func (t *TrimPlan) State() plant.State {
+	return plant.State{Label: "trimmed", Settings: append([]float64(nil), t.Settings...), Speed: t.Speed, Differential: t.Differential}
+}
+
+// Trim works out the trims after setting. m and p are the model fitted to
+// every survey state, the as-left one included; left is the as-left state
+// (its settings and pump as set); plan is the plan re-computed on the same
+// fit, whose targets, tolerance and pump it takes. Each branch's flow as left
+// is predicted with its band and judged against the tolerance. The pump is
+// corrected to the re-computed plan's when they differ by over half a per
+// cent. Then, over a few passes of the whole network, every branch outside
+// the inner part of the band (Inner of it) gets the setting that gives its
+// target at the differential it sees: its valve drops that differential less
+// its fixed parts' drop at target, rounded to the handwheel mark whose flow
+// (square law) is nearest the target. Risers are not trimmed: their
+// sub-branches are. Branches held (TrimOptions.Hold) and those whose valve
+// is fully open already are left, with a note.
+func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left plant.State, opt *TrimOptions) (*TrimPlan, error) {
+	if m == nil || plan == nil {
+		return nil, fmt.Errorf("trim: no model or plan: %w", ErrInput)
+	}
+	var o TrimOptions
+	if opt != nil {
+		o = *opt
+	}
+	if o.Inner <= 0 || o.Inner > 1 {
+		o.Inner = defaultTrimInner
+	}
+	n := len(m.Branches)
+	if len(left.Settings) != n {
+		return nil, fmt.Errorf("trim: %d settings for %d branches: %w", len(left.Settings), n, ErrInput)
+	}
+	target := make([]float64, n)
+	for _, b := range plan.Branches {
+		if i, ok := m.Index(b.ID); ok {
+			target[i] = b.Target
+		}
+	}
+	tp := &TrimPlan{Label: left.Label, ToleranceLow: plan.ToleranceLow, ToleranceHigh: plan.ToleranceHigh,
+		BySpeed: m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil}
+	in := func(r float64, f float64) bool {
+		return r >= 1+f*tp.ToleranceLow-1e-9 && r <= 1+f*tp.ToleranceHigh+1e-9
+	}
+	k := 2.0
+	if o.Uncertainty != nil && o.Uncertainty.Coverage > 0 {
+		k = o.Uncertainty.Coverage
+	}
+	solL, err := m.Solve(ctx, p, left)
+	if err != nil {
+		return nil, fmt.Errorf("trim: the state as left: %w: %w", err, ErrSolve)
+	}
+	sdL, err := flowSD(m, p, o.Uncertainty, solL)
+	if err != nil {
+		return nil, err
+	}
+
+	// The pump: the re-computed plan's when it differs enough to matter.
+	st := plant.State{Label: "trimmed", Settings: append([]float64(nil), left.Settings...), Speed: left.Speed, Differential: left.Differential}
+	tp.PumpLeft, tp.PumpNew = left.Differential, left.Differential
+	if tp.BySpeed {
+		tp.PumpLeft, tp.PumpNew = left.Speed, left.Speed
+	}
+	want := plan.Differential
+	if tp.BySpeed {
+		want = plan.Speed
+	}
+	if want > 0 && math.Abs(want/tp.PumpLeft-1) > 0.005 && m.Site.Boundary.Kind != site.MeasuredDiff {
+		tp.PumpNew, tp.PumpChanged = want, true
+		if tp.BySpeed {
+			st.Speed = want
+		} else {
+			st.Differential = want
+		}
+	}
+
+	trimmed := make([]bool, n)
+	note := make([]string, n)
+	const passes = 8
+	var sol *plant.Solved
+	for pass := 0; ; pass++ {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		sol, err = m.Solve(ctx, p, st)
+		if err != nil {
+			return nil, fmt.Errorf("trim: %w: %w", err, ErrSolve)
+		}
+		if pass == passes {
+			break
+		}
+		changed := false
+		for i := range m.Branches {
+			b := &m.Branches[i]
+			if b.Valve == nil || b.Riser() || !(target[i] > 0) {
+				continue
+			}
+			if in(sol.Flow(i)/target[i], o.Inner) {
+				continue
+			}
+			if i < len(o.Hold) && o.Hold[i] {
+				note[i] = "its valve does not follow its handwheel: a trim would not move it (see the findings)"
+				continue
+			}
+			s, err := trimSetting(m, p, sol, i, target[i])
+			if err != nil {
+				return nil, fmt.Errorf("trim: branch %q: %w", b.ID, err)
+			}
+			if math.Abs(s-st.Settings[i]) < 1e-9 {
+				if _, hi := b.Valve.Range(); s >= hi-1e-9 && sol.Flow(i) < target[i] {
+					note[i] = "its valve is fully open already: the pump or a remedy must give it more"
+				}
+				continue
+			}
+			st.Settings[i], trimmed[i], note[i], changed = s, true, "", true
+		}
+		if !changed {
+			break
+		}
+	}
+	sdA, err := flowSD(m, p, o.Uncertainty, sol)
+	if err != nil {
+		return nil, err
+	}
+	tp.Settings, tp.Speed, tp.Differential = st.Settings, st.Speed, st.Differential
+	for _, i := range walk(m) {
+		b := &m.Branches[i]
+		if !(target[i] > 0) {
+			continue
+		}
+		tb := TrimBranch{ID: b.ID, Index: i, Riser: b.Riser(), Target: target[i], Left: left.Settings[i], New: st.Settings[i], Trimmed: trimmed[i], Note: note[i]}
+		if b.ValveModel != nil {
+			tb.Valve, tb.Unit = b.ValveModel.Name, b.ValveModel.Unit
+		}
+		r := solL.Flow(i) / target[i]
+		tb.LeftPercent, tb.LeftLow, tb.LeftHigh = 100*r, 100*r*math.Exp(-k*sdL[i]), 100*r*math.Exp(k*sdL[i])
+		ra := sol.Flow(i) / target[i]
+		tb.AfterPercent, tb.AfterLow, tb.AfterHigh = 100*ra, 100*ra*math.Exp(-k*sdA[i]), 100*ra*math.Exp(k*sdA[i])
+		switch lo, hi := tb.LeftLow/100, tb.LeftHigh/100; {
+		case o.Uncertainty != nil && in(lo, 1) && in(hi, 1):
+			tb.Verdict = ProvenIn
+			tp.ProvenIn++
+		case o.Uncertainty != nil && (hi < 1+tp.ToleranceLow || lo > 1+tp.ToleranceHigh):
+			tb.Verdict = ProvenOut
+			tp.ProvenOut++
+		default:
+			tp.Undecided++
+		}
+		if in(r, 1) {
+			tp.InBefore++
+		}
+		if in(ra, 1) {
+			tp.InAfter++
+		}
+		if tb.Trimmed {
+			tp.Trimmed++
+		}
+		tp.Branches = append(tp.Branches, tb)
+	}
+	return tp, nil
+}
+
+// trimSetting is the setting, on a handwheel mark, that gives branch i its
+// target q at the differential it sees in sol: its valve takes that
+// differential less its fixed parts' drop at q. Of the marks either side,
+// the one whose flow at that differential (square law) is nearer the target
+// is taken; the valve opens fully when even that leaves it short.
+func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q float64) (float64, error) {
+	b := &m.Branches[i]
+	lo, hi := b.Valve.Range()
+	d := sol.BranchDiff(i)
+	var fixed float64
+	if f := m.FixedElement(i, p.Resistance[i]); f != nil {
+		fixed, _ = f.Drop(q, m.Fluid)
+	}
+	scale := p.KvScale[i]
+	if !(scale > 0) {
+		scale = 1
+	}
+	// ratio is the flow at setting s over the target, by the square law
+	// at the branch's differential.
+	ratio := func(s float64) float64 {
+		kv, err := b.Valve.KvAt(s)
+		if err != nil || !(kv > 0) {
+			return math.NaN()
+		}
+		dv, _ := hydraulics.KvDrop(q, kv*scale, m.Fluid.Density)
+		return math.Sqrt(d / (fixed + dv))
+	}
+	dv := d - fixed
+	if !(dv > 0) {
+		return hi, nil
+	}
+	kv, err := hydraulics.KvFromDrop(q, dv, m.Fluid.Density)
+	if err != nil {
+		return math.NaN(), err
+	}
+	kv /= scale
+	kvLo, err := b.Valve.KvAt(lo)
+	if err != nil {
+		return math.NaN(), err
+	}
+	kvHi, err := b.Valve.KvAt(hi)
+	if err != nil {
+		return math.NaN(), err
+	}
+	var s float64
+	switch {
+	case kv >= kvHi:
+		return hi, nil
+	case kv <= kvLo:
+		s = lo
+	default:
+		if s, err = b.Valve.SettingFor(kv); err != nil {
+			return math.NaN(), err
+		}
+	}
+	step := b.Valve.Resolution()
+	down, up := mark(s, lo, hi, step, false), mark(s, lo, hi, step, true)
+	if math.Abs(math.Log(ratio(up))) < math.Abs(math.Log(ratio(down))) {
+		return up, nil
+	}
+	return down, nil
+}
