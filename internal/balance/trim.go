@@ -230,6 +230,11 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			break
 		}
 	}
+	for i := range trimmed {
+		// A valve trimmed in one pass and put back in a later one is
+		// not trimmed.
+		trimmed[i] = trimmed[i] && math.Abs(st.Settings[i]-left.Settings[i]) > 1e-9
+	}
 	sdA, err := flowSD(m, p, o.Uncertainty, sol)
 	if err != nil {
 		return nil, err

@@ -18,6 +18,7 @@ func addCommands(root *cobra.Command, ios *IO) {
 		newFitCmd(ios),
 		newPlanCmd(ios),
 		newRunCmd(ios),
+		newTrimCmd(ios),
 		newDemoCmd(ios),
 	)
 	for _, t := range site.Topics() {

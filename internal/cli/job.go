@@ -51,6 +51,10 @@ type job struct {
 	// finding made the tables quadratic in the size of the site.
 	flowsRead map[string]float64
 	flags     map[string]string
+	// Trim is the round after setting (trim only) and readLeft the
+	// branches read in its as-left state.
+	Trim     *balance.TrimPlan
+	readLeft map[string]bool
 }
 
 // progress reports long steps on stderr when it is a terminal.

@@ -31,6 +31,8 @@ type runOptions struct {
 	job     jobOptions
 	// what to write
 	writeFit, writePlan, writeReport bool
+	// trim is set for trim: the round after setting.
+	trim *trimOptions
 }
 
 func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
@@ -240,10 +242,22 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		}
 		o.job.Units = u
 	}
+	left := -1
+	if o.trim != nil {
+		if left, err = leftState(l, o.trim); err != nil {
+			return err
+		}
+	}
 	j, err := runJob(ctx, l, &o.job, pr)
 	if err != nil {
 		printProblems(ios.Err, l.Problems)
 		return err
+	}
+	if left >= 0 {
+		pr.step("trimming after setting (state %q)", l.Model.States[left].Label)
+		if err := j.trim(ctx, left); err != nil {
+			return err
+		}
 	}
 	printWarnings(ios.Err, l.Problems, j)
 	generated := ios.now().UTC().Format("2006-01-02 15:04 MST")
@@ -258,6 +272,9 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		// With the report and sheets written, a large site's tables go to
 		// them and the console keeps what needs action.
 		sheets := o.Out != "" && o.writeReport && o.writePlan
+		if j.Trim != nil {
+			printTrim(ios.Out, j)
+		}
 		if o.writePlan {
 			printVisit(ios.Out, j, sheets)
 		}
@@ -318,6 +335,17 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 				return err
 			}
 			if err := put("plan.json", func(w io.Writer) error { return writeJSON(w, j.planOut(generated)) }); err != nil {
+				return err
+			}
+		}
+		if j.Trim != nil {
+			t := j.trimTable(o.job.Units)
+			if err := put("trim.csv", func(w io.Writer) error {
+				return writeCSV(w, append(t.Columns, t.WriteIn...), padRows(t.Rows, len(t.WriteIn)))
+			}); err != nil {
+				return err
+			}
+			if err := put("trim.json", func(w io.Writer) error { return writeJSON(w, j.trimOut(generated)) }); err != nil {
 				return err
 			}
 		}

@@ -11,6 +11,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 
 	"flowset/internal/fluid"
 	"flowset/internal/hydraulics"
@@ -892,4 +893,47 @@ func (m *Model) StateLabels() []string {
 		out[i] = s.Label
 	}
 	return out
+}
+
+// SetUnrecorded gives the state labelled label the valve settings and pump
+// of a plan it was set to: every valve whose setting no reading of the
+// state records takes settings[i] (NaN, or a branch without a valve, leaves
+// it), and the pump takes speed (a pump boundary) or differential (a
+// constant-differential one) when the states sheet gives the state none and
+// the value is positive. A survey state read after setting reads only a few
+// branches, but every valve was set: without this its other valves would be
+// taken as found. It returns how many settings it gave.
+func (m *Model) SetUnrecorded(label string, settings []float64, speed, differential float64) (int, error) {
+	k := slices.IndexFunc(m.States, func(st State) bool { return st.Label == label })
+	if k < 0 {
+		return 0, fmt.Errorf("no survey state %q: %w", label, ErrModel)
+	}
+	if len(settings) != len(m.Branches) {
+		return 0, fmt.Errorf("%d settings for %d branches: %w", len(settings), len(m.Branches), ErrModel)
+	}
+	st := &m.States[k]
+	recorded := make([]bool, len(m.Branches))
+	for _, ri := range st.Readings {
+		r := m.Site.Readings[ri]
+		if i, ok := m.index[r.Where]; ok && !math.IsNaN(r.Setting) {
+			recorded[i] = true
+		}
+	}
+	var n int
+	for i := range m.Branches {
+		if recorded[i] || m.Branches[i].Valve == nil || math.IsNaN(settings[i]) {
+			continue
+		}
+		st.Settings[i] = settings[i]
+		n++
+	}
+	own := m.Site.State(label)
+	switch {
+	case own != nil && (own.Speed > 0 || own.SetPoint > 0):
+	case m.Site.Boundary.Kind == site.PumpCurve && speed > 0:
+		st.Speed = speed
+	case m.Site.Boundary.Kind == site.ConstantDiff && differential > 0:
+		st.Differential = differential
+	}
+	return n, nil
 }

@@ -1,0 +1,335 @@
+package cli
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"flowset/internal/balance"
+	"flowset/internal/calibrate"
+	"flowset/internal/plant"
+	"flowset/internal/report"
+)
+
+// trimOptions are trim's own: the plan the valves were set to and the
+// survey state read after setting.
+type trimOptions struct {
+	Plan  string // plan.json written by plan or run
+	State string // the as-left state; "" for the last one
+}
+
+func newTrimCmd(ios *IO) *cobra.Command {
+	o := &runOptions{trim: &trimOptions{}}
+	cmd := &cobra.Command{
+		Use:   "trim SITE --plan PLAN.json",
+		Short: "After setting: prove each branch in tolerance and trim those outside",
+		Long: `Trim is the visit's last round. After the valves are set to a plan, read the
+branches the plan's "prove it" list names, as one more survey state (its own
+state label in readings.csv, its pump in states.csv). Trim fits every state
+together, the valves of the new state taken at the plan's settings (PLAN.json,
+written by plan or run) wherever no reading records one, and says of every
+branch as left whether the readings prove it in tolerance, prove it out, or
+cannot tell. It then gives small setting corrections for the branches outside
+the inner half of the band and a pump correction, and compares each branch as
+found, as left and after the trims. With --out it writes trim.csv (the field
+sheet of the round) and trim.json.`,
+		Args: exactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			o.Site = args[0]
+			o.unitsSet = cmd.Flags().Changed("units")
+			if o.trim.Plan == "" {
+				return usagef("--plan is required: name the plan.json the valves were set to")
+			}
+			if err := o.validate(false); err != nil {
+				return err
+			}
+			return runMain(cmd.Context(), ios, o, loadSite)
+		},
+	}
+	addJobFlags(cmd, o, true)
+	cmd.Flags().StringVar(&o.trim.Plan, "plan", "", "plan.json of the plan the valves were set to (written by plan or run)")
+	cmd.Flags().StringVar(&o.trim.State, "state", "", "the survey state read after setting (default: the last state of readings.csv)")
+	return cmd
+}
+
+// setPlan is one plan.json as trim reads it: the new settings and the pump.
+type setPlan struct {
+	Branches []struct {
+		ID  string   `json:"branch"`
+		New *float64 `json:"new_setting"`
+	} `json:"branches"`
+	Pump struct {
+		Boundary string   `json:"boundary"`
+		Speed    *float64 `json:"speed_ratio"`
+		SetPoint *float64 `json:"set_point_pa"`
+	} `json:"pump"`
+}
+
+// readSetPlan reads the plan the valves were set to into settings by model
+// branch index (NaN where the plan gives none) and its pump.
+func readSetPlan(path string, m *plant.Model) (settings []float64, speed, diff float64, err error) {
+	b, err := os.ReadFile(path)
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil, 0, 0, usagef("--plan %s: no such file", shown(path))
+	}
+	if err != nil {
+		return nil, 0, 0, &systemError{err}
+	}
+	var p setPlan
+	dec := json.NewDecoder(bytes.NewReader(b))
+	if err := dec.Decode(&p); err != nil {
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			return nil, 0, 0, &dataError{fmt.Errorf("%s: byte %d: %v (want the plan.json written by flowset plan or run)", shown(path), se.Offset, err)}
+		}
+		return nil, 0, 0, &dataError{fmt.Errorf("%s: %v (want the plan.json written by flowset plan or run)", shown(path), err)}
+	}
+	if len(p.Branches) == 0 {
+		return nil, 0, 0, &dataError{fmt.Errorf("%s: field \"branches\": no branch (want the plan.json written by flowset plan or run)", shown(path))}
+	}
+	settings = make([]float64, len(m.Branches))
+	for i := range settings {
+		settings[i] = math.NaN()
+	}
+	for k, br := range p.Branches {
+		i, ok := m.Index(br.ID)
+		if !ok {
+			return nil, 0, 0, &dataError{fmt.Errorf("%s: branches[%d]: field \"branch\": value %q: no such branch in the site (was the plan made for another site?)", shown(path), k, br.ID)}
+		}
+		if br.New == nil || m.Branches[i].Valve == nil {
+			continue
+		}
+		lo, hi := m.Branches[i].Valve.Range()
+		if !(*br.New >= lo && *br.New <= hi) {
+			return nil, 0, 0, &dataError{fmt.Errorf("%s: branches[%d]: field \"new_setting\": value %g: outside the valve's range %g to %g", shown(path), k, *br.New, lo, hi)}
+		}
+		settings[i] = *br.New
+	}
+	if p.Pump.Speed != nil {
+		speed = *p.Pump.Speed
+	}
+	if p.Pump.SetPoint != nil {
+		diff = *p.Pump.SetPoint
+	}
+	return settings, speed, diff, nil
+}
+
+// leftState applies the plan the valves were set to to the as-left state
+// and returns that state's index.
+func leftState(l *loaded, o *trimOptions) (int, error) {
+	m := l.Model
+	if len(m.States) < 2 {
+		return 0, &dataError{fmt.Errorf("%s: trim needs the readings taken after setting as a survey state of their own (a state label in readings.csv other than the as-found one); the site has %d state(s)", shown(o.Plan), len(m.States))}
+	}
+	k := len(m.States) - 1
+	if o.State != "" {
+		k = -1
+		for s, st := range m.States {
+			if strings.EqualFold(st.Label, o.State) {
+				k = s
+			}
+		}
+		if k < 0 {
+			return 0, usagef("--state %q: no such survey state (the site has %s)", o.State, strings.Join(m.StateLabels(), ", "))
+		}
+		if k == 0 {
+			return 0, usagef("--state %q is the as-found state: name the state read after setting", o.State)
+		}
+	}
+	settings, speed, diff, err := readSetPlan(o.Plan, m)
+	if err != nil {
+		return 0, err
+	}
+	if _, err := m.SetUnrecorded(m.States[k].Label, settings, speed, diff); err != nil {
+		return 0, &dataError{err}
+	}
+	return k, nil
+}
+
+// trim works out the trims of job j for the as-left state k.
+func (j *job) trim(ctx context.Context, k int) error {
+	m := j.L.Model
+	opt := &balance.TrimOptions{}
+	if j.Cal != nil {
+		opt.Uncertainty = uncertainty(j.Cal)
+		opt.Hold = make([]bool, len(m.Branches))
+		for i, b := range j.Cal.Branches {
+			opt.Hold[i] = b.Valve.Hypothesis == calibrate.HoldsOneKv
+		}
+	}
+	tp, err := balance.Trim(ctx, m, j.Params, j.Plan, m.States[k], opt)
+	if err != nil {
+		return &dataError{fmt.Errorf("trim: %w", err)}
+	}
+	j.Trim = tp
+	j.readLeft = map[string]bool{}
+	for _, ri := range m.States[k].Readings {
+		j.readLeft[j.L.Site.Readings[ri].Where] = true
+	}
+	return nil
+}
+
+// trimTable is the round's field sheet: every branch as found, as left and
+// after the trims, with the verdict, the trim and why.
+func (j *job) trimTable(u display) report.Table {
+	tp := j.Trim
+	t := report.Table{Title: "Trim", Columns: []string{"Branch", "As found (% of target)", "As left (% of target)", "95 % band as left (%)", "Verdict as left", "Read after setting", "Setting as left", "Trim to", "After trims (% of target)", "Note"},
+		WriteIn: []string{"Done (tick)", "Initials"}}
+	for _, b := range tp.Branches {
+		found := "-"
+		if j.Before != nil {
+			found = fmt.Sprintf("%.1f", 100*j.Before.Flow(b.Index)/b.Target)
+		}
+		trim := ""
+		if b.Trimmed {
+			trim = settingText(b.New, b.Unit)
+		}
+		note := b.Note
+		if b.Verdict == balance.Undecided && !j.readLeft[b.ID] && note == "" && !b.Trimmed {
+			note = "not read after setting and its band leaves the tolerance: read it"
+		}
+		t.Rows = append(t.Rows, []string{b.ID, found, fmt.Sprintf("%.1f", b.LeftPercent), fmt.Sprintf("%.1f to %.1f", b.LeftLow, b.LeftHigh),
+			b.Verdict.String(), yesNo(j.readLeft[b.ID]), settingText(b.Left, b.Unit), trim, fmt.Sprintf("%.1f", b.AfterPercent), note})
+	}
+	return t
+}
+
+// settingText formats a valve setting with its unit ("" without a valve).
+func settingText(v float64, unit string) string {
+	if math.IsNaN(v) {
+		return ""
+	}
+	return fmt.Sprintf("%.4g %s", v, unit)
+}
+
+// trimSummary is the round's outcome in a few lines.
+func (j *job) trimSummary(u display) []string {
+	tp := j.Trim
+	n := len(tp.Branches)
+	out := []string{fmt.Sprintf("As left (state %q): %d of %d branches proven in tolerance, %d proven out, %d the readings cannot tell; the model puts %d of %d inside the tolerance.",
+		tp.Label, tp.ProvenIn, n, tp.ProvenOut, tp.Undecided, tp.InBefore, n)}
+	switch {
+	case tp.PumpChanged && tp.BySpeed:
+		out = append(out, fmt.Sprintf("Pump: from %s to %s.", u.speed(tp.PumpLeft), u.speed(tp.PumpNew)))
+	case tp.PumpChanged:
+		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew)))
+	default:
+		out = append(out, "Pump: leave it as it is.")
+	}
+	if tp.Trimmed == 0 {
+		out = append(out, "No valve needs a trim.")
+	} else {
+		out = append(out, fmt.Sprintf("Trim %d valve(s) (below); the model then puts %d of %d inside the tolerance.", tp.Trimmed, tp.InAfter, n))
+	}
+	var unread []string
+	for _, b := range tp.Branches {
+		if b.Verdict == balance.Undecided && !j.readLeft[b.ID] {
+			unread = append(unread, b.ID)
+		}
+	}
+	if len(unread) > 0 {
+		out = append(out, fmt.Sprintf("Cannot tell without a reading (not read after setting, band across the tolerance): %s.", strings.Join(unread, ", ")))
+	}
+	return out
+}
+
+// printTrim prints the round on the console.
+func printTrim(w io.Writer, j *job) {
+	u := j.opts.Units
+	fmt.Fprintln(w, "Trim after setting")
+	for _, l := range j.trimSummary(u) {
+		wrap(w, "  ", l)
+	}
+	t := j.trimTable(u)
+	// The console keeps the branches that need action or a reading.
+	keep := t.Rows[:0:0]
+	for _, r := range t.Rows {
+		if r[7] != "" || r[9] != "" || r[4] != balance.ProvenIn.String() {
+			keep = append(keep, r)
+		}
+	}
+	t.Rows = keep
+	if len(t.Rows) > 0 {
+		fmt.Fprintln(w)
+		table(w, t)
+	}
+}
+
+// trimJSON is trim.json: the trimmed settings in the shape of plan.json's
+// branches and pump, so that what reads a plan reads a trim.
+type trimJSON struct {
+	Site      string           `json:"site"`
+	Generated string           `json:"generated"`
+	State     string           `json:"as_left_state"`
+	Summary   []string         `json:"summary"`
+	Pump      trimPumpJSON     `json:"pump"`
+	Branches  []trimBranchJSON `json:"branches"`
+}
+
+type trimPumpJSON struct {
+	Boundary   string `json:"boundary"`
+	Changed    bool   `json:"changed"`
+	SpeedRatio num    `json:"speed_ratio"`
+	SetPoint   num    `json:"set_point_pa"`
+	LeftSpeed  num    `json:"as_left_speed_ratio"`
+	LeftDiff   num    `json:"as_left_differential_pa"`
+}
+
+type trimBranchJSON struct {
+	ID        string `json:"branch"`
+	Valve     string `json:"valve,omitempty"`
+	Unit      string `json:"setting_unit,omitempty"`
+	Left      num    `json:"as_left_setting"`
+	New       num    `json:"new_setting"`
+	Trimmed   bool   `json:"trimmed"`
+	Target    num    `json:"target_m3_s"`
+	Found     num    `json:"as_found_percent"`
+	LeftPct   num    `json:"as_left_percent"`
+	LeftLow   num    `json:"as_left_band_low_percent"`
+	LeftHigh  num    `json:"as_left_band_high_percent"`
+	Verdict   string `json:"verdict"`
+	Read      bool   `json:"read_after_setting"`
+	After     num    `json:"after_trim_percent"`
+	AfterLow  num    `json:"after_trim_band_low_percent"`
+	AfterHigh num    `json:"after_trim_band_high_percent"`
+	Note      string `json:"note,omitempty"`
+}
+
+func (j *job) trimOut(generated string) trimJSON {
+	tp := j.Trim
+	out := trimJSON{Site: j.L.Site.Name, Generated: generated, State: tp.Label, Summary: j.trimSummary(siDisplay())}
+	out.Pump = trimPumpJSON{Boundary: j.L.Site.Boundary.Kind.String(), Changed: tp.PumpChanged, SpeedRatio: num(math.NaN()), SetPoint: num(tp.Differential), LeftSpeed: num(math.NaN()), LeftDiff: num(math.NaN())}
+	if tp.BySpeed {
+		out.Pump.SpeedRatio, out.Pump.LeftSpeed = num(tp.Speed), num(tp.PumpLeft)
+	} else {
+		out.Pump.LeftDiff = num(tp.PumpLeft)
+	}
+	for _, b := range tp.Branches {
+		found := math.NaN()
+		if j.Before != nil {
+			found = 100 * j.Before.Flow(b.Index) / b.Target
+		}
+		out.Branches = append(out.Branches, trimBranchJSON{ID: b.ID, Valve: b.Valve, Unit: b.Unit, Left: num(b.Left), New: num(b.New), Trimmed: b.Trimmed,
+			Target: num(b.Target), Found: num(found), LeftPct: num(b.LeftPercent), LeftLow: num(b.LeftLow), LeftHigh: num(b.LeftHigh),
+			Verdict: b.Verdict.String(), Read: j.readLeft[b.ID], After: num(b.AfterPercent), AfterLow: num(b.AfterLow), AfterHigh: num(b.AfterHigh), Note: b.Note})
+	}
+	return out
+}
+
+// padRows returns rows with k blank cells added to each (write-in columns).
+func padRows(rows [][]string, k int) [][]string {
+	out := make([][]string, len(rows))
+	for i, r := range rows {
+		out[i] = append(append([]string(nil), r...), make([]string, k)...)
+	}
+	return out
+}
