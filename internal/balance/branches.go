@@ -91,7 +91,7 @@ func (pl *planner) valveNotes(i int, bp *BranchPlan, sol *plant.Solved) {
 	b := &m.Branches[i]
 	if b.ValveModel != nil {
 		bp.Valve, bp.Unit = b.ValveModel.Name, b.ValveModel.Unit
-		if !b.ValveModel.Table() {
+		if b.ValveModel.Characteristic != "" {
 			bp.Unit = "%"
 		}
 	}

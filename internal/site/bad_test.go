@@ -382,6 +382,38 @@ var badCases = []badCase{
 		want: []string{
 			"valves.csv:3:3: field \"kv\": setting without a kv (want the kv at that setting)",
 		}},
+	// Pressure-independent valves (a max flow table and a hold diff).
+	{name: "pressure-independent valve", files: map[string]string{"valves.csv": "model,setting,max flow [l/s],kv,hold diff [kPa]\nV15,0.5,0.1,,25\nV15,4,0.6,5,\n"}},
+	{name: "pressure-independent valve without hold diff", files: map[string]string{"valves.csv": "model,setting,max flow [l/s]\nV15,0.5,0.1\nV15,4,0.6\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:2:1: field \"model\": value \"V15\": pressure-independent valve without a hold diff (want the least differential across it at which it holds its flow, e.g. 20 kPa)",
+		}},
+	{name: "max flow falling", files: map[string]string{"valves.csv": "model,setting,max flow [l/s],hold diff [kPa]\nV15,0.5,0.1,20\nV15,2,0.3,\nV15,4,0.3,\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:4:3: field \"max flow\": value \"0.3\": max flow does not rise with the setting (want a max flow above line 3's)",
+		}},
+	{name: "max flow rows mixed with kv rows", files: map[string]string{"valves.csv": "model,setting,kv,max flow [l/s],hold diff [kPa]\nV15,0.5,0.2,0.1,20\nV15,4,2.1,,\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"valves.csv:2:1: field \"model\": value \"V15\": model has rows with a max flow and rows without (want a max flow on every setting row of a pressure-independent valve)",
+		}},
+	{name: "max flow without a setting", files: map[string]string{"valves.csv": "model,setting,max flow [l/s],hold diff [kPa]\nV15,0.5,0.1,20\nV15,,0.3,\nV15,4,0.6,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:3:2: field \"setting\": max flow without a setting (want the setting this max flow belongs to)",
+		}},
+	{name: "hold diff on a kv table", files: map[string]string{"valves.csv": "model,setting,kv,hold diff [kPa]\nV15,0.5,0.2,20\nV15,4,2.1,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"valves.csv:2:1: field \"model\": value \"V15\": hold diff given for a valve without max flow rows (want setting and max flow rows for a pressure-independent valve, or no hold diff)",
+		}},
+	{name: "pressure-independent valve with kvs", files: map[string]string{"valves.csv": "model,setting,max flow [l/s],hold diff [kPa],kvs\nV15,0.5,0.1,20,3\nV15,4,0.6,,\n"},
+		cause: ErrDuplicate,
+		want: []string{
+			"valves.csv:2:1: field \"model\": value \"V15\": kvs given for a pressure-independent valve (want setting, max flow and hold diff (kv optional on each row))",
+		}},
 	{name: "table and characteristic", files: map[string]string{"valves.csv": "model,setting,kv,characteristic,kvs\nV15,0.5,0.2,,\nV15,4,2.1,,\nV15,,,linear,2.5\n"},
 		cause: ErrDuplicate,
 		want: []string{

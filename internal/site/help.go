@@ -34,16 +34,19 @@ R1.1,R1,0.40,en10255-m,DN20,25,10,V15,2.0,0,0,,,,,
 R1.2,R1,0.80,en10255-m,DN25,30,12,V15,4.0,3,3,en10255-m,DN40,,,
 R2,,0.60,en10255-m,DN25,40,15,V15,3.0,15,17,en10255-m,DN50,,DN40,0.9
 `,
-	"valves": `model,setting unit,setting,kv,characteristic,kvs,rangeability
-V15,turns,0.5,0.15,,,
-V15,turns,1,0.35,,,
-V15,turns,2,0.90,,,
-V15,turns,3,1.60,,,
-V15,turns,4,2.30,,,
-V25,turns,0.5,0.60,,,
-V25,turns,2,2.40,,,
-V25,turns,4,5.80,,,
-CV20,%,,,equal-percentage,4.0,50
+	"valves": `model,setting unit,setting,kv,characteristic,kvs,rangeability,max flow [l/s],hold diff [kPa]
+V15,turns,0.5,0.15,,,,,
+V15,turns,1,0.35,,,,,
+V15,turns,2,0.90,,,,,
+V15,turns,3,1.60,,,,,
+V15,turns,4,2.30,,,,,
+V25,turns,0.5,0.60,,,,,
+V25,turns,2,2.40,,,,,
+V25,turns,4,5.80,,,,,
+CV20,%,,,equal-percentage,4.0,50,,
+PI15,steps,1,,,,,0.03,20
+PI15,steps,3,,,,,0.08,20
+PI15,steps,5,,,,,0.15,20
 `,
 	"pump": `flow [l/s],head [m]
 0,8.0
@@ -127,8 +130,14 @@ rise down the table and Kv must rise with them. A valve without a table is
 one row with a characteristic (linear, equal-percentage, quick-opening), its
 Kvs and rangeability; its setting is then % of travel. A cv column instead
 of kv (cvs instead of kvs) takes US Cv, converted with Kv = 0.864978 Cv.
-Model-wide values (setting unit, step, min diff) may sit on any row of the
-model, once or repeated the same. Optional when no branch names a valve.`,
+Model-wide values (setting unit, step, min diff, hold diff) may sit on any
+row of the model, once or repeated the same. A pressure-independent control
+valve (a flow limiter with a setting and a regulator in one body, PI15 below)
+gives max flow instead of kv on its rows, the flow it holds at each setting,
+and its hold diff, the least differential at which it holds it; a kv on such
+a row is its Kv below that differential (blank: the Kv that passes the row's
+flow at the hold diff). See flowset help pressure-independent. Optional when
+no branch names a valve.`,
 	"pump": `The pump sheet is the pump's head curve at nominal speed: flows rising down
 the sheet, head in height of the pumped fluid (m or ft; not a pressure).
 At least three points: the curve is fitted as a quadratic. Optional; when present
@@ -205,7 +214,7 @@ func Topics() []Topic {
 		}
 		out = append(out, Topic{Name: sc.name, Title: sheetTitles[sc.name], Body: b.String()})
 	}
-	out = append(out, unitsTopic(), instrumentsTopic())
+	out = append(out, pressureIndependentTopic(), unitsTopic(), instrumentsTopic())
 	return out
 }
 
@@ -325,4 +334,40 @@ counted twice with a valve diff of the same moment. Differentials below the
 valve's min diff (3 kPa by default) read poorly.
 `)
 	return Topic{Name: "instruments", Title: "instrument kinds and default uncertainties", Body: b.String()}
+}
+
+func pressureIndependentTopic() Topic {
+	return Topic{Name: "pressure-independent", Title: "pressure-independent control valves at terminals", Body: `A pressure-independent control valve joins a flow limiter with a setting and
+a differential regulator in one body: above its hold differential it passes
+the flow its setting gives whatever the differential; below it the regulator
+is wide open and the valve is a fixed restriction, so the flow falls as the
+square root of the differential.
+
+Entering one. In valves.csv give the model one row per setting with the flow
+it holds there (max flow) and, on any row, its hold diff (the maker's least
+differential for holding the flow). A kv on a row is the valve's Kv at that
+setting below the hold diff; blank, it is the Kv that passes the row's flow
+at the hold diff (so the valve holds from exactly there). Between rows the
+flow is interpolated as a monotone cubic in ln flow. A branch names the
+model in its valve column and its as-found setting in its setting column,
+as for any valve; readings may give a setting per state.
+  model,setting unit,setting,max flow [l/s],hold diff [kPa]
+  PI15,steps,1,0.03,20
+  PI15,steps,3,0.08,20
+  PI15,steps,5,0.15,20
+
+What flowset does with it:
+  model     the valve holds its set flow within 0.5 % per 100 kPa above its
+            hold point (a stiff regulator; real valves hold within a few %)
+  plan      each valve is set to the setting whose flow is the branch's
+            target, and the pump to give the worst-placed valve its hold
+            diff plus 10 % of it (a margin of common practice, no source)
+  fit       while a valve regulates, its branch's flow does not depend on
+            the branch's resistance: that resistance is kept at its design
+            value and reported as not determined; the valve's own flow scale
+            (does its setting give its flow?) is fitted where flows are read
+  findings  a valve below its hold diff (starved: its flow falls short), a
+            setting that does not give its table's flow
+Readings: flow, branch diff and valve diff (across the whole valve body) as
+for any branch; a valve meter cannot read one (it has no Kv table).`}
 }

@@ -699,6 +699,8 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 		attrs    map[string]attr
 		setRefs  []cellRef
 		kvRefs   []cellRef
+		mfRefs   []cellRef
+		kvRows   int // rows of setting and kv without max flow
 		charRef  cellRef
 		modelRef cellRef
 		bad      bool
@@ -725,6 +727,7 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 			}
 			b = &build{m: ValveModel{Name: name, Pos: Pos{File: t.file, Line: r.line}, Kvs: nan, Rangeability: nan, Step: nan, MinDiff: nan},
 				attrs: map[string]attr{}, modelRef: mref}
+			b.m.HoldDiff = nan
 			byName[name] = b
 			folded[idKey(name)] = b
 			order = append(order, name)
@@ -744,7 +747,7 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 		if w := sr.word(r, "setting unit", &ok); w != "" {
 			same("setting unit", attr{w: w, line: r.line})
 		}
-		for _, col := range []string{"step", "min diff", "kvs", "rangeability"} {
+		for _, col := range []string{"step", "min diff", "kvs", "rangeability", "hold diff"} {
 			if v, good := sr.num(r, col); !good {
 				b.bad = true
 			} else if !math.IsNaN(v) {
@@ -757,11 +760,24 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 		}
 		set, good1 := sr.num(r, "setting")
 		kv, good2 := sr.num(r, "kv")
-		if !ok || !good1 || !good2 {
+		mf, good3 := sr.num(r, "max flow")
+		if !ok || !good1 || !good2 || !good3 {
 			b.bad = true
 			continue
 		}
 		switch {
+		case !math.IsNaN(mf) && math.IsNaN(set):
+			p.add(sr.ref(r, "setting").problem(SeverityError, ErrMissing, "max flow without a setting", "the setting this max flow belongs to"))
+			b.bad = true
+		case !math.IsNaN(mf):
+			// A pressure-independent valve's row: the kv, when given,
+			// is the valve's below its hold differential.
+			b.m.Settings = append(b.m.Settings, set)
+			b.m.Kv = append(b.m.Kv, kv)
+			b.m.MaxFlow = append(b.m.MaxFlow, mf)
+			b.setRefs = append(b.setRefs, sr.ref(r, "setting"))
+			b.kvRefs = append(b.kvRefs, sr.ref(r, "kv"))
+			b.mfRefs = append(b.mfRefs, sr.ref(r, "max flow"))
 		case math.IsNaN(set) && math.IsNaN(kv):
 		case math.IsNaN(kv):
 			p.add(sr.ref(r, "kv").problem(SeverityError, ErrMissing, "setting without a kv", "the kv at that setting"))
@@ -774,6 +790,7 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 			b.m.Kv = append(b.m.Kv, kv)
 			b.setRefs = append(b.setRefs, sr.ref(r, "setting"))
 			b.kvRefs = append(b.kvRefs, sr.ref(r, "kv"))
+			b.kvRows++
 		}
 	}
 	for _, name := range order {
@@ -788,9 +805,19 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 			return def
 		}
 		m.MinDiff = get("min diff", defaultMinDiff)
+		m.HoldDiff = get("hold diff", nan)
 		switch {
 		case b.bad:
 			// Already reported; the model is kept so references resolve.
+		case len(m.MaxFlow) > 0:
+			if !checkFlowTable(m, b.kvRows, b.setRefs, b.kvRefs, b.mfRefs, b.modelRef,
+				func(col string) bool { _, ok := b.attrs[col]; return ok }, p) {
+				b.bad = true
+			}
+		case !math.IsNaN(m.HoldDiff):
+			p.add(b.modelRef.problem(SeverityError, ErrMissing, "hold diff given for a valve without max flow rows",
+				"setting and max flow rows for a pressure-independent valve, or no hold diff"))
+			b.bad = true
 		case m.Characteristic != "" && len(m.Settings) > 0:
 			p.add(b.charRef.problem(SeverityError, ErrDuplicate, "model has both a kv table and a characteristic",
 				"either setting and kv rows or one characteristic"))
@@ -834,6 +861,64 @@ func readValves(t *table, p *Problems) (models []ValveModel, bad map[string]bool
 		models = append(models, *m)
 	}
 	return models, bad, true
+}
+
+// checkFlowTable checks a pressure-independent valve's table: no Kv rows
+// or characteristic beside it, a hold differential, two points at least,
+// settings rising down the sheet and the flow held rising with them, and any
+// Kv given above 0.
+func checkFlowTable(m *ValveModel, kvRows int, setRefs, kvRefs, mfRefs []cellRef, modelRef cellRef, given func(col string) bool, p *Problems) bool {
+	ok := true
+	if kvRows > 0 {
+		p.add(modelRef.problem(SeverityError, ErrDuplicate, "model has rows with a max flow and rows without",
+			"a max flow on every setting row of a pressure-independent valve"))
+		return false
+	}
+	if m.Characteristic != "" {
+		p.add(modelRef.problem(SeverityError, ErrDuplicate, "model has both max flow rows and a characteristic",
+			"either setting and max flow rows or one characteristic"))
+		ok = false
+	}
+	for _, col := range []string{"kvs", "rangeability"} {
+		if given(col) {
+			p.add(modelRef.problem(SeverityError, ErrDuplicate, col+" given for a pressure-independent valve",
+				"setting, max flow and hold diff (kv optional on each row)"))
+			ok = false
+		}
+	}
+	if math.IsNaN(m.HoldDiff) {
+		p.add(modelRef.problem(SeverityError, ErrMissing, "pressure-independent valve without a hold diff",
+			"the least differential across it at which it holds its flow, e.g. 20 kPa"))
+		ok = false
+	}
+	if len(m.Settings) < 2 {
+		p.add(modelRef.problem(SeverityError, ErrMissing, "max flow table has one point", "at least two settings with their max flow"))
+		return false
+	}
+	for i, kv := range m.Kv {
+		if kv == 0 {
+			p.add(kvRefs[i].problem(SeverityError, ErrRange, "kv 0 is a shut valve, which cannot be modelled", "a kv above 0, or blank"))
+			ok = false
+		}
+	}
+	for i := 1; i < len(m.Settings); i++ {
+		if m.Settings[i] <= m.Settings[i-1] {
+			p.add(setRefs[i].problem(SeverityError, ErrRange, "settings must rise down the table",
+				fmt.Sprintf("a setting above %s (line %d)", fmtNum(m.Settings[i-1]), setRefs[i-1].line)))
+			ok = false
+			continue
+		}
+		if m.MaxFlow[i] <= m.MaxFlow[i-1] {
+			p.add(mfRefs[i].problem(SeverityError, ErrRange, "max flow does not rise with the setting",
+				fmt.Sprintf("a max flow above line %d's", mfRefs[i-1].line)))
+			ok = false
+		}
+	}
+	if m.Unit == "%" && m.Settings[len(m.Settings)-1] > 100 {
+		p.add(setRefs[len(setRefs)-1].problem(SeverityError, ErrRange, "setting above 100 %", "a setting from 0 to 100 %"))
+		ok = false
+	}
+	return ok
 }
 
 // checkTable checks a valve's Kv table: two points at least, settings

@@ -248,15 +248,31 @@ type ValveModel struct {
 	Rangeability   float64 // Kvs over the smallest controllable Kv
 
 	MinDiff float64 // Pa, smallest differential that reads reliably
-	Pos     Pos
+
+	// MaxFlow, when not empty, makes the model a pressure-independent
+	// control valve (a flow limiter and a differential regulator in one
+	// body): the flow it holds at each of Settings, m3/s, rising with the
+	// setting. Kv then gives its flow coefficient at each setting below
+	// HoldDiff (NaN where the sheet leaves it blank: the Kv that passes
+	// the setting's flow at HoldDiff).
+	MaxFlow []float64
+	// HoldDiff is the least differential across a pressure-independent
+	// valve at which it holds its flow, Pa; NaN for other valves.
+	HoldDiff float64
+
+	Pos Pos
 }
 
 // Table reports whether v is defined by a Kv table.
-func (v *ValveModel) Table() bool { return v.Characteristic == "" }
+func (v *ValveModel) Table() bool { return v.Characteristic == "" && len(v.MaxFlow) == 0 }
+
+// PressureIndependent reports whether v is a pressure-independent control
+// valve (a table of the flow it holds against setting).
+func (v *ValveModel) PressureIndependent() bool { return len(v.MaxFlow) > 0 }
 
 // Range returns the lowest and highest setting of the valve.
 func (v *ValveModel) Range() (lo, hi float64) {
-	if v.Table() {
+	if v.Characteristic == "" {
 		if len(v.Settings) == 0 {
 			return 0, 0
 		}

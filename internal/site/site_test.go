@@ -402,7 +402,7 @@ func TestTopics(t *testing.T) {
 			t.Errorf("topic %q: title %q, body of %d bytes", tp.Name, tp.Title, len(tp.Body))
 		}
 	}
-	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "units", "instruments"}
+	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "pressure-independent", "units", "instruments"}
 	if diff := cmp.Diff(wantNames, names); diff != "" {
 		t.Errorf("topic names (-want +got):\n%s", diff)
 	}
@@ -670,5 +670,43 @@ func TestSiteIntroExamples(t *testing.T) {
 		if strings.Contains(b, "static lift") && !(s.StaticLift > 7 && s.StaticLift < 8 && s.OutletPressure > 19.9e3 && s.OutletPressure < 20.1e3) {
 			t.Errorf("example %d: static lift %g m, outlet pressure %g Pa; want the text's 7.5 m and 20 kPa (24.6 ft, 2.9 psi)", i+1, s.StaticLift, s.OutletPressure)
 		}
+	}
+}
+
+// TestPressureIndependentExample reads the valves topic's example model PI15
+// and writes it back: a table of the flow it holds by setting, its hold
+// differential in Pa, and a Kv left for the model to derive (NaN).
+func TestPressureIndependentExample(t *testing.T) {
+	fsys := fstest.MapFS{}
+	for name, text := range examples {
+		fsys[name+".csv"] = &fstest.MapFile{Data: []byte(text)}
+	}
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("examples: %v %v", err, p)
+	}
+	v := s.Valve("PI15")
+	if v == nil || !v.PressureIndependent() || v.Table() {
+		t.Fatalf("PI15 = %+v, want a pressure-independent valve", v)
+	}
+	if diff := cmp.Diff([]float64{0.03e-3, 0.08e-3, 0.15e-3}, v.MaxFlow, cmpopts.EquateApprox(1e-12, 0)); diff != "" {
+		t.Errorf("max flow (-want +got):\n%s", diff)
+	}
+	if v.HoldDiff != 20e3 || !math.IsNaN(v.Kv[0]) || v.Unit != "steps" {
+		t.Errorf("hold diff %g Pa, kv %v, unit %q; want 20000 Pa, NaN, steps", v.HoldDiff, v.Kv, v.Unit)
+	}
+	if v := s.Valve("V15"); v.PressureIndependent() || !math.IsNaN(v.HoldDiff) {
+		t.Errorf("V15 = %+v, want a Kv table without a hold diff", v)
+	}
+	out := fstest.MapFS{}
+	if err := WriteDir(s, mapCreate(out)); err != nil {
+		t.Fatalf("WriteDir: %v", err)
+	}
+	got, p, err := ReadDir(out, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("ReadDir after WriteDir: %v\n%v", err, p)
+	}
+	if diff := cmp.Diff(s.Valves, got.Valves, sameSite); diff != "" {
+		t.Errorf("valves round trip (-before +after):\n%s", diff)
 	}
 }

@@ -151,6 +151,17 @@ func render(s *Site) []outSheet {
 	for _, v := range s.Valves {
 		common := map[string]any{"model": v.Name, "setting unit": v.Unit, "step": v.Step, "min diff": v.MinDiff,
 			"characteristic": v.Characteristic, "kvs": v.Kvs, "rangeability": v.Rangeability}
+		if v.PressureIndependent() {
+			common["hold diff"] = v.HoldDiff
+			for i := range v.Settings {
+				m := map[string]any{"setting": v.Settings[i], "kv": v.Kv[i], "max flow": v.MaxFlow[i]}
+				for k, x := range common {
+					m[k] = x
+				}
+				va.rows = append(va.rows, cellsOf(&valveColumns, m))
+			}
+			continue
+		}
 		if !v.Table() {
 			va.rows = append(va.rows, cellsOf(&valveColumns, common))
 			continue
@@ -162,6 +173,12 @@ func render(s *Site) []outSheet {
 			}
 			va.rows = append(va.rows, cellsOf(&valveColumns, m))
 		}
+	}
+
+	if !slices.ContainsFunc(s.Valves, func(v ValveModel) bool { return v.PressureIndependent() }) {
+		// As for the legs: a site without pressure-independent valves
+		// reads and writes as before.
+		va = dropColumns(va, []string{"max flow", "hold diff"})
 	}
 
 	pu := columnSheet(&pumpColumns)
