@@ -180,3 +180,69 @@ func (v PressureIndependent) FlowAt(dp float64, f fluid.State) (float64, error) 
 	}
 	return sign * q, nil
 }
+
+// PressureIndependentTable is a pressure-independent valve model: the flow
+// it holds and its Kv below its hold differential, each against setting
+// (monotone cubic tables in ln value, as Table), and the least differential
+// at which its maker says it holds its flow.
+type PressureIndependentTable struct {
+	Flow Table // set flow [m3/s] against setting
+	Kv   Table // Kv [m3/h at 1 bar] below the hold differential against setting
+	// HoldDiff is the maker's least differential for holding the flow, Pa.
+	HoldDiff float64
+}
+
+// NewPressureIndependentTable returns the model of settings, the flows held
+// there [m3/s], the Kv below the hold differential (NaN entries: the Kv
+// that passes the setting's flow at holdDiff with water at the reference
+// density, so the valve holds from exactly holdDiff) and the smallest
+// setting change step.
+func NewPressureIndependentTable(settings, flows, kv []float64, holdDiff, step float64) (PressureIndependentTable, error) {
+	if !(holdDiff > 0) || math.IsInf(holdDiff, 1) {
+		return PressureIndependentTable{}, fmt.Errorf("pressure-independent valve: hold differential %g Pa must be positive: %w", holdDiff, ErrInvalid)
+	}
+	if len(kv) != len(flows) {
+		return PressureIndependentTable{}, fmt.Errorf("pressure-independent valve: %d kv for %d flows: %w", len(kv), len(flows), ErrInvalid)
+	}
+	ft, err := NewTable(settings, flows, step)
+	if err != nil {
+		return PressureIndependentTable{}, fmt.Errorf("pressure-independent valve, flow table: %w", err)
+	}
+	k := make([]float64, len(kv))
+	for i, v := range kv {
+		k[i] = v
+		if math.IsNaN(v) {
+			if k[i], err = KvFromDrop(flows[i], holdDiff, KvRefDensity); err != nil {
+				return PressureIndependentTable{}, fmt.Errorf("pressure-independent valve: %w", err)
+			}
+		}
+	}
+	kt, err := NewTable(settings, k, step)
+	if err != nil {
+		return PressureIndependentTable{}, fmt.Errorf("pressure-independent valve, kv below the hold differential: %w", err)
+	}
+	return PressureIndependentTable{Flow: ft, Kv: kt, HoldDiff: holdDiff}, nil
+}
+
+// At returns the valve at a setting, with its flow and Kv multiplied by
+// scale (a setting that passes scale times its table's flow; 0 means 1).
+func (t PressureIndependentTable) At(setting, scale float64) (PressureIndependent, error) {
+	if scale == 0 {
+		scale = 1
+	}
+	q, err := t.Flow.KvAt(setting)
+	if err != nil {
+		return PressureIndependent{}, err
+	}
+	kv, err := t.Kv.KvAt(setting)
+	if err != nil {
+		return PressureIndependent{}, err
+	}
+	return PressureIndependent{Flow: q * scale, Kv: kv * scale}, nil
+}
+
+// Range returns the lowest and highest setting.
+func (t PressureIndependentTable) Range() (lo, hi float64) { return t.Flow.Range() }
+
+// SettingFor returns the setting whose held flow is q [m3/s].
+func (t PressureIndependentTable) SettingFor(q float64) (float64, error) { return t.Flow.SettingFor(q) }

@@ -141,3 +141,52 @@ func TestPressureIndependentInvalid(t *testing.T) {
 		}
 	}
 }
+
+// TestPressureIndependentTable checks a model of three settings: the valve
+// at a table setting holds the table's flow; a blank Kv makes it hold from
+// exactly the hold differential at the reference density (Q = Kv √Δp,
+// IEC 60534-2-1); a given Kv is kept; SettingFor inverts the flow table;
+// a scale multiplies flow and Kv together, keeping the hold differential.
+func TestPressureIndependentTable(t *testing.T) {
+	settings := []float64{1, 3, 5}
+	flows := []float64{0.03e-3, 0.08e-3, 0.15e-3}
+	tb, err := NewPressureIndependentTable(settings, flows, []float64{math.NaN(), 0.8, math.NaN()}, 20e3, 0.5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, s := range settings {
+		v, err := tb.At(s, 1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if relErr(v.Flow, flows[i]) > 1e-12 {
+			t.Errorf("At(%g).Flow = %g, want %g", s, v.Flow, flows[i])
+		}
+		hold := v.HoldDiff(KvRefDensity)
+		if i == 1 {
+			// Kv 0.8 given: 0.288 m3/h at Kv 0.8 holds from 0.36² bar.
+			if relErr(v.Kv, 0.8) > 1e-12 || relErr(hold, 0.36*0.36*1e5) > 1e-9 {
+				t.Errorf("At(%g): kv %g, hold %g Pa; want 0.8 and %g", s, v.Kv, hold, 0.36*0.36*1e5)
+			}
+		} else if relErr(hold, 20e3) > 1e-9 {
+			t.Errorf("At(%g): hold %g Pa, want 20000", s, hold)
+		}
+		got, err := tb.SettingFor(flows[i])
+		if err != nil || math.Abs(got-s) > 1e-9 {
+			t.Errorf("SettingFor(%g) = %g, %v; want %g", flows[i], got, err, s)
+		}
+		w, _ := tb.At(s, 1.1)
+		if relErr(w.Flow, 1.1*v.Flow) > 1e-12 || relErr(w.HoldDiff(KvRefDensity), hold) > 1e-9 {
+			t.Errorf("At(%g, 1.1) = %+v, want flow %g and the same hold differential", s, w, 1.1*v.Flow)
+		}
+	}
+	// Between rows the flow rises with the setting.
+	q2, _ := tb.At(2, 1)
+	q4, _ := tb.At(4, 1)
+	if !(q2.Flow > flows[0] && q2.Flow < flows[1] && q4.Flow > flows[1] && q4.Flow < flows[2]) {
+		t.Errorf("interpolated flows %g at 2 and %g at 4 do not lie between the table's", q2.Flow, q4.Flow)
+	}
+	if _, err := NewPressureIndependentTable(settings, flows, []float64{math.NaN(), math.NaN(), math.NaN()}, 0, 0.5); err == nil {
+		t.Error("a hold differential of 0 was accepted")
+	}
+}

@@ -47,8 +47,14 @@ type Branch struct {
 	// Fixed are the parts a resistance multiplier scales: pipe, fittings,
 	// terminal and any control valve held open.
 	Fixed []hydraulics.Element
-	// Valve is the balancing valve's characteristic; nil for none.
-	Valve      hydraulics.Characteristic
+	// Valve is the balancing valve's characteristic; nil for none (and
+	// for a pressure-independent valve).
+	Valve hydraulics.Characteristic
+	// PI is the branch's pressure-independent control valve; nil for
+	// none. A branch has at most one of Valve and PI; its setting is kept
+	// where a balancing valve's is (AsFound, State.Settings, a plan's
+	// settings) and KvScale multiplies the flow it holds and its Kv.
+	PI         *hydraulics.PressureIndependentTable
 	ValveModel *site.ValveModel
 	AsFound    float64 // as-found setting (fully open when not recorded)
 	Recorded   bool    // whether AsFound came from the sheet
@@ -56,6 +62,22 @@ type Branch struct {
 	Return     []hydraulics.Element
 	Children   []int
 	Bore       float64 // branch pipe bore, m (0 when unknown)
+}
+
+// HasValve reports whether the branch has a valve with a setting: a
+// balancing valve or a pressure-independent one.
+func (b *Branch) HasValve() bool { return b.Valve != nil || b.PI != nil }
+
+// Range returns the lowest and highest setting of the branch's valve (0, 0
+// without one).
+func (b *Branch) Range() (lo, hi float64) {
+	switch {
+	case b.Valve != nil:
+		return b.Valve.Range()
+	case b.PI != nil:
+		return b.PI.Range()
+	}
+	return 0, 0
 }
 
 // Riser reports whether the branch feeds sub-branches.
@@ -123,7 +145,7 @@ func New(s *site.Site) (*Model, error) {
 	for i := range s.Valves {
 		valves[s.Valves[i].Name] = &s.Valves[i]
 	}
-	chars := map[*site.ValveModel]hydraulics.Characteristic{}
+	chars := map[*site.ValveModel]any{}
 	pipes := pipeCache{}
 	for i := range s.Branches {
 		sb := &s.Branches[i]
@@ -156,7 +178,7 @@ func New(s *site.Site) (*Model, error) {
 	for i := range m.Branches {
 		// A terminal with nothing in it is a short circuit: the network
 		// cannot split the flow between it and anything else.
-		if b := &m.Branches[i]; !b.Riser() && len(b.Fixed) == 0 && b.Valve == nil {
+		if b := &m.Branches[i]; !b.Riser() && len(b.Fixed) == 0 && !b.HasValve() {
 			return nil, fmt.Errorf("%s: branch %q has nothing that resists flow (no pipe length, fittings, terminal drop, control valve or balancing valve): %w", s.Branches[i].Pos, b.ID, ErrModel)
 		}
 	}
@@ -233,7 +255,7 @@ func fluidState(s *site.Site) (fluid.State, error) {
 // newBranch builds branch sb. chars and pipes hold the characteristics and
 // pipe lookups made so far: a site has far fewer valve models and pipe
 // sizes than branches.
-func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel, chars map[*site.ValveModel]hydraulics.Characteristic, pipes pipeCache) (Branch, error) {
+func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel, chars map[*site.ValveModel]any, pipes pipeCache) (Branch, error) {
 	b := Branch{ID: sb.ID, Parent: sb.Parent, Design: sb.DesignFlow, Target: sb.DesignFlow}
 	if t, ok := s.Targets[sb.ID]; ok {
 		b.Target = t
@@ -275,19 +297,34 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 		c, ok := chars[vm]
 		if !ok {
 			var err error
-			if c, err = Characteristic(vm); err != nil {
-				return b, where(err)
+			if vm.PressureIndependent() {
+				var t hydraulics.PressureIndependentTable
+				t, err = hydraulics.NewPressureIndependentTable(vm.Settings, vm.MaxFlow, vm.Kv, vm.HoldDiff, vm.Step)
+				c = &t
+			} else {
+				c, err = Characteristic(vm)
+			}
+			if err != nil {
+				return b, where(fmt.Errorf("valve %q: %w", vm.Name, err))
 			}
 			chars[vm] = c
 		}
-		b.Valve, b.ValveModel = c, vm
-		_, hi := c.Range()
+		var hi float64
+		switch c := c.(type) {
+		case *hydraulics.PressureIndependentTable:
+			b.PI = c
+			_, hi = c.Range()
+		case hydraulics.Characteristic:
+			b.Valve = c
+			_, hi = c.Range()
+		}
+		b.ValveModel = vm
 		b.AsFound = hi
 		if !math.IsNaN(sb.Setting) {
 			b.AsFound, b.Recorded = sb.Setting, true
 		}
 	}
-	if len(b.Fixed) == 0 && b.Valve == nil {
+	if len(b.Fixed) == 0 && !b.HasValve() {
 		// A branch with nothing in it would be a short circuit; it is
 		// allowed only as a riser whose children carry the resistance.
 		b.Fixed = nil
@@ -475,7 +512,7 @@ func (m *Model) states() ([]State, error) {
 			if !ok || math.IsNaN(r.Setting) {
 				continue
 			}
-			if m.Branches[i].Valve == nil {
+			if !m.Branches[i].HasValve() {
 				return nil, fmt.Errorf("%s: reading gives a valve setting for branch %q, which has no balancing valve: %w", r.Pos, r.Where, ErrModel)
 			}
 			if old, dup := set[i]; dup && old != r.Setting {
@@ -539,7 +576,7 @@ func (m *Model) AsFound() []float64 {
 	out := make([]float64, len(m.Branches))
 	for i, b := range m.Branches {
 		out[i] = math.NaN()
-		if b.Valve != nil {
+		if b.HasValve() {
 			out[i] = b.AsFound
 		}
 	}
@@ -551,8 +588,8 @@ func (m *Model) Open() []float64 {
 	out := make([]float64, len(m.Branches))
 	for i, b := range m.Branches {
 		out[i] = math.NaN()
-		if b.Valve != nil {
-			_, out[i] = b.Valve.Range()
+		if b.HasValve() {
+			_, out[i] = b.Range()
 		}
 	}
 	return out
@@ -583,9 +620,16 @@ func (m *Model) FixedElement(i int, r float64) hydraulics.Element {
 
 // ValveElement returns branch i's balancing valve at a setting and Kv scale,
 // or nil when it has none. The valve works out its Kv once (an invalid one
-// is kept as it is, and its Drop gives NaN for the solver to report).
+// is kept as it is, and its Drop gives NaN for the solver to report). A
+// pressure-independent valve is returned at its setting with flow and Kv
+// scaled by kvScale (outside its table: an invalid valve, whose Drop gives
+// NaN).
 func (m *Model) ValveElement(i int, setting, kvScale float64) hydraulics.Element {
 	b := &m.Branches[i]
+	if b.PI != nil {
+		v, _ := b.PI.At(setting, kvScale)
+		return v
+	}
 	if b.Valve == nil {
 		return nil
 	}
@@ -777,6 +821,34 @@ func (s *Solved) ValveDiff(i int) float64 {
 	return dp
 }
 
+// Regulates reports whether branch i's pressure-independent valve holds
+// its set flow in the solved state: its differential is at or above the
+// maker's hold differential, or above the one its Kv gives where that is
+// higher. False for a branch without one.
+func (s *Solved) Regulates(i int) bool {
+	b := &s.Model.Branches[i]
+	if b.PI == nil {
+		return false
+	}
+	return s.ValveDiff(i) >= s.HoldDiff(i)
+}
+
+// HoldDiff returns the least differential at which branch i's
+// pressure-independent valve holds its flow in the solved state: the
+// maker's figure, or the differential at which its Kv passes its set flow
+// where that is higher; NaN without one.
+func (s *Solved) HoldDiff(i int) float64 {
+	b := &s.Model.Branches[i]
+	if b.PI == nil {
+		return math.NaN()
+	}
+	v, err := b.PI.At(s.State.Settings[i], s.Params.KvScale[i])
+	if err != nil {
+		return math.NaN()
+	}
+	return max(b.PI.HoldDiff, v.HoldDiff(s.Model.Fluid.Density))
+}
+
 // HeaderDiff returns the differential between the supply and return
 // headers where the branches begin, Pa.
 func (s *Solved) HeaderDiff() float64 {
@@ -875,7 +947,7 @@ func (s *Solved) Predict(r *site.Reading) (float64, error) {
 	case site.BranchDiff:
 		return s.BranchDiff(i), nil
 	case site.ValveDiff:
-		if s.Model.Branches[i].Valve == nil {
+		if !s.Model.Branches[i].HasValve() {
 			return 0, fmt.Errorf("%s: valve differential at branch %q, which has no balancing valve: %w", r.Pos, r.Where, ErrModel)
 		}
 		return s.ValveDiff(i), nil
