@@ -68,7 +68,9 @@ func (pl *planner) branches(sol *plant.Solved) error {
 		if !finite(bp.Predicted) || !finite(bp.BranchDiff) {
 			return fmt.Errorf("branch %q: predicted flow %g m3/s: %w", b.ID, bp.Predicted, ErrSolve)
 		}
-		if ex.index[i] && !b.Riser() {
+		if ex.index[i] && b.PI != nil {
+			bp.Notes = append(bp.Notes, fmt.Sprintf("index circuit: the pump is set to give this pressure-independent valve its hold differential and %.0f %% (%.1f kPa)", HoldMargin*100, ex.open[i]/1e3))
+		} else if ex.index[i] && !b.Riser() {
 			bp.Notes = append(bp.Notes, "index circuit: valve fully open, the pump is set for this branch")
 		} else if ex.index[i] {
 			bp.Notes = append(bp.Notes, "on the index path: valve fully open")
@@ -76,7 +78,9 @@ func (pl *planner) branches(sol *plant.Solved) error {
 		if pl.starved != nil && pl.starved[i] {
 			bp.Notes = append(bp.Notes, fmt.Sprintf("the pump cannot give what this branch needs at target: valve fully open, it gets %.0f %% of target (see the remedies)", bp.Percent))
 		}
-		if b.Valve != nil {
+		if b.PI != nil {
+			pl.heldNotes(i, &bp, sol)
+		} else if b.Valve != nil {
 			pl.valveNotes(i, &bp, sol)
 		} else if s := pl.run.surplus[i]; !b.Riser() && s > 0.01*pl.run.avail[i] {
 			bp.Notes = append(bp.Notes, fmt.Sprintf("no balancing valve: %.1f kPa more than the branch needs cannot be taken off, so it runs above target", s/1e3))
@@ -119,6 +123,31 @@ func (pl *planner) valveNotes(i int, bp *BranchPlan, sol *plant.Solved) {
 	}
 }
 
+// heldNotes fills a pressure-independent valve's columns: its setting for
+// the target flow, the differential it sees at the plan, and notes where it
+// is starved below its hold differential or cannot be set to its target.
+func (pl *planner) heldNotes(i int, bp *BranchPlan, sol *plant.Solved) {
+	ex := pl.run
+	b := &pl.m.Branches[i]
+	if b.ValveModel != nil {
+		bp.Valve, bp.Unit = b.ValveModel.Name, b.ValveModel.Unit
+	}
+	bp.Current, bp.Exact, bp.New, bp.KvRequired = b.AsFound, ex.setting[i], pl.plan.Settings[i], math.NaN()
+	bp.ValveDiff = sol.ValveDiff(i)
+	if bp.BranchDiff > 0 {
+		bp.Authority = bp.ValveDiff / bp.BranchDiff
+	}
+	if hold := sol.HoldDiff(i); bp.ValveDiff < hold {
+		bp.Notes = append(bp.Notes, fmt.Sprintf("pressure-independent valve starved: it sees %.1f kPa, below the %.1f kPa it needs to hold its flow", bp.ValveDiff/1e3, hold/1e3))
+	}
+	if ex.clamped[i] {
+		lo, hi := b.PI.Range()
+		qlo, _ := b.PI.Flow.KvAt(lo)
+		qhi, _ := b.PI.Flow.KvAt(hi)
+		bp.Notes = append(bp.Notes, fmt.Sprintf("the target is outside what the pressure-independent valve can be set to hold (%.3g to %.3g l/s): fit one of another size", qlo*1e3, qhi*1e3))
+	}
+}
+
 func (pl *planner) inBand(percent float64) bool {
 	r := percent / 100
 	return r >= 1+pl.lo-1e-9 && r <= 1+pl.hi+1e-9
@@ -150,7 +179,7 @@ func (pl *planner) shortfalls() {
 			reason = "pump at its maximum speed"
 		case run.clamped[i]:
 			reason = "valve cannot throttle enough"
-		case m.Branches[i].Valve == nil && !bp.Riser:
+		case !m.Branches[i].HasValve() && !bp.Riser:
 			reason = "no balancing valve"
 		default:
 			rounding++

@@ -158,6 +158,11 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 			// The valve element's law above its leakage floor.
 			e.open[i], _ = hydraulics.KvDrop(e.q[i], e.ends[i][1]*e.p.KvScale[i], e.f.Density)
 		}
+		if b.PI != nil {
+			if err := e.setHeld(i); err != nil {
+				return 0, err
+			}
+		}
 		e.need[i] = e.fixed[i] + e.open[i]
 		if b.Riser() {
 			s, err := e.ladderNeed(b.Children)
@@ -240,6 +245,11 @@ func (e *exact) assign(ids []int, d float64) error {
 			}
 			rest -= sub
 		}
+		if b.PI != nil {
+			// Set for its flow in ladderNeed; it takes the rest.
+			e.valve[i] = rest
+			continue
+		}
 		e.kv[i], e.setting[i] = math.NaN(), math.NaN()
 		if b.Valve == nil {
 			e.surplus[i] = max(rest, 0)
@@ -250,6 +260,53 @@ func (e *exact) assign(ids []int, d float64) error {
 			return err
 		}
 	}
+	return nil
+}
+
+// HoldMargin is what the plan gives the worst-placed pressure-independent
+// valve above its hold differential, as a fraction of it: 10 % (common
+// practice, no source), for the valve's own tolerance and the readings'.
+const HoldMargin = 0.10
+
+// setHeld sets branch i's pressure-independent valve for its flow (its
+// table's setting for q over the valve's flow scale, within its range; a
+// flow beyond the table is clamped and marked) and gives it the
+// differential it needs: its hold differential at that setting (the
+// maker's, or where its Kv asks more, that) plus HoldMargin.
+func (e *exact) setHeld(i int) error {
+	b := &e.m.Branches[i]
+	k := e.p.KvScale[i]
+	if !(k > 0) {
+		k = 1
+	}
+	lo, hi := b.PI.Range()
+	qlo, err := b.PI.Flow.KvAt(lo)
+	if err != nil {
+		return fmt.Errorf("branch %q: valve: %w: %w", b.ID, err, ErrInput)
+	}
+	qhi, err := b.PI.Flow.KvAt(hi)
+	if err != nil {
+		return fmt.Errorf("branch %q: valve: %w: %w", b.ID, err, ErrInput)
+	}
+	want := e.q[i] / k
+	e.kv[i], e.clamped[i] = math.NaN(), false
+	switch {
+	case want >= qhi:
+		e.setting[i] = hi
+		e.clamped[i] = want > qhi*(1+1e-9)
+	case want <= qlo:
+		e.setting[i] = lo
+		e.clamped[i] = want < qlo*(1-1e-9)
+	default:
+		if e.setting[i], err = b.PI.SettingFor(want); err != nil {
+			return fmt.Errorf("branch %q: %w", b.ID, err)
+		}
+	}
+	v, err := b.PI.At(e.setting[i], k)
+	if err != nil {
+		return fmt.Errorf("branch %q: valve: %w: %w", b.ID, err, ErrInput)
+	}
+	e.open[i] = max(b.PI.HoldDiff, v.HoldDiff(e.f.Density)) * (1 + HoldMargin)
 	return nil
 }
 
@@ -335,6 +392,11 @@ func (e *exact) openStarved(starved []bool) {
 			if m.Branches[k].Valve != nil {
 				_, hi := m.Branches[k].Valve.Range()
 				e.setting[k], e.kv[k] = hi, e.ends[k][1]
+			}
+			if m.Branches[k].PI != nil {
+				// Set to its highest flow, it passes what its Kv
+				// there gives.
+				_, e.setting[k] = m.Branches[k].PI.Range()
 			}
 			p, ok := m.Index(m.Branches[k].Parent)
 			if !ok {

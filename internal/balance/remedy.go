@@ -130,6 +130,15 @@ func (pl *planner) remedies() {
 		b := &m.Branches[i]
 		var r Remedy
 		switch {
+		case pl.run.clamped[i] && b.PI != nil:
+			lo, hi := b.PI.Range()
+			qlo, _ := b.PI.Flow.KvAt(lo)
+			qhi, _ := b.PI.Flow.KvAt(hi)
+			kind := SmallerValve
+			if pl.run.q[i] > qhi {
+				kind = LargerValve
+			}
+			r = Remedy{Kind: kind, Action: fmt.Sprintf("the pressure-independent valve of branch %s cannot be set to hold its target %.3g l/s (its settings hold %.3g to %.3g l/s): fit one of another size", b.ID, pl.run.q[i]*1e3, qlo*1e3, qhi*1e3)}
 		case pl.run.clamped[i]:
 			r = Remedy{Kind: SmallerValve, Action: fmt.Sprintf("the valve of branch %s passes more than its target even fully throttled (it needs Kv %.3g, its lowest setting gives %.3g): fit a smaller valve", b.ID, pl.run.kv[i], pl.run.ends[i][0])}
 		case b.Valve == nil && !b.Riser() && pl.run.surplus[i] > 0.01*pl.run.avail[i]:

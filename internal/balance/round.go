@@ -39,6 +39,21 @@ func newRounder(pl *planner) *rounder {
 	for i := range m.Branches {
 		b := &m.Branches[i]
 		r.down[i], r.up[i] = math.NaN(), math.NaN()
+		if b.PI != nil {
+			// Its flow follows its setting whatever the differential:
+			// the mark whose flow lies nearest the band's middle (with
+			// Smart) or the nearest mark. The index is no exception.
+			lo, hi := b.PI.Range()
+			s, step := ex.setting[i], b.PI.Flow.Resolution()
+			r.down[i], r.up[i] = mark(s, lo, hi, step, false), mark(s, lo, hi, step, true)
+			r.rDown[i], r.rUp[i] = r.ratio(i, r.down[i]), r.ratio(i, r.up[i])
+			if pl.opt.Rounding == Smart {
+				r.useUp[i] = math.Abs(math.Log(r.rUp[i]/centre)) < math.Abs(math.Log(r.rDown[i]/centre))
+			} else {
+				r.useUp[i] = r.up[i]-s < s-r.down[i]
+			}
+			continue
+		}
 		if b.Valve == nil {
 			continue
 		}
@@ -66,6 +81,15 @@ func newRounder(pl *planner) *rounder {
 // rest, q'/q = √(Δp_b / (Δp_b - Δp_v + Δp_v (Kv/Kv')²)).
 func (r *rounder) ratio(i int, s float64) float64 {
 	ex := r.pl.run
+	if pi := r.pl.m.Branches[i].PI; pi != nil {
+		// A pressure-independent valve's flow is its table's.
+		q, err1 := pi.Flow.KvAt(s)
+		q0, err2 := pi.Flow.KvAt(ex.setting[i])
+		if err1 != nil || err2 != nil || !(q0 > 0) {
+			return 1
+		}
+		return q / q0
+	}
 	kv, err := r.pl.m.Branches[i].Valve.KvAt(s)
 	if err != nil || !(kv > 0) || !(ex.kv[i] > 0) {
 		return 1

@@ -76,6 +76,12 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 	r := newRounder(pl)
 	idx := ex.indexID
 	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
+	if m.Branches[idx].PI != nil {
+		// A pressure-independent valve gives its flow from its hold
+		// differential up: the index is served when its valve sees
+		// the differential the exact plan gave it (hold and margin).
+		indexOK = func(s *plant.Solved) float64 { return s.ValveDiff(idx)/ex.open[idx] - 1 }
+	}
 	settings := r.settings()
 	x, sol, err := pl.root(ctx, settings, x0, nil, indexOK, rootTol)
 	if err != nil {

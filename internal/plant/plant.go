@@ -185,6 +185,14 @@ func New(s *site.Site) (*Model, error) {
 	if err := m.checkTree(); err != nil {
 		return nil, err
 	}
+	for i := range m.Branches {
+		// A pressure-independent valve belongs at a terminal: on a riser
+		// it would hold the whole sub-circuit's flow, which the plan's
+		// settings inside it could no longer share out.
+		if b := &m.Branches[i]; b.PI != nil && b.Riser() {
+			return nil, fmt.Errorf("%s: branch %q feeds sub-branches but names the pressure-independent valve %q, which is modelled at terminals only: %w", s.Branches[i].Pos, b.ID, b.ValveModel.Name, ErrModel)
+		}
+	}
 	if s.Boundary.Kind == site.PumpCurve || s.Boundary.Kind == site.ConstantDiff && len(s.Pump) > 0 {
 		// A differential held by a pump whose curve is known is held only
 		// while the pump can give it (see Controlled).

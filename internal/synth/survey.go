@@ -58,7 +58,7 @@ func survey(ctx context.Context, m *plant.Model, t *Truth, states []stateDef, rn
 	for _, sd := range states {
 		for _, mv := range sd.Moves {
 			i, ok := m.Index(mv.ID)
-			if !ok || m.Branches[i].Valve == nil {
+			if !ok || !m.Branches[i].HasValve() {
 				return nil, fmt.Errorf("state %q moves %q, which is no branch with a valve: %w", sd.Label, mv.ID, ErrSpec)
 			}
 			rec[i] = mv.Setting
@@ -118,7 +118,7 @@ func readState(sol *plant.Solved, sd stateDef, rec, asFound []float64, rng *rand
 		var b *plant.Branch
 		if isBranch {
 			b = &m.Branches[i]
-			if b.Valve != nil && (rec[i] != asFound[i] || tk.Instrument == "valve-meter") {
+			if b.HasValve() && (rec[i] != asFound[i] || tk.Instrument == "valve-meter") {
 				r.Setting = rec[i]
 			}
 		}
@@ -138,7 +138,7 @@ func readState(sol *plant.Solved, sd stateDef, rec, asFound []float64, rng *rand
 			dp1, _ := hydraulics.KvDrop(1, kv, m.Fluid.Density)
 			v = math.Sqrt(readTappings(i) / dp1)
 		case tk.What == site.ValveDiff && tk.Instrument == "manometer":
-			if b == nil || b.Valve == nil {
+			if b == nil || !b.HasValve() {
 				return nil, fmt.Errorf("state %q: valve differential at %q, which has no valve: %w", sd.Label, tk.Where, ErrSpec)
 			}
 			v = readTappings(i)

@@ -201,7 +201,7 @@ func Actual(m *plant.Model, t *Truth, settings []float64) []float64 {
 	for i := range m.Branches {
 		b := &m.Branches[i]
 		out[i] = math.NaN()
-		if b.Valve == nil {
+		if !b.HasValve() {
 			continue
 		}
 		set := settings[i]
@@ -212,7 +212,7 @@ func Actual(m *plant.Model, t *Truth, settings []float64) []float64 {
 		case i < len(t.Stuck) && !math.IsNaN(t.Stuck[i]):
 			set = t.Stuck[i]
 		case i < len(t.ActualSetting) && !math.IsNaN(t.ActualSetting[i]):
-			lo, hi := b.Valve.Range()
+			lo, hi := b.Range()
 			set = math.Min(hi, math.Max(lo, set+t.ActualSetting[i]-b.AsFound))
 		}
 		out[i] = set
