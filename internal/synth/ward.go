@@ -74,8 +74,12 @@ func Ward(ctx context.Context) (*site.Site, *Truth, error) {
 	t.Params.KvScale[3] = 0.8
 
 	flow := func(id, at string) take { return take{Where: id, What: site.Flow, Instrument: "clamp-on", Time: at} }
-	vdiff := func(id, at string) take { return take{Where: id, What: site.ValveDiff, Instrument: "manometer", Time: at} }
-	bdiff := func(id, at string) take { return take{Where: id, What: site.BranchDiff, Instrument: "manometer", Time: at} }
+	vdiff := func(id, at string) take {
+		return take{Where: id, What: site.ValveDiff, Instrument: "manometer", Time: at}
+	}
+	bdiff := func(id, at string) take {
+		return take{Where: id, What: site.BranchDiff, Instrument: "manometer", Time: at}
+	}
 	pump := func(at string) []take {
 		return []take{{Where: site.AtPump, What: site.PumpDiff, Instrument: "manometer", Time: at},
 			{Where: site.AtPump, What: site.TotalFlow, Instrument: "clamp-on", Time: at}}
