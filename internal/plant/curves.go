@@ -40,6 +40,8 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 	out := make([]Point, 0, len(diffs))
 	var warm []float64
 	lift := m.Lift()
+	var b *network.Built
+	sup := -1
 	for _, d := range diffs {
 		if d <= 0 {
 			out = append(out, Point{0, 0})
@@ -51,9 +53,18 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 			out = append(out, Point{0, d})
 			continue
 		}
-		b, err := network.Build(m.Ladder(p, settings), network.Source{Differential: d, Lift: lift}, m.Fluid)
-		if err != nil {
-			return nil, err
+		if b == nil {
+			var err error
+			b, err = network.Build(m.Ladder(p, settings), network.Source{Differential: d, Lift: lift}, m.Fluid)
+			if err != nil {
+				return nil, err
+			}
+			sup, _ = b.Net.NodeIndex(network.SupplyID)
+		} else {
+			// Only the held differential changes from point to point:
+			// the network keeps its ordering and workspace, which on a
+			// large site cost more to make than the solve.
+			b.Net.FixPressure(sup, network.Source{Differential: d, Lift: lift}.Held())
 		}
 		sol, err := b.Net.Solve(ctx, &network.Options{Initial: warm})
 		if err != nil {
