@@ -229,6 +229,9 @@ type Options struct {
 	// MinValveDiff overrides every valve model's smallest reliable
 	// differential, Pa; 0 uses the model's (3 kPa when it has none).
 	MinValveDiff float64
+	// bandExactMax, when not 0, replaces bandExactMax (tests compare
+	// both ways of computing the band on one site).
+	bandExactMax int
 }
 
 // Uncertainty is the spread of the calibrated multipliers: standard

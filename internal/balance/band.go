@@ -11,7 +11,11 @@ import (
 func (pl *planner) band(sol *plant.Solved) error {
 	u := pl.opt.Uncertainty
 	m := pl.m
-	sd, err := flowSD(m, pl.p, u, sol)
+	limit := bandExactMax
+	if pl.opt.bandExactMax != 0 {
+		limit = pl.opt.bandExactMax
+	}
+	sd, err := flowSDWith(m, pl.p, u, sol, limit)
 	if err != nil {
 		return err
 	}

@@ -154,3 +154,34 @@ func solveBand2(n int, u, rd, x []float64) {
 		x[i] = (x[i] - sum) * rd[i]
 	}
 }
+
+// inverse computes the entries Z = (Uᵀ U)⁻¹ within the band by the
+// recurrences of sparseFactor.inverse with U in Lᵀ's place (U Z = U⁻ᵀ,
+// rows last to first): O(n k²).
+func (f *bandFactor) inverse() func(a, b int) float64 {
+	n, k, u, rd := f.n, f.k, f.u, f.rd
+	w := k + 1
+	z := make([]float64, n*w)
+	at := func(i, j int) float64 {
+		if i > j {
+			i, j = j, i
+		}
+		return z[i*w+j-i]
+	}
+	for j := n - 1; j >= 0; j-- {
+		kn := min(k, n-j-1)
+		for m := j + 1; m <= j+kn; m++ {
+			var s float64
+			for t := 1; t <= kn; t++ {
+				s += u[j*w+t] * at(j+t, m)
+			}
+			z[j*w+m-j] = -s * rd[j]
+		}
+		var s float64
+		for t := 1; t <= kn; t++ {
+			s += u[j*w+t] * z[j*w+t]
+		}
+		z[j*w] = (rd[j] - s) * rd[j]
+	}
+	return at
+}

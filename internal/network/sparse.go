@@ -19,6 +19,10 @@ const sparseAbove = 16
 // factorer is a Cholesky factor of the node matrix that solves with it.
 type factorer interface {
 	solve(x []float64)
+	// inverse returns the entries of the factorised matrix's inverse on
+	// the factor's structure: at(a, b) for a == b or for a pair the
+	// factor holds (every link's two ends among them).
+	inverse() (at func(a, b int) float64)
 }
 
 // sparsePlan is the structure of a sparse Cholesky factor L Lᵀ (L = Uᵀ)
@@ -191,4 +195,47 @@ func (f *sparseFactor) solve(x []float64) {
 		}
 		x[p] = (x[p] - sum) * rd[p]
 	}
+}
+
+// inverse computes the entries Z = (L Lᵀ)⁻¹ on the structure of L by the
+// recurrences of Erisman & Tinney (1975, "On computing certain elements of
+// the inverse of a sparse matrix", Comm. ACM 18(3)), columns last to first:
+// Lᵀ Z = L⁻¹ gives, for i in the structure of column p,
+//
+//	Z_ip = -(1/L_pp) Σ_k L_kp Z_ik,   Z_pp = (1/L_pp - Σ_k L_kp Z_kp)/L_pp,
+//
+// with k over the same structure, whose pairs the factor holds (the fill of
+// eliminating p). The cost is that of the factorisation: linear on the
+// networks the sparse factor is chosen for.
+func (f *sparseFactor) inverse() func(a, b int) float64 {
+	sp, val, rd := f.sp, f.val, f.rd
+	n := len(rd)
+	zd := make([]float64, n)
+	zv := make([]float64, len(val))
+	at := func(i, j int) float64 {
+		if i == j {
+			return zd[i]
+		}
+		if i > j {
+			i, j = j, i
+		}
+		return zv[sp.find(i, j)]
+	}
+	for p := n - 1; p >= 0; p-- {
+		lo, hi := sp.off[p], sp.off[p+1]
+		for e := lo; e < hi; e++ {
+			i := sp.row[e]
+			var s float64
+			for e2 := lo; e2 < hi; e2++ {
+				s += val[e2] * at(i, sp.row[e2])
+			}
+			zv[e] = -s * rd[p]
+		}
+		var s float64
+		for e := lo; e < hi; e++ {
+			s += val[e] * zv[e]
+		}
+		zd[p] = (rd[p] - s) * rd[p]
+	}
+	return at
 }
