@@ -275,6 +275,28 @@ type BranchFit struct {
 	// DataLn and DataSD are what the readings alone say of ln Ratio, the
 	// priors taken out (normal approximation; NaN where they say nothing).
 	FaultProb, DataLn, DataSD float64
+	// Held reports a pressure-independent valve, with its state at the
+	// fit in every survey state (Held states, in state order). Regulates
+	// reports that it held its set flow in every state: its branch's flow
+	// then does not depend on the branch's resistance, which the readings
+	// cannot tell from noise (not identifiable while the valve regulates);
+	// Ratio is then its prior's, 1, with the prior's interval, Determined
+	// is false, and the calibrated model keeps design. KvScale is then the
+	// valve's flow scale: the flow its setting gives over its table's.
+	Held       bool
+	Regulates  bool
+	HeldStates []HeldState
+}
+
+// HeldState is a pressure-independent valve at the fit in one survey state.
+type HeldState struct {
+	State string
+	// ValveDiff is the differential across the valve and HoldDiff the
+	// least at which it holds its flow (the maker's, or where its Kv asks
+	// more, that), Pa; Flow the branch's flow and SetFlow the flow its
+	// setting gives by its table, m3/s.
+	ValveDiff, HoldDiff, Flow, SetFlow float64
+	Starved                            bool // ValveDiff < HoldDiff
 }
 
 // Above reports whether the branch's resistance is shown to exceed f times
@@ -481,6 +503,9 @@ type setup struct {
 	// kvSep: the readings can tell branch i's valve from its fixed parts;
 	// evidence: they say something about the valve at all.
 	kvSep, evidence []bool
+	// heldRead: branch i's pressure-independent valve has a flow read
+	// through it in some state.
+	heldRead []bool
 	multi           []bool // the valve was read at two or more settings
 	// refSet and refKv are each valve's setting in the first state that
 	// reads its branch, and its table Kv there.
@@ -500,7 +525,7 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 	s := m.Site
 	nb := len(m.Branches)
 	su := &setup{m: m, opt: o, boundary: make([]bool, len(s.Readings)), byReading: make([]int, len(s.Readings)),
-		kvSep: make([]bool, nb), evidence: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb), refSet: make([]float64, nb)}
+		kvSep: make([]bool, nb), evidence: make([]bool, nb), heldRead: make([]bool, nb), multi: make([]bool, nb), refKv: make([]float64, nb), refSet: make([]float64, nb)}
 	su.state = make([]int, len(s.Readings))
 	su.twin = make([]int, len(s.Readings))
 	for i := range su.byReading {
@@ -550,7 +575,7 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 				o.branch = i
 				b := &m.Branches[i]
 				meter := r.What == site.Flow && r.Instrument == valveMeter
-				if (r.What == site.ValveDiff || meter) && b.Valve == nil {
+				if (r.What == site.ValveDiff && !b.HasValve()) || (meter && b.Valve == nil) {
 					return nil, bad("branch %q has no balancing valve", b.ID)
 				}
 				if meter {
@@ -726,6 +751,9 @@ func (su *setup) valveEvidence() {
 	for k, o := range su.obs {
 		if o.branch >= 0 {
 			at[o.branch] = append(at[o.branch], k)
+			if o.what == site.Flow && m.Branches[o.branch].PI != nil {
+				su.heldRead[o.branch] = true
+			}
 		}
 	}
 	for i := range m.Branches {
@@ -814,6 +842,14 @@ func (su *setup) params(hyp []ValveHypothesis) []Param {
 		}
 	}
 	for i := range m.Branches {
+		if m.Branches[i].PI != nil {
+			// A pressure-independent valve's flow scale (does its
+			// setting give its table's flow?) where a flow is read at it.
+			if su.heldRead[i] {
+				ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: o.PriorKv})
+			}
+			continue
+		}
 		if m.Branches[i].Valve == nil {
 			continue
 		}

@@ -276,7 +276,7 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 			if f := p.m.FixedElement(i, pp.Resistance[i]); f != nil {
 				es = append(es, f)
 			}
-			if b.Valve != nil {
+			if b.HasValve() {
 				es = append(es, sn.valveAt(p.m, i, pp.KvScale[i]))
 			}
 			net.SetElements(l, es...)
@@ -443,6 +443,18 @@ func (p *problem) valveDrop(sn *stateNet, i int, q float64) (dp, slope float64) 
 	return sn.valve(p.m, i).Drop(q, p.m.Fluid)
 }
 
+// scaleDrop returns d(drop)/d(ln KvScale) of branch i's valve at flow q in
+// the state's solution: -2 dp for a Kv law, the valve's own for a
+// pressure-independent one (hydraulics.PressureIndependent.ScaleDrop).
+func (p *problem) scaleDrop(sn *stateNet, i int, q float64) float64 {
+	e := sn.valve(p.m, i)
+	if v, ok := e.(hydraulics.PressureIndependent); ok {
+		return v.ScaleDrop(q, p.m.Fluid)
+	}
+	dp, _ := e.Drop(q, p.m.Fluid)
+	return -2 * dp
+}
+
 // valveElem is a branch's valve element at one Kv scale.
 type valveElem struct {
 	scale float64
@@ -571,9 +583,9 @@ func (p *problem) linearise(sn *stateNet) {
 			i := par.Branch
 			if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
 				// dp ∝ 1/KvScale² (also at the leakage floor, which scales
-				// with KvScale): d(drop)/d(ln KvScale) = -2 dp.
-				dp, _ := p.valveDrop(sn, i, sol.Flow[l])
-				d = append(d, term{l, -2 * dp * sn.kvGain[i]})
+				// with KvScale): d(drop)/d(ln KvScale) = -2 dp; a
+				// pressure-independent valve gives its own.
+				d = append(d, term{l, p.scaleDrop(sn, i, sol.Flow[l]) * sn.kvGain[i]})
 			}
 		case HeaderParam:
 			for _, l := range sn.built.Headers {
@@ -624,12 +636,13 @@ func (p *problem) linearise(sn *stateNet) {
 			}
 		case site.ValveDiff:
 			links := sn.flowOf[o.branch]
-			dp, slope := p.valveDrop(sn, o.branch, p.flow(sn, links))
+			q := p.flow(sn, links)
+			_, slope := p.valveDrop(sn, o.branch, q)
 			for _, l := range links {
 				ln.q = append(ln.q, term{l, slope})
 			}
 			if j := p.kvIdx[o.branch]; j >= 0 {
-				ln.x = append(ln.x, term{j, -2 * dp * sn.kvGain[o.branch]})
+				ln.x = append(ln.x, term{j, p.scaleDrop(sn, o.branch, q) * sn.kvGain[o.branch]})
 			}
 		}
 		sn.lin[k] = ln

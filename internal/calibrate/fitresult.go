@@ -93,7 +93,9 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 				bf.KvSD = math.Abs(g) * res.StdErr[j]
 			}
 			c.Params.KvScale[i] = bf.KvScale
-			su.valveStates(p, i, &bf.Valve, pps)
+			if b.Valve != nil {
+				su.valveStates(p, i, &bf.Valve, pps)
+			}
 		}
 		bf.ValveAssumed = b.Valve != nil && !bf.KvFitted
 		c.Branches[i] = bf
@@ -125,6 +127,7 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			}
 		}
 	}
+	su.heldStates(p, c, res.TQuantile)
 	if p.hIdx >= 0 {
 		c.Header.Fitted, c.Header.Determined = true, res.Determined[p.hIdx]
 		c.Header.Ratio, c.Header.Lo, c.Header.Hi, c.Header.SD = interval(p.hIdx)
@@ -200,6 +203,52 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 	}
 	explain(c.Readings)
 	return c, nil
+}
+
+// heldStates fills each pressure-independent valve's state at the fit and,
+// where it regulates in every survey state, puts its branch's resistance
+// back to its prior: while the valve holds its flow the branch's flow and
+// the differentials around it do not depend on that resistance (to the
+// regulator's droop, hydraulics.RegulatorDroop: a doubled resistance of
+// 20 kPa moves the flow by 0.1 %), so whatever the fit made of it is noise.
+// Its interval is the faulty prior's (FitOptions.PriorResistance), as
+// wide as a fault the readings cannot rule out: the plan then warns if
+// such a branch could be the index.
+func (su *setup) heldStates(p *problem, c *Calibration, tq float64) {
+	m := su.m
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if b.PI == nil {
+			continue
+		}
+		bf := &c.Branches[i]
+		bf.Held, bf.Regulates, bf.HasValve, bf.ValveAssumed = true, true, false, false
+		for _, sn := range p.states {
+			q := p.flow(sn, sn.flowOf[i])
+			hs := HeldState{State: sn.st.Label, Flow: q, ValveDiff: math.NaN(), HoldDiff: math.NaN(), SetFlow: math.NaN()}
+			if v, ok := sn.valve(m, i).(hydraulics.PressureIndependent); ok {
+				hs.ValveDiff, _ = v.Drop(q, m.Fluid)
+				hs.HoldDiff = max(b.PI.HoldDiff, v.HoldDiff(m.Fluid.Density))
+				if t, err := b.PI.At(sn.st.Settings[i], 1); err == nil {
+					hs.SetFlow = t.Flow
+				}
+			}
+			hs.Starved = hs.ValveDiff < hs.HoldDiff
+			if hs.Starved || math.IsNaN(hs.ValveDiff) {
+				bf.Regulates = false
+			}
+			bf.HeldStates = append(bf.HeldStates, hs)
+		}
+		if !bf.Regulates || !bf.Fitted {
+			continue
+		}
+		sd := su.opt.PriorResistance
+		bf.Ratio, bf.SD, bf.Determined = 1, sd, false
+		bf.Lo, bf.Hi = math.Exp(-tq*sd), math.Exp(tq*sd)
+		bf.FaultProb, bf.DataLn, bf.DataSD = math.NaN(), math.NaN(), math.NaN()
+		c.Params.Resistance[i] = 1
+		c.LogSD[i] = sd
+	}
 }
 
 // valveStates fills the verdict's per-state Kv, recorded and implied
