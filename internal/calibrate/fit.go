@@ -506,7 +506,7 @@ type setup struct {
 	// heldRead: branch i's pressure-independent valve has a flow read
 	// through it in some state.
 	heldRead []bool
-	multi           []bool // the valve was read at two or more settings
+	multi    []bool // the valve was read at two or more settings
 	// refSet and refKv are each valve's setting in the first state that
 	// reads its branch, and its table Kv there.
 	refSet, refKv []float64
