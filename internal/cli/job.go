@@ -138,6 +138,11 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 	j.Before = before
 	j.Evidence = evidence(l, j.Cal, before, j.Params)
+	for _, e := range j.Evidence {
+		if e.Held != nil {
+			e.Held.Unit, e.Held.PerSI = opts.Units.FlowUnit, opts.Units.toFlow(1)
+		}
+	}
 	j.Findings = diagnose.Check(j.Evidence, readingEvidence(l, j.Cal), opts.Thresholds)
 	if j.Cal == nil {
 		// Without a fit every branch is undetermined and there is no
@@ -383,6 +388,15 @@ func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved, open pl
 			if bf.Fitted {
 				e.Ratio, e.LogSD, e.Determined = bf.Ratio, bf.SD, bf.Determined
 				e.FaultProb, e.DataLn, e.DataSD = bf.FaultProb, bf.DataLn, bf.DataSD
+			}
+			if bf.Held {
+				h := &diagnose.Held{Regulates: bf.Regulates, Scale: bf.KvScale, Lo: bf.KvLo, Hi: bf.KvHi, Fitted: bf.KvFitted, Determined: bf.KvDetermined}
+				for _, st := range bf.HeldStates {
+					if st.Starved {
+						h.Starved = append(h.Starved, diagnose.HeldState{State: st.State, ValveDiff: st.ValveDiff, HoldDiff: st.HoldDiff, Flow: st.Flow, SetFlow: st.SetFlow})
+					}
+				}
+				e.Held = h
 			}
 			if v := valveEvidence(c, i); v != nil {
 				if b.ValveModel != nil {

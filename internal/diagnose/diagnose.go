@@ -28,9 +28,12 @@ const (
 	SuspectReading                    // reading far from the fitted model
 	CannotReachDesign                 // short of design even with its valve fully open
 	Undetermined                      // the survey does not pin the branch down
+	ValveStarved                      // a pressure-independent valve below its hold differential
+	ValveOffFlow                      // a pressure-independent valve's setting does not give its flow
 )
 
-var codeNames = [...]string{"", "restricted", "free", "valve-stuck", "valve-mis-set", "suspect-reading", "cannot-reach-design", "undetermined"}
+var codeNames = [...]string{"", "restricted", "free", "valve-stuck", "valve-mis-set", "suspect-reading", "cannot-reach-design", "undetermined",
+	"valve-starved", "valve-off-flow"}
 
 func (c Code) String() string {
 	if c > 0 && int(c) < len(codeNames) {
@@ -139,6 +142,31 @@ type Branch struct {
 	Measured []string
 	HasFlow  bool // an independent flow reading exists
 	HasValve bool // the branch has a balancing valve
+	// Held is the evidence about the branch's pressure-independent valve;
+	// nil for none.
+	Held *Held
+}
+
+// Held is the evidence about a pressure-independent valve from the fit.
+type Held struct {
+	// Regulates reports that it held its set flow in every survey state,
+	// so the branch's resistance could not be told from the readings.
+	Regulates bool
+	// Starved lists the states in which it saw less than its hold
+	// differential.
+	Starved []HeldState
+	// Scale is the fitted flow its setting gives over its table's, with
+	// its 95 % interval; Fitted and Determined as for a resistance.
+	Scale, Lo, Hi      float64
+	Fitted, Determined bool
+	Unit               string // flow unit of the evidence text, e.g. "l/s"
+	PerSI              float64
+}
+
+// HeldState is a pressure-independent valve in one survey state.
+type HeldState struct {
+	State                              string
+	ValveDiff, HoldDiff, Flow, SetFlow float64 // Pa, Pa, m3/s, m3/s
 }
 
 // Valve is the outcome of comparing hypotheses about a valve.
@@ -180,7 +208,14 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 	var out []Finding
 	lnThr := math.Log(t.Restricted)
 	for _, b := range branches {
-		if !b.Determined {
+		out = append(out, held(b, t)...)
+		if h := b.Held; h != nil && h.Regulates && !b.Determined {
+			out = append(out, Finding{Code: Undetermined, Severity: Info, Branch: b.ID,
+				Message: "its pressure-independent valve held its flow in every survey state, so the readings cannot tell this branch's resistance " +
+					"(it is not identifiable while the valve regulates); the model keeps it at design",
+				Evidence: fmt.Sprintf("the valve saw at least its hold differential in every state; measured with: %s", list(b.Measured)),
+				Action:   "to learn it, turn the pump down until the valve is starved and read the flow and the branch differential, or read the differential across the terminal"})
+		} else if !b.Determined {
 			out = append(out, Finding{Code: Undetermined, Severity: Info, Branch: b.ID,
 				Message:  "the survey does not determine this branch's resistance; the model keeps it near design",
 				Evidence: fmt.Sprintf("posterior sd of the resistance ratio's logarithm %.2f; measured with: %s", b.LogSD, list(b.Measured)),
@@ -273,6 +308,52 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 		}
 		return order[out[i].Branch] < order[out[j].Branch]
 	})
+	return out
+}
+
+// OffFlow is how far a pressure-independent valve's fitted flow scale must
+// lie from 1 to be flagged: 5 %, about what such valves are sold to hold
+// (common practice, no source).
+const OffFlow = 0.05
+
+// held returns the findings about branch b's pressure-independent valve:
+// starved below its hold differential, and a setting that does not give its
+// table's flow.
+func held(b Branch, t Thresholds) []Finding {
+	h := b.Held
+	if h == nil {
+		return nil
+	}
+	var out []Finding
+	if len(h.Starved) > 0 {
+		unit, per := h.Unit, h.PerSI
+		if unit == "" || !(per > 0) {
+			unit, per = "l/s", 1000
+		}
+		ev := ""
+		for k, st := range h.Starved {
+			if k > 0 {
+				ev += "; "
+			}
+			ev += fmt.Sprintf("%s: %.1f kPa across the valve, which holds its flow from %.1f kPa; flow %.3g %s against %.3g %s set",
+				st.State, st.ValveDiff/1e3, st.HoldDiff/1e3, st.Flow*per, unit, st.SetFlow*per, unit)
+		}
+		out = append(out, Finding{Code: ValveStarved, Severity: Fault, Branch: b.ID, Confidence: math.NaN(),
+			Message:  "pressure-independent valve starved: it sees less than the differential at which it holds its flow, so the branch gets less than its setting gives",
+			Evidence: ev,
+			Action:   "clean the branch if it is restricted, or raise the pump to give this valve its hold differential (see the plan)"})
+	}
+	if h.Fitted && h.Determined && h.Scale > 0 && h.Lo > 0 && h.Hi > h.Lo {
+		sd := math.Log(h.Hi/h.Lo) / (2 * 1.96)
+		x := math.Log(h.Scale)
+		p := max(normalCDF((math.Log(1-OffFlow)-x)/sd), normalCDF((x-math.Log(1+OffFlow))/sd))
+		if p >= t.Confidence {
+			out = append(out, Finding{Code: ValveOffFlow, Severity: Warning, Branch: b.ID, Confidence: p,
+				Message:  "the pressure-independent valve's setting does not give its table's flow: its limiter off its mark or fouled, or another model fitted",
+				Evidence: fmt.Sprintf("it passes %.2f of its table's flow while regulating (95 %% interval %.2f-%.2f)", h.Scale, h.Lo, h.Hi),
+				Action:   "check the valve model and its dial; set it by the measured flow (the plan's setting allows for the fitted ratio)"})
+		}
+	}
 	return out
 }
 
