@@ -1,7 +1,8 @@
 // Package surveys holds the example sites shipped with flowset, embedded in
 // the binary: demo (an invented school's heating circuit, with hidden faults
-// to find) and plantroom (an invented moulding shop's chilled-glycol
-// circuit). Each is a folder of site sheets that site.ReadDir reads from FS.
+// to find), plantroom (an invented moulding shop's chilled-glycol
+// circuit) and clinic (an invented clinic's chilled water on
+// pressure-independent valves). Each is a folder of site sheets that site.ReadDir reads from FS.
 // The sheets are written by internal/synth from hand-written descriptions;
 // see README.md.
 package surveys
@@ -14,7 +15,7 @@ import (
 
 // FS holds one folder of CSV sheets per example site.
 //
-//go:embed demo plantroom
+//go:embed demo plantroom clinic
 var FS embed.FS
 
 // Names returns the example sites' folder names in FS, sorted.

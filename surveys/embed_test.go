@@ -13,7 +13,7 @@ import (
 )
 
 func TestNames(t *testing.T) {
-	if d := cmp.Diff([]string{"demo", "plantroom"}, surveys.Names()); d != "" {
+	if d := cmp.Diff([]string{"clinic", "demo", "plantroom"}, surveys.Names()); d != "" {
 		t.Errorf("Names() (-want +got):\n%s", d)
 	}
 }
@@ -58,6 +58,7 @@ func ExampleNames() {
 		fmt.Printf("%s: %s, %d branches\n", name, s.Name, len(s.Branches))
 	}
 	// Output:
+	// clinic: Harrowfield Clinic - consulting wing chilled water, 9 branches
 	// demo: Quillmere Academy - teaching block LTHW, 14 branches
 	// plantroom: Brindlecote Works - moulding shop chilled glycol, 6 branches
 }

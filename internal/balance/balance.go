@@ -358,6 +358,9 @@ type BranchPlan struct {
 	Depth      int  // 0 on the main headers
 	Riser      bool // feeds sub-branches
 	OnIndex    bool // on the index path (valve fully open)
+	// Held reports a pressure-independent valve: set for its flow, never
+	// left fully open for being the index.
+	Held bool
 	// Valve is the valve model's name and Unit its setting unit; both empty
 	// without a balancing valve.
 	Valve, Unit string

@@ -129,14 +129,14 @@ func (pl *planner) valveNotes(i int, bp *BranchPlan, sol *plant.Solved) {
 func (pl *planner) heldNotes(i int, bp *BranchPlan, sol *plant.Solved) {
 	ex := pl.run
 	b := &pl.m.Branches[i]
+	bp.Held = true
 	if b.ValveModel != nil {
 		bp.Valve, bp.Unit = b.ValveModel.Name, b.ValveModel.Unit
 	}
 	bp.Current, bp.Exact, bp.New, bp.KvRequired = b.AsFound, ex.setting[i], pl.plan.Settings[i], math.NaN()
+	// No authority: the valve's regulator, not its share of the branch
+	// differential, decides how it controls.
 	bp.ValveDiff = sol.ValveDiff(i)
-	if bp.BranchDiff > 0 {
-		bp.Authority = bp.ValveDiff / bp.BranchDiff
-	}
 	if hold := sol.HoldDiff(i); bp.ValveDiff < hold {
 		bp.Notes = append(bp.Notes, fmt.Sprintf("pressure-independent valve starved: it sees %.1f kPa, below the %.1f kPa it needs to hold its flow", bp.ValveDiff/1e3, hold/1e3))
 	}

@@ -64,6 +64,10 @@ type branchCurve struct {
 	ID     string         `json:"branch"`
 	Design float64        `json:"design_flow_l_s"`
 	Points []displayPoint `json:"points"`
+	// Held is the flow a pressure-independent valve holds at its setting,
+	// l/s (0 for none): no differential passes more, so points above it
+	// only show how stiffly the model's regulator holds.
+	Held float64 `json:"held_flow_l_s,omitempty"`
 }
 
 type displayPoint struct {
@@ -122,6 +126,11 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 			flows[k] = f * b.Design
 		}
 		bc := branchCurve{ID: b.ID, Design: b.Design * 1000}
+		if b.PI != nil {
+			if v, err := b.PI.At(st.Settings[i], p.KvScale[i]); err == nil {
+				bc.Held = v.Flow * 1000
+			}
+		}
 		for _, pt := range m.BranchCurve(p, i, st.Settings[i], flows) {
 			bc.Points = append(bc.Points, disp(pt))
 		}
@@ -179,15 +188,24 @@ func writeCurvesTable(w io.Writer, cs *curveSet) error {
 		fmt.Fprint(tw, "[kPa]\t")
 	}
 	fmt.Fprintln(tw)
+	held := false
 	for _, b := range cs.Branches {
 		fmt.Fprintf(tw, "%s\t%.3f\t", b.ID, b.Design) // whole: no cut cells
 		for _, p := range b.Points {
+			if b.Held > 0 && p.Flow > b.Held*1.001 {
+				fmt.Fprint(tw, "held\t")
+				held = true
+				continue
+			}
 			fmt.Fprintf(tw, "%.1f\t", p.Diff)
 		}
 		fmt.Fprintln(tw)
 	}
 	tw.Flush()
 	fmt.Fprintln(w, "\nbranch differential at a % of its design flow")
+	if held {
+		fmt.Fprintln(w, "held: the branch's pressure-independent valve holds a lower flow at its setting; no differential passes this much")
+	}
 	fmt.Fprintln(w, "\ncombined curve seen from the pump (header losses included)")
 	if cs.StaticLift > 0 {
 		fmt.Fprintf(w, "open circuit: the system curve starts at the static lift, %.1f kPa at no flow\n", cs.StaticLift)

@@ -414,6 +414,9 @@ func printFit(w io.Writer, j *job, sheets bool) {
 			if b.Valve != nil {
 				valve = bf.Valve.Hypothesis.String()
 			}
+			if bf.Held {
+				valve = heldWord(&bf)
+			}
 		}
 		flow := u.flowNum(j.Before.Flow(i)) + " (model)"
 		if q, ok := j.flowRead(b.ID); ok {

@@ -420,7 +420,7 @@ func settingsTable(p *balance.Plan, u display, title string) report.Table {
 		now, set, check := "", "no valve", ""
 		if b.Valve != "" {
 			now, set = withUnit(b.Current, b.Unit), withUnit(b.New, b.Unit)
-			if b.OnIndex {
+			if b.OnIndex && !b.Held {
 				set += " (fully open)"
 			}
 			check = u.diffNum(b.ValveDiff)

@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
 	"unicode/utf16"
 
 	"github.com/xuri/excelize/v2"
@@ -239,6 +240,9 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 		out.Branches = append(out.Branches, branchFitJSON{ID: b.ID, Fitted: b.Fitted, Ratio: num(b.Ratio), Lo95: num(b.Lo), Hi95: num(b.Hi),
 			SDLn: num(b.SD), Determined: b.Determined, KvFitted: b.KvFitted, KvScale: num(b.KvScale), KvLo95: num(b.KvLo), KvHi95: num(b.KvHi),
 			Valve: b.Valve.Hypothesis.String(), Flags: j.flagsOf(b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
+		if b.Held {
+			out.Branches[len(out.Branches)-1].Valve = heldWord(&c.Branches[i])
+		}
 	}
 	for _, r := range c.Readings {
 		sr := j.L.Site.Readings[r.Index]
@@ -268,6 +272,9 @@ func (j *job) fitRows() ([]string, [][]string) {
 			}
 			if b.Valve != nil {
 				r[5] = bf.Valve.Hypothesis.String()
+			}
+			if bf.Held {
+				r[5] = heldWord(&bf)
 			}
 			if bf.KvFitted {
 				r[6] = f2(bf.KvScale)
@@ -336,4 +343,19 @@ func yesNo(b bool) string {
 		return "yes"
 	}
 	return "no"
+}
+
+// heldWord says what the fit found of a pressure-independent valve: whether
+// it held its flow in every state or was starved in some.
+func heldWord(bf *calibrate.BranchFit) string {
+	var starved []string
+	for _, st := range bf.HeldStates {
+		if st.Starved {
+			starved = append(starved, st.State)
+		}
+	}
+	if len(starved) == 0 {
+		return "pressure-independent, holds its flow"
+	}
+	return "pressure-independent, starved in " + strings.Join(starved, ", ")
 }

@@ -29,7 +29,7 @@ func examples() []struct {
 	return []struct {
 		dir  string
 		make func(context.Context) (*site.Site, *Truth, error)
-	}{{"demo", Demo}, {"plantroom", Plantroom}}
+	}{{"demo", Demo}, {"plantroom", Plantroom}, {"clinic", Ward}}
 }
 
 // TestDemoSite regenerates the example sites in memory and compares them
