@@ -52,6 +52,12 @@ const (
 	// 5 -> 4.) Accuracy falling off when a valve is closed by half or more
 	// (same source) is not modelled.
 	DefaultPriorKv = 0.05 / 1.7320508075688772 // 0.05/√3
+	// DefaultPriorHeld is the sd of ln of a pressure-independent valve's
+	// flow scale (the flow its setting gives over its table's): 10 %,
+	// wider than the few per cent such valves are sold to hold so that a
+	// limiter well off its mark shows in the readings rather than in the
+	// resistances (common practice, no source).
+	DefaultPriorHeld = 0.1
 	// DefaultPriorHeader is the sd of ln Header, on the same basis as a
 	// branch's resistance.
 	DefaultPriorHeader = math.Ln2
@@ -96,6 +102,7 @@ type FitOptions struct {
 	// wide prior, no mixture).
 	FaultShare  float64
 	PriorKv     float64  // sd of ln KvScale; 0: DefaultPriorKv
+	PriorHeld   float64  // sd of ln of a pressure-independent valve's flow scale; 0: DefaultPriorHeld
 	PriorHeader float64  // sd of ln Header; 0: DefaultPriorHeader
 	PriorPump   float64  // sd of ln PumpHead; 0: DefaultPriorPump
 	Loss        lsq.Loss // zero value: plain least squares
@@ -150,7 +157,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	if o != nil {
 		out = *o
 	}
-	for _, p := range []*float64{&out.PriorResistance, &out.PriorClean, &out.PriorKv, &out.PriorHeader, &out.PriorPump} {
+	for _, p := range []*float64{&out.PriorResistance, &out.PriorClean, &out.PriorKv, &out.PriorHeld, &out.PriorHeader, &out.PriorPump} {
 		if *p < 0 || math.IsNaN(*p) {
 			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, lsq.ErrSettings)
 		}
@@ -173,6 +180,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 		return out, fmt.Errorf("calibrate: fault share %g must be below 1: %w", out.FaultShare, lsq.ErrSettings)
 	}
 	def(&out.PriorKv, DefaultPriorKv)
+	def(&out.PriorHeld, DefaultPriorHeld)
 	def(&out.PriorHeader, DefaultPriorHeader)
 	def(&out.PriorPump, DefaultPriorPump)
 	if out.MatrixFreeAbove == 0 {
@@ -846,7 +854,7 @@ func (su *setup) params(hyp []ValveHypothesis) []Param {
 			// A pressure-independent valve's flow scale (does its
 			// setting give its table's flow?) where a flow is read at it.
 			if su.heldRead[i] {
-				ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: o.PriorKv})
+				ps = append(ps, Param{Kind: KvParam, Branch: i, Sigma: o.PriorHeld})
 			}
 			continue
 		}
