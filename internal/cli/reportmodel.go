@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"regexp"
 	"strings"
 
 	"flowset/internal/balance"
@@ -199,8 +200,37 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		"Thresholds: restricted when the fitted resistance ratio exceeds 1.5 with 95 % confidence (free below 1/1.5); suspect reading beyond 3 standard uncertainties or removed by the fit's outlier test."}}
 	h, rows = j.readingRows()
 	in.Readings = report.Table{Title: "Readings and residuals", Columns: h, Rows: rows}
+	// A large site's report shows its long tables a page at a time and
+	// says where each is whole.
+	in.Visit.Settings.File = "field-sheet.xlsx and field-sheet.csv"
+	in.Visit.FixesFile = "findings.csv"
+	in.Plan.File = "field-sheet.csv and field-sheet.xlsx"
+	in.Diagnosis.File = "findings.csv"
+	in.Readings.File = "readings.csv"
+	in.Files = "field-sheet.csv, field-sheet.xlsx and calibration.csv"
+	in.Warnings = reportWarnings(j.L.Problems)
+	in.WarningsWhere = "flowset check on the site lists every one with its file and line"
 	return in, nil
 }
+
+// reportWarnings passes the site check's warnings to the report, each with
+// its kind: the message, with any line it names generalised, so the
+// warnings of one kind group together.
+func reportWarnings(probs site.Problems) []report.Warning {
+	var out []report.Warning
+	for _, p := range probs.Warnings() {
+		kind := p.Msg
+		if kind == "" && p.Err != nil {
+			kind = p.Err.Error()
+		}
+		kind = namedLine.ReplaceAllString(kind, "another line")
+		out = append(out, report.Warning{Kind: kind, Text: p.Error()})
+	}
+	return out
+}
+
+// namedLine finds a line a warning's message names ("disagrees with line 12").
+var namedLine = regexp.MustCompile(`\bline \d+( \([^)]*\))?`)
 
 // fieldSheetColumns picks the field sheet's columns a page can hold: what
 // to set, what to expect and the check reading.

@@ -95,7 +95,7 @@ type chartPixels struct {
 
 // startBrowser starts headless Chromium for the test, or skips the test
 // where there is none (but fails in CI, which must have it).
-func startBrowser(t *testing.T) context.Context {
+func startBrowser(t testing.TB) context.Context {
 	t.Helper()
 	if _, err := os.Stat(chromiumPath); err != nil {
 		if os.Getenv("CI") != "" {
@@ -130,7 +130,7 @@ func startBrowser(t *testing.T) context.Context {
 
 // open opens file in a new tab of the browser with every request other than
 // the file itself and data: URLs failed, and records what the page does.
-func open(t *testing.T, browserCtx context.Context, file string) (context.Context, *browserEvents) {
+func open(t testing.TB, browserCtx context.Context, file string) (context.Context, *browserEvents) {
 	t.Helper()
 	fileURL := "file://" + file
 	ctx, cancel := chromedp.NewContext(browserCtx)
@@ -188,7 +188,7 @@ func open(t *testing.T, browserCtx context.Context, file string) (context.Contex
 	return ctx, ev
 }
 
-func writeFile(t *testing.T, in Input) string {
+func writeFile(t testing.TB, in Input) string {
 	t.Helper()
 	file := filepath.Join(t.TempDir(), "report.html")
 	f, err := os.Create(file)

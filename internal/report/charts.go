@@ -318,12 +318,17 @@ func niceCeil(v float64) float64 {
 // pickBranches returns the indices of the branches that get their own
 // chart, in input order: all of them up to maxSmall, otherwise the flagged
 // ones first and then those furthest from design before balancing.
-func pickBranches(bs []Branch) []int {
+func pickBranches(bs []Branch) []int { return pickN(bs, maxSmall) }
+
+// pickN returns the indices, in input order, of at most n branches: all of
+// them when there are no more, otherwise the flagged ones first and then
+// those furthest from design before balancing.
+func pickN(bs []Branch, n int) []int {
 	idx := make([]int, len(bs))
 	for i := range idx {
 		idx[i] = i
 	}
-	if len(bs) <= maxSmall {
+	if len(bs) <= n {
 		return idx
 	}
 	score := func(i int) float64 {
@@ -337,7 +342,7 @@ func pickBranches(bs []Branch) []int {
 		return s
 	}
 	sort.SliceStable(idx, func(a, b int) bool { return score(idx[a]) > score(idx[b]) })
-	idx = idx[:maxSmall]
+	idx = idx[:n]
 	sort.Ints(idx)
 	return idx
 }

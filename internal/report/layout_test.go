@@ -63,6 +63,10 @@ func TestBrowserLayout(t *testing.T) {
 		// appendix's chart sections about one page; its tables 1-4.
 		{"sample", sampleInput(), 9},
 		{"40 branches", bigInput(40), 15},
+		// A large site prints a page of each long table (the visit's fixes
+		// and settings, the finder, the appendix's three) and a bounded set
+		// of charts, whatever its size.
+		{"1000 branches", siteInput(1000), 32},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			in := tc.in

@@ -44,6 +44,25 @@ type Input struct {
 	// Cautions are shown prominently in the header; when empty,
 	// DefaultCautions are shown.
 	Cautions []string
+
+	// Warnings are the site check's warnings, each with its file and line.
+	// The report groups them by Kind: a count, the first few and
+	// WarningsWhere, which says where the whole list is.
+	Warnings      []Warning
+	WarningsWhere string
+
+	// Files names, in a sentence, the files beside the report that hold
+	// every table in full (e.g. "field-sheet.csv, readings.csv"). A large
+	// site's report shows its long tables a page at a time on screen and
+	// prints only the first page of each, so it says where the rest is.
+	Files string
+}
+
+// Warning is one warning of the site check: its kind (what is wrong, the
+// same text for every warning of the kind) and its whole text, with the
+// file and line it is about.
+type Warning struct {
+	Kind, Text string
 }
 
 // Summary holds the headline results. Counts are given by the caller, who
@@ -104,6 +123,9 @@ type Visit struct {
 
 	BeforeStart []string // what would make the readings or settings wrong
 	Fixes       []Fix    // faults to put right before setting valves
+	// FixesFile is the file beside the report that lists every fix (a
+	// large site's report shows them a page at a time).
+	FixesFile string
 
 	Pump PumpStep
 
@@ -173,6 +195,9 @@ type Table struct {
 	// WriteIn names blank columns added after Columns for writing in on
 	// site (e.g. "set", "read after", "initials"); they hold no data.
 	WriteIn []string
+	// File is the file beside the report that holds this table in full
+	// (e.g. "field-sheet.xlsx"); a long table's page says so.
+	File string
 }
 
 // DefaultCautions are shown when Input.Cautions is empty.
@@ -193,10 +218,16 @@ func (in *Input) validate() error {
 			errs = append(errs, fmt.Errorf("%s is infinite: %w", where, ErrInvalid))
 		}
 	}
+	// The names are formatted only for a bad number: a large site has
+	// millions of curve points.
 	curve := func(where string, c []XY) {
 		for i, p := range c {
-			num(fmt.Sprintf("%s[%d].X", where, i), p.X)
-			num(fmt.Sprintf("%s[%d].Y", where, i), p.Y)
+			if math.IsInf(p.X, 0) {
+				num(fmt.Sprintf("%s[%d].X", where, i), p.X)
+			}
+			if math.IsInf(p.Y, 0) {
+				num(fmt.Sprintf("%s[%d].Y", where, i), p.Y)
+			}
 		}
 	}
 	num("ToleranceLow", in.ToleranceLow)
@@ -224,6 +255,9 @@ func (in *Input) validate() error {
 		curve(w+" FitLow", b.FitLow)
 		curve(w+" FitHigh", b.FitHigh)
 		for j, p := range b.Measured {
+			if finite(p.X) && finite(p.Y) && !math.IsInf(p.XErr, 0) && !math.IsInf(p.YErr, 0) {
+				continue
+			}
 			m := fmt.Sprintf("%s Measured[%d]", w, j)
 			num(m+".X", p.X)
 			num(m+".Y", p.Y)

@@ -53,6 +53,7 @@ type section struct {
 	Notes     []string
 	Charts    []chart
 	Small     bool // small multiples with the branch key
+	Finder    bool // the branch finder of a large site
 }
 
 type summaryRow struct {
@@ -68,13 +69,24 @@ type pageData struct {
 	Faults   []string
 	More     int
 	Sections []section
-	Tables   []Table
-	ECharts  template.JS
-	Data     template.JS
-	Script   template.JS
-	License  string
-	Notice   string
-	Version  string
+	Tables   []viewTable
+	// The visit's tables as written: whole, or a page of a long one; Fixes
+	// only when the fixes are shown a page at a time.
+	Fixes, Settings, Remedied, Prove viewTable
+	// Warnings of the site check, grouped by kind.
+	Warnings      []warnGroup
+	WarningsWhere string
+	// Large is the large-site form; Branches and Flagged count the
+	// branches for the finder.
+	Large             bool
+	Branches, Flagged string
+	Page              int
+	ECharts           template.JS
+	Data              template.JS
+	Script            template.JS
+	License           string
+	Notice            string
+	Version           string
 }
 
 // maxFaults is the most faults listed in the summary; the diagnosis table
@@ -87,6 +99,7 @@ var tmpl = template.Must(template.New("report").Funcs(template.FuncMap{
 	"dash":   dash,
 	"nowrap": nowrap,
 	"keep":   keepIDs,
+	"count":  thousands,
 }).Parse(pageTmpl))
 
 // keepIDs escapes s for HTML and wraps each short word holding a hyphen
@@ -190,18 +203,57 @@ func build(in *Input) (*pageData, error) {
 		p.Faults = p.Faults[:maxFaults]
 	}
 
-	var all []chart
+	p.Large = large(in)
+	if p.Large {
+		p.HowTo[len(p.HowTo)-1] = "Point at a chart for values. The branch finder (" + letter(0) + ") holds every branch; the long tables show a page at a time, with a search box, and name the file beside this report that holds each whole."
+	}
+	p.Warnings, p.WarningsWhere = groupWarnings(in.Warnings), in.WarningsWhere
+	data := dataSet{}
+	var tx texts
+	view := func(t Table, page int) viewTable {
+		if !p.Large {
+			return viewTable{Table: t, Data: -1, Total: len(t.Rows)}
+		}
+		v := data.addTable(t, page, &tx)
+		if v.Paged() {
+			v.Notes = append([]string{pagedNote(v)}, v.Notes...)
+		}
+		return v
+	}
+
+	// chartIn is what the per-branch category charts draw: every branch,
+	// or on a large site the flagged and furthest from design.
+	chartIn := in
+	var charted []int
 	if len(in.Branches) > 0 {
 		pick := pickBranches(in.Branches)
+		charted = pick
 		sec := section{
 			ID: "branches", Title: "Branch system curves", Small: true,
 			Intro: "Differential across each branch against its flow: the design curve, the curve fitted to the readings with its 95 % band, and the readings with their uncertainty.",
 		}
 		if len(pick) < len(in.Branches) {
-			sec.Notes = append(sec.Notes, fmt.Sprintf("Showing %d of %d branches: those flagged, then those furthest from design as found. Every branch is in the tables.", len(pick), len(in.Branches)))
+			where := "Every branch is in the tables."
+			if p.Large {
+				where = "Every branch is in the branch finder (" + letter(0) + ")."
+			}
+			sec.Notes = append(sec.Notes, fmt.Sprintf("Showing %d of %s branches: those flagged, then those furthest from design as found. %s", len(pick), thousands(len(in.Branches)), where))
 		}
 		for k, i := range pick {
 			sec.Charts = append(sec.Charts, branchChart(fmt.Sprintf("fs-branch-%d", k+1), &in.Branches[i], in))
+		}
+		if p.Large {
+			p.Branches, p.Flagged = thousands(len(in.Branches)), thousands(flagged(in.Branches))
+			p.Sections = append(p.Sections, section{
+				ID: "finder", Title: "Find a branch", Finder: true,
+				Intro: "Every branch, " + p.Branches + " of them: search by name, sort by how far each is from design, or show only the flagged ones (" + p.Flagged + "). Flow is in percent of design.",
+			})
+			sub := *in
+			sub.Branches = nil
+			for _, i := range pickN(in.Branches, maxWindow) {
+				sub.Branches = append(sub.Branches, in.Branches[i])
+			}
+			chartIn = &sub
 		}
 		p.Sections = append(p.Sections, sec)
 	}
@@ -212,6 +264,10 @@ func build(in *Input) (*pageData, error) {
 	})
 	if len(in.Branches) > 0 {
 		zoom := func(sec *section) {
+			if p.Large {
+				sec.Notes = append(sec.Notes, fmt.Sprintf("The %d branches flagged or furthest from design as found, of %s; the branch finder (%s) has every one.", len(chartIn.Branches), p.Branches, letter(0)))
+				return
+			}
 			if len(in.Branches) > maxWindow {
 				sec.Notes = append(sec.Notes, fmt.Sprintf("%d branches: the chart shows %d at a time; drag the slider below it to move along.", len(in.Branches), maxWindow))
 			}
@@ -219,19 +275,19 @@ func build(in *Input) (*pageData, error) {
 		f := section{
 			ID: "flow", Title: "Flow in percent of design",
 			Intro:  "Each branch’s flow as found and as predicted after the plan, with the 95 % interval of the prediction. The shaded band is the tolerance, " + tol + " of design; the dotted line is design.",
-			Charts: []chart{flowChart("fs-flow", in)},
+			Charts: []chart{flowChart("fs-flow", chartIn)},
 		}
 		zoom(&f)
 		r := section{
 			ID: "resistance", Title: "Fitted resistance",
 			Intro:  "Each branch’s fitted fixed resistance divided by its design resistance, with its 95 % interval. 1 (the dotted line) means as designed; well above 1 suggests a blockage or a closed valve, well below 1 a missing fitting or a bypass.",
-			Charts: []chart{ratioChart("fs-ratio", in)},
+			Charts: []chart{ratioChart("fs-ratio", chartIn)},
 		}
 		zoom(&r)
 		v := section{
 			ID: "valves", Title: "Valve settings",
 			Intro:  "Each balancing valve’s setting now and as planned.",
-			Charts: valveCharts("fs-valves", in),
+			Charts: valveCharts("fs-valves", chartIn),
 		}
 		if len(v.Charts) == 0 {
 			v.Notes = append(v.Notes, "No valve settings were given.")
@@ -240,31 +296,50 @@ func build(in *Input) (*pageData, error) {
 		p.Sections = append(p.Sections, f, r, v)
 	}
 	for _, sec := range p.Sections {
-		all = append(all, sec.Charts...)
+		data.Charts = append(data.Charts, sec.Charts...)
 	}
-	data, err := chartJSON(all)
-	if err != nil {
-		return nil, err
+	if p.Large {
+		// The branch names go first into the string table, so that the
+		// tables' branch columns refer to them.
+		data.Finder = finder(in.Branches, charted, &tx)
+		data.Page = pageRows
+		p.Page = pageRows
 	}
-	p.Data = template.JS(data)
-	p.Tables = []Table{
+	p.Fixes = viewTable{Data: -1}
+	if p.Large && len(in.Visit.Fixes) > fixRows {
+		t := Table{Columns: []string{"Where", "What to do", "What fixing it saves", "Read after"}, File: in.Visit.FixesFile}
+		for _, f := range in.Visit.Fixes {
+			t.Rows = append(t.Rows, []string{f.Where, f.Action, dash(f.Saves), dash(f.ReadAfter)})
+		}
+		p.Fixes = view(t, fixRows)
+	}
+	p.Settings = view(in.Visit.Settings, pageRows)
+	p.Remedied = view(in.Visit.Remedied, pageRows)
+	p.Prove = view(in.Visit.Prove, pageRows)
+	for _, t := range []Table{
 		withTitle(in.Plan, "Full field sheet"),
 		withTitle(in.Diagnosis, "Diagnosis"),
 		withTitle(in.Readings, "Readings and residuals"),
+	} {
+		p.Tables = append(p.Tables, view(t, pageRows))
 	}
+	data.Text = tx.list
+	js, err := dataJSON(data)
+	if err != nil {
+		return nil, err
+	}
+	p.Data = template.JS(js)
 	return p, nil
 }
 
-// chartJSON serialises the chart options. encoding/json escapes <, >, &,
+// dataJSON serialises the data block. encoding/json escapes <, >, &,
 // U+2028 and U+2029, so the result cannot end the script element that
 // holds it nor start markup, whatever the strings hold.
-func chartJSON(cs []chart) ([]byte, error) {
+func dataJSON(d dataSet) ([]byte, error) {
 	var buf bytes.Buffer
 	enc := json.NewEncoder(&buf)
 	enc.SetEscapeHTML(true)
-	if err := enc.Encode(struct {
-		Charts []chart `json:"charts"`
-	}{cs}); err != nil {
+	if err := enc.Encode(d); err != nil {
 		return nil, fmt.Errorf("report: encode charts: %w", err)
 	}
 	return bytes.TrimSpace(buf.Bytes()), nil

@@ -171,6 +171,8 @@ var allowedTags = map[string]bool{
 	"table": true, "thead": true, "tbody": true, "tr": true, "th": true, "td": true,
 	"svg": true, "line": true, "rect": true, "circle": true,
 	"details": true, "summary": true, "pre": true,
+	// the large site's branch finder and pagers
+	"label": true, "input": true, "select": true, "option": true, "button": true,
 }
 
 // checkPage checks the structure that makes a report safe and offline.
@@ -395,14 +397,171 @@ func TestPickBranches(t *testing.T) {
 }
 
 func TestWriteManyBranches(t *testing.T) {
-	out := string(render(t, bigInput(1000)))
-	if n := strings.Count(out, `<div class="chart" id="fs-branch-`); n != maxSmall {
-		t.Errorf("1000 branches: %d branch charts, want %d", n, maxSmall)
-	}
-	for _, want := range []string{"Showing 24 of 1000 branches", "drag the slider", `"dataZoom":[{"type":"slider"`} {
+	// Up to maxStaticBranches, every branch is on each category chart,
+	// with a slider beyond maxWindow, and every table row is in the page.
+	out := string(render(t, bigInput(60)))
+	for _, want := range []string{"Showing 24 of 60 branches", "drag the slider", `"dataZoom":[{"type":"slider"`} {
 		if !strings.Contains(out, want) {
-			t.Errorf("1000 branches: %q not in the page", want)
+			t.Errorf("60 branches: %q not in the page", want)
 		}
+	}
+	if strings.Contains(out, `id="fs-find"`) || strings.Contains(out, `data-table="`) {
+		t.Errorf("60 branches: the page has the large site's finder or paged tables")
+	}
+}
+
+// TestWriteLargeSite: above maxStaticBranches the report holds every
+// branch once, in the data block, and a page of each long table.
+func TestWriteLargeSite(t *testing.T) {
+	in := siteInput(1000)
+	out := render(t, in)
+	page := string(out)
+	if n := strings.Count(page, `<div class="chart" id="fs-branch-`); n != maxSmall {
+		t.Errorf("%d branch charts, want %d", n, maxSmall)
+	}
+	for _, want := range []string{"Showing 24 of 1,000 branches", `id="fs-find"`, "The first 40 of 1,000 rows", "The first 40 of 2,000 rows",
+		"The whole table is in readings-file.csv beside this report", "every branch is in the-files.csv beside this report"} {
+		if !strings.Contains(page, want) {
+			t.Errorf("%q not in the page", want)
+		}
+	}
+	if strings.Contains(string(withoutECharts(t, out, "")), `"dataZoom"`) {
+		t.Errorf("a category chart of a large site has a slider: it should show a bounded set of branches")
+	}
+
+	var data struct {
+		Text   []string `json:"text"`
+		Finder struct {
+			ID     []int      `json:"id"`
+			Before []*float64 `json:"f0"`
+			Flags  []int      `json:"fl"`
+			Charts []int      `json:"charts"`
+		} `json:"finder"`
+		Tables []struct {
+			N    int `json:"n"`
+			Cols []struct {
+				K *int     `json:"k"`
+				G []int    `json:"g"`
+				D []string `json:"d"`
+				I []int    `json:"i"`
+				V []string `json:"v"`
+				P string   `json:"p"`
+			} `json:"c"`
+		} `json:"tables"`
+	}
+	_, block := pageParts(t, out)
+	if err := json.Unmarshal(block, &data); err != nil {
+		t.Fatal(err)
+	}
+	// The finder: every branch, in input order, with its flag and its flow
+	// as found in percent of design.
+	if len(data.Finder.ID) != len(in.Branches) {
+		t.Fatalf("finder holds %d branches, want %d", len(data.Finder.ID), len(in.Branches))
+	}
+	for i, b := range in.Branches {
+		if got := data.Text[data.Finder.ID[i]]; got != b.ID {
+			t.Errorf("finder branch %d is %q, want %q", i, got, b.ID)
+		}
+		if got, want := data.Text[data.Finder.Flags[i]], strings.Join(b.Flags, "; "); got != want {
+			t.Errorf("finder flags of %s = %q, want %q", b.ID, got, want)
+		}
+		// Stored to 4 significant digits.
+		if f, want := data.Finder.Before[i], 100*b.Before/b.Design; f == nil || math.Abs(*f-want) > 5e-4*want {
+			t.Errorf("finder flow as found of %s = %v, want %.2f %% of design", b.ID, f, 100*b.Before/b.Design)
+		}
+	}
+	if !cmp.Equal(data.Finder.Charts, pickBranches(in.Branches)) {
+		t.Errorf("finder's charted branches %v, want %v", data.Finder.Charts, pickBranches(in.Branches))
+	}
+	// Each stored table reads back as the table given, whatever way each
+	// column is stored.
+	var fixes [][]string
+	for _, f := range in.Visit.Fixes {
+		fixes = append(fixes, []string{f.Where, f.Action, f.Saves, "—"})
+	}
+	want := [][][]string{fixes, in.Visit.Settings.Rows, in.Plan.Rows, in.Diagnosis.Rows, in.Readings.Rows}
+	if len(data.Tables) != len(want) {
+		t.Fatalf("%d stored tables, want %d (fixes, settings, plan, diagnosis, readings)", len(data.Tables), len(want))
+	}
+	for k, dt := range data.Tables {
+		rows := make([][]string, dt.N)
+		for r := range rows {
+			for _, c := range dt.Cols {
+				var v string
+				switch {
+				case c.K != nil:
+					v = data.Text[*c.K]
+				case c.G != nil:
+					v = data.Text[c.G[r]]
+				case c.D != nil:
+					v = c.D[c.I[r]]
+				default:
+					v = c.P + c.V[r]
+				}
+				rows[r] = append(rows[r], v)
+			}
+		}
+		if diff := cmp.Diff(want[k], rows); diff != "" {
+			t.Errorf("stored table %d (-given +read back):\n%.2000s", k, diff)
+		}
+	}
+	// Stored once: a branch on no chart and in no table's first page is
+	// named exactly once in the whole file.
+	shown := map[string]bool{}
+	for _, i := range pickN(in.Branches, maxWindow) {
+		shown[in.Branches[i].ID] = true
+	}
+	for _, i := range pickBranches(in.Branches) {
+		shown[in.Branches[i].ID] = true
+	}
+	for _, tb := range want {
+		for _, r := range tb[:pageRows] {
+			for _, c := range r {
+				shown[c] = true
+			}
+		}
+	}
+	checked := 0
+	for _, b := range in.Branches {
+		if shown[b.ID] {
+			continue
+		}
+		checked++
+		if n := strings.Count(page, `"`+b.ID+`"`); n != 1 {
+			t.Errorf("branch %s is named %d times in the page, want once", b.ID, n)
+		}
+	}
+	if checked < 800 {
+		t.Errorf("only %d branches checked for being stored once", checked)
+	}
+}
+
+// TestWriteWarningsGrouped: warnings of one kind are counted, the first
+// few shown with their lines, and the page says where the rest are.
+func TestWriteWarningsGrouped(t *testing.T) {
+	in := sampleInput()
+	for i := range 1424 {
+		in.Warnings = append(in.Warnings, Warning{Kind: "valve differential below 3 kPa reads unreliably",
+			Text: fmt.Sprintf("readings.csv:%d:4: valve differential below 3 kPa reads unreliably", 10+i)})
+		if i == 5 {
+			in.Warnings = append(in.Warnings, Warning{Kind: "unknown column, ignored", Text: "branches.csv:1:9: unknown column, ignored"})
+		}
+	}
+	in.WarningsWhere = "the check lists every one"
+	page := string(render(t, in))
+	for _, want := range []string{
+		"Warnings from the check of the site’s sheets: 1,425",
+		"<p>valve differential below 3 kPa reads unreliably: 1,424</p>",
+		"readings.csv:10:4:", "readings.csv:12:4:",
+		"<li>and 1,421 more: the check lists every one</li>",
+		"<p>unknown column, ignored: 1</p>", "branches.csv:1:9",
+	} {
+		if !strings.Contains(page, want) {
+			t.Errorf("%q not in the page", want)
+		}
+	}
+	if strings.Contains(page, "readings.csv:13:4:") {
+		t.Errorf("the fourth warning of a kind is listed")
 	}
 }
 
@@ -437,10 +596,55 @@ func bigInput(n int) Input {
 	return in
 }
 
+// siteInput is bigInput with the tables a site of n branches has in the
+// report: the settings in adjustment order (7 columns), the field sheet
+// (11 columns), two readings per branch (10 columns) and a finding and a
+// fix per flagged branch, as the command line fills them.
+func siteInput(n int) Input {
+	in := bigInput(n)
+	in.Files = "the-files.csv"
+	in.Readings.File = "readings-file.csv"
+	in.Visit.Settings.Rows = nil
+	in.Plan.Columns = []string{"Order", "Branch", "Valve", "As-found setting", "New setting", "Setting unit", "Predicted (% of target)",
+		"Band low (% of target)", "Band high (% of target)", "In tolerance", "Notes"}
+	in.Plan.Rows = nil
+	in.Readings.Columns = []string{"source", "state", "at", "quantity", "instrument", "value", "model", "unit", "normalised residual", "note"}
+	in.Readings.Rows = nil
+	in.Diagnosis.Rows = nil
+	in.Visit.Fixes = nil
+	line := 2
+	for i, b := range in.Branches {
+		valve := fmt.Sprintf("V%d", 15+5*(i%4))
+		now, set := fmt.Sprintf("%.2f", b.NowValue), fmt.Sprintf("%.2f", math.Round(10*b.PlannedValue)/10)
+		in.Visit.Settings.Rows = append(in.Visit.Settings.Rows, []string{fmt.Sprint(i + 1), b.ID, valve, now + " turns", set + " turns",
+			fmt.Sprintf("%.1f", 3+40*b.Design), fmt.Sprintf("%.3f", b.After)})
+		p := 100 * b.After / b.Design
+		in.Plan.Rows = append(in.Plan.Rows, []string{fmt.Sprint(i + 1), b.ID, valve, now, set, "turns", fmt.Sprintf("%.1f", p),
+			fmt.Sprintf("%.1f", 0.97*p), fmt.Sprintf("%.1f", 1.03*p), "yes", ""})
+		for k, q := range []string{"flow", "valve diff"} {
+			v := b.Before
+			if k == 1 {
+				v = 20 * b.Before / b.Design
+			}
+			in.Readings.Rows = append(in.Readings.Rows, []string{fmt.Sprintf("site/readings.csv:%d", line), "as-found", b.ID, q, "valve-meter",
+				fmt.Sprintf("%.3f", v), fmt.Sprintf("%.3f", 1.01*v), "l/s", fmt.Sprintf("%.2f", 0.3*float64(line%7-3)), ""})
+			line++
+		}
+		if len(b.Flags) > 0 {
+			in.Diagnosis.Rows = append(in.Diagnosis.Rows, []string{b.ID, "restricted", fmt.Sprintf("fitted resistance %.2f x design", b.RatioFit)})
+			in.Visit.Fixes = append(in.Visit.Fixes, Fix{Where: b.ID, Action: fmt.Sprintf("clean the strainer (it passes water as if %.1f times its design resistance)", b.RatioFit),
+				Saves: "pump differential 488.0 kPa → 427.0 kPa"})
+		}
+	}
+	return in
+}
+
+// BenchmarkWrite writes the report of an invented site of n branches
+// (siteInput) and reports its size.
 func BenchmarkWrite(b *testing.B) {
-	for _, n := range []int{15, 1000} {
+	for _, n := range []int{15, 1000, 10000} {
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
-			in := bigInput(n)
+			in := siteInput(n)
 			var buf bytes.Buffer
 			b.ReportAllocs()
 			for b.Loop() {

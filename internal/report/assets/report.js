@@ -75,12 +75,264 @@
     return opt;
   }
 
+  // --- Large sites: long tables and the branch finder, a page at a time.
+  // Every cell is set with textContent; nothing from the data becomes markup.
+
+  var MAXNOWRAP = 24; // as maxNoWrap in report.go
+
+  // cell fills td as the page template does: short cells on one line,
+  // hyphenated words in longer ones kept whole.
+  function cell(td, s) {
+    var n = Array.from(s).length;
+    if (n <= MAXNOWRAP && s.indexOf("; ") < 0) { td.className = "nw"; }
+    var words = s.split(" ");
+    for (var i = 0; i < words.length; i++) {
+      if (i > 0) { td.appendChild(document.createTextNode(" ")); }
+      var w = words[i];
+      if (w.indexOf("-") >= 0 && Array.from(w).length <= MAXNOWRAP) {
+        var sp = document.createElement("span");
+        sp.className = "id";
+        sp.textContent = w;
+        td.appendChild(sp);
+      } else {
+        td.appendChild(document.createTextNode(w));
+      }
+    }
+  }
+
+  // column returns a function giving the text of row r of a stored column.
+  function column(c, text) {
+    if (c.k !== undefined) { return function () { return text[c.k]; }; }
+    if (c.g) { return function (r) { return text[c.g[r]]; }; }
+    if (c.d) { return function (r) { return c.d[c.i[r]]; }; }
+    var p = c.p || "", v = c.v || [];
+    return function (r) { return p + v[r]; };
+  }
+
+  var NUM = /^\s*[-+]?(\d|\.\d)/;
+  var collator = new Intl.Collator(undefined, { numeric: true, sensitivity: "base" });
+  // compare orders numbers (with or without a unit after them) by value and
+  // anything else as text, numbers first; empty cells last.
+  function compare(a, b) {
+    if (a === b) { return 0; }
+    if (a === "" || a === "-" || a === "—") { return 1; }
+    if (b === "" || b === "-" || b === "—") { return -1; }
+    var na = NUM.test(a), nb = NUM.test(b);
+    if (na && nb) {
+      var d = parseFloat(a) - parseFloat(b);
+      if (d !== 0) { return d; }
+    } else if (na !== nb) {
+      return na ? -1 : 1;
+    }
+    return collator.compare(a, b);
+  }
+
+  function button(label) {
+    var b = document.createElement("button");
+    b.type = "button";
+    b.textContent = label;
+    return b;
+  }
+
+  // Pager keeps the rows that match and the page shown, and draws it.
+  function pager(total, page, draw, countEl, prev, next, noun) {
+    var st = { rows: [], start: 0 };
+    function show() {
+      var n = st.rows.length;
+      if (st.start >= n) { st.start = Math.max(0, n - page); }
+      var end = Math.min(n, st.start + page);
+      draw(st.rows.slice(st.start, end));
+      countEl.textContent = n === 0 ? "no " + noun + " match" :
+        noun + " " + (st.start + 1).toLocaleString("en") + " to " + end.toLocaleString("en") + " of " + n.toLocaleString("en") +
+        (n < total ? " matching (" + total.toLocaleString("en") + " in all)" : "");
+      prev.disabled = st.start === 0;
+      next.disabled = end >= n;
+    }
+    prev.addEventListener("click", function () { st.start = Math.max(0, st.start - page); show(); });
+    next.addEventListener("click", function () { st.start += page; show(); });
+    return {
+      set: function (rows) { st.rows = rows; st.start = 0; show(); },
+      show: show
+    };
+  }
+
+  // pagedTable turns a table whose first rows are in the page into one that
+  // shows any page of the stored whole, with a search box and sorting.
+  function pagedTable(wrap, t, text, page) {
+    var cols = t.c.map(function (c) { return column(c, text); });
+    var tbody = wrap.querySelector("tbody");
+    var ths = wrap.querySelectorAll("thead th");
+    var bar = document.createElement("div");
+    bar.className = "pager";
+    var label = document.createElement("label");
+    label.textContent = "Search ";
+    var q = document.createElement("input");
+    q.type = "search";
+    q.autocomplete = "off";
+    label.appendChild(q);
+    var count = document.createElement("span");
+    var prev = button("previous"), next = button("next");
+    bar.append(label, count, prev, next);
+    wrap.parentNode.insertBefore(bar, wrap);
+    var all = [];
+    for (var r = 0; r < t.n; r++) { all.push(r); }
+    var sortCol = -1, dir = 1;
+    function draw(rows) {
+      var frag = document.createDocumentFragment();
+      rows.forEach(function (r) {
+        var tr = document.createElement("tr");
+        cols.forEach(function (f) {
+          var td = document.createElement("td");
+          cell(td, f(r));
+          tr.appendChild(td);
+        });
+        for (var k = 0; k < (t.w || 0); k++) {
+          var wi = document.createElement("td");
+          wi.className = "wi";
+          tr.appendChild(wi);
+        }
+        frag.appendChild(tr);
+      });
+      tbody.replaceChildren(frag);
+    }
+    var pg = pager(t.n, page, draw, count, prev, next, "rows");
+    function update() {
+      var needle = q.value.trim().toLowerCase();
+      var rows = all;
+      if (needle) {
+        rows = all.filter(function (r) {
+          for (var k = 0; k < cols.length; k++) {
+            if (cols[k](r).toLowerCase().indexOf(needle) >= 0) { return true; }
+          }
+          return false;
+        });
+      }
+      if (sortCol >= 0) {
+        var f = cols[sortCol];
+        rows = rows.slice().sort(function (a, b) { return dir * compare(f(a), f(b)) || a - b; });
+      }
+      pg.set(rows);
+    }
+    for (var k = 0; k < cols.length && k < ths.length; k++) {
+      (function (k) {
+        ths[k].setAttribute("data-sort", "");
+        ths[k].title = "sort by this column (again to reverse)";
+        ths[k].addEventListener("click", function () {
+          dir = sortCol === k ? -dir : 1;
+          sortCol = k;
+          update();
+        });
+      })(k);
+    }
+    q.addEventListener("input", update);
+    update();
+  }
+
+  function fmt(v, digits) {
+    return v === null || v === undefined ? "—" : String(Number(v.toFixed(digits)));
+  }
+
+  // finderTable is the branch finder: every branch, searched by name,
+  // sorted by how far it is from design, or only the flagged ones.
+  function finderTable(f, text, page) {
+    var table = document.getElementById("fs-find");
+    if (!table) { return; }
+    var tbody = table.querySelector("tbody");
+    var q = document.getElementById("fs-find-q");
+    var sortBy = document.getElementById("fs-find-sort");
+    var onlyFlagged = document.getElementById("fs-find-flagged");
+    var n = f.id.length;
+    var names = f.id.map(function (k) { return text[k]; });
+    var lower = names.map(function (s) { return s.toLowerCase(); });
+    var chartOf = {};
+    f.charts.forEach(function (i, k) { chartOf[i] = "fs-branch-" + (k + 1); });
+    function dev(v) { return v === null ? -1 : Math.abs(v - 100); }
+    var keys = {
+      worst: function (i) { return (text[f.fl[i]] ? 1e9 : 0) + Math.max(0, dev(f.f0[i])); },
+      before: function (i) { return dev(f.f0[i]); },
+      after: function (i) { return dev(f.f1[i]); },
+      ratio: function (i) { return f.r[i] === null ? -1 : f.r[i]; }
+    };
+    var all = [];
+    for (var i = 0; i < n; i++) { all.push(i); }
+    function draw(rows) {
+      var frag = document.createDocumentFragment();
+      rows.forEach(function (i) {
+        var tr = document.createElement("tr");
+        var band = f.lo[i] === null || f.hi[i] === null ? "—" : fmt(f.lo[i], 1) + " to " + fmt(f.hi[i], 1);
+        var ratio = fmt(f.r[i], 2) + (f.rl[i] === null || f.rh[i] === null ? "" : " (" + fmt(f.rl[i], 2) + " to " + fmt(f.rh[i], 2) + ")");
+        var cells = [names[i], fmt(f.q[i], 3), fmt(f.f0[i], 1), fmt(f.f1[i], 1), band, ratio,
+          text[f.sn[i]] || "—", text[f.sp[i]] || "—", text[f.fl[i]] || ""];
+        cells.forEach(function (s) {
+          var td = document.createElement("td");
+          cell(td, s);
+          tr.appendChild(td);
+        });
+        var td = document.createElement("td");
+        if (chartOf[i]) {
+          var go = button("show");
+          go.setAttribute("data-chart", chartOf[i]);
+          td.appendChild(go);
+        }
+        tr.appendChild(td);
+        frag.appendChild(tr);
+      });
+      tbody.replaceChildren(frag);
+    }
+    var pg = pager(n, page, draw, document.getElementById("fs-find-count"),
+      document.getElementById("fs-find-prev"), document.getElementById("fs-find-next"), "branches");
+    function update() {
+      var needle = q.value.trim().toLowerCase();
+      var flaggedOnly = onlyFlagged.checked;
+      var rows = all.filter(function (i) {
+        return (!flaggedOnly || text[f.fl[i]]) && (!needle || lower[i].indexOf(needle) >= 0);
+      });
+      var by = sortBy.value;
+      if (by === "name") {
+        rows.sort(function (a, b) { return collator.compare(names[a], names[b]) || a - b; });
+      } else if (keys[by]) {
+        var key = keys[by];
+        var v = new Float64Array(n);
+        rows.forEach(function (i) { v[i] = key(i); });
+        rows.sort(function (a, b) { return v[b] - v[a] || a - b; });
+      }
+      pg.set(rows);
+    }
+    tbody.addEventListener("click", function (e) {
+      var id = e.target.getAttribute && e.target.getAttribute("data-chart");
+      var el = id && document.getElementById(id);
+      if (el) { el.scrollIntoView(); }
+    });
+    q.addEventListener("input", update);
+    sortBy.addEventListener("change", update);
+    onlyFlagged.addEventListener("change", update);
+    update();
+  }
+
   var node = document.getElementById("fs-data");
   var data = JSON.parse(node.textContent);
-  data.charts.forEach(function (c) {
+  var text = data.text || [];
+  if (data.finder) { finderTable(data.finder, text, data.page); }
+  document.querySelectorAll("[data-table]").forEach(function (wrap) {
+    var t = (data.tables || [])[Number(wrap.getAttribute("data-table"))];
+    if (t) { pagedTable(wrap, t, text, t.s); }
+  });
+  // The charts are drawn a few at a time, so that a large site's page
+  // answers at once and its charts follow; printing draws any left first.
+  var pending = data.charts.slice();
+  function draw(c) {
     var el = document.getElementById(c.id);
     if (!el) { return; }
     var inst = echarts.init(el, null, { renderer: "canvas" });
     inst.setOption(prepare(c.option));
+  }
+  function drawSome() {
+    var until = performance.now() + 50;
+    while (pending.length > 0 && performance.now() < until) { draw(pending.shift()); }
+    if (pending.length > 0) { setTimeout(drawSome, 0); }
+  }
+  window.addEventListener("beforeprint", function () {
+    while (pending.length > 0) { draw(pending.shift()); }
   });
+  drawSome();
 })();
