@@ -102,7 +102,7 @@ func checksums(t *testing.T, dir string) map[string][32]byte {
 	return out
 }
 
-var wantOutputs = []string{".flowset-output", "calibration.csv", "calibration.json", "field-sheet.csv", "field-sheet.xlsx", "findings.csv", "plan.json", "readings.csv", "report.html"}
+var wantOutputs = []string{".flowset-output", "calibration.csv", "calibration.json", "field-sheet.csv", "field-sheet.xlsx", "findings.csv", "plan.json", "read-next.csv", "read-next.json", "readings.csv", "report.html"}
 
 // TestRunEverySurvey runs the whole job on every site under surveys/ and
 // checks that the outputs are all there and the inputs untouched.

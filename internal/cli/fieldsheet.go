@@ -33,9 +33,14 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 			conv[k] = func(v float64) float64 { return u.toDiff(v * 1e3) }
 		}
 	}
+	// Which branches to read after setting, and why: the prove-it list's.
+	prove := map[string]string{}
+	for _, r := range j.proveTable(u).Rows {
+		prove[r[0]] = r[1]
+	}
 	out := make([][]string, len(rows))
 	for r, row := range rows {
-		nr := make([]string, 0, len(row)+len(fieldSheetWriteIn))
+		nr := make([]string, 0, len(row)+1+len(fieldSheetWriteIn))
 		for k, cell := range row {
 			if conv[k] != nil && u.Name != "si" && cell != "" {
 				if v, err := strconv.ParseFloat(cell, 64); err == nil {
@@ -47,12 +52,13 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 			}
 			nr = append(nr, cell)
 		}
+		nr = append(nr, prove[row[1]])
 		for range fieldSheetWriteIn {
 			nr = append(nr, "")
 		}
 		out[r] = nr
 	}
-	return append(head, fieldSheetWriteIn...), out
+	return append(append(head, "Read after setting: why"), fieldSheetWriteIn...), out
 }
 
 // fieldSheetAbout is the workbook's "about" sheet: site, date, the visit's

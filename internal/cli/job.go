@@ -51,6 +51,9 @@ type job struct {
 	// finding made the tables quadratic in the size of the site.
 	flowsRead map[string]float64
 	flags     map[string]string
+	// Reads ranks the readings to take after setting (nil without a fit
+	// or on a site too large to rank).
+	Reads *balance.ReadPlan
 	// Trim is the round after setting (trim only) and readLeft the
 	// branches read in its as-left state.
 	Trim     *balance.TrimPlan
@@ -179,8 +182,26 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	if err := j.remedies(ctx); err != nil {
 		return nil, err
 	}
+	if j.Cal != nil && len(m.Branches) <= maxRankBranches {
+		pr.step("ranking the readings to take after setting")
+		rp, err := balance.RankReadings(ctx, m, j.Params, plan, &balance.ReadOptions{Uncertainty: uncertainty(j.Cal), Max: rankListed(len(m.Branches))})
+		if err != nil {
+			return nil, &dataError{fmt.Errorf("ranking readings: %w", err)}
+		}
+		j.Reads = rp
+	}
 	return j, nil
 }
+
+// maxRankBranches is the largest site whose readings after setting are
+// ranked: the ranking's covariance is dense in the uncertain multipliers
+// (two per branch), so its cost grows with their square.
+const maxRankBranches = 2000
+
+// rankListed is how many readings the ranking lists on a site of n
+// branches: a third of them (twice the round the ranking is judged on), at
+// least 10 and at most 100.
+func rankListed(n int) int { return min(max(10, (n+2)/3), 100) }
 
 // planOptions are the plan's options from the job's.
 func (j *job) planOptions() *balance.Options {

@@ -337,6 +337,15 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			if err := put("plan.json", func(w io.Writer) error { return writeJSON(w, j.planOut(generated)) }); err != nil {
 				return err
 			}
+			if j.Reads != nil {
+				h, rows := j.readNextRows(o.job.Units)
+				if err := put("read-next.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
+					return err
+				}
+				if err := put("read-next.json", func(w io.Writer) error { return writeJSON(w, j.readNextOut()) }); err != nil {
+					return err
+				}
+			}
 		}
 		if j.Trim != nil {
 			t := j.trimTable(o.job.Units)

@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"cmp"
 	"context"
 	"fmt"
 	"math"
@@ -483,14 +484,24 @@ func (j *job) proveTable(u display) report.Table {
 		}
 	}
 	p := j.Plan
+	ranked := j.rankOf()
+	type row struct {
+		rank  int
+		cells []string
+	}
+	var rows []row
 	for _, b := range p.Branches {
 		var why []string
-		if b.ID == p.Index {
+		rk, isRanked := ranked[b.ID]
+		if isRanked {
+			why = append(why, fmt.Sprintf("order %d, by %s: %s", rk.Rank, strings.ReplaceAll(rk.How.String(), "-", " "), rk.Settles))
+		}
+		if b.ID == p.Index && !isRanked {
 			why = append(why, "index circuit: proves the pump is high enough")
 		}
 		if !b.InTolerance {
 			why = append(why, "predicted outside the tolerance")
-		} else if p.Banded && !b.BandInTolerance {
+		} else if p.Banded && !b.BandInTolerance && !isRanked {
 			// Say by how much: the band and the tolerance can look equal
 			// once rounded to the flow's decimals.
 			switch lo := 100 * (1 + p.ToleranceLow); {
@@ -513,8 +524,23 @@ func (j *job) proveTable(u display) report.Table {
 		}
 		lo, hi := b.BandLow/100*b.Target, b.BandHigh/100*b.Target
 		tlo, thi := (1+p.ToleranceLow)*b.Target, (1+p.ToleranceHigh)*b.Target
-		t.Rows = append(t.Rows, []string{b.ID, strings.Join(why, "; "), u.flowNum(b.Predicted),
-			u.flowNum(lo) + " to " + u.flowNum(hi), u.flowNum(tlo) + " to " + u.flowNum(thi)})
+		r := row{rank: math.MaxInt, cells: []string{b.ID, strings.Join(why, "; "), u.flowNum(b.Predicted),
+			u.flowNum(lo) + " to " + u.flowNum(hi), u.flowNum(tlo) + " to " + u.flowNum(thi)}}
+		if isRanked {
+			r.rank = rk.Rank
+		}
+		rows = append(rows, r)
+	}
+	// The ranked readings first, in their order; the rest in walk order.
+	slices.SortStableFunc(rows, func(a, b row) int { return cmp.Compare(a.rank, b.rank) })
+	for _, r := range rows {
+		t.Rows = append(t.Rows, r.cells)
+	}
+	if pr, ok := ranked["pump"]; ok {
+		t.Notes = append(t.Notes, fmt.Sprintf("Read the pump's differential and the total flow too (order %d): expect %s, 95 %% band %s to %s; %s.", pr.Rank, u.diff(pr.Expect), u.diffNum(pr.Low), u.diff(pr.High), pr.Settles))
+	}
+	if j.Reads != nil && len(j.Reads.Readings) > 0 {
+		t.Notes = append(t.Notes, fmt.Sprintf("The order is by how much each reading lowers the risk of the plan (read-next.csv): the expected number of branches outside the tolerance after trimming, %.2f now, %.2f once all %d listed readings are taken.", j.Reads.Risk, j.Reads.RiskAfter, len(j.Reads.Readings)))
 	}
 	if len(t.Rows) == 0 {
 		t.Notes = []string{"No branch needs a reading to prove the plan; read any you like."}

@@ -1,0 +1,537 @@
+package balance
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"sort"
+
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// ReadKind is how a candidate reading is taken.
+type ReadKind int
+
+// Kinds of candidate readings.
+const (
+	// ByValveMeter: the branch's flow from its valve's differential at the
+	// test points and the valve's table (the differential comes with it).
+	ByValveMeter ReadKind = iota
+	// ByClampOn: the branch's flow by a clamp-on meter.
+	ByClampOn
+	// AtPump: the pump's differential and the circuit's total flow.
+	AtPump
+)
+
+// String names the kind as the readings sheet does.
+func (k ReadKind) String() string {
+	switch k {
+	case ByValveMeter:
+		return "valve-meter"
+	case ByClampOn:
+		return "clamp-on"
+	case AtPump:
+		return "pump"
+	}
+	return "read(?)"
+}
+
+// Defaults of ReadOptions. The sds are half the instrument table's
+// expanded uncertainties (site.Instruments: valve meter ±10 %, clamp-on
+// ±5 %, manometer ±2 %, at k = 2); the minutes are common practice, no
+// source: a valve meter is fitted to test points in a few minutes, a
+// clamp-on needs a straight run found, the pipe measured and lagging opened.
+const (
+	defaultMeterSD    = 0.05
+	defaultClampSD    = 0.025
+	defaultPumpDiffSD = 0.01
+	defaultMeterCost  = 5
+	defaultClampCost  = 15
+	defaultPumpCost   = 5
+	// maxRankBranches bounds the branches the ranking follows: the most
+	// uncertain ones and those that may be the index. The covariance of
+	// their flows is dense, so the work grows with the square of them.
+	maxRankBranches = 300
+	// maxNeedRows bounds the branches whose need may be the largest.
+	maxNeedRows = 30
+	// indexWeight is the share of the Monte Carlo draws in which a branch
+	// must need the most for it to be called a contender for the index.
+	indexWeight = 0.05
+	needDraws   = 2000
+)
+
+// ReadOptions tune RankReadings. A zero field means the default.
+type ReadOptions struct {
+	// Uncertainty is the calibration's spread; nil: nothing to rank.
+	Uncertainty *Uncertainty
+	// MeterSD, ClampSD and PumpDiffSD are the standard uncertainties of
+	// the ln of a flow read by valve meter, by clamp-on, and of a pump
+	// differential.
+	MeterSD, ClampSD, PumpDiffSD float64
+	// MeterCost, ClampCost and PumpCost are the minutes each takes.
+	MeterCost, ClampCost, PumpCost float64
+	// Max is the most readings listed; 0 lists all that lower the risk.
+	Max int
+}
+
+// Candidate is one reading worth taking after setting.
+type Candidate struct {
+	// Where is the branch ID, or "pump".
+	Where string
+	// Index is the model index of the branch (-1 for the pump).
+	Index int
+	How   ReadKind
+	// Expect is the value the reading should give if the plan is right:
+	// the branch's flow, m3/s (a valve meter's as its table reads it), or
+	// the pump's differential, Pa; Low and High its 95 % band.
+	Expect, Low, High float64
+	// Minutes the reading takes.
+	Minutes float64
+	// Gain is the risk it removes, taken after the readings above it:
+	// expected branches outside the tolerance after the trims, the
+	// pump's need counted as below.
+	Gain float64
+	// Settles says what the reading decides.
+	Settles string
+}
+
+// ReadPlan is the ranking of the readings to take after setting.
+type ReadPlan struct {
+	// Risk is the expected number of branches outside the tolerance after
+	// setting and trimming with what is known now (see RankReadings), and
+	// RiskAfter once every listed reading is taken.
+	Risk, RiskAfter float64
+	// NeedSD is the sd of the ln of the least differential the plant
+	// needs (the index circuit's), and Contenders the branches that may be
+	// the index (each the most needing in over 5 % of the draws), the
+	// plan's index first.
+	NeedSD     float64
+	Contenders []string
+	// Readings in the order to take them.
+	Readings []Candidate
+	// Note says why nothing is ranked ("" when ranked).
+	Note string
+}
+
+// RankReadings ranks the readings to take after setting by how much each
+// lowers the plan's risk, per minute it takes. The model is linearised at
+// the plan: every branch's ln flow, each valve meter's ln reading (the flow
+// over the valve's Kv scale), the ln total flow and pump differential, and
+// the ln of what each branch's chain needs at target are linear in the ln
+// multipliers, whose spread (Uncertainty, independent) gives the joint
+// covariance of them all. A reading is a noisy observation of one of them;
+// it updates the covariance by the Kalman (rank-one) formula, whatever
+// value it gives. The risk is the expected number of branches outside the
+// tolerance once each is trimmed to what the model then says: a branch
+// whose ln flow has sd s is outside with probability Φ(t_lo/s)+1-Φ(t_hi/s);
+// plus the pump's: the least differential (the largest chain need) is
+// linearised about the branches that may be the index, weighted by how
+// often each needs the most in draws from the joint spread, and a need
+// whose sd reaches twice the tolerance in ln flow (the square law) leaves
+// the contenders outside the band with that probability. The greedy
+// order takes, at each step, the reading that removes the most risk per
+// minute. Ranking is our own construction from the linearised Gaussian
+// update (the Kalman measurement update; the greedy choice is the usual one
+// for submodular variance reduction).
+func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, opt *ReadOptions) (*ReadPlan, error) {
+	var o ReadOptions
+	if opt != nil {
+		o = *opt
+	}
+	def := func(v *float64, d float64) {
+		if !(*v > 0) {
+			*v = d
+		}
+	}
+	def(&o.MeterSD, defaultMeterSD)
+	def(&o.ClampSD, defaultClampSD)
+	def(&o.PumpDiffSD, defaultPumpDiffSD)
+	def(&o.MeterCost, defaultMeterCost)
+	def(&o.ClampCost, defaultClampCost)
+	def(&o.PumpCost, defaultPumpCost)
+	rp := &ReadPlan{}
+	if o.Uncertainty == nil {
+		rp.Note = "no fit: the plan is from design, so every branch must be read after setting"
+		return rp, nil
+	}
+	if plan == nil || len(plan.Needs) != len(m.Branches) {
+		return nil, fmt.Errorf("rank readings: no plan for the model: %w", ErrInput)
+	}
+	sol, err := m.Solve(ctx, p, plan.State())
+	if err != nil {
+		return nil, fmt.Errorf("rank readings: %w: %w", err, ErrSolve)
+	}
+	n := len(m.Branches)
+	target := make([]float64, n)
+	for _, b := range plan.Branches {
+		if i, ok := m.Index(b.ID); ok && !b.Riser {
+			target[i] = b.Target
+		}
+	}
+	tlo, thi := math.Log1p(plan.ToleranceLow), math.Log1p(plan.ToleranceHigh)
+	pout := func(s float64) float64 {
+		if !(s > 0) {
+			return 0
+		}
+		return distuv.UnitNormal.CDF(tlo/s) + distuv.UnitNormal.Survival(thi/s)
+	}
+
+	// Every parameter's column of sensitivities.
+	type col struct {
+		par  uparam
+		dlnq []float64
+	}
+	var cols []col
+	if err := sensitivities(m, p, o.Uncertainty, sol, func(par uparam, dlnq []float64) error {
+		cols = append(cols, col{par, append([]float64(nil), dlnq...)})
+		return nil
+	}); err != nil {
+		return nil, err
+	}
+	if len(cols) == 0 {
+		rp.Note = "the fit leaves nothing uncertain: no reading would change the plan"
+		return rp, nil
+	}
+	sd0 := make([]float64, n)
+	for _, c := range cols {
+		for i, d := range c.dlnq {
+			sd0[i] += d * d * c.par.sigma * c.par.sigma
+		}
+	}
+	for i := range sd0 {
+		sd0[i] = math.Sqrt(sd0[i])
+	}
+
+	// The branches followed: the contenders for the index (largest chain
+	// needs) and the terminals most likely outside the band.
+	byNeed := make([]int, 0, n)
+	for i := range n {
+		if target[i] > 0 {
+			byNeed = append(byNeed, i)
+		}
+	}
+	byRisk := slices.Clone(byNeed)
+	sort.SliceStable(byNeed, func(a, b int) bool { return plan.Needs[byNeed[a]].Chain > plan.Needs[byNeed[b]].Chain })
+	sort.SliceStable(byRisk, func(a, b int) bool { return sd0[byRisk[a]] > sd0[byRisk[b]] })
+	need := byNeed[:min(len(byNeed), maxNeedRows)]
+	follow := slices.Clone(need)
+	for _, i := range byRisk {
+		if len(follow) >= maxRankBranches {
+			break
+		}
+		if !slices.Contains(need, i) {
+			follow = append(follow, i)
+		}
+	}
+	// Rows: flow and valve meter of each followed branch, total flow,
+	// pump differential, then the chain needs.
+	nf := len(follow)
+	rowFlow := func(k int) int { return k }
+	rowMeter := func(k int) int { return nf + k }
+	rowTotal, rowPump := 2*nf, 2*nf+1
+	rowNeed := func(k int) int { return 2*nf + 2 + k }
+	nr := 2*nf + 2 + len(need)
+	top := m.Top()
+	Q := sol.TotalFlow()
+	pumpCurve := m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil
+	var dlnPdlnQ float64
+	pd := sol.PumpDiff()
+	if pumpCurve && Q > 0 && pd > 0 {
+		h := 1e-3
+		d1 := -m.PumpHeadDrop(p, sol.State, Q*(1+h))
+		d0 := -m.PumpHeadDrop(p, sol.State, Q*(1-h))
+		dlnPdlnQ = (d1 - d0) / (2 * h) / pd
+	}
+	a := mat.NewDense(nr, len(cols), nil)
+	for j, c := range cols {
+		sg := c.par.sigma
+		for k, i := range follow {
+			a.Set(rowFlow(k), j, sg*c.dlnq[i])
+			v := c.dlnq[i]
+			if c.par.kind == KvParam && c.par.branch == i {
+				v-- // the meter reads through the valve's table
+			}
+			a.Set(rowMeter(k), j, sg*v)
+		}
+		var t float64
+		for _, i := range top {
+			t += sol.Flow(i) * c.dlnq[i]
+		}
+		if Q > 0 {
+			t /= Q
+		}
+		a.Set(rowTotal, j, sg*t)
+		if pumpCurve && pd > 0 {
+			v := dlnPdlnQ * t
+			if c.par.kind == PumpParam {
+				v += -m.PumpHeadDrop(p, sol.State, Q) / pd
+			}
+			a.Set(rowPump, j, sg*v)
+		}
+		for k, i := range need {
+			nd := plan.Needs[i]
+			if !(nd.Chain > 0) {
+				continue
+			}
+			var v float64
+			switch {
+			case c.par.kind == ResistanceParam && c.par.branch == i:
+				v = nd.Fixed
+			case c.par.kind == KvParam && c.par.branch == i:
+				v = -2 * nd.OpenValve
+			case c.par.kind == HeaderParam:
+				v = max(nd.Chain-nd.Fixed-nd.OpenValve, 0)
+			}
+			a.Set(rowNeed(k), j, sg*v/nd.Chain)
+		}
+	}
+	var kk mat.SymDense
+	kk.SymOuterK(1, a)
+	K := mat.DenseCopyOf(&kk)
+
+	// Which branches may be the index: draws of the chain needs.
+	w := make([]float64, len(need))
+	if len(need) > 0 {
+		var cn mat.SymDense
+		cn.SymOuterK(1, a.Slice(rowNeed(0), nr, 0, len(cols)))
+		lnc := make([]float64, len(need))
+		for k, i := range need {
+			lnc[k] = math.Log(max(plan.Needs[i].Chain, 1e-300))
+		}
+		rng := rand.New(rand.NewPCG(1, 2))
+		z := make([]float64, len(cols))
+		sub := a.Slice(rowNeed(0), nr, 0, len(cols))
+		x := make([]float64, len(need))
+		for range needDraws {
+			for j := range z {
+				z[j] = rng.NormFloat64()
+			}
+			xv := mat.NewVecDense(len(need), x)
+			xv.MulVec(sub, mat.NewVecDense(len(z), z))
+			best := 0
+			for k := range need {
+				if lnc[k]+x[k] > lnc[best]+x[best] {
+					best = k
+				}
+			}
+			w[best]++
+		}
+		for k := range w {
+			w[k] /= needDraws
+		}
+	}
+	var contenders []int
+	for k := range need {
+		if w[k] >= indexWeight {
+			contenders = append(contenders, k)
+		}
+	}
+	sort.SliceStable(contenders, func(x, y int) bool { return w[contenders[x]] > w[contenders[y]] })
+	for _, k := range contenders {
+		rp.Contenders = append(rp.Contenders, m.Branches[need[k]].ID)
+	}
+	nContend := float64(max(len(contenders), 1))
+	// needVar is the variance of the weighted (linearised) need.
+	needVar := func(get func(r, c int) float64) float64 {
+		var v float64
+		for x := range need {
+			for y := range need {
+				v += w[x] * w[y] * get(rowNeed(x), rowNeed(y))
+			}
+		}
+		return v
+	}
+	risk := func(varOf func(r int) float64, nv float64) float64 {
+		var r float64
+		for k := range follow {
+			r += pout(math.Sqrt(max(varOf(rowFlow(k)), 0)))
+		}
+		return r + nContend*pout(math.Sqrt(max(nv, 0))/2)
+	}
+	cur := func() float64 {
+		return risk(func(r int) float64 { return K.At(r, r) }, needVar(K.At))
+	}
+	rp.Risk = cur()
+	rp.NeedSD = math.Sqrt(max(needVar(K.At), 0))
+
+	type cand struct {
+		how  ReadKind
+		k    int   // followed branch (-1: pump)
+		rows []int // rows observed
+		r    []float64
+		cost float64
+		done bool
+	}
+	var cands []cand
+	for k, i := range follow {
+		if m.Branches[i].Valve != nil {
+			cands = append(cands, cand{how: ByValveMeter, k: k, rows: []int{rowMeter(k)}, r: []float64{o.MeterSD * o.MeterSD}, cost: o.MeterCost})
+		}
+		cands = append(cands, cand{how: ByClampOn, k: k, rows: []int{rowFlow(k)}, r: []float64{o.ClampSD * o.ClampSD}, cost: o.ClampCost})
+	}
+	pc := cand{how: AtPump, k: -1, rows: []int{rowTotal}, r: []float64{o.ClampSD * o.ClampSD}, cost: o.PumpCost}
+	if pumpCurve {
+		pc.rows, pc.r = append(pc.rows, rowPump), append(pc.r, o.PumpDiffSD*o.PumpDiffSD)
+	}
+	cands = append(cands, pc)
+	start := mat.DenseCopyOf(K)
+
+	// wK is the covariance of the linearised need with every row.
+	wK := make([]float64, nr)
+	folded := func() {
+		for x := range nr {
+			var v float64
+			for y := range need {
+				v += w[y] * K.At(x, rowNeed(y))
+			}
+			wK[x] = v
+		}
+	}
+	folded()
+	// after returns the risk once c's rows are observed: the flows'
+	// variances and the need's fall by the rank-one updates, one row at a
+	// time, each row's covariances with the later rows updated as it goes.
+	diag := make([]float64, nf)
+	f := make([][]float64, 2)
+	for q := range f {
+		f[q] = make([]float64, nf)
+	}
+	after := func(c *cand) float64 {
+		for k := range nf {
+			diag[k] = K.At(rowFlow(k), rowFlow(k))
+		}
+		nv := needVar(K.At)
+		nq := len(c.rows)
+		g := make([]float64, nq)
+		h := make([][]float64, nq)
+		for q, o := range c.rows {
+			for k := range nf {
+				f[q][k] = K.At(rowFlow(k), o)
+			}
+			g[q] = wK[o]
+			h[q] = make([]float64, nq)
+			for q2, o2 := range c.rows {
+				h[q][q2] = K.At(o, o2)
+			}
+		}
+		for q := range nq {
+			d := h[q][q] + c.r[q]
+			if !(d > 0) {
+				continue
+			}
+			for k := range nf {
+				diag[k] -= f[q][k] * f[q][k] / d
+			}
+			nv -= g[q] * g[q] / d
+			for q2 := q + 1; q2 < nq; q2++ {
+				e := h[q][q2] / d
+				for k := range nf {
+					f[q2][k] -= f[q][k] * e
+				}
+				g[q2] -= g[q] * e
+				for q3 := q + 1; q3 < nq; q3++ {
+					h[q2][q3] -= h[q][q2] * h[q][q3] / d
+				}
+			}
+		}
+		return risk(func(r int) float64 { return diag[r] }, nv)
+	}
+	observe := func(c *cand) {
+		for q, row := range c.rows {
+			d := K.At(row, row) + c.r[q]
+			if !(d > 0) {
+				continue
+			}
+			col := make([]float64, nr)
+			for x := range nr {
+				col[x] = K.At(x, row)
+			}
+			for x := range nr {
+				for y := range nr {
+					K.Set(x, y, K.At(x, y)-col[x]*col[y]/d)
+				}
+			}
+		}
+		folded()
+	}
+	now := rp.Risk
+	for o.Max == 0 || len(rp.Readings) < o.Max {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		best, bestScore, bestRisk := -1, 0.0, now
+		for ci := range cands {
+			c := &cands[ci]
+			if c.done {
+				continue
+			}
+			r := after(c)
+			if sc := (now - r) / c.cost; sc > bestScore {
+				best, bestScore, bestRisk = ci, sc, r
+			}
+		}
+		if best < 0 || now-bestRisk < 1e-3 {
+			break
+		}
+		c := &cands[best]
+		c.done = true
+		rp.Readings = append(rp.Readings, describe(m, sol, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk, c.cost, pout, pd))
+		observe(c)
+		now = bestRisk
+	}
+	rp.RiskAfter = now
+	return rp, nil
+}
+
+// describe fills a Candidate: what to expect, its band from the spread
+// before any reading (start), and what it settles.
+func describe(m *plant.Model, sol *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
+	c := Candidate{How: how, Index: -1, Where: "pump", Gain: gain, Minutes: cost}
+	if how == AtPump {
+		c.Expect = pd
+		sd := math.Sqrt(start.At(rows[len(rows)-1], rows[len(rows)-1]))
+		if len(rows) < 2 {
+			c.Expect = sol.TotalFlow()
+		}
+		c.Low, c.High = c.Expect*math.Exp(-2*sd), c.Expect*math.Exp(2*sd)
+		c.Settles = "the pump's head and the circuit's total flow: narrows every branch's band through the pump and headers"
+		return c
+	}
+	i := follow[k]
+	b := &m.Branches[i]
+	c.Where, c.Index = b.ID, i
+	q := sol.Flow(i)
+	if how == ByValveMeter && sol.Params.KvScale[i] > 0 {
+		q /= sol.Params.KvScale[i] // the table's reading of the true flow
+	}
+	sd := math.Sqrt(start.At(rows[0], rows[0]))
+	c.Expect, c.Low, c.High = q, q*math.Exp(-2*sd), q*math.Exp(2*sd)
+	var why []string
+	if kn := slices.Index(need, i); kn >= 0 && slices.Contains(contenders, kn) && len(contenders) > 1 {
+		if b.ID == plan.Index {
+			why = append(why, fmt.Sprintf("the index circuit, needing the most in %.0f %% of the model's draws: its reading decides what the pump must give", 100*w[kn]))
+		} else {
+			why = append(why, fmt.Sprintf("may be the index circuit instead of %s (needs the most in %.0f %% of the model's draws): its reading decides which, and what the pump must give", plan.Index, 100*w[kn]))
+		}
+	} else if b.ID == plan.Index {
+		why = append(why, "the index circuit: proves the pump gives enough")
+	}
+	sdf := math.Sqrt(start.At(k, k))
+	if p := pout(sdf); p > 0.01 {
+		why = append(why, fmt.Sprintf("its flow may be outside the tolerance (%.0f %% chance; band %.0f to %.0f %% of target)", 100*p, 100*math.Exp(-2*sdf)*sol.Flow(i)/b.Target, 100*math.Exp(2*sdf)*sol.Flow(i)/b.Target))
+	}
+	if len(why) == 0 {
+		why = append(why, "narrows the bands of the branches it shares the headers and pump with")
+	}
+	c.Settles = why[0]
+	if len(why) > 1 {
+		c.Settles += "; " + why[1]
+	}
+	return c
+}

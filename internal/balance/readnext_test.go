@@ -1,0 +1,106 @@
+package balance
+
+import (
+	"context"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"strings"
+	"testing"
+
+	"flowset/internal/site"
+)
+
+// TestRankIndexFirst: of two branches whose flows after setting are equally
+// uncertain, the one whose reading decides the index circuit (its chain may
+// need more than the index's) is ranked before the one far from being the
+// index, whose reading cannot change the pump; a branch the fit knows
+// exactly is not listed at all.
+func TestRankIndexFirst(t *testing.T) {
+	ctx := context.Background()
+	for _, tc := range []struct {
+		name   string
+		seed   uint64
+		header site.Arrangement
+	}{
+		{"direct return", 13, site.DirectReturn},
+		{"reverse return", 17, site.ReverseReturn},
+		{"another direct-return plant", 29, site.DirectReturn},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(tc.seed, 1))
+			m := withPump(t, randomSite(rng, genOpts{n: 12, header: tc.header}))
+			n := len(m.Branches)
+			p := m.Design()
+			base := mustCompute(t, m, p, &Options{Rounding: Smart})
+			// The runner-up to the index (largest chain need but the
+			// index's) and the branch needing the least.
+			order := make([]int, n)
+			for i := range order {
+				order[i] = i
+			}
+			slices.SortFunc(order, func(a, b int) int {
+				return -cmpF(base.Needs[a].Chain, base.Needs[b].Chain)
+			})
+			idx, _ := m.Index(base.Index)
+			near, far := order[0], order[n-1]
+			if near == idx {
+				near = order[1]
+			}
+			// Put the runner-up within reach of the index: its
+			// uncertainty spans the gap between their needs.
+			gap := math.Log(base.Needs[idx].Chain / base.Needs[near].Chain)
+			sNear := max(0.15, gap/(base.Needs[near].Fixed/base.Needs[near].Chain))
+			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
+			for i := range u.LnResistance {
+				u.LnResistance[i] = 0.005
+			}
+			u.LnResistance[near], u.LnResistance[far] = sNear, sNear
+			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
+			sol, err := m.Solve(ctx, p, plan.State())
+			if err != nil {
+				t.Fatal(err)
+			}
+			// Equal flow spread: scale the far branch's sd so that its
+			// flow band matches the runner-up's.
+			sd, err := flowSD(m, p, u, sol)
+			if err != nil {
+				t.Fatal(err)
+			}
+			u.LnResistance[far] *= sd[near] / sd[far]
+			u.LnResistance[idx] = 0 // the index known exactly
+			rp, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u})
+			if err != nil {
+				t.Fatal(err)
+			}
+			rank := func(i int) int {
+				return slices.IndexFunc(rp.Readings, func(c Candidate) bool { return c.Index == i })
+			}
+			rn, rf := rank(near), rank(far)
+			var lines []string
+			for _, c := range rp.Readings {
+				lines = append(lines, c.Where+" "+c.How.String()+": "+c.Settles)
+			}
+			t.Log(strings.Join(lines, "\n"))
+			if rn < 0 || rf >= 0 && rf < rn {
+				t.Errorf("runner-up %s ranked %d, far branch %s ranked %d; want the runner-up first:\n%s", m.Branches[near].ID, rn, m.Branches[far].ID, rf, strings.Join(lines, "\n"))
+			}
+			if rn >= 0 && !strings.Contains(rp.Readings[rn].Settles, "index") {
+				t.Errorf("runner-up's reading settles %q, want the index named", rp.Readings[rn].Settles)
+			}
+			if !(rp.RiskAfter < rp.Risk) {
+				t.Errorf("risk %g after the readings, %g before", rp.RiskAfter, rp.Risk)
+			}
+		})
+	}
+}
+
+func cmpF(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}

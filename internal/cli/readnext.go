@@ -1,0 +1,102 @@
+package cli
+
+import (
+	"fmt"
+	"math"
+
+	"flowset/internal/balance"
+)
+
+// rankOf returns, by branch ID (or "pump"), its place (from 1) among the
+// places to read in the ranking's order, and its first reading; nil
+// without a ranking.
+func (j *job) rankOf() map[string]rankedRead {
+	if j.Reads == nil {
+		return nil
+	}
+	out := map[string]rankedRead{}
+	for _, c := range j.Reads.Readings {
+		if _, ok := out[c.Where]; !ok {
+			out[c.Where] = rankedRead{len(out) + 1, c}
+		}
+	}
+	return out
+}
+
+type rankedRead struct {
+	Rank int
+	balance.Candidate
+}
+
+// readNextRows is read-next.csv: the readings to take after setting, in
+// order, with what each should give and what it settles.
+func (j *job) readNextRows(u display) ([]string, [][]string) {
+	h := []string{"Order", "Where", "Read by", "Expect", "95 % band", "Unit", "Minutes", "Risk removed (branches)", "What it settles"}
+	var rows [][]string
+	if j.Reads == nil {
+		return h, rows
+	}
+	for k, c := range j.Reads.Readings {
+		var exp, lo, hi, unit string
+		switch c.How {
+		case balance.AtPump:
+			exp, lo, hi, unit = u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
+		default:
+			exp, lo, hi, unit = u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
+		}
+		rows = append(rows, []string{fmt.Sprint(k + 1), c.Where, readBy(c.How), exp, lo + " to " + hi, unit, fmt.Sprintf("%.0f", c.Minutes), fmt.Sprintf("%.3f", c.Gain), c.Settles})
+	}
+	return h, rows
+}
+
+// readBy says how a reading is taken, in a technician's words.
+func readBy(k balance.ReadKind) string {
+	switch k {
+	case balance.ByValveMeter:
+		return "valve meter at the test points (flow and valve differential)"
+	case balance.ByClampOn:
+		return "clamp-on flow meter"
+	case balance.AtPump:
+		return "pump differential and total flow"
+	}
+	return k.String()
+}
+
+type readNextJSON struct {
+	Risk       num              `json:"risk_branches_out"`
+	RiskAfter  num              `json:"risk_after_listed"`
+	NeedSD     num              `json:"need_ln_sd"`
+	Contenders []string         `json:"index_contenders"`
+	Note       string           `json:"note,omitempty"`
+	Readings   []readingOutJSON `json:"readings"`
+}
+
+type readingOutJSON struct {
+	Where   string `json:"where"`
+	How     string `json:"how"`
+	Expect  num    `json:"expect"`
+	Low     num    `json:"band_low"`
+	High    num    `json:"band_high"`
+	Unit    string `json:"unit"`
+	Minutes num    `json:"minutes"`
+	Gain    num    `json:"risk_removed"`
+	Settles string `json:"settles"`
+}
+
+func (j *job) readNextOut() readNextJSON {
+	out := readNextJSON{Risk: num(math.NaN()), RiskAfter: num(math.NaN()), NeedSD: num(math.NaN()), Readings: []readingOutJSON{}}
+	if j.Reads == nil {
+		out.Note = "not ranked: no fit (the plan is from design) or a site above the ranking's size"
+		return out
+	}
+	r := j.Reads
+	out.Risk, out.RiskAfter, out.NeedSD, out.Contenders, out.Note = num(r.Risk), num(r.RiskAfter), num(r.NeedSD), r.Contenders, r.Note
+	for _, c := range r.Readings {
+		unit := "m3/s"
+		if c.How == balance.AtPump {
+			unit = "Pa"
+		}
+		out.Readings = append(out.Readings, readingOutJSON{Where: c.Where, How: c.How.String(), Expect: num(c.Expect), Low: num(c.Low), High: num(c.High), Unit: unit, Minutes: num(c.Minutes), Gain: num(c.Gain), Settles: c.Settles})
+	}
+	return out
+}
