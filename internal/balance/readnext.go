@@ -76,7 +76,8 @@ type ReadOptions struct {
 	MeterSD, ClampSD, PumpDiffSD float64
 	// MeterCost, ClampCost and PumpCost are the minutes each takes.
 	MeterCost, ClampCost, PumpCost float64
-	// Max is the most readings listed; 0 lists all that lower the risk.
+	// Max is the most readings listed; 0 lists all that lower the risk at
+	// all (the last may lower it very little: see Candidate.Gain).
 	Max int
 }
 
@@ -476,7 +477,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 				best, bestScore, bestRisk = ci, sc, r
 			}
 		}
-		if best < 0 || now-bestRisk < 1e-3 {
+		if best < 0 || !(now-bestRisk > 1e-9) {
 			break
 		}
 		c := &cands[best]

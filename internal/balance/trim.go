@@ -56,6 +56,12 @@ type TrimOptions struct {
 	// trimmed (one the fit found not following its handwheel: a trim
 	// would not move it).
 	Hold []bool
+	// Read marks, by model index, the branches read in the as-left state.
+	// The pump is corrected only on a reading: when a branch read after
+	// setting whose valve is fully open (the index, or one the pump
+	// cannot serve) is outside the inner band. nil: the pump is corrected
+	// whenever the plan's differs.
+	Read []bool
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -167,7 +173,10 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		return nil, err
 	}
 
-	// The pump: the re-computed plan's when it differs enough to matter.
+	// The pump: the re-computed plan's when it differs enough to matter
+	// and, with Read given, a branch read after setting with its valve
+	// fully open is outside the inner band. A pump moved on the model
+	// alone moves every branch the readings did not see.
 	st := plant.State{Label: "trimmed", Settings: append([]float64(nil), left.Settings...), Speed: left.Speed, Differential: left.Differential}
 	tp.PumpLeft, tp.PumpNew = left.Differential, left.Differential
 	if tp.BySpeed {
@@ -177,7 +186,17 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	if tp.BySpeed {
 		want = plan.Speed
 	}
-	if want > 0 && math.Abs(want/tp.PumpLeft-1) > 0.005 && m.Site.Boundary.Kind != site.MeasuredDiff {
+	pumpRead := o.Read == nil
+	for i := range o.Read {
+		b := &m.Branches[i]
+		if !o.Read[i] || b.Valve == nil || b.Riser() || !(target[i] > 0) {
+			continue
+		}
+		if _, hi := b.Valve.Range(); left.Settings[i] >= hi-1e-9 && !in(solL.Flow(i)/target[i], o.Inner) {
+			pumpRead = true
+		}
+	}
+	if pumpRead && want > 0 && math.Abs(want/tp.PumpLeft-1) > 0.005 && m.Site.Boundary.Kind != site.MeasuredDiff {
 		tp.PumpNew, tp.PumpChanged = want, true
 		if tp.BySpeed {
 			st.Speed = want

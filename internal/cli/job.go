@@ -56,8 +56,9 @@ type job struct {
 	Reads *balance.ReadPlan
 	// Trim is the round after setting (trim only) and readLeft the
 	// branches read in its as-left state.
-	Trim     *balance.TrimPlan
-	readLeft map[string]bool
+	Trim       *balance.TrimPlan
+	readLeft   map[string]bool
+	trimBeyond float64
 }
 
 // progress reports long steps on stderr when it is a terminal.

@@ -16,12 +16,21 @@ func (j *job) rankOf() map[string]rankedRead {
 	}
 	out := map[string]rankedRead{}
 	for _, c := range j.Reads.Readings {
+		if c.Gain < minGain {
+			// Listed in read-next.csv, but not worth a place of its own
+			// in the prove-it list.
+			break
+		}
 		if _, ok := out[c.Where]; !ok {
 			out[c.Where] = rankedRead{len(out) + 1, c}
 		}
 	}
 	return out
 }
+
+// minGain is the least risk a reading must remove (a thousandth of a branch
+// expected outside the tolerance) to be ordered in the prove-it list.
+const minGain = 1e-3
 
 type rankedRead struct {
 	Rank int

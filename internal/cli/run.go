@@ -254,6 +254,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return err
 	}
 	if left >= 0 {
+		j.trimBeyond = o.trim.Beyond
 		pr.step("trimming after setting (state %q)", l.Model.States[left].Label)
 		if err := j.trim(ctx, left); err != nil {
 			return err

@@ -25,6 +25,9 @@ import (
 type trimOptions struct {
 	Plan  string // plan.json written by plan or run
 	State string // the as-left state; "" for the last one
+	// Beyond is the fraction of the tolerance band beyond which a branch
+	// is trimmed.
+	Beyond float64
 }
 
 func newTrimCmd(ios *IO) *cobra.Command {
@@ -49,6 +52,9 @@ sheet of the round) and trim.json.`,
 			if o.trim.Plan == "" {
 				return usagef("--plan is required: name the plan.json the valves were set to")
 			}
+			if b := o.trim.Beyond; !(b > 0 && b <= 1) {
+				return usagef("--beyond %g: want a fraction of the tolerance band above 0 and at most 1", b)
+			}
 			if err := o.validate(false); err != nil {
 				return err
 			}
@@ -57,6 +63,7 @@ sheet of the round) and trim.json.`,
 	}
 	addJobFlags(cmd, o, true)
 	cmd.Flags().StringVar(&o.trim.Plan, "plan", "", "plan.json of the plan the valves were set to (written by plan or run)")
+	cmd.Flags().Float64Var(&o.trim.Beyond, "beyond", 0.5, "trim the branches predicted beyond this fraction of the tolerance band (0.5: outside ±5 % of target for ±10 %)")
 	cmd.Flags().StringVar(&o.trim.State, "state", "", "the survey state read after setting (default: the last state of readings.csv)")
 	return cmd
 }
@@ -158,7 +165,7 @@ func leftState(l *loaded, o *trimOptions) (int, error) {
 // trim works out the trims of job j for the as-left state k.
 func (j *job) trim(ctx context.Context, k int) error {
 	m := j.L.Model
-	opt := &balance.TrimOptions{}
+	opt := &balance.TrimOptions{Inner: j.trimBeyond}
 	if j.Cal != nil {
 		opt.Uncertainty = uncertainty(j.Cal)
 		opt.Hold = make([]bool, len(m.Branches))
@@ -166,15 +173,20 @@ func (j *job) trim(ctx context.Context, k int) error {
 			opt.Hold[i] = b.Valve.Hypothesis == calibrate.HoldsOneKv
 		}
 	}
+	j.readLeft = map[string]bool{}
+	opt.Read = make([]bool, len(m.Branches))
+	for _, ri := range m.States[k].Readings {
+		id := j.L.Site.Readings[ri].Where
+		j.readLeft[id] = true
+		if i, ok := m.Index(id); ok {
+			opt.Read[i] = true
+		}
+	}
 	tp, err := balance.Trim(ctx, m, j.Params, j.Plan, m.States[k], opt)
 	if err != nil {
 		return &dataError{fmt.Errorf("trim: %w", err)}
 	}
 	j.Trim = tp
-	j.readLeft = map[string]bool{}
-	for _, ri := range m.States[k].Readings {
-		j.readLeft[j.L.Site.Readings[ri].Where] = true
-	}
 	return nil
 }
 

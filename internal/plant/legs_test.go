@@ -181,3 +181,46 @@ func TestStateSettings(t *testing.T) {
 		})
 	}
 }
+
+// TestSetUnrecorded: a state read after setting takes the plan's settings
+// for the valves none of its readings records, keeps those recorded, and
+// takes the plan's pump unless the states sheet gives the state its own.
+func TestSetUnrecorded(t *testing.T) {
+	nan := math.NaN()
+	for _, tc := range []struct {
+		name      string
+		states    []site.StateSetting
+		wantSpeed float64
+	}{
+		{name: "pump from the plan", wantSpeed: 0.9},
+		{name: "pump from the states sheet", states: []site.StateSetting{{Label: "after", Speed: 0.85, SetPoint: nan}}, wantSpeed: 0.85},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := smallSite()
+			s.Readings = append(s.Readings, site.Reading{State: "after", Where: "a", What: site.Flow, Value: 0.5e-3, Setting: 1.5, Sigma: 0.02e-3})
+			s.States = tc.states
+			m, err := New(s)
+			if err != nil {
+				t.Fatal(err)
+			}
+			n, err := m.SetUnrecorded("after", []float64{2.5, 3.5, nan}, 0.9, nan)
+			if err != nil {
+				t.Fatal(err)
+			}
+			st := m.States[1]
+			// a recorded (1.5), b from the plan (3.5), c as found (NaN: no setting given).
+			if n != 1 || st.Settings[0] != 1.5 || st.Settings[1] != 3.5 || st.Speed != tc.wantSpeed {
+				t.Errorf("gave %d; settings %v, speed %g; want 1, [1.5 3.5 ...], %g", n, st.Settings, st.Speed, tc.wantSpeed)
+			}
+			if m.States[0].Settings[1] != 3 {
+				t.Errorf("the as-found state changed: %v", m.States[0].Settings)
+			}
+			if _, err := m.SetUnrecorded("later", []float64{1, 1, 1}, 0, 0); err == nil {
+				t.Error("an unknown state was accepted")
+			}
+			if _, err := m.SetUnrecorded("after", []float64{1}, 0, 0); err == nil {
+				t.Error("settings of the wrong length were accepted")
+			}
+		})
+	}
+}
