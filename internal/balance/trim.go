@@ -56,12 +56,6 @@ type TrimOptions struct {
 	// trimmed (one the fit found not following its handwheel: a trim
 	// would not move it).
 	Hold []bool
-	// Read marks, by model index, the branches read in the as-left state.
-	// The pump is corrected only on a reading: when a branch read after
-	// setting whose valve is fully open (the index, or one the pump
-	// cannot serve) is outside the inner band. nil: the pump is corrected
-	// whenever the plan's differs.
-	Read []bool
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -124,12 +118,14 @@ func (t *TrimPlan) State() plant.State {
 // Trim works out the trims after setting. m and p are the model fitted to
 // every survey state, the as-left one included; left is the as-left state
 // (its settings and pump as set); plan is the plan re-computed on the same
-// fit, whose targets, tolerance and pump it takes. Each branch's flow as left
-// is predicted with its band and judged against the tolerance. The pump is
-// corrected to the re-computed plan's when they differ by over half a per
-// cent. Then, over a few passes of the whole network, every branch outside
-// the inner part of the band (Inner of it) gets the setting that gives its
-// target at the differential it sees: its valve drops that differential less
+// fit, whose targets and tolerance it takes. Each branch's flow as left is
+// predicted with its band and judged against the tolerance. The pump is
+// corrected, with the valves as left, to the value that brings the branches
+// nearest their targets (centre) when that differs by over half a per cent.
+// Then, over a few passes of the whole network, every branch whose 95 %
+// band (its spread as left about the pass's prediction) lies wholly outside
+// the inner part of the tolerance (Inner of it) gets the setting that gives
+// its target at the differential it sees: its valve drops that differential less
 // its fixed parts' drop at target, rounded to the handwheel mark whose flow
 // (square law) is nearest the target. Risers are not trimmed: their
 // sub-branches are. Branches held (TrimOptions.Hold) and those whose valve
@@ -173,35 +169,26 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		return nil, err
 	}
 
-	// The pump: the re-computed plan's when it differs enough to matter
-	// and, with Read given, a branch read after setting with its valve
-	// fully open is outside the inner band. A pump moved on the model
-	// alone moves every branch the readings did not see.
+	// The pump: with the valves as left, the speed or differential that
+	// brings the branches nearest their targets (see centre), when it
+	// differs by over half a per cent.
 	st := plant.State{Label: "trimmed", Settings: append([]float64(nil), left.Settings...), Speed: left.Speed, Differential: left.Differential}
 	tp.PumpLeft, tp.PumpNew = left.Differential, left.Differential
 	if tp.BySpeed {
 		tp.PumpLeft, tp.PumpNew = left.Speed, left.Speed
 	}
-	want := plan.Differential
-	if tp.BySpeed {
-		want = plan.Speed
-	}
-	pumpRead := o.Read == nil
-	for i := range o.Read {
-		b := &m.Branches[i]
-		if !o.Read[i] || b.Valve == nil || b.Riser() || !(target[i] > 0) {
-			continue
+	if m.Site.Boundary.Kind != site.MeasuredDiff {
+		x, err := centre(ctx, m, p, left, target, tp.BySpeed)
+		if err != nil {
+			return nil, err
 		}
-		if _, hi := b.Valve.Range(); left.Settings[i] >= hi-1e-9 && !in(solL.Flow(i)/target[i], o.Inner) {
-			pumpRead = true
-		}
-	}
-	if pumpRead && want > 0 && math.Abs(want/tp.PumpLeft-1) > 0.005 && m.Site.Boundary.Kind != site.MeasuredDiff {
-		tp.PumpNew, tp.PumpChanged = want, true
-		if tp.BySpeed {
-			st.Speed = want
-		} else {
-			st.Differential = want
+		if math.Abs(x/tp.PumpLeft-1) > 0.005 {
+			tp.PumpNew, tp.PumpChanged = x, true
+			if tp.BySpeed {
+				st.Speed = x
+			} else {
+				st.Differential = x
+			}
 		}
 	}
 
@@ -226,7 +213,13 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			if b.Valve == nil || b.Riser() || !(target[i] > 0) {
 				continue
 			}
-			if in(sol.Flow(i)/target[i], o.Inner) {
+			// Trimmed only when its band as left lies wholly beyond the
+			// inner band: a branch the readings cannot place there is
+			// read again first, not turned on a model's guess (seen on an
+			// independent plant: a flow meter reading 20 % low after
+			// setting would have had a branch at 110 % opened to 131 %).
+			r := sol.Flow(i) / target[i]
+			if r*math.Exp(k*sdL[i]) >= 1+o.Inner*tp.ToleranceLow && r*math.Exp(-k*sdL[i]) <= 1+o.Inner*tp.ToleranceHigh {
 				continue
 			}
 			if i < len(o.Hold) && o.Hold[i] {
@@ -357,4 +350,86 @@ func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q flo
 		return up, nil
 	}
 	return down, nil
+}
+
+// centre returns the pump speed (bySpeed) or source differential that, with
+// the valves as left, brings the branches nearest their targets: least
+// squares in ln(q/target) over the terminals, by golden-section search
+// between 0.85 and 1.15 times the value as left (a speed at most the
+// pump's maximum). The valves keep their settings, so a pump moved this
+// way leaves the trims only the branches the pump cannot centre; the
+// re-computed plan's own pump is for its own settings, and moving to it
+// with the valves as left moves every branch.
+func centre(ctx context.Context, m *plant.Model, p plant.Params, left plant.State, target []float64, bySpeed bool) (float64, error) {
+	x0 := left.Differential
+	if bySpeed {
+		x0 = left.Speed
+	}
+	if !(x0 > 0) {
+		return x0, nil
+	}
+	lo, hi := 0.85*x0, 1.15*x0
+	if bySpeed {
+		hi = min(hi, m.MaxSpeed())
+	}
+	if !(hi > lo) {
+		return x0, nil
+	}
+	st := plant.State{Label: "centre", Settings: left.Settings}
+	cost := func(x float64) (float64, error) {
+		st.Speed, st.Differential = left.Speed, left.Differential
+		if bySpeed {
+			st.Speed = x
+		} else {
+			st.Differential = x
+		}
+		sol, err := m.Solve(ctx, p, st)
+		if err != nil {
+			return 0, fmt.Errorf("trim: centring the pump: %w: %w", err, ErrSolve)
+		}
+		var c float64
+		for i := range target {
+			if target[i] > 0 && !m.Branches[i].Riser() {
+				d := math.Log(sol.Flow(i) / target[i])
+				c += d * d
+			}
+		}
+		return c, nil
+	}
+	const g = 0.6180339887498949 // golden section
+	a, b := lo, hi
+	c, d := b-g*(b-a), a+g*(b-a)
+	fc, err := cost(c)
+	if err != nil {
+		return 0, err
+	}
+	fd, err := cost(d)
+	if err != nil {
+		return 0, err
+	}
+	for b-a > 1e-4*x0 {
+		if fc < fd {
+			b, d, fd = d, c, fc
+			c = b - g*(b-a)
+			if fc, err = cost(c); err != nil {
+				return 0, err
+			}
+		} else {
+			a, c, fc = c, d, fd
+			d = a + g*(b-a)
+			if fd, err = cost(d); err != nil {
+				return 0, err
+			}
+		}
+	}
+	x := (a + b) / 2
+	// Keep the value as left unless the centred one is clearly better.
+	f0, err := cost(x0)
+	if err != nil {
+		return 0, err
+	}
+	if fx, err := cost(x); err != nil || !(fx < f0) {
+		return x0, err
+	}
+	return x, nil
 }
