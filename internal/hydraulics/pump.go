@@ -358,6 +358,11 @@ func TrimDiameterRatio(c PumpCurve, q, h float64) (float64, error) {
 	return d, nil
 }
 
+// ControllerDroop is the relative rise of the flow a DiffController
+// passes when it throttles a drop equal to its set point (see
+// DiffController; a numerical choice, no source).
+const ControllerDroop = 1e-4
+
 // ControlDroop is the fall of a ControlledPump's held differential across
 // its curve's flow range, as a fraction of the set point: 0.1 %, far below
 // what a differential gauge resolves (±1 % of reading at best), but a

@@ -56,6 +56,14 @@ type Branch struct {
 	// Sub, when set, makes the branch a riser feeding its own ladder, which
 	// hangs between the riser top and this branch's return take-off.
 	Sub *Ladder
+	// Control, with Sub, is a differential controller's valve in the
+	// riser's return (hydraulics.DiffController): the sub-ladder then hangs
+	// between the riser top and the node "<ID>.controlled", and the link
+	// "<ID>.controller" joins that node to the return take-off. The span
+	// the controller holds is the riser's supply take-off to the
+	// controlled node: the riser's own parts (its partner valve) and the
+	// sub-ladder. Nil: no controller.
+	Control hydraulics.Element
 }
 
 // Ladder is a set of branches taking off a pair of headers, in take-off
@@ -105,6 +113,22 @@ type Built struct {
 	PumpLink               int   // -1 without a pump
 	MainLink               int   // -1 without a main
 	Headers                []int // header segment links
+	// Controller maps the ID of a riser with a differential controller to
+	// the controller's link; the link's from node closes the span the
+	// controller holds (see Branch.Control). Nil when there is none.
+	Controller map[string]int
+}
+
+// ControlledDiff returns the differential across the span riser id's
+// controller holds in solution sol: from the riser's supply take-off to the
+// controller's inlet, Pa. ok is false when the riser has no controller.
+func (b *Built) ControlledDiff(id string, sol *Solution) (dp float64, ok bool) {
+	l, ok := b.Controller[id]
+	if !ok {
+		return 0, false
+	}
+	from, _ := b.Net.LinkEnds(l)
+	return sol.Pressure[b.SupplyNode[id]] - sol.Pressure[from], true
 }
 
 // Node and link IDs made by Build.
@@ -325,6 +349,9 @@ func (b *builder) branch(br Branch, s, r int) error {
 	b.out.SupplyNode[br.ID] = s
 	b.out.ReturnNode[br.ID] = r
 	if br.Sub == nil {
+		if br.Control != nil {
+			return fmt.Errorf("build: branch %q has a differential controller but no sub-ladder to hold: %w", br.ID, ErrInput)
+		}
 		if len(br.Elements) == 0 {
 			return fmt.Errorf("build: branch %q has no elements and no sub-ladder: %w", br.ID, ErrInput)
 		}
@@ -335,6 +362,15 @@ func (b *builder) branch(br Branch, s, r int) error {
 	if len(br.Elements) > 0 {
 		top = b.net.addNode(br.ID + ".riser")
 		b.out.Branch[br.ID] = b.net.addLink(br.ID, s, top, b.elems(br.Elements))
+	}
+	if br.Control != nil {
+		// The controller sits in the riser's return, after the sub-ladder.
+		in := b.net.addNode(br.ID + ".controlled")
+		if b.out.Controller == nil {
+			b.out.Controller = map[string]int{}
+		}
+		b.out.Controller[br.ID] = b.net.addLink(br.ID+".controller", in, r, []hydraulics.Element{br.Control})
+		r = in
 	}
 	return b.ladder(br.Sub, top, r)
 }
