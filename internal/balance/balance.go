@@ -289,6 +289,11 @@ type Plan struct {
 	Settings     []float64
 	Speed        float64
 	Differential float64
+	// SetPoints are the differential controllers' new set points by model
+	// branch index (NaN without one), nil when the site has none; the
+	// plan of each is in Controllers, in walk order.
+	SetPoints   []float64
+	Controllers []ControllerPlan
 	// Banded reports whether the uncertainty bands come from an
 	// Uncertainty; without one they collapse onto the prediction.
 	Banded bool
@@ -389,6 +394,27 @@ type BranchPlan struct {
 	Notes     []string
 }
 
+// ControllerPlan is the plan for one riser's differential controller. The
+// set point is the least that serves the index branch of its span with the
+// span's partner valve fully open, so the settings inside the span depend
+// on nothing outside it; the source then only has to give every
+// controller its set point plus its valve's wide-open drop.
+type ControllerPlan struct {
+	ID string
+	// Current is the as-found set point, SetPoint the new one and Least
+	// what the span needs at its targets, Pa; Min and Max the
+	// controller's range (0 and +Inf when not given).
+	Current, SetPoint, Least, Min, Max float64
+	// OpenDrop is the controller valve's wide-open drop at the riser's
+	// target flow, Pa; Throttle the drop it takes above that at the plan.
+	OpenDrop, Throttle float64
+	// Span is the predicted differential across the span (what its sensor
+	// reads) and Holding whether the controller throttles at the plan.
+	Span    float64
+	Holding bool
+	Notes   []string
+}
+
 // Shortfall is a branch the plan cannot bring into its tolerance band.
 type Shortfall struct {
 	ID        string
@@ -473,7 +499,8 @@ type Remedy struct {
 
 // State returns the plant state of the plan: its settings and boundary.
 func (p *Plan) State() plant.State {
-	return plant.State{Label: "plan", Settings: append([]float64(nil), p.Settings...), Speed: p.Speed, Differential: p.Differential}
+	return plant.State{Label: "plan", Settings: append([]float64(nil), p.Settings...), Speed: p.Speed, Differential: p.Differential,
+		SetPoints: append([]float64(nil), p.SetPoints...)}
 }
 
 // InTolerance returns how many branches the plan predicts inside the band.

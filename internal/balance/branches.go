@@ -199,3 +199,40 @@ func (pl *planner) shortfalls() {
 		pl.plan.Warnings = append(pl.plan.Warnings, w)
 	}
 }
+
+// controllers fills the plan of each differential controller from the
+// exact plan and the final solution.
+func (pl *planner) controllers(sol *plant.Solved) {
+	m, ex := pl.m, pl.ex
+	if !m.HasControllers() {
+		return
+	}
+	pl.plan.SetPoints = append([]float64(nil), pl.setPoints...)
+	for _, i := range walk(m) {
+		b := &m.Branches[i]
+		if !b.Controlled() {
+			continue
+		}
+		lo, hi := b.Controller.Range()
+		cp := ControllerPlan{ID: b.ID, Current: b.Controller.SetPoint, SetPoint: ex.setPoint[i], Least: ex.spanLeast[i],
+			Min: lo, Max: hi, OpenDrop: ex.ctrlOpen[i], Throttle: math.NaN(), Span: math.NaN()}
+		if d, ok := sol.ControlledDiff(i); ok {
+			cp.Span = d
+		}
+		if c, ok := sol.ControllerElement(i); ok {
+			cp.Throttle = c.Throttle(sol.ControllerFlow(i))
+		}
+		cp.Holding = sol.Holding(i)
+		switch {
+		case ex.setPoint[i] > hi:
+			cp.Notes = append(cp.Notes, fmt.Sprintf("the span needs %.1f kPa, above the controller's highest set point %.1f kPa: fit a controller with a higher range, or lower the span's resistance", ex.setPoint[i]/1e3, hi/1e3))
+			pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("differential controller on %q: its span needs %.1f kPa, above its highest set point %.1f kPa", b.ID, ex.setPoint[i]/1e3, hi/1e3))
+		case ex.setPoint[i] > ex.spanLeast[i]*(1+1e-9):
+			cp.Notes = append(cp.Notes, fmt.Sprintf("the span needs only %.1f kPa, below the controller's lowest set point: the partner valve takes the rest", ex.spanLeast[i]/1e3))
+		}
+		if !cp.Holding {
+			cp.Notes = append(cp.Notes, "the controller lies wide open at the plan: the source does not give it its set point plus its valve's drop")
+		}
+		pl.plan.Controllers = append(pl.plan.Controllers, cp)
+	}
+}

@@ -48,6 +48,9 @@ type planner struct {
 	net         *network.Built
 	netSettings []float64
 	flows       []float64
+	// setPoints are the controllers' set points the solves use (nil: as
+	// found), netSetPoints those on the kept network.
+	setPoints, netSetPoints []float64
 }
 
 // Compute works out a balancing plan for model m with multipliers p (the
@@ -81,6 +84,9 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	pl.bySpeed = pl.pump
 	pl.run = pl.ex
 	pl.lift = m.Lift()
+	if m.HasControllers() {
+		pl.setPoints = append([]float64(nil), pl.ex.setPoint...)
+	}
 	pl.plan = &Plan{
 		Rounding: pl.opt.Rounding, Share: pl.opt.Share, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
 		IndexPath: pl.ex.indexIDs, ToleranceLow: pl.lo, ToleranceHigh: pl.hi,
@@ -92,6 +98,7 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	if err := pl.branches(sol); err != nil {
 		return nil, err
 	}
+	pl.controllers(sol)
 	if err := pl.pumpPlan(ctx, sol); err != nil {
 		return nil, err
 	}
@@ -207,7 +214,7 @@ func (pl *planner) targets() ([]float64, error) {
 // state returns the plant state for settings at control value x: the speed
 // ratio with a pump curve, else the source differential.
 func (pl *planner) state(settings []float64, x float64) plant.State {
-	st := plant.State{Label: "plan", Settings: settings}
+	st := plant.State{Label: "plan", Settings: settings, SetPoints: pl.setPoints}
 	if pl.bySpeed {
 		st.Speed = x
 	} else {
@@ -231,13 +238,19 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 	}
 	src := pl.source(x)
 	if pl.net == nil {
-		b, err := network.Build(m.Ladder(p, st.Settings), src, m.Fluid)
+		l, err := m.Ladder(p, st.Settings, st.SetPoints)
+		if err != nil {
+			return nil, fmt.Errorf("%w: %w", ErrSolve, err)
+		}
+		b, err := network.Build(l, src, m.Fluid)
 		if err != nil {
 			return nil, fmt.Errorf("%w: %w", ErrSolve, err)
 		}
 		pl.net, pl.netSettings = b, append([]float64(nil), st.Settings...)
+		pl.netSetPoints = st.SetPoints
 	} else {
 		n := pl.net.Net
+		moved := !sameSettings(pl.netSetPoints, st.SetPoints)
 		for i, v := range st.Settings {
 			if v == pl.netSettings[i] || (math.IsNaN(v) && math.IsNaN(pl.netSettings[i])) {
 				continue
@@ -246,6 +259,21 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 				n.SetElements(l, m.Elements(i, p, v)...)
 			}
 			pl.netSettings[i] = v
+			moved = true
+		}
+		if moved && len(pl.net.Controller) > 0 {
+			// A controller's element holds its span's flow at the set
+			// point, which the span's settings change.
+			for i := range m.Branches {
+				c, ok, err := m.Controller(i, p, st.Settings, st.SetPoints)
+				if err != nil {
+					return nil, fmt.Errorf("%w: %w", ErrSolve, err)
+				}
+				if ok {
+					n.SetElements(pl.net.Controller[m.Branches[i].ID], c)
+				}
+			}
+			pl.netSetPoints = st.SetPoints
 		}
 		if pl.net.PumpLink >= 0 {
 			n.SetElements(pl.net.PumpLink, src.PumpElements()...)
@@ -286,6 +314,10 @@ func (pl *planner) targetFlows() []float64 {
 	}
 	if b.PumpLink >= 0 {
 		q[b.PumpLink] = ex.total()
+	}
+	for id, l := range b.Controller {
+		i, _ := pl.m.Index(id)
+		q[l] = ex.q[i]
 	}
 	return q
 }

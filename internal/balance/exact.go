@@ -45,6 +45,13 @@ type exact struct {
 	least    float64 // source differential needed, Pa
 	indexID  int
 	indexIDs []string
+
+	// A controlled riser's plan (NaN elsewhere): spanLeast is the least
+	// its controller's span needs (its own parts, partner valve fully
+	// open, and its sub-ladder's need), setPoint the set point planned
+	// (spanLeast within the controller's range), ctrlOpen the controller's
+	// wide-open drop at the riser's flow.
+	spanLeast, setPoint, ctrlOpen []float64
 }
 
 // newExact computes the exact plan for targets q (risers' entries are
@@ -56,6 +63,10 @@ func newExact(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
 		path: make([]float64, n), avail: make([]float64, n), valve: make([]float64, n), index: make([]bool, n),
 		kv: make([]float64, n), setting: make([]float64, n), surplus: make([]float64, n), clamped: make([]bool, n),
 		supFlow: make([]float64, n), retFlow: make([]float64, n), ends: make([][2]float64, n),
+		spanLeast: make([]float64, n), setPoint: make([]float64, n), ctrlOpen: make([]float64, n),
+	}
+	for i := range n {
+		e.spanLeast[i], e.setPoint[i], e.ctrlOpen[i] = math.NaN(), math.NaN(), math.NaN()
 	}
 	byModel := map[any][2]float64{}
 	for i := range m.Branches {
@@ -171,6 +182,19 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 			}
 			e.sub[i] = s
 			e.need[i] += s
+			if b.Controlled() {
+				// The controller holds its span at the set point and
+				// throttles the rest: the set point is the least that
+				// serves the span's index (within the controller's range,
+				// the partner valve taking what a higher lowest set point
+				// adds), and the riser needs it plus the controller's
+				// wide-open drop.
+				e.spanLeast[i] = e.need[i]
+				lo, _ := b.Controller.Range()
+				e.setPoint[i] = max(e.need[i], lo)
+				e.ctrlOpen[i], _ = hydraulics.KvDrop(e.q[i], b.Controller.Kvs, e.f.Density)
+				e.need[i] = e.setPoint[i] + e.ctrlOpen[i]
+			}
 		}
 		if !finite(e.need[i]) {
 			return 0, fmt.Errorf("branch %q: differential needed at target is %g: %w", b.ID, e.need[i], ErrInput)
@@ -235,6 +259,10 @@ func (e *exact) assign(ids []int, d float64) error {
 		b := &m.Branches[i]
 		e.avail[i] = d - e.path[i]
 		rest := e.avail[i] - e.fixed[i] // for the valve and any sub-ladder
+		if b.Controlled() {
+			// The controller takes everything above its set point.
+			rest = e.setPoint[i] - e.fixed[i]
+		}
 		if b.Riser() {
 			sub := e.sub[i]
 			if b.Valve == nil {

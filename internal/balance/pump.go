@@ -114,6 +114,10 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 func (pl *planner) before(ctx context.Context) (*plant.Solved, string, error) {
 	m, s := pl.m, pl.m.Site
 	found := m.AsFound()
+	// The as-found state has its controllers at their as-found set points.
+	planned := pl.setPoints
+	pl.setPoints = nil
+	defer func() { pl.setPoints = planned }()
 	if pl.pump {
 		sol, err := pl.solve(ctx, found, m.BaseState().Speed)
 		return sol, "", err

@@ -269,8 +269,12 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 	// mostly stay, and building their elements is not free.
 	old, ok := sn.applied, sn.applied.Resistance != nil
 	hdr := !ok || old.Header != pp.Header
+	moved := hdr
 	for i := range p.m.Branches {
 		b := &p.m.Branches[i]
+		if !ok || old.Resistance[i] != pp.Resistance[i] || old.KvScale[i] != pp.KvScale[i] {
+			moved = true
+		}
 		if l := sn.built.Branch[b.ID]; l >= 0 && (!ok || old.Resistance[i] != pp.Resistance[i] || old.KvScale[i] != pp.KvScale[i]) {
 			var es []hydraulics.Element
 			if f := p.m.FixedElement(i, pp.Resistance[i]); f != nil {
@@ -293,6 +297,9 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 	}
 	if l := sn.built.PumpLink; l >= 0 && (!ok || old.PumpHead != pp.PumpHead) {
 		net.SetElements(l, p.m.Source(pp, sn.st).PumpElements()...)
+	}
+	if moved && len(sn.built.Controller) > 0 {
+		p.setControllers(sn, pp)
 	}
 	sn.applied = pp
 }
@@ -500,6 +507,12 @@ func (p *problem) predict(sn *stateNet, o *obs) float64 {
 	case site.BranchDiff:
 		id := p.m.Branches[o.branch].ID
 		return sol.Pressure[sn.built.SupplyNode[id]] - sol.Pressure[sn.built.ReturnNode[id]]
+	case site.ControlledDiff:
+		d, ok := sn.built.ControlledDiff(p.m.Branches[o.branch].ID, sol)
+		if !ok {
+			return math.NaN()
+		}
+		return d
 	case site.HeaderDiff:
 		return sol.Pressure[sn.top] - sol.Pressure[sn.ret]
 	case site.PumpDiff:
@@ -603,6 +616,7 @@ func (p *problem) linearise(sn *stateNet) {
 		}
 		sn.dh[j] = d
 	}
+	p.controllerTerms(sn)
 	for k, oi := range sn.obs {
 		o := &p.obs[oi]
 		ln := lin{q: sn.lin[k].q[:0], p: sn.lin[k].p[:0], x: sn.lin[k].x[:0]}
@@ -618,6 +632,12 @@ func (p *problem) linearise(sn *stateNet) {
 		case site.BranchDiff:
 			id := p.m.Branches[o.branch].ID
 			ln.p = append(ln.p, term{sn.built.SupplyNode[id], 1}, term{sn.built.ReturnNode[id], -1})
+		case site.ControlledDiff:
+			id := p.m.Branches[o.branch].ID
+			if l, ok := sn.built.Controller[id]; ok {
+				from, _ := sn.built.Net.LinkEnds(l)
+				ln.p = append(ln.p, term{sn.built.SupplyNode[id], 1}, term{from, -1})
+			}
 		case site.HeaderDiff:
 			ln.p = append(ln.p, term{sn.top, 1}, term{sn.ret, -1})
 		case site.PumpDiff:
@@ -849,7 +869,11 @@ func fillNaN(v []float64) {
 // newStateNet builds the network of state st at multipliers pp and the
 // index maps the predictions need.
 func newStateNet(m *plant.Model, st plant.State, pp plant.Params) (*stateNet, error) {
-	built, err := network.Build(m.Ladder(pp, st.Settings), m.Source(pp, st), m.Fluid)
+	l, err := m.Ladder(pp, st.Settings, st.SetPoints)
+	if err != nil {
+		return nil, fmt.Errorf("state %q: %w", st.Label, err)
+	}
+	built, err := network.Build(l, m.Source(pp, st), m.Fluid)
 	if err != nil {
 		return nil, fmt.Errorf("state %q: %w", st.Label, err)
 	}

@@ -42,6 +42,10 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 	lift := m.Lift()
 	var b *network.Built
 	sup := -1
+	l, err := m.Ladder(p, settings, nil)
+	if err != nil {
+		return nil, err
+	}
 	for _, d := range diffs {
 		if d <= 0 {
 			out = append(out, Point{0, 0})
@@ -54,8 +58,7 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 			continue
 		}
 		if b == nil {
-			var err error
-			b, err = network.Build(m.Ladder(p, settings), network.Source{Differential: d, Lift: lift}, m.Fluid)
+			b, err = network.Build(l, network.Source{Differential: d, Lift: lift}, m.Fluid)
 			if err != nil {
 				return nil, err
 			}

@@ -62,6 +62,9 @@ type Branch struct {
 	Return     []hydraulics.Element
 	Children   []int
 	Bore       float64 // branch pipe bore, m (0 when unknown)
+	// Controller is a riser's differential controller as the sheets give
+	// it (the zero value: none); its set point is the as-found one.
+	Controller site.Controller
 }
 
 // HasValve reports whether the branch has a valve with a setting: a
@@ -79,6 +82,10 @@ func (b *Branch) Range() (lo, hi float64) {
 	}
 	return 0, 0
 }
+
+// Controlled reports whether the branch is a riser whose differential a
+// controller holds.
+func (b *Branch) Controlled() bool { return b.Controller.Has() && b.Riser() }
 
 // Riser reports whether the branch feeds sub-branches.
 func (b *Branch) Riser() bool { return len(b.Children) > 0 }
@@ -116,7 +123,10 @@ type State struct {
 	// Differential is the boundary differential in Pa when the boundary is
 	// not a pump curve.
 	Differential float64
-	Readings     []int // indices into Site.Readings
+	// SetPoints holds per branch the set point of its differential
+	// controller, Pa (NaN without one); nil means the as-found set points.
+	SetPoints []float64
+	Readings  []int // indices into Site.Readings
 }
 
 // Index returns the index of the branch with the given ID.
@@ -180,6 +190,11 @@ func New(s *site.Site) (*Model, error) {
 		// cannot split the flow between it and anything else.
 		if b := &m.Branches[i]; !b.Riser() && len(b.Fixed) == 0 && !b.HasValve() {
 			return nil, fmt.Errorf("%s: branch %q has nothing that resists flow (no pipe length, fittings, terminal drop, control valve or balancing valve): %w", s.Branches[i].Pos, b.ID, ErrModel)
+		}
+	}
+	for i := range m.Branches {
+		if b := &m.Branches[i]; b.Controller.Has() && !b.Riser() {
+			return nil, fmt.Errorf("%s: branch %q has a differential controller but no branch hangs from it: %w", s.Branches[i].Pos, b.ID, ErrModel)
 		}
 	}
 	if err := m.checkTree(); err != nil {
@@ -264,7 +279,7 @@ func fluidState(s *site.Site) (fluid.State, error) {
 // pipe lookups made so far: a site has far fewer valve models and pipe
 // sizes than branches.
 func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel, chars map[*site.ValveModel]any, pipes pipeCache) (Branch, error) {
-	b := Branch{ID: sb.ID, Parent: sb.Parent, Design: sb.DesignFlow, Target: sb.DesignFlow}
+	b := Branch{ID: sb.ID, Parent: sb.Parent, Design: sb.DesignFlow, Target: sb.DesignFlow, Controller: sb.Controller}
 	if t, ok := s.Targets[sb.ID]; ok {
 		b.Target = t
 	}
@@ -668,10 +683,50 @@ func scaleAll(es []hydraulics.Element, f float64) []hydraulics.Element {
 	return out
 }
 
-// Ladder returns the network ladder for multipliers p and settings.
-func (m *Model) Ladder(p Params, settings []float64) network.Ladder {
-	var build func(ids []int) *network.Ladder
-	build = func(ids []int) *network.Ladder {
+// AsFoundSetPoints returns each branch's as-found controller set point, Pa
+// (NaN without a controller).
+func (m *Model) AsFoundSetPoints() []float64 {
+	out := make([]float64, len(m.Branches))
+	for i := range m.Branches {
+		out[i] = math.NaN()
+		if m.Branches[i].Controlled() {
+			out[i] = m.Branches[i].Controller.SetPoint
+		}
+	}
+	return out
+}
+
+// HasControllers reports whether any riser has a differential controller.
+func (m *Model) HasControllers() bool {
+	for i := range m.Branches {
+		if m.Branches[i].Controlled() {
+			return true
+		}
+	}
+	return false
+}
+
+// SetPoint returns branch i's controller set point in state st, Pa (NaN
+// without a controller).
+func (m *Model) SetPoint(st State, i int) float64 {
+	if !m.Branches[i].Controlled() {
+		return math.NaN()
+	}
+	if st.SetPoints != nil && st.SetPoints[i] > 0 {
+		return st.SetPoints[i]
+	}
+	return m.Branches[i].Controller.SetPoint
+}
+
+// Ladder returns the network ladder for multipliers p and settings, each
+// differential controller at its set point in setPoints (nil: as found).
+// A controller's element needs the flow its span passes at its set point,
+// so each controlled riser's span is solved alone first, from the deepest
+// up (see hydraulics.DiffController).
+func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder, error) {
+	st := State{SetPoints: setPoints}
+	var build func(ids []int) (*network.Ladder, error)
+	build = func(ids []int) (*network.Ladder, error) {
 		l := &network.Ladder{Arrangement: m.Arrangement}
 		for _, i := range ids {
 			b := &m.Branches[i]
@@ -682,13 +737,90 @@ func (m *Model) Ladder(p Params, settings []float64) network.Ladder {
 				Return:   scaleAll(b.Return, p.Header),
 			}
 			if b.Riser() {
-				nb.Sub = build(b.Children)
+				sub, err := build(b.Children)
+				if err != nil {
+					return nil, err
+				}
+				nb.Sub = sub
+				if b.Controlled() {
+					c, err := m.controller(nb, m.SetPoint(st, i))
+					if err != nil {
+						return nil, err
+					}
+					nb.Control = c
+				}
 			}
 			l.Branches = append(l.Branches, nb)
 		}
-		return l
+		return l, nil
 	}
-	return *build(m.top)
+	l, err := build(m.top)
+	if err != nil {
+		return network.Ladder{}, err
+	}
+	return *l, nil
+}
+
+// controller returns the element of riser nb's controller at set point sp.
+func (m *Model) controller(nb network.Branch, sp float64) (hydraulics.DiffController, error) {
+	i := m.index[nb.ID]
+	c := hydraulics.DiffController{Kvs: m.Branches[i].Controller.Kvs, SetPoint: sp}
+	hold, err := network.HeldFlow(context.Background(), nb, sp, m.Fluid)
+	if err != nil {
+		return c, fmt.Errorf("%s: branch %q: differential controller: %w", m.Site.Branches[i].Pos, nb.ID, err)
+	}
+	c.Hold = hold
+	if err := c.Validate(); err != nil {
+		return c, fmt.Errorf("%s: branch %q: %w: %w", m.Site.Branches[i].Pos, nb.ID, err, ErrModel)
+	}
+	return c, nil
+}
+
+// Controller returns the element of riser i's differential controller for
+// multipliers p, settings and set points (nil: as found); ok is false
+// without a controller.
+func (m *Model) Controller(i int, p Params, settings, setPoints []float64) (c hydraulics.DiffController, ok bool, err error) {
+	if !m.Branches[i].Controlled() {
+		return c, false, nil
+	}
+	l, err := m.spanLadder(i, p, settings, setPoints)
+	if err != nil {
+		return c, true, err
+	}
+	c, _ = l.Branches[0].Control.(hydraulics.DiffController)
+	return c, true, nil
+}
+
+// spanLadder returns the ladder of riser i alone (its controllers built).
+func (m *Model) spanLadder(i int, p Params, settings, setPoints []float64) (network.Ladder, error) {
+	m2 := *m
+	m2.top = []int{i}
+	return m2.Ladder(p, settings, setPoints)
+}
+
+// Span returns the network of the span riser i's controller holds, solved
+// alone at its set point: the riser's own parts as the main (link
+// network.MainID, absent when it has none) and its sub-ladder, link and
+// node IDs as in the whole network. Its source flow is the controller's
+// Hold; the calibration differentiates Hold through it.
+func (m *Model) Span(ctx context.Context, i int, p Params, settings, setPoints []float64) (*network.Built, *network.Solution, error) {
+	if !m.Branches[i].Controlled() {
+		return nil, nil, fmt.Errorf("branch %q has no differential controller: %w", m.Branches[i].ID, ErrModel)
+	}
+	l, err := m.spanLadder(i, p, settings, setPoints)
+	if err != nil {
+		return nil, nil, err
+	}
+	br := l.Branches[0]
+	b, err := network.Build(*br.Sub, network.Source{Differential: m.SetPoint(State{SetPoints: setPoints}, i), Main: br.Elements}, m.Fluid)
+	if err != nil {
+		return nil, nil, err
+	}
+	sol, err := b.Net.Solve(ctx, nil)
+	if err != nil {
+		return nil, nil, err
+	}
+	return b, sol, nil
 }
 
 // Controlled reports whether the circuit is driven by a variable-speed pump
@@ -787,7 +919,11 @@ func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) 
 	if lift := m.Lift(); m.Pump == nil && !(st.Differential > lift) {
 		return nil, fmt.Errorf("state %q: the differential %.1f kPa does not exceed the static lift %.1f kPa, so no water reaches the outlet: %w", st.Label, st.Differential/1e3, lift/1e3, ErrModel)
 	}
-	built, err := network.Build(m.Ladder(p, st.Settings), m.Source(p, st), m.Fluid)
+	l, err := m.Ladder(p, st.Settings, st.SetPoints)
+	if err != nil {
+		return nil, err
+	}
+	built, err := network.Build(l, m.Source(p, st), m.Fluid)
 	if err != nil {
 		return nil, err
 	}
@@ -855,6 +991,42 @@ func (s *Solved) HoldDiff(i int) float64 {
 		return math.NaN()
 	}
 	return max(b.PI.HoldDiff, v.HoldDiff(s.Model.Fluid.Density))
+}
+
+// ControlledDiff returns the differential across the span riser i's
+// controller holds (its sensor's reading), Pa; ok is false without a
+// controller.
+func (s *Solved) ControlledDiff(i int) (float64, bool) {
+	return s.Built.ControlledDiff(s.Model.Branches[i].ID, s.Sol)
+}
+
+// ControllerElement returns riser i's controller as solved; ok is false
+// without one.
+func (s *Solved) ControllerElement(i int) (hydraulics.DiffController, bool) {
+	l, ok := s.Built.Controller[s.Model.Branches[i].ID]
+	if !ok {
+		return hydraulics.DiffController{}, false
+	}
+	c, ok := s.Built.Net.Elements(l)[0].(hydraulics.DiffController)
+	return c, ok
+}
+
+// Holding reports whether riser i's controller throttles (holds its set
+// point) in the solved state; false where it lies wide open or there is
+// none.
+func (s *Solved) Holding(i int) bool {
+	c, ok := s.ControllerElement(i)
+	return ok && c.Holding(s.Sol.Flow[s.Built.Controller[s.Model.Branches[i].ID]])
+}
+
+// ControllerFlow returns the flow through riser i's controller, m3/s (NaN
+// without one).
+func (s *Solved) ControllerFlow(i int) float64 {
+	l, ok := s.Built.Controller[s.Model.Branches[i].ID]
+	if !ok {
+		return math.NaN()
+	}
+	return s.Sol.Flow[l]
 }
 
 // HeaderDiff returns the differential between the supply and return
@@ -954,6 +1126,12 @@ func (s *Solved) Predict(r *site.Reading) (float64, error) {
 		return s.Flow(i), nil
 	case site.BranchDiff:
 		return s.BranchDiff(i), nil
+	case site.ControlledDiff:
+		d, ok := s.ControlledDiff(i)
+		if !ok {
+			return 0, fmt.Errorf("%s: controlled differential at branch %q, which has no differential controller: %w", r.Pos, r.Where, ErrModel)
+		}
+		return d, nil
 	case site.ValveDiff:
 		if !s.Model.Branches[i].HasValve() {
 			return 0, fmt.Errorf("%s: valve differential at branch %q, which has no balancing valve: %w", r.Pos, r.Where, ErrModel)

@@ -174,7 +174,7 @@ var badCases = []badCase{
 	{name: "unknown column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],colour,pipe lenght\nA,0.5,21.6,10,red,1\nB,0.4,21.6,12,blue,1\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, note)",
+			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, note)",
 			"branches.csv:1:6: warning: field \"pipe lenght\": unknown column, ignored (want \"pipe length\")",
 		}},
 	{name: "missing required column", files: map[string]string{"branches.csv": "id,pipe bore [mm],pipe length [m]\nA,21.6,10\nB,21.6,12\n"},
@@ -323,6 +323,31 @@ var badCases = []badCase{
 		want: []string{
 			"branches.csv:2:7: field \"setting\": value \"2\": setting given for a branch without a valve (want a valve model in the valve column, or no setting)",
 		}},
+	{name: "controller without kvs", files: map[string]string{"branches.csv": "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],controller set point [kPa],controller kvs\nA,,0.5,21.6,10,25,\nB,A,0.4,21.6,12,,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2:7: field \"controller kvs\": differential controller without its valve's Kvs (want the Kvs of the controller's valve wide open (or a controller cvs column))",
+		}},
+	{name: "controller kvs without set point", files: map[string]string{"branches.csv": "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],controller set point [kPa],controller kvs\nA,,0.5,21.6,10,,4\nB,A,0.4,21.6,12,,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"branches.csv:2:6: field \"controller set point\": controller columns given without its set point (want the differential the controller holds, or none of the controller columns)",
+		}},
+	{name: "controller set point outside its range", files: map[string]string{"branches.csv": "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],controller set point [kPa],controller kvs,controller min [kPa],controller max [kPa]\nA,,0.5,21.6,10,45,4,5,30\nB,A,0.4,21.6,12,,,,\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:6: field \"controller set point\": value \"45\": set point outside the controller's range (want a set point from 5 to 30 kPa, or the range as found on the controller)",
+		}},
+	{name: "controller range reversed", files: map[string]string{"branches.csv": "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],controller set point [kPa],controller kvs,controller min [kPa],controller max [kPa]\nA,,0.5,21.6,10,25,4,30,5\nB,A,0.4,21.6,12,,,,\n"},
+		cause: ErrRange,
+		want: []string{
+			"branches.csv:2:9: field \"controller max\": value \"5\": controller max not above controller min (want the highest set point the controller can be given, above its lowest)",
+		}},
+	{name: "controller on a terminal branch", files: map[string]string{"branches.csv": "id,parent,design flow [l/s],pipe bore [mm],pipe length [m],controller set point [kPa],controller kvs\nA,,0.5,21.6,10,25,4\nB,,0.4,21.6,12,,\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:2:6: field \"controller set point\": value \"25\": a differential controller on a branch that no branch hangs from (want a controller only on a riser or branch group (branches naming it as their parent), or no set point)",
+		}},
 	{name: "valve not defined", files: map[string]string{"branches.csv": brHead + "A,,0.5,21.6,10,V-15,2\nB,,0.4,21.6,12,V15,3\n"},
 		cause: ErrReference,
 		want: []string{
@@ -449,7 +474,7 @@ var badCases = []badCase{
 	{name: "unknown quantity", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,velocity,0.4,m/s,clamp-on\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"readings.csv:3:3: field \"quantity\": value \"velocity\": unknown word (want one of: flow, valve diff, branch diff, header diff, pump diff, total flow, speed)",
+			"readings.csv:3:3: field \"quantity\": value \"velocity\": unknown word (want one of: flow, valve diff, branch diff, header diff, pump diff, total flow, speed, controlled diff)",
 		}},
 	{name: "unknown instrument", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,flow,0.4,l/s,bucket\n"},
 		cause: ErrUnknown,
@@ -525,6 +550,11 @@ var badCases = []badCase{
 		cause: ErrRange,
 		want: []string{
 			"readings.csv:3:2: field \"where\": value \"B\": pump diff is not read here (want pump)",
+		}},
+	{name: "controlled diff where there is no controller", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,controlled diff,20,kPa,manometer\n"},
+		cause: ErrReference,
+		want: []string{
+			"readings.csv:3:2: field \"where\": value \"B\": branch \"B\" has no differential controller (want a riser with a controller set point in the branches sheet)",
 		}},
 	{name: "flow at the pump", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,pump,flow,1.1,l/s,clamp-on\n"},
 		cause: ErrRange,

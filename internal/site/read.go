@@ -465,7 +465,7 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 
 // branchRefs keeps where a branch's references were written.
 type branchRefs struct {
-	id, parent, valve, setting, supply cellRef
+	id, parent, valve, setting, supply, controller cellRef
 }
 
 func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
@@ -497,6 +497,10 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.Valve = sr.text(r, "valve", &ok)
 		b.Setting, _ = sr.num(r, "setting")
 		b.ControlKvs = sr.numOr(r, "control kvs", 0, &ok)
+		b.Controller.SetPoint = sr.numOr(r, "controller set point", 0, &ok)
+		b.Controller.Kvs = sr.numOr(r, "controller kvs", 0, &ok)
+		b.Controller.Min = sr.numOr(r, "controller min", 0, &ok)
+		b.Controller.Max = sr.numOr(r, "controller max", 0, &ok)
 		b.SupplyLength = sr.numOr(r, "supply length", 0, &ok)
 		b.ReturnLength = sr.numOr(r, "return length", 0, &ok)
 		b.HeaderStandard = sr.text(r, "header standard", &ok)
@@ -513,7 +517,7 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.ReturnRoughness, _ = sr.num(r, "return roughness")
 		b.Note = sr.text(r, "note", &ok)
 		ref := branchRefs{id: sr.ref(r, "id"), parent: sr.ref(r, "parent"), valve: sr.ref(r, "valve"),
-			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length")}
+			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length"), controller: sr.ref(r, "controller set point")}
 		switch {
 		case !sr.has("id") || !idOK:
 			continue
@@ -563,6 +567,7 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 				"a valve model in the valve column, or no setting"))
 			ok = false
 		}
+		checkController(sr, r, &b, p)
 		_ = ok // the branch is kept so references to it still resolve
 		out = append(out, b)
 		refs = append(refs, ref)
@@ -571,6 +576,28 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: "no branches listed", Want: "one row per branch below the header"})
 	}
 	return out, refs
+}
+
+// checkController checks a branch's controller columns against each other;
+// checkBranches checks that it sits on a riser.
+func checkController(sr *sheetReader, r row, b *Branch, p *Problems) {
+	c := b.Controller
+	given := c.Kvs > 0 || c.Min > 0 || c.Max > 0
+	switch {
+	case !c.Has() && given:
+		p.add(sr.ref(r, "controller set point").problem(SeverityError, ErrMissing, "controller columns given without its set point",
+			"the differential the controller holds, or none of the controller columns"))
+	case c.Has() && !(c.Kvs > 0):
+		p.add(sr.ref(r, "controller kvs").problem(SeverityError, ErrMissing, "differential controller without its valve's Kvs",
+			"the Kvs of the controller's valve wide open (or a controller cvs column)"))
+	case c.Has() && c.Min > 0 && c.Max > 0 && !(c.Min < c.Max):
+		p.add(sr.ref(r, "controller max").problem(SeverityError, ErrRange, "controller max not above controller min",
+			"the highest set point the controller can be given, above its lowest"))
+	case c.Has() && (c.Min > 0 && c.SetPoint < c.Min || c.Max > 0 && c.SetPoint > c.Max):
+		lo, hi := c.Range()
+		p.add(sr.ref(r, "controller set point").problem(SeverityError, ErrRange, "set point outside the controller's range",
+			fmt.Sprintf("a set point from %s to %s kPa, or the range as found on the controller", fmtNum(lo/1e3), fmtNum(hi/1e3))))
+	}
 }
 
 // valveCheck tells how far the valves sheet can be trusted for checks.
@@ -638,6 +665,18 @@ func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 		}
 		for _, j := range path {
 			state[j] = 2
+		}
+	}
+	hasChild := make([]bool, len(s.Branches))
+	for i, b := range s.Branches {
+		if parentOK[i] {
+			hasChild[index[b.Parent]] = true
+		}
+	}
+	for i, b := range s.Branches {
+		if b.Controller.Has() && !hasChild[i] {
+			p.add(refs[i].controller.problem(SeverityError, ErrReference, "a differential controller on a branch that no branch hangs from",
+				"a controller only on a riser or branch group (branches naming it as their parent), or no set point"))
 		}
 	}
 	var names []string
@@ -1090,6 +1129,11 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 			p.add(wref.problem(SeverityError, ErrRange, fmt.Sprintf("%s is not read here", rd.What), want))
 			continue
 		}
+		if rd.What == ControlledDiff && !br.Controller.Has() {
+			p.add(wref.problem(SeverityError, ErrReference, fmt.Sprintf("branch %q has no differential controller", br.ID),
+				"a riser with a controller set point in the branches sheet"))
+			continue
+		}
 		if !readingValue(sr, r, &rd, s.Boundary.MaxSpeed, p) {
 			continue
 		}
@@ -1206,7 +1250,7 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 // when where suits q.
 func placeWant(q Quantity, where string, branch bool) string {
 	switch q {
-	case Flow, ValveDiff, BranchDiff:
+	case Flow, ValveDiff, BranchDiff, ControlledDiff:
 		if !branch {
 			return "a branch id"
 		}

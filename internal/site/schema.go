@@ -176,6 +176,14 @@ var branchColumns = schema{name: "branches", columns: []column{
 		help: "inside diameter of the return leg; blank = as the header, or from the return size"},
 	{name: "return roughness", typ: numCol, kind: units.Length, unit: "mm", what: "roughness", lo: 0, hi: maxRough,
 		help: "absolute roughness of the return leg; blank or 0 = as the header, or by the return standard"},
+	{name: "controller set point", typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 0, hi: maxPressure,
+		help: "a riser's differential controller: the differential it holds as found, from the riser's supply take-off to the controller in its return (partner valve and every branch below); blank = none; see flowset help controllers"},
+	{name: "controller kvs", typ: numCol, what: "Kvs", lo: 0, hi: maxKv, cv: "controller cvs",
+		help: "Kvs (m3/h at 1 bar) of the controller's valve wide open; a controller cvs column takes US Cv"},
+	{name: "controller min", typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 0, hi: maxPressure,
+		help: "lowest set point the controller can be given; blank = not known"},
+	{name: "controller max", typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 0, hi: maxPressure,
+		help: "highest set point the controller can be given; blank = not known"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 

@@ -15,6 +15,7 @@ package site
 
 import (
 	"fmt"
+	"math"
 	"strings"
 	"unicode"
 )
@@ -151,6 +152,10 @@ type Branch struct {
 	Setting    float64 // as-found setting in the valve's units; NaN if not recorded
 	ControlKvs float64 // m3/h at 1 bar of a control valve in series; 0 = none
 
+	// Controller is a differential controller holding the differential
+	// across this riser's sub-circuit; the zero Controller is none.
+	Controller Controller
+
 	// The header segment between the previous take-off and this one. The
 	// header columns describe both legs; the return columns, where given,
 	// the return leg alone (see ReturnLeg).
@@ -170,6 +175,36 @@ type Branch struct {
 
 	Note string
 	Pos  Pos
+}
+
+// Controller is a differential-pressure controller on a riser or branch
+// group: its valve sits in the riser's return and it senses from the
+// riser's supply take-off to its own inlet, so the span it holds is the
+// riser's own parts (its partner valve, the branch's valve) and every
+// branch below. It throttles until the span reads SetPoint, and lies wide
+// open (Kvs) when even so the span reads less.
+type Controller struct {
+	SetPoint float64 // Pa, as found; 0 = no controller
+	Kvs      float64 // m3/h at 1 bar, wide open
+	// Min and Max bound the set point the controller can be given, Pa; NaN
+	// (or 0, in a Site built in code) when not given.
+	Min, Max float64
+}
+
+// Has reports whether there is a controller.
+func (c Controller) Has() bool { return c.SetPoint > 0 }
+
+// Range returns the set points the controller can be given, Pa: Min and
+// Max where given, else 0 and +Inf.
+func (c Controller) Range() (lo, hi float64) {
+	lo, hi = 0, math.Inf(1)
+	if c.Min > 0 {
+		lo = c.Min
+	}
+	if c.Max > 0 {
+		hi = c.Max
+	}
+	return lo, hi
 }
 
 // Leg is one leg (supply or return) of a branch's header segment as the
@@ -300,10 +335,13 @@ const (
 	PumpDiff                       // differential across the pump
 	TotalFlow                      // flow through the pump
 	Speed                          // the pump drive's displayed speed, as a ratio to rated
+	// ControlledDiff is the differential across the span a riser's
+	// differential controller holds (see Controller): what its sensor sees.
+	ControlledDiff
 )
 
 var quantityWords = []string{Flow: "flow", ValveDiff: "valve diff", BranchDiff: "branch diff",
-	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow", Speed: "speed"}
+	HeaderDiff: "header diff", PumpDiff: "pump diff", TotalFlow: "total flow", Speed: "speed", ControlledDiff: "controlled diff"}
 
 // String returns the word the readings sheet uses for q.
 func (q Quantity) String() string { return word(quantityWords, int(q), "quantity") }

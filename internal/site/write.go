@@ -132,6 +132,8 @@ func render(s *Site) []outSheet {
 			"pipe standard": b.PipeStandard, "pipe size": b.PipeSize, "pipe bore": b.PipeBore, "pipe length": b.PipeLength,
 			"roughness": b.Roughness, "fittings k": b.FittingsK, "terminal drop": b.TerminalDrop, "terminal flow": b.TerminalFlow,
 			"valve": b.Valve, "setting": b.Setting, "control kvs": b.ControlKvs,
+			"controller set point": given(b.Controller.SetPoint), "controller kvs": given(b.Controller.Kvs),
+			"controller min": given(b.Controller.Min), "controller max": given(b.Controller.Max),
 			"supply length": b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
 			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK,
 			"header roughness": given(b.HeaderRoughness), "supply k": b.SupplyK, "return k": b.ReturnK,
@@ -144,6 +146,10 @@ func render(s *Site) []outSheet {
 		// The per-leg columns are written only where a branch uses them,
 		// so a site with one pipe per header segment reads as before.
 		br = dropColumns(br, legColumns)
+	}
+	if !slices.ContainsFunc(s.Branches, func(b Branch) bool { return b.Controller.Has() }) {
+		// Likewise the controller columns.
+		br = dropColumns(br, controllerColumns)
 	}
 
 	va := columnSheet(&valveColumns)
@@ -238,6 +244,10 @@ func render(s *Site) []outSheet {
 
 // legColumns are the branches sheet's columns for header legs that differ.
 var legColumns = []string{"header roughness", "supply k", "return k", "return standard", "return size", "return bore", "return roughness"}
+
+// controllerColumns are the branches sheet's columns of a riser's
+// differential controller.
+var controllerColumns = []string{"controller set point", "controller kvs", "controller min", "controller max"}
 
 // ownLegs reports whether b's header legs need the per-leg columns.
 func ownLegs(b Branch) bool {
