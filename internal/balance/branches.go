@@ -200,6 +200,11 @@ func (pl *planner) shortfalls() {
 	}
 }
 
+// heldTol is how far below its set point a controller's span may read and
+// still count as held: the pump is planned for the controllers on the index
+// path to sit just at the point where they start to throttle.
+const heldTol = 1e-3
+
 // controllers fills the plan of each differential controller from the
 // exact plan and the final solution.
 func (pl *planner) controllers(sol *plant.Solved) {
@@ -222,7 +227,7 @@ func (pl *planner) controllers(sol *plant.Solved) {
 		if c, ok := sol.ControllerElement(i); ok {
 			cp.Throttle = c.Throttle(sol.ControllerFlow(i))
 		}
-		cp.Holding = sol.Holding(i)
+		cp.Holding = sol.Holding(i) || cp.Span >= cp.SetPoint*(1-heldTol)
 		switch {
 		case ex.setPoint[i] > hi:
 			cp.Notes = append(cp.Notes, fmt.Sprintf("the span needs %.1f kPa, above the controller's highest set point %.1f kPa: fit a controller with a higher range, or lower the span's resistance", ex.setPoint[i]/1e3, hi/1e3))
@@ -230,7 +235,7 @@ func (pl *planner) controllers(sol *plant.Solved) {
 		case ex.setPoint[i] > ex.spanLeast[i]*(1+1e-9):
 			cp.Notes = append(cp.Notes, fmt.Sprintf("the span needs only %.1f kPa, below the controller's lowest set point: the partner valve takes the rest", ex.spanLeast[i]/1e3))
 		}
-		if !cp.Holding {
+		if !(cp.Span >= cp.SetPoint*(1-heldTol)) {
 			cp.Notes = append(cp.Notes, "the controller lies wide open at the plan: the source does not give it its set point plus its valve's drop")
 		}
 		pl.plan.Controllers = append(pl.plan.Controllers, cp)

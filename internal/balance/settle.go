@@ -76,7 +76,13 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 	r := newRounder(pl)
 	idx := ex.indexID
 	indexOK := func(s *plant.Solved) float64 { return s.Flow(idx)/ex.q[idx] - 1 }
-	if m.Branches[idx].PI != nil {
+	if c := pl.controlledIndex(); c >= 0 {
+		// The index path runs into a controlled span, whose flows stop
+		// following the pump once its controller holds: the pump is set
+		// for that riser's take-offs to get the set point plus the
+		// controller's wide-open drop, where the controller just holds.
+		indexOK = func(s *plant.Solved) float64 { return s.BranchDiff(c)/ex.need[c] - 1 }
+	} else if m.Branches[idx].PI != nil {
 		// A pressure-independent valve gives its flow from its hold
 		// differential up: the index is served when its valve sees
 		// the differential the exact plan gave it (hold and margin).
@@ -412,4 +418,15 @@ func (st *starver) at(d float64) (*exact, error) {
 			return e, nil
 		}
 	}
+}
+
+// controlledIndex returns the first riser on the index path that has a
+// differential controller, or -1.
+func (pl *planner) controlledIndex() int {
+	for _, id := range pl.ex.indexIDs {
+		if i, ok := pl.m.Index(id); ok && pl.m.Branches[i].Controlled() {
+			return i
+		}
+	}
+	return -1
 }

@@ -575,6 +575,12 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 				if !m.PumpDriven() {
 					return nil, bad("a speed reading needs a pump curve (pump sheet)")
 				}
+			case site.ControlledDiff:
+				i, ok := m.Index(r.Where)
+				if !ok || !m.Branches[i].Controlled() {
+					return nil, bad("no differential controller there")
+				}
+				o.branch = i
 			case site.Flow, site.ValveDiff, site.BranchDiff:
 				i, ok := m.Index(r.Where)
 				if !ok {
