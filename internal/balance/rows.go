@@ -43,8 +43,34 @@ func (p *Plan) Rows() (header []string, rows [][]string) {
 			row[15] = num(b.ValveDiff/1e3, "%.2f")
 		}
 		rows = append(rows, row)
+		if c := p.Controller(b.ID); c != nil {
+			// The riser's differential controller: its set point is the
+			// setting, the span's differential the check reading.
+			rows = append(rows, []string{
+				"", b.ID, b.Parent, basis, ControllerValve, "kPa", num(c.Current/1e3, "%.2f"), num(c.SetPoint/1e3, "%.2f"), "",
+				num(b.Target*1e3, "%.3f"), "", "", "", "", "",
+				num(c.Span/1e3, "%.2f"), "", "", strings.Join(c.Notes, "; "),
+			})
+		}
+	}
+	for k := range rows {
+		rows[k][0] = strconv.Itoa(k + 1)
 	}
 	return header, rows
+}
+
+// ControllerValve names a differential controller in the field sheet's
+// valve column.
+const ControllerValve = "differential controller"
+
+// Controller returns the plan of riser id's differential controller, or nil.
+func (p *Plan) Controller(id string) *ControllerPlan {
+	for k := range p.Controllers {
+		if p.Controllers[k].ID == id {
+			return &p.Controllers[k]
+		}
+	}
+	return nil
 }
 
 // Summary returns the plan's headline lines for the top of a field sheet.

@@ -4,8 +4,10 @@ import (
 	"context"
 	"encoding/csv"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -59,6 +61,16 @@ func printSummary(ios *IO, s *site.Site) {
 	w := ios.Out
 	fmt.Fprintf(w, "site %q: %d branches (%d risers), %d valve models, %d pump points, %d readings\n",
 		s.Name, sum.Branches, sum.Risers, sum.Valves, sum.PumpPoints, sum.Readings)
+	for _, b := range s.Branches {
+		if c := b.Controller; c.Has() {
+			rng := "range not given"
+			if lo, hi := c.Range(); lo > 0 || !math.IsInf(hi, 1) {
+				rng = fmt.Sprintf("range %s-%s kPa", kpa(lo), kpa(hi))
+			}
+			fmt.Fprintf(w, "  differential controller on %s: holds %.1f kPa across its span (partner valve and every branch below), Kvs %.3g, %s\n",
+				site.Printable(b.ID), c.SetPoint/1e3, c.Kvs, rng)
+		}
+	}
 	if s.StaticLift > 0 || s.OutletPressure > 0 {
 		fmt.Fprintf(w, "  open circuit: static lift %.2f m, outlet pressure %.1f kPa (the pump gives both before any water moves)\n",
 			s.StaticLift, s.OutletPressure/1e3)
@@ -164,4 +176,12 @@ func blankSite(path string) bool {
 		}
 	}
 	return true
+}
+
+// kpa prints a pressure in kPa, "any" for an unbounded end.
+func kpa(p float64) string {
+	if math.IsInf(p, 1) {
+		return "any"
+	}
+	return strconv.FormatFloat(p/1e3, 'g', 4, 64)
 }

@@ -12,6 +12,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"flowset/internal/hydraulics"
 	"flowset/internal/plant"
 )
 
@@ -58,6 +59,22 @@ type curveSet struct {
 	// StaticLift is an open circuit's static head, kPa, where the system
 	// curve starts; 0 for a closed loop.
 	StaticLift float64 `json:"static_lift_kPa,omitempty"`
+	// Controllers are the risers' differential controllers: a controlled
+	// riser's curve follows its controller's valve wide open in series
+	// with its span up to the held flow, and stands at that flow above.
+	Controllers []controllerCurve `json:"differential_controllers,omitempty"`
+}
+
+// controllerCurve is where a riser's differential controller starts to
+// hold, in display units (l/s, kPa).
+type controllerCurve struct {
+	ID       string  `json:"riser"`
+	SetPoint float64 `json:"set_point_kPa"`
+	Held     float64 `json:"held_flow_l_s"`
+	Starts   float64 `json:"holds_from_riser_differential_kPa"`
+	// Span and Holding are at the operating point.
+	Span    float64 `json:"span_differential_kPa"`
+	Holding bool    `json:"holding"`
 }
 
 type branchCurve struct {
@@ -141,6 +158,16 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 		return nil, err
 	}
 	cs.Operating = displayPoint{op.TotalFlow() * 1000, op.PumpDiff() / 1000}
+	for i := range m.Branches {
+		c, ok := op.ControllerElement(i)
+		if !ok {
+			continue
+		}
+		open, _ := hydraulics.KvDrop(c.Hold, c.Kvs, m.Fluid.Density)
+		span, _ := op.ControlledDiff(i)
+		cs.Controllers = append(cs.Controllers, controllerCurve{ID: m.Branches[i].ID, SetPoint: c.SetPoint / 1000, Held: c.Hold * 1000,
+			Starts: (c.SetPoint + open) / 1000, Span: span / 1000, Holding: span >= c.SetPoint*(1-1e-3)})
+	}
 	top := 1.5 * op.PumpDiff()
 	if m.PumpDriven() {
 		speed := st.Speed
@@ -221,6 +248,19 @@ func writeCurvesTable(w io.Writer, cs *curveSet) error {
 	}
 	tw.Flush()
 	fmt.Fprintf(w, "\noperating point: %.3f l/s at %.1f kPa\n", cs.Operating.Flow, cs.Operating.Diff)
+	if len(cs.Controllers) > 0 {
+		fmt.Fprintln(w, "\ndifferential controllers: each holds its span (partner valve and branches) at its set point once its riser gets the set point plus its valve's wide-open drop; below that it lies wide open")
+		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		fmt.Fprintln(tw, "riser	set point [kPa]	held flow [l/s]	holds from [kPa]	span now [kPa]	now	")
+		for _, c := range cs.Controllers {
+			now := "wide open"
+			if c.Holding {
+				now = "holding"
+			}
+			fmt.Fprintf(tw, "%s	%.1f	%.3f	%.1f	%.1f	%s	\n", c.ID, c.SetPoint, c.Held, c.Starts, c.Span, now)
+		}
+		tw.Flush()
+	}
 	return nil
 }
 
@@ -242,6 +282,11 @@ func writeCurvesCSV(w io.Writer, cs *curveSet) error {
 		row("pump", "", p)
 	}
 	row("operating point", "", cs.Operating)
+	for _, c := range cs.Controllers {
+		// Where the controlled riser's curve turns: its held flow at the
+		// riser differential from which it holds.
+		row("controller holds from", safeCell(c.ID), displayPoint{c.Held, c.Starts})
+	}
 	cw.Flush()
 	return cw.Error()
 }

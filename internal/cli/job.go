@@ -154,6 +154,15 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 		j.Findings = slices.DeleteFunc(j.Findings, func(f diagnose.Finding) bool { return f.Code == diagnose.Undetermined })
 	}
 
+	if m.HasControllers() {
+		cs, err := controllerEvidence(ctx, l, j.Fitted, before)
+		if err != nil {
+			return nil, err
+		}
+		j.Findings = append(j.Findings, diagnose.Controllers(cs, opts.Thresholds)...)
+		slices.SortStableFunc(j.Findings, func(a, b diagnose.Finding) int { return int(b.Severity) - int(a.Severity) })
+	}
+
 	unconfirmed := holdUnconfirmed(m, j)
 
 	pr.step("planning valve settings for %d branches", len(m.Branches))
@@ -490,4 +499,47 @@ func readingEvidence(l *loaded, c *calibrate.Calibration) []diagnose.Reading {
 		out = append(out, diagnose.Reading{Label: rf.Pos.String(), Where: r.Where, What: r.What.String(), Normalised: rf.Normalised, Outlier: rf.Outlier, Why: rf.Why})
 	}
 	return out
+}
+
+// controllerEvidence gathers the evidence about each differential
+// controller from the fitted model solved in every survey state (first the
+// one already solved): where it lies wide open, and the readings across its
+// span where it throttles.
+func controllerEvidence(ctx context.Context, l *loaded, p plant.Params, first *plant.Solved) ([]diagnose.Controller, error) {
+	m := l.Model
+	sols := []*plant.Solved{first}
+	for _, st := range m.States {
+		if st.Label == first.State.Label {
+			continue
+		}
+		sol, err := m.Solve(ctx, p, st)
+		if err != nil {
+			return nil, &dataError{fmt.Errorf("state %q: %w", st.Label, err)}
+		}
+		sols = append(sols, sol)
+	}
+	var out []diagnose.Controller
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if !b.Controlled() {
+			continue
+		}
+		c := diagnose.Controller{ID: b.ID, SetPoint: b.Controller.SetPoint}
+		held := map[string]bool{}
+		for _, sol := range sols {
+			span, _ := sol.ControlledDiff(i)
+			sp := m.SetPoint(sol.State, i)
+			held[sol.State.Label] = span >= sp*(1-1e-3)
+			if !held[sol.State.Label] && !c.Open {
+				c.Open, c.State, c.Span = true, sol.State.Label, span
+			}
+		}
+		for _, r := range l.Site.Readings {
+			if r.What == site.ControlledDiff && r.Where == b.ID && held[r.State] {
+				c.Readings = append(c.Readings, diagnose.SpanReading{Label: r.Pos.String(), State: r.State, Value: r.Value, Sigma: r.Sigma})
+			}
+		}
+		out = append(out, c)
+	}
+	return out, nil
 }

@@ -20,6 +20,7 @@ type planJSON struct {
 	Remedies      []remedyJSON     `json:"remedies"`
 	LeastRemedied num              `json:"least_differential_remedied_pa"`
 	Branches      []branchPlanJSON `json:"branches"`
+	Controllers   []controllerJSON `json:"differential_controllers,omitempty"`
 	Unmet         []shortfallJSON  `json:"unmet"`
 	Warnings      []string         `json:"warnings"`
 	Summary       []string         `json:"summary"`
@@ -73,6 +74,20 @@ type branchPlanJSON struct {
 	Notes           []string `json:"notes"`
 }
 
+type controllerJSON struct {
+	ID       string   `json:"riser"`
+	Current  num      `json:"as_found_set_point_pa"`
+	SetPoint num      `json:"new_set_point_pa"`
+	Least    num      `json:"span_needs_pa"`
+	Min      num      `json:"range_low_pa"`
+	Max      num      `json:"range_high_pa"`
+	OpenDrop num      `json:"valve_open_drop_pa"`
+	Throttle num      `json:"valve_throttles_pa"`
+	Span     num      `json:"check_span_differential_pa"`
+	Holding  bool     `json:"holding"`
+	Notes    []string `json:"notes"`
+}
+
 type shortfallJSON struct {
 	ID           string `json:"branch"`
 	Target       num    `json:"target_m3_s"`
@@ -123,6 +138,10 @@ func (j *job) planOut(generated string) planJSON {
 			Predicted: num(b.Predicted), Percent: num(b.Percent), BandLow: num(b.BandLow), BandHigh: num(b.BandHigh),
 			InTolerance: b.InTolerance, BandInTolerance: b.BandInTolerance, ValveDiff: num(b.ValveDiff), BranchDiff: num(b.BranchDiff),
 			Authority: num(b.Authority), Notes: b.Notes})
+	}
+	for _, c := range p.Controllers {
+		out.Controllers = append(out.Controllers, controllerJSON{ID: c.ID, Current: num(c.Current), SetPoint: num(c.SetPoint), Least: num(c.Least),
+			Min: num(c.Min), Max: num(c.Max), OpenDrop: num(c.OpenDrop), Throttle: num(c.Throttle), Span: num(c.Span), Holding: c.Holding, Notes: c.Notes})
 	}
 	for _, u := range p.Unmet {
 		out.Unmet = append(out.Unmet, shortfallJSON{u.ID, num(u.Target), num(u.Predicted), num(u.Percent), u.Reason, u.Remedy, num(u.Saves), num(u.AnnualEnergy)})

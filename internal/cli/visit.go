@@ -127,6 +127,13 @@ func (j *job) visit(u display) report.Visit {
 	default:
 		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Leave the pump holding %s at %s (as surveyed) until step 3.", u.diff(j.Before.State.Differential), sensorName(s.Boundary.Sensor)))
 	}
+	if len(plan.Controllers) > 0 {
+		var ids []string
+		for _, c := range plan.Controllers {
+			ids = append(ids, c.ID)
+		}
+		v.BeforeStart = append(v.BeforeStart, fmt.Sprintf("Leave the differential controllers on %s at their set points as found until step 4; check that their sensing lines are open.", joinIDs(ids)))
+	}
 	v.BeforeStart = append(v.BeforeStart, j.suspectLines(u)...)
 	v.BeforeStart = append(v.BeforeStart, j.disagreeLines(u)...)
 	var undet []string
@@ -145,9 +152,15 @@ func (j *job) visit(u display) report.Visit {
 	// 3. Pump, with the plan's own warnings that are not said elsewhere.
 	v.Pump = j.pumpStep(u)
 	v.Pump.Warnings = append(v.Pump.Warnings, j.planNotes()...)
+	for _, c := range plan.Controllers {
+		v.Pump.Warnings = append(v.Pump.Warnings, fmt.Sprintf("The differential controller on %s is planned to hold %s across its span; the pump is set to give it that plus %s for its valve wide open.", c.ID, u.diff(c.SetPoint), u.diff(c.OpenDrop)))
+	}
 
 	// 4. Valve settings.
 	v.OrderReason = "Set the valves in this order: along the main headers from the pump outwards, and on a riser its branches before the riser's own valve, so each riser is one visit. Every setting comes from one calculation, so the order does not change the result; the check readings hold once every valve is set and the pump runs as in step 3."
+	if len(plan.Controllers) > 0 {
+		v.OrderReason += " A riser's differential controller is set with its riser: its new set point is the least that serves the branches of its span with the partner valve fully open, so the settings inside the span depend on that set point alone, and its check is the differential across the span."
+	}
 	v.Settings = settingsTable(plan, u, "Valve settings")
 	v.Settings.WriteIn = []string{"Set", "Read after", "Initials"}
 	if r := j.Remedy[""]; r != nil && settingsDiffer(plan, r.Plan) {
@@ -417,7 +430,7 @@ func (j *job) pumpStep(u display) report.PumpStep {
 // the plan (risers included), each setting with its unit and check reading.
 func settingsTable(p *balance.Plan, u display, title string) report.Table {
 	t := report.Table{Title: title, Columns: []string{"#", "Branch", "Valve", "Now", "Set to", "Check: valve Δp (" + u.DiffUnit + ")", "Flow (" + u.FlowUnit + ")"}}
-	for k, b := range p.Branches {
+	for _, b := range p.Branches {
 		now, set, check := "", "no valve", ""
 		if b.Valve != "" {
 			now, set = withUnit(b.Current, b.Unit), withUnit(b.New, b.Unit)
@@ -426,7 +439,12 @@ func settingsTable(p *balance.Plan, u display, title string) report.Table {
 			}
 			check = u.diffNum(b.ValveDiff)
 		}
-		t.Rows = append(t.Rows, []string{fmt.Sprint(k + 1), b.ID, b.Valve, now, set, check, u.flowNum(b.Target)})
+		t.Rows = append(t.Rows, []string{fmt.Sprint(len(t.Rows) + 1), b.ID, b.Valve, now, set, check, u.flowNum(b.Target)})
+		if c := p.Controller(b.ID); c != nil {
+			// Its set point; the check is the span's differential.
+			t.Rows = append(t.Rows, []string{fmt.Sprint(len(t.Rows) + 1), b.ID, balance.ControllerValve, u.diff(c.Current), "set point " + u.diff(c.SetPoint),
+				"span " + u.diffNum(c.Span), u.flowNum(b.Target)})
+		}
 	}
 	return t
 }

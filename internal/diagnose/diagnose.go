@@ -30,10 +30,12 @@ const (
 	Undetermined                      // the survey does not pin the branch down
 	ValveStarved                      // a pressure-independent valve below its hold differential
 	ValveOffFlow                      // a pressure-independent valve's setting does not give its flow
+	ControllerOpen                    // a differential controller lies wide open, not holding
+	ControllerOffSet                  // a differential controller's span does not read its set point
 )
 
 var codeNames = [...]string{"", "restricted", "free", "valve-stuck", "valve-mis-set", "suspect-reading", "cannot-reach-design", "undetermined",
-	"valve-starved", "valve-off-flow"}
+	"valve-starved", "valve-off-flow", "controller-wide-open", "controller-off-set-point"}
 
 func (c Code) String() string {
 	if c > 0 && int(c) < len(codeNames) {

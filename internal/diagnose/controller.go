@@ -1,0 +1,63 @@
+package diagnose
+
+import (
+	"fmt"
+	"math"
+)
+
+// Controller is the evidence about one riser's differential controller.
+type Controller struct {
+	ID       string
+	SetPoint float64 // Pa, as recorded
+	// Open reports that the calibrated model has the controller wide open
+	// in state State, its span reading Span (Pa) below the set point: the
+	// riser's supply does not give the set point plus the valve's drop.
+	Open  bool
+	State string
+	Span  float64
+	// Readings are the survey's readings of the span, in states where the
+	// model has the controller throttling (so its span should read the set
+	// point).
+	Readings []SpanReading
+}
+
+// SpanReading is one reading across a controller's span.
+type SpanReading struct {
+	Label, State string
+	Value, Sigma float64 // Pa; Sigma a standard uncertainty
+}
+
+// Controllers returns the findings about differential controllers: one
+// wide open where its model says so, and one whose span reads off its set
+// point beyond the reading's expanded uncertainty (k = 2) while the model
+// has it throttling.
+func Controllers(cs []Controller, t Thresholds) []Finding {
+	t = t.withDefaults()
+	var out []Finding
+	for _, c := range cs {
+		if c.Open {
+			out = append(out, Finding{Code: ControllerOpen, Severity: Warning, Branch: c.ID, Confidence: math.NaN(),
+				Message:  "the differential controller lies wide open: the riser's supply is less than its set point plus its valve's drop, so its branches get less than the set point",
+				Evidence: fmt.Sprintf("in state %q the model has its span at %.1f kPa against a set point of %.1f kPa", c.State, c.Span/1e3, c.SetPoint/1e3),
+				Action:   "give the riser more differential (see the pump step of the plan) or, if its branches need less, lower the set point"})
+		}
+		for _, r := range c.Readings {
+			if !(r.Sigma > 0) {
+				continue
+			}
+			z := (r.Value - c.SetPoint) / r.Sigma
+			if math.Abs(z) <= 2 {
+				continue
+			}
+			conf := 2*normalCDF(math.Abs(z)) - 1
+			if conf < t.Confidence {
+				continue
+			}
+			out = append(out, Finding{Code: ControllerOffSet, Severity: Fault, Branch: c.ID, Reading: r.Label, Confidence: conf,
+				Message:  "the span of the differential controller does not read its set point although its valve could still throttle: a set point other than recorded, a blocked or misconnected sensing line, or a faulty controller",
+				Evidence: fmt.Sprintf("read %.1f kPa ± %.1f kPa (k = 2) in state %q against a set point of %.1f kPa", r.Value/1e3, 2*r.Sigma/1e3, r.State, c.SetPoint/1e3),
+				Action:   "check the controller's set point scale and its sensing line, then read across the span again"})
+		}
+	}
+	return out
+}
