@@ -123,7 +123,9 @@ its own return size or bore, return standard and return roughness, and put
 each leg's own loss coefficients in supply k and return k. Blank return
 columns take the header's. In a reverse-return header the return leg runs
 from the first take-off onwards, so the first row's return leg is the return
-main from the last take-off back to the pump. Required.`,
+main from the last take-off back to the pump. A riser whose differential a
+controller holds gives it in the controller columns (flowset help
+controllers). Required.`,
 	"valves": `The valves sheet defines the regulating valve models the branches name,
 one row per point of each model's Kv table ("long" format): settings must
 rise down the table and Kv must rise with them. A valve without a table is
@@ -152,6 +154,7 @@ branch id, pump or header) and what it measures:
   pump diff    differential across the pump               at pump
   total flow   flow through the pump                      at pump or header
   speed        the drive's displayed speed                at pump
+  controlled diff  differential a riser's controller holds    at a riser with a controller
 The unit column gives the unit of value and uncertainty for that row; a
 speed is a ratio to rated speed, or a percentage with unit %. A
 setting records a valve moved for that reading; blank means the as-found
@@ -214,8 +217,82 @@ func Topics() []Topic {
 		}
 		out = append(out, Topic{Name: sc.name, Title: sheetTitles[sc.name], Body: b.String()})
 	}
-	out = append(out, pressureIndependentTopic(), unitsTopic(), instrumentsTopic())
+	out = append(out, pressureIndependentTopic(), controllersTopic(), unitsTopic(), instrumentsTopic())
 	return out
+}
+
+// controllerExample is the controllers topic's example: the help's example
+// site with a differential controller on riser R1 and a reading across its
+// span (TestTopics reads it).
+var controllerExample = map[string]string{
+	"branches": `id,parent,design flow [l/s],pipe standard,pipe size,pipe length [m],terminal drop [kPa],valve,setting,supply length [m],return length [m],header standard,header size,controller set point [kPa],controller kvs,controller min [kPa],controller max [kPa]
+R1,,1.20,en10255-m,DN40,12,0,V25,4,8,8,en10255-m,DN65,25,16,5,50
+R1.1,R1,0.40,en10255-m,DN20,25,10,V15,2.0,0,0,,,,,,
+R1.2,R1,0.80,en10255-m,DN25,30,12,V15,4.0,3,3,en10255-m,DN40,,,,
+R2,,0.60,en10255-m,DN25,40,15,V15,3.0,15,17,en10255-m,DN50,,,,
+`,
+	"readings": `state,where,quantity,value,unit,setting,instrument
+as-found,R1.1,flow,0.52,l/s,,clamp-on
+as-found,R1,controlled diff,24.6,kPa,,manometer
+as-found,R2,branch diff,31,kPa,,manometer
+as-found,pump,pump diff,62,kPa,,gauge
+after-change,R1,controlled diff,25.1,kPa,,manometer
+`,
+}
+
+func controllersTopic() Topic {
+	var b strings.Builder
+	b.WriteString(`A differential-pressure controller on a riser or a branch group holds the
+differential across that sub-circuit whatever the rest of the plant does: a
+self-acting valve in the riser's return, its sensing line taken to the
+riser's supply, usually with a partner (measuring) valve on the supply.
+flowset takes the controller's valve to sit in the riser's return and its
+sensor to read from the riser's supply take-off to the controller, so the
+span it holds is the riser's own pipe and valve (the partner valve: the
+riser's valve column) and every branch that hangs from the riser.
+
+The controller throttles until the span reads its set point. When the riser
+gets less than the set point plus the drop of the controller's valve wide
+open, it cannot: it lies wide open (its Kvs), and the span reads less.
+
+Give the controller on the riser's row of the branches sheet:
+  controller set point [kPa]   the differential it holds as found (blank: none)
+  controller kvs               its valve's Kvs wide open (controller cvs: US Cv)
+  controller min [kPa]         lowest set point it can be given (optional)
+  controller max [kPa]         highest set point it can be given (optional)
+Only a branch that other branches hang from can have one. Read the span with
+the quantity "controlled diff" at the riser (readings sheet): at the partner
+valve's supply tapping and the controller's sensing point on the return.
+
+What flowset does with it:
+  check   lists each controller with its set point, Kvs and range.
+  curves  says where each controller starts to hold (the riser differential
+          and the flow it then holds) and whether it holds now.
+  fit     holds each span at its set point where the plant gives enough,
+          and flags a controller that lies wide open, or whose span reads
+          off its set point beyond the reading's uncertainty (k = 2): a set
+          point other than recorded, a blocked sensing line, a faulty
+          controller.
+  plan    sets each controller to the least set point that serves the
+          index branch of its span with the partner valve fully open (within
+          its range: a higher lowest set point leaves the rest to the partner
+          valve), plans the settings inside the span for that set point
+          alone, and sets the pump to give every controller on the index
+          path its set point plus its valve's wide-open drop. The field
+          sheet lists the new set point after the riser's valve, with the
+          span differential to check.
+
+Example branches.csv (riser R1 held at 25 kPa, its valve V25 the partner valve):
+`)
+	for _, sheet := range []string{"branches", "readings"} {
+		if sheet == "readings" {
+			b.WriteString("\nExample readings.csv (the span read at R1):\n")
+		}
+		for _, line := range strings.Split(strings.TrimRight(controllerExample[sheet], "\n"), "\n") {
+			b.WriteString("  " + line + "\n")
+		}
+	}
+	return Topic{Name: "controllers", Title: "differential-pressure controllers on risers and branch groups", Body: b.String()}
 }
 
 func sheetsTopic() Topic {
@@ -228,7 +305,8 @@ func sheetsTopic() Topic {
   states.csv     pump speed or set point per state       optional
   targets.csv    flows to balance to other than design   optional
 In a workbook each sheet is a tab of the same name without ".csv".
-"flowset help <sheet>" describes each one.
+"flowset help <sheet>" describes each one; "flowset help controllers" how
+a riser's differential controller is given.
 
 CSV files:
   - UTF-8, with or without a byte order mark; save from a spreadsheet as

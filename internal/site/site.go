@@ -186,8 +186,8 @@ type Branch struct {
 type Controller struct {
 	SetPoint float64 // Pa, as found; 0 = no controller
 	Kvs      float64 // m3/h at 1 bar, wide open
-	// Min and Max bound the set point the controller can be given, Pa; NaN
-	// (or 0, in a Site built in code) when not given.
+	// Min and Max bound the set point the controller can be given, Pa; 0
+	// when not given.
 	Min, Max float64
 }
 

@@ -402,7 +402,7 @@ func TestTopics(t *testing.T) {
 			t.Errorf("topic %q: title %q, body of %d bytes", tp.Name, tp.Title, len(tp.Body))
 		}
 	}
-	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "pressure-independent", "units", "instruments"}
+	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "pressure-independent", "controllers", "units", "instruments"}
 	if diff := cmp.Diff(wantNames, names); diff != "" {
 		t.Errorf("topic names (-want +got):\n%s", diff)
 	}
@@ -425,6 +425,17 @@ func TestTopics(t *testing.T) {
 	}
 	if _, p, err := ReadDir(fsys, "."); err != nil || len(p) > 0 {
 		t.Errorf("the help examples do not read cleanly: %v\n%v", err, p)
+	}
+	// The controllers topic's example, on the rest of the example site.
+	for name, text := range controllerExample {
+		fsys[name+".csv"] = &fstest.MapFile{Data: []byte(text)}
+	}
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("the controllers example does not read cleanly: %v\n%v", err, p)
+	}
+	if c := s.Branch("R1").Controller; c.SetPoint != 25e3 || c.Kvs != 16 || c.Min != 5e3 || c.Max != 50e3 {
+		t.Errorf("R1's controller %+v, want 25 kPa, Kvs 16, 5-50 kPa", c)
 	}
 }
 
@@ -708,5 +719,46 @@ func TestPressureIndependentExample(t *testing.T) {
 	}
 	if diff := cmp.Diff(s.Valves, got.Valves, sameSite); diff != "" {
 		t.Errorf("valves round trip (-before +after):\n%s", diff)
+	}
+}
+
+// TestRoundTripController writes a site with a differential controller (and
+// a reading across its span) and reads it back, as CSV and as a workbook.
+func TestRoundTripController(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		ctl  Controller
+	}{
+		{"with range", Controller{SetPoint: 25e3, Kvs: 16, Min: 5e3, Max: 50e3}},
+		{"no range", Controller{SetPoint: 32.5e3, Kvs: 6.3}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			want := readSmall(t)
+			want.Branch("R2").Controller = c.ctl
+			want.Readings = append(want.Readings, Reading{State: "as-found", Where: "R2", What: ControlledDiff, Value: 24.5e3,
+				Setting: nan, Instrument: "manometer", Sigma: 250})
+			fsys := fstest.MapFS{}
+			if err := WriteDir(want, mapCreate(fsys)); err != nil {
+				t.Fatalf("WriteDir: %v", err)
+			}
+			got, p, err := ReadDir(fsys, ".")
+			if err != nil || len(p) > 0 {
+				t.Fatalf("ReadDir after WriteDir: %v\n%v", err, p)
+			}
+			if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+				t.Errorf("round trip (-before +after):\n%s", diff)
+			}
+			var buf bytes.Buffer
+			if err := WriteWorkbook(want, &buf); err != nil {
+				t.Fatalf("WriteWorkbook: %v", err)
+			}
+			got, p, err = ReadWorkbook(bytes.NewReader(buf.Bytes()), int64(buf.Len()), "out.xlsx")
+			if err != nil || len(p) > 0 {
+				t.Fatalf("ReadWorkbook after WriteWorkbook: %v\n%v", err, p)
+			}
+			if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+				t.Errorf("workbook round trip (-before +after):\n%s", diff)
+			}
+		})
 	}
 }
