@@ -56,6 +56,10 @@ type TrimOptions struct {
 	// trimmed (one the fit found not following its handwheel: a trim
 	// would not move it).
 	Hold []bool
+	// Read marks, by model index, the branches read in the as-left state;
+	// when given, only those are trimmed and the others outside the band
+	// are named to be read first. nil: every branch may be trimmed.
+	Read []bool
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -178,7 +182,15 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		tp.PumpLeft, tp.PumpNew = left.Speed, left.Speed
 	}
 	if m.Site.Boundary.Kind != site.MeasuredDiff {
-		x, err := centre(ctx, m, p, left, target, tp.BySpeed)
+		// The branches the pump centres: those inside the tolerance as
+		// left, whose valves work. The others are the trims' (or cannot
+		// be helped), and one far out would drag the pump after it.
+		use := make([]bool, n)
+		for i := range use {
+			b := &m.Branches[i]
+			use[i] = target[i] > 0 && !b.Riser() && !(i < len(o.Hold) && o.Hold[i]) && in(solL.Flow(i)/target[i], 1)
+		}
+		x, err := centre(ctx, m, p, left, target, use, tp.BySpeed)
 		if err != nil {
 			return nil, err
 		}
@@ -224,6 +236,13 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			}
 			if i < len(o.Hold) && o.Hold[i] {
 				note[i] = "its valve does not follow its handwheel: a trim would not move it (see the findings)"
+				continue
+			}
+			if o.Read != nil && !(i < len(o.Read) && o.Read[i]) {
+				// The model's view of a branch nobody read after setting
+				// moves with every other reading: read it before turning
+				// its valve.
+				note[i] = "not read after setting: read it before trimming"
 				continue
 			}
 			s, err := trimSetting(m, p, sol, i, target[i])
@@ -353,14 +372,14 @@ func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q flo
 }
 
 // centre returns the pump speed (bySpeed) or source differential that, with
-// the valves as left, brings the branches nearest their targets: least
-// squares in ln(q/target) over the terminals, by golden-section search
+// the valves as left, brings the branches marked use nearest their targets:
+// least squares in ln(q/target), by golden-section search
 // between 0.85 and 1.15 times the value as left (a speed at most the
 // pump's maximum). The valves keep their settings, so a pump moved this
 // way leaves the trims only the branches the pump cannot centre; the
 // re-computed plan's own pump is for its own settings, and moving to it
 // with the valves as left moves every branch.
-func centre(ctx context.Context, m *plant.Model, p plant.Params, left plant.State, target []float64, bySpeed bool) (float64, error) {
+func centre(ctx context.Context, m *plant.Model, p plant.Params, left plant.State, target []float64, use []bool, bySpeed bool) (float64, error) {
 	x0 := left.Differential
 	if bySpeed {
 		x0 = left.Speed
@@ -389,7 +408,7 @@ func centre(ctx context.Context, m *plant.Model, p plant.Params, left plant.Stat
 		}
 		var c float64
 		for i := range target {
-			if target[i] > 0 && !m.Branches[i].Riser() {
+			if use[i] {
 				d := math.Log(sol.Flow(i) / target[i])
 				c += d * d
 			}

@@ -3,6 +3,7 @@ package balance
 import (
 	"context"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"flowset/internal/plant"
@@ -46,6 +47,7 @@ func TestTrimOneBranch(t *testing.T) {
 		name     string
 		ratio    float64
 		hold     bool
+		unread   bool // the off branch was not read after setting (every other was)
 		trimmed  int  // how many branches trimmed
 		offIn    bool // the off branch ends in tolerance
 		verdicts bool // the off branch proven out, every other proven in
@@ -54,6 +56,8 @@ func TestTrimOneBranch(t *testing.T) {
 		{name: "one branch inside the band but in its outer half", ratio: 0.3, trimmed: 1, offIn: true},
 		{name: "nothing off", ratio: 1, trimmed: 0, offIn: true},
 		{name: "off, but its valve does not follow its handwheel", ratio: 4, hold: true, trimmed: 0, offIn: false},
+		{name: "off, but not read after setting", ratio: 4, unread: true, trimmed: 0, offIn: false},
+		{name: "off and read after setting", ratio: 4, trimmed: 1, offIn: true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			c := newTrimCase(t, tc.ratio)
@@ -71,6 +75,12 @@ func TestTrimOneBranch(t *testing.T) {
 			if tc.hold {
 				opt.Hold = make([]bool, len(m.Branches))
 				opt.Hold[c.off] = true
+			}
+			if tc.unread || strings.HasSuffix(tc.name, "read after setting") {
+				opt.Read = make([]bool, len(m.Branches))
+				for i := range opt.Read {
+					opt.Read[i] = !tc.unread || i != c.off
+				}
 			}
 			tp, err := Trim(ctx, m, c.truth, replan, left, opt)
 			if err != nil {
@@ -95,7 +105,7 @@ func TestTrimOneBranch(t *testing.T) {
 						t.Errorf("%s: %v as left (%.1f %%, band %.1f-%.1f), want %v", b.ID, b.Verdict, b.LeftPercent, b.LeftLow, b.LeftHigh, want)
 					}
 				}
-				if tc.hold && b.Index == c.off && b.Note == "" {
+				if (tc.hold || tc.unread) && b.Index == c.off && b.Note == "" {
 					t.Errorf("%s held but without a note", b.ID)
 				}
 			}
@@ -116,5 +126,43 @@ func TestTrimOneBranch(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestTrimPump: a pump that gives less head than the plan took (every
+// branch low by about the same fraction) is corrected by the pump alone,
+// no valve turned, and the network solve then puts every branch back near
+// its target.
+func TestTrimPump(t *testing.T) {
+	ctx := context.Background()
+	c := newTrimCase(t, 1)
+	m := c.m
+	truth := m.Design()
+	truth.PumpHead = 0.85
+	u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches)), LnPumpHead: 0.01}
+	for i := range u.LnResistance {
+		u.LnResistance[i] = 0.01
+	}
+	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
+	left := c.plan.State()
+	tp, err := Trim(ctx, m, truth, replan, left, &TrimOptions{Uncertainty: u})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !tp.PumpChanged || !(tp.PumpNew > tp.PumpLeft) {
+		t.Errorf("pump from %g to %g (changed %v): want it raised", tp.PumpLeft, tp.PumpNew, tp.PumpChanged)
+	}
+	if tp.Trimmed != 0 {
+		t.Errorf("%d valves trimmed, want none", tp.Trimmed)
+	}
+	sol, err := m.Solve(ctx, truth, tp.State())
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range m.Branches {
+		// Within half the ±10 % band (shared/references.md §6).
+		if r := sol.Flow(i) / m.Branches[i].Target; r < 0.95 || r > 1.05 {
+			t.Errorf("%s at %.1f %% of target after the pump correction", m.Branches[i].ID, 100*r)
+		}
 	}
 }

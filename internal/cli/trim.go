@@ -174,8 +174,13 @@ func (j *job) trim(ctx context.Context, k int) error {
 		}
 	}
 	j.readLeft = map[string]bool{}
+	opt.Read = make([]bool, len(m.Branches))
 	for _, ri := range m.States[k].Readings {
-		j.readLeft[j.L.Site.Readings[ri].Where] = true
+		id := j.L.Site.Readings[ri].Where
+		j.readLeft[id] = true
+		if i, ok := m.Index(id); ok {
+			opt.Read[i] = true
+		}
 	}
 	tp, err := balance.Trim(ctx, m, j.Params, j.Plan, m.States[k], opt)
 	if err != nil {
