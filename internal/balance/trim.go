@@ -126,10 +126,11 @@ func (t *TrimPlan) State() plant.State {
 // predicted with its band and judged against the tolerance. The pump is
 // corrected, with the valves as left, to the value that brings the branches
 // nearest their targets (centre) when that differs by over half a per cent.
-// Then, over a few passes of the whole network, every branch whose 95 %
-// band (its spread as left about the pass's prediction) lies wholly outside
-// the inner part of the tolerance (Inner of it) gets the setting that gives
-// its target at the differential it sees: its valve drops that differential less
+// Then, over a few passes of the whole network, every branch read after
+// setting (TrimOptions.Read) that is predicted outside the inner part of the
+// tolerance (Inner of it) and whose 95 % band (its spread as left about the
+// pass's prediction) leaves out its target gets the setting that gives its
+// target at the differential it sees: its valve drops that differential less
 // its fixed parts' drop at target, rounded to the handwheel mark whose flow
 // (square law) is nearest the target. Risers are not trimmed: their
 // sub-branches are. Branches held (TrimOptions.Hold) and those whose valve
@@ -225,13 +226,12 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			if b.Valve == nil || b.Riser() || !(target[i] > 0) {
 				continue
 			}
-			// Trimmed only when its band as left lies wholly beyond the
-			// inner band: a branch the readings cannot place there is
-			// read again first, not turned on a model's guess (seen on an
-			// independent plant: a flow meter reading 20 % low after
-			// setting would have had a branch at 110 % opened to 131 %).
+			// Trimmed only when it is predicted beyond the inner band and
+			// its band as left (about the pass's prediction) leaves out
+			// the target: a branch the readings cannot place off target
+			// is read again first, not turned on the model's guess.
 			r := sol.Flow(i) / target[i]
-			if r*math.Exp(k*sdL[i]) >= 1+o.Inner*tp.ToleranceLow && r*math.Exp(-k*sdL[i]) <= 1+o.Inner*tp.ToleranceHigh {
+			if in(r, o.Inner) || r*math.Exp(-k*sdL[i]) <= 1 && r*math.Exp(k*sdL[i]) >= 1 {
 				continue
 			}
 			if i < len(o.Hold) && o.Hold[i] {
