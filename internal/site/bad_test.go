@@ -20,6 +20,9 @@ const rdBase = "as-found,A,flow,0.45,l/s,clamp-on\n"
 // pumpCurve is a pump sheet for cases that need a pump boundary.
 const pumpCurve = "flow [l/s],head [m]\n0,8\n1,7\n2,5\n"
 
+// twoPumps is a pump sheet of two pumps, the second smaller.
+const twoPumps = "pump,flow [l/s],head [m]\nP1,0,8\nP1,1,7\nP1,2,5\nP2,0,6\nP2,1,5\nP2,1.5,4\n"
+
 var badCases = []badCase{
 	// Accepted variants: no problems at all.
 	{name: "byte order mark", files: map[string]string{"branches.csv": "\ufeff" + base["branches.csv"]}},
@@ -594,7 +597,7 @@ var badCases = []badCase{
 	{name: "site unknown and duplicate keys", files: map[string]string{"site.csv": "key,value\nname,Annex\ncolour,blue\ntemprature [degC],12\nname,Annex 2\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, density, viscosity, kinematic viscosity, header, boundary, speed, max speed, set point, static lift, outlet pressure, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
+			"site.csv:3:1: warning: field \"colour\": unknown key, ignored (want one of: name, fluid, glycol, temperature, density, viscosity, kinematic viscosity, header, boundary, speed, max speed, set point, static lift, outlet pressure, pump arrangement, pumps running, sensor, hours, energy price, currency, pump efficiency, motor efficiency, tolerance low, tolerance high, units)",
 			"site.csv:4:1: warning: field \"temprature\": unknown key, ignored (want \"temperature\")",
 			"site.csv:5:1: field \"name\": key given twice (want one \"name\" line; the first is line 2)",
 		}},
@@ -739,6 +742,45 @@ var badCases = []badCase{
 		want: []string{
 			"pump.csv:1:2: field \"head\": value \"kPa\": unit \"kPa\" is a pressure, not a head (want a head unit: m or ft of the pumped fluid; convert a pressure to head with the fluid's density)",
 		}},
+	{name: "several pumps", files: map[string]string{"site.csv": "pumps running,1\n", "pump.csv": twoPumps,
+		"readings.csv": rdHead + rdBase + "after,A,flow,0.5,l/s,clamp-on\n", "states.csv": "state,pumps running\nafter,2\n"}},
+	{name: "pump ids on some rows only", files: map[string]string{"pump.csv": "pump,flow [l/s],head [m]\nP1,0,8\nP1,1,7\n,2,5\nP1,3,2\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:4:1: field \"pump\": blank (want the id of the pump this point belongs to; other rows name their pump)",
+		}},
+	{name: "pump id after rows without one", files: map[string]string{"pump.csv": "pump,flow [l/s],head [m]\n,0,8\n,1,7\n,2,5\nP2,0,6\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:5:1: field \"pump\": value \"P2\": a pump id where earlier rows have none (want an id on every row (several pumps), or on none (one pump))",
+		}},
+	{name: "second pump with two points", files: map[string]string{"pump.csv": "pump,flow [l/s],head [m]\nP1,0,8\nP1,1,7\nP1,2,5\nP2,0,6\nP2,1,5\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:1: pump P2: pump curve has only two usable points (want at least three flow and head points, for the quadratic fit of the curve)",
+		}},
+	{name: "pump flows rise per pump, ids folded", files: map[string]string{"pump.csv": "pump,flow [l/s],head [m],speed\nP1,0,8,0.9\nP2,0,6,\nP1,1,7,0.8\nP2,1,5,\np1,2,5,\nP2,0.5,4,\nP1,2,5,\n"},
+		cause: ErrMissing,
+		want: []string{
+			"pump.csv:1: pump P1: pump curve has only two usable points (want at least three flow and head points, for the quadratic fit of the curve)",
+			"pump.csv:1: pump P2: pump curve has only two usable points (want at least three flow and head points, for the quadratic fit of the curve)",
+			"pump.csv:4:4: field \"speed\": value \"0.8\": a second speed for this pump (want the speed given on line 2, 0.9, or blank)",
+			"pump.csv:6:1: field \"pump\": value \"p1\": pump id differs from \"P1\" on line 2 only in letter case (want names that differ in more than letter case)",
+			"pump.csv:7:2: field \"flow\": value \"0.5\": flows must rise down the curve (want a flow above line 5's)",
+		}},
+	{name: "pumps running beyond the pump sheet", files: map[string]string{"site.csv": "pumps running,3\npump arrangement,series\n", "pump.csv": twoPumps,
+		"readings.csv": rdHead + rdBase + "after,A,flow,0.5,l/s,clamp-on\nmore,A,flow,0.5,l/s,clamp-on\n", "states.csv": "state,pumps running\nafter,1.5\nmore,1\n"},
+		cause: ErrRange,
+		want: []string{
+			"site.csv:1:2: field \"pumps running\": value \"3\": more pumps than the pump sheet's 2 (want a count from 1 to 2)",
+			"states.csv:2:2: field \"pumps running\": value \"1.5\": not a whole number of pumps (want a count such as 1 or 2)",
+			"states.csv:3:2: field \"pumps running\": value \"1\": pumps in series all run (want 2, or pump arrangement parallel (a pump standing by in series still passes the flow))",
+		}},
+	{name: "pump named as a branch", files: map[string]string{"pump.csv": strings.ReplaceAll(twoPumps, "P2", "B")},
+		cause: ErrDuplicate,
+		want: []string{
+			"pump.csv:5:1: field \"pump\": value \"B\": a branch has this id (want a pump id no branch uses, so readings can name it)",
+		}},
 	{name: "states sheet", files: map[string]string{"site.csv": "boundary,pump\n", "pump.csv": pumpCurve,
 		"readings.csv": "state,where,quantity,value,unit,instrument\nas-found,A,flow,0.45,l/s,clamp-on\nafter,A,flow,0.4,l/s,clamp-on\n",
 		"states.csv":   "state,speed [%],set point [kPa],note\nas-found,90,,\nAfter,80,50,\nafter,70,,\nmoved,85,,\n,80,,\nas-fond,95,,\n"},
@@ -773,7 +815,7 @@ var badCases = []badCase{
 		cause: ErrMissing,
 		want: []string{
 			"states.csv:1: field \"state\": column is missing (want a column named \"state\")",
-			"states.csv:1:1: warning: field \"label\": unknown column, ignored (want one of: state, speed, set point, note)",
+			"states.csv:1:1: warning: field \"label\": unknown column, ignored (want one of: state, speed, set point, pumps running, note)",
 		}},
 	{name: "header legs without sizes", files: map[string]string{"site.csv": "header,reverse-return\n",
 		"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],supply length [m],return length [m],header standard,header bore [mm],return standard,return size,return bore [mm]\n" +

@@ -143,7 +143,37 @@ no branch names a valve.`,
 	"pump": `The pump sheet is the pump's head curve at nominal speed: flows rising down
 the sheet, head in height of the pumped fluid (m or ft; not a pressure).
 At least three points: the curve is fitted as a quadratic. Optional; when present
-the boundary defaults to pump.`,
+the boundary defaults to pump.
+
+Several pumps on one circuit: a pump column names the pump of each row, and
+each pump gives its own curve (three points or more; identical pumps repeat
+theirs). List them in the order they start, duty first. The site sheet says
+how they work together: pump arrangement parallel (the default: each through
+its own non-return valve into common headers; the flows add at equal head,
+and a pump whose shut-off head is below the common head gives nothing) or
+series (one feeding the next; the heads add at equal flow), and pumps
+running (how many of them run, the first ones listed; default all). A
+standby pump is listed and not counted as running: duty/standby is two pumps
+with pumps running 1, duty/assist is pumps running 1 in one survey state and
+2 in another (the states sheet's pumps running column). All the pumps run at
+the site's (or the state's) speed, on one drive or on drives set alike; a
+speed column gives a pump its own fixed speed instead (on any of its rows).
+The plan finds the speed or set point for the pumps running and says
+whether one pump fewer would serve, with the power of each. For example:
+
+  pump,flow [l/s],head [m],speed [%]
+  P1,0,9.0,
+  P1,1.5,8.4,
+  P1,3.0,6.8,
+  P2,0,9.0,
+  P2,1.5,8.4,
+  P2,3.0,6.8,
+  STBY,0,7.0,100
+  STBY,1.0,6.4,
+  STBY,2.0,5.0,
+
+with pump arrangement parallel and pumps running 2 in the site sheet: P1 and
+P2 run on one drive, STBY (its own fixed speed) stands by.`,
 	"readings": `The readings sheet holds every measurement of the visit, one per row. A
 reading names its state (as-found, after-change, ...), where it was taken (a
 branch id, pump or header) and what it measures:
@@ -173,8 +203,10 @@ nothing to calibrate.`,
 	"states": `The states sheet gives a survey state its own pump setting, one row per
 state: the speed the pump ran at (pump boundary) or the differential its
 controller held (constant-differential boundary). A state not listed runs at
-the site sheet's speed or set point; a blank cell does too. Every state
-named must appear in the readings sheet. Optional.`,
+the site sheet's speed or set point; a blank cell does too. A pumps running
+column gives the number of the pump sheet's pumps that ran in the state (the
+first ones listed), for a site of several pumps. Every state named must
+appear in the readings sheet. Optional.`,
 	"targets": `The targets sheet overrides the design flow of some branches as the flow to
 balance to, one row per branch. Optional.`,
 }
@@ -183,7 +215,7 @@ var sheetTitles = map[string]string{
 	"site":     "site.csv: fluid, boundary and running costs",
 	"branches": "branches.csv: the parallel branches and their headers",
 	"valves":   "valves.csv: regulating valve Kv tables and characteristics",
-	"pump":     "pump.csv: the pump curve",
+	"pump":     "pump.csv: the pump curve, or one curve per pump",
 	"readings": "readings.csv: what was measured on the visit",
 	"states":   "states.csv: the pump's speed or set point in each survey state",
 	"targets":  "targets.csv: flows to balance to other than design",

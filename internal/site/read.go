@@ -460,7 +460,22 @@ func readSiteSheet(t *table, s *Site, p *Problems) map[string]cellRef {
 	}
 	s.Currency = words["currency"]
 	s.Units = words["units"]
+	s.PumpSeries = words["pump arrangement"] == "series"
+	if v, ok := set["pumps running"]; ok {
+		if n, good := wholeCount(given["pumps running"], v, p); good {
+			s.PumpsRunning = n
+		}
+	}
 	return given
+}
+
+// wholeCount returns v as a count of pumps, reporting a fraction at ref.
+func wholeCount(ref cellRef, v float64, p *Problems) (int, bool) {
+	if v != math.Trunc(v) {
+		p.add(ref.problem(SeverityError, ErrRange, "not a whole number of pumps", "a count such as 1 or 2"))
+		return 0, false
+	}
+	return int(v), true
 }
 
 // branchRefs keeps where a branch's references were written.
@@ -1019,17 +1034,69 @@ func readPump(t *table, p *Problems) []PumpPoint {
 		return nil
 	}
 	var out []PumpPoint
+	// Per pump id (folded as ids are): its first row, its last point and
+	// its own speed, for the checks between rows of one pump.
+	type pumpSeen struct {
+		id        string
+		line, n   int
+		last      PumpPoint
+		speed     float64
+		speedLine int
+	}
+	seen := map[string]*pumpSeen{}
+	var order []string
+	firstNamed := 0 // 0 no row yet, 1 rows without ids, 2 rows with ids
 	for _, r := range t.rows {
 		ok := true
-		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}}
+		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}, Speed: nan}
+		idOK := true
+		pt.Pump = sr.text(r, "pump", &idOK)
 		pt.Flow = sr.need(r, "flow", &ok)
 		pt.Head = sr.need(r, "head", &ok)
+		var speedOK bool
+		pt.Speed, speedOK = sr.num(r, "speed")
 		sr.text(r, "note", &ok)
-		if !ok {
+		if !ok || !idOK || !speedOK {
 			continue
 		}
-		if n := len(out); n > 0 {
-			prev := out[n-1]
+		// The first usable row says whether the pumps are named.
+		if firstNamed == 0 {
+			firstNamed = 1
+			if pt.Pump != "" {
+				firstNamed = 2
+			}
+		}
+		if named := pt.Pump != ""; named != (firstNamed == 2) {
+			ref := sr.ref(r, "pump")
+			if named {
+				p.add(ref.problem(SeverityError, ErrMissing, "a pump id where earlier rows have none",
+					"an id on every row (several pumps), or on none (one pump)"))
+			} else {
+				p.add(ref.problem(SeverityError, ErrMissing, "blank", "the id of the pump this point belongs to; other rows name their pump"))
+			}
+			continue
+		}
+		key := idKey(pt.Pump)
+		ps, found := seen[key]
+		if !found {
+			ps = &pumpSeen{id: pt.Pump, line: r.line, speed: nan}
+			seen[key] = ps
+			order = append(order, key)
+		} else if ps.id != pt.Pump {
+			msg, want := sameIDMsg("pump id", pt.Pump, ps.id, ps.line)
+			p.add(sr.ref(r, "pump").problem(SeverityError, ErrDuplicate, msg, want))
+			continue
+		}
+		if !math.IsNaN(pt.Speed) {
+			if !math.IsNaN(ps.speed) && ps.speed != pt.Speed {
+				p.add(sr.ref(r, "speed").problem(SeverityError, ErrRange, "a second speed for this pump",
+					fmt.Sprintf("the speed given on line %d, %s, or blank", ps.speedLine, fmtNum(ps.speed))))
+				continue
+			}
+			ps.speed, ps.speedLine = pt.Speed, r.line
+		}
+		if ps.n > 0 {
+			prev := ps.last
 			if pt.Flow <= prev.Flow {
 				p.add(sr.ref(r, "flow").problem(SeverityError, ErrRange, "flows must rise down the curve",
 					fmt.Sprintf("a flow above line %d's", prev.Pos.Line)))
@@ -1040,19 +1107,40 @@ func readPump(t *table, p *Problems) []PumpPoint {
 					fmt.Sprintf("a head at or below line %d's, unless the curve really droops", prev.Pos.Line)))
 			}
 		}
+		ps.n++
+		ps.last = pt
 		out = append(out, pt)
 	}
-	// The model fits a quadratic head curve, which takes three points.
-	if len(out) < 3 && len(sr.broken) == 0 {
-		msg := "pump curve has no usable points"
-		switch len(out) {
-		case 1:
-			msg = "pump curve has only one usable point"
-		case 2:
-			msg = "pump curve has only two usable points"
+	// A pump's speed given on one of its rows holds for all of them.
+	for i := range out {
+		if ps := seen[idKey(out[i].Pump)]; ps != nil {
+			out[i].Speed = ps.speed
 		}
-		p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: msg,
-			Want: "at least three flow and head points, for the quadratic fit of the curve"})
+	}
+	// The model fits a quadratic head curve, which takes three points.
+	if len(sr.broken) == 0 {
+		if len(order) == 0 {
+			order = []string{""}
+			seen[""] = &pumpSeen{}
+		}
+		for _, key := range order {
+			ps := seen[key]
+			if ps.n >= 3 {
+				continue
+			}
+			msg := "pump curve has no usable points"
+			switch ps.n {
+			case 1:
+				msg = "pump curve has only one usable point"
+			case 2:
+				msg = "pump curve has only two usable points"
+			}
+			if ps.id != "" {
+				msg = fmt.Sprintf("pump %s: %s", Printable(ps.id), msg)
+			}
+			p.add(&Error{File: t.file, Line: t.headerLine, Err: ErrMissing, Msg: msg,
+				Want: "at least three flow and head points, for the quadratic fit of the curve"})
+		}
 	}
 	return out
 }
@@ -1203,10 +1291,14 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 		sp, good1 := sr.num(r, "speed")
 		set, good2 := sr.num(r, "set point")
 		st.Speed, st.SetPoint = sp, set
+		running, good3 := sr.num(r, "pumps running")
+		if good3 && !math.IsNaN(running) {
+			st.Running, good3 = wholeCount(sr.ref(r, "pumps running"), running, p)
+		}
 		st.Note = sr.text(r, "note", &ok)
 		ref := sr.ref(r, "state")
 		switch {
-		case !ok || !good1 || !good2:
+		case !ok || !good1 || !good2 || !good3:
 			continue
 		case st.Label == "":
 			p.add(ref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
@@ -1236,6 +1328,9 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 				continue
 			}
 		}
+		if st.Running > 0 && !checkRunning(s, st.Running, sr.ref(r, "pumps running"), p) {
+			continue
+		}
 		if !math.IsNaN(st.SetPoint) && b.Kind != ConstantDiff {
 			p.add(sr.ref(r, "set point").problem(SeverityWarning, ErrRange, fmt.Sprintf("set point ignored with boundary %s", b.Kind),
 				"boundary constant-differential"))
@@ -1244,6 +1339,25 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 		out = append(out, st)
 	}
 	return out
+}
+
+// checkRunning checks a number of pumps running against the pump sheet,
+// reporting at ref what is wrong.
+func checkRunning(s *Site, n int, ref cellRef, p *Problems) bool {
+	ids := s.Pumps()
+	switch {
+	case len(ids) == 0:
+		p.add(ref.problem(SeverityWarning, ErrRange, "pumps running ignored: there is no pump sheet", "a pump sheet with a curve per pump"))
+	case n > len(ids):
+		p.add(ref.problem(SeverityError, ErrRange, fmt.Sprintf("more pumps than the pump sheet's %d", len(ids)),
+			fmt.Sprintf("a count from 1 to %d", len(ids))))
+		return false
+	case s.PumpSeries && n < len(ids):
+		p.add(ref.problem(SeverityError, ErrRange, "pumps in series all run",
+			fmt.Sprintf("%d, or pump arrangement parallel (a pump standing by in series still passes the flow)", len(ids))))
+		return false
+	}
+	return true
 }
 
 // placeWant returns what a reading of q should name as its place, or ""
@@ -1651,6 +1765,23 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 			ids[i] = br.ID
 		}
 		p.add(at("sensor").problem(SeverityError, ErrReference, "no branch has this id", refWant("pump or a branch id", b.Sensor, ids)))
+	}
+	if s.PumpsRunning > 0 && !checkRunning(s, s.PumpsRunning, at("pumps running"), p) {
+		s.PumpsRunning = 0
+	}
+	if s.PumpSeries && len(s.Pumps()) < 2 {
+		p.add(at("pump arrangement").problem(SeverityWarning, ErrRange, "pump arrangement ignored: the pump sheet has one pump",
+			"pump ids on the pump sheet, one per pump"))
+	}
+	for _, pt := range s.Pump {
+		if pt.Pump != "" && s.Branch(pt.Pump) != nil {
+			ref := cellRef{file: pt.Pos.File, line: pt.Pos.Line, field: "pump", value: pt.Pump}
+			if t := in.tables[pumpColumns.name]; t != nil {
+				ref.col = t.columns["pump"]
+			}
+			p.add(ref.problem(SeverityError, ErrDuplicate, "a branch has this id", "a pump id no branch uses, so readings can name it"))
+			break
+		}
 	}
 	if s.Header == NoHeaderLoss {
 		for i, br := range s.Branches {

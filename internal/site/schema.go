@@ -67,6 +67,7 @@ const (
 	maxHead     = 1000 // m
 	maxKv       = 1e5  // m3/h
 	maxSetting  = 1e6  // any setting unit
+	maxPumps    = 20   // pumps on one circuit
 	minTemp     = 223.15
 	// minMagnitude is the smallest non-zero SI value accepted anywhere;
 	// smaller ones are slips, and could not be written in every unit.
@@ -113,6 +114,10 @@ var siteKeys = schema{name: "site", columns: []column{
 		help: "open circuit: height from the free surface the pump draws from (basin, tank) up to the open outlet (spray header, nozzles); default 0, a closed loop"},
 	{name: "outlet pressure", typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure", lo: 0, hi: maxPressure,
 		help: "open circuit: pressure the open outlet needs above the air (spray nozzles); default 0"},
+	{name: "pump arrangement", typ: wordCol, words: pumpArrangementWords,
+		help: "several pumps on the pump sheet: parallel (each through its own non-return valve) or series; default parallel"},
+	{name: "pumps running", typ: numCol, what: "number of pumps", lo: 1, hi: maxPumps,
+		help: "how many of the pump sheet's pumps run, the first ones listed (the rest stand by); default all"},
 	{name: "sensor", typ: textCol, help: "where the differential sensor sits: pump or a branch id; default pump"},
 	{name: "hours", typ: numCol, what: "number of hours", lo: 0, hi: 8784, help: "running hours per year; default 8760"},
 	{name: "energy price", typ: numCol, what: "price", lo: 0, hi: 1e3, help: "price of one kWh of electricity; default none (no costs shown)"},
@@ -128,6 +133,10 @@ var siteKeys = schema{name: "site", columns: []column{
 	{name: "units", typ: wordCol, words: displayUnitWords,
 		help: "units of the results: si (l/s, kPa, Kv, degC), si-m3h (m3/h, kPa, Kv, degC) or us (gpm, psi, Cv, degF); default si; --units overrides"},
 }}
+
+// pumpArrangementWords are the accepted values of the site's "pump
+// arrangement" key.
+var pumpArrangementWords = []string{"parallel", "series"}
 
 // displayUnitWords are the accepted values of the site's "units" key.
 var displayUnitWords = []string{"si", "si-m3h", "us"}
@@ -206,9 +215,14 @@ var valveColumns = schema{name: "valves", columns: []column{
 }}
 
 var pumpColumns = schema{name: "pump", columns: []column{
+	{name: "pump", typ: textCol,
+		help: "pump id where there are several: one curve per id, the pumps in the order they start (duty first); blank = the site's one pump"},
 	{name: "flow", typ: numCol, kind: units.Flow, unit: "l/s", required: true, what: "flow", lo: 0, hi: maxFlow, help: "flow of one curve point"},
 	{name: "head", typ: numCol, kind: units.Head, unit: "m", required: true, what: "head", lo: 0, hi: maxHead,
 		want: "a head of pumped fluid from 0 to 1000 m", help: "head at that flow at nominal speed, in height of the pumped fluid"},
+	{name: "speed", typ: numCol, kind: units.Dimensionless, unit: "", what: "speed ratio", lo: 1e-3, hi: 2,
+		want: `a ratio to nominal speed from 0.001 to 2; write "speed [%]" for a percentage`,
+		help: "this pump's own fixed speed as a ratio to nominal, on any of its rows (a pump on its own drive or none); blank = the set's speed"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 
@@ -235,6 +249,8 @@ var stateColumns = schema{name: "states", columns: []column{
 		help: "pump speed in that state as a ratio to nominal, for a pump boundary; blank = the site's speed"},
 	{name: "set point", aliases: []string{"setpoint"}, typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 1, hi: maxPressure,
 		help: "differential the controller held in that state, for a constant-differential boundary; blank = the site's set point"},
+	{name: "pumps running", typ: numCol, what: "number of pumps", lo: 1, hi: maxPumps,
+		help: "how many of the pump sheet's pumps ran in that state, the first ones listed; blank = the site's pumps running"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 

@@ -16,6 +16,7 @@ package site
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 	"unicode"
 )
@@ -44,6 +45,13 @@ type Site struct {
 	Hours       float64 // running hours per year
 	EnergyPrice float64 // price per kWh in Currency; NaN when not given
 	Currency    string
+
+	// PumpSeries is set when the pump sheet's pumps run in series (one
+	// feeding the next); they run in parallel otherwise.
+	PumpSeries bool
+	// PumpsRunning is how many of the pump sheet's pumps run, the first
+	// ones listed; 0 = all.
+	PumpsRunning int
 
 	PumpEfficiency  float64 // fraction
 	MotorEfficiency float64 // fraction
@@ -263,6 +271,7 @@ type StateSetting struct {
 	Label    string
 	Speed    float64 // pump speed ratio (pump boundary); NaN = the site's
 	SetPoint float64 // Pa (constant-differential boundary); NaN = the site's
+	Running  int     // pumps running, the first ones listed; 0 = the site's
 	Note     string
 	Pos      Pos
 }
@@ -316,11 +325,41 @@ func (v *ValveModel) Range() (lo, hi float64) {
 	return 0, 100
 }
 
-// PumpPoint is one point of the pump's head curve at nominal speed.
+// PumpPoint is one point of a pump's head curve at nominal speed.
 type PumpPoint struct {
+	Pump string  // the pump's id; "" where the site has one pump
 	Flow float64 // m3/s
 	Head float64 // m of the pumped fluid
-	Pos  Pos
+	// Speed is the pump's own fixed speed ratio, the same on each of its
+	// points; NaN (or 0 in a Site built in code) = the set's speed.
+	Speed float64
+	Pos   Pos
+}
+
+// Pumps returns the ids of the pump sheet's pumps in the order of their
+// first points ("" for a site's one unnamed pump); nil without a pump
+// sheet.
+func (s *Site) Pumps() []string {
+	var out []string
+	for _, p := range s.Pump {
+		if !slices.Contains(out, p.Pump) {
+			out = append(out, p.Pump)
+		}
+	}
+	return out
+}
+
+// Running returns how many pumps run in survey state label: the states
+// sheet's number, else the site's, else all of them.
+func (s *Site) Running(label string) int {
+	n := len(s.Pumps())
+	if st := s.State(label); st != nil && st.Running > 0 {
+		return min(st.Running, n)
+	}
+	if s.PumpsRunning > 0 {
+		return min(s.PumpsRunning, n)
+	}
+	return n
 }
 
 // Quantity is what a reading measures.

@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"testing/fstest"
@@ -760,5 +761,87 @@ func TestRoundTripController(t *testing.T) {
 				t.Errorf("workbook round trip (-before +after):\n%s", diff)
 			}
 		})
+	}
+}
+
+// TestRoundTripPumps: several pumps (ids, a pump's own speed, the
+// arrangement, pumps running in the site and in a state) read back as
+// written, in CSV and in a workbook.
+func TestRoundTripPumps(t *testing.T) {
+	for _, series := range []bool{false, true} {
+		want := readSmall(t)
+		var pts []PumpPoint
+		for _, id := range []string{"P1", "P2"} {
+			for _, pt := range want.Pump {
+				pt.Pump, pt.Speed = id, nan
+				if id == "P2" {
+					pt.Speed = 0.9
+				}
+				pts = append(pts, pt)
+			}
+		}
+		want.Pump, want.PumpSeries = pts, series
+		if !series {
+			want.PumpsRunning = 1
+			want.States[0].Running = 2
+		}
+		fsys := fstest.MapFS{}
+		if err := WriteDir(want, mapCreate(fsys)); err != nil {
+			t.Fatalf("WriteDir: %v", err)
+		}
+		got, p, err := ReadDir(fsys, ".")
+		if err != nil || len(p) > 0 {
+			t.Fatalf("ReadDir after WriteDir: %v\n%v\n%s", err, p, fsys["pump.csv"].Data)
+		}
+		if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+			t.Errorf("series %v: csv round trip (-before +after):\n%s", series, diff)
+		}
+		if got := got.Pumps(); !slices.Equal(got, []string{"P1", "P2"}) {
+			t.Errorf("Pumps() = %q, want P1, P2", got)
+		}
+		if n, m := got.Running("after-change"), got.Running("as-found"); !series && (n != 2 || m != 1) || series && (n != 2 || m != 2) {
+			t.Errorf("series %v: running after-change %d, as-found %d", series, n, m)
+		}
+		var buf bytes.Buffer
+		if err := WriteWorkbook(want, &buf); err != nil {
+			t.Fatalf("WriteWorkbook: %v", err)
+		}
+		got, p, err = ReadWorkbook(bytes.NewReader(buf.Bytes()), int64(buf.Len()), "out.xlsx")
+		if err != nil || len(p) > 0 {
+			t.Fatalf("ReadWorkbook after WriteWorkbook: %v\n%v", err, p)
+		}
+		if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+			t.Errorf("series %v: workbook round trip (-before +after):\n%s", series, diff)
+		}
+	}
+}
+
+// TestPumpIntroExample reads the several-pumps example of the pump topic
+// (its indented lines) with the other sheets' examples and the site keys
+// its text names: three pumps, STBY on its own speed, two running.
+func TestPumpIntroExample(t *testing.T) {
+	var lines []string
+	for _, line := range strings.Split(sheetIntro["pump"], "\n") {
+		if strings.HasPrefix(line, "  ") {
+			lines = append(lines, strings.TrimSpace(line))
+		}
+	}
+	fsys := fstest.MapFS{}
+	for name, text := range examples {
+		fsys[name+".csv"] = &fstest.MapFile{Data: []byte(text)}
+	}
+	fsys["pump.csv"] = &fstest.MapFile{Data: []byte(strings.Join(lines, "\n") + "\n")}
+	fsys["site.csv"] = &fstest.MapFile{Data: []byte(examples["site"] + "pump arrangement,parallel\npumps running,2\n")}
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("the pump topic's example does not read cleanly: %v\n%v", err, p)
+	}
+	if got := s.Pumps(); !slices.Equal(got, []string{"P1", "P2", "STBY"}) || s.PumpSeries || s.Running("as-found") != 2 {
+		t.Errorf("pumps %q, series %v, running %d; want P1, P2, STBY in parallel, 2 running", got, s.PumpSeries, s.Running("as-found"))
+	}
+	for _, pt := range s.Pump {
+		if want := pt.Pump == "STBY"; (pt.Speed == 1) != want {
+			t.Errorf("%s at line %d: speed %g", pt.Pump, pt.Pos.Line, pt.Speed)
+		}
 	}
 }

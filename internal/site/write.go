@@ -123,6 +123,12 @@ func render(s *Site) []outSheet {
 	if s.Units != "" {
 		key("units", s.Units) // only when given, so older sheets read back unchanged
 	}
+	if s.PumpSeries {
+		key("pump arrangement", "series")
+	}
+	if s.PumpsRunning > 0 {
+		key("pumps running", float64(s.PumpsRunning))
+	}
 
 	br := columnSheet(&branchColumns)
 	br.help = nil
@@ -190,7 +196,15 @@ func render(s *Site) []outSheet {
 	pu := columnSheet(&pumpColumns)
 	pu.help = nil
 	for _, pt := range s.Pump {
-		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"flow": pt.Flow, "head": pt.Head}))
+		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"pump": pt.Pump, "flow": pt.Flow, "head": pt.Head, "speed": given(pt.Speed)}))
+	}
+	// The columns of several pumps only where they are used, so a site of
+	// one pump reads as before.
+	if !slices.ContainsFunc(s.Pump, func(pt PumpPoint) bool { return pt.Pump != "" }) {
+		pu = dropColumns(pu, []string{"pump"})
+	}
+	if !slices.ContainsFunc(s.Pump, func(pt PumpPoint) bool { return pt.Speed > 0 }) {
+		pu = dropColumns(pu, []string{"speed"})
 	}
 
 	rd := columnSheet(&readingColumns)
@@ -209,7 +223,10 @@ func render(s *Site) []outSheet {
 		st.help = nil
 		for _, x := range s.States {
 			st.rows = append(st.rows, cellsOf(&stateColumns, map[string]any{"state": x.Label, "speed": x.Speed,
-				"set point": x.SetPoint, "note": x.Note}))
+				"set point": x.SetPoint, "pumps running": count(x.Running), "note": x.Note}))
+		}
+		if !slices.ContainsFunc(s.States, func(x StateSetting) bool { return x.Running > 0 }) {
+			st = dropColumns(st, []string{"pumps running"})
 		}
 		out = append(out, st)
 	}
@@ -240,6 +257,14 @@ func render(s *Site) []outSheet {
 		out = slices.DeleteFunc(out, func(o outSheet) bool { return o.name == pumpColumns.name })
 	}
 	return out
+}
+
+// count is a count of pumps as a cell: blank for 0 (not given).
+func count(n int) float64 {
+	if n > 0 {
+		return float64(n)
+	}
+	return nan
 }
 
 // legColumns are the branches sheet's columns for header legs that differ.
