@@ -355,6 +355,36 @@ type PumpPlan struct {
 	AnnualCostSaving   float64
 	Currency           string
 	Assumptions        []string
+
+	// Several pumps. Pumps is the number on the pump sheet (0 without a
+	// pump curve), Running how many the plan runs (the site's pumps
+	// running), Series whether they run in series. Duties is each running
+	// pump's share of the planned duty; nil for one pump.
+	Pumps, Running int
+	Series         bool
+	Duties         []plant.PumpDuty
+	// Fewer is the planned duty with one pump fewer running in parallel,
+	// nil where there is none to spare (one running, or in series).
+	Fewer *PumpOption
+}
+
+// PumpOption is the plan's duty (its flow and pump differential, so every
+// branch gets the same flow) given by another number of pumps.
+type PumpOption struct {
+	Running int
+	// Serves reports whether these pumps give the duty at the drive's
+	// maximum speed; Available is their differential at the planned flow
+	// flat out, Pa (lift included).
+	Serves    bool
+	Available float64
+	// Speed is the speed ratio they need for the duty; Duties, Electrical
+	// (W) and AnnualEnergySaving (kWh per year against the plan's pumps;
+	// NaN without running hours) are theirs at it. All NaN or nil where
+	// they do not serve.
+	Speed              float64
+	Duties             []plant.PumpDuty
+	Electrical         float64
+	AnnualEnergySaving float64
 }
 
 // BranchPlan is the plan for one branch.

@@ -33,7 +33,10 @@ type planner struct {
 	// control value of the solves is a speed ratio on the pump's curve
 	// (else an ideal source differential).
 	pump, capped, bySpeed bool
-	lo, hi                float64
+	// running is how many of the model's pumps the plan runs (the site's
+	// pumps running).
+	running int
+	lo, hi  float64
 	// ex is the exact plan for every target; run the one the settings
 	// come from: ex itself, or, when the pump cannot serve every target
 	// and design-first is asked, the plan with the starved branches open
@@ -82,6 +85,7 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	pl.pump = m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil
 	pl.capped = m.PumpDriven()
 	pl.bySpeed = pl.pump
+	pl.running = m.Site.Running("")
 	pl.run = pl.ex
 	pl.lift = m.Lift()
 	if m.HasControllers() {

@@ -29,7 +29,7 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 	pp.After.Head = pp.After.Differential / rg
 	if pl.capped && !pl.pump {
 		// The speed the drive will run at to hold the set point.
-		v := hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), pp.After.Flow, pp.After.Differential, m.Fluid)
+		v := pl.set().SpeedFor(pp.After.Flow, pp.After.Differential, m.Fluid)
 		pp.SpeedRatio = min(v, m.MaxSpeed())
 		pp.After.Speed = pp.SpeedRatio
 	}
@@ -40,8 +40,9 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 		c.A1 *= pl.p.PumpHead
 		c.A2 *= pl.p.PumpHead
 		// A trim only helps a pump with head to spare: at full speed (or
-		// short of the targets) there is nothing to trim.
-		if pl.plan.Speed < 1 && len(pl.plan.Unmet) == 0 {
+		// short of the targets) there is nothing to trim. Several pumps
+		// are not offered one: which to trim is a choice for the site.
+		if pl.plan.Speed < 1 && len(pl.plan.Unmet) == 0 && !m.Several() {
 			if d, err := hydraulics.TrimDiameterRatio(c, pp.After.Flow, pp.After.Head); err == nil && d < 1 {
 				pp.TrimRatio = d
 			}
@@ -84,28 +85,90 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 	if pl.pump {
 		along = "held constant at both duty points: a speed change moves the duty along an affinity parabola, on which pump efficiency stays about constant (affinity laws; approximate, it falls at low speed)"
 	}
+	// Pumps with efficiency points take theirs at their own duty.
+	perPump := pl.capped && m.Several() && m.EfficiencyGiven()
+	if perPump {
+		pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("each pump's efficiency from its points on the pump sheet at its own flow (at a lower speed, at the flow the affinity laws take back to nominal speed: approximate, it falls at low speed); %.0f %% for a pump without points", 100*etaP))
+	} else {
+		pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("pump efficiency %.0f %% %s", 100*etaP, along))
+	}
 	pp.Assumptions = append(pp.Assumptions,
-		fmt.Sprintf("pump efficiency %.0f %% %s", 100*etaP, along),
 		fmt.Sprintf("motor and drive efficiency %.0f %% at both duty points (approximate: it falls at part load)", 100*etaM))
 	pl.eta = etaP * etaM
 	pp.HydraulicAfter = hydraulics.HydraulicPower(pp.After.Flow, pp.After.Differential)
 	pp.ElectricalAfter = pp.HydraulicAfter / (etaP * etaM)
+	if pl.capped {
+		pp.Pumps, pp.Running, pp.Series = len(m.Pumps), pl.running, m.Series
+	}
+	if pl.capped && m.Several() {
+		pp.Duties = m.Duties(pl.p.PumpHead, pl.running, pp.SpeedRatio, pp.After.Flow, etaP)
+		if perPump {
+			pp.ElectricalAfter = shaft(pp.Duties, m) / etaM
+		}
+		pl.fewer(pp, etaP, etaM, perPump)
+	}
 	if !pp.HaveBefore {
 		return nil
 	}
 	pp.HydraulicBefore = hydraulics.HydraulicPower(pp.Before.Flow, pp.Before.Differential)
 	pp.ElectricalBefore = pp.HydraulicBefore / (etaP * etaM)
+	if perPump {
+		pp.ElectricalBefore = shaft(m.Duties(pl.p.PumpHead, pl.running, pp.Before.Speed, pp.Before.Flow, etaP), m) / etaM
+	}
 	if !(s.Hours > 0) || !finite(s.Hours) {
 		pp.Assumptions = append(pp.Assumptions, "no running hours given: no annual figures")
 		return nil
 	}
 	// W × h / 1000 = kWh.
 	pp.AnnualEnergySaving = (pp.ElectricalBefore - pp.ElectricalAfter) * s.Hours / 1e3
+
 	pp.Assumptions = append(pp.Assumptions, fmt.Sprintf("%.0f running hours a year at the one duty point", s.Hours))
 	if finite(s.EnergyPrice) && s.EnergyPrice >= 0 {
 		pp.AnnualCostSaving = pp.AnnualEnergySaving * s.EnergyPrice
 	}
 	return nil
+}
+
+// shaft returns the pumps' shaft power at their duties, W.
+func shaft(ds []plant.PumpDuty, m *plant.Model) float64 {
+	var p float64
+	for _, d := range ds {
+		p += d.Shaft(m.Fluid)
+	}
+	return p
+}
+
+// fewer works out whether one pump fewer, of those running in parallel,
+// gives the plan's duty: the same flow at the same pump differential, so
+// every branch keeps its planned flow. The pump that stops is the last one
+// running (the pumps start in the pump sheet's order).
+func (pl *planner) fewer(pp *PumpPlan, etaP, etaM float64, perPump bool) {
+	m := pl.m
+	if m.Series || pl.running < 2 {
+		return
+	}
+	n := pl.running - 1
+	set := m.Set(pl.p.PumpHead, n)
+	q, d := pp.After.Flow, pp.After.Differential
+	o := &PumpOption{Running: n, Speed: math.NaN(), Electrical: math.NaN(), AnnualEnergySaving: math.NaN()}
+	h, _ := set.AtSpeed(m.MaxSpeed()).Head(q)
+	o.Available = h * m.Fluid.Density * hydraulics.StandardGravity
+	o.Serves = o.Available >= d*(1-1e-9)
+	pp.Fewer = o
+	if !o.Serves {
+		return
+	}
+	if o.Speed = min(set.SpeedFor(q, d, m.Fluid), m.MaxSpeed()); !finite(o.Speed) {
+		return
+	}
+	o.Duties = m.Duties(pl.p.PumpHead, n, o.Speed, q, etaP)
+	o.Electrical = hydraulics.HydraulicPower(q, d) / (etaP * etaM)
+	if perPump {
+		o.Electrical = shaft(o.Duties, m) / etaM
+	}
+	if hrs := m.Site.Hours; hrs > 0 && finite(hrs) {
+		o.AnnualEnergySaving = (pp.ElectricalAfter - o.Electrical) * hrs / 1e3
+	}
 }
 
 // before solves the as-found state: as-found settings at the present speed,

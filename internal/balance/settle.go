@@ -13,8 +13,15 @@ import (
 // pumpAt returns the pump element at speed ratio s on its curve (head
 // multiplier applied), whatever drives it in the site.
 func (pl *planner) pumpAt(s float64) hydraulics.Element {
+	if pl.m.Several() {
+		return pl.set().AtSpeed(s)
+	}
 	return hydraulics.Pump{Curve: *pl.m.ScaledPump(pl.p.PumpHead), Speed: s}
 }
+
+// set returns the pumps the plan runs, head multiplier applied, at rated
+// speed (a set of one for a site of one pump).
+func (pl *planner) set() hydraulics.PumpSet { return pl.m.Set(pl.p.PumpHead, pl.running) }
 
 // source returns the network source of control value x: the pump at speed
 // x (working against an open circuit's static lift), or an ideal source
@@ -124,7 +131,7 @@ func (pl *planner) settle(ctx context.Context) (*plant.Solved, error) {
 		// x is the differential across the circuit's friction; the pump
 		// holds it plus the static lift.
 		held := x + pl.lift
-		pp.NeededSpeed = hydraulics.SpeedFor(*m.ScaledPump(pl.p.PumpHead), sol.TotalFlow(), held, m.Fluid)
+		pp.NeededSpeed = pl.set().SpeedFor(sol.TotalFlow(), held, m.Fluid)
 		if give := pl.maxDiff(sol.TotalFlow()); x > give+1e-9*(give+pl.lift) {
 			pl.toSpeed()
 			if sol, err = pl.solve(ctx, settings, m.MaxSpeed()); err != nil {

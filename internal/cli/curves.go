@@ -174,7 +174,7 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 		if m.Controlled() {
 			speed = m.MaxSpeed() // the curve drawn is the drive's limit
 		}
-		top = math.Max(top, m.Pump.AtSpeed(speed).ShutOff()*m.Fluid.Density*9.80665)
+		top = math.Max(top, m.Set(1, st.Running).AtSpeed(speed).ShutOff()*m.Fluid.Density*9.80665)
 	}
 	const n = 10
 	diffs := make([]float64, n+1)
@@ -196,7 +196,7 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 		cs.System = append(cs.System, disp(pt))
 		flows[k] = pt.Flow
 	}
-	for _, pt := range m.PumpCurve(p, st.Speed, flows) {
+	for _, pt := range m.PumpCurve(p, st.Speed, st.Running, flows) {
 		cs.Pump = append(cs.Pump, disp(pt))
 	}
 	return cs, nil

@@ -162,7 +162,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	opA := plant.Point{Flow: j.After.TotalFlow(), Diff: j.After.PumpDiff()}
 	top := 1.4 * math.Max(opB.Diff, opA.Diff)
 	if m.Pump != nil && s.Boundary.Kind == site.PumpCurve {
-		top = math.Max(top, m.Pump.AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
+		top = math.Max(top, m.Set(1, j.Before.State.Running).AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
 	}
 	diffs := make([]float64, curvePoints)
 	for k := range diffs {
@@ -182,9 +182,9 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	for k := range qs {
 		qs[k] = qmax * float64(k) / float64(len(qs)-1)
 	}
-	in.Combined.PumpBefore = xy(m.PumpCurve(j.Fitted, j.Before.State.Speed, qs))
+	in.Combined.PumpBefore = xy(m.PumpCurve(j.Fitted, j.Before.State.Speed, j.Before.State.Running, qs))
 	if plan.Speed > 0 {
-		in.Combined.PumpAfter = xy(m.PumpCurve(j.Params, plan.Speed, qs))
+		in.Combined.PumpAfter = xy(m.PumpCurve(j.Params, plan.Speed, j.Plan.Pump.Running, qs))
 	}
 	in.Combined.OpBefore = report.XY{X: opB.Flow * toFlow, Y: opB.Diff * toDiff}
 	in.Combined.OpAfter = report.XY{X: opA.Flow * toFlow, Y: opA.Diff * toDiff}

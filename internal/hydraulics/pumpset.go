@@ -400,3 +400,48 @@ func (s PumpSet) SpeedFor(q, dp float64, f fluid.State) float64 {
 	}
 	return 0.5 * (lo + hi)
 }
+
+// EfficiencyCurve is a pump's efficiency against flow at its rated speed,
+// from points of its data sheet (flows rising), interpolated linearly and
+// held at the end values beyond them. At speed ratio s the efficiency at
+// flow q is the rated curve's at q/s: the affinity laws move a duty along a
+// parabola on which the efficiency stays about constant (approximate: it
+// falls at low speed and in small pumps).
+type EfficiencyCurve struct {
+	Flow, Eff []float64 // m3/s, fractions
+}
+
+// At returns the efficiency at flow q [m3/s] at speed ratio s, and whether
+// q/s lies within the points (outside, the nearest end's value is given).
+// It returns NaN for a curve without points.
+func (c EfficiencyCurve) At(q, s float64) (eta float64, inRange bool) {
+	n := len(c.Flow)
+	if n == 0 || len(c.Eff) != n || !(s > 0) {
+		return math.NaN(), false
+	}
+	x := q / s
+	switch {
+	case x <= c.Flow[0]:
+		return c.Eff[0], x == c.Flow[0]
+	case x >= c.Flow[n-1]:
+		return c.Eff[n-1], x == c.Flow[n-1]
+	}
+	i := 1
+	for c.Flow[i] < x {
+		i++
+	}
+	t := (x - c.Flow[i-1]) / (c.Flow[i] - c.Flow[i-1])
+	return c.Eff[i-1] + t*(c.Eff[i]-c.Eff[i-1]), true
+}
+
+// Speeds returns each member's speed ratio in the set.
+func (s PumpSet) Speeds() []float64 {
+	out := make([]float64, len(s.Members))
+	for i, m := range s.Members {
+		out[i] = s.speed()
+		if m.Speed > 0 {
+			out[i] = m.Speed
+		}
+	}
+	return out
+}

@@ -261,3 +261,28 @@ func TestControlledPumpSet(t *testing.T) {
 		}
 	}
 }
+
+func TestEfficiencyCurve(t *testing.T) {
+	// Points of an invented data sheet: 0 at no flow, 70 % at 10 l/s,
+	// 60 % at 14 l/s. Interpolation by hand.
+	c := EfficiencyCurve{Flow: []float64{0, 0.010, 0.014}, Eff: []float64{0, 0.70, 0.60}}
+	for _, tc := range []struct {
+		name    string
+		q, s    float64
+		want    float64
+		inRange bool
+	}{
+		{"a point", 0.010, 1, 0.70, true},
+		{"between points", 0.012, 1, 0.65, true},
+		{"half way up at speed 0.8", 0.004, 0.8, 0.35, true},
+		{"affinity: the rated point's efficiency at 0.8 of the speed", 0.008, 0.8, 0.70, true},
+		{"beyond the last point", 0.020, 1, 0.60, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			got, in := c.At(tc.q, tc.s)
+			if math.Abs(got-tc.want) > 1e-12 || in != tc.inRange {
+				t.Errorf("At(%g, %g) = %g, %v; want %g, %v", tc.q, tc.s, got, in, tc.want, tc.inRange)
+			}
+		})
+	}
+}

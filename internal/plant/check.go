@@ -48,12 +48,20 @@ func (m *Model) Check() site.Problems {
 	}
 	var qmax float64
 	if m.Pump != nil {
-		if q, err := m.Pump.AtSpeed(maxSpeed(m.Site)).MaxFlow(); err == nil {
+		if q, err := m.Set(1, 0).AtSpeed(maxSpeed(m.Site)).MaxFlow(); err == nil {
+			// Every pump running, as none can give more.
 			qmax = q
 		}
-		if m.PumpFit.Poor {
+		for i, fit := range m.PumpFits {
+			if !fit.Poor {
+				continue
+			}
+			which := "the pump points"
+			if id := m.PumpIDs[i]; id != "" {
+				which = "pump " + id + "'s points"
+			}
 			add(site.Pos{File: "pump.csv"}, "head", "", site.SeverityWarning, ErrSuspicious,
-				fmt.Sprintf("the pump points fit a quadratic curve poorly (largest residual %.1f %% of shut-off head)", 100*m.PumpFit.MaxRelResidual),
+				fmt.Sprintf("%s fit a quadratic curve poorly (largest residual %.1f %% of shut-off head)", which, 100*fit.MaxRelResidual),
 				"points read from one pump curve at one speed")
 		}
 	}

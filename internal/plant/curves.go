@@ -88,8 +88,9 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 // PumpCurve returns the pump's differential at the given flows and speed
 // ratio, or nil without a pump. For a Controlled pump it is the curve at
 // its maximum speed whatever the speed asked: the most its drive can give,
-// the limit every set point meets.
-func (m *Model) PumpCurve(p Params, speed float64, flows []float64) []Point {
+// the limit every set point meets. With several pumps it is the combined
+// curve of the first running ones (hydraulics.PumpSet, exact).
+func (m *Model) PumpCurve(p Params, speed float64, running int, flows []float64) []Point {
 	if !m.PumpDriven() {
 		return nil
 	}
@@ -97,9 +98,14 @@ func (m *Model) PumpCurve(p Params, speed float64, flows []float64) []Point {
 		speed = m.MaxSpeed()
 	}
 	c := m.Pump.AtSpeed(speed)
+	set := m.Set(1, running).AtSpeed(speed)
 	out := make([]Point, 0, len(flows))
 	for _, q := range flows {
 		h := c.Head(q) * p.PumpHead
+		if m.Several() {
+			hs, _ := set.Head(q)
+			h = hs * p.PumpHead
+		}
 		if h < 0 {
 			break
 		}

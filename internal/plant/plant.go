@@ -29,10 +29,22 @@ type Model struct {
 	Arrangement network.Arrangement
 	Branches    []Branch
 	// Pump is the fitted pump curve at nominal speed; nil when the boundary
-	// is a differential.
+	// is a differential. With several pumps it is the first's (the duty
+	// pump's), and Pumps holds them all.
 	Pump    *hydraulics.PumpCurve
 	PumpFit hydraulics.FitReport
-	States  []State
+	// Pumps are the pump sheet's pumps in its order, each with its fitted
+	// curve and its own fixed speed (0: the set's), PumpIDs their ids and
+	// PumpFits their fits; one entry for a site of one pump.
+	Pumps    []hydraulics.SetMember
+	PumpIDs  []string
+	PumpFits []hydraulics.FitReport
+	// PumpEff are the pumps' efficiency curves (no points where the
+	// pump sheet gives none).
+	PumpEff []hydraulics.EfficiencyCurve
+	// Series is set when the pumps run in series.
+	Series bool
+	States []State
 
 	index map[string]int
 	top   []int // branches on the main headers, in take-off order
@@ -120,6 +132,8 @@ type State struct {
 	Label    string
 	Settings []float64 // per branch, in the valve's units (NaN for no valve)
 	Speed    float64   // pump speed ratio
+	// Running is how many of the model's Pumps run, the first ones.
+	Running int
 	// Differential is the boundary differential in Pa when the boundary is
 	// not a pump curve.
 	Differential float64
@@ -214,19 +228,13 @@ func New(s *site.Site) (*Model, error) {
 		if len(s.Pump) == 0 {
 			return nil, fmt.Errorf("boundary is a pump but the pump sheet has no points: %w", ErrModel)
 		}
-		pts := make([]hydraulics.PumpPoint, len(s.Pump))
-		for i, p := range s.Pump {
-			pts[i] = hydraulics.PumpPoint{Flow: p.Flow, Head: p.Head}
+		if err := m.fitPumps(); err != nil {
+			return nil, err
 		}
-		c, rep, err := hydraulics.FitPump(pts)
-		if err != nil {
-			return nil, fmt.Errorf("pump curve: %w", err)
-		}
-		m.Pump, m.PumpFit = &c, rep
 		if lift := m.Lift(); lift > 0 {
 			// An open circuit whose pump cannot reach the outlet even
 			// flat out would be solved with the water running backwards.
-			if h := c.AtSpeed(m.MaxSpeed()).ShutOff(); !(h*m.Fluid.Density*hydraulics.StandardGravity > lift) {
+			if h := m.Set(1, s.Running("")).AtSpeed(m.MaxSpeed()).ShutOff(); !(h*m.Fluid.Density*hydraulics.StandardGravity > lift) {
 				return nil, fmt.Errorf("site sheet: the pump's shut-off head at its maximum speed, %.2f m, does not reach the static lift and outlet pressure, %.2f m: no water would reach the outlet: %w",
 					h, lift/(m.Fluid.Density*hydraulics.StandardGravity), ErrModel)
 			}
@@ -237,6 +245,106 @@ func New(s *site.Site) (*Model, error) {
 		return nil, err
 	}
 	return m, nil
+}
+
+// fitPumps fits each pump's curve to its points on the pump sheet.
+func (m *Model) fitPumps() error {
+	s := m.Site
+	m.Series = s.PumpSeries
+	for _, id := range s.Pumps() {
+		var pts []hydraulics.PumpPoint
+		var eff hydraulics.EfficiencyCurve
+		speed := 0.0
+		for _, p := range s.Pump {
+			if p.Pump == id {
+				pts = append(pts, hydraulics.PumpPoint{Flow: p.Flow, Head: p.Head})
+				if p.Speed > 0 {
+					speed = p.Speed
+				}
+				if p.Efficiency > 0 {
+					eff.Flow = append(eff.Flow, p.Flow)
+					eff.Eff = append(eff.Eff, p.Efficiency)
+				}
+			}
+		}
+		c, rep, err := hydraulics.FitPump(pts)
+		if err != nil {
+			if id != "" {
+				return fmt.Errorf("pump %s's curve: %w", id, err)
+			}
+			return fmt.Errorf("pump curve: %w", err)
+		}
+		if m.Pump == nil {
+			m.Pump, m.PumpFit = &c, rep
+		}
+		m.Pumps = append(m.Pumps, hydraulics.SetMember{Curve: c, Speed: speed})
+		m.PumpIDs = append(m.PumpIDs, id)
+		m.PumpFits = append(m.PumpFits, rep)
+		m.PumpEff = append(m.PumpEff, eff)
+	}
+	return nil
+}
+
+// PumpDuty is one running pump's share of its set's duty.
+type PumpDuty struct {
+	ID         string
+	Flow, Head float64 // m3/s, m
+	Speed      float64 // speed ratio
+	// Efficiency is the pump's at its duty from its efficiency points
+	// (Given), else the efficiency the caller gave for pumps without;
+	// InRange is false where the duty lies beyond the points.
+	Efficiency     float64
+	Given, InRange bool
+}
+
+// Shaft returns the pump's shaft power in W: ρ g Q H / η.
+func (d PumpDuty) Shaft(f fluid.State) float64 {
+	if d.Flow == 0 {
+		return 0 // held shut by its non-return valve
+	}
+	return f.Density * hydraulics.StandardGravity * d.Flow * d.Head / d.Efficiency
+}
+
+// Duties returns the share of each of the first running pumps (head
+// multiplier k, set speed ratio speed) when together they give total flow
+// q: in parallel each pump's flow at the common head, in series each pump's
+// head at q. eta is the efficiency of a pump without efficiency points.
+func (m *Model) Duties(k float64, running int, speed, q, eta float64) []PumpDuty {
+	set := m.Set(k, running).AtSpeed(speed)
+	flows, heads, speeds := set.Flows(q), set.Heads(q), set.Speeds()
+	out := make([]PumpDuty, len(flows))
+	for i := range out {
+		d := PumpDuty{ID: m.PumpIDs[i], Flow: flows[i], Head: heads[i], Speed: speeds[i], Efficiency: eta, InRange: true}
+		if e, in := m.PumpEff[i].At(flows[i], speeds[i]); e > 0 {
+			d.Efficiency, d.Given, d.InRange = e, true, in
+		}
+		out[i] = d
+	}
+	return out
+}
+
+// EfficiencyGiven reports whether any pump has efficiency points.
+func (m *Model) EfficiencyGiven() bool {
+	for _, e := range m.PumpEff {
+		if len(e.Flow) > 0 {
+			return true
+		}
+	}
+	return false
+}
+
+// Several reports whether the site has more than one pump (running or
+// standing by).
+func (m *Model) Several() bool { return len(m.Pumps) > 1 }
+
+// Set returns the first running pumps of the model as a set with every
+// head multiplied by k, at rated speed. A site of one pump gives a set of
+// that one pump (see hydraulics.PumpSet: exactly the Pump).
+func (m *Model) Set(k float64, running int) hydraulics.PumpSet {
+	if running <= 0 || running > len(m.Pumps) {
+		running = len(m.Pumps)
+	}
+	return hydraulics.PumpSet{Members: m.Pumps[:running], Series: m.Series}.Scaled(k)
 }
 
 // fluidState gives the fluid's properties at the survey temperature: from
@@ -511,7 +619,7 @@ func (m *Model) states() ([]State, error) {
 		if !ok {
 			k = len(out)
 			byLabel[r.State] = k
-			st := State{Label: r.State, Settings: m.AsFound(), Speed: speed(s), Differential: s.Boundary.SetPoint}
+			st := State{Label: r.State, Settings: m.AsFound(), Speed: speed(s), Differential: s.Boundary.SetPoint, Running: s.Running(r.State)}
 			// The states sheet gives a state its own pump setting; the
 			// site reader keeps only the one the boundary uses.
 			if own := s.State(r.State); own != nil {
@@ -621,7 +729,7 @@ func (m *Model) Open() []float64 {
 // BaseState is the as-found state with the site's boundary, for sites with
 // no survey.
 func (m *Model) BaseState() State {
-	return State{Label: "design", Settings: m.AsFound(), Speed: speed(m.Site), Differential: m.Site.Boundary.SetPoint}
+	return State{Label: "design", Settings: m.AsFound(), Speed: speed(m.Site), Differential: m.Site.Boundary.SetPoint, Running: m.Site.Running("")}
 }
 
 // FixedElement returns branch i's fixed parts scaled by r, or nil when it
@@ -876,10 +984,16 @@ func (m *Model) Lift() float64 {
 func (m *Model) Source(p Params, st State) network.Source {
 	lift := m.Lift()
 	switch {
+	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil && m.Several():
+		return network.Source{Pump: m.Set(p.PumpHead, st.Running).AtSpeed(st.Speed), Lift: lift}
 	case m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil:
 		return network.Source{Pump: hydraulics.Pump{Curve: *m.ScaledPump(p.PumpHead), Speed: st.Speed}, Lift: lift}
 	case m.Controlled():
-		return network.Source{Pump: hydraulics.ControlledPump{Curve: *m.ScaledPump(p.PumpHead), MaxSpeed: m.MaxSpeed(), SetPoint: st.Differential}, Lift: lift}
+		cp := hydraulics.ControlledPump{Curve: *m.ScaledPump(p.PumpHead), MaxSpeed: m.MaxSpeed(), SetPoint: st.Differential}
+		if m.Several() {
+			cp.Set = m.Set(p.PumpHead, st.Running)
+		}
+		return network.Source{Pump: cp, Lift: lift}
 	}
 	return network.Source{Differential: st.Differential, Lift: lift}
 }
@@ -891,6 +1005,10 @@ func (m *Model) PumpHeadDrop(p Params, st State, q float64) float64 {
 	src := m.Source(p, st)
 	switch e := src.Pump.(type) {
 	case hydraulics.Pump:
+		dp, _ := e.Drop(q, m.Fluid)
+		return dp
+	case hydraulics.PumpSet:
+		// Every member's head is scaled by PumpHead, so the set's is.
 		dp, _ := e.Drop(q, m.Fluid)
 		return dp
 	case hydraulics.ControlledPump:
@@ -1065,7 +1183,7 @@ func (s *Solved) Speed() float64 {
 		if s.Saturated() {
 			return m.MaxSpeed()
 		}
-		v := hydraulics.SpeedFor(*m.ScaledPump(s.Params.PumpHead), s.TotalFlow(), s.PumpDiff(), m.Fluid)
+		v := m.Set(s.Params.PumpHead, s.State.Running).SpeedFor(s.TotalFlow(), s.PumpDiff(), m.Fluid)
 		if !(v <= m.MaxSpeed()) {
 			return m.MaxSpeed()
 		}

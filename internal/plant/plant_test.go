@@ -120,7 +120,7 @@ func TestPumpCurveControlled(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			got := m.PumpCurve(m.Design(), 0.9, flows)
+			got := m.PumpCurve(m.Design(), 0.9, 0, flows)
 			if !c.pump {
 				if got != nil {
 					t.Fatalf("PumpCurve = %v, want nil without a pump", got)

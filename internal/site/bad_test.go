@@ -776,6 +776,11 @@ var badCases = []badCase{
 			"states.csv:2:2: field \"pumps running\": value \"1.5\": not a whole number of pumps (want a count such as 1 or 2)",
 			"states.csv:3:2: field \"pumps running\": value \"1\": pumps in series all run (want 2, or pump arrangement parallel (a pump standing by in series still passes the flow))",
 		}},
+	{name: "own speed of the one pump", files: map[string]string{"pump.csv": "flow [l/s],head [m],speed [%],efficiency [%]\n0,8,90,\n1,7,,60\n2,5,,70\n"},
+		cause: ErrRange,
+		want: []string{
+			"pump.csv:2:3: warning: field \"speed\": value \"0.9\": speed ignored: the one pump runs at the site's speed (want a speed key in the site sheet (or a speed per state); a pump's own speed is for one of several pumps)",
+		}},
 	{name: "pump named as a branch", files: map[string]string{"pump.csv": strings.ReplaceAll(twoPumps, "P2", "B")},
 		cause: ErrDuplicate,
 		want: []string{

@@ -1048,15 +1048,17 @@ func readPump(t *table, p *Problems) []PumpPoint {
 	firstNamed := 0 // 0 no row yet, 1 rows without ids, 2 rows with ids
 	for _, r := range t.rows {
 		ok := true
-		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}, Speed: nan}
+		pt := PumpPoint{Pos: Pos{File: t.file, Line: r.line}, Speed: nan, Efficiency: nan}
 		idOK := true
 		pt.Pump = sr.text(r, "pump", &idOK)
 		pt.Flow = sr.need(r, "flow", &ok)
 		pt.Head = sr.need(r, "head", &ok)
 		var speedOK bool
 		pt.Speed, speedOK = sr.num(r, "speed")
+		var effOK bool
+		pt.Efficiency, effOK = sr.num(r, "efficiency")
 		sr.text(r, "note", &ok)
-		if !ok || !idOK || !speedOK {
+		if !ok || !idOK || !speedOK || !effOK {
 			continue
 		}
 		// The first usable row says whether the pumps are named.
@@ -1772,6 +1774,22 @@ func checkSite(s *Site, keys map[string]cellRef, in *input, brRefs []branchRefs)
 	if s.PumpSeries && len(s.Pumps()) < 2 {
 		p.add(at("pump arrangement").problem(SeverityWarning, ErrRange, "pump arrangement ignored: the pump sheet has one pump",
 			"pump ids on the pump sheet, one per pump"))
+	}
+	if len(s.Pumps()) == 1 {
+		for i := range s.Pump {
+			if pt := &s.Pump[i]; pt.Speed > 0 {
+				ref := cellRef{file: pt.Pos.File, line: pt.Pos.Line, field: "speed", value: fmtNum(pt.Speed)}
+				if t := in.tables[pumpColumns.name]; t != nil {
+					ref.col = t.columns["speed"]
+				}
+				p.add(ref.problem(SeverityWarning, ErrRange, "speed ignored: the one pump runs at the site's speed",
+					"a speed key in the site sheet (or a speed per state); a pump's own speed is for one of several pumps"))
+				for j := range s.Pump {
+					s.Pump[j].Speed = nan
+				}
+				break
+			}
+		}
 	}
 	for _, pt := range s.Pump {
 		if pt.Pump != "" && s.Branch(pt.Pump) != nil {

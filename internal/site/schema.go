@@ -223,6 +223,8 @@ var pumpColumns = schema{name: "pump", columns: []column{
 	{name: "speed", typ: numCol, kind: units.Dimensionless, unit: "", what: "speed ratio", lo: 1e-3, hi: 2,
 		want: `a ratio to nominal speed from 0.001 to 2; write "speed [%]" for a percentage`,
 		help: "this pump's own fixed speed as a ratio to nominal, on any of its rows (a pump on its own drive or none); blank = the set's speed"},
+	{name: "efficiency", typ: numCol, kind: units.Dimensionless, unit: "%", what: "efficiency", lo: 0.01, hi: 1,
+		help: "pump efficiency at that flow at nominal speed, from the pump's data sheet; blank = the site's pump efficiency"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 

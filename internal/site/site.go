@@ -333,7 +333,10 @@ type PumpPoint struct {
 	// Speed is the pump's own fixed speed ratio, the same on each of its
 	// points; NaN (or 0 in a Site built in code) = the set's speed.
 	Speed float64
-	Pos   Pos
+	// Efficiency is the pump's efficiency at Flow at nominal speed, a
+	// fraction; NaN (or 0) when not given.
+	Efficiency float64
+	Pos        Pos
 }
 
 // Pumps returns the ids of the pump sheet's pumps in the order of their

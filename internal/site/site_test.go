@@ -773,9 +773,11 @@ func TestRoundTripPumps(t *testing.T) {
 		var pts []PumpPoint
 		for _, id := range []string{"P1", "P2"} {
 			for _, pt := range want.Pump {
-				pt.Pump, pt.Speed = id, nan
+				pt.Pump, pt.Speed, pt.Efficiency = id, nan, nan
 				if id == "P2" {
 					pt.Speed = 0.9
+				} else {
+					pt.Efficiency = 0.5 + pt.Flow
 				}
 				pts = append(pts, pt)
 			}

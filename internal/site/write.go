@@ -196,7 +196,7 @@ func render(s *Site) []outSheet {
 	pu := columnSheet(&pumpColumns)
 	pu.help = nil
 	for _, pt := range s.Pump {
-		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"pump": pt.Pump, "flow": pt.Flow, "head": pt.Head, "speed": given(pt.Speed)}))
+		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"pump": pt.Pump, "flow": pt.Flow, "head": pt.Head, "speed": given(pt.Speed), "efficiency": given(pt.Efficiency)}))
 	}
 	// The columns of several pumps only where they are used, so a site of
 	// one pump reads as before.
@@ -205,6 +205,9 @@ func render(s *Site) []outSheet {
 	}
 	if !slices.ContainsFunc(s.Pump, func(pt PumpPoint) bool { return pt.Speed > 0 }) {
 		pu = dropColumns(pu, []string{"speed"})
+	}
+	if !slices.ContainsFunc(s.Pump, func(pt PumpPoint) bool { return pt.Efficiency > 0 }) {
+		pu = dropColumns(pu, []string{"efficiency"})
 	}
 
 	rd := columnSheet(&readingColumns)
