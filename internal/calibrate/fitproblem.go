@@ -560,7 +560,7 @@ func (p *problem) speed(sn *stateNet) (v, dq, ddp, dk float64) {
 	d, _ := c.Drop(q, m.Fluid)
 	dp := -d
 	at := func(q, dp, k float64) float64 {
-		return hydraulics.SpeedFor(*m.ScaledPump(k), q, dp, m.Fluid)
+		return m.Set(k, sn.st.Running).SpeedFor(q, dp, m.Fluid)
 	}
 	v = at(q, dp, k)
 	// Central differences of a closed-form root: smooth away from the

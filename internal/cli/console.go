@@ -60,6 +60,9 @@ func printVisit(w io.Writer, j *job, sheets bool) {
 	fmt.Fprintln(w, "\n3. Pump")
 	wrap(w, "  ", v.Pump.From+" → "+v.Pump.To)
 	wrap(w, "  ", "Set at: "+v.Pump.Where+".")
+	for _, l := range v.Pump.Pumps {
+		wrap(w, "  ", l)
+	}
 	if e := j.energyLine(); e != "" {
 		fmt.Fprintf(w, "  Energy: %s.\n", e)
 	}

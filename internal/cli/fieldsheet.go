@@ -70,6 +70,7 @@ func (j *job) fieldSheetAbout(u display, generated string) []string {
 	in0, n, in1 := j.toleranceCounts()
 	about = append(about, fmt.Sprintf("Branches in tolerance: %d of %d as found, %d of %d after the plan.", in0, n, in1, n))
 	about = append(about, "Pump: "+v.Pump.From+" → "+v.Pump.To+"; set at "+v.Pump.Where+".")
+	about = append(about, v.Pump.Pumps...)
 	about = append(about, v.Pump.Warnings...)
 	about = append(about, v.OrderReason)
 	return append(about, cautions(j.L.Site)...)

@@ -12,6 +12,7 @@ import (
 
 	"flowset/internal/balance"
 	"flowset/internal/diagnose"
+	"flowset/internal/hydraulics"
 	"flowset/internal/plant"
 	"flowset/internal/report"
 	"flowset/internal/site"
@@ -423,7 +424,103 @@ func (j *job) pumpStep(u display) report.PumpStep {
 	if j.short() {
 		st.Warnings = append(st.Warnings, "The pump cannot give what the targets need: see the top of this report.")
 	}
+	st.Pumps = j.pumpsLines(u)
 	return st
+}
+
+// pumpsLines says, for a site of several pumps, which run in the plan and
+// what each gives, and whether one pump fewer would give the same duty, at
+// what speed and power; nil for one pump.
+func (j *job) pumpsLines(u display) []string {
+	m, pp := j.L.Model, j.Plan.Pump
+	if !m.Several() || len(pp.Duties) == 0 {
+		return nil
+	}
+	rho := m.Fluid.Density
+	rg := rho * hydraulics.StandardGravity
+	ids := func(n int) string { return joinIDs(pumpNames(m.PumpIDs[:n])) }
+	var out []string
+	how := "in parallel"
+	if pp.Series {
+		how = "in series"
+	}
+	line := fmt.Sprintf("%s run %s", ids(pp.Running), how)
+	if pp.Running == 1 {
+		line = fmt.Sprintf("%s runs", ids(1))
+	}
+	if pp.Running < pp.Pumps {
+		rest := pumpNames(m.PumpIDs[pp.Running:])
+		verb := "stand"
+		if len(rest) == 1 {
+			verb = "stands"
+		}
+		line += fmt.Sprintf(" (%s %s by)", joinIDs(rest), verb)
+	}
+	var shares []string
+	for _, d := range pp.Duties {
+		sh := fmt.Sprintf("%s %s", d.ID, u.flow(d.Flow))
+		if pp.Series {
+			sh = fmt.Sprintf("%s %s", d.ID, u.head(d.Head*rg, rho))
+		}
+		if d.Given {
+			sh += fmt.Sprintf(" at %.0f %% efficiency", 100*d.Efficiency)
+		}
+		shares = append(shares, sh)
+	}
+	if pp.Series {
+		line += fmt.Sprintf(": at %s each gives its head, %s.", u.flow(pp.After.Flow), strings.Join(shares, ", "))
+	} else if pp.Running > 1 {
+		line += fmt.Sprintf(": at %s each gives its flow, %s.", u.head(pp.After.Differential, rho), strings.Join(shares, ", "))
+	} else {
+		line += "."
+	}
+	out = append(out, line)
+	o := pp.Fewer
+	if o == nil {
+		return out
+	}
+	who := ids(o.Running)
+	switch {
+	case !o.Serves:
+		out = append(out, fmt.Sprintf("One pump fewer would not serve: %s flat out give %s at %s, the plan needs %s.",
+			who, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
+	case !finite(o.Electrical):
+		out = append(out, fmt.Sprintf("One pump fewer would serve: %s give %s at %s flat out, the plan needs %s.",
+			who, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
+	default:
+		verb := "would serve"
+		l := fmt.Sprintf("One pump fewer %s: %s at %s speed give the same duty", verb, who, u.speed(o.Speed))
+		if m.Controlled() {
+			l = fmt.Sprintf("One pump fewer %s: %s hold the same set point, their drive at about %s speed", verb, who, u.speed(o.Speed))
+		}
+		if m.EfficiencyGiven() {
+			l += fmt.Sprintf(", taking %.0f W against %.0f W", o.Electrical, pp.ElectricalAfter)
+			if finite(o.AnnualEnergySaving) && math.Round(o.AnnualEnergySaving) != 0 {
+				word, kwh := "saving", o.AnnualEnergySaving
+				if kwh < 0 {
+					word, kwh = "costing", -kwh
+				}
+				l += fmt.Sprintf(" (%s %.0f kWh a year)", word, kwh)
+			}
+			l += "."
+		} else {
+			l += fmt.Sprintf(", taking the same %.0f W at one efficiency for every pump (efficiency points on the pump sheet would tell the two apart).", o.Electrical)
+		}
+		out = append(out, l)
+	}
+	return out
+}
+
+// pumpNames names pumps by their ids ("pump 1" where the sheet gives none).
+func pumpNames(ids []string) []string {
+	out := make([]string, len(ids))
+	for i, id := range ids {
+		out[i] = id
+		if id == "" {
+			out[i] = fmt.Sprintf("pump %d", i+1)
+		}
+	}
+	return out
 }
 
 // settingsTable is the valve settings in adjustment order, every branch of

@@ -159,6 +159,9 @@ type PumpStep struct {
 	From, To string   // e.g. "98.5 % speed, 169.3 kPa"
 	Where    string   // where it is set, e.g. "drive speed" or "differential set point at branch X"
 	Warnings []string // e.g. no pump curve given, raised differential
+	// Pumps says, for several pumps, which run and what each gives, and
+	// whether one pump fewer would serve; empty for one pump.
+	Pumps []string
 }
 
 // Field is one line of the hand-over record.
