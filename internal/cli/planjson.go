@@ -1,6 +1,10 @@
 package cli
 
-import "math"
+import (
+	"math"
+
+	"flowset/internal/plant"
+)
 
 // planJSON is the plan as written to plan.json, in SI units.
 type planJSON struct {
@@ -49,6 +53,45 @@ type pumpJSON struct {
 	AnnualCostSaving  num      `json:"annual_cost_saving"`
 	Currency          string   `json:"currency"`
 	EfficiencyAssumed []string `json:"assumptions"`
+	// Pumps is there for a site of several pumps only.
+	Pumps *pumpsJSON `json:"pumps,omitempty"`
+}
+
+// pumpsJSON is the plan of several pumps: which run, each one's share of
+// the duty, and one pump fewer.
+type pumpsJSON struct {
+	Arrangement string      `json:"arrangement"`
+	OnSheet     int         `json:"on_pump_sheet"`
+	Running     int         `json:"running"`
+	Duties      []dutyJSON  `json:"duties"`
+	OneFewer    *optionJSON `json:"one_fewer,omitempty"`
+}
+
+type dutyJSON struct {
+	ID         string `json:"pump"`
+	Flow       num    `json:"flow_m3_s"`
+	Head       num    `json:"head_m"`
+	Speed      num    `json:"speed_ratio"`
+	Efficiency num    `json:"efficiency"`
+	Given      bool   `json:"efficiency_from_pump_sheet"`
+}
+
+type optionJSON struct {
+	Running     int        `json:"running"`
+	Serves      bool       `json:"serves"`
+	AvailablePa num        `json:"available_differential_pa"`
+	Speed       num        `json:"speed_ratio"`
+	ElectricW   num        `json:"electrical_power_w"`
+	AnnualKWh   num        `json:"annual_energy_saving_kwh"`
+	Duties      []dutyJSON `json:"duties"`
+}
+
+func dutiesOut(ds []plant.PumpDuty) []dutyJSON {
+	out := make([]dutyJSON, len(ds))
+	for i, d := range ds {
+		out[i] = dutyJSON{d.ID, num(d.Flow), num(d.Head), num(d.Speed), num(d.Efficiency), d.Given}
+	}
+	return out
 }
 
 type branchPlanJSON struct {
@@ -131,6 +174,17 @@ func (j *job) planOut(generated string) planJSON {
 			AnnualEnergyKWh: num(pp.AnnualEnergySaving), AnnualCostSaving: num(pp.AnnualCostSaving), Currency: pp.Currency, EfficiencyAssumed: pp.Assumptions}}
 	if !pp.HaveBefore {
 		out.Pump.BeforeFlow, out.Pump.BeforeDiff = num(nan()), num(nan())
+	}
+	if len(pp.Duties) > 0 {
+		ps := &pumpsJSON{Arrangement: "parallel", OnSheet: pp.Pumps, Running: pp.Running, Duties: dutiesOut(pp.Duties)}
+		if pp.Series {
+			ps.Arrangement = "series"
+		}
+		if o := pp.Fewer; o != nil {
+			ps.OneFewer = &optionJSON{Running: o.Running, Serves: o.Serves, AvailablePa: num(o.Available), Speed: num(o.Speed),
+				ElectricW: num(o.Electrical), AnnualKWh: num(o.AnnualEnergySaving), Duties: dutiesOut(o.Duties)}
+		}
+		out.Pump.Pumps = ps
 	}
 	for _, b := range p.Branches {
 		out.Branches = append(out.Branches, branchPlanJSON{ID: b.ID, Parent: b.Parent, OnIndex: b.OnIndex, Valve: b.Valve, Unit: b.Unit,

@@ -467,11 +467,25 @@ func (j *job) pumpsLines(u display) []string {
 		}
 		shares = append(shares, sh)
 	}
-	if pp.Series {
+	same := true
+	for _, d := range pp.Duties[1:] {
+		d0 := pp.Duties[0]
+		same = same && math.Abs(d.Flow-d0.Flow) <= 1e-9*d0.Flow && math.Abs(d.Head-d0.Head) <= 1e-9*math.Abs(d0.Head) && d.Efficiency == d0.Efficiency
+	}
+	eff := ""
+	if d := pp.Duties[0]; d.Given {
+		eff = fmt.Sprintf(" at %.0f %% efficiency", 100*d.Efficiency)
+	}
+	switch {
+	case same && pp.Series && pp.Running > 1:
+		line += fmt.Sprintf(", each giving %s at %s%s.", u.head(pp.Duties[0].Head*rg, rho), u.flow(pp.After.Flow), eff)
+	case same && pp.Running > 1:
+		line += fmt.Sprintf(", each giving %s at %s%s.", u.flow(pp.Duties[0].Flow), u.head(pp.After.Differential, rho), eff)
+	case pp.Series:
 		line += fmt.Sprintf(": at %s each gives its head, %s.", u.flow(pp.After.Flow), strings.Join(shares, ", "))
-	} else if pp.Running > 1 {
+	case pp.Running > 1:
 		line += fmt.Sprintf(": at %s each gives its flow, %s.", u.head(pp.After.Differential, rho), strings.Join(shares, ", "))
-	} else {
+	default:
 		line += "."
 	}
 	out = append(out, line)
@@ -479,19 +493,21 @@ func (j *job) pumpsLines(u display) []string {
 	if o == nil {
 		return out
 	}
-	who := ids(o.Running)
+	who, give, hold, their := ids(o.Running)+" together", "give", "hold", "their drives"
+	if o.Running == 1 {
+		who, give, hold, their = ids(1)+" alone", "gives", "holds", "its drive"
+	}
 	switch {
 	case !o.Serves:
-		out = append(out, fmt.Sprintf("One pump fewer would not serve: %s flat out give %s at %s, the plan needs %s.",
-			who, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
+		out = append(out, fmt.Sprintf("One pump fewer would not serve: %s, flat out, %s %s at %s; the plan needs %s.",
+			who, give, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
 	case !finite(o.Electrical):
-		out = append(out, fmt.Sprintf("One pump fewer would serve: %s give %s at %s flat out, the plan needs %s.",
-			who, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
+		out = append(out, fmt.Sprintf("One pump fewer would serve: %s, flat out, %s %s at %s; the plan needs %s.",
+			who, give, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
 	default:
-		verb := "would serve"
-		l := fmt.Sprintf("One pump fewer %s: %s at %s speed give the same duty", verb, who, u.speed(o.Speed))
+		l := fmt.Sprintf("One pump fewer would serve: %s at %s speed %s the same duty", who, u.speed(o.Speed), give)
 		if m.Controlled() {
-			l = fmt.Sprintf("One pump fewer %s: %s hold the same set point, their drive at about %s speed", verb, who, u.speed(o.Speed))
+			l = fmt.Sprintf("One pump fewer would serve: %s %s the same set point, %s at about %s speed", who, hold, their, u.speed(o.Speed))
 		}
 		if m.EfficiencyGiven() {
 			l += fmt.Sprintf(", taking %.0f W against %.0f W", o.Electrical, pp.ElectricalAfter)
