@@ -71,6 +71,18 @@ func printSummary(ios *IO, s *site.Site) {
 				site.Printable(b.ID), c.SetPoint/1e3, c.Kvs, rng)
 		}
 	}
+	if ids := s.Pumps(); len(ids) > 1 {
+		how := "in parallel"
+		if s.PumpSeries {
+			how = "in series"
+		}
+		n := s.Running("")
+		fmt.Fprintf(w, "  %d pumps %s (%s), %d running", len(ids), how, joinIDs(ids), n)
+		if n < len(ids) {
+			fmt.Fprintf(w, " (%s standing by)", joinIDs(ids[n:]))
+		}
+		fmt.Fprintln(w)
+	}
 	if s.StaticLift > 0 || s.OutletPressure > 0 {
 		fmt.Fprintf(w, "  open circuit: static lift %.2f m, outlet pressure %.1f kPa (the pump gives both before any water moves)\n",
 			s.StaticLift, s.OutletPressure/1e3)

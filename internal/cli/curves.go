@@ -59,6 +59,9 @@ type curveSet struct {
 	// StaticLift is an open circuit's static head, kPa, where the system
 	// curve starts; 0 for a closed loop.
 	StaticLift float64 `json:"static_lift_kPa,omitempty"`
+	// Pumps names the pumps whose combined curve is drawn, for a site of
+	// several pumps.
+	Pumps string `json:"pumps,omitempty"`
 	// Controllers are the risers' differential controllers: a controlled
 	// riser's curve follows its controller's valve wide open in series
 	// with its span up to the held flow, and stands at that flow above.
@@ -196,6 +199,20 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 		cs.System = append(cs.System, disp(pt))
 		flows[k] = pt.Flow
 	}
+	if m.Several() && m.PumpDriven() {
+		n := st.Running
+		if n <= 0 || n > len(m.PumpIDs) {
+			n = len(m.PumpIDs)
+		}
+		how := "in parallel: flows added at equal head, each pump only below its shut-off head"
+		if m.Series {
+			how = "in series: heads added at equal flow"
+		}
+		cs.Pumps = fmt.Sprintf("%s %s", joinIDs(pumpNames(m.PumpIDs[:n])), how)
+		if n < len(m.PumpIDs) {
+			cs.Pumps += fmt.Sprintf(" (%s standing by)", joinIDs(pumpNames(m.PumpIDs[n:])))
+		}
+	}
 	for _, pt := range m.PumpCurve(p, st.Speed, st.Running, flows) {
 		cs.Pump = append(cs.Pump, disp(pt))
 	}
@@ -234,6 +251,9 @@ func writeCurvesTable(w io.Writer, cs *curveSet) error {
 		fmt.Fprintln(w, "held: the branch's pressure-independent valve holds a lower flow at its setting; no differential passes this much")
 	}
 	fmt.Fprintln(w, "\ncombined curve seen from the pump (header losses included)")
+	if cs.Pumps != "" {
+		fmt.Fprintf(w, "pump curve of %s\n", cs.Pumps)
+	}
 	if cs.StaticLift > 0 {
 		fmt.Fprintf(w, "open circuit: the system curve starts at the static lift, %.1f kPa at no flow\n", cs.StaticLift)
 	}

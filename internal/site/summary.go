@@ -125,13 +125,20 @@ func join(names []string) string { return strings.Join(names, ", ") }
 // statePump words the states sheet's pump setting for a state.
 func (s *Site) statePump(label string) string {
 	st := s.State(label)
+	out := ""
 	switch {
 	case st == nil:
 		return ""
 	case st.Speed > 0:
-		return "speed " + fmtNum(st.Speed)
+		out = "speed " + fmtNum(st.Speed)
 	case st.SetPoint > 0:
-		return "set point " + fmtNum(st.SetPoint/1e3) + " kPa"
+		out = "set point " + fmtNum(st.SetPoint/1e3) + " kPa"
 	}
-	return ""
+	if st.Running > 0 {
+		if out != "" {
+			out += ", "
+		}
+		out += fmt.Sprintf("%d of %d pumps running", s.Running(label), len(s.Pumps()))
+	}
+	return out
 }
