@@ -557,7 +557,13 @@ func newSetup(m *plant.Model, o FitOptions) (*setup, error) {
 			if !(r.Sigma > 0) || math.IsInf(r.Sigma, 1) {
 				return nil, bad("uncertainty %g must be positive", r.Sigma)
 			}
-			o := obs{reading: ri, state: k, what: r.What, branch: -1, value: r.Value, sigma: r.Sigma}
+			o := obs{reading: ri, state: k, what: r.What, branch: -1, pump: -1, value: r.Value, sigma: r.Sigma}
+			if i, ok := m.PumpIndex(r.Where); ok {
+				o.pump = i
+				if !m.PumpDriven() {
+					return nil, bad("a reading at one pump needs the pumps' curves")
+				}
+			}
 			what := r.What
 			if _, atBranch := m.Index(r.Where); atBranch && what == site.HeaderDiff {
 				// A header differential read at a branch's take-off is

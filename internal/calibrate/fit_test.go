@@ -48,6 +48,12 @@ func richSurvey(s *site.Site) {
 		read(s, st, site.AtHeader, site.HeaderDiff, "manometer", nan)
 		read(s, st, site.AtPump, site.PumpDiff, "manometer", nan)
 		read(s, st, site.AtPump, site.TotalFlow, "clamp-on", nan)
+		if ids := s.Pumps(); len(ids) > 1 {
+			// Several pumps read one by one: P1's flow and P2's
+			// differential (its own head in series).
+			read(s, st, ids[0], site.TotalFlow, "clamp-on", nan)
+			read(s, st, ids[1], site.PumpDiff, "manometer", nan)
+		}
 	}
 }
 
@@ -63,6 +69,8 @@ func richCases() []struct {
 		{"reverse return", plantSpec{branches: 4, arrangement: site.ReverseReturn, seed: 2}},
 		{"no header loss", plantSpec{branches: 4, arrangement: site.NoHeaderLoss, seed: 3}},
 		{"constant differential", plantSpec{branches: 4, arrangement: site.DirectReturn, constDiff: true, seed: 4}},
+		{"two pumps in parallel, read one by one", plantSpec{branches: 4, arrangement: site.DirectReturn, pumps: "parallel", seed: 5}},
+		{"two pumps in series, read one by one", plantSpec{branches: 4, arrangement: site.ReverseReturn, pumps: "series", seed: 6}},
 	}
 }
 

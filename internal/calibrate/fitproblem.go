@@ -65,6 +65,7 @@ type obs struct {
 	state   int
 	what    site.Quantity // what is modelled (ValveDiff for a valve-meter flow)
 	branch  int           // -1 for the pump, header and total flow
+	pump    int           // one pump of several (PumpIndex); -1 for the set or none
 	value   float64       // SI, of what
 	sigma   float64
 	meter   bool    // a valve-meter flow
@@ -499,6 +500,12 @@ func (p *problem) flow(sn *stateNet, links []int) float64 {
 
 func (p *problem) predict(sn *stateNet, o *obs) float64 {
 	sol := sn.sol
+	if o.pump >= 0 {
+		if l := sn.built.PumpLink; l >= 0 && sn.outlet >= 0 {
+			return p.onePump(sn, o, sol.Flow[l], sol.Pressure[sn.outlet]-sol.Pressure[sn.ret]+p.m.Lift(), sn.params.PumpHead)
+		}
+		return math.NaN()
+	}
 	switch o.what {
 	case site.Flow:
 		return p.flow(sn, sn.flowOf[o.branch])
@@ -530,6 +537,24 @@ func (p *problem) predict(sn *stateNet, o *obs) float64 {
 		return v
 	}
 	return math.NaN()
+}
+
+// onePump is a reading at one pump of several as a function of the set's
+// flow q, its differential dp and the head multiplier k (plant.PumpReading).
+func (p *problem) onePump(sn *stateNet, o *obs, q, dp, k float64) float64 {
+	return p.m.PumpReading(o.what, o.pump, sn.st, k, q, dp)
+}
+
+// onePumpLin returns onePump and its derivatives in q, dp and ln k, by
+// central differences: the set's combined curve is found by iteration, and
+// its value is smooth away from a pump's cut-in.
+func (p *problem) onePumpLin(sn *stateNet, o *obs, q, dp, k float64) (v, dq, ddp, dk float64) {
+	v = p.onePump(sn, o, q, dp, k)
+	hq, hp, hk := 1e-6*max(math.Abs(q), 1e-9), 1e-6*max(math.Abs(dp), 1), 1e-6
+	dq = (p.onePump(sn, o, q+hq, dp, k) - p.onePump(sn, o, q-hq, dp, k)) / (2 * hq)
+	ddp = (p.onePump(sn, o, q, dp+hp, k) - p.onePump(sn, o, q, dp-hp, k)) / (2 * hp)
+	dk = (p.onePump(sn, o, q, dp, k*math.Exp(hk)) - p.onePump(sn, o, q, dp, k*math.Exp(-hk))) / (2 * hk)
+	return v, dq, ddp, dk
 }
 
 // speed returns the pump's speed ratio in state sn and its derivatives with
@@ -620,6 +645,17 @@ func (p *problem) linearise(sn *stateNet) {
 	for k, oi := range sn.obs {
 		o := &p.obs[oi]
 		ln := lin{q: sn.lin[k].q[:0], p: sn.lin[k].p[:0], x: sn.lin[k].x[:0]}
+		if l := sn.built.PumpLink; o.pump >= 0 && l >= 0 && sn.outlet >= 0 {
+			dp := sol.Pressure[sn.outlet] - sol.Pressure[sn.ret] + p.m.Lift()
+			_, dq, ddp, dk := p.onePumpLin(sn, o, sol.Flow[l], dp, sn.params.PumpHead)
+			ln.q = append(ln.q, term{l, dq})
+			ln.p = append(ln.p, term{sn.outlet, ddp}, term{sn.ret, -ddp})
+			if p.pIdx >= 0 && dk != 0 {
+				ln.x = append(ln.x, term{p.pIdx, dk})
+			}
+			sn.lin[k] = ln
+			continue
+		}
 		switch o.what {
 		case site.Flow:
 			for _, l := range sn.flowOf[o.branch] {

@@ -24,7 +24,10 @@ type plantSpec struct {
 	arrangement site.Arrangement
 	riser       bool // branch 1 becomes a riser feeding two sub-branches
 	constDiff   bool // a constant differential instead of a pump curve
-	seed        uint64
+	// pumps splits the pump into two unequal ones, "parallel" or
+	// "series", whose combined curve passes near the one pump's duty.
+	pumps string
+	seed  uint64
 }
 
 // newPlantSite builds an invented site with every branch a pipe, fittings,
@@ -84,7 +87,27 @@ func newPlantSite(tb testing.TB, sp plantSpec) *site.Site {
 	if !sp.constDiff {
 		setPump(tb, s)
 	}
+	if sp.pumps != "" {
+		splitPump(s, sp.pumps == "series")
+	}
 	return s
+}
+
+// splitPump replaces the site's one pump H(q) by two unequal pumps: in
+// parallel P1 with head H(1.6 q) and P2 with 0.95 H(2.7 q) (their flows at
+// equal head add to about the one pump's), in series P1 0.6 H(q) and P2
+// 0.42 H(q).
+func splitPump(s *site.Site, series bool) {
+	one := s.Pump
+	s.Pump, s.PumpSeries = nil, series
+	for k, f := range [][2]float64{{1.6, 1}, {2.7, 0.95}} {
+		if series {
+			f = [][2]float64{{1, 0.6}, {1, 0.42}}[k]
+		}
+		for _, pt := range one {
+			s.Pump = append(s.Pump, site.PumpPoint{Pump: fmt.Sprintf("P%d", k+1), Flow: pt.Flow / f[0], Head: f[1] * pt.Head, Speed: math.NaN(), Efficiency: math.NaN()})
+		}
+	}
 }
 
 // setPump gives the site a pump curve H = 1.3 Hd - 0.3 Hd (Q/Qd)² through

@@ -240,9 +240,17 @@ func New(s *site.Site) (*Model, error) {
 			}
 		}
 	}
+	if m.PumpIDs == nil {
+		m.PumpIDs = s.Pumps() // named, for readings, even where no curve is used
+	}
 	m.States, err = m.states()
 	if err != nil {
 		return nil, err
+	}
+	for _, r := range s.Readings {
+		if _, ok := m.PumpIndex(r.Where); ok && len(m.Pumps) == 0 {
+			return nil, fmt.Errorf("%s: a reading at pump %s needs the pumps' curves in the model: boundary pump or constant-differential: %w", r.Pos, r.Where, ErrModel)
+		}
 	}
 	return m, nil
 }
@@ -251,7 +259,8 @@ func New(s *site.Site) (*Model, error) {
 func (m *Model) fitPumps() error {
 	s := m.Site
 	m.Series = s.PumpSeries
-	for _, id := range s.Pumps() {
+	m.PumpIDs = s.Pumps()
+	for _, id := range m.PumpIDs {
 		var pts []hydraulics.PumpPoint
 		var eff hydraulics.EfficiencyCurve
 		speed := 0.0
@@ -278,7 +287,6 @@ func (m *Model) fitPumps() error {
 			m.Pump, m.PumpFit = &c, rep
 		}
 		m.Pumps = append(m.Pumps, hydraulics.SetMember{Curve: c, Speed: speed})
-		m.PumpIDs = append(m.PumpIDs, id)
 		m.PumpFits = append(m.PumpFits, rep)
 		m.PumpEff = append(m.PumpEff, eff)
 	}
@@ -331,6 +339,63 @@ func (m *Model) EfficiencyGiven() bool {
 		}
 	}
 	return false
+}
+
+// PumpIndex returns the index in Pumps of the pump with id (one of several
+// pumps named on the pump sheet).
+func (m *Model) PumpIndex(id string) (int, bool) {
+	if id == "" || len(m.PumpIDs) < 2 {
+		return 0, false
+	}
+	for i, p := range m.PumpIDs {
+		if p == id {
+			return i, true
+		}
+	}
+	return 0, false
+}
+
+// PumpReading returns the value of a reading at pump i of several (a
+// pump diff, total flow or speed) when the set gives flow q at differential
+// dp (Pa, lift included) in state st with head multiplier k: in parallel
+// its flow at the common head and the common differential, in series the
+// flow and its own head; its own fixed speed or the set's. The set's speed
+// is the state's on a pump boundary and, on a Controlled one, the speed at
+// which the drive gives dp at q (its maximum at most). A pump that does
+// not run in the state gives no flow and shows no speed; in parallel it
+// sees the common differential across its non-return valve.
+func (m *Model) PumpReading(what site.Quantity, i int, st State, k, q, dp float64) float64 {
+	running := st.Running
+	if running <= 0 || running > len(m.Pumps) {
+		running = len(m.Pumps)
+	}
+	if i >= running {
+		if what == site.PumpDiff {
+			return dp
+		}
+		return 0
+	}
+	set := m.Set(k, running)
+	s := st.Speed
+	if m.Controlled() {
+		s = set.SpeedFor(q, dp, m.Fluid)
+		if !(s <= m.MaxSpeed()) {
+			s = m.MaxSpeed()
+		}
+	}
+	set = set.AtSpeed(s)
+	switch what {
+	case site.TotalFlow:
+		return set.Flows(q)[i]
+	case site.PumpDiff:
+		if !m.Series {
+			return dp
+		}
+		return set.Heads(q)[i] * m.Fluid.Density * hydraulics.StandardGravity
+	case site.Speed:
+		return set.Speeds()[i]
+	}
+	return math.NaN()
 }
 
 // Several reports whether the site has more than one pump (running or
@@ -672,6 +737,9 @@ func (m *Model) measuredDiff(st *State) (float64, error) {
 	for _, ri := range st.Readings {
 		r := m.Site.Readings[ri]
 		_, atBranch := m.index[r.Where]
+		if _, onePump := m.PumpIndex(r.Where); onePump && m.Series {
+			continue // one pump's part of the differential
+		}
 		if r.What == site.PumpDiff || (r.What == site.HeaderDiff && !atBranch) {
 			if n == 0 {
 				pos = r.Pos
@@ -1220,6 +1288,9 @@ func (s *Solved) Predict(r *site.Reading) (float64, error) {
 		// A header differential read at a branch's take-off is that
 		// branch's differential.
 		return s.BranchDiff(i), nil
+	}
+	if i, ok := s.Model.PumpIndex(r.Where); ok {
+		return s.Model.PumpReading(r.What, i, s.State, s.Params.PumpHead, s.TotalFlow(), s.PumpDiff()), nil
 	}
 	switch r.What {
 	case site.TotalFlow:

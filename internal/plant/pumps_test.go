@@ -129,3 +129,49 @@ func relErr(got, want float64) float64 {
 	}
 	return math.Abs(got-want) / math.Abs(want)
 }
+
+// TestPumpReadings: readings at one pump of several. Two identical pumps
+// in parallel each give half the flow at the common differential; in
+// series each gives half the differential at the whole flow (the
+// combination rules, from memory); a pump standing by gives nothing.
+func TestPumpReadings(t *testing.T) {
+	ctx := context.Background()
+	for _, tc := range []struct {
+		name         string
+		series       bool
+		running      int
+		flow, diff   float64 // of pump B, as fractions of the set's
+		speedOfPumpB float64
+	}{
+		{"parallel", false, 2, 0.5, 1, 1},
+		{"series", true, 2, 1, 0.5, 1},
+		{"parallel, B standing by", false, 1, 0, 1, 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, err := New(pumpsSite(30, 40000, 2, tc.series, tc.running))
+			if err != nil {
+				t.Fatal(err)
+			}
+			sol, err := m.Solve(ctx, m.Design(), m.States[0])
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, c := range []struct {
+				what site.Quantity
+				want float64
+			}{
+				{site.TotalFlow, tc.flow * sol.TotalFlow()},
+				{site.PumpDiff, tc.diff * sol.PumpDiff()},
+				{site.Speed, tc.speedOfPumpB},
+			} {
+				got, err := sol.Predict(&site.Reading{Where: "B", What: c.what})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if relErr(got, c.want) > 1e-9 {
+					t.Errorf("%v at pump B = %.9g, want %.9g", c.what, got, c.want)
+				}
+			}
+		})
+	}
+}

@@ -552,7 +552,7 @@ var badCases = []badCase{
 	{name: "pump diff at a branch", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,pump diff,40,kPa,gauge\n"},
 		cause: ErrRange,
 		want: []string{
-			"readings.csv:3:2: field \"where\": value \"B\": pump diff is not read here (want pump)",
+			"readings.csv:3:2: field \"where\": value \"B\": pump diff is not read here (want pump, or the id of one of several pumps)",
 		}},
 	{name: "controlled diff where there is no controller", files: map[string]string{"readings.csv": rdHead + rdBase + "as-found,B,controlled diff,20,kPa,manometer\n"},
 		cause: ErrReference,
@@ -743,7 +743,23 @@ var badCases = []badCase{
 			"pump.csv:1:2: field \"head\": value \"kPa\": unit \"kPa\" is a pressure, not a head (want a head unit: m or ft of the pumped fluid; convert a pressure to head with the fluid's density)",
 		}},
 	{name: "several pumps", files: map[string]string{"site.csv": "pumps running,1\n", "pump.csv": twoPumps,
-		"readings.csv": rdHead + rdBase + "after,A,flow,0.5,l/s,clamp-on\n", "states.csv": "state,pumps running\nafter,2\n"}},
+		"readings.csv": rdHead + rdBase + "after,A,flow,0.5,l/s,clamp-on\nafter,p2,total flow,0.4,l/s,clamp-on\nafter,P1,pump diff,60,kPa,gauge\nafter,P1,speed,0.9,,pump-display\n",
+		"states.csv": "state,pumps running\nafter,2\n"}},
+	{name: "one pump's readings", files: map[string]string{"pump.csv": twoPumps,
+		"readings.csv": rdHead + rdBase + "as-found,P1,flow,0.5,l/s,clamp-on\nas-found,P2,header diff,30,kPa,gauge\nas-found,P3,pump diff,30,kPa,gauge\n"},
+		cause: ErrRange,
+		want: []string{
+			"readings.csv:3:2: field \"where\": value \"P1\": flow is not read here (want a branch id)",
+			"readings.csv:4:2: field \"where\": value \"P2\": header diff is not read here (want a branch id (at its take-off) or header)",
+			"readings.csv:5:2: field \"where\": value \"P3\": no branch has this id (want a branch id from the branches sheet, pump or header)",
+		}},
+	{name: "pump id reserved", files: map[string]string{"pump.csv": strings.ReplaceAll(twoPumps, "P2", "Header")},
+		cause: ErrRange,
+		want: []string{
+			"pump.csv:5:1: field \"pump\": value \"Header\": pump and header are reserved names (want another pump id, e.g. P1)",
+			"pump.csv:6:1: field \"pump\": value \"Header\": pump and header are reserved names (want another pump id, e.g. P1)",
+			"pump.csv:7:1: field \"pump\": value \"Header\": pump and header are reserved names (want another pump id, e.g. P1)",
+		}},
 	{name: "pump ids on some rows only", files: map[string]string{"pump.csv": "pump,flow [l/s],head [m]\nP1,0,8\nP1,1,7\n,2,5\nP1,3,2\n"},
 		cause: ErrMissing,
 		want: []string{

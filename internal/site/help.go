@@ -181,10 +181,14 @@ branch id, pump or header) and what it measures:
   valve diff   differential across the branch's valve     at a branch with a valve
   branch diff  differential across the whole branch       at a branch
   header diff  differential between the headers           at a branch take-off or header
-  pump diff    differential across the pump               at pump
-  total flow   flow through the pump                      at pump or header
-  speed        the drive's displayed speed                at pump
+  pump diff    differential across the pump               at pump, or one pump's id
+  total flow   flow through the pump                      at pump or header, or one pump's id
+  speed        the drive's displayed speed                at pump, or one pump's id
   controlled diff  differential a riser's controller holds    at a riser with a controller
+Where the pump sheet names several pumps, a reading at pump is the set's
+(the common differential, the total flow) and a reading at a pump's id is
+that pump's: its own flow, its differential (in series, its own share) and
+its speed. The fit uses both.
 The unit column gives the unit of value and uncertainty for that row; a
 speed is a ratio to rated speed, or a percentage with unit %. A
 setting records a valve moved for that reading; blank means the as-found

@@ -1078,6 +1078,10 @@ func readPump(t *table, p *Problems) []PumpPoint {
 			}
 			continue
 		}
+		if strings.EqualFold(pt.Pump, AtPump) || strings.EqualFold(pt.Pump, AtHeader) {
+			p.add(sr.ref(r, "pump").problem(SeverityError, ErrRange, "pump and header are reserved names", "another pump id, e.g. P1"))
+			continue
+		}
 		key := idKey(pt.Pump)
 		ps, found := seen[key]
 		if !found {
@@ -1168,6 +1172,14 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		line    int
 	}
 	settings := map[[2]string]moved{} // state, branch -> the setting first given
+	// The ids of several pumps, folded as ids are, which a reading may
+	// name for one pump's differential, flow or speed.
+	pumpIDs := map[string]string{}
+	if ps := s.Pumps(); len(ps) > 1 {
+		for _, id := range ps {
+			pumpIDs[idKey(id)] = id
+		}
+	}
 	for _, r := range t.rows {
 		ok := true
 		rd := Reading{Pos: Pos{File: t.file, Line: r.line}, Setting: nan, Sigma: nan}
@@ -1197,6 +1209,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		}
 		// Where the reading was taken, and whether that suits the quantity.
 		var br *Branch
+		atPump := false
 		switch {
 		case rd.Where == "":
 			p.add(wref.problem(SeverityError, ErrMissing, "blank", "a branch id, pump or header"))
@@ -1205,6 +1218,9 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 			rd.Where = AtPump
 		case strings.EqualFold(rd.Where, AtHeader):
 			rd.Where = AtHeader
+		case byID[rd.Where] == nil && pumpIDs[idKey(rd.Where)] != "":
+			// One pump of several, by its id on the pump sheet.
+			rd.Where, atPump = pumpIDs[idKey(rd.Where)], true
 		default:
 			br = byID[rd.Where]
 			if br == nil {
@@ -1215,7 +1231,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 				continue
 			}
 		}
-		if want := placeWant(rd.What, rd.Where, br != nil); want != "" {
+		if want := placeWant(rd.What, rd.Where, br != nil, atPump); want != "" {
 			p.add(wref.problem(SeverityError, ErrRange, fmt.Sprintf("%s is not read here", rd.What), want))
 			continue
 		}
@@ -1364,7 +1380,7 @@ func checkRunning(s *Site, n int, ref cellRef, p *Problems) bool {
 
 // placeWant returns what a reading of q should name as its place, or ""
 // when where suits q.
-func placeWant(q Quantity, where string, branch bool) string {
+func placeWant(q Quantity, where string, branch, onePump bool) string {
 	switch q {
 	case Flow, ValveDiff, BranchDiff, ControlledDiff:
 		if !branch {
@@ -1375,12 +1391,12 @@ func placeWant(q Quantity, where string, branch bool) string {
 			return "a branch id (at its take-off) or header"
 		}
 	case PumpDiff, Speed:
-		if where != AtPump {
-			return "pump"
+		if where != AtPump && !onePump {
+			return "pump, or the id of one of several pumps"
 		}
 	case TotalFlow:
 		if branch {
-			return "pump or header"
+			return "pump or header, or the id of one of several pumps"
 		}
 	}
 	return ""
