@@ -744,7 +744,7 @@ var badCases = []badCase{
 		}},
 	{name: "several pumps", files: map[string]string{"site.csv": "pumps running,1\n", "pump.csv": twoPumps,
 		"readings.csv": rdHead + rdBase + "after,A,flow,0.5,l/s,clamp-on\nafter,p2,total flow,0.4,l/s,clamp-on\nafter,P1,pump diff,60,kPa,gauge\nafter,P1,speed,0.9,,pump-display\n",
-		"states.csv": "state,pumps running\nafter,2\n"}},
+		"states.csv":   "state,pumps running\nafter,2\n"}},
 	{name: "one pump's readings", files: map[string]string{"pump.csv": twoPumps,
 		"readings.csv": rdHead + rdBase + "as-found,P1,flow,0.5,l/s,clamp-on\nas-found,P2,header diff,30,kPa,gauge\nas-found,P3,pump diff,30,kPa,gauge\n"},
 		cause: ErrRange,
