@@ -18,8 +18,9 @@ import (
 // survey of the true plant with the controller: a clamp-on flow on every
 // branch and its differential, the controller's span differential, the
 // header and pump differentials, all
-// at the instruments' default uncertainties, with noise when noise is set.
-func controlledSite(t *testing.T, seed int64, noise float64) (*site.Site, *synth.Truth, int) {
+// at the instruments' default uncertainties, with noise when noise is set;
+// the set point recorded is offset (a fraction) above the one it holds.
+func controlledSite(t *testing.T, seed int64, noise, offset float64) (*site.Site, *synth.Truth, int) {
 	t.Helper()
 	ctx := context.Background()
 	spec := synth.Spec{Branches: 18, Arrangement: site.DirectReturn, Nested: true, Boundary: site.PumpCurve, Seed: seed,
@@ -85,6 +86,8 @@ func controlledSite(t *testing.T, seed int64, noise float64) (*site.Site, *synth
 	add(s.Branches[k].ID, site.ControlledDiff, "manometer", span)
 	add(site.AtPump, site.PumpDiff, "manometer", sol.PumpDiff())
 	s.Readings = rd
+	// The sheet records the set point off by offset from what it holds.
+	s.Branches[k].Controller.SetPoint *= 1 + offset
 	return s, tr, k
 }
 
@@ -102,13 +105,14 @@ func TestClosedLoopController(t *testing.T) {
 	}
 	ctx := context.Background()
 	for _, c := range []struct {
-		name  string
-		seed  int64
-		noise float64
-		ratio float64 // tolerance on every fitted resistance ratio
-	}{{"noise-free", 41, 0, 0.02}, {"noisy", 42, 1, 0.5}} {
+		name   string
+		seed   int64
+		noise  float64
+		ratio  float64 // tolerance on every fitted resistance ratio
+		offset float64 // of the recorded set point from the one held
+	}{{"noise-free", 41, 0, 0.02, 0}, {"noisy", 42, 1, 0.5, 0}, {"set point recorded 20 % high", 41, 0, 0.02, 0.2}} {
 		t.Run(c.name, func(t *testing.T) {
-			s, tr, k := controlledSite(t, c.seed, c.noise)
+			s, tr, k := controlledSite(t, c.seed, c.noise, c.offset)
 			m, err := plant.New(s)
 			if err != nil {
 				t.Fatal(err)
@@ -124,6 +128,16 @@ func TestClosedLoopController(t *testing.T) {
 				if r := cal.Params.Resistance[i] / tr.Params.Resistance[i]; math.Abs(math.Log(r)) > c.ratio+3*cal.LogSD[i] {
 					t.Errorf("branch %s: fitted multiplier %.3f, true %.3f", b.ID, cal.Params.Resistance[i], tr.Params.Resistance[i])
 				}
+			}
+			// The set point the controller held, within the fit's interval.
+			if len(cal.Controllers) != 1 {
+				t.Fatalf("fitted controllers %+v, want one", cal.Controllers)
+			}
+			cf := cal.Controllers[0]
+			held := s.Branches[k].Controller.SetPoint / (1 + c.offset)
+			t.Logf("set point recorded %.2f kPa, held %.2f kPa, fitted %.2f kPa (95 %% %.2f-%.2f)", cf.Recorded/1e3, held/1e3, cf.Held/1e3, cf.Lo/1e3, cf.Hi/1e3)
+			if !(cf.Lo <= held*1.005 && cf.Hi >= held*0.995) {
+				t.Errorf("fitted set point %.2f kPa (95 %% %.2f-%.2f), held %.2f kPa", cf.Held/1e3, cf.Lo/1e3, cf.Hi/1e3, held/1e3)
 			}
 			oracle, err := balance.Compute(ctx, m, tr.Params, &balance.Options{Rounding: balance.Smart})
 			if err != nil {

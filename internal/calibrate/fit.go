@@ -65,6 +65,12 @@ const (
 	// allow ±5-7 % on head at the guarantee point (grades 2B and 3B, from
 	// memory), and a worn impeller loses more; 10 % per sd covers both.
 	DefaultPriorPump = 0.1
+	// DefaultPriorSetPoint is the sd of ln of the multiplier on the set
+	// point a differential controller holds as found: its scale is marked
+	// coarsely and drifts, so the set point recorded from it is taken as
+	// good to about 15 % (common practice, no source); a reading across
+	// its span pins it down.
+	DefaultPriorSetPoint = 0.15
 	// DefaultMatrixFreeAbove is the number of parameters above which Fit
 	// solves matrix-free: below it the engine forms the Jacobian and keeps
 	// the exact covariance.
@@ -101,11 +107,14 @@ type FitOptions struct {
 	// DefaultFaultShare, negative: every branch gets PriorResistance (one
 	// wide prior, no mixture).
 	FaultShare  float64
-	PriorKv     float64  // sd of ln KvScale; 0: DefaultPriorKv
-	PriorHeld   float64  // sd of ln of a pressure-independent valve's flow scale; 0: DefaultPriorHeld
-	PriorHeader float64  // sd of ln Header; 0: DefaultPriorHeader
-	PriorPump   float64  // sd of ln PumpHead; 0: DefaultPriorPump
-	Loss        lsq.Loss // zero value: plain least squares
+	PriorKv     float64 // sd of ln KvScale; 0: DefaultPriorKv
+	PriorHeld   float64 // sd of ln of a pressure-independent valve's flow scale; 0: DefaultPriorHeld
+	PriorHeader float64 // sd of ln Header; 0: DefaultPriorHeader
+	PriorPump   float64 // sd of ln PumpHead; 0: DefaultPriorPump
+	// PriorSetPoint is the sd of ln of a differential controller's set
+	// point multiplier; 0: DefaultPriorSetPoint.
+	PriorSetPoint float64
+	Loss          lsq.Loss // zero value: plain least squares
 	// OutlierZ is the engine's outlier threshold (see Settings.OutlierZ):
 	// 0 selects the Bonferroni default, negative disables the test.
 	OutlierZ float64
@@ -157,7 +166,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	if o != nil {
 		out = *o
 	}
-	for _, p := range []*float64{&out.PriorResistance, &out.PriorClean, &out.PriorKv, &out.PriorHeld, &out.PriorHeader, &out.PriorPump} {
+	for _, p := range []*float64{&out.PriorResistance, &out.PriorClean, &out.PriorKv, &out.PriorHeld, &out.PriorHeader, &out.PriorPump, &out.PriorSetPoint} {
 		if *p < 0 || math.IsNaN(*p) {
 			return out, fmt.Errorf("calibrate: prior sd %g must be positive: %w", *p, lsq.ErrSettings)
 		}
@@ -183,6 +192,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	def(&out.PriorHeld, DefaultPriorHeld)
 	def(&out.PriorHeader, DefaultPriorHeader)
 	def(&out.PriorPump, DefaultPriorPump)
+	def(&out.PriorSetPoint, DefaultPriorSetPoint)
 	if out.MatrixFreeAbove == 0 {
 		out.MatrixFreeAbove = DefaultMatrixFreeAbove
 	}
@@ -362,10 +372,13 @@ type ReadingFit struct {
 type Calibration struct {
 	Params   plant.Params // fitted multipliers
 	Branches []BranchFit
-	Header   ParamFit
-	Pump     ParamFit
-	Readings []ReadingFit
-	States   []string // survey state labels, the order of ValveVerdict's slices
+	// Controllers are the set points the risers' differential controllers
+	// held as found, fitted (in branch order).
+	Controllers []ControllerFit
+	Header      ParamFit
+	Pump        ParamFit
+	Readings    []ReadingFit
+	States      []string // survey state labels, the order of ValveVerdict's slices
 	// Parameters describes Result.X (log-multipliers) one by one.
 	Parameters                  []Param
 	ChiSquare, ReducedChiSquare float64
@@ -382,6 +395,17 @@ type Calibration struct {
 	// Solves counts the network solves of the whole fit, hypothesis tests
 	// included.
 	Solves int
+}
+
+// ControllerFit is the fitted set point of one differential controller as
+// found.
+type ControllerFit struct {
+	ID    string
+	Index int
+	// Recorded is the set point the sheets give, Held the one the survey
+	// implies (Pa) with its 95 % interval Lo-Hi, LogSD the sd of ln Held.
+	Recorded, Held, Lo, Hi, LogSD float64
+	Determined                    bool
 }
 
 // Outliers returns the readings the fit removed as outliers.
@@ -886,6 +910,11 @@ func (su *setup) params(hyp []ValveHypothesis) []Param {
 			ps = append(ps, Param{Kind: StuckParam, Branch: i, Sigma: freeSigma, free: true})
 		}
 	}
+	for i := range m.Branches {
+		if m.Branches[i].Controlled() {
+			ps = append(ps, Param{Kind: SetPointParam, Branch: i, Sigma: o.PriorSetPoint})
+		}
+	}
 	if su.hasHeader {
 		ps = append(ps, Param{Kind: HeaderParam, Branch: -1, Sigma: o.PriorHeader})
 	}
@@ -944,6 +973,14 @@ func (su *setup) problemFor(ctx context.Context, hyp []ValveHypothesis, sel []in
 			p.hIdx = j
 		case PumpParam:
 			p.pIdx = j
+		case SetPointParam:
+			if p.spIdx == nil {
+				p.spIdx = make([]int, nb)
+				for i := range p.spIdx {
+					p.spIdx[i] = -1
+				}
+			}
+			p.spIdx[par.Branch] = j
 		}
 	}
 	for _, k := range sel {

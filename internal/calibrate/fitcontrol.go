@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"fmt"
+	"math"
 	"slices"
 
 	"flowset/internal/hydraulics"
@@ -129,4 +130,47 @@ func (p *problem) holdGradient(sn *stateNet, i int) ([]float64, map[int]int, err
 		}
 	}
 	return g, span, nil
+}
+
+// setPointTerm returns the link-drop derivative of riser i's set point
+// parameter (ln of the multiplier on its as-found set point): on its
+// controller's link while it holds, -k ∂Hold/∂x + (q - Hold) ∂k/∂x, Hold's
+// derivative by central differences of the span solved alone (two solves;
+// a closed form would need the span's own source sensitivity, which the
+// network does not offer); nothing while it lies wide open.
+func (p *problem) setPointTerm(sn *stateNet, i int) []term {
+	cl, ok := sn.built.Controller[p.m.Branches[i].ID]
+	if !ok {
+		return nil
+	}
+	c, ok := sn.built.Net.Elements(cl)[0].(hydraulics.DiffController)
+	q := sn.sol.Flow[cl]
+	if !ok || !c.Holding(q) {
+		return nil
+	}
+	const h = 1e-4
+	hold := func(f float64) float64 {
+		pp := sn.params.Clone()
+		if pp.SetPoint == nil {
+			pp.SetPoint = make([]float64, len(p.m.Branches))
+			for k := range pp.SetPoint {
+				pp.SetPoint[k] = 1
+			}
+		}
+		pp.SetPoint[i] *= f
+		e, _, err := p.m.Controller(i, pp, sn.st.Settings, sn.st.SetPoints)
+		if err != nil {
+			return math.NaN()
+		}
+		return e.Hold
+	}
+	up, dn := hold(math.Exp(h)), hold(math.Exp(-h))
+	dHold := (up - dn) / (2 * h)
+	if !finite(dHold) {
+		return nil
+	}
+	k := c.SetPoint / (hydraulics.ControllerDroop * c.Hold)
+	// k = S/(δ Hold): ∂k/∂ln S = k (1 - ∂ln Hold/∂ln S).
+	dk := k * (1 - dHold/c.Hold)
+	return []term{{cl, -k*dHold + (q-c.Hold)*dk}}
 }

@@ -27,6 +27,7 @@ const (
 	OffsetParam                      // a mis-set valve's offset from its recorded setting, in setting units (not a log)
 	HeaderParam                      // every header segment
 	PumpParam                        // the pump's head curve
+	SetPointParam                    // the set point a riser's differential controller holds as found
 )
 
 // String names the kind.
@@ -44,6 +45,8 @@ func (k ParamKind) String() string {
 		return "header"
 	case PumpParam:
 		return "pump head"
+	case SetPointParam:
+		return "controller set point"
 	}
 	return fmt.Sprintf("param(%d)", int(k))
 }
@@ -135,6 +138,7 @@ type problem struct {
 	states []*stateNet
 	rIdx   []int // branch -> resistance parameter, -1
 	kvIdx  []int // branch -> Kv or stuck parameter, -1
+	spIdx  []int // branch -> controller set point parameter, -1 (nil: none)
 	hIdx   int
 	pIdx   int
 	refKv  []float64 // table Kv of each valve at its reference setting
@@ -165,6 +169,9 @@ func (p *problem) restrict(i int, f *fitRun) {
 	for b := range p.rIdx {
 		p.rIdx[b], p.kvIdx[b] = -1, -1
 	}
+	for b := range p.spIdx {
+		p.spIdx[b] = -1
+	}
 	p.hIdx, p.pIdx = -1, -1
 	for j, par := range p.params {
 		switch par.Kind {
@@ -172,6 +179,8 @@ func (p *problem) restrict(i int, f *fitRun) {
 			p.rIdx[par.Branch] = j
 		case KvParam, StuckParam, OffsetParam:
 			p.kvIdx[par.Branch] = j
+		case SetPointParam:
+			p.spIdx[par.Branch] = j
 		}
 	}
 }
@@ -231,6 +240,18 @@ func (p *problem) stateParams(x []float64, s int, gain []float64) plant.Params {
 			gain[i] = g
 		}
 	}
+	for i, j := range p.spIdx {
+		if j < 0 {
+			continue
+		}
+		if pp.SetPoint == nil {
+			pp.SetPoint = make([]float64, len(p.m.Branches))
+			for k := range pp.SetPoint {
+				pp.SetPoint[k] = 1
+			}
+		}
+		pp.SetPoint[i] = math.Exp(x[j])
+	}
 	if p.hIdx >= 0 {
 		pp.Header = math.Exp(x[p.hIdx])
 	}
@@ -270,7 +291,7 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 	// mostly stay, and building their elements is not free.
 	old, ok := sn.applied, sn.applied.Resistance != nil
 	hdr := !ok || old.Header != pp.Header
-	moved := hdr
+	moved := hdr || !slices.Equal(old.SetPoint, pp.SetPoint)
 	for i := range p.m.Branches {
 		b := &p.m.Branches[i]
 		if !ok || old.Resistance[i] != pp.Resistance[i] || old.KvScale[i] != pp.KvScale[i] {
@@ -629,6 +650,8 @@ func (p *problem) linearise(sn *stateNet) {
 			for _, l := range sn.built.Headers {
 				d = append(d, term{l, sol.Drop[l]})
 			}
+		case SetPointParam:
+			d = append(d, p.setPointTerm(sn, par.Branch)...)
 		case PumpParam:
 			// The pump's head, hence its (negative) drop, is linear in the
 			// multiplier on all three curve coefficients, where the curve

@@ -100,6 +100,24 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 		bf.ValveAssumed = b.Valve != nil && !bf.KvFitted
 		c.Branches[i] = bf
 	}
+	for i, j := range p.spIdx {
+		if j < 0 {
+			continue
+		}
+		rec := m.Branches[i].Controller.SetPoint
+		cf := ControllerFit{ID: m.Branches[i].ID, Index: i, Recorded: rec, Determined: res.Determined[j]}
+		var ratio, lo, hi float64
+		ratio, lo, hi, cf.LogSD = interval(j)
+		cf.Held, cf.Lo, cf.Hi = rec*ratio, rec*lo, rec*hi
+		if c.Params.SetPoint == nil {
+			c.Params.SetPoint = make([]float64, nb)
+			for k := range c.Params.SetPoint {
+				c.Params.SetPoint[k] = 1
+			}
+		}
+		c.Params.SetPoint[i] = ratio
+		c.Controllers = append(c.Controllers, cf)
+	}
 	if su.mixSD != nil {
 		// A branch kept under the clean prior reports the mixture's spread
 		// (see classify), never less than its own fit's. Its readings

@@ -140,4 +140,7 @@ func TestRunController(t *testing.T) {
 	if !strings.Contains(out, "does not read its set point") {
 		t.Errorf("a set point 20 %% off is not flagged:\n%s", out)
 	}
+	if !strings.Contains(out, "the survey puts what it held at") {
+		t.Errorf("fit does not say what set point the controller held:\n%s", out)
+	}
 }

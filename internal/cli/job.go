@@ -155,7 +155,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	}
 
 	if m.HasControllers() {
-		cs, err := controllerEvidence(ctx, l, j.Fitted, before)
+		cs, err := controllerEvidence(ctx, l, j.Cal, j.Fitted, before)
 		if err != nil {
 			return nil, err
 		}
@@ -505,7 +505,7 @@ func readingEvidence(l *loaded, c *calibrate.Calibration) []diagnose.Reading {
 // controller from the fitted model solved in every survey state (first the
 // one already solved): where it lies wide open, and the readings across its
 // span where it throttles.
-func controllerEvidence(ctx context.Context, l *loaded, p plant.Params, first *plant.Solved) ([]diagnose.Controller, error) {
+func controllerEvidence(ctx context.Context, l *loaded, cal *calibrate.Calibration, p plant.Params, first *plant.Solved) ([]diagnose.Controller, error) {
 	m := l.Model
 	sols := []*plant.Solved{first}
 	for _, st := range m.States {
@@ -525,10 +525,17 @@ func controllerEvidence(ctx context.Context, l *loaded, p plant.Params, first *p
 			continue
 		}
 		c := diagnose.Controller{ID: b.ID, SetPoint: b.Controller.SetPoint}
+		if cal != nil {
+			for _, cf := range cal.Controllers {
+				if cf.Index == i {
+					c.Held, c.Lo, c.Hi = cf.Held, cf.Lo, cf.Hi
+				}
+			}
+		}
 		held := map[string]bool{}
 		for _, sol := range sols {
 			span, _ := sol.ControlledDiff(i)
-			sp := m.SetPoint(sol.State, i)
+			sp := m.HeldSetPoint(sol.Params, sol.State.SetPoints, i)
 			held[sol.State.Label] = span >= sp*(1-1e-3)
 			if !held[sol.State.Label] && !c.Open {
 				c.Open, c.State, c.Span = true, sol.State.Label, span

@@ -439,6 +439,12 @@ func printFit(w io.Writer, j *job, sheets bool) {
 		fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%s\t%s\n", b.ID, ratio, valve, flow, u.flowNum(b.Design), flags)
 	}
 	tw.Flush()
+	if j.Cal != nil {
+		for _, cf := range j.Cal.Controllers {
+			wrap(w, "", fmt.Sprintf("Differential controller on %s: recorded at %s; the survey puts what it held at %s (95 %% %s to %s).",
+				cf.ID, u.diff(cf.Recorded), u.diff(cf.Held), u.diffNum(cf.Lo), u.diff(cf.Hi)))
+		}
+	}
 	if short {
 		wrap(w, "", fmt.Sprintf("The branches with a finding, of %d: every branch is in calibration.csv and the report.", len(j.L.Model.Branches)))
 	}

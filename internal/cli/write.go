@@ -119,24 +119,37 @@ func writeWorkbook(w io.Writer, header []string, rows [][]string, about []string
 	return err
 }
 
+// controllerFitJSON is the set point a differential controller held as
+// found, fitted.
+type controllerFitJSON struct {
+	ID         string `json:"riser"`
+	Recorded   num    `json:"recorded_set_point_pa"`
+	Held       num    `json:"held_set_point_pa"`
+	Lo95       num    `json:"held_lo95_pa"`
+	Hi95       num    `json:"held_hi95_pa"`
+	LogSD      num    `json:"held_log_sd"`
+	Determined bool   `json:"determined"`
+}
+
 // calibrationJSON is the calibrated model as written to calibration.json.
 type calibrationJSON struct {
-	Site             string            `json:"site"`
-	Generated        string            `json:"generated"`
-	Status           string            `json:"status"`
-	Converged        bool              `json:"converged"`
-	Iterations       int               `json:"iterations"`
-	ChiSquare        num               `json:"chi_square"`
-	ReducedChiSquare num               `json:"reduced_chi_square"`
-	DOF              int               `json:"degrees_of_freedom"`
-	Header           paramJSON         `json:"header_multiplier"`
-	Pump             paramJSON         `json:"pump_head_multiplier"`
-	Branches         []branchFitJSON   `json:"branches"`
-	Readings         []readingFitJSON  `json:"readings"`
-	Findings         []findingJSON     `json:"findings"`
-	Notes            []string          `json:"notes"`
-	States           []string          `json:"states"`
-	Units            map[string]string `json:"units"`
+	Site             string              `json:"site"`
+	Generated        string              `json:"generated"`
+	Status           string              `json:"status"`
+	Converged        bool                `json:"converged"`
+	Iterations       int                 `json:"iterations"`
+	ChiSquare        num                 `json:"chi_square"`
+	ReducedChiSquare num                 `json:"reduced_chi_square"`
+	DOF              int                 `json:"degrees_of_freedom"`
+	Header           paramJSON           `json:"header_multiplier"`
+	Pump             paramJSON           `json:"pump_head_multiplier"`
+	Branches         []branchFitJSON     `json:"branches"`
+	Controllers      []controllerFitJSON `json:"differential_controllers,omitempty"`
+	Readings         []readingFitJSON    `json:"readings"`
+	Findings         []findingJSON       `json:"findings"`
+	Notes            []string            `json:"notes"`
+	States           []string            `json:"states"`
+	Units            map[string]string   `json:"units"`
 }
 
 type paramJSON struct {
@@ -236,6 +249,10 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 		out.Notes = append(out.Notes, w)
 	}
 	out.Header, out.Pump, out.States = paramOut(c.Header), paramOut(c.Pump), c.States
+	for _, cf := range c.Controllers {
+		out.Controllers = append(out.Controllers, controllerFitJSON{ID: cf.ID, Recorded: num(cf.Recorded), Held: num(cf.Held), Lo95: num(cf.Lo),
+			Hi95: num(cf.Hi), LogSD: num(cf.LogSD), Determined: cf.Determined})
+	}
 	for i, b := range c.Branches {
 		out.Branches = append(out.Branches, branchFitJSON{ID: b.ID, Fitted: b.Fitted, Ratio: num(b.Ratio), Lo95: num(b.Lo), Hi95: num(b.Hi),
 			SDLn: num(b.SD), Determined: b.Determined, KvFitted: b.KvFitted, KvScale: num(b.KvScale), KvLo95: num(b.KvLo), KvHi95: num(b.KvHi),

@@ -22,6 +22,9 @@ func TestControllers(t *testing.T) {
 		{"holding, read 5 sd below", Controller{ID: "R1", SetPoint: 30e3, Readings: []SpanReading{{Value: 28.5e3, Sigma: 300}}}, []Code{ControllerOffSet}},
 		{"wide open", Controller{ID: "R1", SetPoint: 30e3, Open: true, State: "a", Span: 22e3}, []Code{ControllerOpen}},
 		{"no uncertainty", Controller{ID: "R1", SetPoint: 30e3, Readings: []SpanReading{{Value: 10e3}}}, nil},
+		{"fitted within 5 %", Controller{ID: "R1", SetPoint: 30e3, Held: 29e3, Lo: 28e3, Hi: 30e3}, nil},
+		{"fitted 20 % low, not read", Controller{ID: "R1", SetPoint: 30e3, Held: 24e3, Lo: 23.5e3, Hi: 24.5e3}, []Code{ControllerOffSet}},
+		{"fitted 20 % low and read so", Controller{ID: "R1", SetPoint: 30e3, Held: 24e3, Lo: 23.5e3, Hi: 24.5e3, Readings: []SpanReading{{Value: 24e3, Sigma: 300}}}, []Code{ControllerOffSet}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

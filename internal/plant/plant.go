@@ -108,6 +108,20 @@ type Params struct {
 	KvScale    []float64 // per branch, on its balancing valve's Kv
 	Header     float64   // on every header segment
 	PumpHead   float64   // on the pump's head curve
+	// SetPoint is per branch a multiplier on the as-found set point its
+	// differential controller really holds (the calibration fits it where
+	// a controller's scale may be off); nil means 1 everywhere. A planned
+	// set point (State.SetPoints) is what the span is set to read, so it
+	// takes no multiplier.
+	SetPoint []float64
+}
+
+// setPointScale returns branch i's set point multiplier.
+func (p Params) setPointScale(i int) float64 {
+	if i < len(p.SetPoint) && p.SetPoint[i] > 0 {
+		return p.SetPoint[i]
+	}
+	return 1
 }
 
 // Design returns the multipliers of the design model.
@@ -124,6 +138,9 @@ func (p Params) Clone() Params {
 	q := p
 	q.Resistance = append([]float64(nil), p.Resistance...)
 	q.KvScale = append([]float64(nil), p.KvScale...)
+	if p.SetPoint != nil {
+		q.SetPoint = append([]float64(nil), p.SetPoint...)
+	}
 	return q
 }
 
@@ -894,13 +911,23 @@ func (m *Model) SetPoint(st State, i int) float64 {
 	return m.Branches[i].Controller.SetPoint
 }
 
+// HeldSetPoint returns the set point riser i's controller holds under
+// multipliers p with set points setPoints (nil: as found), Pa: a planned
+// set point as given, the as-found one times p's multiplier; NaN without a
+// controller.
+func (m *Model) HeldSetPoint(p Params, setPoints []float64, i int) float64 {
+	if setPoints != nil && setPoints[i] > 0 {
+		return m.SetPoint(State{SetPoints: setPoints}, i)
+	}
+	return m.SetPoint(State{}, i) * p.setPointScale(i)
+}
+
 // Ladder returns the network ladder for multipliers p and settings, each
 // differential controller at its set point in setPoints (nil: as found).
 // A controller's element needs the flow its span passes at its set point,
 // so each controlled riser's span is solved alone first, from the deepest
 // up (see hydraulics.DiffController).
 func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder, error) {
-	st := State{SetPoints: setPoints}
 	var build func(ids []int) (*network.Ladder, error)
 	build = func(ids []int) (*network.Ladder, error) {
 		l := &network.Ladder{Arrangement: m.Arrangement}
@@ -919,7 +946,7 @@ func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder,
 				}
 				nb.Sub = sub
 				if b.Controlled() {
-					c, err := m.controller(nb, m.SetPoint(st, i))
+					c, err := m.controller(nb, m.HeldSetPoint(p, setPoints, i))
 					if err != nil {
 						return nil, err
 					}
@@ -988,7 +1015,7 @@ func (m *Model) Span(ctx context.Context, i int, p Params, settings, setPoints [
 		return nil, nil, err
 	}
 	br := l.Branches[0]
-	b, err := network.Build(*br.Sub, network.Source{Differential: m.SetPoint(State{SetPoints: setPoints}, i), Main: br.Elements}, m.Fluid)
+	b, err := network.Build(*br.Sub, network.Source{Differential: m.HeldSetPoint(p, setPoints, i), Main: br.Elements}, m.Fluid)
 	if err != nil {
 		return nil, nil, err
 	}
