@@ -218,6 +218,18 @@ func TestReportLargeSiteBrowser(t *testing.T) {
 		t.Errorf("sorted by deviation, the first row is %v; want one %.1f %% from design", rows[:min(1, len(rows))], maxDev)
 	}
 
+	// The flow and resistance charts follow the finder's page.
+	var page []string
+	for _, r := range rows {
+		page = append(page, r[0])
+	}
+	for _, id := range []string{"fs-flow", "fs-ratio"} {
+		axis := evalJS[[]string](t, ctx, `echarts.getInstanceByDom(document.getElementById("`+id+`")).getOption().xAxis[0].data`)
+		if !slices.Equal(axis, page) {
+			t.Errorf("chart %s shows %v, want the finder's page %v", id, axis, page)
+		}
+	}
+
 	// Only the flagged: every one findings.csv flags, and nothing else.
 	set(`(() => { const c = document.getElementById("fs-find-flagged"); c.checked = true; c.dispatchEvent(new Event("change")); })()`)
 	all = evalJS[[][]string](t, ctx, finderAllJS)
@@ -239,15 +251,27 @@ func TestReportLargeSiteBrowser(t *testing.T) {
 		}
 	}
 
-	// A long table, a page at a time: search the readings for the branch.
-	readingRows := evalJS[int](t, ctx, `(() => {
+	// A long table, a page at a time: searched for the branch, the
+	// readings table shows its rows of readings.csv, cell for cell.
+	shownReadings := evalJS[[][]string](t, ctx, `(() => {
 		const wrap = Array.from(document.querySelectorAll("[data-table]")).find(w => w.closest("section").querySelector("h2").textContent.includes("Readings"));
 		const q = wrap.previousElementSibling.querySelector("input");
 		q.value = `+strconv.Quote(needle)+`; q.dispatchEvent(new Event("input"));
-		return Array.from(wrap.querySelectorAll("tbody tr")).filter(tr => tr.textContent.includes(`+strconv.Quote(needle)+`)).length;
+		return Array.from(wrap.querySelectorAll("tbody tr")).map(tr => Array.from(tr.cells).map(td => td.textContent));
 	})()`)
-	if readingRows == 0 {
-		t.Errorf("searching the readings table for %s finds no row", needle)
+	var wantReadings [][]string
+	for _, r := range readCSV(t, filepath.Join(out, "readings.csv"))[1:] {
+		if r[2] == needle {
+			wantReadings = append(wantReadings, r)
+		}
+	}
+	if len(wantReadings) == 0 {
+		t.Fatalf("readings.csv has no reading at %s", needle)
+	}
+	for _, w := range wantReadings {
+		if !slices.ContainsFunc(shownReadings, func(r []string) bool { return slices.Equal(r, w) }) {
+			t.Errorf("searching the readings table for %s: row %q of readings.csv not shown; shown %q", needle, w, shownReadings)
+		}
 	}
 
 	// Nothing runs off the side of a tablet's window.

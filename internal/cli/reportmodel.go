@@ -121,7 +121,9 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			if b.Valve != nil {
 				rb.ValveUnit = bp.Unit
 				rb.NowValue, rb.PlannedValue = bp.Current, bp.New
-				rb.SettingNow, rb.SettingPlanned = fmt.Sprintf("%g %s", bp.Current, bp.Unit), fmt.Sprintf("%g %s", bp.New, bp.Unit)
+				// Four significant digits: a rounded handwheel setting such
+				// as 1.7 carries float noise (1.7000000000000002).
+				rb.SettingNow, rb.SettingPlanned = fmt.Sprintf("%.4g %s", bp.Current, bp.Unit), fmt.Sprintf("%.4g %s", bp.New, bp.Unit)
 			}
 		}
 		if j.Cal != nil && j.Cal.Branches[i].Fitted {

@@ -69,6 +69,10 @@ type chart struct {
 	H       int            `json:"-"`
 	Caption string         `json:"-"`
 	Option  map[string]any `json:"option"`
+	// Follow, on a large site's flow ("flow") and resistance ("ratio")
+	// charts, has assets/report.js redraw them for the branches on the
+	// finder's page.
+	Follow string `json:"follow,omitempty"`
 }
 
 // sig rounds v to 5 significant digits: enough for any chart, and it keeps

@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"math"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -135,6 +137,11 @@ type dataColumn struct {
 	Index  []int    `json:"i,omitempty"`
 	Values []string `json:"v,omitempty"` // row r holds Prefix + Values[r]
 	Prefix string   `json:"p,omitempty"`
+	// Row r holds Prefix and Fixed[r] / 10^Decimals written with
+	// Decimals decimals ("" where null): a column of numbers all written
+	// alike.
+	Fixed    json.RawMessage `json:"n,omitempty"`
+	Decimals int             `json:"f,omitempty"`
 }
 
 // texts is the data block's string table.
@@ -179,6 +186,12 @@ func (t *texts) column(vals []string) dataColumn {
 			c.Global[i] = t.index(v)
 		}
 		return c
+	}
+	fixed, ok := fixedColumn(vals)
+	if ok && 2*len(freq) > len(vals) {
+		return fixed
+	}
+	switch {
 	case 2*len(freq) <= len(vals):
 		c := dataColumn{Index: make([]int, len(vals))}
 		for v := range freq {
@@ -197,6 +210,9 @@ func (t *texts) column(vals []string) dataColumn {
 		for i, v := range vals {
 			c.Index[i] = at[v]
 		}
+		if ok && len(fixed.Fixed) < dictSize(c) {
+			return fixed
+		}
 		return c
 	}
 	p := commonPrefix(vals)
@@ -204,7 +220,70 @@ func (t *texts) column(vals []string) dataColumn {
 	for i, v := range vals {
 		c.Values[i] = v[len(p):]
 	}
+	if p != "" {
+		// "readings.csv:12", "readings.csv:13", ...
+		if f, ok := fixedColumn(c.Values); ok && !slices.Contains(c.Values, "") {
+			f.Prefix = p
+			return f
+		}
+	}
 	return c
+}
+
+// dictSize is about the length of c, a dictionary column, in JSON.
+func dictSize(c dataColumn) int {
+	n := 0
+	for _, v := range c.Dict {
+		n += len(v) + 3
+	}
+	for _, k := range c.Index {
+		n += len(strconv.Itoa(k)) + 1
+	}
+	return n
+}
+
+// fixedColumn stores vals as integers with a common number of decimals,
+// when every value is a number written so ("12.50", "-0.30", "7") or
+// empty, and each is written back exactly from its integer: by
+// strconv.FormatFloat(n/10^d, 'f', d), which rounds as JavaScript's
+// toFixed does.
+func fixedColumn(vals []string) (dataColumn, bool) {
+	d := -1
+	for _, v := range vals {
+		if v == "" {
+			continue
+		}
+		k := 0
+		if i := strings.IndexByte(v, '.'); i >= 0 {
+			k = len(v) - i - 1
+		}
+		if d >= 0 && k != d {
+			return dataColumn{}, false
+		}
+		d = k
+	}
+	if d < 0 || d > 6 {
+		return dataColumn{}, false
+	}
+	scale := math.Pow(10, float64(d))
+	var b bytes.Buffer
+	b.WriteByte('[')
+	for i, v := range vals {
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		if v == "" {
+			b.WriteString("null")
+			continue
+		}
+		n, err := strconv.ParseInt(strings.Replace(v, ".", "", 1), 10, 64)
+		if err != nil || n > 1<<50 || n < -(1<<50) || strconv.FormatFloat(float64(n)/scale, 'f', d, 64) != v {
+			return dataColumn{}, false
+		}
+		b.WriteString(strconv.FormatInt(n, 10))
+	}
+	b.WriteByte(']')
+	return dataColumn{Fixed: b.Bytes(), Decimals: d}, true
 }
 
 // commonPrefix is the longest prefix of every string in ss that ends on a

@@ -264,6 +264,11 @@ func build(in *Input) (*pageData, error) {
 	})
 	if len(in.Branches) > 0 {
 		zoom := func(sec *section) {
+			if follow := map[string]string{"flow": "flow", "resistance": "ratio"}[sec.ID]; p.Large && follow != "" {
+				sec.Charts[0].Follow = follow
+				sec.Notes = append(sec.Notes, fmt.Sprintf("The branches on the page of the branch finder (%s), at first the %d flagged or furthest from design as found of all %s: search, sort or filter there, or page on, and the chart follows.", letter(0), len(chartIn.Branches), p.Branches))
+				return
+			}
 			if p.Large {
 				sec.Notes = append(sec.Notes, fmt.Sprintf("The %d branches flagged or furthest from design as found, of %s; the branch finder (%s) has every one.", len(chartIn.Branches), p.Branches, letter(0)))
 				return

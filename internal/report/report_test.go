@@ -12,6 +12,7 @@ import (
 	"path/filepath"
 	"reflect"
 	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -446,6 +447,8 @@ func TestWriteLargeSite(t *testing.T) {
 				I []int    `json:"i"`
 				V []string `json:"v"`
 				P string   `json:"p"`
+				N []*int64 `json:"n"`
+				F int      `json:"f"`
 			} `json:"c"`
 		} `json:"tables"`
 	}
@@ -495,6 +498,10 @@ func TestWriteLargeSite(t *testing.T) {
 					v = data.Text[c.G[r]]
 				case c.D != nil:
 					v = c.D[c.I[r]]
+				case c.N != nil:
+					if c.N[r] != nil {
+						v = c.P + strconv.FormatFloat(float64(*c.N[r])/math.Pow(10, float64(c.F)), 'f', c.F, 64)
+					}
 				default:
 					v = c.P + c.V[r]
 				}

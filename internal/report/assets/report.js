@@ -105,6 +105,10 @@
     if (c.k !== undefined) { return function () { return text[c.k]; }; }
     if (c.g) { return function (r) { return text[c.g[r]]; }; }
     if (c.d) { return function (r) { return c.d[c.i[r]]; }; }
+    if (c.n) {
+      var scale = Math.pow(10, c.f || 0);
+      return function (r) { return c.n[r] === null ? "" : (c.p || "") + (c.n[r] / scale).toFixed(c.f || 0); };
+    }
     var p = c.p || "", v = c.v || [];
     return function (r) { return p + v[r]; };
   }
@@ -228,6 +232,10 @@
     update();
   }
 
+  // Charts that follow the finder's page, and how a drawn one joins them.
+  var followers = [];
+  var following = function () {};
+
   function fmt(v, digits) {
     return v === null || v === undefined ? "—" : String(Number(v.toFixed(digits)));
   }
@@ -255,6 +263,53 @@
     };
     var all = [];
     for (var i = 0; i < n; i++) { all.push(i); }
+    function val(v) { return v === null ? "-" : v; }
+    // fill redraws a following chart for rows, in the series order the
+    // report's Go code gives each (flowChart, ratioChart).
+    var fill = {
+      flow: function (inst, rows) {
+        var bars = [];
+        rows.forEach(function (i, x) {
+          if (f.f1[i] !== null && f.lo[i] !== null && f.hi[i] !== null) {
+            bars.push({ name: names[i], value: [x, f.f1[i], x, x, f.lo[i], f.hi[i]] });
+          }
+        });
+        inst.setOption({
+          xAxis: [{ data: rows.map(function (i) { return names[i]; }) }],
+          series: [
+            { data: rows.map(function (i) { return { name: names[i], value: val(f.f0[i]) }; }) },
+            { data: bars },
+            { data: rows.map(function (i) { return { name: names[i], value: val(f.f1[i]) }; }) }
+          ]
+        });
+      },
+      ratio: function (inst, rows) {
+        var bars = [];
+        rows.forEach(function (i, x) {
+          if (f.r[i] !== null && f.rl[i] !== null && f.rh[i] !== null) {
+            bars.push({ name: names[i], value: [x, f.r[i], x, x, f.rl[i], f.rh[i]] });
+          }
+        });
+        inst.setOption({
+          xAxis: [{ data: rows.map(function (i) { return names[i]; }) }],
+          series: [
+            { data: bars },
+            { data: rows.map(function (i) { return { name: names[i], value: text[f.fl[i]] ? "-" : val(f.r[i]) }; }) },
+            { data: rows.map(function (i) { return { name: text[f.fl[i]] ? names[i] + ": " + text[f.fl[i]] : names[i], value: text[f.fl[i]] ? val(f.r[i]) : "-" }; }) }
+          ]
+        });
+      }
+    };
+    var shown = [];
+    function follow(rows) {
+      shown = rows;
+      followers.forEach(function (c) { fill[c.kind](c.inst, rows); });
+    }
+    following = function (inst, kind) {
+      if (!fill[kind]) { return; }
+      followers.push({ inst: inst, kind: kind });
+      fill[kind](inst, shown);
+    };
     function draw(rows) {
       var frag = document.createDocumentFragment();
       rows.forEach(function (i) {
@@ -279,7 +334,7 @@
       });
       tbody.replaceChildren(frag);
     }
-    var pg = pager(n, page, draw, document.getElementById("fs-find-count"),
+    var pg = pager(n, page, function (rows) { draw(rows); follow(rows); }, document.getElementById("fs-find-count"),
       document.getElementById("fs-find-prev"), document.getElementById("fs-find-next"), "branches");
     function update() {
       var needle = q.value.trim().toLowerCase();
@@ -325,6 +380,7 @@
     if (!el) { return; }
     var inst = echarts.init(el, null, { renderer: "canvas" });
     inst.setOption(prepare(c.option));
+    if (c.follow) { following(inst, c.follow); }
   }
   function drawSome() {
     var until = performance.now() + 50;
