@@ -489,10 +489,14 @@ func (j *job) pumpsLines(u display) []string {
 		line += "."
 	}
 	out = append(out, line)
+	if l := beyondLine(pp.Duties, u, "runs"); l != "" {
+		out = append(out, l)
+	}
 	o := pp.Fewer
 	if o == nil {
 		return out
 	}
+
 	who, give, hold, their := ids(o.Running)+" together", "give", "hold", "their drives"
 	if o.Running == 1 {
 		who, give, hold, their = ids(1)+" alone", "gives", "holds", "its drive"
@@ -524,7 +528,32 @@ func (j *job) pumpsLines(u display) []string {
 		}
 		out = append(out, l)
 	}
+	if l := beyondLine(o.Duties, u, "would run"); l != "" {
+		out = append(out, l)
+	}
 	return out
+}
+
+// beyondLine names the pumps whose duty lies past the last point of their
+// curve, "" for none.
+func beyondLine(ds []plant.PumpDuty, u display, verb string) string {
+	var ids []string
+	for _, d := range ds {
+		if d.Beyond {
+			ids = append(ids, fmt.Sprintf("%s (%s)", d.ID, u.flow(d.Flow)))
+		}
+	}
+	if len(ids) == 0 {
+		return ""
+	}
+	its := "its curve"
+	if len(ids) > 1 {
+		its = "their curves"
+		if verb == "runs" {
+			verb = "run"
+		}
+	}
+	return fmt.Sprintf("%s %s beyond the last point of %s: the curve is extrapolated there; check the pumps' own data before relying on it.", joinIDs(ids), verb, its)
 }
 
 // pumpNames names pumps by their ids ("pump 1" where the sheet gives none).

@@ -286,3 +286,26 @@ func TestEfficiencyCurve(t *testing.T) {
 		})
 	}
 }
+
+// BenchmarkPumpSetDrop: the combined head of two unequal pumps in parallel
+// (an iteration per call) and in series, against one Pump.
+func BenchmarkPumpSetDrop(b *testing.B) {
+	big, small := plainCurve(30, 2.4e4), plainCurve(20, 8e4)
+	for _, bc := range []struct {
+		name string
+		e    Element
+	}{
+		{"one pump", Pump{Curve: big}},
+		{"parallel", PumpSet{Members: members(big, small)}},
+		{"series", PumpSet{Members: members(big, small), Series: true}},
+	} {
+		b.Run(bc.name, func(b *testing.B) {
+			var s float64
+			for b.Loop() {
+				dp, _ := bc.e.Drop(0.03, water20)
+				s += dp
+			}
+			_ = s
+		})
+	}
+}

@@ -320,6 +320,9 @@ type PumpDuty struct {
 	// InRange is false where the duty lies beyond the points.
 	Efficiency     float64
 	Given, InRange bool
+	// Beyond reports a duty past the last point of the pump's curve (at
+	// its speed): the fitted curve is extrapolated there.
+	Beyond bool
 }
 
 // Shaft returns the pump's shaft power in W: ρ g Q H / η.
@@ -340,6 +343,9 @@ func (m *Model) Duties(k float64, running int, speed, q, eta float64) []PumpDuty
 	out := make([]PumpDuty, len(flows))
 	for i := range out {
 		d := PumpDuty{ID: m.PumpIDs[i], Flow: flows[i], Head: heads[i], Speed: speeds[i], Efficiency: eta, InRange: true}
+		if qmax := m.Pumps[i].Curve.QMax * speeds[i]; qmax > 0 && flows[i] > qmax*(1+1e-9) {
+			d.Beyond = true
+		}
 		if e, in := m.PumpEff[i].At(flows[i], speeds[i]); e > 0 {
 			d.Efficiency, d.Given, d.InRange = e, true, in
 		}
