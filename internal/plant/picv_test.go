@@ -3,6 +3,7 @@ package plant
 import (
 	"context"
 	"math"
+	"strings"
 	"testing"
 
 	"flowset/internal/site"
@@ -83,5 +84,38 @@ func TestPressureIndependentBranches(t *testing.T) {
 	}
 	if r := s2.Flow(0) / s.Flow(0); math.Abs(r-1) > 0.002 {
 		t.Errorf("a's flow moved by %.3f %% when b's setting changed", (r-1)*100)
+	}
+}
+
+// TestPressureIndependentCheck checks the warnings about such valves: a
+// target outside what the valve can be set to hold, and a flow read more
+// than 15 % above what it holds at its setting (common practice, no
+// source: beyond the valve's and a clamp-on meter's tolerances).
+func TestPressureIndependentCheck(t *testing.T) {
+	s := picvSite()
+	s.Branches[1].DesignFlow = 0.8e-3 // above the table's 0.6 l/s
+	s.Readings = append(s.Readings,
+		site.Reading{State: "as-found", Where: "b", What: site.Flow, Value: 0.25e-3, Setting: math.NaN(), Sigma: 0.01e-3}, // setting 2: 0.2 l/s held
+		site.Reading{State: "as-found", Where: "c", What: site.Flow, Value: 0.41e-3, Setting: math.NaN(), Sigma: 0.01e-3}) // setting 4: 0.4 l/s
+	m, err := New(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var msgs []string
+	for _, p := range m.Check() {
+		msgs = append(msgs, p.Error())
+	}
+	want := []string{"branch b's target 0.8 l/s is outside the 0.1 to 0.6 l/s", "flow more than 15 % above the 0.2 l/s"}
+	for _, w := range want {
+		found := false
+		for _, m := range msgs {
+			found = found || strings.Contains(m, w)
+		}
+		if !found {
+			t.Errorf("no problem says %q:\n%s", w, strings.Join(msgs, "\n"))
+		}
+	}
+	if len(msgs) != len(want) {
+		t.Errorf("%d problems, want %d:\n%s", len(msgs), len(want), strings.Join(msgs, "\n"))
 	}
 }
