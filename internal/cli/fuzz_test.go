@@ -41,6 +41,20 @@ func FuzzRun(f *testing.F) {
 	f.Add(uint8(5), []byte("branch,target flow [l/s]\nAC-1,0.45\nIMM-3,0.8\n"))
 	f.Add(uint8(1), bytes.Replace(base["branches.csv"], []byte("AC-1,,"), []byte("AC-1,IMM-3,"), 1))
 	f.Add(uint8(0), bytes.Replace(base["site.csv"], []byte("set point [kPa],85"), []byte("set point [kPa],0.003"), 1))
+	// W25 (IMM-3, AC-1) as a pressure-independent valve, its range in
+	// turns kept so the recorded settings stay in it (AC-1's valve-meter
+	// reading then makes it a data error until the fuzzer changes it).
+	var held []string
+	for i, line := range strings.Split(strings.TrimSpace(string(base["valves.csv"])), "\n") {
+		switch {
+		case i == 0:
+			held = append(held, line+",max flow [l/s],hold diff [kPa]")
+		case !strings.HasPrefix(line, "W25,"):
+			held = append(held, line+",,")
+		}
+	}
+	held = append(held, "W25,turns,0.1,3,0.5,,,,,,0.3,25", "W25,turns,0.1,3,2,,,,,,0.7,", "W25,turns,0.1,3,4,,,,,,1.2,")
+	f.Add(uint8(2), []byte(strings.Join(held, "\n")+"\n"))
 
 	f.Fuzz(func(t *testing.T, sheet uint8, data []byte) {
 		name := fuzzSheets[int(sheet)%len(fuzzSheets)]
