@@ -23,6 +23,13 @@ import (
 // the one the true plant holds.
 func writeControlledSite(t *testing.T, offset float64) (string, string) {
 	t.Helper()
+	return writeControlledSiteWith(t, offset, nil)
+}
+
+// writeControlledSiteWith is writeControlledSite with edit applied to the
+// site (surveyed already) before it is written.
+func writeControlledSiteWith(t *testing.T, offset float64, edit func(s *site.Site, riser int)) (string, string) {
+	t.Helper()
 	ctx := context.Background()
 	s, tr, err := synth.Generate(ctx, synth.Spec{Branches: 14, Arrangement: site.DirectReturn, Nested: true, Boundary: site.PumpCurve,
 		Seed: 51, Fouled: 0.1, States: 1})
@@ -66,6 +73,9 @@ func writeControlledSite(t *testing.T, offset float64) (string, string) {
 	add(site.AtPump, site.PumpDiff, "manometer", sol.PumpDiff())
 	s.Readings = rd
 	s.Branches[k].Controller.SetPoint *= 1 + offset
+	if edit != nil {
+		edit(s, k)
+	}
 	dir := filepath.Join(t.TempDir(), "site")
 	if err := os.Mkdir(dir, 0o755); err != nil {
 		t.Fatal(err)

@@ -337,6 +337,10 @@ func (j *job) fixes(u display) []report.Fix {
 			}
 		case diagnose.CannotReachDesign:
 			if _, ok := idx[f.Branch]; !ok {
+				if c := j.controllerAbove(f.Branch); c != "" {
+					add(f.Branch, fmt.Sprintf("it cannot reach its target even with its valve fully open at the present set point of the differential controller on %s: find what restricts it, or that set point must rise (step 4)", c))
+					break
+				}
 				add(f.Branch, "it cannot reach its target even with its valve fully open at the present pump: find what restricts it, or the pump must rise (step 3)")
 			}
 		case diagnose.ValveStuck:
@@ -856,4 +860,22 @@ func (j *job) hasMeterFlow(where, state string) bool {
 		}
 	}
 	return false
+}
+
+// controllerAbove returns the riser whose differential controller holds the
+// span branch id lies in (the nearest above it), or "".
+func (j *job) controllerAbove(id string) string {
+	m := j.L.Model
+	i, ok := m.Index(id)
+	for ok {
+		p, has := m.Index(m.Branches[i].Parent)
+		if !has {
+			return ""
+		}
+		if m.Branches[p].Controlled() {
+			return m.Branches[p].ID
+		}
+		i = p
+	}
+	return ""
 }
