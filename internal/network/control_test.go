@@ -116,11 +116,12 @@ func TestControllersNested(t *testing.T) {
 		}
 	}
 	// The inner riser passes its held flow; the outer one's is its span's
-	// at its set point.
+	// at its set point, up to the droop: ControllerDroop per set point
+	// throttled (about 2.7 set points here).
 	if q := sol.Flow[b.Controller["Q"]]; relErr(q, hq) > 1e-3 {
 		t.Errorf("inner controller passes %.6g m3/s, held flow %.6g", q, hq)
 	}
-	if q := sol.Flow[b.Controller["R"]]; relErr(q, ho) > 1e-4 {
+	if q := sol.Flow[b.Controller["R"]]; relErr(q, ho) > 4*hydraulics.ControllerDroop {
 		t.Errorf("outer controller passes %.6g m3/s, held flow %.6g", q, ho)
 	}
 }
