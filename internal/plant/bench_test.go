@@ -3,6 +3,7 @@ package plant_test
 import (
 	"context"
 	"fmt"
+	"math"
 	"testing"
 
 	"flowset/internal/plant"
@@ -52,5 +53,53 @@ func BenchmarkSolve(b *testing.B) {
 				}
 			}
 		})
+	}
+}
+
+// BenchmarkSolveControlled solves the design state of a building of risers
+// of about 30 terminals (synth's RiserTerminals) with no controllers, and
+// with a differential controller on every riser (holding 80 % of what the
+// riser sees, its valve taking a tenth of that wide open): each controller
+// costs a solve of its span alone besides the whole network's.
+func BenchmarkSolveControlled(b *testing.B) {
+	for _, n := range []int{300, 1000} {
+		s, _, err := synth.Generate(context.Background(), synth.Spec{Branches: n, Arrangement: site.DirectReturn, RiserTerminals: 30, Boundary: site.PumpCurve, Seed: 3})
+		if err != nil {
+			b.Fatal(err)
+		}
+		m, err := plant.New(s)
+		if err != nil {
+			b.Fatal(err)
+		}
+		plain, err := m.Solve(context.Background(), m.Design(), m.BaseState())
+		if err != nil {
+			b.Fatal(err)
+		}
+		cs := *s
+		cs.Branches = append([]site.Branch(nil), s.Branches...)
+		for i := range m.Branches {
+			if m.Branches[i].Riser() {
+				d, q := plain.BranchDiff(i), plain.Flow(i)
+				cs.Branches[i].Controller = site.Controller{SetPoint: 0.8 * d, Kvs: 3600 * q / math.Sqrt(0.1*d/1e5)}
+			}
+		}
+		mc, err := plant.New(&cs)
+		if err != nil {
+			b.Fatal(err)
+		}
+		for _, c := range []struct {
+			name string
+			m    *plant.Model
+		}{{"none", m}, {"every riser", mc}} {
+			b.Run(fmt.Sprintf("branches=%d/controllers=%s", n, c.name), func(b *testing.B) {
+				st := c.m.BaseState()
+				b.ReportAllocs()
+				for b.Loop() {
+					if _, err := c.m.Solve(context.Background(), c.m.Design(), st); err != nil {
+						b.Fatal(err)
+					}
+				}
+			})
+		}
 	}
 }
