@@ -59,6 +59,9 @@ type job struct {
 	Trim       *balance.TrimPlan
 	readLeft   map[string]bool
 	trimBeyond float64
+	// planPredicted is what the plan the valves were set to predicted of
+	// each branch, % of target by ID (trim only).
+	planPredicted map[string]float64
 }
 
 // progress reports long steps on stderr when it is a terminal.

@@ -243,8 +243,9 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		o.job.Units = u
 	}
 	left := -1
+	var predicted map[string]float64
 	if o.trim != nil {
-		if left, err = leftState(l, o.trim); err != nil {
+		if left, predicted, err = leftState(l, o.trim); err != nil {
 			return err
 		}
 	}
@@ -254,7 +255,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return err
 	}
 	if left >= 0 {
-		j.trimBeyond = o.trim.Beyond
+		j.trimBeyond, j.planPredicted = o.trim.Beyond, predicted
 		pr.step("trimming after setting (state %q)", l.Model.States[left].Label)
 		if err := j.trim(ctx, left); err != nil {
 			return err

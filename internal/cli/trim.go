@@ -71,8 +71,9 @@ sheet of the round) and trim.json.`,
 // setPlan is one plan.json as trim reads it: the new settings and the pump.
 type setPlan struct {
 	Branches []struct {
-		ID  string   `json:"branch"`
-		New *float64 `json:"new_setting"`
+		ID      string   `json:"branch"`
+		New     *float64 `json:"new_setting"`
+		Percent *float64 `json:"percent_of_target"`
 	} `json:"branches"`
 	Pump struct {
 		Boundary string   `json:"boundary"`
@@ -82,42 +83,47 @@ type setPlan struct {
 }
 
 // readSetPlan reads the plan the valves were set to into settings by model
-// branch index (NaN where the plan gives none) and its pump.
-func readSetPlan(path string, m *plant.Model) (settings []float64, speed, diff float64, err error) {
+// branch index (NaN where the plan gives none), its pump, and what it
+// predicted of each branch (% of target by ID).
+func readSetPlan(path string, m *plant.Model) (settings []float64, speed, diff float64, predicted map[string]float64, err error) {
 	b, err := os.ReadFile(path)
 	if errors.Is(err, fs.ErrNotExist) {
-		return nil, 0, 0, usagef("--plan %s: no such file", shown(path))
+		return nil, 0, 0, nil, usagef("--plan %s: no such file", shown(path))
 	}
 	if err != nil {
-		return nil, 0, 0, &systemError{err}
+		return nil, 0, 0, nil, &systemError{err}
 	}
 	var p setPlan
 	dec := json.NewDecoder(bytes.NewReader(b))
 	if err := dec.Decode(&p); err != nil {
 		var se *json.SyntaxError
 		if errors.As(err, &se) {
-			return nil, 0, 0, &dataError{fmt.Errorf("%s: byte %d: %v (want the plan.json written by flowset plan or run)", shown(path), se.Offset, err)}
+			return nil, 0, 0, nil, &dataError{fmt.Errorf("%s: byte %d: %v (want the plan.json written by flowset plan or run)", shown(path), se.Offset, err)}
 		}
-		return nil, 0, 0, &dataError{fmt.Errorf("%s: %v (want the plan.json written by flowset plan or run)", shown(path), err)}
+		return nil, 0, 0, nil, &dataError{fmt.Errorf("%s: %v (want the plan.json written by flowset plan or run)", shown(path), err)}
 	}
 	if len(p.Branches) == 0 {
-		return nil, 0, 0, &dataError{fmt.Errorf("%s: field \"branches\": no branch (want the plan.json written by flowset plan or run)", shown(path))}
+		return nil, 0, 0, nil, &dataError{fmt.Errorf("%s: field \"branches\": no branch (want the plan.json written by flowset plan or run)", shown(path))}
 	}
 	settings = make([]float64, len(m.Branches))
+	predicted = map[string]float64{}
 	for i := range settings {
 		settings[i] = math.NaN()
 	}
 	for k, br := range p.Branches {
 		i, ok := m.Index(br.ID)
 		if !ok {
-			return nil, 0, 0, &dataError{fmt.Errorf("%s: branches[%d]: field \"branch\": value %q: no such branch in the site (was the plan made for another site?)", shown(path), k, br.ID)}
+			return nil, 0, 0, nil, &dataError{fmt.Errorf("%s: branches[%d]: field \"branch\": value %q: no such branch in the site (was the plan made for another site?)", shown(path), k, br.ID)}
+		}
+		if br.Percent != nil {
+			predicted[br.ID] = *br.Percent
 		}
 		if br.New == nil || m.Branches[i].Valve == nil {
 			continue
 		}
 		lo, hi := m.Branches[i].Valve.Range()
 		if !(*br.New >= lo && *br.New <= hi) {
-			return nil, 0, 0, &dataError{fmt.Errorf("%s: branches[%d]: field \"new_setting\": value %g: outside the valve's range %g to %g", shown(path), k, *br.New, lo, hi)}
+			return nil, 0, 0, nil, &dataError{fmt.Errorf("%s: branches[%d]: field \"new_setting\": value %g: outside the valve's range %g to %g", shown(path), k, *br.New, lo, hi)}
 		}
 		settings[i] = *br.New
 	}
@@ -127,15 +133,16 @@ func readSetPlan(path string, m *plant.Model) (settings []float64, speed, diff f
 	if p.Pump.SetPoint != nil {
 		diff = *p.Pump.SetPoint
 	}
-	return settings, speed, diff, nil
+	return settings, speed, diff, predicted, nil
 }
 
 // leftState applies the plan the valves were set to to the as-left state
-// and returns that state's index.
-func leftState(l *loaded, o *trimOptions) (int, error) {
+// and returns that state's index and what the plan predicted of each
+// branch (% of target by ID).
+func leftState(l *loaded, o *trimOptions) (int, map[string]float64, error) {
 	m := l.Model
 	if len(m.States) < 2 {
-		return 0, &dataError{fmt.Errorf("%s: trim needs the readings taken after setting as a survey state of their own (a state label in readings.csv other than the as-found one); the site has %d state(s)", shown(o.Plan), len(m.States))}
+		return 0, nil, &dataError{fmt.Errorf("%s: trim needs the readings taken after setting as a survey state of their own (a state label in readings.csv other than the as-found one); the site has %d state(s)", shown(o.Plan), len(m.States))}
 	}
 	k := len(m.States) - 1
 	if o.State != "" {
@@ -146,20 +153,20 @@ func leftState(l *loaded, o *trimOptions) (int, error) {
 			}
 		}
 		if k < 0 {
-			return 0, usagef("--state %q: no such survey state (the site has %s)", o.State, strings.Join(m.StateLabels(), ", "))
+			return 0, nil, usagef("--state %q: no such survey state (the site has %s)", o.State, strings.Join(m.StateLabels(), ", "))
 		}
 		if k == 0 {
-			return 0, usagef("--state %q is the as-found state: name the state read after setting", o.State)
+			return 0, nil, usagef("--state %q is the as-found state: name the state read after setting", o.State)
 		}
 	}
-	settings, speed, diff, err := readSetPlan(o.Plan, m)
+	settings, speed, diff, predicted, err := readSetPlan(o.Plan, m)
 	if err != nil {
-		return 0, err
+		return 0, nil, err
 	}
 	if _, err := m.SetUnrecorded(m.States[k].Label, settings, speed, diff); err != nil {
-		return 0, &dataError{err}
+		return 0, nil, &dataError{err}
 	}
-	return k, nil
+	return k, predicted, nil
 }
 
 // trim works out the trims of job j for the as-left state k.
@@ -194,7 +201,7 @@ func (j *job) trim(ctx context.Context, k int) error {
 // after the trims, with the verdict, the trim and why.
 func (j *job) trimTable(u display) report.Table {
 	tp := j.Trim
-	t := report.Table{Title: "Trim", Columns: []string{"Branch", "As found (% of target)", "As left (% of target)", "95 % band as left (%)", "Verdict as left", "Read after setting", "Setting as left", "Trim to", "After trims (% of target)", "Note"},
+	t := report.Table{Title: "Trim", Columns: []string{"Branch", "As found (% of target)", "Predicted by the plan (%)", "As left (% of target)", "95 % band as left (%)", "Verdict as left", "Read after setting", "Setting as left", "Trim to", "After trims (% of target)", "Note"},
 		WriteIn: []string{"Done (tick)", "Initials"}}
 	for _, b := range tp.Branches {
 		found := "-"
@@ -209,7 +216,11 @@ func (j *job) trimTable(u display) report.Table {
 		if b.Verdict == balance.Undecided && !j.readLeft[b.ID] && note == "" && !b.Trimmed {
 			note = "not read after setting and its band leaves the tolerance: read it"
 		}
-		t.Rows = append(t.Rows, []string{b.ID, found, fmt.Sprintf("%.1f", b.LeftPercent), fmt.Sprintf("%.1f to %.1f", b.LeftLow, b.LeftHigh),
+		pred := "-"
+		if v, ok := j.planPredicted[b.ID]; ok {
+			pred = fmt.Sprintf("%.1f", v)
+		}
+		t.Rows = append(t.Rows, []string{b.ID, found, pred, fmt.Sprintf("%.1f", b.LeftPercent), fmt.Sprintf("%.1f to %.1f", b.LeftLow, b.LeftHigh),
 			b.Verdict.String(), yesNo(j.readLeft[b.ID]), settingText(b.Left, b.Unit), trim, fmt.Sprintf("%.1f", b.AfterPercent), note})
 	}
 	return t
@@ -265,7 +276,7 @@ func printTrim(w io.Writer, j *job) {
 	// The console keeps the branches that need action or a reading.
 	keep := t.Rows[:0:0]
 	for _, r := range t.Rows {
-		if r[7] != "" || r[9] != "" || r[4] != balance.ProvenIn.String() {
+		if r[8] != "" || r[10] != "" || r[5] != balance.ProvenIn.String() {
 			keep = append(keep, r)
 		}
 	}
@@ -305,6 +316,7 @@ type trimBranchJSON struct {
 	Trimmed   bool   `json:"trimmed"`
 	Target    num    `json:"target_m3_s"`
 	Found     num    `json:"as_found_percent"`
+	Predicted num    `json:"plan_predicted_percent"`
 	LeftPct   num    `json:"as_left_percent"`
 	LeftLow   num    `json:"as_left_band_low_percent"`
 	LeftHigh  num    `json:"as_left_band_high_percent"`
@@ -330,8 +342,12 @@ func (j *job) trimOut(generated string) trimJSON {
 		if j.Before != nil {
 			found = 100 * j.Before.Flow(b.Index) / b.Target
 		}
+		pred, ok := j.planPredicted[b.ID]
+		if !ok {
+			pred = math.NaN()
+		}
 		out.Branches = append(out.Branches, trimBranchJSON{ID: b.ID, Valve: b.Valve, Unit: b.Unit, Left: num(b.Left), New: num(b.New), Trimmed: b.Trimmed,
-			Target: num(b.Target), Found: num(found), LeftPct: num(b.LeftPercent), LeftLow: num(b.LeftLow), LeftHigh: num(b.LeftHigh),
+			Target: num(b.Target), Found: num(found), Predicted: num(pred), LeftPct: num(b.LeftPercent), LeftLow: num(b.LeftLow), LeftHigh: num(b.LeftHigh),
 			Verdict: b.Verdict.String(), Read: j.readLeft[b.ID], After: num(b.AfterPercent), AfterLow: num(b.AfterLow), AfterHigh: num(b.AfterHigh), Note: b.Note})
 	}
 	return out
