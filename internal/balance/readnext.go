@@ -76,6 +76,10 @@ type ReadOptions struct {
 	MeterSD, ClampSD, PumpDiffSD float64
 	// MeterCost, ClampCost and PumpCost are the minutes each takes.
 	MeterCost, ClampCost, PumpCost float64
+	// ReadAt is the state the readings are taken in; nil: the plan's
+	// (readings after setting). A survey before the visit reads the plant
+	// as found.
+	ReadAt *plant.State
 	// Max is the most readings listed; 0 lists all that lower the risk at
 	// all (the last may lower it very little: see Candidate.Gain).
 	Max int
@@ -199,6 +203,23 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		rp.Note = "the fit leaves nothing uncertain: no reading would change the plan"
 		return rp, nil
 	}
+	// The readings' own sensitivities, in the state they are taken in.
+	solR, colsR := sol, cols
+	if o.ReadAt != nil {
+		if solR, err = m.Solve(ctx, p, *o.ReadAt); err != nil {
+			return nil, fmt.Errorf("rank readings: %w: %w", err, ErrSolve)
+		}
+		colsR = nil
+		if err := sensitivities(m, p, o.Uncertainty, solR, func(par uparam, dlnq []float64) error {
+			colsR = append(colsR, col{par, append([]float64(nil), dlnq...)})
+			return nil
+		}); err != nil {
+			return nil, err
+		}
+		if len(colsR) != len(cols) {
+			return nil, fmt.Errorf("rank readings: %d parameters in the state read, %d in the plan: %w", len(colsR), len(cols), ErrSolve)
+		}
+	}
 	sd0 := make([]float64, n)
 	for _, c := range cols {
 		for i, d := range c.dlnq {
@@ -230,31 +251,35 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			follow = append(follow, i)
 		}
 	}
-	// Rows: flow and valve meter of each followed branch, total flow,
-	// pump differential, then the chain needs.
+	// Rows: each followed branch's flow after the plan (the risk's), its
+	// valve meter and clamp-on readings in the state read, the total flow
+	// and pump differential read, then the chain needs.
 	nf := len(follow)
 	rowFlow := func(k int) int { return k }
 	rowMeter := func(k int) int { return nf + k }
-	rowTotal, rowPump := 2*nf, 2*nf+1
-	rowNeed := func(k int) int { return 2*nf + 2 + k }
-	nr := 2*nf + 2 + len(need)
+	rowClamp := func(k int) int { return 2*nf + k }
+	rowTotal, rowPump := 3*nf, 3*nf+1
+	rowNeed := func(k int) int { return 3*nf + 2 + k }
+	nr := 3*nf + 2 + len(need)
 	top := m.Top()
-	Q := sol.TotalFlow()
+	Q := solR.TotalFlow()
 	pumpCurve := m.Site.Boundary.Kind == site.PumpCurve && m.Pump != nil
 	var dlnPdlnQ float64
-	pd := sol.PumpDiff()
+	pd := solR.PumpDiff()
 	if pumpCurve && Q > 0 && pd > 0 {
 		h := 1e-3
-		d1 := -m.PumpHeadDrop(p, sol.State, Q*(1+h))
-		d0 := -m.PumpHeadDrop(p, sol.State, Q*(1-h))
+		d1 := -m.PumpHeadDrop(p, solR.State, Q*(1+h))
+		d0 := -m.PumpHeadDrop(p, solR.State, Q*(1-h))
 		dlnPdlnQ = (d1 - d0) / (2 * h) / pd
 	}
 	a := mat.NewDense(nr, len(cols), nil)
 	for j, c := range cols {
 		sg := c.par.sigma
+		cr := colsR[j]
 		for k, i := range follow {
 			a.Set(rowFlow(k), j, sg*c.dlnq[i])
-			v := c.dlnq[i]
+			a.Set(rowClamp(k), j, sg*cr.dlnq[i])
+			v := cr.dlnq[i]
 			if c.par.kind == KvParam && c.par.branch == i {
 				v-- // the meter reads through the valve's table
 			}
@@ -262,7 +287,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		}
 		var t float64
 		for _, i := range top {
-			t += sol.Flow(i) * c.dlnq[i]
+			t += solR.Flow(i) * cr.dlnq[i]
 		}
 		if Q > 0 {
 			t /= Q
@@ -271,7 +296,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		if pumpCurve && pd > 0 {
 			v := dlnPdlnQ * t
 			if c.par.kind == PumpParam {
-				v += -m.PumpHeadDrop(p, sol.State, Q) / pd
+				v += -m.PumpHeadDrop(p, solR.State, Q) / pd
 			}
 			a.Set(rowPump, j, sg*v)
 		}
@@ -374,7 +399,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		if m.Branches[i].Valve != nil {
 			cands = append(cands, cand{how: ByValveMeter, k: k, rows: []int{rowMeter(k)}, r: []float64{o.MeterSD * o.MeterSD}, cost: o.MeterCost})
 		}
-		cands = append(cands, cand{how: ByClampOn, k: k, rows: []int{rowFlow(k)}, r: []float64{o.ClampSD * o.ClampSD}, cost: o.ClampCost})
+		cands = append(cands, cand{how: ByClampOn, k: k, rows: []int{rowClamp(k)}, r: []float64{o.ClampSD * o.ClampSD}, cost: o.ClampCost})
 	}
 	pc := cand{how: AtPump, k: -1, rows: []int{rowTotal}, r: []float64{o.ClampSD * o.ClampSD}, cost: o.PumpCost}
 	if pumpCurve {
@@ -482,7 +507,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		}
 		c := &cands[best]
 		c.done = true
-		rp.Readings = append(rp.Readings, describe(m, sol, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk, c.cost, pout, pd))
+		rp.Readings = append(rp.Readings, describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk, c.cost, pout, pd))
 		observe(c)
 		now = bestRisk
 	}
@@ -492,13 +517,13 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 
 // describe fills a Candidate: what to expect, its band from the spread
 // before any reading (start), and what it settles.
-func describe(m *plant.Model, sol *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
+func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
 	c := Candidate{How: how, Index: -1, Where: "pump", Gain: gain, Minutes: cost}
 	if how == AtPump {
 		c.Expect = pd
 		sd := math.Sqrt(start.At(rows[len(rows)-1], rows[len(rows)-1]))
 		if len(rows) < 2 {
-			c.Expect = sol.TotalFlow()
+			c.Expect = solR.TotalFlow()
 		}
 		c.Low, c.High = c.Expect*math.Exp(-2*sd), c.Expect*math.Exp(2*sd)
 		c.Settles = "the pump's head and the circuit's total flow: narrows every branch's band through the pump and headers"
@@ -507,9 +532,9 @@ func describe(m *plant.Model, sol *plant.Solved, plan *Plan, how ReadKind, k int
 	i := follow[k]
 	b := &m.Branches[i]
 	c.Where, c.Index = b.ID, i
-	q := sol.Flow(i)
-	if how == ByValveMeter && sol.Params.KvScale[i] > 0 {
-		q /= sol.Params.KvScale[i] // the table's reading of the true flow
+	q := solR.Flow(i)
+	if how == ByValveMeter && solR.Params.KvScale[i] > 0 {
+		q /= solR.Params.KvScale[i] // the table's reading of the true flow
 	}
 	sd := math.Sqrt(start.At(rows[0], rows[0]))
 	c.Expect, c.Low, c.High = q, q*math.Exp(-2*sd), q*math.Exp(2*sd)

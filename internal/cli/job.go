@@ -51,9 +51,11 @@ type job struct {
 	// finding made the tables quadratic in the size of the site.
 	flowsRead map[string]float64
 	flags     map[string]string
-	// Reads ranks the readings to take after setting (nil without a fit
-	// or on a site too large to rank).
-	Reads *balance.ReadPlan
+	// Reads ranks the readings to take after setting (or, with surveyPlan,
+	// before the visit: a plan from design); nil on a site too large to
+	// rank.
+	Reads      *balance.ReadPlan
+	surveyPlan bool
 	// Trim is the round after setting (trim only) and readLeft the
 	// branches read in its as-left state.
 	Trim       *balance.TrimPlan
@@ -195,9 +197,20 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	if err := j.remedies(ctx); err != nil {
 		return nil, err
 	}
-	if j.Cal != nil && len(m.Branches) <= maxRankBranches {
-		pr.step("ranking the readings to take after setting")
-		rp, err := balance.RankReadings(ctx, m, j.Params, plan, &balance.ReadOptions{Uncertainty: uncertainty(j.Cal), Max: rankListed(len(m.Branches))})
+	if len(m.Branches) <= maxRankBranches {
+		ro := &balance.ReadOptions{Max: rankListed(len(m.Branches))}
+		if j.Cal != nil {
+			pr.step("ranking the readings to take after setting")
+			ro.Uncertainty = uncertainty(j.Cal)
+		} else {
+			// A plan from design: rank the survey to take before setting
+			// anything, on the fit's priors, read as found.
+			pr.step("ranking the readings to survey first")
+			ro.Uncertainty = priorUncertainty(m)
+			ro.ReadAt = &st
+			j.surveyPlan = true
+		}
+		rp, err := balance.RankReadings(ctx, m, j.Params, plan, ro)
 		if err != nil {
 			return nil, &dataError{fmt.Errorf("ranking readings: %w", err)}
 		}
@@ -369,6 +382,25 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 func mustIndex(m *plant.Model, id string) int {
 	i, _ := m.Index(id)
 	return i
+}
+
+// priorUncertainty is the spread of the multipliers before any reading: the
+// fit's priors (calibrate's defaults), a branch's resistance as the sd of
+// its clean-or-faulty mixture.
+func priorUncertainty(m *plant.Model) *balance.Uncertainty {
+	f := calibrate.DefaultFaultShare
+	r := math.Sqrt((1-f)*calibrate.DefaultPriorClean*calibrate.DefaultPriorClean + f*calibrate.DefaultPriorResistance*calibrate.DefaultPriorResistance)
+	u := &balance.Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches)),
+		LnHeader: calibrate.DefaultPriorHeader, LnPumpHead: calibrate.DefaultPriorPump}
+	for i, b := range m.Branches {
+		if m.FixedElement(i, 1) != nil {
+			u.LnResistance[i] = r
+		}
+		if b.Valve != nil {
+			u.LnKvScale[i] = calibrate.DefaultPriorKv
+		}
+	}
+	return u
 }
 
 // uncertainty carries the calibration's spread into the plan.

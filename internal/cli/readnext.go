@@ -3,6 +3,7 @@ package cli
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"flowset/internal/balance"
 )
@@ -11,7 +12,7 @@ import (
 // places to read in the ranking's order, and its first reading; nil
 // without a ranking.
 func (j *job) rankOf() map[string]rankedRead {
-	if j.Reads == nil {
+	if j.Reads == nil || j.surveyPlan {
 		return nil
 	}
 	out := map[string]rankedRead{}
@@ -71,12 +72,33 @@ func readBy(k balance.ReadKind) string {
 	return k.String()
 }
 
+// surveyNote says, for a plan from design, where to read first: the top of
+// the ranking taken as found ("" otherwise).
+func (j *job) surveyNote() string {
+	if !j.surveyPlan || j.Reads == nil || len(j.Reads.Readings) == 0 {
+		return ""
+	}
+	var first []string
+	seen := map[string]bool{}
+	for _, c := range j.Reads.Readings {
+		if len(first) == 5 {
+			break
+		}
+		if !seen[c.Where] {
+			seen[c.Where] = true
+			first = append(first, c.Where+" ("+strings.ReplaceAll(c.How.String(), "-", " ")+")")
+		}
+	}
+	return "Before setting anything from design data, survey the plant as found: read-next.csv lists where to read, in order of how much each reading lowers the plan's risk; first " + strings.Join(first, ", ") + "."
+}
+
 type readNextJSON struct {
 	Risk       num              `json:"risk_branches_out"`
 	RiskAfter  num              `json:"risk_after_listed"`
 	NeedSD     num              `json:"need_ln_sd"`
 	Contenders []string         `json:"index_contenders"`
 	Note       string           `json:"note,omitempty"`
+	Survey     bool             `json:"survey_before_setting"`
 	Readings   []readingOutJSON `json:"readings"`
 }
 
@@ -100,6 +122,7 @@ func (j *job) readNextOut() readNextJSON {
 	}
 	r := j.Reads
 	out.Risk, out.RiskAfter, out.NeedSD, out.Contenders, out.Note = num(r.Risk), num(r.RiskAfter), num(r.NeedSD), r.Contenders, r.Note
+	out.Survey = j.surveyPlan
 	for _, c := range r.Readings {
 		unit := "m3/s"
 		if c.How == balance.AtPump {

@@ -97,3 +97,58 @@ func TestTrimRefused(t *testing.T) {
 		})
 	}
 }
+
+// TestSurveyPlan: a site with no readings is planned from design, and the
+// readings to take first are ranked on the fit's priors, read as found;
+// after setting, with a fit, the ranking is of readings after setting.
+func TestSurveyPlan(t *testing.T) {
+	dir := t.TempDir()
+	site := filepath.Join(dir, "site")
+	if err := os.Mkdir(site, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	copySite(t, "demo", site)
+	if err := os.WriteFile(filepath.Join(site, "readings.csv"), []byte("state,where,quantity,value,unit,setting,instrument,uncertainty,time\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name, site string
+		survey     bool
+	}{
+		{"no readings: survey before setting", site, true},
+		{"a survey: readings after setting", surveyDir("demo"), false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			out := filepath.Join(dir, strings.ReplaceAll(tc.name, " ", "-"))
+			code, stdout, stderr := run(t, "plan", tc.site, "--out", out)
+			if code != 0 && code != 5 {
+				t.Fatalf("plan: exit %d: %s", code, stderr)
+			}
+			if got := strings.Contains(stdout, "survey the plant as found"); got != tc.survey {
+				t.Errorf("console says to survey first: %v, want %v:\n%s", got, tc.survey, stdout)
+			}
+			b, err := os.ReadFile(filepath.Join(out, "read-next.json"))
+			if err != nil {
+				t.Fatal(err)
+			}
+			var rn struct {
+				Survey   bool `json:"survey_before_setting"`
+				Readings []struct {
+					Where string  `json:"where"`
+					Gain  float64 `json:"risk_removed"`
+				} `json:"readings"`
+			}
+			if err := json.Unmarshal(b, &rn); err != nil {
+				t.Fatal(err)
+			}
+			if rn.Survey != tc.survey || len(rn.Readings) == 0 {
+				t.Fatalf("read-next.json: survey %v with %d readings, want survey %v and some", rn.Survey, len(rn.Readings), tc.survey)
+			}
+			for k := 1; k < len(rn.Readings); k++ {
+				if rn.Readings[k].Gain <= 0 {
+					t.Errorf("reading %d (%s) removes no risk", k+1, rn.Readings[k].Where)
+				}
+			}
+		})
+	}
+}

@@ -703,6 +703,9 @@ func (j *job) proveTable(u display) report.Table {
 	if pr, ok := ranked["pump"]; ok {
 		t.Notes = append(t.Notes, fmt.Sprintf("Read the pump's differential and the total flow too (order %d): expect %s, 95 %% band %s to %s; %s.", pr.Rank, u.diff(pr.Expect), u.diffNum(pr.Low), u.diff(pr.High), pr.Settles))
 	}
+	if n := j.surveyNote(); n != "" {
+		t.Notes = append(t.Notes, n)
+	}
 	if len(ranked) > 0 {
 		t.Notes = append(t.Notes, fmt.Sprintf("The order is by how much each reading lowers the risk of the plan (read-next.csv): the expected number of branches outside the tolerance after trimming, %.2f now, %.2f once every reading in read-next.csv is taken.", j.Reads.Risk, j.Reads.RiskAfter))
 	}
