@@ -104,6 +104,19 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	for k := range plan.Branches {
 		planBy[plan.Branches[k].ID] = &plan.Branches[k]
 	}
+	// Each branch's flags and first-state readings, gathered once: a scan
+	// of every finding and reading per branch was quadratic in the site.
+	flagsBy := map[string][]string{}
+	for _, f := range j.Findings {
+		if f.Reading == "" && f.Code != diagnose.Undetermined {
+			flagsBy[f.Branch] = append(flagsBy[f.Branch], f.Code.String())
+		}
+	}
+	readingsAt := map[string][]int{}
+	for _, ri := range j.Before.State.Readings {
+		w := s.Readings[ri].Where
+		readingsAt[w] = append(readingsAt[w], ri)
+	}
 	design := m.Design()
 	for i, b := range m.Branches {
 		if b.Riser() {
@@ -130,15 +143,11 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			bf := j.Cal.Branches[i]
 			rb.RatioFit, rb.RatioLow, rb.RatioHigh = bf.Ratio, bf.Lo, bf.Hi
 		}
-		for _, f := range j.Findings {
-			if f.Branch == b.ID && f.Reading == "" && f.Code != diagnose.Undetermined {
-				rb.Flags = append(rb.Flags, f.Code.String())
-			}
-		}
+		rb.Flags = flagsBy[b.ID]
 		// Curves at the as-found setting, from zero to beyond both 150 % of
 		// design and every reading, so the readings sit on the drawn range.
 		set := j.Before.State.Settings[i]
-		rb.Measured = measuredPoints(j, i, toFlow, toDiff)
+		rb.Measured = measuredPoints(j, i, readingsAt[b.ID], toFlow, toDiff)
 		span := 1.5 * b.Design
 		for _, p := range rb.Measured {
 			span = math.Max(span, 1.1*p.X/toFlow)
@@ -269,18 +278,15 @@ func xyIn(ps []plant.Point, toFlow, toDiff float64) []report.XY {
 	return out
 }
 
-// measuredPoints places branch i's readings of the first survey state on its
-// curve: a flow with a branch differential read in the same state is one
-// point; a flow alone is drawn at the fitted differential.
-func measuredPoints(j *job, i int, toFlow, toDiff float64) []report.Point {
+// measuredPoints places branch i's readings of the first survey state (at,
+// indices into the site's readings, in the state's order) on its curve: a
+// flow with a branch differential read in the same state is one point; a
+// flow alone is drawn at the fitted differential.
+func measuredPoints(j *job, i int, at []int, toFlow, toDiff float64) []report.Point {
 	s := j.L.Site
-	id := j.L.Model.Branches[i].ID
 	var flows, diffs []site.Reading
-	for _, ri := range j.Before.State.Readings {
+	for _, ri := range at {
 		r := s.Readings[ri]
-		if r.Where != id {
-			continue
-		}
 		switch {
 		case r.What == site.Flow:
 			flows = append(flows, r)
