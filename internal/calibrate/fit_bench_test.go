@@ -22,8 +22,9 @@ import (
 func BenchmarkFit(b *testing.B) {
 	ctx := context.Background()
 	nan := math.NaN()
-	for _, nb := range []int{100, 1000, 10000} {
+	for _, nb := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			largeBench(b, nb)
 			s := newPlantSite(b, plantSpec{branches: nb, arrangement: site.DirectReturn, seed: 1})
 			for _, br := range s.Branches {
 				read(s, "as-found", br.ID, site.Flow, "clamp-on", nan)
@@ -57,8 +58,9 @@ func BenchmarkFit(b *testing.B) {
 // hidden fouled and free branches), valve hypothesis tests included.
 func BenchmarkFitSurvey(b *testing.B) {
 	ctx := context.Background()
-	for _, nb := range []int{100, 1000, 10000} {
+	for _, nb := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
+			largeBench(b, nb)
 			s, _, err := synth.Generate(ctx, synth.Spec{Branches: nb, Arrangement: site.DirectReturn, Nested: true,
 				Seed: 7, Fouled: 0.05, Free: 0.02, Noise: 1, States: 1})
 			if err != nil {
@@ -79,9 +81,7 @@ func BenchmarkFitRisers(b *testing.B) {
 	ctx := context.Background()
 	for _, nb := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", nb), func(b *testing.B) {
-			if nb >= 100000 && (testing.Short() || os.Getenv("FLOWSET_BENCH_LARGE") == "") {
-				b.Skip("100,000 branches: set FLOWSET_BENCH_LARGE=1 (takes minutes)")
-			}
+			largeBench(b, nb)
 			s, _, err := synth.Generate(ctx, synth.Spec{Branches: nb, Arrangement: site.DirectReturn, RiserTerminals: 30,
 				Seed: 7, Fouled: 0.05, Noise: 1, States: 1, Readings: synth.SurveyMix()})
 			if err != nil {
@@ -89,6 +89,14 @@ func BenchmarkFitRisers(b *testing.B) {
 			}
 			benchFit(b, mustModel(b, s))
 		})
+	}
+}
+
+// largeBench skips the 100,000-branch size unless FLOWSET_BENCH_LARGE is
+// set (and not under -short): it takes minutes.
+func largeBench(b *testing.B, n int) {
+	if n >= 100000 && (testing.Short() || os.Getenv("FLOWSET_BENCH_LARGE") == "") {
+		b.Skip("100,000 branches: set FLOWSET_BENCH_LARGE=1 (takes minutes)")
 	}
 }
 

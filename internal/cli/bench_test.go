@@ -56,8 +56,9 @@ func writeSpec(tb testing.TB, spec synth.Spec) string {
 // BenchmarkRun is the whole job (read, check, fit, diagnose, plan, report,
 // field sheets) on generated sites; it reports the report's size.
 func BenchmarkRun(b *testing.B) {
-	for _, n := range []int{100, 1000, 10000} {
+	for _, n := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
+			largeBench(b, n)
 			benchRun(b, writeSynthetic(b, n))
 		})
 	}

@@ -4,12 +4,21 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"os"
 	"testing"
 
 	"flowset/internal/plant"
 	"flowset/internal/site"
 	"flowset/internal/synth"
 )
+
+// largeBench skips the 100,000-branch size unless FLOWSET_BENCH_LARGE is
+// set (and not under -short): it takes minutes with the other sizes.
+func largeBench(b *testing.B, n int) {
+	if n >= 100000 && (testing.Short() || os.Getenv("FLOWSET_BENCH_LARGE") == "") {
+		b.Skip("100,000 branches: set FLOWSET_BENCH_LARGE=1")
+	}
+}
 
 // benchSite is a generated direct-return site on a pump curve, pipes and
 // headers from the catalogue, balancing valves from tables.
@@ -23,8 +32,9 @@ func benchSite(b *testing.B, n int) *site.Site {
 
 // BenchmarkNew builds the model of a site from its sheets.
 func BenchmarkNew(b *testing.B) {
-	for _, n := range []int{100, 1000, 10000} {
+	for _, n := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
+			largeBench(b, n)
 			s := benchSite(b, n)
 			b.ReportAllocs()
 			for b.Loop() {
@@ -39,8 +49,9 @@ func BenchmarkNew(b *testing.B) {
 // BenchmarkSolve builds and cold-solves the network of the design state,
 // as a first look at a site does.
 func BenchmarkSolve(b *testing.B) {
-	for _, n := range []int{100, 1000, 10000} {
+	for _, n := range []int{1000, 10000, 100000} {
 		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
+			largeBench(b, n)
 			m, err := plant.New(benchSite(b, n))
 			if err != nil {
 				b.Fatal(err)
