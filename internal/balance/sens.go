@@ -103,8 +103,10 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 
 // bandExactMax is the number of uncertain branch parameters up to which
 // flowSD is exact, one sensitivity per parameter (quadratic in the
-// branches); above it, flowSDEstimated's linear estimate.
-const bandExactMax = 256
+// branches, but under 0.1 s up to here: sites of about 500 branches, the
+// independent test plants among them, keep the exact band); above it,
+// flowSDEstimated's linear estimate.
+const bandExactMax = 1000
 
 // bandProbes is the number of random probes of flowSDEstimated, and
 // bandSeed their fixed seed: the same plan gives the same band.
