@@ -46,6 +46,60 @@ func valveFamily() []valveSize {
 	}
 }
 
+// heldSize is one pressure-independent valve of the generator's family.
+type heldSize struct {
+	name       string
+	qmax, hold float64 // largest flow held, m3/s; hold differential, Pa
+}
+
+// heldFamily is the generator's range of pressure-independent valves: the
+// largest flows and hold differentials are typical of terminal valves of
+// the kind (from memory, no source); the names are invented.
+func heldFamily() []heldSize {
+	return []heldSize{{"P15", 0.15e-3, 20e3}, {"P20", 0.4e-3, 20e3}, {"P25", 0.9e-3, 25e3}, {"P32", 1.8e-3, 25e3},
+		{"P40", 3.5e-3, 30e3}, {"P50", 6e-3, 30e3}}
+}
+
+// heldTable is an invented table: settings 1 to 10 in steps of 0.1, the
+// flow held a tenth of the largest a setting, the Kv below the hold
+// differential left for the model to derive.
+func heldTable(h heldSize) site.ValveModel {
+	vm := site.ValveModel{Name: h.name, Unit: "steps", Step: 0.1, MinDiff: 3e3, HoldDiff: h.hold, Rangeability: math.NaN(), Kvs: math.NaN()}
+	for s := 1.0; s <= 10; s++ {
+		vm.Settings = append(vm.Settings, s)
+		vm.MaxFlow = append(vm.MaxFlow, h.qmax*s/10)
+		vm.Kv = append(vm.Kv, math.NaN())
+	}
+	return vm
+}
+
+// held puts Spec.Held of the terminal branches, drawn at random, on the
+// smallest pressure-independent valve whose largest flow is 1.25 times
+// their design flow or more.
+func (d *designer) held() {
+	fam := heldFamily()
+	used := make([]bool, len(fam))
+	leaves := append([]int(nil), d.leaves...)
+	d.rng.Shuffle(len(leaves), func(a, b int) { leaves[a], leaves[b] = leaves[b], leaves[a] })
+	for _, i := range leaves[:int(math.Round(d.spec.Held*float64(len(leaves))))] {
+		b := &d.s.Branches[i]
+		k := len(fam) - 1
+		for j, h := range fam {
+			if h.qmax >= 1.25*b.DesignFlow {
+				k = j
+				break
+			}
+		}
+		b.Valve = fam[k].name
+		used[k] = true
+	}
+	for j, h := range fam {
+		if used[j] {
+			d.s.Valves = append(d.s.Valves, heldTable(h))
+		}
+	}
+}
+
 // valveTable is an invented handwheel table shaped like real ones: eight
 // points from an eighth of the travel to fully open, ln Kv close to linear in
 // turns at first and flattening towards open, Kv(x) = Kvs·φ0^((1-x)^1.3)
@@ -415,6 +469,14 @@ func need(m *plant.Model) float64 {
 		own := make([]float64, n)
 		for k, i := range ids {
 			own[k] = drop(m.Elements(i, p, open[i]), q[k])
+			if b := &m.Branches[i]; b.PI != nil {
+				// Its hold differential with the plan's 10 % margin
+				// (balance.HoldMargin), not its open Kv's drop.
+				own[k] = 1.1 * b.PI.HoldDiff
+				if f := m.FixedElement(i, 1); f != nil {
+					own[k] += drop([]hydraulics.Element{f}, q[k])
+				}
+			}
 			if m.Branches[i].Riser() {
 				own[k] += ladder(m.Branches[i].Children)
 			}
@@ -477,6 +539,9 @@ func (d *designer) design(ctx context.Context) error {
 	}
 	d.headers(rows, g, false)
 	d.s.Valves = d.valves()
+	if d.spec.Held > 0 {
+		d.held()
+	}
 	if err := ctx.Err(); err != nil {
 		return err
 	}

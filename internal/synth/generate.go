@@ -109,6 +109,9 @@ func (spec Spec) normal() (Spec, error) {
 		}
 		sum += f
 	}
+	if !(spec.Held >= 0 && spec.Held <= 1) || !(spec.Mislimited >= 0 && spec.Mislimited <= 1) {
+		return bad("fractions %g on pressure-independent valves and %g of them mis-limited, want 0 to 1", spec.Held, spec.Mislimited)
+	}
 	if sum > 1+1e-12 {
 		return bad("fault fractions add up to %g, more than 1", sum)
 	}
@@ -212,8 +215,22 @@ func (d *designer) truth(m *plant.Model) *Truth {
 		t.Params.Resistance[i] = math.Max(0.1, 1-sev*(0.5+0.2*d.rng.Float64()))
 		t.Faults[i] = Free
 	}
+	// mislimit makes branch i's pressure-independent valve pass k times its
+	// table's flow, k 0.70-0.85 or 1.15-1.30 at severity 1.
+	mislimit := func(i int) {
+		k := 1 + sev*(0.15+0.15*d.rng.Float64())
+		if d.rng.IntN(2) == 0 {
+			k = 2 - k
+		}
+		t.Params.KvScale[i] = max(k, 0.1)
+		t.Faults[i] = Mislimited
+	}
 	for _, i := range pick(d.spec.MisSet) {
 		b := &m.Branches[i]
+		if b.PI != nil {
+			mislimit(i)
+			continue
+		}
 		lo, hi := b.Valve.Range()
 		rec := b.AsFound
 		off := sev * (0.3 + 0.2*d.rng.Float64()) * (hi - lo)
@@ -238,6 +255,23 @@ func (d *designer) truth(m *plant.Model) *Truth {
 		t.Stuck[i] = m.Branches[i].AsFound
 		t.Faults[i] = Stuck
 	}
+	if d.spec.Mislimited > 0 {
+		var held []int
+		for _, i := range leaves[next:] {
+			if m.Branches[i].PI != nil {
+				held = append(held, i)
+			}
+		}
+		var all int
+		for _, i := range d.leaves {
+			if m.Branches[i].PI != nil {
+				all++
+			}
+		}
+		for _, i := range held[:min(len(held), int(math.Round(d.spec.Mislimited*float64(all))))] {
+			mislimit(i)
+		}
+	}
 	return t
 }
 
@@ -261,10 +295,14 @@ func (d *designer) plan(m *plant.Model, t *Truth) []stateDef {
 			clamp[i], vdiff[i] = !meter[i], meter[i]
 		}
 	}
+	for i := range m.Branches {
+		// A pressure-independent valve has no Kv table to meter by.
+		meter[i] = meter[i] && (m.Branches[i].Valve != nil || m.Branches[i].PI == nil)
+	}
 	var takes []take
 	read := make([]bool, n)
 	for i := range m.Branches {
-		id, valve := m.Branches[i].ID, m.Branches[i].Valve != nil
+		id, valve := m.Branches[i].ID, m.Branches[i].HasValve()
 		if clamp[i] {
 			takes = append(takes, take{Where: id, What: site.Flow, Instrument: "clamp-on"})
 		}
@@ -294,13 +332,13 @@ func (d *designer) plan(m *plant.Model, t *Truth) []stateDef {
 		sd := stateDef{Label: fmt.Sprintf("state-%d", k), Takes: takes}
 		for i := range m.Branches {
 			b := &m.Branches[i]
-			if b.Valve == nil || !read[i] {
+			if !b.HasValve() || !read[i] {
 				continue
 			}
 			if t.Faults[i] != MisSet && t.Faults[i] != Stuck && d.rng.Float64() >= 0.2 {
 				continue
 			}
-			lo, hi := b.Valve.Range()
+			lo, hi := b.Range()
 			step := (0.15 + 0.25*d.rng.Float64()) * (hi - lo)
 			if d.rng.IntN(2) == 0 {
 				step = -step

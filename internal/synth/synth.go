@@ -60,6 +60,15 @@ type Spec struct {
 	// (non-riser) branches given each hidden fault; their sum must not
 	// exceed 1.
 	Fouled, Free, MisSet, Stuck float64
+	// Held is the fraction of the terminal branches given a
+	// pressure-independent valve (the smallest of an invented family whose
+	// largest flow is at least 1.25 times design) instead of a handwheel
+	// valve. Mislimited is the fraction of those (drawn after the other
+	// faults, among the branches still without one) whose limiter passes
+	// 0.70-0.85 or 1.15-1.30 times its table's flow at FaultSeverity 1, in
+	// Truth.Params.KvScale; a MisSet fault drawn on such a branch is the
+	// same.
+	Held, Mislimited float64
 	// FaultSeverity scales the faults; 0 means 1, which makes a fouled
 	// branch's resistance 2-4 times design, a free one's 0.3-0.5 times,
 	// and puts a mis-set valve 30-50 % of its range away from its mark.
