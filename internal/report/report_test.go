@@ -16,6 +16,8 @@ import (
 	"strings"
 	"testing"
 
+	"flowset/internal/cpuclock"
+
 	"github.com/google/go-cmp/cmp"
 )
 
@@ -654,12 +656,14 @@ func BenchmarkWrite(b *testing.B) {
 			in := siteInput(n)
 			var buf bytes.Buffer
 			b.ReportAllocs()
+			cpu := cpuclock.Start()
 			for b.Loop() {
 				buf.Reset()
 				if err := Write(&buf, in); err != nil {
 					b.Fatal(err)
 				}
 			}
+			cpu.Report(b)
 			b.ReportMetric(float64(buf.Len()), "bytes/report")
 		})
 	}
