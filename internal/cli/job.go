@@ -175,6 +175,17 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
+	hedges := hedgeTestPoints(j, plan, unconfirmed)
+	if len(hedges) > 0 {
+		if p2, err := balance.Compute(ctx, m, j.Params, j.planOptions()); err == nil {
+			plan = p2
+		} else {
+			for _, h := range hedges {
+				j.Params.Resistance[mustIndex(m, h.ID)] = h.Fitted
+			}
+			hedges = nil
+		}
+	}
 	if id, q, f := indexMargin(j, plan); f > 0 {
 		j.margin = map[string]float64{id: q}
 		if p2, err := balance.Compute(ctx, m, j.Params, j.planOptions()); err == nil && len(p2.Unmet) == 0 {
@@ -188,6 +199,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	for _, id := range unconfirmed {
 		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
 	}
+	plan.Warnings = append(plan.Warnings, hedgeNotes(j, hedges)...)
 	j.Plan = plan
 	after, err := m.Solve(ctx, j.Params, plan.State())
 	if err != nil {

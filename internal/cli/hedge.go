@@ -1,0 +1,153 @@
+package cli
+
+import (
+	"fmt"
+	"math"
+
+	"flowset/internal/balance"
+	"flowset/internal/calibrate"
+	"flowset/internal/diagnose"
+)
+
+// Test points that read wrong: the second explanation of a branch found
+// restricted through its own valve's test points alone. A partly blocked
+// tapping, air in a sensing line or a sensor off its calibration scales the
+// valve differential read, and the flow the meter derives from it through
+// the valve's table, by one factor; with the branch differential read
+// right, that is exactly what a fouled terminal behind correct readings
+// looks like, and no reading at the branch tells them apart.
+const (
+	// testPointShare is the prior probability that a branch's test-point
+	// readings are off that way: about one in twenty-five (common practice,
+	// no source).
+	testPointShare = 0.04
+	// testPointMax bounds the flow error such readings carry, ±40 %, taken
+	// as uniform (common practice, no source). A meter dialled to the wrong
+	// valve does not count: its flow then disagrees with the differential
+	// through the table, which the fit sees.
+	testPointMax = 0.4
+	// hedgeSpread is the standard deviation, as a fraction of flow, of what
+	// else moves a branch after setting: the valve's Kv tolerance (2.9 %,
+	// see calibrate.DefaultPriorKv) and the headers, about 2.5 % (common
+	// practice, no source).
+	hedgeSpread = 0.025
+)
+
+// hedged records a branch planned between two explanations.
+type hedged struct {
+	ID                  string
+	Fitted, Planned     float64 // multipliers on the fixed parts
+	Low                 float64 // how far low its test points would read the flow, as a fraction
+	Weight              float64 // posterior probability of the readings being wrong
+	IfFault, IfReadings float64 // flow as a fraction of target under each
+}
+
+// hedgeTestPoints weighs each branch found restricted (or short of design)
+// through its own valve's test points alone against those test points
+// reading low, and plans its setting for the least expected squared
+// departure from target over the two (balance.Hedge). The weights are the
+// explanations' marginal likelihoods of the branch's data-only estimate
+// (Kass and Raftery, J. Am. Stat. Assoc. 90, 1995): the fault component of
+// the fit's prior mixture, and the test-point error carried into the same
+// estimate (a uniform prior on the error, through the Jacobian of the
+// apparent multiplier). It changes j.Params and returns the branches
+// moved.
+func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
+	if j.Cal == nil || j.Before == nil || plan == nil {
+		return nil
+	}
+	m := j.L.Model
+	indep := map[string]bool{}
+	for _, e := range j.Evidence {
+		indep[e.ID] = e.HasFlow
+	}
+	skip := map[string]bool{}
+	for _, id := range held {
+		skip[id] = true
+	}
+	byID := map[string]*balance.BranchPlan{}
+	for k := range plan.Branches {
+		byID[plan.Branches[k].ID] = &plan.Branches[k]
+	}
+	var out []hedged
+	for _, f := range j.Findings {
+		if f.Code != diagnose.Restricted && f.Code != diagnose.CannotReachDesign || indep[f.Branch] || skip[f.Branch] {
+			continue
+		}
+		skip[f.Branch] = true
+		i, ok := m.Index(f.Branch)
+		bp := byID[f.Branch]
+		if !ok || bp == nil || m.Branches[i].Valve == nil || m.Branches[i].Riser() || bp.OnIndex || !(bp.Target > 0) {
+			continue
+		}
+		bf := j.Cal.Branches[i]
+		mf := j.Params.Resistance[i]
+		ln, sd := bf.DataLn, bf.DataSD
+		if math.IsNaN(ln) {
+			ln, sd = math.Log(mf), 0
+		}
+		if !(mf > 1) || !(ln > 0) {
+			continue
+		}
+		fixed := m.FixedElement(i, 1)
+		dv, db := j.Before.ValveDiff(i), j.Before.BranchDiff(i)
+		if fixed == nil || !(dv > 0) || !(db > dv) {
+			continue
+		}
+		// Test points reading a flow factor 1+b read the valve differential
+		// (1+b)² times and the branch's total resistance (1+b)^-2 times its
+		// own; the valve's resistance is unchanged. With φ the valve's share
+		// of the branch differential as read, the fixed parts then appear
+		// multiplied by m = (c - φ₀)/(1 - φ₀), φ₀ = φ/c, c = (1+b)^-2: so
+		// c = m/(1 - φ + mφ).
+		phi := dv / db
+		mm := math.Exp(ln)
+		c := mm / (1 - phi + mm*phi)
+		b := 1/math.Sqrt(c) - 1
+		if math.Abs(b) > testPointMax {
+			continue
+		}
+		jac := 0.5 / math.Sqrt(c) * (1 - phi) / (1 - phi + mm*phi) // |db/d ln m|
+		wFault := calibrate.DefaultFaultShare * normalPDF(ln, math.Hypot(calibrate.DefaultPriorResistance, sd))
+		wReads := testPointShare / (2 * testPointMax) * jac
+		_, hi := m.Branches[i].Valve.Range()
+		open := m.ValveElement(i, hi, j.Params.KvScale[i])
+		if open == nil {
+			continue
+		}
+		openDrop, _ := open.Drop(bp.Target, m.Fluid)
+		res, err := balance.Hedge(balance.HedgeCase{
+			Rest:   func(q float64) float64 { d, _ := fixed.Drop(q, m.Fluid); return d },
+			Diff:   bp.BranchDiff,
+			Target: bp.Target,
+			Open:   openDrop,
+			Low:    plan.ToleranceLow, High: plan.ToleranceHigh, Spread: hedgeSpread,
+		}, []balance.Hypothesis{{Multiplier: mf, Weight: wFault}, {Multiplier: 1, Weight: wReads}})
+		if err != nil || math.Abs(math.Log(res.Multiplier/mf)) < 0.01 {
+			continue
+		}
+		j.Params.Resistance[i] = res.Multiplier
+		out = append(out, hedged{ID: f.Branch, Fitted: mf, Planned: res.Multiplier, Low: -b, Weight: wReads / (wFault + wReads), IfFault: res.Flows[0], IfReadings: res.Flows[1]})
+	}
+	return out
+}
+
+// hedgeNotes words the hedged branches for the plan's warnings and sets
+// their findings' actions.
+func hedgeNotes(j *job, hs []hedged) []string {
+	var notes []string
+	for _, h := range hs {
+		notes = append(notes, fmt.Sprintf("%s reads as %.2g times its design resistance through its own valve's test points alone, and test points reading %.0f %% low would read the same way (a %.0f %% chance against the restriction's %.0f %%): its setting is planned between the two, to give %.0f %% of target if the restriction is real and %.0f %% if the test points read low. Read its flow with a clamp-on meter and re-plan with that reading", h.ID, h.Fitted, 100*math.Abs(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
+		for k := range j.Findings {
+			f := &j.Findings[k]
+			if f.Branch == h.ID && (f.Code == diagnose.Restricted || f.Code == diagnose.CannotReachDesign) {
+				f.Action = "read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading low say the same; its setting is planned between the two until a second instrument tells"
+			}
+		}
+	}
+	return notes
+}
+
+func normalPDF(x, sd float64) float64 {
+	return math.Exp(-0.5*(x/sd)*(x/sd)) / (sd * math.Sqrt(2*math.Pi))
+}
