@@ -175,24 +175,34 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
+	// The hedged branches (lowered, never the index) and the index margin
+	// both come from this plan; one more plan carries both.
 	hedges := hedgeTestPoints(j, plan, unconfirmed)
-	if len(hedges) > 0 {
-		if p2, err := balance.Compute(ctx, m, j.Params, j.planOptions()); err == nil {
-			plan = p2
-		} else {
+	id, q, f := indexMargin(j, plan)
+	if f > 0 {
+		j.margin = map[string]float64{id: q}
+	}
+	if len(hedges) > 0 || f > 0 {
+		p2, err := balance.Compute(ctx, m, j.Params, j.planOptions())
+		if f > 0 && (err != nil || len(p2.Unmet) > 0) {
+			// The margin is dropped when the pump cannot give it.
+			j.margin = nil
+			f = 0
+			if len(hedges) > 0 {
+				p2, err = balance.Compute(ctx, m, j.Params, j.planOptions())
+			}
+		}
+		switch {
+		case err != nil:
 			for _, h := range hedges {
 				j.Params.Resistance[mustIndex(m, h.ID)] = h.Fitted
 			}
 			hedges = nil
-		}
-	}
-	if id, q, f := indexMargin(j, plan); f > 0 {
-		j.margin = map[string]float64{id: q}
-		if p2, err := balance.Compute(ctx, m, j.Params, j.planOptions()); err == nil && len(p2.Unmet) == 0 {
-			p2.Warnings = append(p2.Warnings, fmt.Sprintf("the index circuit %s is planned %.1f %% above its target: what it needs is known only to within its readings' uncertainty, and a pump set for exactly its target would leave it short half the time; read it after setting (step 5)", id, 100*f))
+		case len(hedges) > 0 || f > 0:
 			plan = p2
-		} else {
-			j.margin = nil
+		}
+		if f > 0 {
+			plan.Warnings = append(plan.Warnings, fmt.Sprintf("the index circuit %s is planned %.1f %% above its target: what it needs is known only to within its readings' uncertainty, and a pump set for exactly its target would leave it short half the time; read it after setting (step 5)", id, 100*f))
 		}
 	}
 	plan.DesignOnly = j.Cal == nil
