@@ -530,10 +530,10 @@ func valveEvidence(c *calibrate.Calibration, i int) *diagnose.Valve {
 // small circuit this overstates the open-valve flow slightly.
 func openFlow(m *plant.Model, s *plant.Solved, i int, p plant.Params) float64 {
 	b := &m.Branches[i]
-	if b.Valve == nil {
+	if !b.HasValve() {
 		return math.NaN()
 	}
-	_, hi := b.Valve.Range()
+	_, hi := b.Range()
 	c := network.ElementCurve(m.Fluid, m.Elements(i, p, hi)...)
 	q, err := network.Invert(c, s.BranchDiff(i))
 	if err != nil {

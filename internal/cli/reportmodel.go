@@ -131,7 +131,7 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			rb.After = bp.Predicted * toFlow
 			rb.AfterLow = bp.BandLow / 100 * bp.Target * toFlow
 			rb.AfterHigh = bp.BandHigh / 100 * bp.Target * toFlow
-			if b.Valve != nil {
+			if b.HasValve() {
 				rb.ValveUnit = bp.Unit
 				rb.NowValue, rb.PlannedValue = bp.Current, bp.New
 				// Four significant digits: a rounded handwheel setting such

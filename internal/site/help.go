@@ -481,7 +481,12 @@ What flowset does with it:
             value and reported as not determined; the valve's own flow scale
             (does its setting give its flow?) is fitted where flows are read
   findings  a valve below its hold diff (starved: its flow falls short), a
-            setting that does not give its table's flow
+            setting that does not give its table's flow (fitted more than
+            5 % off it; the fit allows 10 % as one sd before the readings)
+  check     warns where a valve cannot be set to hold its branch's target,
+            and where a flow read through one is over 15 % above what it
+            holds at its setting
+  curves    flows a valve cannot pass at its setting are marked "held"
 Readings: flow, branch diff and valve diff (across the whole valve body) as
 for any branch; a valve meter cannot read one (it has no Kv table).`}
 }

@@ -847,3 +847,36 @@ func TestPumpIntroExample(t *testing.T) {
 		}
 	}
 }
+
+// TestPressureIndependentTopic reads the pressure-independent topic's
+// example as a valves sheet, with a branch naming its model: it must read
+// cleanly as that kind of valve.
+func TestPressureIndependentTopic(t *testing.T) {
+	var body string
+	for _, tp := range Topics() {
+		if tp.Name == "pressure-independent" {
+			body = tp.Body
+		}
+	}
+	var rows []string
+	for _, line := range strings.Split(body, "\n") {
+		if strings.HasPrefix(line, "  model,") || strings.HasPrefix(line, "  PI15,") {
+			rows = append(rows, strings.TrimSpace(line))
+		}
+	}
+	if len(rows) < 3 {
+		t.Fatalf("topic example has %d rows:\n%s", len(rows), body)
+	}
+	fsys := fstest.MapFS{
+		"valves.csv":   {Data: []byte(strings.Join(rows, "\n") + "\n")},
+		"branches.csv": {Data: []byte("id,design flow [l/s],pipe bore [mm],pipe length [m],valve,setting\nA,0.1,16,10,PI15,3\n")},
+		"readings.csv": {Data: []byte("state,where,quantity,value,unit,instrument\nas-found,A,flow,0.08,l/s,clamp-on\n")},
+	}
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("topic example: %v %v", err, p)
+	}
+	if v := s.Valve("PI15"); v == nil || !v.PressureIndependent() || v.HoldDiff != 20e3 {
+		t.Errorf("PI15 = %+v, want a pressure-independent valve holding from 20 kPa", v)
+	}
+}
