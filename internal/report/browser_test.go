@@ -218,6 +218,7 @@ func TestBrowser(t *testing.T) {
 		in   Input
 	}{
 		{"hostile names", hostileInput()},
+		{"hostile names, large site", hostileLarge()},
 		{"sample", sampleInput()},
 	} {
 		t.Run(tc.name, func(t *testing.T) {

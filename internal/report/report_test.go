@@ -47,8 +47,15 @@ var hostileText = strings.Join(hostile, " ")
 
 // hostileInput is sampleInput with every string in it, at any depth,
 // replaced by hostileText with a distinct number in front.
-func hostileInput() Input {
-	in := sampleInput()
+func hostileInput() Input { return makeHostile(sampleInput()) }
+
+// hostileLarge is siteInput of 150 branches (the large-site form: finder,
+// paged tables, stored data) made hostile in the same way.
+func hostileLarge() Input { return makeHostile(siteInput(150)) }
+
+// makeHostile replaces every string in in, at any depth, by hostileText with a
+// distinct number in front.
+func makeHostile(in Input) Input {
 	in.Cautions = []string{"caution"}
 	n := 0
 	var walk func(v reflect.Value)
