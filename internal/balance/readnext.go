@@ -54,6 +54,7 @@ const (
 	defaultMeterCost  = 5
 	defaultClampCost  = 15
 	defaultPumpCost   = 5
+	defaultModelSD    = 0.025
 	// maxRankBranches bounds the branches the ranking follows: the most
 	// uncertain ones and those that may be the index. The covariance of
 	// their flows is dense, so the work grows with the square of them.
@@ -76,6 +77,14 @@ type ReadOptions struct {
 	MeterSD, ClampSD, PumpDiffSD float64
 	// MeterCost, ClampCost and PumpCost are the minutes each takes.
 	MeterCost, ClampCost, PumpCost float64
+	// ModelSD is the sd of the model's own error of a branch's ln flow,
+	// beyond the multipliers' spread (Kv tables interpolated, fittings and
+	// headers lumped), independent between branches; 0 means 0.025, a
+	// negative value none. On 34 independent test plants the plan's rms
+	// deviation was 2-4 % against 1-2 % for the all-knowing best while the
+	// fit's bands claimed far less; without it a plant the fit "knows"
+	// ranks nothing.
+	ModelSD float64
 	// ReadAt is the state the readings are taken in; nil: the plan's
 	// (readings after setting). A survey before the visit reads the plant
 	// as found.
@@ -160,6 +169,12 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	def(&o.MeterCost, defaultMeterCost)
 	def(&o.ClampCost, defaultClampCost)
 	def(&o.PumpCost, defaultPumpCost)
+	switch {
+	case o.ModelSD == 0:
+		o.ModelSD = defaultModelSD
+	case o.ModelSD < 0:
+		o.ModelSD = 0
+	}
 	rp := &ReadPlan{}
 	if o.Uncertainty == nil {
 		rp.Note = "no fit: the plan is from design, so every branch must be read after setting"
@@ -320,6 +335,18 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	var kk mat.SymDense
 	kk.SymOuterK(1, a)
 	K := mat.DenseCopyOf(&kk)
+	// The model's own error of each branch's flow, shared by its flow
+	// after the plan and its readings: what no parameter's spread holds.
+	if f2 := o.ModelSD * o.ModelSD; f2 > 0 {
+		for k := range follow {
+			rows := []int{rowFlow(k), rowMeter(k), rowClamp(k)}
+			for _, x := range rows {
+				for _, y := range rows {
+					K.Set(x, y, K.At(x, y)+f2)
+				}
+			}
+		}
+	}
 
 	// Which branches may be the index: draws of the chain needs.
 	w := make([]float64, len(need))

@@ -264,6 +264,10 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	printWarnings(ios.Err, l.Problems, j)
 	generated := ios.now().UTC().Format("2006-01-02 15:04 MST")
 	switch {
+	case o.JSON && j.Trim != nil:
+		if err := writeJSON(ios.Out, j.trimOut(generated)); err != nil {
+			return sysErr(err)
+		}
 	case o.JSON:
 		if err := printJSON(ios.Out, j, o, generated); err != nil {
 			return err

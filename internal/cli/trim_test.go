@@ -58,6 +58,17 @@ func TestTrimDemo(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(out, "trim.csv")); err != nil {
 		t.Error(err)
 	}
+	// --json prints what trim.json holds.
+	code, stdout, stderr = run(t, "trim", surveyDir("demo"), "--plan", filepath.Join(plan, "plan.json"), "--json")
+	if code != 0 && code != 5 {
+		t.Fatalf("trim --json: exit %d: %s", code, stderr)
+	}
+	var again struct {
+		State string `json:"as_left_state"`
+	}
+	if err := json.Unmarshal([]byte(stdout), &again); err != nil || again.State != "after-change" {
+		t.Errorf("trim --json: %v, state %q", err, again.State)
+	}
 }
 
 func TestTrimRefused(t *testing.T) {
