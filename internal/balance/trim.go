@@ -56,6 +56,12 @@ type TrimOptions struct {
 	// trimmed (one the fit found not following its handwheel: a trim
 	// would not move it).
 	Hold []bool
+	// Doubt marks, by model index, branches whose readings as left the fit
+	// doubts (set aside, or far from the model): not trimmed, but to be
+	// read again another way. A flow meter that reads low in both rounds
+	// looks like a branch short of flow; its own valve differential, read
+	// at the same time, is what disagrees.
+	Doubt []bool
 	// Read marks, by model index, the branches read in the as-left state;
 	// when given, only those are trimmed and the others outside the band
 	// are named to be read first. nil: every branch may be trimmed.
@@ -236,6 +242,10 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			}
 			if i < len(o.Hold) && o.Hold[i] {
 				note[i] = "its valve does not follow its handwheel: a trim would not move it (see the findings)"
+				continue
+			}
+			if i < len(o.Doubt) && o.Doubt[i] {
+				note[i] = "its readings after setting disagree with each other or with the model: read it again another way (clamp-on) before trimming"
 				continue
 			}
 			if o.Read != nil && !(i < len(o.Read) && o.Read[i]) {

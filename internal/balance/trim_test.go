@@ -48,6 +48,7 @@ func TestTrimOneBranch(t *testing.T) {
 		ratio    float64
 		hold     bool
 		unread   bool // the off branch was not read after setting (every other was)
+		doubt    bool // the fit doubts the off branch's readings after setting
 		trimmed  int  // how many branches trimmed
 		offIn    bool // the off branch ends in tolerance
 		verdicts bool // the off branch proven out, every other proven in
@@ -58,6 +59,7 @@ func TestTrimOneBranch(t *testing.T) {
 		{name: "off, but its valve does not follow its handwheel", ratio: 4, hold: true, trimmed: 0, offIn: false},
 		{name: "off, but not read after setting", ratio: 4, unread: true, trimmed: 0, offIn: false},
 		{name: "off and read after setting", ratio: 4, trimmed: 1, offIn: true},
+		{name: "off, but its readings after setting are doubted", ratio: 4, doubt: true, trimmed: 0, offIn: false},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			c := newTrimCase(t, tc.ratio)
@@ -75,6 +77,10 @@ func TestTrimOneBranch(t *testing.T) {
 			if tc.hold {
 				opt.Hold = make([]bool, len(m.Branches))
 				opt.Hold[c.off] = true
+			}
+			if tc.doubt {
+				opt.Doubt = make([]bool, len(m.Branches))
+				opt.Doubt[c.off] = true
 			}
 			if tc.unread || strings.HasSuffix(tc.name, "read after setting") {
 				opt.Read = make([]bool, len(m.Branches))
@@ -105,7 +111,7 @@ func TestTrimOneBranch(t *testing.T) {
 						t.Errorf("%s: %v as left (%.1f %%, band %.1f-%.1f), want %v", b.ID, b.Verdict, b.LeftPercent, b.LeftLow, b.LeftHigh, want)
 					}
 				}
-				if (tc.hold || tc.unread) && b.Index == c.off && b.Note == "" {
+				if (tc.hold || tc.unread || tc.doubt) && b.Index == c.off && b.Note == "" {
 					t.Errorf("%s held but without a note", b.ID)
 				}
 			}

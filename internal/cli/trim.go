@@ -169,6 +169,10 @@ func leftState(l *loaded, o *trimOptions) (int, map[string]float64, error) {
 	return k, predicted, nil
 }
 
+// suspectZ is the normalised residual beyond which trim doubts a reading
+// taken after setting (the diagnosis's default for a suspect reading).
+const suspectZ = 3
+
 // trim works out the trims of job j for the as-left state k.
 func (j *job) trim(ctx context.Context, k int) error {
 	m := j.L.Model
@@ -187,6 +191,17 @@ func (j *job) trim(ctx context.Context, k int) error {
 		j.readLeft[id] = true
 		if i, ok := m.Index(id); ok {
 			opt.Read[i] = true
+		}
+	}
+	if j.Cal != nil {
+		opt.Doubt = make([]bool, len(m.Branches))
+		for _, rf := range j.Cal.Readings {
+			if rf.State != m.States[k].Label || rf.Boundary || !(rf.Outlier || math.Abs(rf.Normalised) > suspectZ) {
+				continue
+			}
+			if i, ok := m.Index(rf.Where); ok {
+				opt.Doubt[i] = true
+			}
 		}
 	}
 	tp, err := balance.Trim(ctx, m, j.Params, j.Plan, m.States[k], opt)
