@@ -41,6 +41,19 @@ func FuzzRun(f *testing.F) {
 	f.Add(uint8(5), []byte("branch,target flow [l/s]\nAC-1,0.45\nIMM-3,0.8\n"))
 	f.Add(uint8(1), bytes.Replace(base["branches.csv"], []byte("AC-1,,"), []byte("AC-1,IMM-3,"), 1))
 	f.Add(uint8(0), bytes.Replace(base["site.csv"], []byte("set point [kPa],85"), []byte("set point [kPa],0.003"), 1))
+	// AC-1 hanging from IMM-3, which a differential controller holds.
+	var ctl []string
+	for i, line := range strings.Split(strings.TrimSpace(string(bytes.Replace(base["branches.csv"], []byte("AC-1,,"), []byte("AC-1,IMM-3,"), 1))), "\n") {
+		switch {
+		case i == 0:
+			ctl = append(ctl, line+",controller set point [kPa],controller kvs,controller min [kPa],controller max [kPa]")
+		case strings.HasPrefix(line, "IMM-3,"):
+			ctl = append(ctl, line+",40,12,10,80")
+		default:
+			ctl = append(ctl, line+",,,,")
+		}
+	}
+	f.Add(uint8(1), []byte(strings.Join(ctl, "\n")+"\n"))
 	// W25 (IMM-3, AC-1) as a pressure-independent valve, its range in
 	// turns kept so the recorded settings stay in it (AC-1's valve-meter
 	// reading then makes it a data error until the fuzzer changes it).
