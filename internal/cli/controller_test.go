@@ -119,8 +119,16 @@ func TestRunController(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !strings.Contains(string(fs), "differential controller") {
-		t.Errorf("field sheet has no controller row:\n%s", fs)
+	if !strings.Contains(string(fs), "differential controller,kPa,") || !strings.Contains(string(fs), "it must read the new set point") {
+		t.Errorf("field sheet has no controller row in kPa saying what to read:\n%s", fs)
+	}
+	// In US units its set points are in psi like every differential.
+	us := filepath.Join(t.TempDir(), "us")
+	if code, out, errs := run(t, "plan", dir, "--units", "us", "--out", us); code != 0 {
+		t.Fatalf("plan --units us: status %d, stdout %s, stderr %s", code, out, errs)
+	}
+	if b, err := os.ReadFile(filepath.Join(us, "field-sheet.csv")); err != nil || !strings.Contains(string(b), "differential controller,psi,") {
+		t.Errorf("US field sheet's controller row not in psi (%v):\n%s", err, b)
 	}
 	b, err := os.ReadFile(filepath.Join(job, "plan.json"))
 	if err != nil {

@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"strconv"
 	"strings"
+
+	"flowset/internal/balance"
 )
 
 // fieldSheetWriteIn are the blank columns of the field sheet for writing in
@@ -52,7 +54,21 @@ func (j *job) fieldSheet(u display) ([]string, [][]string) {
 			}
 			nr = append(nr, cell)
 		}
-		nr = append(nr, prove[row[1]])
+		if row[4] == balance.ControllerValve {
+			nr = append(nr, "read across the span: it must read the new set point")
+		} else {
+			nr = append(nr, prove[row[1]])
+		}
+		if row[4] == balance.ControllerValve && u.Name != "si" {
+			// A controller's settings are set points, in kPa in the plan's
+			// rows: shown in the display's pressure unit like the check.
+			for _, k := range []int{6, 7} {
+				if v, err := strconv.ParseFloat(row[k], 64); err == nil {
+					nr[k] = strconv.FormatFloat(u.toDiff(v*1e3), 'f', 2, 64)
+				}
+			}
+			nr[5] = u.DiffUnit
+		}
 		for range fieldSheetWriteIn {
 			nr = append(nr, "")
 		}
