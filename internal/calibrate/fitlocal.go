@@ -39,9 +39,10 @@ type localNet struct {
 	pos      []int   // node -> position within its local network
 	nodes    [][]int // per local network, its nodes
 	links    [][]int // per local network, the links touching its nodes
+	bw       []int   // per local network, the half bandwidth of its node matrix
 	// per linearisation
 	d    []float64   // floored link slopes
-	chol [][]float64 // per local network, its Cholesky factor (row-major)
+	chol [][]float64 // per local network, its band Cholesky factor (lsq.BandCholesky)
 	// scratch of ApproxJacobian
 	rhs  [][]float64
 	dq   []float64
@@ -163,6 +164,17 @@ func (p *problem) newLocalNet(sn *stateNet) *localNet {
 			ln.links[cb] = append(ln.links[cb], l)
 		}
 	}
+	// Nodes are numbered in take-off order (network.Build), so a riser's
+	// node matrix is a band of a few nodes: factorised as one, its cost
+	// grows with the riser's length instead of its cube.
+	ln.bw = make([]int, len(ln.nodes))
+	for c, ls := range ln.links {
+		for _, l := range ls {
+			if pa, pb := ln.local(c, ln.from[l]), ln.local(c, ln.to[l]); pa >= 0 && pb >= 0 {
+				ln.bw[c] = max(ln.bw[c], pa-pb, pb-pa)
+			}
+		}
+	}
 	ln.chol = make([][]float64, len(ln.nodes))
 	return ln
 }
@@ -191,9 +203,10 @@ func (ln *localNet) factor(sn *stateNet) bool {
 		if k == 0 {
 			continue
 		}
+		w := ln.bw[c] + 1
 		a := ln.chol[c]
-		if len(a) != k*k {
-			a = make([]float64, k*k)
+		if len(a) != k*w {
+			a = make([]float64, k*w)
 			ln.chol[c] = a
 		}
 		clear(a)
@@ -201,17 +214,17 @@ func (ln *localNet) factor(sn *stateNet) bool {
 			g := 1 / ln.d[l]
 			pa, pb := ln.local(c, ln.from[l]), ln.local(c, ln.to[l])
 			if pa >= 0 {
-				a[pa*k+pa] += g
+				a[pa*w] += g
 			}
 			if pb >= 0 {
-				a[pb*k+pb] += g
+				a[pb*w] += g
 			}
 			if pa >= 0 && pb >= 0 {
-				a[pa*k+pb] -= g
-				a[pb*k+pa] -= g
+				lo, hi := min(pa, pb), max(pa, pb)
+				a[lo*w+hi-lo] -= g
 			}
 		}
-		if !lsq.Cholesky(a, k) {
+		if !lsq.BandCholesky(a, k, ln.bw[c]) {
 			return false
 		}
 	}
@@ -302,7 +315,7 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 			}
 			for _, c := range marked {
 				x := rhs[c]
-				lsq.CholSolve(ln.chol[c], len(x), x)
+				lsq.BandCholSolve(ln.chol[c], len(x), ln.bw[c], x)
 				for _, l := range ln.links[c] {
 					var xa, xb float64
 					if q := ln.local(c, ln.from[l]); q >= 0 {

@@ -43,3 +43,55 @@ func CholSolve(l []float64, k int, b []float64) {
 		b[i] = s / l[i*k+i]
 	}
 }
+
+// BandCholesky factorises in place the k×k symmetric positive definite
+// matrix of half bandwidth bw stored by rows from the diagonal,
+// a[i*(bw+1)+j-i] = A[i][j] for i <= j <= min(i+bw, k-1) (a has k*(bw+1)
+// entries; those past the last column are not read), into Uᵀ U with U in
+// the same layout: LAPACK's dpbtf2 (upper) written out, O(k bw²) instead
+// of the dense O(k³), for the node matrices of ladders, whose half
+// bandwidth is a few nodes however long the ladder.
+func BandCholesky(a []float64, k, bw int) bool {
+	w := bw + 1
+	for j := range k {
+		o := j * w
+		ajj := a[o]
+		if !(ajj > 0) {
+			return false
+		}
+		ajj = math.Sqrt(ajj)
+		a[o] = ajj
+		kn := min(bw, k-j-1)
+		r := 1 / ajj
+		for i := 1; i <= kn; i++ {
+			a[o+i] *= r
+		}
+		for i := 1; i <= kn; i++ {
+			t := a[o+i]
+			ro := (j+i)*w - i // row j+i, indexed by column offset from j
+			for c := i; c <= kn; c++ {
+				a[ro+c] -= a[o+c] * t
+			}
+		}
+	}
+	return true
+}
+
+// BandCholSolve solves Uᵀ U x = b in place, U from BandCholesky.
+func BandCholSolve(u []float64, k, bw int, b []float64) {
+	w := bw + 1
+	for i := range k {
+		s := b[i]
+		for p := max(0, i-bw); p < i; p++ {
+			s -= u[p*w+i-p] * b[p]
+		}
+		b[i] = s / u[i*w]
+	}
+	for i := k - 1; i >= 0; i-- {
+		s := b[i]
+		for p := i + 1; p <= min(k-1, i+bw); p++ {
+			s -= u[i*w+p-i] * b[p]
+		}
+		b[i] = s / u[i*w]
+	}
+}
