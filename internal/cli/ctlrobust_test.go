@@ -35,7 +35,7 @@ func TestControllerEdges(t *testing.T) {
 		}, 0, []string{"differential controller"}},
 		{"set point above its range", func(s *site.Site, k int) {
 			s.Branches[k].Controller.Max = s.Branches[k].Controller.SetPoint * 1.01
-		}, 0, []string{"above its highest set point"}},
+		}, 0, []string{"above its highest set point", "fit a controller with a higher range"}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			dir, _ := writeControlledSiteWith(t, 0, c.edit)

@@ -154,6 +154,12 @@ func (j *job) visit(u display) report.Visit {
 	v.Pump = j.pumpStep(u)
 	v.Pump.Warnings = append(v.Pump.Warnings, j.planNotes()...)
 	for _, c := range plan.Controllers {
+		if c.SetPoint > c.Max {
+			// The plan is for what the span needs; the controller cannot
+			// be set to it.
+			v.Pump.Warnings = append(v.Pump.Warnings, fmt.Sprintf("The differential controller on %s would have to hold %s across its span, above its highest set point %s: the plan is for what the span needs; set it to its highest and fit a controller with a higher range, or its branches fall short.", c.ID, u.diff(c.SetPoint), u.diff(c.Max)))
+			continue
+		}
 		v.Pump.Warnings = append(v.Pump.Warnings, fmt.Sprintf("The differential controller on %s is planned to hold %s across its span; the pump is set to give it that plus %s for its valve wide open.", c.ID, u.diff(c.SetPoint), u.diff(c.OpenDrop)))
 	}
 
