@@ -19,8 +19,8 @@ type Hypothesis struct {
 // setting follows from the branch alone.
 type HedgeCase struct {
 	// Rest is the drop across the branch's fixed parts at multiplier 1, Pa,
-	// at flow q (m3/s); it must rise with q.
-	Rest func(q float64) float64
+	// at flow q (m3/s), and its slope; it must rise with q.
+	Rest func(q float64) (dp, slope float64)
 	// Diff is the branch differential at the plan, Pa; Target the flow to
 	// reach, m3/s; Open the valve's drop fully open at Target, Pa.
 	Diff, Target, Open float64
@@ -73,7 +73,7 @@ func Hedge(c HedgeCase, hs []Hypothesis) (HedgeResult, error) {
 		}
 		lo, hi = min(lo, h.Multiplier), max(hi, h.Multiplier)
 	}
-	rest1 := c.Rest(c.Target)
+	rest1, _ := c.Rest(c.Target)
 	if !(rest1 > 0) {
 		return HedgeResult{}, errHedge
 	}
@@ -113,25 +113,39 @@ func Hedge(c HedgeCase, hs []Hypothesis) (HedgeResult, error) {
 }
 
 // branchFlow is the flow (m3/s) that balances c.Diff across the fixed parts
-// at multiplier r and a valve of coefficient k (drop k q²), by bisection.
+// at multiplier r and a valve of coefficient k (drop k q²): Newton's method
+// from the square law's answer, kept inside a bracket that bisection
+// narrows when a step leaves it.
 func branchFlow(c HedgeCase, r, k float64) float64 {
-	f := func(q float64) float64 { return r*c.Rest(q) + k*q*q - c.Diff }
-	lo, hi := 0.0, c.Target
-	for f(hi) < 0 && hi < 1e3*c.Target {
-		lo, hi = hi, 2*hi
-	}
-	for range 200 {
-		mid := (lo + hi) / 2
-		if f(mid) < 0 {
-			lo = mid
+	rest1, _ := c.Rest(c.Target)
+	q := c.Target * math.Sqrt(c.Diff/(r*rest1+k*c.Target*c.Target))
+	lo, hi := 0.0, math.Inf(1)
+	for range 100 {
+		d, slope := c.Rest(q)
+		f := r*d + k*q*q - c.Diff
+		if f < 0 {
+			lo = q
 		} else {
-			hi = mid
+			hi = q
 		}
-		if hi-lo <= 1e-12*c.Target {
+		if math.Abs(f) <= 1e-12*c.Diff {
 			break
 		}
+		next := q - f/(r*slope+2*k*q)
+		switch {
+		case next > lo && next < hi && !math.IsNaN(next):
+		case math.IsInf(hi, 1):
+			next = 2 * q
+		default:
+			next = (lo + hi) / 2
+		}
+		if math.Abs(next-q) <= 1e-13*q {
+			q = next
+			break
+		}
+		q = next
 	}
-	return (lo + hi) / 2
+	return q
 }
 
 // inBandProb is the probability that dev+e lies in [low, high] for e normal

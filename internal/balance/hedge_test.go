@@ -9,10 +9,28 @@ import (
 // quadCase is a branch whose fixed parts drop R q² (turbulent, fully rough:
 // the square law), so every flow has the closed form q = √(D/(rR + k)).
 func quadCase(R, D, target, open float64) HedgeCase {
-	return HedgeCase{Rest: func(q float64) float64 { return R * q * q }, Diff: D, Target: target, Open: open}
+	return HedgeCase{Rest: func(q float64) (float64, float64) { return R * q * q, 2 * R * q }, Diff: D, Target: target, Open: open}
 }
 
 func closedFlow(R, D, r, k float64) float64 { return math.Sqrt(D / (r*R + k)) }
+
+// TestBranchFlowLinearQuadratic checks the root-finder away from the square
+// law: fixed parts dropping a·q + b·q² (a laminar part in series with a
+// turbulent one) give (rb + k) q² + ra q - D = 0, solved by the quadratic
+// formula.
+func TestBranchFlowLinearQuadratic(t *testing.T) {
+	const a, b, D, target = 4e7, 5e9, 60e3, 2e-3
+	c := HedgeCase{Rest: func(q float64) (float64, float64) { return a*q + b*q*q, a + 2*b*q }, Diff: D, Target: target}
+	for _, r := range []float64{0.3, 1, 4} {
+		for _, k := range []float64{0, 1e9, 5e10} {
+			A, B := r*b+k, r*a
+			want := (-B + math.Sqrt(B*B+4*A*D)) / (2 * A)
+			if got := branchFlow(c, r, k); math.Abs(got/want-1) > 1e-10 {
+				t.Errorf("r %g k %g: flow %.12g, quadratic formula %.12g", r, k, got, want)
+			}
+		}
+	}
+}
 
 func TestBranchFlowClosedForm(t *testing.T) {
 	c := quadCase(2e9, 60e3, 1e-3, 1e3)

@@ -117,7 +117,7 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		}
 		openDrop, _ := open.Drop(bp.Target, m.Fluid)
 		res, err := balance.Hedge(balance.HedgeCase{
-			Rest:   func(q float64) float64 { d, _ := fixed.Drop(q, m.Fluid); return d },
+			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
 			Diff:   bp.BranchDiff,
 			Target: bp.Target,
 			Open:   openDrop,
