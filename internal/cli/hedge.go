@@ -3,6 +3,7 @@ package cli
 import (
 	"fmt"
 	"math"
+	"strings"
 
 	"flowset/internal/balance"
 	"flowset/internal/calibrate"
@@ -132,20 +133,30 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 	return out
 }
 
+// hedgeListed is the number of hedged branches the plan's warnings word one
+// by one; beyond it they are one warning naming them, each branch's
+// outcomes staying in its finding.
+const hedgeListed = 5
+
 // hedgeNotes words the hedged branches for the plan's warnings and sets
 // their findings' actions.
 func hedgeNotes(j *job, hs []hedged) []string {
-	var notes []string
+	var notes, ids []string
 	for _, h := range hs {
+		ids = append(ids, h.ID)
 		notes = append(notes, fmt.Sprintf("%s reads as %.2g times its design resistance through its own valve's test points alone, and test points reading %.0f %% low would read the same way (a %.0f %% chance against the restriction's %.0f %%): its setting is planned between the two, to give %.0f %% of target if the restriction is real and %.0f %% if the test points read low. Read its flow with a clamp-on meter and re-plan with that reading", h.ID, h.Fitted, 100*math.Abs(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
 		for k := range j.Findings {
 			f := &j.Findings[k]
 			if f.Branch == h.ID && (f.Code == diagnose.Restricted || f.Code == diagnose.CannotReachDesign) {
-				f.Action = "read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading low say the same; its setting is planned between the two until a second instrument tells"
+				f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading %.0f %% low say the same; its setting is planned between the two (%.0f %% of target if the restriction is real, %.0f %% if the test points read low) until a second instrument tells", 100*math.Abs(h.Low), 100*h.IfFault, 100*h.IfReadings)
 			}
 		}
 	}
-	return notes
+	if len(hs) <= hedgeListed {
+		return notes
+	}
+	named := strings.Join(ids[:hedgeListed], ", ")
+	return []string{fmt.Sprintf("%d branches (%s and %d more) read as restricted through their own valves' test points alone, which test points reading low would match as well: their settings are planned between the two explanations, and each one's finding says what it gets under either. Read their flows with a clamp-on meter and re-plan with those readings", len(hs), named, len(hs)-hedgeListed)}
 }
 
 func normalPDF(x, sd float64) float64 {
