@@ -324,6 +324,7 @@ func (j *job) fixes(u display) []report.Fix {
 		out = append(out, report.Fix{Where: where, Action: action})
 		return &out[len(out)-1]
 	}
+	savedAll := false
 	for _, f := range j.Findings {
 		switch f.Code {
 		case diagnose.Restricted:
@@ -338,8 +339,11 @@ func (j *job) fixes(u display) []report.Fix {
 				if i >= 0 {
 					fx.ReadAfter = fmt.Sprintf("before touching any balancing valve, read %s's flow: about %s once clean, against %s now", f.Branch, u.flow(r.Now.Flow(i)), u.flow(j.Before.Flow(i)))
 				}
-			} else if r := j.Remedy[""]; r != nil {
+			} else if r := j.Remedy[""]; r != nil && !savedAll {
+				// What the repairs save together is said once, on the
+				// first of them, not repeated on every one.
 				fx.Saves = "with every repair in this step: " + j.saving(r.Plan, u)
+				savedAll = true
 			}
 		case diagnose.CannotReachDesign:
 			if _, ok := idx[f.Branch]; !ok {
