@@ -204,7 +204,28 @@ func (j *job) trim(ctx context.Context, k int) error {
 			}
 		}
 	}
-	tp, err := balance.Trim(ctx, m, j.Params, j.Plan, m.States[k], opt)
+	// The plan's multipliers, but each fitted valve at the Kv the fit
+	// found it passing as left (a valve off its table or off its mark
+	// passes there what no single scale of its table gives at every
+	// setting).
+	p := j.Params.Clone()
+	if j.Cal != nil {
+		for i, b := range j.Cal.Branches {
+			mb := &m.Branches[i]
+			if !b.KvFitted || mb.Valve == nil || k >= len(b.Valve.Kv) {
+				continue
+			}
+			kv0, err := mb.Valve.KvAt(m.States[k].Settings[i])
+			if kv := b.Valve.Kv[k]; err == nil && kv0 > 0 && kv > 0 && !math.IsInf(kv, 0) {
+				p.KvScale[i] = kv / kv0
+			}
+			if b.Valve.Hypothesis == calibrate.SetElsewhere {
+				// Off its mark: where a new mark puts it is not known.
+				opt.Hold[i] = true
+			}
+		}
+	}
+	tp, err := balance.Trim(ctx, m, p, j.Plan, m.States[k], opt)
 	if err != nil {
 		return &dataError{fmt.Errorf("trim: %w", err)}
 	}
