@@ -29,9 +29,9 @@ func (j *job) rankOf() map[string]rankedRead {
 	return out
 }
 
-// minGain is the least risk a reading must remove (a thousandth of a branch
+// minGain is the least risk a reading must remove (a hundredth of a branch
 // expected outside the tolerance) to be ordered in the prove-it list.
-const minGain = 1e-3
+const minGain = 0.01
 
 type rankedRead struct {
 	Rank int
