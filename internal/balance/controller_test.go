@@ -20,7 +20,7 @@ import (
 // header and pump differentials, all
 // at the instruments' default uncertainties, with noise when noise is set;
 // the set point recorded is offset (a fraction) above the one it holds.
-func controlledSite(t *testing.T, seed int64, noise, offset float64) (*site.Site, *synth.Truth, int) {
+func controlledSite(t *testing.T, seed int64, noise, offset float64, senses string) (*site.Site, *synth.Truth, int) {
 	t.Helper()
 	ctx := context.Background()
 	spec := synth.Spec{Branches: 18, Arrangement: site.DirectReturn, Nested: true, Boundary: site.PumpCurve, Seed: seed,
@@ -45,11 +45,16 @@ func controlledSite(t *testing.T, seed int64, noise, offset float64) (*site.Site
 	if err != nil {
 		t.Fatal(err)
 	}
-	// The controller holds 70 % of what the riser sees as found; its valve
-	// wide open takes 15 % of it at the riser's flow: it holds.
+	// The controller holds 70 % of what the riser sees as found (50 % when
+	// it senses the branches alone); its valve wide open takes 15 % of it
+	// at the riser's flow: it holds.
 	d, q := before.BranchDiff(k), before.Flow(k)
 	kvs := 3600 * q / math.Sqrt(0.15*d/1e5)
-	s.Branches[k].Controller = site.Controller{SetPoint: 0.7 * d, Kvs: kvs}
+	set := 0.7 * d
+	if senses == site.SensesBranches {
+		set = 0.5 * d // the riser's own parts lie outside the span too
+	}
+	s.Branches[k].Controller = site.Controller{SetPoint: set, Kvs: kvs, Senses: senses}
 	sol, err := synth.Simulate(ctx, s, tr, found)
 	if err != nil {
 		t.Fatal(err)
@@ -110,9 +115,11 @@ func TestClosedLoopController(t *testing.T) {
 		noise  float64
 		ratio  float64 // tolerance on every fitted resistance ratio
 		offset float64 // of the recorded set point from the one held
-	}{{"noise-free", 41, 0, 0.02, 0}, {"noisy", 42, 1, 0.5, 0}, {"set point recorded 20 % high", 41, 0, 0.02, 0.2}} {
+		senses string
+	}{{"noise-free", 41, 0, 0.02, 0, ""}, {"noisy", 42, 1, 0.5, 0, ""}, {"set point recorded 20 % high", 41, 0, 0.02, 0.2, ""},
+		{"sensing the branches alone", 43, 1, 0.5, 0, site.SensesBranches}} {
 		t.Run(c.name, func(t *testing.T) {
-			s, tr, k := controlledSite(t, c.seed, c.noise, c.offset)
+			s, tr, k := controlledSite(t, c.seed, c.noise, c.offset, c.senses)
 			m, err := plant.New(s)
 			if err != nil {
 				t.Fatal(err)

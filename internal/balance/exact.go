@@ -187,13 +187,19 @@ func (e *exact) ladderNeed(ids []int) (float64, error) {
 				// throttles the rest: the set point is the least that
 				// serves the span's index (within the controller's range,
 				// the partner valve taking what a higher lowest set point
-				// adds), and the riser needs it plus the controller's
-				// wide-open drop.
-				e.spanLeast[i] = e.need[i]
+				// adds, or the branches' valves where the span is the
+				// branches alone), and the riser needs it plus the
+				// controller's wide-open drop (and its own parts where
+				// they lie outside the span).
+				outside := 0.0
+				if b.Controller.Below() {
+					outside = e.fixed[i] + e.open[i]
+				}
+				e.spanLeast[i] = e.need[i] - outside
 				lo, _ := b.Controller.Range()
-				e.setPoint[i] = max(e.need[i], lo)
+				e.setPoint[i] = max(e.spanLeast[i], lo)
 				e.ctrlOpen[i], _ = hydraulics.KvDrop(e.q[i], b.Controller.Kvs, e.f.Density)
-				e.need[i] = e.setPoint[i] + e.ctrlOpen[i]
+				e.need[i] = outside + e.setPoint[i] + e.ctrlOpen[i]
 			}
 		}
 		if !finite(e.need[i]) {
@@ -262,11 +268,20 @@ func (e *exact) assign(ids []int, d float64) error {
 		if b.Controlled() {
 			// The controller takes everything above its set point.
 			rest = e.setPoint[i] - e.fixed[i]
+			if b.Controller.Below() {
+				rest = e.setPoint[i] + e.open[i]
+			}
 		}
 		if b.Riser() {
 			sub := e.sub[i]
-			if b.Valve == nil {
+			if b.Valve == nil || b.Controlled() && b.Controller.Below() {
+				// The sub-ladder takes the rest: a riser without a valve,
+				// or a span of the branches alone (its partner valve
+				// fully open outside it).
 				sub = rest
+				if b.Valve != nil {
+					sub = rest - e.open[i]
+				}
 			}
 			if err := e.assign(b.Children, sub); err != nil {
 				return err

@@ -67,8 +67,12 @@ func printSummary(ios *IO, s *site.Site) {
 			if lo, hi := c.Range(); lo > 0 || !math.IsInf(hi, 1) {
 				rng = fmt.Sprintf("range %s-%s kPa", kpa(lo), kpa(hi))
 			}
-			fmt.Fprintf(w, "  differential controller on %s: holds %.1f kPa across its span (partner valve and every branch below), Kvs %.3g, %s\n",
-				site.Printable(b.ID), c.SetPoint/1e3, c.Kvs, rng)
+			span := "partner valve and every branch below"
+			if c.Below() {
+				span = "the branches below alone"
+			}
+			fmt.Fprintf(w, "  differential controller on %s: holds %.1f kPa across its span (%s), Kvs %.3g, %s\n",
+				site.Printable(b.ID), c.SetPoint/1e3, span, c.Kvs, rng)
 		}
 	}
 	if ids := s.Pumps(); len(ids) > 1 {

@@ -23,12 +23,13 @@ import (
 // the one the true plant holds.
 func writeControlledSite(t *testing.T, offset float64) (string, string) {
 	t.Helper()
-	return writeControlledSiteWith(t, offset, nil)
+	return writeControlledSiteWith(t, offset, "", nil)
 }
 
 // writeControlledSiteWith is writeControlledSite with edit applied to the
 // site (surveyed already) before it is written.
-func writeControlledSiteWith(t *testing.T, offset float64, edit func(s *site.Site, riser int)) (string, string) {
+// The controller senses as senses says (site.Controller.Senses).
+func writeControlledSiteWith(t *testing.T, offset float64, senses string, edit func(s *site.Site, riser int)) (string, string) {
 	t.Helper()
 	ctx := context.Background()
 	s, tr, err := synth.Generate(ctx, synth.Spec{Branches: 14, Arrangement: site.DirectReturn, Nested: true, Boundary: site.PumpCurve,
@@ -50,7 +51,11 @@ func writeControlledSiteWith(t *testing.T, offset float64, edit func(s *site.Sit
 		t.Fatal(err)
 	}
 	d, q := before.BranchDiff(k), before.Flow(k)
-	s.Branches[k].Controller = site.Controller{SetPoint: 0.7 * d, Kvs: 3600 * q / math.Sqrt(0.15*d/1e5), Min: 0.2 * d, Max: 2 * d}
+	set := 0.7 * d
+	if senses == site.SensesBranches {
+		set = 0.5 * d // the riser's own parts lie outside the span too
+	}
+	s.Branches[k].Controller = site.Controller{SetPoint: set, Kvs: 3600 * q / math.Sqrt(0.15*d/1e5), Min: 0.2 * d, Max: 2 * d, Senses: senses}
 	sol, err := synth.Simulate(ctx, s, tr, found)
 	if err != nil {
 		t.Fatal(err)

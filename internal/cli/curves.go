@@ -167,6 +167,13 @@ func computeCurves(ctx context.Context, m *plant.Model, st plant.State) (*curveS
 			continue
 		}
 		open, _ := hydraulics.KvDrop(c.Hold, c.Kvs, m.Fluid.Density)
+		if l := op.Built.Branch[m.Branches[i].ID]; l >= 0 && m.Branches[i].Controller.Below() {
+			// Its riser's own parts lie outside the span it holds.
+			for _, e := range op.Built.Net.Elements(l) {
+				d, _ := e.Drop(c.Hold, m.Fluid)
+				open += d
+			}
+		}
 		span, _ := op.ControlledDiff(i)
 		cs.Controllers = append(cs.Controllers, controllerCurve{ID: m.Branches[i].ID, SetPoint: c.SetPoint / 1000, Held: c.Hold * 1000,
 			Starts: (c.SetPoint + open) / 1000, Span: span / 1000, Holding: span >= c.SetPoint*(1-1e-3)})

@@ -9,8 +9,8 @@ import (
 
 // HeldFlow returns the flow a controlled riser's span passes at the
 // differential setPoint [Pa]: its own parts (the riser's Elements, with its
-// partner valve) in series with its sub-ladder, solved alone with setPoint
-// held across them. It is the Hold of the riser's hydraulics.DiffController
+// partner valve; not with ControlBelow) in series with its sub-ladder,
+// solved alone with setPoint held across them. It is the Hold of the riser's hydraulics.DiffController
 // (the span's flow does not depend on anything outside it while the
 // controller holds). Controllers inside the sub-ladder must already carry
 // their own Hold.
@@ -18,7 +18,11 @@ func HeldFlow(ctx context.Context, br Branch, setPoint float64, f fluid.State) (
 	if br.Sub == nil {
 		return 0, fmt.Errorf("held flow: branch %q has no sub-ladder: %w", br.ID, ErrInput)
 	}
-	b, err := Build(*br.Sub, Source{Differential: setPoint, Main: br.Elements}, f)
+	src := Source{Differential: setPoint, Main: br.Elements}
+	if br.ControlBelow {
+		src.Main = nil // the riser's own parts lie outside the span
+	}
+	b, err := Build(*br.Sub, src, f)
 	if err != nil {
 		return 0, fmt.Errorf("held flow of %q: %w", br.ID, err)
 	}

@@ -40,8 +40,33 @@ func TestControllerHoldsThenFalls(t *testing.T) {
 	}
 	riser.Control = hydraulics.DiffController{Kvs: kvs, SetPoint: set, Hold: hold}
 	corner := set * (1 + span*span/(kvs*kvs))
-	for _, p := range []float64{100e3, 60e3, 40e3, corner * 1.001, corner * 0.999, 30e3, 15e3, 5e3} {
-		t.Run(fmt.Sprintf("%.0f Pa", p), func(t *testing.T) {
+	checkHoldsThenFalls(t, riser, set, corner, func(p float64) float64 { return p * kvs * kvs / (kvs*kvs + span*span) })
+
+	// Sensing across the branches alone (Kv 5 in parallel): the partner
+	// valve Kv 5 lies outside the span with the controller's valve, so the
+	// span's share of P below the corner is (1/25)/(1/25 + 1/25 + 1/16).
+	below := riser
+	below.ControlBelow = true
+	hold, err = HeldFlow(context.Background(), below, set, kvWater)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := 5 * math.Sqrt(set/1e5) / 3600; relErr(hold, want) > 1e-9 {
+		t.Fatalf("held flow sensing the branches %.9g m3/s, want %.9g", hold, want)
+	}
+	below.Control = hydraulics.DiffController{Kvs: kvs, SetPoint: set, Hold: hold}
+	share := (1.0 / 25) / (1.0/25 + 1.0/25 + 1.0/16)
+	checkHoldsThenFalls(t, below, set, set/share, func(p float64) float64 { return p * share })
+}
+
+// checkHoldsThenFalls solves riser beside another branch at supply
+// differentials across its corner: above it the span reads set, below it
+// falls as fall(P).
+func checkHoldsThenFalls(t *testing.T, riser Branch, set, corner float64, fall func(float64) float64) {
+	t.Helper()
+	for _, f := range []float64{3, 1.7, 1.1, 1.001, 0.999, 0.85, 0.4, 0.15} {
+		p := f * corner
+		t.Run(fmt.Sprintf("below %v, %.0f Pa", riser.ControlBelow, p), func(t *testing.T) {
 			l := Ladder{Branches: []Branch{riser, {ID: "other", Elements: []Element{hydraulics.FixedKv{Kv: 6}}}}}
 			b, err := Build(l, Source{Differential: p}, kvWater)
 			if err != nil {
@@ -66,7 +91,7 @@ func TestControllerHoldsThenFalls(t *testing.T) {
 				}
 				return
 			}
-			want := p * kvs * kvs / (kvs*kvs + span*span)
+			want := fall(p)
 			if relErr(got, want) > 1e-7 {
 				t.Errorf("span reads %.9g Pa, want %.9g (wide open)", got, want)
 			}

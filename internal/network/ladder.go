@@ -64,6 +64,9 @@ type Branch struct {
 	// controlled node: the riser's own parts (its partner valve) and the
 	// sub-ladder. Nil: no controller.
 	Control hydraulics.Element
+	// ControlBelow makes the controller sense across the sub-ladder alone
+	// (from the riser top), its riser's own parts outside the span.
+	ControlBelow bool
 }
 
 // Ladder is a set of branches taking off a pair of headers, in take-off
@@ -117,18 +120,22 @@ type Built struct {
 	// the controller's link; the link's from node closes the span the
 	// controller holds (see Branch.Control). Nil when there is none.
 	Controller map[string]int
+	// senseFrom maps such a riser to the node its controller's span
+	// starts at.
+	senseFrom map[string]int
 }
 
 // ControlledDiff returns the differential across the span riser id's
-// controller holds in solution sol: from the riser's supply take-off to the
-// controller's inlet, Pa. ok is false when the riser has no controller.
+// controller holds in solution sol: from the riser's supply take-off (the
+// riser top with ControlBelow) to the controller's inlet, Pa. ok is false
+// when the riser has no controller.
 func (b *Built) ControlledDiff(id string, sol *Solution) (dp float64, ok bool) {
 	l, ok := b.Controller[id]
 	if !ok {
 		return 0, false
 	}
 	from, _ := b.Net.LinkEnds(l)
-	return sol.Pressure[b.SupplyNode[id]] - sol.Pressure[from], true
+	return sol.Pressure[b.senseFrom[id]] - sol.Pressure[from], true
 }
 
 // Node and link IDs made by Build.
@@ -367,9 +374,13 @@ func (b *builder) branch(br Branch, s, r int) error {
 		// The controller sits in the riser's return, after the sub-ladder.
 		in := b.net.addNode(br.ID + ".controlled")
 		if b.out.Controller == nil {
-			b.out.Controller = map[string]int{}
+			b.out.Controller, b.out.senseFrom = map[string]int{}, map[string]int{}
 		}
 		b.out.Controller[br.ID] = b.net.addLink(br.ID+".controller", in, r, []hydraulics.Element{br.Control})
+		b.out.senseFrom[br.ID] = s
+		if br.ControlBelow {
+			b.out.senseFrom[br.ID] = top
+		}
 		r = in
 	}
 	return b.ladder(br.Sub, top, r)

@@ -952,6 +952,7 @@ func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder,
 				}
 				nb.Sub = sub
 				if b.Controlled() {
+					nb.ControlBelow = b.Controller.Below()
 					c, err := m.controller(nb, m.HeldSetPoint(p, setPoints, i))
 					if err != nil {
 						return nil, err
@@ -1009,7 +1010,8 @@ func (m *Model) spanLadder(i int, p Params, settings, setPoints []float64) (netw
 
 // Span returns the network of the span riser i's controller holds, solved
 // alone at its set point: the riser's own parts as the main (link
-// network.MainID, absent when it has none) and its sub-ladder, link and
+// network.MainID, absent when it has none or they lie outside the span)
+// and its sub-ladder, link and
 // node IDs as in the whole network. Its source flow is the controller's
 // Hold; the calibration differentiates Hold through it.
 func (m *Model) Span(ctx context.Context, i int, p Params, settings, setPoints []float64) (*network.Built, *network.Solution, error) {
@@ -1021,7 +1023,11 @@ func (m *Model) Span(ctx context.Context, i int, p Params, settings, setPoints [
 		return nil, nil, err
 	}
 	br := l.Branches[0]
-	b, err := network.Build(*br.Sub, network.Source{Differential: m.HeldSetPoint(p, setPoints, i), Main: br.Elements}, m.Fluid)
+	src := network.Source{Differential: m.HeldSetPoint(p, setPoints, i), Main: br.Elements}
+	if br.ControlBelow {
+		src.Main = nil
+	}
+	b, err := network.Build(*br.Sub, src, m.Fluid)
 	if err != nil {
 		return nil, nil, err
 	}

@@ -177,7 +177,7 @@ var badCases = []badCase{
 	{name: "unknown column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],colour,pipe lenght\nA,0.5,21.6,10,red,1\nB,0.4,21.6,12,blue,1\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, note)",
+			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, controller senses, note)",
 			"branches.csv:1:6: warning: field \"pipe lenght\": unknown column, ignored (want \"pipe length\")",
 		}},
 	{name: "missing required column", files: map[string]string{"branches.csv": "id,pipe bore [mm],pipe length [m]\nA,21.6,10\nB,21.6,12\n"},

@@ -285,7 +285,8 @@ riser's supply, usually with a partner (measuring) valve on the supply.
 flowset takes the controller's valve to sit in the riser's return and its
 sensor to read from the riser's supply take-off to the controller, so the
 span it holds is the riser's own pipe and valve (the partner valve: the
-riser's valve column) and every branch that hangs from the riser.
+riser's valve column) and every branch that hangs from the riser; or, with
+controller senses = branches, the branches below alone.
 
 The controller throttles until the span reads its set point. When the riser
 gets less than the set point plus the drop of the controller's valve wide
@@ -296,9 +297,14 @@ Give the controller on the riser's row of the branches sheet:
   controller kvs               its valve's Kvs wide open (controller cvs: US Cv)
   controller min [kPa]         lowest set point it can be given (optional)
   controller max [kPa]         highest set point it can be given (optional)
+  controller senses            riser (the default: from the riser's supply
+                               take-off, its pipe and partner valve in the
+                               span) or branches (across the branches below
+                               alone, the riser's own parts outside it)
 Only a branch that other branches hang from can have one. Read the span with
-the quantity "controlled diff" at the riser (readings sheet): at the partner
-valve's supply tapping and the controller's sensing point on the return.
+the quantity "controlled diff" at the riser (readings sheet), across the
+points the controller's sensor reads: its sensing line's connection on the
+supply and the controller's inlet on the return.
 
 What flowset does with it:
   check   lists each controller with its set point, Kvs and range.

@@ -516,6 +516,7 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.Controller.Kvs = sr.numOr(r, "controller kvs", 0, &ok)
 		b.Controller.Min = sr.numOr(r, "controller min", 0, &ok)
 		b.Controller.Max = sr.numOr(r, "controller max", 0, &ok)
+		b.Controller.Senses = sr.word(r, "controller senses", &ok)
 		b.SupplyLength = sr.numOr(r, "supply length", 0, &ok)
 		b.ReturnLength = sr.numOr(r, "return length", 0, &ok)
 		b.HeaderStandard = sr.text(r, "header standard", &ok)
@@ -597,7 +598,7 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 // checkBranches checks that it sits on a riser.
 func checkController(sr *sheetReader, r row, b *Branch, p *Problems) {
 	c := b.Controller
-	given := c.Kvs > 0 || c.Min > 0 || c.Max > 0
+	given := c.Kvs > 0 || c.Min > 0 || c.Max > 0 || c.Senses != ""
 	switch {
 	case !c.Has() && given:
 		p.add(sr.ref(r, "controller set point").problem(SeverityError, ErrMissing, "controller columns given without its set point",

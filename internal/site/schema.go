@@ -193,6 +193,8 @@ var branchColumns = schema{name: "branches", columns: []column{
 		help: "lowest set point the controller can be given; blank = not known"},
 	{name: "controller max", typ: numCol, kind: units.Pressure, unit: "kPa", what: "pressure difference", lo: 0, hi: maxPressure,
 		help: "highest set point the controller can be given; blank = not known"},
+	{name: "controller senses", typ: wordCol, words: senseWords,
+		help: "riser (from the riser's supply take-off, its pipe and partner valve in the span; the default) or branches (across the branches below alone)"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 

@@ -189,7 +189,7 @@ type Branch struct {
 // group: its valve sits in the riser's return and it senses from the
 // riser's supply take-off to its own inlet, so the span it holds is the
 // riser's own parts (its partner valve, the branch's valve) and every
-// branch below. It throttles until the span reads SetPoint, and lies wide
+// branch below; or, with Senses SensesBranches, the branches below alone. It throttles until the span reads SetPoint, and lies wide
 // open (Kvs) when even so the span reads less.
 type Controller struct {
 	SetPoint float64 // Pa, as found; 0 = no controller
@@ -197,7 +197,24 @@ type Controller struct {
 	// Min and Max bound the set point the controller can be given, Pa; 0
 	// when not given.
 	Min, Max float64
+	// Senses is where its sensor reads from: SensesRiser ("" too) from the
+	// riser's supply take-off, its own pipe and partner valve in the span;
+	// SensesBranches across the branches below alone.
+	Senses string
 }
+
+// Where a differential controller senses from.
+const (
+	SensesRiser    = "riser"
+	SensesBranches = "branches"
+)
+
+// senseWords are the accepted values of the controller senses column.
+var senseWords = []string{SensesRiser, SensesBranches}
+
+// Below reports whether the controller senses across the branches below
+// alone (its riser's own parts outside the span it holds).
+func (c Controller) Below() bool { return c.Senses == SensesBranches }
 
 // Has reports whether there is a controller.
 func (c Controller) Has() bool { return c.SetPoint > 0 }

@@ -732,6 +732,7 @@ func TestRoundTripController(t *testing.T) {
 	}{
 		{"with range", Controller{SetPoint: 25e3, Kvs: 16, Min: 5e3, Max: 50e3}},
 		{"no range", Controller{SetPoint: 32.5e3, Kvs: 6.3}},
+		{"sensing the branches", Controller{SetPoint: 20e3, Kvs: 10, Senses: SensesBranches}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			want := readSmall(t)

@@ -140,6 +140,7 @@ func render(s *Site) []outSheet {
 			"valve": b.Valve, "setting": b.Setting, "control kvs": b.ControlKvs,
 			"controller set point": given(b.Controller.SetPoint), "controller kvs": given(b.Controller.Kvs),
 			"controller min": given(b.Controller.Min), "controller max": given(b.Controller.Max),
+			"controller senses": b.Controller.Senses,
 			"supply length": b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
 			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK,
 			"header roughness": given(b.HeaderRoughness), "supply k": b.SupplyK, "return k": b.ReturnK,
@@ -275,7 +276,7 @@ var legColumns = []string{"header roughness", "supply k", "return k", "return st
 
 // controllerColumns are the branches sheet's columns of a riser's
 // differential controller.
-var controllerColumns = []string{"controller set point", "controller kvs", "controller min", "controller max"}
+var controllerColumns = []string{"controller set point", "controller kvs", "controller min", "controller max", "controller senses"}
 
 // ownLegs reports whether b's header legs need the per-leg columns.
 func ownLegs(b Branch) bool {
