@@ -3,6 +3,7 @@ package cli
 import (
 	"fmt"
 	"io"
+	"regexp"
 	"strings"
 	"text/tabwriter"
 
@@ -137,8 +138,13 @@ func moved(t report.Table) int {
 
 // planNotes are the plan's own warnings the visit does not already say in
 // its steps (the saving of a repair is in step 2, shortfalls at the top).
+// On a large site the branches read as restricted only through their own
+// valves' test points (one warning each) are said in one line: how many,
+// the first few and where every one is.
 func (j *job) planNotes() []string {
 	var out []string
+	var unconfirmed []string
+	at := -1
 	for _, w := range j.Plan.Warnings {
 		// Said elsewhere in plain words: repairs in step 2, the pump's
 		// shortfall and its remedies at the top, the doubt below.
@@ -146,13 +152,34 @@ func (j *job) planNotes() []string {
 			strings.Contains(w, "more uncertain parameters") {
 			continue
 		}
+		if m := unconfirmedNote.FindStringSubmatch(w); m != nil {
+			if at < 0 {
+				at = len(out)
+			}
+			unconfirmed = append(unconfirmed, fmt.Sprintf("%s (%s times)", m[1], m[2]))
+		}
 		out = append(out, w)
+	}
+	if len(unconfirmed) > maxIDs {
+		grouped := fmt.Sprintf("%d branches read as well above their design resistance, but only through their own valves' test points: %s; each one's setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading (plan.json and --json list every one)", len(unconfirmed), joinIDs(unconfirmed))
+		kept := append([]string{}, out[:at]...)
+		kept = append(kept, grouped)
+		for _, w := range out[at:] {
+			if !unconfirmedNote.MatchString(w) {
+				kept = append(kept, w)
+			}
+		}
+		out = kept
 	}
 	if j.uncertainIndex() != "" {
 		out = append(out, j.uncertainIndex())
 	}
 	return out
 }
+
+// unconfirmedNote is the plan's warning on a branch read as restricted
+// only through its own valve's test points (runJob writes it).
+var unconfirmedNote = regexp.MustCompile(`^(\S+) reads as (\S+) times its design resistance, but only through its own valve's test points: `)
 
 // uncertainIndex says, in plain words, when the plan's pump differential
 // rests on a branch the survey pinned down poorly; "" otherwise.

@@ -3,14 +3,17 @@ package cli
 import (
 	"encoding/csv"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
 
+	"flowset/internal/balance"
 	"flowset/internal/hydraulics"
 )
 
@@ -353,5 +356,42 @@ func TestUnitsM3h(t *testing.T) {
 	flat := strings.Join(strings.Fields(stdout), " ")
 	if !strings.Contains(flat, "Flow (m3/h)") || !strings.Contains(flat, " 5.76 ") {
 		t.Errorf("plan --units si-m3h does not give AHU-1's 1.6 l/s as 5.76 m3/h:\n%s", stdout)
+	}
+}
+
+// TestPlanNotesGrouped: the plan's one-a-branch warnings on branches read
+// as restricted only through their own valves are one line on a large
+// site, and stay one a branch on a small one.
+func TestPlanNotesGrouped(t *testing.T) {
+	note := func(id string, r float64) string {
+		return fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, r)
+	}
+	for _, tc := range []struct {
+		name  string
+		n     int
+		lines int
+		want  string
+	}{
+		{"small site", 3, 5, "B2 reads as 2.5 times its design resistance"},
+		{"large site", 109, 3, "109 branches read as well above their design resistance, but only through their own valves' test points: B0 (2.5 times), B1 (2.5 times), B2 (2.5 times), B3 (2.5 times), B4 (2.5 times), B5 (2.5 times), B6 (2.5 times), B7 (2.5 times) and 101 more;"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			ws := []string{"design first: every other branch is set for its target"}
+			for i := range tc.n {
+				ws = append(ws, note(fmt.Sprintf("B%d", i), 2.5))
+			}
+			ws = append(ws, "the index circuit B9 is planned 1.5 % above its target")
+			j := &job{Plan: &balance.Plan{Warnings: ws, Least: 1, LeastHigh: math.NaN()}}
+			got := j.planNotes()
+			if len(got) != tc.lines {
+				t.Errorf("%d notes, want %d: %q", len(got), tc.lines, got)
+			}
+			if !slices.ContainsFunc(got, func(s string) bool { return strings.Contains(s, tc.want) }) {
+				t.Errorf("no note holds %q: %q", tc.want, got)
+			}
+			if got[0] != ws[0] || got[len(got)-1] != ws[len(ws)-1] {
+				t.Errorf("the other notes moved: %q", got)
+			}
+		})
 	}
 }
