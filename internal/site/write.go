@@ -141,7 +141,7 @@ func render(s *Site) []outSheet {
 			"controller set point": given(b.Controller.SetPoint), "controller kvs": given(b.Controller.Kvs),
 			"controller min": given(b.Controller.Min), "controller max": given(b.Controller.Max),
 			"controller senses": b.Controller.Senses,
-			"supply length": b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
+			"supply length":     b.SupplyLength, "return length": b.ReturnLength, "header standard": b.HeaderStandard,
 			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK,
 			"header roughness": given(b.HeaderRoughness), "supply k": b.SupplyK, "return k": b.ReturnK,
 			"return standard": b.ReturnStandard, "return size": b.ReturnSize, "return bore": given(b.ReturnBore),
