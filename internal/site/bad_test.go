@@ -442,6 +442,11 @@ var badCases = []badCase{
 		want: []string{
 			"valves.csv:2:1: field \"model\": value \"V15\": kvs given for a pressure-independent valve (want setting, max flow and hold diff (kv optional on each row))",
 		}},
+	{name: "pressure-independent kv falling", files: map[string]string{"valves.csv": "model,setting,max flow [l/s],kv,hold diff [kPa]\nV15,0.5,0.1,2,25\nV15,4,0.6,1.5,\n"},
+		cause: ErrRange,
+		want: []string{
+			"valves.csv:3:4: field \"kv\": value \"1.5\": kv falls as the setting rises (want a kv of at least 2 (line 2), or kv blank on every row)",
+		}},
 	{name: "table and characteristic", files: map[string]string{"valves.csv": "model,setting,kv,characteristic,kvs\nV15,0.5,0.2,,\nV15,4,2.1,,\nV15,,,linear,2.5\n"},
 		cause: ErrDuplicate,
 		want: []string{

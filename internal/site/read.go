@@ -973,6 +973,29 @@ func checkFlowTable(m *ValveModel, kvRows int, setRefs, kvRefs, mfRefs []cellRef
 		p.add(setRefs[len(setRefs)-1].problem(SeverityError, ErrRange, "setting above 100 %", "a setting from 0 to 100 %"))
 		ok = false
 	}
+	if ok && !math.IsNaN(m.HoldDiff) {
+		// The Kv below the hold differential must not fall as the
+		// setting rises: a blank is the Kv that passes the row's flow at
+		// the hold differential (IEC 60534-2-1 with water at its
+		// reference density: Kv = Q √(1 bar / Δp), Q in m3/h).
+		prev, prevLine := 0.0, 0
+		for i, kv := range m.Kv {
+			given := !math.IsNaN(kv)
+			if !given {
+				kv = m.MaxFlow[i] * 3600 * math.Sqrt(1e5/m.HoldDiff)
+			}
+			if kv < prev*(1-1e-9) {
+				ref, what := kvRefs[i], "kv falls as the setting rises"
+				if !given {
+					ref, what = mfRefs[i], fmt.Sprintf("the Kv this max flow gives at the hold diff (%s) is below line %d's kv", fmtNum(kv), prevLine)
+				}
+				p.add(ref.problem(SeverityError, ErrRange, what, fmt.Sprintf("a kv of at least %s (line %d), or kv blank on every row", fmtNum(prev), prevLine)))
+				ok = false
+				break
+			}
+			prev, prevLine = kv, setRefs[i].line
+		}
+	}
 	return ok
 }
 
