@@ -282,7 +282,8 @@ const maxIndexMargin = 0.015
 // branch whose estimated need is largest, so its estimate is as likely low
 // as high while a low one leaves it short; a margin of one standard
 // deviation keeps it in its band in most cases at a small cost in head.
-// Zero without a fit, for a short plan or a negligible spread.
+// Zero without a fit, for a short plan, a negligible spread or an index on a
+// pressure-independent valve.
 func indexMargin(j *job, plan *balance.Plan) (string, float64, float64) {
 	if j.Cal == nil || len(plan.Unmet) > 0 || !(plan.Least > 0) || !(plan.LeastHigh > plan.Least) || j.opts.Scale != 1 && j.opts.Scale != 0 {
 		return "", 0, 0
@@ -300,6 +301,14 @@ func indexMargin(j *job, plan *balance.Plan) (string, float64, float64) {
 	f := min(math.Sqrt(1+(plan.LeastHigh-plan.Least)/friction/2)-1, maxIndexMargin)
 	if f < 0.002 {
 		return "", 0, 0
+	}
+	if j.L != nil && j.L.Model != nil {
+		// A pressure-independent index already has its margin in
+		// differential (balance.HoldMargin); more flow would only make it
+		// hold more than its target.
+		if i, ok := j.L.Model.Index(plan.Index); ok && j.L.Model.Branches[i].PI != nil {
+			return "", 0, 0
+		}
 	}
 	for _, b := range plan.Branches {
 		if b.ID == plan.Index && b.Target > 0 {
