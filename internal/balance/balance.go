@@ -422,6 +422,18 @@ type BranchPlan struct {
 	// Authority is ValveDiff / BranchDiff (NaN without a valve).
 	Authority float64
 	Notes     []string
+	// Bypass is a three-port terminal's bypass valve model ("" for none)
+	// and BypassUnit its setting unit; BypassNow is its as-found setting,
+	// BypassNew the setting to set and BypassKv the Kv it needs: at the
+	// target flow the bypass valve drops what the coil drops, so full
+	// bypass passes the same flow as full coil flow (common practice, no
+	// source). BypassShort: even fully open it drops more (the bypass
+	// then passes less). BypassDiff is the bypass valve's drop at the
+	// target flow at BypassNew, Pa: its check reading at full bypass.
+	Bypass, BypassUnit             string
+	BypassNow, BypassNew, BypassKv float64
+	BypassDiff                     float64
+	BypassShort                    bool
 }
 
 // ControllerPlan is the plan for one riser's differential controller. The

@@ -113,6 +113,7 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 		}
 		pl.robust()
 	}
+	pl.bypasses()
 	pl.remedies()
 	pl.plan.Needs = make([]Need, len(m.Branches))
 	for i := range pl.plan.Needs {

@@ -43,6 +43,20 @@ func (p *Plan) Rows() (header []string, rows [][]string) {
 			row[15] = num(b.ValveDiff/1e3, "%.2f")
 		}
 		rows = append(rows, row)
+		if b.Bypass != "" {
+			// A three-port terminal's bypass valve, set with the
+			// three-port valve to full bypass; its check reading is its
+			// drop at the target flow.
+			note := "set with the three-port valve to full bypass: full bypass passes full coil flow"
+			if b.BypassShort {
+				note = "fully open, and still the bypass passes less than the coil"
+			}
+			rows = append(rows, []string{
+				"", b.ID + " bypass", b.Parent, basis, b.Bypass, b.BypassUnit, setting(b.BypassNow, b.BypassUnit), setting(b.BypassNew, b.BypassUnit),
+				num(b.BypassKv, "%.3g"), num(b.Target*1e3, "%.3f"), "", "", "", "", "",
+				num(b.BypassDiff/1e3, "%.2f"), "", "", note,
+			})
+		}
 		if c := p.Controller(b.ID); c != nil {
 			// The riser's differential controller: its set point is the
 			// setting, the span's differential the check reading.

@@ -48,6 +48,13 @@ func richSurvey(s *site.Site) {
 		read(s, st, site.AtHeader, site.HeaderDiff, "manometer", nan)
 		read(s, st, site.AtPump, site.PumpDiff, "manometer", nan)
 		read(s, st, site.AtPump, site.TotalFlow, "clamp-on", nan)
+		for i := range s.Readings {
+			// A three-port terminal read with its flow through the bypass
+			// in the second state.
+			if r := &s.Readings[i]; st == "after" && r.State == st && s.Branch(r.Where) != nil && s.Branch(r.Where).BypassValve != "" {
+				r.Bypass = true
+			}
+		}
 		if ids := s.Pumps(); len(ids) > 1 {
 			// Several pumps read one by one: P1's flow and P2's
 			// differential (its own head in series).
@@ -71,6 +78,7 @@ func richCases() []struct {
 		{"constant differential", plantSpec{branches: 4, arrangement: site.DirectReturn, constDiff: true, seed: 4}},
 		{"two pumps in parallel, read one by one", plantSpec{branches: 4, arrangement: site.DirectReturn, pumps: "parallel", seed: 5}},
 		{"two pumps in series, read one by one", plantSpec{branches: 4, arrangement: site.ReverseReturn, pumps: "series", seed: 6}},
+		{"three-port terminal read in both positions", plantSpec{branches: 4, arrangement: site.DirectReturn, bypass: true, seed: 7}},
 	}
 }
 

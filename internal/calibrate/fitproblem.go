@@ -299,11 +299,14 @@ func (p *problem) setElements(sn *stateNet, pp plant.Params) {
 		}
 		if l := sn.built.Branch[b.ID]; l >= 0 && (!ok || old.Resistance[i] != pp.Resistance[i] || old.KvScale[i] != pp.KvScale[i]) {
 			var es []hydraulics.Element
-			if f := p.m.FixedElement(i, pp.Resistance[i]); f != nil {
+			if f := p.m.FixedIn(i, pp.Resistance[i], sn.st); f != nil {
 				es = append(es, f)
 			}
 			if b.HasValve() {
 				es = append(es, sn.valveAt(p.m, i, pp.KvScale[i]))
+			}
+			if sn.st.Bypassed(i) {
+				es = append(es, p.m.BypassElement(i, b.BypassAsFound))
 			}
 			net.SetElements(l, es...)
 		}
@@ -633,10 +636,12 @@ func (p *problem) linearise(sn *stateNet) {
 		switch par.Kind {
 		case ResistanceParam:
 			i := par.Branch
-			if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
-				// d(drop)/d(ln R) of a Scaled element is its scaled drop.
-				dp, _ := p.m.FixedElement(i, sn.params.Resistance[i]).Drop(sol.Flow[l], p.m.Fluid)
-				d = append(d, term{l, dp})
+			if f := p.m.FixedIn(i, sn.params.Resistance[i], sn.st); f != nil {
+				if l := sn.built.Branch[p.m.Branches[i].ID]; l >= 0 {
+					// d(drop)/d(ln R) of a Scaled element is its scaled drop.
+					dp, _ := f.Drop(sol.Flow[l], p.m.Fluid)
+					d = append(d, term{l, dp})
+				}
 			}
 		case KvParam, StuckParam, OffsetParam:
 			i := par.Branch
@@ -928,7 +933,7 @@ func fillNaN(v []float64) {
 // newStateNet builds the network of state st at multipliers pp and the
 // index maps the predictions need.
 func newStateNet(m *plant.Model, st plant.State, pp plant.Params) (*stateNet, error) {
-	l, err := m.Ladder(pp, st.Settings, st.SetPoints)
+	l, err := m.LadderIn(pp, st)
 	if err != nil {
 		return nil, fmt.Errorf("state %q: %w", st.Label, err)
 	}

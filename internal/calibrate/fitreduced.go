@@ -129,7 +129,7 @@ func (p *problem) solveReduced(sn *stateNet, pp plant.Params) error {
 	th := sn.th
 	q, pr := th.q0, th.p0
 	if th.l >= 0 {
-		elems := p.m.Elements(th.br, pp, sn.st.Settings[th.br])
+		elems := p.m.ElementsIn(th.br, pp, sn.st)
 		drop := func(q float64) (dp, slope float64) {
 			for _, e := range elems {
 				d, s := e.Drop(q, p.m.Fluid)

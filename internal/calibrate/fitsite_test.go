@@ -27,7 +27,10 @@ type plantSpec struct {
 	// pumps splits the pump into two unequal ones, "parallel" or
 	// "series", whose combined curve passes near the one pump's duty.
 	pumps string
-	seed  uint64
+	// bypass makes branch b01 a three-port terminal (bypass valve V20 at
+	// 2.5 turns) read in its bypass position in the second state.
+	bypass bool
+	seed   uint64
 }
 
 // newPlantSite builds an invented site with every branch a pipe, fittings,
@@ -89,6 +92,9 @@ func newPlantSite(tb testing.TB, sp plantSpec) *site.Site {
 	}
 	if sp.pumps != "" {
 		splitPump(s, sp.pumps == "series")
+	}
+	if sp.bypass {
+		s.Branches[1].BypassValve, s.Branches[1].BypassSetting = testValve.Name, 2.5
 	}
 	return s
 }

@@ -115,6 +115,19 @@ type branchPlanJSON struct {
 	BranchDiff      num      `json:"branch_differential_pa"`
 	Authority       num      `json:"authority"`
 	Notes           []string `json:"notes"`
+	// Bypass is there for a three-port terminal only.
+	Bypass *bypassJSON `json:"bypass,omitempty"`
+}
+
+// bypassJSON is a three-port terminal's bypass valve in the plan.
+type bypassJSON struct {
+	Valve     string `json:"valve"`
+	Unit      string `json:"setting_unit"`
+	Current   num    `json:"as_found_setting"`
+	New       num    `json:"new_setting"`
+	Kv        num    `json:"kv_required"`
+	CheckDiff num    `json:"check_valve_differential_pa"`
+	Short     bool   `json:"fully_open_passes_less"`
 }
 
 type controllerJSON struct {
@@ -192,6 +205,10 @@ func (j *job) planOut(generated string) planJSON {
 			Predicted: num(b.Predicted), Percent: num(b.Percent), BandLow: num(b.BandLow), BandHigh: num(b.BandHigh),
 			InTolerance: b.InTolerance, BandInTolerance: b.BandInTolerance, ValveDiff: num(b.ValveDiff), BranchDiff: num(b.BranchDiff),
 			Authority: num(b.Authority), Notes: b.Notes})
+		if b.Bypass != "" {
+			out.Branches[len(out.Branches)-1].Bypass = &bypassJSON{Valve: b.Bypass, Unit: b.BypassUnit, Current: num(b.BypassNow),
+				New: num(b.BypassNew), Kv: num(b.BypassKv), CheckDiff: num(b.BypassDiff), Short: b.BypassShort}
+		}
 	}
 	for _, c := range p.Controllers {
 		out.Controllers = append(out.Controllers, controllerJSON{ID: c.ID, Current: num(c.Current), SetPoint: num(c.SetPoint), Least: num(c.Least),

@@ -96,3 +96,71 @@ func TestTwoPumpsLikeOne(t *testing.T) {
 		}
 	}
 }
+
+// TestThreePortSite runs the demo with its first air handler a three-port
+// terminal (bypass valve V40 at 4 turns) read through its bypass in the
+// survey's second state: check passes, the plan sets the bypass valve (a
+// row of its own, and the plan's JSON), and the fit uses the readings of
+// both positions.
+func TestThreePortSite(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.CopyFS(dir, os.DirFS(surveyDir("demo"))); err != nil {
+		t.Fatal(err)
+	}
+	edit := func(name string, f func(line string, k int) string) {
+		t.Helper()
+		path := filepath.Join(dir, name)
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		lines := strings.Split(strings.TrimRight(string(b), "\n"), "\n")
+		for k := range lines {
+			lines[k] = f(lines[k], k)
+		}
+		if err := os.WriteFile(path, []byte(strings.Join(lines, "\n")+"\n"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	edit("branches.csv", func(l string, k int) string {
+		switch {
+		case k == 0:
+			return l + ",bypass valve,bypass setting"
+		case strings.HasPrefix(l, "AHU-1,"):
+			return l + ",V40,4"
+		}
+		return l + ",,"
+	})
+	edit("readings.csv", func(l string, k int) string {
+		switch {
+		case k == 0:
+			return l + ",position"
+		case strings.HasPrefix(l, "after-change,AHU-1,"):
+			return l + ",bypass"
+		}
+		return l + ","
+	})
+	if code, out, errs := run(t, "check", dir); code != ExitOK {
+		t.Fatalf("check: exit %d: %s\n%s", code, errs, out)
+	}
+	code, out, errs := run(t, "plan", dir)
+	if code != ExitOK && code != ExitShort || !strings.Contains(out, "AHU-1 bypass") || !strings.Contains(out, "(full bypass = full coil flow)") {
+		t.Errorf("plan: exit %d, %s\n%s", code, errs, out)
+	}
+	code, out, errs = run(t, "plan", "--json", dir)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("plan --json: exit %d: %s", code, errs)
+	}
+	var v map[string]any
+	if err := json.Unmarshal([]byte(out), &v); err != nil {
+		t.Fatal(err)
+	}
+	b0 := v["branches"].([]any)[0].(map[string]any)
+	by, ok := b0["bypass"].(map[string]any)
+	if b0["branch"] != "AHU-1" || !ok || by["valve"] != "V40" || !(by["kv_required"].(float64) > 0) {
+		t.Errorf("first branch %v: want AHU-1 with its bypass V40 and a Kv", b0)
+	}
+	if b1 := v["branches"].([]any)[1].(map[string]any); b1["bypass"] != nil {
+		t.Errorf("second branch %v has a bypass", b1["branch"])
+	}
+}

@@ -596,6 +596,20 @@ func settingsTable(p *balance.Plan, u display, title string) report.Table {
 			check = u.diffNum(b.ValveDiff)
 		}
 		t.Rows = append(t.Rows, []string{fmt.Sprint(len(t.Rows) + 1), b.ID, b.Valve, now, set, check, u.flowNum(b.Target)})
+		if b.Bypass != "" {
+			// A three-port terminal's bypass valve, set with the
+			// three-port valve to full bypass; the check is its drop at
+			// the target flow.
+			set := withUnit(b.BypassNew, b.BypassUnit)
+			switch {
+			case b.BypassShort:
+				set += " (fully open; the bypass passes less)"
+			case finite(b.BypassNew):
+				set += " (full bypass = full coil flow)"
+			}
+			t.Rows = append(t.Rows, []string{fmt.Sprint(len(t.Rows) + 1), b.ID + " bypass", b.Bypass, withUnit(b.BypassNow, b.BypassUnit), set,
+				u.diffNum(b.BypassDiff), u.flowNum(b.Target)})
+		}
 		if c := p.Controller(b.ID); c != nil {
 			// Its set point; the check is the span's differential.
 			t.Rows = append(t.Rows, []string{fmt.Sprint(len(t.Rows) + 1), b.ID, balance.ControllerValve, u.diff(c.Current), "set point " + u.diff(c.SetPoint),

@@ -77,6 +77,15 @@ type Branch struct {
 	// Controller is a riser's differential controller as the sheets give
 	// it (the zero value: none); its set point is the as-found one.
 	Controller site.Controller
+	// Bypass is a three-port terminal's bypass valve (nil for none),
+	// BypassModel its model and BypassAsFound its setting (fully open when
+	// not recorded). BypassFixed are the parts that carry the flow through
+	// the bypass: Fixed without the terminal. The balancing valve carries
+	// it in both positions.
+	Bypass        hydraulics.Characteristic
+	BypassModel   *site.ValveModel
+	BypassAsFound float64
+	BypassFixed   []hydraulics.Element
 }
 
 // HasValve reports whether the branch has a valve with a setting: a
@@ -157,7 +166,10 @@ type State struct {
 	// SetPoints holds per branch the set point of its differential
 	// controller, Pa (NaN without one); nil means the as-found set points.
 	SetPoints []float64
-	Readings  []int // indices into Site.Readings
+	// Bypass marks per branch a three-port terminal whose flow went
+	// through its bypass in this state; nil: every one through its coil.
+	Bypass   []bool
+	Readings []int // indices into Site.Readings
 }
 
 // Index returns the index of the branch with the given ID.
@@ -508,6 +520,30 @@ func newBranch(s *site.Site, sb *site.Branch, valves map[string]*site.ValveModel
 	if sb.ControlKvs > 0 && !math.IsNaN(sb.ControlKvs) {
 		b.Fixed = append(b.Fixed, hydraulics.FixedKv{Kv: sb.ControlKvs})
 	}
+	if sb.BypassValve != "" {
+		vm, ok := valves[sb.BypassValve]
+		if !ok || vm.PressureIndependent() {
+			return b, where(fmt.Errorf("bypass valve model %q is not a regulating valve on the valves sheet: %w", sb.BypassValve, ErrModel))
+		}
+		c, ok := chars[vm]
+		if !ok {
+			var err error
+			if c, err = Characteristic(vm); err != nil {
+				return b, where(err)
+			}
+			chars[vm] = c
+		}
+		b.Bypass, b.BypassModel = c.(hydraulics.Characteristic), vm
+		_, b.BypassAsFound = b.Bypass.Range()
+		if !math.IsNaN(sb.BypassSetting) {
+			b.BypassAsFound = sb.BypassSetting
+		}
+		for _, e := range b.Fixed {
+			if _, coil := e.(hydraulics.Terminal); !coil {
+				b.BypassFixed = append(b.BypassFixed, e)
+			}
+		}
+	}
 	if sb.Valve != "" {
 		vm, ok := valves[sb.Valve]
 		if !ok {
@@ -740,6 +776,20 @@ func (m *Model) states() ([]State, error) {
 			set[i] = r.Setting
 			st.Settings[i] = r.Setting
 		}
+		for _, ri := range st.Readings {
+			r := s.Readings[ri]
+			i, ok := m.index[r.Where]
+			if !ok || !r.Bypass {
+				continue
+			}
+			if m.Branches[i].Bypass == nil {
+				return nil, fmt.Errorf("%s: reading taken in the bypass position at branch %q, which has no bypass valve: %w", r.Pos, r.Where, ErrModel)
+			}
+			if st.Bypass == nil {
+				st.Bypass = make([]bool, len(m.Branches))
+			}
+			st.Bypass[i] = true
+		}
 		if s.Boundary.Kind == site.MeasuredDiff {
 			d, err := m.measuredDiff(st)
 			if err != nil {
@@ -840,6 +890,62 @@ func (m *Model) FixedElement(i int, r float64) hydraulics.Element {
 	return hydraulics.Scaled{E: e, Factor: r}
 }
 
+// Bypassed reports whether branch i's flow goes through its three-port
+// bypass in state st.
+func (st State) Bypassed(i int) bool { return st.Bypass != nil && st.Bypass[i] }
+
+// FixedIn returns branch i's fixed parts scaled by r in state st: through
+// the coil (FixedElement) or, its three-port valve to bypass, the same
+// parts without the terminal. One multiplier scales the parts in either
+// position (an approximation: a fouled coil is seen in the bypass's pipe
+// too).
+func (m *Model) FixedIn(i int, r float64, st State) hydraulics.Element {
+	if !st.Bypassed(i) {
+		return m.FixedElement(i, r)
+	}
+	b := &m.Branches[i]
+	if len(b.BypassFixed) == 0 {
+		return nil
+	}
+	var e hydraulics.Element = hydraulics.Series(b.BypassFixed)
+	if len(b.BypassFixed) == 1 {
+		e = b.BypassFixed[0]
+	}
+	if r == 1 {
+		return e
+	}
+	return hydraulics.Scaled{E: e, Factor: r}
+}
+
+// BypassElement returns branch i's bypass valve at a setting, or nil
+// without one.
+func (m *Model) BypassElement(i int, setting float64) hydraulics.Element {
+	b := &m.Branches[i]
+	if b.Bypass == nil {
+		return nil
+	}
+	v, _ := hydraulics.NewValve(b.Bypass, setting, 1)
+	return v
+}
+
+// ElementsIn returns branch i's series parts for multipliers p in state st:
+// Elements, or with its three-port valve to bypass, its parts without the
+// terminal, its balancing valve and its bypass valve at its as-found
+// setting.
+func (m *Model) ElementsIn(i int, p Params, st State) []hydraulics.Element {
+	if !st.Bypassed(i) {
+		return m.Elements(i, p, st.Settings[i])
+	}
+	var e []hydraulics.Element
+	if f := m.FixedIn(i, p.Resistance[i], st); f != nil {
+		e = append(e, f)
+	}
+	if v := m.ValveElement(i, st.Settings[i], p.KvScale[i]); v != nil {
+		e = append(e, v)
+	}
+	return append(e, m.BypassElement(i, m.Branches[i].BypassAsFound))
+}
+
 // ValveElement returns branch i's balancing valve at a setting and Kv scale,
 // or nil when it has none. The valve works out its Kv once (an invalid one
 // is kept as it is, and its Drop gives NaN for the solver to report). A
@@ -934,6 +1040,15 @@ func (m *Model) HeldSetPoint(p Params, setPoints []float64, i int) float64 {
 // so each controlled riser's span is solved alone first, from the deepest
 // up (see hydraulics.DiffController).
 func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder, error) {
+	return m.ladder(p, State{Settings: settings, SetPoints: setPoints})
+}
+
+// LadderIn returns the network ladder for multipliers p in state st: its
+// settings, set points and three-port valves' positions.
+func (m *Model) LadderIn(p Params, st State) (network.Ladder, error) { return m.ladder(p, st) }
+
+func (m *Model) ladder(p Params, st State) (network.Ladder, error) {
+	setPoints := st.SetPoints
 	var build func(ids []int) (*network.Ladder, error)
 	build = func(ids []int) (*network.Ladder, error) {
 		l := &network.Ladder{Arrangement: m.Arrangement}
@@ -941,7 +1056,7 @@ func (m *Model) Ladder(p Params, settings, setPoints []float64) (network.Ladder,
 			b := &m.Branches[i]
 			nb := network.Branch{
 				ID:       b.ID,
-				Elements: m.Elements(i, p, settings[i]),
+				Elements: m.ElementsIn(i, p, st),
 				Supply:   scaleAll(b.Supply, p.Header),
 				Return:   scaleAll(b.Return, p.Header),
 			}
@@ -1144,7 +1259,7 @@ func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) 
 	if lift := m.Lift(); m.Pump == nil && !(st.Differential > lift) {
 		return nil, fmt.Errorf("state %q: the differential %.1f kPa does not exceed the static lift %.1f kPa, so no water reaches the outlet: %w", st.Label, st.Differential/1e3, lift/1e3, ErrModel)
 	}
-	l, err := m.Ladder(p, st.Settings, st.SetPoints)
+	l, err := m.LadderIn(p, st)
 	if err != nil {
 		return nil, err
 	}

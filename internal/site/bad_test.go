@@ -177,7 +177,7 @@ var badCases = []badCase{
 	{name: "unknown column", files: map[string]string{"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],colour,pipe lenght\nA,0.5,21.6,10,red,1\nB,0.4,21.6,12,blue,1\n"},
 		cause: ErrUnknown,
 		want: []string{
-			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, controller senses, note)",
+			"branches.csv:1:5: warning: field \"colour\": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, controller senses, bypass valve, bypass setting, note)",
 			"branches.csv:1:6: warning: field \"pipe lenght\": unknown column, ignored (want \"pipe length\")",
 		}},
 	{name: "missing required column", files: map[string]string{"branches.csv": "id,pipe bore [mm],pipe length [m]\nA,21.6,10\nB,21.6,12\n"},
@@ -801,6 +801,21 @@ var badCases = []badCase{
 		cause: ErrRange,
 		want: []string{
 			"pump.csv:2:3: warning: field \"speed\": value \"0.9\": speed ignored: the one pump runs at the site's speed (want a speed key in the site sheet (or a speed per state); a pump's own speed is for one of several pumps)",
+		}},
+	{name: "three-port terminal", files: map[string]string{
+		"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],terminal drop [kPa],valve,setting,bypass valve,bypass setting\nA,0.5,21.6,10,20,V15,2,V15,1\nB,0.4,21.6,12,20,V15,3,V15,\n",
+		"readings.csv": rdHead[:len(rdHead)-1] + ",position\n" + "as-found,A,flow,0.45,l/s,clamp-on,\nbypassed,A,flow,0.5,l/s,clamp-on,bypass\nbypassed,A,valve diff,9,kPa,manometer,Bypass\n"}},
+	{name: "three-port mistakes", files: map[string]string{
+		"branches.csv": "id,design flow [l/s],pipe bore [mm],pipe length [m],valve,setting,bypass valve,bypass setting\nA,0.5,21.6,10,V15,2,V51,1\nB,0.4,21.6,12,V15,3,,2\nC,0.4,21.6,12,V15,3,V15,9\n",
+		"readings.csv": rdHead[:len(rdHead)-1] + ",position\n" + "as-found,B,flow,0.45,l/s,clamp-on,bypass\nas-found,C,flow,0.5,l/s,clamp-on,bypass\nas-found,C,valve diff,9,kPa,manometer,coil\nas-found,pump,pump diff,9,kPa,gauge,bypass\n"},
+		cause: ErrReference,
+		want: []string{
+			"branches.csv:2:7: field \"bypass valve\": value \"V51\": valve model not defined (want a model defined in the valves sheet; did you mean \"V15\")",
+			"branches.csv:3:8: field \"bypass setting\": value \"2\": a bypass setting without a bypass valve (want a bypass valve model, or no bypass setting)",
+			"branches.csv:4:8: field \"bypass setting\": value \"9\": outside the range of valve \"V15\" (want a setting from 0.5 to 4 turns)",
+			"readings.csv:2:7: field \"position\": value \"bypass\": no bypass here (want a branch with a bypass valve (branches sheet), or coil)",
+			"readings.csv:4:7: field \"position\": value \"coil\": differs from the position on line 3 in the same state (want one position of the three-port valve per state (blank is coil); give each change its own state)",
+			"readings.csv:5:7: field \"position\": value \"bypass\": no bypass here (want coil or blank: a position belongs to a branch's three-port valve)",
 		}},
 	{name: "pump named as a branch", files: map[string]string{"pump.csv": strings.ReplaceAll(twoPumps, "P2", "B")},
 		cause: ErrDuplicate,

@@ -41,7 +41,7 @@ func ExampleProblems() {
 	fmt.Println(err != nil, len(problems.Errors()), "errors")
 	// Output:
 	// branches.csv:1:2: field "design flow": value "kPa": unit "kPa" is a pressure, not a flow (want a flow unit: l/s, m3/h, l/h or gpm)
-	// branches.csv:1:4: warning: field "colour": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, controller senses, note)
+	// branches.csv:1:4: warning: field "colour": unknown column, ignored (want one of: id, parent, design flow, pipe standard, pipe size, pipe bore, pipe length, roughness, fittings k, terminal drop, terminal flow, valve, setting, control kvs, supply length, return length, header standard, header size, header bore, header k, header roughness, supply k, return k, return standard, return size, return bore, return roughness, controller set point, controller kvs, controller min, controller max, controller senses, bypass valve, bypass setting, note)
 	// branches.csv:2:3: field "pipe length": value "-3": must not be negative (want a length of 0 or more)
 	// readings.csv:2:1: field "where": value "B": no branch has this id (want a branch id from the branches sheet, pump or header)
 	// true 3 errors

@@ -125,7 +125,21 @@ columns take the header's. In a reverse-return header the return leg runs
 from the first take-off onwards, so the first row's return leg is the return
 main from the last take-off back to the pump. A riser whose differential a
 controller holds gives it in the controller columns (flowset help
-controllers). Required.`,
+controllers). Required.
+
+A three-port terminal (a coil whose three-port valve sends the flow through
+the coil or past it through a bypass) names the bypass's own regulating
+valve in bypass valve, with its as-found bypass setting. The branch's pipe,
+fittings, control kvs (the three-port valve, the same Kvs both ways) and
+its regulating valve carry the flow in both positions; the terminal drop
+only through the coil, the bypass valve only through the bypass. Readings
+taken with the flow through the bypass say so in the readings sheet's
+position column; the fit uses both positions. The plan sets the bypass valve
+so that full bypass passes the same flow as full coil flow (common
+practice): at the target flow it drops what the coil drops. For example:
+
+  id,design flow [l/s],pipe standard,pipe size,pipe length [m],terminal drop [kPa],valve,setting,bypass valve,bypass setting
+  AHU-3,1.2,en10255-m,DN40,18,25,V25,3.5,V25,4`,
 	"valves": `The valves sheet defines the regulating valve models the branches name,
 one row per point of each model's Kv table ("long" format): settings must
 rise down the table and Kv must rise with them. A valve without a table is

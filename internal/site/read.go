@@ -481,6 +481,7 @@ func wholeCount(ref cellRef, v float64, p *Problems) (int, bool) {
 // branchRefs keeps where a branch's references were written.
 type branchRefs struct {
 	id, parent, valve, setting, supply, controller cellRef
+	bypass, bypassSetting                          cellRef
 }
 
 func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
@@ -517,6 +518,8 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.Controller.Min = sr.numOr(r, "controller min", 0, &ok)
 		b.Controller.Max = sr.numOr(r, "controller max", 0, &ok)
 		b.Controller.Senses = sr.word(r, "controller senses", &ok)
+		b.BypassValve = sr.text(r, "bypass valve", &ok)
+		b.BypassSetting, _ = sr.num(r, "bypass setting")
 		b.SupplyLength = sr.numOr(r, "supply length", 0, &ok)
 		b.ReturnLength = sr.numOr(r, "return length", 0, &ok)
 		b.HeaderStandard = sr.text(r, "header standard", &ok)
@@ -533,7 +536,8 @@ func readBranches(t *table, p *Problems) ([]Branch, []branchRefs) {
 		b.ReturnRoughness, _ = sr.num(r, "return roughness")
 		b.Note = sr.text(r, "note", &ok)
 		ref := branchRefs{id: sr.ref(r, "id"), parent: sr.ref(r, "parent"), valve: sr.ref(r, "valve"),
-			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length"), controller: sr.ref(r, "controller set point")}
+			setting: sr.ref(r, "setting"), supply: sr.ref(r, "supply length"), controller: sr.ref(r, "controller set point"),
+			bypass: sr.ref(r, "bypass valve"), bypassSetting: sr.ref(r, "bypass setting")}
 		switch {
 		case !sr.has("id") || !idOK:
 			continue
@@ -698,6 +702,40 @@ func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 	var names []string
 	for _, v := range s.Valves {
 		names = append(names, v.Name)
+	}
+	for i, b := range s.Branches {
+		if b.BypassValve == "" {
+			if !math.IsNaN(b.BypassSetting) && b.BypassSetting != 0 {
+				p.add(refs[i].bypassSetting.problem(SeverityError, ErrMissing, "a bypass setting without a bypass valve", "a bypass valve model, or no bypass setting"))
+			}
+			continue
+		}
+		if len(hasChildOf(s, i)) > 0 {
+			p.add(refs[i].bypass.problem(SeverityError, ErrRange, "a bypass on a riser", "a three-port bypass only on a terminal branch"))
+			continue
+		}
+		if valves.present && !valves.usable {
+			continue
+		}
+		v := s.Valve(b.BypassValve)
+		if v == nil {
+			want := refWant("a model defined in the valves sheet", b.BypassValve, names)
+			if !valves.present {
+				want = "a valves sheet defining this model"
+			}
+			p.add(refs[i].bypass.problem(SeverityError, ErrReference, "valve model not defined", want))
+			continue
+		}
+		if v.PressureIndependent() {
+			p.add(refs[i].bypass.problem(SeverityError, ErrRange, "a pressure-independent valve in a bypass", "a regulating valve with a Kv table or characteristic"))
+			continue
+		}
+		if !valves.check(v.Name) {
+			continue
+		}
+		if e := checkSetting(v, b.BypassSetting, refs[i].bypassSetting); e != nil {
+			p.add(e)
+		}
 	}
 	for i, b := range s.Branches {
 		if b.Valve == "" || valves.present && !valves.usable {
@@ -1196,6 +1234,11 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 		line    int
 	}
 	settings := map[[2]string]moved{} // state, branch -> the setting first given
+	type position struct {
+		bypass bool
+		line   int
+	}
+	positions := map[[2]string]position{} // state, three-port branch -> its position first given
 	// The ids of several pumps, folded as ids are, which a reading may
 	// name for one pump's differential, flow or speed.
 	pumpIDs := map[string]string{}
@@ -1219,6 +1262,7 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 			rd.What = Quantity(slices.Index(quantityWords, w))
 		}
 		rd.Instrument = sr.word(r, "instrument", &ok)
+		rd.Bypass = sr.word(r, "position", &ok) == "bypass"
 		rd.Time = sr.text(r, "time", &ok)
 		rd.Note = sr.text(r, "note", &ok)
 		set, good := sr.num(r, "setting")
@@ -1291,6 +1335,25 @@ func readReadings(t *table, s *Site, haveBranches bool, valves valveCheck, p *Pr
 				p.add(sr.ref(r, "instrument").problem(SeverityError, ErrRange, fmt.Sprintf("valve %q has no kv table to read flow from", valve.Name),
 					"a valve with a kv table, or another instrument"))
 				continue
+			}
+		}
+		if rd.Bypass && (br == nil || br.BypassValve == "") {
+			want := "a branch with a bypass valve (branches sheet), or coil"
+			if br == nil {
+				want = "coil or blank: a position belongs to a branch's three-port valve"
+			}
+			p.add(sr.ref(r, "position").problem(SeverityError, ErrRange, "no bypass here", want))
+			continue
+		}
+		if br != nil && br.BypassValve != "" {
+			k := [2]string{rd.State, rd.Where}
+			if m, seen := positions[k]; seen && m.bypass != rd.Bypass {
+				p.add(sr.ref(r, "position").problem(SeverityError, ErrRange,
+					fmt.Sprintf("differs from the position on line %d in the same state", m.line),
+					"one position of the three-port valve per state (blank is coil); give each change its own state"))
+				continue
+			} else if !seen {
+				positions[k] = position{rd.Bypass, r.line}
 			}
 		}
 		if !math.IsNaN(rd.Setting) {
@@ -1379,6 +1442,17 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 			st.SetPoint = nan
 		}
 		out = append(out, st)
+	}
+	return out
+}
+
+// hasChildOf returns the indices of the branches hanging from branch i.
+func hasChildOf(s *Site, i int) []int {
+	var out []int
+	for j, b := range s.Branches {
+		if b.Parent != "" && b.Parent == s.Branches[i].ID {
+			out = append(out, j)
+		}
 	}
 	return out
 }

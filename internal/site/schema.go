@@ -134,6 +134,9 @@ var siteKeys = schema{name: "site", columns: []column{
 		help: "units of the results: si (l/s, kPa, Kv, degC), si-m3h (m3/h, kPa, Kv, degC) or us (gpm, psi, Cv, degF); default si; --units overrides"},
 }}
 
+// positionWords are the positions of a three-port terminal's valve.
+var positionWords = []string{"coil", "bypass"}
+
 // pumpArrangementWords are the accepted values of the site's "pump
 // arrangement" key.
 var pumpArrangementWords = []string{"parallel", "series"}
@@ -195,6 +198,9 @@ var branchColumns = schema{name: "branches", columns: []column{
 		help: "highest set point the controller can be given; blank = not known"},
 	{name: "controller senses", typ: wordCol, words: senseWords,
 		help: "riser (from the riser's supply take-off, its pipe and partner valve in the span; the default) or branches (across the branches below alone)"},
+	{name: "bypass valve", typ: textCol,
+		help: "a three-port terminal: the regulating valve model (valves sheet) in its bypass, which the three-port valve sends the flow through instead of the terminal; blank = none; see flowset help branches"},
+	{name: "bypass setting", typ: numCol, what: "setting", lo: 0, hi: maxSetting, help: "as-found setting of the bypass valve in its own units; blank = fully open"},
 	{name: "note", typ: textCol, help: "free text"},
 }}
 
@@ -242,6 +248,8 @@ var readingColumns = schema{name: "readings", columns: []column{
 	{name: "uncertainty", typ: textCol, help: "expanded uncertainty, e.g. 5 % or 0.2 in the row's unit; default by instrument"},
 	{name: "k", aliases: []string{"coverage", "coverage factor"}, typ: numCol, what: "coverage factor", lo: 0.5, hi: 10,
 		help: "coverage factor of the uncertainty; default 2 (about 95 %)"},
+	{name: "position", typ: wordCol, words: positionWords,
+		help: "a three-port terminal's valve when read: coil (through the terminal) or bypass; blank = coil"},
 	{name: "time", typ: textCol, help: "when it was read, free text"},
 	{name: "note", typ: textCol, help: "free text"},
 }}

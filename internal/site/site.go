@@ -164,6 +164,14 @@ type Branch struct {
 	// across this riser's sub-circuit; the zero Controller is none.
 	Controller Controller
 
+	// BypassValve names the regulating valve model in the bypass of a
+	// three-port terminal ("" for none): the three-port valve sends the
+	// branch's flow through the terminal (coil) or through the bypass,
+	// past the terminal and this valve. BypassSetting is its as-found
+	// setting; NaN when not recorded (fully open).
+	BypassValve   string
+	BypassSetting float64
+
 	// The header segment between the previous take-off and this one. The
 	// header columns describe both legs; the return columns, where given,
 	// the return leg alone (see ReturnLeg).
@@ -417,7 +425,10 @@ type Reading struct {
 	Value float64 // SI: m3/s or Pa
 	// Setting is the valve setting at the time; NaN when not given, then
 	// the branch's as-found setting applies.
-	Setting    float64
+	Setting float64
+	// Bypass is set when the reading was taken with the branch's
+	// three-port valve sending its flow through the bypass.
+	Bypass     bool
 	Instrument string  // instrument kind, see Instruments
 	Sigma      float64 // standard uncertainty, SI
 	Time, Note string

@@ -881,3 +881,33 @@ func TestPressureIndependentTopic(t *testing.T) {
 		t.Errorf("PI15 = %+v, want a pressure-independent valve holding from 20 kPa", v)
 	}
 }
+
+// TestRoundTripBypass: a three-port terminal's bypass valve and setting, and
+// readings taken in the bypass position, read back as written.
+func TestRoundTripBypass(t *testing.T) {
+	want := readSmall(t)
+	k := slices.IndexFunc(want.Branches, func(b Branch) bool { return b.Valve != "" && !math.IsNaN(b.Setting) })
+	b := &want.Branches[k]
+	b.BypassValve, b.BypassSetting = b.Valve, b.Setting
+	n := 0
+	for i := range want.Readings {
+		if r := &want.Readings[i]; r.Where == b.ID && r.State == "after-change" {
+			r.Bypass = true
+			n++
+		}
+	}
+	if n == 0 {
+		t.Fatalf("no reading of %s after the change", b.ID)
+	}
+	fsys := fstest.MapFS{}
+	if err := WriteDir(want, mapCreate(fsys)); err != nil {
+		t.Fatalf("WriteDir: %v", err)
+	}
+	got, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("ReadDir after WriteDir: %v\n%v", err, p)
+	}
+	if diff := cmp.Diff(want, got, ignoreLines); diff != "" {
+		t.Errorf("round trip (-before +after):\n%s", diff)
+	}
+}

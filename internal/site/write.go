@@ -145,8 +145,13 @@ func render(s *Site) []outSheet {
 			"header size": b.HeaderSize, "header bore": b.HeaderBore, "header k": b.HeaderK,
 			"header roughness": given(b.HeaderRoughness), "supply k": b.SupplyK, "return k": b.ReturnK,
 			"return standard": b.ReturnStandard, "return size": b.ReturnSize, "return bore": given(b.ReturnBore),
-			"return roughness": given(b.ReturnRoughness), "note": b.Note,
+			"return roughness": given(b.ReturnRoughness), "bypass valve": b.BypassValve, "bypass setting": bypassSetting(b),
+			"note": b.Note,
 		}))
+	}
+	if !slices.ContainsFunc(s.Branches, func(b Branch) bool { return b.BypassValve != "" }) {
+		// The three-port columns only where a branch has a bypass.
+		br = dropColumns(br, []string{"bypass valve", "bypass setting"})
 	}
 
 	if !slices.ContainsFunc(s.Branches, ownLegs) {
@@ -218,8 +223,11 @@ func render(s *Site) []outSheet {
 		rd.rows = append(rd.rows, cellsOf(&readingColumns, map[string]any{
 			"state": r.State, "where": r.Where, "quantity": r.What.String(), "value": u.FromSI(r.Value), "unit": u.Symbol,
 			"setting": r.Setting, "instrument": r.Instrument, "uncertainty": fmtFloat(u.FromSI(r.Sigma * defaultCoverage)),
-			"k": defaultCoverage, "time": r.Time, "note": r.Note,
+			"k": defaultCoverage, "time": r.Time, "note": r.Note, "position": positionWord(r.Bypass),
 		}))
+	}
+	if !slices.ContainsFunc(s.Readings, func(r Reading) bool { return r.Bypass }) {
+		rd = dropColumns(rd, []string{"position"})
 	}
 	out := []outSheet{site, br, va, pu, rd}
 	if s.States != nil {
@@ -261,6 +269,22 @@ func render(s *Site) []outSheet {
 		out = slices.DeleteFunc(out, func(o outSheet) bool { return o.name == pumpColumns.name })
 	}
 	return out
+}
+
+// bypassSetting is b's bypass setting as a cell: blank without a bypass.
+func bypassSetting(b Branch) float64 {
+	if b.BypassValve == "" {
+		return nan
+	}
+	return b.BypassSetting
+}
+
+// positionWord is a reading's position cell: bypass, or blank for coil.
+func positionWord(bypass bool) string {
+	if bypass {
+		return "bypass"
+	}
+	return ""
 }
 
 // count is a count of pumps as a cell: blank for 0 (not given).
