@@ -514,18 +514,39 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		folded()
 	}
 	now := rp.Risk
+	// Lazy greedy (Minoux, "Accelerated greedy algorithms for maximizing
+	// submodular set functions", 1978): a reading lowers the variances the
+	// others would lower, so what a candidate removed last round bounds
+	// what it removes now; each round re-scores candidates from the highest
+	// bound down and stops once the best fresh score is above every bound
+	// left. The full greedy scored every candidate every round, on 500
+	// branches 2 s of a 2.5 s run.
+	bound := make([]float64, len(cands))
+	for ci := range bound {
+		bound[ci] = math.Inf(1)
+	}
+	order := make([]int, len(cands))
+	for ci := range order {
+		order[ci] = ci
+	}
 	for o.Max == 0 || len(rp.Readings) < o.Max {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
+		sort.SliceStable(order, func(a, b int) bool { return bound[order[a]] > bound[order[b]] })
 		best, bestScore, bestRisk := -1, 0.0, now
-		for ci := range cands {
+		for _, ci := range order {
 			c := &cands[ci]
 			if c.done {
 				continue
 			}
+			if best >= 0 && bestScore >= bound[ci] {
+				break
+			}
 			r := after(c)
-			if sc := (now - r) / c.cost; sc > bestScore {
+			sc := (now - r) / c.cost
+			bound[ci] = sc
+			if sc > bestScore {
 				best, bestScore, bestRisk = ci, sc, r
 			}
 		}
