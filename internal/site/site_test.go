@@ -911,3 +911,35 @@ func TestRoundTripBypass(t *testing.T) {
 		t.Errorf("round trip (-before +after):\n%s", diff)
 	}
 }
+
+// TestThreePortExample reads the three-port example of the branches topic
+// (its indented lines) with the other sheets' examples: AHU-3 has its
+// bypass valve V25 at 4 turns, and a reading taken through its bypass is
+// accepted.
+func TestThreePortExample(t *testing.T) {
+	var lines []string
+	for _, line := range strings.Split(sheetIntro["branches"], "\n") {
+		if strings.HasPrefix(line, "  ") {
+			lines = append(lines, strings.TrimSpace(line))
+		}
+	}
+	if len(lines) != 2 {
+		t.Fatalf("branches topic example: %d lines, want a header and a row", len(lines))
+	}
+	fsys := fstest.MapFS{}
+	for name, text := range examples {
+		fsys[name+".csv"] = &fstest.MapFile{Data: []byte(text)}
+	}
+	fsys["branches.csv"] = &fstest.MapFile{Data: []byte(strings.Join(lines, "\n") + "\n")}
+	fsys["readings.csv"] = &fstest.MapFile{Data: []byte("state,where,quantity,value,unit,instrument,position\nas-found,AHU-3,flow,1.1,l/s,clamp-on,\nbypassed,AHU-3,flow,1.3,l/s,clamp-on,bypass\n")}
+	delete(fsys, "states.csv")
+	delete(fsys, "targets.csv")
+	s, p, err := ReadDir(fsys, ".")
+	if err != nil || len(p) > 0 {
+		t.Fatalf("the three-port example does not read cleanly: %v\n%v", err, p)
+	}
+	b := s.Branch("AHU-3")
+	if b == nil || b.BypassValve != "V25" || b.BypassSetting != 4 || !s.Readings[1].Bypass || s.Readings[0].Bypass {
+		t.Errorf("AHU-3 = %+v, readings %+v", b, s.Readings)
+	}
+}
