@@ -270,7 +270,7 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 			// A controller's element holds its span's flow at the set
 			// point, which the span's settings change.
 			for i := range m.Branches {
-				c, ok, err := m.Controller(i, p, st.Settings, st.SetPoints)
+				c, ok, err := m.ControllerIn(i, p, st)
 				if err != nil {
 					return nil, fmt.Errorf("%w: %w", ErrSolve, err)
 				}

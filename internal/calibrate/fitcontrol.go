@@ -26,7 +26,7 @@ import (
 // network.
 func (p *problem) setControllers(sn *stateNet, pp plant.Params) {
 	for _, i := range p.controlled() {
-		c, _, err := p.m.Controller(i, pp, sn.st.Settings, sn.st.SetPoints)
+		c, _, err := p.m.ControllerIn(i, pp, sn.st)
 		if err != nil {
 			// Keep the last element; the solve that follows reports
 			// trouble, and a span that cannot be solved alone at its set
@@ -95,7 +95,7 @@ func (p *problem) controllerTerms(sn *stateNet) {
 // holdGradient returns ∂Hold/∂(drop of each link) of riser i's span solved
 // alone, and the map from the state network's links to the span's.
 func (p *problem) holdGradient(sn *stateNet, i int) ([]float64, map[int]int, error) {
-	b, sol, err := p.m.Span(p.ctx, i, sn.params, sn.st.Settings, sn.st.SetPoints)
+	b, sol, err := p.m.Span(p.ctx, i, sn.params, sn.st)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -158,7 +158,7 @@ func (p *problem) setPointTerm(sn *stateNet, i int) []term {
 			}
 		}
 		pp.SetPoint[i] *= f
-		e, _, err := p.m.Controller(i, pp, sn.st.Settings, sn.st.SetPoints)
+		e, _, err := p.m.ControllerIn(i, pp, sn.st)
 		if err != nil {
 			return math.NaN()
 		}

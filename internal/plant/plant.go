@@ -1105,10 +1105,16 @@ func (m *Model) controller(nb network.Branch, sp float64) (hydraulics.DiffContro
 // multipliers p, settings and set points (nil: as found); ok is false
 // without a controller.
 func (m *Model) Controller(i int, p Params, settings, setPoints []float64) (c hydraulics.DiffController, ok bool, err error) {
+	return m.ControllerIn(i, p, State{Settings: settings, SetPoints: setPoints})
+}
+
+// ControllerIn is Controller in state st (its settings, set points and
+// three-port valves' positions).
+func (m *Model) ControllerIn(i int, p Params, st State) (c hydraulics.DiffController, ok bool, err error) {
 	if !m.Branches[i].Controlled() {
 		return c, false, nil
 	}
-	l, err := m.spanLadder(i, p, settings, setPoints)
+	l, err := m.spanLadder(i, p, st)
 	if err != nil {
 		return c, true, err
 	}
@@ -1116,29 +1122,30 @@ func (m *Model) Controller(i int, p Params, settings, setPoints []float64) (c hy
 	return c, true, nil
 }
 
-// spanLadder returns the ladder of riser i alone (its controllers built).
-func (m *Model) spanLadder(i int, p Params, settings, setPoints []float64) (network.Ladder, error) {
+// spanLadder returns the ladder of riser i alone in state st (its
+// controllers built).
+func (m *Model) spanLadder(i int, p Params, st State) (network.Ladder, error) {
 	m2 := *m
 	m2.top = []int{i}
-	return m2.Ladder(p, settings, setPoints)
+	return m2.LadderIn(p, st)
 }
 
-// Span returns the network of the span riser i's controller holds, solved
-// alone at its set point: the riser's own parts as the main (link
+// Span returns the network of the span riser i's controller holds in state
+// st, solved alone at its set point: the riser's own parts as the main (link
 // network.MainID, absent when it has none or they lie outside the span)
 // and its sub-ladder, link and
 // node IDs as in the whole network. Its source flow is the controller's
 // Hold; the calibration differentiates Hold through it.
-func (m *Model) Span(ctx context.Context, i int, p Params, settings, setPoints []float64) (*network.Built, *network.Solution, error) {
+func (m *Model) Span(ctx context.Context, i int, p Params, st State) (*network.Built, *network.Solution, error) {
 	if !m.Branches[i].Controlled() {
 		return nil, nil, fmt.Errorf("branch %q has no differential controller: %w", m.Branches[i].ID, ErrModel)
 	}
-	l, err := m.spanLadder(i, p, settings, setPoints)
+	l, err := m.spanLadder(i, p, st)
 	if err != nil {
 		return nil, nil, err
 	}
 	br := l.Branches[0]
-	src := network.Source{Differential: m.HeldSetPoint(p, setPoints, i), Main: br.Elements}
+	src := network.Source{Differential: m.HeldSetPoint(p, st.SetPoints, i), Main: br.Elements}
 	if br.ControlBelow {
 		src.Main = nil
 	}
