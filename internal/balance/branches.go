@@ -163,6 +163,8 @@ func (pl *planner) shortfalls() {
 	m, run := pl.m, pl.run
 	atMax := pl.short || pl.capped && finite(pl.plan.Pump.NeededSpeed) && pl.plan.Pump.NeededSpeed > pl.plan.Pump.MaxSpeed*(1+1e-9)
 	var rounding int
+	var byID map[string]int // remedies by branch, made on the first shortfall
+	var pump int
 	for _, bp := range pl.plan.Branches {
 		if bp.InTolerance {
 			continue
@@ -186,7 +188,10 @@ func (pl *planner) shortfalls() {
 			continue
 		}
 		sf := Shortfall{ID: bp.ID, Target: bp.Target, Predicted: bp.Predicted, Percent: bp.Percent, Reason: reason, Needs: pl.chain[i], Saves: math.NaN(), AnnualEnergy: math.NaN()}
-		if r := pl.remedyFor(i); r != nil {
+		if byID == nil {
+			byID, pump = pl.remedyIndex()
+		}
+		if r := pl.remedyFor(i, byID, pump); r != nil {
 			sf.Remedy, sf.Saves, sf.AnnualEnergy = r.Action, r.Saves, r.AnnualEnergy
 		}
 		pl.plan.Unmet = append(pl.plan.Unmet, sf)

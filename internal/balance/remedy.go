@@ -196,13 +196,11 @@ func (pl *planner) leastWith(i int, cut map[int]float64) (least, inside float64)
 
 // remedyFor returns the remedy for branch i or the nearest riser above it
 // with one, preferring its own; nil when there is none.
-func (pl *planner) remedyFor(i int) *Remedy {
+func (pl *planner) remedyFor(i int, byID map[string]int, pump int) *Remedy {
 	m := pl.m
 	for k := i; ; {
-		for r := range pl.plan.Remedies {
-			if pl.plan.Remedies[r].ID == m.Branches[k].ID {
-				return &pl.plan.Remedies[r]
-			}
+		if r, ok := byID[m.Branches[k].ID]; ok {
+			return &pl.plan.Remedies[r]
 		}
 		p, ok := m.Index(m.Branches[k].Parent)
 		if !ok {
@@ -210,12 +208,23 @@ func (pl *planner) remedyFor(i int) *Remedy {
 		}
 		k = p
 	}
-	if pl.short {
-		for r := range pl.plan.Remedies {
-			if pl.plan.Remedies[r].Kind == LargerPump {
-				return &pl.plan.Remedies[r]
-			}
-		}
+	if pl.short && pump >= 0 {
+		return &pl.plan.Remedies[pump]
 	}
 	return nil
+}
+
+// remedyIndex maps each branch ID to its first remedy in the plan and
+// gives the first larger-pump remedy (-1 none), for remedyFor: a scan of
+// the remedies for every short branch was quadratic on large sites.
+func (pl *planner) remedyIndex() (byID map[string]int, pump int) {
+	byID = make(map[string]int, len(pl.plan.Remedies))
+	pump = -1
+	for r := len(pl.plan.Remedies) - 1; r >= 0; r-- {
+		byID[pl.plan.Remedies[r].ID] = r
+		if pl.plan.Remedies[r].Kind == LargerPump {
+			pump = r
+		}
+	}
+	return byID, pump
 }
