@@ -988,19 +988,6 @@ func scaleAll(es []hydraulics.Element, f float64) []hydraulics.Element {
 	return out
 }
 
-// AsFoundSetPoints returns each branch's as-found controller set point, Pa
-// (NaN without a controller).
-func (m *Model) AsFoundSetPoints() []float64 {
-	out := make([]float64, len(m.Branches))
-	for i := range m.Branches {
-		out[i] = math.NaN()
-		if m.Branches[i].Controlled() {
-			out[i] = m.Branches[i].Controller.SetPoint
-		}
-	}
-	return out
-}
-
 // HasControllers reports whether any riser has a differential controller.
 func (m *Model) HasControllers() bool {
 	for i := range m.Branches {
@@ -1101,15 +1088,10 @@ func (m *Model) controller(nb network.Branch, sp float64) (hydraulics.DiffContro
 	return c, nil
 }
 
-// Controller returns the element of riser i's differential controller for
-// multipliers p, settings and set points (nil: as found); ok is false
-// without a controller.
-func (m *Model) Controller(i int, p Params, settings, setPoints []float64) (c hydraulics.DiffController, ok bool, err error) {
-	return m.ControllerIn(i, p, State{Settings: settings, SetPoints: setPoints})
-}
-
-// ControllerIn is Controller in state st (its settings, set points and
-// three-port valves' positions).
+// ControllerIn returns the element of riser i's differential controller
+// for multipliers p in state st (its settings, set points, nil for as
+// found, and three-port valves' positions); ok is false without a
+// controller.
 func (m *Model) ControllerIn(i int, p Params, st State) (c hydraulics.DiffController, ok bool, err error) {
 	if !m.Branches[i].Controlled() {
 		return c, false, nil
