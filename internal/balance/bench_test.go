@@ -109,3 +109,36 @@ func BenchmarkBand(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkRankReadings ranks the readings after setting on random
+// direct-return plants with risers on a pump, every resistance and Kv scale
+// uncertain, listing a third of the branches (as the command line does).
+// Its cost is the sensitivities (one solve per uncertain parameter) and the
+// dense covariance of at most 300 followed branches.
+func BenchmarkRankReadings(b *testing.B) {
+	ctx := context.Background()
+	for _, n := range []int{100, 1000} {
+		b.Run(fmt.Sprintf("branches=%d", n), func(b *testing.B) {
+			rng := rand.New(rand.NewPCG(uint64(n), 3))
+			s := randomSite(rng, genOpts{n: n, header: site.DirectReturn, risers: true, pump: true})
+			m := withPump(b, s)
+			p := randomParams(rng, m)
+			u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches)), LnHeader: 0.05, LnPumpHead: 0.03}
+			for i := range u.LnResistance {
+				u.LnResistance[i], u.LnKvScale[i] = 0.1, 0.03
+			}
+			plan, err := Compute(ctx, m, p, &Options{Rounding: Smart, Uncertainty: u})
+			if err != nil {
+				b.Fatal(err)
+			}
+			b.ReportAllocs()
+			cpu := cpuclock.Start()
+			for b.Loop() {
+				if _, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u, Max: (n + 2) / 3}); err != nil {
+					b.Fatal(err)
+				}
+			}
+			cpu.Report(b)
+		})
+	}
+}

@@ -1,7 +1,10 @@
 package cli
 
 import (
+	"context"
 	"encoding/json"
+	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -162,4 +165,44 @@ func TestSurveyPlan(t *testing.T) {
 			}
 		})
 	}
+}
+
+// FuzzSetPlan feeds readSetPlan arbitrary plan files for the demo site: it
+// must never panic, and what it accepts is settings inside each valve's
+// range (NaN where none is given) for a plan that names only the site's
+// branches.
+func FuzzSetPlan(f *testing.F) {
+	f.Add([]byte(`{"branches":[{"branch":"AHU-1","new_setting":2.5,"percent_of_target":100}],"pump":{"speed_ratio":0.9}}`))
+	f.Add([]byte(`{"branches":[{"branch":"NOPE","new_setting":1}],"pump":{}}`))
+	f.Add([]byte(`{"branches":[{"branch":"AHU-1","new_setting":1e300}]}`))
+	f.Add([]byte(`{"branches":[`))
+	f.Add([]byte(`[]`))
+	l, err := loadEmbedded(context.Background(), "demo", io.Discard)
+	if err != nil {
+		f.Fatal(err)
+	}
+	m := l.Model
+	dir := f.TempDir()
+	f.Fuzz(func(t *testing.T, b []byte) {
+		path := filepath.Join(dir, "plan.json")
+		if err := os.WriteFile(path, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		settings, _, _, _, err := readSetPlan(path, m)
+		if err != nil {
+			return
+		}
+		if len(settings) != len(m.Branches) {
+			t.Fatalf("%d settings for %d branches", len(settings), len(m.Branches))
+		}
+		for i, s := range settings {
+			if math.IsNaN(s) {
+				continue
+			}
+			lo, hi := m.Branches[i].Valve.Range()
+			if s < lo || s > hi {
+				t.Errorf("%s: setting %g outside %g-%g accepted", m.Branches[i].ID, s, lo, hi)
+			}
+		}
+	})
 }
