@@ -274,7 +274,7 @@ func WriteWorkbook(s *Site, w io.Writer) error {
 	if s == nil {
 		return errNoSite
 	}
-	return writeWorkbook(render(s), w)
+	return writeWorkbook(siSheets.render(s), w)
 }
 
 // WriteTemplateWorkbook writes a blank site workbook: every tab with its

@@ -23,33 +23,103 @@ type outSheet struct {
 }
 
 // headerName is a column's name as written, with its default unit.
-func headerName(c *column) string {
-	if c.typ == numCol && c.kind != 0 && c.unit != "" {
-		return c.name + " [" + c.unit + "]"
+func headerName(c *column) string { return siSheets.header(c) }
+
+// inUnit converts an SI value to the column's default unit.
+func inUnit(c *column, si float64) any { return siSheets.value(c, si) }
+
+// SheetUnits chooses the units WriteDirIn writes a site's sheets in.
+type SheetUnits int
+
+// The unit sets of the sheets.
+const (
+	// SheetsSI writes each column in its default unit (l/s, kPa, m, mm,
+	// degC, Kv), as WriteDir does.
+	SheetsSI SheetUnits = iota
+	// SheetsUS writes US customary units: gpm, psi, ft (lengths and pump
+	// heads), in (bores and roughness), degF, and Cv in the cv columns.
+	SheetsUS
+)
+
+// usUnit is the US customary unit written in place of a default unit; a
+// default unit not listed (%, kg/m3, mm2/s, a ratio) is written as it is.
+var usUnit = map[units.Kind]map[string]string{
+	units.Flow:        {"l/s": "gpm"},
+	units.Pressure:    {"kPa": "psi"},
+	units.Length:      {"m": "ft", "mm": "in"},
+	units.Head:        {"m": "ft"},
+	units.Temperature: {"degC": "degF"},
+}
+
+// sheetUnits writes cells and headers in one set of units.
+type sheetUnits struct{ us bool }
+
+var siSheets = sheetUnits{}
+
+// unit is the unit symbol column c is written in.
+func (w sheetUnits) unit(c *column) string {
+	if w.us {
+		if u, ok := usUnit[c.kind][c.unit]; ok {
+			return u
+		}
+	}
+	return c.unit
+}
+
+// cv reports whether column c is written as a US Cv.
+func (w sheetUnits) cv(c *column) bool { return w.us && c.cv != "" }
+
+func (w sheetUnits) header(c *column) string {
+	if w.cv(c) {
+		return c.cv
+	}
+	if u := w.unit(c); c.typ == numCol && c.kind != 0 && u != "" {
+		return c.name + " [" + u + "]"
 	}
 	return c.name
 }
 
-// inUnit converts an SI value to the column's default unit.
-func inUnit(c *column, si float64) any {
+// value converts an SI value (a Kv as m3/h at 1 bar) to the unit column c
+// is written in.
+func (w sheetUnits) value(c *column, si float64) any {
 	if math.IsNaN(si) {
 		return nil
+	}
+	if w.cv(c) {
+		return si / KvPerCv
 	}
 	if c.kind == 0 {
 		return si
 	}
-	u, err := units.Lookup(c.kind, c.unit)
+	u, err := units.Lookup(c.kind, w.unit(c))
 	if err != nil {
 		return si // unreachable: the schema's units are in the table
 	}
 	return u.FromSI(si)
 }
 
-func columnSheet(sc *schema) outSheet {
+// reading is the unit a reading of q is written in.
+func (w sheetUnits) reading(q Quantity) units.Unit {
+	u := displayUnit(q)
+	if w.us && q != Speed {
+		sym := "psi"
+		if q.IsFlow() {
+			sym = "gpm"
+		}
+		if uu, err := units.Lookup(u.Kind, sym); err == nil {
+			return uu
+		}
+	}
+	return u
+}
+
+func columnSheet(sc *schema) outSheet { return siSheets.columnSheet(sc) }
+
+func (w sheetUnits) columnSheet(sc *schema) outSheet {
 	o := outSheet{name: sc.name}
 	for i := range sc.columns {
 		c := &sc.columns[i]
-		o.header = append(o.header, headerName(c))
+		o.header = append(o.header, w.header(c))
 		o.help = append(o.help, c.help)
 	}
 	if len(o.help) > 0 {
@@ -76,15 +146,15 @@ func template() []outSheet {
 	return out
 }
 
-// render returns the sheets that describe s.
-func render(s *Site) []outSheet {
+// render returns the sheets that describe s, in the units of w.
+func (w sheetUnits) render(s *Site) []outSheet {
 	site := outSheet{name: siteKeys.name, header: []string{"key", "value"}}
 	key := func(name string, v any) {
 		c := siteKeys.column(name)
 		if f, ok := v.(float64); ok {
-			v = inUnit(c, f)
+			v = w.value(c, f)
 		}
-		site.rows = append(site.rows, []any{headerName(c), v})
+		site.rows = append(site.rows, []any{w.header(c), v})
 	}
 	key("name", s.Name)
 	key("fluid", s.Fluid)
@@ -130,10 +200,10 @@ func render(s *Site) []outSheet {
 		key("pumps running", float64(s.PumpsRunning))
 	}
 
-	br := columnSheet(&branchColumns)
+	br := w.columnSheet(&branchColumns)
 	br.help = nil
 	for _, b := range s.Branches {
-		br.rows = append(br.rows, cellsOf(&branchColumns, map[string]any{
+		br.rows = append(br.rows, w.cellsOf(&branchColumns, map[string]any{
 			"id": b.ID, "parent": b.Parent, "design flow": b.DesignFlow,
 			"pipe standard": b.PipeStandard, "pipe size": b.PipeSize, "pipe bore": b.PipeBore, "pipe length": b.PipeLength,
 			"roughness": b.Roughness, "fittings k": b.FittingsK, "terminal drop": b.TerminalDrop, "terminal flow": b.TerminalFlow,
@@ -163,7 +233,7 @@ func render(s *Site) []outSheet {
 		br = dropColumns(br, controllerColumns)
 	}
 
-	va := columnSheet(&valveColumns)
+	va := w.columnSheet(&valveColumns)
 	va.help = nil
 	for _, v := range s.Valves {
 		common := map[string]any{"model": v.Name, "setting unit": v.Unit, "step": v.Step, "min diff": v.MinDiff,
@@ -175,12 +245,12 @@ func render(s *Site) []outSheet {
 				for k, x := range common {
 					m[k] = x
 				}
-				va.rows = append(va.rows, cellsOf(&valveColumns, m))
+				va.rows = append(va.rows, w.cellsOf(&valveColumns, m))
 			}
 			continue
 		}
 		if !v.Table() {
-			va.rows = append(va.rows, cellsOf(&valveColumns, common))
+			va.rows = append(va.rows, w.cellsOf(&valveColumns, common))
 			continue
 		}
 		for i := range v.Settings {
@@ -188,7 +258,7 @@ func render(s *Site) []outSheet {
 			for k, x := range common {
 				m[k] = x
 			}
-			va.rows = append(va.rows, cellsOf(&valveColumns, m))
+			va.rows = append(va.rows, w.cellsOf(&valveColumns, m))
 		}
 	}
 
@@ -198,10 +268,10 @@ func render(s *Site) []outSheet {
 		va = dropColumns(va, []string{"max flow", "hold diff"})
 	}
 
-	pu := columnSheet(&pumpColumns)
+	pu := w.columnSheet(&pumpColumns)
 	pu.help = nil
 	for _, pt := range s.Pump {
-		pu.rows = append(pu.rows, cellsOf(&pumpColumns, map[string]any{"pump": pt.Pump, "flow": pt.Flow, "head": pt.Head, "speed": given(pt.Speed), "efficiency": given(pt.Efficiency)}))
+		pu.rows = append(pu.rows, w.cellsOf(&pumpColumns, map[string]any{"pump": pt.Pump, "flow": pt.Flow, "head": pt.Head, "speed": given(pt.Speed), "efficiency": given(pt.Efficiency)}))
 	}
 	// The columns of several pumps only where they are used, so a site of
 	// one pump reads as before.
@@ -215,11 +285,11 @@ func render(s *Site) []outSheet {
 		pu = dropColumns(pu, []string{"efficiency"})
 	}
 
-	rd := columnSheet(&readingColumns)
+	rd := w.columnSheet(&readingColumns)
 	rd.help = nil
 	for _, r := range s.Readings {
-		u := displayUnit(r.What)
-		rd.rows = append(rd.rows, cellsOf(&readingColumns, map[string]any{
+		u := w.reading(r.What)
+		rd.rows = append(rd.rows, w.cellsOf(&readingColumns, map[string]any{
 			"state": r.State, "where": r.Where, "quantity": r.What.String(), "value": u.FromSI(r.Value), "unit": u.Symbol,
 			"setting": r.Setting, "instrument": r.Instrument, "uncertainty": fmtFloat(u.FromSI(r.Sigma * defaultCoverage)),
 			"k": defaultCoverage, "time": r.Time, "note": r.Note, "position": positionWord(r.Bypass),
@@ -230,10 +300,10 @@ func render(s *Site) []outSheet {
 	}
 	out := []outSheet{site, br, va, pu, rd}
 	if s.States != nil {
-		st := columnSheet(&stateColumns)
+		st := w.columnSheet(&stateColumns)
 		st.help = nil
 		for _, x := range s.States {
-			st.rows = append(st.rows, cellsOf(&stateColumns, map[string]any{"state": x.Label, "speed": x.Speed,
+			st.rows = append(st.rows, w.cellsOf(&stateColumns, map[string]any{"state": x.Label, "speed": x.Speed,
 				"set point": x.SetPoint, "pumps running": count(x.Running), "note": x.Note}))
 		}
 		if !slices.ContainsFunc(s.States, func(x StateSetting) bool { return x.Running > 0 }) {
@@ -242,7 +312,7 @@ func render(s *Site) []outSheet {
 		out = append(out, st)
 	}
 	if s.Targets != nil {
-		tg := columnSheet(&targetColumns)
+		tg := w.columnSheet(&targetColumns)
 		tg.help = nil
 		ids := sortedKeys(s.Targets)
 		row := make(map[string]int, len(s.Branches))
@@ -257,7 +327,7 @@ func render(s *Site) []outSheet {
 		}
 		slices.SortStableFunc(ids, func(a, b string) int { return at(a) - at(b) })
 		for _, id := range ids {
-			tg.rows = append(tg.rows, cellsOf(&targetColumns, map[string]any{"branch": id, "target flow": s.Targets[id]}))
+			tg.rows = append(tg.rows, w.cellsOf(&targetColumns, map[string]any{"branch": id, "target flow": s.Targets[id]}))
 		}
 		out = append(out, tg)
 	}
@@ -299,7 +369,8 @@ var legColumns = []string{"header roughness", "supply k", "return k", "return st
 
 // controllerColumns are the branches sheet's columns of a riser's
 // differential controller.
-var controllerColumns = []string{"controller set point", "controller kvs", "controller min", "controller max", "controller senses"}
+// (controller cvs: its name in US sheets).
+var controllerColumns = []string{"controller set point", "controller kvs", "controller cvs", "controller min", "controller max", "controller senses"}
 
 // ownLegs reports whether b's header legs need the per-leg columns.
 func ownLegs(b Branch) bool {
@@ -341,7 +412,7 @@ func given(x float64) float64 {
 
 // cellsOf lays values out in the schema's column order, converting SI
 // numbers to each column's unit.
-func cellsOf(sc *schema, vals map[string]any) []any {
+func (w sheetUnits) cellsOf(sc *schema, vals map[string]any) []any {
 	row := make([]any, len(sc.columns))
 	for i := range sc.columns {
 		c := &sc.columns[i]
@@ -350,7 +421,7 @@ func cellsOf(sc *schema, vals map[string]any) []any {
 			continue
 		}
 		if f, isNum := v.(float64); isNum && c.typ == numCol && !(sc == &readingColumns && c.name == "value") {
-			v = inUnit(c, f)
+			v = w.value(c, f)
 		}
 		row[i] = v
 	}
@@ -431,7 +502,17 @@ func WriteDir(s *Site, create func(name string) (io.WriteCloser, error)) error {
 	if s == nil {
 		return errNoSite
 	}
-	return writeSheets(render(s), create)
+	return writeSheets(siSheets.render(s), create)
+}
+
+// WriteDirIn is WriteDir with the sheets in the units of u: with SheetsUS
+// every header names its US customary unit (or is the Cv column), and
+// readings are in gpm and psi.
+func WriteDirIn(s *Site, u SheetUnits, create func(name string) (io.WriteCloser, error)) error {
+	if s == nil {
+		return errNoSite
+	}
+	return writeSheets(sheetUnits{us: u == SheetsUS}.render(s), create)
 }
 
 // WriteTemplateCSV writes a blank site: every sheet with its header line
