@@ -86,7 +86,7 @@ func (w sheetUnits) value(c *column, si float64) any {
 		return nil
 	}
 	if w.cv(c) {
-		return si / KvPerCv
+		return w.num(si / KvPerCv)
 	}
 	if c.kind == 0 {
 		return si
@@ -95,7 +95,23 @@ func (w sheetUnits) value(c *column, si float64) any {
 	if err != nil {
 		return si // unreachable: the schema's units are in the table
 	}
-	return u.FromSI(si)
+	return w.num(u.FromSI(si))
+}
+
+// num is a converted value as written. In US sheets it is rounded to 14
+// significant figures: a conversion factor that is not a power of ten
+// leaves some decimals no SI double maps back to exactly (15 psi came out
+// as 14.999999999999998, 44 degF as 43.9999999999999), and a 14-digit decimal reads back
+// within the round trip's 1e-12.
+func (w sheetUnits) num(x float64) float64 {
+	if !w.us || math.IsNaN(x) || math.IsInf(x, 0) {
+		return x
+	}
+	r, err := strconv.ParseFloat(strconv.FormatFloat(x, 'g', 14, 64), 64)
+	if err != nil {
+		return x // not reached: FormatFloat's output parses
+	}
+	return r
 }
 
 // reading is the unit a reading of q is written in.
@@ -290,8 +306,8 @@ func (w sheetUnits) render(s *Site) []outSheet {
 	for _, r := range s.Readings {
 		u := w.reading(r.What)
 		rd.rows = append(rd.rows, w.cellsOf(&readingColumns, map[string]any{
-			"state": r.State, "where": r.Where, "quantity": r.What.String(), "value": u.FromSI(r.Value), "unit": u.Symbol,
-			"setting": r.Setting, "instrument": r.Instrument, "uncertainty": fmtFloat(u.FromSI(r.Sigma * defaultCoverage)),
+			"state": r.State, "where": r.Where, "quantity": r.What.String(), "value": w.num(u.FromSI(r.Value)), "unit": u.Symbol,
+			"setting": r.Setting, "instrument": r.Instrument, "uncertainty": fmtFloat(w.num(u.FromSI(r.Sigma * defaultCoverage))),
 			"k": defaultCoverage, "time": r.Time, "note": r.Note, "position": positionWord(r.Bypass),
 		}))
 	}

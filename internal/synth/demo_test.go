@@ -22,14 +22,18 @@ var update = flag.Bool("update", false, "rewrite the example sites in surveys/ f
 const surveysDir = "../../surveys"
 
 // examples are the example sites and the functions that describe them.
+// units is the unit set each site's sheets are written in.
 func examples() []struct {
-	dir  string
-	make func(context.Context) (*site.Site, *Truth, error)
+	dir   string
+	make  func(context.Context) (*site.Site, *Truth, error)
+	units site.SheetUnits
 } {
 	return []struct {
-		dir  string
-		make func(context.Context) (*site.Site, *Truth, error)
-	}{{"demo", Demo}, {"plantroom", Plantroom}, {"clinic", Ward}}
+		dir   string
+		make  func(context.Context) (*site.Site, *Truth, error)
+		units site.SheetUnits
+	}{{"demo", Demo, site.SheetsSI}, {"plantroom", Plantroom, site.SheetsSI}, {"clinic", Ward, site.SheetsSI},
+		{"wing", Wing, site.SheetsUS}}
 }
 
 // TestDemoSite regenerates the example sites in memory and compares them
@@ -43,7 +47,7 @@ func TestDemoSite(t *testing.T) {
 				t.Fatalf("%s: %v", ex.dir, err)
 			}
 			files := memFS{}
-			if err := site.WriteDir(s, files.create); err != nil {
+			if err := site.WriteDirIn(s, ex.units, files.create); err != nil {
 				t.Fatalf("WriteDir: %v", err)
 			}
 			dir := filepath.Join(surveysDir, ex.dir)
@@ -155,7 +159,7 @@ func TestExampleSites(t *testing.T) {
 				if _, err := m.Solve(context.Background(), m.Design(), st); err != nil {
 					t.Errorf("Solve(design, %s): %v", st.Label, err)
 				}
-				sol, err := Simulate(context.Background(), s, tr, st.Settings)
+				sol, err := SimulateState(context.Background(), s, tr, st)
 				if err != nil {
 					t.Fatalf("Simulate(%s): %v", st.Label, err)
 				}

@@ -32,6 +32,9 @@ type stateDef struct {
 	Label string
 	Moves []move
 	Takes []take
+	// Running is how many pumps ran in the state; 0 = the site's. The
+	// site's states sheet must say the same.
+	Running int
 }
 
 // surveyOpts tunes how readings are made.
@@ -41,6 +44,9 @@ type surveyOpts struct {
 	// figures, the uncertainty to two), in values that print cleanly in
 	// the sheets' units.
 	round bool
+	// us shows the rounded readings in gpm and psi instead of l/s and kPa,
+	// for sheets written in US customary units.
+	us bool
 }
 
 // survey simulates the readings of states on the true plant t of model m
@@ -75,7 +81,11 @@ func survey(ctx context.Context, m *plant.Model, t *Truth, states []stateDef, rn
 					sd.Label, m.Branches[i].ID, ErrSpec)
 			}
 		}
-		sol, err := simulate(ctx, m, t, rec)
+		st := m.BaseState()
+		if sd.Running > 0 {
+			st.Running = sd.Running
+		}
+		sol, err := simulateIn(ctx, m, t, st, rec)
 		if err != nil {
 			return nil, fmt.Errorf("state %q: %w", sd.Label, err)
 		}
@@ -154,7 +164,7 @@ func readState(sol *plant.Solved, sd stateDef, rec, asFound []float64, rng *rand
 		}
 		r.Value, r.Sigma = v, in.DefaultSigma(tk.What, v)
 		if o.round {
-			u := display(tk.What)
+			u := display(tk.What, o.us)
 			r.Value = siFor(u, sigFigs(u.FromSI(v), 3))
 			r.Sigma = siFor(u, sigFigs(u.FromSI(2*in.DefaultSigma(tk.What, r.Value)), 2)) / 2
 		}
@@ -172,13 +182,18 @@ func instrument(name string) *site.Instrument {
 	return nil
 }
 
-// display is the unit the sheets write a reading in.
-func display(q site.Quantity) units.Unit {
+// display is the unit the sheets write a reading in: l/s and kPa, or gpm
+// and psi in US sheets.
+func display(q site.Quantity, us bool) units.Unit {
+	flow, pressure := "l/s", "kPa"
+	if us {
+		flow, pressure = "gpm", "psi"
+	}
 	if q.IsFlow() {
-		u, _ := units.Lookup(units.Flow, "l/s")
+		u, _ := units.Lookup(units.Flow, flow)
 		return u
 	}
-	u, _ := units.Lookup(units.Pressure, "kPa")
+	u, _ := units.Lookup(units.Pressure, pressure)
 	return u
 }
 

@@ -37,6 +37,9 @@ const (
 	Free   = "free"
 	MisSet = "mis-set"
 	Stuck  = "stuck"
+	// OffSetPoint names a differential controller that holds another set
+	// point than the one recorded (Truth.Params.SetPoint holds the ratio).
+	OffSetPoint = "off-set-point"
 )
 
 // Spec describes a synthetic site to generate.
@@ -186,7 +189,33 @@ func model(s *site.Site) (*plant.Model, error) {
 	return plant.New(&cs)
 }
 
+// SimulateState solves the true plant of s in a state of its model: st's
+// settings as Simulate takes them, its speed, pumps running and planned
+// controller set points where given (0 or nil: the site's). A plan that
+// also sets the pump and the controllers is applied to the truth with it.
+func SimulateState(ctx context.Context, s *site.Site, t *Truth, st plant.State) (*plant.Solved, error) {
+	m, err := model(s)
+	if err != nil {
+		return nil, err
+	}
+	base := m.BaseState()
+	if st.Speed > 0 {
+		base.Speed = st.Speed
+	}
+	if st.Running > 0 {
+		base.Running = st.Running
+	}
+	base.SetPoints = st.SetPoints
+	return simulateIn(ctx, m, t, base, st.Settings)
+}
+
 func simulate(ctx context.Context, m *plant.Model, t *Truth, settings []float64) (*plant.Solved, error) {
+	return simulateIn(ctx, m, t, m.BaseState(), settings)
+}
+
+// simulateIn solves the true plant of m in state st (its pump and
+// controllers) with the valves set to settings.
+func simulateIn(ctx context.Context, m *plant.Model, t *Truth, st plant.State, settings []float64) (*plant.Solved, error) {
 	n := len(m.Branches)
 	if err := t.check(n); err != nil {
 		return nil, err
@@ -194,7 +223,6 @@ func simulate(ctx context.Context, m *plant.Model, t *Truth, settings []float64)
 	if len(settings) != n {
 		return nil, fmt.Errorf("%d settings for %d branches: %w", len(settings), n, ErrSpec)
 	}
-	st := m.BaseState()
 	st.Label = "truth"
 	st.Settings = Actual(m, t, settings)
 	if m.Site.Boundary.Kind != site.PumpCurve {
