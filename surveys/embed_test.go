@@ -13,7 +13,7 @@ import (
 )
 
 func TestNames(t *testing.T) {
-	if d := cmp.Diff([]string{"clinic", "demo", "plantroom"}, surveys.Names()); d != "" {
+	if d := cmp.Diff([]string{"clinic", "demo", "plantroom", "wing"}, surveys.Names()); d != "" {
 		t.Errorf("Names() (-want +got):\n%s", d)
 	}
 }
@@ -61,4 +61,5 @@ func ExampleNames() {
 	// clinic: Harrowfield Clinic - consulting wing chilled water, 9 branches
 	// demo: Quillmere Academy - teaching block LTHW, 14 branches
 	// plantroom: Brindlecote Works - moulding shop chilled glycol, 6 branches
+	// wing: Wrenholt Infirmary - east wing chilled water, 13 branches
 }
