@@ -6,7 +6,7 @@
 // Gaussian noise at each instrument's stated uncertainty.
 //
 // It also holds the hand-written descriptions of the example sites shipped in
-// surveys/ (Demo, Plantroom), so those files never drift from their generator.
+// surveys/ (Demo, Plantroom, Ward, Wing), so those files never drift from their generator.
 //
 // # Faults
 //
