@@ -34,9 +34,11 @@ type planner struct {
 	// (else an ideal source differential).
 	pump, capped, bySpeed bool
 	// running is how many of the model's pumps the plan runs (the site's
-	// pumps running).
-	running int
-	lo, hi  float64
+	// pumps running); relative is set when each has its own fixed speed,
+	// and the plan's speed is then a ratio to those speeds.
+	running  int
+	relative bool
+	lo, hi   float64
 	// ex is the exact plan for every target; run the one the settings
 	// come from: ex itself, or, when the pump cannot serve every target
 	// and design-first is asked, the plan with the starved branches open
@@ -86,6 +88,9 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	pl.capped = m.PumpDriven()
 	pl.bySpeed = pl.pump
 	pl.running = m.Site.Running("")
+	if n := min(max(pl.running, 0), len(m.Pumps)); pl.capped && m.Several() && n > 0 {
+		_, pl.relative = hydraulics.PumpSet{Members: m.Pumps[:n]}.Relative()
+	}
 	pl.run = pl.ex
 	pl.lift = m.Lift()
 	if m.HasControllers() {
@@ -94,6 +99,9 @@ func Compute(ctx context.Context, m *plant.Model, p plant.Params, opt *Options) 
 	pl.plan = &Plan{
 		Rounding: pl.opt.Rounding, Share: pl.opt.Share, Least: pl.ex.least, Index: m.Branches[pl.ex.indexID].ID,
 		IndexPath: pl.ex.indexIDs, ToleranceLow: pl.lo, ToleranceHigh: pl.hi,
+	}
+	if pl.relative {
+		pl.plan.Warnings = append(pl.plan.Warnings, "every pump the plan runs has its own speed on the pump sheet: the plan's pump speed is a ratio to those speeds, each drive turned by it (100 % is as found)")
 	}
 	sol, err := pl.settle(ctx)
 	if err != nil {

@@ -3,6 +3,7 @@ package balance
 import (
 	"context"
 	"math"
+	"strings"
 	"testing"
 
 	"flowset/internal/hydraulics"
@@ -163,5 +164,39 @@ func TestPlanPumpsEfficiency(t *testing.T) {
 	}
 	if saving := (pp.ElectricalAfter - o.Electrical) * 8760 / 1e3; math.Abs(o.AnnualEnergySaving-saving) > 1e-6*math.Abs(saving) || !(saving > 0) {
 		t.Errorf("one pump saves %.6g kWh a year, want %.6g (one pump nearer its best efficiency)", o.AnnualEnergySaving, saving)
+	}
+}
+
+// TestPlanPumpsOwnSpeeds: two identical pumps each on its own speed 0.9 of
+// nominal. The plan turns both from there by one ratio, so it needs ratio
+// s_2/0.9, s_2 = sqrt((b + a/4) Qt² / H0) the speed from nominal (affinity
+// laws, references §5.1; parallel rule from memory), and says so.
+func TestPlanPumpsOwnSpeeds(t *testing.T) {
+	const h0, a, drop, qt = 30.0, 40000.0, 80e3, 0.012
+	s := pumpsSite(h0, a, drop, qt, 2, 2, false, nil)
+	for i := range s.Pump {
+		s.Pump[i].Speed = 0.9
+	}
+	m, err := plant.New(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pl, err := Compute(context.Background(), m, m.Design(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rg := m.Fluid.Density * hydraulics.StandardGravity
+	b := drop / (rg * qt * qt)
+	want := math.Sqrt((b+a/4)*qt*qt/h0) / 0.9
+	if math.Abs(pl.Speed/want-1) > 1e-6 {
+		t.Errorf("plan speed ratio %.9g, want %.9g", pl.Speed, want)
+	}
+	for _, d := range pl.Pump.Duties {
+		if math.Abs(d.Speed/(0.9*want)-1) > 1e-6 {
+			t.Errorf("pump %s at speed %.6g, want %.6g of nominal", d.ID, d.Speed, 0.9*want)
+		}
+	}
+	if len(pl.Warnings) == 0 || !strings.Contains(strings.Join(pl.Warnings, " "), "its own speed") {
+		t.Errorf("warnings %q: want the plan's speed said to be a ratio to the pumps' own", pl.Warnings)
 	}
 }

@@ -445,3 +445,22 @@ func (s PumpSet) Speeds() []float64 {
 	}
 	return out
 }
+
+// Relative returns, for a set none of whose pumps follows the set's speed
+// (each on its own fixed speed), the same set with every pump following it
+// from its own speed: at set speed 1 each runs at its own, and a set speed
+// r turns every one by r. ok is false, and the set is returned as it is,
+// where a pump follows the set's speed already.
+func (s PumpSet) Relative() (out PumpSet, ok bool) {
+	for _, m := range s.Members {
+		if m.Speed == 0 {
+			return s, false
+		}
+	}
+	out = s
+	out.Members = make([]SetMember, len(s.Members))
+	for i, m := range s.Members {
+		out.Members[i] = SetMember{Curve: m.Curve.AtSpeed(m.Speed)}
+	}
+	return out, len(s.Members) > 0
+}

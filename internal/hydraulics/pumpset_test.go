@@ -309,3 +309,28 @@ func BenchmarkPumpSetDrop(b *testing.B) {
 		})
 	}
 }
+
+// TestPumpSetRelative: pumps each on its own speed, made to follow the set
+// from there, give at set speed 1 the set as it was, and at speed r each
+// pump turned by r (affinity laws, references §5.1).
+func TestPumpSetRelative(t *testing.T) {
+	big, small := plainCurve(30, 2.4e4), plainCurve(20, 8e4)
+	own := PumpSet{Members: []SetMember{{Curve: big, Speed: 0.9}, {Curve: small, Speed: 1.1}}}
+	rel, ok := own.Relative()
+	if !ok {
+		t.Fatal("Relative: not ok for pumps each on its own speed")
+	}
+	want := PumpSet{Members: []SetMember{{Curve: big, Speed: 0.9 * 0.8}, {Curve: small, Speed: 1.1 * 0.8}}}
+	for _, q := range []float64{0.01, 0.03, 0.05} {
+		h0, _ := own.Head(q)
+		h1, _ := rel.Head(q)
+		h2, _ := rel.AtSpeed(0.8).Head(q)
+		w2, _ := want.Head(q)
+		if relErr(h1, h0) > 1e-12 || relErr(h2, w2) > 1e-12 {
+			t.Errorf("at %g: %g, %g at speed 1 and 0.8; want %g, %g", q, h1, h2, h0, w2)
+		}
+	}
+	if _, ok := (PumpSet{Members: []SetMember{{Curve: big}, {Curve: small, Speed: 0.9}}}).Relative(); ok {
+		t.Error("Relative: ok for a set with a pump following its speed")
+	}
+}

@@ -351,7 +351,7 @@ func (d PumpDuty) Shaft(f fluid.State) float64 {
 // head at q. eta is the efficiency of a pump without efficiency points.
 func (m *Model) Duties(k float64, running int, speed, q, eta float64) []PumpDuty {
 	set := m.Set(k, running).AtSpeed(speed)
-	flows, heads, speeds := set.Flows(q), set.Heads(q), set.Speeds()
+	flows, heads, speeds := set.Flows(q), set.Heads(q), m.speeds(running, speed)
 	out := make([]PumpDuty, len(flows))
 	for i := range out {
 		d := PumpDuty{ID: m.PumpIDs[i], Flow: flows[i], Head: heads[i], Speed: speeds[i], Efficiency: eta, InRange: true}
@@ -428,7 +428,7 @@ func (m *Model) PumpReading(what site.Quantity, i int, st State, k, q, dp float6
 		}
 		return set.Heads(q)[i] * m.Fluid.Density * hydraulics.StandardGravity
 	case site.Speed:
-		return set.Speeds()[i]
+		return m.speeds(running, s)[i]
 	}
 	return math.NaN()
 }
@@ -439,12 +439,41 @@ func (m *Model) Several() bool { return len(m.Pumps) > 1 }
 
 // Set returns the first running pumps of the model as a set with every
 // head multiplied by k, at rated speed. A site of one pump gives a set of
-// that one pump (see hydraulics.PumpSet: exactly the Pump).
+// that one pump (see hydraulics.PumpSet: exactly the Pump). Where every one
+// of them has its own speed, the set's speed turns each from its own
+// (hydraulics.PumpSet.Relative: at 1, each as given), so a state's speed
+// and the plan's are ratios to those speeds.
 func (m *Model) Set(k float64, running int) hydraulics.PumpSet {
 	if running <= 0 || running > len(m.Pumps) {
 		running = len(m.Pumps)
 	}
-	return hydraulics.PumpSet{Members: m.Pumps[:running], Series: m.Series}.Scaled(k)
+	s := hydraulics.PumpSet{Members: m.Pumps[:running], Series: m.Series}.Scaled(k)
+	if r, ok := s.Relative(); ok {
+		return r
+	}
+	return s
+}
+
+// speeds returns each of the first running pumps' speed ratio at set speed
+// ratio speed: its own fixed one, the set's, or (every one on its own) its
+// own turned by the set's.
+func (m *Model) speeds(running int, speed float64) []float64 {
+	if running <= 0 || running > len(m.Pumps) {
+		running = len(m.Pumps)
+	}
+	_, relative := hydraulics.PumpSet{Members: m.Pumps[:running]}.Relative()
+	out := make([]float64, running)
+	for i, p := range m.Pumps[:running] {
+		switch {
+		case relative:
+			out[i] = p.Speed * speed
+		case p.Speed > 0:
+			out[i] = p.Speed
+		default:
+			out[i] = speed
+		}
+	}
+	return out
 }
 
 // fluidState gives the fluid's properties at the survey temperature: from

@@ -171,7 +171,9 @@ standby pump is listed and not counted as running: duty/standby is two pumps
 with pumps running 1, duty/assist is pumps running 1 in one survey state and
 2 in another (the states sheet's pumps running column). All the pumps run at
 the site's (or the state's) speed, on one drive or on drives set alike; a
-speed column gives a pump its own fixed speed instead (on any of its rows).
+speed column gives a pump its own fixed speed instead (on any of its rows);
+where every pump running has its own, the site's speed, a state's and the
+plan's are ratios to those speeds (100 % is each at its own).
 The plan finds the speed or set point for the pumps running and says
 whether one pump fewer would serve, with the power of each. For example:
 
