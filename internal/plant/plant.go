@@ -905,13 +905,17 @@ func (m *Model) BaseState() State {
 // FixedElement returns branch i's fixed parts scaled by r, or nil when it
 // has none.
 func (m *Model) FixedElement(i int, r float64) hydraulics.Element {
-	b := &m.Branches[i]
-	if len(b.Fixed) == 0 {
+	return scaledParts(m.Branches[i].Fixed, r)
+}
+
+// scaledParts is parts in series scaled by r, or nil for none.
+func scaledParts(parts []hydraulics.Element, r float64) hydraulics.Element {
+	if len(parts) == 0 {
 		return nil
 	}
-	var e hydraulics.Element = hydraulics.Series(b.Fixed)
-	if len(b.Fixed) == 1 {
-		e = b.Fixed[0]
+	var e hydraulics.Element = hydraulics.Series(parts)
+	if len(parts) == 1 {
+		e = parts[0]
 	}
 	if r == 1 {
 		return e
@@ -932,18 +936,7 @@ func (m *Model) FixedIn(i int, r float64, st State) hydraulics.Element {
 	if !st.Bypassed(i) {
 		return m.FixedElement(i, r)
 	}
-	b := &m.Branches[i]
-	if len(b.BypassFixed) == 0 {
-		return nil
-	}
-	var e hydraulics.Element = hydraulics.Series(b.BypassFixed)
-	if len(b.BypassFixed) == 1 {
-		e = b.BypassFixed[0]
-	}
-	if r == 1 {
-		return e
-	}
-	return hydraulics.Scaled{E: e, Factor: r}
+	return scaledParts(m.Branches[i].BypassFixed, r)
 }
 
 // BypassElement returns branch i's bypass valve at a setting, or nil

@@ -703,6 +703,19 @@ func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 	for _, v := range s.Valves {
 		names = append(names, v.Name)
 	}
+	// model returns the valve model a branch names, or says at ref that no
+	// such model is defined.
+	model := func(name string, ref cellRef) *ValveModel {
+		v := s.Valve(name)
+		if v == nil {
+			want := refWant("a model defined in the valves sheet", name, names)
+			if !valves.present {
+				want = "a valves sheet defining this model"
+			}
+			p.add(ref.problem(SeverityError, ErrReference, "valve model not defined", want))
+		}
+		return v
+	}
 	for i, b := range s.Branches {
 		if b.BypassValve == "" {
 			if !math.IsNaN(b.BypassSetting) && b.BypassSetting != 0 {
@@ -717,13 +730,8 @@ func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 		if valves.present && !valves.usable {
 			continue
 		}
-		v := s.Valve(b.BypassValve)
+		v := model(b.BypassValve, refs[i].bypass)
 		if v == nil {
-			want := refWant("a model defined in the valves sheet", b.BypassValve, names)
-			if !valves.present {
-				want = "a valves sheet defining this model"
-			}
-			p.add(refs[i].bypass.problem(SeverityError, ErrReference, "valve model not defined", want))
 			continue
 		}
 		if v.PressureIndependent() {
@@ -741,13 +749,8 @@ func checkBranches(s *Site, refs []branchRefs, valves valveCheck, p *Problems) {
 		if b.Valve == "" || valves.present && !valves.usable {
 			continue
 		}
-		v := s.Valve(b.Valve)
+		v := model(b.Valve, refs[i].valve)
 		if v == nil {
-			want := refWant("a model defined in the valves sheet", b.Valve, names)
-			if !valves.present {
-				want = "a valves sheet defining this model"
-			}
-			p.add(refs[i].valve.problem(SeverityError, ErrReference, "valve model not defined", want))
 			continue
 		}
 		if !valves.check(v.Name) {
