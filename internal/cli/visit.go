@@ -381,12 +381,23 @@ func (j *job) fixes(u display) []report.Fix {
 // saving says what a repair saves in pump differential and power.
 func (j *job) saving(r *balance.Plan, u display) string {
 	p := j.Plan
+	// A repair away from the index circuit leaves the pump's duty as it
+	// is (rounding may move it a hair either way): it restores the branch,
+	// it saves no pump energy, and a "saving" upwards would mislead.
+	if !(r.Required < p.Required*(1-savingFloor)) {
+		return "nothing on the pump: this branch does not set the pump's duty"
+	}
 	s := fmt.Sprintf("pump differential %s → %s", u.diff(p.Required), u.diff(r.Required))
 	if p.Pump.HaveBefore && r.Pump.HaveBefore && p.Pump.ElectricalAfter > 0 {
 		s += fmt.Sprintf(", pump power %s → %s", power(p.Pump.ElectricalAfter), power(r.Pump.ElectricalAfter))
 	}
 	return s
 }
+
+// savingFloor is the least fall in the pump's differential, as a fraction,
+// worth calling a saving: less than a technician can set (common practice,
+// no source).
+const savingFloor = 0.005
 
 func power(w float64) string {
 	if w >= 1000 {
