@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"flowset/internal/hydraulics"
 	"flowset/internal/network"
@@ -42,6 +43,7 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 	lift := m.Lift()
 	var b *network.Built
 	sup := -1
+	var prev float64
 	l, err := m.Ladder(p, settings, nil)
 	if err != nil {
 		return nil, err
@@ -69,11 +71,20 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 			// large site cost more to make than the solve.
 			b.Net.FixPressure(sup, network.Source{Differential: d, Lift: lift}.Held())
 		}
+		if warm != nil && prev > lift {
+			// Flows go nearly as the square root of the differential
+			// above the lift: the last point's flows scaled so start
+			// about one Newton step nearer.
+			r := math.Sqrt((d - lift) / (prev - lift))
+			for k := range warm {
+				warm[k] *= r
+			}
+		}
 		sol, err := b.Net.Solve(ctx, &network.Options{Initial: warm})
 		if err != nil {
 			return nil, fmt.Errorf("system curve at %.3g kPa: %w", d/1000, err)
 		}
-		warm = sol.Flow
+		warm, prev = slices.Clone(sol.Flow), d
 		var q float64
 		for _, i := range m.top {
 			if l := b.Branch[m.Branches[i].ID]; l >= 0 {
