@@ -184,6 +184,13 @@ func (f *sparseFactor) solve(x []float64) {
 	for p := range n {
 		xp := x[p] * rd[p]
 		x[p] = xp
+		if xp == 0 {
+			// A sensitivity's right-hand side has two entries: most of
+			// the forward pass would scatter zeros. Skipping them
+			// changes no bit of a nonzero result (x - (±0) is x), at
+			// most the sign of an exact zero.
+			continue
+		}
 		for e := sp.off[p]; e < sp.off[p+1]; e++ {
 			x[sp.row[e]] -= val[e] * xp
 		}
