@@ -434,6 +434,17 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	}
 	cands = append(cands, pc)
 	start := mat.DenseCopyOf(K)
+	// From here on only K's upper triangle is kept (observe updates it
+	// alone, half the work); ka reads K either way round. K is symmetric
+	// to the bit (a SymDense's copy, the model error added to both
+	// halves) and each update keeps it so, since col[x]*col[y] is
+	// col[y]*col[x]: the values read are the ones the full update gave.
+	ka := func(x, y int) float64 {
+		if x > y {
+			x, y = y, x
+		}
+		return K.At(x, y)
+	}
 
 	// wK is the covariance of the linearised need with every row.
 	wK := make([]float64, nr)
@@ -441,7 +452,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		for x := range nr {
 			var v float64
 			for y := range need {
-				v += w[y] * K.At(x, rowNeed(y))
+				v += w[y] * ka(x, rowNeed(y))
 			}
 			wK[x] = v
 		}
@@ -459,18 +470,18 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		for k := range nf {
 			diag[k] = K.At(rowFlow(k), rowFlow(k))
 		}
-		nv := needVar(K.At)
+		nv := needVar(ka)
 		nq := len(c.rows)
 		g := make([]float64, nq)
 		h := make([][]float64, nq)
 		for q, o := range c.rows {
 			for k := range nf {
-				f[q][k] = K.At(rowFlow(k), o)
+				f[q][k] = ka(rowFlow(k), o)
 			}
 			g[q] = wK[o]
 			h[q] = make([]float64, nq)
 			for q2, o2 := range c.rows {
-				h[q][q2] = K.At(o, o2)
+				h[q][q2] = ka(o, o2)
 			}
 		}
 		for q := range nq {
@@ -503,16 +514,16 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			}
 			col := make([]float64, nr)
 			for x := range nr {
-				col[x] = K.At(x, row)
+				col[x] = ka(x, row)
 			}
 			// On K's rows directly: At and Set cost more than the
 			// update itself (nr is about 900 at 1,000 branches). The
-			// same operations in the same order as K.Set(x, y,
-			// K.At(x, y)-col[x]*col[y]/d), so the same bits.
+			// same operations as K.Set(x, y, K.At(x, y)-col[x]*col[y]/d),
+			// so the same bits, on the upper triangle.
 			for x := range nr {
-				kr := K.RawRowView(x)[:nr]
+				kr := K.RawRowView(x)[x:nr]
 				cx := col[x]
-				for y, cy := range col {
+				for y, cy := range col[x:] {
 					kr[y] -= cx * cy / d
 				}
 			}
