@@ -24,8 +24,11 @@ type jobOptions struct {
 	Rounding   string
 	Share      string // design-first (default) or proportional
 	DesignOnly bool   // plan from the design model even when readings exist
-	Thresholds diagnose.Thresholds
-	Units      display // display units of every output but JSON
+	// SurveyMinutes bounds the survey route of a site with no readings
+	// (survey-route.csv), minutes; 0 for every ranked reading.
+	SurveyMinutes float64
+	Thresholds    diagnose.Thresholds
+	Units         display // display units of every output but JSON
 }
 
 // job is the outcome of the main computation on one site.

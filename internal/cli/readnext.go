@@ -3,6 +3,7 @@ package cli
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"flowset/internal/balance"
@@ -89,7 +90,7 @@ func (j *job) surveyNote() string {
 			first = append(first, c.Where+" ("+strings.ReplaceAll(c.How.String(), "-", " ")+")")
 		}
 	}
-	return "Before setting anything from design data, survey the plant as found: read-next.csv lists where to read, in order of how much each reading lowers the plan's risk; first " + strings.Join(first, ", ") + "."
+	return "Before setting anything from design data, survey the plant as found: read-next.csv lists where to read, in order of how much each reading lowers the plan's risk (first " + strings.Join(first, ", ") + "), and survey-route.csv walks them in the order of the plant (--survey-minutes bounds the round)."
 }
 
 type readNextJSON struct {
@@ -131,4 +132,53 @@ func (j *job) readNextOut() readNextJSON {
 		out.Readings = append(out.Readings, readingOutJSON{Where: c.Where, How: c.How.String(), Expect: num(c.Expect), Low: num(c.Low), High: num(c.High), Unit: unit, Minutes: num(c.Minutes), Gain: num(c.Gain), Settles: c.Settles})
 	}
 	return out
+}
+
+// surveyRoute is the survey before the visit as a walk: the ranked readings
+// taken in the ranking's order while they fit in the time allowed
+// (jobOptions.SurveyMinutes, all of them for 0), then put in the order of
+// the plant (the pump first, in the plant room, then the branches in the
+// plan's walk: along the main headers from the pump outwards, a riser's
+// branches before the riser), so the technician reads them in one round.
+// It returns the readings in route order with each one's rank.
+func (j *job) surveyRoute() []rankedRead {
+	if !j.surveyPlan || j.Reads == nil || j.Plan == nil {
+		return nil
+	}
+	budget := j.opts.SurveyMinutes
+	var chosen []rankedRead
+	var used float64
+	for k, c := range j.Reads.Readings {
+		if budget > 0 && used+c.Minutes > budget {
+			continue
+		}
+		used += c.Minutes
+		chosen = append(chosen, rankedRead{k + 1, c})
+	}
+	stop := map[string]int{"pump": 0}
+	for k, b := range j.Plan.Branches {
+		stop[b.ID] = k + 1
+	}
+	slices.SortStableFunc(chosen, func(a, b rankedRead) int { return stop[a.Where] - stop[b.Where] })
+	return chosen
+}
+
+// surveyRouteRows is survey-route.csv.
+func (j *job) surveyRouteRows(u display) ([]string, [][]string) {
+	h := []string{"Stop", "Where", "Read by", "Design expects", "95 % band", "Unit", "Minutes", "Minutes so far", "Rank by value", "What it settles"}
+	var rows [][]string
+	var total float64
+	for k, r := range j.surveyRoute() {
+		c := r.Candidate
+		var exp, lo, hi, unit string
+		switch c.How {
+		case balance.AtPump:
+			exp, lo, hi, unit = u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
+		default:
+			exp, lo, hi, unit = u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
+		}
+		total += c.Minutes
+		rows = append(rows, []string{fmt.Sprint(k + 1), c.Where, readBy(c.How), exp, lo + " to " + hi, unit, fmt.Sprintf("%.0f", c.Minutes), fmt.Sprintf("%.0f", total), fmt.Sprint(r.Rank), c.Settles})
+	}
+	return h, rows
 }

@@ -50,6 +50,7 @@ func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 		cmd.Flags().StringVar(&o.job.Rounding, "rounding", "smart", "valve setting rounding: smart (keep branches in tolerance) or nearest")
 		cmd.Flags().StringVar(&o.job.Share, "share", "design-first", "when the pump cannot serve every target: design-first (branches that can reach target get it, the rest open fully) or proportional (all short by the same fraction)")
 		cmd.Flags().BoolVar(&o.job.DesignOnly, "design-only", false, "plan from the design data, ignoring the readings")
+		cmd.Flags().Float64Var(&o.job.SurveyMinutes, "survey-minutes", 0, "for a site with no readings yet: the time the survey may take, in minutes; survey-route.csv walks the readings worth most within it in route order (0: every ranked reading)")
 	}
 }
 
@@ -67,6 +68,9 @@ func (o *runOptions) validate(needOut bool) error {
 	}
 	if o.job.Share != "" && o.job.Share != "design-first" && o.job.Share != "proportional" {
 		return usagef("--share %q: want design-first or proportional", o.job.Share)
+	}
+	if !(o.job.SurveyMinutes >= 0 && o.job.SurveyMinutes <= 1e5) {
+		return usagef("--survey-minutes %g: want a time in minutes, 0 for every ranked reading", o.job.SurveyMinutes)
 	}
 	// Written so that NaN fails every test: a comparison with NaN is false.
 	if !(o.job.Scale >= 0.2 && o.job.Scale <= 2) {
@@ -350,6 +354,12 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 				}
 				if err := put("read-next.json", func(w io.Writer) error { return writeJSON(w, j.readNextOut()) }); err != nil {
 					return err
+				}
+				if j.surveyPlan {
+					h, rows := j.surveyRouteRows(o.job.Units)
+					if err := put("survey-route.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
+						return err
+					}
 				}
 			}
 		}
