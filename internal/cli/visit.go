@@ -47,6 +47,11 @@ func (j *job) remedies(ctx context.Context) error {
 		return nil
 	}
 	j.Remedy = map[string]*remedy{}
+	// A remedy's plan is read for its settings, pump and saving only:
+	// its uncertainty band and the robust check (which set nothing else)
+	// are left out, half of each such plan's time on a large site.
+	opts := j.planOptions()
+	opts.Uncertainty = nil
 	fix := func(idx []int) (*remedy, error) {
 		p := j.Params.Clone()
 		f := j.Fitted.Clone()
@@ -54,7 +59,8 @@ func (j *job) remedies(ctx context.Context) error {
 			p.Resistance[i] = 1
 			f.Resistance[i] = 1
 		}
-		pl, err := balance.Compute(ctx, j.L.Model, p, j.planOptions())
+		o := *opts
+		pl, err := balance.Compute(ctx, j.L.Model, p, &o)
 		if err != nil {
 			return nil, err
 		}
