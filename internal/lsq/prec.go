@@ -136,14 +136,19 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec 
 			continue
 		}
 		for a, j := range cs {
-			bp.gdiag[j] += w[i] * vs[a] * vs[a]
-			if block[j] < 0 {
+			// wa*v is w[i]*vs[a]*v as written out (left to right), so
+			// hoisting it changes no bit.
+			wa := w[i] * vs[a]
+			bp.gdiag[j] += wa * vs[a]
+			bj := block[j]
+			if bj < 0 {
 				continue
 			}
-			g, k := bp.gram[block[j]], len(bp.blocks[block[j]])
+			k := len(bp.blocks[bj])
+			g := bp.gram[bj][pos[j]*k : (pos[j]+1)*k]
 			for e, l := range cs {
-				if block[l] == block[j] {
-					g[pos[j]*k+pos[l]] += w[i] * vs[a] * vs[e]
+				if block[l] == bj {
+					g[pos[l]] += wa * vs[e]
 				}
 			}
 		}
