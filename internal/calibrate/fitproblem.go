@@ -106,6 +106,9 @@ type stateNet struct {
 	// bufL and bufN are scratch vectors over links and nodes for the
 	// matrix-free products.
 	bufL, bufN []float64
+	// outL, outN and outX receive the products' sensitivities (links,
+	// nodes, unknown pressures), so a CG iteration allocates nothing.
+	outL, outN, outX []float64
 	// kvGain is d(ln KvScale_i)/dx_j of each branch's valve parameter.
 	kvGain []float64
 	local  *localNet // for ApproxJacobian, built on first use
@@ -125,6 +128,16 @@ func (sn *stateNet) scratch() (links, nodes []float64) {
 	clear(sn.bufL)
 	clear(sn.bufN)
 	return sn.bufL, sn.bufN
+}
+
+// outputs returns sn's vectors for a product's result (links, nodes) and
+// the solve's scratch; their contents are overwritten.
+func (sn *stateNet) outputs() (links, nodes, x []float64) {
+	nl, nn := len(sn.sol.Flow), len(sn.sol.Pressure)
+	if len(sn.outL) != nl || len(sn.outN) != nn {
+		sn.outL, sn.outN, sn.outX = make([]float64, nl), make([]float64, nn), make([]float64, nn)
+	}
+	return sn.outL, sn.outN, sn.outX
 }
 
 // problem is the calibration least-squares problem for the engine.
@@ -862,8 +875,8 @@ func (p opProblem) MulVec(dst, v []float64) {
 				dh[t.i] += vj * t.c
 			}
 		}
-		dq, dp, err := sn.sol.Sensitivity(dh)
-		if err != nil {
+		dq, dp, x := sn.outputs()
+		if err := sn.sol.SensitivityInto(dh, dq, dp, x); err != nil {
 			// The factor was valid when the state was solved: an error here
 			// is a non-finite v, which the engine rules out.
 			fillNaN(dst)
@@ -909,8 +922,8 @@ func (p opProblem) MulTransVec(dst, w []float64) {
 				dst[t.i] += c * t.c
 			}
 		}
-		g, err := sn.sol.SensitivityT(wq, wp)
-		if err != nil {
+		g, _, x := sn.outputs()
+		if err := sn.sol.SensitivityTInto(wq, wp, g, x); err != nil {
 			fillNaN(dst)
 			return
 		}

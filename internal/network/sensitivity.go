@@ -18,17 +18,32 @@ import "fmt"
 func (s *Solution) Sensitivity(dh []float64) (dq, dp []float64, err error) {
 	pl := s.pl
 	dq = make([]float64, len(s.d))
-	x := make([]float64, pl.nFree)
-	if err := s.SensitivityFlows(dh, dq, x); err != nil {
+	dp = make([]float64, len(pl.pos))
+	if err := s.SensitivityInto(dh, dq, dp, make([]float64, pl.nFree)); err != nil {
 		return nil, nil, err
 	}
-	dp = make([]float64, len(pl.pos))
+	return dq, dp, nil
+}
+
+// SensitivityInto is Sensitivity written into dq (one per link) and dp (one
+// per node), with scratch of at least one per unknown pressure; it
+// allocates nothing, for the fit's Jacobian products, one per iteration.
+func (s *Solution) SensitivityInto(dh, dq, dp, scratch []float64) error {
+	pl := s.pl
+	if len(dp) != len(pl.pos) {
+		return fmt.Errorf("sensitivity: %d pressure changes for %d nodes: %w", len(dp), len(pl.pos), ErrInput)
+	}
+	if err := s.SensitivityFlows(dh, dq, scratch); err != nil {
+		return err
+	}
 	for node, pos := range pl.pos {
 		if pos >= 0 {
-			dp[node] = x[pos]
+			dp[node] = scratch[pos]
+		} else {
+			dp[node] = 0
 		}
 	}
-	return dq, dp, nil
+	return nil
 }
 
 // SensitivityFlows is Sensitivity's flow changes written into dq (one per
@@ -117,19 +132,33 @@ func (s *Solution) OwnSensitivities(own []float64) error {
 //
 // A nil wq or wp counts as zeros.
 func (s *Solution) SensitivityT(wq, wp []float64) ([]float64, error) {
+	g := make([]float64, len(s.d))
+	if err := s.SensitivityTInto(wq, wp, g, make([]float64, s.pl.nFree)); err != nil {
+		return nil, err
+	}
+	return g, nil
+}
+
+// SensitivityTInto is SensitivityT written into g (one per link), with
+// scratch of at least one per unknown pressure; it allocates nothing.
+func (s *Solution) SensitivityTInto(wq, wp, g, scratch []float64) error {
 	nl := len(s.d)
 	pl := s.pl
 	if wq != nil && len(wq) != nl {
-		return nil, fmt.Errorf("sensitivity: %d flow weights for %d links: %w", len(wq), nl, ErrInput)
+		return fmt.Errorf("sensitivity: %d flow weights for %d links: %w", len(wq), nl, ErrInput)
 	}
 	if wp != nil && len(wp) != len(pl.pos) {
-		return nil, fmt.Errorf("sensitivity: %d pressure weights for %d nodes: %w", len(wp), len(pl.pos), ErrInput)
+		return fmt.Errorf("sensitivity: %d pressure weights for %d nodes: %w", len(wp), len(pl.pos), ErrInput)
 	}
-	r := make([]float64, pl.nFree)
+	if len(g) != nl || len(scratch) < pl.nFree {
+		return fmt.Errorf("sensitivity: %d results and scratch of %d for %d links and %d unknown pressures: %w", len(g), len(scratch), nl, pl.nFree, ErrInput)
+	}
+	r := scratch[:pl.nFree]
+	clear(r)
 	for node, pos := range pl.pos {
 		if pos >= 0 && wp != nil {
 			if !finite(wp[node]) {
-				return nil, fmt.Errorf("sensitivity: pressure weight %d is %g: %w", node, wp[node], ErrElement)
+				return fmt.Errorf("sensitivity: pressure weight %d is %g: %w", node, wp[node], ErrElement)
 			}
 			r[pos] = wp[node]
 		}
@@ -143,7 +172,7 @@ func (s *Solution) SensitivityT(wq, wp []float64) ([]float64, error) {
 	for i := range nl {
 		v := w(i)
 		if !finite(v) {
-			return nil, fmt.Errorf("sensitivity: flow weight %d is %g: %w", i, v, ErrElement)
+			return fmt.Errorf("sensitivity: flow weight %d is %g: %w", i, v, ErrElement)
 		}
 		t := v / s.d[i]
 		if a := pl.pa[i]; a >= 0 {
@@ -155,13 +184,12 @@ func (s *Solution) SensitivityT(wq, wp []float64) ([]float64, error) {
 	}
 	y, err := s.solveS(r)
 	if err != nil {
-		return nil, err
+		return err
 	}
-	g := make([]float64, nl)
 	for i := range g {
 		g[i] = -(w(i) + at(y, pl.pb[i]) - at(y, pl.pa[i])) / s.d[i]
 	}
-	return g, nil
+	return nil
 }
 
 // solveS solves S x = r with the kept factor.
