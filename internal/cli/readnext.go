@@ -48,16 +48,19 @@ func (j *job) readNextRows(u display) ([]string, [][]string) {
 		return h, rows
 	}
 	for k, c := range j.Reads.Readings {
-		var exp, lo, hi, unit string
-		switch c.How {
-		case balance.AtPump:
-			exp, lo, hi, unit = u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
-		default:
-			exp, lo, hi, unit = u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
-		}
+		exp, lo, hi, unit := readValues(c, u)
 		rows = append(rows, []string{fmt.Sprint(k + 1), c.Where, readBy(c.How), exp, lo + " to " + hi, unit, fmt.Sprintf("%.0f", c.Minutes), fmt.Sprintf("%.3f", c.Gain), c.Settles})
 	}
 	return h, rows
+}
+
+// readValues is what a ranked reading should give, its band and their unit,
+// in the display's units: a differential at the pump, a flow elsewhere.
+func readValues(c balance.Candidate, u display) (exp, lo, hi, unit string) {
+	if c.How == balance.AtPump {
+		return u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
+	}
+	return u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
 }
 
 // readBy says how a reading is taken, in a technician's words.
@@ -170,13 +173,7 @@ func (j *job) surveyRouteRows(u display) ([]string, [][]string) {
 	var total float64
 	for k, r := range j.surveyRoute() {
 		c := r.Candidate
-		var exp, lo, hi, unit string
-		switch c.How {
-		case balance.AtPump:
-			exp, lo, hi, unit = u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
-		default:
-			exp, lo, hi, unit = u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
-		}
+		exp, lo, hi, unit := readValues(c, u)
 		total += c.Minutes
 		rows = append(rows, []string{fmt.Sprint(k + 1), c.Where, readBy(c.How), exp, lo + " to " + hi, unit, fmt.Sprintf("%.0f", c.Minutes), fmt.Sprintf("%.0f", total), fmt.Sprint(r.Rank), c.Settles})
 	}
