@@ -247,12 +247,29 @@ func (t Table) SettingFor(kv float64) (float64, error) {
 	k := j - 1
 	target := math.Log(kv)
 	lo, hi := t.Settings[k], t.Settings[k+1]
+	// The interval's Hermite coefficients, found once: the bisection
+	// takes about fifty steps, and eval would look them up (or take
+	// logarithms) and work out the slope at every one. lnKvAt is eval's
+	// y, the same expression, so the same bits.
+	var y0, y1, m0, m1 float64
+	if p := t.prepared(); p != nil {
+		y0, y1, m0, m1 = p.lnKv[k], p.lnKv[k+1], p.slope[k], p.slope[k+1]
+	} else {
+		y0, y1 = math.Log(t.Kv[k]), math.Log(t.Kv[k+1])
+		m0, m1 = t.nodeSlope(k), t.nodeSlope(k+1)
+	}
+	x0, h := t.Settings[k], t.Settings[k+1]-t.Settings[k]
+	lnKvAt := func(s float64) float64 {
+		u := (s - x0) / h
+		u2, u3 := u*u, u*u*u
+		return (2*u3-3*u2+1)*y0 + (u3-2*u2+u)*h*m0 + (-2*u3+3*u2)*y1 + (u3-u2)*h*m1
+	}
 	for range 200 {
 		mid := lo + (hi-lo)/2
 		if mid <= lo || mid >= hi {
 			break
 		}
-		if y, _ := t.eval(k, mid); y < target {
+		if y := lnKvAt(mid); y < target {
 			lo = mid
 		} else {
 			hi = mid

@@ -64,6 +64,11 @@ func (s *Solution) SensitivityFlows(dh, dq, scratch []float64) error {
 	r := scratch[:pl.nFree]
 	clear(r)
 	for i, v := range dh {
+		if v == 0 {
+			// Most links' drops do not change; r holds no -0, so
+			// adding ±0 would change nothing.
+			continue
+		}
 		if !finite(v) {
 			return fmt.Errorf("sensitivity: drop change %d is %g: %w", i, v, ErrElement)
 		}
