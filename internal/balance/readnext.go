@@ -437,7 +437,22 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	// to the bit (a SymDense's copy, the model error added to both
 	// halves) and each update keeps it so, since col[x]*col[y] is
 	// col[y]*col[x]: the values read are the ones the full update gave.
+	//
+	// Read in the plan's state, a branch's clamp-on row is its flow row
+	// (outerRows; the model error is added to both alike), and the
+	// updates keep it so: the clamp-on rows, [lo, hi), are not updated
+	// and ka reads the flow rows for them.
+	lo, hi := nr, nr
+	if o.ReadAt == nil {
+		lo, hi = rowClamp(0), rowClamp(0)+nf
+	}
 	ka := func(x, y int) float64 {
+		if x >= lo && x < hi {
+			x -= 2 * nf
+		}
+		if y >= lo && y < hi {
+			y -= 2 * nf
+		}
 		if x > y {
 			x, y = y, x
 		}
@@ -506,7 +521,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	}
 	observe := func(c *cand) {
 		for q, row := range c.rows {
-			d := K.At(row, row) + c.r[q]
+			d := ka(row, row) + c.r[q]
 			if !(d > 0) {
 				continue
 			}
@@ -517,12 +532,23 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			// On K's rows directly: At and Set cost more than the
 			// update itself (nr is about 900 at 1,000 branches). The
 			// same operations as K.Set(x, y, K.At(x, y)-col[x]*col[y]/d),
-			// so the same bits, on the upper triangle.
-			for x := range nr {
-				kr := K.RawRowView(x)[x:nr]
-				cx := col[x]
-				for y, cy := range col[x:] {
+			// so the same bits, on the upper triangle less the
+			// clamp-on rows and columns.
+			upd := func(kr, col []float64, cx float64) {
+				for y, cy := range col {
 					kr[y] -= cx * cy / d
+				}
+			}
+			for x := range nr {
+				if x >= lo && x < hi {
+					continue
+				}
+				kr := K.RawRowView(x)
+				if x < lo {
+					upd(kr[x:lo], col[x:lo], col[x])
+					upd(kr[hi:nr], col[hi:nr], col[x])
+				} else {
+					upd(kr[x:nr], col[x:nr], col[x])
 				}
 			}
 		}
