@@ -385,6 +385,12 @@ type PumpOption struct {
 	Duties             []plant.PumpDuty
 	Electrical         float64
 	AnnualEnergySaving float64
+	// Where they do not serve, FlatOutInBand of FlatOutBranches branches
+	// with a target are still inside the tolerance band with these pumps
+	// flat out and the plan's settings, and FlatOutLowest is the lowest
+	// flow as % of target (NaN, zeros when not worked out).
+	FlatOutInBand, FlatOutBranches int
+	FlatOutLowest                  float64
 }
 
 // BranchPlan is the plan for one branch.

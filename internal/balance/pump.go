@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"flowset/internal/hydraulics"
+	"flowset/internal/network"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -105,7 +106,7 @@ func (pl *planner) pumpPlan(ctx context.Context, sol *plant.Solved) error {
 		if perPump {
 			pp.ElectricalAfter = shaft(pp.Duties, m) / etaM
 		}
-		pl.fewer(pp, etaP, etaM, perPump)
+		pl.fewer(ctx, pp, etaP, etaM, perPump)
 	}
 	if !pp.HaveBefore {
 		return nil
@@ -142,7 +143,7 @@ func shaft(ds []plant.PumpDuty, m *plant.Model) float64 {
 // gives the plan's duty: the same flow at the same pump differential, so
 // every branch keeps its planned flow. The pump that stops is the last one
 // running (the pumps start in the pump sheet's order).
-func (pl *planner) fewer(pp *PumpPlan, etaP, etaM float64, perPump bool) {
+func (pl *planner) fewer(ctx context.Context, pp *PumpPlan, etaP, etaM float64, perPump bool) {
 	m := pl.m
 	if m.Series || pl.running < 2 {
 		return
@@ -150,12 +151,13 @@ func (pl *planner) fewer(pp *PumpPlan, etaP, etaM float64, perPump bool) {
 	n := pl.running - 1
 	set := m.Set(pl.p.PumpHead, n)
 	q, d := pp.After.Flow, pp.After.Differential
-	o := &PumpOption{Running: n, Speed: math.NaN(), Electrical: math.NaN(), AnnualEnergySaving: math.NaN()}
+	o := &PumpOption{Running: n, Speed: math.NaN(), Electrical: math.NaN(), AnnualEnergySaving: math.NaN(), FlatOutLowest: math.NaN()}
 	h, _ := set.AtSpeed(m.MaxSpeed()).Head(q)
 	o.Available = h * m.Fluid.Density * hydraulics.StandardGravity
 	o.Serves = o.Available >= d*(1-1e-9)
 	pp.Fewer = o
 	if !o.Serves {
+		pl.flatOut(ctx, o, set)
 		return
 	}
 	if o.Speed = min(set.SpeedFor(q, d, m.Fluid), m.MaxSpeed()); !finite(o.Speed) {
@@ -252,4 +254,42 @@ func (pl *planner) beforeControlled(ctx context.Context, found []float64, d floa
 	}
 	_, sol, err := pl.root(ctx, found, m.MaxSpeed(), top, func(sv *plant.Solved) float64 { return read(sv)/d - 1 }, rootTol)
 	return sol, "", err
+}
+
+// flatOut fills o's flat-out figures: the plan's settings with set's pumps
+// at the drive's maximum speed, and how many branches then stay inside the
+// tolerance band. Not giving the planned duty (its margins included) is
+// not the same as failing the branches: a pump fewer may still keep them
+// all in tolerance. Left as it is when the network cannot be solved.
+func (pl *planner) flatOut(ctx context.Context, o *PumpOption, set hydraulics.PumpSet) {
+	m := pl.m
+	l, err := m.Ladder(pl.p, pl.plan.Settings, pl.setPoints)
+	if err != nil {
+		return
+	}
+	b, err := network.Build(l, network.Source{Pump: set.AtSpeed(m.MaxSpeed()), Lift: pl.lift}, m.Fluid)
+	if err != nil {
+		return
+	}
+	sol, err := b.Net.Solve(ctx, &network.Options{Initial: pl.flows})
+	if err != nil {
+		return
+	}
+	s := &plant.Solved{Model: m, Params: pl.p, State: pl.state(pl.plan.Settings, m.MaxSpeed()), Built: b, Sol: sol}
+	lowest := math.Inf(1)
+	for _, bp := range pl.plan.Branches {
+		i, ok := m.Index(bp.ID)
+		if !ok || !(bp.Target > 0) || m.Branches[i].Riser() {
+			continue
+		}
+		pct := 100 * s.Flow(i) / bp.Target
+		o.FlatOutBranches++
+		if pl.inBand(pct) {
+			o.FlatOutInBand++
+		}
+		lowest = min(lowest, pct)
+	}
+	if o.FlatOutBranches > 0 {
+		o.FlatOutLowest = lowest
+	}
 }

@@ -62,6 +62,7 @@ func TestPlanPumps(t *testing.T) {
 	}{
 		{"two running, one serves", 80e3, 0.012, 2, 2, false, true},
 		{"two running, one cannot", 80e3, 0.024, 2, 2, false, false},
+		{"two running, one far short", 40e3, 0.036, 2, 2, false, false},
 		{"three running, two serve", 150e3, 0.030, 3, 3, false, true},
 		{"controlled, two running, one serves", 80e3, 0.012, 2, 2, true, true},
 		{"duty and standby: none to spare", 80e3, 0.012, 2, 1, false, false},
@@ -109,6 +110,13 @@ func TestPlanPumps(t *testing.T) {
 			if !tc.fewerServes {
 				if !math.IsNaN(o.Speed) || !math.IsNaN(o.Electrical) {
 					t.Errorf("one fewer that cannot serve: speed %g, power %g; want NaN", o.Speed, o.Electrical)
+				}
+				// Flat out, the pumps left meet the branch's square law at
+				// H0 - a(Q/f)² = b Q²: Q = sqrt(H0/(a/f² + b)) (computed).
+				q1 := math.Sqrt(h0 / (a/(f*f) + b))
+				pct := 100 * q1 / tc.qt
+				if o.FlatOutBranches != 1 || math.Abs(o.FlatOutLowest/pct-1) > 1e-6 || (o.FlatOutInBand == 1) != (math.Abs(pct-100) <= 10) {
+					t.Errorf("one fewer flat out: %d of %d in band, lowest %.6g %%; want 1 branch at %.6g %%", o.FlatOutInBand, o.FlatOutBranches, o.FlatOutLowest, pct)
 				}
 				return
 			}

@@ -84,6 +84,11 @@ type optionJSON struct {
 	ElectricW   num        `json:"electrical_power_w"`
 	AnnualKWh   num        `json:"annual_energy_saving_kwh"`
 	Duties      []dutyJSON `json:"duties"`
+	// FlatOut* are, where they do not serve, the branches still in
+	// tolerance with these pumps flat out at the plan's settings.
+	FlatOutInBand   int `json:"flat_out_branches_in_tolerance"`
+	FlatOutBranches int `json:"flat_out_branches"`
+	FlatOutLowest   num `json:"flat_out_lowest_percent_of_target"`
 }
 
 func dutiesOut(ds []plant.PumpDuty) []dutyJSON {
@@ -195,7 +200,8 @@ func (j *job) planOut(generated string) planJSON {
 		}
 		if o := pp.Fewer; o != nil {
 			ps.OneFewer = &optionJSON{Running: o.Running, Serves: o.Serves, AvailablePa: num(o.Available), Speed: num(o.Speed),
-				ElectricW: num(o.Electrical), AnnualKWh: num(o.AnnualEnergySaving), Duties: dutiesOut(o.Duties)}
+				ElectricW: num(o.Electrical), AnnualKWh: num(o.AnnualEnergySaving), Duties: dutiesOut(o.Duties),
+				FlatOutInBand: o.FlatOutInBand, FlatOutBranches: o.FlatOutBranches, FlatOutLowest: num(o.FlatOutLowest)}
 		}
 		out.Pump.Pumps = ps
 	}

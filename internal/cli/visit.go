@@ -534,8 +534,16 @@ func (j *job) pumpsLines(u display) []string {
 	}
 	switch {
 	case !o.Serves:
-		out = append(out, fmt.Sprintf("One pump fewer would not serve: %s, flat out, %s %s at %s; the plan needs %s.",
-			who, give, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))
+		l := fmt.Sprintf("One pump fewer would not give the planned duty: %s, flat out, %s %s at %s; the plan needs %s.",
+			who, give, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential))
+		switch {
+		case o.FlatOutBranches == 0:
+		case o.FlatOutInBand == o.FlatOutBranches:
+			l += fmt.Sprintf(" Flat out with the settings below it would still keep every branch within tolerance (the lowest at %.0f %% of target): a standby option if the duty's margins can be given up.", o.FlatOutLowest)
+		default:
+			l += fmt.Sprintf(" Flat out with the settings below it would leave %d of %d branches outside tolerance (the lowest at %.0f %% of target).", o.FlatOutBranches-o.FlatOutInBand, o.FlatOutBranches, o.FlatOutLowest)
+		}
+		out = append(out, l)
 	case !finite(o.Electrical):
 		out = append(out, fmt.Sprintf("One pump fewer would serve: %s, flat out, %s %s at %s; the plan needs %s.",
 			who, give, u.diff(o.Available), u.flow(pp.After.Flow), u.diff(pp.After.Differential)))

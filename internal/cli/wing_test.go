@@ -44,7 +44,7 @@ func TestWingSite(t *testing.T) {
 		t.Fatalf("run wing: exit %d, want %d:\n%s%s", code, ExitOK, stdout, errs)
 	}
 	flat := strings.Join(strings.Fields(stdout), " ")
-	for _, want := range []string{"gpm", "psi", "P1 and P2 run in parallel", "One pump fewer would not serve", "differential controller"} {
+	for _, want := range []string{"gpm", "psi", "P1 and P2 run in parallel", "One pump fewer would not give the planned duty", "differential controller"} {
 		if !strings.Contains(flat, want) {
 			t.Errorf("console does not say %q:\n%s", want, stdout)
 		}
