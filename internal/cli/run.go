@@ -299,7 +299,13 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return j.shortErr(o)
 	}
 	var in report.Input
-	if o.writeReport {
+	switch {
+	case j.Trim != nil:
+		pr.step("drawing the report")
+		if in, err = j.trimReportInput(ctx, generated); err != nil {
+			return &dataError{fmt.Errorf("report: %w", err)}
+		}
+	case o.writeReport:
 		pr.step("drawing the report")
 		if in, err = j.reportInput(ctx, generated); err != nil {
 			return &dataError{fmt.Errorf("report: %w", err)}
@@ -318,7 +324,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			}
 			return w.Close()
 		}
-		if o.writeFit || o.writeReport {
+		if o.writeFit || o.writeReport || j.Trim != nil {
 			if err := put("calibration.json", func(w io.Writer) error { return writeJSON(w, j.calibrationOut(generated)) }); err != nil {
 				return err
 			}
@@ -374,7 +380,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 				return err
 			}
 		}
-		if o.writeReport {
+		if o.writeReport || j.Trim != nil {
 			if err := put("report.html", func(w io.Writer) error { return report.Write(w, in) }); err != nil {
 				return err
 			}
@@ -385,7 +391,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return err
 	}
 	if !o.Quiet && !o.JSON {
-		if o.writeReport {
+		if o.writeReport || j.Trim != nil {
 			fmt.Fprintf(ios.Out, "\nreport: %s\n", shown(filepath.Join(o.Out, "report.html")))
 		}
 		fmt.Fprintf(ios.Out, "outputs written to %s\n", shown(o.Out))

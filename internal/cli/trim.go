@@ -44,7 +44,10 @@ branch as left whether the readings prove it in tolerance, prove it out, or
 cannot tell. It then gives small setting corrections for the branches outside
 the inner half of the band and a pump correction, and compares each branch as
 found, as left and after the trims. With --out it writes trim.csv (the field
-sheet of the round) and trim.json.`,
+sheet of the round), trim.json, report.html (the round's report: every
+branch as found, as the plan predicted it and as left, what is proven and
+what is only predicted, the trims and the pump correction) and the fit of
+every state (calibration.csv/json, findings.csv, readings.csv).`,
 		Args: exactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Site = args[0]
@@ -396,4 +399,95 @@ func padRows(rows [][]string, k int) [][]string {
 		out[i] = append(append([]string(nil), r...), make([]string, k)...)
 	}
 	return out
+}
+
+// trimReport is the round as the report draws it: the summary, the pump
+// correction, the branches to act on in walk order and every branch as
+// found, predicted and as left.
+func (j *job) trimReport(u display) *report.Trim {
+	tp := j.Trim
+	rt := &report.Trim{State: tp.Label, Summary: j.trimSummary(u), File: "trim.csv and trim.json"}
+	switch {
+	case tp.BySpeed:
+		rt.Pump = report.PumpStep{From: u.speed(tp.PumpLeft) + " speed", To: u.speed(tp.PumpNew) + " speed", Where: "the pump's drive speed"}
+	default:
+		rt.Pump = report.PumpStep{From: u.diff(tp.PumpLeft), To: u.diff(tp.PumpNew), Where: "the differential set point at " + sensorName(j.L.Site.Boundary.Sensor)}
+	}
+	if !tp.PumpChanged {
+		rt.Pump.To += " (leave it as it is)"
+	}
+	rt.Trims = report.Table{Columns: []string{"#", "Branch", "As left (% of target)", "Setting as left", "Trim to", "Then (% of target)", "Why"},
+		WriteIn: []string{"Done (tick)", "Initials"}, File: "trim.csv"}
+	for _, b := range tp.Branches {
+		found := math.NaN()
+		if j.Before != nil {
+			found = 100 * j.Before.Flow(b.Index) / b.Target
+		}
+		pred, ok := j.planPredicted[b.ID]
+		if !ok {
+			pred = math.NaN()
+		}
+		note := b.Note
+		if b.Verdict == balance.Undecided && !j.readLeft[b.ID] && note == "" && !b.Trimmed {
+			note = "not read after setting and its band leaves the tolerance: read it"
+		}
+		rb := report.TrimBranch{ID: b.ID, Found: found, Predicted: pred, Left: b.LeftPercent, LeftLow: b.LeftLow, LeftHigh: b.LeftHigh,
+			After: b.AfterPercent, Read: j.readLeft[b.ID], Verdict: b.Verdict.String(), Proven: b.Verdict == balance.ProvenIn, Note: note}
+		if b.Trimmed {
+			rb.Trim = settingText(b.New, b.Unit)
+		}
+		rt.Branches = append(rt.Branches, rb)
+		if rb.Trim == "" && note == "" {
+			continue
+		}
+		why := note
+		if why == "" {
+			how := "the model fitted to every state puts it"
+			if rb.Read {
+				how = "read after setting, the fit puts it"
+			}
+			why = fmt.Sprintf("%s at %.1f %% (95 %% %.1f to %.1f)", how, b.LeftPercent, b.LeftLow, b.LeftHigh)
+		}
+		rt.Trims.Rows = append(rt.Trims.Rows, []string{fmt.Sprint(len(rt.Trims.Rows) + 1), b.ID, fmt.Sprintf("%.1f", b.LeftPercent),
+			dashed(settingText(b.Left, b.Unit)), dashed(rb.Trim), fmt.Sprintf("%.1f", b.AfterPercent), why})
+	}
+	return rt
+}
+
+// dashed is s, or "-" when empty.
+func dashed(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}
+
+// trimReportInput is the report of the round: the job's report (the model
+// fitted to every state) with the round's pages in front, its summary
+// comparing as found with as left.
+func (j *job) trimReportInput(ctx context.Context, generated string) (report.Input, error) {
+	in, err := j.reportInput(ctx, generated)
+	if err != nil {
+		return in, err
+	}
+	u := j.opts.Units
+	in.Trim = j.trimReport(u)
+	n := len(j.Trim.Branches)
+	in.Summary.InAfter, in.Summary.OutAfter = j.Trim.InBefore, n-j.Trim.InBefore
+	in.Summary.SetpointAfter = in.Trim.Pump.From + " as left"
+	// The visit and the plan's field sheet are the plan's, not the
+	// round's: the round's pages replace them.
+	in.Visit = report.Visit{}
+	in.Plan = report.Table{}
+	in.Files = "trim.csv, trim.json, calibration.csv"
+	// The plan's own notes (its pump, its energy) are the re-computed
+	// plan's, which the round does not ask for; the fit's stay.
+	in.Summary.Notes = nil
+	if j.Cal != nil && !j.Cal.Converged {
+		in.Summary.Notes = append(in.Summary.Notes, fmt.Sprintf("The calibration stopped without converging (%s): treat its figures with care.", j.Cal.Status))
+	}
+	if w := fitWarning(j.Cal); w != "" {
+		in.Summary.Notes = append(in.Summary.Notes, "Warning: "+w+".")
+	}
+	return in, nil
 }

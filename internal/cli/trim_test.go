@@ -61,6 +61,27 @@ func TestTrimDemo(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(out, "trim.csv")); err != nil {
 		t.Error(err)
 	}
+	// The round's report: its pages, every branch with where its flow as
+	// left comes from, and the safety cautions.
+	page, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"After setting, proof and trims", `id="proof"`, `id="trims"`, `id="left"`, "fs-trim", "Safety", "Every figure here is a prediction"} {
+		if !strings.Contains(string(page), want) {
+			t.Errorf("report.html lacks %q", want)
+		}
+	}
+	for _, br := range tj.Branches {
+		if !strings.Contains(string(page), ">"+br.ID+"<") && !strings.Contains(string(page), ">"+br.ID+"</span>") {
+			t.Errorf("report.html lacks branch %s", br.ID)
+		}
+	}
+	for _, name := range []string{"calibration.csv", "findings.csv", "readings.csv"} {
+		if _, err := os.Stat(filepath.Join(out, name)); err != nil {
+			t.Errorf("the report names %s beside it: %v", name, err)
+		}
+	}
 	// --json prints what trim.json holds.
 	code, stdout, stderr = run(t, "trim", surveyDir("demo"), "--plan", filepath.Join(plan, "plan.json"), "--json")
 	if code != 0 && code != 5 {

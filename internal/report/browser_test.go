@@ -220,6 +220,9 @@ func TestBrowser(t *testing.T) {
 		{"hostile names", hostileInput()},
 		{"hostile names, large site", hostileLarge()},
 		{"sample", sampleInput()},
+		{"trim", trimInput()},
+		{"trim, hostile names", makeHostile(trimInput())},
+		{"trim, large site", withTrim(siteInput(300))},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			file := writeFile(t, tc.in)

@@ -43,7 +43,7 @@ func large(in *Input) bool {
 			return true
 		}
 	}
-	return false
+	return in.Trim != nil && (len(in.Trim.Branches) > maxStaticRows || len(in.Trim.Trims.Rows) > maxStaticRows)
 }
 
 // viewTable is a Table as the page writes it: all its rows, or, when

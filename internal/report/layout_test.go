@@ -42,6 +42,13 @@ const firstPageJS = `["before", "fix", "pump"].map(id => {
 	return h ? h.getBoundingClientRect().bottom + window.scrollY : -1;
 })`
 
+// trimFirstPageJS is firstPageJS for the round after setting: its first
+// step and the pump.
+const trimFirstPageJS = `["proof", "pump"].map(id => {
+	const h = document.querySelector("#" + id + " h2");
+	return h ? h.getBoundingClientRect().bottom + window.scrollY : -1;
+})`
+
 type overflow struct {
 	Page   int      `json:"page"`
 	Tables []string `json:"tables"`
@@ -67,10 +74,14 @@ func TestBrowserLayout(t *testing.T) {
 		// and settings, the finder, the appendix's three) and a bounded set
 		// of charts, whatever its size.
 		{"1000 branches", siteInput(1000), 32},
+		// The round after setting: its four steps, then the appendix
+		// without the plan's charts.
+		{"trim", trimInput(), 8},
+		{"trim, 1000 branches", withTrim(siteInput(1000)), 24},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			in := tc.in
-			if len(in.Visit.Settings.Rows) == 0 {
+			if in.Trim == nil && len(in.Visit.Settings.Rows) == 0 {
 				in.Visit = sampleInput().Visit
 				in.Visit.Settings.Rows = nil
 				for i, b := range in.Branches {
@@ -112,11 +123,15 @@ func TestBrowserLayout(t *testing.T) {
 			if _, err := chromedp.Call(ctx, emulation.SetDeviceMetricsOverride, emulation.SetDeviceMetricsOverrideParams{Width: 703, Height: 1009, DeviceScaleFactor: 1}); err != nil {
 				t.Fatal(err)
 			}
-			bottoms, err := chromedp.Run(ctx, chromedp.Evaluate[[]float64](firstPageJS))
+			heads, js := []string{"before you start", "fix first", "pump"}, firstPageJS
+			if in.Trim != nil {
+				heads, js = []string{"as left", "pump"}, trimFirstPageJS
+			}
+			bottoms, err := chromedp.Run(ctx, chromedp.Evaluate[[]float64](js))
 			if err != nil {
 				t.Fatal(err)
 			}
-			for k, id := range []string{"before you start", "fix first", "pump"} {
+			for k, id := range heads {
 				if bottoms[k] < 0 || bottoms[k] > 1009 {
 					t.Errorf("printed, the heading %q ends at %.0f px, not on the first page (1009 px)", id, bottoms[k])
 				}

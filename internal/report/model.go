@@ -37,6 +37,12 @@ type Input struct {
 	// Visit is the order of work on site: the report's first pages.
 	Visit Visit
 
+	// Trim, when not nil, makes the report the round after setting: its
+	// first pages are the round's (what the readings prove, the pump, the
+	// trims, every branch as found, predicted and as left) instead of the
+	// visit's, and the appendix is the model fitted to every state.
+	Trim *Trim
+
 	Plan      Table // the full field sheet (appendix): every column, in walk order
 	Diagnosis Table // findings with their evidence
 	Readings  Table // every reading with its residual
@@ -285,6 +291,9 @@ func (in *Input) validate() error {
 				errs = append(errs, fmt.Errorf("%s table row %d has %d cells, want %d: %w", t.n, i, len(r), len(t.t.Columns), ErrInvalid))
 			}
 		}
+	}
+	if in.Trim != nil {
+		errs = append(errs, in.Trim.validate(num)...)
 	}
 	if len(errs) > 10 {
 		errs = append(errs[:10], fmt.Errorf("and %d more", len(errs)-10))

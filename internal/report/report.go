@@ -66,16 +66,27 @@ type pageData struct {
 	Cautions []string
 	HowTo    []string
 	Summary  []summaryRow
-	Faults   []string
-	More     int
-	Sections []section
-	Tables   []viewTable
+	// AfterHead heads the summary's second column ("After plan", or "As
+	// left" for the round after setting).
+	AfterHead string
+	Faults    []string
+	More      int
+	Sections  []section
+	Tables    []viewTable
 	// The visit's tables as written: whole, or a page of a long one; Fixes
 	// only when the fixes are shown a page at a time.
 	Fixes, Settings, Remedied, Prove viewTable
 	// Warnings of the site check, grouped by kind.
 	Warnings      []warnGroup
 	WarningsWhere string
+	// Trim is the round after setting (nil for a visit): its chart of
+	// as found, predicted and as left, its list of trims and its
+	// branch-by-branch table.
+	Trim      *Trim
+	TrimChart []chart
+	TrimNote  string
+	Trims     viewTable
+	TrimAll   viewTable
 	// Large is the large-site form; Branches and Flagged count the
 	// branches for the finder.
 	Large             bool
@@ -190,12 +201,27 @@ func build(in *Input) (*pageData, error) {
 		"Point at a chart for values. The tables at the end list every setting, finding and reading.",
 	}
 	s := &in.Summary
+	p.AfterHead = "After plan"
 	p.Summary = []summaryRow{
 		{"Branches in tolerance (" + tol + " of design)", strconv.Itoa(s.InBefore), strconv.Itoa(s.InAfter)},
 		{"Branches outside tolerance", strconv.Itoa(s.OutBefore), strconv.Itoa(s.OutAfter)},
 		{"Pump set-point", dash(s.SetpointBefore), dash(s.SetpointAfter)},
 		{"Pump speed, after ÷ as found", "", fnum(s.SpeedRatio)},
 		{"Energy", "", dash(s.EnergySaving)},
+	}
+	trim := in.Trim != nil
+	if trim {
+		// The round after setting: the summary compares as found with
+		// as left, and the appendix is the model fitted to every state.
+		p.Trim, p.AfterHead = in.Trim, "As left (model)"
+		p.Summary = p.Summary[:3]
+		p.HowTo = []string{
+			"A branch is in tolerance when its flow is within " + tol + " of its target flow.",
+			"“As found” is the circuit before any change; “predicted” is what the plan the valves were set to said; “as left” is the model fitted to every survey state, the readings taken after setting included.",
+			"A branch read after setting is pinned by its reading; one not read is a prediction, and its 95 % band (error bars, shaded bands) says how far it may be wrong. Only a branch whose whole band lies inside the tolerance is proven in tolerance.",
+			"Dashed lines and hollow circles mean as found; solid lines mean fitted to every state; triangles mark flagged branches.",
+			"Point at a chart for values. The tables at the end list every finding and reading.",
+		}
 	}
 	p.Faults = s.Faults
 	if len(p.Faults) > maxFaults {
@@ -204,7 +230,7 @@ func build(in *Input) (*pageData, error) {
 	}
 
 	p.Large = large(in)
-	if p.Large {
+	if p.Large && !trim {
 		p.HowTo[len(p.HowTo)-1] = "Point at a chart for values. The branch finder (" + letter(0) + ") holds every branch; the long tables show a page at a time, with a search box, and name the file beside this report that holds each whole."
 	}
 	p.Warnings, p.WarningsWhere = groupWarnings(in.Warnings), in.WarningsWhere
@@ -234,7 +260,9 @@ func build(in *Input) (*pageData, error) {
 		}
 		if len(pick) < len(in.Branches) {
 			where := "Every branch is in the tables."
-			if p.Large {
+			if trim {
+				where = "Every branch is in the round’s table."
+			} else if p.Large {
 				where = "Every branch is in the branch finder (" + letter(0) + ")."
 			}
 			sec.Notes = append(sec.Notes, fmt.Sprintf("Showing %d of %s branches: those flagged, then those furthest from design as found. %s", len(pick), thousands(len(in.Branches)), where))
@@ -242,7 +270,15 @@ func build(in *Input) (*pageData, error) {
 		for k, i := range pick {
 			sec.Charts = append(sec.Charts, branchChart(fmt.Sprintf("fs-branch-%d", k+1), &in.Branches[i], in))
 		}
-		if p.Large {
+		if p.Large && trim {
+			sub := *in
+			sub.Branches = nil
+			for _, i := range pickN(in.Branches, maxWindow) {
+				sub.Branches = append(sub.Branches, in.Branches[i])
+			}
+			chartIn = &sub
+		}
+		if p.Large && !trim {
 			p.Branches, p.Flagged = thousands(len(in.Branches)), thousands(flagged(in.Branches))
 			p.Sections = append(p.Sections, section{
 				ID: "finder", Title: "Find a branch", Finder: true,
@@ -257,12 +293,25 @@ func build(in *Input) (*pageData, error) {
 		}
 		p.Sections = append(p.Sections, sec)
 	}
-	p.Sections = append(p.Sections, section{
-		ID: "combined", Title: "Circuit and pump",
-		Intro:  "The parallel branches together against the pump, as found and after the plan; the operating point is where the curves cross.",
-		Charts: []chart{combinedChart("fs-combined", in)},
-	})
-	if len(in.Branches) > 0 {
+	if trim && len(in.Branches) > 0 {
+		r := section{
+			ID: "resistance", Title: "Fitted resistance",
+			Intro:  "Each branch’s fitted fixed resistance, from every survey state together, divided by its design resistance, with its 95 % interval. 1 (the dotted line) means as designed.",
+			Charts: []chart{ratioChart("fs-ratio", chartIn)},
+		}
+		if len(chartIn.Branches) < len(in.Branches) {
+			r.Notes = append(r.Notes, fmt.Sprintf("The %d branches flagged or furthest from design as found, of %s; the round’s table has every one.", len(chartIn.Branches), thousands(len(in.Branches))))
+		}
+		p.Sections = append(p.Sections, r)
+	}
+	if !trim {
+		p.Sections = append(p.Sections, section{
+			ID: "combined", Title: "Circuit and pump",
+			Intro:  "The parallel branches together against the pump, as found and after the plan; the operating point is where the curves cross.",
+			Charts: []chart{combinedChart("fs-combined", in)},
+		})
+	}
+	if !trim && len(in.Branches) > 0 {
 		zoom := func(sec *section) {
 			if follow := map[string]string{"flow": "flow", "resistance": "ratio"}[sec.ID]; p.Large && follow != "" {
 				sec.Charts[0].Follow = follow
@@ -300,10 +349,20 @@ func build(in *Input) (*pageData, error) {
 		zoom(&v)
 		p.Sections = append(p.Sections, f, r, v)
 	}
+	if trim {
+		pick := pickTrim(in.Trim.Branches)
+		if len(pick) > 0 {
+			p.TrimChart = []chart{trimChart("fs-trim", in, pick)}
+			data.Charts = append(data.Charts, p.TrimChart...)
+		}
+		if len(pick) < len(in.Trim.Branches) {
+			p.TrimNote = fmt.Sprintf("Showing %d of %s branches: those trimmed or needing a reading first, then those read after setting, then those furthest from target as left. Every branch is in the table below.", len(pick), thousands(len(in.Trim.Branches)))
+		}
+	}
 	for _, sec := range p.Sections {
 		data.Charts = append(data.Charts, sec.Charts...)
 	}
-	if p.Large {
+	if p.Large && !trim {
 		// The branch names go first into the string table, so that the
 		// tables' branch columns refer to them.
 		data.Finder = finder(in.Branches, charted, &tx)
@@ -321,11 +380,17 @@ func build(in *Input) (*pageData, error) {
 	p.Settings = view(in.Visit.Settings, pageRows)
 	p.Remedied = view(in.Visit.Remedied, pageRows)
 	p.Prove = view(in.Visit.Prove, pageRows)
-	for _, t := range []Table{
+	tables := []Table{
 		withTitle(in.Plan, "Full field sheet"),
 		withTitle(in.Diagnosis, "Diagnosis"),
 		withTitle(in.Readings, "Readings and residuals"),
-	} {
+	}
+	if trim {
+		p.Trims = view(in.Trim.Trims, pageRows)
+		p.TrimAll = view(trimTable(in.Trim), pageRows)
+		tables = tables[1:]
+	}
+	for _, t := range tables {
 		p.Tables = append(p.Tables, view(t, pageRows))
 	}
 	data.Text = tx.list

@@ -6,6 +6,7 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"html"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -113,6 +114,24 @@ func TestWriteGolden(t *testing.T) {
 	}
 	if !bytes.Equal(got, want) {
 		t.Errorf("Write(sampleInput) differs from %s (-want +got):\n%s", path, cmp.Diff(string(want), string(got)))
+	}
+}
+
+// TestWriteTrimGolden pins the round after setting's report.
+func TestWriteTrimGolden(t *testing.T) {
+	got := withoutECharts(t, render(t, trimInput()), "/* echarts.min.js "+EChartsVersion+" omitted */")
+	path := filepath.Join("testdata", "trim.golden")
+	if *update {
+		if err := os.WriteFile(path, got, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatalf("%v (run go test ./internal/report -update to create it)", err)
+	}
+	if !bytes.Equal(got, want) {
+		t.Errorf("Write(trimInput) differs from %s (-want +got):\n%s", path, cmp.Diff(string(want), string(got)))
 	}
 }
 
@@ -247,6 +266,9 @@ func TestWriteSafeAndOffline(t *testing.T) {
 		{"sample", sampleInput()},
 		{"hostile names", hostileInput()},
 		{"1000 branches", bigInput(1000)},
+		{"trim", trimInput()},
+		{"trim, hostile names", makeHostile(trimInput())},
+		{"trim, 300 branches", withTrim(siteInput(300))},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			checkPage(t, render(t, tc.in))
@@ -312,6 +334,8 @@ func TestWriteInvalid(t *testing.T) {
 		{"infinite tolerance", func(in *Input) { in.ToleranceHigh = math.Inf(1) }},
 		{"tolerance reversed", func(in *Input) { in.ToleranceLow, in.ToleranceHigh = 10, -10 }},
 		{"ragged plan row", func(in *Input) { in.Plan.Rows[1] = in.Plan.Rows[1][:2] }},
+		{"infinite flow as left", func(in *Input) { *in = withTrim(*in); in.Trim.Branches[2].LeftHigh = math.Inf(1) }},
+		{"ragged trims row", func(in *Input) { *in = withTrim(*in); in.Trim.Trims.Rows[0] = in.Trim.Trims.Rows[0][:3] }},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -674,4 +698,95 @@ func BenchmarkWrite(b *testing.B) {
 			b.ReportMetric(float64(buf.Len()), "bytes/report")
 		})
 	}
+}
+
+// TestWriteTrim checks the round after setting's report: its pages replace
+// the visit's, every branch is in its table with where its flow as left
+// comes from, the chart shows the branches read and the worst (at most a
+// window's worth), and a large round's table is stored whole and shown a
+// page at a time.
+func TestWriteTrim(t *testing.T) {
+	t.Run("small", func(t *testing.T) {
+		in := trimInput()
+		markup, data := pageParts(t, render(t, in))
+		for _, want := range []string{`id="proof"`, `id="trims"`, `id="left"`, "After setting, proof and trims", ", model<", ", read<", "As left (model)"} {
+			if !strings.Contains(markup, want) {
+				t.Errorf("page lacks %q", want)
+			}
+		}
+		// The visit's steps and the plan's charts are not the round's.
+		for _, not := range []string{`id="before"`, `id="settings"`, `id="handover"`, `id="combined"`, `id="flow"`, "Full field sheet"} {
+			if strings.Contains(markup, not) {
+				t.Errorf("page holds %q", not)
+			}
+		}
+		for _, b := range in.Trim.Branches {
+			if !strings.Contains(markup, html.EscapeString(b.ID)) && !strings.Contains(markup, strings.SplitN(b.ID, " ", 2)[1]) {
+				t.Errorf("branch %q is not in the page", b.ID)
+			}
+		}
+		var d struct {
+			Charts []chart `json:"charts"`
+		}
+		if err := json.Unmarshal(data, &d); err != nil {
+			t.Fatal(err)
+		}
+		if len(d.Charts) == 0 || d.Charts[0].ID != "fs-trim" {
+			t.Fatalf("first chart is not the round's")
+		}
+		if n := len(d.Charts[0].Option["series"].([]any)); n != 5 {
+			t.Errorf("round's chart has %d series, want 5 (as found, predicted, interval, as left read and not read)", n)
+		}
+	})
+	t.Run("300 branches", func(t *testing.T) {
+		in := withTrim(siteInput(300))
+		bs := in.Trim.Branches
+		pick := pickTrim(bs)
+		if len(pick) != maxWindow {
+			t.Fatalf("chart shows %d branches, want %d", len(pick), maxWindow)
+		}
+		shown := map[int]bool{}
+		for _, i := range pick {
+			shown[i] = true
+		}
+		// Every branch to act on is shown, and the rest are read ones
+		// before any not read.
+		read := 0
+		for i, b := range bs {
+			if (b.Trim != "" || b.Note != "") && !shown[i] {
+				t.Errorf("branch %s to act on is not charted", b.ID)
+			}
+			if b.Read {
+				read++
+			}
+		}
+		for i, b := range bs {
+			if shown[i] && !b.Read && b.Trim == "" && b.Note == "" && read > maxWindow {
+				t.Errorf("branch %s, not read, charted before read ones", b.ID)
+			}
+		}
+		out := render(t, in)
+		markup, data := pageParts(t, out)
+		if !strings.Contains(markup, "trim.csv beside this report") {
+			t.Errorf("paged round's table does not name its file")
+		}
+		var d struct {
+			Tables []struct {
+				Rows int `json:"n"`
+			} `json:"tables"`
+		}
+		if err := json.Unmarshal(data, &d); err != nil {
+			t.Fatal(err)
+		}
+		found := false
+		for _, tb := range d.Tables {
+			found = found || tb.Rows == len(bs)
+		}
+		if !found {
+			t.Errorf("no stored table holds the round's %d branches", len(bs))
+		}
+		if n := strings.Count(markup, "<tr>"); n > 400 {
+			t.Errorf("page writes %d table rows; a large round should show a page at a time", n)
+		}
+	})
 }
