@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 
 	"flowset/internal/hydraulics"
 	"flowset/internal/lsq"
@@ -140,6 +141,11 @@ type FitOptions struct {
 	MatrixFreeAbove int
 	// NoHypotheses skips the valve hypothesis tests.
 	NoHypotheses bool
+	// Workers is the number of goroutines of the matrix-free fit's
+	// independent work (its variance probes, the local Jacobian's solves,
+	// the block preconditioner's sums); 0: runtime.GOMAXPROCS(0). The
+	// results are the same to the bit on any number.
+	Workers int
 	// MaxValveTests caps how many valves get the hypothesis test, the most
 	// suspect first (each test is two or three refits: of the whole problem
 	// up to MatrixFreeAbove parameters, of the tested branch alone above);
@@ -174,7 +180,7 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	if out.MeterDensity < 0 || math.IsNaN(out.MeterDensity) || math.IsInf(out.MeterDensity, 0) {
 		return out, fmt.Errorf("calibrate: meter density %g must be positive: %w", out.MeterDensity, lsq.ErrSettings)
 	}
-	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 || out.MaxValveTests < 0 {
+	if out.MatrixFreeAbove < 0 || out.MaxIter < 0 || out.MaxValveTests < 0 || out.Workers < 0 {
 		return out, fmt.Errorf("calibrate: negative count: %w", lsq.ErrSettings)
 	}
 	def := func(p *float64, d float64) {
@@ -195,6 +201,9 @@ func (o *FitOptions) withDefaults() (FitOptions, error) {
 	def(&out.PriorSetPoint, DefaultPriorSetPoint)
 	if out.MatrixFreeAbove == 0 {
 		out.MatrixFreeAbove = DefaultMatrixFreeAbove
+	}
+	if out.Workers == 0 {
+		out.Workers = runtime.GOMAXPROCS(0)
 	}
 	if out.MaxValveTests == 0 {
 		out.MaxValveTests = DefaultMaxValveTests
@@ -959,7 +968,7 @@ func (su *setup) newProblem(ctx context.Context, hyp []ValveHypothesis, sel []in
 func (su *setup) problemFor(ctx context.Context, hyp []ValveHypothesis, sel []int) *problem {
 	nb := len(su.m.Branches)
 	p := &problem{ctx: ctx, m: su.m, params: su.params(hyp), rIdx: make([]int, nb), kvIdx: make([]int, nb),
-		hIdx: -1, pIdx: -1, refKv: su.refKv}
+		hIdx: -1, pIdx: -1, refKv: su.refKv, workers: su.opt.Workers}
 	for i := range nb {
 		p.rIdx[i], p.kvIdx[i] = -1, -1
 	}
@@ -1023,7 +1032,8 @@ func (su *setup) runLocal(ctx context.Context, hyp []ValveHypothesis, sel []int,
 			x0[j] = su.start(from, par)
 		}
 	}
-	set := &lsq.Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly, Exclude: exclude}
+	set := &lsq.Settings{MaxIter: su.opt.MaxIter, Loss: su.opt.Loss, OutlierZ: outlierZ, EstimateOnly: estimateOnly, Exclude: exclude,
+		Workers: su.opt.Workers}
 	var prob lsq.Problem = p
 	if n > su.opt.MatrixFreeAbove {
 		prob = opProblem{p}

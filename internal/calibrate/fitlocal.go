@@ -2,6 +2,7 @@ package calibrate
 
 import (
 	"math"
+	"slices"
 
 	"flowset/internal/lsq"
 )
@@ -43,11 +44,42 @@ type localNet struct {
 	// per linearisation
 	d    []float64   // floored link slopes
 	chol [][]float64 // per local network, its band Cholesky factor (lsq.BandCholesky)
-	// scratch of ApproxJacobian
-	rhs  [][]float64
-	dq   []float64
-	mark []bool
 	ix   *obsIndex
+	scr  []*localScratch // ApproxJacobian's, one per goroutine
+}
+
+// localScratch is one goroutine's scratch of ApproxJacobian: right-hand
+// sides per local network, link flow changes, the accumulated column, and
+// the entries of the columns it has done.
+type localScratch struct {
+	rhs           [][]float64
+	dq            []float64
+	mark          []bool
+	acc           []float64 // per observation
+	touched       []int
+	marked, links []int
+	rows, cols    []int
+	vals          []float64
+}
+
+// scratch returns goroutine w's scratch for m observations.
+func (ln *localNet) scratch(w, m int) *localScratch {
+	for len(ln.scr) <= w {
+		ln.scr = append(ln.scr, nil)
+	}
+	sc := ln.scr[w]
+	if sc == nil {
+		sc = &localScratch{rhs: make([][]float64, len(ln.nodes)), dq: make([]float64, len(ln.from)),
+			mark: make([]bool, len(ln.nodes))}
+		for c, ns := range ln.nodes {
+			sc.rhs[c] = make([]float64, len(ns))
+		}
+		ln.scr[w] = sc
+	}
+	if len(sc.acc) != m {
+		sc.acc = make([]float64, m)
+	}
+	return sc
 }
 
 // ref is term t of observation k's linear functional (stateNet.lin).
@@ -239,24 +271,24 @@ func (ln *localNet) local(c, node int) int {
 	return ln.pos[node]
 }
 
+// localChunk is the number of parameters ApproxJacobian hands a goroutine
+// at a time: enough to make the hand-over cheap, few enough to even out
+// the work (a riser's parameters cost more than a single branch's).
+const localChunk = 256
+
 // ApproxJacobian implements SparseApprox: the local Jacobian (see above) at
-// the latest Residuals call, entries (row, column, value).
+// the latest Residuals call, entries (row, column, value), column by
+// column. The columns are worked out on up to p.workers goroutines in
+// chunks of parameters, each into its goroutine's scratch, and gathered in
+// column order: the same entries in the same order as on one.
 func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
+	// The arrays of the last call are handed out again (see
+	// lsq.SparseApprox): on a large site they are tens of megabytes a
+	// linearisation.
+	rows, cols, vals = p.approx.rows[:0], p.approx.cols[:0], p.approx.vals[:0]
+	defer func() { p.approx.rows, p.approx.cols, p.approx.vals = rows, cols, vals }()
 	_, m := p.Dims()
-	acc := make([]float64, m)
-	var touched []int
-	add := func(oi int, v float64) {
-		if v == 0 {
-			return
-		}
-		if acc[oi] == 0 {
-			touched = append(touched, oi)
-		}
-		acc[oi] += v
-		if acc[oi] == 0 {
-			acc[oi] = math.SmallestNonzeroFloat64 // keep it listed once
-		}
-	}
+	np := len(p.params)
 	for _, sn := range p.states {
 		if len(sn.obs) == 0 || sn.sol == nil {
 			continue
@@ -268,89 +300,119 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 		if !ln.factor(sn) {
 			continue // leaves the state out: a coarser preconditioner
 		}
-		ix := ln.index(sn, len(p.params))
-		if len(ln.rhs) != len(ln.nodes) {
-			ln.rhs = make([][]float64, len(ln.nodes))
-			for c, ns := range ln.nodes {
-				ln.rhs[c] = make([]float64, len(ns))
-			}
-			ln.mark = make([]bool, len(ln.nodes))
+		ix := ln.index(sn, np)
+		type span struct{ w, lo, hi int }
+		chunks := make([]span, (np+localChunk-1)/localChunk)
+		workers := max(min(p.workers, len(chunks)), 1)
+		scr := make([]*localScratch, workers)
+		for w := range workers {
+			scr[w] = ln.scratch(w, m)
+			scr[w].rows, scr[w].cols, scr[w].vals = scr[w].rows[:0], scr[w].cols[:0], scr[w].vals[:0]
 		}
-		// Sized on its own: a state with no local network at all (every
-		// branch a single link between held take-offs) still has links.
-		if len(ln.dq) != len(ln.from) {
-			ln.dq = make([]float64, len(ln.from))
+		forEach(workers, len(chunks), func(w, k int) {
+			sc := scr[w]
+			lo := len(sc.rows)
+			for j := k * localChunk; j < min((k+1)*localChunk, np); j++ {
+				ln.column(p.problem, sn, ix, sc, j)
+			}
+			chunks[k] = span{w, lo, len(sc.rows)}
+		})
+		total := len(rows)
+		for _, sc := range scr {
+			total += len(sc.rows)
 		}
-		rhs, dq := ln.rhs, ln.dq
-		var marked, links []int
-		addq := func(l int, v float64) {
-			if dq[l] == 0 {
-				links = append(links, l)
-			}
-			dq[l] += v
-			if dq[l] == 0 {
-				dq[l] = math.SmallestNonzeroFloat64
-			}
-		}
-		for j := range p.params {
-			marked, links = marked[:0], links[:0]
-			for _, t := range sn.dh[j] {
-				l := t.i
-				g := t.c / ln.d[l]
-				addq(l, -g)
-				for _, e := range [2]struct {
-					node int
-					s    float64
-				}{{ln.from[l], g}, {ln.to[l], -g}} {
-					c := ln.comp[e.node]
-					if c < 0 {
-						continue
-					}
-					if !ln.mark[c] {
-						ln.mark[c] = true
-						marked = append(marked, c)
-					}
-					rhs[c][ln.pos[e.node]] += e.s
-				}
-			}
-			for _, c := range marked {
-				x := rhs[c]
-				lsq.BandCholSolve(ln.chol[c], len(x), ln.bw[c], x)
-				for _, l := range ln.links[c] {
-					var xa, xb float64
-					if q := ln.local(c, ln.from[l]); q >= 0 {
-						xa = x[q]
-					}
-					if q := ln.local(c, ln.to[l]); q >= 0 {
-						xb = x[q]
-					}
-					addq(l, -(xb-xa)/ln.d[l])
-				}
-				for q, node := range ln.nodes[c] {
-					for _, rf := range ix.node[ix.nodeAt[node]:ix.nodeAt[node+1]] {
-						add(sn.obs[rf.k], sn.lin[rf.k].p[rf.t].c*x[q])
-					}
-				}
-				clear(x)
-				ln.mark[c] = false
-			}
-			for _, l := range links {
-				for _, rf := range ix.link[ix.linkAt[l]:ix.linkAt[l+1]] {
-					add(sn.obs[rf.k], sn.lin[rf.k].q[rf.t].c*dq[l])
-				}
-				dq[l] = 0
-			}
-			for _, rf := range ix.direct[ix.directAt[j]:ix.directAt[j+1]] {
-				add(sn.obs[rf.k], sn.lin[rf.k].x[rf.t].c)
-			}
-			for _, oi := range touched {
-				rows = append(rows, oi)
-				cols = append(cols, j)
-				vals = append(vals, acc[oi]/p.obs[oi].sigma)
-				acc[oi] = 0
-			}
-			touched = touched[:0]
+		rows, cols, vals = slices.Grow(rows, total-len(rows)), slices.Grow(cols, total-len(cols)), slices.Grow(vals, total-len(vals))
+		for _, c := range chunks {
+			sc := scr[c.w]
+			rows = append(rows, sc.rows[c.lo:c.hi]...)
+			cols = append(cols, sc.cols[c.lo:c.hi]...)
+			vals = append(vals, sc.vals[c.lo:c.hi]...)
 		}
 	}
 	return rows, cols, vals
+}
+
+// column appends to sc the entries of column j of the local Jacobian of
+// state sn: the local networks j's drops reach solved with their take-offs
+// held, and the observations' functionals applied to the result.
+func (ln *localNet) column(p *problem, sn *stateNet, ix *obsIndex, sc *localScratch, j int) {
+	acc, rhs, dq := sc.acc, sc.rhs, sc.dq
+	add := func(oi int, v float64) {
+		if v == 0 {
+			return
+		}
+		if acc[oi] == 0 {
+			sc.touched = append(sc.touched, oi)
+		}
+		acc[oi] += v
+		if acc[oi] == 0 {
+			acc[oi] = math.SmallestNonzeroFloat64 // keep it listed once
+		}
+	}
+	addq := func(l int, v float64) {
+		if dq[l] == 0 {
+			sc.links = append(sc.links, l)
+		}
+		dq[l] += v
+		if dq[l] == 0 {
+			dq[l] = math.SmallestNonzeroFloat64
+		}
+	}
+	sc.marked, sc.links = sc.marked[:0], sc.links[:0]
+	for _, t := range sn.dh[j] {
+		l := t.i
+		g := t.c / ln.d[l]
+		addq(l, -g)
+		for _, e := range [2]struct {
+			node int
+			s    float64
+		}{{ln.from[l], g}, {ln.to[l], -g}} {
+			c := ln.comp[e.node]
+			if c < 0 {
+				continue
+			}
+			if !sc.mark[c] {
+				sc.mark[c] = true
+				sc.marked = append(sc.marked, c)
+			}
+			rhs[c][ln.pos[e.node]] += e.s
+		}
+	}
+	for _, c := range sc.marked {
+		x := rhs[c]
+		lsq.BandCholSolve(ln.chol[c], len(x), ln.bw[c], x)
+		for _, l := range ln.links[c] {
+			var xa, xb float64
+			if q := ln.local(c, ln.from[l]); q >= 0 {
+				xa = x[q]
+			}
+			if q := ln.local(c, ln.to[l]); q >= 0 {
+				xb = x[q]
+			}
+			addq(l, -(xb-xa)/ln.d[l])
+		}
+		for q, node := range ln.nodes[c] {
+			for _, rf := range ix.node[ix.nodeAt[node]:ix.nodeAt[node+1]] {
+				add(sn.obs[rf.k], sn.lin[rf.k].p[rf.t].c*x[q])
+			}
+		}
+		clear(x)
+		sc.mark[c] = false
+	}
+	for _, l := range sc.links {
+		for _, rf := range ix.link[ix.linkAt[l]:ix.linkAt[l+1]] {
+			add(sn.obs[rf.k], sn.lin[rf.k].q[rf.t].c*dq[l])
+		}
+		dq[l] = 0
+	}
+	for _, rf := range ix.direct[ix.directAt[j]:ix.directAt[j+1]] {
+		add(sn.obs[rf.k], sn.lin[rf.k].x[rf.t].c)
+	}
+	for _, oi := range sc.touched {
+		sc.rows = append(sc.rows, oi)
+		sc.cols = append(sc.cols, j)
+		sc.vals = append(sc.vals, acc[oi]/p.obs[oi].sigma)
+		acc[oi] = 0
+	}
+	sc.touched = sc.touched[:0]
 }

@@ -160,6 +160,13 @@ type problem struct {
 	ok     bool      // the latest evaluation completed
 	prev   evalCache
 	solves int // network solves
+	// workers is the number of goroutines of ApproxJacobian (FitOptions.Workers).
+	workers int
+	// approx holds ApproxJacobian's last entries, whose arrays it reuses.
+	approx struct {
+		rows, cols []int
+		vals       []float64
+	}
 	// base, when set, holds per state the multipliers of the parameters
 	// this problem does not fit (a local refit); nil means design.
 	base []plant.Params
@@ -935,6 +942,18 @@ func (p opProblem) MulTransVec(dst, w []float64) {
 			dst[j] += s
 		}
 	}
+}
+
+// Fork implements lsq.Forker: the products of p on copies of its states
+// that share everything the products read (solutions, derivatives,
+// functionals) and own their scratch vectors. Only MulVec and MulTransVec
+// may be called on it, and only until p's next evaluation.
+func (p opProblem) Fork() lsq.Operator {
+	q := &problem{obs: p.obs, states: make([]*stateNet, len(p.states))}
+	for i, sn := range p.states {
+		q.states[i] = &stateNet{obs: sn.obs, sol: sn.sol, dh: sn.dh, lin: sn.lin}
+	}
+	return opProblem{q}
 }
 
 func fillNaN(v []float64) {

@@ -12,5 +12,5 @@ func exactHubVariances(p *problem, res *lsq.Result) {
 	for j, par := range p.params {
 		sigma[j] = par.Sigma
 	}
-	lsq.ExactVariances(opProblem{p}, res, sigma, []int{p.hIdx, p.pIdx})
+	lsq.ExactVariances(opProblem{p}, res, sigma, []int{p.hIdx, p.pIdx}, p.workers)
 }

@@ -1,6 +1,9 @@
 package lsq
 
-import "math"
+import (
+	"math"
+	"runtime"
+)
 
 // ExactOperator is a matrix-free problem whose Jacobian products and local
 // approximation ExactVariances can use.
@@ -18,8 +21,10 @@ type ExactOperator interface {
 // A = JᵀWJ/c + P, from one preconditioned conjugate-gradient solve with the
 // Jacobian products of op, which must have been evaluated at res.X. sigma
 // holds the prior sd of every parameter (+Inf for none). Results other than
-// VarProbed are left as they are.
-func ExactVariances(op ExactOperator, res *Result, sigma []float64, cols []int) {
+// VarProbed are left as they are. The solves run on up to workers
+// goroutines when op is a Forker (0: runtime.GOMAXPROCS(0)), with the same
+// results as on one.
+func ExactVariances(op ExactOperator, res *Result, sigma []float64, cols []int, workers int) {
 	if res.VarMethod != VarProbed {
 		return
 	}
@@ -34,35 +39,57 @@ func ExactVariances(op ExactOperator, res *Result, sigma []float64, cols []int) 
 			prec[j] = 1 / (s * s)
 		}
 	}
-	tm := make([]float64, m)
-	apply := func(dst, v []float64) {
-		op.MulVec(tm, v)
-		for i := range tm {
-			tm[i] *= res.Weight[i] / c
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	precWorkers := workers
+	if _, ok := op.(Forker); !ok {
+		workers = 1
+	}
+	workers = min(workers, len(cols))
+	applies := make([]func(dst, v []float64), max(workers, 1))
+	for k := range applies {
+		var o Operator = op
+		if k > 0 {
+			o = op.(Forker).Fork()
 		}
-		op.MulTransVec(dst, tm)
-		for j := range n {
-			dst[j] += prec[j] * v[j]
+		tm := make([]float64, m)
+		applies[k] = func(dst, v []float64) {
+			o.MulVec(tm, v)
+			for i := range tm {
+				tm[i] *= res.Weight[i] / c
+			}
+			o.MulTransVec(dst, tm)
+			for j := range n {
+				dst[j] += prec[j] * v[j]
+			}
 		}
 	}
 	// Preconditioner: the block one of the local approximation, with exact
 	// norms for the columns it leaves out.
 	rows, cs, vals := op.ApproxJacobian()
-	bp := newBlockPrec(n, rows, cs, vals, res.Weight, nil)
+	bp := newBlockPrec(n, rows, cs, vals, res.Weight, nil, precWorkers)
 	d := append([]float64(nil), bp.gdiag...)
 	exactColumns(op, d, res.Weight, bp.hubs)
 	bp.diagA = d
 	if !bp.set(c, prec, 0, nil) {
 		return
 	}
-	for _, j := range cols {
+	ys := make([][]float64, len(cols))
+	forEach(workers, len(cols), func(wk, k int) {
+		j := cols[k]
 		if j < 0 || j >= n {
-			continue
+			return
 		}
 		e := make([]float64, n)
 		e[j] = 1
-		y, ok := pcg(apply, bp.solve, e, nil, 1e-10, 2*n+100)
-		if !ok || !(y[j] > 0) {
+		if y, ok := pcg(applies[wk], bp.solve, e, nil, 1e-10, 2*n+100); ok {
+			ys[k] = y
+		}
+	})
+	for k, j := range cols {
+		y := ys[k]
+		if y == nil || !(y[j] > 0) {
 			continue
 		}
 		sd := math.Sqrt(y[j])

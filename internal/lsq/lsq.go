@@ -85,6 +85,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 
 	"gonum.org/v1/gonum/floats"
@@ -131,6 +132,19 @@ type Operator interface {
 	MulVec(dst, v []float64)
 	// MulTransVec sets dst = Jᵀ w.
 	MulTransVec(dst, w []float64)
+}
+
+// Forker is optional for an Operator problem: Fork returns an Operator
+// whose products are the problem's own at its latest Residuals call, each
+// operation for operation, with scratch of its own, so that it may run
+// concurrently with the problem's products and with other forks. Solve then
+// runs the variance probes on up to Settings.Workers goroutines, one fork
+// each; a fork is used only until the next Residuals call. The results are
+// the same to the bit as on one goroutine: each probe's solve is the same
+// sequence of operations whichever goroutine runs it, and the probes are
+// drawn and summed in their order.
+type Forker interface {
+	Fork() Operator
 }
 
 // Preconditioner is optional for an Operator problem: it gives the squared
@@ -299,6 +313,11 @@ type Settings struct {
 	// which adaptive probing stops; 0: 0.1 (5 % on the sd).
 	ProbeTol float64
 	Seed     uint64 // seed of the probes
+	// Workers is the number of goroutines for the work that splits into
+	// independent parts with the same result on any number of them (the
+	// variance probes of a Forker problem, the block preconditioner's
+	// sums); 0: runtime.GOMAXPROCS(0).
+	Workers int
 	// EstimateOnly skips everything after the optimum: no covariance,
 	// variances, intervals or outlier test. Result then holds X, the
 	// residuals, weights and ChiSquare only: enough to compare models (the
@@ -349,7 +368,7 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 		return bad("unknown covariance scaling")
 	case out.ProbeTol < 0 || math.IsNaN(out.ProbeTol) || out.ProbeTol >= 1:
 		return bad("probe tolerance outside [0, 1)")
-	case out.MaxOutliers < 0 || out.CGMaxIter < 0 || out.Probes < 0:
+	case out.MaxOutliers < 0 || out.CGMaxIter < 0 || out.Probes < 0 || out.Workers < 0:
 		return bad("negative count")
 	}
 	if out.MaxIter == 0 {
@@ -375,6 +394,9 @@ func (s *Settings) withDefaults(n, m int) (Settings, error) {
 	}
 	if out.ProbeTol == 0 {
 		out.ProbeTol = 0.1
+	}
+	if out.Workers == 0 {
+		out.Workers = runtime.GOMAXPROCS(0)
 	}
 	if out.MaxOutliers == 0 {
 		out.MaxOutliers = m / 5
@@ -593,6 +615,7 @@ type solver struct {
 	linAt      *point // the point the Operator products currently refer to
 	rng        *rand.Rand
 	dscale     []float64 // Moré's running maximum of diag(A)
+	blocks     *blocksAt // diagAndBlocks' last answer
 }
 
 type point struct {
@@ -751,7 +774,29 @@ func (s *solver) linearise(pt *point) (*linear, error) {
 // norms, one product each: cheaper than diagJTJ's eight random products,
 // and no noisier where J̃ is good, which is what the block preconditioner
 // already relies on.
+//
+// The variances' round asks for them at the point and weights it has just
+// asked for: the last answer is kept and given again for the same point and
+// weights (the same numbers; its factor is set anew by each user).
 func (s *solver) diagAndBlocks(w []float64) ([]float64, *blockPrec) {
+	if c := s.blocks; c != nil && c.at == s.linAt && slices.Equal(c.w, w) {
+		return c.d, c.bp
+	}
+	d, bp := s.newDiagAndBlocks(w)
+	if bp != nil {
+		s.blocks = &blocksAt{at: s.linAt, w: append([]float64(nil), w...), d: d, bp: bp}
+	}
+	return d, bp
+}
+
+// blocksAt is diagAndBlocks' last answer, at point at and weights w.
+type blocksAt struct {
+	at   *point
+	w, d []float64
+	bp   *blockPrec
+}
+
+func (s *solver) newDiagAndBlocks(w []float64) ([]float64, *blockPrec) {
 	d := make([]float64, s.n)
 	if s.sa == nil || s.pre != nil {
 		s.diagJTJ(d, w)
@@ -759,10 +804,10 @@ func (s *solver) diagAndBlocks(w []float64) ([]float64, *blockPrec) {
 			return d, nil
 		}
 		rows, cols, vals := s.sa.ApproxJacobian()
-		return d, newBlockPrec(s.n, rows, cols, vals, w, append([]float64(nil), d...))
+		return d, newBlockPrec(s.n, rows, cols, vals, w, append([]float64(nil), d...), s.s.Workers)
 	}
 	rows, cols, vals := s.sa.ApproxJacobian()
-	bp := newBlockPrec(s.n, rows, cols, vals, w, nil)
+	bp := newBlockPrec(s.n, rows, cols, vals, w, nil, s.s.Workers)
 	copy(d, bp.gdiag)
 	exactColumns(s.op, d, w, bp.hubs)
 	bp.diagA = d
@@ -1477,20 +1522,30 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	// and entry j of each probe is ±1/√v̂_j with v̂ the variance M gives
 	// (see VarProbed).
 	var bp *blockPrec
-	var mdiag, vhat, mz []float64
+	var mdiag, vhat []float64
 	if b != nil && b.set(c, s.prec, 0, nil) {
 		bp, precond = b, b.solve
-		mdiag, vhat, mz = b.invDiag(), b.localVar(c, s.prec), make([]float64, n)
+		mdiag, vhat = b.invDiag(), b.localVar(c, s.prec)
 	}
-	tm := make([]float64, m)
-	apply := func(dst, v []float64) {
-		s.op.MulVec(tm, v)
-		for i := range tm {
-			tm[i] *= w[i] / c
+	// One product operator and scratch vector per goroutine: the problem
+	// itself and, on the others, its forks (see Forker).
+	workers := s.probeWorkers()
+	applies := make([]func(dst, v []float64), workers)
+	for k := range workers {
+		op := s.op
+		if k > 0 {
+			op = s.op.(Forker).Fork()
 		}
-		s.op.MulTransVec(dst, tm)
-		for j := range n {
-			dst[j] += s.prec[j] * v[j]
+		tm := make([]float64, m)
+		applies[k] = func(dst, v []float64) {
+			op.MulVec(tm, v)
+			for i := range tm {
+				tm[i] *= w[i] / c
+			}
+			op.MulTransVec(dst, tm)
+			for j := range n {
+				dst[j] += s.prec[j] * v[j]
+			}
 		}
 	}
 	maxProbes, adaptive := s.s.Probes, s.s.adaptiveProbes
@@ -1500,48 +1555,83 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	rng := rand.New(rand.NewPCG(s.s.Seed, 0x2545f4914f6cdd1d))
 	sum := make([]float64, n)   // Σ_k e_jk, the per-probe estimates
 	sumSq := make([]float64, n) // Σ_k e_jk²
-	z := make([]float64, n)
 	var ys [][]float64
+	// The probes run in batches of minProbes, the adaptive test's step:
+	// each batch's vectors are drawn in probe order, solved on the
+	// goroutines, and summed in probe order, so that the sums are those of
+	// one probe after the other.
+	zs := make([][]float64, minProbes)
+	mzs := make([][]float64, minProbes)
+	out := make([][]float64, minProbes)
+	oks := make([]bool, minProbes)
 	probes := 0
 	for probes < maxProbes {
 		if err := ctx.Err(); err != nil {
 			return nil, nil, fmt.Errorf("lsq: variance probes: %w", err)
 		}
-		for j := range z {
-			z[j] = 1
-			if rng.Uint64()&1 == 1 {
-				z[j] = -1
+		nb := min(minProbes, maxProbes-probes)
+		for b := range nb {
+			if zs[b] == nil {
+				zs[b] = make([]float64, n)
 			}
-			if vhat != nil {
-				z[j] /= math.Sqrt(vhat[j])
+			z := zs[b]
+			for j := range z {
+				z[j] = 1
+				if rng.Uint64()&1 == 1 {
+					z[j] = -1
+				}
+				if vhat != nil {
+					z[j] /= math.Sqrt(vhat[j])
+				}
 			}
 		}
-		var start []float64
-		if bp != nil {
-			bp.solve(mz, z)
-			start = append([]float64(nil), mz...)
-		}
-		if warm != nil {
-			start = append(start[:0], warm[probes]...)
-			floats.Scale(c, start)
-		}
-		y, ok := pcg(apply, precond, z, start, probeTol, s.s.CGMaxIter)
-		if !ok {
-			return nil, nil, fmt.Errorf("lsq: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
-		}
-		for j := range n {
-			e := z[j] * y[j]
+		forEach(workers, nb, func(wk, b int) {
+			out[b], oks[b] = nil, false
+			if ctx.Err() != nil {
+				return
+			}
+			z := zs[b]
+			var start []float64
 			if bp != nil {
-				e = vhat[j] * z[j] * (y[j] - mz[j])
+				if mzs[b] == nil {
+					mzs[b] = make([]float64, n)
+				}
+				bp.solve(mzs[b], z)
+				start = append([]float64(nil), mzs[b]...)
 			}
-			sum[j] += e
-			sumSq[j] += e * e
+			if warm != nil {
+				start = append(start[:0], warm[probes+b]...)
+				floats.Scale(c, start)
+			}
+			out[b], oks[b] = pcg(applies[wk], precond, z, start, probeTol, s.s.CGMaxIter)
+		})
+		if err := ctx.Err(); err != nil {
+			return nil, nil, fmt.Errorf("lsq: variance probes: %w", err)
 		}
-		if warm == nil {
-			ys = append(ys, y)
+		done := false
+		for b := range nb {
+			z, y := zs[b], out[b]
+			if !oks[b] {
+				return nil, nil, fmt.Errorf("lsq: conjugate gradients did not converge on the information matrix: %w", ErrSingular)
+			}
+			for j := range n {
+				e := z[j] * y[j]
+				if bp != nil {
+					e = vhat[j] * z[j] * (y[j] - mzs[b][j])
+				}
+				sum[j] += e
+				sumSq[j] += e * e
+			}
+			if warm == nil {
+				ys = append(ys, y)
+			}
+			probes++
+			if adaptive && probes >= minProbes && probes%minProbes == 0 && s.probesEnough(sum, sumSq, mdiag, probes) {
+				done = true
+				break
+			}
 		}
-		probes++
-		if adaptive && probes >= minProbes && probes%minProbes == 0 && s.probesEnough(sum, sumSq, mdiag, probes) {
+		if done {
 			break
 		}
 	}
@@ -1558,6 +1648,15 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 		v[j] = max(v[j]+mdiag[j], vhat[j]*varFloor)
 	}
 	return v, ys, nil
+}
+
+// probeWorkers is the number of goroutines for the variance probes: one
+// unless the problem forks its products (Forker).
+func (s *solver) probeWorkers() int {
+	if _, ok := s.op.(Forker); !ok {
+		return 1
+	}
+	return max(s.s.Workers, 1)
 }
 
 // probesEnough reports whether the standard error of the probed variances,

@@ -11,7 +11,9 @@ import "math"
 // Saad 2003, "Iterative Methods for Sparse Linear Systems", §10.1), instead
 // of the diagonal of JᵀWJ + P alone. J̃ changes only how fast the solves
 // converge and how noisy the probed variances are, never what the solves
-// converge to: a poor J̃ makes them slower, not wrong.
+// converge to: a poor J̃ makes them slower, not wrong. The engine reads the
+// three slices before it calls Residuals or ApproxJacobian again and keeps
+// none of them, so a problem may hand out the same arrays each time.
 type SparseApprox interface {
 	ApproxJacobian() (rows, cols []int, vals []float64)
 }
@@ -42,12 +44,16 @@ type blockPrec struct {
 	hubs   []int       // those left out for touching many rows
 	// current M
 	chol [][]float64 // per block, lower Cholesky factor
-	sd   []float64   // per single parameter, √M_jj
+	// per block, the factor's transpose, so that the backward solve reads
+	// rows: it reads the same numbers in the same order as from chol's
+	// columns, from memory in order.
+	cholT [][]float64
+	sd    []float64 // per single parameter, √M_jj
 }
 
 // newBlockPrec groups the parameters by the rows of J̃ and accumulates
-// J̃ᵀWJ̃ on each group.
-func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec {
+// J̃ᵀWJ̃ on each group, on up to workers goroutines.
+func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64, workers int) *blockPrec {
 	bp := &blockPrec{n: n, gdiag: make([]float64, n), diagA: diagA}
 	// Rows in order.
 	m := len(w)
@@ -130,30 +136,48 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64) *blockPrec 
 	for b, ps := range bp.blocks {
 		bp.gram[b] = make([]float64, len(ps)*len(ps))
 	}
-	for i := range m {
-		cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
-		if w[i] == 0 || len(cs) > maxRowCoupling {
-			continue
+	// The sums split by column: goroutine g adds the entries of the
+	// parameters it owns (a block's by the block's number, a single one's
+	// by its own), each over the rows in order, as one goroutine would.
+	workers = max(min(workers, len(bp.blocks)+len(bp.single)), 1)
+	owner := make([]int32, n)
+	for j := range n {
+		if b := block[j]; b >= 0 {
+			owner[j] = int32(b % workers)
+		} else {
+			owner[j] = int32(j % workers)
 		}
-		for a, j := range cs {
-			// wa*v is w[i]*vs[a]*v as written out (left to right), so
-			// hoisting it changes no bit.
-			wa := w[i] * vs[a]
-			bp.gdiag[j] += wa * vs[a]
-			bj := block[j]
-			if bj < 0 {
+	}
+	forEach(workers, workers, func(_, g int) {
+		for i := range m {
+			cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
+			if w[i] == 0 || len(cs) > maxRowCoupling {
 				continue
 			}
-			k := len(bp.blocks[bj])
-			g := bp.gram[bj][pos[j]*k : (pos[j]+1)*k]
-			for e, l := range cs {
-				if block[l] == bj {
-					g[pos[l]] += wa * vs[e]
+			for a, j := range cs {
+				if owner[j] != int32(g) {
+					continue
+				}
+				// wa*v is w[i]*vs[a]*v as written out (left to right), so
+				// hoisting it changes no bit.
+				wa := w[i] * vs[a]
+				bp.gdiag[j] += wa * vs[a]
+				bj := block[j]
+				if bj < 0 {
+					continue
+				}
+				k := len(bp.blocks[bj])
+				gr := bp.gram[bj][pos[j]*k : (pos[j]+1)*k]
+				for e, l := range cs {
+					if block[l] == bj {
+						gr[pos[l]] += wa * vs[e]
+					}
 				}
 			}
 		}
-	}
+	})
 	bp.chol = make([][]float64, len(bp.blocks))
+	bp.cholT = make([][]float64, len(bp.blocks))
 	bp.sd = make([]float64, len(bp.single))
 	return bp
 }
@@ -182,6 +206,16 @@ func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []flo
 		}
 		if !Cholesky(l, k) {
 			return false
+		}
+		lt := bp.cholT[b]
+		if len(lt) != k*k {
+			lt = make([]float64, k*k)
+			bp.cholT[b] = lt
+		}
+		for i := range k {
+			for p := range i + 1 {
+				lt[p*k+i] = l[i*k+p]
+			}
 		}
 	}
 	for a, j := range bp.single {
@@ -225,17 +259,18 @@ func (bp *blockPrec) lowerSolve(v []float64) {
 func (bp *blockPrec) upperSolve(v []float64) {
 	var buf [maxBlock]float64
 	for b, ps := range bp.blocks {
-		k, l := len(ps), bp.chol[b]
+		k, lt := len(ps), bp.cholT[b]
 		x := buf[:k]
 		for a, j := range ps {
 			x[a] = v[j]
 		}
 		for i := k - 1; i >= 0; i-- {
 			s := x[i]
+			row := lt[i*k : (i+1)*k]
 			for p := i + 1; p < k; p++ {
-				s -= l[p*k+i] * x[p]
+				s -= row[p] * x[p]
 			}
-			x[i] = s / l[i*k+i]
+			x[i] = s / row[i]
 		}
 		for a, j := range ps {
 			v[j] = x[a]

@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 
 	"gonum.org/v1/gonum/mat"
+
+	"flowset/internal/lsq"
 )
 
 func exp(x float64) float64   { return math.Exp(x) }
@@ -169,6 +171,10 @@ func (s *Sparse) MulTransVec(dst, w []float64) {
 		}
 	}
 }
+
+// Fork implements lsq.Forker: the products keep no scratch (they only read
+// exp(x) of the latest Residuals call), so the problem itself serves.
+func (s *Sparse) Fork() lsq.Operator { return s }
 
 // DiagJTJ sets dst to the squared column norms of J.
 func (s *Sparse) DiagJTJ(dst []float64) {
