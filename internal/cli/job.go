@@ -29,6 +29,12 @@ type jobOptions struct {
 	SurveyMinutes float64
 	Thresholds    diagnose.Thresholds
 	Units         display // display units of every output but JSON
+	// workers bounds the stages run side by side after the fit (0:
+	// runtime.GOMAXPROCS(0); 1: one after another, as written).
+	workers int
+	// report is set when the report is wanted: its system curves start
+	// as soon as the plan is known.
+	report bool
 }
 
 // job is the outcome of the main computation on one site.
@@ -67,6 +73,11 @@ type job struct {
 	// planPredicted is what the plan the valves were set to predicted of
 	// each branch, % of target by ID (trim only).
 	planPredicted map[string]float64
+	// curves are the report's two system curves (as found, as planned),
+	// started once the plan is known; nil when the report is not wanted.
+	curves *future[sysCurves]
+	// stages runs the job's independent stages (nil: one after another).
+	stages *stages
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -123,13 +134,16 @@ func calibrateSite(ctx context.Context, l *loaded, pr *progress) (*calibrate.Cal
 	return cal, nil
 }
 
-// runJob does check, fit, diagnose and plan.
-func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*job, error) {
+// runJob does check, fit, diagnose and plan. Once the plan is known, the
+// report's system curves (opts.report), the ranking of readings and the
+// plans for the repairs run as stages of st, side by side; the ranking
+// and the repairs are finished when it returns, the curves maybe not.
+func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *stages) (*job, error) {
 	m := l.Model
 	if opts.Units.Name == "" {
 		opts.Units = siDisplay()
 	}
-	j := &job{L: l, Fitted: m.Design(), Params: m.Design(), opts: opts}
+	j := &job{L: l, Fitted: m.Design(), Params: m.Design(), opts: opts, stages: st}
 	if !opts.DesignOnly {
 		cal, err := calibrateSite(ctx, l, pr)
 		if err != nil {
@@ -139,12 +153,12 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 			j.Cal, j.Fitted, j.Params = cal, cal.Params, planParams(cal)
 		}
 	}
-	st := m.BaseState()
+	st0 := m.BaseState()
 	if len(m.States) > 0 {
-		st = m.States[0]
+		st0 = m.States[0]
 	}
-	pr.step("solving the as-found state %q", st.Label)
-	before, err := m.Solve(ctx, j.Fitted, st)
+	pr.step("solving the as-found state %q", st0.Label)
+	before, err := m.Solve(ctx, j.Fitted, st0)
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("as-found state: %w", err)}
 	}
@@ -219,9 +233,10 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 		return nil, &dataError{fmt.Errorf("planned state: %w", err)}
 	}
 	j.After = after
-	if err := j.remedies(ctx); err != nil {
-		return nil, err
+	if opts.report {
+		j.curves = start(st, func() (sysCurves, error) { return j.systemCurves(ctx) })
 	}
+	var rank *future[*balance.ReadPlan]
 	if len(m.Branches) <= maxRankBranches {
 		ro := &balance.ReadOptions{Max: rankListed(len(m.Branches))}
 		if j.Cal != nil {
@@ -232,10 +247,16 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress) (*jo
 			// anything, on the fit's priors, read as found.
 			pr.step("ranking the readings to survey first")
 			ro.Uncertainty = priorUncertainty(m)
-			ro.ReadAt = &st
+			ro.ReadAt = &st0
 			j.surveyPlan = true
 		}
-		rp, err := balance.RankReadings(ctx, m, j.Params, plan, ro)
+		rank = start(st, func() (*balance.ReadPlan, error) { return balance.RankReadings(ctx, m, j.Params, plan, ro) })
+	}
+	if err := j.remedies(ctx, st); err != nil {
+		return nil, err
+	}
+	if rank != nil {
+		rp, err := rank.get()
 		if err != nil {
 			return nil, &dataError{fmt.Errorf("ranking readings: %w", err)}
 		}

@@ -20,6 +20,36 @@ import (
 // that a square-law curve shows no kinks at chart size.
 const curvePoints = 49
 
+// sysCurves are the report's two system curves: the circuit as found and
+// as planned, each at the same differentials.
+type sysCurves struct{ before, after []plant.Point }
+
+// systemCurves works out the report's system curves, from zero to 1.4
+// times the larger of the two duties (or the pump's shut-off head): the
+// two are independent, so each is a stage of its own when there are
+// workers to spare.
+func (j *job) systemCurves(ctx context.Context) (sysCurves, error) {
+	m, s := j.L.Model, j.L.Site
+	top := 1.4 * math.Max(j.Before.PumpDiff(), j.After.PumpDiff())
+	if m.Pump != nil && s.Boundary.Kind == site.PumpCurve {
+		top = math.Max(top, m.Set(1, j.Before.State.Running).AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
+	}
+	diffs := make([]float64, curvePoints)
+	for k := range diffs {
+		diffs[k] = top * float64(k) / float64(len(diffs)-1)
+	}
+	after := start(j.stages, func() ([]plant.Point, error) { return m.SystemCurve(ctx, j.Params, j.Plan.Settings, diffs) })
+	before, err := m.SystemCurve(ctx, j.Fitted, j.Before.State.Settings, diffs)
+	if err != nil {
+		return sysCurves{}, err
+	}
+	a, err := after.get()
+	if err != nil {
+		return sysCurves{}, err
+	}
+	return sysCurves{before, a}, nil
+}
+
 // reportInput maps a job onto the report's view model.
 func (j *job) reportInput(ctx context.Context, generated string) (report.Input, error) {
 	l, m, plan := j.L, j.L.Model, j.Plan
@@ -178,22 +208,15 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	// Whole circuit.
 	opB := plant.Point{Flow: j.Before.TotalFlow(), Diff: j.Before.PumpDiff()}
 	opA := plant.Point{Flow: j.After.TotalFlow(), Diff: j.After.PumpDiff()}
-	top := 1.4 * math.Max(opB.Diff, opA.Diff)
-	if m.Pump != nil && s.Boundary.Kind == site.PumpCurve {
-		top = math.Max(top, m.Set(1, j.Before.State.Running).AtSpeed(j.Before.State.Speed).ShutOff()*j.Params.PumpHead*m.Fluid.Density*hydraulics.StandardGravity)
+	curves := j.curves
+	if curves == nil {
+		curves = start(nil, func() (sysCurves, error) { return j.systemCurves(ctx) })
 	}
-	diffs := make([]float64, curvePoints)
-	for k := range diffs {
-		diffs[k] = top * float64(k) / float64(len(diffs)-1)
-	}
-	sysB, err := m.SystemCurve(ctx, j.Fitted, j.Before.State.Settings, diffs)
+	sc, err := curves.get()
 	if err != nil {
 		return in, err
 	}
-	sysA, err := m.SystemCurve(ctx, j.Params, plan.Settings, diffs)
-	if err != nil {
-		return in, err
-	}
+	sysB, sysA := sc.before, sc.after
 	in.Combined.System, in.Combined.SystemAfter = xy(sysB), xy(sysA)
 	qmax := math.Max(sysB[len(sysB)-1].Flow, sysA[len(sysA)-1].Flow)
 	qs := make([]float64, curvePoints)

@@ -24,6 +24,9 @@ type IO struct {
 	// Now is the clock stamped on outputs; nil means time.Now. Tests inject
 	// a fixed one so outputs can be compared byte for byte.
 	Now func() time.Time
+	// workers bounds the stages a job runs side by side after its fit (0:
+	// one per processor; 1: one after another). Tests compare the two.
+	workers int
 }
 
 func (ios *IO) now() time.Time {

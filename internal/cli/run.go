@@ -1,6 +1,7 @@
 package cli
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -253,7 +254,15 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			return err
 		}
 	}
-	j, err := runJob(ctx, l, &o.job, pr)
+	// The stages after the fit run side by side; whatever way the command
+	// ends, none outlives it (cancelled first, then waited for).
+	o.job.workers = ios.workers
+	st := newStages(o.job.workers)
+	defer st.wait()
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	o.job.report = o.writeReport && o.Out != ""
+	j, err := runJob(ctx, l, &o.job, pr, st)
 	if err != nil {
 		printProblems(ios.Err, l.Problems)
 		return err
@@ -298,90 +307,87 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	if o.Out == "" {
 		return j.shortErr(o)
 	}
-	var in report.Input
+	// Every output file is rendered in memory as a stage of its own, side
+	// by side with the report's model (its system curves may still be
+	// running), then written in this order.
+	j.settle()
+	var inF *future[report.Input]
 	switch {
 	case j.Trim != nil:
 		pr.step("drawing the report")
-		if in, err = j.trimReportInput(ctx, generated); err != nil {
-			return &dataError{fmt.Errorf("report: %w", err)}
-		}
+		inF = start(st, func() (report.Input, error) { return j.trimReportInput(ctx, generated) })
 	case o.writeReport:
 		pr.step("drawing the report")
-		if in, err = j.reportInput(ctx, generated); err != nil {
+		inF = start(st, func() (report.Input, error) { return j.reportInput(ctx, generated) })
+	}
+	type file struct {
+		name string
+		data *future[[]byte]
+	}
+	var files []file
+	put := func(name string, write func(io.Writer) error) {
+		files = append(files, file{name, start(st, func() ([]byte, error) {
+			var b bytes.Buffer
+			err := write(&b)
+			return b.Bytes(), err
+		})})
+	}
+	if o.writeFit || o.writeReport || j.Trim != nil {
+		put("calibration.json", func(w io.Writer) error { return writeJSON(w, j.calibrationOut(generated)) })
+		put("calibration.csv", func(w io.Writer) error { h, rows := j.fitRows(); return writeCSV(w, h, rows) })
+		put("findings.csv", func(w io.Writer) error { h, rows := j.findingRows(); return writeCSV(w, h, rows) })
+		put("readings.csv", func(w io.Writer) error { h, rows := j.readingRows(); return writeCSV(w, h, rows) })
+	}
+	if o.writePlan || o.writeReport {
+		put("field-sheet.csv", func(w io.Writer) error { h, rows := j.fieldSheet(o.job.Units); return writeCSV(w, h, rows) })
+		put("field-sheet.xlsx", func(w io.Writer) error {
+			h, rows := j.fieldSheet(o.job.Units)
+			return writeWorkbook(w, h, rows, j.fieldSheetAbout(o.job.Units, generated))
+		})
+		put("plan.json", func(w io.Writer) error { return writeJSON(w, j.planOut(generated)) })
+		if j.Reads != nil {
+			put("read-next.csv", func(w io.Writer) error { h, rows := j.readNextRows(o.job.Units); return writeCSV(w, h, rows) })
+			put("read-next.json", func(w io.Writer) error { return writeJSON(w, j.readNextOut()) })
+			if j.surveyPlan {
+				put("survey-route.csv", func(w io.Writer) error { h, rows := j.surveyRouteRows(o.job.Units); return writeCSV(w, h, rows) })
+			}
+		}
+	}
+	if j.Trim != nil {
+		put("trim.csv", func(w io.Writer) error {
+			t := j.trimTable(o.job.Units)
+			return writeCSV(w, append(t.Columns, t.WriteIn...), padRows(t.Rows, len(t.WriteIn)))
+		})
+		put("trim.json", func(w io.Writer) error { return writeJSON(w, j.trimOut(generated)) })
+	}
+	if inF != nil {
+		put("report.html", func(w io.Writer) error {
+			in, err := inF.get()
+			if err != nil {
+				return nil // reported below, as the report's model failing
+			}
+			return report.Write(w, in)
+		})
+		if _, err := inF.get(); err != nil {
 			return &dataError{fmt.Errorf("report: %w", err)}
 		}
 	}
 	pr.step("writing %s", shown(o.Out))
 	err = claim.writeDir(ctx, func(create func(string) (io.WriteCloser, error)) error {
-		put := func(name string, write func(io.Writer) error) error {
-			w, err := create(name)
+		for _, f := range files {
+			b, err := f.data.get()
+			if err != nil {
+				return fmt.Errorf("%s: %w", f.name, err)
+			}
+			w, err := create(f.name)
 			if err != nil {
 				return err
 			}
-			if err := write(w); err != nil {
+			if _, err := w.Write(b); err != nil {
 				w.Close()
-				return fmt.Errorf("%s: %w", name, err)
+				return fmt.Errorf("%s: %w", f.name, err)
 			}
-			return w.Close()
-		}
-		if o.writeFit || o.writeReport || j.Trim != nil {
-			if err := put("calibration.json", func(w io.Writer) error { return writeJSON(w, j.calibrationOut(generated)) }); err != nil {
-				return err
-			}
-			h, rows := j.fitRows()
-			if err := put("calibration.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-				return err
-			}
-			h, rows = j.findingRows()
-			if err := put("findings.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-				return err
-			}
-			h, rows = j.readingRows()
-			if err := put("readings.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-				return err
-			}
-		}
-		if o.writePlan || o.writeReport {
-			h, rows := j.fieldSheet(o.job.Units)
-			if err := put("field-sheet.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-				return err
-			}
-			about := j.fieldSheetAbout(o.job.Units, generated)
-			if err := put("field-sheet.xlsx", func(w io.Writer) error { return writeWorkbook(w, h, rows, about) }); err != nil {
-				return err
-			}
-			if err := put("plan.json", func(w io.Writer) error { return writeJSON(w, j.planOut(generated)) }); err != nil {
-				return err
-			}
-			if j.Reads != nil {
-				h, rows := j.readNextRows(o.job.Units)
-				if err := put("read-next.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-					return err
-				}
-				if err := put("read-next.json", func(w io.Writer) error { return writeJSON(w, j.readNextOut()) }); err != nil {
-					return err
-				}
-				if j.surveyPlan {
-					h, rows := j.surveyRouteRows(o.job.Units)
-					if err := put("survey-route.csv", func(w io.Writer) error { return writeCSV(w, h, rows) }); err != nil {
-						return err
-					}
-				}
-			}
-		}
-		if j.Trim != nil {
-			t := j.trimTable(o.job.Units)
-			if err := put("trim.csv", func(w io.Writer) error {
-				return writeCSV(w, append(t.Columns, t.WriteIn...), padRows(t.Rows, len(t.WriteIn)))
-			}); err != nil {
-				return err
-			}
-			if err := put("trim.json", func(w io.Writer) error { return writeJSON(w, j.trimOut(generated)) }); err != nil {
-				return err
-			}
-		}
-		if o.writeReport || j.Trim != nil {
-			if err := put("report.html", func(w io.Writer) error { return report.Write(w, in) }); err != nil {
+			if err := w.Close(); err != nil {
 				return err
 			}
 		}
@@ -496,6 +502,14 @@ func printFit(w io.Writer, j *job, sheets bool) {
 		}
 	}
 	fmt.Fprintln(w)
+}
+
+// settle works out the answers the job keeps by branch (flowRead's and
+// flagsOf's) before the outputs are rendered side by side, which then
+// only read the job.
+func (j *job) settle() {
+	j.flowRead("")
+	j.flagsOf("")
 }
 
 // flowRead is the flow read on branch id in the as-found state: a clamp-on

@@ -33,7 +33,7 @@ type remedy struct {
 // together), the plan and the present flows once the branch is cleaned back
 // to its design resistance. It only calls the plan and the solver with other
 // multipliers; nothing here changes how either computes.
-func (j *job) remedies(ctx context.Context) error {
+func (j *job) remedies(ctx context.Context, st *stages) error {
 	var restricted []int
 	for _, f := range j.Findings {
 		if f.Code != diagnose.Restricted {
@@ -52,10 +52,20 @@ func (j *job) remedies(ctx context.Context) error {
 	// are left out, half of each such plan's time on a large site.
 	opts := j.planOptions()
 	opts.Uncertainty = nil
-	fix := func(idx []int) (*remedy, error) {
+	// Each remedy works on its own copies of the multipliers, so they run
+	// side by side (at most a worker each: every one holds a plan's
+	// memory); the last is the one for every repair at once.
+	var sets [][]int
+	if len(restricted) <= maxRemedies {
+		for _, i := range restricted {
+			sets = append(sets, []int{i})
+		}
+	}
+	sets = append(sets, restricted)
+	rs, errs := each(st, len(sets), func(k int) (*remedy, error) {
 		p := j.Params.Clone()
 		f := j.Fitted.Clone()
-		for _, i := range idx {
+		for _, i := range sets[k] {
 			p.Resistance[i] = 1
 			f.Resistance[i] = 1
 		}
@@ -69,21 +79,18 @@ func (j *job) remedies(ctx context.Context) error {
 			return nil, err
 		}
 		return &remedy{Plan: pl, Now: now}, nil
-	}
-	if len(restricted) <= maxRemedies {
-		for _, i := range restricted {
-			r, err := fix([]int{i})
-			if err != nil {
-				return &dataError{fmt.Errorf("plan after cleaning %s: %w", j.L.Model.Branches[i].ID, err)}
-			}
-			j.Remedy[j.L.Model.Branches[i].ID] = r
+	})
+	last := len(sets) - 1
+	for k, r := range rs[:last] {
+		if errs[k] != nil {
+			return &dataError{fmt.Errorf("plan after cleaning %s: %w", j.L.Model.Branches[sets[k][0]].ID, errs[k])}
 		}
+		j.Remedy[j.L.Model.Branches[sets[k][0]].ID] = r
 	}
-	all, err := fix(restricted)
-	if err != nil {
-		return &dataError{fmt.Errorf("plan after the repairs: %w", err)}
+	if errs[last] != nil {
+		return &dataError{fmt.Errorf("plan after the repairs: %w", errs[last])}
 	}
-	j.Remedy[""] = all
+	j.Remedy[""] = rs[last]
 	return nil
 }
 
