@@ -5,6 +5,7 @@ import (
 	"slices"
 
 	"flowset/internal/lsq"
+	"flowset/internal/parallel"
 )
 
 // The local Jacobian: an approximation of the fit's Jacobian in which the
@@ -303,13 +304,13 @@ func (p opProblem) ApproxJacobian() (rows, cols []int, vals []float64) {
 		ix := ln.index(sn, np)
 		type span struct{ w, lo, hi int }
 		chunks := make([]span, (np+localChunk-1)/localChunk)
-		workers := max(min(p.workers, len(chunks)), 1)
+		workers := min(parallel.Workers(p.workers), max(len(chunks), 1))
 		scr := make([]*localScratch, workers)
 		for w := range workers {
 			scr[w] = ln.scratch(w, m)
 			scr[w].rows, scr[w].cols, scr[w].vals = scr[w].rows[:0], scr[w].cols[:0], scr[w].vals[:0]
 		}
-		forEach(workers, len(chunks), func(w, k int) {
+		parallel.For(workers, len(chunks), func(w, k int) {
 			sc := scr[w]
 			lo := len(sc.rows)
 			for j := k * localChunk; j < min((k+1)*localChunk, np); j++ {

@@ -2,7 +2,8 @@ package lsq
 
 import (
 	"math"
-	"runtime"
+
+	"flowset/internal/parallel"
 )
 
 // ExactOperator is a matrix-free problem whose Jacobian products and local
@@ -39,9 +40,7 @@ func ExactVariances(op ExactOperator, res *Result, sigma []float64, cols []int, 
 			prec[j] = 1 / (s * s)
 		}
 	}
-	if workers <= 0 {
-		workers = runtime.GOMAXPROCS(0)
-	}
+	workers = parallel.Workers(workers)
 	precWorkers := workers
 	if _, ok := op.(Forker); !ok {
 		workers = 1
@@ -76,7 +75,7 @@ func ExactVariances(op ExactOperator, res *Result, sigma []float64, cols []int, 
 		return
 	}
 	ys := make([][]float64, len(cols))
-	forEach(workers, len(cols), func(wk, k int) {
+	parallel.For(workers, len(cols), func(wk, k int) {
 		j := cols[k]
 		if j < 0 || j >= n {
 			return

@@ -91,6 +91,8 @@ import (
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"flowset/internal/parallel"
 )
 
 // Sentinel causes wrapped by the errors Solve returns.
@@ -1585,7 +1587,7 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 				}
 			}
 		}
-		forEach(workers, nb, func(wk, b int) {
+		parallel.For(workers, nb, func(wk, b int) {
 			out[b], oks[b] = nil, false
 			if ctx.Err() != nil {
 				return

@@ -1,6 +1,10 @@
 package lsq
 
-import "math"
+import (
+	"math"
+
+	"flowset/internal/parallel"
+)
 
 // SparseApprox is optional for an Operator problem: ApproxJacobian returns
 // the non-zero entries (row i, column j, value) of an approximation J̃ of
@@ -148,7 +152,7 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64, workers int
 			owner[j] = int32(j % workers)
 		}
 	}
-	forEach(workers, workers, func(_, g int) {
+	parallel.For(workers, workers, func(_, g int) {
 		for i := range m {
 			cs, vs := rc[start[i]:start[i+1]], rv[start[i]:start[i+1]]
 			if w[i] == 0 || len(cs) > maxRowCoupling {

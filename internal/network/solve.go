@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"flowset/internal/parallel"
 )
 
 // Defaults used when Options or one of its fields is zero.
@@ -69,6 +71,12 @@ type Options struct {
 	Tol     float64   // relative tolerance, default DefaultTol
 	MaxIter int       // Newton iterations, default DefaultMaxIter
 	Initial []float64 // warm-start link flows [m3/s], e.g. a previous Solution.Flow; nil starts cold
+	// Workers is the number of goroutines that evaluate the elements'
+	// drops of a network of more than evalChunk links, each a share of the
+	// links (the same solution to the bit on any number; elements' Drop
+	// methods are pure functions of the flow and fluid); 0 or nil options:
+	// runtime.GOMAXPROCS(0).
+	Workers int
 }
 
 // Solution is the converged state of a network.
@@ -179,7 +187,9 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	}
 	tol, maxIter := DefaultTol, DefaultMaxIter
 	var initial []float64
+	workers := 0
 	if opt != nil {
+		workers = opt.Workers
 		if opt.Tol < 0 || math.IsNaN(opt.Tol) {
 			return nil, fmt.Errorf("tolerance %g must be positive: %w", opt.Tol, ErrInput)
 		}
@@ -208,6 +218,7 @@ func (n *Network) Solve(ctx context.Context, opt *Options) (*Solution, error) {
 	nn := len(n.nodeID)
 	ws := n.takeWorkspace(pl)
 	defer n.putWorkspace(ws)
+	ws.workers = parallel.Workers(workers)
 	cur, trial, sy := ws.cur, ws.trial, ws.sy
 	// Demands by band position, and their scale, for the residuals.
 	ws.dmax = 0
@@ -566,12 +577,46 @@ func (sy *system) step(e, c []float64) {
 	}
 }
 
-// evaluate fills the drops, slopes and residuals of st at its q and p.
+// evalChunk is the number of links per task when evaluate splits the
+// links over goroutines: a link's elements cost 0.1-1 µs, so a task is
+// worth far more than handing it over.
+const evalChunk = 2048
+
+// evaluate fills the drops, slopes and residuals of st at its q and p. On a
+// network of more than evalChunk links the drops are worked out on up to
+// ws.workers goroutines, each link's by the same operations; a non-finite
+// drop is reported for the first such link, as on one.
 func (n *Network) evaluate(ws *workspace, st *state) error {
-	fl := n.Fluid
 	q := st.q[:len(n.links)]
-	h, s := st.h[:len(q)], st.s[:len(q)]
-	for i := range n.links {
+	tasks := (len(q) + evalChunk - 1) / evalChunk
+	if ws.workers <= 1 || tasks <= 1 {
+		if bad := n.drops(st, 0, len(q)); bad >= 0 {
+			return n.dropErr(st, bad)
+		}
+		residuals(ws, st)
+		return nil
+	}
+	if len(ws.bad) != tasks {
+		ws.bad = make([]int, tasks)
+	}
+	parallel.For(ws.workers, tasks, func(_, k int) {
+		ws.bad[k] = n.drops(st, k*evalChunk, min((k+1)*evalChunk, len(q)))
+	})
+	for _, bad := range ws.bad {
+		if bad >= 0 {
+			return n.dropErr(st, bad)
+		}
+	}
+	residuals(ws, st)
+	return nil
+}
+
+// drops fills st's drops and slopes of links [lo, hi) at their flows and
+// returns the first link whose drop or slope is not finite, or -1.
+func (n *Network) drops(st *state, lo, hi int) int {
+	fl := n.Fluid
+	q, h, s := st.q, st.h, st.s
+	for i := lo; i < hi; i++ {
 		var dp, sl float64
 		for _, e := range n.links[i].elems {
 			a, b := e.Drop(q[i], fl)
@@ -579,12 +624,22 @@ func (n *Network) evaluate(ws *workspace, st *state) error {
 			sl += b
 		}
 		if !finite(dp) || !finite(sl) {
-			return fmt.Errorf("link %q at flow %g m3/s: drop %g Pa, slope %g: %w", n.links[i].id, q[i], dp, sl, ErrElement)
+			return i
 		}
 		h[i], s[i] = dp, sl
 	}
-	residuals(ws, st)
-	return nil
+	return -1
+}
+
+// dropErr is the error of link i's non-finite drop or slope at st's flow.
+func (n *Network) dropErr(st *state, i int) error {
+	var dp, sl float64
+	for _, e := range n.links[i].elems {
+		a, b := e.Drop(st.q[i], n.Fluid)
+		dp += a
+		sl += b
+	}
+	return fmt.Errorf("link %q at flow %g m3/s: drop %g Pa, slope %g: %w", n.links[i].id, st.q[i], dp, sl, ErrElement)
 }
 
 // residuals fills e and c and their norms from q, p and h.
@@ -722,6 +777,8 @@ type workspace struct {
 	h0, e0, c0, p0, sec, prev []float64
 	demand                    []float64 // per band position
 	dmax                      float64   // largest |demand| over all nodes
+	workers                   int       // goroutines of evaluate (Options.Workers)
+	bad                       []int     // evaluate's first bad link per task
 }
 
 // takeWorkspace returns the Network's workspace for pl, or a new one.
