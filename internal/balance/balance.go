@@ -229,6 +229,10 @@ type Options struct {
 	// MinValveDiff overrides every valve model's smallest reliable
 	// differential, Pa; 0 uses the model's (3 kPa when it has none).
 	MinValveDiff float64
+	// Workers bounds the goroutines the plan's sensitivity solves run on
+	// side by side; 0 means runtime.GOMAXPROCS(0), 1 one after another.
+	// The plan is the same bit for bit whatever it is.
+	Workers int
 	// bandExactMax, when not 0, replaces bandExactMax (tests compare
 	// both ways of computing the band on one site).
 	bandExactMax int

@@ -15,7 +15,7 @@ func (pl *planner) band(sol *plant.Solved) error {
 	if pl.opt.bandExactMax != 0 {
 		limit = pl.opt.bandExactMax
 	}
-	sd, err := flowSDWith(m, pl.p, u, sol, limit)
+	sd, err := flowSDWith(m, pl.p, u, sol, limit, pl.opt.Workers)
 	if err != nil {
 		return err
 	}

@@ -5,9 +5,13 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
 	"slices"
 	"sort"
+	"sync"
+	"sync/atomic"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 
@@ -92,6 +96,11 @@ type ReadOptions struct {
 	// Max is the most readings listed; 0 lists all that lower the risk at
 	// all (the last may lower it very little: see Candidate.Gain).
 	Max int
+	// Workers bounds the goroutines the ranking's independent work (the
+	// sensitivity solves, the covariance's rows) runs on side by side; 0
+	// means runtime.GOMAXPROCS(0), 1 one after another. The ranking is
+	// the same bit for bit whatever it is.
+	Workers int
 }
 
 // Candidate is one reading worth taking after setting.
@@ -208,7 +217,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		dlnq []float64
 	}
 	var cols []col
-	if err := sensitivities(m, p, o.Uncertainty, sol, func(par uparam, dlnq []float64) error {
+	if err := sensitivities(m, p, o.Uncertainty, sol, o.Workers, func(par uparam, dlnq []float64) error {
 		cols = append(cols, col{par, append([]float64(nil), dlnq...)})
 		return nil
 	}); err != nil {
@@ -225,7 +234,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			return nil, fmt.Errorf("rank readings: %w: %w", err, ErrSolve)
 		}
 		colsR = nil
-		if err := sensitivities(m, p, o.Uncertainty, solR, func(par uparam, dlnq []float64) error {
+		if err := sensitivities(m, p, o.Uncertainty, solR, o.Workers, func(par uparam, dlnq []float64) error {
 			colsR = append(colsR, col{par, append([]float64(nil), dlnq...)})
 			return nil
 		}); err != nil {
@@ -332,7 +341,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			a.Set(rowNeed(k), j, sg*v/nd.Chain)
 		}
 	}
-	K := outerRows(a, nf, o.ReadAt == nil)
+	K := outerRows(a, nf, o.ReadAt == nil, o.Workers)
 	// The model's own error of each branch's flow, shared by its flow
 	// after the plan and its readings: what no parameter's spread holds.
 	if f2 := o.ModelSD * o.ModelSD; f2 > 0 {
@@ -474,16 +483,28 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	// after returns the risk once c's rows are observed: the flows'
 	// variances and the need's fall by the rank-one updates, one row at a
 	// time, each row's covariances with the later rows updated as it goes.
-	diag := make([]float64, nf)
-	f := make([][]float64, 2)
-	for q := range f {
-		f[q] = make([]float64, nf)
+	// nvNow is needVar(ka) for K as it stands: the same for every
+	// candidate of a round, so worked out once a round.
+	var nvNow float64
+	// scratch is one scorer's: the flows' variances and the rows' terms.
+	type scratch struct {
+		diag []float64
+		f    [][]float64
 	}
-	after := func(c *cand) float64 {
+	newScratch := func() *scratch {
+		sc := &scratch{diag: make([]float64, nf), f: make([][]float64, 2)}
+		for q := range sc.f {
+			sc.f[q] = make([]float64, nf)
+		}
+		return sc
+	}
+	own := newScratch()
+	after := func(c *cand, sc *scratch) float64 {
+		diag, f := sc.diag, sc.f
 		for k := range nf {
 			diag[k] = K.At(rowFlow(k), rowFlow(k))
 		}
-		nv := needVar(ka)
+		nv := nvNow
 		nq := len(c.rows)
 		g := make([]float64, nq)
 		h := make([][]float64, nq)
@@ -533,15 +554,16 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			// update itself (nr is about 900 at 1,000 branches). The
 			// same operations as K.Set(x, y, K.At(x, y)-col[x]*col[y]/d),
 			// so the same bits, on the upper triangle less the
-			// clamp-on rows and columns.
+			// clamp-on rows and columns. Each row's update reads col
+			// alone and writes its own row, so the rows are shared out.
 			upd := func(kr, col []float64, cx float64) {
 				for y, cy := range col {
 					kr[y] -= cx * cy / d
 				}
 			}
-			for x := range nr {
+			parallelRows(o.Workers, nr, func(x int) {
 				if x >= lo && x < hi {
-					continue
+					return
 				}
 				kr := K.RawRowView(x)
 				if x < lo {
@@ -550,10 +572,12 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 				} else {
 					upd(kr[x:nr], col[x:nr], col[x])
 				}
-			}
+			})
 		}
 		folded()
+		nvNow = needVar(ka)
 	}
+	nvNow = needVar(ka)
 	now := rp.Risk
 	// Lazy greedy (Minoux, "Accelerated greedy algorithms for maximizing
 	// submodular set functions", 1978): a reading lowers the variances the
@@ -570,6 +594,29 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	for ci := range order {
 		order[ci] = ci
 	}
+	// The first round scores every candidate (every bound is infinite):
+	// those scores are independent, so they are shared out among the
+	// workers, each with its own scratch.
+	first := make([]float64, len(cands))
+	if workers := o.Workers; workers != 1 && len(cands) > 1 {
+		if workers <= 0 {
+			workers = runtime.GOMAXPROCS(0)
+		}
+		pool := make(chan *scratch, workers)
+		for range workers {
+			pool <- newScratch()
+		}
+		parallelRows(workers, len(cands), func(ci int) {
+			sc := <-pool
+			first[ci] = after(&cands[ci], sc)
+			pool <- sc
+		})
+	} else {
+		for ci := range cands {
+			first[ci] = after(&cands[ci], own)
+		}
+	}
+	round := 0
 	for o.Max == 0 || len(rp.Readings) < o.Max {
 		if err := ctx.Err(); err != nil {
 			return nil, err
@@ -584,7 +631,12 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			if best >= 0 && bestScore >= bound[ci] {
 				break
 			}
-			r := after(c)
+			var r float64
+			if round == 0 {
+				r = first[ci]
+			} else {
+				r = after(c, own)
+			}
 			sc := (now - r) / c.cost
 			bound[ci] = sc
 			if sc > bestScore {
@@ -599,6 +651,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		rp.Readings = append(rp.Readings, describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk, c.cost, pout, pd))
 		observe(c)
 		now = bestRisk
+		round++
 	}
 	rp.RiskAfter = now
 	return rp, nil
@@ -657,35 +710,43 @@ func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind,
 // products are those of the flow rows: a aᵀ is formed on the other rows
 // alone (half the work at 1,000 branches) and spread. The dot product
 // adds the same products in the same order whichever row comes first, so
-// every entry has the bits the full product gives it.
-func outerRows(a *mat.Dense, nf int, same bool) *mat.Dense {
+// every entry has the bits the full product gives it. The rows are shared
+// out among up to workers goroutines (0: one per processor); each entry is
+// the same dot product whichever works it out.
+func outerRows(a *mat.Dense, nf int, same bool, workers int) *mat.Dense {
 	nr, nc := a.Dims()
-	if !same || nf == 0 {
-		var kk mat.SymDense
-		kk.SymOuterK(1, a)
-		return mat.DenseCopyOf(&kk)
-	}
-	// phys maps a row of a to its row in the reduced matrix.
+	// phys maps a row of a to its row in the product formed.
 	phys := make([]int, nr)
 	var keep []int
 	for x := range nr {
 		switch {
-		case x >= 2*nf && x < 3*nf:
+		case same && nf > 0 && x >= 2*nf && x < 3*nf:
 			phys[x] = x - 2*nf // the flow row it repeats
 		default:
 			phys[x] = len(keep)
 			keep = append(keep, x)
 		}
 	}
-	ar := mat.NewDense(len(keep), nc, nil)
-	for r, x := range keep {
-		ar.SetRow(r, a.RawRowView(x)[:nc])
-	}
-	var kk mat.SymDense
-	kk.SymOuterK(1, ar)
-	rs := kk.RawSymmetric() // upper triangle
+	nk := len(keep)
+	// The upper triangle of the kept rows' product, as gonum's Dsyrk
+	// forms it for SymOuterK: entry (i, j) is 0·1 + 1·(a_i · a_j), the
+	// dot product by floats.Dot (the same unrolled sum), which is the dot
+	// product itself but that an exact -0 becomes +0.
+	rs := make([]float64, nk*nk)
+	rowsOf := func(x int) []float64 { return a.RawRowView(keep[x])[:nc] }
+	parallelRows(workers, nk, func(i int) {
+		ai := rowsOf(i)
+		ri := rs[i*nk : (i+1)*nk]
+		for j := i; j < nk; j++ {
+			d := floats.Dot(ai, rowsOf(j))
+			if d == 0 {
+				d = 0
+			}
+			ri[j] = d
+		}
+	})
 	K := mat.NewDense(nr, nr, nil)
-	for x := range nr {
+	parallelRows(workers, nr, func(x int) {
 		kr := K.RawRowView(x)[:nr]
 		px := phys[x]
 		for y := range nr {
@@ -693,8 +754,41 @@ func outerRows(a *mat.Dense, nf int, same bool) *mat.Dense {
 			if i > j {
 				i, j = j, i
 			}
-			kr[y] = rs.Data[i*rs.Stride+j]
+			kr[y] = rs[i*nk+j]
 		}
-	}
+	})
 	return K
+}
+
+// parallelRows calls f(0) ... f(n-1), each once, on up to workers
+// goroutines (0: runtime.GOMAXPROCS(0)); f must write only what its row
+// owns. Rows are handed out one at a time, so rows of unequal work (a
+// triangle's) share out evenly.
+func parallelRows(workers, n int, f func(i int)) {
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = min(workers, n)
+	if workers <= 1 {
+		for i := range n {
+			f(i)
+		}
+		return
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				i := int(next.Add(1)) - 1
+				if i >= n {
+					return
+				}
+				f(i)
+			}
+		}()
+	}
+	wg.Wait()
 }

@@ -4,6 +4,9 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"runtime"
+	"sync"
+	"sync/atomic"
 
 	"flowset/internal/plant"
 )
@@ -36,10 +39,14 @@ type uparam struct {
 // multiplier, all header segments for the header multiplier, the pump's
 // negative drop for its head multiplier) and -2 Δp_valve for a Kv scale
 // (Δp ∝ Kv⁻²). dlnq is reused between calls.
-func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.Solved, f func(par uparam, dlnq []float64) error) error {
+//
+// The solves are independent: up to workers of them (0:
+// runtime.GOMAXPROCS(0)) run side by side, each with its own scratch, a
+// chunk of parameters at a time, and f is called on this goroutine in
+// the parameters' order, so its results do not depend on the workers.
+func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.Solved, workers int, f func(par uparam, dlnq []float64) error) error {
 	n := len(m.Branches)
 	nl := sol.Built.Net.NumLinks()
-	dh := make([]float64, nl)
 	// Each branch's link and flow, looked up once: this loop runs once per
 	// uncertain parameter, and a map lookup per branch in it cost more than
 	// the sensitivity solve on large sites.
@@ -49,19 +56,14 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 		link[i] = sol.Built.Branch[m.Branches[i].ID]
 		flow[i] = sol.Flow(i)
 	}
-	dq := make([]float64, nl)
-	dlnq := make([]float64, n)
-	scratch := make([]float64, sol.Built.Net.NumNodes())
-	call := func(par uparam) error {
-		if err := sol.Sol.SensitivityFlows(dh, dq, scratch); err != nil {
-			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
-		}
-		for i := range n {
-			dlnq[i] = flowDelta(m, link, i, dq) / flow[i]
-		}
-		clear(dh)
-		return f(par, dlnq)
+	// Every parameter with the drop changes it makes (one link's, or the
+	// header segments').
+	type sens struct {
+		par   uparam
+		links []int
+		dh    []float64
 	}
+	var all []sens
 	for j := range n {
 		l := link[j]
 		if l < 0 {
@@ -69,33 +71,92 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 		}
 		if j < len(u.LnResistance) && u.LnResistance[j] > 0 {
 			if fe := m.FixedElement(j, p.Resistance[j]); fe != nil {
-				dh[l], _ = fe.Drop(sol.Flow(j), m.Fluid)
-				if err := call(uparam{ResistanceParam, j, u.LnResistance[j]}); err != nil {
-					return err
-				}
+				d, _ := fe.Drop(sol.Flow(j), m.Fluid)
+				all = append(all, sens{uparam{ResistanceParam, j, u.LnResistance[j]}, []int{l}, []float64{d}})
 			}
 		}
 		if j < len(u.LnKvScale) && u.LnKvScale[j] > 0 && m.Branches[j].Valve != nil {
-			dh[l] = -2 * sol.ValveDiff(j)
-			if err := call(uparam{KvParam, j, u.LnKvScale[j]}); err != nil {
-				return err
-			}
+			all = append(all, sens{uparam{KvParam, j, u.LnKvScale[j]}, []int{l}, []float64{-2 * sol.ValveDiff(j)}})
 		}
 	}
 	if u.LnHeader > 0 && len(sol.Built.Headers) > 0 {
+		h := sens{par: uparam{HeaderParam, -1, u.LnHeader}}
 		for _, l := range sol.Built.Headers {
-			dh[l] = sol.Sol.Drop[l]
+			h.links, h.dh = append(h.links, l), append(h.dh, sol.Sol.Drop[l])
 		}
-		if err := call(uparam{HeaderParam, -1, u.LnHeader}); err != nil {
-			return err
-		}
+		all = append(all, h)
 	}
 	if u.LnPumpHead > 0 && sol.Built.PumpLink >= 0 {
 		// The pump's own drop: the static lift in its link does not
 		// scale with the head multiplier.
-		dh[sol.Built.PumpLink] = sol.Sol.Drop[sol.Built.PumpLink] - m.Lift()
-		if err := call(uparam{PumpParam, -1, u.LnPumpHead}); err != nil {
-			return err
+		l := sol.Built.PumpLink
+		all = append(all, sens{uparam{PumpParam, -1, u.LnPumpHead}, []int{l}, []float64{sol.Sol.Drop[l] - m.Lift()}})
+	}
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = max(1, min(workers, len(all)))
+	// Scratch per worker, and a chunk's results: a few columns a worker,
+	// so the memory stays a small multiple of the branches.
+	type scratch struct{ dh, dq, nodes []float64 }
+	ws := make([]scratch, workers)
+	for w := range ws {
+		ws[w] = scratch{make([]float64, nl), make([]float64, nl), make([]float64, sol.Built.Net.NumNodes())}
+	}
+	chunk := 1
+	if workers > 1 {
+		chunk = 16 * workers
+	}
+	out := make([][]float64, chunk)
+	errs := make([]error, chunk)
+	for k := range out {
+		out[k] = make([]float64, n)
+	}
+	one := func(w *scratch, s *sens, dlnq []float64) error {
+		for k, l := range s.links {
+			w.dh[l] = s.dh[k]
+		}
+		err := sol.Sol.SensitivityFlows(w.dh, w.dq, w.nodes)
+		for _, l := range s.links {
+			w.dh[l] = 0
+		}
+		if err != nil {
+			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
+		}
+		for i := range n {
+			dlnq[i] = flowDelta(m, link, i, w.dq) / flow[i]
+		}
+		return nil
+	}
+	for lo := 0; lo < len(all); lo += chunk {
+		hi := min(lo+chunk, len(all))
+		if workers == 1 {
+			errs[0] = one(&ws[0], &all[lo], out[0])
+		} else {
+			var next atomic.Int64
+			var wg sync.WaitGroup
+			for w := range min(workers, hi-lo) {
+				wg.Add(1)
+				go func() {
+					defer wg.Done()
+					for {
+						k := int(next.Add(1)) - 1
+						if k >= hi-lo {
+							return
+						}
+						errs[k] = one(&ws[w], &all[lo+k], out[k])
+					}
+				}()
+			}
+			wg.Wait()
+		}
+		for k := range hi - lo {
+			if errs[k] != nil {
+				return errs[k]
+			}
+			if err := f(all[lo+k].par, out[k]); err != nil {
+				return err
+			}
 		}
 	}
 	return nil
@@ -120,18 +181,20 @@ const (
 // diagonal of J Σ Jᵀ, exact up to bandExactMax uncertain branch
 // parameters, estimated above (flowSDEstimated).
 func flowSD(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.Solved) ([]float64, error) {
-	return flowSDWith(m, p, u, sol, bandExactMax)
+	return flowSDWith(m, p, u, sol, bandExactMax, 0)
 }
 
-// flowSDWith is flowSD exact up to exactMax uncertain branch parameters.
-func flowSDWith(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.Solved, exactMax int) ([]float64, error) {
+// flowSDWith is flowSD exact up to exactMax uncertain branch parameters,
+// its sensitivities solved on up to workers goroutines (0: one per
+// processor).
+func flowSDWith(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.Solved, exactMax, workers int) ([]float64, error) {
 	v := make([]float64, len(m.Branches))
 	if u == nil {
 		return v, nil
 	}
 	var err error
 	if uncertainBranchParams(m, p, u, sol) <= exactMax {
-		err = sensitivities(m, p, u, sol, func(par uparam, dlnq []float64) error {
+		err = sensitivities(m, p, u, sol, workers, func(par uparam, dlnq []float64) error {
 			for i, d := range dlnq {
 				d *= par.sigma
 				v[i] += d * d

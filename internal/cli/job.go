@@ -238,7 +238,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 	}
 	var rank *future[*balance.ReadPlan]
 	if len(m.Branches) <= maxRankBranches {
-		ro := &balance.ReadOptions{Max: rankListed(len(m.Branches))}
+		ro := &balance.ReadOptions{Max: rankListed(len(m.Branches)), Workers: opts.workers}
 		if j.Cal != nil {
 			pr.step("ranking the readings to take after setting")
 			ro.Uncertainty = uncertainty(j.Cal)
@@ -277,7 +277,7 @@ func rankListed(n int) int { return min(max(10, (n+2)/3), 100) }
 
 // planOptions are the plan's options from the job's.
 func (j *job) planOptions() *balance.Options {
-	bo := &balance.Options{Scale: j.opts.Scale}
+	bo := &balance.Options{Scale: j.opts.Scale, Workers: j.opts.workers}
 	if j.opts.Rounding == "smart" {
 		bo.Rounding = balance.Smart
 	}
