@@ -57,6 +57,27 @@ type exact struct {
 // newExact computes the exact plan for targets q (risers' entries are
 // overwritten with the sums of their sub-branches).
 func newExact(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
+	e, err := newNeeds(m, p, q)
+	if err != nil {
+		return nil, err
+	}
+	if err := e.settle(); err != nil {
+		return nil, err
+	}
+	return e, nil
+}
+
+// settle completes an exact plan from newNeeds: every valve's drop, Kv and
+// setting at the least differential.
+func (e *exact) settle() error {
+	return e.assign(e.m.Top(), e.least)
+}
+
+// newNeeds is newExact without the valves' drops, Kvs and settings (see
+// settle): what every branch needs, the header losses and the index path,
+// for the iterations that read only those (the starved branches' flows),
+// a valve's setting being a search on its table.
+func newNeeds(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
 	n := len(m.Branches)
 	e := &exact{m: m, p: p, f: m.Fluid, q: q,
 		fixed: make([]float64, n), open: make([]float64, n), sub: make([]float64, n), need: make([]float64, n),
@@ -99,9 +120,6 @@ func newExact(m *plant.Model, p plant.Params, q []float64) (*exact, error) {
 		return nil, err
 	}
 	e.least = need
-	if err := e.assign(top, need); err != nil {
-		return nil, err
-	}
 	// Index path: the largest need-plus-path in each ladder, going down
 	// while the index is a riser whose valve (or lack of one) passes the
 	// ladder exactly its need.

@@ -337,6 +337,9 @@ func (pl *planner) starve() (*exact, []bool, error) {
 			}
 		}
 	}
+	if err := e.settle(); err != nil {
+		return nil, nil, err
+	}
 	e.openStarved(st.starved)
 	if st.rough > 0 {
 		pl.plan.Warnings = append(pl.plan.Warnings, fmt.Sprintf("design first: the starved branches' flows did not settle (to %.2g in ln); the predicted flows are the network's at these settings", st.rough))
@@ -353,7 +356,8 @@ type starver struct {
 	rough   float64 // the largest |ln(chain/D)| left where the flows did not settle
 }
 
-// at returns the exact plan at source differential d with the starved
+// at returns the exact plan's needs (newNeeds: its valves not yet
+// settled) at source differential d with the starved
 // branches' flows set so their chains need d: per branch Newton's method in
 // ln q on ln(chain/d), the slope estimated by secant and kept between the
 // branch's own share (own/chain: nothing else moves with it, a linear law)
@@ -371,7 +375,9 @@ func (st *starver) at(d float64) (*exact, error) {
 	}
 	const floor = 1e-6 // of target: a branch the pump cannot reach at all
 	for it := 0; ; it++ {
-		e, err := newExact(m, pl.p, append([]float64(nil), q...))
+		// Only the needs are read here; starve settles the valves of
+		// the plan it keeps.
+		e, err := newNeeds(m, pl.p, append([]float64(nil), q...))
 		if err != nil {
 			return nil, err
 		}

@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 	"math"
-	"slices"
 
 	"flowset/internal/hydraulics"
 	"flowset/internal/network"
@@ -84,7 +83,8 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 		if err != nil {
 			return nil, fmt.Errorf("system curve at %.3g kPa: %w", d/1000, err)
 		}
-		warm, prev = slices.Clone(sol.Flow), d
+		// One buffer for every point: the solve copies its start.
+		warm, prev = append(warm[:0], sol.Flow...), d
 		var q float64
 		for _, i := range m.top {
 			if l := b.Branch[m.Branches[i].ID]; l >= 0 {
