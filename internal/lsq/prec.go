@@ -47,12 +47,12 @@ type blockPrec struct {
 	single []int       // parameters outside every block
 	hubs   []int       // those left out for touching many rows
 	// current M
-	chol [][]float64 // per block, lower Cholesky factor
-	// per block, the factor's transpose, so that the backward solve reads
-	// rows: it reads the same numbers in the same order as from chol's
-	// columns, from memory in order.
-	cholT [][]float64
-	sd    []float64 // per single parameter, √M_jj
+	// chol holds per block the lower Cholesky factor L and, in its strict
+	// upper triangle (which the factorisation leaves unused), Lᵀ: the
+	// backward solve then reads rows, the same numbers in the same order
+	// as from L's columns, from memory in order.
+	chol [][]float64
+	sd   []float64 // per single parameter, √M_jj
 }
 
 // newBlockPrec groups the parameters by the rows of J̃ and accumulates
@@ -181,7 +181,6 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64, workers int
 		}
 	})
 	bp.chol = make([][]float64, len(bp.blocks))
-	bp.cholT = make([][]float64, len(bp.blocks))
 	bp.sd = make([]float64, len(bp.single))
 	return bp
 }
@@ -211,14 +210,9 @@ func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []flo
 		if !Cholesky(l, k) {
 			return false
 		}
-		lt := bp.cholT[b]
-		if len(lt) != k*k {
-			lt = make([]float64, k*k)
-			bp.cholT[b] = lt
-		}
 		for i := range k {
-			for p := range i + 1 {
-				lt[p*k+i] = l[i*k+p]
+			for p := range i {
+				l[p*k+i] = l[i*k+p]
 			}
 		}
 	}
@@ -263,7 +257,7 @@ func (bp *blockPrec) lowerSolve(v []float64) {
 func (bp *blockPrec) upperSolve(v []float64) {
 	var buf [maxBlock]float64
 	for b, ps := range bp.blocks {
-		k, lt := len(ps), bp.cholT[b]
+		k, lt := len(ps), bp.chol[b]
 		x := buf[:k]
 		for a, j := range ps {
 			x[a] = v[j]
