@@ -41,7 +41,7 @@ const (
 type blockPrec struct {
 	n      int
 	blocks [][]int     // parameters of each block (two or more)
-	gram   [][]float64 // per block, J̃ᵀWJ̃ restricted to it, row-major
+	gram   [][]float64 // per block, J̃ᵀWJ̃ restricted to it, row-major, lower triangle (the rest 0)
 	gdiag  []float64   // diag(J̃ᵀWJ̃)
 	diagA  []float64   // diag(JᵀWJ) as the engine has it, for the rest
 	single []int       // parameters outside every block
@@ -170,10 +170,13 @@ func newBlockPrec(n int, rows, cols []int, vals, w, diagA []float64, workers int
 				if bj < 0 {
 					continue
 				}
-				k := len(bp.blocks[bj])
-				gr := bp.gram[bj][pos[j]*k : (pos[j]+1)*k]
+				// Only the lower triangle: the factorisation reads no other
+				// entry (and the upper one would not be the lower's mirror
+				// to the bit: w·v_a·v_e is not w·v_e·v_a).
+				k, pj := len(bp.blocks[bj]), pos[j]
+				gr := bp.gram[bj][pj*k : pj*k+pj+1]
 				for e, l := range cs {
-					if block[l] == bj {
+					if block[l] == bj && pos[l] <= pj {
 						gr[pos[l]] += wa * vs[e]
 					}
 				}
