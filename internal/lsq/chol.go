@@ -77,10 +77,71 @@ func BandCholesky(a []float64, k, bw int) bool {
 	return true
 }
 
-// BandCholSolve solves Uᵀ U x = b in place, U from BandCholesky.
+// BandCholSolve solves Uᵀ U x = b in place, U from BandCholesky. The
+// forward pass starts at b's first non-zero entry: the rows before it
+// would only turn +0 into +0 (a right-hand side with a few entries, as the
+// local Jacobian's are, saves half the pass). Half bandwidths 2 and 3, a
+// ladder's, have their loops written out, with the same operations in the
+// same order.
 func BandCholSolve(u []float64, k, bw int, b []float64) {
 	w := bw + 1
-	for i := range k {
+	first := 0
+	for first < k && b[first] == 0 && !math.Signbit(b[first]) {
+		first++
+	}
+	switch {
+	case bw == 2 && k >= 2:
+		for i := first; i < k; i++ {
+			s := b[i]
+			if i >= 2 {
+				s -= u[(i-2)*w+2] * b[i-2]
+			}
+			if i >= 1 {
+				s -= u[(i-1)*w+1] * b[i-1]
+			}
+			b[i] = s / u[i*w]
+		}
+		for i := k - 1; i >= 0; i-- {
+			s := b[i]
+			if i+1 < k {
+				s -= u[i*w+1] * b[i+1]
+			}
+			if i+2 < k {
+				s -= u[i*w+2] * b[i+2]
+			}
+			b[i] = s / u[i*w]
+		}
+		return
+	case bw == 3 && k >= 3:
+		for i := first; i < k; i++ {
+			s := b[i]
+			if i >= 3 {
+				s -= u[(i-3)*w+3] * b[i-3]
+			}
+			if i >= 2 {
+				s -= u[(i-2)*w+2] * b[i-2]
+			}
+			if i >= 1 {
+				s -= u[(i-1)*w+1] * b[i-1]
+			}
+			b[i] = s / u[i*w]
+		}
+		for i := k - 1; i >= 0; i-- {
+			s := b[i]
+			if i+1 < k {
+				s -= u[i*w+1] * b[i+1]
+			}
+			if i+2 < k {
+				s -= u[i*w+2] * b[i+2]
+			}
+			if i+3 < k {
+				s -= u[i*w+3] * b[i+3]
+			}
+			b[i] = s / u[i*w]
+		}
+		return
+	}
+	for i := first; i < k; i++ {
 		s := b[i]
 		for p := max(0, i-bw); p < i; p++ {
 			s -= u[p*w+i-p] * b[p]
