@@ -1060,13 +1060,15 @@ func (s *solver) cgls(pt *point, ln *linear, lambda float64) []float64 {
 	}
 	left := right
 	if bp := ln.bp; bp != nil && bp.set(1, s.prec, lambda, s.dscale) {
+		// Unlike the probes, the steps run one solve at a time: the
+		// blocks are split over the goroutines instead.
 		right = func(dst, v []float64) {
 			copy(dst, v)
-			bp.upperSolve(dst)
+			bp.upperSolveOn(dst, s.s.Workers)
 		}
 		left = func(dst, v []float64) {
 			copy(dst, v)
-			bp.lowerSolve(dst)
+			bp.lowerSolveOn(dst, s.s.Workers)
 		}
 	}
 	// Residual s = b - K C y, stored in three parts.

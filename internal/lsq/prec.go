@@ -233,9 +233,46 @@ func (bp *blockPrec) set(c float64, prec []float64, lambda float64, dscale []flo
 }
 
 // lowerSolve sets v ← L⁻¹ v and upperSolve v ← L⁻ᵀ v, with M = L Lᵀ.
-func (bp *blockPrec) lowerSolve(v []float64) {
+func (bp *blockPrec) lowerSolve(v []float64) { bp.lowerSolveOn(v, 1) }
+
+func (bp *blockPrec) upperSolve(v []float64) { bp.upperSolveOn(v, 1) }
+
+// precChunk is the number of blocks a goroutine solves at a time.
+const precChunk = 128
+
+// lowerSolveOn and upperSolveOn are lowerSolve and upperSolve with the
+// blocks split over up to workers goroutines: the blocks touch disjoint
+// entries of v, and each is solved by the same operations.
+func (bp *blockPrec) lowerSolveOn(v []float64, workers int) {
+	bp.onBlocks(workers, func(lo, hi int) { bp.lowerBlocks(v, lo, hi) })
+	for a, j := range bp.single {
+		v[j] /= bp.sd[a]
+	}
+}
+
+func (bp *blockPrec) upperSolveOn(v []float64, workers int) {
+	bp.onBlocks(workers, func(lo, hi int) { bp.upperBlocks(v, lo, hi) })
+	for a, j := range bp.single {
+		v[j] /= bp.sd[a]
+	}
+}
+
+// onBlocks calls do on ranges of blocks covering them all, on up to
+// workers goroutines.
+func (bp *blockPrec) onBlocks(workers int, do func(lo, hi int)) {
+	nb := len(bp.blocks)
+	tasks := (nb + precChunk - 1) / precChunk
+	if workers <= 1 || tasks <= 1 {
+		do(0, nb)
+		return
+	}
+	parallel.For(workers, tasks, func(_, k int) { do(k*precChunk, min((k+1)*precChunk, nb)) })
+}
+
+func (bp *blockPrec) lowerBlocks(v []float64, lo, hi int) {
 	var buf [maxBlock]float64
-	for b, ps := range bp.blocks {
+	for b := lo; b < hi; b++ {
+		ps := bp.blocks[b]
 		k, l := len(ps), bp.chol[b]
 		x := buf[:k]
 		for a, j := range ps {
@@ -252,14 +289,12 @@ func (bp *blockPrec) lowerSolve(v []float64) {
 			v[j] = x[a]
 		}
 	}
-	for a, j := range bp.single {
-		v[j] /= bp.sd[a]
-	}
 }
 
-func (bp *blockPrec) upperSolve(v []float64) {
+func (bp *blockPrec) upperBlocks(v []float64, lo, hi int) {
 	var buf [maxBlock]float64
-	for b, ps := range bp.blocks {
+	for b := lo; b < hi; b++ {
+		ps := bp.blocks[b]
 		k, lt := len(ps), bp.chol[b]
 		x := buf[:k]
 		for a, j := range ps {
@@ -276,9 +311,6 @@ func (bp *blockPrec) upperSolve(v []float64) {
 		for a, j := range ps {
 			v[j] = x[a]
 		}
-	}
-	for a, j := range bp.single {
-		v[j] /= bp.sd[a]
 	}
 }
 
