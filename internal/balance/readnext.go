@@ -5,16 +5,14 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"runtime"
 	"slices"
 	"sort"
-	"sync"
-	"sync/atomic"
 
 	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"flowset/internal/parallel"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -598,24 +596,14 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	// those scores are independent, so they are shared out among the
 	// workers, each with its own scratch.
 	first := make([]float64, len(cands))
-	if workers := o.Workers; workers != 1 && len(cands) > 1 {
-		if workers <= 0 {
-			workers = runtime.GOMAXPROCS(0)
-		}
-		pool := make(chan *scratch, workers)
-		for range workers {
-			pool <- newScratch()
-		}
-		parallelRows(workers, len(cands), func(ci int) {
-			sc := <-pool
-			first[ci] = after(&cands[ci], sc)
-			pool <- sc
-		})
-	} else {
-		for ci := range cands {
-			first[ci] = after(&cands[ci], own)
-		}
+	workers := min(parallel.Workers(o.Workers), len(cands))
+	scratches := []*scratch{own}
+	for len(scratches) < workers {
+		scratches = append(scratches, newScratch())
 	}
+	parallel.For(workers, len(cands), func(w, ci int) {
+		first[ci] = after(&cands[ci], scratches[w])
+	})
 	round := 0
 	for o.Max == 0 || len(rp.Readings) < o.Max {
 		if err := ctx.Err(); err != nil {
@@ -765,30 +753,5 @@ func outerRows(a *mat.Dense, nf int, same bool, workers int) *mat.Dense {
 // owns. Rows are handed out one at a time, so rows of unequal work (a
 // triangle's) share out evenly.
 func parallelRows(workers, n int, f func(i int)) {
-	if workers <= 0 {
-		workers = runtime.GOMAXPROCS(0)
-	}
-	workers = min(workers, n)
-	if workers <= 1 {
-		for i := range n {
-			f(i)
-		}
-		return
-	}
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for {
-				i := int(next.Add(1)) - 1
-				if i >= n {
-					return
-				}
-				f(i)
-			}
-		}()
-	}
-	wg.Wait()
+	parallel.For(parallel.Workers(workers), n, func(_, i int) { f(i) })
 }

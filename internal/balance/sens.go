@@ -4,10 +4,8 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"runtime"
-	"sync"
-	"sync/atomic"
 
+	"flowset/internal/parallel"
 	"flowset/internal/plant"
 )
 
@@ -92,10 +90,7 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 		l := sol.Built.PumpLink
 		all = append(all, sens{uparam{PumpParam, -1, u.LnPumpHead}, []int{l}, []float64{sol.Sol.Drop[l] - m.Lift()}})
 	}
-	if workers <= 0 {
-		workers = runtime.GOMAXPROCS(0)
-	}
-	workers = max(1, min(workers, len(all)))
+	workers = max(1, min(parallel.Workers(workers), len(all)))
 	// Scratch per worker, and a chunk's results: a few columns a worker,
 	// so the memory stays a small multiple of the branches.
 	type scratch struct{ dh, dq, nodes []float64 }
@@ -130,26 +125,9 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 	}
 	for lo := 0; lo < len(all); lo += chunk {
 		hi := min(lo+chunk, len(all))
-		if workers == 1 {
-			errs[0] = one(&ws[0], &all[lo], out[0])
-		} else {
-			var next atomic.Int64
-			var wg sync.WaitGroup
-			for w := range min(workers, hi-lo) {
-				wg.Add(1)
-				go func() {
-					defer wg.Done()
-					for {
-						k := int(next.Add(1)) - 1
-						if k >= hi-lo {
-							return
-						}
-						errs[k] = one(&ws[w], &all[lo+k], out[k])
-					}
-				}()
-			}
-			wg.Wait()
-		}
+		parallel.For(workers, hi-lo, func(w, k int) {
+			errs[k] = one(&ws[w], &all[lo+k], out[k])
+		})
 		for k := range hi - lo {
 			if errs[k] != nil {
 				return errs[k]
