@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"slices"
+	"strings"
 	"time"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -233,24 +234,36 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		return nil, &dataError{fmt.Errorf("planned state: %w", err)}
 	}
 	j.After = after
+	// What follows runs side by side: one progress line names it all.
+	var doing []string
 	if opts.report {
 		j.curves = start(st, func() (sysCurves, error) { return j.systemCurves(ctx) })
+		doing = append(doing, "drawing the report's system curves")
 	}
 	var rank *future[*balance.ReadPlan]
 	if len(m.Branches) <= maxRankBranches {
 		ro := &balance.ReadOptions{Max: rankListed(len(m.Branches)), Workers: opts.workers}
 		if j.Cal != nil {
-			pr.step("ranking the readings to take after setting")
+			doing = append(doing, "ranking the readings to take after setting")
 			ro.Uncertainty = uncertainty(j.Cal)
 		} else {
 			// A plan from design: rank the survey to take before setting
 			// anything, on the fit's priors, read as found.
-			pr.step("ranking the readings to survey first")
+			doing = append(doing, "ranking the readings to survey first")
 			ro.Uncertainty = priorUncertainty(m)
 			ro.ReadAt = &st0
 			j.surveyPlan = true
 		}
 		rank = start(st, func() (*balance.ReadPlan, error) { return balance.RankReadings(ctx, m, j.Params, plan, ro) })
+	}
+	switch n := j.repairs(); {
+	case n == 1:
+		doing = append(doing, "planning after the repairs")
+	case n > 1:
+		doing = append(doing, fmt.Sprintf("planning after each repair and after all (%d plans)", n))
+	}
+	if len(doing) > 0 {
+		pr.step("%s", strings.Join(doing, "; "))
 	}
 	if err := j.remedies(ctx, st); err != nil {
 		return nil, err

@@ -314,10 +314,8 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	var inF *future[report.Input]
 	switch {
 	case j.Trim != nil:
-		pr.step("drawing the report")
 		inF = start(st, func() (report.Input, error) { return j.trimReportInput(ctx, generated) })
 	case o.writeReport:
-		pr.step("drawing the report")
 		inF = start(st, func() (report.Input, error) { return j.reportInput(ctx, generated) })
 	}
 	type file struct {
@@ -331,6 +329,11 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			err := write(&b)
 			return b.Bytes(), err
 		})})
+	}
+	if inF != nil {
+		pr.step("drawing the report; writing the field sheets and the model alongside")
+	} else {
+		pr.step("writing the outputs")
 	}
 	if o.writeFit || o.writeReport || j.Trim != nil {
 		put("calibration.json", func(w io.Writer) error { return writeJSON(w, j.calibrationOut(generated)) })
@@ -372,7 +375,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 			return &dataError{fmt.Errorf("report: %w", err)}
 		}
 	}
-	pr.step("writing %s", shown(o.Out))
+	pr.step("saving them to %s", shown(o.Out))
 	err = claim.writeDir(ctx, func(create func(string) (io.WriteCloser, error)) error {
 		for _, f := range files {
 			b, err := f.data.get()

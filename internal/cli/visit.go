@@ -34,15 +34,7 @@ type remedy struct {
 // to its design resistance. It only calls the plan and the solver with other
 // multipliers; nothing here changes how either computes.
 func (j *job) remedies(ctx context.Context, st *stages) error {
-	var restricted []int
-	for _, f := range j.Findings {
-		if f.Code != diagnose.Restricted {
-			continue
-		}
-		if i := j.branchIndex(f.Branch); i >= 0 {
-			restricted = append(restricted, i)
-		}
-	}
+	restricted := j.restricted()
 	if len(restricted) == 0 || j.Cal == nil {
 		return nil
 	}
@@ -92,6 +84,34 @@ func (j *job) remedies(ctx context.Context, st *stages) error {
 	}
 	j.Remedy[""] = rs[last]
 	return nil
+}
+
+// restricted lists the model indices of the branches found restricted, in
+// the findings' order.
+func (j *job) restricted() []int {
+	var out []int
+	for _, f := range j.Findings {
+		if f.Code != diagnose.Restricted {
+			continue
+		}
+		if i := j.branchIndex(f.Branch); i >= 0 {
+			out = append(out, i)
+		}
+	}
+	return out
+}
+
+// repairs is how many plans remedies makes: one per restricted branch (up
+// to maxRemedies) and one for all of them; none without a fit.
+func (j *job) repairs() int {
+	n := len(j.restricted())
+	switch {
+	case n == 0 || j.Cal == nil:
+		return 0
+	case n <= maxRemedies:
+		return n + 1
+	}
+	return 1
 }
 
 // branchIndex is the model index of branch id, or -1.
