@@ -11,6 +11,7 @@ import (
 	"flowset/internal/diagnose"
 	"flowset/internal/fluid"
 	"flowset/internal/hydraulics"
+	"flowset/internal/parallel"
 	"flowset/internal/plant"
 	"flowset/internal/report"
 	"flowset/internal/site"
@@ -147,8 +148,51 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 		w := s.Readings[ri].Where
 		readingsAt[w] = append(readingsAt[w], ri)
 	}
+	// Each branch's curves (design, fitted, the ends of its interval), at
+	// the as-found setting, from zero to beyond both 150 % of design and
+	// every reading, so the readings sit on the drawn range: independent
+	// by branch, so shared out among the workers, each with its own copy
+	// of the fitted multipliers to move one branch's to the ends of its
+	// interval and back (a copy per branch was quadratic: 39 s at 100,000
+	// branches).
 	design := m.Design()
-	var bounds plant.Params // the fitted multipliers, one branch at an end of its interval
+	type drawn struct {
+		measured                   []report.Point
+		design, fit, fitLow, fitHi []report.XY
+	}
+	drawnBy := make([]drawn, len(m.Branches))
+	workers := parallel.Workers(j.opts.workers)
+	bounds := make([]plant.Params, workers)
+	parallel.For(workers, len(m.Branches), func(w, i int) {
+		b := &m.Branches[i]
+		if b.Riser() {
+			return
+		}
+		d := &drawnBy[i]
+		set := j.Before.State.Settings[i]
+		d.measured = measuredPoints(j, i, readingsAt[b.ID], toFlow, toDiff)
+		span := 1.5 * b.Design
+		for _, p := range d.measured {
+			span = math.Max(span, 1.1*p.X/toFlow)
+		}
+		flows := make([]float64, curvePoints)
+		for k := range flows {
+			flows[k] = span * float64(k) / float64(curvePoints-1)
+		}
+		d.design = xy(m.BranchCurve(design, i, set, flows))
+		d.fit = xy(m.BranchCurve(j.Fitted, i, set, flows))
+		if j.Cal != nil && j.Cal.Branches[i].Fitted {
+			if bounds[w].Resistance == nil {
+				bounds[w] = j.Fitted.Clone()
+			}
+			bw := bounds[w]
+			bw.Resistance[i] = j.Cal.Branches[i].Lo
+			d.fitLow = xy(m.BranchCurve(bw, i, set, flows))
+			bw.Resistance[i] = j.Cal.Branches[i].Hi
+			d.fitHi = xy(m.BranchCurve(bw, i, set, flows))
+			bw.Resistance[i] = j.Fitted.Resistance[i]
+		}
+	})
 	for i, b := range m.Branches {
 		if b.Riser() {
 			continue
@@ -175,33 +219,8 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			rb.RatioFit, rb.RatioLow, rb.RatioHigh = bf.Ratio, bf.Lo, bf.Hi
 		}
 		rb.Flags = flagsBy[b.ID]
-		// Curves at the as-found setting, from zero to beyond both 150 % of
-		// design and every reading, so the readings sit on the drawn range.
-		set := j.Before.State.Settings[i]
-		rb.Measured = measuredPoints(j, i, readingsAt[b.ID], toFlow, toDiff)
-		span := 1.5 * b.Design
-		for _, p := range rb.Measured {
-			span = math.Max(span, 1.1*p.X/toFlow)
-		}
-		flows := make([]float64, curvePoints)
-		for k := range flows {
-			flows[k] = span * float64(k) / float64(curvePoints-1)
-		}
-		rb.DesignCurve = xy(m.BranchCurve(design, i, set, flows))
-		rb.FitCurve = xy(m.BranchCurve(j.Fitted, i, set, flows))
-		if j.Cal != nil && j.Cal.Branches[i].Fitted {
-			// One copy of the fitted multipliers for every branch, this
-			// branch's moved to each end of its interval and put back: a
-			// copy per branch was quadratic (39 s at 100,000 branches).
-			if bounds.Resistance == nil {
-				bounds = j.Fitted.Clone()
-			}
-			bounds.Resistance[i] = j.Cal.Branches[i].Lo
-			rb.FitLow = xy(m.BranchCurve(bounds, i, set, flows))
-			bounds.Resistance[i] = j.Cal.Branches[i].Hi
-			rb.FitHigh = xy(m.BranchCurve(bounds, i, set, flows))
-			bounds.Resistance[i] = j.Fitted.Resistance[i]
-		}
+		d := &drawnBy[i]
+		rb.Measured, rb.DesignCurve, rb.FitCurve, rb.FitLow, rb.FitHigh = d.measured, d.design, d.fit, d.fitLow, d.fitHi
 		in.Branches = append(in.Branches, rb)
 	}
 
