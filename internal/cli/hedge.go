@@ -8,6 +8,7 @@ import (
 	"flowset/internal/balance"
 	"flowset/internal/calibrate"
 	"flowset/internal/diagnose"
+	"flowset/internal/parallel"
 )
 
 // Test points that read wrong: the second explanation of a branch found
@@ -70,7 +71,18 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 	for k := range plan.Branches {
 		byID[plan.Branches[k].ID] = &plan.Branches[k]
 	}
-	var out []hedged
+	// The branches to weigh, in the findings' order; each is weighed on
+	// its own multipliers alone, so side by side, and the results are
+	// applied in that order.
+	type weighed struct {
+		id                  string
+		i                   int
+		mf, b, wFault, wRds float64
+		c                   balance.HedgeCase
+		res                 balance.HedgeResult
+		err                 error
+	}
+	var ws []weighed
 	for _, f := range j.Findings {
 		if f.Code != diagnose.Restricted && f.Code != diagnose.CannotReachDesign || indep[f.Branch] || skip[f.Branch] {
 			continue
@@ -117,18 +129,25 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 			continue
 		}
 		openDrop, _ := open.Drop(bp.Target, m.Fluid)
-		res, err := balance.Hedge(balance.HedgeCase{
+		ws = append(ws, weighed{id: f.Branch, i: i, mf: mf, b: b, wFault: wFault, wRds: wReads, c: balance.HedgeCase{
 			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
 			Diff:   bp.BranchDiff,
 			Target: bp.Target,
 			Open:   openDrop,
 			Low:    plan.ToleranceLow, High: plan.ToleranceHigh, Spread: hedgeSpread,
-		}, []balance.Hypothesis{{Multiplier: mf, Weight: wFault}, {Multiplier: 1, Weight: wReads}})
-		if err != nil || math.Abs(math.Log(res.Multiplier/mf)) < 0.01 {
+		}})
+	}
+	parallel.For(parallel.Workers(j.opts.workers), len(ws), func(_, k int) {
+		w := &ws[k]
+		w.res, w.err = balance.Hedge(w.c, []balance.Hypothesis{{Multiplier: w.mf, Weight: w.wFault}, {Multiplier: 1, Weight: w.wRds}})
+	})
+	var out []hedged
+	for _, w := range ws {
+		if w.err != nil || math.Abs(math.Log(w.res.Multiplier/w.mf)) < 0.01 {
 			continue
 		}
-		j.Params.Resistance[i] = res.Multiplier
-		out = append(out, hedged{ID: f.Branch, Fitted: mf, Planned: res.Multiplier, Low: -b, Weight: wReads / (wFault + wReads), IfFault: res.Flows[0], IfReadings: res.Flows[1]})
+		j.Params.Resistance[w.i] = w.res.Multiplier
+		out = append(out, hedged{ID: w.id, Fitted: w.mf, Planned: w.res.Multiplier, Low: -w.b, Weight: w.wRds / (w.wFault + w.wRds), IfFault: w.res.Flows[0], IfReadings: w.res.Flows[1]})
 	}
 	return out
 }
