@@ -15,6 +15,7 @@ import (
 	"path/filepath"
 	"slices"
 	"strings"
+	"sync"
 	"syscall"
 )
 
@@ -356,7 +357,7 @@ type hashedFile struct {
 	f    *os.File
 	h    hash.Hash
 	name string
-	sums map[string]string
+	d    *dirWriter
 }
 
 func (w *hashedFile) Write(p []byte) (int, error) {
@@ -369,14 +370,18 @@ func (w *hashedFile) Close() error {
 	if err := w.f.Close(); err != nil {
 		return err
 	}
-	w.sums[w.name] = hex.EncodeToString(w.h.Sum(nil))
+	w.d.mu.Lock()
+	w.d.sums[w.name] = hex.EncodeToString(w.h.Sum(nil))
+	w.d.mu.Unlock()
 	return nil
 }
 
 // dirWriter creates files inside a folder that is being assembled and
-// remembers their checksums.
+// remembers their checksums; files may be created and written side by
+// side.
 type dirWriter struct {
 	root string
+	mu   sync.Mutex // guards sums
 	sums map[string]string
 }
 
@@ -392,7 +397,7 @@ func (d *dirWriter) create(name string) (io.WriteCloser, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &hashedFile{f: f, h: sha256.New(), name: name, sums: d.sums}, nil
+	return &hashedFile{f: f, h: sha256.New(), name: name, d: d}, nil
 }
 
 func (d *dirWriter) writeMarker() error {

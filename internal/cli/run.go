@@ -1,7 +1,6 @@
 package cli
 
 import (
-	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -307,9 +306,10 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 	if o.Out == "" {
 		return j.shortErr(o)
 	}
-	// Every output file is rendered in memory as a stage of its own, side
-	// by side with the report's model (its system curves may still be
-	// running), then written in this order.
+	// Every output file is written as a stage of its own, side by side
+	// with the others and the report's model (its system curves may
+	// still be running), into the folder being assembled; one after
+	// another (one worker), in the order listed.
 	j.settle()
 	var inF *future[report.Input]
 	switch {
@@ -319,22 +319,11 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		inF = start(st, func() (report.Input, error) { return j.reportInput(ctx, generated) })
 	}
 	type file struct {
-		name string
-		data *future[[]byte]
+		name  string
+		write func(io.Writer) error
 	}
 	var files []file
-	put := func(name string, write func(io.Writer) error) {
-		files = append(files, file{name, start(st, func() ([]byte, error) {
-			var b bytes.Buffer
-			err := write(&b)
-			return b.Bytes(), err
-		})})
-	}
-	if inF != nil {
-		pr.step("drawing the report; writing the field sheets and the model alongside")
-	} else {
-		pr.step("writing the outputs")
-	}
+	put := func(name string, write func(io.Writer) error) { files = append(files, file{name, write}) }
 	if o.writeFit || o.writeReport || j.Trim != nil {
 		put("calibration.json", func(w io.Writer) error { return writeJSON(w, j.calibrationOut(generated)) })
 		put("calibration.csv", func(w io.Writer) error { h, rows := j.fitRows(); return writeCSV(w, h, rows) })
@@ -363,39 +352,48 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		})
 		put("trim.json", func(w io.Writer) error { return writeJSON(w, j.trimOut(generated)) })
 	}
+	var inErr error // the report's model failing: a data error, not the disk's
 	if inF != nil {
 		put("report.html", func(w io.Writer) error {
 			in, err := inF.get()
 			if err != nil {
-				return nil // reported below, as the report's model failing
+				inErr = err
+				return err
 			}
 			return report.Write(w, in)
 		})
-		if _, err := inF.get(); err != nil {
-			return &dataError{fmt.Errorf("report: %w", err)}
-		}
+		pr.step("drawing the report; writing the field sheets and the model into %s alongside", shown(o.Out))
+	} else {
+		pr.step("writing %s", shown(o.Out))
 	}
-	pr.step("saving them to %s", shown(o.Out))
 	err = claim.writeDir(ctx, func(create func(string) (io.WriteCloser, error)) error {
-		for _, f := range files {
-			b, err := f.data.get()
-			if err != nil {
-				return fmt.Errorf("%s: %w", f.name, err)
-			}
-			w, err := create(f.name)
-			if err != nil {
-				return err
-			}
-			if _, err := w.Write(b); err != nil {
-				w.Close()
-				return fmt.Errorf("%s: %w", f.name, err)
-			}
-			if err := w.Close(); err != nil {
-				return err
+		done := make([]*future[struct{}], len(files))
+		for k, f := range files {
+			done[k] = start(st, func() (struct{}, error) {
+				w, err := create(f.name)
+				if err != nil {
+					return struct{}{}, err
+				}
+				if err := f.write(w); err != nil {
+					w.Close()
+					return struct{}{}, fmt.Errorf("%s: %w", f.name, err)
+				}
+				return struct{}{}, w.Close()
+			})
+		}
+		// Every stage ends before the folder is finished or thrown away;
+		// the first error in the order listed is the one reported.
+		var first error
+		for _, d := range done {
+			if _, err := d.get(); err != nil && first == nil {
+				first = err
 			}
 		}
-		return nil
+		return first
 	})
+	if inErr != nil {
+		return &dataError{fmt.Errorf("report: %w", inErr)}
+	}
 	if err != nil {
 		return err
 	}

