@@ -268,7 +268,13 @@ type ValveVerdict struct {
 	// Offset is how far a valve set elsewhere sits from its recorded
 	// setting, in the valve's units, with its sd (0 for other hypotheses).
 	Offset, OffsetSD float64
-	Note             string
+	// MeterWeight is, for a valve set elsewhere whose only evidence is an
+	// independent flow reading that a biased meter would explain as well,
+	// the posterior probability of that other explanation (0 where the
+	// readings tell them apart or it was not weighed); MeterRatio is the
+	// branch's resistance over design under it. See weighMeters.
+	MeterWeight, MeterRatio float64
+	Note                    string
 }
 
 // BranchFit is the fit of one branch.
@@ -507,6 +513,12 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 		}
 		o.progress("doubted flow readings", 0, 0)
 		if fin, su.doubted, err = su.doubtFlows(ctx, fin, verdicts); err != nil {
+			return nil, err
+		}
+		if su.doubted == nil {
+			su.doubted = map[int]bool{}
+		}
+		if fin, su.doubted, err = su.weighMeters(ctx, fin, verdicts, su.doubted); err != nil {
 			return nil, err
 		}
 	}

@@ -42,6 +42,12 @@ type hedged struct {
 	Low                 float64 // how far low its test points would read the flow, as a fraction
 	Weight              float64 // posterior probability of the readings being wrong
 	IfFault, IfReadings float64 // flow as a fraction of target under each
+	// Meter marks a valve found set elsewhere that a biased flow meter
+	// explains as well (hedgeMeters): Low is then how far the meter would
+	// read off (negative low), Weight the probability of that, IfFault the
+	// flow if the valve was set elsewhere and IfReadings if the meter is
+	// off.
+	Meter bool
 }
 
 // hedgeTestPoints weighs each branch found restricted (or short of design)
@@ -152,6 +158,61 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 	return out
 }
 
+// hedgeMeters weighs each valve the fit found set elsewhere on the evidence
+// of an independent flow reading that a biased meter explains as well
+// (calibrate.ValveVerdict.MeterWeight): the valve set elsewhere makes the
+// branch's fixed parts the fitted multiple of design, the meter off leaves
+// them near design (MeterRatio) with the valve on its table. Either way the
+// valve is set afresh from its table, so the two differ only in the
+// multiplier on the fixed parts, and its setting is planned for the least
+// expected loss over the two (balance.Hedge), weighted by the fit's
+// posterior. It changes j.Params and returns the branches moved.
+func hedgeMeters(j *job, plan *balance.Plan, skip map[string]bool) []hedged {
+	if j.Cal == nil || plan == nil {
+		return nil
+	}
+	m := j.L.Model
+	byID := map[string]*balance.BranchPlan{}
+	for k := range plan.Branches {
+		byID[plan.Branches[k].ID] = &plan.Branches[k]
+	}
+	var out []hedged
+	for i, bf := range j.Cal.Branches {
+		v := bf.Valve
+		w := v.MeterWeight
+		if v.Hypothesis != calibrate.SetElsewhere || !(w > 0 && w < 1) || !(v.MeterRatio > 0) || skip[bf.ID] {
+			continue
+		}
+		bp := byID[bf.ID]
+		if bp == nil || m.Branches[i].Valve == nil || m.Branches[i].Riser() || !(bp.Target > 0) {
+			continue
+		}
+		mf := j.Params.Resistance[i]
+		fixed := m.FixedElement(i, 1)
+		_, hi := m.Branches[i].Valve.Range()
+		open := m.ValveElement(i, hi, j.Params.KvScale[i])
+		if fixed == nil || open == nil {
+			continue
+		}
+		openDrop, _ := open.Drop(bp.Target, m.Fluid)
+		res, err := balance.Hedge(balance.HedgeCase{
+			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
+			Diff:   bp.BranchDiff,
+			Target: bp.Target,
+			Open:   openDrop,
+			Low:    plan.ToleranceLow, High: plan.ToleranceHigh, Spread: hedgeSpread,
+		}, []balance.Hypothesis{{Multiplier: mf, Weight: 1 - w}, {Multiplier: v.MeterRatio, Weight: w}})
+		if err != nil || math.Abs(math.Log(res.Multiplier/mf)) < 0.01 {
+			continue
+		}
+		j.Params.Resistance[i] = res.Multiplier
+		// The meter reads the flow the valve's table gives for its
+		// differential times the Kv scale fitted under set elsewhere.
+		out = append(out, hedged{ID: bf.ID, Fitted: mf, Planned: res.Multiplier, Low: bf.KvScale - 1, Weight: w, IfFault: res.Flows[0], IfReadings: res.Flows[1], Meter: true})
+	}
+	return out
+}
+
 // hedgeListed is the number of hedged branches the plan's warnings word one
 // by one; beyond it they are one warning naming them, each branch's
 // outcomes staying in its finding.
@@ -163,6 +224,23 @@ func hedgeNotes(j *job, hs []hedged) []string {
 	var notes, ids []string
 	for _, h := range hs {
 		ids = append(ids, h.ID)
+		if h.Meter {
+			notes = append(notes, fmt.Sprintf("%s's valve reads as set elsewhere than recorded through its flow reading alone, and the flow meter reading %.0f %% %s with the valve where recorded would read the same way (a %.0f %% chance against %.0f %%): its setting is planned between the two, to give %.0f %% of target if the valve was set elsewhere and %.0f %% if the meter is off. Check the meter's set-up (pipe size, wall, spacing) or read the flow another way, and re-plan with that reading", h.ID, 100*math.Abs(h.Low), lowHigh(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
+			for k := range j.Findings {
+				f := &j.Findings[k]
+				if f.Branch != h.ID {
+					continue
+				}
+				switch f.Code {
+				case diagnose.ValveMisSet:
+					f.Message = "the valve does not sit at its recorded setting, or else the flow meter reads off: the readings fit either"
+					f.Action = fmt.Sprintf("check the meter's set-up (pipe size, wall, transducer spacing) or read the flow another way before anything else, then the handwheel's memory stop; a meter %.0f %% %s explains the readings as well as the valve set elsewhere (%.0f %% against %.0f %%), and its setting is planned between the two (%.0f %% of target if set elsewhere, %.0f %% if the meter is off)", 100*math.Abs(h.Low), lowHigh(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings)
+				case diagnose.Restricted, diagnose.Free, diagnose.CannotReachDesign:
+					f.Action = fmt.Sprintf("read its flow another way before cleaning anything: with the valve where recorded and the flow meter %.0f %% %s, the branch is near design (%.2g x)", 100*math.Abs(h.Low), lowHigh(h.Low), h.Planned)
+				}
+			}
+			continue
+		}
 		notes = append(notes, fmt.Sprintf("%s reads as %.2g times its design resistance through its own valve's test points alone, and test points reading %.0f %% low would read the same way (a %.0f %% chance against the restriction's %.0f %%): its setting is planned between the two, to give %.0f %% of target if the restriction is real and %.0f %% if the test points read low. Read its flow with a clamp-on meter and re-plan with that reading", h.ID, h.Fitted, 100*math.Abs(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
 		for k := range j.Findings {
 			f := &j.Findings[k]
@@ -176,6 +254,14 @@ func hedgeNotes(j *job, hs []hedged) []string {
 	}
 	named := strings.Join(ids[:hedgeListed], ", ")
 	return []string{fmt.Sprintf("%d branches (%s and %d more) read as restricted through their own valves' test points alone, which test points reading low would match as well: their settings are planned between the two explanations, and each one's finding says what it gets under either. Read their flows with a clamp-on meter and re-plan with those readings", len(hs), named, len(hs)-hedgeListed)}
+}
+
+// lowHigh words the sign of a reading's error.
+func lowHigh(e float64) string {
+	if e < 0 {
+		return "low"
+	}
+	return "high"
 }
 
 func normalPDF(x, sd float64) float64 {

@@ -196,6 +196,11 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 	// The hedged branches (lowered, never the index) and the index margin
 	// both come from this plan; one more plan carries both.
 	hedges := hedgeTestPoints(j, plan, unconfirmed)
+	moved := map[string]bool{}
+	for _, h := range hedges {
+		moved[h.ID] = true
+	}
+	hedges = append(hedges, hedgeMeters(j, plan, moved)...)
 	id, q, f := indexMargin(j, plan)
 	if f > 0 {
 		j.margin = map[string]float64{id: q}

@@ -1,0 +1,170 @@
+package calibrate
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+
+	"flowset/internal/site"
+)
+
+// meterCleanBand bounds, in sd of the clean prior, how far the branch's
+// resistance may sit from design without its flow readings for a biased
+// meter to be weighed: a meter off and a branch off are two faults, which
+// one valve set elsewhere explains alone (the same bound as suspectKv).
+const meterCleanBand = suspectKv
+
+// mixScore is score(f) with branch i's resistance prior term replaced by
+// the fit's whole prior mixture (-2 ln of its density, shifted to be near 0
+// at design): a hypothesis that needs the branch restricted pays the
+// mixture's price for a fault (FitOptions.FaultShare), not the clean
+// component's nor the faulty one's alone, whichever classify chose.
+func (su *setup) mixScore(f *fitRun, i int) float64 {
+	s := score(f)
+	j := f.prob.rIdx[i]
+	o := su.opt
+	if j < 0 || !(o.FaultShare > 0) || math.IsInf(o.PriorResistance, 1) {
+		return s
+	}
+	x := f.res.X[j]
+	if sg := f.prob.params[j].Sigma; !math.IsInf(sg, 1) {
+		s -= (x / sg) * (x / sg)
+	}
+	c2, w2 := o.PriorClean*o.PriorClean, o.PriorResistance*o.PriorResistance
+	d := (1-o.FaultShare)*math.Exp(normLogPDF(x, c2)) + o.FaultShare*math.Exp(normLogPDF(x, w2))
+	return s - 2*math.Log(d) + 2*normLogPDF(0, c2)
+}
+
+// weighMeters weighs, for each valve found set elsewhere at its one
+// recorded setting on the evidence of an independent flow reading (a
+// clamp-on or other meter, not the valve's own test points), the other
+// explanation of the same readings: the valve follows its table and the
+// flow reading is off (a clamp-on meter set up with the wrong pipe size or
+// wall reads 10-30 % off). A meter reading a factor β of the true flow makes
+// the valve's Kv appear β times its own and the rest of the branch β⁻²
+// times its resistance, through the valve differential and the branch
+// differential (or the header) alike, so no reading at the branch but a
+// second independent flow tells the two apart; what does is how far each
+// has to move the branch from design. The two are compared by score (the
+// flow readings left out and counted as one free parameter, the meter's
+// bias, against the freed offset; the branch's resistance priced by the
+// whole prior mixture):
+//
+//   - the meter explanation ahead by strongEvidence or more: the valve is
+//     taken to follow its table and the flow readings are doubted (left
+//     out of the final fit, in doubted);
+//   - neither ahead by strongEvidence: the valve stays set elsewhere, and
+//     the verdict carries the meter explanation's posterior probability and
+//     the branch's resistance under it, for the plan to hedge between the
+//     two (MeterWeight, MeterRatio);
+//   - set elsewhere ahead by strongEvidence or more: kept as it is.
+//
+// Only a branch whose other readings put it within meterCleanBand clean
+// sd of design is weighed: otherwise the branch is off whatever the meter.
+func (su *setup) weighMeters(ctx context.Context, fin *fitRun, verdicts []ValveVerdict, doubted map[int]bool) (*fitRun, map[int]bool, error) {
+	out := map[int]bool{}
+	for _, oi := range fin.res.Outliers {
+		out[fin.sel[oi]] = true
+	}
+	var withSel []int
+	for _, k := range fin.sel {
+		if !out[k] {
+			withSel = append(withSel, k)
+		}
+	}
+	hyp := slices.Clone(fin.hyp)
+	adopted := map[int]bool{}
+	for i := range su.m.Branches {
+		v := &verdicts[i]
+		if v.Hypothesis != SetElsewhere || su.multi[i] || fin.prob.rIdx[i] < 0 {
+			continue
+		}
+		// The branch's independent flows, also those the outlier test set
+		// aside: they are the evidence for the valve set elsewhere.
+		var flows []int
+		for _, k := range fin.sel {
+			if o := &su.obs[k]; o.branch == i && o.what == site.Flow && !o.meter {
+				flows = append(flows, k)
+			}
+		}
+		if len(flows) == 0 {
+			continue
+		}
+		var sel []int
+		for _, k := range withSel {
+			if !slices.Contains(flows, k) {
+				sel = append(sel, k)
+			}
+		}
+		withA := slices.Clone(sel)
+		withA = append(withA, flows...)
+		slices.Sort(withA)
+		hypB := slices.Clone(fin.hyp)
+		hypB[i] = FollowsTable
+		// Full refits, not local ones: a local refit holds the rest of the
+		// plant where the fit with the flow put it, which favours the valve
+		// set elsewhere (on an independent 300-branch plant a meter 20 %
+		// low fell 17 behind locally and came 24 ahead in a full refit).
+		// The fit itself is the first when it kept every one of the flows.
+		a := fin
+		var err error
+		if slices.ContainsFunc(flows, func(k int) bool { return out[k] }) {
+			a, err = su.runLocal(ctx, fin.hyp, withA, fin, -1, true, -1, nil)
+		}
+		var b *fitRun
+		if err == nil {
+			b, err = su.runLocal(ctx, hypB, sel, fin, -1, true, -1, nil)
+		}
+		if err != nil {
+			if ctx.Err() != nil {
+				return nil, nil, err
+			}
+			continue
+		}
+		lnB := b.res.X[b.prob.rIdx[i]]
+		if math.Abs(lnB) > meterCleanBand*su.opt.PriorClean {
+			continue
+		}
+		// One meter set up once on the branch's pipe reads every state
+		// off by one factor: one parameter, however many states.
+		gain := su.mixScore(a, i) - su.mixScore(b, i) - math.Log(float64(len(a.sel)))
+		switch {
+		case gain >= strongEvidence:
+			hyp[i] = FollowsTable
+			adopted[i] = true
+			for _, k := range flows {
+				doubted[k] = true
+			}
+			v.Hypothesis = FollowsTable
+			v.DeltaChiSquare, v.DeltaScore = 0, 0
+			v.Note = fmt.Sprintf("tested: set elsewhere fitted the readings, but its flow reading off with the valve on its table fits them better (score gain %.1f): the flow reading is doubted", gain)
+		case gain > -strongEvidence:
+			v.MeterWeight = 1 / (1 + math.Exp(-gain/2))
+			v.MeterRatio = math.Exp(lnB)
+			v.Note += fmt.Sprintf("; or else the valve follows its table and its flow reading is off, which the readings cannot tell apart (%.0f %% against %.0f %%, score difference %.1f)", 100*v.MeterWeight, 100*(1-v.MeterWeight), math.Abs(gain))
+		}
+	}
+	if len(adopted) == 0 {
+		return fin, doubted, nil
+	}
+	var exclude []int
+	for oi, k := range fin.sel {
+		if doubted[k] || out[k] {
+			exclude = append(exclude, oi)
+		}
+	}
+	next, err := su.runLocal(ctx, hyp, fin.sel, fin, su.opt.OutlierZ, false, -1, exclude)
+	if err != nil {
+		if ctx.Err() != nil {
+			return nil, nil, err
+		}
+		// The refit failed: keep set elsewhere for the branches moved.
+		for i := range adopted {
+			verdicts[i].Hypothesis = SetElsewhere
+			verdicts[i].Note += "; the refit without the flow failed, set elsewhere was kept"
+		}
+		return fin, doubted, nil
+	}
+	return next, doubted, nil
+}

@@ -1,0 +1,127 @@
+package calibrate
+
+import (
+	"context"
+	"math"
+	"strings"
+	"testing"
+
+	"flowset/internal/site"
+)
+
+// settingFor returns the setting of valve table v whose Kv is f times the
+// Kv at setting at (bisection on the rising table).
+func settingFor(tb testing.TB, m interface {
+	KvAt(float64) (float64, error)
+	Range() (float64, float64)
+}, at, f float64) float64 {
+	tb.Helper()
+	want, err := m.KvAt(at)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	want *= f
+	lo, hi := m.Range()
+	for range 60 {
+		mid := (lo + hi) / 2
+		kv, err := m.KvAt(mid)
+		if err != nil {
+			tb.Fatal(err)
+		}
+		if kv < want {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return (lo + hi) / 2
+}
+
+// TestFitMeterOrValve: a clamp-on meter reading a branch's flow a factor β
+// of the truth makes its valve look β times its Kv through the valve
+// differential (q = Kv √Δp, the Kv definition of IEC 60534-2-1 for
+// turbulent flow) and the rest of the branch β⁻² times its resistance
+// (Δp = R q², the same square law). So a branch at β times its design
+// resistance read by a meter β low, and the same branch at β⁻¹ times its
+// design with its valve set elsewhere to β times its Kv read by a true
+// meter, give the same readings, and each departs from design by the same
+// factor under the two explanations. With only the flow and the valve
+// differential at the branch, the fit must say both (the valve set
+// elsewhere, the meter's explanation with a posterior probability between
+// 20 and 80 %, and the branch's resistance under each), the same for both
+// plants. With the meter 25 % low in a branch at design and a branch
+// differential read too, the valve set elsewhere needs the branch 1.78
+// times design against the meter's 1: the prior on the branch's
+// resistance separates them, so the valve follows its table, the flow is
+// doubted and nothing is left to hedge.
+func TestFitMeterOrValve(t *testing.T) {
+	ctx := context.Background()
+	nan := math.NaN()
+	const id = 3
+	type outcome struct {
+		h         ValveHypothesis
+		w, rB, rA float64
+		doubt     bool
+		note      string
+	}
+	// fit builds the 8-branch plant, reads every branch's clamp-on flow
+	// and valve differential (and branch differential with branchDiff),
+	// and fits it; branch 3's resistance is r times design and its valve
+	// at kv times its recorded Kv, and its meter reads beta times the
+	// truth.
+	fit := func(t *testing.T, r, kv, beta float64, branchDiff bool) outcome {
+		t.Helper()
+		s := newPlantSite(t, plantSpec{branches: 8, arrangement: site.DirectReturn, seed: 91})
+		for _, b := range s.Branches {
+			readBranch(s, "as-found", b.ID, "clamp-on", branchDiff)
+		}
+		read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
+		read(s, "as-found", site.AtHeader, site.HeaderDiff, "manometer", nan)
+		m := mustModel(t, s)
+		tr := newTruth(m)
+		tr.p.Resistance[id] = r
+		if kv != 1 {
+			tr.actual[id] = settingFor(t, m.Branches[id].Valve, s.Branches[id].Setting, kv)
+		}
+		simulate(t, m, tr, nil, 1) // noise-free, at the stated sds
+		fl := readingAt(t, s, s.Branches[id].ID, site.Flow, "clamp-on")
+		s.Readings[fl].Value *= beta
+		cal, err := Fit(ctx, m, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b := cal.Branches[id]
+		return outcome{h: b.Valve.Hypothesis, w: b.Valve.MeterWeight, rB: b.Valve.MeterRatio, rA: b.Ratio, doubt: cal.Readings[fl].Doubted, note: b.Valve.Note}
+	}
+	t.Run("flow and valve differential", func(t *testing.T) {
+		const beta = 0.85
+		meter := fit(t, beta, 1, beta, false)
+		valve := fit(t, 1/beta, beta, 1, false)
+		for _, o := range []outcome{meter, valve} {
+			if o.h != SetElsewhere || !(o.w > 0.2 && o.w < 0.8) {
+				t.Errorf("verdict %v with the meter's probability %.3g (%s): want set elsewhere, the meter between 20 and 80 %%", o.h, o.w, o.note)
+			}
+			// Each explanation's resistance within 10 % of its truth: the
+			// clean prior (sd 10 %) pulls them towards 1 a little.
+			if math.Abs(math.Log(o.rB/beta)) > 0.1 || math.Abs(math.Log(o.rA*beta)) > 0.1 {
+				t.Errorf("resistance %.3g set elsewhere and %.3g under the meter's explanation, want %.3g and %.3g ± 10 %%", o.rA, o.rB, 1/beta, beta)
+			}
+			if !strings.Contains(o.note, "flow reading is off") {
+				t.Errorf("the verdict's note %q does not name the meter's explanation", o.note)
+			}
+		}
+		if math.Abs(meter.w-valve.w) > 0.1 {
+			t.Errorf("the meter's probability %.3g on the biased meter, %.3g on the valve set elsewhere: the readings are the same, want them within 0.1", meter.w, valve.w)
+		}
+		t.Logf("biased meter: %+v\nvalve set elsewhere: %+v", meter, valve)
+	})
+	t.Run("flow, valve and branch differentials", func(t *testing.T) {
+		o := fit(t, 1, 1, 0.75, true)
+		if o.h != FollowsTable || o.w != 0 || !o.doubt {
+			t.Errorf("verdict %v, meter probability %.3g, flow doubted %v (%s): want the valve on its table, the flow doubted and no hedge", o.h, o.w, o.doubt, o.note)
+		}
+		if math.Abs(math.Log(o.rA)) > 0.1 {
+			t.Errorf("branch fitted %.3g x design, want 1 ± 10 %%", o.rA)
+		}
+	})
+}
