@@ -515,10 +515,8 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 		if fin, su.doubted, err = su.doubtFlows(ctx, fin, verdicts); err != nil {
 			return nil, err
 		}
-		if su.doubted == nil {
-			su.doubted = map[int]bool{}
-		}
-		if fin, su.doubted, err = su.weighMeters(ctx, fin, verdicts, su.doubted); err != nil {
+		o.progress("flow meters against valves set elsewhere", 0, 0)
+		if err = su.weighMeters(ctx, fin, verdicts); err != nil {
 			return nil, err
 		}
 	}

@@ -282,10 +282,7 @@ func TestFitBiasedMeter(t *testing.T) {
 	if !rf.Outlier && math.Abs(rf.Normalised) < 3 {
 		t.Errorf("the biased flow reading fits (normalised residual %.2f): want it doubted", rf.Normalised)
 	}
-	// Either the outlier test's words (the other readings fit the model)
-	// or the weighing of a biased meter against a valve set elsewhere
-	// (weighMeters: the differentials agree without the flow).
-	if !strings.Contains(rf.Why, "fit the model: this reading is doubted") && !strings.Contains(rf.Why, "agree with each other and with its design without this flow") {
+	if !strings.Contains(rf.Why, "fit the model: this reading is doubted") {
 		t.Errorf("the biased reading's explanation %q does not say its branch's other readings fit and the reading is doubted", rf.Why)
 	}
 	b := cal.Branches[3]

@@ -52,8 +52,9 @@ func settingFor(tb testing.TB, m interface {
 // plants. With the meter 25 % low in a branch at design and a branch
 // differential read too, the valve set elsewhere needs the branch 1.78
 // times design against the meter's 1: the prior on the branch's
-// resistance separates them, so the valve follows its table, the flow is
-// doubted and nothing is left to hedge.
+// resistance separates them, and the verdict must say that the meter's
+// explanation is ahead by the strong-evidence margin, for the plan to take
+// it alone.
 func TestFitMeterOrValve(t *testing.T) {
 	ctx := context.Background()
 	nan := math.NaN()
@@ -117,11 +118,15 @@ func TestFitMeterOrValve(t *testing.T) {
 	})
 	t.Run("flow, valve and branch differentials", func(t *testing.T) {
 		o := fit(t, 1, 1, 0.75, true)
-		if o.h != FollowsTable || o.w != 0 || !o.doubt {
-			t.Errorf("verdict %v, meter probability %.3g, flow doubted %v (%s): want the valve on its table, the flow doubted and no hedge", o.h, o.w, o.doubt, o.note)
+		if o.h != SetElsewhere || o.w < MeterDecides || !strings.Contains(o.note, "the plan takes that") {
+			t.Errorf("verdict %v, meter probability %.3g (%s): want the valve set elsewhere by the hypothesis test, the meter's explanation ahead by the strong-evidence margin (probability %.3g or more) and the plan told to take it", o.h, o.w, o.note, MeterDecides)
 		}
-		if math.Abs(math.Log(o.rA)) > 0.1 {
-			t.Errorf("branch fitted %.3g x design, want 1 ± 10 %%", o.rA)
+		if math.Abs(math.Log(o.rB)) > 0.1 {
+			t.Errorf("branch %.3g x design under the meter's explanation, want 1 ± 10 %%", o.rB)
 		}
 	})
+	// MeterDecides is the posterior of a score ahead by strongEvidence.
+	if got := 1 / (1 + math.Exp(-strongEvidence/2)); math.Abs(got-MeterDecides) > 1e-15 {
+		t.Errorf("MeterDecides %.17g, want 1/(1+exp(-%g/2)) = %.17g", MeterDecides, strongEvidence, got)
+	}
 }

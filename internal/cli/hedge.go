@@ -44,10 +44,12 @@ type hedged struct {
 	IfFault, IfReadings float64 // flow as a fraction of target under each
 	// Meter marks a valve found set elsewhere that a biased flow meter
 	// explains as well (hedgeMeters): Low is then how far the meter would
-	// read off (negative low), Weight the probability of that, IfFault the
-	// flow if the valve was set elsewhere and IfReadings if the meter is
-	// off.
-	Meter bool
+	// read off (negative low), Weight the probability of that, Other the
+	// multiplier under it, IfFault the flow if the valve was set elsewhere
+	// and IfReadings if the meter is off. Decided marks the meter's
+	// explanation taken alone, the readings telling the two apart.
+	Meter, Decided bool
+	Other          float64
 }
 
 // hedgeTestPoints weighs each branch found restricted (or short of design)
@@ -195,20 +197,33 @@ func hedgeMeters(j *job, plan *balance.Plan, skip map[string]bool) []hedged {
 			continue
 		}
 		openDrop, _ := open.Drop(bp.Target, m.Fluid)
+		hs := []balance.Hypothesis{{Multiplier: mf, Weight: 1 - w}, {Multiplier: v.MeterRatio, Weight: w}}
+		if w >= calibrate.MeterDecides {
+			// The readings tell them apart: the meter's explanation alone.
+			hs = hs[1:]
+		}
 		res, err := balance.Hedge(balance.HedgeCase{
 			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
 			Diff:   bp.BranchDiff,
 			Target: bp.Target,
 			Open:   openDrop,
 			Low:    plan.ToleranceLow, High: plan.ToleranceHigh, Spread: hedgeSpread,
-		}, []balance.Hypothesis{{Multiplier: mf, Weight: 1 - w}, {Multiplier: v.MeterRatio, Weight: w}})
-		if err != nil || math.Abs(math.Log(res.Multiplier/mf)) < 0.01 {
+		}, hs)
+		// A decided branch is reported even where its multiplier hardly
+		// moves: its finding must still name the meter.
+		if err != nil || len(hs) == 2 && math.Abs(math.Log(res.Multiplier/mf)) < 0.01 {
 			continue
 		}
 		j.Params.Resistance[i] = res.Multiplier
 		// The meter reads the flow the valve's table gives for its
 		// differential times the Kv scale fitted under set elsewhere.
-		out = append(out, hedged{ID: bf.ID, Fitted: mf, Planned: res.Multiplier, Low: bf.KvScale - 1, Weight: w, IfFault: res.Flows[0], IfReadings: res.Flows[1], Meter: true})
+		h := hedged{ID: bf.ID, Fitted: mf, Planned: res.Multiplier, Other: v.MeterRatio, Low: bf.KvScale - 1, Weight: w, IfReadings: res.Flows[len(res.Flows)-1], Meter: true}
+		if len(res.Flows) == 2 {
+			h.IfFault = res.Flows[0]
+		} else {
+			h.Decided = true
+		}
+		out = append(out, h)
 	}
 	return out
 }
@@ -219,28 +234,19 @@ func hedgeMeters(j *job, plan *balance.Plan, skip map[string]bool) []hedged {
 const hedgeListed = 5
 
 // hedgeNotes words the hedged branches for the plan's warnings and sets
-// their findings' actions.
+// their findings' actions: each valve weighed against its flow meter
+// (hedgeMeters) one by one, then the branches found restricted on their own
+// test points.
 func hedgeNotes(j *job, hs []hedged) []string {
-	var notes, ids []string
+	var meters, notes, ids []string
+	var points []hedged
 	for _, h := range hs {
-		ids = append(ids, h.ID)
 		if h.Meter {
-			notes = append(notes, fmt.Sprintf("%s's valve reads as set elsewhere than recorded through its flow reading alone, and the flow meter reading %.0f %% %s with the valve where recorded would read the same way (a %.0f %% chance against %.0f %%): its setting is planned between the two, to give %.0f %% of target if the valve was set elsewhere and %.0f %% if the meter is off. Check the meter's set-up (pipe size, wall, spacing) or read the flow another way, and re-plan with that reading", h.ID, 100*math.Abs(h.Low), lowHigh(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
-			for k := range j.Findings {
-				f := &j.Findings[k]
-				if f.Branch != h.ID {
-					continue
-				}
-				switch f.Code {
-				case diagnose.ValveMisSet:
-					f.Message = "the valve does not sit at its recorded setting, or else the flow meter reads off: the readings fit either"
-					f.Action = fmt.Sprintf("check the meter's set-up (pipe size, wall, transducer spacing) or read the flow another way before anything else, then the handwheel's memory stop; a meter %.0f %% %s explains the readings as well as the valve set elsewhere (%.0f %% against %.0f %%), and its setting is planned between the two (%.0f %% of target if set elsewhere, %.0f %% if the meter is off)", 100*math.Abs(h.Low), lowHigh(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings)
-				case diagnose.Restricted, diagnose.Free, diagnose.CannotReachDesign:
-					f.Action = fmt.Sprintf("read its flow another way before cleaning anything: with the valve where recorded and the flow meter %.0f %% %s, the branch is near design (%.2g x)", 100*math.Abs(h.Low), lowHigh(h.Low), h.Planned)
-				}
-			}
+			meters = append(meters, meterNote(j, h))
 			continue
 		}
+		points = append(points, h)
+		ids = append(ids, h.ID)
 		notes = append(notes, fmt.Sprintf("%s reads as %.2g times its design resistance through its own valve's test points alone, and test points reading %.0f %% low would read the same way (a %.0f %% chance against the restriction's %.0f %%): its setting is planned between the two, to give %.0f %% of target if the restriction is real and %.0f %% if the test points read low. Read its flow with a clamp-on meter and re-plan with that reading", h.ID, h.Fitted, 100*math.Abs(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
 		for k := range j.Findings {
 			f := &j.Findings[k]
@@ -249,11 +255,41 @@ func hedgeNotes(j *job, hs []hedged) []string {
 			}
 		}
 	}
-	if len(hs) <= hedgeListed {
-		return notes
+	if len(points) <= hedgeListed {
+		return append(meters, notes...)
 	}
 	named := strings.Join(ids[:hedgeListed], ", ")
-	return []string{fmt.Sprintf("%d branches (%s and %d more) read as restricted through their own valves' test points alone, which test points reading low would match as well: their settings are planned between the two explanations, and each one's finding says what it gets under either. Read their flows with a clamp-on meter and re-plan with those readings", len(hs), named, len(hs)-hedgeListed)}
+	return append(meters, fmt.Sprintf("%d branches (%s and %d more) read as restricted through their own valves' test points alone, which test points reading low would match as well: their settings are planned between the two explanations, and each one's finding says what it gets under either. Read their flows with a clamp-on meter and re-plan with those readings", len(points), named, len(points)-hedgeListed))
+}
+
+// meterNote words a valve weighed against its flow meter for the plan's
+// warnings, and sets its findings' wording and actions.
+func meterNote(j *job, h hedged) string {
+	off := fmt.Sprintf("%.0f %% %s", 100*math.Abs(h.Low), lowHigh(h.Low))
+	odds := fmt.Sprintf("%.0f %% against %.0f %%", 100*h.Weight, 100*(1-h.Weight))
+	var note, msg, act string
+	if h.Decided {
+		note = fmt.Sprintf("%s's valve reads as set elsewhere than recorded through its flow reading alone, but the valve where recorded with the flow meter reading %s fits the readings better (%s): its setting is planned for that. Check the meter's set-up (pipe size, wall, spacing) or read the flow another way", h.ID, off, odds)
+		msg = "the flow meter most likely reads off; else the valve does not sit at its recorded setting"
+		act = fmt.Sprintf("check the meter's set-up (pipe size, wall, transducer spacing) or read the flow another way: a meter %s with the valve where recorded fits the readings better than the valve set elsewhere (%s), and its setting is planned for that", off, odds)
+	} else {
+		note = fmt.Sprintf("%s's valve reads as set elsewhere than recorded through its flow reading alone, and the flow meter reading %s with the valve where recorded would read the same way (%s): its setting is planned between the two, to give %.0f %% of target if the valve was set elsewhere and %.0f %% if the meter is off. Check the meter's set-up (pipe size, wall, spacing) or read the flow another way, and re-plan with that reading", h.ID, off, odds, 100*h.IfFault, 100*h.IfReadings)
+		msg = "the valve does not sit at its recorded setting, or else the flow meter reads off: the readings fit either"
+		act = fmt.Sprintf("check the meter's set-up (pipe size, wall, transducer spacing) or read the flow another way before anything else, then the handwheel's memory stop; a meter %s explains the readings as well as the valve set elsewhere (%s), and its setting is planned between the two (%.0f %% of target if set elsewhere, %.0f %% if the meter is off)", off, odds, 100*h.IfFault, 100*h.IfReadings)
+	}
+	for k := range j.Findings {
+		f := &j.Findings[k]
+		if f.Branch != h.ID {
+			continue
+		}
+		switch f.Code {
+		case diagnose.ValveMisSet:
+			f.Message, f.Action = msg, act
+		case diagnose.Restricted, diagnose.Free, diagnose.CannotReachDesign:
+			f.Action = fmt.Sprintf("read its flow another way before cleaning anything: with the valve where recorded and the flow meter %s, the branch is %.2g times its design resistance", off, h.Other)
+		}
+	}
+	return note
 }
 
 // lowHigh words the sign of a reading's error.

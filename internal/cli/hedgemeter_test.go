@@ -112,8 +112,8 @@ func meterSite(t *testing.T, r, kv, beta float64, branchDiff bool) *loaded {
 // the flow it gives above target under one and below under the other), say
 // both in its warnings and in the valve's finding. With a branch
 // differential and the meter 25 % low, the valve set elsewhere would need
-// the branch 1.78 times design: the fit doubts the flow, and nothing is
-// hedged.
+// the branch 1.78 times design: the readings tell the two apart, and the
+// plan takes the meter's explanation alone, with no hedge.
 func TestHedgeMeter(t *testing.T) {
 	const beta = 0.85
 	opts := &jobOptions{Scale: 1, Rounding: "smart", Thresholds: diagnose.DefaultThresholds()}
@@ -168,12 +168,22 @@ func TestHedgeMeter(t *testing.T) {
 			t.Fatal(err)
 		}
 		v := j.Cal.Branches[3].Valve
-		if v.Hypothesis != calibrate.FollowsTable || v.MeterWeight != 0 || j.Params.Resistance[3] != j.Fitted.Resistance[3] {
-			t.Errorf("b03's valve %v, meter weight %.3g, planned %.3g against fitted %.3g (%s): want the valve on its table and no hedge", v.Hypothesis, v.MeterWeight, j.Params.Resistance[3], j.Fitted.Resistance[3], v.Note)
+		if v.MeterWeight < calibrate.MeterDecides || math.Abs(j.Params.Resistance[3]/v.MeterRatio-1) > 1e-12 {
+			t.Errorf("b03's valve %v, the meter's explanation %.3g probable, planned at %.3g against %.3g under it (%s): want the meter's explanation decided and planned alone", v.Hypothesis, v.MeterWeight, j.Params.Resistance[3], v.MeterRatio, v.Note)
 		}
+		planned := false
 		for _, w := range j.Plan.Warnings {
 			if strings.Contains(w, "b03") && strings.Contains(w, "planned between") {
 				t.Errorf("b03 hedged: %s", w)
+			}
+			planned = planned || strings.HasPrefix(w, "b03's valve") && strings.Contains(w, "planned for that")
+		}
+		if !planned {
+			t.Errorf("no warning says b03 is planned for its meter reading off:\n%s", strings.Join(j.Plan.Warnings, "\n"))
+		}
+		for _, f := range j.Findings {
+			if f.Branch == "b03" && f.Code == diagnose.ValveMisSet && !strings.Contains(f.Message, "flow meter most likely reads off") {
+				t.Errorf("b03's valve finding does not put the meter first: %q", f.Message)
 			}
 		}
 	})
