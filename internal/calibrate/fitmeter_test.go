@@ -54,7 +54,9 @@ func settingFor(tb testing.TB, m interface {
 // times design against the meter's 1: the prior on the branch's
 // resistance separates them, and the verdict must say that the meter's
 // explanation is ahead by the strong-evidence margin, for the plan to take
-// it alone.
+// it alone. A valve at 0.6 times its Kv in a branch at design, read truly,
+// would need the branch at 0.36 times design under the meter's
+// explanation: the valve set elsewhere stands alone.
 func TestFitMeterOrValve(t *testing.T) {
 	ctx := context.Background()
 	nan := math.NaN()
@@ -123,6 +125,15 @@ func TestFitMeterOrValve(t *testing.T) {
 		}
 		if math.Abs(math.Log(o.rB)) > 0.1 {
 			t.Errorf("branch %.3g x design under the meter's explanation, want 1 ± 10 %%", o.rB)
+		}
+	})
+	t.Run("valve set elsewhere in a branch at design", func(t *testing.T) {
+		// The valve at 0.6 times its Kv, read truly: the meter's
+		// explanation would need the branch at 0.36 times design, beyond
+		// the clean band, and is not weighed.
+		o := fit(t, 1, 0.6, 1, false)
+		if o.h != SetElsewhere || o.w != 0 {
+			t.Errorf("verdict %v, the meter's explanation %.3g probable (%s): want set elsewhere and the meter not weighed", o.h, o.w, o.note)
 		}
 	})
 	// MeterDecides is the posterior of a score ahead by strongEvidence.

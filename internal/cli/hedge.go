@@ -182,11 +182,16 @@ func hedgeMeters(j *job, plan *balance.Plan, skip map[string]bool) []hedged {
 	for i, bf := range j.Cal.Branches {
 		v := bf.Valve
 		w := v.MeterWeight
-		if v.Hypothesis != calibrate.SetElsewhere || !(w > 0 && w < 1) || !(v.MeterRatio > 0) || skip[bf.ID] {
+		if v.Hypothesis != calibrate.SetElsewhere || !(w > 0) || !(v.MeterRatio > 0) || skip[bf.ID] {
 			continue
 		}
 		bp := byID[bf.ID]
 		if bp == nil || m.Branches[i].Valve == nil || m.Branches[i].Riser() || !(bp.Target > 0) {
+			continue
+		}
+		if bp.OnIndex && w < calibrate.MeterDecides {
+			// A hedge holds the branch's differential, which on the index
+			// path the branch itself sets (as in hedgeTestPoints).
 			continue
 		}
 		mf := j.Params.Resistance[i]
