@@ -125,7 +125,7 @@ func TestHedgeMeter(t *testing.T) {
 		{"valve set elsewhere", 1 / beta, beta, 1},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			j, err := runJob(context.Background(), meterSite(t, tc.r, tc.kv, tc.meter, false), opts, &progress{w: io.Discard})
+			j, err := runJob(context.Background(), meterSite(t, tc.r, tc.kv, tc.meter, false), opts, &progress{w: io.Discard}, nil)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -163,7 +163,7 @@ func TestHedgeMeter(t *testing.T) {
 		})
 	}
 	t.Run("branch differential separates", func(t *testing.T) {
-		j, err := runJob(context.Background(), meterSite(t, 1, 1, 0.75, true), opts, &progress{w: io.Discard})
+		j, err := runJob(context.Background(), meterSite(t, 1, 1, 0.75, true), opts, &progress{w: io.Discard}, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -193,8 +193,10 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 	if err != nil {
 		return nil, &dataError{fmt.Errorf("balancing plan: %w", err)}
 	}
-	// The hedged branches (lowered, never the index) and the index margin
-	// both come from this plan; one more plan carries both.
+	// The hedged branches (on their test points: lowered, never the index;
+	// against their flow meter: either way, the index only where the
+	// readings decide) and the index margin both come from this plan; one
+	// more plan carries both.
 	hedges := hedgeTestPoints(j, plan, unconfirmed)
 	moved := map[string]bool{}
 	for _, h := range hedges {
