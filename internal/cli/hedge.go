@@ -253,11 +253,18 @@ func hedgeNotes(j *job, hs []hedged) []string {
 		points = append(points, h)
 		ids = append(ids, h.ID)
 		notes = append(notes, fmt.Sprintf("%s reads as %.2g times its design resistance through its own valve's test points alone, and test points reading %.0f %% low would read the same way (a %.0f %% chance against the restriction's %.0f %%): its setting is planned between the two, to give %.0f %% of target if the restriction is real and %.0f %% if the test points read low. Read its flow with a clamp-on meter and re-plan with that reading", h.ID, h.Fitted, 100*math.Abs(h.Low), 100*h.Weight, 100*(1-h.Weight), 100*h.IfFault, 100*h.IfReadings))
-		for k := range j.Findings {
-			f := &j.Findings[k]
-			if f.Branch == h.ID && (f.Code == diagnose.Restricted || f.Code == diagnose.CannotReachDesign) {
-				f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading %.0f %% low say the same; its setting is planned between the two (%.0f %% of target if the restriction is real, %.0f %% if the test points read low) until a second instrument tells", 100*math.Abs(h.Low), 100*h.IfFault, 100*h.IfReadings)
-			}
+	}
+	// The test points' findings in one pass over the findings (a pass per
+	// hedged branch was quadratic on a large site); a branch is weighed
+	// one way only (hedgeMeters skips the test points' branches).
+	byID := make(map[string]*hedged, len(points))
+	for k := range points {
+		byID[points[k].ID] = &points[k]
+	}
+	for k := range j.Findings {
+		f := &j.Findings[k]
+		if h := byID[f.Branch]; h != nil && (f.Code == diagnose.Restricted || f.Code == diagnose.CannotReachDesign) {
+			f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading %.0f %% low say the same; its setting is planned between the two (%.0f %% of target if the restriction is real, %.0f %% if the test points read low) until a second instrument tells", 100*math.Abs(h.Low), 100*h.IfFault, 100*h.IfReadings)
 		}
 	}
 	if len(points) <= hedgeListed {

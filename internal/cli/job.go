@@ -422,13 +422,14 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 		indep[e.ID] = e.HasFlow
 	}
 	var held []string
+	isHeld := map[string]bool{} // held as a set: findings x held was quadratic
 	for k := range j.Findings {
 		f := &j.Findings[k]
 		if indep[f.Branch] {
 			continue
 		}
 		i, ok := m.Index(f.Branch)
-		if !ok || slices.Contains(held, f.Branch) {
+		if !ok || isHeld[f.Branch] {
 			continue
 		}
 		switch {
@@ -444,10 +445,11 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 		}
 		j.Params.Resistance[i] = 1
 		held = append(held, f.Branch)
+		isHeld[f.Branch] = true
 	}
 	for k := range j.Findings {
 		f := &j.Findings[k]
-		if (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && slices.Contains(held, f.Branch) {
+		if (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && isHeld[f.Branch] {
 			f.Action = "read its flow with a clamp-on meter to confirm before anything else: only its valve's test points say it is short, and a meter set up for another valve reads the same way; the plan holds its design setting until then"
 		}
 	}
