@@ -71,6 +71,7 @@ type job struct {
 	Trim       *balance.TrimPlan
 	readLeft   map[string]bool
 	trimBeyond float64
+	moveUnread bool
 	// planPredicted is what the plan the valves were set to predicted of
 	// each branch, % of target by ID (trim only).
 	planPredicted map[string]float64

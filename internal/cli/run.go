@@ -267,7 +267,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return err
 	}
 	if left >= 0 {
-		j.trimBeyond, j.planPredicted = o.trim.Beyond, predicted
+		j.trimBeyond, j.moveUnread, j.planPredicted = o.trim.Beyond, o.trim.MoveUnread, predicted
 		pr.step("trimming after setting (state %q)", l.Model.States[left].Label)
 		if err := j.trim(ctx, left); err != nil {
 			return err

@@ -28,6 +28,9 @@ type trimOptions struct {
 	// Beyond is the fraction of the tolerance band beyond which a branch
 	// is trimmed.
 	Beyond float64
+	// MoveUnread moves the valves of branches not read after setting on
+	// the model's prediction, with the re-computed plan's pump.
+	MoveUnread bool
 }
 
 func newTrimCmd(ios *IO) *cobra.Command {
@@ -41,9 +44,13 @@ state label in readings.csv, its pump in states.csv). Trim fits every state
 together, the valves of the new state taken at the plan's settings (PLAN.json,
 written by plan or run) wherever no reading records one, and says of every
 branch as left whether the readings prove it in tolerance, prove it out, or
-cannot tell. It then gives small setting corrections for the branches outside
-the inner half of the band and a pump correction, and compares each branch as
-found, as left and after the trims. With --out it writes trim.csv (the field
+cannot tell. It then gives small setting corrections for the branches read
+after setting that the readings place off target beyond a quarter of the
+band (--beyond), and, with --move-unread (the default), for those not read
+that the model fitted to every state puts there, with the pump of the plan
+re-computed on that fit: those are predictions, marked as such, to be read
+to be proven. It compares each branch as found, as the plan predicted it,
+as left and after the trims. With --out it writes trim.csv (the field
 sheet of the round), trim.json, report.html (the round's report: every
 branch as found, as the plan predicted it and as left, what is proven and
 what is only predicted, the trims and the pump correction) and the fit of
@@ -66,7 +73,8 @@ every state (calibration.csv/json, findings.csv, readings.csv).`,
 	}
 	addJobFlags(cmd, o, true)
 	cmd.Flags().StringVar(&o.trim.Plan, "plan", "", "plan.json of the plan the valves were set to (written by plan or run)")
-	cmd.Flags().Float64Var(&o.trim.Beyond, "beyond", 0.5, "trim the branches predicted beyond this fraction of the tolerance band (0.5: outside ±5 % of target for ±10 %)")
+	cmd.Flags().Float64Var(&o.trim.Beyond, "beyond", 0.25, "trim the branches predicted beyond this fraction of the tolerance band (0.25: outside ±2.5 % of target for ±10 %)")
+	cmd.Flags().BoolVar(&o.trim.MoveUnread, "move-unread", true, "also move the valves of branches not read after setting where the model fitted to every state puts them off target, with the pump of the plan re-computed on that fit (predictions, marked as such); false: name them to be read first")
 	cmd.Flags().StringVar(&o.trim.State, "state", "", "the survey state read after setting (default: the last state of readings.csv)")
 	return cmd
 }
@@ -179,7 +187,7 @@ const suspectZ = 3
 // trim works out the trims of job j for the as-left state k.
 func (j *job) trim(ctx context.Context, k int) error {
 	m := j.L.Model
-	opt := &balance.TrimOptions{Inner: j.trimBeyond}
+	opt := &balance.TrimOptions{Inner: j.trimBeyond, Replan: j.moveUnread}
 	if j.Cal != nil {
 		opt.Uncertainty = uncertainty(j.Cal)
 		opt.Hold = make([]bool, len(m.Branches))
@@ -207,11 +215,29 @@ func (j *job) trim(ctx context.Context, k int) error {
 			}
 		}
 	}
-	// The plan's multipliers, but each fitted valve at the Kv the fit
-	// found it passing as left (a valve off its table or off its mark
-	// passes there what no single scale of its table gives at every
-	// setting).
+	opt.Expected = make([]float64, len(m.Branches))
+	for id, v := range j.planPredicted {
+		if i, ok := m.Index(id); ok {
+			opt.Expected[i] = v / 100
+		}
+	}
+	// The fitted multipliers (not the plan's, which hold some branches
+	// at design until confirmed and lower others as a hedge: the state as
+	// left is what the fit of every state says), each fitted valve at the
+	// Kv the fit found it passing as left (a valve off its table or off
+	// its mark passes there what no single scale of its table gives at
+	// every setting). A branch the plan holds at design or hedges (its
+	// resistance the plan's, not the fit's: its evidence is its own
+	// valve's test points) is not trimmed on them alone either.
 	p := j.Params.Clone()
+	if j.Cal != nil {
+		p = planParams(j.Cal)
+		for i := range m.Branches {
+			if a, b := j.Params.Resistance[i], p.Resistance[i]; math.Abs(a-b) > 1e-9*max(a, b) {
+				opt.Doubt[i] = true
+			}
+		}
+	}
 	if j.Cal != nil {
 		for i, b := range j.Cal.Branches {
 			mb := &m.Branches[i]
@@ -287,9 +313,18 @@ func (j *job) trimSummary(u display) []string {
 	default:
 		out = append(out, "Pump: leave it as it is.")
 	}
-	if tp.Trimmed == 0 {
+	predicted := 0
+	for _, b := range tp.Branches {
+		if b.Predicted {
+			predicted++
+		}
+	}
+	switch {
+	case tp.Trimmed == 0:
 		out = append(out, "No valve needs a trim.")
-	} else {
+	case predicted > 0:
+		out = append(out, fmt.Sprintf("Trim %d valve(s) (below), %d of them on branches not read after setting: those follow the model fitted to every state (the pump and headers as now fitted), a prediction to prove by reading them; the model then puts %d of %d inside the tolerance.", tp.Trimmed, predicted, tp.InAfter, n))
+	default:
 		out = append(out, fmt.Sprintf("Trim %d valve(s) (below); the model then puts %d of %d inside the tolerance.", tp.Trimmed, tp.InAfter, n))
 	}
 	var unread []string
@@ -347,12 +382,15 @@ type trimPumpJSON struct {
 }
 
 type trimBranchJSON struct {
-	ID        string `json:"branch"`
-	Valve     string `json:"valve,omitempty"`
-	Unit      string `json:"setting_unit,omitempty"`
-	Left      num    `json:"as_left_setting"`
-	New       num    `json:"new_setting"`
-	Trimmed   bool   `json:"trimmed"`
+	ID      string `json:"branch"`
+	Valve   string `json:"valve,omitempty"`
+	Unit    string `json:"setting_unit,omitempty"`
+	Left    num    `json:"as_left_setting"`
+	New     num    `json:"new_setting"`
+	Trimmed bool   `json:"trimmed"`
+	// OnModel: trimmed on the model's prediction alone (not read after
+	// setting).
+	OnModel   bool   `json:"trimmed_on_prediction"`
 	Target    num    `json:"target_m3_s"`
 	Found     num    `json:"as_found_percent"`
 	Predicted num    `json:"plan_predicted_percent"`
@@ -385,7 +423,7 @@ func (j *job) trimOut(generated string) trimJSON {
 		if !ok {
 			pred = math.NaN()
 		}
-		out.Branches = append(out.Branches, trimBranchJSON{ID: b.ID, Valve: b.Valve, Unit: b.Unit, Left: num(b.Left), New: num(b.New), Trimmed: b.Trimmed,
+		out.Branches = append(out.Branches, trimBranchJSON{ID: b.ID, Valve: b.Valve, Unit: b.Unit, Left: num(b.Left), New: num(b.New), Trimmed: b.Trimmed, OnModel: b.Predicted,
 			Target: num(b.Target), Found: num(found), Predicted: num(pred), LeftPct: num(b.LeftPercent), LeftLow: num(b.LeftLow), LeftHigh: num(b.LeftHigh),
 			Verdict: b.Verdict.String(), Read: j.readLeft[b.ID], After: num(b.AfterPercent), AfterLow: num(b.AfterLow), AfterHigh: num(b.AfterHigh), Note: b.Note})
 	}

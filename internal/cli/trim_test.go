@@ -41,11 +41,21 @@ func TestTrimDemo(t *testing.T) {
 			Left    *float64 `json:"as_left_setting"`
 			New     *float64 `json:"new_setting"`
 			Trimmed bool     `json:"trimmed"`
+			OnModel bool     `json:"trimmed_on_prediction"`
+			Read    bool     `json:"read_after_setting"`
+			Note    string   `json:"note"`
 			Verdict string   `json:"verdict"`
 		} `json:"branches"`
 	}
 	if err := json.Unmarshal(b, &tj); err != nil {
 		t.Fatal(err)
+	}
+	for _, br := range tj.Branches {
+		// A trim of a branch not read after setting is the model's
+		// alone, and says so.
+		if br.OnModel != (br.Trimmed && !br.Read) || br.OnModel && !strings.Contains(br.Note, "not read after setting") {
+			t.Errorf("%s: trimmed %v, read %v, on the model alone %v, note %q", br.ID, br.Trimmed, br.Read, br.OnModel, br.Note)
+		}
 	}
 	if tj.State != "after-change" || len(tj.Branches) == 0 {
 		t.Fatalf("trim.json: state %q, %d branches", tj.State, len(tj.Branches))
@@ -80,6 +90,26 @@ func TestTrimDemo(t *testing.T) {
 	for _, name := range []string{"calibration.csv", "findings.csv", "readings.csv"} {
 		if _, err := os.Stat(filepath.Join(out, name)); err != nil {
 			t.Errorf("the report names %s beside it: %v", name, err)
+		}
+	}
+	// --move-unread=false moves no branch that was not read after setting.
+	code, stdout, stderr = run(t, "trim", surveyDir("demo"), "--plan", filepath.Join(plan, "plan.json"), "--json", "--move-unread=false")
+	if code != 0 && code != 5 {
+		t.Fatalf("trim --move-unread=false: exit %d: %s", code, stderr)
+	}
+	var only struct {
+		Branches []struct {
+			ID      string `json:"branch"`
+			Trimmed bool   `json:"trimmed"`
+			Read    bool   `json:"read_after_setting"`
+		} `json:"branches"`
+	}
+	if err := json.Unmarshal([]byte(stdout), &only); err != nil {
+		t.Fatal(err)
+	}
+	for _, br := range only.Branches {
+		if br.Trimmed && !br.Read {
+			t.Errorf("--move-unread=false: %s trimmed but not read after setting", br.ID)
 		}
 	}
 	// --json prints what trim.json holds.
