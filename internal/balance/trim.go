@@ -76,14 +76,12 @@ type TrimOptions struct {
 	// now fitted move every branch): a prediction, marked as such
 	// (TrimBranch.Predicted).
 	Replan bool
-	// Expected is, by model index, what the plan the valves were set to
-	// predicted of each branch, as a fraction of its target (0 or NaN:
-	// not known). With Replan an unread branch is moved only when the
-	// model now puts it beyond Inner of what the plan expected: a plan
-	// that left a branch at 96 % because no handwheel mark gave 100 %
-	// told nothing new, and re-rounding it on the model's slope of the
-	// valve's table between marks is as likely to overshoot.
-	Expected []float64
+	// Hedged marks, by model index, branches the plan was made on another
+	// resistance than the fit's (held at design, or hedged, because only
+	// their own valve's test points say they are off): with Replan they
+	// are not moved unread, since the model's view of them is what the
+	// plan did not trust.
+	Hedged []bool
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -152,15 +150,19 @@ func (t *TrimPlan) State() plant.State {
 // fit, whose targets and tolerance it takes. Each branch's flow as left is
 // predicted with its band and judged against the tolerance. The pump is
 // corrected, with the valves as left, to the value that brings the branches
-// nearest their targets (centre) when that differs by over half a per cent.
+// nearest their targets (centre), with Replan raised to the re-computed
+// plan's where that is more, when that differs by over half a per cent.
 // Then, over a few passes of the whole network, every branch read after
 // setting (TrimOptions.Read) that is predicted outside the inner part of the
 // tolerance (Inner of it) and whose 95 % band (its spread as left about the
 // pass's prediction) leaves out its target gets the setting that gives its
 // target at the differential it sees: its valve drops that differential less
 // its fixed parts' drop at target, rounded to the handwheel mark whose flow
-// (square law) is nearest the target. Risers are not trimmed: their
-// sub-branches are. Branches held (TrimOptions.Hold) and those whose valve
+// (square law) is nearest the target. With Replan so does every branch not
+// read that the pass puts outside Inner, if the model put it inside the
+// tolerance as left and the plan did not hedge it (a prediction:
+// TrimBranch.Predicted). Risers are not trimmed: their sub-branches are.
+// Branches held (TrimOptions.Hold), doubted (Doubt) and those whose valve
 // is fully open already are left, with a note.
 func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left plant.State, opt *TrimOptions) (*TrimPlan, error) {
 	if m == nil || plan == nil {
@@ -288,7 +290,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// under a meter reading 25 % low, put at 80 %, moved to 171 %).
 			// One the pump correction moves out is moved back.
 			model := !read && o.Replan && !in(r, o.Inner) && in(solL.Flow(i)/target[i], 1) &&
-				i < len(o.Expected) && o.Expected[i] > 0 && !in(r/o.Expected[i], o.Inner)
+				!(i < len(o.Hedged) && o.Hedged[i])
 			if !out && !model {
 				continue
 			}

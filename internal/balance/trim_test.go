@@ -58,9 +58,9 @@ func TestTrimOneBranch(t *testing.T) {
 		// line uses).
 		inner  float64
 		replan bool
-		// knew: the plan the valves were set to predicted the off branch
-		// where it is (TrimOptions.Expected): nothing new was learnt.
-		knew bool
+		// hedged: the plan did not trust the fit's view of the off
+		// branch (TrimOptions.Hedged).
+		hedged bool
 	}{
 		{name: "one branch fouled after setting", ratio: 4, trimmed: 1, offIn: true, verdicts: true},
 		{name: "one branch inside the band but in its outer half", ratio: 0.3, trimmed: 1, offIn: true},
@@ -80,7 +80,7 @@ func TestTrimOneBranch(t *testing.T) {
 		// read first, not moved on the model's word.
 		{name: "replan: off, but not read after setting", ratio: 4, unread: true, trimmed: 0, offIn: false, replan: true},
 		{name: "replan: a little off, not read after setting", ratio: 0.6, unread: true, trimmed: 1, offIn: true, replan: true},
-		{name: "replan: a little off where the plan said, not read after setting", ratio: 0.6, unread: true, trimmed: 0, offIn: true, replan: true, knew: true},
+		{name: "replan: a little off, not read after setting, hedged by the plan", ratio: 0.6, unread: true, trimmed: 0, offIn: true, replan: true, hedged: true},
 		{name: "replan: off, but its valve does not follow its handwheel", ratio: 4, hold: true, trimmed: 0, offIn: false, replan: true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
@@ -95,13 +95,10 @@ func TestTrimOneBranch(t *testing.T) {
 			replan := mustCompute(t, m, c.truth, &Options{Rounding: Smart, Uncertainty: u})
 			left := c.plan.State()
 			left.Label = "after setting"
-			opt := &TrimOptions{Uncertainty: u, Inner: tc.inner, Replan: tc.replan, Expected: expected(m, c.plan)}
-			if tc.knew {
-				sol, err := m.Solve(ctx, c.truth, left)
-				if err != nil {
-					t.Fatal(err)
-				}
-				opt.Expected[c.off] = sol.Flow(c.off) / m.Branches[c.off].Target
+			opt := &TrimOptions{Uncertainty: u, Inner: tc.inner, Replan: tc.replan}
+			if tc.hedged {
+				opt.Hedged = make([]bool, len(m.Branches))
+				opt.Hedged[c.off] = true
 			}
 			if tc.hold {
 				opt.Hold = make([]bool, len(m.Branches))
@@ -140,7 +137,7 @@ func TestTrimOneBranch(t *testing.T) {
 						t.Errorf("%s: %v as left (%.1f %%, band %.1f-%.1f), want %v", b.ID, b.Verdict, b.LeftPercent, b.LeftLow, b.LeftHigh, want)
 					}
 				}
-				if (tc.hold || tc.unread || tc.doubt) && !tc.knew && b.Index == c.off && b.Note == "" {
+				if (tc.hold || tc.unread || tc.doubt) && b.Index == c.off && b.Note == "" {
 					t.Errorf("%s held but without a note", b.ID)
 				}
 				if b.Predicted != (b.Trimmed && tc.unread) {
@@ -239,7 +236,7 @@ func TestTrimReplan(t *testing.T) {
 	}
 	var got [2]float64
 	for k, re := range []bool{false, true} {
-		tp, err := Trim(ctx, m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, Read: read, Replan: re, Expected: expected(m, c.plan)})
+		tp, err := Trim(ctx, m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, Read: read, Replan: re})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -261,16 +258,4 @@ func TestTrimReplan(t *testing.T) {
 	if !(got[1] < got[0]) {
 		t.Errorf("rms after trims %.2f %% with replan, %.2f %% without: want lower", 100*got[1], 100*got[0])
 	}
-}
-
-// expected is what plan predicted of each branch, as a fraction of its
-// target, by model index (TrimOptions.Expected).
-func expected(m *plant.Model, plan *Plan) []float64 {
-	e := make([]float64, len(m.Branches))
-	for _, b := range plan.Branches {
-		if i, ok := m.Index(b.ID); ok && b.Target > 0 {
-			e[i] = b.Predicted / b.Target
-		}
-	}
-	return e
 }

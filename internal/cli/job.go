@@ -80,6 +80,9 @@ type job struct {
 	curves *future[sysCurves]
 	// stages runs the job's independent stages (nil: one after another).
 	stages *stages
+	// unconfirmed are the branches the plan holds at design until a flow
+	// read another way confirms their fitted resistance.
+	unconfirmed []string
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -188,6 +191,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 	}
 
 	unconfirmed := holdUnconfirmed(m, j)
+	j.unconfirmed = unconfirmed
 
 	pr.step("planning valve settings for %d branches", len(m.Branches))
 	plan, err := balance.Compute(ctx, m, j.Params, j.planOptions())
