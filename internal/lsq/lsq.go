@@ -318,7 +318,8 @@ type Settings struct {
 	// Workers is the number of goroutines for the work that splits into
 	// independent parts with the same result on any number of them (the
 	// variance probes of a Forker problem, the block preconditioner's
-	// sums); 0: runtime.GOMAXPROCS(0).
+	// sums and, in the steps, its triangular solves); 0:
+	// runtime.GOMAXPROCS(0).
 	Workers int
 	// EstimateOnly skips everything after the optimum: no covariance,
 	// variances, intervals or outlier test. Result then holds X, the
