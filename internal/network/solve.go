@@ -75,7 +75,8 @@ type Options struct {
 	// drops of a network of more than evalChunk links, each a share of the
 	// links (the same solution to the bit on any number; elements' Drop
 	// methods are pure functions of the flow and fluid); 0 or nil options:
-	// runtime.GOMAXPROCS(0).
+	// runtime.GOMAXPROCS(0). A caller that already runs solves side by side
+	// on every core may pass 1 to keep to one goroutine per core.
 	Workers int
 }
 
