@@ -69,12 +69,13 @@ type TrimOptions struct {
 	// when given, only those are trimmed and the others outside the band
 	// are named to be read first. nil: every branch may be trimmed.
 	Read []bool
-	// Replan, when set, takes the pump of the plan re-computed on the fit
-	// of every state and also moves the valves of the branches not read
-	// after setting that the model puts beyond Inner, where it puts
-	// another handwheel mark nearer their target (the pump and header as
-	// now fitted move every branch): a prediction, marked as such
-	// (TrimBranch.Predicted).
+	// Replan, when set, raises the pump to that of the plan re-computed
+	// on the fit of every state where that is more than the centred one,
+	// and also moves the valves of the branches not read after setting
+	// that the model puts beyond Inner (but put inside the tolerance as
+	// left), where it puts another handwheel mark nearer their target
+	// (the pump and header as now fitted move every branch): a
+	// prediction, marked as such (TrimBranch.Predicted).
 	Replan bool
 	// Hedged marks, by model index, branches the plan was made on another
 	// resistance than the fit's (held at design, or hedged, because only
