@@ -76,8 +76,10 @@ type job struct {
 	// each branch, % of target by ID (trim only).
 	planPredicted map[string]float64
 	// curves are the report's two system curves (as found, as planned),
-	// started once the plan is known; nil when the report is not wanted.
+	// started once the plan is known, and drawn its branches' curves,
+	// started beside the plan; nil when the report is not wanted.
 	curves *future[sysCurves]
+	drawn  *future[[]drawn]
 	// stages runs the job's independent stages (nil: one after another).
 	stages *stages
 	// unconfirmed are the branches the plan holds at design until a flow
@@ -168,6 +170,11 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		return nil, &dataError{fmt.Errorf("as-found state: %w", err)}
 	}
 	j.Before = before
+	if opts.report {
+		// The report's branch curves read only the fit and the state as
+		// found: drawn beside the diagnosis and the plan.
+		j.drawn = start(st, func() ([]drawn, error) { return j.branchCurves(), nil })
+	}
 	j.Evidence = evidence(l, j.Cal, before, j.Params)
 	for _, e := range j.Evidence {
 		if e.Held != nil {

@@ -143,56 +143,11 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 			flagsBy[f.Branch] = append(flagsBy[f.Branch], f.Code.String())
 		}
 	}
-	readingsAt := map[string][]int{}
-	for _, ri := range j.Before.State.Readings {
-		w := s.Readings[ri].Where
-		readingsAt[w] = append(readingsAt[w], ri)
+	drawnF := j.drawn
+	if drawnF == nil {
+		drawnF = start(nil, func() ([]drawn, error) { return j.branchCurves(), nil })
 	}
-	// Each branch's curves (design, fitted, the ends of its interval), at
-	// the as-found setting, from zero to beyond both 150 % of design and
-	// every reading, so the readings sit on the drawn range: independent
-	// by branch, so shared out among the workers, each with its own copy
-	// of the fitted multipliers to move one branch's to the ends of its
-	// interval and back (a copy per branch was quadratic: 39 s at 100,000
-	// branches).
-	design := m.Design()
-	type drawn struct {
-		measured                   []report.Point
-		design, fit, fitLow, fitHi []report.XY
-	}
-	drawnBy := make([]drawn, len(m.Branches))
-	workers := parallel.Workers(j.opts.workers)
-	bounds := make([]plant.Params, workers)
-	parallel.For(workers, len(m.Branches), func(w, i int) {
-		b := &m.Branches[i]
-		if b.Riser() {
-			return
-		}
-		d := &drawnBy[i]
-		set := j.Before.State.Settings[i]
-		d.measured = measuredPoints(j, i, readingsAt[b.ID], toFlow, toDiff)
-		span := 1.5 * b.Design
-		for _, p := range d.measured {
-			span = math.Max(span, 1.1*p.X/toFlow)
-		}
-		flows := make([]float64, curvePoints)
-		for k := range flows {
-			flows[k] = span * float64(k) / float64(curvePoints-1)
-		}
-		d.design = xy(m.BranchCurve(design, i, set, flows))
-		d.fit = xy(m.BranchCurve(j.Fitted, i, set, flows))
-		if j.Cal != nil && j.Cal.Branches[i].Fitted {
-			if bounds[w].Resistance == nil {
-				bounds[w] = j.Fitted.Clone()
-			}
-			bw := bounds[w]
-			bw.Resistance[i] = j.Cal.Branches[i].Lo
-			d.fitLow = xy(m.BranchCurve(bw, i, set, flows))
-			bw.Resistance[i] = j.Cal.Branches[i].Hi
-			d.fitHi = xy(m.BranchCurve(bw, i, set, flows))
-			bw.Resistance[i] = j.Fitted.Resistance[i]
-		}
-	})
+	drawnBy, _ := drawnF.get()
 	for i, b := range m.Branches {
 		if b.Riser() {
 			continue
@@ -271,6 +226,69 @@ func (j *job) reportInput(ctx context.Context, generated string) (report.Input, 
 	in.Warnings = reportWarnings(j.L.Problems)
 	in.WarningsWhere = "flowset check on the site lists every one with its file and line"
 	return in, nil
+}
+
+// drawn are one branch's curves in the report: its readings placed on
+// them, and the design, fitted and interval-end curves.
+type drawn struct {
+	measured                   []report.Point
+	design, fit, fitLow, fitHi []report.XY
+}
+
+// branchCurves draws every terminal branch's curves for the report (by
+// model index; nothing for a riser). It reads only the fit and the
+// as-found solution, so runJob starts it beside the plan.
+func (j *job) branchCurves() []drawn {
+	m, s, u := j.L.Model, j.L.Site, j.opts.Units
+	toFlow, toDiff := u.toFlow(1), u.toDiff(1)
+	xy := func(ps []plant.Point) []report.XY { return xyIn(ps, toFlow, toDiff) }
+	readingsAt := map[string][]int{}
+	for _, ri := range j.Before.State.Readings {
+		w := s.Readings[ri].Where
+		readingsAt[w] = append(readingsAt[w], ri)
+	}
+	// Each branch's curves (design, fitted, the ends of its interval), at
+	// the as-found setting, from zero to beyond both 150 % of design and
+	// every reading, so the readings sit on the drawn range: independent
+	// by branch, so shared out among the workers, each with its own copy
+	// of the fitted multipliers to move one branch's to the ends of its
+	// interval and back (a copy per branch was quadratic: 39 s at 100,000
+	// branches).
+	design := m.Design()
+	drawnBy := make([]drawn, len(m.Branches))
+	workers := parallel.Workers(j.opts.workers)
+	bounds := make([]plant.Params, workers)
+	parallel.For(workers, len(m.Branches), func(w, i int) {
+		b := &m.Branches[i]
+		if b.Riser() {
+			return
+		}
+		d := &drawnBy[i]
+		set := j.Before.State.Settings[i]
+		d.measured = measuredPoints(j, i, readingsAt[b.ID], toFlow, toDiff)
+		span := 1.5 * b.Design
+		for _, p := range d.measured {
+			span = math.Max(span, 1.1*p.X/toFlow)
+		}
+		flows := make([]float64, curvePoints)
+		for k := range flows {
+			flows[k] = span * float64(k) / float64(curvePoints-1)
+		}
+		d.design = xy(m.BranchCurve(design, i, set, flows))
+		d.fit = xy(m.BranchCurve(j.Fitted, i, set, flows))
+		if j.Cal != nil && j.Cal.Branches[i].Fitted {
+			if bounds[w].Resistance == nil {
+				bounds[w] = j.Fitted.Clone()
+			}
+			bw := bounds[w]
+			bw.Resistance[i] = j.Cal.Branches[i].Lo
+			d.fitLow = xy(m.BranchCurve(bw, i, set, flows))
+			bw.Resistance[i] = j.Cal.Branches[i].Hi
+			d.fitHi = xy(m.BranchCurve(bw, i, set, flows))
+			bw.Resistance[i] = j.Fitted.Resistance[i]
+		}
+	})
+	return drawnBy
 }
 
 // reportWarnings passes the site check's warnings to the report, each with
