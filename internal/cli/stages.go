@@ -18,8 +18,11 @@ type stages struct {
 	wg      sync.WaitGroup
 }
 
-// newStages runs stages on up to workers goroutines at a time; workers 0
-// means runtime.GOMAXPROCS(0).
+// newStages returns a runner for a job's stages: with workers above one
+// each stage started runs on a goroutine of its own (they are few; the
+// runtime shares the processors among them) and each bounds its loops to
+// workers goroutines; with one, every stage runs where it is started.
+// workers 0 means runtime.GOMAXPROCS(0).
 func newStages(workers int) *stages {
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
