@@ -13,7 +13,8 @@ import (
 	"flowset/internal/site"
 )
 
-// TestWorkersSameResult checks that the plan (its exact band above all)
+// TestWorkersSameResult checks that the plan (its band above all, exact or
+// estimated)
 // and the ranking of readings are the same, every number to the bit, with
 // their independent solves and rows shared among several workers as one
 // after another, on sites with and without a pump curve, ranked in the
@@ -26,10 +27,14 @@ func TestWorkersSameResult(t *testing.T) {
 		header site.Arrangement
 		pump   bool
 		readAt bool
+		// estimated: the band by random probes (flowSDEstimated), not
+		// one sensitivity per parameter
+		estimated bool
 	}{
-		{"direct return with a pump, read after setting", 60, site.DirectReturn, true, false},
-		{"reverse return, read as found", 40, site.ReverseReturn, false, true},
-		{"risers with a pump, read as found", 80, site.DirectReturn, true, true},
+		{"direct return with a pump, read after setting", 60, site.DirectReturn, true, false, false},
+		{"reverse return, read as found", 40, site.ReverseReturn, false, true, false},
+		{"risers with a pump, read as found", 80, site.DirectReturn, true, true, false},
+		{"risers with a pump, the band estimated", 80, site.DirectReturn, true, false, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			rng := rand.New(rand.NewPCG(uint64(tc.n), 5))
@@ -52,7 +57,11 @@ func TestWorkersSameResult(t *testing.T) {
 			plans := map[int]*Plan{}
 			ranks := map[int]*ReadPlan{}
 			for _, workers := range []int{1, 2, 5} {
-				plan, err := Compute(ctx, m, p, &Options{Rounding: Smart, Uncertainty: u, Workers: workers})
+				o := &Options{Rounding: Smart, Uncertainty: u, Workers: workers}
+				if tc.estimated {
+					o.bandExactMax = -1
+				}
+				plan, err := Compute(ctx, m, p, o)
 				if err != nil {
 					t.Fatal(err)
 				}
