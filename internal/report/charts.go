@@ -464,26 +464,7 @@ func flowChart(id string, in *Input) chart {
 	sc.AddSeries("as found", before,
 		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
 		charts.WithItemStyleOpts(opts.ItemStyle{Color: colAsFound, BorderColor: colAsFound, BorderWidth: 2}),
-		charts.WithSeriesOpts(func(s *charts.SingleSeries) {
-			if !finite(lo, hi) {
-				return
-			}
-			s.MarkAreas = &opts.MarkAreas{
-				Data: []any{[]map[string]any{{"name": "tolerance", "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
-				MarkAreaStyle: opts.MarkAreaStyle{
-					ItemStyle: &opts.ItemStyle{Color: "rgba(0,158,115,0.13)"},
-					Label:     &opts.Label{Show: opts.Bool(false)},
-				},
-			}
-			s.MarkLines = &opts.MarkLines{
-				Data: []any{map[string]any{"name": "design", "yAxis": 100}},
-				MarkLineStyle: opts.MarkLineStyle{
-					Symbol:    []string{"none", "none"},
-					LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
-					Label:     &opts.Label{Show: opts.Bool(false)},
-				},
-			}
-		}))
+		toleranceBand(lo, hi, "design"))
 	cu := charts.NewCustom()
 	cu.AddSeries("after plan, 95 % interval", bars,
 		append(custom(renderErrBar, opts.Encode{X: 0, Y: []int{1, 4, 5}}), seriesColor(colGreen))...)
@@ -609,4 +590,30 @@ func valveCharts(idPrefix string, in *Input) []chart {
 		out = append(out, finish(l, id, name, wideW, wideH))
 	}
 	return out
+}
+
+// toleranceBand shades the tolerance band lo..hi (% of the reference) behind
+// a flow chart and draws the reference itself at 100 % as a dotted line named
+// ref; nothing is drawn when either edge is not finite.
+func toleranceBand(lo, hi float64, ref string) charts.SeriesOpts {
+	return charts.WithSeriesOpts(func(s *charts.SingleSeries) {
+		if !finite(lo, hi) {
+			return
+		}
+		s.MarkAreas = &opts.MarkAreas{
+			Data: []any{[]map[string]any{{"name": "tolerance", "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
+			MarkAreaStyle: opts.MarkAreaStyle{
+				ItemStyle: &opts.ItemStyle{Color: "rgba(0,158,115,0.13)"},
+				Label:     &opts.Label{Show: opts.Bool(false)},
+			},
+		}
+		s.MarkLines = &opts.MarkLines{
+			Data: []any{map[string]any{"name": ref, "yAxis": 100}},
+			MarkLineStyle: opts.MarkLineStyle{
+				Symbol:    []string{"none", "none"},
+				LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
+				Label:     &opts.Label{Show: opts.Bool(false)},
+			},
+		}
+	})
 }

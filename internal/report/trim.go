@@ -166,26 +166,7 @@ func trimChart(id string, in *Input, pick []int) chart {
 	sc.AddSeries("as found", found,
 		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "emptyCircle", SymbolSize: 10}),
 		charts.WithItemStyleOpts(opts.ItemStyle{Color: colAsFound, BorderColor: colAsFound, BorderWidth: 2}),
-		charts.WithSeriesOpts(func(s *charts.SingleSeries) {
-			if !finite(lo, hi) {
-				return
-			}
-			s.MarkAreas = &opts.MarkAreas{
-				Data: []any{[]map[string]any{{"name": "tolerance", "yAxis": sig(lo)}, {"yAxis": sig(hi)}}},
-				MarkAreaStyle: opts.MarkAreaStyle{
-					ItemStyle: &opts.ItemStyle{Color: "rgba(0,158,115,0.13)"},
-					Label:     &opts.Label{Show: opts.Bool(false)},
-				},
-			}
-			s.MarkLines = &opts.MarkLines{
-				Data: []any{map[string]any{"name": "target", "yAxis": 100}},
-				MarkLineStyle: opts.MarkLineStyle{
-					Symbol:    []string{"none", "none"},
-					LineStyle: &opts.LineStyle{Color: colBlack, Width: 1, Type: "dotted"},
-					Label:     &opts.Label{Show: opts.Bool(false)},
-				},
-			}
-		}))
+		toleranceBand(lo, hi, "target"))
 	sp := charts.NewScatter()
 	sp.AddSeries("predicted by the plan", pred,
 		charts.WithScatterChartOpts(opts.ScatterChart{Symbol: "diamond", SymbolSize: 11}),
