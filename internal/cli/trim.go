@@ -419,19 +419,26 @@ func (j *job) trimOut(generated string) trimJSON {
 		out.Pump.LeftDiff = num(tp.PumpLeft)
 	}
 	for _, b := range tp.Branches {
-		found := math.NaN()
-		if j.Before != nil {
-			found = 100 * j.Before.Flow(b.Index) / b.Target
-		}
-		pred, ok := j.planPredicted[b.ID]
-		if !ok {
-			pred = math.NaN()
-		}
+		found, pred := j.foundPredicted(b)
 		out.Branches = append(out.Branches, trimBranchJSON{ID: b.ID, Valve: b.Valve, Unit: b.Unit, Left: num(b.Left), New: num(b.New), Trimmed: b.Trimmed, OnModel: b.Predicted,
 			Target: num(b.Target), Found: num(found), Predicted: num(pred), LeftPct: num(b.LeftPercent), LeftLow: num(b.LeftLow), LeftHigh: num(b.LeftHigh),
 			Verdict: b.Verdict.String(), Read: j.readLeft[b.ID], After: num(b.AfterPercent), AfterLow: num(b.AfterLow), AfterHigh: num(b.AfterHigh), Note: b.Note})
 	}
 	return out
+}
+
+// foundPredicted returns branch b's flow as found and as the plan predicted
+// it, in % of its target; NaN where the round does not know it.
+func (j *job) foundPredicted(b balance.TrimBranch) (found, pred float64) {
+	found = math.NaN()
+	if j.Before != nil {
+		found = 100 * j.Before.Flow(b.Index) / b.Target
+	}
+	pred, ok := j.planPredicted[b.ID]
+	if !ok {
+		pred = math.NaN()
+	}
+	return found, pred
 }
 
 // padRows returns rows with k blank cells added to each (write-in columns).
@@ -461,14 +468,7 @@ func (j *job) trimReport(u display) *report.Trim {
 	rt.Trims = report.Table{Columns: []string{"#", "Branch", "As left (% of target)", "Setting as left", "Trim to", "Then (% of target)", "Why"},
 		WriteIn: []string{"Done (tick)", "Initials"}, File: "trim.csv"}
 	for _, b := range tp.Branches {
-		found := math.NaN()
-		if j.Before != nil {
-			found = 100 * j.Before.Flow(b.Index) / b.Target
-		}
-		pred, ok := j.planPredicted[b.ID]
-		if !ok {
-			pred = math.NaN()
-		}
+		found, pred := j.foundPredicted(b)
 		note := b.Note
 		if b.Verdict == balance.Undecided && !j.readLeft[b.ID] && note == "" && !b.Trimmed {
 			note = "not read after setting and its band leaves the tolerance: read it"
