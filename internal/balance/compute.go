@@ -255,7 +255,7 @@ func (pl *planner) solve(ctx context.Context, settings []float64, x float64) (*p
 		if err != nil {
 			return nil, fmt.Errorf("%w: %w", ErrSolve, err)
 		}
-		b, err := network.Build(l, src, m.Fluid)
+		b, err := m.Build(l, src)
 		if err != nil {
 			return nil, fmt.Errorf("%w: %w", ErrSolve, err)
 		}

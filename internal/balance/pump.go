@@ -267,7 +267,7 @@ func (pl *planner) flatOut(ctx context.Context, o *PumpOption, set hydraulics.Pu
 	if err != nil {
 		return
 	}
-	b, err := network.Build(l, network.Source{Pump: set.AtSpeed(m.MaxSpeed()), Lift: pl.lift}, m.Fluid)
+	b, err := m.Build(l, network.Source{Pump: set.AtSpeed(m.MaxSpeed()), Lift: pl.lift})
 	if err != nil {
 		return
 	}

@@ -969,7 +969,7 @@ func newStateNet(m *plant.Model, st plant.State, pp plant.Params) (*stateNet, er
 	if err != nil {
 		return nil, fmt.Errorf("state %q: %w", st.Label, err)
 	}
-	built, err := network.Build(l, m.Source(pp, st), m.Fluid)
+	built, err := m.Build(l, m.Source(pp, st))
 	if err != nil {
 		return nil, fmt.Errorf("state %q: %w", st.Label, err)
 	}

@@ -8,6 +8,8 @@ import (
 	"context"
 	"fmt"
 	"io"
+	"os"
+	"runtime/pprof"
 	"strings"
 	"time"
 
@@ -47,7 +49,37 @@ func usagef(format string, a ...any) error { return &usageError{fmt.Errorf(forma
 // Run executes flowset with args (without the program name) and returns the
 // process exit code.
 func Run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	if path := os.Getenv(cpuProfileEnv); path != "" {
+		if stopProfile, err := startCPUProfile(path); err != nil {
+			fmt.Fprintf(stderr, "flowset: %s: %v\n", cpuProfileEnv, err)
+		} else {
+			defer stopProfile()
+		}
+	}
 	return RunIO(ctx, args, &IO{In: stdin, Out: stdout, Err: stderr, Terminal: isTerminal(stderr)})
+}
+
+// cpuProfileEnv names the environment variable that, when set to a file
+// path, makes Run write a CPU profile of the whole process (start-up, sheets,
+// fit, stages, files) there: a hidden tool for developers, since the
+// benchmarks see only the job in process (DEVELOPERS.md, Benchmarks).
+const cpuProfileEnv = "FLOWSET_CPUPROFILE"
+
+// startCPUProfile starts a CPU profile into the file at path and returns the
+// function that stops it and closes the file.
+func startCPUProfile(path string) (func(), error) {
+	f, err := os.Create(path)
+	if err != nil {
+		return nil, err
+	}
+	if err := pprof.StartCPUProfile(f); err != nil {
+		f.Close()
+		return nil, err
+	}
+	return func() {
+		pprof.StopCPUProfile()
+		f.Close()
+	}, nil
 }
 
 // RunIO is Run with the streams and clock given in ios. It never panics:

@@ -66,9 +66,10 @@ type Network struct {
 	linkIndex map[string]int
 	addErr    error // first error found by AddNode/AddLink, reported by Solve
 
-	mu   sync.Mutex
-	plan *plan      // cached ordering; nil after a structural change
-	ws   *workspace // Solve's scratch memory for plan, when no Solve holds it
+	mu        sync.Mutex
+	plan      *plan      // cached ordering; nil after a structural change
+	ws        *workspace // Solve's scratch memory for plan, when no Solve holds it
+	orderings *Orderings // other networks' orderings to take one from, or nil
 }
 
 // New returns an empty network carrying fluid f.

@@ -3,6 +3,7 @@ package network
 import (
 	"fmt"
 	"slices"
+	"sync"
 )
 
 // maxBandFloats bounds the memory of the banded node matrix (8 bytes each):
@@ -33,6 +34,14 @@ func (n *Network) prepare() (*plan, error) {
 	if n.plan != nil {
 		return n.plan, nil
 	}
+	if n.addErr == nil {
+		// A network of the same nodes and links passed the same checks
+		// and ordered them the same way.
+		if pl := n.orderings.find(n); pl != nil {
+			n.plan = pl
+			return pl, nil
+		}
+	}
 	if err := n.validateTopology(); err != nil {
 		return nil, err
 	}
@@ -41,7 +50,82 @@ func (n *Network) prepare() (*plan, error) {
 		return nil, err
 	}
 	n.plan = pl
+	n.orderings.add(pl)
 	return pl, nil
+}
+
+// Orderings keeps the orderings of the node matrix (the reverse
+// Cuthill-McKee or minimum-degree order and the sparse factor's structure)
+// worked out for networks already solved, so that another network of the
+// same nodes and links - the same ladder built again at other settings,
+// multipliers or source pressure - takes one instead of ordering its nodes
+// again. An ordering depends only on which nodes are held and which nodes
+// each link joins, so the one taken is the one the network would work out.
+// On a building of a thousand branches a job builds its main network a
+// dozen times. Safe for concurrent use; the zero value is empty.
+type Orderings struct {
+	mu    sync.Mutex
+	plans []*plan
+}
+
+// maxOrderings bounds the orderings an Orderings keeps (the last ones
+// added): a job's networks are of a few shapes.
+const maxOrderings = 8
+
+// ShareOrderings makes n take its ordering from o when o holds one for n's
+// nodes and links, and add the one it works out otherwise. A nil o shares
+// nothing.
+func (n *Network) ShareOrderings(o *Orderings) {
+	n.mu.Lock()
+	n.orderings = o
+	n.mu.Unlock()
+}
+
+// find returns the ordering o holds for n's topology, or nil.
+func (o *Orderings) find(n *Network) *plan {
+	if o == nil {
+		return nil
+	}
+	o.mu.Lock()
+	defer o.mu.Unlock()
+	for _, pl := range o.plans {
+		if pl.fits(n) {
+			return pl
+		}
+	}
+	return nil
+}
+
+// add keeps pl, dropping the oldest beyond maxOrderings.
+func (o *Orderings) add(pl *plan) {
+	if o == nil {
+		return
+	}
+	o.mu.Lock()
+	defer o.mu.Unlock()
+	if len(o.plans) == maxOrderings {
+		o.plans = append(o.plans[:0], o.plans[1:]...)
+	}
+	o.plans = append(o.plans, pl)
+}
+
+// fits reports whether pl orders n: the same nodes, held the same
+// (a held node has no position), and links joining the same nodes.
+func (pl *plan) fits(n *Network) bool {
+	if len(pl.pos) != len(n.nodeID) || len(pl.from) != len(n.links) {
+		return false
+	}
+	for i, held := range n.fixed {
+		if held != (pl.pos[i] < 0) {
+			return false
+		}
+	}
+	for i, l := range n.links {
+		if pl.from[i] != l.from || pl.to[i] != l.to {
+			return false
+		}
+	}
+	return true
 }
 
 // newPlan orders the free nodes of a valid topology: reverse Cuthill-McKee

@@ -59,7 +59,7 @@ func (m *Model) SystemCurve(ctx context.Context, p Params, settings []float64, d
 			continue
 		}
 		if b == nil {
-			b, err = network.Build(l, network.Source{Differential: d, Lift: lift}, m.Fluid)
+			b, err = m.Build(l, network.Source{Differential: d, Lift: lift})
 			if err != nil {
 				return nil, err
 			}

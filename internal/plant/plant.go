@@ -48,6 +48,23 @@ type Model struct {
 
 	index map[string]int
 	top   []int // branches on the main headers, in take-off order
+	// orderings are the node orderings of the networks built from the
+	// model so far, for the next network of the same shape (see Build).
+	orderings *network.Orderings
+}
+
+// Build builds the network of ladder l (one of the model's) with source src
+// in the model's fluid. It shares the orderings of the node matrix with
+// the model's other networks (network.Orderings): a job solves a dozen
+// networks of the same nodes and links, and on a large building ordering
+// them costs as much as a solve.
+func (m *Model) Build(l network.Ladder, src network.Source) (*network.Built, error) {
+	b, err := network.Build(l, src, m.Fluid)
+	if err != nil {
+		return nil, err
+	}
+	b.Net.ShareOrderings(m.orderings)
+	return b, nil
 }
 
 // Branch is one branch of the model.
@@ -185,7 +202,7 @@ func New(s *site.Site) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Model{Site: s, Fluid: fl, index: map[string]int{}}
+	m := &Model{Site: s, Fluid: fl, index: map[string]int{}, orderings: &network.Orderings{}}
 	switch s.Header {
 	case site.DirectReturn:
 		m.Arrangement = network.DirectReturn
@@ -1153,7 +1170,7 @@ func (m *Model) Span(ctx context.Context, i int, p Params, st State) (*network.B
 	if br.ControlBelow {
 		src.Main = nil
 	}
-	b, err := network.Build(*br.Sub, src, m.Fluid)
+	b, err := m.Build(*br.Sub, src)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -1274,7 +1291,7 @@ func (m *Model) Solve(ctx context.Context, p Params, st State) (*Solved, error) 
 	if err != nil {
 		return nil, err
 	}
-	built, err := network.Build(l, m.Source(p, st), m.Fluid)
+	built, err := m.Build(l, m.Source(p, st))
 	if err != nil {
 		return nil, err
 	}

@@ -1,0 +1,81 @@
+package network
+
+import (
+	"math"
+	"testing"
+)
+
+// TestOrderingsShared builds networks of one main of risers at other
+// resistances and source pressures, and one of another shape, sharing one
+// Orderings: the networks of the same nodes and links take the first one's
+// ordering, the other works out its own, and every solve is the same to the
+// bit as on a network ordering its nodes itself (no outside source: an
+// ordering is a function of the topology alone, checked here on its
+// results).
+func TestOrderingsShared(t *testing.T) {
+	var o Orderings
+	for _, c := range []struct {
+		name  string
+		nr    int
+		seed  uint64
+		diff  float64
+		taken bool
+	}{
+		{"first", 12, 3, 200e3, false},
+		{"other resistances", 12, 4, 200e3, true},
+		{"other source", 12, 5, 90e3, true},
+		{"another shape", 13, 3, 200e3, false},
+		{"the first shape again", 12, 6, 150e3, true},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			l := risersLadder(c.nr, 30, c.seed)
+			bs, err := Build(l, Source{Differential: c.diff}, water20)
+			if err != nil {
+				t.Fatal(err)
+			}
+			before := len(o.plans)
+			bs.Net.ShareOrderings(&o)
+			shared := mustSolve(t, bs.Net, nil)
+			if taken := len(o.plans) == before; taken != c.taken {
+				t.Errorf("ordering taken from the others: %v, want %v (%d kept, %d before)", taken, c.taken, len(o.plans), before)
+			}
+			bo, err := Build(l, Source{Differential: c.diff}, water20)
+			if err != nil {
+				t.Fatal(err)
+			}
+			own := mustSolve(t, bo.Net, nil)
+			if shared.Iterations != own.Iterations {
+				t.Errorf("iterations %d shared, %d own", shared.Iterations, own.Iterations)
+			}
+			for i := range own.Flow {
+				if math.Float64bits(shared.Flow[i]) != math.Float64bits(own.Flow[i]) {
+					t.Fatalf("link %d: flow %v shared, %v own", i, shared.Flow[i], own.Flow[i])
+				}
+			}
+			for i := range own.Pressure {
+				if math.Float64bits(shared.Pressure[i]) != math.Float64bits(own.Pressure[i]) {
+					t.Fatalf("node %d: pressure %v shared, %v own", i, shared.Pressure[i], own.Pressure[i])
+				}
+			}
+		})
+	}
+}
+
+// TestOrderingsBounded keeps at most maxOrderings, the last ones.
+func TestOrderingsBounded(t *testing.T) {
+	var o Orderings
+	for nr := 2; nr < 2+maxOrderings+3; nr++ {
+		b, err := Build(risersLadder(nr, 3, 1), Source{Differential: 100e3}, water20)
+		if err != nil {
+			t.Fatal(err)
+		}
+		b.Net.ShareOrderings(&o)
+		mustSolve(t, b.Net, nil)
+	}
+	if len(o.plans) != maxOrderings {
+		t.Fatalf("%d orderings kept, want %d", len(o.plans), maxOrderings)
+	}
+	if got, want := len(o.plans[maxOrderings-1].pos), len(o.plans[maxOrderings-2].pos); got <= want {
+		t.Errorf("the last ordering kept has %d nodes, the one before %d: not the last added", got, want)
+	}
+}
