@@ -356,8 +356,6 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	// Which branches may be the index: draws of the chain needs.
 	w := make([]float64, len(need))
 	if len(need) > 0 {
-		var cn mat.SymDense
-		cn.SymOuterK(1, a.Slice(rowNeed(0), nr, 0, len(cols)))
 		lnc := make([]float64, len(need))
 		for k, i := range need {
 			lnc[k] = math.Log(max(plan.Needs[i].Chain, 1e-300))
