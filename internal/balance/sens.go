@@ -90,47 +90,72 @@ func sensitivities(m *plant.Model, p plant.Params, u *Uncertainty, sol *plant.So
 		l := sol.Built.PumpLink
 		all = append(all, sens{uparam{PumpParam, -1, u.LnPumpHead}, []int{l}, []float64{sol.Sol.Drop[l] - m.Lift()}})
 	}
-	workers = max(1, min(parallel.Workers(workers), len(all)))
+	// The solves go four at a time (network.Solution.SensitivitiesAt,
+	// each the same to the bit as one alone), flow changes only at the
+	// branches' links, the only ones flowDelta reads.
+	const group = 4
+	var at []int
+	for _, l := range link {
+		if l >= 0 {
+			at = append(at, l)
+		}
+	}
+	tasks := (len(all) + group - 1) / group
+	workers = max(1, min(parallel.Workers(workers), tasks))
 	// Scratch per worker, and a chunk's results: a few columns a worker,
 	// so the memory stays a small multiple of the branches.
-	type scratch struct{ dh, dq, nodes []float64 }
+	type scratch struct{ dh, dq, nodes [][]float64 }
 	ws := make([]scratch, workers)
 	for w := range ws {
-		ws[w] = scratch{make([]float64, nl), make([]float64, nl), make([]float64, sol.Built.Net.NumNodes())}
+		for range group {
+			ws[w].dh = append(ws[w].dh, make([]float64, nl))
+			ws[w].dq = append(ws[w].dq, make([]float64, nl))
+			ws[w].nodes = append(ws[w].nodes, make([]float64, sol.Built.Net.NumNodes()))
+		}
 	}
-	chunk := 1
+	chunk := group
 	if workers > 1 {
 		chunk = 16 * workers
 	}
 	out := make([][]float64, chunk)
-	errs := make([]error, chunk)
+	errs := make([]error, chunk/group)
 	for k := range out {
 		out[k] = make([]float64, n)
 	}
-	one := func(w *scratch, s *sens, dlnq []float64) error {
-		for k, l := range s.links {
-			w.dh[l] = s.dh[k]
+	// some works out the sensitivities of ss into dlnq, one each.
+	some := func(w *scratch, ss []sens, dlnq [][]float64) error {
+		k := len(ss)
+		dh, dq, nodes := w.dh[:k], w.dq[:k], w.nodes[:k]
+		for j := range ss {
+			for i, l := range ss[j].links {
+				dh[j][l] = ss[j].dh[i]
+			}
 		}
-		err := sol.Sol.SensitivityFlows(w.dh, w.dq, w.nodes)
-		for _, l := range s.links {
-			w.dh[l] = 0
+		err := sol.Sol.SensitivitiesAt(dh, dq, nodes, at)
+		for j := range ss {
+			for _, l := range ss[j].links {
+				dh[j][l] = 0
+			}
 		}
 		if err != nil {
 			return fmt.Errorf("uncertainty band: %w: %w", err, ErrSolve)
 		}
-		for i := range n {
-			dlnq[i] = flowDelta(m, link, i, w.dq) / flow[i]
+		for j := range ss {
+			for i := range n {
+				dlnq[j][i] = flowDelta(m, link, i, dq[j]) / flow[i]
+			}
 		}
 		return nil
 	}
 	for lo := 0; lo < len(all); lo += chunk {
 		hi := min(lo+chunk, len(all))
-		parallel.For(workers, hi-lo, func(w, k int) {
-			errs[k] = one(&ws[w], &all[lo+k], out[k])
+		parallel.For(workers, (hi-lo+group-1)/group, func(w, g int) {
+			a, b := lo+g*group, min(lo+(g+1)*group, hi)
+			errs[g] = some(&ws[w], all[a:b], out[a-lo:b-lo])
 		})
 		for k := range hi - lo {
-			if errs[k] != nil {
-				return errs[k]
+			if err := errs[k/group]; err != nil {
+				return err
 			}
 			if err := f(all[lo+k].par, out[k]); err != nil {
 				return err

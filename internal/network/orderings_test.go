@@ -79,3 +79,65 @@ func TestOrderingsBounded(t *testing.T) {
 		t.Errorf("the last ordering kept has %d nodes, the one before %d: not the last added", got, want)
 	}
 }
+
+// TestSensitivitiesAtSameBits checks SensitivitiesAt against
+// SensitivityFlows, one right-hand side at a time, to the bit, on a main of
+// long risers (sparse factor, four solves side by side and a remainder)
+// and on a small ladder (band factor); links not asked for are left as
+// they were. No outside source: the same equations by the same operations
+// (SensitivityFlows is checked against finite differences elsewhere).
+func TestSensitivitiesAtSameBits(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		nr, nt int
+		sparse bool
+	}{{"risers, sparse", 12, 30, true}, {"small, band", 3, 4, false}} {
+		t.Run(c.name, func(t *testing.T) {
+			b, err := Build(risersLadder(c.nr, c.nt, 9), Source{Differential: 150e3}, water20)
+			if err != nil {
+				t.Fatal(err)
+			}
+			sol := mustSolve(t, b.Net, nil)
+			if got := sol.pl.sp != nil; got != c.sparse {
+				t.Fatalf("sparse factor %v, want %v", got, c.sparse)
+			}
+			nl, nn := b.Net.NumLinks(), b.Net.NumNodes()
+			var links []int
+			for l := 0; l < nl; l += 3 {
+				links = append(links, l)
+			}
+			for _, k := range []int{1, 4, 7, 9} {
+				dh, dq, scr := make([][]float64, k), make([][]float64, k), make([][]float64, k)
+				for j := range k {
+					dh[j], dq[j], scr[j] = make([]float64, nl), make([]float64, nl), make([]float64, nn)
+					dh[j][(j*37)%nl] = 1e3 * float64(j+1)
+					dh[j][(j*101+5)%nl] = -250
+					for l := range dq[j] {
+						dq[j][l] = 42
+					}
+				}
+				if err := sol.SensitivitiesAt(dh, dq, scr, links); err != nil {
+					t.Fatal(err)
+				}
+				asked := map[int]bool{}
+				for _, l := range links {
+					asked[l] = true
+				}
+				for j := range k {
+					want := make([]float64, nl)
+					if err := sol.SensitivityFlows(dh[j], want, make([]float64, nn)); err != nil {
+						t.Fatal(err)
+					}
+					for l := range nl {
+						switch {
+						case asked[l] && math.Float64bits(dq[j][l]) != math.Float64bits(want[l]):
+							t.Fatalf("%d at once, right-hand side %d, link %d: %v, one alone %v", k, j, l, dq[j][l], want[l])
+						case !asked[l] && dq[j][l] != 42:
+							t.Fatalf("%d at once, right-hand side %d: link %d not asked for was written", k, j, l)
+						}
+					}
+				}
+			}
+		})
+	}
+}

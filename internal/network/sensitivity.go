@@ -90,6 +90,65 @@ func (s *Solution) SensitivityFlows(dh, dq, scratch []float64) error {
 	return nil
 }
 
+// SensitivitiesAt is SensitivityFlows for several drop changes at once,
+// each written only at the given links: dq[k][l] for every l in links is
+// SensitivityFlows(dh[k], ...)'s to the bit, the rest of dq[k] is left as it
+// was, and scratch[k] (at least one per unknown pressure) holds the
+// pressure changes as there. On a sparse factor four right-hand sides are
+// solved side by side (see sparseFactor.solve4); for callers that take one
+// sensitivity per parameter and read a few links of each.
+func (s *Solution) SensitivitiesAt(dh, dq, scratch [][]float64, links []int) error {
+	nl := len(s.d)
+	pl := s.pl
+	if len(dq) != len(dh) || len(scratch) != len(dh) {
+		return fmt.Errorf("sensitivity: %d drop changes, %d flow changes and %d scratch: %w", len(dh), len(dq), len(scratch), ErrInput)
+	}
+	for k := range dh {
+		if len(dh[k]) != nl || len(dq[k]) != nl {
+			return fmt.Errorf("sensitivity: %d drop changes and %d flow changes for %d links: %w", len(dh[k]), len(dq[k]), nl, ErrInput)
+		}
+		if len(scratch[k]) < pl.nFree {
+			return fmt.Errorf("sensitivity: scratch of %d for %d unknown pressures: %w", len(scratch[k]), pl.nFree, ErrInput)
+		}
+		// r = -A21 D^-1 dh, as SensitivityFlows.
+		r := scratch[k][:pl.nFree]
+		clear(r)
+		for i, v := range dh[k] {
+			if v == 0 {
+				continue
+			}
+			if !finite(v) {
+				return fmt.Errorf("sensitivity: drop change %d is %g: %w", i, v, ErrElement)
+			}
+			t := v / s.d[i]
+			if a := pl.pa[i]; a >= 0 {
+				r[a] += t
+			}
+			if b := pl.pb[i]; b >= 0 {
+				r[b] -= t
+			}
+		}
+	}
+	if pl.nFree > 0 {
+		k := 0
+		if sf, ok := s.chol.(*sparseFactor); ok {
+			for ; k+4 <= len(dh); k += 4 {
+				sf.solve4(scratch[k], scratch[k+1], scratch[k+2], scratch[k+3])
+			}
+		}
+		for ; k < len(dh); k++ {
+			s.chol.solve(scratch[k][:pl.nFree])
+		}
+	}
+	for k := range dh {
+		x, d, q := scratch[k][:pl.nFree], dh[k], dq[k]
+		for _, i := range links {
+			q[i] = -(d[i] + at(x, pl.pb[i]) - at(x, pl.pa[i])) / s.d[i]
+		}
+	}
+	return nil
+}
+
 // OwnSensitivities writes into own, for every link i, ∂q_i/∂h_i: the
 // first-order change of link i's flow per unit increase of its own drop,
 // the diagonal of Sensitivity's response, for all links at the cost of one
