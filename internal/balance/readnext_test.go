@@ -2,6 +2,7 @@ package balance
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -103,4 +104,82 @@ func cmpF(a, b float64) int {
 		return 1
 	}
 	return 0
+}
+
+// TestRankMostUncertainFirst: after setting, the branch whose flow as left
+// is the most uncertain is read first, whatever its need (here the two
+// branches needing the least, far from being the index, one with twice the
+// other's spread of flow, every other branch known to 0.005 in ln
+// resistance). Reading a branch removes its departure but what the reading
+// leaves unknown, so the largest departure expected goes first (the Kalman
+// update's variance reduction; common practice, no source).
+func TestRankMostUncertainFirst(t *testing.T) {
+	ctx := context.Background()
+	for _, tc := range []struct {
+		name   string
+		seed   uint64
+		header site.Arrangement
+	}{
+		{"direct return", 13, site.DirectReturn},
+		{"reverse return", 17, site.ReverseReturn},
+		{"another direct-return plant", 29, site.DirectReturn},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			rng := rand.New(rand.NewPCG(tc.seed, 1))
+			m := withPump(t, randomSite(rng, genOpts{n: 12, header: tc.header}))
+			n := len(m.Branches)
+			p := m.Design()
+			base := mustCompute(t, m, p, &Options{Rounding: Smart})
+			order := make([]int, n)
+			for i := range order {
+				order[i] = i
+			}
+			slices.SortFunc(order, func(a, b int) int {
+				return cmpF(base.Needs[a].Chain, base.Needs[b].Chain)
+			})
+			// The two branches needing the least, the one whose flow is
+			// the more uncertain as left with twice the other's spread;
+			// every other branch known to 0.005 in ln resistance.
+			most, next := order[0], order[1]
+			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
+			for i := range u.LnResistance {
+				u.LnResistance[i] = 0.005
+			}
+			u.LnResistance[most], u.LnResistance[next] = 0.12, 0.12
+			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
+			sol, err := m.Solve(ctx, p, plan.State())
+			if err != nil {
+				t.Fatal(err)
+			}
+			sd, err := flowSD(m, p, u, sol)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if sd[next] > sd[most] {
+				most, next = next, most
+			}
+			u.LnResistance[next] *= sd[most] / sd[next] / 2
+			if sd, err = flowSD(m, p, u, sol); err != nil {
+				t.Fatal(err)
+			}
+			if !(sd[most] > 1.5*sd[next]) {
+				t.Fatalf("flow sd %g of %s, %g of %s: the construction wants the first twice the second", sd[most], m.Branches[most].ID, sd[next], m.Branches[next].ID)
+			}
+			rp, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u})
+			if err != nil {
+				t.Fatal(err)
+			}
+			first := slices.IndexFunc(rp.Readings, func(r Candidate) bool { return r.Index >= 0 })
+			if first < 0 {
+				t.Fatalf("no branch ranked: %+v", rp)
+			}
+			var lines []string
+			for _, r := range rp.Readings {
+				lines = append(lines, fmt.Sprintf("%s %s: %s", r.Where, r.How, r.Settles))
+			}
+			if rp.Readings[first].Index != most {
+				t.Errorf("first branch read %v, want %s (flow sd %.3f; %s %.3f):\n%s", rp.Readings[first].Where, m.Branches[most].ID, sd[most], m.Branches[next].ID, sd[next], strings.Join(lines, "\n"))
+			}
+		})
+	}
 }
