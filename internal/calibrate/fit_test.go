@@ -255,6 +255,39 @@ func TestFitJacobian(t *testing.T) {
 			if d := maxVecDiff(jtw, wantT.RawVector().Data); d > 1e-9*mat.Norm(&wantT, math.Inf(1)) {
 				t.Errorf("MulTransVec differs from Jᵀ w by %g", d)
 			}
+			// The batched products (MulVecs, MulTransVecs) are each
+			// vector's own to the bit, for batches of 1 to 6 (the network
+			// solves four at a time and the rest).
+			for nb := 1; nb <= 6; nb++ {
+				vs, ws := make([][]float64, nb), make([][]float64, nb)
+				jvs, jtws := make([][]float64, nb), make([][]float64, nb)
+				for k := range nb {
+					vs[k], ws[k] = make([]float64, n), make([]float64, mo)
+					for j := range vs[k] {
+						vs[k][j] = rng.NormFloat64()
+					}
+					for i := range ws[k] {
+						ws[k][i] = rng.NormFloat64()
+					}
+					jvs[k], jtws[k] = make([]float64, mo), make([]float64, n)
+				}
+				op.MulVecs(jvs, vs)
+				op.MulTransVecs(jtws, ws)
+				for k := range nb {
+					op.MulVec(jv, vs[k])
+					op.MulTransVec(jtw, ws[k])
+					for i := range jv {
+						if math.Float64bits(jv[i]) != math.Float64bits(jvs[k][i]) {
+							t.Fatalf("batch of %d, vector %d: (J v)[%d] = %v batched, %v alone", nb, k, i, jvs[k][i], jv[i])
+						}
+					}
+					for j := range jtw {
+						if math.Float64bits(jtw[j]) != math.Float64bits(jtws[k][j]) {
+							t.Fatalf("batch of %d, vector %d: (Jᵀ w)[%d] = %v batched, %v alone", nb, k, j, jtws[k][j], jtw[j])
+						}
+					}
+				}
+			}
 		})
 	}
 }

@@ -109,6 +109,9 @@ type stateNet struct {
 	// outL, outN and outX receive the products' sensitivities (links,
 	// nodes, unknown pressures), so a CG iteration allocates nothing.
 	outL, outN, outX []float64
+	// multi holds the scratch and result vectors of MulVecs and
+	// MulTransVecs, one set per vector of a batch (see stateNet.set).
+	multi []vecSet
 	// kvGain is d(ln KvScale_i)/dx_j of each branch's valve parameter.
 	kvGain []float64
 	local  *localNet // for ApproxJacobian, built on first use
@@ -138,6 +141,27 @@ func (sn *stateNet) outputs() (links, nodes, x []float64) {
 		sn.outL, sn.outN, sn.outX = make([]float64, nl), make([]float64, nn), make([]float64, nn)
 	}
 	return sn.outL, sn.outN, sn.outX
+}
+
+// vecSet is one vector's scratch (bufL, bufN) and results (outL, outN,
+// outX) in a batch of products, as stateNet keeps for one.
+type vecSet struct{ bufL, bufN, outL, outN, outX []float64 }
+
+// sets returns k sets of sn's batch vectors, the scratch ones cleared.
+func (sn *stateNet) sets(k int) []vecSet {
+	nl, nn := len(sn.sol.Flow), len(sn.sol.Pressure)
+	for len(sn.multi) < k {
+		sn.multi = append(sn.multi, vecSet{})
+	}
+	for q := range k {
+		v := &sn.multi[q]
+		if len(v.bufL) != nl || len(v.bufN) != nn {
+			*v = vecSet{make([]float64, nl), make([]float64, nn), make([]float64, nl), make([]float64, nn), make([]float64, nn)}
+		}
+		clear(v.bufL)
+		clear(v.bufN)
+	}
+	return sn.multi[:k]
 }
 
 // problem is the calibration least-squares problem for the engine.
@@ -940,6 +964,107 @@ func (p opProblem) MulTransVec(dst, w []float64) {
 				s += g[t.i] * t.c
 			}
 			dst[j] += s
+		}
+	}
+}
+
+// MulVecs implements lsq.MultiOperator: each dst[k] = J v[k] by MulVec's
+// operations, the network solves of the batch side by side
+// (network.Solution.SensitivityIntoN).
+func (p opProblem) MulVecs(dst, v [][]float64) {
+	for k := range dst {
+		clear(dst[k])
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 || sn.sol == nil {
+			continue
+		}
+		vs := sn.sets(len(v))
+		dh, dq, dp, x := make([][]float64, len(v)), make([][]float64, len(v)), make([][]float64, len(v)), make([][]float64, len(v))
+		for k, vk := range v {
+			dh[k], dq[k], dp[k], x[k] = vs[k].bufL, vs[k].outL, vs[k].outN, vs[k].outX
+			for j, vj := range vk {
+				if vj == 0 {
+					continue
+				}
+				for _, t := range sn.dh[j] {
+					dh[k][t.i] += vj * t.c
+				}
+			}
+		}
+		if err := sn.sol.SensitivityIntoN(dh, dq, dp, x); err != nil {
+			// A non-finite v, which the engine rules out: each product
+			// alone, as MulVec gives it.
+			for k := range dst {
+				p.MulVec(dst[k], v[k])
+			}
+			return
+		}
+		for k := range v {
+			dq, dp, vk, dk := dq[k], dp[k], v[k], dst[k]
+			for kk, oi := range sn.obs {
+				ln := &sn.lin[kk]
+				var s float64
+				for _, t := range ln.q {
+					s += t.c * dq[t.i]
+				}
+				for _, t := range ln.p {
+					s += t.c * dp[t.i]
+				}
+				for _, t := range ln.x {
+					s += t.c * vk[t.i]
+				}
+				dk[oi] = s / p.obs[oi].sigma
+			}
+		}
+	}
+}
+
+// MulTransVecs implements lsq.MultiOperator: each dst[k] = Jᵀ w[k] by
+// MulTransVec's operations, the network solves of the batch side by side
+// (network.Solution.SensitivityTIntoN).
+func (p opProblem) MulTransVecs(dst, w [][]float64) {
+	for k := range dst {
+		clear(dst[k])
+	}
+	for _, sn := range p.states {
+		if len(sn.obs) == 0 || sn.sol == nil {
+			continue
+		}
+		vs := sn.sets(len(w))
+		wq, wp, g, x := make([][]float64, len(w)), make([][]float64, len(w)), make([][]float64, len(w)), make([][]float64, len(w))
+		for k, wk := range w {
+			wq[k], wp[k], g[k], x[k] = vs[k].bufL, vs[k].bufN, vs[k].outL, vs[k].outX
+			dk := dst[k]
+			for kk, oi := range sn.obs {
+				ln := &sn.lin[kk]
+				c := wk[oi] / p.obs[oi].sigma
+				for _, t := range ln.q {
+					wq[k][t.i] += c * t.c
+				}
+				for _, t := range ln.p {
+					wp[k][t.i] += c * t.c
+				}
+				for _, t := range ln.x {
+					dk[t.i] += c * t.c
+				}
+			}
+		}
+		if err := sn.sol.SensitivityTIntoN(wq, wp, g, x); err != nil {
+			for k := range dst {
+				p.MulTransVec(dst[k], w[k])
+			}
+			return
+		}
+		for k := range w {
+			gk, dk := g[k], dst[k]
+			for j := range dk {
+				var s float64
+				for _, t := range sn.dh[j] {
+					s += gk[t.i] * t.c
+				}
+				dk[j] += s
+			}
 		}
 	}
 }

@@ -149,6 +149,17 @@ type Forker interface {
 	Fork() Operator
 }
 
+// MultiOperator is optional for an Operator problem (and its forks): the
+// products of several vectors at once, each dst[k] exactly MulVec(dst[k],
+// v[k])'s (or MulTransVec's), operation for operation, so that the work
+// of the batch may overlap. The variance probes then run their conjugate
+// gradients a few probes side by side, each by its own operations (see
+// pcgN).
+type MultiOperator interface {
+	MulVecs(dst, v [][]float64)
+	MulTransVecs(dst, w [][]float64)
+}
+
 // Preconditioner is optional for an Operator problem: it gives the squared
 // column norms of J (the diagonal of JᵀJ, unweighted) at the latest Residuals
 // call. Without it Solve estimates them from 8 random products per iteration:
@@ -1536,10 +1547,34 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 	// itself and, on the others, its forks (see Forker).
 	workers := s.probeWorkers()
 	applies := make([]func(dst, v []float64), workers)
+	// appliesN[k] is applies[k] on a batch, when the products come in
+	// batches (MultiOperator); nil otherwise.
+	appliesN := make([]func(dst, v [][]float64), workers)
 	for k := range workers {
 		op := s.op
 		if k > 0 {
 			op = s.op.(Forker).Fork()
+		}
+		if mop, ok := op.(MultiOperator); ok {
+			var tms [][]float64
+			appliesN[k] = func(dst, v [][]float64) {
+				for len(tms) < len(v) {
+					tms = append(tms, make([]float64, m))
+				}
+				tm := tms[:len(v)]
+				mop.MulVecs(tm, v)
+				for q := range tm {
+					for i := range tm[q] {
+						tm[q][i] *= w[i] / c
+					}
+				}
+				mop.MulTransVecs(dst, tm)
+				for q := range dst {
+					for j := range n {
+						dst[q][j] += s.prec[j] * v[q][j]
+					}
+				}
+			}
 		}
 		tm := make([]float64, m)
 		applies[k] = func(dst, v []float64) {
@@ -1590,11 +1625,8 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 				}
 			}
 		}
-		parallel.For(workers, nb, func(wk, b int) {
-			out[b], oks[b] = nil, false
-			if ctx.Err() != nil {
-				return
-			}
+		// startOf is probe b's starting vector for pcg.
+		startOf := func(b int) []float64 {
 			z := zs[b]
 			var start []float64
 			if bp != nil {
@@ -1608,8 +1640,41 @@ func (s *solver) probeVar(ctx context.Context, w []float64, c float64, warm [][]
 				start = append(start[:0], warm[probes+b]...)
 				floats.Scale(c, start)
 			}
-			out[b], oks[b] = pcg(applies[wk], precond, z, start, probeTol, s.s.CGMaxIter)
-		})
+			return start
+		}
+		multi := true
+		for _, a := range appliesN {
+			multi = multi && a != nil
+		}
+		if multi {
+			// A few probes side by side per goroutine, each by pcg's
+			// own operations (pcgN): the same results as one by one.
+			groups := (nb + probeGroup - 1) / probeGroup
+			parallel.For(workers, groups, func(wk, g int) {
+				lo, hi := g*probeGroup, min((g+1)*probeGroup, nb)
+				for b := lo; b < hi; b++ {
+					out[b], oks[b] = nil, false
+				}
+				if ctx.Err() != nil {
+					return
+				}
+				starts := make([][]float64, hi-lo)
+				for b := lo; b < hi; b++ {
+					starts[b-lo] = startOf(b)
+				}
+				ys, ok := pcgN(appliesN[wk], precond, zs[lo:hi], starts, probeTol, s.s.CGMaxIter)
+				copy(out[lo:hi], ys)
+				copy(oks[lo:hi], ok)
+			})
+		} else {
+			parallel.For(workers, nb, func(wk, b int) {
+				out[b], oks[b] = nil, false
+				if ctx.Err() != nil {
+					return
+				}
+				out[b], oks[b] = pcg(applies[wk], precond, zs[b], startOf(b), probeTol, s.s.CGMaxIter)
+			})
+		}
 		if err := ctx.Err(); err != nil {
 			return nil, nil, fmt.Errorf("lsq: variance probes: %w", err)
 		}
@@ -1732,6 +1797,105 @@ func pcg(apply, precond func(dst, v []float64), b, y0 []float64, tol float64, ma
 		}
 	}
 	return y, floats.Norm(r, 2) <= tol*bnorm
+}
+
+// probeGroup is the number of probes a goroutine runs side by side when
+// the products come in batches: the network's solves go four at a time.
+const probeGroup = 4
+
+// pcgN runs pcg on each right-hand side bs[k] from ys0[k] (nil: zero), side
+// by side: every iteration takes the products of the systems still
+// iterating together (applyN), and each system's every other operation is
+// pcg's own in pcg's order, so each result and flag is pcg's to the bit.
+func pcgN(applyN func(dst, v [][]float64), precond func(dst, v []float64), bs, ys0 [][]float64, tol float64, maxIter int) ([][]float64, []bool) {
+	type sys struct {
+		y, r, z, p, ap []float64
+		rz, bnorm      float64
+		done, ok       bool
+	}
+	ss := make([]sys, len(bs))
+	var idx []int
+	for k, b := range bs {
+		sy := &ss[k]
+		sy.y = ys0[k]
+		sy.r = append([]float64(nil), b...)
+		if sy.y == nil {
+			sy.y = make([]float64, len(b))
+		} else {
+			idx = append(idx, k)
+		}
+	}
+	if len(idx) > 0 {
+		ays, ys := make([][]float64, len(idx)), make([][]float64, len(idx))
+		for q, k := range idx {
+			ays[q], ys[q] = make([]float64, len(bs[k])), ss[k].y
+		}
+		applyN(ays, ys)
+		for q, k := range idx {
+			floats.Sub(ss[k].r, ays[q])
+		}
+	}
+	for k, b := range bs {
+		sy := &ss[k]
+		n := len(b)
+		sy.z = make([]float64, n)
+		precond(sy.z, sy.r)
+		sy.p = append([]float64(nil), sy.z...)
+		sy.rz = floats.Dot(sy.r, sy.z)
+		sy.bnorm = floats.Norm(b, 2)
+		if sy.bnorm == 0 {
+			sy.done, sy.ok = true, true
+			continue
+		}
+		sy.ap = make([]float64, n)
+	}
+	act := make([]int, 0, len(bs))
+	var aps, ps [][]float64
+	for range maxIter {
+		act, aps, ps = act[:0], aps[:0], ps[:0]
+		for k := range ss {
+			sy := &ss[k]
+			if sy.done {
+				continue
+			}
+			if floats.Norm(sy.r, 2) <= tol*sy.bnorm {
+				sy.done, sy.ok = true, true
+				continue
+			}
+			act, aps, ps = append(act, k), append(aps, sy.ap), append(ps, sy.p)
+		}
+		if len(act) == 0 {
+			break
+		}
+		applyN(aps, ps)
+		for _, k := range act {
+			sy := &ss[k]
+			pap := floats.Dot(sy.p, sy.ap)
+			if !(pap > 0) {
+				sy.done, sy.ok = true, false
+				continue
+			}
+			alpha := sy.rz / pap
+			floats.AddScaled(sy.y, alpha, sy.p)
+			floats.AddScaled(sy.r, -alpha, sy.ap)
+			precond(sy.z, sy.r)
+			rzNew := floats.Dot(sy.r, sy.z)
+			beta := rzNew / sy.rz
+			sy.rz = rzNew
+			for j := range sy.p {
+				sy.p[j] = sy.z[j] + beta*sy.p[j]
+			}
+		}
+	}
+	ys, oks := make([][]float64, len(bs)), make([]bool, len(bs))
+	for k := range ss {
+		sy := &ss[k]
+		if !sy.done {
+			sy.ok = floats.Norm(sy.r, 2) <= tol*sy.bnorm
+		}
+		ys[k], oks[k] = sy.y, sy.ok
+	}
+	return ys, oks
 }
 
 // worstOutliers returns the used observation with the largest |t_i| above

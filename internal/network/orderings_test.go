@@ -141,3 +141,90 @@ func TestSensitivitiesAtSameBits(t *testing.T) {
 		})
 	}
 }
+
+// TestSensitivityIntoNSameBits checks SensitivityIntoN and
+// SensitivityTIntoN against SensitivityInto and SensitivityTInto, one at a
+// time, to the bit (sparse factor: groups of four and a remainder; band
+// factor), the adjoint with and without pressure weights. No outside
+// source: the same equations by the same operations.
+func TestSensitivityIntoNSameBits(t *testing.T) {
+	for _, c := range []struct {
+		name   string
+		nr, nt int
+	}{{"risers, sparse", 12, 30}, {"small, band", 3, 4}} {
+		t.Run(c.name, func(t *testing.T) {
+			b, err := Build(risersLadder(c.nr, c.nt, 11), Source{Differential: 150e3}, water20)
+			if err != nil {
+				t.Fatal(err)
+			}
+			sol := mustSolve(t, b.Net, nil)
+			nl, nn := b.Net.NumLinks(), b.Net.NumNodes()
+			same := func(what string, k int, got, want []float64) {
+				t.Helper()
+				for i := range want {
+					if math.Float64bits(got[i]) != math.Float64bits(want[i]) {
+						t.Fatalf("%s %d, entry %d: %v at once, %v alone", what, k, i, got[i], want[i])
+					}
+				}
+			}
+			for _, n := range []int{1, 4, 6} {
+				mk := func() [][]float64 {
+					out := make([][]float64, n)
+					for k := range out {
+						out[k] = make([]float64, nl)
+					}
+					return out
+				}
+				mkN := func() [][]float64 {
+					out := make([][]float64, n)
+					for k := range out {
+						out[k] = make([]float64, nn)
+					}
+					return out
+				}
+				dh, dq, dp, x := mk(), mk(), mkN(), mkN()
+				wq, wp, g := mk(), mkN(), mk()
+				for k := range n {
+					for i := range nl {
+						dh[k][i] = math.Sin(float64(i*(k+1))) * 1e3
+						wq[k][i] = math.Cos(float64(i+7*k)) * 1e-3
+					}
+					for i := range nn {
+						wp[k][i] = math.Sin(float64(3*i+k)) * 1e-6
+					}
+				}
+				if err := sol.SensitivityIntoN(dh, dq, dp, x); err != nil {
+					t.Fatal(err)
+				}
+				for k := range n {
+					q1, p1 := make([]float64, nl), make([]float64, nn)
+					if err := sol.SensitivityInto(dh[k], q1, p1, make([]float64, nn)); err != nil {
+						t.Fatal(err)
+					}
+					same("flows", k, dq[k], q1)
+					same("pressures", k, dp[k], p1)
+				}
+				for _, withP := range []bool{true, false} {
+					var wps [][]float64
+					if withP {
+						wps = wp
+					}
+					if err := sol.SensitivityTIntoN(wq, wps, g, x); err != nil {
+						t.Fatal(err)
+					}
+					for k := range n {
+						g1 := make([]float64, nl)
+						var wp1 []float64
+						if withP {
+							wp1 = wp[k]
+						}
+						if err := sol.SensitivityTInto(wq[k], wp1, g1, make([]float64, nn)); err != nil {
+							t.Fatal(err)
+						}
+						same("adjoint", k, g[k], g1)
+					}
+				}
+			}
+		})
+	}
+}
