@@ -17,6 +17,39 @@ import (
 // rows.
 const consoleRows = 100
 
+// remedyPrefix starts each line of the shortfall that says what would fix
+// it (shortLines).
+const remedyPrefix = "What would fix it: "
+
+// capRemedies keeps the first max of the shortfall's fixes and says how many
+// more there are and where they all are: a large site short everywhere can
+// have a fix per branch (tens of thousands of lines), which the console
+// cannot carry and plan.json and the report list in full.
+func capRemedies(lines []string, max int) []string {
+	var out []string
+	n := 0
+	for _, l := range lines {
+		if strings.HasPrefix(l, remedyPrefix) {
+			n++
+			if n > max {
+				continue
+			}
+		}
+		out = append(out, l)
+	}
+	if n <= max {
+		return lines
+	}
+	// The summary goes after the last fix kept, before the closing advice.
+	for i := len(out) - 1; i >= 0; i-- {
+		if strings.HasPrefix(out[i], remedyPrefix) {
+			more := fmt.Sprintf("%d more fixes like these: every one is in plan.json (\"remedies\") and in the report.", n-max)
+			return append(out[:i+1], append([]string{more}, out[i+1:]...)...)
+		}
+	}
+	return out
+}
+
 // printVisit prints the plan in the order of work on site, from the same
 // view as the report's first pages: each message once, warnings in one
 // block, no cut cells. With sheets (the field sheet and report are being
@@ -25,7 +58,11 @@ func printVisit(w io.Writer, j *job, sheets bool) {
 	v := j.visit(j.opts.Units)
 	if len(v.Short) > 0 {
 		fmt.Fprintln(w, "THIS PLAN CANNOT MEET ITS TARGETS")
-		bullets(w, v.Short)
+		short := v.Short
+		if sheets {
+			short = capRemedies(short, maxIDs)
+		}
+		bullets(w, short)
 		fmt.Fprintln(w)
 	}
 	if j.Plan.DesignOnly {

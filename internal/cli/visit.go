@@ -275,7 +275,7 @@ func (j *job) shortLines(u display) []string {
 		out = append(out, fmt.Sprintf("Cause: the pump gives %s flat out; the short branches need more at the pump for their targets (%s%s), so their valves are fully open.", u.diff(plan.Required), strings.Join(starved, ", "), more))
 	}
 	for _, r := range plan.Remedies {
-		line := "What would fix it: " + r.Action
+		line := remedyPrefix + r.Action
 		if r.Kind != balance.LargerPump && r.Saves > 0.005*r.Least {
 			line += fmt.Sprintf(" (every target would then need %s instead of %s)", u.diff(r.LeastAfter), u.diff(r.Least))
 		}
