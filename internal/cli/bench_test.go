@@ -216,3 +216,31 @@ func TestConsoleLargeSite(t *testing.T) {
 		t.Errorf("plan without --out does not print every setting:\n%.2000s", stdout)
 	}
 }
+
+// TestConsoleFitCapped: on a large site where more than consoleRows branches
+// have a finding, the fit's table on the console keeps the consoleRows
+// furthest from design and says how many there are and where all of them are.
+func TestConsoleFitCapped(t *testing.T) {
+	if testing.Short() {
+		t.Skip("fits a 300-branch site")
+	}
+	dir := writeSpec(t, synth.Spec{Branches: 300, Arrangement: site.DirectReturn, RiserTerminals: 30,
+		Seed: 5, Fouled: 0.6, Noise: 1, States: 1, Readings: synth.SurveyMix()})
+	code, stdout, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out"))
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d: %s", code, errs)
+	}
+	_, table, ok := strings.Cut(stdout, "\nbranch ")
+	if !ok {
+		t.Fatalf("run: no fit table:\n%s", stdout)
+	}
+	table, _, _ = strings.Cut(table, "\n\n")
+	rows := strings.Count(table, "\n")
+	if !strings.Contains(stdout, fmt.Sprintf("The %d branches with a finding furthest from design, of ", consoleRows)) {
+		t.Fatalf("run: the capped fit table is not announced (%d rows):\n%s", rows, stdout)
+	}
+	// The header line, consoleRows rows and the wrapped summary line(s).
+	if rows < consoleRows || rows > consoleRows+4 {
+		t.Errorf("run: the fit table has %d lines, want %d rows and the summary", rows, consoleRows)
+	}
+}

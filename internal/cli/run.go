@@ -5,8 +5,10 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"path/filepath"
+	"sort"
 	"text/tabwriter"
 
 	"github.com/spf13/cobra"
@@ -415,6 +417,38 @@ func (j *job) shortErr(o *runOptions) error {
 	return nil
 }
 
+// fitRowsShown picks the rows of the fit's table a large site's console
+// shows: the branches with a finding, at most max of them, those whose fitted
+// resistance is furthest from design (in ln ratio; unfitted ones last, then
+// in the model's order); also how many branches have a finding.
+func (j *job) fitRowsShown(max int) (map[int]bool, int) {
+	type row struct {
+		i   int
+		off float64
+	}
+	var rows []row
+	for i, b := range j.L.Model.Branches {
+		if j.flagsOf(b.ID) == "" {
+			continue
+		}
+		off := -1.0
+		if j.Cal != nil && j.Cal.Branches[i].Fitted {
+			off = math.Abs(math.Log(j.Cal.Branches[i].Ratio))
+		}
+		rows = append(rows, row{i, off})
+	}
+	n := len(rows)
+	if n > max {
+		sort.SliceStable(rows, func(a, b int) bool { return rows[a].off > rows[b].off })
+		rows = rows[:max]
+	}
+	shown := make(map[int]bool, len(rows))
+	for _, r := range rows {
+		shown[r.i] = true
+	}
+	return shown, n
+}
+
 // printFit prints the fit: its verdict, a row per branch (with sheets, on a
 // site of more than consoleRows branches, only those with a finding) and the
 // findings.
@@ -439,8 +473,13 @@ func printFit(w io.Writer, j *job, sheets bool) {
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "branch\tresistance ÷ design (95 %% range)\tvalve\tflow as found (%s)\tdesign (%s)\tflags\n", u.FlowUnit, u.FlowUnit)
 	short := sheets && len(j.L.Model.Branches) > consoleRows
+	var shown map[int]bool
+	flagged := 0
+	if short {
+		shown, flagged = j.fitRowsShown(consoleRows)
+	}
 	for i, b := range j.L.Model.Branches {
-		if short && j.flagsOf(b.ID) == "" {
+		if short && !shown[i] {
 			continue // the whole table is in calibration.csv
 		}
 		ratio, valve := "-", "-"
@@ -473,7 +512,10 @@ func printFit(w io.Writer, j *job, sheets bool) {
 				cf.ID, u.diff(cf.Recorded), u.diff(cf.Held), u.diffNum(cf.Lo), u.diff(cf.Hi)))
 		}
 	}
-	if short {
+	switch {
+	case short && flagged > len(shown):
+		wrap(w, "", fmt.Sprintf("The %d branches with a finding furthest from design, of %d with a finding among %d: every branch is in calibration.csv and the report.", len(shown), flagged, len(j.L.Model.Branches)))
+	case short:
 		wrap(w, "", fmt.Sprintf("The branches with a finding, of %d: every branch is in calibration.csv and the report.", len(j.L.Model.Branches)))
 	}
 	if short && len(j.Findings) > consoleRows {
