@@ -31,3 +31,29 @@ func TestCapRemedies(t *testing.T) {
 		})
 	}
 }
+
+func TestCapWarnings(t *testing.T) {
+	w := func(i int) string { return fmt.Sprintf("readings.csv:%d:4: warning: small differential", i) }
+	three := []string{w(2), w(3), w(4)}
+	tests := []struct {
+		name  string
+		lines []string
+		max   int
+		want  []string
+	}{
+		{"none", nil, 2, nil},
+		{"at the cap", three, 3, three},
+		{"over the cap", three, 2, []string{w(2), w(3),
+			"... and 1 more warnings: 'flowset check' on the site lists every one with its line; the report groups them."}},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			if diff := cmp.Diff(tc.want, capWarnings(tc.lines, tc.max)); diff != "" {
+				t.Errorf("capWarnings (-want +got):\n%s", diff)
+			}
+			if len(tc.lines) == 3 && tc.lines[2] != w(4) {
+				t.Errorf("capWarnings changed its input: %q", tc.lines)
+			}
+		})
+	}
+}
