@@ -151,6 +151,15 @@ func TestHedgeMeter(t *testing.T) {
 				t.Errorf("b03 gives %.0f %% of target if set elsewhere and %.0f %% if the meter is off: want one above and one below", ifSet, ifMeter)
 			}
 			t.Logf("b03 fitted %.3g, %.3g under the meter's explanation (%.2f probable), planned %.3g; %s", rA, rB, v.MeterWeight, planned, note)
+			// calibration.json carries the other explanation on b03 alone.
+			for _, b := range j.calibrationOut("").Branches {
+				switch mo := b.MeterOff; {
+				case b.ID == "b03" && (mo == nil || float64(mo.Probability) != v.MeterWeight || float64(mo.Ratio) != rB):
+					t.Errorf("calibration.json: b03's flow_meter_off %+v, want probability %g, ratio %g", mo, v.MeterWeight, rB)
+				case b.ID != "b03" && mo != nil:
+					t.Errorf("calibration.json: %s has flow_meter_off %+v, want none", b.ID, mo)
+				}
+			}
 			found := false
 			for _, f := range j.Findings {
 				if f.Branch == "b03" && f.Code == diagnose.ValveMisSet {

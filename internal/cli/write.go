@@ -175,6 +175,18 @@ type branchFitJSON struct {
 	Valve       string `json:"valve_hypothesis"`
 	Flags       string `json:"flags"`
 	FlowAsFound num    `json:"fitted_flow_as_found_l_s"`
+	// MeterOff is, for a valve found set elsewhere on one flow reading
+	// that a meter reading off would explain as well, that explanation;
+	// absent where it was not weighed.
+	MeterOff *meterOffJSON `json:"flow_meter_off,omitempty"`
+}
+
+// meterOffJSON is the other explanation of a valve found set elsewhere: the
+// valve on its table and its flow reading off (calibrate.ValveVerdict's
+// MeterWeight and MeterRatio).
+type meterOffJSON struct {
+	Probability num `json:"probability"`
+	Ratio       num `json:"resistance_ratio_if_so"`
 }
 
 type readingFitJSON struct {
@@ -259,6 +271,9 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 			Valve: b.Valve.Hypothesis.String(), Flags: j.flagsOf(b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
 		if b.Held {
 			out.Branches[len(out.Branches)-1].Valve = heldWord(&c.Branches[i])
+		}
+		if v := b.Valve; v.MeterWeight > 0 {
+			out.Branches[len(out.Branches)-1].MeterOff = &meterOffJSON{Probability: num(v.MeterWeight), Ratio: num(v.MeterRatio)}
 		}
 	}
 	for _, r := range c.Readings {
