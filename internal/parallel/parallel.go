@@ -5,7 +5,9 @@
 package parallel
 
 import (
+	"fmt"
 	"runtime"
+	"runtime/debug"
 	"sync"
 	"sync/atomic"
 )
@@ -25,6 +27,11 @@ func Workers(n int) int {
 // so which goroutine runs a task varies from run to run: a task's result
 // must not depend on it. With one worker, or one task, everything runs on
 // the caller's goroutine; otherwise the caller's goroutine is worker 0.
+//
+// A panic in a task stops the others from taking new tasks and is raised
+// again on the caller's goroutine once every worker has returned, so a
+// recovery there (the command line's, which reports an internal error)
+// still sees it instead of the process dying in another goroutine.
 func For(workers, tasks int, do func(w, k int)) {
 	workers = min(workers, tasks)
 	if workers <= 1 {
@@ -33,8 +40,22 @@ func For(workers, tasks int, do func(w, k int)) {
 		}
 		return
 	}
-	var next atomic.Int64
+	var (
+		next   atomic.Int64
+		mu     sync.Mutex
+		failed *Panic
+	)
 	run := func(w int) {
+		defer func() {
+			if v := recover(); v != nil {
+				next.Store(int64(tasks))
+				mu.Lock()
+				if failed == nil {
+					failed = &Panic{Value: v, Stack: debug.Stack()}
+				}
+				mu.Unlock()
+			}
+		}()
 		for {
 			k := int(next.Add(1) - 1)
 			if k >= tasks {
@@ -53,4 +74,18 @@ func For(workers, tasks int, do func(w, k int)) {
 	}
 	run(0)
 	wg.Wait()
+	if failed != nil {
+		panic(failed)
+	}
 }
+
+// Panic is what For raises on the caller's goroutine when a task panicked:
+// the task's panic value and the stack of the goroutine it panicked on.
+type Panic struct {
+	Value any
+	Stack []byte
+}
+
+// Error says what the task panicked with; the stack is kept for a fuller
+// report.
+func (p *Panic) Error() string { return fmt.Sprintf("panic in a parallel task: %v", p.Value) }

@@ -3,6 +3,7 @@ package parallel
 import (
 	"fmt"
 	"sync"
+	"sync/atomic"
 	"testing"
 )
 
@@ -51,4 +52,41 @@ func ExampleFor() {
 	}
 	fmt.Println(sum)
 	// Output: 30
+}
+
+// TestForPanic: a task's panic, on whichever goroutine it runs, comes back
+// on the caller's goroutine as a *Panic carrying its value, after every
+// worker has returned (common practice, no source).
+func TestForPanic(t *testing.T) {
+	for _, c := range []struct {
+		name           string
+		workers, tasks int
+		bad            int
+	}{
+		{"first task, two workers", 2, 100, 0},
+		{"last task, two workers", 2, 100, 99},
+		{"middle task, four workers", 4, 50, 25},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			var active atomic.Int64
+			got := func() (v any) {
+				defer func() { v = recover() }()
+				For(c.workers, c.tasks, func(_, k int) {
+					active.Add(1)
+					defer active.Add(-1)
+					if k == c.bad {
+						panic(fmt.Sprintf("task %d failed", k))
+					}
+				})
+				return nil
+			}()
+			p, ok := got.(*Panic)
+			if !ok || p.Value != fmt.Sprintf("task %d failed", c.bad) || len(p.Stack) == 0 {
+				t.Fatalf("recovered %#v, want a *Panic with the task's value and a stack", got)
+			}
+			if n := active.Load(); n != 0 {
+				t.Errorf("%d tasks still running when For returned", n)
+			}
+		})
+	}
 }
