@@ -3,7 +3,8 @@ package cli
 import (
 	"runtime"
 	"sync"
-	"sync/atomic"
+
+	"flowset/internal/parallel"
 )
 
 // stages runs the independent stages of a job after its fit (the ranking
@@ -87,44 +88,13 @@ func (fu *future[T]) get() (T, error) {
 // each runs f(0) ... f(n-1) on up to s.workers goroutines at a time (in
 // order, on this one, when s is serial) and returns their results by
 // index. The first error by index is returned with them. A panic in f is
-// raised again here.
+// raised again here (parallel.For carries it back).
 func each[T any](s *stages, n int, f func(k int) (T, error)) ([]T, []error) {
 	out, errs := make([]T, n), make([]error, n)
-	if s.serial() || n <= 1 {
-		for k := range n {
-			out[k], errs[k] = f(k)
-		}
-		return out, errs
+	workers := 1
+	if !s.serial() {
+		workers = s.workers
 	}
-	var (
-		next   atomic.Int64
-		wg     sync.WaitGroup
-		mu     sync.Mutex
-		panicV any
-	)
-	for range min(s.workers, n) {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			defer func() {
-				if r := recover(); r != nil {
-					mu.Lock()
-					panicV = r
-					mu.Unlock()
-				}
-			}()
-			for {
-				k := int(next.Add(1)) - 1
-				if k >= n {
-					return
-				}
-				out[k], errs[k] = f(k)
-			}
-		}()
-	}
-	wg.Wait()
-	if panicV != nil {
-		panic(panicV)
-	}
+	parallel.For(workers, n, func(_, k int) { out[k], errs[k] = f(k) })
 	return out, errs
 }
