@@ -88,19 +88,68 @@ type ref struct{ k, t int32 }
 
 // obsIndex lists, per link, node and parameter, the terms of the state's
 // observations on it (link flows, node pressures, direct dependences), in
-// compressed rows: the structure of the functionals is fixed, their
-// coefficients change with every evaluation.
+// compressed rows. Their coefficients change with every evaluation and
+// their structure mostly does not, but it can: a controlled pump that runs
+// flat out in one evaluation and holds its set point in the next changes
+// which terms a reading has. shape records the structure the index was
+// built for.
 type obsIndex struct {
 	linkAt, nodeAt, directAt []int
 	link, node, direct       []ref
+	shape                    []int32
 }
 
-// index returns sn's observation index, built on first use.
+// linShape appends the structure of sn's functionals (each one's term
+// counts and the links, nodes and parameters they name) to dst.
+func linShape(dst []int32, sn *stateNet) []int32 {
+	for k := range sn.obs {
+		l := &sn.lin[k]
+		for _, ts := range [3][]term{l.q, l.p, l.x} {
+			dst = append(dst, int32(len(ts)))
+			for _, t := range ts {
+				dst = append(dst, int32(t.i))
+			}
+		}
+	}
+	return dst
+}
+
+// sameShape reports whether sn's functionals still have the structure
+// shape records, without allocating.
+func sameShape(shape []int32, sn *stateNet) bool {
+	at := 0
+	next := func(v int) bool {
+		if at >= len(shape) || shape[at] != int32(v) {
+			return false
+		}
+		at++
+		return true
+	}
+	for k := range sn.obs {
+		l := &sn.lin[k]
+		for _, ts := range [3][]term{l.q, l.p, l.x} {
+			if !next(len(ts)) {
+				return false
+			}
+			for _, t := range ts {
+				if !next(t.i) {
+					return false
+				}
+			}
+		}
+	}
+	return at == len(shape)
+}
+
+// index returns sn's observation index, built on first use and again
+// whenever the functionals' structure has changed since (a stale index
+// named terms that were no longer there: an independent plant's trim round
+// with its pump flat out in one state crashed on it).
 func (ln *localNet) index(sn *stateNet, nparams int) *obsIndex {
-	if ln.ix != nil {
+	if ln.ix != nil && sameShape(ln.ix.shape, sn) {
 		return ln.ix
 	}
-	ix := &obsIndex{}
+	ix := &obsIndex{shape: linShape(nil, sn)}
 	build := func(size int, terms func(l *lin) []term) ([]int, []ref) {
 		at := make([]int, size+1)
 		for k := range sn.obs {
