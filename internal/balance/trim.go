@@ -83,6 +83,14 @@ type TrimOptions struct {
 	// are not moved unread, since the model's view of them is what the
 	// plan did not trust.
 	Hedged []bool
+	// Expected is, by model index, the flow the plan predicted for each
+	// branch over its target (NaN or absent where it did not), and Surprise
+	// how far a branch read after setting may sit from it before its
+	// reading is doubted (0: never). A branch read far from a narrow
+	// prediction is as likely under a meter reading wrong in both rounds
+	// as off target: it is read again another way, not trimmed in full.
+	Expected []float64
+	Surprise float64
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -299,8 +307,13 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 				note[i] = "its valve does not follow its handwheel: a trim would not move it (see the findings)"
 				continue
 			}
-			if i < len(o.Doubt) && o.Doubt[i] {
+			surprised := read && o.Surprise > 0 && i < len(o.Expected) && !(i < len(o.Hedged) && o.Hedged[i]) &&
+				math.Abs(solL.Flow(i)/target[i]-o.Expected[i]) > o.Surprise
+			if i < len(o.Doubt) && o.Doubt[i] || surprised {
 				note[i] = "its readings are doubted (they disagree with each other or with the model, or only its own valve's test points say it is off): read its flow another way (clamp-on) before trimming"
+				if !(i < len(o.Doubt) && o.Doubt[i]) {
+					note[i] = fmt.Sprintf("read after setting at %.0f %% of target where the plan predicted %.0f %%: as likely a meter reading wrong in both rounds as the branch; read its flow another way (clamp-on) before trimming", 100*solL.Flow(i)/target[i], 100*o.Expected[i])
+				}
 				continue
 			}
 			if !read && !model {

@@ -61,6 +61,10 @@ func TestTrimOneBranch(t *testing.T) {
 		// hedged: the plan did not trust the fit's view of the off
 		// branch (TrimOptions.Hedged).
 		hedged bool
+		// expect: every branch expected at its target by the plan, and a
+		// reading after setting beyond the tolerance from that doubted
+		// (TrimOptions.Expected, Surprise).
+		expect bool
 	}{
 		{name: "one branch fouled after setting", ratio: 4, trimmed: 1, offIn: true, verdicts: true},
 		{name: "one branch inside the band but in its outer half", ratio: 0.3, trimmed: 1, offIn: true},
@@ -82,6 +86,11 @@ func TestTrimOneBranch(t *testing.T) {
 		{name: "replan: a little off, not read after setting", ratio: 0.6, unread: true, trimmed: 1, offIn: true, replan: true},
 		{name: "replan: a little off, not read after setting, hedged by the plan", ratio: 0.6, unread: true, trimmed: 0, offIn: true, replan: true, hedged: true},
 		{name: "replan: off, but its valve does not follow its handwheel", ratio: 4, hold: true, trimmed: 0, offIn: false, replan: true},
+		// Read far from what the plan predicted (a meter reading wrong in
+		// both rounds reads the same): read again another way first; a
+		// little off, inside the tolerance of the prediction, trimmed.
+		{name: "off far from the plan's prediction", ratio: 4, expect: true, trimmed: 0, offIn: false},
+		{name: "a little off the plan's prediction", ratio: 0.6, expect: true, trimmed: 1, offIn: true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			c := newTrimCase(t, tc.ratio)
@@ -107,6 +116,13 @@ func TestTrimOneBranch(t *testing.T) {
 			if tc.doubt {
 				opt.Doubt = make([]bool, len(m.Branches))
 				opt.Doubt[c.off] = true
+			}
+			if tc.expect {
+				opt.Expected = make([]float64, len(m.Branches))
+				for i := range opt.Expected {
+					opt.Expected[i] = 1
+				}
+				opt.Surprise = 0.1
 			}
 			if tc.unread || strings.HasSuffix(tc.name, "read after setting") {
 				opt.Read = make([]bool, len(m.Branches))
@@ -137,7 +153,7 @@ func TestTrimOneBranch(t *testing.T) {
 						t.Errorf("%s: %v as left (%.1f %%, band %.1f-%.1f), want %v", b.ID, b.Verdict, b.LeftPercent, b.LeftLow, b.LeftHigh, want)
 					}
 				}
-				if (tc.hold || tc.unread || tc.doubt) && b.Index == c.off && b.Note == "" {
+				if (tc.hold || tc.unread || tc.doubt || tc.expect && tc.trimmed == 0) && b.Index == c.off && b.Note == "" {
 					t.Errorf("%s held but without a note", b.ID)
 				}
 				if b.Predicted != (b.Trimmed && tc.unread) {
