@@ -87,6 +87,23 @@ type lin struct {
 	q, p, x []term
 }
 
+// apply is the functional's value at the link flow changes dq, the node
+// pressure changes dp and the parameter changes x (flows, then pressures,
+// then parameters: every product sums in this one order).
+func (l *lin) apply(dq, dp, x []float64) float64 {
+	var s float64
+	for _, t := range l.q {
+		s += t.c * dq[t.i]
+	}
+	for _, t := range l.p {
+		s += t.c * dp[t.i]
+	}
+	for _, t := range l.x {
+		s += t.c * x[t.i]
+	}
+	return s
+}
+
 // stateNet is one survey state's network, kept between evaluations so that
 // its node ordering is reused and each solve starts warm from the last.
 type stateNet struct {
@@ -914,18 +931,7 @@ func (p opProblem) MulVec(dst, v []float64) {
 			return
 		}
 		for k, oi := range sn.obs {
-			ln := &sn.lin[k]
-			var s float64
-			for _, t := range ln.q {
-				s += t.c * dq[t.i]
-			}
-			for _, t := range ln.p {
-				s += t.c * dp[t.i]
-			}
-			for _, t := range ln.x {
-				s += t.c * v[t.i]
-			}
-			dst[oi] = s / p.obs[oi].sigma
+			dst[oi] = sn.lin[k].apply(dq, dp, v) / p.obs[oi].sigma
 		}
 	}
 }
@@ -1003,18 +1009,7 @@ func (p opProblem) MulVecs(dst, v [][]float64) {
 		for k := range v {
 			dq, dp, vk, dk := dq[k], dp[k], v[k], dst[k]
 			for kk, oi := range sn.obs {
-				ln := &sn.lin[kk]
-				var s float64
-				for _, t := range ln.q {
-					s += t.c * dq[t.i]
-				}
-				for _, t := range ln.p {
-					s += t.c * dp[t.i]
-				}
-				for _, t := range ln.x {
-					s += t.c * vk[t.i]
-				}
-				dk[oi] = s / p.obs[oi].sigma
+				dk[oi] = sn.lin[kk].apply(dq, dp, vk) / p.obs[oi].sigma
 			}
 		}
 	}
