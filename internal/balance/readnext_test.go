@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"flowset/internal/plant"
 	"flowset/internal/site"
 )
 
@@ -19,30 +20,14 @@ import (
 // exactly is not listed at all.
 func TestRankIndexFirst(t *testing.T) {
 	ctx := context.Background()
-	for _, tc := range []struct {
-		name   string
-		seed   uint64
-		header site.Arrangement
-	}{
-		{"direct return", 13, site.DirectReturn},
-		{"reverse return", 17, site.ReverseReturn},
-		{"another direct-return plant", 29, site.DirectReturn},
-	} {
+	for _, tc := range rankPlants {
 		t.Run(tc.name, func(t *testing.T) {
-			rng := rand.New(rand.NewPCG(tc.seed, 1))
-			m := withPump(t, randomSite(rng, genOpts{n: 12, header: tc.header}))
+			m, p, base := rankPlant(t, tc.seed, tc.header)
 			n := len(m.Branches)
-			p := m.Design()
-			base := mustCompute(t, m, p, &Options{Rounding: Smart})
 			// The runner-up to the index (largest chain need but the
 			// index's) and the branch needing the least.
-			order := make([]int, n)
-			for i := range order {
-				order[i] = i
-			}
-			slices.SortFunc(order, func(a, b int) int {
-				return -cmpF(base.Needs[a].Chain, base.Needs[b].Chain)
-			})
+			order := byChainNeed(base)
+			slices.Reverse(order)
 			idx, _ := m.Index(base.Index)
 			near, far := order[0], order[n-1]
 			if near == idx {
@@ -115,28 +100,11 @@ func cmpF(a, b float64) int {
 // update's variance reduction; common practice, no source).
 func TestRankMostUncertainFirst(t *testing.T) {
 	ctx := context.Background()
-	for _, tc := range []struct {
-		name   string
-		seed   uint64
-		header site.Arrangement
-	}{
-		{"direct return", 13, site.DirectReturn},
-		{"reverse return", 17, site.ReverseReturn},
-		{"another direct-return plant", 29, site.DirectReturn},
-	} {
+	for _, tc := range rankPlants {
 		t.Run(tc.name, func(t *testing.T) {
-			rng := rand.New(rand.NewPCG(tc.seed, 1))
-			m := withPump(t, randomSite(rng, genOpts{n: 12, header: tc.header}))
+			m, p, base := rankPlant(t, tc.seed, tc.header)
 			n := len(m.Branches)
-			p := m.Design()
-			base := mustCompute(t, m, p, &Options{Rounding: Smart})
-			order := make([]int, n)
-			for i := range order {
-				order[i] = i
-			}
-			slices.SortFunc(order, func(a, b int) int {
-				return cmpF(base.Needs[a].Chain, base.Needs[b].Chain)
-			})
+			order := byChainNeed(base)
 			// The two branches needing the least, the one whose flow is
 			// the more uncertain as left with twice the other's spread;
 			// every other branch known to 0.005 in ln resistance.
@@ -182,4 +150,36 @@ func TestRankMostUncertainFirst(t *testing.T) {
 			}
 		})
 	}
+}
+
+// rankPlants are the generated plants both ranking tests use.
+var rankPlants = []struct {
+	name   string
+	seed   uint64
+	header site.Arrangement
+}{
+	{"direct return", 13, site.DirectReturn},
+	{"reverse return", 17, site.ReverseReturn},
+	{"another direct-return plant", 29, site.DirectReturn},
+}
+
+// rankPlant generates a 12-branch plant with a pump and plans it at
+// design.
+func rankPlant(t *testing.T, seed uint64, header site.Arrangement) (*plant.Model, plant.Params, *Plan) {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(seed, 1))
+	m := withPump(t, randomSite(rng, genOpts{n: 12, header: header}))
+	p := m.Design()
+	return m, p, mustCompute(t, m, p, &Options{Rounding: Smart})
+}
+
+// byChainNeed returns the branch indices of plan in ascending order of
+// their chains' need at the pump.
+func byChainNeed(plan *Plan) []int {
+	order := make([]int, len(plan.Needs))
+	for i := range order {
+		order[i] = i
+	}
+	slices.SortStableFunc(order, func(a, b int) int { return cmpF(plan.Needs[a].Chain, plan.Needs[b].Chain) })
+	return order
 }
