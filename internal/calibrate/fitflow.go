@@ -49,21 +49,37 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 	if m.Pump == nil || m.Several() || su.rSigma == nil {
 		return base, nil
 	}
-	var flows []int // setup observations: total flows set aside, corroborated
+	// The total flows the pump's own readings confirm, which the fit set
+	// aside or missed by more than pumpAgreeZ.
+	var flows []int // setup observations
+	outlier := map[int]bool{}
 	for _, oi := range base.res.Outliers {
-		k := base.sel[oi]
-		if o := &su.obs[k]; o.what == site.TotalFlow && o.branch < 0 && o.pump < 0 && su.pumpAgrees(k) {
-			flows = append(flows, k)
+		outlier[base.sel[oi]] = true
+	}
+	var setAside int
+	for oi, k := range base.sel {
+		o := &su.obs[k]
+		if o.what != site.TotalFlow || o.branch >= 0 || o.pump >= 0 || !(outlier[k] || math.Abs(base.res.Residual[oi]) > pumpAgreeZ) || !su.pumpAgrees(k) {
+			continue
+		}
+		flows = append(flows, k)
+		if outlier[k] {
+			setAside++
 		}
 	}
 	if len(flows) == 0 {
 		return base, nil
 	}
 	p := base.prob
-	testPoints := make([]bool, len(m.Branches))
+	// Branches read at their valve's test points, and those whose
+	// test-point readings the fit set aside: with the valve on its table
+	// the branch then takes the flow the valve's table gives at its branch
+	// differential, as wrong as the readings set aside said.
+	testPoints, pointsOut := make([]bool, len(m.Branches)), make([]bool, len(m.Branches))
 	for _, k := range base.sel {
 		if o := &su.obs[k]; o.branch >= 0 && o.what == site.ValveDiff {
 			testPoints[o.branch] = true
+			pointsOut[o.branch] = pointsOut[o.branch] || outlier[k]
 		}
 	}
 	var weak []int
@@ -73,11 +89,11 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 		if b.Valve == nil || b.PI != nil || su.kvSep[i] || !testPoints[i] || base.hyp[i] != FollowsTable || j < 0 {
 			continue
 		}
-		if base.res.X[j] < -math.Log(suspectRatio) {
+		if base.res.X[j] < -math.Log(suspectRatio) || pointsOut[i] {
 			weak = append(weak, i)
 		}
 	}
-	if len(weak) == 0 {
+	if len(weak) == 0 && setAside == 0 {
 		return base, nil
 	}
 	hyp := slices.Clone(base.hyp)
@@ -92,11 +108,17 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 			su.rSigma[i] = saved[n]
 		}
 	}
+	// The total flows and the freed valves' readings go back in: a valve
+	// set elsewhere explains its own test points.
 	var exclude []int
+	readmit := map[int]bool{}
 	for _, oi := range base.res.Outliers {
-		if !slices.Contains(flows, base.sel[oi]) {
-			exclude = append(exclude, oi)
+		k := base.sel[oi]
+		if o := &su.obs[k]; slices.Contains(flows, k) || (o.branch >= 0 && hyp[o.branch] != base.hyp[o.branch]) {
+			readmit[k] = true
+			continue
 		}
+		exclude = append(exclude, oi)
 	}
 	next, err := su.runLocal(ctx, hyp, base.sel, base, su.opt.OutlierZ, false, -1, exclude)
 	if err != nil {
@@ -106,28 +128,28 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 		}
 		return base, nil
 	}
-	kept := true
-	for _, oi := range next.res.Outliers {
-		if slices.Contains(flows, next.sel[oi]) {
-			kept = false
-		}
-	}
-	if !kept || len(next.res.Outliers) > len(base.res.Outliers)-len(flows) {
-		restore()
-		return base, nil
-	}
 	// What the total flows gain: their χ² at the fit that set them aside
-	// against the refit's.
+	// or missed them against the refit's.
 	var gain float64
 	for oi, k := range base.sel {
 		if slices.Contains(flows, k) {
 			gain += base.res.Residual[oi] * base.res.Residual[oi]
 		}
 	}
+	kept := true
 	for oi, k := range next.sel {
 		if slices.Contains(flows, k) {
 			gain -= next.res.Residual[oi] * next.res.Residual[oi]
 		}
+	}
+	for _, oi := range next.res.Outliers {
+		if slices.Contains(flows, next.sel[oi]) {
+			kept = false
+		}
+	}
+	if !kept || !(gain > 0) || len(next.res.Outliers) > len(base.res.Outliers)-len(readmit) {
+		restore()
+		return base, nil
 	}
 	o := su.opt
 	for _, i := range weak {

@@ -1,0 +1,99 @@
+package calibrate
+
+import (
+	"context"
+	"math"
+	"testing"
+
+	"flowset/internal/site"
+)
+
+// TestFitTotalFlowWeakValves: a plant as designed (every branch at its
+// design resistance, the headers as designed, the pump exactly on its
+// curve) whose valves are all recorded wide open, four of them seized at
+// 30 % of the Kv their recorded setting gives. Those four are read through
+// their test points alone (a valve differential and the valve meter's flow
+// for it: one measurement) and their branch differential; the rest by a
+// clamp-on flow, the valve differential and the branch differential; the
+// pump by its differential, its speed and a clamp-on total flow. A seized
+// valve read at its test points alone reads as a free branch behind a
+// valve on its table (the meter shows 1/0.3 = 3.3 times the flow for the
+// differential it reads, the IEC 60534-2-1 relation q = Kv √Δp), so the
+// readings of each branch alone cannot tell it; only the total flow, which
+// the pump's differential and speed confirm on its curve, shows that those
+// branches pass less than their test points say. The check values are the
+// constructed truth (common practice, no source): the fit must keep the
+// total flow, hold the pump and header multipliers at 1 within their
+// readings' resolution (2 %), and take the four valves as set elsewhere
+// with their branches near design (within 2 clean-prior sd, 0.2 in ln).
+// With the pump differential read 10 % high, the three pump readings no
+// longer agree with the curve and nothing is corroborated: the fit must
+// then leave the four valves on their tables (the earlier behaviour).
+func TestFitTotalFlowWeakValves(t *testing.T) {
+	ctx := context.Background()
+	nan := math.NaN()
+	seized := []int{5, 13}
+	build := func(t *testing.T, pumpDiffFactor float64) (*Calibration, *site.Site) {
+		t.Helper()
+		s := newPlantSite(t, plantSpec{branches: 16, arrangement: site.DirectReturn, seed: 23})
+		hi := testValve.Settings[len(testValve.Settings)-1]
+		for i := range s.Branches {
+			s.Branches[i].Setting = hi
+		}
+		for i, b := range s.Branches {
+			weak := false
+			for _, k := range seized {
+				weak = weak || k == i
+			}
+			if weak {
+				read(s, "as-found", b.ID, site.ValveDiff, "manometer", nan)
+				read(s, "as-found", b.ID, site.Flow, "valve-meter", nan)
+				read(s, "as-found", b.ID, site.BranchDiff, "manometer", nan)
+				continue
+			}
+			readBranch(s, "as-found", b.ID, "clamp-on", true)
+		}
+		read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
+		read(s, "as-found", site.AtPump, site.Speed, "pump-display", nan)
+		read(s, "as-found", site.AtPump, site.TotalFlow, "clamp-on", nan)
+		m := mustModel(t, s)
+		tr := newTruth(m)
+		for _, k := range seized {
+			tr.stuck[k] = settingFor(t, m.Branches[k].Valve, hi, 0.6)
+		}
+		simulate(t, m, tr, nil, 1) // noise-free, at the stated sds
+		s.Readings[readingAt(t, s, site.AtPump, site.PumpDiff, "manometer")].Value *= pumpDiffFactor
+		cal, err := Fit(ctx, m, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return cal, s
+	}
+	t.Run("pump agrees with its curve", func(t *testing.T) {
+		cal, s := build(t, 1)
+		tf := readingAt(t, s, site.AtPump, site.TotalFlow, "clamp-on")
+		if r := cal.Readings[tf]; r.Outlier || math.Abs(r.Normalised) > 2 {
+			t.Errorf("total flow: outlier %v, normalised residual %.2f: want kept, within 2", r.Outlier, r.Normalised)
+		}
+		if math.Abs(cal.Pump.Ratio-1) > 0.02 || math.Abs(cal.Header.Ratio-1) > 0.02 {
+			t.Errorf("pump %.4f, header %.4f times design: want 1 ± 2 %%", cal.Pump.Ratio, cal.Header.Ratio)
+		}
+		for _, k := range seized {
+			b := cal.Branches[k]
+			if b.Valve.Hypothesis != SetElsewhere || math.Abs(math.Log(b.Ratio)) > 0.2 {
+				t.Errorf("%s: valve %v, resistance %.3g times design: want set elsewhere, within 0.2 in ln of design", b.ID, b.Valve.Hypothesis, b.Ratio)
+			}
+		}
+		for _, r := range cal.Outliers() {
+			t.Errorf("reading %s at %s set aside (normalised residual %.1f): want none", r.What, r.Where, r.Normalised)
+		}
+	})
+	t.Run("pump differential off its curve", func(t *testing.T) {
+		cal, _ := build(t, 1.1)
+		for _, k := range seized {
+			if b := cal.Branches[k]; b.Valve.Hypothesis == SetElsewhere {
+				t.Errorf("%s: valve set elsewhere on a total flow the pump's readings do not confirm: want its table", b.ID)
+			}
+		}
+	})
+}
