@@ -16,34 +16,40 @@ import (
 // rounded (common practice, no source).
 const pumpAgreeZ = 2.0
 
-// weakValves answers a total flow the fit set aside while the pump's own
-// readings agree with it. A balancing valve read through its test points
-// alone (its differential, or a valve meter's flow for it) cannot be told
-// from the rest of its branch, so the fit takes it on its table and lets
-// the branch's fixed resistance take whatever the readings say: a valve
-// seized or set more closed than recorded then reads as a branch far freer
-// than designed (on a fresh independent 44-branch plant five seized valves
-// found wide open on the sheet were fitted at 0.06-0.45 times their
-// branches' design resistance), and its branch is given the flow its table
-// would pass at the differential read, up to 3.6 times the true one. Nothing
-// in the model can take that flow back, so the one reading of the branches'
-// sum, the total flow at the pump, is set aside as an outlier, and the pump
-// is made stronger than its curve and the headers smoother to supply the
-// flow that is not there (e10: the pump 1.095 times its curve, the headers
-// 0.89, the flow 10.8 standard uncertainties above the clamp-on's; the plan
-// then ran the pump about 5 % slow and every branch got 93-95 %).
+// weakValves answers a total flow the fit set aside, or missed by more than
+// pumpAgreeZ, while the pump's own readings agree with it. A balancing
+// valve read through its test points alone (its differential, or a valve
+// meter's flow for it) cannot be told from the rest of its branch, so the
+// fit takes it on its table and lets the branch's fixed resistance take
+// whatever the readings say: a valve seized or set more closed than
+// recorded then reads as a branch far freer than designed (on a fresh
+// independent 44-branch plant five seized valves recorded wide open were
+// fitted at 0.06-0.45 times their branches' design resistance), and its
+// branch is given the flow its table would pass at the differential read,
+// up to 3.6 times the true one. Nothing in the model can take that flow
+// back, so the one reading of the branches' sum, the total flow at the
+// pump, is set aside as an outlier, and the pump is made stronger than its
+// curve and the headers smoother to supply the flow that is not there
+// (e10: the pump 1.095 times its curve, the headers 0.89, the flow 10.8
+// standard uncertainties above the clamp-on's; the plan then ran the pump
+// about 5 % slow and every branch got 93-95 %). Where the test points read
+// so far off that the fit sets them aside instead, the branch keeps its
+// design resistance behind a valve on its table, which passes the same
+// flow too many.
 //
 // Faults raise a branch's resistance (fouling, a part-closed isolating
-// valve); little lowers it beyond a clean branch's scatter. So when a state's
-// total flow is an outlier and the pump's differential, speed and that flow
-// agree with the pump's curve (pumpAgreeZ), the branches whose valve is only
-// assumed and whose fitted resistance is below 1/suspectRatio of design are
+// valve); little lowers it beyond a clean branch's scatter. So when the
+// pump's differential, speed and a state's total flow agree with the pump's
+// curve (pumpAgreeZ) and the fit sets that total flow aside or misses it,
+// the branches whose valve is only assumed and whose fitted resistance is
+// below 1/suspectRatio of design, or whose test points were set aside, are
 // refitted together with their valves set elsewhere than recorded (the
 // offset free) and their resistance under the clean prior, the total flow
-// back in. The refit is kept when it keeps every total flow so set aside
-// without setting aside more readings than the fit it replaces: the total
-// flow is then explained by the weakly read branches together, not by the
-// pump alone. It returns the fit to go on from.
+// and their own readings back in. The refit is kept when it keeps every
+// such total flow, fits it better, and sets aside no reading the fit it
+// replaces kept: the total flow is then explained by the weakly read
+// branches together, not by the pump alone. It returns the fit to go on
+// from.
 func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveVerdict) (*fitRun, error) {
 	m := su.m
 	if m.Pump == nil || m.Several() || su.rSigma == nil {
