@@ -511,11 +511,10 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 		if fin, err = su.hypotheses(ctx, base, verdicts); err != nil {
 			return nil, err
 		}
-		if o.FaultShare > 0 && !math.IsInf(o.PriorResistance, 1) {
-			o.progress("total flow against valves read at their test points", 0, 0)
-			if fin, err = su.weakValves(ctx, fin, verdicts); err != nil {
-				return nil, err
-			}
+		// A total flow the pump's readings confirm, set aside or missed:
+		// the valves read at their test points alone explain it together.
+		if fin, err = su.weakValves(ctx, fin, verdicts); err != nil {
+			return nil, err
 		}
 		o.progress("doubted flow readings", 0, 0)
 		if fin, su.doubted, err = su.doubtFlows(ctx, fin, verdicts); err != nil {

@@ -126,6 +126,7 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 		}
 		exclude = append(exclude, oi)
 	}
+	su.opt.progress("the total flow at the pump against valves read at their test points", 0, 0)
 	next, err := su.runLocal(ctx, hyp, base.sel, base, su.opt.OutlierZ, false, -1, exclude)
 	if err != nil {
 		restore()
