@@ -1,0 +1,104 @@
+package calibrate
+
+import (
+	"math"
+	"testing"
+)
+
+// kvDrop is the square law of IEC 60534-2-1's Kv definition for water of
+// specific gravity 1: Δp = (q/Kv)² bar with q in m3/h, in Pa and m3/s.
+func kvDrop(kv float64) func(q float64) (float64, float64) {
+	r := 1e5 / (kv * kv) * 3600 * 3600 // Pa per (m3/s)²
+	return func(q float64) (float64, float64) { return r * q * q, 2 * r * q }
+}
+
+// tpReadings returns the valve differentials a branch of fixed parts of
+// Kv kvF times multiplier m shows at each valve Kv under differential d,
+// read by test points whose flow factor is 1+b: from the square law,
+// V = d·R_v/(m R_F + R_v), read (1+b)² V.
+func tpReadings(kvF, m, b, d float64, kvs []float64, modelled bool) TestPointCase {
+	rf := 1 / (kvF * kvF)
+	c := TestPointCase{Fixed: kvDrop(kvF)}
+	for k, kv := range kvs {
+		rv := 1 / (kv * kv)
+		v := (1 + b) * (1 + b) * d * rv / (m*rf + rv)
+		c.States = append(c.States, TestPointState{
+			Setting: float64(k + 1), Valve: v, ValveSD: 250 + 0.005*v, // ±(0.5 kPa + 1 %) at k = 2
+			Branch: d, BranchSD: 250 + 0.005*d, Modelled: modelled, ValveDrop: kvDrop(kv),
+		})
+	}
+	return c
+}
+
+// TestWeighTestPoints: a clean branch whose test points read the flow 25 %
+// low and the same branch fouled to 2.215 times its design resistance,
+// read right, give the same valve differential at one setting (solved by
+// hand from the square law: m = ((R_F + R_v)/g - R_v)/R_F with g = 0.5625,
+// R_F = 1/9, R_v = 1/16); the weighing must then give the two the same
+// verdict, neither decided. Opened to twice the Kv, the fouled branch's
+// valve takes 5.97 kPa of 100 and the other's test points read 6.94: the
+// second setting must decide each the right way, with the multiplier and
+// the error found. Test points reading 20 % high in a branch at design
+// (which one setting shows as a branch passing far more than designed)
+// are decided too, with the branch differential the model's instead of
+// read.
+func TestWeighTestPoints(t *testing.T) {
+	const d = 100e3
+	mFouled := ((1.0/9+1.0/16)/0.5625 - 1.0/16) / (1.0 / 9)
+	one := []float64{4}
+	two := []float64{4, 8}
+	fouled1, err := WeighTestPoints(tpReadings(3, mFouled, 0, d, one, false))
+	if err != nil {
+		t.Fatal(err)
+	}
+	off1, err := WeighTestPoints(tpReadings(3, 1, -0.25, d, one, false))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fouled1.Settings != 1 || math.Abs(fouled1.Weight-off1.Weight) > 1e-3 {
+		t.Errorf("one setting: verdicts %+v and %+v, want the same", fouled1, off1)
+	}
+	if fouled1.Weight < 1-MeterDecides || fouled1.Weight > MeterDecides {
+		t.Errorf("one setting: weight %.3f decided, want between %.3f and %.3f", fouled1.Weight, 1-MeterDecides, MeterDecides)
+	}
+	cases := []struct {
+		name     string
+		m, b     float64
+		modelled bool
+		kvs      []float64
+		off      bool
+	}{
+		{"fouled, read right", mFouled, 0, false, two, false},
+		{"clean, test points 25 % low", 1, -0.25, false, two, true},
+		{"clean, test points 20 % high, branch differential modelled", 1, 0.2, true, two, true},
+		{"fouled, read right, three settings modelled", mFouled, 0, true, []float64{3, 4, 8}, false},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			v, err := WeighTestPoints(tpReadings(3, tc.m, tc.b, d, tc.kvs, tc.modelled))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if v.Settings != len(tc.kvs) {
+				t.Errorf("settings %d, want %d", v.Settings, len(tc.kvs))
+			}
+			if tc.off {
+				if v.Weight < MeterDecides || math.Abs(v.Off-tc.b) > 0.03 || math.Abs(math.Log(v.Ratio/tc.m)) > 0.1 {
+					t.Errorf("verdict %+v: want weight >= %.3f, off %.2f, ratio %.2f", v, MeterDecides, tc.b, tc.m)
+				}
+				return
+			}
+			if v.Weight > 1-MeterDecides || math.Abs(math.Log(v.RatioRight/tc.m)) > 0.05 {
+				t.Errorf("verdict %+v: want weight <= %.3f, ratio if right %.3f", v, 1-MeterDecides, tc.m)
+			}
+		})
+	}
+	bad := tpReadings(3, 1, 0, d, two, false)
+	bad.States[1].Valve = 2 * d
+	if _, err := WeighTestPoints(bad); err == nil {
+		t.Error("a valve differential twice the branch's: no error")
+	}
+	if _, err := WeighTestPoints(TestPointCase{}); err == nil {
+		t.Error("no states: no error")
+	}
+}
