@@ -94,6 +94,14 @@ type ReadOptions struct {
 	// Max is the most readings listed; 0 lists all that lower the risk at
 	// all (the last may lower it very little: see Candidate.Gain).
 	Max int
+	// Decides is, by model index, the risk a first reading of the branch
+	// after setting removes beyond its band's narrowing (nil: none): a
+	// branch planned on one of two explanations its readings so far
+	// cannot tell apart, which its reading at the new setting decides
+	// (the expected branches outside the tolerance under the explanation
+	// it was not planned for). DecidesWhy says what it decides.
+	Decides    []float64
+	DecidesWhy []string
 	// Workers bounds the goroutines the ranking's independent work (the
 	// sensitivity solves, the covariance's rows) runs on side by side; 0
 	// means runtime.GOMAXPROCS(0), 1 one after another. The ranking is
@@ -265,6 +273,13 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	sort.SliceStable(byRisk, func(a, b int) bool { return sd0[byRisk[a]] > sd0[byRisk[b]] })
 	need := byNeed[:min(len(byNeed), maxNeedRows)]
 	follow := slices.Clone(need)
+	// The branches a reading decides come next: their risk is not in
+	// their band.
+	for i := range n {
+		if i < len(o.Decides) && o.Decides[i] > 0 && target[i] > 0 && !slices.Contains(follow, i) && len(follow) < maxRankBranches {
+			follow = append(follow, i)
+		}
+	}
 	for _, i := range byRisk {
 		if len(follow) >= maxRankBranches {
 			break
@@ -413,7 +428,17 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	cur := func() float64 {
 		return risk(func(r int) float64 { return K.At(r, r) }, needVar(K.At))
 	}
-	rp.Risk = cur()
+	// What a first reading of each followed branch decides beyond its
+	// band (Decides), removed once the branch is read either way.
+	extra := make([]float64, len(follow))
+	var extraLeft float64
+	for k, i := range follow {
+		if i < len(o.Decides) && o.Decides[i] > 0 {
+			extra[k] = o.Decides[i]
+			extraLeft += extra[k]
+		}
+	}
+	rp.Risk = cur() + extraLeft
 	rp.NeedSD = math.Sqrt(max(needVar(K.At), 0))
 
 	type cand struct {
@@ -574,7 +599,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		nvNow = needVar(ka)
 	}
 	nvNow = needVar(ka)
-	now := rp.Risk
+	now := rp.Risk - extraLeft
 	// Lazy greedy (Minoux, "Accelerated greedy algorithms for maximizing
 	// submodular set functions", 1978): a reading lowers the variances the
 	// others would lower, so what a candidate removed last round bounds
@@ -623,23 +648,42 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			} else {
 				r = after(c, own)
 			}
-			sc := (now - r) / c.cost
+			var ex float64
+			if c.k >= 0 {
+				ex = extra[c.k]
+			}
+			sc := (now - r + ex) / c.cost
 			bound[ci] = sc
 			if sc > bestScore {
 				best, bestScore, bestRisk = ci, sc, r
 			}
 		}
-		if best < 0 || !(now-bestRisk > 1e-9) {
+		if best < 0 {
 			break
 		}
 		c := &cands[best]
+		var ex float64
+		if c.k >= 0 {
+			ex = extra[c.k]
+		}
+		if !(now-bestRisk+ex > 1e-9) {
+			break
+		}
 		c.done = true
-		rp.Readings = append(rp.Readings, describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk, c.cost, pout, pd))
+		rd := describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk+ex, c.cost, pout, pd)
+		if ex > 0 {
+			if i := follow[c.k]; i < len(o.DecidesWhy) && o.DecidesWhy[i] != "" {
+				rd.Settles = o.DecidesWhy[i] + "; " + rd.Settles
+			}
+			extra[c.k] = 0
+			extraLeft -= ex
+		}
+		rp.Readings = append(rp.Readings, rd)
 		observe(c)
 		now = bestRisk
 		round++
 	}
-	rp.RiskAfter = now
+	rp.RiskAfter = now + extraLeft
 	return rp, nil
 }
 

@@ -11,23 +11,11 @@ import (
 	"flowset/internal/parallel"
 )
 
-// Test points that read wrong: the second explanation of a branch found
-// restricted through its own valve's test points alone. A partly blocked
-// tapping, air in a sensing line or a sensor off its calibration scales the
-// valve differential read, and the flow the meter derives from it through
-// the valve's table, by one factor; with the branch differential read
-// right, that is exactly what a fouled terminal behind correct readings
-// looks like, and no reading at the branch tells them apart.
+// Test points that read wrong (calibrate.TestPointShare): the second
+// explanation of a branch found restricted through its own valve's test
+// points alone. At one valve setting no reading at the branch tells the two
+// apart; at several, calibrate.WeighTestPoints does.
 const (
-	// testPointShare is the prior probability that a branch's test-point
-	// readings are off that way: about one in twenty-five (common practice,
-	// no source).
-	testPointShare = 0.04
-	// testPointMax bounds the flow error such readings carry, ±40 %, taken
-	// as uniform (common practice, no source). A meter dialled to the wrong
-	// valve does not count: its flow then disagrees with the differential
-	// through the table, which the fit sees.
-	testPointMax = 0.4
 	// hedgeSpread is the standard deviation, as a fraction of flow, of what
 	// else moves a branch after setting: the valve's Kv tolerance (2.9 %,
 	// see calibrate.DefaultPriorKv) and the headers, about 2.5 % (common
@@ -86,6 +74,7 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		id                  string
 		i                   int
 		mf, b, wFault, wRds float64
+		mReads              float64 // the multiplier if the test points read off
 		c                   balance.HedgeCase
 		res                 balance.HedgeResult
 		err                 error
@@ -103,6 +92,11 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		}
 		bf := j.Cal.Branches[i]
 		mf := j.Params.Resistance[i]
+		tv, ok := j.testPoints[i]
+		if ok && (tpOff(tv) || tpRight(tv)) {
+			continue
+		}
+		several := ok && tv.Settings >= 2
 		ln, sd := bf.DataLn, bf.DataSD
 		if math.IsNaN(ln) {
 			ln, sd = math.Log(mf), 0
@@ -125,19 +119,25 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		mm := math.Exp(ln)
 		c := mm / (1 - phi + mm*phi)
 		b := 1/math.Sqrt(c) - 1
-		if math.Abs(b) > testPointMax {
+		if math.Abs(b) > calibrate.TestPointMax && !several {
 			continue
 		}
 		jac := 0.5 / math.Sqrt(c) * (1 - phi) / (1 - phi + mm*phi) // |db/d ln m|
 		wFault := calibrate.DefaultFaultShare * normalPDF(ln, math.Hypot(calibrate.DefaultPriorResistance, sd))
-		wReads := testPointShare / (2 * testPointMax) * jac
+		wReads := calibrate.TestPointShare / (2 * calibrate.TestPointMax) * jac
+		mReads := 1.0
+		if several {
+			// Read at several settings but not decided: the weighing
+			// of every state, its multipliers under each explanation.
+			wFault, wReads, mf, mReads = 1-tv.Weight, tv.Weight, tv.RatioRight, tv.Ratio
+		}
 		_, hi := m.Branches[i].Valve.Range()
 		open := m.ValveElement(i, hi, j.Params.KvScale[i])
 		if open == nil {
 			continue
 		}
 		openDrop, _ := open.Drop(bp.Target, m.Fluid)
-		ws = append(ws, weighed{id: f.Branch, i: i, mf: mf, b: b, wFault: wFault, wRds: wReads, c: balance.HedgeCase{
+		ws = append(ws, weighed{id: f.Branch, i: i, mf: mf, b: b, wFault: wFault, wRds: wReads, mReads: mReads, c: balance.HedgeCase{
 			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
 			Diff:   bp.BranchDiff,
 			Target: bp.Target,
@@ -147,7 +147,7 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 	}
 	parallel.For(parallel.Workers(j.opts.workers), len(ws), func(_, k int) {
 		w := &ws[k]
-		w.res, w.err = balance.Hedge(w.c, []balance.Hypothesis{{Multiplier: w.mf, Weight: w.wFault}, {Multiplier: 1, Weight: w.wRds}})
+		w.res, w.err = balance.Hedge(w.c, []balance.Hypothesis{{Multiplier: w.mf, Weight: w.wFault}, {Multiplier: w.mReads, Weight: w.wRds}})
 	})
 	var out []hedged
 	for _, w := range ws {

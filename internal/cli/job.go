@@ -85,6 +85,10 @@ type job struct {
 	// unconfirmed are the branches the plan holds at design until a flow
 	// read another way confirms their fitted resistance.
 	unconfirmed []string
+	// testPoints are the verdicts on branches read through their own
+	// valve's test points alone at two or more settings, by model index
+	// (testPointVerdicts).
+	testPoints map[int]tpWeighed
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -197,6 +201,12 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		slices.SortStableFunc(j.Findings, func(a, b diagnose.Finding) int { return int(b.Severity) - int(a.Severity) })
 	}
 
+	tp, err := testPointVerdicts(ctx, j)
+	if err != nil {
+		return nil, err
+	}
+	j.testPoints = tp
+	applyTestPoints(j)
 	unconfirmed := holdUnconfirmed(m, j)
 	j.unconfirmed = unconfirmed
 
@@ -265,6 +275,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		if j.Cal != nil {
 			doing = append(doing, "ranking the readings to take after setting")
 			ro.Uncertainty = uncertainty(j.Cal)
+			ro.Decides, ro.DecidesWhy = tpDecides(j, plan, hedges)
 		} else {
 			// A plan from design: rank the survey to take before setting
 			// anything, on the fit's priors, read as found.
@@ -442,6 +453,10 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 		}
 		i, ok := m.Index(f.Branch)
 		if !ok || isHeld[f.Branch] {
+			continue
+		}
+		if v, ok := j.testPoints[i]; ok && (tpOff(v) || tpRight(v)) {
+			// Read at several settings, its test points are decided.
 			continue
 		}
 		switch {

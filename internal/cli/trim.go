@@ -245,6 +245,18 @@ func (j *job) trim(ctx context.Context, k int) error {
 	p := j.Params.Clone()
 	if j.Cal != nil {
 		p = planParams(j.Cal)
+		// A branch whose test points the readings at several settings
+		// find reading off is as left where that explanation puts it, and
+		// is trimmed on it; one they decide either way is not doubted for
+		// sitting far from a prediction made before it was decided.
+		for i, v := range j.testPoints {
+			if tpOff(v) {
+				p.Resistance[i] = j.Params.Resistance[i]
+			}
+			if (tpOff(v) || tpRight(v)) && opt.Expected != nil {
+				opt.Expected[i] = math.NaN()
+			}
+		}
 		opt.Hedged = make([]bool, len(m.Branches))
 		for i := range m.Branches {
 			if a, b := j.Params.Resistance[i], p.Resistance[i]; math.Abs(a-b) > 1e-9*max(a, b) {
@@ -271,6 +283,13 @@ func (j *job) trim(ctx context.Context, k int) error {
 				// Off its mark: where a new mark puts it is not known.
 				opt.Hold[i] = true
 			}
+		}
+	}
+	for i, v := range j.testPoints {
+		if tpOff(v) && opt.Doubt != nil {
+			// Its readings are wrong, and known to be: the model as
+			// corrected stands for them.
+			opt.Doubt[i] = false
 		}
 	}
 	tp, err := balance.Trim(ctx, m, p, j.Plan, m.States[k], opt)

@@ -1,0 +1,333 @@
+package cli
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+
+	"flowset/internal/balance"
+	"flowset/internal/calibrate"
+	"flowset/internal/diagnose"
+	"flowset/internal/parallel"
+	"flowset/internal/plant"
+	"flowset/internal/site"
+)
+
+// tpSuspect is the fitted resistance ratio (or its inverse) beyond which a
+// branch read through its own valve's test points alone is weighed against
+// those test points reading off, where nothing flagged it.
+const tpSuspect = 1.5
+
+// tpEdge is the fraction of calibrate.TestPointMax beyond which the
+// test-point explanation is not taken even when ahead: an error piled
+// against the edge of its prior is the readings asking for something the
+// two explanations do not hold (a valve off its table: on the independent
+// test plants, seized valves scored so).
+const tpEdge = 0.85
+
+// tpWeighed is a branch's test points weighed, with the valve settings
+// they were read at.
+type tpWeighed struct {
+	calibrate.TestPointVerdict
+	Sets []float64
+}
+
+// testPointVerdicts weighs, for each branch found off design on its own
+// valve's test points alone (no flow read another way), its test points
+// reading off against its resistance (calibrate.WeighTestPoints), by model
+// index. Where the branch differential was not read in a state, the fitted
+// model's is used. Only a branch read at two or more settings can be
+// decided (tpOff, tpRight); one read at one gives the weights its reading
+// after setting at another would settle.
+func testPointVerdicts(ctx context.Context, j *job) (map[int]tpWeighed, error) {
+	if j.Cal == nil {
+		return nil, nil
+	}
+	l, m := j.L, j.L.Model
+	indep := map[string]bool{}
+	for _, e := range j.Evidence {
+		indep[e.ID] = e.HasFlow
+	}
+	flagged := map[string]bool{}
+	for _, f := range j.Findings {
+		switch f.Code {
+		case diagnose.Restricted, diagnose.CannotReachDesign, diagnose.Free, diagnose.ValveMisSet:
+			flagged[f.Branch] = true
+		}
+	}
+	type group struct {
+		k                int // state
+		setting          float64
+		v, vsd, q, qsd   float64
+		d, dsd           float64
+		hasV, hasQ, hasD bool
+	}
+	type cand struct {
+		i      int
+		groups []*group
+		sets   []float64
+		c      calibrate.TestPointCase
+	}
+	var cands []*cand
+	for i := range m.Branches {
+		b := &m.Branches[i]
+		if b.Valve == nil || b.PI != nil || b.Bypass != nil || b.Riser() || b.Controlled() || indep[b.ID] || m.FixedElement(i, 1) == nil {
+			continue
+		}
+		if h := j.Cal.Branches[i].Valve.Hypothesis; h == calibrate.SetElsewhere || h == calibrate.HoldsOneKv {
+			continue
+		}
+		if r := j.Fitted.Resistance[i]; !flagged[b.ID] && !(r > tpSuspect || r < 1/tpSuspect) {
+			continue
+		}
+		c := &cand{i: i}
+		byKey := map[[2]float64]*group{}
+		for k, st := range m.States {
+			for _, ri := range st.Readings {
+				r := &l.Site.Readings[ri]
+				if r.Where != b.ID || r.Bypass {
+					continue
+				}
+				set := r.Setting
+				if math.IsNaN(set) {
+					set = st.Settings[i]
+				}
+				key := [2]float64{float64(k), set}
+				g := byKey[key]
+				if g == nil {
+					g = &group{k: k, setting: set}
+					byKey[key] = g
+					c.groups = append(c.groups, g)
+				}
+				switch {
+				case r.What == site.ValveDiff:
+					g.v, g.vsd, g.hasV = r.Value, r.Sigma, true
+				case r.What == site.Flow && r.Instrument == "valve-meter":
+					g.q, g.qsd, g.hasQ = r.Value, r.Sigma, true
+				case r.What == site.BranchDiff:
+					g.d, g.dsd, g.hasD = r.Value, r.Sigma, true
+				}
+			}
+		}
+		for _, g := range c.groups {
+			if (g.hasV || g.hasQ) && !slices.Contains(c.sets, g.setting) {
+				c.sets = append(c.sets, g.setting)
+			}
+		}
+		// Read at one setting only, a branch is weighed for the ranking
+		// alone, which a larger site does not run.
+		if len(c.sets) >= 2 || len(c.sets) == 1 && len(m.Branches) <= maxRankBranches {
+			cands = append(cands, c)
+		}
+	}
+	if len(cands) == 0 {
+		return nil, nil
+	}
+	// The fitted model's branch differentials where none was read: one
+	// solve per state wanted.
+	solved := map[int]*plant.Solved{}
+	for _, c := range cands {
+		for _, g := range c.groups {
+			if g.hasD || solved[g.k] != nil {
+				continue
+			}
+			if g.k == 0 && j.Before != nil {
+				solved[0] = j.Before
+				continue
+			}
+			s, err := m.Solve(ctx, j.Fitted, m.States[g.k])
+			if err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
+				continue
+			}
+			solved[g.k] = s
+		}
+	}
+	for _, c := range cands {
+		i := c.i
+		fixed := m.FixedElement(i, 1)
+		c.c.Fixed = func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }
+		for _, g := range c.groups {
+			valve := m.ValveElement(i, g.setting, 1)
+			if valve == nil || !(g.hasV || g.hasQ) {
+				continue
+			}
+			s := calibrate.TestPointState{Setting: g.setting, Valve: g.v, ValveSD: g.vsd, Branch: g.d, BranchSD: g.dsd,
+				ValveDrop: func(q float64) (float64, float64) { return valve.Drop(q, m.Fluid) }}
+			if !g.hasV {
+				// The meter's flow is its differential through the table.
+				dp, slope := valve.Drop(g.q, m.Fluid)
+				s.Valve, s.ValveSD = dp, slope*g.qsd
+			}
+			if !g.hasD {
+				sv := solved[g.k]
+				if sv == nil || sv.State.Settings[i] != g.setting {
+					continue
+				}
+				s.Branch, s.BranchSD, s.Modelled = sv.BranchDiff(i), 0.01*sv.BranchDiff(i), true
+			}
+			c.c.States = append(c.c.States, s)
+		}
+	}
+	verdicts := make([]calibrate.TestPointVerdict, len(cands))
+	errs := make([]error, len(cands))
+	parallel.For(parallel.Workers(j.opts.workers), len(cands), func(_, k int) {
+		verdicts[k], errs[k] = calibrate.WeighTestPoints(cands[k].c)
+	})
+	out := map[int]tpWeighed{}
+	for k, c := range cands {
+		if errs[k] == nil && verdicts[k].Settings > 0 {
+			out[c.i] = tpWeighed{verdicts[k], c.sets}
+		}
+	}
+	return out, nil
+}
+
+// tpOff reports whether verdict v, on readings at two or more settings,
+// decides for the test points reading off.
+func tpOff(v tpWeighed) bool {
+	return v.Settings >= 2 && v.Weight >= calibrate.MeterDecides && math.Abs(v.Off) <= tpEdge*calibrate.TestPointMax
+}
+
+// tpRight reports whether verdict v, on readings at two or more settings,
+// decides for the test points reading right: the branch is off design as
+// fitted.
+func tpRight(v tpWeighed) bool {
+	return v.Settings >= 2 && v.Weight <= 1-calibrate.MeterDecides
+}
+
+// applyTestPoints acts on the verdicts of testPointVerdicts: a branch whose
+// test points the readings at several settings find reading off is planned
+// on its resistance under that explanation, and its findings of a branch
+// off design become one of the test points reading off; one they find
+// reading right keeps its findings, with the evidence said, and is neither
+// held at design nor hedged (holdUnconfirmed and hedgeTestPoints skip the
+// branches decided either way).
+func applyTestPoints(j *job) {
+	if len(j.testPoints) == 0 {
+		return
+	}
+	m := j.L.Model
+	var add []diagnose.Finding
+	j.Findings = slices.DeleteFunc(j.Findings, func(f diagnose.Finding) bool {
+		i, ok := m.Index(f.Branch)
+		if !ok {
+			return false
+		}
+		v, ok := j.testPoints[i]
+		if !ok {
+			return false
+		}
+		switch f.Code {
+		case diagnose.Restricted, diagnose.CannotReachDesign, diagnose.Free, diagnose.ValveMisSet:
+		default:
+			return false
+		}
+		return tpOff(v)
+	})
+	for k := range j.Findings {
+		f := &j.Findings[k]
+		i, ok := m.Index(f.Branch)
+		if !ok {
+			continue
+		}
+		v, ok := j.testPoints[i]
+		if !ok || !tpRight(v) {
+			continue
+		}
+		switch f.Code {
+		case diagnose.Restricted, diagnose.CannotReachDesign, diagnose.Free, diagnose.ValveMisSet:
+			f.Evidence += fmt.Sprintf("; its valve's test points, read at %d settings, read right (the valve's share of the branch differential changed with its setting as this resistance gives: test points off %.1f %%)", v.Settings, 100*v.Weight)
+			f.Action = tpRightAction(f.Action)
+		}
+	}
+	for i, v := range j.testPoints {
+		if !tpOff(v) {
+			continue
+		}
+		id := m.Branches[i].ID
+		j.Params.Resistance[i] = v.Ratio
+		way := "low"
+		if v.Off > 0 {
+			way = "high"
+		}
+		add = append(add, diagnose.Finding{Code: diagnose.SuspectReading, Severity: diagnose.Fault, Branch: id, Reading: "flow and valve diff by the valve's test points",
+			Message: fmt.Sprintf("its valve's test points read the flow about %.0f %% %s (a partly blocked tapping, air in a sensing line or a meter off its calibration); the branch itself is near %.2f times its design resistance", 100*math.Abs(v.Off), way, v.Ratio),
+			Evidence: fmt.Sprintf("read at %d valve settings: the valve's share of the branch differential changed with its setting as a branch at %.2f times design gives, with every valve differential read %.0f %% %s; a branch at %.2f times design read right fits worse (test points off %.1f %%)",
+				v.Settings, v.Ratio, 100*math.Abs((1+v.Off)*(1+v.Off)-1), map[bool]string{true: "high", false: "low"}[v.Off > 0], v.RatioRight, 100*v.Weight),
+			Confidence: v.Weight,
+			Action:     "check the test points and the meter, and read the flow with a clamp-on to confirm; the plan takes the branch at the resistance above, not at its readings"})
+	}
+	if len(add) > 0 {
+		slices.SortFunc(add, func(a, b diagnose.Finding) int { return mustIndex(m, a.Branch) - mustIndex(m, b.Branch) })
+		j.Findings = append(j.Findings, add...)
+		slices.SortStableFunc(j.Findings, func(a, b diagnose.Finding) int { return int(b.Severity) - int(a.Severity) })
+	}
+}
+
+// tpRightAction is a finding's action once the readings at several settings
+// have confirmed the branch's own test points.
+func tpRightAction(a string) string {
+	if a == "" {
+		return "the readings at several valve settings confirm it: the plan sets its valve for it"
+	}
+	return a + " (the readings at several valve settings confirm it: the plan sets its valve for it)"
+}
+
+// tpDecides is, by model index, what reading each branch after setting
+// decides beyond its band (balance.ReadOptions.Decides): a branch held at
+// design or hedged on its own test points alone, read so far at one
+// setting, whose new setting is another. Its test points read again there
+// tell the two explanations apart (calibrate.WeighTestPoints), and the
+// risk removed is the chance that the plan's setting leaves it outside the
+// tolerance under the explanation that holds: held, the fault's; hedged,
+// each explanation's flow weighed.
+func tpDecides(j *job, plan *balance.Plan, hedges []hedged) ([]float64, []string) {
+	if len(j.testPoints) == 0 || plan == nil {
+		return nil, nil
+	}
+	m := j.L.Model
+	out := func(f float64) float64 {
+		if f < 1+plan.ToleranceLow || f > 1+plan.ToleranceHigh {
+			return 1
+		}
+		return 0
+	}
+	risk := map[string]float64{}
+	weight := map[string]float64{}
+	for _, id := range j.unconfirmed {
+		if i, ok := m.Index(id); ok {
+			if v, ok := j.testPoints[i]; ok {
+				risk[id], weight[id] = 1-v.Weight, v.Weight
+			}
+		}
+	}
+	for _, h := range hedges {
+		if !h.Meter {
+			risk[h.ID], weight[h.ID] = (1-h.Weight)*out(h.IfFault)+h.Weight*out(h.IfReadings), h.Weight
+		}
+	}
+	var dec []float64
+	var why []string
+	for _, b := range plan.Branches {
+		r := risk[b.ID]
+		i, ok := m.Index(b.ID)
+		if !(r > 0) || !ok || m.Branches[i].Valve == nil || math.IsNaN(b.New) {
+			continue
+		}
+		v := j.testPoints[i]
+		lo, hi := m.Branches[i].Valve.Range()
+		if slices.ContainsFunc(v.Sets, func(s float64) bool { return math.Abs(s-b.New) < 0.02*(hi-lo) }) {
+			continue // read there already: nothing new to learn
+		}
+		if dec == nil {
+			dec, why = make([]float64, len(m.Branches)), make([]string, len(m.Branches))
+		}
+		dec[i] = r
+		why[i] = fmt.Sprintf("read at its new setting, its test points tell a real restriction from themselves reading off (%.0f %% chance of the latter now): the plan cannot, and a trim then sets it", 100*weight[b.ID])
+	}
+	return dec, why
+}
