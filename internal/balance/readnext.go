@@ -275,17 +275,23 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	follow := slices.Clone(need)
 	// The branches a reading decides come next: their risk is not in
 	// their band.
+	followed := make(map[int]bool, maxRankBranches)
+	for _, i := range need {
+		followed[i] = true
+	}
 	for i := range n {
-		if i < len(o.Decides) && o.Decides[i] > 0 && target[i] > 0 && !slices.Contains(follow, i) && len(follow) < maxRankBranches {
+		if i < len(o.Decides) && o.Decides[i] > 0 && target[i] > 0 && !followed[i] && len(follow) < maxRankBranches {
 			follow = append(follow, i)
+			followed[i] = true
 		}
 	}
 	for _, i := range byRisk {
 		if len(follow) >= maxRankBranches {
 			break
 		}
-		if !slices.Contains(need, i) {
+		if !followed[i] {
 			follow = append(follow, i)
+			followed[i] = true
 		}
 	}
 	// Rows: each followed branch's flow after the plan (the risk's), its

@@ -183,3 +183,64 @@ func byChainNeed(plan *Plan) []int {
 	slices.SortStableFunc(order, func(a, b int) int { return cmpF(plan.Needs[a].Chain, plan.Needs[b].Chain) })
 	return order
 }
+
+// TestRankDecidesFirst: a branch planned on one of two explanations its
+// readings cannot yet tell apart, whose reading at its new setting decides
+// it (ReadOptions.Decides: the chance, 0.6, that the plan's setting leaves
+// it outside the tolerance), is read before the most uncertain branch of
+// TestRankMostUncertainFirst's construction, whose band alone removes less
+// than that (a risk of at most one branch, halved at best by a reading);
+// the reading says what it decides, the risk before counts it and the risk
+// after does not. Without Decides the same branch is not read first.
+func TestRankDecidesFirst(t *testing.T) {
+	ctx := context.Background()
+	for _, tc := range rankPlants {
+		t.Run(tc.name, func(t *testing.T) {
+			m, p, base := rankPlant(t, tc.seed, tc.header)
+			n := len(m.Branches)
+			order := byChainNeed(base)
+			// The branch needing the least is the most uncertain; the
+			// one needing the next least is known well but undecided.
+			most, undecided := order[0], order[1]
+			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
+			for i := range u.LnResistance {
+				u.LnResistance[i] = 0.005
+			}
+			u.LnResistance[most] = 0.12
+			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
+			plain, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u})
+			if err != nil {
+				t.Fatal(err)
+			}
+			dec := make([]float64, n)
+			why := make([]string, n)
+			dec[undecided], why[undecided] = 0.6, "decides its explanation"
+			rp, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u, Decides: dec, DecidesWhy: why})
+			if err != nil {
+				t.Fatal(err)
+			}
+			first := func(rp *ReadPlan) Candidate {
+				k := slices.IndexFunc(rp.Readings, func(r Candidate) bool { return r.Index >= 0 })
+				if k < 0 {
+					t.Fatalf("no branch ranked: %+v", rp)
+				}
+				return rp.Readings[k]
+			}
+			if c := first(plain); c.Index == undecided {
+				t.Errorf("without Decides %s is read first", c.Where)
+			}
+			c := first(rp)
+			if c.Index != undecided || !strings.HasPrefix(c.Settles, "decides its explanation") || !(c.Gain >= 0.6) {
+				t.Errorf("first branch read %s (gain %.3f, %q), want %s with a gain of at least 0.6 saying what it decides", c.Where, c.Gain, c.Settles, m.Branches[undecided].ID)
+			}
+			if math.Abs(rp.Risk-plain.Risk-0.6) > 1e-9 {
+				t.Errorf("risk %.4f with Decides, %.4f without: want 0.6 more", rp.Risk, plain.Risk)
+			}
+			for _, r := range rp.Readings[1:] {
+				if r.Index == undecided && r.Gain >= 0.6 {
+					t.Errorf("%s counted as deciding twice", r.Where)
+				}
+			}
+		})
+	}
+}

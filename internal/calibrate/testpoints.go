@@ -28,6 +28,12 @@ const (
 	// the table's interpolation between its printed points and the fixed
 	// parts' departure from their design law (common practice, no source).
 	testPointFloor = 0.01
+	// ElsewhereShare is the prior probability that a valve sits off its
+	// handwheel's mark by one offset in every state (a slipped handwheel or
+	// memory stop, a valve set elsewhere than recorded): one in twenty
+	// (common practice, no source). The offset is uniform over the valve's
+	// range, as the fit's offset parameter's wide prior is.
+	ElsewhereShare = 0.05
 )
 
 // TestPointState is one survey state of a branch read through its valve's
@@ -42,25 +48,28 @@ type TestPointState struct {
 	// the models' differentials share one error of sd TestPointCase.ModelSD
 	// in ln (the header's and the pump's), the read ones do not.
 	Modelled bool
-	// ValveDrop is the valve's drop at the state's setting on its table,
-	// Pa, and its slope, at flow q (m3/s).
-	ValveDrop func(q float64) (dp, slope float64)
 }
 
-// TestPointCase is a branch to weigh: its states and the drop across its
+// TestPointCase is a branch to weigh: its states, the drop across its
 // fixed parts (terminal, pipe, fittings) as designed, which the branch's
-// resistance multiplier scales.
+// resistance multiplier scales, and its valve.
 type TestPointCase struct {
 	States []TestPointState
 	Fixed  func(q float64) (dp, slope float64)
+	// ValveR is the valve's square-law coefficient on its table at a
+	// setting (Δp = ValveR·q², Pa and m3/s: the Kv definition of IEC
+	// 60534-2-1), the setting clamped to Lo..Hi, its range.
+	ValveR func(setting float64) float64
+	Lo, Hi float64
 	// ModelSD is the sd of the common ln error of the modelled branch
 	// differentials; 0 means 0.03 (the fitted header and pump).
 	ModelSD float64
 	// The priors; 0 means the package default: the branch's resistance
 	// multiplier is clean (sd PriorClean in ln) or, with probability
 	// FaultShare, faulty (sd PriorResistance); its test points read off
-	// with probability Share, by a flow factor uniform within ±Max.
-	FaultShare, PriorClean, PriorResistance, Share, Max float64
+	// with probability Share, by a flow factor uniform within ±Max; its
+	// valve sits off its mark with probability Elsewhere.
+	FaultShare, PriorClean, PriorResistance, Share, Max, Elsewhere float64
 }
 
 // TestPointVerdict is what the readings say of a branch's test points.
@@ -68,8 +77,10 @@ type TestPointVerdict struct {
 	// Settings is the number of different valve settings the test points
 	// were read at: with one, only the priors separate the explanations.
 	Settings int
-	// Weight is the posterior probability that the test points read off.
-	Weight float64
+	// Weight is the posterior probability that the test points read off
+	// (the valve on its table), Elsewhere that the valve sits off its mark
+	// by one offset with its test points right; the rest is both right.
+	Weight, Elsewhere float64
 	// Off is the posterior mean of the flow error they read with if so
 	// (reading over true flow, less 1).
 	Off float64
@@ -86,22 +97,30 @@ var ErrTestPoints = errors.New("calibrate: test points cannot be weighed")
 
 // WeighTestPoints weighs a branch's test points reading off against their
 // reading right, on the branch's readings in every state. In state k the
-// branch passes the flow q_k at which m·F(q) + V_k(q) equals its
-// differential D_k (F the fixed parts as designed, V_k the valve on its
+// branch passes the flow q_k at which m·F(q) + R_k·q² equals its
+// differential D_k (F the fixed parts as designed, R_k the valve on its
 // table at the state's setting, m the resistance multiplier), and the test
-// points read g·V_k(q_k), g = (1+b)² for a flow error b. At one setting
+// points read g·R_k·q_k², g = (1+b)² for a flow error b. At one setting
 // every b has an m that fits (the ambiguity the plan hedges); at two or
 // more the valve's share of the branch differential changes with its
 // setting as m alone dictates, while g scales every state alike, so the
-// two separate. The posterior is summed on a grid of ln m (step 0.01) and
-// b (step 0.005) under the priors (marginal likelihoods, as in Kass and
-// Raftery, J. Am. Stat. Assoc. 90, 1995): the ln residuals of the valve
-// differentials are Gaussian with the gauges' uncertainties, the branch
-// differential's carried at unit sensitivity (square law), a floor for the
-// local model, and the modelled differentials' common error.
+// two separate. A third explanation, the valve off its mark by one offset
+// δ (R_k at the setting plus δ) with the test points right, is weighed
+// beside them where the valve's range is given: at several settings it can
+// mimic part of either.
+//
+// The posteriors are summed on grids of ln m (step 0.01), b (step 0.005)
+// and δ (a hundredth of the range) under the priors (marginal likelihoods,
+// as in Kass and Raftery, J. Am. Stat. Assoc. 90, 1995): the ln residuals
+// of the valve differentials are Gaussian with the gauges' uncertainties,
+// the branch differential's carried at unit sensitivity (square law), a
+// floor for the local model, and the modelled differentials' common error.
+// F is taken as the power law through its drop and slope where it carries
+// the first state's differential (Darcy-Weisbach friction varies slowly
+// with flow), so that each grid point costs a few Newton steps.
 func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	n := len(c.States)
-	if n == 0 || c.Fixed == nil {
+	if n == 0 || c.Fixed == nil || c.ValveR == nil {
 		return TestPointVerdict{}, ErrTestPoints
 	}
 	def := func(v, d float64) float64 {
@@ -114,12 +133,16 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	fs := def(c.FaultShare, DefaultFaultShare)
 	sc, sf := def(c.PriorClean, DefaultPriorClean), def(c.PriorResistance, DefaultPriorResistance)
 	share, bmax := def(c.Share, TestPointShare), def(c.Max, TestPointMax)
+	elsewhere := def(c.Elsewhere, ElsewhereShare)
+	if !(c.Hi > c.Lo) {
+		elsewhere = 0
+	}
 	settings := map[float64]bool{}
 	lnV := make([]float64, n)
 	dinv := make([]float64, n) // the independent variances' inverses
 	u := make([]float64, n)    // 1 for a modelled branch differential
 	for k, s := range c.States {
-		if !(s.Valve > 0) || !(s.Branch > 0) || !(s.ValveSD > 0) || !(s.BranchSD > 0) || s.ValveDrop == nil || s.Valve > 1.5*s.Branch {
+		if !(s.Valve > 0) || !(s.Branch > 0) || !(s.ValveSD > 0) || !(s.BranchSD > 0) || s.Valve > 1.5*s.Branch {
 			return TestPointVerdict{}, ErrTestPoints
 		}
 		settings[s.Setting] = true
@@ -129,6 +152,10 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 		if s.Modelled {
 			u[k] = 1
 		}
+	}
+	a, pw, err := powerLaw(c.Fixed, c.States[0].Branch)
+	if err != nil {
+		return TestPointVerdict{}, err
 	}
 	// Σ⁻¹ = D⁻¹ - c² D⁻¹uuᵀD⁻¹/(1 + c² uᵀD⁻¹u) (Sherman-Morrison).
 	var uDu float64
@@ -152,105 +179,170 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	cc := quad(ones, ones)
 
 	const step, bstep = 0.01, 0.005
-	lo, hi := -1.5, 3.0
+	const lo, hi = -1.5, 3.0
 	nm := int(math.Round((hi-lo)/step)) + 1
 	nb := int(math.Round(2*bmax/bstep)) + 1
 	ts := make([]float64, nb)
 	for j := range ts {
 		ts[j] = 2 * math.Log1p(-bmax+float64(j)*bstep)
 	}
-	// Per ln m: the residuals at g = 1 and the quadratic form's terms in
-	// t = ln g: Q(t) = a - 2tb + t²c.
+	lnPrior := func(lnm float64) float64 {
+		return math.Log((1-fs)*math.Exp(normLogPDF(lnm, sc*sc)) + fs*math.Exp(normLogPDF(lnm, sf*sf)))
+	}
+	// residuals fills r with each state's ln valve differential read less
+	// the model's at multiplier mm and valve coefficients rs, g = 1.
 	r := make([]float64, n)
-	type row struct{ lnm, lp, a, b float64 }
-	rows := make([]row, 0, nm)
+	residuals := func(mm float64, rs []float64) bool {
+		for k, s := range c.States {
+			q, ok := powerFlow(mm*a, pw, rs[k], s.Branch)
+			if !ok {
+				return false
+			}
+			r[k] = lnV[k] - math.Log(rs[k]*q*q)
+		}
+		return true
+	}
+	rs := make([]float64, n)
+	for k, s := range c.States {
+		rs[k] = c.ValveR(s.Setting)
+		if !(rs[k] > 0) {
+			return TestPointVerdict{}, ErrTestPoints
+		}
+	}
+	// On the table: per ln m, Q(t) = qa - 2t·qb + t²cc in t = ln g.
+	var e0, e1 logSum
+	var m0, m1, b1 float64 // sums of weight times ln m or b, by the largest's scale
+	type row struct{ lnm, lp, qa, qb float64 }
+	var rows []row
 	for im := range nm {
 		lnm := lo + float64(im)*step
-		mm := math.Exp(lnm)
-		ok := true
-		for k, s := range c.States {
-			q, err := branchFlow(c.Fixed, s.ValveDrop, mm, s.Branch)
-			if err != nil {
-				ok = false
-				break
-			}
-			v, _ := s.ValveDrop(q)
-			if !(v > 0) {
-				ok = false
-				break
-			}
-			r[k] = lnV[k] - math.Log(v)
-		}
-		if !ok {
+		if !residuals(math.Exp(lnm), rs) {
 			continue
 		}
-		prior := (1-fs)*math.Exp(normLogPDF(lnm, sc*sc)) + fs*math.Exp(normLogPDF(lnm, sf*sf))
-		if !(prior > 0) {
-			continue
-		}
-		rows = append(rows, row{lnm: lnm, lp: math.Log(prior), a: quad(r, r), b: quad(ones, r)})
+		rows = append(rows, row{lnm, lnPrior(lnm), quad(r, r), quad(ones, r)})
 	}
 	if len(rows) == 0 {
 		return TestPointVerdict{}, ErrTestPoints
 	}
-	// Log-weights under each explanation, then sums by the largest.
-	l0 := make([]float64, len(rows))
-	l1 := make([]float64, len(rows)*nb)
-	max0, max1 := math.Inf(-1), math.Inf(-1)
-	for i, w := range rows {
-		l0[i] = w.lp - 0.5*w.a
-		max0 = max(max0, l0[i])
+	for _, w := range rows {
+		e0.add(w.lp - 0.5*w.qa)
+		for _, t := range ts {
+			e1.add(w.lp - 0.5*(w.qa-2*t*w.qb+t*t*cc))
+		}
+	}
+	for _, w := range rows {
+		m0 += e0.weight(w.lp-0.5*w.qa) * w.lnm
 		for j, t := range ts {
-			v := w.lp - 0.5*(w.a-2*t*w.b+t*t*cc)
-			l1[i*nb+j] = v
-			max1 = max(max1, v)
+			wt := e1.weight(w.lp - 0.5*(w.qa-2*t*w.qb+t*t*cc))
+			m1 += wt * w.lnm
+			b1 += wt * (-bmax + float64(j)*bstep)
 		}
 	}
-	var s0, m0, s1, m1, b1 float64
-	for i, w := range rows {
-		e := math.Exp(l0[i] - max0)
-		s0 += e
-		m0 += e * w.lnm
-		for j := range ts {
-			e := math.Exp(l1[i*nb+j] - max1)
-			s1 += e
-			m1 += e * w.lnm
-			b1 += e * (-bmax + float64(j)*bstep)
+	lnE0 := e0.log() + math.Log(step) + math.Log(1-share-elsewhere)
+	lnE1 := e1.log() + math.Log(step*bstep/(2*bmax)) + math.Log(share)
+	lnE2 := math.Inf(-1)
+	if elsewhere > 0 {
+		// Off its mark: δ over the range (both ways), ln m coarser.
+		const nd, mstep = 101, 0.05
+		span := c.Hi - c.Lo
+		dstep := 2 * span / float64(nd-1)
+		var e2 logSum
+		rd := make([]float64, n)
+		for id := range nd {
+			d := -span + float64(id)*dstep
+			if d == 0 {
+				continue
+			}
+			for k, s := range c.States {
+				rd[k] = c.ValveR(min(max(s.Setting+d, c.Lo), c.Hi))
+			}
+			for lnm := lo; lnm <= hi+1e-9; lnm += mstep {
+				if residuals(math.Exp(lnm), rd) {
+					e2.add(lnPrior(lnm) - 0.5*quad(r, r))
+				}
+			}
+		}
+		if e2.n > 0 {
+			lnE2 = e2.log() + math.Log(mstep*dstep/(2*span)) + math.Log(elsewhere)
 		}
 	}
-	// ln E0 = max0 + ln(s0·step); ln E1 = max1 + ln(s1·step·bstep/(2 bmax)).
-	lnE0 := max0 + math.Log(s0*step) + math.Log(1-share)
-	lnE1 := max1 + math.Log(s1*step*bstep/(2*bmax)) + math.Log(share)
+	top := max(lnE0, lnE1, lnE2)
+	z := math.Exp(lnE0-top) + math.Exp(lnE1-top) + math.Exp(lnE2-top)
 	return TestPointVerdict{
 		Settings:   len(settings),
-		Weight:     1 / (1 + math.Exp(lnE0-lnE1)),
-		Off:        b1 / s1,
-		Ratio:      math.Exp(m1 / s1),
-		RatioRight: math.Exp(m0 / s0),
+		Weight:     math.Exp(lnE1-top) / z,
+		Elsewhere:  math.Exp(lnE2-top) / z,
+		Off:        b1,
+		Ratio:      math.Exp(m1),
+		RatioRight: math.Exp(m0),
 	}, nil
 }
 
-// branchFlow is the flow q at which m·F(q) + V(q) = d: Newton's method on
-// the sum, which rises with q, from the square law's estimate.
-func branchFlow(fixed, valve func(q float64) (float64, float64), m, d float64) (float64, error) {
+// logSum sums exponentials of log-weights without overflow: the largest
+// is found first (add), then weight gives each one's share of the sum.
+type logSum struct {
+	max, sum float64
+	n        int
+}
+
+func (l *logSum) add(v float64) {
+	if l.n == 0 || v > l.max {
+		if l.n > 0 {
+			l.sum *= math.Exp(l.max - v)
+		}
+		l.max = v
+	}
+	l.sum += math.Exp(v - l.max)
+	l.n++
+}
+
+func (l *logSum) log() float64 { return l.max + math.Log(l.sum) }
+
+func (l *logSum) weight(v float64) float64 { return math.Exp(v-l.max) / l.sum }
+
+// powerLaw returns a and p of the power law a·q^p through fixed's drop and
+// slope at the flow where the drop is d.
+func powerLaw(fixed func(q float64) (float64, float64), d float64) (a, p float64, err error) {
 	q := 1e-3
 	for range 60 {
-		f, fs := fixed(q)
-		v, vs := valve(q)
-		g, gs := m*f+v-d, m*fs+vs
-		if !(g+d > 0) || !(gs > 0) {
-			return 0, ErrTestPoints
+		f, _ := fixed(q)
+		if !(f > 0) {
+			return 0, 0, ErrTestPoints
 		}
-		// The square law's step from q, then Newton's where it is the
-		// nearer: both rise through the root.
-		next := q * math.Sqrt(d/(g+d))
-		if nt := q - g/gs; nt > 0 && math.Abs(nt-q) < math.Abs(next-q) {
-			next = nt
-		}
-		if math.Abs(next-q) <= 1e-12*q {
-			return next, nil
+		next := q * math.Sqrt(d/f)
+		if math.Abs(next-q) <= 1e-10*q {
+			q = next
+			break
 		}
 		q = next
 	}
-	return q, nil
+	f, fs := fixed(q)
+	if !(f > 0) || !(fs > 0) {
+		return 0, 0, ErrTestPoints
+	}
+	p = q * fs / f
+	return f / math.Pow(q, p), p, nil
+}
+
+// powerFlow is the flow q at which a·q^p + r·q² = d (Newton's method on
+// the rising sum, from the square law's estimate).
+func powerFlow(a, p, r, d float64) (float64, bool) {
+	q := math.Sqrt(d / (a + r))
+	for range 30 {
+		qp := math.Pow(q, p)
+		g := a*qp + r*q*q - d
+		gs := p*a*qp/q + 2*r*q
+		if !(gs > 0) {
+			return 0, false
+		}
+		next := q - g/gs
+		if !(next > 0) {
+			next = q / 2
+		}
+		if math.Abs(next-q) <= 1e-12*q {
+			return next, true
+		}
+		q = next
+	}
+	return q, true
 }

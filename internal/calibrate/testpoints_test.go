@@ -12,19 +12,27 @@ func kvDrop(kv float64) func(q float64) (float64, float64) {
 	return func(q float64) (float64, float64) { return r * q * q, 2 * r * q }
 }
 
+// tpKv is the test valve's table: Kv = 4·2^(s-1) m3/h over settings
+// 0.5-4, so settings 1 and 2 give Kv 4 and 8.
+func tpKv(s float64) float64 { return 4 * math.Pow(2, s-1) }
+
+// tpSetting is the setting of tpKv giving kv.
+func tpSetting(kv float64) float64 { return 1 + math.Log2(kv/4) }
+
 // tpReadings returns the valve differentials a branch of fixed parts of
 // Kv kvF times multiplier m shows at each valve Kv under differential d,
 // read by test points whose flow factor is 1+b: from the square law,
 // V = d·R_v/(m R_F + R_v), read (1+b)² V.
 func tpReadings(kvF, m, b, d float64, kvs []float64, modelled bool) TestPointCase {
 	rf := 1 / (kvF * kvF)
-	c := TestPointCase{Fixed: kvDrop(kvF)}
-	for k, kv := range kvs {
+	c := TestPointCase{Fixed: kvDrop(kvF), Lo: 0.5, Hi: 4,
+		ValveR: func(s float64) float64 { r, _ := kvDrop(tpKv(s))(1); return r }}
+	for _, kv := range kvs {
 		rv := 1 / (kv * kv)
 		v := (1 + b) * (1 + b) * d * rv / (m*rf + rv)
 		c.States = append(c.States, TestPointState{
-			Setting: float64(k + 1), Valve: v, ValveSD: 250 + 0.005*v, // ±(0.5 kPa + 1 %) at k = 2
-			Branch: d, BranchSD: 250 + 0.005*d, Modelled: modelled, ValveDrop: kvDrop(kv),
+			Setting: tpSetting(kv), Valve: v, ValveSD: 250 + 0.005*v, // ±(0.5 kPa + 1 %) at k = 2
+			Branch: d, BranchSD: 250 + 0.005*d, Modelled: modelled,
 		})
 	}
 	return c

@@ -1,0 +1,125 @@
+package cli
+
+import (
+	"context"
+	"encoding/csv"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"flowset/internal/site"
+	"flowset/internal/synth"
+)
+
+// TestTestPointsDecided: a plant from flowset's own generator (its square
+// law holds exactly, so the answer is known), surveyed in two states with
+// every branch read by valve meter with its valve and branch differentials.
+// A clean branch whose valve moved between the states has its test points
+// made to read the flow 25 % low in both (valve differentials times 0.5625,
+// flows times 0.75: the tapping's error of calibrate.TestPointShare): the
+// run must say its test points read about 25 % low and not call it
+// restricted, where at one setting it would be restricted about 1.8 times
+// (the fit itself puts this one's valve off its mark, an offset absorbing
+// part of the error: the weighing must see through it). A fouled branch
+// whose valve moved is found restricted with its test points confirmed,
+// and is neither held at design nor hedged. (On seeds 1, 2 and 8 both
+// hold; on seed 13 the branch's test points are 90 % likely off against
+// 10 % for its valve off its mark, rightly undecided.)
+func TestTestPointsDecided(t *testing.T) {
+	ctx := context.Background()
+	spec := synth.Spec{Branches: 16, Arrangement: site.DirectReturn, Seed: 8, Fouled: 0.25, Noise: 1, States: 2,
+		Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true, TotalFlow: true}}
+	s, tr, err := synth.Generate(ctx, spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The branches whose test points were read at two settings.
+	sets := map[string]map[float64]bool{}
+	for _, r := range s.Readings {
+		if r.What == site.Flow && r.Instrument == "valve-meter" && !math.IsNaN(r.Setting) {
+			if sets[r.Where] == nil {
+				sets[r.Where] = map[float64]bool{}
+			}
+			sets[r.Where][r.Setting] = true
+		}
+	}
+	var off, fouled string
+	for i, b := range s.Branches {
+		if len(sets[b.ID]) < 2 {
+			continue
+		}
+		switch tr.Faults[i] {
+		case "":
+			if off == "" {
+				off = b.ID
+			}
+		case synth.Fouled:
+			if fouled == "" {
+				fouled = b.ID
+			}
+		}
+	}
+	if off == "" || fouled == "" {
+		t.Fatalf("construction: no clean (%q) or fouled (%q) branch read at two settings", off, fouled)
+	}
+	for k := range s.Readings {
+		r := &s.Readings[k]
+		switch {
+		case r.Where != off:
+		case r.What == site.ValveDiff:
+			r.Value *= 0.75 * 0.75
+			r.Sigma *= 0.75 * 0.75
+		case r.What == site.Flow && r.Instrument == "valve-meter":
+			r.Value *= 0.75
+			r.Sigma *= 0.75
+		}
+	}
+	dir := filepath.Join(t.TempDir(), "site")
+	if err := os.Mkdir(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	if err := site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) }); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(t.TempDir(), "out")
+	code, stdout, errs := run(t, "run", dir, "--out", out)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d:\n%s", code, errs)
+	}
+	f, err := os.Open(filepath.Join(out, "findings.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	rows, err := csv.NewReader(f).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var offSaid, fouledSaid bool
+	for _, row := range rows[1:] {
+		code, br, text := row[1], row[2], strings.Join(row[3:], " ")
+		switch {
+		case br == off && (code == "restricted" || code == "cannot-reach-design"):
+			t.Errorf("%s, its test points reading 25 %% low, is called %s: %s", off, code, text)
+		case br == off && code == "suspect-reading" && strings.Contains(text, "test points read the flow about 2"):
+			offSaid = strings.Contains(text, "% low")
+		case br == fouled && code == "restricted":
+			fouledSaid = strings.Contains(text, "read right")
+		}
+	}
+	if !offSaid {
+		t.Errorf("no finding says %s's test points read about 25 %% low:\n%v", off, rows)
+	}
+	if !fouledSaid {
+		t.Errorf("no finding calls the fouled %s restricted with its test points read right:\n%v", fouled, rows)
+	}
+	flat := strings.Join(strings.Fields(stdout), " ")
+	for _, id := range []string{off, fouled} {
+		if strings.Contains(flat, id+" reads as") {
+			t.Errorf("%s is held or hedged on its test points:\n%s", id, stdout)
+		}
+	}
+}
