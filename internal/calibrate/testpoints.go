@@ -3,6 +3,7 @@ package calibrate
 import (
 	"errors"
 	"math"
+	"sort"
 )
 
 // Test points that read wrong: the second explanation of a branch found off
@@ -134,9 +135,6 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	sc, sf := def(c.PriorClean, DefaultPriorClean), def(c.PriorResistance, DefaultPriorResistance)
 	share, bmax := def(c.Share, TestPointShare), def(c.Max, TestPointMax)
 	elsewhere := def(c.Elsewhere, ElsewhereShare)
-	if !(c.Hi > c.Lo) {
-		elsewhere = 0
-	}
 	settings := map[float64]bool{}
 	lnV := make([]float64, n)
 	dinv := make([]float64, n) // the independent variances' inverses
@@ -152,6 +150,11 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 		if s.Modelled {
 			u[k] = 1
 		}
+	}
+	if !(c.Hi > c.Lo) || len(settings) < 2 {
+		// At one setting an offset is a multiple of the valve's
+		// resistance, which the branch's multiplier takes up.
+		elsewhere = 0
 	}
 	a, pw, err := powerLaw(c.Fixed, c.States[0].Branch)
 	if err != nil {
@@ -224,26 +227,40 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	if len(rows) == 0 {
 		return TestPointVerdict{}, ErrTestPoints
 	}
+	// Q(t) is least at t = qb/cc; beyond 9 sd of it (Q up by 81) a
+	// term is under e^-40 of the row's best and is left out.
+	window := func(w row) (int, int) {
+		t0, h := w.qb/cc, 9/math.Sqrt(cc)
+		j0 := sort.SearchFloat64s(ts, t0-h)
+		j1 := sort.SearchFloat64s(ts, t0+h)
+		return j0, min(j1+1, nb)
+	}
 	for _, w := range rows {
 		e0.add(w.lp - 0.5*w.qa)
-		for _, t := range ts {
+		j0, j1 := window(w)
+		for _, t := range ts[j0:j1] {
 			e1.add(w.lp - 0.5*(w.qa-2*t*w.qb+t*t*cc))
 		}
 	}
 	for _, w := range rows {
 		m0 += e0.weight(w.lp-0.5*w.qa) * w.lnm
-		for j, t := range ts {
+		j0, j1 := window(w)
+		for j := j0; j < j1; j++ {
+			t := ts[j]
 			wt := e1.weight(w.lp - 0.5*(w.qa-2*t*w.qb+t*t*cc))
 			m1 += wt * w.lnm
 			b1 += wt * (-bmax + float64(j)*bstep)
 		}
+	}
+	if e1.n == 0 {
+		return TestPointVerdict{}, ErrTestPoints
 	}
 	lnE0 := e0.log() + math.Log(step) + math.Log(1-share-elsewhere)
 	lnE1 := e1.log() + math.Log(step*bstep/(2*bmax)) + math.Log(share)
 	lnE2 := math.Inf(-1)
 	if elsewhere > 0 {
 		// Off its mark: δ over the range (both ways), ln m coarser.
-		const nd, mstep = 101, 0.05
+		const nd, mstep = 61, 0.05
 		span := c.Hi - c.Lo
 		dstep := 2 * span / float64(nd-1)
 		var e2 logSum

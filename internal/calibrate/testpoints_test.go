@@ -1,6 +1,7 @@
 package calibrate
 
 import (
+	"fmt"
 	"math"
 	"testing"
 )
@@ -108,5 +109,20 @@ func TestWeighTestPoints(t *testing.T) {
 	}
 	if _, err := WeighTestPoints(TestPointCase{}); err == nil {
 		t.Error("no states: no error")
+	}
+}
+
+// BenchmarkWeighTestPoints weighs a branch read at one setting (the
+// ranking's weights) and at two and three (a decision).
+func BenchmarkWeighTestPoints(b *testing.B) {
+	for _, kvs := range [][]float64{{4}, {4, 8}, {3, 4, 8}} {
+		c := tpReadings(3, 1, -0.25, 100e3, kvs, true)
+		b.Run(fmt.Sprintf("settings=%d", len(kvs)), func(b *testing.B) {
+			for b.Loop() {
+				if _, err := WeighTestPoints(c); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
 	}
 }
