@@ -418,6 +418,26 @@ func planParams(c *calibrate.Calibration) plant.Params {
 	return p
 }
 
+// stateParams returns p with each valve the fit found off its table or
+// its mark at the Kv the fit found it passing in survey state k (no single
+// scale of its table gives what such a valve passes at every setting): the
+// fitted model of that state.
+func stateParams(j *job, p plant.Params, k int) plant.Params {
+	m := j.L.Model
+	p = p.Clone()
+	for i, b := range j.Cal.Branches {
+		mb := &m.Branches[i]
+		if !b.KvFitted || mb.Valve == nil || k >= len(b.Valve.Kv) || k >= len(m.States) {
+			continue
+		}
+		kv0, err := mb.Valve.KvAt(m.States[k].Settings[i])
+		if kv := b.Valve.Kv[k]; err == nil && kv0 > 0 && kv > 0 && !math.IsInf(kv, 0) {
+			p.KvScale[i] = kv / kv0
+		}
+	}
+	return p
+}
+
 // holdUnconfirmed plans at design the branches found unable to reach their
 // target, far above design, whose only flow evidence is their own valve's
 // test points: a

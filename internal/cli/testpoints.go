@@ -137,11 +137,7 @@ func testPointVerdicts(ctx context.Context, j *job) (map[int]tpWeighed, error) {
 			if g.hasD || solved[g.k] != nil {
 				continue
 			}
-			if g.k == 0 && j.Before != nil {
-				solved[0] = j.Before
-				continue
-			}
-			s, err := m.Solve(ctx, j.Fitted, m.States[g.k])
+			s, err := m.Solve(ctx, stateParams(j, j.Fitted, g.k), m.States[g.k])
 			if err != nil {
 				if ctx.Err() != nil {
 					return nil, ctx.Err()

@@ -270,14 +270,11 @@ func (j *job) trim(ctx context.Context, k int) error {
 		}
 	}
 	if j.Cal != nil {
+		p = stateParams(j, p, k)
 		for i, b := range j.Cal.Branches {
 			mb := &m.Branches[i]
 			if !b.KvFitted || mb.Valve == nil || k >= len(b.Valve.Kv) {
 				continue
-			}
-			kv0, err := mb.Valve.KvAt(m.States[k].Settings[i])
-			if kv := b.Valve.Kv[k]; err == nil && kv0 > 0 && kv > 0 && !math.IsInf(kv, 0) {
-				p.KvScale[i] = kv / kv0
 			}
 			if v, ok := j.testPoints[i]; ok && tpOff(v) {
 				// Its test points read off, the valve on its table.
