@@ -275,3 +275,61 @@ func TestTrimReplan(t *testing.T) {
 		t.Errorf("rms after trims %.2f %% with replan, %.2f %% without: want lower", 100*got[1], 100*got[0])
 	}
 }
+
+// TestTrimReplanUntrustedIndex: TestTrimReplan's plant (headers three times
+// rougher than designed, which the re-plan meets with more pump). With the
+// re-plan's index trusted the pump is raised to the re-plan's; with that
+// index's valve held (found off its table) or its readings doubted, the
+// pump is not raised past the centred one on its word.
+func TestTrimReplanUntrustedIndex(t *testing.T) {
+	ctx := context.Background()
+	c := newTrimCase(t, 1)
+	m := c.m
+	truth := m.Design()
+	truth.Header = 3
+	n := len(m.Branches)
+	u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n), LnHeader: 0.01}
+	for i := range u.LnResistance {
+		u.LnResistance[i] = 0.01
+	}
+	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
+	idx, ok := m.Index(replan.Index)
+	if !ok {
+		t.Fatalf("re-plan has no index branch (%q)", replan.Index)
+	}
+	read := make([]bool, n)
+	read[0], read[n-1] = true, true
+	pumpOf := func(tp *TrimPlan) float64 {
+		if tp.PumpChanged {
+			return tp.PumpNew
+		}
+		return tp.PumpLeft
+	}
+	want := replan.Differential
+	trusted, err := Trim(ctx, m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, Read: read, Replan: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if trusted.BySpeed {
+		want = replan.Speed
+	}
+	if got := pumpOf(trusted); got < want*(1-1e-9) {
+		t.Fatalf("trusted index: pump %g, want at least the re-plan's %g", got, want)
+	}
+	for _, tc := range []struct {
+		name        string
+		hold, doubt bool
+	}{{"index held", true, false}, {"index doubted", false, true}} {
+		t.Run(tc.name, func(t *testing.T) {
+			o := &TrimOptions{Uncertainty: u, Read: read, Replan: true, Hold: make([]bool, n), Doubt: make([]bool, n)}
+			o.Hold[idx], o.Doubt[idx] = tc.hold, tc.doubt
+			tp, err := Trim(ctx, m, truth, replan, c.plan.State(), o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := pumpOf(tp); !(got < want*(1-1e-3)) {
+				t.Errorf("pump %g, want below the re-plan's %g (its index %s not trusted)", got, want, replan.Index)
+			}
+		})
+	}
+}
