@@ -42,15 +42,7 @@ func writeSpec(tb testing.TB, spec synth.Spec) string {
 	if err != nil {
 		tb.Fatal(err)
 	}
-	dir := filepath.Join(tb.TempDir(), "site")
-	if err := os.Mkdir(dir, 0o755); err != nil {
-		tb.Fatal(err)
-	}
-	err = site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) })
-	if err != nil {
-		tb.Fatal(err)
-	}
-	return dir
+	return writeSite(tb, s)
 }
 
 // BenchmarkRun is the whole job (read, check, fit, diagnose, plan, report,
@@ -142,13 +134,7 @@ func TestRunSynthetic(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	dir := filepath.Join(t.TempDir(), "site")
-	if err := os.Mkdir(dir, 0o755); err != nil {
-		t.Fatal(err)
-	}
-	if err := site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) }); err != nil {
-		t.Fatal(err)
-	}
+	dir := writeSite(t, s)
 	out := filepath.Join(t.TempDir(), "out")
 	code, stdout, errs := run(t, "run", dir, "--out", out)
 	// Five per cent of the branches fouled: the plan may fall short (exit 5).

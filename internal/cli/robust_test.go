@@ -139,15 +139,15 @@ func planNulls(t *testing.T, dir string) []string {
 }
 
 // writeSite writes s as CSV sheets into a new folder and returns it.
-func writeSite(t *testing.T, s *site.Site) string {
-	t.Helper()
-	dir := filepath.Join(t.TempDir(), "site")
+func writeSite(tb testing.TB, s *site.Site) string {
+	tb.Helper()
+	dir := filepath.Join(tb.TempDir(), "site")
 	if err := os.Mkdir(dir, 0o755); err != nil {
-		t.Fatal(err)
+		tb.Fatal(err)
 	}
 	err := site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) })
 	if err != nil {
-		t.Fatal(err)
+		tb.Fatal(err)
 	}
 	return dir
 }

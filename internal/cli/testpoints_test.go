@@ -3,7 +3,6 @@ package cli
 import (
 	"context"
 	"encoding/csv"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -77,13 +76,7 @@ func TestTestPointsDecided(t *testing.T) {
 			r.Sigma *= 0.75
 		}
 	}
-	dir := filepath.Join(t.TempDir(), "site")
-	if err := os.Mkdir(dir, 0o755); err != nil {
-		t.Fatal(err)
-	}
-	if err := site.WriteDir(s, func(name string) (io.WriteCloser, error) { return os.Create(filepath.Join(dir, name)) }); err != nil {
-		t.Fatal(err)
-	}
+	dir := writeSite(t, s)
 	out := filepath.Join(t.TempDir(), "out")
 	code, stdout, errs := run(t, "run", dir, "--out", out)
 	if code != ExitOK && code != ExitShort {
