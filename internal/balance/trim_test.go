@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 
@@ -279,8 +280,9 @@ func TestTrimReplan(t *testing.T) {
 // TestTrimReplanUntrustedIndex: TestTrimReplan's plant (headers three times
 // rougher than designed, which the re-plan meets with more pump). With the
 // re-plan's index trusted the pump is raised to the re-plan's; with that
-// index's valve held (found off its table) or its readings doubted, the
-// pump is not raised past the centred one on its word.
+// index's valve held (found off its table) or its readings doubted, or the
+// index short of its target even at the re-plan's pump, the pump is not
+// raised past the centred one on its word.
 func TestTrimReplanUntrustedIndex(t *testing.T) {
 	ctx := context.Background()
 	c := newTrimCase(t, 1)
@@ -316,14 +318,20 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 	if got := pumpOf(trusted); got < want*(1-1e-9) {
 		t.Fatalf("trusted index: pump %g, want at least the re-plan's %g", got, want)
 	}
+	short := *replan
+	short.Unmet = append(slices.Clone(replan.Unmet), Shortfall{ID: replan.Index, Reason: "constructed: short even at the re-plan's pump"})
 	for _, tc := range []struct {
-		name        string
-		hold, doubt bool
-	}{{"index held", true, false}, {"index doubted", false, true}} {
+		name               string
+		hold, doubt, short bool
+	}{{"index held", true, false, false}, {"index doubted", false, true, false}, {"index short even so", false, false, true}} {
 		t.Run(tc.name, func(t *testing.T) {
 			o := &TrimOptions{Uncertainty: u, Read: read, Replan: true, Hold: make([]bool, n), Doubt: make([]bool, n)}
 			o.Hold[idx], o.Doubt[idx] = tc.hold, tc.doubt
-			tp, err := Trim(ctx, m, truth, replan, c.plan.State(), o)
+			rp := replan
+			if tc.short {
+				rp = &short
+			}
+			tp, err := Trim(ctx, m, truth, rp, c.plan.State(), o)
 			if err != nil {
 				t.Fatal(err)
 			}
