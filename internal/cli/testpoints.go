@@ -212,9 +212,9 @@ func tpRight(v tpWeighed) bool {
 // test points the readings at several settings find reading off is planned
 // on its resistance under that explanation, and its findings of a branch
 // off design become one of the test points reading off; one they find
-// reading right keeps its findings, with the evidence said, and is neither
-// held at design nor hedged (holdUnconfirmed and hedgeTestPoints skip the
-// branches decided either way).
+// reading right keeps its findings, with the evidence said, and a branch
+// short of flow so confirmed is neither held at design nor hedged
+// (holdUnconfirmed and hedgeTestPoints skip it).
 func applyTestPoints(j *job) {
 	if len(j.testPoints) == 0 {
 		return
@@ -248,9 +248,11 @@ func applyTestPoints(j *job) {
 			continue
 		}
 		switch f.Code {
-		case diagnose.Restricted, diagnose.CannotReachDesign, diagnose.Free, diagnose.ValveMisSet:
-			f.Evidence += fmt.Sprintf("; its valve's test points, read at %d settings, read right (the valve's share of the branch differential changed with its setting as this resistance gives: test points off %.1f %%)", v.Settings, 100*v.Weight)
+		case diagnose.Restricted, diagnose.CannotReachDesign:
 			f.Action = tpRightAction(f.Action)
+			fallthrough
+		case diagnose.Free, diagnose.ValveMisSet:
+			f.Evidence += fmt.Sprintf("; its valve's test points, read at %d settings, read right (the valve's share of the branch differential changed with its setting as this resistance gives: test points off %.1f %%)", v.Settings, 100*v.Weight)
 		}
 	}
 	for i, v := range j.testPoints {

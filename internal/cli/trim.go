@@ -10,6 +10,7 @@ import (
 	"io/fs"
 	"math"
 	"os"
+	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -249,11 +250,17 @@ func (j *job) trim(ctx context.Context, k int) error {
 		// find reading off is as left where that explanation puts it, and
 		// is trimmed on it; one they decide either way is not doubted for
 		// sitting far from a prediction made before it was decided.
+		held := map[int]bool{}
+		for _, id := range j.unconfirmed {
+			if i, ok := m.Index(id); ok {
+				held[i] = true
+			}
+		}
 		for i, v := range j.testPoints {
 			if tpOff(v) {
 				p.Resistance[i] = j.Params.Resistance[i]
 			}
-			if (tpOff(v) || tpRight(v)) && opt.Expected != nil {
+			if (tpOff(v) || tpRight(v) && !held[i]) && opt.Expected != nil {
 				opt.Expected[i] = math.NaN()
 			}
 		}
@@ -288,7 +295,7 @@ func (j *job) trim(ctx context.Context, k int) error {
 		}
 	}
 	for i, v := range j.testPoints {
-		if (tpOff(v) || tpRight(v)) && opt.Doubt != nil {
+		if (tpOff(v) || tpRight(v) && !slices.Contains(j.unconfirmed, m.Branches[i].ID)) && opt.Doubt != nil {
 			// Its test points are decided on their readings at two
 			// settings: read off, the model as corrected stands for them;
 			// read right, one of them a little off the model (on an
