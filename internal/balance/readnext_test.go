@@ -37,10 +37,7 @@ func TestRankIndexFirst(t *testing.T) {
 			// uncertainty spans the gap between their needs.
 			gap := math.Log(base.Needs[idx].Chain / base.Needs[near].Chain)
 			sNear := max(0.15, gap/(base.Needs[near].Fixed/base.Needs[near].Chain))
-			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
-			for i := range u.LnResistance {
-				u.LnResistance[i] = 0.005
-			}
+			u := evenSpread(n, 0.005)
 			u.LnResistance[near], u.LnResistance[far] = sNear, sNear
 			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
 			sol, err := m.Solve(ctx, p, plan.State())
@@ -109,10 +106,7 @@ func TestRankMostUncertainFirst(t *testing.T) {
 			// the more uncertain as left with twice the other's spread;
 			// every other branch known to 0.005 in ln resistance.
 			most, next := order[0], order[1]
-			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
-			for i := range u.LnResistance {
-				u.LnResistance[i] = 0.005
-			}
+			u := evenSpread(n, 0.005)
 			u.LnResistance[most], u.LnResistance[next] = 0.12, 0.12
 			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
 			sol, err := m.Solve(ctx, p, plan.State())
@@ -202,10 +196,7 @@ func TestRankDecidesFirst(t *testing.T) {
 			// The branch needing the least is the most uncertain; the
 			// one needing the next least is known well but undecided.
 			most, undecided := order[0], order[1]
-			u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
-			for i := range u.LnResistance {
-				u.LnResistance[i] = 0.005
-			}
+			u := evenSpread(n, 0.005)
 			u.LnResistance[most] = 0.12
 			plan := mustCompute(t, m, p, &Options{Rounding: Smart, Uncertainty: u})
 			plain, err := RankReadings(ctx, m, p, plan, &ReadOptions{Uncertainty: u})
@@ -243,4 +234,14 @@ func TestRankDecidesFirst(t *testing.T) {
 			}
 		})
 	}
+}
+
+// evenSpread is an Uncertainty of n branches, each resistance's ln with sd
+// sd and nothing else uncertain.
+func evenSpread(n int, sd float64) *Uncertainty {
+	u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n)}
+	for i := range u.LnResistance {
+		u.LnResistance[i] = sd
+	}
+	return u
 }

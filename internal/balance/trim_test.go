@@ -191,10 +191,8 @@ func TestTrimPump(t *testing.T) {
 	m := c.m
 	truth := m.Design()
 	truth.PumpHead = 0.85
-	u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches)), LnPumpHead: 0.01}
-	for i := range u.LnResistance {
-		u.LnResistance[i] = 0.01
-	}
+	u := evenSpread(len(m.Branches), 0.01)
+	u.LnPumpHead = 0.01
 	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
 	left := c.plan.State()
 	tp, err := Trim(ctx, m, truth, replan, left, &TrimOptions{Uncertainty: u})
@@ -232,10 +230,8 @@ func TestTrimReplan(t *testing.T) {
 	m := c.m
 	truth := m.Design()
 	truth.Header = 3
-	u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches)), LnHeader: 0.01}
-	for i := range u.LnResistance {
-		u.LnResistance[i] = 0.01
-	}
+	u := evenSpread(len(m.Branches), 0.01)
+	u.LnHeader = 0.01
 	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
 	read := make([]bool, len(m.Branches))
 	read[0], read[len(read)-1] = true, true
@@ -290,10 +286,8 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 	truth := m.Design()
 	truth.Header = 3
 	n := len(m.Branches)
-	u := &Uncertainty{LnResistance: make([]float64, n), LnKvScale: make([]float64, n), LnHeader: 0.01}
-	for i := range u.LnResistance {
-		u.LnResistance[i] = 0.01
-	}
+	u := evenSpread(n, 0.01)
+	u.LnHeader = 0.01
 	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
 	idx, ok := m.Index(replan.Index)
 	if !ok {

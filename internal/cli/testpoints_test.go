@@ -2,9 +2,7 @@ package cli
 
 import (
 	"context"
-	"encoding/csv"
 	"math"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -82,15 +80,7 @@ func TestTestPointsDecided(t *testing.T) {
 	if code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d:\n%s", code, errs)
 	}
-	f, err := os.Open(filepath.Join(out, "findings.csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
+	rows := readCSV(t, filepath.Join(out, "findings.csv"))
 	var offSaid, fouledSaid bool
 	for _, row := range rows[1:] {
 		code, br, text := row[1], row[2], strings.Join(row[3:], " ")

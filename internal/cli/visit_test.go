@@ -1,7 +1,6 @@
 package cli
 
 import (
-	"encoding/csv"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -67,15 +66,7 @@ func TestDemoConsole(t *testing.T) {
 	if !strings.Contains(stdout, "0 of 14 as found, 14 of 14 after the plan") {
 		t.Errorf("console count of branches in tolerance is not 0 of 14 -> 14 of 14")
 	}
-	f, err := os.Open(filepath.Join(out, "field-sheet.csv"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
+	rows := readCSV(t, filepath.Join(out, "field-sheet.csv"))
 	if len(rows)-1 != 14 {
 		t.Errorf("field sheet has %d rows, want 14", len(rows)-1)
 	}
