@@ -129,7 +129,7 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		if several {
 			// Read at several settings but not decided: the weighing
 			// of every state, its multipliers under each explanation.
-			wFault, wReads, mf, mReads = 1-tv.Weight, tv.Weight, tv.RatioRight, tv.Ratio
+			wFault, wReads, mf, mReads, b = 1-tv.Weight, tv.Weight, tv.RatioRight, tv.Ratio, tv.Off
 		}
 		_, hi := m.Branches[i].Valve.Range()
 		open := m.ValveElement(i, hi, j.Params.KvScale[i])

@@ -16,14 +16,16 @@ import (
 
 // tpSuspect is the fitted resistance ratio (or its inverse) beyond which a
 // branch read through its own valve's test points alone is weighed against
-// those test points reading off, where nothing flagged it.
+// those test points reading off, where nothing flagged it: the ratio at
+// which the fit tests a branch's valve (calibrate's suspectRatio; common
+// practice, no source).
 const tpSuspect = 1.5
 
 // tpEdge is the fraction of calibrate.TestPointMax beyond which the
 // test-point explanation is not taken even when ahead: an error piled
 // against the edge of its prior is the readings asking for something the
 // two explanations do not hold (a valve off its table: on the independent
-// test plants, seized valves scored so).
+// test plants, seized valves scored so). A judgement, no source.
 const tpEdge = 0.85
 
 // tpWeighed is a branch's test points weighed, with the valve settings

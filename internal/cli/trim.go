@@ -10,7 +10,6 @@ import (
 	"io/fs"
 	"math"
 	"os"
-	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -243,6 +242,17 @@ func (j *job) trim(ctx context.Context, k int) error {
 		}
 		opt.Surprise = min(-j.L.Site.ToleranceLow, j.L.Site.ToleranceHigh)
 	}
+	// held are the branches the plan holds at design; decided those whose
+	// test points the readings at several settings decide, a held one
+	// only when they find it off (the hold's other doubt, a valve off its
+	// table, they do not settle).
+	held := map[int]bool{}
+	for _, id := range j.unconfirmed {
+		if i, ok := m.Index(id); ok {
+			held[i] = true
+		}
+	}
+	decided := func(i int, v tpWeighed) bool { return tpOff(v) || tpRight(v) && !held[i] }
 	p := j.Params.Clone()
 	if j.Cal != nil {
 		p = planParams(j.Cal)
@@ -250,17 +260,11 @@ func (j *job) trim(ctx context.Context, k int) error {
 		// find reading off is as left where that explanation puts it, and
 		// is trimmed on it; one they decide either way is not doubted for
 		// sitting far from a prediction made before it was decided.
-		held := map[int]bool{}
-		for _, id := range j.unconfirmed {
-			if i, ok := m.Index(id); ok {
-				held[i] = true
-			}
-		}
 		for i, v := range j.testPoints {
 			if tpOff(v) {
 				p.Resistance[i] = j.Params.Resistance[i]
 			}
-			if (tpOff(v) || tpRight(v) && !held[i]) && opt.Expected != nil {
+			if decided(i, v) && opt.Expected != nil {
 				opt.Expected[i] = math.NaN()
 			}
 		}
@@ -270,10 +274,8 @@ func (j *job) trim(ctx context.Context, k int) error {
 				opt.Hedged[i] = true
 			}
 		}
-		for _, id := range j.unconfirmed {
-			if i, ok := m.Index(id); ok {
-				opt.Doubt[i] = true
-			}
+		for i := range held {
+			opt.Doubt[i] = true
 		}
 	}
 	if j.Cal != nil {
@@ -305,7 +307,7 @@ func (j *job) trim(ctx context.Context, k int) error {
 			opt.Doubt[i] = true
 			continue
 		}
-		if (tpOff(v) || tpRight(v) && !slices.Contains(j.unconfirmed, m.Branches[i].ID)) && opt.Doubt != nil {
+		if decided(i, v) && opt.Doubt != nil {
 			// Its test points are decided on their readings at two
 			// settings: read off, the model as corrected stands for them;
 			// read right, one of them a little off the model (on an
