@@ -341,9 +341,16 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 				note[i] = "not read after setting: read it before trimming"
 				continue
 			}
-			s, err := trimSetting(m, p, sol, i, target[i])
+			s, rs, err := trimSetting(m, p, sol, i, target[i])
 			if err != nil {
 				return nil, fmt.Errorf("trim: branch %q: %w", b.ID, err)
+			}
+			if math.Abs(s-st.Settings[i]) > 1e-9 && !worthMoving(r, rs) {
+				// The nearest mark puts it about as far off the other way:
+				// the model vouches for no gain, and the move adds the
+				// valve's table error between the two marks.
+				note[i] = "the next handwheel mark would put it about as far off the other way: left as it is"
+				continue
 			}
 			if math.Abs(s-st.Settings[i]) < 1e-9 {
 				if _, hi := b.Valve.Range(); s >= hi-1e-9 && sol.Flow(i) < target[i] && out {
@@ -412,8 +419,9 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 // target q at the differential it sees in sol: its valve takes that
 // differential less its fixed parts' drop at q. Of the marks either side,
 // the one whose flow at that differential (square law) is nearer the target
-// is taken; the valve opens fully when even that leaves it short.
-func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q float64) (float64, error) {
+// is taken; the valve opens fully when even that leaves it short. It also
+// returns that flow over the target.
+func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q float64) (float64, float64, error) {
 	b := &m.Branches[i]
 	lo, hi := b.Valve.Range()
 	d := sol.BranchDiff(i)
@@ -437,38 +445,62 @@ func trimSetting(m *plant.Model, p plant.Params, sol *plant.Solved, i int, q flo
 	}
 	dv := d - fixed
 	if !(dv > 0) {
-		return hi, nil
+		return hi, ratio(hi), nil
 	}
 	kv, err := hydraulics.KvFromDrop(q, dv, m.Fluid.Density)
 	if err != nil {
-		return math.NaN(), err
+		return math.NaN(), math.NaN(), err
 	}
 	kv /= scale
 	kvLo, err := b.Valve.KvAt(lo)
 	if err != nil {
-		return math.NaN(), err
+		return math.NaN(), math.NaN(), err
 	}
 	kvHi, err := b.Valve.KvAt(hi)
 	if err != nil {
-		return math.NaN(), err
+		return math.NaN(), math.NaN(), err
 	}
 	var s float64
 	switch {
 	case kv >= kvHi:
-		return hi, nil
+		return hi, ratio(hi), nil
 	case kv <= kvLo:
 		s = lo
 	default:
 		if s, err = b.Valve.SettingFor(kv); err != nil {
-			return math.NaN(), err
+			return math.NaN(), math.NaN(), err
 		}
 	}
 	step := b.Valve.Resolution()
 	down, up := mark(s, lo, hi, step, false), mark(s, lo, hi, step, true)
-	if math.Abs(math.Log(ratio(up))) < math.Abs(math.Log(ratio(down))) {
-		return up, nil
+	rUp, rDown := ratio(up), ratio(down)
+	if math.Abs(math.Log(rUp)) < math.Abs(math.Log(rDown)) {
+		return up, rUp, nil
 	}
-	return down, nil
+	return down, rDown, nil
+}
+
+// markSpread is the share of a one-mark move's change in flow that the
+// valve's table does not vouch for: the Kv at a handwheel mark is known to
+// some per cent, and the difference between two marks' Kv values less well
+// than either (common practice, no source).
+const markSpread = 0.2
+
+// worthMoving reports whether moving a valve from where it leaves its
+// branch at r (flow over target) to a mark predicted to give rNew lowers
+// the expected squared departure: the new departure plus the move's own
+// uncertainty (markSpread of the change, in ln flow) must come under the
+// present one. A move that swaps a departure for one about as large on the
+// other side of the target gains nothing the model can vouch for (seen on
+// independent plants of 50 and 300 branches: unread valves predicted at
+// 96 % moved one mark to 104 % went from 97-99 % to 104-107 %).
+func worthMoving(r, rNew float64) bool {
+	if !(r > 0) || !(rNew > 0) {
+		return true
+	}
+	d, dNew := math.Log(r), math.Log(rNew)
+	u := markSpread * (dNew - d)
+	return dNew*dNew+u*u < d*d
 }
 
 // centre returns the pump speed (bySpeed) or source differential that, with

@@ -35,6 +35,13 @@ const (
 	// (common practice, no source). The offset is uniform over the valve's
 	// range, as the fit's offset parameter's wide prior is.
 	ElsewhereShare = 0.05
+	// SeizedShare is the prior probability that a valve holds one Kv
+	// whatever its handwheel says (a seized plug or a slipping handwheel),
+	// with its test points right: as often as one off its mark, the two
+	// being the fit's alternatives to the table side by side (common
+	// practice, no source). Its Kv is uniform in ln over the table's span
+	// widened by a factor e either way.
+	SeizedShare = 0.05
 )
 
 // TestPointState is one survey state of a branch read through its valve's
@@ -69,8 +76,9 @@ type TestPointCase struct {
 	// multiplier is clean (sd PriorClean in ln) or, with probability
 	// FaultShare, faulty (sd PriorResistance); its test points read off
 	// with probability Share, by a flow factor uniform within ±Max; its
-	// valve sits off its mark with probability Elsewhere.
-	FaultShare, PriorClean, PriorResistance, Share, Max, Elsewhere float64
+	// valve sits off its mark with probability Elsewhere, or holds one Kv
+	// with probability Seized.
+	FaultShare, PriorClean, PriorResistance, Share, Max, Elsewhere, Seized float64
 }
 
 // TestPointVerdict is what the readings say of a branch's test points.
@@ -80,8 +88,9 @@ type TestPointVerdict struct {
 	Settings int
 	// Weight is the posterior probability that the test points read off
 	// (the valve on its table), Elsewhere that the valve sits off its mark
-	// by one offset with its test points right; the rest is both right.
-	Weight, Elsewhere float64
+	// by one offset with its test points right, Seized that it holds one
+	// Kv with its test points right; the rest is both right.
+	Weight, Elsewhere, Seized float64
 	// Off is the posterior mean of the flow error they read with if so
 	// (reading over true flow, less 1).
 	Off float64
@@ -89,6 +98,9 @@ type TestPointVerdict struct {
 	// (geometric) if the test points read off, RatioRight if they read
 	// right.
 	Ratio, RatioRight float64
+	// RatioSD is the posterior sd of ln Ratio: how well the readings place
+	// the branch's resistance if its test points read off.
+	RatioSD float64
 }
 
 // ErrTestPoints reports a case that cannot be weighed: no state, a
@@ -108,7 +120,12 @@ var ErrTestPoints = errors.New("calibrate: test points cannot be weighed")
 // two separate. A third explanation, the valve off its mark by one offset
 // δ (R_k at the setting plus δ) with the test points right, is weighed
 // beside them where the valve's range is given: at several settings it can
-// mimic part of either.
+// mimic part of either. So is a fourth, the valve seized (one R whatever
+// the setting) with its test points right: the fit's other alternative to
+// the table, which test points reading off at several settings can also
+// look like to a fit that does not hold them (the valve's share of the
+// branch differential moving with its setting, but not as the table and
+// the readings say).
 //
 // The posteriors are summed on grids of ln m (step 0.01), b (step 0.005)
 // and δ (a hundredth of the range) under the priors (marginal likelihoods,
@@ -135,6 +152,7 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	sc, sf := def(c.PriorClean, DefaultPriorClean), def(c.PriorResistance, DefaultPriorResistance)
 	share, bmax := def(c.Share, TestPointShare), def(c.Max, TestPointMax)
 	elsewhere := def(c.Elsewhere, ElsewhereShare)
+	seized := def(c.Seized, SeizedShare)
 	settings := map[float64]bool{}
 	lnV := make([]float64, n)
 	dinv := make([]float64, n) // the independent variances' inverses
@@ -152,9 +170,10 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 		}
 	}
 	if !(c.Hi > c.Lo) || len(settings) < 2 {
-		// At one setting an offset is a multiple of the valve's
-		// resistance, which the branch's multiplier takes up.
-		elsewhere = 0
+		// At one setting an offset, or a seized valve's one Kv, is a
+		// multiple of the valve's resistance, which the branch's
+		// multiplier takes up.
+		elsewhere, seized = 0, 0
 	}
 	a, pw, err := powerLaw(c.Fixed, c.States[0].Branch)
 	if err != nil {
@@ -214,7 +233,7 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 	}
 	// On the table: per ln m, Q(t) = qa - 2t·qb + t²cc in t = ln g.
 	var e0, e1 logSum
-	var m0, m1, b1 float64 // sums of weight times ln m or b, by the largest's scale
+	var m0, m1, mm1, b1 float64 // sums of weight times ln m, (ln m)² or b, by the largest's scale
 	type row struct{ lnm, lp, qa, qb float64 }
 	var rows []row
 	for im := range nm {
@@ -249,13 +268,14 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 			t := ts[j]
 			wt := e1.weight(w.lp - 0.5*(w.qa-2*t*w.qb+t*t*cc))
 			m1 += wt * w.lnm
+			mm1 += wt * w.lnm * w.lnm
 			b1 += wt * (-bmax + float64(j)*bstep)
 		}
 	}
 	if e1.n == 0 {
 		return TestPointVerdict{}, ErrTestPoints
 	}
-	lnE0 := e0.log() + math.Log(step) + math.Log(1-share-elsewhere)
+	lnE0 := e0.log() + math.Log(step) + math.Log(1-share-elsewhere-seized)
 	lnE1 := e1.log() + math.Log(step*bstep/(2*bmax)) + math.Log(share)
 	lnE2 := math.Inf(-1)
 	if elsewhere > 0 {
@@ -283,15 +303,42 @@ func WeighTestPoints(c TestPointCase) (TestPointVerdict, error) {
 			lnE2 = e2.log() + math.Log(mstep*dstep/(2*span)) + math.Log(elsewhere)
 		}
 	}
-	top := max(lnE0, lnE1, lnE2)
-	z := math.Exp(lnE0-top) + math.Exp(lnE1-top) + math.Exp(lnE2-top)
+	lnE3 := math.Inf(-1)
+	if seized > 0 {
+		// Seized: one coefficient in every state, ln of it over the
+		// table's span widened by 1 either way, ln m coarser.
+		const sstep, mstep = 0.05, 0.05
+		rl, rh := c.ValveR(c.Lo), c.ValveR(c.Hi)
+		a0, a1 := math.Log(min(rl, rh))-1, math.Log(max(rl, rh))+1
+		if a1 > a0 {
+			var e3 logSum
+			rd := make([]float64, n)
+			for ls := a0; ls <= a1+1e-9; ls += sstep {
+				for k := range rd {
+					rd[k] = math.Exp(ls)
+				}
+				for lnm := lo; lnm <= hi+1e-9; lnm += mstep {
+					if residuals(math.Exp(lnm), rd) {
+						e3.add(lnPrior(lnm) - 0.5*quad(r, r))
+					}
+				}
+			}
+			if e3.n > 0 {
+				lnE3 = e3.log() + math.Log(mstep*sstep/(a1-a0)) + math.Log(seized)
+			}
+		}
+	}
+	top := max(lnE0, lnE1, lnE2, lnE3)
+	z := math.Exp(lnE0-top) + math.Exp(lnE1-top) + math.Exp(lnE2-top) + math.Exp(lnE3-top)
 	return TestPointVerdict{
 		Settings:   len(settings),
 		Weight:     math.Exp(lnE1-top) / z,
 		Elsewhere:  math.Exp(lnE2-top) / z,
+		Seized:     math.Exp(lnE3-top) / z,
 		Off:        b1,
 		Ratio:      math.Exp(m1),
 		RatioRight: math.Exp(m0),
+		RatioSD:    math.Sqrt(max(mm1-m1*m1, 0)),
 	}, nil
 }
 

@@ -50,7 +50,10 @@ func tpReadings(kvF, m, b, d float64, kvs []float64, modelled bool) TestPointCas
 // the error found. Test points reading 20 % high in a branch at design
 // (which one setting shows as a branch passing far more than designed)
 // are decided too, with the branch differential the model's instead of
-// read.
+// read. A valve seized at Kv 5 (recorded at settings 1 and 2, its table's
+// Kv 4 and 8) takes the same share of the branch differential in both
+// states, which neither the table nor an offset within the range gives:
+// the seized explanation must take it, not the test points.
 func TestWeighTestPoints(t *testing.T) {
 	const d = 100e3
 	mFouled := ((1.0/9+1.0/16)/0.5625 - 1.0/16) / (1.0 / 9)
@@ -82,6 +85,17 @@ func TestWeighTestPoints(t *testing.T) {
 		{"clean, test points 20 % high, branch differential modelled", 1, 0.2, true, two, true},
 		{"fouled, read right, three settings modelled", mFouled, 0, true, []float64{3, 4, 8}, false},
 	}
+	t.Run("seized at Kv 5, read right", func(t *testing.T) {
+		c := tpReadings(3, 1, 0, d, []float64{5, 5}, false)
+		c.States[0].Setting, c.States[1].Setting = 1, 2
+		v, err := WeighTestPoints(c)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if v.Seized < MeterDecides || v.Weight > 1-MeterDecides {
+			t.Errorf("verdict %+v: want seized >= %.3f, test points off <= %.3f", v, MeterDecides, 1-MeterDecides)
+		}
+	})
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			v, err := WeighTestPoints(tpReadings(3, tc.m, tc.b, d, tc.kvs, tc.modelled))
@@ -95,6 +109,15 @@ func TestWeighTestPoints(t *testing.T) {
 				if v.Weight < MeterDecides || math.Abs(v.Off-tc.b) > 0.03 || math.Abs(math.Log(v.Ratio/tc.m)) > 0.1 {
 					t.Errorf("verdict %+v: want weight >= %.3f, off %.2f, ratio %.2f", v, MeterDecides, tc.b, tc.m)
 				}
+				// The readings are exact: the ratio's spread comes from
+				// the gauges' 1 %, widened because the ratio and the
+				// error trade off along the readings at two settings;
+				// it must cover the ratio's error and stay well inside
+				// the one-setting prior's (ln 2).
+				if !(v.RatioSD > 0) || v.RatioSD > 0.15 || math.Abs(math.Log(v.Ratio/tc.m)) > 2*v.RatioSD {
+					t.Errorf("ratio %.3f, sd of its ln %.3f: want %.3f within two sd, the sd under 0.15", v.Ratio, v.RatioSD, tc.m)
+				}
+				t.Logf("ratio %.3f (true %.3f), sd of its ln %.3f, off %.3f", v.Ratio, tc.m, v.RatioSD, v.Off)
 				return
 			}
 			if v.Weight > 1-MeterDecides || math.Abs(math.Log(v.RatioRight/tc.m)) > 0.05 {

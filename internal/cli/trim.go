@@ -263,6 +263,13 @@ func (j *job) trim(ctx context.Context, k int) error {
 		for i, v := range j.testPoints {
 			if tpOff(v) {
 				p.Resistance[i] = j.Params.Resistance[i]
+				if u := opt.Uncertainty; u != nil {
+					// Placed by the weighing, on its table: its band as
+					// left is the weighing's, not the fit's, which held
+					// its test points right and the valve off its table
+					// or mark.
+					u.LnResistance[i], u.LnKvScale[i] = max(v.RatioSD, 0.01), calibrate.DefaultPriorKv
+				}
 			}
 			if decided(i, v) && opt.Expected != nil {
 				opt.Expected[i] = math.NaN()
