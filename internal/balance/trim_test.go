@@ -335,3 +335,29 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 		})
 	}
 }
+
+// TestWorthMoving: a move is made when its predicted departure plus the
+// move's own uncertainty (markSpread of the change, in ln flow) comes under
+// the present one. Values worked by hand in ln flow: 0.958 -> 1.043 is
+// -0.0429 -> +0.0421, a change of 0.085 whose fifth, 0.017, squared adds
+// 0.00029 to 0.00177: 0.00206 against 0.00184, not worth it.
+func TestWorthMoving(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		r, rNew float64
+		worth   bool
+	}{
+		{"4 % short, the next mark 4 % over", 0.958, 1.043, false},
+		{"6 % short, the next mark 2 % over", 0.94, 1.02, true},
+		{"5 % over, the next mark 1 % over", 1.05, 1.01, true},
+		{"3 % short, the next mark 4 % over", 0.97, 1.04, false},
+		{"on target", 1, 1.03, false},
+		{"flow as left unknown", math.NaN(), 1.01, true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := worthMoving(tc.r, tc.rNew); got != tc.worth {
+				t.Errorf("worthMoving(%g, %g) = %v, want %v", tc.r, tc.rNew, got, tc.worth)
+			}
+		})
+	}
+}

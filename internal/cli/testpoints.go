@@ -264,11 +264,6 @@ func applyTestPoints(j *job) {
 		// On its table: an offset or one Kv the fit put it at explained
 		// the readings the test points got wrong.
 		j.Params.KvScale[i] = 1
-		if vf := &j.Cal.Branches[i].Valve; vf.Hypothesis == calibrate.HoldsOneKv {
-			// Not seized after all: the trim may move it.
-			vf.Hypothesis = calibrate.FollowsTable
-			vf.Note = fmt.Sprintf("fitted as holding one Kv, but its test points reading %.0f %% off, with the valve on its table, explain its readings at %d settings better (%.0f %% against %.0f %% for a seized valve)", 100*math.Abs(v.Off), v.Settings, 100*v.Weight, 100*v.Seized)
-		}
 		way := "low"
 		if v.Off > 0 {
 			way = "high"

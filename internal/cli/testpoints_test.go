@@ -4,6 +4,7 @@ import (
 	"context"
 	"math"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
@@ -62,18 +63,7 @@ func TestTestPointsDecided(t *testing.T) {
 	if off == "" || fouled == "" {
 		t.Fatalf("construction: no clean (%q) or fouled (%q) branch read at two settings", off, fouled)
 	}
-	for k := range s.Readings {
-		r := &s.Readings[k]
-		switch {
-		case r.Where != off:
-		case r.What == site.ValveDiff:
-			r.Value *= 0.75 * 0.75
-			r.Sigma *= 0.75 * 0.75
-		case r.What == site.Flow && r.Instrument == "valve-meter":
-			r.Value *= 0.75
-			r.Sigma *= 0.75
-		}
-	}
+	biasTestPoints(s, off, 0.75)
 	dir := writeSite(t, s)
 	out := filepath.Join(t.TempDir(), "out")
 	code, stdout, errs := run(t, "run", dir, "--out", out)
@@ -104,5 +94,69 @@ func TestTestPointsDecided(t *testing.T) {
 		if strings.Contains(flat, id+" reads as") {
 			t.Errorf("%s is held or hedged on its test points:\n%s", id, stdout)
 		}
+	}
+}
+
+// biasTestPoints makes branch id's test points read the flow f times true:
+// its valve differentials f² times, its valve-meter flows f times.
+func biasTestPoints(s *site.Site, id string, f float64) {
+	for k := range s.Readings {
+		r := &s.Readings[k]
+		switch {
+		case r.Where != id:
+		case r.What == site.ValveDiff:
+			r.Value *= f * f
+			r.Sigma *= f * f
+		case r.What == site.Flow && r.Instrument == "valve-meter":
+			r.Value *= f
+			r.Sigma *= f
+		}
+	}
+}
+
+// TestTestPointsSeized: TestTestPointsDecided's generator on seed 6, where a
+// clean branch (T3) whose valve moved between the two states has its test
+// points made to read the flow 20 % high. The fit, which does not hold test
+// points reading off, finds its valve seized (one Kv explains the readings
+// better than its table); weighed with the seized valve as a fourth
+// explanation, the test points reading off win. The run must say so, not
+// call the valve stuck, and plan the branch on its valve's table.
+func TestTestPointsSeized(t *testing.T) {
+	ctx := context.Background()
+	spec := synth.Spec{Branches: 16, Arrangement: site.DirectReturn, Seed: 6, Fouled: 0.25, Noise: 1, States: 2,
+		Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true, TotalFlow: true}}
+	s, tr, err := synth.Generate(ctx, spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	const id = "T3"
+	if i := slices.IndexFunc(s.Branches, func(b site.Branch) bool { return b.ID == id }); i < 0 || tr.Faults[i] != "" {
+		t.Fatalf("construction: %s missing or faulty", id)
+	}
+	biasTestPoints(s, id, 1.2)
+	dir := writeSite(t, s)
+	out := filepath.Join(t.TempDir(), "out")
+	code, _, errs := run(t, "run", dir, "--out", out)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d:\n%s", code, errs)
+	}
+	for _, row := range readCSV(t, filepath.Join(out, "calibration.csv"))[1:] {
+		if row[0] == id && !strings.Contains(row[5], "holds one kv") {
+			t.Fatalf("construction: the fit finds %s's valve %q, not seized: the case no longer tests the weighing against a seized valve", id, row[5])
+		}
+	}
+	var said bool
+	for _, row := range readCSV(t, filepath.Join(out, "findings.csv"))[1:] {
+		code, br, text := row[1], row[2], strings.Join(row[3:], " ")
+		switch {
+		case br != id:
+		case code == "valve-stuck" || code == "restricted" || code == "free":
+			t.Errorf("%s, its test points reading 20 %% high, is called %s: %s", id, code, text)
+		case code == "suspect-reading" && strings.Contains(text, "test points read the flow about"):
+			said = strings.Contains(text, "% high")
+		}
+	}
+	if !said {
+		t.Errorf("no finding says %s's test points read high", id)
 	}
 }

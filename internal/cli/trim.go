@@ -192,7 +192,9 @@ func (j *job) trim(ctx context.Context, k int) error {
 		opt.Uncertainty = uncertainty(j.Cal)
 		opt.Hold = make([]bool, len(m.Branches))
 		for i, b := range j.Cal.Branches {
-			opt.Hold[i] = b.Valve.Hypothesis == calibrate.HoldsOneKv
+			// A valve the fit found seized is not trimmed, unless its
+			// test points are found reading off instead (applyTestPoints).
+			opt.Hold[i] = b.Valve.Hypothesis == calibrate.HoldsOneKv && !tpOff(j.testPoints[i])
 		}
 	}
 	j.readLeft = map[string]bool{}
