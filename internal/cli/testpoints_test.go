@@ -27,13 +27,7 @@ import (
 // hold; on seed 13 the branch's test points are 90 % likely off against
 // 10 % for its valve off its mark, rightly undecided.)
 func TestTestPointsDecided(t *testing.T) {
-	ctx := context.Background()
-	spec := synth.Spec{Branches: 16, Arrangement: site.DirectReturn, Seed: 8, Fouled: 0.25, Noise: 1, States: 2,
-		Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true, TotalFlow: true}}
-	s, tr, err := synth.Generate(ctx, spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s, tr := twoStates(t, 8)
 	// The branches whose test points were read at two settings.
 	sets := map[string]map[float64]bool{}
 	for _, r := range s.Readings {
@@ -122,13 +116,7 @@ func biasTestPoints(s *site.Site, id string, f float64) {
 // explanation, the test points reading off win. The run must say so, not
 // call the valve stuck, and plan the branch on its valve's table.
 func TestTestPointsSeized(t *testing.T) {
-	ctx := context.Background()
-	spec := synth.Spec{Branches: 16, Arrangement: site.DirectReturn, Seed: 6, Fouled: 0.25, Noise: 1, States: 2,
-		Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true, TotalFlow: true}}
-	s, tr, err := synth.Generate(ctx, spec)
-	if err != nil {
-		t.Fatal(err)
-	}
+	s, tr := twoStates(t, 6)
 	const id = "T3"
 	if i := slices.IndexFunc(s.Branches, func(b site.Branch) bool { return b.ID == id }); i < 0 || tr.Faults[i] != "" {
 		t.Fatalf("construction: %s missing or faulty", id)
@@ -159,4 +147,18 @@ func TestTestPointsSeized(t *testing.T) {
 	if !said {
 		t.Errorf("no finding says %s's test points read high", id)
 	}
+}
+
+// twoStates generates the test-point tests' plant: 16 branches, a quarter
+// fouled, surveyed in two states with every branch read by valve meter with
+// its valve and branch differentials, the pump's differential and total flow.
+func twoStates(t *testing.T, seed int64) (*site.Site, *synth.Truth) {
+	t.Helper()
+	spec := synth.Spec{Branches: 16, Arrangement: site.DirectReturn, Seed: seed, Fouled: 0.25, Noise: 1, States: 2,
+		Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true, TotalFlow: true}}
+	s, tr, err := synth.Generate(context.Background(), spec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s, tr
 }
