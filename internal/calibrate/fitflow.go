@@ -42,7 +42,7 @@ const pumpAgreeZ = 2.0
 // pump's differential, speed and a state's total flow agree with the pump's
 // curve (pumpAgreeZ) and the fit sets that total flow aside or misses it,
 // the branches whose valve is only assumed and whose fitted resistance is
-// below 1/suspectRatio of design, or whose test points were set aside, are
+// below 1/SuspectRatio of design, or whose test points were set aside, are
 // refitted together with their valves set elsewhere than recorded (the
 // offset free) and their resistance under the clean prior, the total flow
 // and their own readings back in. The refit is kept when it keeps every
@@ -95,7 +95,7 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 		if b.Valve == nil || b.PI != nil || su.kvSep[i] || !testPoints[i] || base.hyp[i] != FollowsTable || j < 0 {
 			continue
 		}
-		if base.res.X[j] < -math.Log(suspectRatio) || pointsOut[i] {
+		if base.res.X[j] < -math.Log(SuspectRatio) || pointsOut[i] {
 			weak = append(weak, i)
 		}
 	}

@@ -24,13 +24,16 @@ const (
 	// FollowsTable to be adopted: 6 on 2 ln B is "strong" (Kass & Raftery
 	// 1995, §3.2).
 	strongEvidence = 6.0
-	// suspectRatio: a branch whose fitted resistance ratio is beyond it (or
-	// its inverse) has its valve tested, as it is about to be flagged.
-	suspectRatio = 1.5
 	// tieScore: score differences under 2 are "not worth more than a bare
 	// mention" (Kass & Raftery 1995, §3.2).
 	tieScore = 2.0
 )
+
+// SuspectRatio is the fitted resistance ratio (or its inverse) beyond which
+// a branch has its valve tested, as it is about to be flagged (common
+// practice, no source): the ratio at which others weigh a branch's
+// readings again too.
+const SuspectRatio = 1.5
 
 // candidates returns the branches whose valve the hypothesis test should
 // look at, the most suspect first.
@@ -61,7 +64,7 @@ func (su *setup) candidates(f *fitRun) []int {
 		// readings as well: a valve more closed than recorded looks like a
 		// restricted branch through a flow and like a free one through a
 		// valve differential.
-		if j := f.prob.rIdx[i]; j >= 0 && math.Abs(f.res.X[j]) > math.Log(suspectRatio) {
+		if j := f.prob.rIdx[i]; j >= 0 && math.Abs(f.res.X[j]) > math.Log(SuspectRatio) {
 			suspect = true
 		}
 		if suspect {

@@ -558,15 +558,18 @@ func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved, open pl
 	m := l.Model
 	sum := l.Site.Summary()
 	measured := map[string][]string{}
-	hasFlow := map[string]bool{}
+	hasFlow, testPoints := map[string]bool{}, map[string]bool{}
 	for _, b := range sum.Measured {
 		for _, by := range b.By {
 			measured[b.ID] = append(measured[b.ID], by.String())
 		}
 	}
 	for _, r := range l.Site.Readings {
-		if r.What == site.Flow && r.Instrument != "valve-meter" {
+		switch {
+		case r.What == site.Flow && r.Instrument != "valve-meter":
 			hasFlow[r.Where] = true
+		case r.What == site.Flow || r.What == site.ValveDiff:
+			testPoints[r.Where] = true
 		}
 	}
 	var out []diagnose.Branch
@@ -575,7 +578,7 @@ func evidence(l *loaded, c *calibrate.Calibration, before *plant.Solved, open pl
 			continue
 		}
 		e := diagnose.Branch{ID: b.ID, Ratio: 1, LogSD: math.Inf(1), Target: b.Target, OpenFlow: openFlow(m, before, i, open),
-			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil, FaultProb: math.NaN(), DataLn: math.NaN(), DataSD: math.NaN(), DesignDrop: math.NaN()}
+			Measured: measured[b.ID], HasFlow: hasFlow[b.ID], HasValve: b.Valve != nil, TestPoints: testPoints[b.ID], FaultProb: math.NaN(), DataLn: math.NaN(), DataSD: math.NaN(), DesignDrop: math.NaN()}
 		if f := m.FixedElement(i, 1); f != nil {
 			e.DesignDrop, _ = f.Drop(b.Design, m.Fluid)
 		}

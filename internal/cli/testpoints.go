@@ -14,17 +14,10 @@ import (
 	"flowset/internal/site"
 )
 
-// tpSuspect is the fitted resistance ratio (or its inverse) beyond which a
-// branch read through its own valve's test points alone is weighed against
-// those test points reading off, where nothing flagged it: the ratio at
-// which the fit tests a branch's valve (calibrate's suspectRatio; common
-// practice, no source).
-const tpSuspect = 1.5
-
 // tpEdge is the fraction of calibrate.TestPointMax beyond which the
 // test-point explanation is not taken even when ahead: an error piled
 // against the edge of its prior is the readings asking for something the
-// two explanations do not hold (a valve off its table: on the independent
+// weighed explanations do not hold (a valve off its table: on the independent
 // test plants, seized valves scored so). A judgement, no source.
 const tpEdge = 0.85
 
@@ -83,7 +76,7 @@ func testPointVerdicts(ctx context.Context, j *job) (map[int]tpWeighed, error) {
 		// does not hold (on the independent test plants most biased test
 		// points read at two settings were fitted so, and a branch fouled
 		// under test points 15 % low, fitted as seized, was left at 72 %).
-		if r := j.Fitted.Resistance[i]; !flagged[b.ID] && !(r > tpSuspect || r < 1/tpSuspect) {
+		if r := j.Fitted.Resistance[i]; !flagged[b.ID] && !(r > calibrate.SuspectRatio || r < 1/calibrate.SuspectRatio) {
 			continue
 		}
 		c := &cand{i: i}

@@ -144,6 +144,9 @@ type Branch struct {
 	Measured []string
 	HasFlow  bool // an independent flow reading exists
 	HasValve bool // the branch has a balancing valve
+	// TestPoints reports that its balancing valve's test points were read
+	// (a flow by valve meter or the valve's differential).
+	TestPoints bool
 	// Held is the evidence about the branch's pressure-independent valve;
 	// nil for none.
 	Held *Held
@@ -247,10 +250,19 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					// handwheel says: a plug loose from its spindle sits in
 					// the upper part of its travel, a handwheel slips off
 					// its mark (common practice, no source).
-					out = append(out, Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: p,
+					f := Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: p,
 						Message:  "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, or else an open bypass",
 						Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f) with the valve taken at its recorded setting; P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
-						Action:   "move the handwheel a turn and read the flow again: it must change; then check for an open bypass"})
+						Action:   "move the handwheel a turn and read the flow again: it must change; then check for an open bypass"}
+					if b.TestPoints && !b.HasFlow {
+						// Its flow is known only through its own valve's
+						// test points, which read high (a tapping error, a
+						// meter off its calibration) exactly as a valve
+						// more open than recorded does.
+						f.Message = "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, an open bypass, or else its own valve's test points reading high, which alone read its flow"
+						f.Action = "read its flow with a clamp-on meter first: if that agrees with the test points, move the handwheel a turn and read the flow again (it must change), then check for an open bypass"
+					}
+					out = append(out, f)
 				} else {
 					out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
 						Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",

@@ -2,6 +2,7 @@ package diagnose
 
 import (
 	"math"
+	"strings"
 	"testing"
 )
 
@@ -74,6 +75,35 @@ func TestCheck(t *testing.T) {
 				if got[i] != c.want[i] {
 					t.Fatalf("Check codes = %v, want %v", got, c.want)
 				}
+			}
+		})
+	}
+}
+
+// TestCheckFreeOnTestPoints: a branch passing far more than designed
+// behind a valve the readings cannot separate is said to be so; where its
+// flow was read only at its own valve's test points, the finding names
+// those reading high as the other explanation and asks for a clamp-on
+// reading first, and not otherwise.
+func TestCheckFreeOnTestPoints(t *testing.T) {
+	for _, tc := range []struct {
+		name                string
+		testPoints, hasFlow bool
+		named               bool
+	}{
+		{"read only at its test points", true, false, true},
+		{"read at its test points and by clamp-on", true, true, false},
+		{"not read at its valve", false, false, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			b := Branch{ID: "x", Ratio: 0.3, LogSD: 0.1, Determined: true, OpenFlow: math.NaN(), HasValve: true, TestPoints: tc.testPoints, HasFlow: tc.hasFlow}
+			fs := Check([]Branch{b}, nil, Thresholds{})
+			if len(fs) != 1 || fs[0].Code != ValveMisSet {
+				t.Fatalf("findings %+v, want one %v", fs, ValveMisSet)
+			}
+			named := strings.Contains(fs[0].Message, "test points reading high") && strings.Contains(fs[0].Action, "clamp-on")
+			if named != tc.named {
+				t.Errorf("test points named %v, want %v: %q / %q", named, tc.named, fs[0].Message, fs[0].Action)
 			}
 		})
 	}
