@@ -189,7 +189,7 @@ func (j *job) trim(ctx context.Context, k int) error {
 	m := j.L.Model
 	opt := &balance.TrimOptions{Inner: j.trimBeyond, Replan: j.moveUnread}
 	if j.Cal != nil {
-		opt.Uncertainty = uncertainty(j.Cal)
+		opt.Uncertainty = j.uncertainty()
 		opt.Hold = make([]bool, len(m.Branches))
 		for i, b := range j.Cal.Branches {
 			// A valve the fit found seized is not trimmed, unless its
@@ -265,13 +265,6 @@ func (j *job) trim(ctx context.Context, k int) error {
 		for i, v := range j.testPoints {
 			if tpOff(v) {
 				p.Resistance[i] = j.Params.Resistance[i]
-				if u := opt.Uncertainty; u != nil {
-					// Placed by the weighing, on its table: its band as
-					// left is the weighing's, not the fit's, which held
-					// its test points right and the valve off its table
-					// or mark.
-					u.LnResistance[i], u.LnKvScale[i] = max(v.RatioSD, 0.01), calibrate.DefaultPriorKv
-				}
 			}
 			if decided(i, v) && opt.Expected != nil {
 				opt.Expected[i] = math.NaN()
