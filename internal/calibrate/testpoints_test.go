@@ -96,6 +96,22 @@ func TestWeighTestPoints(t *testing.T) {
 			t.Errorf("verdict %+v: want seized >= %.3f, test points off <= %.3f", v, MeterDecides, 1-MeterDecides)
 		}
 	})
+	t.Run("clean, test points 30 % high, read above the branch differential", func(t *testing.T) {
+		// Fixed parts of Kv 12 behind the valve's 4 and 8: the valve
+		// takes 90 % and 69 % of the branch differential, read 1.69
+		// times, 1.52 and 1.17 times the branch's.
+		c := tpReadings(12, 1, 0.3, d, two, false)
+		if !(c.States[0].Valve > 1.5*d) {
+			t.Fatalf("construction: valve differential %.0f Pa, want above 1.5 times the branch's", c.States[0].Valve)
+		}
+		v, err := WeighTestPoints(c)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if v.Weight < MeterDecides || math.Abs(v.Off-0.3) > 0.03 {
+			t.Errorf("verdict %+v: want weight >= %.3f, off 0.30", v, MeterDecides)
+		}
+	})
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			v, err := WeighTestPoints(tpReadings(3, tc.m, tc.b, d, tc.kvs, tc.modelled))
@@ -126,9 +142,9 @@ func TestWeighTestPoints(t *testing.T) {
 		})
 	}
 	bad := tpReadings(3, 1, 0, d, two, false)
-	bad.States[1].Valve = 2 * d
+	bad.States[1].Valve = 2.5 * d // beyond what test points 40 % high give
 	if _, err := WeighTestPoints(bad); err == nil {
-		t.Error("a valve differential twice the branch's: no error")
+		t.Error("a valve differential 2.5 times the branch's: no error")
 	}
 	if _, err := WeighTestPoints(TestPointCase{}); err == nil {
 		t.Error("no states: no error")

@@ -2,7 +2,9 @@ package cli
 
 import (
 	"context"
+	"encoding/json"
 	"math"
+	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -146,6 +148,34 @@ func TestTestPointsSeized(t *testing.T) {
 	}
 	if !said {
 		t.Errorf("no finding says %s's test points read high", id)
+	}
+	// Its band in the plan is the weighing's, not the seized fit's, whose
+	// Kv spread reaches decades.
+	b, err := os.ReadFile(filepath.Join(out, "plan.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var plan struct {
+		Branches []struct {
+			ID   string  `json:"branch"`
+			Low  float64 `json:"band_low_percent"`
+			High float64 `json:"band_high_percent"`
+		} `json:"branches"`
+	}
+	if err := json.Unmarshal(b, &plan); err != nil {
+		t.Fatal(err)
+	}
+	i := -1
+	for k, pb := range plan.Branches {
+		if pb.ID == id {
+			i = k
+		}
+	}
+	if i < 0 {
+		t.Fatalf("%s not in plan.json", id)
+	}
+	if pb := plan.Branches[i]; !(pb.Low > 80) || !(pb.High < 120) {
+		t.Errorf("%s's band in the plan %.1f-%.1f %%: want inside 80-120 %%", id, pb.Low, pb.High)
 	}
 }
 
