@@ -59,13 +59,7 @@ func TestTestPointsDecided(t *testing.T) {
 	if off == "" || fouled == "" {
 		t.Fatalf("construction: no clean (%q) or fouled (%q) branch read at two settings", off, fouled)
 	}
-	biasTestPoints(s, off, 0.75)
-	dir := writeSite(t, s)
-	out := filepath.Join(t.TempDir(), "out")
-	code, stdout, errs := run(t, "run", dir, "--out", out)
-	if code != ExitOK && code != ExitShort {
-		t.Fatalf("run: exit %d:\n%s", code, errs)
-	}
+	out, stdout := runBiased(t, s, off, 0.75)
 	rows := readCSV(t, filepath.Join(out, "findings.csv"))
 	var offSaid, fouledSaid bool
 	for _, row := range rows[1:] {
@@ -91,6 +85,21 @@ func TestTestPointsDecided(t *testing.T) {
 			t.Errorf("%s is held or hedged on its test points:\n%s", id, stdout)
 		}
 	}
+}
+
+// runBiased makes branch id's test points read the flow f times true
+// (biasTestPoints), runs the job on site s and returns its output directory
+// and console text.
+func runBiased(t *testing.T, s *site.Site, id string, f float64) (string, string) {
+	t.Helper()
+	biasTestPoints(s, id, f)
+	dir := writeSite(t, s)
+	out := filepath.Join(t.TempDir(), "out")
+	code, stdout, errs := run(t, "run", dir, "--out", out)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d:\n%s", code, errs)
+	}
+	return out, stdout
 }
 
 // biasTestPoints makes branch id's test points read the flow f times true:
@@ -123,13 +132,7 @@ func TestTestPointsSeized(t *testing.T) {
 	if i := slices.IndexFunc(s.Branches, func(b site.Branch) bool { return b.ID == id }); i < 0 || tr.Faults[i] != "" {
 		t.Fatalf("construction: %s missing or faulty", id)
 	}
-	biasTestPoints(s, id, 1.2)
-	dir := writeSite(t, s)
-	out := filepath.Join(t.TempDir(), "out")
-	code, _, errs := run(t, "run", dir, "--out", out)
-	if code != ExitOK && code != ExitShort {
-		t.Fatalf("run: exit %d:\n%s", code, errs)
-	}
+	out, _ := runBiased(t, s, id, 1.2)
 	for _, row := range readCSV(t, filepath.Join(out, "calibration.csv"))[1:] {
 		if row[0] == id && !strings.Contains(row[5], "holds one kv") {
 			t.Fatalf("construction: the fit finds %s's valve %q, not seized: the case no longer tests the weighing against a seized valve", id, row[5])
