@@ -195,3 +195,61 @@ func twoStates(t *testing.T, seed int64) (*site.Site, *synth.Truth) {
 	}
 	return s, tr
 }
+
+// TestTrimAnchorsDecided: TestTestPointsSeized's plant, its second state
+// taken as the state after setting. T3's test points, reading 20 % high in
+// both states, are found off; the trim puts T3 as left where its reading
+// there, corrected by the error found, says (within 3 %: the error's own
+// estimate), and its band is that reading's spread, not the fit's.
+func TestTrimAnchorsDecided(t *testing.T) {
+	s, _ := twoStates(t, 6)
+	const id = "T3"
+	// The readings come state by state: the last flow read at T3 is the
+	// last state's.
+	var q0, rel float64
+	for _, r := range s.Readings {
+		if r.Where == id && r.What == site.Flow && r.Instrument == "valve-meter" {
+			q0, rel = r.Value, r.Sigma/r.Value
+		}
+	}
+	if !(q0 > 0) {
+		t.Fatalf("construction: no valve-meter flow at %s in the last state", id)
+	}
+	out, _ := runBiased(t, s, id, 1.2)
+	trim := filepath.Join(t.TempDir(), "trim")
+	dir := writeSite(t, s)
+	if code, _, errs := run(t, "trim", dir, "--plan", filepath.Join(out, "plan.json"), "--out", trim); code != ExitOK && code != ExitShort {
+		t.Fatalf("trim: exit %d:\n%s", code, errs)
+	}
+	b, err := os.ReadFile(filepath.Join(trim, "trim.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tj struct {
+		Branches []struct {
+			ID     string  `json:"branch"`
+			Target float64 `json:"target_m3_s"`
+			Left   float64 `json:"as_left_percent"`
+			Low    float64 `json:"as_left_band_low_percent"`
+			High   float64 `json:"as_left_band_high_percent"`
+		} `json:"branches"`
+	}
+	if err := json.Unmarshal(b, &tj); err != nil {
+		t.Fatal(err)
+	}
+	for _, br := range tj.Branches {
+		if br.ID != id {
+			continue
+		}
+		q := br.Left / 100 * br.Target
+		if math.Abs(q/q0-1) > 0.03 {
+			t.Errorf("%s as left %.4g m3/s, its reading there corrected %.4g: want within 3 %%", id, q, q0)
+		}
+		// Two sd either side of the reading's relative sd, in ln.
+		if w := math.Log(br.High / br.Low); math.Abs(w/(4*rel)-1) > 0.3 {
+			t.Errorf("%s's band as left %.1f-%.1f %%: want about ±%.0f %% (the reading's two sd)", id, br.Low, br.High, 200*rel)
+		}
+		return
+	}
+	t.Fatalf("%s not in trim.json", id)
+}
