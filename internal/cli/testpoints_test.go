@@ -2,9 +2,7 @@ package cli
 
 import (
 	"context"
-	"encoding/json"
 	"math"
-	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -154,10 +152,6 @@ func TestTestPointsSeized(t *testing.T) {
 	}
 	// Its band in the plan is the weighing's, not the seized fit's, whose
 	// Kv spread reaches decades.
-	b, err := os.ReadFile(filepath.Join(out, "plan.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var plan struct {
 		Branches []struct {
 			ID   string  `json:"branch"`
@@ -165,9 +159,7 @@ func TestTestPointsSeized(t *testing.T) {
 			High float64 `json:"band_high_percent"`
 		} `json:"branches"`
 	}
-	if err := json.Unmarshal(b, &plan); err != nil {
-		t.Fatal(err)
-	}
+	readJSON(t, filepath.Join(out, "plan.json"), &plan)
 	i := -1
 	for k, pb := range plan.Branches {
 		if pb.ID == id {
@@ -221,10 +213,6 @@ func TestTrimAnchorsDecided(t *testing.T) {
 	if code, _, errs := run(t, "trim", dir, "--plan", filepath.Join(out, "plan.json"), "--out", trim); code != ExitOK && code != ExitShort {
 		t.Fatalf("trim: exit %d:\n%s", code, errs)
 	}
-	b, err := os.ReadFile(filepath.Join(trim, "trim.json"))
-	if err != nil {
-		t.Fatal(err)
-	}
 	var tj struct {
 		Branches []struct {
 			ID     string  `json:"branch"`
@@ -234,9 +222,7 @@ func TestTrimAnchorsDecided(t *testing.T) {
 			High   float64 `json:"as_left_band_high_percent"`
 		} `json:"branches"`
 	}
-	if err := json.Unmarshal(b, &tj); err != nil {
-		t.Fatal(err)
-	}
+	readJSON(t, filepath.Join(trim, "trim.json"), &tj)
 	for _, br := range tj.Branches {
 		if br.ID != id {
 			continue
