@@ -57,7 +57,7 @@ func TestTestPointsDecided(t *testing.T) {
 	if off == "" || fouled == "" {
 		t.Fatalf("construction: no clean (%q) or fouled (%q) branch read at two settings", off, fouled)
 	}
-	out, stdout := runBiased(t, s, off, 0.75)
+	out, stdout, _ := runBiased(t, s, off, 0.75)
 	rows := readCSV(t, filepath.Join(out, "findings.csv"))
 	var offSaid, fouledSaid bool
 	for _, row := range rows[1:] {
@@ -87,17 +87,17 @@ func TestTestPointsDecided(t *testing.T) {
 
 // runBiased makes branch id's test points read the flow f times true
 // (biasTestPoints), runs the job on site s and returns its output directory
-// and console text.
-func runBiased(t *testing.T, s *site.Site, id string, f float64) (string, string) {
+// and console text, and the site's directory.
+func runBiased(t *testing.T, s *site.Site, id string, f float64) (out, stdout, dir string) {
 	t.Helper()
 	biasTestPoints(s, id, f)
-	dir := writeSite(t, s)
-	out := filepath.Join(t.TempDir(), "out")
+	dir = writeSite(t, s)
+	out = filepath.Join(t.TempDir(), "out")
 	code, stdout, errs := run(t, "run", dir, "--out", out)
 	if code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d:\n%s", code, errs)
 	}
-	return out, stdout
+	return out, stdout, dir
 }
 
 // biasTestPoints makes branch id's test points read the flow f times true:
@@ -130,7 +130,7 @@ func TestTestPointsSeized(t *testing.T) {
 	if i := slices.IndexFunc(s.Branches, func(b site.Branch) bool { return b.ID == id }); i < 0 || tr.Faults[i] != "" {
 		t.Fatalf("construction: %s missing or faulty", id)
 	}
-	out, _ := runBiased(t, s, id, 1.2)
+	out, _, _ := runBiased(t, s, id, 1.2)
 	for _, row := range readCSV(t, filepath.Join(out, "calibration.csv"))[1:] {
 		if row[0] == id && !strings.Contains(row[5], "holds one kv") {
 			t.Fatalf("construction: the fit finds %s's valve %q, not seized: the case no longer tests the weighing against a seized valve", id, row[5])
@@ -207,9 +207,8 @@ func TestTrimAnchorsDecided(t *testing.T) {
 	if !(q0 > 0) {
 		t.Fatalf("construction: no valve-meter flow at %s in the last state", id)
 	}
-	out, _ := runBiased(t, s, id, 1.2)
+	out, _, dir := runBiased(t, s, id, 1.2)
 	trim := filepath.Join(t.TempDir(), "trim")
-	dir := writeSite(t, s)
 	if code, _, errs := run(t, "trim", dir, "--plan", filepath.Join(out, "plan.json"), "--out", trim); code != ExitOK && code != ExitShort {
 		t.Fatalf("trim: exit %d:\n%s", code, errs)
 	}

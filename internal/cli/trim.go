@@ -435,7 +435,12 @@ func (j *job) leftRatios(ctx context.Context, p plant.Params, k int) ([]float64,
 	for i := range out {
 		out[i] = math.NaN()
 	}
-	if j.Plan == nil || len(j.testPoints) == 0 {
+	undecided := false
+	for _, v := range j.testPoints {
+		undecided = undecided || v.Settings >= 2 && !tpOff(v) && !tpRight(v)
+	}
+	if j.Plan == nil || !undecided {
+		// Only an undecided branch's trim weighs its state as left.
 		return out, nil
 	}
 	sol, err := m.Solve(ctx, p, m.States[k])
