@@ -85,7 +85,8 @@ type TrimOptions struct {
 	// plan did not trust.
 	Hedged []bool
 	// Expected is, by model index, the flow the plan predicted for each
-	// branch over its target (NaN or absent where it did not), and Surprise
+	// branch over its target (NaN or absent where it did not, or where it
+	// predicted on a resistance it did not trust), and Surprise
 	// how far a branch read after setting may sit from it before its
 	// reading is doubted (0: never). A branch read far from a narrow
 	// prediction is as likely under a meter reading wrong in both rounds
@@ -325,7 +326,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 				note[i] = "its valve does not follow its handwheel: a trim would not move it (see the findings)"
 				continue
 			}
-			surprised := read && o.Surprise > 0 && i < len(o.Expected) && !(i < len(o.Hedged) && o.Hedged[i]) &&
+			surprised := read && o.Surprise > 0 && i < len(o.Expected) &&
 				math.Abs(solL.Flow(i)/target[i]-o.Expected[i]) > o.Surprise
 			if i < len(o.Doubt) && o.Doubt[i] || surprised {
 				note[i] = "its readings are doubted (they disagree with each other or with the model, or only its own valve's test points say it is off): read its flow another way (clamp-on) before trimming"

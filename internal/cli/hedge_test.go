@@ -1,19 +1,58 @@
 package cli
 
 import (
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+
+	"flowset/internal/calibrate"
 )
 
 // TestHedgeTestPoints reads one demo branch's valve meter 25 % low in both
 // survey states: through its own test points alone that is a restriction
 // of about 1.8 times, and the plan must say so, name the other explanation
 // and set the branch between the two; a branch found restricted with a
-// clamp-on flow of its own (AHU-2) is planned as fitted.
+// clamp-on flow of its own (AHU-2) is planned as fitted. plan.json says
+// which branches were planned on the fit and which on a hedge.
 func TestHedgeTestPoints(t *testing.T) {
+	dir := hedgeSite(t)
+	outDir := filepath.Join(t.TempDir(), "out")
+	code, out, errs := run(t, "run", dir, "--out", outDir)
+	if code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	}
+	flat := strings.Join(strings.Fields(out), " ")
+	if !strings.Contains(flat, "RAD-SH reads as") || !strings.Contains(flat, "test points reading") || !strings.Contains(flat, "planned between the two") {
+		t.Errorf("no hedge note for RAD-SH in the console:\n%s", out)
+	}
+	if strings.Contains(flat, "AHU-2 reads as") {
+		t.Errorf("AHU-2, read by clamp-on, was hedged:\n%s", out)
+	}
+	var plan struct {
+		Branches []struct {
+			ID        string `json:"branch"`
+			PlannedOn string `json:"planned_on"`
+		} `json:"branches"`
+	}
+	readJSON(t, filepath.Join(outDir, "plan.json"), &plan)
+	for _, b := range plan.Branches {
+		want := plannedOnFit
+		if b.ID == "RAD-SH" {
+			want = plannedOnHedge
+		}
+		if b.PlannedOn != want {
+			t.Errorf("plan.json: %s planned_on %q, want %q", b.ID, b.PlannedOn, want)
+		}
+	}
+}
+
+// hedgeSite is the demo site with RAD-SH's valve meter read 25 % low in
+// both survey states, in a fresh folder.
+func hedgeSite(t *testing.T) string {
+	t.Helper()
 	dir := t.TempDir()
 	copySite(t, "demo", dir)
 	p := filepath.Join(dir, "readings.csv")
@@ -41,15 +80,94 @@ func TestHedgeTestPoints(t *testing.T) {
 	if err := os.WriteFile(p, []byte(strings.Join(lines, "\n")), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	code, out, errs := run(t, "run", dir, "--out", filepath.Join(t.TempDir(), "out"))
-	if code != ExitOK && code != ExitShort {
-		t.Fatalf("run: exit %d, stderr:\n%s", code, errs)
+	return dir
+}
+
+// TestTrimPlannedOn: hedgeSite's second state taken as the state after
+// setting, where RAD-SH reads about 120 % of target and the plan predicted
+// 98 % on a hedge. Planned on a hedge, a reading that far off is one of
+// the explanations weighed, and the trim acts on it; had the plan made its
+// prediction on the fit (planned_on "fit": its fit had set the readings
+// aside), the same reading is as likely the meter wrong in both rounds,
+// and RAD-SH is to be read another way before any trim.
+func TestTrimPlannedOn(t *testing.T) {
+	dir := hedgeSite(t)
+	out := filepath.Join(t.TempDir(), "out")
+	if code, _, errs := run(t, "run", dir, "--out", out); code != ExitOK && code != ExitShort {
+		t.Fatalf("run: exit %d:\n%s", code, errs)
 	}
-	flat := strings.Join(strings.Fields(out), " ")
-	if !strings.Contains(flat, "RAD-SH reads as") || !strings.Contains(flat, "test points reading") || !strings.Contains(flat, "planned between the two") {
-		t.Errorf("no hedge note for RAD-SH in the console:\n%s", out)
+	planPath := filepath.Join(out, "plan.json")
+	b, err := os.ReadFile(planPath)
+	if err != nil {
+		t.Fatal(err)
 	}
-	if strings.Contains(flat, "AHU-2 reads as") {
-		t.Errorf("AHU-2, read by clamp-on, was hedged:\n%s", out)
+	var plan map[string]any
+	if err := json.Unmarshal(b, &plan); err != nil {
+		t.Fatal(err)
+	}
+	for _, v := range plan["branches"].([]any) {
+		if br := v.(map[string]any); br["branch"] == "RAD-SH" {
+			br["planned_on"] = plannedOnFit
+		}
+	}
+	b, err = json.Marshal(plan)
+	if err != nil {
+		t.Fatal(err)
+	}
+	onFit := filepath.Join(t.TempDir(), "plan.json")
+	if err := os.WriteFile(onFit, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name, plan string
+		trimmed    bool
+	}{
+		{name: "planned on a hedge", plan: planPath, trimmed: true},
+		{name: "planned on the fit", plan: onFit, trimmed: false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			trim := filepath.Join(t.TempDir(), "trim")
+			if code, _, errs := run(t, "trim", dir, "--plan", tc.plan, "--out", trim); code != ExitOK && code != ExitShort {
+				t.Fatalf("trim: exit %d:\n%s", code, errs)
+			}
+			var tj struct {
+				Branches []struct {
+					ID      string  `json:"branch"`
+					Left    float64 `json:"as_left_percent"`
+					Trimmed bool    `json:"trimmed"`
+					Note    string  `json:"note"`
+				} `json:"branches"`
+			}
+			readJSON(t, filepath.Join(trim, "trim.json"), &tj)
+			for _, br := range tj.Branches {
+				if br.ID != "RAD-SH" {
+					continue
+				}
+				if !(br.Left > 110) {
+					t.Fatalf("construction: RAD-SH as left at %.1f %%, want beyond the tolerance of the plan's 98 %%", br.Left)
+				}
+				if br.Trimmed != tc.trimmed {
+					t.Errorf("RAD-SH trimmed %v, want %v (note %q)", br.Trimmed, tc.trimmed, br.Note)
+				}
+				if !tc.trimmed && !strings.Contains(br.Note, "where the plan predicted") {
+					t.Errorf("RAD-SH's note %q does not say it was read far from the plan's prediction", br.Note)
+				}
+				return
+			}
+			t.Fatal("RAD-SH missing from trim.json")
+		})
+	}
+}
+
+// TestPlannedOn: what plan.json says each branch was planned on.
+func TestPlannedOn(t *testing.T) {
+	j := &job{Cal: &calibrate.Calibration{}, unconfirmed: []string{"HELD"}, hedged: map[string]bool{"HEDGED": true}}
+	for id, want := range map[string]string{"HELD": plannedOnDesign, "HEDGED": plannedOnHedge, "OTHER": plannedOnFit} {
+		if got := j.plannedOn(id); got != want {
+			t.Errorf("%s: %q, want %q", id, got, want)
+		}
+	}
+	if got := (&job{}).plannedOn("OTHER"); got != "" {
+		t.Errorf("a plan from design data only says %q, want nothing", got)
 	}
 }

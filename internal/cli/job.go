@@ -75,6 +75,9 @@ type job struct {
 	// planPredicted is what the plan the valves were set to predicted of
 	// each branch, % of target by ID (trim only).
 	planPredicted map[string]float64
+	// planOffFit marks by ID the branches that plan was made on another
+	// resistance than its fit's (trim only; nil when it does not say).
+	planOffFit map[string]bool
 	// curves are the report's two system curves (as found, as planned),
 	// started once the plan is known, and drawn its branches' curves,
 	// started beside the plan; nil when the report is not wanted.
@@ -89,6 +92,9 @@ type job struct {
 	// valve's test points alone at two or more settings, by model index
 	// (testPointVerdicts).
 	testPoints map[int]tpWeighed
+	// hedged are the branches the plan was made on a resistance between
+	// two explanations (hedgeTestPoints, hedgeMeters).
+	hedged map[string]bool
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -257,6 +263,10 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
 	}
 	plan.Warnings = append(plan.Warnings, hedgeNotes(j, hedges)...)
+	j.hedged = map[string]bool{}
+	for _, h := range hedges {
+		j.hedged[h.ID] = true
+	}
 	j.Plan = plan
 	after, err := m.Solve(ctx, j.Params, plan.State())
 	if err != nil {

@@ -2,6 +2,7 @@ package cli
 
 import (
 	"math"
+	"slices"
 
 	"flowset/internal/plant"
 )
@@ -99,6 +100,28 @@ func dutiesOut(ds []plant.PumpDuty) []dutyJSON {
 	return out
 }
 
+// The values of plan.json's planned_on: the calibrated model's
+// resistance, design's (held until a flow read another way confirms the
+// fit's), or one between two explanations of the readings.
+const (
+	plannedOnFit    = "fit"
+	plannedOnDesign = "design, held"
+	plannedOnHedge  = "hedge"
+)
+
+// plannedOn is branch id's planned_on in plan.json.
+func (j *job) plannedOn(id string) string {
+	switch {
+	case j.Cal == nil:
+		return ""
+	case slices.Contains(j.unconfirmed, id):
+		return plannedOnDesign
+	case j.hedged[id]:
+		return plannedOnHedge
+	}
+	return plannedOnFit
+}
+
 type branchPlanJSON struct {
 	ID              string   `json:"branch"`
 	Parent          string   `json:"parent,omitempty"`
@@ -120,6 +143,12 @@ type branchPlanJSON struct {
 	BranchDiff      num      `json:"branch_differential_pa"`
 	Authority       num      `json:"authority"`
 	Notes           []string `json:"notes"`
+	// PlannedOn is the branch resistance the setting was worked out on
+	// (plannedOnFit, plannedOnDesign, plannedOnHedge); empty in a plan
+	// from design data only. trim reads it: a reading after setting far
+	// from a prediction made on the fit is doubted, one far from a
+	// prediction the plan hedged is not.
+	PlannedOn string `json:"planned_on,omitempty"`
 	// Bypass is there for a three-port terminal only.
 	Bypass *bypassJSON `json:"bypass,omitempty"`
 }
@@ -210,7 +239,7 @@ func (j *job) planOut(generated string) planJSON {
 			Current: num(b.Current), Exact: num(b.Exact), New: num(b.New), KvRequired: num(b.KvRequired), Target: num(b.Target),
 			Predicted: num(b.Predicted), Percent: num(b.Percent), BandLow: num(b.BandLow), BandHigh: num(b.BandHigh),
 			InTolerance: b.InTolerance, BandInTolerance: b.BandInTolerance, ValveDiff: num(b.ValveDiff), BranchDiff: num(b.BranchDiff),
-			Authority: num(b.Authority), Notes: b.Notes})
+			Authority: num(b.Authority), Notes: b.Notes, PlannedOn: j.plannedOn(b.ID)})
 		if b.Bypass != "" {
 			out.Branches[len(out.Branches)-1].Bypass = &bypassJSON{Valve: b.Bypass, Unit: b.BypassUnit, Current: num(b.BypassNow),
 				New: num(b.BypassNew), Kv: num(b.BypassKv), CheckDiff: num(b.BypassDiff), Short: b.BypassShort}

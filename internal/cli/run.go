@@ -249,9 +249,9 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		o.job.Units = u
 	}
 	left := -1
-	var predicted map[string]float64
+	var set *setPlanRead
 	if o.trim != nil {
-		if left, predicted, err = leftState(l, o.trim); err != nil {
+		if left, set, err = leftState(l, o.trim); err != nil {
 			return err
 		}
 	}
@@ -269,7 +269,7 @@ func runMain(ctx context.Context, ios *IO, o *runOptions, load loader) (err erro
 		return err
 	}
 	if left >= 0 {
-		j.trimBeyond, j.moveUnread, j.planPredicted = o.trim.Beyond, o.trim.MoveUnread, predicted
+		j.trimBeyond, j.moveUnread, j.planPredicted, j.planOffFit = o.trim.Beyond, o.trim.MoveUnread, set.Predicted, set.OffFit
 		pr.step("trimming after setting (state %q)", l.Model.States[left].Label)
 		if err := j.trim(ctx, left); err != nil {
 			return err

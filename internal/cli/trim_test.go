@@ -228,6 +228,8 @@ func FuzzSetPlan(f *testing.F) {
 	f.Add([]byte(`{"branches":[{"branch":"AHU-1","new_setting":1e300}]}`))
 	f.Add([]byte(`{"branches":[`))
 	f.Add([]byte(`[]`))
+	f.Add([]byte(`{"branches":[{"branch":"AHU-1","new_setting":2.5,"planned_on":"hedge"}]}`))
+	f.Add([]byte(`{"branches":[{"branch":"AHU-1","new_setting":2.5,"planned_on":"guess"}]}`))
 	l, err := loadEmbedded(context.Background(), "demo", io.Discard)
 	if err != nil {
 		f.Fatal(err)
@@ -239,9 +241,15 @@ func FuzzSetPlan(f *testing.F) {
 		if err := os.WriteFile(path, b, 0o644); err != nil {
 			t.Fatal(err)
 		}
-		settings, _, _, _, err := readSetPlan(path, m)
+		sp, err := readSetPlan(path, m)
 		if err != nil {
 			return
+		}
+		settings := sp.Settings
+		for id := range sp.OffFit {
+			if _, ok := m.Index(id); !ok {
+				t.Errorf("planned_on kept for %q, not in the site", id)
+			}
 		}
 		if len(settings) != len(m.Branches) {
 			t.Fatalf("%d settings for %d branches", len(settings), len(m.Branches))
