@@ -141,3 +141,80 @@ func TestFitMeterOrValve(t *testing.T) {
 		t.Errorf("MeterDecides %.17g, want 1/(1+exp(-%g/2)) = %.17g", MeterDecides, strongEvidence, got)
 	}
 }
+
+// TestFitMeterTwoSettings: on an equal-percentage valve (each turn doubles
+// the Kv here, the characteristic IEC 60534-1 calls equal percentage) a
+// valve set a constant offset from its recorded settings passes a constant
+// multiple of the Kv recorded at every setting, which is what a clamp-on
+// meter reading a constant factor off shows too. Read at two settings, the
+// two explanations stay apart only through how far each has to move the
+// branch from design. A branch at design whose meter reads 25 % high in
+// both states, its valve moved a turn between them, must be weighed as in
+// TestFitMeterOrValve's single setting: the meter's explanation ahead by
+// the strong-evidence margin, the branch near design under it (seen on an
+// independent 10-branch plant: a branch under a clamp-on 26 % high, read
+// at two settings, fitted as its valve set elsewhere alone and planned at
+// 90 %). A valve really set half a turn off, read truly, in a branch at
+// design, must stay set elsewhere, the meter's explanation behind.
+func TestFitMeterTwoSettings(t *testing.T) {
+	ctx := context.Background()
+	nan := math.NaN()
+	const id = 3
+	for _, tc := range []struct {
+		name         string
+		beta, offset float64 // the meter's factor; the valve's true offset, turns
+		meter        bool    // the meter's explanation must be ahead
+	}{
+		{name: "meter 25 % high", beta: 1.25, meter: true},
+		{name: "valve half a turn open of its record", beta: 1, offset: 0.5, meter: false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := newPlantSite(t, plantSpec{branches: 8, arrangement: site.DirectReturn, seed: 91})
+			s.Valves[0].Kv = []float64{0.25, 0.5, 1, 2, 4}
+			for _, b := range s.Branches {
+				readBranch(s, "as-found", b.ID, "clamp-on", true)
+			}
+			read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
+			read(s, "as-found", site.AtHeader, site.HeaderDiff, "manometer", nan)
+			bid := s.Branches[id].ID
+			found := s.Branches[id].Setting
+			moved := found - 1
+			read(s, "moved", bid, site.ValveDiff, "manometer", moved)
+			read(s, "moved", bid, site.Flow, "clamp-on", moved)
+			read(s, "moved", bid, site.BranchDiff, "manometer", moved)
+			read(s, "moved", site.AtPump, site.PumpDiff, "manometer", nan)
+			m := mustModel(t, s)
+			tr := newTruth(m)
+			if tc.offset != 0 {
+				// A constant offset on this table is the constant Kv
+				// scale 2^offset in both states.
+				tr.p.KvScale[id] = math.Exp2(tc.offset)
+			}
+			simulate(t, m, tr, nil, 1) // noise-free, at the stated sds
+			n := 0
+			for k := range s.Readings {
+				if r := &s.Readings[k]; r.Where == bid && r.What == site.Flow {
+					r.Value *= tc.beta
+					n++
+				}
+			}
+			if n != 2 {
+				t.Fatalf("construction: %d flow readings at %s, want 2", n, bid)
+			}
+			cal, err := Fit(ctx, m, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			v := cal.Branches[id].Valve
+			if v.Hypothesis != SetElsewhere {
+				t.Fatalf("construction: valve %v (%s), want found set elsewhere: the case no longer weighs the meter", v.Hypothesis, v.Note)
+			}
+			switch {
+			case tc.meter && (v.MeterWeight < MeterDecides || math.Abs(math.Log(v.MeterRatio)) > 0.1):
+				t.Errorf("the meter's explanation %.3g probable with the branch at %.3g x design (%s): want at least %.3g, the branch at 1 ± 10 %%", v.MeterWeight, v.MeterRatio, v.Note, MeterDecides)
+			case !tc.meter && v.MeterWeight >= 0.5:
+				t.Errorf("the meter's explanation %.3g probable (%s), the valve truly set elsewhere: want it behind", v.MeterWeight, v.Note)
+			}
+		})
+	}
+}
