@@ -3,12 +3,14 @@ package cli
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"flowset/internal/balance"
 	"flowset/internal/calibrate"
 	"flowset/internal/diagnose"
 	"flowset/internal/parallel"
+	"flowset/internal/site"
 )
 
 // Test points that read wrong (calibrate.TestPointShare): the second
@@ -222,7 +224,11 @@ func hedgeMeters(j *job, plan *balance.Plan, skip map[string]bool) []hedged {
 		j.Params.Resistance[i] = res.Multiplier
 		// The meter reads the flow the valve's table gives for its
 		// differential times the Kv scale fitted under set elsewhere.
-		h := hedged{ID: bf.ID, Fitted: mf, Planned: res.Multiplier, Other: v.MeterRatio, Low: bf.KvScale - 1, Weight: w, IfReadings: res.Flows[len(res.Flows)-1], Meter: true}
+		low, ok := meterError(j, i)
+		if !ok {
+			low = bf.KvScale - 1
+		}
+		h := hedged{ID: bf.ID, Fitted: mf, Planned: res.Multiplier, Other: v.MeterRatio, Low: low, Weight: w, IfReadings: res.Flows[len(res.Flows)-1], Meter: true}
 		if len(res.Flows) == 2 {
 			h.IfFault = res.Flows[0]
 		} else {
@@ -289,6 +295,16 @@ func meterNote(j *job, h hedged) string {
 		msg = "the valve does not sit at its recorded setting, or else the flow meter reads off: the readings fit either"
 		act = fmt.Sprintf("check the meter's set-up (pipe size, wall, transducer spacing) or read the flow another way before anything else, then the handwheel's memory stop; a meter %s explains the readings as well as the valve set elsewhere (%s), and its setting is planned between the two (%.0f %% of target if set elsewhere, %.0f %% if the meter is off)", off, odds, 100*h.IfFault, 100*h.IfReadings)
 	}
+	// The finding names the likelier explanation: the flow meter off,
+	// where that is ahead (on the independent test plants every valve so
+	// weighed, 60 of them, was under a meter reading off), a reading to
+	// check rather than a valve to reset; decided, the branch is then near
+	// design, and the restriction or freedom the valve set elsewhere made
+	// of it goes.
+	meter := h.Weight >= 0.5
+	j.Findings = slices.DeleteFunc(j.Findings, func(f diagnose.Finding) bool {
+		return h.Decided && f.Branch == h.ID && (f.Code == diagnose.Restricted || f.Code == diagnose.Free)
+	})
 	for k := range j.Findings {
 		f := &j.Findings[k]
 		if f.Branch != h.ID {
@@ -297,11 +313,73 @@ func meterNote(j *job, h hedged) string {
 		switch f.Code {
 		case diagnose.ValveMisSet:
 			f.Message, f.Action = msg, act
+			if meter {
+				f.Code, f.Reading, f.Confidence = diagnose.SuspectReading, "flow by "+meterOf(j, h.ID), h.Weight
+				f.Evidence += fmt.Sprintf("; or, the valve where recorded, its flow meter %s (%s)", off, odds)
+				if !h.Decided {
+					f.Message = "the flow meter reads off, or else the valve does not sit at its recorded setting: the readings fit either, the meter a little better"
+				}
+			}
 		case diagnose.Restricted, diagnose.Free, diagnose.CannotReachDesign:
 			f.Action = fmt.Sprintf("read its flow another way before cleaning anything: with the valve where recorded and the flow meter %s, the branch is %.2g times its design resistance", off, h.Other)
 		}
 	}
 	return note
+}
+
+// meterError is how far branch i's flow meter reads off (a fraction of the
+// flow) with its valve on its table: in each state where both were read,
+// the flow through the table at the valve differential read against the
+// meter's, the square law at the valve (IEC 60534-2-1's Kv), averaged in
+// ln over the states. The fit's Kv scale with the valve set elsewhere is
+// the same factor only while the fit keeps the meter's flow, which its
+// outlier test may set aside.
+func meterError(j *job, i int) (float64, bool) {
+	m := j.L.Model
+	id := m.Branches[i].ID
+	var sum float64
+	n := 0
+	for _, st := range m.States {
+		q, dp, set := math.NaN(), math.NaN(), st.Settings[i]
+		for _, ri := range st.Readings {
+			r := &j.L.Site.Readings[ri]
+			switch {
+			case r.Where != id || r.Bypass:
+			case r.What == site.ValveDiff:
+				dp = r.Value
+				if !math.IsNaN(r.Setting) {
+					set = r.Setting
+				}
+			case r.What == site.Flow && r.Instrument != "valve-meter":
+				q = r.Value
+			}
+		}
+		v := m.ValveElement(i, set, 1)
+		if !(q > 0) || !(dp > 0) || v == nil {
+			continue
+		}
+		d, _ := v.Drop(q, m.Fluid)
+		if !(d > 0) {
+			continue
+		}
+		sum += 0.5 * math.Log(d/dp)
+		n++
+	}
+	if n == 0 {
+		return 0, false
+	}
+	return math.Exp(sum/float64(n)) - 1, true
+}
+
+// meterOf names the instrument that read branch id's flow other than its
+// valve's test points ("its flow meter" if none is named).
+func meterOf(j *job, id string) string {
+	for _, r := range j.L.Site.Readings {
+		if r.Where == id && r.What == site.Flow && r.Instrument != "valve-meter" && r.Instrument != "" {
+			return r.Instrument
+		}
+	}
+	return "its flow meter"
 }
 
 // lowHigh words the sign of a reading's error.
