@@ -263,6 +263,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
 	}
 	plan.Warnings = append(plan.Warnings, hedgeNotes(j, hedges)...)
+	likelyOff(j)
 	j.hedged = map[string]bool{}
 	for _, h := range hedges {
 		j.hedged[h.ID] = true

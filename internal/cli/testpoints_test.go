@@ -28,32 +28,7 @@ import (
 // 10 % for its valve off its mark, rightly undecided.)
 func TestTestPointsDecided(t *testing.T) {
 	s, tr := twoStates(t, 8)
-	// The branches whose test points were read at two settings.
-	sets := map[string]map[float64]bool{}
-	for _, r := range s.Readings {
-		if r.What == site.Flow && r.Instrument == "valve-meter" && !math.IsNaN(r.Setting) {
-			if sets[r.Where] == nil {
-				sets[r.Where] = map[float64]bool{}
-			}
-			sets[r.Where][r.Setting] = true
-		}
-	}
-	var off, fouled string
-	for i, b := range s.Branches {
-		if len(sets[b.ID]) < 2 {
-			continue
-		}
-		switch tr.Faults[i] {
-		case "":
-			if off == "" {
-				off = b.ID
-			}
-		case synth.Fouled:
-			if fouled == "" {
-				fouled = b.ID
-			}
-		}
-	}
+	off, fouled := readTwice(s, tr)
 	if off == "" || fouled == "" {
 		t.Fatalf("construction: no clean (%q) or fouled (%q) branch read at two settings", off, fouled)
 	}
@@ -82,6 +57,68 @@ func TestTestPointsDecided(t *testing.T) {
 		if strings.Contains(flat, id+" reads as") {
 			t.Errorf("%s is held or hedged on its test points:\n%s", id, stdout)
 		}
+	}
+}
+
+// readTwice returns the first clean and the first fouled branch of s whose
+// test points were read at two settings ("" where none).
+func readTwice(s *site.Site, tr *synth.Truth) (clean, fouled string) {
+	sets := map[string]map[float64]bool{}
+	for _, r := range s.Readings {
+		if r.What == site.Flow && r.Instrument == "valve-meter" && !math.IsNaN(r.Setting) {
+			if sets[r.Where] == nil {
+				sets[r.Where] = map[float64]bool{}
+			}
+			sets[r.Where][r.Setting] = true
+		}
+	}
+	for i, b := range s.Branches {
+		if len(sets[b.ID]) < 2 {
+			continue
+		}
+		switch tr.Faults[i] {
+		case "":
+			if clean == "" {
+				clean = b.ID
+			}
+		case synth.Fouled:
+			if fouled == "" {
+				fouled = b.ID
+			}
+		}
+	}
+	return clean, fouled
+}
+
+// TestTestPointsLikelyOff: TestTestPointsDecided's construction on seed 13,
+// where the clean branch's test points, reading 25 % low, come out 90 %
+// likely off against its valve off its mark: not decided. Its one finding
+// must name the likelier explanation, its test points reading low, with
+// the other named after it; no finding may call it restricted, free or
+// its valve off its mark or seized.
+func TestTestPointsLikelyOff(t *testing.T) {
+	s, tr := twoStates(t, 13)
+	off, _ := readTwice(s, tr)
+	if off == "" {
+		t.Fatal("construction: no clean branch read at two settings")
+	}
+	out, _, _ := runBiased(t, s, off, 0.75)
+	var said int
+	for _, row := range readCSV(t, filepath.Join(out, "findings.csv"))[1:] {
+		code, br, text := row[1], row[2], strings.Join(row[3:], " ")
+		switch {
+		case br != off:
+		case code == "restricted" || code == "free" || code == "valve-mis-set" || code == "valve-stuck":
+			t.Errorf("%s, its test points reading 25 %% low, is found %s: %s", off, code, text)
+		case code == "suspect-reading" && strings.Contains(text, "test points most likely read the flow about"):
+			if !strings.Contains(text, "% low") || !strings.Contains(text, "; else ") || !strings.Contains(text, "not enough to decide") {
+				t.Errorf("%s's finding does not say its test points likely read low, the other explanation after: %s", off, text)
+			}
+			said++
+		}
+	}
+	if said != 1 {
+		t.Errorf("%d findings say %s's test points most likely read off, want 1", said, off)
 	}
 }
 
