@@ -92,54 +92,18 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		if !ok || bp == nil || m.Branches[i].Valve == nil || m.Branches[i].Riser() || bp.OnIndex || !(bp.Target > 0) {
 			continue
 		}
-		bf := j.Cal.Branches[i]
-		mf := j.Params.Resistance[i]
-		tv, ok := j.testPoints[i]
-		if ok && (tpOff(tv) || tpRight(tv)) {
-			continue
-		}
-		several := ok && tv.Settings >= 2
-		ln, sd := bf.DataLn, bf.DataSD
-		if math.IsNaN(ln) {
-			ln, sd = math.Log(mf), 0
-		}
-		if !(mf > 1) || !(ln > 0) {
+		o, ok := tpOdds(j, i)
+		if !ok {
 			continue
 		}
 		fixed := m.FixedElement(i, 1)
-		dv, db := j.Before.ValveDiff(i), j.Before.BranchDiff(i)
-		if fixed == nil || !(dv > 0) || !(db > dv) {
-			continue
-		}
-		// Test points reading a flow factor 1+b read the valve differential
-		// (1+b)² times and the branch's total resistance (1+b)^-2 times its
-		// own; the valve's resistance is unchanged. With φ the valve's share
-		// of the branch differential as read, the fixed parts then appear
-		// multiplied by m = (c - φ₀)/(1 - φ₀), φ₀ = φ/c, c = (1+b)^-2: so
-		// c = m/(1 - φ + mφ).
-		phi := dv / db
-		mm := math.Exp(ln)
-		c := mm / (1 - phi + mm*phi)
-		b := 1/math.Sqrt(c) - 1
-		if math.Abs(b) > calibrate.TestPointMax && !several {
-			continue
-		}
-		jac := 0.5 / math.Sqrt(c) * (1 - phi) / (1 - phi + mm*phi) // |db/d ln m|
-		wFault := calibrate.DefaultFaultShare * normalPDF(ln, math.Hypot(calibrate.DefaultPriorResistance, sd))
-		wReads := calibrate.TestPointShare / (2 * calibrate.TestPointMax) * jac
-		mReads := 1.0
-		if several {
-			// Read at several settings but not decided: the weighing
-			// of every state, its multipliers under each explanation.
-			wFault, wReads, mf, mReads, b = 1-tv.Weight, tv.Weight, tv.RatioRight, tv.Ratio, tv.Off
-		}
 		_, hi := m.Branches[i].Valve.Range()
 		open := m.ValveElement(i, hi, j.Params.KvScale[i])
 		if open == nil {
 			continue
 		}
 		openDrop, _ := open.Drop(bp.Target, m.Fluid)
-		ws = append(ws, weighed{id: f.Branch, i: i, mf: mf, b: b, wFault: wFault, wRds: wReads, mReads: mReads, c: balance.HedgeCase{
+		ws = append(ws, weighed{id: f.Branch, i: i, mf: o.mf, b: o.b, wFault: o.wFault, wRds: o.wReads, mReads: o.mReads, c: balance.HedgeCase{
 			Rest:   func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) },
 			Diff:   bp.BranchDiff,
 			Target: bp.Target,
@@ -160,6 +124,64 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		out = append(out, hedged{ID: w.id, Fitted: w.mf, Planned: w.res.Multiplier, Low: -w.b, Weight: w.wRds / (w.wFault + w.wRds), IfFault: w.res.Flows[0], IfReadings: w.res.Flows[1]})
 	}
 	return out
+}
+
+// tpOdds is branch i's two explanations of a restriction read through its
+// own valve's test points alone, as hedgeTestPoints weighs them.
+type tpOdd struct {
+	mf, mReads     float64 // the multipliers on the fixed parts under each
+	b              float64 // the test points' error of the flow if they read off
+	wFault, wReads float64 // unnormalised weights
+}
+
+// tpOdds weighs branch i, found restricted (or short of design) through its
+// own valve's test points alone, against those test points reading low: the
+// explanations' marginal likelihoods of the branch's data-only estimate, or
+// where it was read at several settings (undecided) the weighing's own. ok
+// is false where the branch is not so weighed (decided, not above design, a
+// differential missing, an error beyond calibrate.TestPointMax).
+func tpOdds(j *job, i int) (tpOdd, bool) {
+	m := j.L.Model
+	bf := j.Cal.Branches[i]
+	o := tpOdd{mf: j.Params.Resistance[i], mReads: 1}
+	tv, ok := j.testPoints[i]
+	if ok && (tpOff(tv) || tpRight(tv)) {
+		return o, false
+	}
+	several := ok && tv.Settings >= 2
+	ln, sd := bf.DataLn, bf.DataSD
+	if math.IsNaN(ln) {
+		ln, sd = math.Log(o.mf), 0
+	}
+	if !(o.mf > 1) || !(ln > 0) {
+		return o, false
+	}
+	dv, db := j.Before.ValveDiff(i), j.Before.BranchDiff(i)
+	if m.FixedElement(i, 1) == nil || !(dv > 0) || !(db > dv) {
+		return o, false
+	}
+	// Test points reading a flow factor 1+b read the valve differential
+	// (1+b)² times and the branch's total resistance (1+b)^-2 times its
+	// own; the valve's resistance is unchanged. With φ the valve's share
+	// of the branch differential as read, the fixed parts then appear
+	// multiplied by m = (c - φ₀)/(1 - φ₀), φ₀ = φ/c, c = (1+b)^-2: so
+	// c = m/(1 - φ + mφ).
+	phi := dv / db
+	mm := math.Exp(ln)
+	c := mm / (1 - phi + mm*phi)
+	o.b = 1/math.Sqrt(c) - 1
+	if math.Abs(o.b) > calibrate.TestPointMax && !several {
+		return o, false
+	}
+	jac := 0.5 / math.Sqrt(c) * (1 - phi) / (1 - phi + mm*phi) // |db/d ln m|
+	o.wFault = calibrate.DefaultFaultShare * normalPDF(ln, math.Hypot(calibrate.DefaultPriorResistance, sd))
+	o.wReads = calibrate.TestPointShare / (2 * calibrate.TestPointMax) * jac
+	if several {
+		// Read at several settings but not decided: the weighing
+		// of every state, its multipliers under each explanation.
+		o.wFault, o.wReads, o.mf, o.mReads, o.b = 1-tv.Weight, tv.Weight, tv.RatioRight, tv.Ratio, tv.Off
+	}
+	return o, true
 }
 
 // hedgeMeters weighs each valve the fit found set elsewhere on the evidence

@@ -336,9 +336,13 @@ func tpRightAction(a string) string {
 // tell the two explanations apart (calibrate.WeighTestPoints), and the
 // risk removed is the chance that the plan's setting leaves it outside the
 // tolerance under the explanation that holds: held, the fault's; hedged,
-// each explanation's flow weighed.
+// each explanation's flow weighed. So also a branch on the index path found
+// restricted on its own test points alone, which the plan neither holds nor
+// hedges (the pump is set for it): the risk is the chance its test points
+// read off (tpOdds) where it then gets more than the tolerance allows, the
+// pump raised for a restriction that is not there.
 func tpDecides(j *job, plan *balance.Plan, hedges []hedged) ([]float64, []string) {
-	if len(j.testPoints) == 0 || plan == nil {
+	if plan == nil || j.Cal == nil {
 		return nil, nil
 	}
 	m := j.L.Model
@@ -362,6 +366,32 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) ([]float64, []string
 			risk[h.ID], weight[h.ID] = (1-h.Weight)*out(h.IfFault)+h.Weight*out(h.IfReadings), h.Weight
 		}
 	}
+	indep := map[string]bool{}
+	for _, e := range j.Evidence {
+		indep[e.ID] = e.HasFlow
+	}
+	index := map[string]bool{}
+	for _, b := range plan.Branches {
+		index[b.ID] = b.OnIndex
+	}
+	for _, f := range j.Findings {
+		if f.Code != diagnose.Restricted && f.Code != diagnose.CannotReachDesign || !index[f.Branch] || indep[f.Branch] {
+			continue
+		}
+		if _, ok := risk[f.Branch]; ok {
+			continue
+		}
+		i, ok := m.Index(f.Branch)
+		if !ok || m.Branches[i].Valve == nil || m.Branches[i].Riser() {
+			continue
+		}
+		if o, ok := tpOdds(j, i); ok && o.wFault+o.wReads > 0 && o.b > -1 {
+			// The fit took the test points as right: read a flow factor
+			// 1+b, the branch passes about 1/(1+b) of what it planned.
+			w := o.wReads / (o.wFault + o.wReads)
+			risk[f.Branch], weight[f.Branch] = w*out(1/(1+o.b)), w
+		}
+	}
 	var dec []float64
 	var why []string
 	for _, b := range plan.Branches {
@@ -380,6 +410,9 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) ([]float64, []string
 		}
 		dec[i] = r
 		why[i] = fmt.Sprintf("read at its new setting, its test points tell a real restriction from themselves reading off (%.0f %% chance of the latter now): the plan cannot, and a trim then sets it", 100*weight[b.ID])
+		if b.OnIndex {
+			why[i] += " and the pump"
+		}
 	}
 	return dec, why
 }

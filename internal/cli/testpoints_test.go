@@ -275,3 +275,75 @@ func TestTrimAnchorsDecided(t *testing.T) {
 	}
 	t.Fatalf("%s not in trim.json", id)
 }
+
+// TestReadIndexFirst: a generated plant read through valve meters at one
+// setting, one branch's test points made to read the flow 20 % low, the
+// first branch (in sheet order, its valve not found fully open) for which
+// that makes it the index circuit restricted on its test points alone. Through them alone it is restricted,
+// or they read low: the plan opens it for the restriction and sets the pump
+// for it, and neither holds nor hedges an index. Its reading at the new
+// setting tells the two apart and with them the pump (tpDecides), so it must
+// be the first reading ranked, saying so; unbiased, it is not ranked for
+// that.
+func TestReadIndexFirst(t *testing.T) {
+	gen := func() *site.Site {
+		spec := synth.Spec{Branches: 12, Arrangement: site.DirectReturn, Seed: 3, Noise: 1, States: 1,
+			Readings: synth.ReadingMix{ValveMeter: 1, Paired: true, BranchDiff: 1, PumpDiff: true}}
+		s, _, err := synth.Generate(context.Background(), spec)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return s
+	}
+	first := func(out string) (where, settles string) {
+		rows := readCSV(t, filepath.Join(out, "read-next.csv"))
+		if len(rows) < 2 {
+			t.Fatalf("read-next.csv: no reading ranked")
+		}
+		return rows[1][1], rows[1][len(rows[1])-1]
+	}
+	index := func(out string) string {
+		var plan struct {
+			Index string `json:"index_circuit"`
+		}
+		readJSON(t, filepath.Join(out, "plan.json"), &plan)
+		return plan.Index
+	}
+	restricted := func(out, id string) bool {
+		for _, row := range readCSV(t, filepath.Join(out, "findings.csv"))[1:] {
+			if row[2] == id && (row[1] == "restricted" || row[1] == "cannot-reach-design") {
+				return true
+			}
+		}
+		return false
+	}
+	var id, out string
+	s := gen()
+	for _, b := range s.Branches {
+		// A valve found fully open stays so: read there again, its test
+		// points decide nothing.
+		if v := s.Valve(b.Valve); v == nil {
+			continue
+		} else if _, hi := v.Range(); b.Setting >= hi {
+			continue
+		}
+		o, _, _ := runBiased(t, gen(), b.ID, 0.8)
+		if index(o) == b.ID && restricted(o, b.ID) {
+			id, out = b.ID, o
+			break
+		}
+	}
+	if id == "" {
+		t.Fatal("construction: no branch becomes the index restricted on its test points 20 % low")
+	}
+	where, settles := first(out)
+	if where != id || !strings.Contains(settles, "tell a real restriction from themselves reading off") || !strings.Contains(settles, "and the pump") {
+		t.Errorf("first reading %s (%q), want the index %s, its test points at the new setting deciding the restriction and the pump", where, settles, id)
+	}
+	o, _, _ := runBiased(t, gen(), "", 1)
+	for _, row := range readCSV(t, filepath.Join(o, "read-next.csv"))[1:] {
+		if row[1] == id && strings.Contains(row[len(row)-1], "tell a real restriction") {
+			t.Errorf("unbiased, %s is ranked to tell a restriction from its test points: %s", id, row[len(row)-1])
+		}
+	}
+}
