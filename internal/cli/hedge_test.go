@@ -126,10 +126,7 @@ func TestTrimPlannedOn(t *testing.T) {
 		{name: "planned on the fit", plan: onFit, trimmed: false},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			trim := filepath.Join(t.TempDir(), "trim")
-			if code, _, errs := run(t, "trim", dir, "--plan", tc.plan, "--out", trim); code != ExitOK && code != ExitShort {
-				t.Fatalf("trim: exit %d:\n%s", code, errs)
-			}
+			trim := runTrim(t, dir, tc.plan)
 			var tj struct {
 				Branches []struct {
 					ID      string  `json:"branch"`

@@ -232,11 +232,7 @@ func applyTestPoints(j *job) {
 	})
 	for k := range j.Findings {
 		f := &j.Findings[k]
-		i, ok := m.Index(f.Branch)
-		if !ok {
-			continue
-		}
-		v, ok := j.testPoints[i]
+		v, ok := findingTP(j, f)
 		if !ok || !tpRight(v) {
 			continue
 		}
@@ -284,16 +280,11 @@ func applyTestPoints(j *job) {
 // its finding. On the independent test plants, 9 of the 10 branches so
 // weighed were under test points reading off.
 func likelyOff(j *job) {
-	m := j.L.Model
 	done := map[string]bool{}
 	var drop []int
 	for k := range j.Findings {
 		f := &j.Findings[k]
-		i, ok := m.Index(f.Branch)
-		if !ok {
-			continue
-		}
-		v, ok := j.testPoints[i]
+		v, ok := findingTP(j, f)
 		if !ok || v.Settings < 2 || tpOff(v) || v.Weight < 0.5 {
 			continue
 		}
@@ -318,6 +309,17 @@ func likelyOff(j *job) {
 	for _, k := range slices.Backward(drop) {
 		j.Findings = slices.Delete(j.Findings, k, k+1)
 	}
+}
+
+// findingTP is the weighing of the test points of finding f's branch, if
+// they were weighed.
+func findingTP(j *job, f *diagnose.Finding) (tpWeighed, bool) {
+	i, ok := j.L.Model.Index(f.Branch)
+	if !ok {
+		return tpWeighed{}, false
+	}
+	v, ok := j.testPoints[i]
+	return v, ok
 }
 
 // tpRightAction is a finding's action once the readings at several settings

@@ -122,6 +122,17 @@ func TestTestPointsLikelyOff(t *testing.T) {
 	}
 }
 
+// runTrim runs trim on the site in dir with the plan at plan and returns
+// its output directory.
+func runTrim(t *testing.T, dir, plan string) string {
+	t.Helper()
+	trim := filepath.Join(t.TempDir(), "trim")
+	if code, _, errs := run(t, "trim", dir, "--plan", plan, "--out", trim); code != ExitOK && code != ExitShort {
+		t.Fatalf("trim: exit %d:\n%s", code, errs)
+	}
+	return trim
+}
+
 // runBiased makes branch id's test points read the flow f times true
 // (biasTestPoints), runs the job on site s and returns its output directory
 // and console text, and the site's directory.
@@ -245,10 +256,7 @@ func TestTrimAnchorsDecided(t *testing.T) {
 		t.Fatalf("construction: no valve-meter flow at %s in the last state", id)
 	}
 	out, _, dir := runBiased(t, s, id, 1.2)
-	trim := filepath.Join(t.TempDir(), "trim")
-	if code, _, errs := run(t, "trim", dir, "--plan", filepath.Join(out, "plan.json"), "--out", trim); code != ExitOK && code != ExitShort {
-		t.Fatalf("trim: exit %d:\n%s", code, errs)
-	}
+	trim := runTrim(t, dir, filepath.Join(out, "plan.json"))
 	var tj struct {
 		Branches []struct {
 			ID     string  `json:"branch"`
