@@ -1,0 +1,35 @@
+#!/bin/bash
+# usage: .ci/testplant/gen.sh OUT_DIR
+# The plant sets the loops are measured on (an instrument beside flowset, not a test):
+#   OUT_DIR/suite  plantsim's fixed suite s01-s12
+#   OUT_DIR/o      o01-o22, seeds 9101-9122, 3-300 branches
+#   OUT_DIR/p      p01-p20, seeds 9901-9920, 5-300 branches, faults on 17-30 % of branches,
+#                  valves found anywhere, a second state with 30 % of valves moved on every other plant
+set -e
+PS=${PLANTSIM:-$(cd "$(dirname "$0")/../../.." && pwd)/shared/testplant/plantsim.py}
+O=$1
+mkdir -p "$O/o" "$O/p"
+/usr/bin/python3 "$PS" suite --out "$O/suite" > /dev/null
+sizes=(3 5 8 10 15 20 25 30 40 50 60 70 80 90 100 120 150 180 200 250 300 300)
+for i in $(seq 1 22); do
+  n=${sizes[$((i-1))]}
+  arr=direct; a=d; [ $((i % 2)) = 0 ] && { arr=reverse; a=r; }
+  pump=dp; [ $((i % 4)) = 0 -o $((i % 4)) = 1 ] && pump=speed
+  found=open; [ $((i % 3)) = 0 ] && found=random
+  extra=(); [ $((i % 5)) = 0 ] && extra=(--second-state 0.3)
+  name=$(printf 'o%02d_n%d_%s_%s' "$i" "$n" "$a" "$pump")
+  /usr/bin/python3 "$PS" make --seed $((9100 + i)) --branches "$n" --arrangement $arr --pump $pump \
+    --as-found $found "${extra[@]}" --name "$name" --out "$O/o/$name.json" > /dev/null
+done
+sizes=(5 8 12 16 20 25 30 40 50 60 70 80 100 120 140 160 180 200 250 300)
+rates=(0.17 0.20 0.25 0.30)
+for i in $(seq 1 20); do
+  n=${sizes[$((i-1))]}
+  arr=direct; a=d; [ $((i % 2)) = 0 ] && { arr=reverse; a=r; }
+  pump=speed; [ $((i % 3)) = 0 ] && pump=dp
+  extra=(); [ $((i % 2)) = 1 ] && extra=(--second-state 0.3)
+  name=$(printf 'p%02d_n%d_%s_%s' "$i" "$n" "$a" "$pump")
+  /usr/bin/python3 "$PS" make --seed $((9900 + i)) --branches "$n" --arrangement $arr --pump $pump \
+    --as-found random --fault-rate ${rates[$((i % 4))]} --min-faults 1 "${extra[@]}" --name "$name" \
+    --out "$O/p/$name.json" > /dev/null
+done
