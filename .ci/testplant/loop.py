@@ -67,7 +67,10 @@ def plan_site(fs, pub, w, tag):
     return site, out, st
 
 
-def first_branches(readnext, k):
+def first_branches(readnext, k, checks=None):
+    """The first k branches read-next.json ranks; with checks (a dict), a branch whose first
+    reading is a check (at_setting: read once with its valve moved there, then put back) is
+    recorded in it, branch -> setting. The check counts as the branch's one point."""
     with open(readnext) as fh:
         d = json.load(fh)
     got = []
@@ -75,6 +78,8 @@ def first_branches(readnext, k):
         w = r.get("where")
         if w and w != "pump" and w not in got:
             got.append(w)
+            if checks is not None and r.get("at_setting") is not None:
+                checks[w] = r["at_setting"]
         if len(got) == k:
             break
     return got
@@ -104,12 +109,35 @@ def trim_settings(trimjson, plan_settings, out):
         json.dump({"settings": st, "pump": pump}, fh)
 
 
-def one_round(fs, scen, w, name, planout, plan_st, branches, tag, seed):
+def checked(scen, w, plan_st, checks, tag, seed):
+    """The checks, each a survey state of its own read before the round: the plan's settings but
+    the checked valve at its check setting, that branch and the pump read."""
+    if not checks:
+        return scen
+    with open(plan_st) as fh:
+        ps = json.load(fh)
+    for n, (b, at) in enumerate(sorted(checks.items())):
+        st = dict(ps, settings=dict(ps["settings"], **{b: at}))
+        f = os.path.join(w, "%s.check%d.settings.json" % (tag, n))
+        with open(f, "w") as fh:
+            json.dump(st, fh)
+        pts = os.path.join(w, "%s.check%d.points.json" % (tag, n))
+        with open(pts, "w") as fh:
+            json.dump({"branches": [b], "pump": True}, fh)
+        out = os.path.join(w, "%s.check%d.scen.json" % (tag, n))
+        must([PY, PLANTSIM, "resurvey", "--scenario", scen, "--settings", f, "--seed", str(seed + 100 + n),
+              "--points", pts, "--id", "check_" + b, "--out", out])
+        scen = out
+    return scen
+
+
+def one_round(fs, scen, w, name, planout, plan_st, branches, tag, seed, checks=None):
+    base = checked(scen, w, plan_st, checks, tag, seed)
     pts = os.path.join(w, tag + ".points.json")
     with open(pts, "w") as fh:
         json.dump({"branches": branches, "pump": True}, fh)
     s2 = os.path.join(w, tag + ".scen.json")
-    must([PY, PLANTSIM, "resurvey", "--scenario", scen, "--settings", plan_st, "--seed", str(seed),
+    must([PY, PLANTSIM, "resurvey", "--scenario", base, "--settings", plan_st, "--seed", str(seed),
           "--points", pts, "--id", "after_plan", "--out", s2])
     pub2 = os.path.join(w, tag + ".public.json")
     must([PY, PLANTSIM, "public", "--scenario", s2, "--out", pub2])
@@ -123,6 +151,8 @@ def one_round(fs, scen, w, name, planout, plan_st, branches, tag, seed):
     trim_settings(os.path.join(tr, "trim.json"), plan_st, st2)
     r = score(s2, st2, os.path.join(w, tag + ".trim.score.json"))
     r["points"] = branches
+    if checks:
+        r["checks"] = checks
     return r
 
 
@@ -186,8 +216,9 @@ def plant(a, name):
         row["plan"] = score(scen, st, os.path.join(w, "plan.score.json"))
         k = max(1, int(math.floor(0.15 * len(ids) + 1e-9)))
         row["k"] = k
-        row["fs"] = one_round(a.flowset, scen, w, name, out, st,
-                              first_branches(os.path.join(out, "read-next.json"), k), "fs", a.seed)
+        checks = {}
+        pts = first_branches(os.path.join(out, "read-next.json"), k, checks)
+        row["fs"] = one_round(a.flowset, scen, w, name, out, st, pts, "fs", a.seed, checks)
         row["random"] = one_round(a.flowset, scen, w, name, out, st, drawn(ids, k, name, a.seed),
                                   "random", a.seed)
     except Exception as e:  # one plant's failure is reported, the rest go on

@@ -128,6 +128,12 @@ type Candidate struct {
 	Gain float64
 	// Settles says what the reading decides.
 	Settles string
+	// Check marks a reading taken once with the branch's valve moved to
+	// At for it and then put back (a state of its own), its test points
+	// read at a second setting; Expect and the band are then at At. The
+	// ranking leaves it false: its caller knows which readings decide so.
+	Check bool
+	At    float64
 }
 
 // ReadPlan is the ranking of the readings to take after setting.

@@ -66,6 +66,10 @@ type job struct {
 	// rank.
 	Reads      *balance.ReadPlan
 	surveyPlan bool
+	// checkAt is, by model index, the setting a branch is read at once
+	// after setting for its test points to decide (tpDecides); NaN or nil
+	// for none.
+	checkAt []float64
 	// Trim is the round after setting (trim only) and readLeft the
 	// branches read in its as-left state.
 	Trim       *balance.TrimPlan
@@ -286,7 +290,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		if j.Cal != nil {
 			doing = append(doing, "ranking the readings to take after setting")
 			ro.Uncertainty = j.uncertainty()
-			ro.Decides, ro.DecidesWhy = tpDecides(j, plan, hedges)
+			ro.Decides, ro.DecidesWhy, j.checkAt = tpDecides(j, plan, hedges)
 		} else {
 			// A plan from design: rank the survey to take before setting
 			// anything, on the fit's priors, read as found.
@@ -315,8 +319,37 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 			return nil, &dataError{fmt.Errorf("ranking readings: %w", err)}
 		}
 		j.Reads = rp
+		if err := j.markChecks(ctx); err != nil {
+			return nil, err
+		}
 	}
 	return j, nil
+}
+
+// markChecks makes the first valve-meter reading of each branch with a
+// check setting (j.checkAt) a check: read at that setting, what it should
+// give there on the plan's model, the band scaled alike.
+func (j *job) markChecks(ctx context.Context) error {
+	for k := range j.Reads.Readings {
+		c := &j.Reads.Readings[k]
+		if c.Index < 0 || c.Index >= len(j.checkAt) || math.IsNaN(j.checkAt[c.Index]) || c.How != balance.ByValveMeter {
+			continue
+		}
+		i := c.Index
+		st := j.Plan.State()
+		planned := j.After.Flow(i)
+		st.Settings[i] = j.checkAt[i]
+		sol, err := j.L.Model.Solve(ctx, j.Params, st)
+		if err != nil {
+			return &dataError{fmt.Errorf("branch %q read at its check setting: %w", c.Where, err)}
+		}
+		if f := sol.Flow(i) / planned; f > 0 {
+			c.Expect, c.Low, c.High = f*c.Expect, f*c.Low, f*c.High
+		}
+		c.Check, c.At = true, j.checkAt[i]
+		j.checkAt[i] = math.NaN() // the first reading of the branch only
+	}
+	return nil
 }
 
 // maxRankBranches is the largest site whose readings after setting are

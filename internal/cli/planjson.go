@@ -9,11 +9,15 @@ import (
 
 // planJSON is the plan as written to plan.json, in SI units.
 type planJSON struct {
-	Site          string           `json:"site"`
-	Generated     string           `json:"generated"`
-	DesignOnly    bool             `json:"design_only"`
-	Rounding      string           `json:"rounding"`
-	Share         string           `json:"share"`
+	Site       string `json:"site"`
+	Generated  string `json:"generated"`
+	DesignOnly bool   `json:"design_only"`
+	Rounding   string `json:"rounding"`
+	Share      string `json:"share"`
+	// States are the survey states the plan was made from: trim takes
+	// every other state as read after setting, its valves where the plan
+	// put them unless a reading records them elsewhere.
+	States        []string         `json:"states"`
 	Index         string           `json:"index_circuit"`
 	IndexPath     []string         `json:"index_path"`
 	LeastPa       num              `json:"least_differential_pa"`
@@ -209,6 +213,7 @@ func (j *job) planOut(generated string) planJSON {
 	p := j.Plan
 	pp := p.Pump
 	out := planJSON{Site: j.L.Site.Name, Generated: generated, DesignOnly: p.DesignOnly, Rounding: p.Rounding.String(), Share: p.Share.String(),
+		States:        j.L.Model.StateLabels(),
 		LeastRemedied: num(p.LeastRemedied),
 		Index:         p.Index, IndexPath: p.IndexPath, LeastPa: num(p.Least), RequiredPa: num(p.Required), TotalFlow: num(p.TotalFlow),
 		ToleranceLow: num(p.ToleranceLow), ToleranceHigh: num(p.ToleranceHigh), Warnings: p.Warnings, Summary: p.Summary(),

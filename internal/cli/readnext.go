@@ -116,6 +116,9 @@ type readingOutJSON struct {
 	Minutes num    `json:"minutes"`
 	Gain    num    `json:"risk_removed"`
 	Settles string `json:"settles"`
+	// At is the setting a check is read at (its valve moved for it and
+	// put back), null for a reading at the plan's setting.
+	At num `json:"at_setting"`
 }
 
 func (j *job) readNextOut() readNextJSON {
@@ -132,7 +135,11 @@ func (j *job) readNextOut() readNextJSON {
 		if c.How == balance.AtPump {
 			unit = "Pa"
 		}
-		out.Readings = append(out.Readings, readingOutJSON{Where: c.Where, How: c.How.String(), Expect: num(c.Expect), Low: num(c.Low), High: num(c.High), Unit: unit, Minutes: num(c.Minutes), Gain: num(c.Gain), Settles: c.Settles})
+		at := math.NaN()
+		if c.Check {
+			at = c.At
+		}
+		out.Readings = append(out.Readings, readingOutJSON{Where: c.Where, How: c.How.String(), Expect: num(c.Expect), Low: num(c.Low), High: num(c.High), Unit: unit, Minutes: num(c.Minutes), Gain: num(c.Gain), Settles: c.Settles, At: num(at)})
 	}
 	return out
 }

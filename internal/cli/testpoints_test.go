@@ -354,4 +354,64 @@ func TestReadIndexFirst(t *testing.T) {
 			t.Errorf("unbiased, %s is ranked to tell a restriction from its test points: %s", id, row[len(row)-1])
 		}
 	}
+	// Found fully open and planned so, the index learns nothing read again
+	// at its new setting: it is read once at a check setting instead, its
+	// valve moved for it and put back.
+	id, out = "", ""
+	for _, b := range gen().Branches {
+		s := gen()
+		k := slices.IndexFunc(s.Branches, func(c site.Branch) bool { return c.ID == b.ID })
+		v := s.Valve(b.Valve)
+		if v == nil {
+			continue
+		}
+		_, hi := v.Range()
+		s.Branches[k].Setting = hi
+		for r := range s.Readings {
+			if s.Readings[r].Where == b.ID && !math.IsNaN(s.Readings[r].Setting) {
+				s.Readings[r].Setting = hi
+			}
+		}
+		o, _, _ := runBiased(t, s, b.ID, 0.8)
+		if index(o) == b.ID && restricted(o, b.ID) && planned(t, o, b.ID) == hi {
+			id, out = b.ID, o
+			break
+		}
+	}
+	if id == "" {
+		t.Fatal("construction: no branch found fully open becomes the index restricted on its test points 20 % low")
+	}
+	var rn struct {
+		Readings []struct {
+			Where   string   `json:"where"`
+			At      *float64 `json:"at_setting"`
+			Settles string   `json:"settles"`
+		} `json:"readings"`
+	}
+	readJSON(t, filepath.Join(out, "read-next.json"), &rn)
+	if len(rn.Readings) == 0 || rn.Readings[0].Where != id || rn.Readings[0].At == nil || !strings.Contains(rn.Readings[0].Settles, "read once with its valve at") {
+		t.Fatalf("found fully open, the index %s is not read first at a check setting: %+v", id, rn.Readings[:min(2, len(rn.Readings))])
+	}
+	if at := *rn.Readings[0].At; at >= planned(t, out, id) {
+		t.Errorf("%s's check setting %g does not close it from the plan's %g", id, at, planned(t, out, id))
+	}
+}
+
+// planned is the new setting plan.json in out gives branch id.
+func planned(t *testing.T, out, id string) float64 {
+	t.Helper()
+	var plan struct {
+		Branches []struct {
+			ID  string  `json:"branch"`
+			New float64 `json:"new_setting"`
+		} `json:"branches"`
+	}
+	readJSON(t, filepath.Join(out, "plan.json"), &plan)
+	for _, b := range plan.Branches {
+		if b.ID == id {
+			return b.New
+		}
+	}
+	t.Fatalf("%s missing from plan.json", id)
+	return 0
 }

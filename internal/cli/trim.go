@@ -44,7 +44,11 @@ func newTrimCmd(ios *IO) *cobra.Command {
 branches the plan's "prove it" list names, as one more survey state (its own
 state label in readings.csv, its pump in states.csv). Trim fits every state
 together, the valves of the new state taken at the plan's settings (PLAN.json,
-written by plan or run) wherever no reading records one, and says of every
+written by plan or run) wherever no reading records one. A check the list
+asks for (a valve moved to read its test points at a second setting, then
+set back) is a state of its own, its setting in the setting column, read
+before the new state; every state the plan was not made from is taken with
+the plan's settings likewise. Trim says of every
 branch as left whether the readings prove it in tolerance, prove it out, or
 cannot tell. It then gives small setting corrections for the branches read
 after setting that the readings place off target beyond a quarter of the
@@ -83,6 +87,7 @@ every state (calibration.csv/json, findings.csv, readings.csv).`,
 
 // setPlan is one plan.json as trim reads it: the new settings and the pump.
 type setPlan struct {
+	States   []string `json:"states"`
 	Branches []struct {
 		ID        string   `json:"branch"`
 		New       *float64 `json:"new_setting"`
@@ -109,6 +114,9 @@ type setPlanRead struct {
 	// resistance than its fit's (held at design, or hedged); nil when the
 	// plan does not say (one written before planned_on).
 	OffFit map[string]bool
+	// Surveyed are the survey states the plan was made from (lower case);
+	// nil when the plan does not say (one written before states).
+	Surveyed map[string]bool
 }
 
 // readSetPlan reads the plan the valves were set to, for model m.
@@ -164,6 +172,12 @@ func readSetPlan(path string, m *plant.Model) (*setPlanRead, error) {
 		}
 		out.Settings[i] = *br.New
 	}
+	for _, l := range p.States {
+		if out.Surveyed == nil {
+			out.Surveyed = map[string]bool{}
+		}
+		out.Surveyed[strings.ToLower(l)] = true
+	}
 	if p.Pump.Speed != nil {
 		out.Speed = *p.Pump.Speed
 	}
@@ -173,9 +187,11 @@ func readSetPlan(path string, m *plant.Model) (*setPlanRead, error) {
 	return out, nil
 }
 
-// leftState applies the plan the valves were set to to the as-left state
-// and returns that state's index and what the plan predicted of each
-// branch (% of target by ID).
+// leftState applies the plan the valves were set to to the as-left state,
+// and to every other state the plan was not made from (a check read during
+// the round: one valve moved to read its test points at a second setting,
+// the rest where the plan put them), and returns the as-left state's index
+// and what the plan predicted of each branch (% of target by ID).
 func leftState(l *loaded, o *trimOptions) (int, *setPlanRead, error) {
 	m := l.Model
 	if len(m.States) < 2 {
@@ -200,8 +216,12 @@ func leftState(l *loaded, o *trimOptions) (int, *setPlanRead, error) {
 	if err != nil {
 		return 0, nil, err
 	}
-	if _, err := m.SetUnrecorded(m.States[k].Label, sp.Settings, sp.Speed, sp.Diff); err != nil {
-		return 0, nil, &dataError{err}
+	for s, st := range m.States {
+		if s == k || s > 0 && sp.Surveyed != nil && !sp.Surveyed[strings.ToLower(st.Label)] {
+			if _, err := m.SetUnrecorded(st.Label, sp.Settings, sp.Speed, sp.Diff); err != nil {
+				return 0, nil, &dataError{err}
+			}
+		}
 	}
 	return k, sp, nil
 }

@@ -7,8 +7,12 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
+
+	"flowset/internal/plant"
+	"flowset/internal/site"
 )
 
 // TestTrimDemo plans the demo, then trims it taking its second survey state
@@ -286,6 +290,118 @@ func TestTrimPays(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			if got := trimPays(tc.w, tc.b, tc.r); got != tc.want {
 				t.Errorf("trimPays(%g, %g, %g) = %v, want %v", tc.w, tc.b, tc.r, got, tc.want)
+			}
+		})
+	}
+}
+
+// TestTrimCheckState: a check read during the round (one valve moved to
+// read its test points at a second setting, recorded as a state of its
+// own) has every other valve where the plan put them, not as found: trim
+// takes the plan's settings for every state plan.json does not list among
+// those it was made from, a reading's own setting first. A plan.json
+// without the list leaves such a state as found.
+func TestTrimCheckState(t *testing.T) {
+	s, _ := twoStates(t, 6)
+	first, second := s.Readings[0].State, s.Readings[len(s.Readings)-1].State
+	if first == second {
+		t.Fatal("construction: one state")
+	}
+	const checked = "T5"
+	var bi int
+	for k, b := range s.Branches {
+		if b.ID == checked {
+			bi = k
+		}
+	}
+	v := s.Valve(s.Branches[bi].Valve)
+	lo, hi := v.Range()
+	check := lo + 0.3*(hi-lo)
+	var extra []site.Reading
+	for _, r := range s.Readings {
+		if r.State == second && r.Where == checked {
+			r.State, r.Setting = "check-t5", check
+			extra = append(extra, r)
+		}
+	}
+	after := s.Readings[len(s.Readings)-1]
+	after.State = "after-plan"
+	s.Readings = append(s.Readings, extra...)
+	s.Readings = append(s.Readings, after)
+	dir := writeSite(t, s)
+	l, err := loadSite(context.Background(), dir, io.Discard)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := l.Model
+	planned := func(i int) float64 { lo, hi := m.Branches[i].Valve.Range(); return lo + 0.6*(hi-lo) }
+	type br struct {
+		ID  string  `json:"branch"`
+		New float64 `json:"new_setting"`
+	}
+	write := func(states []string) string {
+		p := struct {
+			States   []string `json:"states,omitempty"`
+			Branches []br     `json:"branches"`
+		}{States: states}
+		for i, b := range m.Branches {
+			if b.Valve != nil {
+				p.Branches = append(p.Branches, br{b.ID, planned(i)})
+			}
+		}
+		path := filepath.Join(t.TempDir(), "plan.json")
+		b, err := json.Marshal(p)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := os.WriteFile(path, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		return path
+	}
+	for _, tc := range []struct {
+		name     string
+		states   []string
+		followed bool // the check state's unread valves at the plan's settings
+	}{
+		{"plan lists its states", []string{first, second}, true},
+		{"plan written before the list", nil, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			l, err := loadSite(context.Background(), dir, io.Discard)
+			if err != nil {
+				t.Fatal(err)
+			}
+			m := l.Model
+			k, _, err := leftState(l, &trimOptions{Plan: write(tc.states), State: "after-plan"})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := m.States[k].Label; got != "after-plan" {
+				t.Fatalf("as-left state %q, want after-plan", got)
+			}
+			c := slices.IndexFunc(m.States, func(st plant.State) bool { return st.Label == "check-t5" })
+			if c < 0 {
+				t.Fatal("no check-t5 state in the model")
+			}
+			for i, b := range m.Branches {
+				if b.Valve == nil {
+					continue
+				}
+				got := m.States[c].Settings[i]
+				want := m.States[0].Settings[i]
+				switch {
+				case b.ID == checked:
+					want = check
+				case tc.followed:
+					want = planned(i)
+				}
+				if math.Abs(got-want) > 1e-9 {
+					t.Errorf("%s in the check state at %g, want %g", b.ID, got, want)
+				}
+				if got := m.States[k].Settings[i]; math.Abs(got-planned(i)) > 1e-9 {
+					t.Errorf("%s as left at %g, want the plan's %g", b.ID, got, planned(i))
+				}
 			}
 		})
 	}
