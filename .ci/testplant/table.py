@@ -50,6 +50,11 @@ def main():
                     n, r["n"], r["k"], r["fs"]["in10"], r["fs"]["rms"], r["random"]["in10"],
                     r["random"]["rms"], r["best"]["in10"], r["best"]["rms"]))
         print("\nsurvey loop: flowset's in10 >= random's on %d of %d" % (ge, len(ok)))
+        n = len(ok) or 1
+        print("summed rms: flowset %.1f, random %.1f; mean in10 flowset %.1f, random %.1f; lower rms on %d" % (
+            sum(r["fs"]["rms"] for r in ok.values()), sum(r["random"]["rms"] for r in ok.values()),
+            sum(r["fs"]["in10"] for r in ok.values()) / n, sum(r["random"]["in10"] for r in ok.values()) / n,
+            sum(r["fs"]["rms"] < r["random"]["rms"] - 0.005 for r in ok.values())))
         return
     head = "| plant | n | k | plan | flowset's points | random points | best | design |"
     if b:
