@@ -93,12 +93,6 @@ type TrimOptions struct {
 	// as off target: it is read again another way, not trimmed in full.
 	Expected []float64
 	Surprise float64
-	// Aim is, by model index, the flow over its target a branch read after
-	// setting is trimmed to on the model's view (0 or absent: 1): a branch
-	// whose readings two explanations share is aimed where the expected
-	// squared departure over both is least, which the model's view of one
-	// of them does not put at its target.
-	Aim []float64
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -313,11 +307,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// is read again first, not turned on the model's guess. With
 			// Replan, one not read is moved on the model's prediction
 			// alone when that is beyond the inner band.
-			aim := 1.0
-			if i < len(o.Aim) && o.Aim[i] > 0 {
-				aim = o.Aim[i]
-			}
-			r := sol.Flow(i) / (aim * target[i])
+			r := sol.Flow(i) / target[i]
 			read := o.Read == nil || i < len(o.Read) && o.Read[i]
 			out := !in(r, o.Inner) && !(r*math.Exp(-k*sdL[i]) <= 1 && r*math.Exp(k*sdL[i]) >= 1)
 			// An unread branch the model puts outside the tolerance as
@@ -352,7 +342,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 				note[i] = "not read after setting: read it before trimming"
 				continue
 			}
-			s, rs, err := trimSetting(m, p, sol, i, aim*target[i])
+			s, rs, err := trimSetting(m, p, sol, i, target[i])
 			if err != nil {
 				return nil, fmt.Errorf("trim: branch %q: %w", b.ID, err)
 			}

@@ -370,33 +370,17 @@ func (j *job) trim(ctx context.Context, k int) error {
 	}
 	for i, v := range j.testPoints {
 		undecided := v.Settings >= 2 && !tpOff(v) && !tpRight(v)
-		if opt.Doubt != nil && undecided && v.Weight >= 0.5 {
-			// Read at several settings, its test points undecided and
-			// more likely off than not: trimmed on the fit's view (its
-			// readings taken as right) it would go the wrong way (a fresh
-			// 100-branch plant: test points 92 % likely 22 % low, the
-			// branch trimmed from 106 % to 142 % on the fit's
-			// restriction). It is trimmed to the flow, on that view, of
-			// least expected squared departure over the two explanations
-			// (hedgeAim): an independent 300-branch plant's loop went
-			// 3.63 -> 2.92 % rms (and a 40-branch plant's after random
-			// points 6.00 -> 5.26 %; no other of 54 moved by over 0.01).
-			// The aim weighs the two explanations a hold or a surprise
-			// doubted it for, so it is not doubted.
-			if opt.Aim == nil {
-				opt.Aim = make([]float64, len(m.Branches))
-			}
-			opt.Aim[i] = hedgeAim(v.Weight, v.Off)
-			opt.Doubt[i] = false
-			continue
-		}
-		if opt.Doubt != nil && undecided && !trimPays(v.Weight, v.Off, left[i]) {
-			// Read at several settings, its test points undecided, and
-			// trimming it on the fit's view costs more than leaving it,
-			// in expected squared departure over the two explanations
-			// (trimPays): it is not trimmed on that view (a fresh
-			// 110-branch plant: 47 % likely 18 % low, read at 89 % and
-			// opened fully: 112 -> 131 %).
+		if opt.Doubt != nil && undecided && (v.Weight >= 0.5 || !trimPays(v.Weight, v.Off, left[i])) {
+			// Read at several settings, its test points are undecided,
+			// and trimming it on the fit's view (its readings taken as
+			// right) costs more than leaving it, in expected squared
+			// departure over the two explanations (trimPays): it is not
+			// trimmed on that view. So with them more likely off than not
+			// (a fresh 100-branch plant: test points 92 % likely 22 % low,
+			// the branch trimmed from 106 % to 142 % on the fit's
+			// restriction), and so with a lesser chance where the trim
+			// would open the valve far (a fresh 110-branch plant: 47 %
+			// likely 18 % low, read at 89 % and opened fully: 112 -> 131 %).
 			opt.Doubt[i] = true
 			continue
 		}
@@ -416,18 +400,6 @@ func (j *job) trim(ctx context.Context, k int) error {
 	}
 	j.Trim = tp
 	return nil
-}
-
-// hedgeAim is the flow over its target, on the view that its test points
-// read right, that gives a branch the least expected squared departure when
-// they read a flow factor 1+b with probability w: t minimising
-// (1-w)(t-1)² + w(t/(1+b)-1)².
-func hedgeAim(w, b float64) float64 {
-	if !(w >= 0 && w <= 1) || !(b > -1) {
-		return 1
-	}
-	f := 1 / (1 + b)
-	return ((1 - w) + w*f) / ((1 - w) + w*f*f)
 }
 
 // trimPays reports whether trimming a branch to its target on its readings

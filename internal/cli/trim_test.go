@@ -406,35 +406,3 @@ func TestTrimCheckState(t *testing.T) {
 		})
 	}
 }
-
-// TestHedgeAim: the aim minimises (1-w)(t-1)² + w(t/(1+b)-1)², checked
-// against the first-order condition numerically and at its ends (w = 0:
-// the target; w = 1: the target seen through test points reading 1+b).
-func TestHedgeAim(t *testing.T) {
-	loss := func(w, b, x float64) float64 { return (1-w)*(x-1)*(x-1) + w*(x/(1+b)-1)*(x/(1+b)-1) }
-	for _, tc := range []struct {
-		name string
-		w, b float64
-		want float64 // NaN: check the minimum only
-	}{
-		{"readings right for sure", 0, -0.2, 1},
-		{"readings off for sure", 1, -0.2, 0.8},
-		{"even odds, 20 % high", 0.5, 0.2, math.NaN()},
-		{"92 % likely 22 % low", 0.92, -0.22, math.NaN()},
-		{"no probability", math.NaN(), 0.2, 1},
-	} {
-		t.Run(tc.name, func(t *testing.T) {
-			got := hedgeAim(tc.w, tc.b)
-			if !math.IsNaN(tc.want) && math.Abs(got-tc.want) > 1e-12 {
-				t.Errorf("hedgeAim(%g, %g) = %g, want %g", tc.w, tc.b, got, tc.want)
-			}
-			if math.IsNaN(tc.w) {
-				return
-			}
-			const h = 1e-4
-			if l := loss(tc.w, tc.b, got); !(l <= loss(tc.w, tc.b, got-h) && l <= loss(tc.w, tc.b, got+h)) {
-				t.Errorf("hedgeAim(%g, %g) = %g is not the least expected loss", tc.w, tc.b, got)
-			}
-		})
-	}
-}
