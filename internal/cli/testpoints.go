@@ -465,8 +465,8 @@ const checkShare = 1.0 / 3
 // shareStep is the least change in the valve's share of the branch
 // differential between two settings for its test points read at both to
 // decide: a 20 % error then parts the explanations by 1.5 % of the branch
-// differential, about three times a gauge's standard uncertainty (0.5 % at
-// k = 2 of 100-200 kPa; common practice, no source).
+// differential, about twice the standard uncertainty of a gauge good to
+// ±(0.5 kPa + 1 %) at k = 2 on 100-200 kPa (common practice, no source).
 const shareStep = 0.05
 
 // valveShare is the share of the branch differential branch i's valve takes
