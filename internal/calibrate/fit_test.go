@@ -5,6 +5,7 @@ import (
 	"errors"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -470,4 +471,67 @@ func mustFit(tb testing.TB, m *plant.Model, opt *FitOptions) *Calibration {
 		tb.Errorf("Fit status %v, want convergence", cal.Status)
 	}
 	return cal
+}
+
+// TestFailedEvaluationKeepsProducts: an evaluation that fails part way (here
+// its context cancelled) leaves the latest good one current, its residuals
+// and its matrix-free products (which the engine reads after a rejected
+// trial without evaluating again) as they were. Left half done, the
+// products read a state solved at the point before but not linearised
+// (seen as a crash on an independent 200-branch plant).
+func TestFailedEvaluationKeepsProducts(t *testing.T) {
+	c := richCases()[0]
+	s := newPlantSite(t, c.spec)
+	richSurvey(s)
+	m := mustModel(t, s)
+	simulate(t, m, newTruth(m), nil, 1)
+	su, err := newSetup(m, mustOptions(t, nil))
+	if err != nil {
+		t.Fatal(err)
+	}
+	hyp := make([]ValveHypothesis, len(m.Branches))
+	for i, b := range m.Branches {
+		if b.Valve != nil {
+			hyp[i] = FollowsTable
+		}
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	p, err := su.newProblem(ctx, hyp, su.allObs())
+	if err != nil {
+		t.Fatal(err)
+	}
+	n, mo := p.Dims()
+	x := make([]float64, n)
+	for j := range x {
+		x[j] = 0.05 * float64(j%3)
+	}
+	r := make([]float64, mo)
+	if err := p.Residuals(x, r, nil); err != nil {
+		t.Fatal(err)
+	}
+	w := make([]float64, mo)
+	for i := range w {
+		w[i] = 1 + float64(i%5)
+	}
+	op := opProblem{p}
+	want := make([]float64, n)
+	op.MulTransVec(want, w)
+	cancel()
+	x2 := slices.Clone(x)
+	x2[0] += 0.3
+	if err := p.Residuals(x2, make([]float64, mo), nil); err == nil {
+		t.Fatal("construction: the evaluation with its context cancelled did not fail")
+	}
+	got := make([]float64, n)
+	op.MulTransVec(got, w)
+	if d := maxVecDiff(got, want); d != 0 {
+		t.Errorf("after a failed evaluation Jᵀ w differs from the good one's by %g", d)
+	}
+	r2 := make([]float64, mo)
+	if err := p.Residuals(x, r2, nil); err != nil {
+		t.Fatalf("back at the good point: %v", err)
+	}
+	if d := maxVecDiff(r2, r); d != 0 {
+		t.Errorf("back at the good point the residuals differ by %g", d)
+	}
 }

@@ -423,7 +423,7 @@ func (p *problem) solve(sn *stateNet, pp plant.Params) error {
 }
 
 // Residuals implements Problem.
-func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
+func (p *problem) Residuals(x, r []float64, jac *mat.Dense) (err error) {
 	for j, v := range x {
 		if !finite(v) || p.params[j].Kind != OffsetParam && math.Abs(v) > maxLog {
 			return fmt.Errorf("%v parameter %g beyond ±%d: %w", p.params[j].Kind, v, maxLog, lsq.ErrDomain)
@@ -442,6 +442,19 @@ func (p *problem) Residuals(x, r []float64, jac *mat.Dense) error {
 	}
 	p.swapPrev()
 	p.ok = false
+	// A failed evaluation leaves the latest good one current: the engine
+	// takes the failure as a rejected trial and goes on from the point
+	// before, whose linearisation the operator products (opProblem) read
+	// without evaluating it again. Left half done, a state solved at the
+	// point before but not linearised crashed them (an independent
+	// 200-branch plant with a check state: the products indexed a
+	// linearisation of none).
+	defer func() {
+		if err != nil && p.prev.ok {
+			p.swapPrev()
+			p.prev.ok = false
+		}
+	}()
 	p.x = append(p.x[:0], x...)
 	if len(p.pred) != len(p.obs) {
 		p.pred = make([]float64, len(p.obs))
