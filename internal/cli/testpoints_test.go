@@ -2,12 +2,15 @@ package cli
 
 import (
 	"context"
+	"io"
 	"math"
 	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
 
+	"flowset/internal/balance"
+	"flowset/internal/diagnose"
 	"flowset/internal/site"
 	"flowset/internal/synth"
 )
@@ -414,4 +417,46 @@ func planned(t *testing.T, out, id string) float64 {
 	}
 	t.Fatalf("%s missing from plan.json", id)
 	return 0
+}
+
+// TestRecovers: the share of a restricted branch's shortfall that opening
+// its valve fully recovers, on the branch the plan throttles most. Clean,
+// the plan's setting passes its target (1); restricted a little, opening
+// recovers it all (1); restricted far, only part, less the further, and
+// under half at 32 times design.
+func TestRecovers(t *testing.T) {
+	opts := &jobOptions{Scale: 1, Rounding: "smart", Thresholds: diagnose.DefaultThresholds()}
+	j, err := runJob(context.Background(), meterSite(t, 1, 1, 1, true), opts, &progress{w: io.Discard}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := j.L.Model
+	// The branch whose valve the plan throttles most: room to open.
+	var b balance.BranchPlan
+	i := -1
+	for _, bp := range j.Plan.Branches {
+		if k, ok := m.Index(bp.ID); ok && !bp.OnIndex && (i < 0 || bp.New < b.New) {
+			b, i = bp, k
+		}
+	}
+	if i < 0 {
+		t.Fatal("construction: no branch off the index path")
+	}
+	if got := recovers(j, i, b, 1); got != 1 {
+		t.Errorf("clean: recovers %g, want 1", got)
+	}
+	if got := recovers(j, i, b, 1.3); got != 1 {
+		t.Errorf("fixed parts 1.3 times design, its valve at %g of 0-4 turns: recovers %g, want 1", b.New, got)
+	}
+	prev := 1.0
+	for _, mult := range []float64{4, 8, 16, 32} {
+		got := recovers(j, i, b, mult)
+		if !(got >= 0 && got <= prev) {
+			t.Errorf("fixed parts %g times design: recovers %g, want within 0 and %g (the previous)", mult, got, prev)
+		}
+		prev = got
+	}
+	if !(prev < 0.5) {
+		t.Errorf("fixed parts 32 times design: recovers %g, want well short of it all", prev)
+	}
 }
