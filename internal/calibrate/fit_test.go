@@ -152,6 +152,27 @@ func mustOptions(tb testing.TB, o *FitOptions) FitOptions {
 	return out
 }
 
+// richAtDesign is spec's plant surveyed richly (richSurvey) and read on its
+// design, the fit's setup on it, and every valve taken on its table.
+func richAtDesign(t *testing.T, spec plantSpec) (*site.Site, *setup, []ValveHypothesis) {
+	t.Helper()
+	s := newPlantSite(t, spec)
+	richSurvey(s)
+	m := mustModel(t, s)
+	simulate(t, m, newTruth(m), nil, 1)
+	su, err := newSetup(m, mustOptions(t, nil))
+	if err != nil {
+		t.Fatal(err)
+	}
+	hyp := make([]ValveHypothesis, len(m.Branches))
+	for i, b := range m.Branches {
+		if b.Valve != nil {
+			hyp[i] = FollowsTable
+		}
+	}
+	return s, su, hyp
+}
+
 // TestFitJacobian checks the implicit-function Jacobian, forward and
 // adjoint, and the matrix-free products against central finite
 // differences of the residuals (the test oracle), with a seized valve, a
@@ -160,20 +181,7 @@ func TestFitJacobian(t *testing.T) {
 	ctx := context.Background()
 	for _, c := range richCases() {
 		t.Run(c.name, func(t *testing.T) {
-			s := newPlantSite(t, c.spec)
-			richSurvey(s)
-			m := mustModel(t, s)
-			simulate(t, m, newTruth(m), nil, 1)
-			su, err := newSetup(m, mustOptions(t, nil))
-			if err != nil {
-				t.Fatal(err)
-			}
-			hyp := make([]ValveHypothesis, len(m.Branches))
-			for i, b := range m.Branches {
-				if b.Valve != nil {
-					hyp[i] = FollowsTable
-				}
-			}
+			s, su, hyp := richAtDesign(t, c.spec)
 			hyp[0], hyp[2] = HoldsOneKv, SetElsewhere
 			p, err := su.newProblem(ctx, hyp, su.allObs())
 			if err != nil {
@@ -480,21 +488,7 @@ func mustFit(tb testing.TB, m *plant.Model, opt *FitOptions) *Calibration {
 // products read a state solved at the point before but not linearised
 // (seen as a crash on an independent 200-branch plant).
 func TestFailedEvaluationKeepsProducts(t *testing.T) {
-	c := richCases()[0]
-	s := newPlantSite(t, c.spec)
-	richSurvey(s)
-	m := mustModel(t, s)
-	simulate(t, m, newTruth(m), nil, 1)
-	su, err := newSetup(m, mustOptions(t, nil))
-	if err != nil {
-		t.Fatal(err)
-	}
-	hyp := make([]ValveHypothesis, len(m.Branches))
-	for i, b := range m.Branches {
-		if b.Valve != nil {
-			hyp[i] = FollowsTable
-		}
-	}
+	_, su, hyp := richAtDesign(t, richCases()[0].spec)
 	ctx, cancel := context.WithCancel(context.Background())
 	p, err := su.newProblem(ctx, hyp, su.allObs())
 	if err != nil {
