@@ -112,6 +112,13 @@ func Hedge(c HedgeCase, hs []Hypothesis) (HedgeResult, error) {
 	return best, nil
 }
 
+// FlowAt is the flow, as a fraction of c.Target, that c.Diff drives through
+// the fixed parts at multiplier r and a valve whose drop at c.Target is
+// valveDrop (square law), as Hedge works it out.
+func (c HedgeCase) FlowAt(r, valveDrop float64) float64 {
+	return branchFlow(c, r, valveDrop/(c.Target*c.Target)) / c.Target
+}
+
 // branchFlow is the flow (m3/s) that balances c.Diff across the fixed parts
 // at multiplier r and a valve of coefficient k (drop k q²): Newton's method
 // from the square law's answer, kept inside a bracket that bisection

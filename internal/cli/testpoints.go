@@ -9,7 +9,6 @@ import (
 	"flowset/internal/balance"
 	"flowset/internal/calibrate"
 	"flowset/internal/diagnose"
-	"flowset/internal/hydraulics"
 	"flowset/internal/parallel"
 	"flowset/internal/plant"
 	"flowset/internal/site"
@@ -466,40 +465,21 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) (dec []float64, why 
 // where opening gains nothing; 1 where it cannot be worked out.
 func recovers(j *job, i int, b balance.BranchPlan, mult float64) float64 {
 	m := j.L.Model
-	fixed := m.FixedElement(i, mult)
+	fixed := m.FixedElement(i, 1)
 	_, hi := m.Branches[i].Valve.Range()
 	open := m.ValveElement(i, hi, j.Params.KvScale[i])
 	set := m.ValveElement(i, b.New, j.Params.KvScale[i])
 	if fixed == nil || open == nil || set == nil || !(b.Target > 0) || !(b.BranchDiff > 0) {
 		return 1
 	}
-	flow := func(v hydraulics.Element) float64 {
-		f := func(q float64) float64 {
-			df, _ := fixed.Drop(q, m.Fluid)
-			dv, _ := v.Drop(q, m.Fluid)
-			return df + dv - b.BranchDiff
-		}
-		lo, hi := 0.0, b.Target
-		for k := 0; f(hi) < 0; k++ {
-			if k == 60 {
-				return hi
-			}
-			lo, hi = hi, 2*hi
-		}
-		for range 60 {
-			if mid := (lo + hi) / 2; f(mid) < 0 {
-				lo = mid
-			} else {
-				hi = mid
-			}
-		}
-		return (lo + hi) / 2 / b.Target
-	}
-	now := flow(set)
+	c := balance.HedgeCase{Rest: func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }, Diff: b.BranchDiff, Target: b.Target}
+	dSet, _ := set.Drop(b.Target, m.Fluid)
+	dOpen, _ := open.Drop(b.Target, m.Fluid)
+	now := c.FlowAt(mult, dSet)
 	if now >= 1 {
 		return 1
 	}
-	return math.Max(0, math.Min(1, (flow(open)-now)/(1-now)))
+	return math.Max(0, math.Min(1, (c.FlowAt(mult, dOpen)-now)/(1-now)))
 }
 
 // readSettings are the settings branch i's valve was found or moved to in
