@@ -2,6 +2,7 @@ package plant
 
 import (
 	"context"
+	"errors"
 	"math"
 	"testing"
 
@@ -222,5 +223,36 @@ func TestSetUnrecorded(t *testing.T) {
 				t.Error("settings of the wrong length were accepted")
 			}
 		})
+	}
+}
+
+// TestMoves: a valve the moves sheet sets in a state takes that setting
+// there and nowhere else, and a plan applied to the state afterwards
+// (SetUnrecorded) leaves it, as it leaves one a reading records.
+func TestMoves(t *testing.T) {
+	nan := math.NaN()
+	s := smallSite()
+	s.Readings = append(s.Readings, site.Reading{State: "after", Where: "a", What: site.Flow, Value: 0.5e-3, Setting: 1.5, Sigma: 0.02e-3})
+	s.Moves = []site.Move{{State: "after", Branch: "b", Setting: 2}}
+	m, err := New(s)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got := m.States[1].Settings[:2]; got[0] != 1.5 || got[1] != 2 {
+		t.Errorf("after: settings %v, want [1.5 2 ...]", got)
+	}
+	if m.States[0].Settings[1] != 3 {
+		t.Errorf("the as-found state took the move: %v", m.States[0].Settings)
+	}
+	n, err := m.SetUnrecorded("after", []float64{2.5, 3.5, nan}, 0.9, nan)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if st := m.States[1]; n != 0 || st.Settings[0] != 1.5 || st.Settings[1] != 2 {
+		t.Errorf("the plan gave %d settings; after: %v, want 0, [1.5 2 ...]", n, st.Settings)
+	}
+	s.Moves = append(s.Moves, site.Move{State: "after", Branch: "a", Setting: 2})
+	if _, err := New(s); !errors.Is(err, ErrModel) {
+		t.Errorf("a move other than the setting read in the same state: err %v, want ErrModel", err)
 	}
 }

@@ -822,6 +822,20 @@ func (m *Model) states() ([]State, error) {
 			set[i] = r.Setting
 			st.Settings[i] = r.Setting
 		}
+		for _, mv := range s.Moves {
+			if mv.State != st.Label {
+				continue
+			}
+			i, ok := m.index[mv.Branch]
+			if !ok || !m.Branches[i].HasValve() {
+				return nil, fmt.Errorf("%s: moves sheet gives a valve setting for branch %q, which has no balancing valve: %w", mv.Pos, mv.Branch, ErrModel)
+			}
+			if old, dup := set[i]; dup && old != mv.Setting {
+				return nil, fmt.Errorf("%s: state %q gives branch %q two settings (%g and %g): %w", mv.Pos, st.Label, mv.Branch, old, mv.Setting, ErrModel)
+			}
+			set[i] = mv.Setting
+			st.Settings[i] = mv.Setting
+		}
 		for _, ri := range st.Readings {
 			r := s.Readings[ri]
 			i, ok := m.index[r.Where]
@@ -1526,7 +1540,7 @@ func (m *Model) StateLabels() []string {
 
 // SetUnrecorded gives the state labelled label the valve settings and pump
 // of a plan it was set to: every valve whose setting no reading of the
-// state records takes settings[i] (NaN, or a branch without a valve, leaves
+// state (or the moves sheet) records takes settings[i] (NaN, or a branch without a valve, leaves
 // it), and the pump takes speed (a pump boundary) or differential (a
 // constant-differential one) when the states sheet gives the state none and
 // the value is positive. A survey state read after setting reads only a few
@@ -1545,6 +1559,11 @@ func (m *Model) SetUnrecorded(label string, settings []float64, speed, different
 	for _, ri := range st.Readings {
 		r := m.Site.Readings[ri]
 		if i, ok := m.index[r.Where]; ok && !math.IsNaN(r.Setting) {
+			recorded[i] = true
+		}
+	}
+	for _, mv := range m.Site.Moves {
+		if i, ok := m.index[mv.Branch]; ok && mv.State == label {
 			recorded[i] = true
 		}
 	}

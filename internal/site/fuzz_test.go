@@ -171,6 +171,7 @@ func FuzzValvesSheet(f *testing.F)   { fuzzSheet(f, "valves.csv") }
 func FuzzPumpSheet(f *testing.F)     { fuzzSheet(f, "pump.csv") }
 func FuzzReadingsSheet(f *testing.F) { fuzzSheet(f, "readings.csv") }
 func FuzzStatesSheet(f *testing.F)   { fuzzSheet(f, "states.csv") }
+func FuzzMovesSheet(f *testing.F)    { fuzzSheet(f, "moves.csv") }
 func FuzzTargetsSheet(f *testing.F)  { fuzzSheet(f, "targets.csv") }
 
 // FuzzRoundTrip reads a site, writes it back and reads it again: the

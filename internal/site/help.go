@@ -67,6 +67,9 @@ after-change,R1.1,flow,0.41,l/s,1.5,valve-meter,,10:30
 as-found,85,drive as found
 after-change,80,drive turned down for the second round
 `,
+	"moves": `state,branch,setting,note
+after-change,R2,3.5,turned down but not read in that round
+`,
 	"targets": `branch,target flow [l/s]
 R2,0.55
 `,
@@ -227,6 +230,13 @@ the site sheet's speed or set point; a blank cell does too. A pumps running
 column gives the number of the pump sheet's pumps that ran in the state (the
 first ones listed), for a site of several pumps. Every state named must
 appear in the readings sheet. Optional.`,
+	"moves": `The moves sheet gives a valve's setting in a survey state where no reading
+of that state records one: a valve moved for the state (or set to a plan)
+but not read in it. Without it such a valve is taken at its as-found setting
+in every state, and the readings the state does have are explained with the
+valve where it was not. One row per valve and state; a setting that differs
+from one a reading of the same state gives is an error. Every state named
+must appear in the readings sheet. Optional.`,
 	"targets": `The targets sheet overrides the design flow of some branches as the flow to
 balance to, one row per branch. Optional.`,
 }
@@ -238,6 +248,7 @@ var sheetTitles = map[string]string{
 	"pump":     "pump.csv: the pump curve, or one curve per pump",
 	"readings": "readings.csv: what was measured on the visit",
 	"states":   "states.csv: the pump's speed or set point in each survey state",
+	"moves":    "moves.csv: valve settings in a state where nothing records them",
 	"targets":  "targets.csv: flows to balance to other than design",
 }
 

@@ -316,6 +316,9 @@ func (in *input) build(ctx context.Context) *Site {
 	if t := in.tables[stateColumns.name]; t != nil {
 		s.States = readStates(t, s, labels, p)
 	}
+	if t := in.tables[moveColumns.name]; t != nil {
+		s.Moves = readMoves(t, s, labels, valves, p)
+	}
 	if ctx.Err() != nil {
 		return s // finish returns ctx's error
 	}
@@ -1445,6 +1448,91 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 			st.SetPoint = nan
 		}
 		out = append(out, st)
+	}
+	return out
+}
+
+// readMoves reads the moves sheet: a valve's setting in a survey state where
+// no reading of that state records one. labels are the states the readings
+// name (nil when the readings sheet cannot be read: states are then not
+// checked).
+func readMoves(t *table, s *Site, labels map[string]bool, valves valveCheck, p *Problems) []Move {
+	sr := bind(t, &moveColumns, p)
+	out := []Move{}
+	if !sr.has("state") || !sr.has("branch") || !sr.has("setting") {
+		return out
+	}
+	known := sortedKeys(labels)
+	ids := make([]string, len(s.Branches))
+	byID := make(map[string]*Branch, len(s.Branches))
+	for i := range s.Branches {
+		ids[i] = s.Branches[i].ID
+		byID[ids[i]] = &s.Branches[i]
+	}
+	// The settings the readings record, state and branch -> line.
+	read := map[[2]string]Reading{}
+	for _, r := range s.Readings {
+		if !math.IsNaN(r.Setting) {
+			read[[2]string{r.State, r.Where}] = r
+		}
+	}
+	first := map[[2]string]int{}
+	for _, r := range t.rows {
+		ok := true
+		mv := Move{Pos: Pos{File: t.file, Line: r.line}}
+		mv.State = strings.ToLower(sr.text(r, "state", &ok))
+		mv.Branch = sr.text(r, "branch", &ok)
+		mv.Setting = sr.need(r, "setting", &ok)
+		mv.Note = sr.text(r, "note", &ok)
+		sref, bref := sr.ref(r, "state"), sr.ref(r, "branch")
+		switch {
+		case !ok:
+			continue
+		case mv.State == "":
+			p.add(sref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
+			continue
+		case labels != nil && !labels[mv.State]:
+			want := "a state label from the readings sheet, which names none"
+			if len(known) > 0 {
+				want = refWant("a state label from the readings sheet: "+strings.Join(known, ", "), mv.State, known)
+			}
+			p.add(sref.problem(SeverityError, ErrReference, "no reading is in this state", want))
+			continue
+		case mv.Branch == "":
+			p.add(bref.problem(SeverityError, ErrMissing, "blank", "a branch id"))
+			continue
+		}
+		br := byID[mv.Branch]
+		switch {
+		case br == nil:
+			if len(s.Branches) > 0 {
+				p.add(bref.problem(SeverityError, ErrReference, "no branch has this id", refWant("a branch id from the branches sheet", mv.Branch, ids)))
+			}
+			continue
+		case br.Valve == "":
+			p.add(bref.problem(SeverityError, ErrReference, fmt.Sprintf("branch %q has no valve", br.ID),
+				"a valve model for this branch in the branches sheet"))
+			continue
+		}
+		if v := s.Valve(br.Valve); v != nil && valves.check(v.Name) {
+			if e := checkSetting(v, mv.Setting, sr.ref(r, "setting")); e != nil {
+				p.add(e)
+				continue
+			}
+		}
+		k := [2]string{mv.State, mv.Branch}
+		if line, dup := first[k]; dup {
+			p.add(bref.problem(SeverityError, ErrDuplicate, "moved twice in one state", fmt.Sprintf("one setting per valve in a state; the first is on line %d", line)))
+			continue
+		}
+		if rd, both := read[k]; both && rd.Setting != mv.Setting {
+			p.add(sr.ref(r, "setting").problem(SeverityError, ErrRange,
+				fmt.Sprintf("differs from the setting %s read in the same state (%s)", fmtNum(rd.Setting), rd.Pos),
+				"one setting per valve in a state; give each change its own state"))
+			continue
+		}
+		first[k] = r.line
+		out = append(out, mv)
 	}
 	return out
 }

@@ -266,6 +266,13 @@ var stateColumns = schema{name: "states", columns: []column{
 	{name: "note", typ: textCol, help: "free text"},
 }}
 
+var moveColumns = schema{name: "moves", columns: []column{
+	{name: "state", typ: textCol, required: true, help: "survey state label as used in the readings sheet, e.g. after-change"},
+	{name: "branch", typ: textCol, required: true, help: "branch id"},
+	{name: "setting", typ: numCol, required: true, what: "setting", lo: 0, hi: maxSetting, help: "the valve's setting in that state"},
+	{name: "note", typ: textCol, help: "free text"},
+}}
+
 var targetColumns = schema{name: "targets", columns: []column{
 	{name: "branch", typ: textCol, required: true, help: "branch id"},
 	{name: "target flow", typ: numCol, kind: units.Flow, unit: "l/s", required: true, what: "flow", lo: minFlow, hi: maxFlow,
@@ -274,7 +281,7 @@ var targetColumns = schema{name: "targets", columns: []column{
 }}
 
 // sheets lists every sheet in reading order.
-var sheets = []*schema{&siteKeys, &branchColumns, &valveColumns, &pumpColumns, &readingColumns, &stateColumns, &targetColumns}
+var sheets = []*schema{&siteKeys, &branchColumns, &valveColumns, &pumpColumns, &readingColumns, &stateColumns, &moveColumns, &targetColumns}
 
 // Defaults stated in the help and applied by the reader.
 const (

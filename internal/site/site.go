@@ -72,6 +72,10 @@ type Site struct {
 	// nil when states.csv is absent. A state not listed runs at the
 	// Boundary's.
 	States []StateSetting
+	// Moves gives valve settings in survey states at branches no reading
+	// of the state records a setting for (a valve moved for the state but
+	// not read in it); nil when moves.csv is absent.
+	Moves []Move
 	// Targets overrides the design flow of some branches as the flow to
 	// balance to, m3/s, keyed by branch ID; nil when targets.csv is absent.
 	Targets map[string]float64
@@ -299,6 +303,15 @@ type StateSetting struct {
 	Running  int     // pumps running, the first ones listed; 0 = the site's
 	Note     string
 	Pos      Pos
+}
+
+// Move is one row of the moves sheet: a valve's setting in one survey
+// state where no reading of that state gives it.
+type Move struct {
+	State, Branch string
+	Setting       float64
+	Note          string
+	Pos           Pos
 }
 
 // ValveModel is a regulating valve: either a table of Kv against setting,

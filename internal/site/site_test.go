@@ -403,7 +403,7 @@ func TestTopics(t *testing.T) {
 			t.Errorf("topic %q: title %q, body of %d bytes", tp.Name, tp.Title, len(tp.Body))
 		}
 	}
-	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "targets", "pressure-independent", "controllers", "units", "instruments"}
+	wantNames := []string{"sheets", "site", "branches", "valves", "pump", "readings", "states", "moves", "targets", "pressure-independent", "controllers", "units", "instruments"}
 	if diff := cmp.Diff(wantNames, names); diff != "" {
 		t.Errorf("topic names (-want +got):\n%s", diff)
 	}
@@ -933,6 +933,7 @@ func TestThreePortExample(t *testing.T) {
 	fsys["branches.csv"] = &fstest.MapFile{Data: []byte(strings.Join(lines, "\n") + "\n")}
 	fsys["readings.csv"] = &fstest.MapFile{Data: []byte("state,where,quantity,value,unit,instrument,position\nas-found,AHU-3,flow,1.1,l/s,clamp-on,\nbypassed,AHU-3,flow,1.3,l/s,clamp-on,bypass\n")}
 	delete(fsys, "states.csv")
+	delete(fsys, "moves.csv")
 	delete(fsys, "targets.csv")
 	s, p, err := ReadDir(fsys, ".")
 	if err != nil || len(p) > 0 {

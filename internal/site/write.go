@@ -327,6 +327,14 @@ func (w sheetUnits) render(s *Site) []outSheet {
 		}
 		out = append(out, st)
 	}
+	if s.Moves != nil {
+		mv := w.columnSheet(&moveColumns)
+		mv.help = nil
+		for _, x := range s.Moves {
+			mv.rows = append(mv.rows, w.cellsOf(&moveColumns, map[string]any{"state": x.State, "branch": x.Branch, "setting": x.Setting, "note": x.Note}))
+		}
+		out = append(out, mv)
+	}
 	if s.Targets != nil {
 		tg := w.columnSheet(&targetColumns)
 		tg.help = nil
