@@ -105,11 +105,14 @@ func printSummary(ios *IO, s *site.Site) {
 		fmt.Fprintf(w, "  fluid as measured: %s (in place of the tables)\n", strings.Join(given, ", "))
 	}
 	for _, st := range sum.States {
-		if st.Pump != "" {
-			fmt.Fprintf(w, "  state %-20s %d readings, pump at %s\n", st.State, st.Readings, st.Pump)
-			continue
+		line := fmt.Sprintf("  state %-20s %d readings", st.State, st.Readings)
+		if st.Moved > 0 {
+			line += fmt.Sprintf(", %d valve(s) set by the moves sheet", st.Moved)
 		}
-		fmt.Fprintf(w, "  state %-20s %d readings\n", st.State, st.Readings)
+		if st.Pump != "" {
+			line += ", pump at " + st.Pump
+		}
+		fmt.Fprintln(w, line)
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "branch\treadings\tmeasured with")

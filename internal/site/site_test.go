@@ -444,7 +444,7 @@ func TestSummary(t *testing.T) {
 	s := readSmall(t)
 	want := Summary{
 		Branches: 4, Risers: 1, Valves: 4, PumpPoints: 4, Readings: 11,
-		States: []StateCount{{"as-found", 8, ""}, {"after-change", 3, "set point 55 kPa"}},
+		States: []StateCount{{"as-found", 8, "", 0}, {"after-change", 3, "set point 55 kPa", 1}},
 		Measured: []BranchReading{
 			{ID: "AHU-1", Readings: 3, By: []Measure{{Flow, "clamp-on", 2}, {ValveDiff, "manometer", 1}}},
 			{ID: "R2", Readings: 1, By: []Measure{{HeaderDiff, "transmitter", 1}}},

@@ -30,6 +30,8 @@ type StateCount struct {
 	// words ("speed 0.8", "set point 55 kPa"); "" when it runs at the
 	// site's.
 	Pump string
+	// Moved counts the valves the moves sheet sets in the state.
+	Moved int
 }
 
 // BranchReading tells how one branch was measured.
@@ -91,6 +93,11 @@ func (s *Site) Summary() Summary {
 			j = len(br.By) - 1
 		}
 		br.By[j].Count++
+	}
+	for _, mv := range s.Moves {
+		if k := slices.IndexFunc(sum.States, func(c StateCount) bool { return c.State == mv.State }); k >= 0 {
+			sum.States[k].Moved++
+		}
 	}
 	var unread []string
 	for _, m := range sum.Measured {
