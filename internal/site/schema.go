@@ -243,7 +243,7 @@ var readingColumns = schema{name: "readings", columns: []column{
 		help: "flow, valve diff, branch diff, header diff, pump diff, total flow or speed"},
 	{name: "value", typ: numCol, required: true, what: "reading", help: "the reading, in the row's unit"},
 	{name: "unit", typ: textCol, help: "unit of value and uncertainty; default l/s for flows, kPa for differentials, a ratio for speed"},
-	{name: "setting", typ: numCol, what: "setting", lo: 0, hi: maxSetting, help: "valve setting when read; blank = the as-found setting"},
+	{name: "setting", typ: numCol, what: "setting", lo: 0, hi: maxSetting, help: "valve setting when read; blank = the moves sheet's for the state, else the as-found setting"},
 	{name: "instrument", typ: wordCol, words: instrumentNames(), help: "instrument kind, see flowset help instruments"},
 	{name: "uncertainty", typ: textCol, help: "expanded uncertainty, e.g. 5 % or 0.2 in the row's unit; default by instrument"},
 	{name: "k", aliases: []string{"coverage", "coverage factor"}, typ: numCol, what: "coverage factor", lo: 0.5, hi: 10,
