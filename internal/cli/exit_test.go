@@ -103,6 +103,9 @@ func TestExitStatuses(t *testing.T) {
 		{"--scale NaN", []string{"plan", "--scale", "NaN", plant}, ExitUsage, "--scale NaN"},
 		{"--scale -1", []string{"plan", "--scale", "-1", plant}, ExitUsage, "--scale -1"},
 		{"--scale not a number", []string{"plan", "--scale", "lots", plant}, ExitUsage, "invalid argument"},
+		{"--survey-minutes -5", []string{"plan", "--survey-minutes", "-5", plant}, ExitUsage, "--survey-minutes -5"},
+		{"--survey-readings -1", []string{"plan", "--survey-readings", "-1", plant}, ExitUsage, "--survey-readings -1"},
+		{"--survey-readings too many", []string{"plan", "--survey-readings", "99999", plant}, ExitUsage, "--survey-readings 99999"},
 		{"fit without a scale flag", []string{"fit", plant}, ExitOK, ""},
 	} {
 		t.Run(c.name, func(t *testing.T) {

@@ -28,6 +28,10 @@ type jobOptions struct {
 	// SurveyMinutes bounds the survey route of a site with no readings
 	// (survey-route.csv), minutes; 0 for every ranked reading.
 	SurveyMinutes float64
+	// SurveyReadings bounds the same route to that many readings (each a
+	// place: a branch's flow with its differentials, or the pump's); 0 for
+	// no bound.
+	SurveyReadings int
 	Thresholds    diagnose.Thresholds
 	Units         display // display units of every output but JSON
 	// workers bounds the stages run side by side after the fit (0:
@@ -297,6 +301,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 			doing = append(doing, "ranking the readings to survey first")
 			ro.Uncertainty = priorUncertainty(m)
 			ro.ReadAt = &st0
+			ro.Max = max(ro.Max, opts.SurveyReadings)
 			j.surveyPlan = true
 		}
 		rank = start(st, func() (*balance.ReadPlan, error) { return balance.RankReadings(ctx, m, j.Params, plan, ro) })

@@ -93,7 +93,7 @@ func (j *job) surveyNote() string {
 			first = append(first, c.Where+" ("+strings.ReplaceAll(c.How.String(), "-", " ")+")")
 		}
 	}
-	return "Before setting anything from design data, survey the plant as found: read-next.csv lists where to read, in order of how much each reading lowers the plan's risk (first " + strings.Join(first, ", ") + "), and survey-route.csv walks them in the order of the plant (--survey-minutes bounds the round)."
+	return "Before setting anything from design data, survey the plant as found: read-next.csv lists where to read, in order of how much each reading lowers the plan's risk (first " + strings.Join(first, ", ") + "), and survey-route.csv walks them in the order of the plant (--survey-minutes or --survey-readings bounds the round)."
 }
 
 type readNextJSON struct {
@@ -146,7 +146,8 @@ func (j *job) readNextOut() readNextJSON {
 
 // surveyRoute is the survey before the visit as a walk: the ranked readings
 // taken in the ranking's order while they fit in the time allowed
-// (jobOptions.SurveyMinutes, all of them for 0), then put in the order of
+// (jobOptions.SurveyMinutes, all of them for 0) and number allowed
+// (jobOptions.SurveyReadings), then put in the order of
 // the plant (the pump first, in the plant room, then the branches in the
 // plan's walk: along the main headers from the pump outwards, a riser's
 // branches before the riser), so the technician reads them in one round.
@@ -155,10 +156,13 @@ func (j *job) surveyRoute() []rankedRead {
 	if !j.surveyPlan || j.Reads == nil || j.Plan == nil {
 		return nil
 	}
-	budget := j.opts.SurveyMinutes
+	budget, most := j.opts.SurveyMinutes, j.opts.SurveyReadings
 	var chosen []rankedRead
 	var used float64
 	for k, c := range j.Reads.Readings {
+		if most > 0 && len(chosen) == most {
+			break
+		}
 		if budget > 0 && used+c.Minutes > budget {
 			continue
 		}

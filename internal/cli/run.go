@@ -53,8 +53,13 @@ func addJobFlags(cmd *cobra.Command, o *runOptions, plan bool) {
 		cmd.Flags().StringVar(&o.job.Share, "share", "design-first", "when the pump cannot serve every target: design-first (branches that can reach target get it, the rest open fully) or proportional (all short by the same fraction)")
 		cmd.Flags().BoolVar(&o.job.DesignOnly, "design-only", false, "plan from the design data, ignoring the readings")
 		cmd.Flags().Float64Var(&o.job.SurveyMinutes, "survey-minutes", 0, "for a site with no readings yet: the time the survey may take, in minutes; survey-route.csv walks the readings worth most within it in route order (0: every ranked reading)")
+		cmd.Flags().IntVar(&o.job.SurveyReadings, "survey-readings", 0, "for a site with no readings yet: the most readings the survey may take (each a place: a branch, or the pump); survey-route.csv walks the ones worth most in route order (0: no bound besides --survey-minutes)")
 	}
 }
+
+// maxSurveyReadings bounds --survey-readings: one per branch the ranking
+// takes and the pump.
+const maxSurveyReadings = maxRankBranches + 1
 
 func (o *runOptions) validate(needOut bool) error {
 	if needOut && o.Out == "" {
@@ -73,6 +78,9 @@ func (o *runOptions) validate(needOut bool) error {
 	}
 	if !(o.job.SurveyMinutes >= 0 && o.job.SurveyMinutes <= 1e5) {
 		return usagef("--survey-minutes %g: want a time in minutes, 0 for every ranked reading", o.job.SurveyMinutes)
+	}
+	if !(o.job.SurveyReadings >= 0 && o.job.SurveyReadings <= maxSurveyReadings) {
+		return usagef("--survey-readings %d: want a number of readings from 1 to %d, 0 for no bound", o.job.SurveyReadings, maxSurveyReadings)
 	}
 	// Written so that NaN fails every test: a comparison with NaN is false.
 	if !(o.job.Scale >= 0.2 && o.job.Scale <= 2) {

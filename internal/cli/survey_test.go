@@ -6,14 +6,36 @@ import (
 	"testing"
 )
 
-// TestSurveyRoute plans the demo from its design alone with a 30-minute
-// survey: survey-route.csv must hold the best-ranked readings that fit in
-// the time (none left out that would still fit after the ones taken), in
-// the plant's order (the pump first, then the branches as the field sheet
-// walks them), and its running total must stay within the time.
+// TestSurveyRoute plans the demo from its design alone with a survey of 30
+// minutes, of 4 readings, and of both: survey-route.csv must hold the
+// best-ranked readings that fit in the time and number (none left out that
+// would still fit after the ones taken), in the plant's order (the pump
+// first, then the branches as the field sheet walks them), and its running
+// total must stay within the time.
 func TestSurveyRoute(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		minutes float64
+		most    int
+	}{
+		{"30 minutes", 30, 0},
+		{"4 readings", 0, 4},
+		{"60 minutes and 5 readings", 60, 5},
+	} {
+		t.Run(tc.name, func(t *testing.T) { surveyRoute(t, tc.minutes, tc.most) })
+	}
+}
+
+func surveyRoute(t *testing.T, minutes float64, most int) {
 	out := filepath.Join(t.TempDir(), "out")
-	if code, _, errs := run(t, "run", surveyDir("demo"), "--design-only", "--survey-minutes", "30", "--out", out); code != ExitOK && code != ExitShort {
+	args := []string{"run", surveyDir("demo"), "--design-only", "--out", out}
+	if minutes > 0 {
+		args = append(args, "--survey-minutes", strconv.FormatFloat(minutes, 'g', -1, 64))
+	}
+	if most > 0 {
+		args = append(args, "--survey-readings", strconv.Itoa(most))
+	}
+	if code, _, errs := run(t, args...); code != ExitOK && code != ExitShort {
 		t.Fatalf("run: exit %d: %s", code, errs)
 	}
 	route := readCSV(t, filepath.Join(out, "survey-route.csv"))
@@ -26,7 +48,7 @@ func TestSurveyRoute(t *testing.T) {
 	for k, r := range sheet[1:] {
 		stop[r[1]] = k + 1
 	}
-	// Which ranked readings fit in 30 minutes, taken in rank order.
+	// Which ranked readings fit in the time and number, taken in rank order.
 	want := map[string]bool{}
 	used := 0.0
 	for _, r := range ranked[1:] {
@@ -34,10 +56,16 @@ func TestSurveyRoute(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if used+m <= 30 {
+		if most > 0 && len(want) == most {
+			break
+		}
+		if minutes == 0 || used+m <= minutes {
 			used += m
 			want[r[0]] = true
 		}
+	}
+	if most > 0 && len(route)-1 != min(most, len(ranked)-1) {
+		t.Errorf("the route has %d readings, want %d", len(route)-1, most)
 	}
 	last, total := -1, 0.0
 	for _, r := range route[1:] {
@@ -59,8 +87,8 @@ func TestSurveyRoute(t *testing.T) {
 			t.Errorf("route stop %s: minutes so far %s, want %g", r[0], r[7], total)
 		}
 	}
-	if total > 30 {
-		t.Errorf("the route takes %g minutes, more than the 30 allowed", total)
+	if minutes > 0 && total > minutes {
+		t.Errorf("the route takes %g minutes, more than the %g allowed", total, minutes)
 	}
 	if len(want) > 0 {
 		t.Errorf("readings that fit but are not on the route: ranks %v", want)
