@@ -32,8 +32,8 @@ type jobOptions struct {
 	// place: a branch's flow with its differentials, or the pump's); 0 for
 	// no bound.
 	SurveyReadings int
-	Thresholds    diagnose.Thresholds
-	Units         display // display units of every output but JSON
+	Thresholds     diagnose.Thresholds
+	Units          display // display units of every output but JSON
 	// workers bounds the stages run side by side after the fit (0:
 	// runtime.GOMAXPROCS(0); 1: one after another, as written).
 	workers int
