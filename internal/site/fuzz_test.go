@@ -139,6 +139,12 @@ func checkResult(t *testing.T, s *Site, p Problems, err error) {
 			t.Errorf("%v: quantity %d", r.Pos, r.What)
 		}
 	}
+	for _, mv := range s.Moves {
+		finite("move setting", mv.Setting, false)
+		if mv.State == "" || !ids[mv.Branch] {
+			t.Errorf("%v: move of %q in state %q", mv.Pos, mv.Branch, mv.State)
+		}
+	}
 }
 
 // fuzzSheet fuzzes one sheet of the fixture, the others left as they are.
@@ -178,13 +184,13 @@ func FuzzTargetsSheet(f *testing.F)  { fuzzSheet(f, "targets.csv") }
 // second read must succeed and give the same site.
 func FuzzRoundTrip(f *testing.F) {
 	small := smallFiles(f)
-	f.Add(small["site.csv"], small["branches.csv"], small["valves.csv"], small["readings.csv"], small["states.csv"])
-	f.Add([]byte(""), []byte(base["branches.csv"]), []byte(base["valves.csv"]), []byte(base["readings.csv"]), []byte(""))
-	f.Add([]byte(examples["site"]), []byte(examples["branches"]), []byte(examples["valves"]), []byte(examples["readings"]), []byte(examples["states"]))
+	f.Add(small["site.csv"], small["branches.csv"], small["valves.csv"], small["readings.csv"], small["states.csv"], small["moves.csv"])
+	f.Add([]byte(""), []byte(base["branches.csv"]), []byte(base["valves.csv"]), []byte(base["readings.csv"]), []byte(""), []byte(""))
+	f.Add([]byte(examples["site"]), []byte(examples["branches"]), []byte(examples["valves"]), []byte(examples["readings"]), []byte(examples["states"]), []byte(examples["moves"]))
 	for _, c := range badCases {
-		f.Add([]byte(c.files["site.csv"]), []byte(c.files["branches.csv"]), []byte(c.files["valves.csv"]), []byte(c.files["readings.csv"]), []byte(c.files["states.csv"]))
+		f.Add([]byte(c.files["site.csv"]), []byte(c.files["branches.csv"]), []byte(c.files["valves.csv"]), []byte(c.files["readings.csv"]), []byte(c.files["states.csv"]), []byte(c.files["moves.csv"]))
 	}
-	f.Fuzz(func(t *testing.T, site, branches, valves, readings, states []byte) {
+	f.Fuzz(func(t *testing.T, site, branches, valves, readings, states, moves []byte) {
 		fsys := fstest.MapFS{
 			"branches.csv": {Data: branches},
 			"readings.csv": {Data: readings},
@@ -195,6 +201,9 @@ func FuzzRoundTrip(f *testing.F) {
 		}
 		if len(states) > 0 {
 			fsys["states.csv"] = &fstest.MapFile{Data: states}
+		}
+		if len(moves) > 0 {
+			fsys["moves.csv"] = &fstest.MapFile{Data: moves}
 		}
 		if len(valves) > 0 {
 			fsys["valves.csv"] = &fstest.MapFile{Data: valves}
