@@ -430,10 +430,16 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 		}
 		return v
 	}
+	// What no trim can recover: a branch short by more than the headroom
+	// its valve fully open and the pump at its most leave it (the plan's
+	// need for it, Need.Chain, against what the pump can give) stays out
+	// of the tolerance however well it is known. That share of its risk,
+	// at its spread now, no reading removes.
+	floor := unrecoverable(m, plan, follow, tlo, func(k int) float64 { return math.Sqrt(max(K.At(rowFlow(k), rowFlow(k)), 0)) })
 	risk := func(varOf func(r int) float64, nv float64) float64 {
 		var r float64
 		for k := range follow {
-			r += pout(math.Sqrt(max(varOf(rowFlow(k)), 0)))
+			r += max(pout(math.Sqrt(max(varOf(rowFlow(k)), 0))), floor[k])
 		}
 		return r + nContend*pout(math.Sqrt(max(nv, 0))/2)
 	}
@@ -697,6 +703,30 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	}
 	rp.RiskAfter = now + extraLeft
 	return rp, nil
+}
+
+// unrecoverable is, for each followed branch, the probability that its
+// ln flow after the plan, normal about the plan's with the spread sd(k),
+// falls more than the tolerance's low edge (tlo, a ln) below target beyond
+// its headroom: half the ln of what the pump can give at most (Plan.Pump's
+// Available, less an open circuit's lift) over what its chain needs at
+// target with its valves fully open (Need.Chain). Zero where the pump's
+// most is not known (no curve: an ideal source) or the need is not.
+func unrecoverable(m *plant.Model, plan *Plan, follow []int, tlo float64, sd func(k int) float64) []float64 {
+	out := make([]float64, len(follow))
+	avail := plan.Pump.Available - m.Lift()
+	if !(avail > 0) || math.IsInf(avail, 1) {
+		return out
+	}
+	for k, i := range follow {
+		s, need := sd(k), plan.Needs[i].Chain
+		if !(s > 0) || !(need > 0) {
+			continue
+		}
+		h := 0.5 * math.Log(avail/need)
+		out[k] = distuv.UnitNormal.CDF((tlo - h) / s)
+	}
+	return out
 }
 
 // describe fills a Candidate: what to expect, its band from the spread

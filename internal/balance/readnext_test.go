@@ -245,3 +245,39 @@ func evenSpread(n int, sd float64) *Uncertainty {
 	}
 	return u
 }
+
+// TestUnrecoverable: the share of a branch's risk no trim removes is the
+// normal probability of a shortfall beyond its headroom, half the ln of
+// what the pump can give at most over what the branch's chain needs. Known
+// answers from the standard normal CDF (Abramowitz & Stegun 26.2): a branch
+// needing all the pump gives, with sd 0.1 in ln flow and the -10 % edge,
+// Φ(ln 0.9 / 0.1) = Φ(-1.0536) = 0.14604; one needing a quarter of it has
+// ln 2 of headroom, Φ(-7.985), nothing; no curve (Available NaN or +Inf),
+// nothing.
+func TestUnrecoverable(t *testing.T) {
+	m, _, base := rankPlant(t, 13, site.DirectReturn)
+	tlo := math.Log(0.9)
+	sd := func(int) float64 { return 0.1 }
+	for _, tc := range []struct {
+		name  string
+		avail float64
+		need  float64
+		want  float64
+	}{
+		{"all the pump gives", 50e3, 50e3, 0.14604},
+		{"a quarter of it", 50e3, 12.5e3, 0},
+		{"no curve", math.NaN(), 50e3, 0},
+		{"an ideal source", math.Inf(1), 50e3, 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			plan := *base
+			plan.Needs = slices.Clone(base.Needs)
+			plan.Pump.Available = tc.avail + m.Lift()
+			plan.Needs[0].Chain = tc.need
+			got := unrecoverable(m, &plan, []int{0}, tlo, sd)
+			if math.Abs(got[0]-tc.want) > 5e-5 {
+				t.Errorf("floor %.5f, want %.5f", got[0], tc.want)
+			}
+		})
+	}
+}
