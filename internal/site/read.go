@@ -1408,18 +1408,7 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 		}
 		st.Note = sr.text(r, "note", &ok)
 		ref := sr.ref(r, "state")
-		switch {
-		case !ok || !good1 || !good2 || !good3:
-			continue
-		case st.Label == "":
-			p.add(ref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
-			continue
-		case labels != nil && !labels[st.Label]:
-			want := "a state label from the readings sheet, which names none"
-			if len(known) > 0 {
-				want = refWant("a state label from the readings sheet: "+strings.Join(known, ", "), st.Label, known)
-			}
-			p.add(ref.problem(SeverityError, ErrReference, "no reading is in this state", want))
+		if !ok || !good1 || !good2 || !good3 || !stateNamed(ref, st.Label, labels, known, p) {
 			continue
 		}
 		if line, dup := first[st.Label]; dup {
@@ -1450,6 +1439,26 @@ func readStates(t *table, s *Site, labels map[string]bool, p *Problems) []StateS
 		out = append(out, st)
 	}
 	return out
+}
+
+// stateNamed reports whether label (at ref) names a survey state of the
+// readings sheet, adding the problem where it does not. labels are the
+// states the readings name, known the same sorted (nil labels: the readings
+// sheet cannot be read, and only a blank label is refused).
+func stateNamed(ref cellRef, label string, labels map[string]bool, known []string, p *Problems) bool {
+	switch {
+	case label == "":
+		p.add(ref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
+		return false
+	case labels != nil && !labels[label]:
+		want := "a state label from the readings sheet, which names none"
+		if len(known) > 0 {
+			want = refWant("a state label from the readings sheet: "+strings.Join(known, ", "), label, known)
+		}
+		p.add(ref.problem(SeverityError, ErrReference, "no reading is in this state", want))
+		return false
+	}
+	return true
 }
 
 // readMoves reads the moves sheet: a valve's setting in a survey state where
@@ -1486,17 +1495,7 @@ func readMoves(t *table, s *Site, labels map[string]bool, valves valveCheck, p *
 		mv.Note = sr.text(r, "note", &ok)
 		sref, bref := sr.ref(r, "state"), sr.ref(r, "branch")
 		switch {
-		case !ok:
-			continue
-		case mv.State == "":
-			p.add(sref.problem(SeverityError, ErrMissing, "blank", "a survey state label from the readings sheet"))
-			continue
-		case labels != nil && !labels[mv.State]:
-			want := "a state label from the readings sheet, which names none"
-			if len(known) > 0 {
-				want = refWant("a state label from the readings sheet: "+strings.Join(known, ", "), mv.State, known)
-			}
-			p.add(sref.problem(SeverityError, ErrReference, "no reading is in this state", want))
+		case !ok || !stateNamed(sref, mv.State, labels, known, p):
 			continue
 		case mv.Branch == "":
 			p.add(bref.problem(SeverityError, ErrMissing, "blank", "a branch id"))
