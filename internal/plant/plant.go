@@ -1540,8 +1540,8 @@ func (m *Model) StateLabels() []string {
 
 // SetUnrecorded gives the state labelled label the valve settings and pump
 // of a plan it was set to: every valve whose setting no reading of the
-// state (or the moves sheet) records takes settings[i] (NaN, or a branch without a valve, leaves
-// it), and the pump takes speed (a pump boundary) or differential (a
+// state, nor the moves sheet, records takes settings[i] (NaN, or a branch
+// without a valve, leaves it), and the pump takes speed (a pump boundary) or differential (a
 // constant-differential one) when the states sheet gives the state none and
 // the value is positive. A survey state read after setting reads only a few
 // branches, but every valve was set: without this its other valves would be
