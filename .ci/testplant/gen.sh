@@ -7,10 +7,12 @@
 #                  valves found anywhere, a second state with 30 % of valves moved on every other plant
 #   OUT_DIR/q      q01-q16, seeds 9951-9966, 6-220 branches, faults on 20-35 % of branches, valves found
 #                  open or anywhere, a second state with 50 % moved on every third plant (a check set)
+#   OUT_DIR/v      v01-v14, seeds 9971-9984, 10-220 branches, faults on 25 %, valves found anywhere, a
+#                  second state with 40 % moved on every other plant (made after the moves sheet, a check)
 set -e
 PS=${PLANTSIM:-$(cd "$(dirname "$0")/../../.." && pwd)/shared/testplant/plantsim.py}
 O=$1
-mkdir -p "$O/o" "$O/p" "$O/q"
+mkdir -p "$O/o" "$O/p" "$O/q" "$O/v"
 /usr/bin/python3 "$PS" suite --out "$O/suite" > /dev/null
 sizes=(3 5 8 10 15 20 25 30 40 50 60 70 80 90 100 120 150 180 200 250 300 300)
 for i in $(seq 1 22); do
@@ -46,4 +48,14 @@ for i in $(seq 1 16); do
   name=$(printf 'q%02d_n%d_%s_%s' "$i" "$n" "$a" "$pump")
   /usr/bin/python3 "$PS" make --seed $((9950 + i)) --branches "$n" --arrangement $arr --pump $pump \
     --as-found $found --fault-rate ${rates[$((i % 4))]} "${extra[@]}" --name "$name" --out "$O/q/$name.json" > /dev/null
+done
+sizes=(10 14 20 28 36 45 55 70 85 100 120 150 180 220)
+for i in $(seq 1 14); do
+  n=${sizes[$((i-1))]}
+  arr=direct; a=d; [ $((i % 2)) = 0 ] && { arr=reverse; a=r; }
+  pump=speed; [ $((i % 3)) = 0 ] && pump=dp
+  extra=(); [ $((i % 2)) = 1 ] && extra=(--second-state 0.4)
+  name=$(printf 'v%02d_n%d_%s_%s' "$i" "$n" "$a" "$pump")
+  /usr/bin/python3 "$PS" make --seed $((9970 + i)) --branches "$n" --arrangement $arr --pump $pump \
+    --as-found random --fault-rate 0.25 --min-faults 1 "${extra[@]}" --name "$name" --out "$O/v/$name.json" > /dev/null
 done
