@@ -105,11 +105,9 @@ func TestFitPredictions(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			hyp := make([]ValveHypothesis, len(m.Branches))
-			for i, b := range m.Branches {
-				if b.Valve != nil {
-					hyp[i], su.kvSep[i] = FollowsTable, true // every valve's Kv scale is a parameter
-				}
+			hyp := onTable(m)
+			for i, h := range hyp {
+				su.kvSep[i] = h == FollowsTable // every valve's Kv scale is a parameter
 			}
 			p, err := su.newProblem(ctx, hyp, su.allObs())
 			if err != nil {
@@ -164,13 +162,18 @@ func richAtDesign(t *testing.T, spec plantSpec) (*site.Site, *setup, []ValveHypo
 	if err != nil {
 		t.Fatal(err)
 	}
+	return s, su, onTable(m)
+}
+
+// onTable takes every valve of m on its table.
+func onTable(m *plant.Model) []ValveHypothesis {
 	hyp := make([]ValveHypothesis, len(m.Branches))
 	for i, b := range m.Branches {
 		if b.Valve != nil {
 			hyp[i] = FollowsTable
 		}
 	}
-	return s, su, hyp
+	return hyp
 }
 
 // TestFitJacobian checks the implicit-function Jacobian, forward and
