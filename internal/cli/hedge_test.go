@@ -1,7 +1,10 @@
 package cli
 
 import (
+	"context"
 	"encoding/json"
+	"io"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -9,6 +12,7 @@ import (
 	"testing"
 
 	"flowset/internal/calibrate"
+	"flowset/internal/diagnose"
 )
 
 // TestHedgeTestPoints reads one demo branch's valve meter 25 % low in both
@@ -166,5 +170,58 @@ func TestPlannedOn(t *testing.T) {
 	}
 	if got := (&job{}).plannedOn("OTHER"); got != "" {
 		t.Errorf("a plan from design data only says %q, want nothing", got)
+	}
+}
+
+// TestHoldUnconfirmed: on the demo site with a fit stood in, a branch found
+// unable to reach design on its own valve's test points alone is held at
+// design only from holdRatio, the 99th percentile of the fault prior:
+// 2^2.326 = 5.01 (ln 2 per sd; 2.326 the standard normal's 99th
+// percentile, Abramowitz and Stegun, Handbook of Mathematical Functions,
+// table 26.1); never one read by an independent flow, or only restricted.
+func TestHoldUnconfirmed(t *testing.T) {
+	if got, want := holdRatio(), math.Pow(2, 2.326348); math.Abs(got-want) > 1e-4 {
+		t.Fatalf("holdRatio %.5f, want %.5f", got, want)
+	}
+	l, err := loadSite(context.Background(), surveyDir("demo"), io.Discard)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m := l.Model
+	id := m.Branches[0].ID
+	for _, tc := range []struct {
+		name  string
+		ratio float64
+		code  diagnose.Code
+		indep bool
+		held  bool
+	}{
+		{"3 times, the fouling range", 3, diagnose.CannotReachDesign, false, false},
+		{"just under the prior's 99th percentile", 4.95, diagnose.CannotReachDesign, false, false},
+		{"just over it", 5.05, diagnose.CannotReachDesign, false, true},
+		{"20 times: a valve off its table", 20, diagnose.CannotReachDesign, false, true},
+		{"20 times, read by a clamp-on too", 20, diagnose.CannotReachDesign, true, false},
+		{"20 times, but it can reach its target", 20, diagnose.Restricted, false, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			j := &job{L: l, Cal: &calibrate.Calibration{Branches: make([]calibrate.BranchFit, len(m.Branches))}, Params: m.Design()}
+			j.Params.Resistance[0] = tc.ratio
+			j.Evidence = []diagnose.Branch{{ID: id, HasFlow: tc.indep}}
+			j.Findings = []diagnose.Finding{{Code: tc.code, Branch: id}}
+			held := holdUnconfirmed(m, j)
+			if got := len(held) == 1 && held[0] == id; got != tc.held {
+				t.Fatalf("held %v, want %s held %v", held, id, tc.held)
+			}
+			want := tc.ratio
+			if tc.held {
+				want = 1
+			}
+			if j.Params.Resistance[0] != want {
+				t.Errorf("resistance planned on %g, want %g", j.Params.Resistance[0], want)
+			}
+			if strings.Contains(j.Findings[0].Action, "holds its design setting") != tc.held {
+				t.Errorf("finding's action %q", j.Findings[0].Action)
+			}
+		})
 	}
 }
