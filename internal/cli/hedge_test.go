@@ -179,6 +179,7 @@ func TestPlannedOn(t *testing.T) {
 // 2^2.326 = 5.01 (ln 2 per sd; 2.326 the standard normal's 99th
 // percentile, Abramowitz and Stegun, Handbook of Mathematical Functions,
 // table 26.1); never one read by an independent flow, or only restricted.
+// One read by nothing of its own is held whatever its ratio.
 func TestHoldUnconfirmed(t *testing.T) {
 	if got, want := holdRatio(), math.Pow(2, 2.326348); math.Abs(got-want) > 1e-4 {
 		t.Fatalf("holdRatio %.5f, want %.5f", got, want)
@@ -195,18 +196,27 @@ func TestHoldUnconfirmed(t *testing.T) {
 		code  diagnose.Code
 		indep bool
 		held  bool
+		// unread: nothing of the branch's own read; its action then
+		// says so.
+		unread bool
 	}{
-		{"3 times, the fouling range", 3, diagnose.CannotReachDesign, false, false},
-		{"just under the prior's 99th percentile", 4.95, diagnose.CannotReachDesign, false, false},
-		{"just over it", 5.05, diagnose.CannotReachDesign, false, true},
-		{"20 times: a valve off its table", 20, diagnose.CannotReachDesign, false, true},
-		{"20 times, read by a clamp-on too", 20, diagnose.CannotReachDesign, true, false},
-		{"20 times, but it can reach its target", 20, diagnose.Restricted, false, false},
+		{"3 times, the fouling range", 3, diagnose.CannotReachDesign, false, false, false},
+		{"just under the prior's 99th percentile", 4.95, diagnose.CannotReachDesign, false, false, false},
+		{"just over it", 5.05, diagnose.CannotReachDesign, false, true, false},
+		{"20 times: a valve off its table", 20, diagnose.CannotReachDesign, false, true, false},
+		{"20 times, read by a clamp-on too", 20, diagnose.CannotReachDesign, true, false, false},
+		{"20 times, but it can reach its target", 20, diagnose.Restricted, false, false, false},
+		{"3 times, read by nothing of its own", 3, diagnose.CannotReachDesign, false, true, true},
+		{"3 times, read by nothing, but it can reach its target", 3, diagnose.Restricted, false, false, true},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			j := &job{L: l, Cal: &calibrate.Calibration{Branches: make([]calibrate.BranchFit, len(m.Branches))}, Params: m.Design()}
 			j.Params.Resistance[0] = tc.ratio
-			j.Evidence = []diagnose.Branch{{ID: id, HasFlow: tc.indep}}
+			e := diagnose.Branch{ID: id, HasFlow: tc.indep}
+			if !tc.unread {
+				e.Measured = []string{"valve meter"}
+			}
+			j.Evidence = []diagnose.Branch{e}
 			j.Findings = []diagnose.Finding{{Code: tc.code, Branch: id}}
 			held := holdUnconfirmed(m, j)
 			if got := len(held) == 1 && held[0] == id; got != tc.held {
@@ -219,8 +229,9 @@ func TestHoldUnconfirmed(t *testing.T) {
 			if j.Params.Resistance[0] != want {
 				t.Errorf("resistance planned on %g, want %g", j.Params.Resistance[0], want)
 			}
-			if strings.Contains(j.Findings[0].Action, "holds its design setting") != tc.held {
-				t.Errorf("finding's action %q", j.Findings[0].Action)
+			a := j.Findings[0].Action
+			if strings.Contains(a, "holds its design setting") != tc.held || tc.held && strings.Contains(a, "nothing of its own was read") != tc.unread {
+				t.Errorf("finding's action %q", a)
 			}
 		})
 	}

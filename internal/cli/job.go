@@ -267,8 +267,17 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		}
 	}
 	plan.DesignOnly = j.Cal == nil
+	unread := map[string]bool{}
+	for _, e := range j.Evidence {
+		unread[e.ID] = len(e.Measured) == 0
+	}
 	for _, id := range unconfirmed {
-		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, j.Fitted.Resistance[mustIndex(m, id)]))
+		r := j.Fitted.Resistance[mustIndex(m, id)]
+		if unread[id] {
+			plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s is fitted at %.2g times its design resistance from its neighbours' readings alone, nothing of its own read: its setting is planned at design until its flow is read; then re-plan with that reading", id, r))
+			continue
+		}
+		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, r))
 	}
 	plan.Warnings = append(plan.Warnings, hedgeNotes(j, hedges)...)
 	likelyOff(j)
@@ -504,16 +513,18 @@ func stateParams(j *job, p plant.Params, k int) plant.Params {
 // seized or loose valve 2, a meter 4), and those at 5 times or more a
 // seized or loose valve 15 times of 17 and never fouled; holding from 2.5
 // starved the fouled ones (summed rms of the plans 277.1 against 259.4). A
-// branch that can still reach its target is planned as fitted: opening its
-// valve part way costs little if the reading is wrong. It returns the IDs
-// held and notes the hold on their findings.
+// branch read by nothing of its own (a partial survey) is held at any
+// multiple: its restriction is only the fit's account of its neighbours'
+// readings. A branch that can still reach its target is planned as fitted:
+// opening its valve part way costs little if the reading is wrong. It
+// returns the IDs held and notes the hold on their findings.
 func holdUnconfirmed(m *plant.Model, j *job) []string {
 	if j.Cal == nil {
 		return nil
 	}
-	indep := map[string]bool{}
+	indep, unread := map[string]bool{}, map[string]bool{}
 	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
+		indep[e.ID], unread[e.ID] = e.HasFlow, len(e.Measured) == 0
 	}
 	var held []string
 	isHeld := map[string]bool{} // held as a set: findings x held was quadratic
@@ -537,7 +548,13 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 			continue
 		}
 		switch {
-		case f.Code == diagnose.CannotReachDesign && j.Params.Resistance[i] >= holdRatio():
+		case f.Code == diagnose.CannotReachDesign && (j.Params.Resistance[i] >= holdRatio() || unread[f.Branch]):
+			// Or read by nothing of its own: its restriction is the fit's
+			// account of its neighbours' readings, and opening it fully
+			// with the pump raised for it rests on that alone (a clean
+			// branch of an independent 80-branch plant so fitted at 4.4
+			// times design from a 30 % survey, planned as fitted at 161 %
+			// and its neighbours short).
 		case f.Code == diagnose.ValveMisSet && j.Cal.Branches[i].Valve.Hypothesis != calibrate.SetElsewhere && j.Params.Resistance[i] < 1:
 			// Found passing far more than designed behind a valve the
 			// readings cannot separate: a plug off its spindle, a
@@ -553,7 +570,10 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 	}
 	for k := range j.Findings {
 		f := &j.Findings[k]
-		if (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && isHeld[f.Branch] {
+		switch {
+		case (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && isHeld[f.Branch] && unread[f.Branch]:
+			f.Action = "read its flow before anything else (its valve's test points or a clamp-on meter): nothing of its own was read, and only the fit's account of its neighbours' readings makes it short; the plan holds its design setting until then"
+		case (f.Code == diagnose.CannotReachDesign || f.Code == diagnose.Restricted) && isHeld[f.Branch]:
 			f.Action = "read its flow with a clamp-on meter to confirm before anything else: only its valve's test points say it is short, and a meter set up for another valve reads the same way; the plan holds its design setting until then"
 		}
 	}
