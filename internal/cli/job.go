@@ -267,10 +267,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		}
 	}
 	plan.DesignOnly = j.Cal == nil
-	unread := map[string]bool{}
-	for _, e := range j.Evidence {
-		unread[e.ID] = len(e.Measured) == 0
-	}
+	unread := readByNothing(j.Evidence)
 	for _, id := range unconfirmed {
 		r := j.Fitted.Resistance[mustIndex(m, id)]
 		if unread[id] {
@@ -522,9 +519,9 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 	if j.Cal == nil {
 		return nil
 	}
-	indep, unread := map[string]bool{}, map[string]bool{}
+	indep, unread := map[string]bool{}, readByNothing(j.Evidence)
 	for _, e := range j.Evidence {
-		indep[e.ID], unread[e.ID] = e.HasFlow, len(e.Measured) == 0
+		indep[e.ID] = e.HasFlow
 	}
 	var held []string
 	isHeld := map[string]bool{} // held as a set: findings x held was quadratic
@@ -553,8 +550,8 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 			// account of its neighbours' readings, and opening it fully
 			// with the pump raised for it rests on that alone (a clean
 			// branch of an independent 80-branch plant so fitted at 4.4
-			// times design from a 30 % survey, planned as fitted at 161 %
-			// and its neighbours short).
+			// times design from a 30 % survey and planned as fitted got
+			// 161 % of its target, its neighbours short).
 		case f.Code == diagnose.ValveMisSet && j.Cal.Branches[i].Valve.Hypothesis != calibrate.SetElsewhere && j.Params.Resistance[i] < 1:
 			// Found passing far more than designed behind a valve the
 			// readings cannot separate: a plug off its spindle, a
@@ -578,6 +575,17 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 		}
 	}
 	return held
+}
+
+// readByNothing is the set of branches nothing of their own measured.
+func readByNothing(ev []diagnose.Branch) map[string]bool {
+	out := map[string]bool{}
+	for _, e := range ev {
+		if len(e.Measured) == 0 {
+			out[e.ID] = true
+		}
+	}
+	return out
 }
 
 // holdRatio is the multiple of design beyond which holdUnconfirmed holds
