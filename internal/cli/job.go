@@ -519,7 +519,7 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 	if j.Cal == nil {
 		return nil
 	}
-	indep, unread := map[string]bool{}, readByNothing(j.Evidence)
+	indep, unread, ratio := map[string]bool{}, readByNothing(j.Evidence), holdRatio()
 	for _, e := range j.Evidence {
 		indep[e.ID] = e.HasFlow
 	}
@@ -545,7 +545,7 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 			continue
 		}
 		switch {
-		case f.Code == diagnose.CannotReachDesign && (j.Params.Resistance[i] >= holdRatio() || unread[f.Branch]):
+		case f.Code == diagnose.CannotReachDesign && (j.Params.Resistance[i] >= ratio || unread[f.Branch]):
 			// Or read by nothing of its own: its restriction is the fit's
 			// account of its neighbours' readings, and opening it fully
 			// with the pump raised for it rests on that alone (a clean
