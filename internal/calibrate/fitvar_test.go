@@ -20,7 +20,10 @@ import (
 // generated 300-branch site read with synth's default mix, and bounds the
 // error of the posterior sd of every parameter. The bounds are what was
 // measured with some margin (no external source: the exact values are the
-// reference). Beside it, the plain estimator (unscaled Rademacher probes
+// reference); the branch differentials weighed with the header model's
+// error (DefaultHeaderModel) leave the header's coupling of the branches
+// less pinned, and the 90th and 99th percentiles rose from under 3 and
+// 10 % to 3.6 and 12.7 %. Beside it, the plain estimator (unscaled Rademacher probes
 // without a control variate, 64 of them, as before the local
 // approximation) is run on the same fit and logged for comparison.
 func TestFitProbedVarianceSurvey(t *testing.T) {
@@ -60,8 +63,8 @@ func TestFitProbedVarianceSurvey(t *testing.T) {
 	errs := sdErr(probed.Result.Var)
 	med, p90, p99, worst := errs[n/2], errs[9*n/10], errs[99*n/100], errs[n-1]
 	t.Logf("%d parameters, sd relative error: median %.4f, 90th pct %.4f, 99th pct %.4f, max %.4f", n, med, p90, p99, worst)
-	if med > 0.005 || p90 > 0.03 || p99 > 0.1 || worst > 0.2 {
-		t.Errorf("sd error median %.4f (limit 0.005), 90th pct %.4f (0.03), 99th pct %.4f (0.1), max %.4f (0.2)", med, p90, p99, worst)
+	if med > 0.005 || p90 > 0.04 || p99 > 0.15 || worst > 0.2 {
+		t.Errorf("sd error median %.4f (limit 0.005), 90th pct %.4f (0.04), 99th pct %.4f (0.15), max %.4f (0.2)", med, p90, p99, worst)
 	}
 	if d := math.Abs(probed.ChiSquare - exact.ChiSquare); d > 1e-3 {
 		t.Errorf("chi-square %.6f matrix-free, %.6f dense", probed.ChiSquare, exact.ChiSquare)
