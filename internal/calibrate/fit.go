@@ -150,8 +150,9 @@ type FitOptions struct {
 	// estimate (VarProbed, preconditioned and controlled by the local
 	// Jacobian, in which each branch or riser is solved with the main
 	// take-off pressures held; on a generated 300-branch survey the sd came
-	// out within 1.5 % of the exact one for nine parameters in ten and
-	// within 8 % for all) and the header and pump variances are recomputed
+	// out within 3.6 % of the exact one for nine parameters in ten and
+	// within 15 % for all, TestFitProbedVarianceSurvey) and the header and
+	// pump variances are recomputed
 	// exactly, one conjugate-gradient solve each. The valve hypothesis
 	// tests then refit the tested branch alone against the rest of the
 	// network linearised at the base fit (see ValveHypothesis), and adopt
