@@ -406,6 +406,7 @@ func TestFitErrors(t *testing.T) {
 	}{
 		{"negative prior", nil, &FitOptions{PriorKv: -1}, lsq.ErrSettings},
 		{"NaN meter density", nil, &FitOptions{MeterDensity: math.NaN()}, lsq.ErrSettings},
+		{"NaN header model", nil, &FitOptions{HeaderModel: math.NaN()}, lsq.ErrSettings},
 		{"negative valve tests", nil, &FitOptions{MaxValveTests: -1}, lsq.ErrSettings},
 		{"no readings", func(s *site.Site) { s.Readings = nil }, nil, ErrSurvey},
 		{"zero sigma", func(s *site.Site) { s.Readings[0].Sigma = 0 }, nil, ErrSurvey},

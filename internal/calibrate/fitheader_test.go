@@ -95,3 +95,62 @@ func TestHeaderModelRealHeader(t *testing.T) {
 		t.Errorf("summed rms ln error %.3f with the header model, %.3f without: want under half", sumOn, sumOff)
 	}
 }
+
+// TestHeaderModelWidens checks where the header model's error goes: on a
+// direct-return header each branch differential's sd becomes its gauge's
+// and 5 % of the design drop from the header's top to the branch together,
+// growing down the header; without header losses, or with the model
+// switched off, every sd stays the gauge's.
+func TestHeaderModelWidens(t *testing.T) {
+	ctx := context.Background()
+	for _, c := range []struct {
+		name  string
+		arr   site.Arrangement
+		model float64
+		widen bool
+	}{
+		{"direct return", site.DirectReturn, 0, true},
+		{"no header loss", site.NoHeaderLoss, 0, false},
+		{"switched off", site.DirectReturn, -1, false},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			s := newPlantSite(t, plantSpec{branches: 6, arrangement: c.arr, seed: 5})
+			headerSurvey(s)
+			m := mustModel(t, s)
+			simulate(t, m, newTruth(m), nil, 1)
+			o, err := (&FitOptions{HeaderModel: c.model}).withDefaults()
+			if err != nil {
+				t.Fatal(err)
+			}
+			su, err := newSetup(m, o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := su.headerModel(ctx); err != nil {
+				t.Fatal(err)
+			}
+			sol, err := m.Solve(ctx, m.Design(), m.States[0])
+			if err != nil {
+				t.Fatal(err)
+			}
+			last := 0.0
+			for _, ob := range su.obs {
+				if ob.what != site.BranchDiff {
+					continue
+				}
+				gauge := s.Readings[ob.reading].Sigma
+				want := gauge
+				if c.widen {
+					want = math.Hypot(gauge, DefaultHeaderModel*(sol.HeaderDiff()-sol.BranchDiff(ob.branch)))
+				}
+				if math.Abs(ob.sigma-want) > 1e-9*want {
+					t.Errorf("branch %d: sd %g Pa, want %g", ob.branch, ob.sigma, want)
+				}
+				if c.widen && !(ob.sigma-gauge > last) {
+					t.Errorf("branch %d: widened by %g Pa, not more than the branch before it (%g)", ob.branch, ob.sigma-gauge, last)
+				}
+				last = ob.sigma - gauge
+			}
+		})
+	}
+}
