@@ -394,6 +394,12 @@ type ReadingFit struct {
 	// AsValveDiff marks a valve-meter flow fitted as the differential the
 	// meter measured.
 	AsValveDiff bool
+	// Sigma is the standard uncertainty the reading was weighed at, in its
+	// quantity's SI unit (0 where it was not fitted in its own quantity: a
+	// valve-meter flow fitted as a differential, a boundary, a reading not
+	// fitted), and ModelSD the header model's part of it (a branch
+	// differential; 0 for the others).
+	Sigma, ModelSD float64
 	// Why explains, for a reading set aside or far from the fit (more than
 	// 3 standard uncertainties), what it says against what the model needs
 	// and which explanation the other readings at the same place point to;
@@ -742,7 +748,8 @@ func (su *setup) headerModel(ctx context.Context) error {
 			continue
 		}
 		if d := sol.HeaderDiff() - sol.BranchDiff(o.branch); d > 0 {
-			o.sigma = math.Hypot(o.sigma, c*d)
+			o.modelSD = c * d
+			o.sigma = math.Hypot(o.sigma, o.modelSD)
 		}
 	}
 	return nil

@@ -151,6 +151,22 @@ func TestHeaderModelWidens(t *testing.T) {
 				}
 				last = ob.sigma - gauge
 			}
+			// The fit reports what it weighed each at.
+			cal, err := Fit(ctx, m, &FitOptions{HeaderModel: c.model})
+			if err != nil {
+				t.Fatal(err)
+			}
+			for _, r := range cal.Readings {
+				gauge := s.Readings[r.Index].Sigma
+				switch {
+				case r.What != site.BranchDiff:
+					if r.ModelSD != 0 {
+						t.Errorf("%s at %s: header model sd %g", r.What, r.Where, r.ModelSD)
+					}
+				case (r.ModelSD > 0) != c.widen || math.Abs(r.Sigma-math.Hypot(gauge, r.ModelSD)) > 1e-9*r.Sigma:
+					t.Errorf("branch differential at %s: weighed at %g Pa, header model %g, gauge %g", r.Where, r.Sigma, r.ModelSD, gauge)
+				}
+			}
 		})
 	}
 }

@@ -74,6 +74,9 @@ type obs struct {
 	meter   bool    // a valve-meter flow
 	meterKv float64 // the table Kv at the recorded setting the meter used, m3/h
 	meterC  float64 // the meter's conversion dp = meterC·q|q|
+	// modelSD is the header model's part of sigma (a branch differential,
+	// FitOptions.HeaderModel), in the reading's unit; 0 for none.
+	modelSD float64
 }
 
 type term struct {

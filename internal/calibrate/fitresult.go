@@ -214,6 +214,9 @@ func (su *setup) calibration(f *fitRun, verdicts []ValveVerdict) (*Calibration, 
 			}
 			rf.Residual = rf.Predicted - rf.Value
 			rf.Normalised = res.Residual[oi]
+			if !rf.AsValveDiff {
+				rf.Sigma, rf.ModelSD = o.sigma, o.modelSD
+			}
 			rf.Outlier = out[oi]
 			rf.Doubted = su.doubted[k]
 		}

@@ -198,8 +198,12 @@ type readingFitJSON struct {
 	Predicted  num    `json:"predicted_si"`
 	Residual   num    `json:"residual_si"`
 	Normalised num    `json:"normalised_residual"`
-	Outlier    bool   `json:"outlier"`
-	Boundary   bool   `json:"boundary"`
+	// Sigma is the sd the fit weighed the reading at (absent where it was
+	// not fitted in its own quantity), ModelSD the header model's part.
+	Sigma    num  `json:"sigma_si,omitempty"`
+	ModelSD  num  `json:"header_model_sd_si,omitempty"`
+	Outlier  bool `json:"outlier"`
+	Boundary bool `json:"boundary"`
 }
 
 type findingJSON struct {
@@ -279,7 +283,7 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 	for _, r := range c.Readings {
 		sr := j.L.Site.Readings[r.Index]
 		out.Readings = append(out.Readings, readingFitJSON{Where: r.Pos.String(), State: sr.State, At: sr.Where, Quantity: sr.What.String(),
-			Value: num(r.Value), Predicted: num(r.Predicted), Residual: num(r.Residual), Normalised: num(r.Normalised), Outlier: r.Outlier, Boundary: r.Boundary})
+			Value: num(r.Value), Predicted: num(r.Predicted), Residual: num(r.Residual), Normalised: num(r.Normalised), Sigma: num(r.Sigma), ModelSD: num(r.ModelSD), Outlier: r.Outlier, Boundary: r.Boundary})
 	}
 	return out
 }
@@ -353,6 +357,9 @@ func (j *job) readingRows() ([]string, [][]string) {
 			note = "sets the boundary"
 		case r.AsValveDiff:
 			note = "fitted as the valve differential the meter read"
+		case r.ModelSD > 0:
+			note = fmt.Sprintf("weighed at ±%.2f %s (1 sd): its gauge and the header model's error in the drop to the branch (±%.2f)",
+				r.Sigma*scale, unit, r.ModelSD*scale)
 		}
 		rows = append(rows, []string{r.Pos.String(), sr.State, sr.Where, sr.What.String(), sr.Instrument,
 			f3(r.Value * scale), f3(r.Predicted * scale), unit, f2(r.Normalised), note})
