@@ -76,10 +76,11 @@ const (
 	// from the header's top to a branch, of the model's own error in that
 	// drop. One Header multiplier scales every segment alike, while each
 	// segment's roughness, length and fittings depart from design on
-	// their own (in-service steel roughness spans several times the new
-	// 0.045 mm; fittings' K are tabulated to tens of per cent): the drop
-	// to a branch is modelled only as well as their sum. 5 % is our
-	// judgement (common practice, no source). A branch differential read
+	// their own (from memory: handbook tables give 0.045 mm for new
+	// commercial steel and several times that in service, and fittings'
+	// K to tens of per cent): the drop to a branch is modelled only as
+	// well as their sum. 5 % is our judgement (common practice, no
+	// source). A branch differential read
 	// to ±1 kPa far down a header whose drop to it is 140 kPa is then
 	// weighed at ±7 kPa: without it the fit bent the resistances of large
 	// branches to follow the header's profile (on an independent 50-branch
@@ -152,8 +153,8 @@ type FitOptions struct {
 	// take-off pressures held; on a generated 300-branch survey the sd came
 	// out within 3.6 % of the exact one for nine parameters in ten and
 	// within 15 % for all, TestFitProbedVarianceSurvey) and the header and
-	// pump variances are recomputed
-	// exactly, one conjugate-gradient solve each. The valve hypothesis
+	// pump variances are recomputed exactly, one conjugate-gradient solve
+	// each. The valve hypothesis
 	// tests then refit the tested branch alone against the rest of the
 	// network linearised at the base fit (see ValveHypothesis), and adopt
 	// what they find in one final refit.
