@@ -56,7 +56,6 @@ const (
 	defaultMeterCost  = 5
 	defaultClampCost  = 15
 	defaultPumpCost   = 5
-	defaultModelSD    = 0.025
 	// maxRankBranches bounds the branches the ranking follows: the most
 	// uncertain ones and those that may be the index. The covariance of
 	// their flows is dense, so the work grows with the square of them.
@@ -192,7 +191,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 	def(&o.PumpCost, defaultPumpCost)
 	switch {
 	case o.ModelSD == 0:
-		o.ModelSD = defaultModelSD
+		o.ModelSD = DefaultModelSD
 	case o.ModelSD < 0:
 		o.ModelSD = 0
 	}

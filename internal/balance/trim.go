@@ -24,6 +24,13 @@ const (
 	ProvenIn
 	// ProvenOut: its whole band lies outside the tolerance.
 	ProvenOut
+	// PredictedIn and PredictedOut: a branch not read in the state as left
+	// (TrimOptions.Read) whose band, the model's own error included, lies
+	// inside or outside the tolerance. Only a reading proves: on 20
+	// independent plants the bands of branches not read after setting,
+	// without the model's own error, held the true flow for 803 of 1,590.
+	PredictedIn
+	PredictedOut
 )
 
 // String returns the verdict in a technician's words.
@@ -33,9 +40,20 @@ func (v Verdict) String() string {
 		return "proven in tolerance"
 	case ProvenOut:
 		return "proven out of tolerance"
+	case PredictedIn:
+		return "predicted in tolerance (not read)"
+	case PredictedOut:
+		return "predicted out of tolerance (not read)"
 	}
 	return "cannot tell"
 }
+
+// DefaultModelSD is the sd of the model's own error of a branch's ln flow,
+// beyond the multipliers' spread (Kv tables interpolated, fittings and
+// headers lumped), independent between branches: on 34 independent test
+// plants the plan's rms deviation was 2-4 % against 1-2 % for the
+// all-knowing best while the fit's bands claimed far less.
+const DefaultModelSD = 0.025
 
 // defaultTrimInner is the fraction of the tolerance band beyond which a
 // branch is trimmed: a quarter of ±10 % is ±2.5 %, about what a handwheel
@@ -93,6 +111,11 @@ type TrimOptions struct {
 	// as off target: it is read again another way, not trimmed in full.
 	Expected []float64
 	Surprise float64
+	// ModelSD is the sd of the model's own error of a branch's ln flow
+	// (DefaultModelSD when 0, none when negative), added to the band of
+	// every branch not read as left and to every band after the trims:
+	// there the flow is the model's prediction, not a reading's.
+	ModelSD float64
 }
 
 // TrimPlan is the outcome of Trim: the verdict on every branch as left, the
@@ -104,7 +127,7 @@ type TrimPlan struct {
 	// Branches are in walk order (see the package comment).
 	Branches []TrimBranch
 	// Counts of the branches by verdict as left, and of those trimmed.
-	ProvenIn, ProvenOut, Undecided, Trimmed int
+	ProvenIn, ProvenOut, PredictedIn, PredictedOut, Undecided, Trimmed int
 	// BySpeed reports that the pump is set by its speed (PumpLeft and
 	// PumpNew are speed ratios), else by a differential (Pa).
 	BySpeed bool
@@ -204,6 +227,17 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	k := 2.0
 	if o.Uncertainty != nil && o.Uncertainty.Coverage > 0 {
 		k = o.Uncertainty.Coverage
+	}
+	modelSD := o.ModelSD
+	switch {
+	case modelSD == 0:
+		modelSD = DefaultModelSD
+	case modelSD < 0 || !(modelSD < math.Inf(1)):
+		modelSD = 0
+	}
+	if o.Uncertainty == nil {
+		// No spread: the bands collapse onto the predictions.
+		modelSD = 0
 	}
 	solL, err := m.Solve(ctx, p, left)
 	if err != nil {
@@ -388,17 +422,28 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		if b.ValveModel != nil {
 			tb.Valve, tb.Unit = b.ValveModel.Name, b.ValveModel.Unit
 		}
+		read := o.Read == nil || i < len(o.Read) && o.Read[i]
+		sl, sa := sdL[i], math.Hypot(sdA[i], modelSD)
+		if !read {
+			sl = math.Hypot(sl, modelSD)
+		}
 		r := solL.Flow(i) / target[i]
-		tb.LeftPercent, tb.LeftLow, tb.LeftHigh = 100*r, 100*r*math.Exp(-k*sdL[i]), 100*r*math.Exp(k*sdL[i])
+		tb.LeftPercent, tb.LeftLow, tb.LeftHigh = 100*r, 100*r*math.Exp(-k*sl), 100*r*math.Exp(k*sl)
 		ra := sol.Flow(i) / target[i]
-		tb.AfterPercent, tb.AfterLow, tb.AfterHigh = 100*ra, 100*ra*math.Exp(-k*sdA[i]), 100*ra*math.Exp(k*sdA[i])
+		tb.AfterPercent, tb.AfterLow, tb.AfterHigh = 100*ra, 100*ra*math.Exp(-k*sa), 100*ra*math.Exp(k*sa)
 		switch lo, hi := tb.LeftLow/100, tb.LeftHigh/100; {
-		case o.Uncertainty != nil && in(lo, 1) && in(hi, 1):
+		case o.Uncertainty != nil && in(lo, 1) && in(hi, 1) && read:
 			tb.Verdict = ProvenIn
 			tp.ProvenIn++
-		case o.Uncertainty != nil && (hi < 1+tp.ToleranceLow || lo > 1+tp.ToleranceHigh):
+		case o.Uncertainty != nil && in(lo, 1) && in(hi, 1):
+			tb.Verdict = PredictedIn
+			tp.PredictedIn++
+		case o.Uncertainty != nil && (hi < 1+tp.ToleranceLow || lo > 1+tp.ToleranceHigh) && read:
 			tb.Verdict = ProvenOut
 			tp.ProvenOut++
+		case o.Uncertainty != nil && (hi < 1+tp.ToleranceLow || lo > 1+tp.ToleranceHigh):
+			tb.Verdict = PredictedOut
+			tp.PredictedOut++
 		default:
 			tp.Undecided++
 		}

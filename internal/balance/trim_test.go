@@ -361,3 +361,58 @@ func TestWorthMoving(t *testing.T) {
 		})
 	}
 }
+
+// TestTrimVerdictNotRead checks that only a reading proves: on a plant set
+// to its plan with nothing off, a branch read as left whose band lies in the
+// tolerance is proven in, one not read is predicted in, its band widened by
+// the model's own error (DefaultModelSD, about it in ln flow at two sd);
+// with the model's error switched off the bands are the multipliers' alone.
+func TestTrimVerdictNotRead(t *testing.T) {
+	ctx := context.Background()
+	c := newTrimCase(t, 1)
+	m := c.m
+	u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), LnKvScale: make([]float64, len(m.Branches))}
+	for i := range u.LnResistance {
+		u.LnResistance[i] = 0.01
+	}
+	left := c.plan.State()
+	left.Label = "after setting"
+	read := make([]bool, len(m.Branches))
+	for i := range read {
+		read[i] = i%2 == 0
+	}
+	for _, modelSD := range []float64{0, -1} {
+		tp, err := Trim(ctx, m, c.truth, c.plan, left, &TrimOptions{Uncertainty: u, Read: read, ModelSD: modelSD})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var proven, predicted int
+		for _, b := range tp.Branches {
+			if b.Riser {
+				continue
+			}
+			half := math.Log(b.LeftHigh / b.LeftPercent) // k·sd in ln flow
+			want := ProvenIn
+			if !read[b.Index] {
+				want = PredictedIn
+			}
+			if b.Verdict != want {
+				t.Errorf("model sd %g: %s (read %v): %v, want %v", modelSD, b.ID, read[b.Index], b.Verdict, want)
+			}
+			if !read[b.Index] && modelSD == 0 && !(half >= 2*DefaultModelSD-1e-12) {
+				t.Errorf("%s not read: band ±%.4f in ln flow, want at least ±%.4f (the model's error)", b.ID, half, 2*DefaultModelSD)
+			}
+			if !read[b.Index] && modelSD < 0 && !(half < 2*DefaultModelSD) {
+				t.Errorf("%s not read, no model error: band ±%.4f in ln flow", b.ID, half)
+			}
+			if b.Verdict == ProvenIn {
+				proven++
+			} else if b.Verdict == PredictedIn {
+				predicted++
+			}
+		}
+		if tp.ProvenIn != proven || tp.PredictedIn != predicted || proven == 0 || predicted == 0 {
+			t.Errorf("model sd %g: counts proven %d predicted %d, branches %d and %d", modelSD, tp.ProvenIn, tp.PredictedIn, proven, predicted)
+		}
+	}
+}

@@ -557,8 +557,8 @@ func settingText(v float64, unit string) string {
 func (j *job) trimSummary(u display) []string {
 	tp := j.Trim
 	n := len(tp.Branches)
-	out := []string{fmt.Sprintf("As left (state %q): %d of %d branches proven in tolerance, %d proven out, %d the readings cannot tell; the model puts %d of %d inside the tolerance.",
-		tp.Label, tp.ProvenIn, n, tp.ProvenOut, tp.Undecided, tp.InBefore, n)}
+	out := []string{fmt.Sprintf("As left (state %q): of %d branches, %d read and proven in tolerance, %d proven out; %d not read and predicted in tolerance, %d predicted out; %d the readings and the model cannot tell; the model puts %d of %d inside the tolerance.",
+		tp.Label, n, tp.ProvenIn, tp.ProvenOut, tp.PredictedIn, tp.PredictedOut, tp.Undecided, tp.InBefore, n)}
 	switch {
 	case tp.PumpChanged && tp.BySpeed:
 		out = append(out, fmt.Sprintf("Pump: from %s to %s.", u.speed(tp.PumpLeft), u.speed(tp.PumpNew)))
@@ -604,7 +604,7 @@ func printTrim(w io.Writer, j *job) {
 	// The console keeps the branches that need action or a reading.
 	keep := t.Rows[:0:0]
 	for _, r := range t.Rows {
-		if r[8] != "" || r[10] != "" || r[5] != balance.ProvenIn.String() {
+		if v := r[5]; r[8] != "" || r[10] != "" || v != balance.ProvenIn.String() && v != balance.PredictedIn.String() {
 			keep = append(keep, r)
 		}
 	}
