@@ -49,8 +49,10 @@ asks for (a valve moved to read its test points at a second setting, then
 set back) is a state of its own, its setting in the setting column, read
 before the new state; every state the plan was not made from is taken with
 the plan's settings likewise. Trim says of every
-branch as left whether the readings prove it in tolerance, prove it out, or
-cannot tell. It then gives small setting corrections for the branches read
+branch read as left whether the readings prove it in tolerance, prove it out,
+or cannot tell, and of every branch not read whether the model predicts it
+in or out (its band widened by the model's own error: only a reading
+proves). It then gives small setting corrections for the branches read
 after setting that the readings place off target beyond a quarter of the
 band (--beyond), and, with --move-unread (the default), for those not read
 that the model fitted to every state puts there, with the pump of the plan
