@@ -23,11 +23,19 @@ func (pl *planner) band(sol *plant.Solved) error {
 	if k == 0 {
 		k = 2
 	}
+	ms := pl.opt.ModelSD
+	switch {
+	case ms == 0:
+		ms = DefaultModelSD
+	case ms < 0 || !(ms < math.Inf(1)):
+		ms = 0
+	}
 	pl.plan.Banded = true
 	for b := range pl.plan.Branches {
 		bp := &pl.plan.Branches[b]
 		i, _ := m.Index(bp.ID)
-		bp.BandLow, bp.BandHigh = bp.Percent*math.Exp(-k*sd[i]), bp.Percent*math.Exp(k*sd[i])
+		s := math.Hypot(sd[i], ms)
+		bp.BandLow, bp.BandHigh = bp.Percent*math.Exp(-k*s), bp.Percent*math.Exp(k*s)
 		bp.BandInTolerance = pl.inBand(bp.BandLow) && pl.inBand(bp.BandHigh)
 	}
 	return nil

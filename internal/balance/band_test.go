@@ -22,19 +22,26 @@ func TestBandClosedForm(t *testing.T) {
 		t.Run(m.Branches[j].ID, func(t *testing.T) {
 			u := &Uncertainty{LnResistance: make([]float64, len(m.Branches)), Coverage: k}
 			u.LnResistance[j] = sd
-			pl := mustCompute(t, m, m.Design(), &Options{Uncertainty: u})
-			for _, b := range pl.Branches {
-				i, _ := m.Index(b.ID)
-				want := 0.0
-				if i == j {
-					fd, _ := m.FixedElement(i, 1).Drop(b.Predicted, m.Fluid)
-					want = k * sd * 0.5 * fd / b.BranchDiff
-				}
-				if got := math.Log(b.BandHigh / b.Percent); math.Abs(got-want) > 1e-9 {
-					t.Errorf("branch %s: ln(high/predicted) = %.12f, want %.12f", b.ID, got, want)
-				}
-				if got := math.Log(b.Percent / b.BandLow); math.Abs(got-want) > 1e-9 {
-					t.Errorf("branch %s: ln(predicted/low) = %.12f, want %.12f", b.ID, got, want)
+			// The multipliers' spread alone (ModelSD -1), then with the
+			// model's own error added in quadrature (the default).
+			for _, model := range []float64{-1, 0} {
+				pl := mustCompute(t, m, m.Design(), &Options{Uncertainty: u, ModelSD: model})
+				for _, b := range pl.Branches {
+					i, _ := m.Index(b.ID)
+					want := 0.0
+					if i == j {
+						fd, _ := m.FixedElement(i, 1).Drop(b.Predicted, m.Fluid)
+						want = k * sd * 0.5 * fd / b.BranchDiff
+					}
+					if model == 0 {
+						want = k * math.Hypot(want/k, DefaultModelSD)
+					}
+					if got := math.Log(b.BandHigh / b.Percent); math.Abs(got-want) > 1e-9 {
+						t.Errorf("model %g, branch %s: ln(high/predicted) = %.12f, want %.12f", model, b.ID, got, want)
+					}
+					if got := math.Log(b.Percent / b.BandLow); math.Abs(got-want) > 1e-9 {
+						t.Errorf("model %g, branch %s: ln(predicted/low) = %.12f, want %.12f", model, b.ID, got, want)
+					}
 				}
 			}
 		})
@@ -83,7 +90,7 @@ func TestBandFiniteDifference(t *testing.T) {
 				case "pump":
 					u.LnPumpHead = sd
 				}
-				pl, err := Compute(ctx, m, p, &Options{Uncertainty: u})
+				pl, err := Compute(ctx, m, p, &Options{Uncertainty: u, ModelSD: -1})
 				if err != nil {
 					t.Fatalf("%s: %v", name, err)
 				}
@@ -151,7 +158,7 @@ func TestLeastHigh(t *testing.T) {
 					u.LnKvScale[j] = sd
 					moved.KvScale[j] *= math.Exp(-k * sd)
 				}
-				pl := mustCompute(t, m, p, &Options{Uncertainty: u})
+				pl := mustCompute(t, m, p, &Options{Uncertainty: u, ModelSD: -1})
 				for i, b := range m.Branches {
 					q[i] = b.Target
 				}
@@ -185,7 +192,7 @@ func TestBandMonteCarlo(t *testing.T) {
 	for i := range n {
 		u.LnResistance[i], u.LnKvScale[i] = 0.15, 0.05
 	}
-	pl := mustCompute(t, m, p, &Options{Uncertainty: u})
+	pl := mustCompute(t, m, p, &Options{Uncertainty: u, ModelSD: -1})
 	const samples = 400
 	sum, sum2 := make([]float64, n), make([]float64, n)
 	for range samples {
