@@ -117,7 +117,9 @@ type Candidate struct {
 	How   ReadKind
 	// Expect is the value the reading should give if the plan is right:
 	// the branch's flow, m3/s (a valve meter's as its table reads it), or
-	// the pump's differential, Pa; Low and High its 95 % band.
+	// the pump's differential, Pa; Low and High the 95 % band the reading
+	// should fall in (the model's spread of the quantity now, before any
+	// reading listed, and the instrument's own).
 	Expect, Low, High float64
 	// Minutes the reading takes.
 	Minutes float64
@@ -687,7 +689,7 @@ func RankReadings(ctx context.Context, m *plant.Model, p plant.Params, plan *Pla
 			break
 		}
 		c.done = true
-		rd := describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, now-bestRisk+ex, c.cost, pout, pd)
+		rd := describe(m, sol, solR, plan, c.how, c.k, follow, need, w, contenders, start, c.rows, c.r, now-bestRisk+ex, c.cost, pout, pd)
 		if ex > 0 {
 			if i := follow[c.k]; i < len(o.DecidesWhy) && o.DecidesWhy[i] != "" {
 				rd.Settles = o.DecidesWhy[i] + "; " + rd.Settles
@@ -730,11 +732,12 @@ func unrecoverable(m *plant.Model, plan *Plan, follow []int, tlo float64, sd fun
 
 // describe fills a Candidate: what to expect, its band from the spread
 // before any reading (start), and what it settles.
-func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
+func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, r []float64, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
 	c := Candidate{How: how, Index: -1, Where: "pump", Gain: gain, Minutes: cost}
 	if how == AtPump {
 		c.Expect = pd
-		sd := math.Sqrt(start.At(rows[len(rows)-1], rows[len(rows)-1]))
+		last := len(rows) - 1
+		sd := math.Sqrt(start.At(rows[last], rows[last]) + r[last])
 		if len(rows) < 2 {
 			c.Expect = solR.TotalFlow()
 		}
@@ -749,7 +752,9 @@ func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind,
 	if how == ByValveMeter && solR.Params.KvScale[i] > 0 {
 		q /= solR.Params.KvScale[i] // the table's reading of the true flow
 	}
-	sd := math.Sqrt(start.At(rows[0], rows[0]))
+	// The band the reading should fall in: the flow's spread and the
+	// instrument's own.
+	sd := math.Sqrt(start.At(rows[0], rows[0]) + r[0])
 	c.Expect, c.Low, c.High = q, q*math.Exp(-2*sd), q*math.Exp(2*sd)
 	var why []string
 	if kn := slices.Index(need, i); kn >= 0 && slices.Contains(contenders, kn) && len(contenders) > 1 {
