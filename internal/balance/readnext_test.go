@@ -138,6 +138,12 @@ func TestRankMostUncertainFirst(t *testing.T) {
 			var lines []string
 			for _, r := range rp.Readings {
 				lines = append(lines, fmt.Sprintf("%s %s: %s", r.Where, r.How, r.Settles))
+				// The band the reading should fall in holds the
+				// instrument's own spread as well as the flow's.
+				inst := map[ReadKind]float64{ByValveMeter: defaultMeterSD, ByClampOn: defaultClampSD}[r.How]
+				if half := math.Log(r.High / r.Expect); r.Index >= 0 && !(half >= 2*inst-1e-12) {
+					t.Errorf("%s by %v: band ±%.4f in ln, narrower than the instrument's ±%.4f", r.Where, r.How, half, 2*inst)
+				}
 			}
 			if rp.Readings[first].Index != most {
 				t.Errorf("first branch read %v, want %s (flow sd %.3f; %s %.3f):\n%s", rp.Readings[first].Where, m.Branches[most].ID, sd[most], m.Branches[next].ID, sd[next], strings.Join(lines, "\n"))
