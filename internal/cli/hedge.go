@@ -292,6 +292,14 @@ func hedgeNotes(j *job, hs []hedged) []string {
 	for k := range j.Findings {
 		f := &j.Findings[k]
 		if h := byID[f.Branch]; h != nil && (f.Code == diagnose.Restricted || f.Code == diagnose.CannotReachDesign) {
+			// Its confidence is the fit's on the readings taken as right,
+			// times the chance the test points read right: on the 70
+			// independent test plants 73 % of the restrictions found on
+			// test points alone were real against the 100 % the fit gave.
+			if c := f.Confidence; c > 0 && h.Weight >= 0 && h.Weight <= 1 {
+				f.Confidence = c * (1 - h.Weight)
+				f.Evidence += fmt.Sprintf("; or its test points read %.0f %% low (a %.0f %% chance)", 100*math.Abs(h.Low), 100*h.Weight)
+			}
 			f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading %.0f %% low say the same; its setting is planned between the two (%.0f %% of target if the restriction is real, %.0f %% if the test points read low) until a second instrument tells", 100*math.Abs(h.Low), 100*h.IfFault, 100*h.IfReadings)
 		}
 	}

@@ -35,6 +35,22 @@ func TestHedgeTestPoints(t *testing.T) {
 	if strings.Contains(flat, "AHU-2 reads as") {
 		t.Errorf("AHU-2, read by clamp-on, was hedged:\n%s", out)
 	}
+	// Its finding's confidence is the restriction's chance with its test
+	// points weighed, not the fit's on them taken as right.
+	found := false
+	for _, r := range readCSV(t, filepath.Join(outDir, "findings.csv"))[1:] {
+		if r[2] != "RAD-SH" || r[1] != "restricted" && r[1] != "cannot-reach-design" {
+			continue
+		}
+		found = true
+		c, err := strconv.ParseFloat(strings.TrimSuffix(r[6], " %"), 64)
+		if err != nil || !(c > 0 && c < 99.5) || !strings.Contains(r[5], "or its test points read") {
+			t.Errorf("RAD-SH %s: confidence %q, evidence %q: want the test points' chance weighed in", r[1], r[6], r[5])
+		}
+	}
+	if !found {
+		t.Errorf("no restriction found at RAD-SH")
+	}
 	var plan struct {
 		Branches []struct {
 			ID        string `json:"branch"`
