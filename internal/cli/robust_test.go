@@ -329,10 +329,11 @@ var edgeCases = []edgeCase{
 			{State: "as-found", Where: site.AtPump, What: site.PumpDiff, Setting: nan, Instrument: "manometer"},
 		}
 		simulate(t, s)
-	}, // The clean-branch prior holds both branches near design, so the two
-		// readings keep one degree of freedom between them.
+	}, // Neither branch is seen on its own: both keep the whole fault
+		// mixture's spread, and the two readings are spent on them with the
+		// pump (no degree of freedom left, nothing scaled by χ²).
 		want:  []string{"a (undetermined, info)", "b (undetermined, info)"},
-		files: map[string][]string{"calibration.json": {`"degrees_of_freedom": 1`}}},
+		files: map[string][]string{"calibration.json": {`"degrees_of_freedom": 0`}}},
 	{name: "two identical branches with identical flows", edit: func(t *testing.T, s *site.Site) {
 		s.Branches[1] = s.Branches[0]
 		s.Branches[1].ID = "b"
