@@ -95,6 +95,14 @@ def main():
         (", other %.1f" % sums["other"]) if b else ""))
     print("flowset over best: median %.2fx, mean %.2fx; loop 1 met (in10 >= 99, rms <= 1.2x best) on %d of %d "
           "plants whose best reaches in10 100" % (statistics.median(ratios), statistics.mean(ratios), serv_ok, serv))
+    # By size: on small plants k is one or two points, often the same ones or none that any trim acts on.
+    for lo in (20, 50, 100):
+        sel = [r for r in ok.values() if r["n"] >= lo]
+        if sel:
+            low = sum(r["fs"]["rms"] < r["random"]["rms"] - 0.005 for r in sel)
+            eq = sum(abs(r["fs"]["rms"] - r["random"]["rms"]) <= 0.005 for r in sel)
+            print("plants of %d branches or more: lower on %d of %d (%.0f %%), equal %d" % (
+                lo, low, len(sel), 100.0 * low / len(sel), eq))
 
 
 if __name__ == "__main__":
