@@ -121,6 +121,11 @@ type Candidate struct {
 	// should fall in (the model's spread of the quantity now, before any
 	// reading listed, and the instrument's own).
 	Expect, Low, High float64
+	// Quantity is what Expect is: site.Flow at a branch; at the pump
+	// site.PumpDiff when the pump runs on its curve, site.TotalFlow when
+	// a held differential fixes the pump's (the total flow is then what
+	// the reading tells).
+	Quantity site.Quantity
 	// Minutes the reading takes.
 	Minutes float64
 	// Gain is the risk it removes, taken after the readings above it:
@@ -735,11 +740,11 @@ func unrecoverable(m *plant.Model, plan *Plan, follow []int, tlo float64, sd fun
 func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind, k int, follow, need []int, w []float64, contenders []int, start *mat.Dense, rows []int, r []float64, gain, cost float64, pout func(float64) float64, pd float64) Candidate {
 	c := Candidate{How: how, Index: -1, Where: "pump", Gain: gain, Minutes: cost}
 	if how == AtPump {
-		c.Expect = pd
+		c.Expect, c.Quantity = pd, site.PumpDiff
 		last := len(rows) - 1
 		sd := math.Sqrt(start.At(rows[last], rows[last]) + r[last])
 		if len(rows) < 2 {
-			c.Expect = solR.TotalFlow()
+			c.Expect, c.Quantity = solR.TotalFlow(), site.TotalFlow
 		}
 		c.Low, c.High = c.Expect*math.Exp(-2*sd), c.Expect*math.Exp(2*sd)
 		c.Settles = "the pump's head and the circuit's total flow: narrows every branch's band through the pump and headers"
@@ -747,7 +752,7 @@ func describe(m *plant.Model, sol, solR *plant.Solved, plan *Plan, how ReadKind,
 	}
 	i := follow[k]
 	b := &m.Branches[i]
-	c.Where, c.Index = b.ID, i
+	c.Where, c.Index, c.Quantity = b.ID, i, site.Flow
 	q := solR.Flow(i)
 	if how == ByValveMeter && solR.Params.KvScale[i] > 0 {
 		q /= solR.Params.KvScale[i] // the table's reading of the true flow

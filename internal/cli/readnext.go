@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"flowset/internal/balance"
+	"flowset/internal/site"
 )
 
 // rankOf returns, by branch ID (or "pump"), its place (from 1) among the
@@ -55,9 +56,11 @@ func (j *job) readNextRows(u display) ([]string, [][]string) {
 }
 
 // readValues is what a ranked reading should give, its band and their unit,
-// in the display's units: a differential at the pump, a flow elsewhere.
+// in the display's units: the pump's differential where it runs on its
+// curve, a flow elsewhere (at a pump holding a differential, the total
+// flow).
 func readValues(c balance.Candidate, u display) (exp, lo, hi, unit string) {
-	if c.How == balance.AtPump {
+	if c.Quantity == site.PumpDiff {
 		return u.diffNum(c.Expect), u.diffNum(c.Low), u.diffNum(c.High), u.DiffUnit
 	}
 	return u.flowNum(c.Expect), u.flowNum(c.Low), u.flowNum(c.High), u.FlowUnit
@@ -132,7 +135,7 @@ func (j *job) readNextOut() readNextJSON {
 	out.Survey = j.surveyPlan
 	for _, c := range r.Readings {
 		unit := "m3/s"
-		if c.How == balance.AtPump {
+		if c.Quantity == site.PumpDiff {
 			unit = "Pa"
 		}
 		at := math.NaN()

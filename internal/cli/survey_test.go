@@ -1,9 +1,14 @@
 package cli
 
 import (
+	"os"
 	"path/filepath"
+	"regexp"
 	"strconv"
+	"strings"
 	"testing"
+
+	"flowset/internal/site"
 )
 
 // TestSurveyRoute plans the demo from its design alone with a survey of 30
@@ -92,5 +97,90 @@ func surveyRoute(t *testing.T, minutes float64, most int) {
 	}
 	if len(want) > 0 {
 		t.Errorf("readings that fit but are not on the route: ranks %v", want)
+	}
+}
+
+// TestPumpReadingUnits plans a survey before the visit on a small invented
+// site twice: with the pump on its curve, the pump's ranked reading expects
+// its differential (in the differential unit, near what the curve gives at
+// the design duty); with a held differential (the set point fixes the
+// pump's differential), it expects the total flow, in the flow unit, near
+// the design total. It once printed the total flow as a differential
+// ("0.0 to 0.0 kPa"). The invented site's own numbers are the reference.
+func TestPumpReadingUnits(t *testing.T) {
+	for _, tc := range []struct {
+		name           string
+		held           bool
+		unit, jsonUnit string
+		lo, hi         float64 // the expectation's range, display units
+	}{
+		// The edge site's pump gives 6-7.5 m (59-74 kPa) between 1 and 2 l/s.
+		{"pump curve", false, "kPa", "Pa", 40, 80},
+		// Design total 1.8 l/s; the set point is 60 kPa.
+		{"held differential", true, "l/s", "m3/s", 1, 4},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := edgeSite()
+			s.Readings = nil
+			if tc.held {
+				s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 60e3, Sensor: site.AtPump}
+			}
+			dir := writeSite(t, s)
+			out := filepath.Join(t.TempDir(), "out")
+			if code, _, errs := run(t, "run", dir, "--design-only", "--out", out); code != ExitOK && code != ExitShort {
+				t.Fatalf("run: exit %d: %s", code, errs)
+			}
+			for _, f := range []string{"read-next.csv", "survey-route.csv"} {
+				rows := readCSV(t, filepath.Join(out, f))
+				var found bool
+				for _, r := range rows[1:] {
+					if r[1] != "pump" {
+						continue
+					}
+					found = true
+					v, err := strconv.ParseFloat(r[3], 64)
+					if err != nil {
+						t.Fatalf("%s: pump expect %q: %v", f, r[3], err)
+					}
+					if r[5] != tc.unit || !(v >= tc.lo && v <= tc.hi) {
+						t.Errorf("%s: the pump's reading expects %s %s, want %g to %g %s", f, r[3], r[5], tc.lo, tc.hi, tc.unit)
+					}
+				}
+				if !found {
+					t.Errorf("%s: no pump reading ranked", f)
+				}
+			}
+			b, err := os.ReadFile(filepath.Join(out, "read-next.json"))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !strings.Contains(string(b), `"unit": "`+tc.jsonUnit+`"`) {
+				t.Errorf("read-next.json gives no reading in %s", tc.jsonUnit)
+			}
+
+			// After a survey, the report's list of readings to take after
+			// setting says what to expect of the pump in the same terms.
+			s = edgeSite()
+			if tc.held {
+				s.Boundary = site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1, SetPoint: 60e3, Sensor: site.AtPump}
+				s.Readings = s.Readings[:4] // the set point fixes the pump's differential
+			}
+			dir = writeSite(t, s)
+			out = filepath.Join(t.TempDir(), "out")
+			if code, _, errs := run(t, "run", dir, "--out", out); code != ExitOK && code != ExitShort {
+				t.Fatalf("run: exit %d: %s", code, errs)
+			}
+			html, err := os.ReadFile(filepath.Join(out, "report.html"))
+			if err != nil {
+				t.Fatal(err)
+			}
+			note := regexp.MustCompile(`differential and the total flow too \(order \d+\): expect ([^,]*),`).FindSubmatch(html)
+			if note == nil {
+				t.Fatalf("report.html has no note on the pump's reading")
+			}
+			if !strings.HasSuffix(string(note[1]), " "+tc.unit) || tc.held != strings.HasPrefix(string(note[1]), "a total flow of ") {
+				t.Errorf("report.html: the pump's note expects %q, want a value in %s", note[1], tc.unit)
+			}
+		})
 	}
 }

@@ -777,7 +777,12 @@ func (j *job) proveTable(u display) report.Table {
 		t.Rows = append(t.Rows, r.cells)
 	}
 	if pr, ok := ranked["pump"]; ok {
-		t.Notes = append(t.Notes, fmt.Sprintf("Read the pump's differential and the total flow too (order %d): expect %s, 95 %% band %s to %s; %s.", pr.Rank, u.diff(pr.Expect), u.diffNum(pr.Low), u.diff(pr.High), pr.Settles))
+		exp, lo, hi := u.diff(pr.Expect), u.diffNum(pr.Low), u.diff(pr.High)
+		if pr.Quantity != site.PumpDiff {
+			// A held differential: the total flow is what tells.
+			exp, lo, hi = "a total flow of "+u.flow(pr.Expect), u.flowNum(pr.Low), u.flow(pr.High)
+		}
+		t.Notes = append(t.Notes, fmt.Sprintf("Read the pump's differential and the total flow too (order %d): expect %s, 95 %% band %s to %s; %s.", pr.Rank, exp, lo, hi, pr.Settles))
 	}
 	if n := j.surveyNote(); n != "" {
 		t.Notes = append(t.Notes, n)
