@@ -126,6 +126,43 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 	return out
 }
 
+// hedgeIndexFindings states the confidence of each restriction found on
+// the plan's index path through the branch's own valve's test points alone
+// (indexOnTestPoints), which the plan neither holds nor hedges but sets
+// the pump for, with those test points weighed, as hedgeNotes does for the
+// hedged ones: the fit's confidence, the readings taken as right, times the
+// chance the test points read right. Its action is then a flow read
+// another way first: clearing a restriction that is not there changes
+// nothing, and the pump stays raised for it.
+func hedgeIndexFindings(j *job, plan *balance.Plan, hs []hedged) {
+	skip := map[string]bool{}
+	for _, id := range j.unconfirmed {
+		skip[id] = true
+	}
+	for _, h := range hs {
+		skip[h.ID] = true
+	}
+	for _, x := range indexOnTestPoints(j, plan, func(id string) bool { return skip[id] }) {
+		f := &j.Findings[x.finding]
+		if c := f.Confidence; c > 0 && x.w >= 0 && x.w <= 1 {
+			f.Confidence = c * (1 - x.w)
+			f.Evidence += fmt.Sprintf("; or its test points read %.0f %% low (a %.0f %% chance)", 100*math.Abs(x.o.b), 100*x.w)
+			f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, test points reading %.0f %% low say the same, and the pump is set for it as the index circuit", 100*math.Abs(x.o.b))
+			j.noteTestPointsLow(f.Branch, x.o.b)
+		}
+	}
+}
+
+// noteTestPointsLow records that branch id's restriction is found through
+// its own valve's test points alone, which reading low by the fraction b
+// would explain as well (job.tpLow).
+func (j *job) noteTestPointsLow(id string, b float64) {
+	if j.tpLow == nil {
+		j.tpLow = map[string]float64{}
+	}
+	j.tpLow[id] = math.Abs(b)
+}
+
 // tpOdds is branch i's two explanations of a restriction read through its
 // own valve's test points alone, as hedgeTestPoints weighs them.
 type tpOdd struct {
@@ -300,6 +337,7 @@ func hedgeNotes(j *job, hs []hedged) []string {
 				f.Confidence = c * (1 - h.Weight)
 				f.Evidence += fmt.Sprintf("; or its test points read %.0f %% low (a %.0f %% chance)", 100*math.Abs(h.Low), 100*h.Weight)
 			}
+			j.noteTestPointsLow(f.Branch, h.Low)
 			f.Action = fmt.Sprintf("read its flow with a clamp-on meter before anything else: only its valve's test points say it is restricted, and test points reading %.0f %% low say the same; its setting is planned between the two (%.0f %% of target if the restriction is real, %.0f %% if the test points read low) until a second instrument tells", 100*math.Abs(h.Low), 100*h.IfFault, 100*h.IfReadings)
 		}
 	}

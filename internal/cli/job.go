@@ -103,6 +103,12 @@ type job struct {
 	// hedged are the branches the plan was made on a resistance between
 	// two explanations (hedgeTestPoints, hedgeMeters).
 	hedged map[string]bool
+	// tpLow is, by branch ID, how low its valve's test points would read
+	// (as a fraction of the flow) if they, not a restriction, explain a
+	// restriction found through them alone (hedgeNotes,
+	// hedgeIndexFindings): the fix then starts with a flow read another
+	// way.
+	tpLow map[string]float64
 }
 
 // progress reports long steps on stderr when it is a terminal.
@@ -277,6 +283,7 @@ func runJob(ctx context.Context, l *loaded, opts *jobOptions, pr *progress, st *
 		plan.Warnings = append(plan.Warnings, fmt.Sprintf("%s reads as %.2g times its design resistance, but only through its own valve's test points: its setting is planned at design until a flow read another way (clamp-on) confirms it; if confirmed, re-plan with that reading", id, r))
 	}
 	plan.Warnings = append(plan.Warnings, hedgeNotes(j, hedges)...)
+	hedgeIndexFindings(j, plan, hedges)
 	likelyOff(j)
 	j.hedged = map[string]bool{}
 	for _, h := range hedges {

@@ -394,31 +394,11 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) (dec []float64, why 
 			risk[h.ID], weight[h.ID] = (1-h.Weight)*out(h.IfFault)*reach(h.ID, h.Fitted)+h.Weight*out(h.IfReadings), h.Weight
 		}
 	}
-	indep := map[string]bool{}
-	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
-	}
-	index := map[string]bool{}
-	for _, b := range plan.Branches {
-		index[b.ID] = b.OnIndex
-	}
-	for _, f := range j.Findings {
-		if f.Code != diagnose.Restricted && f.Code != diagnose.CannotReachDesign || !index[f.Branch] || indep[f.Branch] {
-			continue
-		}
-		if _, ok := risk[f.Branch]; ok {
-			continue
-		}
-		i, ok := m.Index(f.Branch)
-		if !ok || m.Branches[i].Valve == nil || m.Branches[i].Riser() {
-			continue
-		}
-		if o, ok := tpOdds(j, i); ok && o.wFault+o.wReads > 0 && o.b > -1 {
-			// The fit took the test points as right: read a flow factor
-			// 1+b, the branch passes about 1/(1+b) of what it planned.
-			w := o.wReads / (o.wFault + o.wReads)
-			risk[f.Branch], weight[f.Branch] = w*out(1/(1+o.b)), w
-		}
+	for _, x := range indexOnTestPoints(j, plan, func(id string) bool { _, ok := risk[id]; return ok }) {
+		// The fit took the test points as right: read a flow factor
+		// 1+b, the branch passes about 1/(1+b) of what it planned.
+		id := j.Findings[x.finding].Branch
+		risk[id], weight[id] = x.w*out(1/(1+x.o.b)), x.w
 	}
 	for _, b := range plan.Branches {
 		r := risk[b.ID]
@@ -563,4 +543,47 @@ func checkSetting(j *job, i int, b balance.BranchPlan, read []float64) (float64,
 	}
 	s = math.Max(lo, math.Min(hi, s))
 	return s, shareMoves(j, i, b, s, read)
+}
+
+// indexTP is a finding of a restriction on the plan's index path read
+// through the branch's own valve's test points alone: the finding's index
+// in job.Findings, and the branch's test points weighed (tpOdds), w the
+// chance they read off.
+type indexTP struct {
+	finding int
+	o       tpOdd
+	w       float64
+}
+
+// indexOnTestPoints lists the restrictions (or shortfalls of design) found
+// on the plan's index path through the branch's own valve's test points
+// alone, no flow read another way, which the plan neither holds nor
+// hedges (skip says which it does): the pump is set for them.
+func indexOnTestPoints(j *job, plan *balance.Plan, skip func(id string) bool) []indexTP {
+	if plan == nil || j.Cal == nil {
+		return nil
+	}
+	m := j.L.Model
+	indep := map[string]bool{}
+	for _, e := range j.Evidence {
+		indep[e.ID] = e.HasFlow
+	}
+	index := map[string]bool{}
+	for _, b := range plan.Branches {
+		index[b.ID] = b.OnIndex
+	}
+	var out []indexTP
+	for k, f := range j.Findings {
+		if f.Code != diagnose.Restricted && f.Code != diagnose.CannotReachDesign || !index[f.Branch] || indep[f.Branch] || skip(f.Branch) {
+			continue
+		}
+		i, ok := m.Index(f.Branch)
+		if !ok || m.Branches[i].Valve == nil || m.Branches[i].Riser() {
+			continue
+		}
+		if o, ok := tpOdds(j, i); ok && o.wFault+o.wReads > 0 && o.b > -1 {
+			out = append(out, indexTP{finding: k, o: o, w: o.wReads / (o.wFault + o.wReads)})
+		}
+	}
+	return out
 }

@@ -6,6 +6,7 @@ import (
 	"math"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -294,8 +295,9 @@ func TestTrimAnchorsDecided(t *testing.T) {
 // or they read low: the plan opens it for the restriction and sets the pump
 // for it, and neither holds nor hedges an index. Its reading at the new
 // setting tells the two apart and with them the pump (tpDecides), so it must
-// be the first reading ranked, saying so; unbiased, it is not ranked for
-// that.
+// be the first reading ranked, saying so; its finding must state its
+// confidence with the test points weighed and have its flow read another
+// way first, in the findings and the fixes; unbiased, none of that.
 func TestReadIndexFirst(t *testing.T) {
 	gen := func() *site.Site {
 		spec := synth.Spec{Branches: 12, Arrangement: site.DirectReturn, Seed: 3, Noise: 1, States: 1,
@@ -328,7 +330,7 @@ func TestReadIndexFirst(t *testing.T) {
 		}
 		return false
 	}
-	var id, out string
+	var id, out, stdout string
 	s := gen()
 	for _, b := range s.Branches {
 		// A valve found fully open stays so: read there again, its test
@@ -338,9 +340,9 @@ func TestReadIndexFirst(t *testing.T) {
 		} else if _, hi := v.Range(); b.Setting >= hi {
 			continue
 		}
-		o, _, _ := runBiased(t, gen(), b.ID, 0.8)
+		o, so, _ := runBiased(t, gen(), b.ID, 0.8)
 		if index(o) == b.ID && restricted(o, b.ID) {
-			id, out = b.ID, o
+			id, out, stdout = b.ID, o, so
 			break
 		}
 	}
@@ -351,11 +353,30 @@ func TestReadIndexFirst(t *testing.T) {
 	if where != id || !strings.Contains(settles, "tell a real restriction from themselves reading off") || !strings.Contains(settles, "and the pump") {
 		t.Errorf("first reading %s (%q), want the index %s, its test points at the new setting deciding the restriction and the pump", where, settles, id)
 	}
-	o, _, _ := runBiased(t, gen(), "", 1)
+	// Its finding states the fit's confidence with the test points
+	// weighed, names the other explanation, and has a flow read another
+	// way come first, in the findings and in the fixes.
+	for _, row := range readCSV(t, filepath.Join(out, "findings.csv"))[1:] {
+		if row[2] != id || row[1] != "restricted" && row[1] != "cannot-reach-design" {
+			continue
+		}
+		c, err := strconv.ParseFloat(strings.TrimSuffix(row[6], " %"), 64)
+		if err != nil || !(c > 0 && c < 100) || !strings.Contains(row[5], "or its test points read") ||
+			!strings.HasPrefix(row[7], "read its flow with a clamp-on meter before anything else") {
+			t.Errorf("%s's finding: confidence %q, evidence %q, action %q: want under 100 %% with its test points weighed, a clamp-on first", id, row[6], row[5], row[7])
+		}
+	}
+	if !strings.Contains(stdout, id+": first read its flow with a clamp-on meter") {
+		t.Errorf("the fixes do not have %s's flow read another way first:\n%s", id, stdout)
+	}
+	o, so, _ := runBiased(t, gen(), "", 1)
 	for _, row := range readCSV(t, filepath.Join(o, "read-next.csv"))[1:] {
 		if row[1] == id && strings.Contains(row[len(row)-1], "tell a real restriction") {
 			t.Errorf("unbiased, %s is ranked to tell a restriction from its test points: %s", id, row[len(row)-1])
 		}
+	}
+	if strings.Contains(so, "first read its flow with a clamp-on meter") {
+		t.Errorf("unbiased, a fix starts with a clamp-on reading:\n%s", so)
 	}
 	// Found fully open and planned so, the index learns nothing read again
 	// at its new setting: it is read once at a check setting instead, its

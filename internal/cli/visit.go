@@ -366,7 +366,13 @@ func (j *job) fixes(u display) []report.Fix {
 			if j.Cal != nil && i >= 0 {
 				ratio = j.Cal.Branches[i].Ratio
 			}
-			fx := add(f.Branch, fmt.Sprintf("clean the strainer, check that the isolating valves are fully open and the coil or terminal is not fouled (it passes water as if %.1f times its design resistance)", ratio))
+			clear := fmt.Sprintf("clean the strainer, check that the isolating valves are fully open and the coil or terminal is not fouled (it passes water as if %.1f times its design resistance)", ratio)
+			if low, ok := j.tpLow[f.Branch]; ok {
+				// Only its own test points say so: a flow read another
+				// way first, or the work may find nothing.
+				clear = fmt.Sprintf("first read its flow with a clamp-on meter: only its valve's test points say it is restricted, and test points reading %.0f %% low would say the same; if the clamp-on confirms it, %s", 100*low, clear)
+			}
+			fx := add(f.Branch, clear)
 			if r := j.Remedy[f.Branch]; r != nil {
 				fx.Saves = j.saving(r.Plan, u)
 				if i >= 0 {
