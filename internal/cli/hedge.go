@@ -57,10 +57,7 @@ func hedgeTestPoints(j *job, plan *balance.Plan, held []string) []hedged {
 		return nil
 	}
 	m := j.L.Model
-	indep := map[string]bool{}
-	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
-	}
+	indep := j.flowReadAnotherWay()
 	skip := map[string]bool{}
 	for _, id := range held {
 		skip[id] = true

@@ -526,10 +526,7 @@ func holdUnconfirmed(m *plant.Model, j *job) []string {
 	if j.Cal == nil {
 		return nil
 	}
-	indep, unread, ratio := map[string]bool{}, readByNothing(j.Evidence), holdRatio()
-	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
-	}
+	indep, unread, ratio := j.flowReadAnotherWay(), readByNothing(j.Evidence), holdRatio()
 	var held []string
 	isHeld := map[string]bool{} // held as a set: findings x held was quadratic
 	for k := range j.Findings {
@@ -831,4 +828,16 @@ func controllerEvidence(ctx context.Context, l *loaded, cal *calibrate.Calibrati
 		out = append(out, c)
 	}
 	return out, nil
+}
+
+// flowReadAnotherWay marks, by branch ID, the branches whose flow was read
+// by something other than their own valve's test points (a clamp-on or a
+// flow meter): the evidence a restriction found through the test points
+// alone lacks.
+func (j *job) flowReadAnotherWay() map[string]bool {
+	out := map[string]bool{}
+	for _, e := range j.Evidence {
+		out[e.ID] = e.HasFlow
+	}
+	return out
 }

@@ -40,10 +40,7 @@ func testPointVerdicts(ctx context.Context, j *job) (map[int]tpWeighed, error) {
 		return nil, nil
 	}
 	l, m := j.L, j.L.Model
-	indep := map[string]bool{}
-	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
-	}
+	indep := j.flowReadAnotherWay()
 	flagged := map[string]bool{}
 	for _, f := range j.Findings {
 		switch f.Code {
@@ -564,10 +561,7 @@ func indexOnTestPoints(j *job, plan *balance.Plan, skip func(id string) bool) []
 		return nil
 	}
 	m := j.L.Model
-	indep := map[string]bool{}
-	for _, e := range j.Evidence {
-		indep[e.ID] = e.HasFlow
-	}
+	indep := j.flowReadAnotherWay()
 	index := map[string]bool{}
 	for _, b := range plan.Branches {
 		index[b.ID] = b.OnIndex
