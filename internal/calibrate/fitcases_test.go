@@ -282,8 +282,8 @@ func TestFitBiasedMeter(t *testing.T) {
 	if !rf.Outlier && math.Abs(rf.Normalised) < 3 {
 		t.Errorf("the biased flow reading fits (normalised residual %.2f): want it doubted", rf.Normalised)
 	}
-	if !strings.Contains(rf.Why, "fit the model: this reading is doubted") {
-		t.Errorf("the biased reading's explanation %q does not say its branch's other readings fit and the reading is doubted", rf.Why)
+	if !strings.Contains(rf.Why, "standard uncertainties) fit the model: this reading is doubted") || strings.Contains(rf.Why, "-0.0") {
+		t.Errorf("the biased reading's explanation %q does not say its branch's other readings fit (in standard uncertainties, no -0.0) and the reading is doubted", rf.Why)
 	}
 	b := cal.Branches[3]
 	if math.Abs(math.Log(b.Ratio)) > 0.2 {
@@ -338,5 +338,19 @@ func TestFitMovesUnread(t *testing.T) {
 	}
 	if cal0.ReducedChiSquare < 10*cal.ReducedChiSquare && len(cal0.Outliers()) == 0 {
 		t.Errorf("the moved valves taken as found fit as well: chi-square %.3g against %.3g per degree of freedom", cal0.ReducedChiSquare, cal.ReducedChiSquare)
+	}
+}
+
+// TestSignedTenths: a residual in standard uncertainties to one decimal, its
+// sign shown, and one that rounds to zero never written -0.0 (the outputs of
+// an independent plant's run read "branch diff -0.0").
+func TestSignedTenths(t *testing.T) {
+	for _, c := range []struct {
+		v    float64
+		want string
+	}{{-0.04, "0.0"}, {0.04, "0.0"}, {0, "0.0"}, {-0.3, "-0.3"}, {1.26, "+1.3"}, {-56.44, "-56.4"}} {
+		if got := signedTenths(c.v); got != c.want {
+			t.Errorf("signedTenths(%g) = %q, want %q", c.v, got, c.want)
+		}
 	}
 }

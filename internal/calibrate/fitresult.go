@@ -354,7 +354,7 @@ func explain(rs []ReadingFit) {
 			if j == i || o.SameAs == r.Index || r.SameAs == o.Index {
 				continue
 			}
-			w := fmt.Sprintf("%s %+.1f", o.What, o.Normalised)
+			w := fmt.Sprintf("%s %s", o.What, signedTenths(o.Normalised))
 			if math.Abs(o.Normalised) <= 2 {
 				fit = append(fit, w)
 			} else if o.Normalised*r.Normalised > 0 || o.What != r.What {
@@ -365,9 +365,9 @@ func explain(rs []ReadingFit) {
 		case len(fit) == 0 && len(miss) == 0:
 			r.Why = head + "; nothing else reads " + r.Where + " in this state, so the reading cannot be checked against another: re-take it, or read the branch another way"
 		case len(miss) > 0 && len(fit) == 0:
-			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(miss, ", ") + ") miss the model too: they agree with each other, so the model around " + r.Where + " (its resistance, its valve, the header or the pump's boundary) is doubted before the reading"
+			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(miss, ", ") + " standard uncertainties) miss the model too: they agree with each other, so the model around " + r.Where + " (its resistance, its valve, the header or the pump's boundary) is doubted before the reading"
 		default:
-			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(fit, ", ") + ") fit the model: this reading is doubted (misread, wrong unit or test points, or a meter set up for another valve)"
+			r.Why = head + "; the other readings at " + r.Where + " (" + strings.Join(fit, ", ") + " standard uncertainties) fit the model: this reading is doubted (misread, wrong unit or test points, or a meter set up for another valve)"
 		}
 	}
 }
@@ -384,4 +384,13 @@ func quantity(q site.Quantity, v float64) string {
 		return fmt.Sprintf("%.1f %%", 100*v)
 	}
 	return fmt.Sprintf("%.3g kPa", v/1000)
+}
+
+// signedTenths writes v to one decimal with its sign, and a value that
+// rounds to zero as 0.0, never -0.0.
+func signedTenths(v float64) string {
+	if math.Abs(v) < 0.05 {
+		return "0.0"
+	}
+	return fmt.Sprintf("%+.1f", v)
 }
