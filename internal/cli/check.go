@@ -107,7 +107,7 @@ func printSummary(ios *IO, s *site.Site) {
 	for _, st := range sum.States {
 		line := fmt.Sprintf("  state %-20s %d readings", st.State, st.Readings)
 		if st.Moved > 0 {
-			line += fmt.Sprintf(", %d valve(s) set by the moves sheet", st.Moved)
+			line += ", " + countOf(st.Moved, "valve") + " set by the moves sheet"
 		}
 		if st.Pump != "" {
 			line += ", pump at " + st.Pump

@@ -369,7 +369,7 @@ func TestCheckStatePump(t *testing.T) {
 	}
 	for _, want := range []string{
 		"  state as-found             8 readings\n",
-		"  state after-change         3 readings, 1 valve(s) set by the moves sheet, pump at set point 55 kPa\n",
+		"  state after-change         3 readings, 1 valve set by the moves sheet, pump at set point 55 kPa\n",
 	} {
 		if !strings.Contains(out, want) {
 			t.Errorf("check output lacks %q:\n%s", want, out)

@@ -137,3 +137,11 @@ func (u display) head(p, rho float64) string {
 	ft := p / (rho * hydraulics.StandardGravity) / 0.3048 // NIST SP 811: 1 ft = 0.3048 m exactly
 	return fmt.Sprintf("%s, %.1f ft head", u.diff(p), ft)
 }
+
+// countOf writes n of a regular noun: "1 valve", "3 valves".
+func countOf(n int, noun string) string {
+	if n == 1 {
+		return "1 " + noun
+	}
+	return fmt.Sprintf("%d %ss", n, noun)
+}

@@ -398,7 +398,7 @@ func measuredSentence(s *site.Site) string {
 	for _, k := range order {
 		parts = append(parts, fmt.Sprintf("%d %s", kinds[k], k))
 	}
-	return fmt.Sprintf("%d readings in %d survey state(s): %s.", sum.Readings, len(sum.States), strings.Join(parts, ", "))
+	return fmt.Sprintf("%s in %s: %s.", countOf(sum.Readings, "reading"), countOf(len(sum.States), "survey state"), strings.Join(parts, ", "))
 }
 
 // round0 rounds x to a whole number without a negative zero, which %.0f

@@ -579,9 +579,9 @@ func (j *job) trimSummary(u display) []string {
 	case tp.Trimmed == 0:
 		out = append(out, "No valve needs a trim.")
 	case predicted > 0:
-		out = append(out, fmt.Sprintf("Trim %d valve(s) (below), %d of them on branches not read after setting: those follow the model fitted to every state (the pump and headers as now fitted), a prediction to prove by reading them; the model then puts %d of %d inside the tolerance.", tp.Trimmed, predicted, tp.InAfter, n))
+		out = append(out, fmt.Sprintf("Trim %s (below), %d of them on branches not read after setting: those follow the model fitted to every state (the pump and headers as now fitted), a prediction to prove by reading them; the model then puts %d of %d inside the tolerance.", countOf(tp.Trimmed, "valve"), predicted, tp.InAfter, n))
 	default:
-		out = append(out, fmt.Sprintf("Trim %d valve(s) (below); the model then puts %d of %d inside the tolerance.", tp.Trimmed, tp.InAfter, n))
+		out = append(out, fmt.Sprintf("Trim %s (below); the model then puts %d of %d inside the tolerance.", countOf(tp.Trimmed, "valve"), tp.InAfter, n))
 	}
 	var unread []string
 	for _, b := range tp.Branches {

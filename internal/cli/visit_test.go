@@ -386,3 +386,16 @@ func TestPlanNotesGrouped(t *testing.T) {
 		})
 	}
 }
+
+// TestCountOf: counts in the outputs agree with their noun ("1 valve",
+// "3 valves"), not "valve(s)".
+func TestCountOf(t *testing.T) {
+	for _, c := range []struct {
+		n          int
+		noun, want string
+	}{{0, "valve", "0 valves"}, {1, "valve", "1 valve"}, {2, "survey state", "2 survey states"}, {33, "reading", "33 readings"}} {
+		if got := countOf(c.n, c.noun); got != c.want {
+			t.Errorf("countOf(%d, %q) = %q, want %q", c.n, c.noun, got, c.want)
+		}
+	}
+}
