@@ -188,9 +188,10 @@ func (t *TrimPlan) State() plant.State {
 // plan's where that is more, when that differs by over half a per cent.
 // Then, over a few passes of the whole network, every branch read after
 // setting (TrimOptions.Read) that is predicted outside the inner part of the
-// tolerance (Inner of it) and whose 95 % band (its spread as left about the
-// pass's prediction) leaves out its target gets the setting that gives its
-// target at the differential it sees: its valve drops that differential less
+// tolerance (Inner of it) gets the setting that gives its
+// target at the differential it sees (with Read nil, every branch, if its
+// 95 % band as left, about the pass's prediction, also leaves out its
+// target): its valve drops that differential less
 // its fixed parts' drop at target, rounded to the handwheel mark whose flow
 // (square law) is nearest the target. With Replan so does every branch not
 // read that the pass puts outside Inner, if the model put it inside the
@@ -335,15 +336,22 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			if b.Valve == nil || b.Riser() || !(target[i] > 0) {
 				continue
 			}
-			// Trimmed only when it is predicted beyond the inner band and
-			// its band as left (about the pass's prediction) leaves out
-			// the target: a branch the readings cannot place off target
-			// is read again first, not turned on the model's guess. With
-			// Replan, one not read is moved on the model's prediction
-			// alone when that is beyond the inner band.
+			// Trimmed when it is predicted beyond the inner band. A branch
+			// read after setting is trimmed on that alone: left, its
+			// expected squared departure is its prediction's square plus
+			// its variance; trimmed to target, that variance and the
+			// mark's resolution (the inner band), so the band's width
+			// does not enter. Where the caller does not say which
+			// branches were read (Read nil) the band as left (about the
+			// pass's prediction) must also leave out the target: a branch
+			// the readings cannot place off target is read again first,
+			// not turned on the model's guess. With Replan, one not read
+			// is moved on the model's prediction alone when that is
+			// beyond the inner band.
 			r := sol.Flow(i) / target[i]
 			read := o.Read == nil || i < len(o.Read) && o.Read[i]
-			out := !in(r, o.Inner) && !(r*math.Exp(-k*sdL[i]) <= 1 && r*math.Exp(k*sdL[i]) >= 1)
+			placed := o.Read != nil && read || !(r*math.Exp(-k*sdL[i]) <= 1 && r*math.Exp(k*sdL[i]) >= 1)
+			out := !in(r, o.Inner) && placed
 			// An unread branch the model puts outside the tolerance as
 			// left is read first even so: a prediction that far from what
 			// the plan expected is as likely the model's error (a meter
