@@ -213,3 +213,57 @@ func TestHedgeMeter(t *testing.T) {
 		}
 	})
 }
+
+// TestReadLoosePlug: a valve found passing what another mark of its
+// handwheel would (the fit's set elsewhere), read at one setting, is either
+// off its mark (it follows its table from there) or has a plug loose on its
+// spindle (it stays where it was found). Its reading at the new setting
+// tells the two apart, and the ranking of readings after setting says so;
+// a valve on its mark is not ranked for it, and the valve's finding tells
+// the technician how to see a loose plug.
+func TestReadLoosePlug(t *testing.T) {
+	opts := &jobOptions{Scale: 1, Rounding: "smart", Thresholds: diagnose.DefaultThresholds()}
+	for _, tc := range []struct {
+		name  string
+		kv    float64
+		loose bool
+	}{
+		{"found set elsewhere", 0.45, true},
+		{"on its mark", 1, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			j, err := runJob(context.Background(), meterSite(t, 1, tc.kv, 1, true), opts, &progress{w: io.Discard}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if h := j.Cal.Branches[3].Valve.Hypothesis; (h == calibrate.SetElsewhere) != tc.loose {
+				t.Fatalf("construction: b03's valve %v", h)
+			}
+			if j.Reads == nil {
+				t.Fatal("no readings ranked")
+			}
+			ranked := false
+			for _, c := range j.Reads.Readings {
+				if strings.Contains(c.Settles, "plug loose on its spindle") {
+					if c.Where != "b03" {
+						t.Errorf("%s ranked for a loose plug: %s", c.Where, c.Settles)
+					}
+					ranked = true
+				}
+			}
+			if ranked != tc.loose {
+				t.Errorf("b03 ranked to tell a loose plug %v, want %v:\n%+v", ranked, tc.loose, j.Reads.Readings)
+			}
+			if !tc.loose {
+				return
+			}
+			said := false
+			for _, f := range j.Findings {
+				said = said || f.Branch == "b03" && f.Code == diagnose.ValveMisSet && strings.Contains(f.Action, "if it does not change, the plug is loose")
+			}
+			if !said {
+				t.Errorf("b03's finding does not say how to see a loose plug: %+v", j.Findings)
+			}
+		})
+	}
+}

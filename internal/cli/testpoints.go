@@ -397,6 +397,25 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) (dec []float64, why 
 		id := j.Findings[x.finding].Branch
 		risk[id], weight[id] = x.w*out(1/(1+x.o.b)), x.w
 	}
+	// A valve found set elsewhere than its handwheel says, read at one
+	// setting: a slipped indicator (the plan's view: it follows its table
+	// from its true mark) or a plug loose on its spindle, which stays
+	// where it was found whatever the handwheel does. Its reading at the
+	// new setting tells the two apart; under a loose plug the branch
+	// keeps what it passed as found.
+	loose := map[string]bool{}
+	for _, b := range plan.Branches {
+		i, ok := m.Index(b.ID)
+		if _, done := risk[b.ID]; !ok || done || i >= len(j.Cal.Branches) || j.Cal.Branches[i].Valve.Hypothesis != calibrate.SetElsewhere || m.Branches[i].Valve == nil || math.IsNaN(b.New) {
+			continue
+		}
+		if meterHedged(hedges, b.ID) || len(readSettings(m, i)) != 1 {
+			continue
+		}
+		if f := looseFlow(j, i, b, readSettings(m, i)[0]); !math.IsNaN(f) {
+			risk[b.ID], weight[b.ID], loose[b.ID] = plugLoose*out(f), plugLoose, true
+		}
+	}
 	for _, b := range plan.Branches {
 		r := risk[b.ID]
 		i, ok := m.Index(b.ID)
@@ -428,11 +447,42 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) (dec []float64, why 
 			what = fmt.Sprintf("read once with its valve at %s (a check: record it as a state of its own, then set the valve back to %s), its test points at a second setting", settingText(check, b.Unit), settingText(b.New, b.Unit))
 		}
 		why[i] = fmt.Sprintf("%s tell a real restriction from themselves reading off (%.0f %% chance of the latter now): the plan cannot, and a trim then sets it", what, 100*weight[b.ID])
+		if loose[b.ID] {
+			why[i] = fmt.Sprintf("found passing what its handwheel's mark does not: read at its new setting, its flow tells a slipped indicator (it follows the handwheel) from a plug loose on its spindle (%.0f %% chance now; it keeps what it passed as found, and the others and the pump must allow for it)", 100*weight[b.ID])
+		}
 		if b.OnIndex {
 			why[i] += " and the pump"
 		}
 	}
 	return dec, why, at
+}
+
+// plugLoose is the chance, before a second setting is read, that a valve
+// found passing what another mark of its handwheel would (the fit's
+// SetElsewhere) has a plug loose on its spindle rather than a slipped or
+// misread indicator: the two as likely (common practice, no source).
+const plugLoose = 0.5
+
+// meterHedged reports whether the plan weighed branch id's valve set
+// elsewhere against its flow meter reading off (hedgeMeters).
+func meterHedged(hs []hedged, id string) bool {
+	return slices.ContainsFunc(hs, func(h hedged) bool { return h.ID == id && h.Meter })
+}
+
+// looseFlow is branch i's flow over its target at the plan (b) if its plug
+// stays where it was found (at setting found, with the fitted offset from
+// its mark): its valve keeps that Kv at the plan's branch differential.
+// NaN where it cannot be worked out.
+func looseFlow(j *job, i int, b balance.BranchPlan, found float64) float64 {
+	m := j.L.Model
+	fixed := m.FixedElement(i, 1)
+	v := m.ValveElement(i, found, j.Cal.Params.KvScale[i])
+	if fixed == nil || v == nil || !(b.Target > 0) || !(b.BranchDiff > 0) {
+		return math.NaN()
+	}
+	c := balance.HedgeCase{Rest: func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }, Diff: b.BranchDiff, Target: b.Target}
+	d, _ := v.Drop(b.Target, m.Fluid)
+	return c.FlowAt(j.Params.Resistance[i], d)
 }
 
 // recovers is the share of branch i's shortfall under a restriction (its

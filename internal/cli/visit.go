@@ -408,8 +408,8 @@ func (j *job) fixes(u display) []report.Fix {
 					what = fmt.Sprintf("the valve is recorded at %g%s, but the readings say it passes water as if at about %.1f%s", vf.Recorded[0], unit, vf.Implied[0], unit)
 				}
 			}
-			fx := add(f.Branch, what+": check the handwheel's indicator and memory stop, and that the valve fitted is the model on the sheet")
-			fx.ReadAfter = "the settings in step 4 assume the valve follows its table once read correctly; read its flow after setting (step 5)"
+			fx := add(f.Branch, what+": move its handwheel a turn and read the flow again (a plug loose from its spindle does not change it: repair it), then check the handwheel's indicator and memory stop, and that the valve fitted is the model on the sheet")
+			fx.ReadAfter = "the settings in step 4 assume the valve follows its table once read correctly; read its flow after setting (step 5): unchanged from as found, its plug is loose"
 		case diagnose.Free:
 			add(f.Branch, "it passes more water than its design allows: look for an open bypass or a terminal that differs from the schedule")
 		}

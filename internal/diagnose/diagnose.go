@@ -285,9 +285,9 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					ev = fmt.Sprintf("recorded at %g %s, the readings imply about %.1f %s (chi-square lower by %.1f)", v.Recorded, v.Unit, v.Implied, v.Unit, v.DeltaChi2)
 				}
 				out = append(out, Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: conf,
-					Message:  "the valve does not sit at its recorded setting, or a different valve model is fitted",
+					Message:  "the valve passes water as if at another setting than recorded: its handwheel or indicator off its mark, a plug loose from its spindle, or a different valve model fitted",
 					Evidence: ev,
-					Action:   "check the handwheel's memory stop and the valve model on site"})
+					Action:   "move the handwheel a turn and read the flow again: if it does not change, the plug is loose (repair it before balancing); else check the handwheel's memory stop and the valve model on site"})
 			}
 		}
 		if !math.IsNaN(b.OpenFlow) && b.Target > 0 && b.OpenFlow < (1-t.ShortFraction)*b.Target {
