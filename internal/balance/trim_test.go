@@ -66,8 +66,8 @@ func TestTrimOneBranch(t *testing.T) {
 		// reading after setting beyond the tolerance from that doubted
 		// (TrimOptions.Expected, Surprise).
 		expect bool
-		// wide: the fit hardly knows the off branch's resistance (sd 1 in ln)
-		// (its band as left then takes in its target).
+		// wide: the fit hardly knows the off branch's resistance (sd 1
+		// in ln), so its band as left takes in its target.
 		wide bool
 	}{
 		{name: "one branch fouled after setting", ratio: 4, trimmed: 1, offIn: true, verdicts: true},
