@@ -451,7 +451,11 @@ func tpDecides(j *job, plan *balance.Plan, hedges []hedged) (dec []float64, why 
 			why[i] += " and the pump"
 		}
 		if loose[b.ID] {
-			why[i] = fmt.Sprintf("found passing what its handwheel's mark does not: read at its new setting, its flow tells a slipped indicator (it follows the handwheel) from a plug loose on its spindle (%.0f %% chance now; it keeps what it passed as found, and the others and the pump must allow for it)", 100*weight[b.ID])
+			at := "read at its new setting"
+			if !math.IsNaN(check) {
+				at = fmt.Sprintf("read once with its valve at %s (a check: record it as a state of its own, then set the valve back to %s)", settingText(check, b.Unit), settingText(b.New, b.Unit))
+			}
+			why[i] = fmt.Sprintf("found passing what its handwheel's mark does not: %s, its flow tells a slipped indicator (it follows the handwheel) from a plug loose on its spindle (%.0f %% chance now; it keeps what it passed as found, and the others and the pump must allow for it)", at, 100*weight[b.ID])
 		}
 	}
 	return dec, why, at
