@@ -479,14 +479,24 @@ func meterHedged(hs []hedged, id string) bool {
 // NaN where it cannot be worked out.
 func looseFlow(j *job, i int, b balance.BranchPlan, found float64) float64 {
 	m := j.L.Model
-	fixed := m.FixedElement(i, 1)
+	c, ok := planCase(m, i, b)
 	v := m.ValveElement(i, found, j.Cal.Params.KvScale[i])
-	if fixed == nil || v == nil || !(b.Target > 0) || !(b.BranchDiff > 0) {
+	if !ok || v == nil {
 		return math.NaN()
 	}
-	c := balance.HedgeCase{Rest: func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }, Diff: b.BranchDiff, Target: b.Target}
 	d, _ := v.Drop(b.Target, m.Fluid)
 	return c.FlowAt(j.Params.Resistance[i], d)
+}
+
+// planCase is branch i at the plan (b) as a balance.HedgeCase: its fixed
+// parts at design against the plan's branch differential and its target;
+// false where it has no fixed parts, target or differential.
+func planCase(m *plant.Model, i int, b balance.BranchPlan) (balance.HedgeCase, bool) {
+	fixed := m.FixedElement(i, 1)
+	if fixed == nil || !(b.Target > 0) || !(b.BranchDiff > 0) {
+		return balance.HedgeCase{}, false
+	}
+	return balance.HedgeCase{Rest: func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }, Diff: b.BranchDiff, Target: b.Target}, true
 }
 
 // recovers is the share of branch i's shortfall under a restriction (its
@@ -496,14 +506,13 @@ func looseFlow(j *job, i int, b balance.BranchPlan, found float64) float64 {
 // where opening gains nothing; 1 where it cannot be worked out.
 func recovers(j *job, i int, b balance.BranchPlan, mult float64) float64 {
 	m := j.L.Model
-	fixed := m.FixedElement(i, 1)
+	c, ok := planCase(m, i, b)
 	_, hi := m.Branches[i].Valve.Range()
 	open := m.ValveElement(i, hi, j.Params.KvScale[i])
 	set := m.ValveElement(i, b.New, j.Params.KvScale[i])
-	if fixed == nil || open == nil || set == nil || !(b.Target > 0) || !(b.BranchDiff > 0) {
+	if !ok || open == nil || set == nil {
 		return 1
 	}
-	c := balance.HedgeCase{Rest: func(q float64) (float64, float64) { return fixed.Drop(q, m.Fluid) }, Diff: b.BranchDiff, Target: b.Target}
 	dSet, _ := set.Drop(b.Target, m.Fluid)
 	dOpen, _ := open.Drop(b.Target, m.Fluid)
 	now := c.FlowAt(mult, dSet)
