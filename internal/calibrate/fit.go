@@ -161,6 +161,13 @@ type FitOptions struct {
 	MatrixFreeAbove int
 	// NoHypotheses skips the valve hypothesis tests.
 	NoHypotheses bool
+	// TakeFree takes a branch read at its valve's test points alone as
+	// free as it reads, the valve on its table, where by default a branch
+	// so read far freer than designed is taken as its valve off its mark
+	// or its test points reading high (weakValves): for a site whose
+	// design resistances are known to run well above the plant's, or a
+	// generator that makes such branches.
+	TakeFree bool
 	// Workers is the number of goroutines of the matrix-free fit's
 	// independent work (its variance probes, the local Jacobian's solves,
 	// the block preconditioner's sums); 0: runtime.GOMAXPROCS(0). The
@@ -302,7 +309,11 @@ type ValveVerdict struct {
 	// readings tell them apart or it was not weighed); MeterRatio is the
 	// branch's resistance over design under it. See weighMeters.
 	MeterWeight, MeterRatio float64
-	Note                    string
+	// Assumed marks a hypothesis taken on the prior, the readings not
+	// telling it from FollowsTable: a valve read at its test points alone
+	// whose branch would otherwise be far freer than designed (weakValves).
+	Assumed bool
+	Note    string
 }
 
 // BranchFit is the fit of one branch.
