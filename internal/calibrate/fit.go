@@ -312,8 +312,11 @@ type ValveVerdict struct {
 	// Assumed marks a hypothesis taken on the prior, the readings not
 	// telling it from FollowsTable: a valve read at its test points alone
 	// whose branch would otherwise be far freer than designed (weakValves).
-	Assumed bool
-	Note    string
+	// TableRatio is then that branch's resistance over design with the
+	// valve taken on its table at its recorded setting (NaN otherwise).
+	Assumed    bool
+	TableRatio float64
+	Note       string
 }
 
 // BranchFit is the fit of one branch.
@@ -552,6 +555,7 @@ func fit(ctx context.Context, m *plant.Model, opt *FitOptions, exactLocal bool) 
 	nan := math.NaN()
 	for i := range verdicts {
 		verdicts[i].Score = [4]float64{nan, nan, nan, nan}
+		verdicts[i].TableRatio = nan
 		verdicts[i].ChiSquare = verdicts[i].Score
 	}
 	fin := base

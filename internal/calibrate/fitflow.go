@@ -201,9 +201,9 @@ func (su *setup) weakValves(ctx context.Context, base *fitRun, verdicts []ValveV
 		v.Hypothesis = SetElsewhere
 		v.DeltaChiSquare, v.DeltaScore = gain, gain
 		if !strained {
-			v.Assumed = true
+			v.Assumed, v.TableRatio = true, math.Exp(base.res.X[p.rIdx[i]])
 			v.DeltaChiSquare, v.DeltaScore = -rise, -rise
-			v.Note = fmt.Sprintf("read through its test points alone, which cannot tell the valve from its branch; taken at its recorded setting its branch would be %.2g times its design resistance, which no fault makes: valve taken as set elsewhere (or its test points reading high), its branch near design (the readings' chi-square higher by %.1f)", math.Exp(base.res.X[p.rIdx[i]]), rise)
+			v.Note = fmt.Sprintf("read through its test points alone, which cannot tell the valve from its branch; taken at its recorded setting its branch would be %.2g times its design resistance, which no fault makes: valve taken as set elsewhere (or its test points reading high), its branch near design (the readings' chi-square higher by %.1f)", v.TableRatio, rise)
 			continue
 		}
 		v.Note = fmt.Sprintf("read through its test points alone, which cannot tell the valve from its branch; taken at its recorded setting its branch passed far more than the total flow at the pump allows (which the pump's differential and speed confirm on its curve): valve taken as set elsewhere, its branch near design (the total flow's chi-square lower by %.1f)", gain)

@@ -736,7 +736,7 @@ func valveEvidence(c *calibrate.Calibration, i int) *diagnose.Valve {
 	default:
 		return nil
 	}
-	out := &diagnose.Valve{Hypothesis: h, DeltaChi2: v.DeltaChiSquare, Recorded: math.NaN(), Implied: math.NaN()}
+	out := &diagnose.Valve{Hypothesis: h, DeltaChi2: v.DeltaChiSquare, Recorded: math.NaN(), Implied: math.NaN(), Assumed: v.Assumed, TableRatio: v.TableRatio}
 	if len(v.Recorded) > 0 {
 		out.Recorded = v.Recorded[0]
 	}

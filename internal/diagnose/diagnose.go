@@ -181,6 +181,12 @@ type Valve struct {
 	Recorded   float64 // setting recorded on the sheets
 	Implied    float64 // setting the data imply (NaN if none)
 	Unit       string
+	// Assumed marks "set elsewhere" taken on the prior, the readings
+	// not telling it from the valve's table: read at its test points
+	// alone, its branch would be TableRatio times its design resistance
+	// with the valve on its table, far freer than any fault makes it.
+	Assumed    bool
+	TableRatio float64
 }
 
 // Reading is the evidence about one reading.
@@ -280,6 +286,20 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					Evidence: fmt.Sprintf("one fixed Kv explains the readings better than the valve's table (chi-square lower by %.1f)", v.DeltaChi2),
 					Action:   "free or replace the valve before balancing; re-read after moving it"})
 			case "set elsewhere":
+				if v.Assumed {
+					// Its readings say the same either way; the
+					// explanations are weighed by what is common, so no
+					// confidence is quoted.
+					ev := fmt.Sprintf("read at its own valve's test points alone: with the valve at its recorded setting the branch would be %.2g x design, freer than any fault makes a branch; taken as set elsewhere", v.TableRatio)
+					if !math.IsNaN(v.Implied) {
+						ev += fmt.Sprintf(" (recorded at %g %s, about %.1f %s), its branch near design", v.Recorded, v.Unit, v.Implied, v.Unit)
+					}
+					out = append(out, Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: math.NaN(),
+						Message:  "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, an open bypass, or else its own valve's test points reading high, which alone read its flow",
+						Evidence: ev,
+						Action:   "read its flow with a clamp-on meter first: if that agrees with the test points, move the handwheel a turn and read the flow again; if it does not change, the plug is loose (repair it before balancing); then check for an open bypass"})
+					break
+				}
 				ev := fmt.Sprintf("the readings fit the valve's table at a different opening (chi-square lower by %.1f)", v.DeltaChi2)
 				if !math.IsNaN(v.Implied) {
 					ev = fmt.Sprintf("recorded at %g %s, the readings imply about %.1f %s (chi-square lower by %.1f)", v.Recorded, v.Unit, v.Implied, v.Unit, v.DeltaChi2)

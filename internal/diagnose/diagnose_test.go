@@ -133,3 +133,35 @@ func TestOrderBySeverity(t *testing.T) {
 		t.Fatalf("Check order = %+v, want the fault before the info", fs)
 	}
 }
+
+// TestCheckAssumedElsewhere: a valve the fit took as set elsewhere on the
+// prior alone (read at its test points alone, its branch otherwise far
+// freer than designed) is a mis-set valve whose evidence is the ratio the
+// table would give, with no confidence quoted (its readings say the same
+// either way), its test points named as the other explanation and a
+// clamp-on asked for first; one found so by its readings keeps its
+// chi-square and confidence.
+func TestCheckAssumedElsewhere(t *testing.T) {
+	for _, tc := range []struct {
+		name    string
+		assumed bool
+	}{{"on the prior", true}, {"by its readings", false}} {
+		t.Run(tc.name, func(t *testing.T) {
+			b := Branch{ID: "x", Ratio: 1, LogSD: 0.69, Determined: true, OpenFlow: math.NaN(), HasValve: true, TestPoints: true,
+				Valve: &Valve{Hypothesis: "set elsewhere", DeltaChi2: 12, Recorded: 100, Implied: 87.1, Unit: "%", Assumed: tc.assumed, TableRatio: 0.43}}
+			var f *Finding
+			for _, x := range Check([]Branch{b}, nil, Thresholds{}) {
+				if x.Code == ValveMisSet {
+					f = &x
+				}
+			}
+			if f == nil {
+				t.Fatalf("no %v finding", ValveMisSet)
+			}
+			named := strings.Contains(f.Message, "test points reading high") && strings.Contains(f.Action, "clamp-on") && strings.Contains(f.Evidence, "0.43 x design")
+			if named != tc.assumed || math.IsNaN(f.Confidence) != tc.assumed {
+				t.Errorf("test points and table ratio named %v, confidence %v: want named %v, NaN %v (%q / %q / %q)", named, f.Confidence, tc.assumed, tc.assumed, f.Message, f.Evidence, f.Action)
+			}
+		})
+	}
+}
