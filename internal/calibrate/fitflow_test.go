@@ -6,6 +6,7 @@ import (
 	"slices"
 	"testing"
 
+	"flowset/internal/plant"
 	"flowset/internal/site"
 )
 
@@ -38,32 +39,10 @@ import (
 // earlier behaviour).
 func TestFitTotalFlowWeakValves(t *testing.T) {
 	ctx := context.Background()
-	nan := math.NaN()
-	hi := testValve.Settings[len(testValve.Settings)-1]
 	build := func(t *testing.T, seized []int, kvFraction, pumpDiffFactor float64) (*Calibration, *site.Site) {
 		t.Helper()
-		s := newPlantSite(t, plantSpec{branches: 16, arrangement: site.DirectReturn, seed: 23})
-		for i := range s.Branches {
-			s.Branches[i].Setting = hi
-		}
-		for i, b := range s.Branches {
-			if slices.Contains(seized, i) {
-				read(s, "as-found", b.ID, site.ValveDiff, "manometer", nan)
-				read(s, "as-found", b.ID, site.Flow, "valve-meter", nan)
-				read(s, "as-found", b.ID, site.BranchDiff, "manometer", nan)
-				continue
-			}
-			readBranch(s, "as-found", b.ID, "clamp-on", true)
-		}
-		read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
-		read(s, "as-found", site.AtPump, site.Speed, "pump-display", nan)
-		read(s, "as-found", site.AtPump, site.TotalFlow, "clamp-on", nan)
-		m := mustModel(t, s)
-		tr := newTruth(m)
-		for _, k := range seized {
-			tr.stuck[k] = settingFor(t, m.Branches[k].Valve, hi, kvFraction)
-		}
-		simulate(t, m, tr, nil, 1) // noise-free, at the stated sds
+		m := weakValveSite(t, seized, 0, kvFraction)
+		s := m.Site
 		s.Readings[readingAt(t, s, site.AtPump, site.PumpDiff, "manometer")].Value *= pumpDiffFactor
 		cal, err := Fit(ctx, m, nil)
 		if err != nil {
@@ -128,8 +107,6 @@ func TestFitTotalFlowWeakValves(t *testing.T) {
 // multiplier more than 2 % off.
 func TestFitWeakValvePartialSurvey(t *testing.T) {
 	ctx := context.Background()
-	nan := math.NaN()
-	hi := testValve.Settings[len(testValve.Settings)-1]
 	for _, tc := range []struct {
 		name       string
 		seized     int
@@ -139,28 +116,7 @@ func TestFitWeakValvePartialSurvey(t *testing.T) {
 		{"a far branch at 0.6 of its Kv", 12, 0.6},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			s := newPlantSite(t, plantSpec{branches: 16, arrangement: site.DirectReturn, seed: 23})
-			for i := range s.Branches {
-				s.Branches[i].Setting = hi
-			}
-			for i, b := range s.Branches {
-				switch {
-				case i == tc.seized:
-					read(s, "as-found", b.ID, site.ValveDiff, "manometer", nan)
-					read(s, "as-found", b.ID, site.Flow, "valve-meter", nan)
-					read(s, "as-found", b.ID, site.BranchDiff, "manometer", nan)
-				case i >= 8:
-					readBranch(s, "as-found", b.ID, "clamp-on", true)
-				}
-			}
-			read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
-			read(s, "as-found", site.AtPump, site.Speed, "pump-display", nan)
-			read(s, "as-found", site.AtPump, site.TotalFlow, "clamp-on", nan)
-			m := mustModel(t, s)
-			tr := newTruth(m)
-			tr.stuck[tc.seized] = settingFor(t, m.Branches[tc.seized].Valve, hi, tc.kvFraction)
-			simulate(t, m, tr, nil, 1)
-
+			m := weakValveSite(t, []int{tc.seized}, 8, tc.kvFraction)
 			cal, err := Fit(ctx, m, nil)
 			if err != nil {
 				t.Fatal(err)
@@ -187,4 +143,44 @@ func TestFitWeakValvePartialSurvey(t *testing.T) {
 			t.Logf("header %.4f (TakeFree %.4f), pump %.4f (%.4f); %s at %.3g (%.3g)", cal.Header.Ratio, took.Header.Ratio, cal.Pump.Ratio, took.Pump.Ratio, b.ID, b.Ratio, tb.Ratio)
 		})
 	}
+}
+
+// weakValveSite is the plant of TestFitTotalFlowWeakValves: as designed
+// (every branch at its design resistance, the headers as designed, the
+// pump exactly on its curve), every valve recorded wide open, those of
+// seized holding kvFraction of that setting's Kv and read through their
+// test points alone (a valve differential and the valve meter's flow for
+// it: one measurement) and their branch differential; the others from
+// branch readFrom on by a clamp-on flow, the valve differential and the
+// branch differential, those before it not at all; the pump by its
+// differential, its speed and a clamp-on total flow. The readings are
+// simulated noise-free at their stated sds.
+func weakValveSite(t *testing.T, seized []int, readFrom int, kvFraction float64) *plant.Model {
+	t.Helper()
+	nan := math.NaN()
+	hi := testValve.Settings[len(testValve.Settings)-1]
+	s := newPlantSite(t, plantSpec{branches: 16, arrangement: site.DirectReturn, seed: 23})
+	for i := range s.Branches {
+		s.Branches[i].Setting = hi
+	}
+	for i, b := range s.Branches {
+		switch {
+		case slices.Contains(seized, i):
+			read(s, "as-found", b.ID, site.ValveDiff, "manometer", nan)
+			read(s, "as-found", b.ID, site.Flow, "valve-meter", nan)
+			read(s, "as-found", b.ID, site.BranchDiff, "manometer", nan)
+		case i >= readFrom:
+			readBranch(s, "as-found", b.ID, "clamp-on", true)
+		}
+	}
+	read(s, "as-found", site.AtPump, site.PumpDiff, "manometer", nan)
+	read(s, "as-found", site.AtPump, site.Speed, "pump-display", nan)
+	read(s, "as-found", site.AtPump, site.TotalFlow, "clamp-on", nan)
+	m := mustModel(t, s)
+	tr := newTruth(m)
+	for _, k := range seized {
+		tr.stuck[k] = settingFor(t, m.Branches[k].Valve, hi, kvFraction)
+	}
+	simulate(t, m, tr, nil, 1)
+	return m
 }
