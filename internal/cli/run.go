@@ -497,7 +497,7 @@ func printFit(w io.Writer, j *job, sheets bool) {
 				ratio = fmt.Sprintf("%.2f (%.2f-%.2f)", bf.Ratio, bf.Lo, bf.Hi)
 			}
 			if b.Valve != nil {
-				valve = bf.Valve.Hypothesis.String()
+				valve = valveWord(bf.Valve)
 			}
 			if bf.Held {
 				valve = heldWord(&bf)

@@ -272,7 +272,7 @@ func (j *job) calibrationOut(generated string) calibrationJSON {
 	for i, b := range c.Branches {
 		out.Branches = append(out.Branches, branchFitJSON{ID: b.ID, Fitted: b.Fitted, Ratio: num(b.Ratio), Lo95: num(b.Lo), Hi95: num(b.Hi),
 			SDLn: num(b.SD), Determined: b.Determined, KvFitted: b.KvFitted, KvScale: num(b.KvScale), KvLo95: num(b.KvLo), KvHi95: num(b.KvHi),
-			Valve: b.Valve.Hypothesis.String(), Flags: j.flagsOf(b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
+			Valve: valveWord(b.Valve), Flags: j.flagsOf(b.ID), FlowAsFound: num(j.Before.Flow(i) * 1000)})
 		if b.Held {
 			out.Branches[len(out.Branches)-1].Valve = heldWord(&c.Branches[i])
 		}
@@ -307,7 +307,7 @@ func (j *job) fitRows() ([]string, [][]string) {
 				r[4] = yesNo(bf.Determined)
 			}
 			if b.Valve != nil {
-				r[5] = bf.Valve.Hypothesis.String()
+				r[5] = valveWord(bf.Valve)
 			}
 			if bf.Held {
 				r[5] = heldWord(&bf)
@@ -382,6 +382,17 @@ func yesNo(b bool) string {
 		return "yes"
 	}
 	return "no"
+}
+
+// valveWord says what the fit found of a valve: its hypothesis, and where
+// that was taken on the prior rather than tested by the readings (a valve
+// read at its test points alone whose branch would otherwise be far freer
+// than designed), that it was assumed.
+func valveWord(v calibrate.ValveVerdict) string {
+	if v.Assumed {
+		return v.Hypothesis.String() + " (assumed: its test points alone cannot tell)"
+	}
+	return v.Hypothesis.String()
 }
 
 // heldWord says what the fit found of a pressure-independent valve: whether
