@@ -13,6 +13,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"flowset/internal/calibrate"
 	"flowset/internal/report"
 	"flowset/internal/site"
 	"flowset/surveys"
@@ -565,7 +566,10 @@ func (j *job) settle() {
 
 // flowRead is the flow read on branch id in the as-found state: a clamp-on
 // or other independent reading first, else the valve meter's; false when the
-// survey read none.
+// survey read none. A valve meter's flow at a valve the fit finds off its
+// table (set elsewhere, or holding one Kv) is not a flow: the meter turned
+// its differential into one with the table at the recorded setting, so the
+// model's flow is shown for it instead.
 func (j *job) flowRead(id string) (float64, bool) {
 	if j.flowsRead == nil {
 		j.flowsRead = map[string]float64{}
@@ -573,6 +577,9 @@ func (j *job) flowRead(id string) (float64, bool) {
 		for _, ri := range j.Before.State.Readings {
 			r := j.L.Site.Readings[ri]
 			if !r.What.IsFlow() || clamp[r.Where] {
+				continue
+			}
+			if r.Instrument == "valve-meter" && j.offTable(r.Where) {
 				continue
 			}
 			if r.Instrument != "valve-meter" {
@@ -587,6 +594,17 @@ func (j *job) flowRead(id string) (float64, bool) {
 	}
 	q, ok := j.flowsRead[id]
 	return q, ok
+}
+
+// offTable reports whether the fit finds branch id's valve off its table at
+// its recorded settings.
+func (j *job) offTable(id string) bool {
+	i, ok := j.L.Model.Index(id)
+	if j.Cal == nil || !ok || i >= len(j.Cal.Branches) {
+		return false
+	}
+	h := j.Cal.Branches[i].Valve.Hypothesis
+	return h == calibrate.SetElsewhere || h == calibrate.HoldsOneKv
 }
 
 // printJSON prints the job's result as one JSON document on w: the fit
