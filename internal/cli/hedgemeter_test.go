@@ -220,7 +220,8 @@ func TestHedgeMeter(t *testing.T) {
 // spindle (it stays where it was found). Its reading at the new setting
 // tells the two apart, and the ranking of readings after setting says so;
 // a valve on its mark is not ranked for it, and the valve's finding tells
-// the technician how to see a loose plug.
+// the technician how to see a loose plug. Its flow as found, were it read
+// by its valve meter, is the model's where the valve is found elsewhere.
 func TestReadLoosePlug(t *testing.T) {
 	opts := &jobOptions{Scale: 1, Rounding: "smart", Thresholds: diagnose.DefaultThresholds()}
 	for _, tc := range []struct {
@@ -253,6 +254,21 @@ func TestReadLoosePlug(t *testing.T) {
 			}
 			if ranked != tc.loose {
 				t.Errorf("b03 ranked to tell a loose plug %v, want %v:\n%+v", ranked, tc.loose, j.Reads.Readings)
+			}
+			// Its flow as found, were it a valve meter's, was turned from
+			// the differential with the table at the recorded setting:
+			// not shown as read where the fit finds the valve elsewhere.
+			for k := range j.L.Site.Readings {
+				if r := &j.L.Site.Readings[k]; r.Where == "b03" && r.What == site.Flow {
+					r.Instrument = "valve-meter"
+				}
+			}
+			j.flowsRead = nil
+			if _, ok := j.flowRead("b03"); ok == tc.loose {
+				t.Errorf("b03's valve-meter flow shown as read %v, want %v", ok, !tc.loose)
+			}
+			if _, ok := j.flowRead("b02"); !ok {
+				t.Error("b02's clamp-on flow not shown as read")
 			}
 			if !tc.loose {
 				return
