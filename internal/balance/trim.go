@@ -135,6 +135,11 @@ type TrimPlan struct {
 	// reports a correction worth making (over half a per cent).
 	PumpLeft, PumpNew float64
 	PumpChanged       bool
+	// FlatOut is, on a pump holding a differential, what it gives at its
+	// maximum speed when the correction wanted more (Pa; 0 otherwise):
+	// PumpNew is then held to it, since a set point above it changes
+	// nothing.
+	FlatOut float64
 	// InBefore and InAfter count the branches predicted inside the
 	// tolerance as left and after the trims.
 	InBefore, InAfter int
@@ -302,6 +307,11 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 				x = max(x, xr)
 			}
 		}
+		if !tp.BySpeed && m.Controlled() {
+			if x, tp.FlatOut, err = flatOut(ctx, m, p, left, x, left.Differential); err != nil {
+				return nil, err
+			}
+		}
 		if math.Abs(x/tp.PumpLeft-1) > 0.005 {
 			tp.PumpNew, tp.PumpChanged = x, true
 			if tp.BySpeed {
@@ -411,6 +421,23 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		// A valve trimmed in one pass and put back in a later one is
 		// not trimmed.
 		trimmed[i] = trimmed[i] && math.Abs(st.Settings[i]-left.Settings[i]) > 1e-9
+	}
+	if tp.FlatOut > 0 {
+		// The trims opened valves: the flow is more and the pump's most
+		// less than where the set point was held, so it is held again.
+		// The pump is flat out either way, so the flows do not move.
+		x, flat, err := flatOut(ctx, m, p, st, st.Differential, left.Differential)
+		if err != nil {
+			return nil, err
+		}
+		if flat > 0 {
+			tp.FlatOut = flat
+		}
+		tp.PumpNew, tp.PumpChanged = x, math.Abs(x/tp.PumpLeft-1) > 0.005
+		if !tp.PumpChanged {
+			tp.PumpNew = left.Differential
+		}
+		st.Differential = tp.PumpNew
 	}
 	sdA, err := flowSD(m, p, o.Uncertainty, sol)
 	if err != nil {
@@ -555,6 +582,34 @@ func worthMoving(r, rNew float64) bool {
 	d, dNew := math.Log(r), math.Log(rNew)
 	u := markSpread * (dNew - d)
 	return dNew*dNew+u*u < d*d
+}
+
+// flatOut holds a differential set point x to what the pump gives at its
+// maximum speed. A set point above that changes nothing, model or plant, so
+// the search in centre drifts across it to its upper end, and the trims
+// then asked for set points 5-15 % above what the pump could give (seen on
+// independent plants of 8-300 branches whose pump was short of head). It
+// returns the set point, held, and the flat-out differential when held (0
+// when x is within reach), with the valves at st's settings. Where the set
+// point as left (asLeft) is already beyond reach, it is kept: lowering it to
+// the flat-out value changes nothing.
+func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State, x, asLeft float64) (float64, float64, error) {
+	st := plant.State{Label: "flat out", Settings: at.Settings, Speed: at.Speed, Differential: x}
+	sol, err := m.Solve(ctx, p, st)
+	if err != nil {
+		return 0, 0, fmt.Errorf("trim: the pump at the corrected set point: %w: %w", err, ErrSolve)
+	}
+	if !sol.Saturated() {
+		return x, 0, nil
+	}
+	got := sol.PumpDiff()
+	if !(got > 0) || got >= x {
+		return x, 0, nil
+	}
+	if asLeft >= got {
+		return asLeft, got, nil
+	}
+	return got, got, nil
 }
 
 // centre returns the pump speed (bySpeed) or source differential that, with

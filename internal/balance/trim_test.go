@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"flowset/internal/hydraulics"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -427,5 +428,80 @@ func TestTrimVerdictNotRead(t *testing.T) {
 		if tp.ProvenIn != proven || tp.PredictedIn != predicted || proven == 0 || predicted == 0 {
 			t.Errorf("model sd %g: counts proven %d predicted %d, branches %d and %d", modelSD, tp.ProvenIn, tp.PredictedIn, proven, predicted)
 		}
+	}
+}
+
+// TestTrimFlatOut: every branch found after setting at 1.2 times its
+// design resistance (known to the fit of every state) runs low, and the
+// correction wants a set point 10-15 % higher. With the pump's curve at
+// full head it reaches that: the set point rises and FlatOut stays 0. With
+// the curve worn (PumpHead) so that the pump gives less than the
+// correction wants, the set point is held to what the pump gives at full
+// speed (the network solve there and at 5 % more gives the same flows:
+// nothing more to get), and where the set point as left is beyond reach
+// already it is left as it is. Before the hold the search drifted across
+// the flat part to its upper end, 15 % above the set point as left.
+func TestTrimFlatOut(t *testing.T) {
+	ctx := context.Background()
+	const h0, a = 7.0, 1.1e6 // 68.7 kPa shut off (invented)
+	ctrl := site.Boundary{Kind: site.ConstantDiff, Speed: 1, MaxSpeed: 1.05, SetPoint: 60e3, Sensor: site.AtPump}
+	m := mustModel(t, shortSite(h0, a, ctrl))
+	plan := mustCompute(t, m, m.Design(), &Options{Rounding: Smart})
+	left := plan.State()
+	for _, tc := range []struct {
+		name string
+		head float64 // the pump's head after setting, of its curve
+		held bool    // FlatOut > 0
+		keep bool    // the set point as left kept
+	}{
+		{"within reach", 1, false, false},
+		{"short of the correction", 0.68, true, false},
+		{"short as left", 0.55, true, true},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			truth := m.Design()
+			truth.PumpHead = tc.head
+			for i := range truth.Resistance {
+				truth.Resistance[i] *= 1.2
+			}
+			u := evenSpread(len(m.Branches), 0.01)
+			u.LnPumpHead = 0.01
+			replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
+			tp, err := Trim(ctx, m, truth, replan, left, &TrimOptions{Uncertainty: u, Replan: true})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if got := tp.FlatOut > 0; got != tc.held {
+				t.Errorf("FlatOut = %.4g Pa, want held %v", tp.FlatOut, tc.held)
+			}
+			if keep := !tp.PumpChanged; keep != tc.keep {
+				t.Errorf("set point from %.4g to %.4g Pa (changed %v), want kept %v", tp.PumpLeft, tp.PumpNew, tp.PumpChanged, tc.keep)
+			}
+			if !tc.keep && !(tp.PumpNew > tp.PumpLeft) {
+				t.Errorf("set point from %.4g to %.4g Pa, want it raised", tp.PumpLeft, tp.PumpNew)
+			}
+			st := tp.State()
+			sol, err := m.Solve(ctx, truth, st)
+			if err != nil {
+				t.Fatal(err)
+			}
+			st.Differential *= 1.05
+			more, err := m.Solve(ctx, truth, st)
+			if err != nil {
+				t.Fatal(err)
+			}
+			gain := more.TotalFlow()/sol.TotalFlow() - 1
+			// The drive's droop (hydraulics.ControlDroop, 0.1 % of the
+			// set point) is all a held set point leaves to get.
+			if tc.held && math.Abs(gain) > hydraulics.ControlDroop {
+				t.Errorf("5 %% more set point gives %.2g more flow: the set point %.4g Pa is not the pump's most", gain, tp.PumpNew)
+			}
+			if !tc.held && !(gain > 1e-3) {
+				t.Errorf("5 %% more set point gives %.2g more flow: the pump is at its most, want it within reach", gain)
+			}
+			if tc.held && !tc.keep && !(math.Abs(tp.PumpNew/tp.FlatOut-1) < 1e-12 && math.Abs(tp.PumpNew/sol.PumpDiff()-1) < 2*hydraulics.ControlDroop) {
+				t.Errorf("set point %.6g Pa, want the flat-out differential %.6g (FlatOut %.6g)", tp.PumpNew, sol.PumpDiff(), tp.FlatOut)
+			}
+		})
 	}
 }

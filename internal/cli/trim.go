@@ -564,8 +564,12 @@ func (j *job) trimSummary(u display) []string {
 	switch {
 	case tp.PumpChanged && tp.BySpeed:
 		out = append(out, fmt.Sprintf("Pump: from %s to %s.", u.speed(tp.PumpLeft), u.speed(tp.PumpNew)))
+	case tp.PumpChanged && tp.FlatOut > 0:
+		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s, what the pump gives at full speed; the trims wanted more, which only the plan's remedies can give.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew)))
 	case tp.PumpChanged:
 		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew)))
+	case tp.FlatOut > 0:
+		out = append(out, fmt.Sprintf("Pump: leave it as it is; it runs at full speed and gives %s, and a higher set point would give nothing more; the trims wanted more, which only the plan's remedies can give.", u.diff(tp.FlatOut)))
 	default:
 		out = append(out, "Pump: leave it as it is.")
 	}
@@ -635,6 +639,10 @@ type trimPumpJSON struct {
 	SetPoint   num    `json:"set_point_pa"`
 	LeftSpeed  num    `json:"as_left_speed_ratio"`
 	LeftDiff   num    `json:"as_left_differential_pa"`
+	// FlatOut is what a pump holding a differential gives at full speed
+	// when the correction wanted more (balance.TrimPlan.FlatOut); NaN
+	// otherwise.
+	FlatOut num `json:"flat_out_differential_pa"`
 }
 
 type trimBranchJSON struct {
@@ -664,7 +672,10 @@ type trimBranchJSON struct {
 func (j *job) trimOut(generated string) trimJSON {
 	tp := j.Trim
 	out := trimJSON{Site: j.L.Site.Name, Generated: generated, State: tp.Label, Summary: j.trimSummary(siDisplay())}
-	out.Pump = trimPumpJSON{Boundary: j.L.Site.Boundary.Kind.String(), Changed: tp.PumpChanged, SpeedRatio: num(math.NaN()), SetPoint: num(tp.Differential), LeftSpeed: num(math.NaN()), LeftDiff: num(math.NaN())}
+	out.Pump = trimPumpJSON{Boundary: j.L.Site.Boundary.Kind.String(), Changed: tp.PumpChanged, SpeedRatio: num(math.NaN()), SetPoint: num(tp.Differential), LeftSpeed: num(math.NaN()), LeftDiff: num(math.NaN()), FlatOut: num(math.NaN())}
+	if tp.FlatOut > 0 {
+		out.Pump.FlatOut = num(tp.FlatOut)
+	}
 	if tp.BySpeed {
 		out.Pump.SpeedRatio, out.Pump.LeftSpeed = num(tp.Speed), num(tp.PumpLeft)
 	} else {
@@ -716,6 +727,9 @@ func (j *job) trimReport(u display) *report.Trim {
 	}
 	if !tp.PumpChanged {
 		rt.Pump.To += " (leave it as it is)"
+	}
+	if tp.FlatOut > 0 {
+		rt.Pump.To += fmt.Sprintf(" (the pump at full speed: %s)", u.diff(tp.FlatOut))
 	}
 	rt.Trims = report.Table{Columns: []string{"#", "Branch", "As left (% of target)", "Setting as left", "Trim to", "Then (% of target)", "Why"},
 		WriteIn: []string{"Done (tick)", "Initials"}, File: "trim.csv"}

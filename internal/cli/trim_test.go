@@ -11,6 +11,7 @@ import (
 	"strings"
 	"testing"
 
+	"flowset/internal/balance"
 	"flowset/internal/plant"
 	"flowset/internal/site"
 )
@@ -402,6 +403,33 @@ func TestTrimCheckState(t *testing.T) {
 				if got := m.States[k].Settings[i]; math.Abs(got-planned(i)) > 1e-9 {
 					t.Errorf("%s as left at %g, want the plan's %g", b.ID, got, planned(i))
 				}
+			}
+		})
+	}
+}
+
+// TestTrimSummaryPump: the round's pump line for each outcome, the held
+// set point (balance.TrimPlan.FlatOut) saying what the pump gives at full
+// speed and that only a remedy gives more.
+func TestTrimSummaryPump(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		tp   balance.TrimPlan
+		want string
+	}{
+		{"left", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 200e3}, "Pump: leave it as it is."},
+		{"raised", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 210e3, PumpChanged: true}, "Pump differential set point: from 200.0 kPa to 210.0 kPa."},
+		{"raised to flat out", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 205e3, PumpChanged: true, FlatOut: 205e3},
+			"Pump differential set point: from 200.0 kPa to 205.0 kPa, what the pump gives at full speed; the trims wanted more, which only the plan's remedies can give."},
+		{"flat out as left", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 200e3, FlatOut: 197e3},
+			"Pump: leave it as it is; it runs at full speed and gives 197.0 kPa, and a higher set point would give nothing more; the trims wanted more, which only the plan's remedies can give."},
+		{"speed", balance.TrimPlan{BySpeed: true, PumpLeft: 0.9, PumpNew: 0.95, PumpChanged: true}, "Pump: from 90.0 % to 95.0 %."},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			j := &job{Trim: &tc.tp}
+			got := j.trimSummary(siDisplay())
+			if len(got) < 2 || got[1] != tc.want {
+				t.Errorf("pump line %q, want %q", got, tc.want)
 			}
 		})
 	}
