@@ -311,6 +311,11 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			if x, tp.FlatOut, err = flatOut(ctx, m, p, left, x, left.Differential); err != nil {
 				return nil, err
 			}
+			if math.Abs(x/tp.PumpLeft-1) <= 0.005 && left.Differential < tp.FlatOut {
+				// Within reach as left and too near its most to move:
+				// the pump is not flat out as left, so nothing to say.
+				tp.FlatOut = 0
+			}
 		}
 		if math.Abs(x/tp.PumpLeft-1) > 0.005 {
 			tp.PumpNew, tp.PumpChanged = x, true
@@ -430,12 +435,12 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		if err != nil {
 			return nil, err
 		}
-		if flat > 0 {
-			tp.FlatOut = flat
-		}
-		tp.PumpNew, tp.PumpChanged = x, math.Abs(x/tp.PumpLeft-1) > 0.005
+		tp.PumpNew, tp.PumpChanged, tp.FlatOut = x, math.Abs(x/tp.PumpLeft-1) > 0.005, flat
 		if !tp.PumpChanged {
 			tp.PumpNew = left.Differential
+			if left.Differential < flat {
+				tp.FlatOut = 0
+			}
 		}
 		st.Differential = tp.PumpNew
 	}
@@ -599,17 +604,19 @@ func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State
 	if err != nil {
 		return 0, 0, fmt.Errorf("trim: the pump at the corrected set point: %w: %w", err, ErrSolve)
 	}
-	if !sol.Saturated() {
+	e, ok := m.Source(p, st).Pump.(hydraulics.ControlledPump)
+	if !ok {
 		return x, 0, nil
 	}
-	got := sol.PumpDiff()
-	if !(got > 0) || got >= x {
+	// Within the drive's droop of its most, the pump is at it.
+	most := e.Most(sol.TotalFlow(), m.Fluid)
+	if !(most > 0) || x < most*(1-hydraulics.ControlDroop) {
 		return x, 0, nil
 	}
-	if asLeft >= got {
-		return asLeft, got, nil
+	if asLeft >= most {
+		return asLeft, most, nil
 	}
-	return got, got, nil
+	return min(x, most), most, nil
 }
 
 // centre returns the pump speed (bySpeed) or source differential that, with

@@ -444,6 +444,13 @@ func (p ControlledPump) Drop(q float64, f fluid.State) (dp, slope float64) {
 	return held, s
 }
 
+// Most returns the pressure rise the pump gives at flow q at its maximum
+// speed, Pa: the highest set point it can hold there.
+func (p ControlledPump) Most(q float64, f fluid.State) float64 {
+	mx, _ := p.flatOut().Drop(q, f)
+	return -mx
+}
+
 // Saturated reports whether at flow q the drive runs flat out (the pump
 // cannot give the set point).
 func (p ControlledPump) Saturated(q float64, f fluid.State) bool {
