@@ -428,9 +428,9 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		trimmed[i] = trimmed[i] && math.Abs(st.Settings[i]-left.Settings[i]) > 1e-9
 	}
 	if tp.FlatOut > 0 {
-		// The trims opened valves: the flow is more and the pump's most
-		// less than where the set point was held, so it is held again.
-		// The pump is flat out either way, so the flows do not move.
+		// The trims moved the flow, and with it the pump's most at that
+		// flow: the set point is held again. The pump is flat out either
+		// way, so the flows do not move.
 		x, flat, err := flatOut(ctx, m, p, st, st.Differential, left.Differential)
 		if err != nil {
 			return nil, err
@@ -595,7 +595,7 @@ func worthMoving(r, rNew float64) bool {
 // then asked for set points 5-15 % above what the pump could give (seen on
 // independent plants of 8-300 branches whose pump was short of head). It
 // returns the set point, held, and the flat-out differential when held (0
-// when x is within reach), with the valves at st's settings. Where the set
+// when x is within reach), with the valves at at's settings. Where the set
 // point as left (asLeft) is already beyond reach, it is kept: lowering it to
 // the flat-out value changes nothing.
 func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State, x, asLeft float64) (float64, float64, error) {

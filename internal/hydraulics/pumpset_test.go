@@ -262,6 +262,31 @@ func TestControlledPumpSet(t *testing.T) {
 	}
 }
 
+// TestControlledPumpMost: the most a controlled pump can hold at a flow is
+// its curve at its maximum speed (affinity laws: head A0 s^2 + A1 q s +
+// A2 q^2), for two pumps in parallel each taking half the flow; worked by
+// hand.
+func TestControlledPumpMost(t *testing.T) {
+	c := plainCurve(30, 2.4e4)
+	rg := water20.Density * StandardGravity
+	for _, tc := range []struct {
+		name string
+		cp   ControlledPump
+		q    float64
+		want float64 // m
+	}{
+		{"one pump at speed 1", ControlledPump{SetPoint: 20 * rg, Curve: c}, 0.02, 30 - 2.4e4*0.02*0.02},
+		{"one pump at speed 1.1", ControlledPump{SetPoint: 20 * rg, Curve: c, MaxSpeed: 1.1}, 0.02, 30*1.21 - 2.4e4*0.02*0.02},
+		{"two in parallel", ControlledPump{SetPoint: 20 * rg, Set: PumpSet{Members: members(c, c)}}, 0.05, 30 - 2.4e4*0.025*0.025},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			if got := tc.cp.Most(tc.q, water20); relErr(got, rg*tc.want) > 1e-9 {
+				t.Errorf("Most(%g) = %.6g Pa, want %.6g", tc.q, got, rg*tc.want)
+			}
+		})
+	}
+}
+
 func TestEfficiencyCurve(t *testing.T) {
 	// Points of an invented data sheet: 0 at no flow, 70 % at 10 l/s,
 	// 60 % at 14 l/s. Interpolation by hand.
