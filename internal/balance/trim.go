@@ -135,10 +135,10 @@ type TrimPlan struct {
 	// reports a correction worth making (over half a per cent).
 	PumpLeft, PumpNew float64
 	PumpChanged       bool
-	// FlatOut is, on a pump holding a differential, what it gives at its
-	// maximum speed when the correction wanted more (Pa; 0 otherwise):
-	// PumpNew is then held to it, since a set point above it changes
-	// nothing.
+	// FlatOut is, on a pump holding a differential, what the fitted pump
+	// gives at its maximum speed when the correction wanted more (Pa; 0
+	// otherwise): PumpNew is then held at most the pump head's band above
+	// it, since a set point above what the pump gives changes nothing.
 	FlatOut float64
 	// InBefore and InAfter count the branches predicted inside the
 	// tolerance as left and after the trims.
@@ -249,6 +249,12 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	if err != nil {
 		return nil, fmt.Errorf("trim: the state as left: %w: %w", err, ErrSolve)
 	}
+	// reach is how far above the fitted pump's most a held set point goes
+	// (see flatOut): the pump head's band.
+	reach := 1.0
+	if o.Uncertainty != nil && o.Uncertainty.LnPumpHead > 0 {
+		reach = math.Exp(k * o.Uncertainty.LnPumpHead)
+	}
 	sdL, err := flowSD(m, p, o.Uncertainty, solL)
 	if err != nil {
 		return nil, err
@@ -308,7 +314,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			}
 		}
 		if !tp.BySpeed && m.Controlled() {
-			if x, tp.FlatOut, err = flatOut(ctx, m, p, left, x, left.Differential); err != nil {
+			if x, tp.FlatOut, err = flatOut(ctx, m, p, left, x, left.Differential, reach); err != nil {
 				return nil, err
 			}
 			if math.Abs(x/tp.PumpLeft-1) <= 0.005 && left.Differential < tp.FlatOut {
@@ -431,7 +437,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		// The trims moved the flow, and with it the pump's most at that
 		// flow: the set point is held again. The pump is flat out either
 		// way, so the flows do not move.
-		x, flat, err := flatOut(ctx, m, p, st, st.Differential, left.Differential)
+		x, flat, err := flatOut(ctx, m, p, st, st.Differential, left.Differential, reach)
 		if err != nil {
 			return nil, err
 		}
@@ -589,16 +595,21 @@ func worthMoving(r, rNew float64) bool {
 	return dNew*dNew+u*u < d*d
 }
 
-// flatOut holds a differential set point x to what the pump gives at its
+// flatOut holds a differential set point x to what the pump can give at its
 // maximum speed. A set point above that changes nothing, model or plant, so
 // the search in centre drifts across it to its upper end, and the trims
 // then asked for set points 5-15 % above what the pump could give (seen on
-// independent plants of 8-300 branches whose pump was short of head). It
-// returns the set point, held, and the flat-out differential when held (0
-// when x is within reach), with the valves at at's settings. Where the set
-// point as left (asLeft) is already beyond reach, it is kept: lowering it to
-// the flat-out value changes nothing.
-func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State, x, asLeft float64) (float64, float64, error) {
+// independent plants of 8-300 branches whose pump was short of head). The
+// most is the fitted pump's (ControlledPump.Most, at the flow with the
+// valves at at's settings) times reach, the top of its band: a set point
+// the pump turns out not to reach costs nothing (it runs flat out), one
+// below what it can give leaves head the trims wanted unused (an
+// independent 12-branch plant whose fitted pump was 0.6 % short of the
+// real one). It returns the set point, held, and the fitted most when held
+// (0 when x is within reach). Where the set point as left (asLeft) is at
+// or above the held value already, it is kept: lowering it changes
+// nothing.
+func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State, x, asLeft, reach float64) (float64, float64, error) {
 	st := plant.State{Label: "flat out", Settings: at.Settings, Speed: at.Speed, Differential: x}
 	sol, err := m.Solve(ctx, p, st)
 	if err != nil {
@@ -613,10 +624,11 @@ func flatOut(ctx context.Context, m *plant.Model, p plant.Params, at plant.State
 	if !(most > 0) || x < most*(1-hydraulics.ControlDroop) {
 		return x, 0, nil
 	}
-	if asLeft >= most {
+	held := min(x, most*max(reach, 1))
+	if asLeft >= held {
 		return asLeft, most, nil
 	}
-	return min(x, most), most, nil
+	return held, most, nil
 }
 
 // centre returns the pump speed (bySpeed) or source differential that, with

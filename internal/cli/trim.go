@@ -565,7 +565,7 @@ func (j *job) trimSummary(u display) []string {
 	case tp.PumpChanged && tp.BySpeed:
 		out = append(out, fmt.Sprintf("Pump: from %s to %s.", u.speed(tp.PumpLeft), u.speed(tp.PumpNew)))
 	case tp.PumpChanged && tp.FlatOut > 0:
-		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s, what the pump gives at full speed; the trims wanted more, which only the plan's remedies can give.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew)))
+		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s, at or a little above what the pump gives at full speed (about %s), so that it runs flat out; the trims wanted more, which only the plan's remedies can give.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew), u.diff(tp.FlatOut)))
 	case tp.PumpChanged:
 		out = append(out, fmt.Sprintf("Pump differential set point: from %s to %s.", u.diff(tp.PumpLeft), u.diff(tp.PumpNew)))
 	case tp.FlatOut > 0:

@@ -419,8 +419,8 @@ func TestTrimSummaryPump(t *testing.T) {
 	}{
 		{"left", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 200e3}, "Pump: leave it as it is."},
 		{"raised", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 210e3, PumpChanged: true}, "Pump differential set point: from 200.0 kPa to 210.0 kPa."},
-		{"raised to flat out", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 205e3, PumpChanged: true, FlatOut: 205e3},
-			"Pump differential set point: from 200.0 kPa to 205.0 kPa, what the pump gives at full speed; the trims wanted more, which only the plan's remedies can give."},
+		{"raised to flat out", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 205e3, PumpChanged: true, FlatOut: 203e3},
+			"Pump differential set point: from 200.0 kPa to 205.0 kPa, at or a little above what the pump gives at full speed (about 203.0 kPa), so that it runs flat out; the trims wanted more, which only the plan's remedies can give."},
 		{"flat out as left", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 200e3, FlatOut: 197e3},
 			"Pump: leave it as it is; it runs at full speed and gives 197.0 kPa, and a higher set point would give nothing more; the trims wanted more, which only the plan's remedies can give."},
 		{"speed", balance.TrimPlan{BySpeed: true, PumpLeft: 0.9, PumpNew: 0.95, PumpChanged: true}, "Pump: from 90.0 % to 95.0 %."},
