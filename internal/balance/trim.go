@@ -71,6 +71,10 @@ type TrimOptions struct {
 	// as-left one included); nil gives bands that collapse onto the
 	// predictions and no branch proven either way.
 	Uncertainty *Uncertainty
+	// KeepPump leaves the pump as left: the fit set aside every reading
+	// of it (total flow, differential) in the state as left, so a
+	// correction would rest on the model alone.
+	KeepPump bool
 	// Inner is the fraction of the tolerance band beyond which a branch is
 	// trimmed; 0 means 0.25.
 	Inner float64
@@ -135,6 +139,9 @@ type TrimPlan struct {
 	// reports a correction worth making (over half a per cent).
 	PumpLeft, PumpNew float64
 	PumpChanged       bool
+	// PumpSetAside reports the pump left as it is because the fit set
+	// aside every reading of it as left (TrimOptions.KeepPump).
+	PumpSetAside bool
 	// FlatOut is, on a pump holding a differential, what the fitted pump
 	// gives at its maximum speed when the correction wanted more (Pa; 0
 	// otherwise): PumpNew is then held at most the pump head's band above
@@ -268,7 +275,8 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	if tp.BySpeed {
 		tp.PumpLeft, tp.PumpNew = left.Speed, left.Speed
 	}
-	if m.Site.Boundary.Kind != site.MeasuredDiff {
+	tp.PumpSetAside = o.KeepPump && m.Site.Boundary.Kind != site.MeasuredDiff
+	if m.Site.Boundary.Kind != site.MeasuredDiff && !o.KeepPump {
 		// The branches the pump centres: those inside the tolerance as
 		// left, whose valves work. The others are the trims' (or cannot
 		// be helped), and one far out would drag the pump after it.

@@ -509,3 +509,26 @@ func TestTrimFlatOut(t *testing.T) {
 		})
 	}
 }
+
+// TestTrimKeepPump: TestTrimPump's worn pump, whose correction the round
+// wants, is left as it is when the fit set aside its readings
+// (TrimOptions.KeepPump), and the plan says why.
+func TestTrimKeepPump(t *testing.T) {
+	ctx := context.Background()
+	c := newTrimCase(t, 1)
+	m := c.m
+	truth := m.Design()
+	truth.PumpHead = 0.85
+	u := evenSpread(len(m.Branches), 0.01)
+	u.LnPumpHead = 0.01
+	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
+	for _, keep := range []bool{false, true} {
+		tp, err := Trim(ctx, m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, KeepPump: keep})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if tp.PumpChanged == keep || tp.PumpSetAside != keep || keep && tp.PumpNew != tp.PumpLeft {
+			t.Errorf("KeepPump %v: pump from %g to %g (changed %v, set aside %v)", keep, tp.PumpLeft, tp.PumpNew, tp.PumpChanged, tp.PumpSetAside)
+		}
+	}
+}

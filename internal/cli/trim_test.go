@@ -424,6 +424,8 @@ func TestTrimSummaryPump(t *testing.T) {
 		{"flat out as left", balance.TrimPlan{PumpLeft: 200e3, PumpNew: 200e3, FlatOut: 197e3},
 			"Pump: leave it as it is; it runs at full speed and gives 197.0 kPa, and a higher set point would give nothing more; the trims wanted more, which only the plan's remedies can give."},
 		{"speed", balance.TrimPlan{BySpeed: true, PumpLeft: 0.9, PumpNew: 0.95, PumpChanged: true}, "Pump: from 90.0 % to 95.0 %."},
+		{"readings set aside", balance.TrimPlan{BySpeed: true, PumpLeft: 0.9, PumpNew: 0.9, PumpSetAside: true},
+			"Pump: leave it as it is; the fit set aside every reading of the pump in this round (its total flow and differential disagree with the rest), so a correction would rest on the model alone, and so would trims of valves not read: check those readings (the flow meter on the main, the gauge and its tappings) and read them again."},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			j := &job{Trim: &tc.tp}
@@ -432,5 +434,74 @@ func TestTrimSummaryPump(t *testing.T) {
 				t.Errorf("pump line %q, want %q", got, tc.want)
 			}
 		})
+	}
+}
+
+// TestTrimPumpSetAside: the demo's round after setting with its pump read
+// far from what every branch reading implies (the differential 157 -> 230
+// kPa, the total flow 8.72 -> 14 l/s, invented): the fit sets both aside,
+// and the round then leaves the pump and the valves not read as they are,
+// saying why, instead of correcting them on the model alone.
+func TestTrimPumpSetAside(t *testing.T) {
+	dir := t.TempDir()
+	site := filepath.Join(dir, "site")
+	if err := os.MkdirAll(site, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	ents, err := os.ReadDir(surveyDir("demo"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, e := range ents {
+		b, err := os.ReadFile(filepath.Join(surveyDir("demo"), e.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if e.Name() == "readings.csv" {
+			s := string(b)
+			for _, r := range [][2]string{{"after-change,pump,pump diff,157,", "after-change,pump,pump diff,230,"}, {"after-change,pump,total flow,8.72,", "after-change,pump,total flow,14,"}} {
+				if !strings.Contains(s, r[0]) {
+					t.Fatalf("demo readings.csv lacks %q", r[0])
+				}
+				s = strings.Replace(s, r[0], r[1], 1)
+			}
+			b = []byte(s)
+		}
+		if err := os.WriteFile(filepath.Join(site, e.Name()), b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	plan := filepath.Join(dir, "plan")
+	if code, _, stderr := run(t, "plan", surveyDir("demo"), "--out", plan, "--quiet"); code != 0 {
+		t.Fatalf("plan: exit %d: %s", code, stderr)
+	}
+	out := filepath.Join(dir, "trim")
+	if code, _, stderr := run(t, "trim", site, "--plan", filepath.Join(plan, "plan.json"), "--out", out, "--quiet"); code != 0 && code != 5 {
+		t.Fatalf("trim: exit %d: %s", code, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "trim.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tj struct {
+		Summary []string `json:"summary"`
+		Pump    struct {
+			Changed bool `json:"changed"`
+		} `json:"pump"`
+		Branches []struct {
+			ID      string `json:"branch"`
+			OnModel bool   `json:"trimmed_on_prediction"`
+		} `json:"branches"`
+	}
+	if err := json.Unmarshal(b, &tj); err != nil {
+		t.Fatal(err)
+	}
+	if tj.Pump.Changed || len(tj.Summary) < 2 || !strings.Contains(tj.Summary[1], "the fit set aside every reading of the pump") {
+		t.Errorf("pump changed %v, summary %q: want it left, saying its readings were set aside", tj.Pump.Changed, tj.Summary)
+	}
+	for _, br := range tj.Branches {
+		if br.OnModel {
+			t.Errorf("%s trimmed on the model alone with the pump's readings set aside", br.ID)
+		}
 	}
 }
