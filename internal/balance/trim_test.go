@@ -195,19 +195,27 @@ func TestTrimOneBranch(t *testing.T) {
 	}
 }
 
+// wornPump is newTrimCase's plant whose pump gives 85 % of its curve's
+// head after setting (the fit of every state knows it), with the spread and
+// the plan re-computed on that fit.
+func wornPump(t *testing.T) (trimCase, plant.Params, *Uncertainty, *Plan) {
+	t.Helper()
+	c := newTrimCase(t, 1)
+	truth := c.m.Design()
+	truth.PumpHead = 0.85
+	u := evenSpread(len(c.m.Branches), 0.01)
+	u.LnPumpHead = 0.01
+	return c, truth, u, mustCompute(t, c.m, truth, &Options{Rounding: Smart, Uncertainty: u})
+}
+
 // TestTrimPump: a pump that gives less head than the plan took (every
 // branch low by about the same fraction) is corrected by the pump alone,
 // no valve turned, and the network solve then puts every branch back near
 // its target.
 func TestTrimPump(t *testing.T) {
 	ctx := context.Background()
-	c := newTrimCase(t, 1)
+	c, truth, u, replan := wornPump(t)
 	m := c.m
-	truth := m.Design()
-	truth.PumpHead = 0.85
-	u := evenSpread(len(m.Branches), 0.01)
-	u.LnPumpHead = 0.01
-	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
 	left := c.plan.State()
 	tp, err := Trim(ctx, m, truth, replan, left, &TrimOptions{Uncertainty: u})
 	if err != nil {
@@ -515,15 +523,9 @@ func TestTrimFlatOut(t *testing.T) {
 // (TrimOptions.KeepPump), and the plan says why.
 func TestTrimKeepPump(t *testing.T) {
 	ctx := context.Background()
-	c := newTrimCase(t, 1)
-	m := c.m
-	truth := m.Design()
-	truth.PumpHead = 0.85
-	u := evenSpread(len(m.Branches), 0.01)
-	u.LnPumpHead = 0.01
-	replan := mustCompute(t, m, truth, &Options{Rounding: Smart, Uncertainty: u})
+	c, truth, u, replan := wornPump(t)
 	for _, keep := range []bool{false, true} {
-		tp, err := Trim(ctx, m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, KeepPump: keep})
+		tp, err := Trim(ctx, c.m, truth, replan, c.plan.State(), &TrimOptions{Uncertainty: u, KeepPump: keep})
 		if err != nil {
 			t.Fatal(err)
 		}
