@@ -402,7 +402,7 @@ func (j *job) trim(ctx context.Context, k int) error {
 		// 15-branch plant, two branches read after setting, one through
 		// test points 16 % high: the fit set aside all of the pump's
 		// readings, put the pump 18 % above what it read, and the
-		// correction lowered the speed 6 %, rms 3.6 -> 7.5 %).
+		// correction lowered the speed 6 %, rms 2.25 -> 7.5 %).
 		read, kept := 0, 0
 		for _, rf := range j.Cal.Readings {
 			if w := j.L.Site.Readings[rf.Index].What; rf.State != m.States[k].Label || w != site.TotalFlow && w != site.PumpDiff {
@@ -667,6 +667,9 @@ type trimPumpJSON struct {
 	// when the correction wanted more (balance.TrimPlan.FlatOut); NaN
 	// otherwise.
 	FlatOut num `json:"flat_out_differential_pa"`
+	// SetAside reports the pump left because the fit set aside every
+	// reading of it as left (balance.TrimPlan.PumpSetAside).
+	SetAside bool `json:"readings_set_aside"`
 }
 
 type trimBranchJSON struct {
@@ -700,6 +703,7 @@ func (j *job) trimOut(generated string) trimJSON {
 	if tp.FlatOut > 0 {
 		out.Pump.FlatOut = num(tp.FlatOut)
 	}
+	out.Pump.SetAside = tp.PumpSetAside
 	if tp.BySpeed {
 		out.Pump.SpeedRatio, out.Pump.LeftSpeed = num(tp.Speed), num(tp.PumpLeft)
 	} else {
@@ -754,6 +758,9 @@ func (j *job) trimReport(u display) *report.Trim {
 	}
 	if tp.FlatOut > 0 {
 		rt.Pump.To += fmt.Sprintf(" (the pump at full speed: %s)", u.diff(tp.FlatOut))
+	}
+	if tp.PumpSetAside {
+		rt.Pump.To += " (every reading of the pump in this round was set aside: check them)"
 	}
 	rt.Trims = report.Table{Columns: []string{"#", "Branch", "As left (% of target)", "Setting as left", "Trim to", "Then (% of target)", "Why"},
 		WriteIn: []string{"Done (tick)", "Initials"}, File: "trim.csv"}

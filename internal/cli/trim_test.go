@@ -486,7 +486,8 @@ func TestTrimPumpSetAside(t *testing.T) {
 	var tj struct {
 		Summary []string `json:"summary"`
 		Pump    struct {
-			Changed bool `json:"changed"`
+			Changed  bool `json:"changed"`
+			SetAside bool `json:"readings_set_aside"`
 		} `json:"pump"`
 		Branches []struct {
 			ID      string `json:"branch"`
@@ -496,7 +497,7 @@ func TestTrimPumpSetAside(t *testing.T) {
 	if err := json.Unmarshal(b, &tj); err != nil {
 		t.Fatal(err)
 	}
-	if tj.Pump.Changed || len(tj.Summary) < 2 || !strings.Contains(tj.Summary[1], "the fit set aside every reading of the pump") {
+	if tj.Pump.Changed || !tj.Pump.SetAside || len(tj.Summary) < 2 || !strings.Contains(tj.Summary[1], "the fit set aside every reading of the pump") {
 		t.Errorf("pump changed %v, summary %q: want it left, saying its readings were set aside", tj.Pump.Changed, tj.Summary)
 	}
 	for _, br := range tj.Branches {
