@@ -298,8 +298,9 @@ func TestTrimReplan(t *testing.T) {
 // TestTrimReplanUntrustedIndex: TestTrimReplan's plant (headers three times
 // rougher than designed, which the re-plan meets with more pump). With the
 // re-plan's index trusted the pump is raised to the re-plan's; with that
-// index's valve held (found off its table) or its readings doubted, or the
-// index short of its target even at the re-plan's pump, the pump is not
+// index's valve held (found off its table) or its readings doubted, the
+// index short of its target even at the re-plan's pump, or its shortfall as
+// left inside its band (its resistance known to 40 % only), the pump is not
 // raised past the centred one on its word.
 func TestTrimReplanUntrustedIndex(t *testing.T) {
 	ctx := context.Background()
@@ -339,9 +340,17 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 	for _, tc := range []struct {
 		name               string
 		hold, doubt, short bool
-	}{{"index held", true, false, false}, {"index doubted", false, true, false}, {"index short even so", false, false, true}} {
+		wide                bool
+	}{{"index held", true, false, false, false}, {"index doubted", false, true, false, false}, {"index short even so", false, false, true, false}, {"index not placed short", false, false, false, true}} {
 		t.Run(tc.name, func(t *testing.T) {
-			o := &TrimOptions{Uncertainty: u, Read: read, Replan: true, Hold: make([]bool, n), Doubt: make([]bool, n)}
+			uc := u
+			if tc.wide {
+				w := *u
+				w.LnResistance = slices.Clone(u.LnResistance)
+				w.LnResistance[idx] = 0.4
+				uc = &w
+			}
+			o := &TrimOptions{Uncertainty: uc, Read: read, Replan: true, Hold: make([]bool, n), Doubt: make([]bool, n)}
 			o.Hold[idx], o.Doubt[idx] = tc.hold, tc.doubt
 			rp := replan
 			if tc.short {
@@ -352,7 +361,7 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 				t.Fatal(err)
 			}
 			if got := pumpOf(tp); !(got < want*(1-1e-3)) {
-				t.Errorf("pump %g, want below the re-plan's %g (its index %s not trusted)", got, want, replan.Index)
+				t.Errorf("pump %g, want below the re-plan's %g (its index %s not trusted, or not placed short)", got, want, replan.Index)
 			}
 		})
 	}
