@@ -241,7 +241,6 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	if o.Uncertainty != nil && o.Uncertainty.Coverage > 0 {
 		k = o.Uncertainty.Coverage
 	}
-	kcov := k
 	modelSD := o.ModelSD
 	switch {
 	case modelSD == 0:
@@ -315,8 +314,8 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// valve (an independent 100-branch plant: a fouled branch at
 			// 4 times design, confirmed, took the speed from 95 to 100 %
 			// and the 80 unread valves moved to match went 8-10 % over).
-			k, ok := m.Index(plan.Index)
-			trusted := !ok || !(k < len(o.Hold) && o.Hold[k]) && !(k < len(o.Doubt) && o.Doubt[k])
+			ix, ok := m.Index(plan.Index)
+			trusted := !ok || !(ix < len(o.Hold) && o.Hold[ix]) && !(ix < len(o.Doubt) && o.Doubt[ix])
 			short := slices.ContainsFunc(plan.Unmet, func(s Shortfall) bool { return s.ID == plan.Index })
 			// Nor for an index the readings do not place short: the
 			// pump moves every branch, so the index's shortfall as left
@@ -326,12 +325,12 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// points on one draw, true 100 %, took the speed up 2.5 %
 			// and seven unread valves moved to match, rms 2.3 -> 2.9 %).
 			placed := true
-			if ok && target[k] > 0 {
-				sl := sdL[k]
-				if !(o.Read == nil || k < len(o.Read) && o.Read[k]) {
+			if ok && target[ix] > 0 {
+				sl := sdL[ix]
+				if !(o.Read == nil || ix < len(o.Read) && o.Read[ix]) {
 					sl = math.Hypot(sl, modelSD)
 				}
-				placed = solL.Flow(k)/target[k]*math.Exp(kcov*sl) < 1+o.Inner*tp.ToleranceLow
+				placed = solL.Flow(ix)/target[ix]*math.Exp(k*sl) < 1+o.Inner*tp.ToleranceLow
 			}
 			if trusted && !short && placed {
 				x = max(x, xr)
