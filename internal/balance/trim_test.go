@@ -340,7 +340,7 @@ func TestTrimReplanUntrustedIndex(t *testing.T) {
 	for _, tc := range []struct {
 		name               string
 		hold, doubt, short bool
-		wide                bool
+		wide               bool
 	}{{"index held", true, false, false, false}, {"index doubted", false, true, false, false}, {"index short even so", false, false, true, false}, {"index not placed short", false, false, false, true}} {
 		t.Run(tc.name, func(t *testing.T) {
 			uc := u
