@@ -197,7 +197,9 @@ func (t *TrimPlan) State() plant.State {
 // predicted with its band and judged against the tolerance. The pump is
 // corrected, with the valves as left, to the value that brings the branches
 // nearest their targets (centre), with Replan raised to the re-computed
-// plan's where that is more, when that differs by over half a per cent.
+// plan's where that is more and its index is trusted, served by that plan
+// and placed short by the readings, when that differs by over half a per
+// cent.
 // Then, over a few passes of the whole network, every branch read after
 // setting (TrimOptions.Read) that is predicted outside the inner part of the
 // tolerance (Inner of it) gets the setting that gives its
@@ -321,9 +323,10 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// pump moves every branch, so the index's shortfall as left
 			// must hold across its band (the top of it below the inner
 			// band), not in its prediction alone (an independent
-			// 10-branch plant: its index read 3 % low through test
-			// points on one draw, true 100 %, took the speed up 2.5 %
-			// and seven unread valves moved to match, rms 2.3 -> 2.9 %).
+			// 10-branch plant: its index, read 7 % low through its test
+			// points on one draw and fitted 3 % low, truly at 100 %,
+			// took the speed up 2.5 % and seven unread valves moved to
+			// match, rms 2.3 -> 2.9 %).
 			placed := true
 			if ok && target[ix] > 0 {
 				sl := sdL[ix]
