@@ -248,6 +248,26 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					Action:   "check strainers, isolating valves and the terminal for fouling before setting the valve"})
 			}
 			if p := normalCDF((-lnThr - x) / b.LogSD); p >= t.Confidence || down >= t.Confidence {
+				// The evidence says which test raised the flag: the
+				// fitted ratio's chance of lying under 1/Restricted, or
+				// (below that confidence) the readings alone placing the
+				// branch's part under its scatter and ExtraDrop, whose
+				// chance is of that other event.
+				post := p
+				evidence := func(withValve bool) string {
+					lo, hi := b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD)
+					valve := ""
+					if withValve {
+						valve = " with the valve taken at its recorded setting"
+					}
+					if post >= t.Confidence {
+						return fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f)%s; P(ratio < %.2g) = %.3f", b.Ratio, lo, hi, valve, 1/t.Restricted, post)
+					}
+					if withValve {
+						valve = "," + valve
+					}
+					return fmt.Sprintf("about %.1f kPa less than designed at design flow (resistance %.2f x design, 95 %% interval %.2f-%.2f%s); the readings alone put it below %.2f x design with probability %.3f", -extra/1000, b.Ratio, lo, hi, valve, math.Exp(-partLow(b, t)), down)
+				}
 				p = max(p, down)
 				if b.HasValve && (b.Valve == nil || b.Valve.Hypothesis == "follows its table") {
 					// Where the readings cannot tell the valve from the
@@ -258,7 +278,7 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					// its mark (common practice, no source).
 					f := Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: p,
 						Message:  "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, or else an open bypass",
-						Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f) with the valve taken at its recorded setting; P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
+						Evidence: evidence(true),
 						Action:   "move the handwheel a turn and read the flow again: it must change; then check for an open bypass"}
 					if b.TestPoints && !b.HasFlow {
 						// Its flow is known only through its own valve's
@@ -272,7 +292,7 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 				} else {
 					out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
 						Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
-						Evidence: fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f); P(ratio < %.2g) = %.3f", b.Ratio, b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD), 1/t.Restricted, p),
+						Evidence: evidence(false),
 						Action:   "check for an open bypass or a terminal that differs from the schedule"})
 				}
 			}
@@ -402,10 +422,19 @@ func byPart(b Branch, t Thresholds) (up, down float64) {
 	hi := max(math.Log(t.ScatterRatio), math.Log1p(t.ExtraDrop/b.DesignDrop))
 	up = normalCDF((b.DataLn - hi) / b.DataSD)
 	if t.ExtraDrop < b.DesignDrop {
-		lo := max(math.Log(t.ScatterRatio), -math.Log1p(-t.ExtraDrop/b.DesignDrop))
-		down = normalCDF((-lo - b.DataLn) / b.DataSD)
+		down = normalCDF((-partLow(b, t) - b.DataLn) / b.DataSD)
 	}
 	return up, down
+}
+
+// partLow is how far below design, in ln of the ratio, byPart's readings
+// must place a branch: past a clean branch's scatter and past the ratio that
+// removes ExtraDrop at design flow (+Inf where the design drop is no more).
+func partLow(b Branch, t Thresholds) float64 {
+	if !(t.ExtraDrop < b.DesignDrop) {
+		return math.Inf(1)
+	}
+	return max(math.Log(t.ScatterRatio), -math.Log1p(-t.ExtraDrop/b.DesignDrop))
 }
 
 func branchOf(r Reading) string {

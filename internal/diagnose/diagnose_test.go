@@ -165,3 +165,34 @@ func TestCheckAssumedElsewhere(t *testing.T) {
 		})
 	}
 }
+
+// TestCheckFreeByPartEvidence: a branch flagged free on its part alone (its
+// readings put it under a clean branch's scatter, 1/1.2 of design, while the
+// fitted ratio, 0.84 with an ln sd of 0.03, is nowhere near 1/1.5) is not
+// said to lie under 1/1.5 with the part test's probability: its evidence
+// names the part test's edge and the drop it takes off at design flow
+// ((1 - 0.84) x 60 kPa = 9.6 kPa, worked by hand). One flagged on its fitted
+// ratio keeps that ratio's probability.
+func TestCheckFreeByPartEvidence(t *testing.T) {
+	byPart := Branch{ID: "x", Ratio: 0.84, LogSD: 0.03, Determined: true, OpenFlow: math.NaN(), HasValve: true,
+		DataLn: math.Log(0.7), DataSD: 0.04, DesignDrop: 60e3, FaultProb: math.NaN()}
+	byRatio := Branch{ID: "x", Ratio: 0.3, LogSD: 0.1, Determined: true, OpenFlow: math.NaN(), HasValve: true}
+	for _, tc := range []struct {
+		name      string
+		b         Branch
+		want, not string
+	}{
+		{"by its part", byPart, "about 9.6 kPa less than designed at design flow (resistance 0.84 x design, 95 % interval 0.79-0.89, with the valve taken at its recorded setting); the readings alone put it below 0.83 x design with probability 1.000", "P(ratio <"},
+		{"by its fitted ratio", byRatio, "with the valve taken at its recorded setting; P(ratio < 0.67) = 1.000", "readings alone"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			fs := Check([]Branch{tc.b}, nil, Thresholds{})
+			if len(fs) != 1 || fs[0].Code != ValveMisSet {
+				t.Fatalf("findings %+v, want one %v", fs, ValveMisSet)
+			}
+			if !strings.Contains(fs[0].Evidence, tc.want) || strings.Contains(fs[0].Evidence, tc.not) {
+				t.Errorf("evidence %q: want %q, not %q", fs[0].Evidence, tc.want, tc.not)
+			}
+		})
+	}
+}
