@@ -268,6 +268,16 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 	if err != nil {
 		return nil, err
 	}
+	// isRead reports a branch read after setting (every branch where the
+	// caller does not say); leftSD is the sd of a branch's ln flow as
+	// left, the model's own error added to one not read.
+	isRead := func(i int) bool { return o.Read == nil || i < len(o.Read) && o.Read[i] }
+	leftSD := func(i int) float64 {
+		if isRead(i) {
+			return sdL[i]
+		}
+		return math.Hypot(sdL[i], modelSD)
+	}
 
 	// The pump: with the valves as left, the speed or differential that
 	// brings the branches nearest their targets (see centre), when it
@@ -329,11 +339,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// match, rms 2.3 -> 2.9 %).
 			placed := true
 			if ok && target[ix] > 0 {
-				sl := sdL[ix]
-				if !(o.Read == nil || ix < len(o.Read) && o.Read[ix]) {
-					sl = math.Hypot(sl, modelSD)
-				}
-				placed = solL.Flow(ix)/target[ix]*math.Exp(k*sl) < 1+o.Inner*tp.ToleranceLow
+				placed = solL.Flow(ix)/target[ix]*math.Exp(k*leftSD(ix)) < 1+o.Inner*tp.ToleranceLow
 			}
 			if trusted && !short && placed {
 				x = max(x, xr)
@@ -396,7 +402,7 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 			// is moved on the model's prediction alone when that is
 			// beyond the inner band.
 			r := sol.Flow(i) / target[i]
-			read := o.Read == nil || i < len(o.Read) && o.Read[i]
+			read := isRead(i)
 			placed := o.Read != nil && read || !(r*math.Exp(-k*sdL[i]) <= 1 && r*math.Exp(k*sdL[i]) >= 1)
 			out := !in(r, o.Inner) && placed
 			// An unread branch the model puts outside the tolerance as
@@ -494,11 +500,8 @@ func Trim(ctx context.Context, m *plant.Model, p plant.Params, plan *Plan, left 
 		if b.ValveModel != nil {
 			tb.Valve, tb.Unit = b.ValveModel.Name, b.ValveModel.Unit
 		}
-		read := o.Read == nil || i < len(o.Read) && o.Read[i]
-		sl, sa := sdL[i], math.Hypot(sdA[i], modelSD)
-		if !read {
-			sl = math.Hypot(sl, modelSD)
-		}
+		read := isRead(i)
+		sl, sa := leftSD(i), math.Hypot(sdA[i], modelSD)
 		r := solL.Flow(i) / target[i]
 		tb.LeftPercent, tb.LeftLow, tb.LeftHigh = 100*r, 100*r*math.Exp(-k*sl), 100*r*math.Exp(k*sl)
 		ra := sol.Flow(i) / target[i]

@@ -253,22 +253,15 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 				// (below that confidence) the readings alone placing the
 				// branch's part under its scatter and ExtraDrop, whose
 				// chance is of that other event.
-				post := p
-				evidence := func(withValve bool) string {
-					lo, hi := b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD)
-					valve := ""
-					if withValve {
-						valve = " with the valve taken at its recorded setting"
+				lo, hi := b.Ratio*math.Exp(-1.96*b.LogSD), b.Ratio*math.Exp(1.96*b.LogSD)
+				evidence := func(valve string) string {
+					if p >= t.Confidence {
+						return fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f)%s; P(ratio < %.2g) = %.3f", b.Ratio, lo, hi, valve, 1/t.Restricted, p)
 					}
-					if post >= t.Confidence {
-						return fmt.Sprintf("fitted resistance %.2f x design (95 %% interval %.2f-%.2f)%s; P(ratio < %.2g) = %.3f", b.Ratio, lo, hi, valve, 1/t.Restricted, post)
-					}
-					if withValve {
-						valve = "," + valve
-					}
-					return fmt.Sprintf("about %.1f kPa less than designed at design flow (resistance %.2f x design, 95 %% interval %.2f-%.2f%s); the readings alone put it below %.2f x design with probability %.3f", -extra/1000, b.Ratio, lo, hi, valve, math.Exp(-partLow(b, t)), down)
+					return fmt.Sprintf("about %.1f kPa less than designed at design flow (resistance %.2f x design, 95 %% interval %.2f-%.2f)%s; the readings alone put it below %.2f x design with probability %.3f", -extra/1000, b.Ratio, lo, hi, valve, math.Exp(-partLow(b, t)), down)
 				}
-				p = max(p, down)
+				const atRecorded = " with the valve taken at its recorded setting"
+				conf := max(p, down)
 				if b.HasValve && (b.Valve == nil || b.Valve.Hypothesis == "follows its table") {
 					// Where the readings cannot tell the valve from the
 					// rest of the branch, a branch passing far more than
@@ -276,9 +269,9 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					// handwheel says: a plug loose from its spindle sits in
 					// the upper part of its travel, a handwheel slips off
 					// its mark (common practice, no source).
-					f := Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: p,
+					f := Finding{Code: ValveMisSet, Severity: Warning, Branch: b.ID, Confidence: conf,
 						Message:  "passes water as if its balancing valve were more open than recorded: a plug loose from its spindle or a handwheel off its mark, or else an open bypass",
-						Evidence: evidence(true),
+						Evidence: evidence(atRecorded),
 						Action:   "move the handwheel a turn and read the flow again: it must change; then check for an open bypass"}
 					if b.TestPoints && !b.HasFlow {
 						// Its flow is known only through its own valve's
@@ -290,9 +283,9 @@ func Check(branches []Branch, readings []Reading, t Thresholds) []Finding {
 					}
 					out = append(out, f)
 				} else {
-					out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: p,
+					out = append(out, Finding{Code: Free, Severity: Warning, Branch: b.ID, Confidence: conf,
 						Message:  "resistance well below design: an open bypass, a missing component, or a wrong design entry",
-						Evidence: evidence(false),
+						Evidence: evidence(""),
 						Action:   "check for an open bypass or a terminal that differs from the schedule"})
 				}
 			}

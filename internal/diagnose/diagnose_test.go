@@ -182,7 +182,7 @@ func TestCheckFreeByPartEvidence(t *testing.T) {
 		b         Branch
 		want, not string
 	}{
-		{"by its part", byPart, "about 9.6 kPa less than designed at design flow (resistance 0.84 x design, 95 % interval 0.79-0.89, with the valve taken at its recorded setting); the readings alone put it below 0.83 x design with probability 1.000", "P(ratio <"},
+		{"by its part", byPart, "about 9.6 kPa less than designed at design flow (resistance 0.84 x design, 95 % interval 0.79-0.89) with the valve taken at its recorded setting; the readings alone put it below 0.83 x design with probability 1.000", "P(ratio <"},
 		{"by its fitted ratio", byRatio, "with the valve taken at its recorded setting; P(ratio < 0.67) = 1.000", "readings alone"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
